@@ -1,0 +1,176 @@
+package dosemap
+
+import (
+	"fmt"
+	"math"
+)
+
+// Volume is a scalar field sampled on a Geometry.
+//
+// Data holds one value per voxel at index (k*Rows + j)*Cols + i (see
+// Geometry.Index). NaN marks a voxel without a valid value ("not monitored"
+// for temperature and dose).
+type Volume struct {
+	Geometry
+	Data []float32
+}
+
+// NewVolume returns a zero-filled volume on g.
+func NewVolume(g Geometry) *Volume {
+	return &Volume{Geometry: g, Data: make([]float32, g.Len())}
+}
+
+// Fill sets every voxel of v to x and returns v.
+func (v *Volume) Fill(x float32) *Volume {
+	for n := range v.Data {
+		v.Data[n] = x
+	}
+	return v
+}
+
+// Clone returns a deep copy of v.
+func (v *Volume) Clone() *Volume {
+	return &Volume{Geometry: v.Geometry, Data: append([]float32(nil), v.Data...)}
+}
+
+// At returns the value of voxel (i, j, k). It panics if the voxel is outside
+// the grid.
+func (v *Volume) At(i, j, k int) float32 {
+	if !v.Contains(i, j, k) {
+		panic(fmt.Sprintf("dosemap: voxel (%d, %d, %d) outside %d×%d×%d grid", i, j, k, v.Cols, v.Rows, v.Slices))
+	}
+	return v.Data[v.Index(i, j, k)]
+}
+
+// Set sets the value of voxel (i, j, k). It panics if the voxel is outside
+// the grid.
+func (v *Volume) Set(i, j, k int, x float32) {
+	if !v.Contains(i, j, k) {
+		panic(fmt.Sprintf("dosemap: voxel (%d, %d, %d) outside %d×%d×%d grid", i, j, k, v.Cols, v.Rows, v.Slices))
+	}
+	v.Data[v.Index(i, j, k)] = x
+}
+
+// Check reports an error when len(v.Data) does not match the geometry.
+func (v *Volume) Check() error {
+	if len(v.Data) != v.Len() {
+		return fmt.Errorf("volume holds %d values for a %d×%d×%d grid", len(v.Data), v.Cols, v.Rows, v.Slices)
+	}
+	return nil
+}
+
+// SampleVoxel returns the trilinear interpolation of v at continuous voxel
+// coordinate (i, j, k). A point within half a voxel outside the outermost
+// voxel centres takes the value of the nearest edge voxel (the edge voxel's
+// extent); a point farther out returns NaN. Interpolation touching a NaN
+// voxel returns NaN, so missing data never blends into valid data. A grid
+// of one slice is sampled bilinearly within ±half a slice.
+func (v *Volume) SampleVoxel(i, j, k float64) float32 {
+	x, ok0 := clampAxis(i, v.Cols)
+	y, ok1 := clampAxis(j, v.Rows)
+	z, ok2 := clampAxis(k, v.Slices)
+	if !ok0 || !ok1 || !ok2 {
+		return float32(math.NaN())
+	}
+	i0, fx := split(x, v.Cols)
+	j0, fy := split(y, v.Rows)
+	k0, fz := split(z, v.Slices)
+	var sum float64
+	for dk := 0; dk < 2; dk++ {
+		wz := 1 - fz
+		if dk == 1 {
+			wz = fz
+		}
+		if wz == 0 {
+			continue
+		}
+		for dj := 0; dj < 2; dj++ {
+			wy := 1 - fy
+			if dj == 1 {
+				wy = fy
+			}
+			if wy == 0 {
+				continue
+			}
+			for di := 0; di < 2; di++ {
+				wx := 1 - fx
+				if di == 1 {
+					wx = fx
+				}
+				if wx == 0 {
+					continue
+				}
+				val := v.Data[v.Index(i0+di, j0+dj, k0+dk)]
+				if val != val { // NaN
+					return float32(math.NaN())
+				}
+				sum += wx * wy * wz * float64(val)
+			}
+		}
+	}
+	return float32(sum)
+}
+
+// Sample returns the trilinear interpolation of v at patient position p
+// (mm); see SampleVoxel for the treatment of edges and NaN.
+func (v *Volume) Sample(p Vec3) float32 {
+	i, j, k := v.Voxel(p)
+	return v.SampleVoxel(i, j, k)
+}
+
+// clampAxis maps a continuous index onto [0, n-1], accepting up to half a
+// voxel beyond either end; ok is false farther out.
+func clampAxis(x float64, n int) (float64, bool) {
+	if x != x || x < -0.5 || x > float64(n)-0.5 {
+		return 0, false
+	}
+	if x < 0 {
+		x = 0
+	}
+	if m := float64(n - 1); x > m {
+		x = m
+	}
+	return x, true
+}
+
+// split returns the lower neighbour index and the fractional weight of the
+// upper neighbour, keeping the upper neighbour inside [0, n-1].
+func split(x float64, n int) (int, float64) {
+	i0 := int(math.Floor(x))
+	if i0 >= n-1 {
+		return n - 1, 0
+	}
+	return i0, x - float64(i0)
+}
+
+// Resample returns v trilinearly interpolated onto the voxel centres of dst.
+// Voxels of dst outside v's grid (beyond half a voxel of its outermost
+// centres) are NaN — "not monitored" — never zero.
+func Resample(v *Volume, dst Geometry) *Volume {
+	out := NewVolume(dst)
+	// Voxel coordinates in v are affine in (i, j, k) of dst: compute the
+	// origin and the three steps once.
+	o0, o1, o2 := v.Voxel(dst.Point(0, 0, 0))
+	a0, a1, a2 := v.Voxel(dst.Point(1, 0, 0))
+	b0, b1, b2 := v.Voxel(dst.Point(0, 1, 0))
+	c0, c1, c2 := v.Voxel(dst.Point(0, 0, 1))
+	a0, a1, a2 = a0-o0, a1-o1, a2-o2
+	b0, b1, b2 = b0-o0, b1-o1, b2-o2
+	c0, c1, c2 = c0-o0, c1-o1, c2-o2
+	n := 0
+	for k := 0; k < dst.Slices; k++ {
+		fk := float64(k)
+		for j := 0; j < dst.Rows; j++ {
+			fj := float64(j)
+			x := o0 + fj*b0 + fk*c0
+			y := o1 + fj*b1 + fk*c1
+			z := o2 + fj*b2 + fk*c2
+			for i := 0; i < dst.Cols; i++ {
+				fi := float64(i)
+				out.Data[n] = v.SampleVoxel(x+fi*a0, y+fi*a1, z+fi*a2)
+				n++
+			}
+		}
+	}
+	return out
+}
