@@ -63,9 +63,11 @@ type ThermometryOptions struct {
 	Drift      DriftMethod
 	DriftOrder int
 	// Reference marks the unheated voxels the drift is measured in (one
-	// value per voxel). Nil selects it automatically: voxels with signal
-	// whose in-plane distance from the hottest spot is at least
-	// max(20 mm, a quarter of the smaller in-plane field of view).
+	// value per voxel). Nil selects it automatically: the hottest spot is
+	// the voxel of largest 3×3-smoothed peak phase change after a
+	// per-slice first-order (or DriftOrder) background fit; the reference
+	// is every voxel with signal whose in-plane distance from it is at
+	// least max(20 mm, a quarter of the smaller in-plane field of view).
 	Reference []bool
 	// MinMagnitude is a fraction of the 98th percentile of the baseline
 	// magnitude: a voxel whose baseline magnitude, or whose magnitude in a
@@ -607,29 +609,50 @@ func (t *thermo) referenceMask() []bool {
 	}
 	g := t.g
 	sl := g.SliceLen()
-	// Peak phase change per voxel relative to the slice mean of each frame
-	// (which removes most of a uniform drift), smoothed 3×3 in-plane.
+	// Peak phase change per voxel after removing, frame by frame and slice
+	// by slice, a least-squares polynomial (order max(1, DriftOrder)) fitted
+	// to every other voxel with signal in i and j, so a drift is not taken
+	// for the hot spot; then smoothed 3×3 in-plane.
+	sig := make([]bool, nv)
+	for n := range sig {
+		i, j, _ := g.IJK(n)
+		sig[n] = !math.IsNaN(t.ref[n]) && i%2 == 0 && j%2 == 0
+	}
+	order := 1
+	if t.opt.Drift == DriftPolynomial {
+		order = max(1, t.opt.DriftOrder)
+	}
+	fits := make([]*sliceFit, g.Slices)
+	for s := range fits {
+		fits[s] = newSliceFit(g, s, sig, nil, order)
+	}
 	peak := make([]float64, nv)
-	for f, fr := range t.out.Frames {
+	buf := make([]float32, sl)
+	for f := t.nb; f < t.nf; f++ {
+		fr := t.out.Frames[f]
 		if t.out.Quality[f].Flagged {
 			continue
 		}
 		for s := 0; s < g.Slices; s++ {
-			var sum float64
-			cnt := 0
-			for n := s * sl; n < (s+1)*sl; n++ {
-				if v := fr[n]; v == v {
-					sum += float64(v)
-					cnt++
+			copy(buf, fr[s*sl:(s+1)*sl])
+			if _, _, err := fits[s].remove(buf); err != nil {
+				var sum float64
+				cnt := 0
+				for _, v := range buf {
+					if v == v {
+						sum += float64(v)
+						cnt++
+					}
+				}
+				for n, v := range buf {
+					if v == v {
+						buf[n] = v - float32(sum/float64(max(cnt, 1)))
+					}
 				}
 			}
-			if cnt == 0 {
-				continue
-			}
-			mean := sum / float64(cnt)
-			for n := s * sl; n < (s+1)*sl; n++ {
-				if v := fr[n]; v == v {
-					peak[n] = max(peak[n], math.Abs(float64(v)-mean))
+			for n, v := range buf {
+				if v == v {
+					peak[s*sl+n] = max(peak[s*sl+n], math.Abs(float64(v)))
 				}
 			}
 		}
