@@ -24,6 +24,17 @@ func startCPU(b *testing.B) *cpuMeter {
 	return &cpuMeter{b: b, start: int64(c), ok: ok}
 }
 
+// reportTime reports milliseconds per item, wall and CPU.
+func (m *cpuMeter) reportTime(items float64, name string) {
+	b := m.b
+	c, ok := threadCPU()
+	runtime.UnlockOSThread()
+	b.ReportMetric(b.Elapsed().Seconds()*1e3/(items*float64(b.N)), name)
+	if ok && m.ok && int64(c) > m.start {
+		b.ReportMetric(float64(int64(c)-m.start)/1e6/(items*float64(b.N)), name+"-cpu")
+	}
+}
+
 // report reports work/1e6 per second as name (wall) and name+"-cpu".
 func (m *cpuMeter) report(work float64, name string) {
 	b := m.b
@@ -109,7 +120,7 @@ func BenchmarkArrhenius(b *testing.B) {
 // (target under 1 ms for one 128×128×6 frame), with and without drift
 // correction.
 func BenchmarkThermometry(b *testing.B) {
-	for _, s := range []struct{ cols, frames int }{{64, 20}, {128, 20}} {
+	for _, s := range []struct{ cols, frames int }{{64, 20}, {128, 20}, {128, 100}} {
 		p := newPhantom(s.cols, s.frames)
 		p.g.Slices = 6
 		p.rise = hotSpot(20, 2, 8)
@@ -125,7 +136,7 @@ func BenchmarkThermometry(b *testing.B) {
 						b.Fatal(err)
 					}
 				}
-				cpu.report(float64(s.frames), "kframes/s")
+				cpu.reportTime(float64(s.frames), "ms/frame")
 			})
 		}
 	}

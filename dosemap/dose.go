@@ -308,7 +308,19 @@ func (a *accumulator) cemTrapezoid(T []float32, lo int, w float64) {
 		if x >= brk {
 			e = la
 		}
-		f := exp2(e * (x - 43))
+		y := e * (x - 43)
+		var f float64
+		if y > -1022 && y < 1023 {
+			// exp2 inlined (see there).
+			const magic = 0x1.8p52
+			t := y*64 + magic
+			k := int64(math.Float64bits(t)) - int64(math.Float64bits(magic))
+			r := (y - (t-magic)/64) * math.Ln2
+			p := 1 + r*(1+r*(1.0/2+r*(1.0/6+r*(1.0/24))))
+			f = math.Float64frombits(uint64((k>>6)+1023)<<52) * exp2Table[k&63] * p
+		} else {
+			f = exp2(y)
+		}
 		s := prev[n] + f
 		prev[n] = f
 		if s == s {
