@@ -478,11 +478,12 @@ func (t *thermo) unwrap() {
 	nan := float32(math.NaN())
 	const twoPi = 2 * math.Pi
 	const invTwoPi = 1 / twoPi
+	slab := make([]float32, t.nf*nv) // all frames in one allocation
 	for f := 0; f < t.nf; f++ {
 		q := &t.out.Quality[f]
 		q.Time = t.s.Times[f]
 		q.Motion, q.SNR = math.NaN(), math.NaN()
-		out := make([]float32, nv)
+		out := slab[f*nv : (f+1)*nv : (f+1)*nv]
 		t.out.Frames[f] = out
 		ph := t.s.Phase[f]
 		var mf []float32
@@ -654,10 +655,18 @@ func (t *thermo) referenceMask() []bool {
 				}
 				cf = [6]float64{sum / float64(max(cnt, 1))}
 			}
-			for p, n := range sf.idx {
-				if x := v[n]; x == x {
-					d := math.Abs(float64(x) - sf.evalAt(cf, p))
-					peak[s*sl+n] = max(peak[s*sl+n], d)
+			pk := peak[s*sl : (s+1)*sl]
+			for j := 0; j < g.Rows; j++ {
+				y := sf.y[j]
+				a := cf[0] + cf[2]*y + cf[5]*y*y
+				b := cf[1] + cf[4]*y
+				c := cf[3]
+				for p := sf.rowStart[j]; p < sf.rowStart[j+1]; p++ {
+					n := int(sf.idx[p])
+					if u := v[n]; u == u {
+						x := sf.x[n-j*g.Cols]
+						pk[n] = max(pk[n], math.Abs(float64(u)-(a+x*(b+x*c))))
+					}
 				}
 			}
 		}
@@ -768,10 +777,10 @@ func (t *thermo) drift() {
 type sliceFit struct {
 	cols, rows int
 	terms      int
-	idx        []int        // in-slice indices of the reference voxels
-	w          []float64    // their weights
-	basis      [][6]float64 // their polynomial terms
-	x, y       []float64    // normalised coordinates per column and row
+	idx        []int32   // in-slice indices of the reference voxels, row by row
+	rowStart   []int32   // idx[rowStart[j]:rowStart[j+1]] lie in row j
+	w          []float64 // their weights
+	x, y       []float64 // normalised coordinates per column and row
 	chol       *mat.Cholesky
 	err        error
 }
@@ -780,25 +789,28 @@ func polyTerms(order int) int { return (order + 1) * (order + 2) / 2 }
 
 func newSliceFit(g Geometry, s int, ref []bool, baseMag []float32, order int) *sliceFit {
 	sl := g.SliceLen()
-	sf := &sliceFit{cols: g.Cols, rows: g.Rows, terms: polyTerms(order)}
+	sf := &sliceFit{cols: g.Cols, rows: g.Rows, terms: polyTerms(order), rowStart: make([]int32, g.Rows+1)}
 	sf.x = normCoords(g.Cols)
 	sf.y = normCoords(g.Rows)
-	for n := 0; n < sl; n++ {
-		if !ref[s*sl+n] {
-			continue
-		}
-		w := 1.0
-		if baseMag != nil {
-			m := float64(baseMag[s*sl+n])
-			w = m * m
-		}
-		if w > 0 {
-			x, y := sf.x[n%sf.cols], sf.y[n/sf.cols]
-			sf.idx = append(sf.idx, n)
-			sf.w = append(sf.w, w)
-			sf.basis = append(sf.basis, [6]float64{1, x, y, x * x, x * y, y * y})
+	for j := 0; j < g.Rows; j++ {
+		sf.rowStart[j] = int32(len(sf.idx))
+		for i := 0; i < g.Cols; i++ {
+			n := j*g.Cols + i
+			if !ref[s*sl+n] {
+				continue
+			}
+			w := 1.0
+			if baseMag != nil {
+				m := float64(baseMag[s*sl+n])
+				w = m * m
+			}
+			if w > 0 {
+				sf.idx = append(sf.idx, int32(n))
+				sf.w = append(sf.w, w)
+			}
 		}
 	}
+	sf.rowStart[g.Rows] = int32(len(sf.idx))
 	sf.chol, sf.err = sf.factor(nil)
 	return sf
 }
@@ -812,6 +824,12 @@ func normCoords(n int) []float64 {
 		}
 	}
 	return c
+}
+
+// basis returns the polynomial terms 1, x, y, x², xy, y² at in-slice index n.
+func (sf *sliceFit) basis(n int) [6]float64 {
+	x, y := sf.x[n%sf.cols], sf.y[n/sf.cols]
+	return [6]float64{1, x, y, x * x, x * y, y * y}
 }
 
 // factor builds and factorises the normal matrix AᵀWA over the reference
@@ -828,7 +846,7 @@ func (sf *sliceFit) factor(valid []float32) (*mat.Cholesky, error) {
 			continue
 		}
 		cnt++
-		b := &sf.basis[p]
+		b := sf.basis(int(n))
 		w := sf.w[p]
 		for r := 0; r < m; r++ {
 			wr := w * b[r]
@@ -853,39 +871,49 @@ func (sf *sliceFit) factor(valid []float32) (*mat.Cholesky, error) {
 	return &ch, nil
 }
 
-// fit returns the least-squares polynomial coefficients of the phase change
-// v (one slice) over the valid reference voxels.
+// fit returns the weighted least-squares polynomial coefficients of the
+// phase change v (one slice) over its valid reference voxels: the solution
+// of AᵀWA·c = AᵀW·v. AᵀW·v is summed row by row (Σw·v, Σw·v·x, Σw·v·x²
+// per row, then multiplied by the row's powers of y).
 func (sf *sliceFit) fit(v []float32) ([6]float64, error) {
 	var cf [6]float64
-	ch, err := sf.chol, sf.err
-	for _, n := range sf.idx {
-		if v[n] != v[n] {
-			ch, err = sf.factor(v)
-			break
+	var rhs [6]float64
+	m := sf.terms
+	anyNaN := false
+	for j := 0; j < sf.rows; j++ {
+		lo, hi := sf.rowStart[j], sf.rowStart[j+1]
+		if lo == hi {
+			continue
 		}
+		row := j * sf.cols
+		var s0, s1, s2 float64
+		for p := lo; p < hi; p++ {
+			n := sf.idx[p]
+			u := v[n]
+			if u != u {
+				anyNaN = true
+				continue
+			}
+			wu := sf.w[p] * float64(u)
+			x := sf.x[int(n)-row]
+			s0 += wu
+			s1 += wu * x
+			s2 += wu * x * x
+		}
+		y := sf.y[j]
+		rhs[0] += s0
+		rhs[1] += s1
+		rhs[2] += s0 * y
+		rhs[3] += s2
+		rhs[4] += s1 * y
+		rhs[5] += s0 * y * y
+	}
+	ch, err := sf.chol, sf.err
+	if anyNaN {
+		ch, err = sf.factor(v)
 	}
 	if err != nil {
 		return cf, err
-	}
-	m := sf.terms
-	var rhs [6]float64
-	for p, n := range sf.idx {
-		x := v[n]
-		if x != x {
-			continue
-		}
-		b := &sf.basis[p]
-		w := sf.w[p] * float64(x)
-		rhs[0] += w
-		if m > 1 {
-			rhs[1] += w * b[1]
-			rhs[2] += w * b[2]
-		}
-		if m > 3 {
-			rhs[3] += w * b[3]
-			rhs[4] += w * b[4]
-			rhs[5] += w * b[5]
-		}
 	}
 	var c mat.VecDense
 	if err := ch.SolveVecTo(&c, mat.NewVecDense(m, rhs[:m])); err != nil {
@@ -895,12 +923,6 @@ func (sf *sliceFit) fit(v []float32) ([6]float64, error) {
 		cf[r] = c.AtVec(r)
 	}
 	return cf, nil
-}
-
-// evalAt returns the polynomial at reference voxel p.
-func (sf *sliceFit) evalAt(cf [6]float64, p int) float64 {
-	b := &sf.basis[p]
-	return cf[0] + cf[1]*b[1] + cf[2]*b[2] + cf[3]*b[3] + cf[4]*b[4] + cf[5]*b[5]
 }
 
 // remove fits the polynomial to the phase change v (one slice) and subtracts
@@ -913,12 +935,6 @@ func (sf *sliceFit) remove(v []float32) (float64, int, error) {
 	}
 	var sum float64
 	cnt := 0
-	for p, n := range sf.idx {
-		if v[n] == v[n] {
-			sum += sf.evalAt(cf, p)
-			cnt++
-		}
-	}
 	for j := 0; j < sf.rows; j++ {
 		y := sf.y[j]
 		// d(x) = a + b·x + c·x² along the row.
@@ -926,6 +942,14 @@ func (sf *sliceFit) remove(v []float32) (float64, int, error) {
 		b := cf[1] + cf[4]*y
 		c := cf[3]
 		row := v[j*sf.cols : (j+1)*sf.cols]
+		for p := sf.rowStart[j]; p < sf.rowStart[j+1]; p++ {
+			i := int(sf.idx[p]) - j*sf.cols
+			if u := row[i]; u == u {
+				x := sf.x[i]
+				sum += a + x*(b+x*c)
+				cnt++
+			}
+		}
 		for i, u := range row {
 			if u == u {
 				x := sf.x[i]
