@@ -8,6 +8,7 @@ import (
 	"io"
 	"math"
 	"os"
+	"regexp"
 	"strings"
 
 	"dosecover/dosemap"
@@ -73,6 +74,9 @@ var transferSyntaxes = map[string]struct {
 	"1.2.840.10008.1.2.4.201.1": {"High-Throughput JPEG 2000", false},
 }
 
+// tagInError finds the first "(gggg,eeee)" in a parser error.
+var tagInError = regexp.MustCompile(`\(([0-9a-fA-F]{4}),([0-9a-fA-F]{4})\)`)
+
 // syntaxName returns the name of transfer syntax uid, or the UID itself.
 func syntaxName(uid string) string {
 	if s, ok := transferSyntaxes[uid]; ok {
@@ -112,7 +116,7 @@ type frameMeta struct {
 	Row, Col    dosemap.Vec3 // ImageOrientationPatient triplets
 	Spacing     [2]float64   // PixelSpacing: row spacing, column spacing (mm)
 	Thickness   float64
-	TemporalPos int    // TemporalPositionIdentifier / TemporalPositionIndex; 0 none
+	TemporalPos int // TemporalPositionIdentifier / TemporalPositionIndex; 0 none
 	Time        clockTime
 	Component   string // "P", "M", "R", "I" or ""
 	Slope       float64
@@ -213,12 +217,18 @@ func readBytes(path string, data []byte, pixels bool) (fi *fileInfo, err error) 
 				return nil, skip("not a DICOM file (%v)", perr)
 			}
 		}
-		if errors.Is(perr, io.EOF) || errors.Is(perr, io.ErrUnexpectedEOF) || strings.Contains(perr.Error(), "EOF") {
-			last := "the header"
-			if len(es) > 0 {
-				last = "after " + tagName(es[len(es)-1].Tag)
+		msg := perr.Error()
+		if errors.Is(perr, io.EOF) || errors.Is(perr, io.ErrUnexpectedEOF) || strings.Contains(msg, "EOF") ||
+			strings.Contains(msg, "not enough bytes") || strings.Contains(msg, "exceeds current limit") {
+			where := "in the header"
+			if m := tagInError.FindStringSubmatch(msg); m != nil {
+				var g, e uint16
+				fmt.Sscanf(m[1]+" "+m[2], "%x %x", &g, &e)
+				where = "inside " + tagName(tag.Tag{Group: g, Element: e})
+			} else if len(es) > 0 {
+				where = "after " + tagName(es[len(es)-1].Tag)
 			}
-			return nil, skip("truncated: the file ends early (%s)", last)
+			return nil, skip("truncated: the file ends early (%s)", where)
 		}
 		return nil, skip("unreadable: %v", perr)
 	}
@@ -232,6 +242,9 @@ func readBytes(path string, data []byte, pixels bool) (fi *fileInfo, err error) 
 // fill extracts the attributes dosecover uses from the top-level dataset.
 func (fi *fileInfo) fill(es elems, pixels bool) error {
 	fi.SOPClass = es.str(tag.SOPClassUID)
+	if fi.SOPClass == "" {
+		fi.SOPClass = es.str(tag.MediaStorageSOPClassUID)
+	}
 	fi.SOPInstance = es.str(tag.SOPInstanceUID)
 	fi.Modality = strings.ToUpper(es.str(tag.Modality))
 	fi.StudyUID = es.str(tag.StudyInstanceUID)

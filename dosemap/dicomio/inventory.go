@@ -63,12 +63,12 @@ type SeriesInfo struct {
 	TimePoints  int              `json:"timePoints"`
 	Geometry    dosemap.Geometry `json:"geometry"`
 	FrameOfRef  string           `json:"frameOfReference"`
-	B0          float64          `json:"b0Tesla"`           // 0 when the files lack it
-	TE          float64          `json:"echoTimeSeconds"`   // 0 when the files lack it
-	Start       time.Time        `json:"start"`             // zero when the files give no date
-	StartClock  string           `json:"startClock"`        // time of day as written
-	Duration    float64          `json:"durationSeconds"`   // first to last frame
-	Note        string           `json:"note,omitempty"`    // why the role was chosen, or what is wrong
+	B0          float64          `json:"b0Tesla"`         // 0 when the files lack it
+	TE          float64          `json:"echoTimeSeconds"` // 0 when the files lack it
+	Start       time.Time        `json:"start"`           // zero when the files give no date
+	StartClock  string           `json:"startClock"`      // time of day as written
+	Duration    float64          `json:"durationSeconds"` // first to last frame
+	Note        string           `json:"note,omitempty"`  // why the role was chosen, or what is wrong
 	Paths       []string         `json:"-"`
 }
 

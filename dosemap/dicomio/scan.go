@@ -44,6 +44,16 @@ func Scan(ctx context.Context, dir string, progress func(done, total int)) (*Inv
 	return cr.inv, nil
 }
 
+// ScanOptions is Scan with options (only Workers and AnatomySeries matter:
+// the latter decides which anatomy series the inventory marks as used).
+func ScanOptions(ctx context.Context, dir string, opt LoadOptions, progress func(done, total int)) (*Inventory, error) {
+	cr, err := scan(ctx, dir, opt, progress)
+	if err != nil {
+		return nil, err
+	}
+	return cr.inv, nil
+}
+
 // Load reads the case under dir: the anatomy volume, the sonications (phase
 // and magnitude, temperature or dose frames) and the structures. It reads
 // the attributes of every file first (as Scan does), then the pixel data of
@@ -237,6 +247,14 @@ func (cr *caseReader) assemble(paths []string, infos []*fileInfo, errs []error) 
 		if fi.Structures != nil {
 			cr.structs = append(cr.structs, fi.Structures)
 			cr.structFis = append(cr.structFis, fi)
+		}
+		if fi.SeriesUID == "" && fi.SOPClass == "1.2.840.10008.1.3.10" {
+			inv.Skipped = append(inv.Skipped, SkippedFile{Path: cr.rel(fi.Path), Reason: "DICOM directory (DICOMDIR): an index of files, not used (the folder is searched instead)"})
+			continue
+		}
+		if fi.SeriesUID == "" && !fi.IsImage {
+			inv.Skipped = append(inv.Skipped, SkippedFile{Path: cr.rel(fi.Path), Reason: "no image data, no structure set and no SeriesInstanceUID (0020,000E): not used"})
+			continue
 		}
 		if fi.SeriesUID == "" {
 			inv.Skipped = append(inv.Skipped, SkippedFile{Path: cr.rel(fi.Path), Reason: "missing tag SeriesInstanceUID (0020,000E)"})

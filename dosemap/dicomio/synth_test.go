@@ -104,8 +104,8 @@ type mrSpec struct {
 	Signed12                  bool     // PixelRepresentation 1, BitsStored 12
 	Big                       bool
 	Value                     func(c string, i, j, k, t int) int // stored value
-	Skip                      func(k, t int) bool              // frames not written
-	SlicePos                  func(k int) float64              // position along z; nil: k*SliceGap
+	Skip                      func(k, t int) bool                // frames not written
+	SlicePos                  func(k int) float64                // position along z; nil: k*SliceGap
 	RWV                       []*dicom.Element
 }
 
