@@ -182,12 +182,12 @@ func fitPlane(g dosemap.Geometry, q, u, v dosemap.Vec3, pu, pv float64) Plane {
 		minU, maxU = math.Min(minU, a), math.Max(maxU, a)
 		minV, maxV = math.Min(minV, b), math.Max(maxV, b)
 	}
-	// Pixel centres at g.Origin + (x0+x)*pu along u: the first centre
-	// inside the box, the last inside it.
-	x0 := math.Ceil(minU/pu - 0.5 + 1e-9)
-	x1 := math.Floor(maxU/pu + 0.5 - 1e-9)
-	y0 := math.Ceil(minV/pv - 0.5 + 1e-9)
-	y1 := math.Floor(maxV/pv + 0.5 - 1e-9)
+	// Pixel centres at g.Origin + (x0+x)*pu along u, from the first centre
+	// inside the projected box to the last.
+	x0 := math.Ceil(minU/pu - 1e-9)
+	x1 := math.Floor(maxU/pu + 1e-9)
+	y0 := math.Ceil(minV/pv - 1e-9)
+	y1 := math.Floor(maxV/pv + 1e-9)
 	n := u.Cross(v).Unit()
 	// Origin: g.Origin shifted within the plane, then moved along the
 	// normal to pass through q.

@@ -24,7 +24,9 @@ func Sample(vol *dosemap.Volume, p Plane) []float32 {
 // The voxel coordinate is affine in the pixel coordinate, so each row is
 // clipped against the grid once (slab method) and then stepped with three
 // additions per pixel; planes lying in a slice of the grid take a bilinear
-// path with four taps instead of eight.
+// path with four taps instead of eight. Voxel coordinates within 1e-6 of a
+// voxel centre are snapped onto it, so an acquisition plane reproduces its
+// slice exactly even next to NaN voxels.
 func SampleInto(dst []float32, vol *dosemap.Volume, p Plane) {
 	sampleRect(dst, p.Width, vol, p, image.Rect(0, 0, p.Width, p.Height), float32(math.NaN()))
 }
@@ -102,14 +104,14 @@ func sampleRect(dst []float32, stride int, vol *dosemap.Volume, p Plane, r image
 			continue
 		}
 		// A row lying in one slice of the grid takes the bilinear path.
-		kc := clampf(base[2]+float64(x0)*du[2], n[2])
+		kc := clampf(snap(base[2]+float64(x0)*du[2]), n[2])
 		k0, fz := splitf(kc, n[2])
 		flat := du[2] == 0 && fz == 0
 		for x := x0; x < x1; x++ {
 			fx := float64(x)
-			ci := base[0] + fx*du[0]
-			cj := base[1] + fx*du[1]
-			ck := base[2] + fx*du[2]
+			ci := snap(base[0] + fx*du[0])
+			cj := snap(base[1] + fx*du[1])
+			ck := snap(base[2] + fx*du[2])
 			i0, wx := splitf(clampf(ci, n[0]), n[0])
 			j0, wy := splitf(clampf(cj, n[1]), n[1])
 			var v float64
@@ -139,6 +141,19 @@ func sampleRect(dst []float32, stride int, vol *dosemap.Volume, p Plane, r image
 			out[x] = float32(v)
 		}
 	}
+}
+
+// snapTol is the distance (voxels) within which a coordinate is taken to
+// be on a voxel centre, so that rounding in the plane-to-grid mapping
+// cannot give weight to a NaN neighbour of a valid voxel.
+const snapTol = 1e-6
+
+// snap rounds x to the nearest integer when it lies within snapTol of it.
+func snap(x float64) float64 {
+	if r := math.Round(x); math.Abs(x-r) < snapTol {
+		return r
+	}
+	return x
 }
 
 // clampf clamps a continuous index to [0, n-1]; the caller has already
