@@ -154,6 +154,10 @@ func TestKnownHole(t *testing.T) {
 	if h.TouchesSurface {
 		t.Error("hole touches the surface, want inside")
 	}
+	// Covered plus holes make up the monitored target (definition).
+	if sum := r.CoveredVolumeML*1000 + h.VolumeMM3; math.Abs(sum-r.MonitoredVolumeML*1000) > 1e-6*sum {
+		t.Errorf("covered %.3f + hole %.3f mm³ != monitored %.3f", r.CoveredVolumeML*1000, h.VolumeMM3, r.MonitoredVolumeML*1000)
+	}
 	if math.Abs(r.CoveredFraction-(1-want/(4.0/3*math.Pi*1000))) > 0.01 {
 		t.Errorf("covered fraction %.4f", r.CoveredFraction)
 	}

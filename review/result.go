@@ -96,6 +96,11 @@ type Coverage struct {
 }
 
 // Hole is a connected part of the monitored target below the threshold.
+// Every analysis voxel with any part inside the target belongs to it when
+// its dose is measured and below the threshold (its volume counted by the
+// part inside), so the covered volume plus the holes make up the monitored
+// target. TouchesSurface is true when the hole includes a voxel the target
+// surface passes through.
 type Hole struct {
 	VolumeMM3          float64    `json:"volume_mm3"`
 	FractionTarget     float64    `json:"fraction_of_target"`

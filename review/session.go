@@ -495,7 +495,7 @@ func (s *Session) Analyze(ctx context.Context, set Settings, progress ProgressFu
 	progress.report("holes", 0.4)
 	holeMask := make([]bool, n)
 	for v := range holeMask {
-		holeMask[v] = s.tmask[v] && dc.monFine[v] && !lethal[v]
+		holeMask[v] = s.occ[v] > 0 && dc.monFine[v] && !lethal[v]
 	}
 	hl, nh := Components(g, holeMask, RegionConnectivity)
 	r.Holes = s.holes(hl, nh, dc, tv)
@@ -641,6 +641,9 @@ func (s *Session) holes(hl []int32, nh int, dc *doseCache, tv float64) []Hole {
 		if d := dc.logFine[v]; d > a.maxd {
 			a.maxd = d
 		}
+		if o < 1 {
+			a.surf = true // the target surface passes through this voxel
+		}
 		for _, off := range neighbourOffsets(Connect6) {
 			ii, jj, kk := i+off[0], j+off[1], k+off[2]
 			if !g.Contains(ii, jj, kk) {
@@ -648,7 +651,7 @@ func (s *Session) holes(hl []int32, nh int, dc *doseCache, tv float64) []Hole {
 				continue
 			}
 			m := g.Index(ii, jj, kk)
-			if !s.tmask[m] {
+			if s.occ[m] == 0 {
 				a.surf = true
 			} else if !dc.monFine[m] {
 				a.unmon = true
