@@ -215,6 +215,14 @@ func readBytes(path string, data []byte, pixels bool) (fi *fileInfo, err error) 
 	if !looksLikeDICOM(data) {
 		return nil, skip("not a DICOM file (no DICM marker and no DICOM element at the start)")
 	}
+	syntax, err := checkLengths(data)
+	if ts, ok := transferSyntaxes[syntax]; ok && !ts.supported {
+		return nil, skip("unsupported compression: %s (%s)", ts.name, syntax)
+	}
+	var le *lengthError
+	if errors.As(err, &le) {
+		return nil, skip("truncated or corrupt: %v", err)
+	}
 	opts := []dicom.ParseOption{dicom.AllowMismatchPixelDataLength(), dicom.AllowUnknownSpecificCharacterSet()}
 	if pixels {
 		opts = append(opts, dicom.SkipProcessingPixelDataValue())
@@ -226,7 +234,9 @@ func readBytes(path string, data []byte, pixels bool) (fi *fileInfo, err error) 
 		return nil, skip("unreadable: the DICOM parser failed (%v)", perr)
 	}
 	es := elems(ds.Elements)
-	syntax := es.str(tag.TransferSyntaxUID)
+	if s := es.str(tag.TransferSyntaxUID); s != "" {
+		syntax = s
+	}
 	if ts, ok := transferSyntaxes[syntax]; ok && !ts.supported {
 		return nil, skip("unsupported compression: %s (%s)", ts.name, syntax)
 	}

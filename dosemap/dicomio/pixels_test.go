@@ -3,6 +3,9 @@ package dicomio
 import (
 	"encoding/binary"
 	"math"
+	"os"
+	"runtime"
+	"strings"
 	"testing"
 )
 
@@ -80,5 +83,30 @@ func TestPhaseLinear(t *testing.T) {
 		if a2, _ := fi.phaseLinear(0.001); a2 != 0.001 {
 			t.Errorf("PhaseScale override ignored")
 		}
+	}
+}
+
+// A corrupt length must be rejected before the DICOM library allocates
+// the buffer it declares (here 4 GB).
+func TestHugeDeclaredLength(t *testing.T) {
+	dir := t.TempDir()
+	mrSpec{Dir: dir, SeriesUID: "2.25.901", FoR: testFoR, Number: 1, Cols: 4, Rows: 4, Slices: 1, Times: 1,
+		Spacing: 1, SliceGap: 1}.write(t)
+	paths, _ := listFiles(dir)
+	data, err := os.ReadFile(paths[0])
+	if err != nil {
+		t.Fatal(err)
+	}
+	// Append (0011,0010) OB with length 0xFFFFFFF0 (explicit VR LE).
+	data = append(data, 0x11, 0x00, 0x10, 0x00, 'O', 'B', 0, 0, 0xF0, 0xFF, 0xFF, 0xFF, 1, 2, 3, 4)
+	var before, after runtime.MemStats
+	runtime.ReadMemStats(&before)
+	_, err = readBytes("huge", data, true)
+	runtime.ReadMemStats(&after)
+	if err == nil || !strings.Contains(err.Error(), "truncated or corrupt") {
+		t.Errorf("reason %v, want truncated or corrupt", err)
+	}
+	if d := after.TotalAlloc - before.TotalAlloc; d > 64<<20 {
+		t.Errorf("allocated %d MB reading a 1 kB file", d>>20)
 	}
 }
