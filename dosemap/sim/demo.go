@@ -20,6 +20,7 @@ const DemoSeed = 20261201
 const (
 	demoSigmaAxial   = 8.0 // mm, focal spot σ along the beam
 	demoSigmaLateral = 2.4 // mm, across the beam
+	demoPower        = 5.5 // W absorbed: peaks of about 60-66 °C over 16 s
 )
 
 // baseProtocol returns the thermometry protocol of the scenarios: 3 T,
@@ -57,17 +58,18 @@ func spotGrid(l Ellipsoid, dx, dz, inset float64) []dosemap.Vec3 {
 // lesion in a tissue-mimicking gel phantom held at 37 °C, treated at 3 T
 // with 15 sonications on a plan of 16 spots. Planned spots 4 and 8, at the
 // lesion's left edge (+x) in its lower half, were never delivered, leaving a
-// coverage hole; sonication 9 landed 10.5 mm beyond the lesion's right edge
-// (−x, beyond the margin) and sonication 10 repeated its spot; frame 7 of
-// sonication 6 was acquired with the phantom shifted 3 mm (motion).
+// coverage hole; sonication 7, aimed at spot 9, landed 10.5 mm beyond the
+// lesion's right edge (−x, beyond the 3 mm margin) and sonication 8
+// repeated spot 9; frame 7 of sonication 6 was acquired with the phantom
+// shifted by (3, 1.5, 0) mm (motion).
 func DemoSession() *Session {
 	centre := dosemap.Vec3{4.5, -12, 15}
 	lesion := Ellipsoid{Center: centre, SemiAxes: dosemap.Vec3{11, 9, 8}}
 	s := &Session{
 		Label: "demo",
 		Description: "Invented demonstration case: gel phantom with a 22 mm lesion at 3 T; 16 planned spots, " +
-			"spots 4 and 8 never delivered (coverage hole at the +x edge, lower half), sonication 9 landed beyond " +
-			"the margin (-x) and sonication 10 repeated its spot, frame 7 of sonication 6 moved 3 mm.",
+			"spots 4 and 8 never delivered (coverage hole at the +x edge, lower half), sonication 7 (aimed at spot 9) " +
+			"landed beyond the margin (-x) and sonication 8 repeated spot 9, frame 7 of sonication 6 moved by (3, 1.5, 0) mm.",
 		PatientName: "PHANTOM^GEL", PatientID: "DEMO-001", Seed: DemoSeed,
 		Start: time.Date(2026, 1, 15, 10, 0, 0, 0, time.UTC),
 		Phantom: Phantom{Center: dosemap.Vec3{0, 0, 15}, Radius: 60, Tissue: GelPhantom, BodyTemp: 37,
@@ -77,7 +79,7 @@ func DemoSession() *Session {
 		SimSpacing:  1.2, MarginMM: 3, Threshold: 240,
 	}
 	s.Planned = spotGrid(lesion, 5, 3.5, 2.5)
-	const power, dur, cool = 5.5, 16, 60
+	const power, dur, cool = demoPower, 16, 60
 	for n := range s.Planned {
 		num := n + 1
 		if num == 4 || num == 8 {
@@ -173,7 +175,7 @@ func VariedSession(n int, seed uint64) *Session {
 			Avoid: Tube{Center: dosemap.Vec3{centre[0] + side*(diam/2+u(8, 14)), centre[1] + u(-6, 6), centre[2]}, Radius: u(2.5, 4)}},
 		Thermometry: p,
 		Anatomy:     AnatomyProtocol{Cols: 160, Rows: 160, Slices: 16, PixelSpacing: 0.9, SliceThickness: 2.5, Center: dosemap.Vec3{0, 0, centre[2]}},
-		SimSpacing:  1, MarginMM: 3, Threshold: 240,
+		SimSpacing:  1.2, MarginMM: 3, Threshold: 240,
 	}
 	s.Planned = spotGrid(lesion, 5, 3.5, 2.5)
 	skip := map[int]bool{}
@@ -184,7 +186,7 @@ func VariedSession(n int, seed uint64) *Session {
 	if rng.IntN(2) == 0 {
 		spill = 1 + rng.IntN(len(s.Planned))
 	}
-	power := u(1.5, 1.9) * p.SigmaLateral / demoSigmaLateral
+	power := demoPower * u(0.93, 1.05)
 	for k := range s.Planned {
 		num := k + 1
 		if skip[num] {
@@ -253,7 +255,7 @@ func TypicalSession(seed uint64) *Session {
 			Avoid: Tube{Center: dosemap.Vec3{-30, -8, 20}, Radius: 3}},
 		Thermometry: p,
 		Anatomy:     AnatomyProtocol{Cols: 192, Rows: 192, Slices: 20, PixelSpacing: 0.8, SliceThickness: 2, Center: dosemap.Vec3{0, 0, 20}},
-		SimSpacing:  1, MarginMM: 3, Threshold: 240,
+		SimSpacing:  1.2, MarginMM: 3, Threshold: 240,
 	}
 	for kz := 0; kz < 4; kz++ {
 		for kx := 0; kx < 6; kx++ {
@@ -261,7 +263,7 @@ func TypicalSession(seed uint64) *Session {
 		}
 	}
 	for k := range s.Planned {
-		s.Sonications = append(s.Sonications, SonicationSpec{Planned: k + 1, Focus: s.Planned[k], Power: 1.7, Duration: 18, Cooling: 30})
+		s.Sonications = append(s.Sonications, SonicationSpec{Planned: k + 1, Focus: s.Planned[k], Power: demoPower, Duration: 18, Cooling: 40})
 	}
 	return s
 }
