@@ -152,7 +152,7 @@ func VariedSession(n int, seed uint64) *Session {
 	u := func(a, b float64) float64 { return a + (b-a)*rng.Float64() }
 	centre := dosemap.Vec3{math.Round(u(-15, 15)*10) / 10, math.Round(u(-20, 5)*10) / 10, math.Round(u(0, 30)*10) / 10}
 	diam := u(16, 28)
-	lesion := Ellipsoid{Center: centre, SemiAxes: dosemap.Vec3{diam / 2, diam / 2 * u(0.85, 1.05), math.Min(diam/2*0.75, 8.5)}}
+	lesion := Ellipsoid{Center: centre, SemiAxes: dosemap.Vec3{diam / 2, math.Min(diam/2*u(0.75, 0.85), 10), math.Min(diam/2*0.75, 8.5)}}
 	p := baseProtocol(centre)
 	if rng.IntN(3) == 0 {
 		p.B0, p.TE = 1.5, 0.020
