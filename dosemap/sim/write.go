@@ -347,16 +347,23 @@ func (s *Session) writeThermometry(dir string, id ids, res *simResult, truth *Tr
 	ppd := p.PhasePerDegree()
 	sigma := 1000 / p.SNR
 	// Static per-voxel object properties, evaluated once per shift.
-	type object struct{ mag, bg []float64 }
+	// The noiseless unheated signal m·e^{iφ_bg} of every voxel, as re, im.
+	type object struct{ re, im []float64 }
 	build := func(shift dosemap.Vec3) object {
-		o := object{mag: make([]float64, g.Len()), bg: make([]float64, g.Len())}
-		for n := range o.mag {
+		o := object{re: make([]float64, g.Len()), im: make([]float64, g.Len())}
+		for n := range o.re {
 			i, j, k := g.IJK(n)
 			q := g.Point(float64(i), float64(j), float64(k)).Sub(shift)
-			o.mag[n] = s.thermoMagnitude(q)
-			o.bg[n] = s.backgroundPhase(q)
+			m, bg := s.thermoMagnitude(q), s.backgroundPhase(q)
+			o.re[n], o.im[n] = m*math.Cos(bg), m*math.Sin(bg)
 		}
 		return o
+	}
+	// Distance along x from the phantom axis of each voxel (drift gradient).
+	xoff := make([]float64, g.Len())
+	for n := range xoff {
+		i, j, k := g.IJK(n)
+		xoff[n] = g.Point(float64(i), float64(j), float64(k))[0] - s.Phantom.Center[0]
 	}
 	still := build(dosemap.Vec3{})
 	type job struct{ son, frame int }
@@ -392,16 +399,15 @@ func (s *Session) writeThermometry(dir string, id ids, res *simResult, truth *Tr
 		rng := s.rngFor(fmt.Sprintf("thermometry/%d/%d", n, f))
 		mag := make([]uint16, g.Len())
 		pha := make([]uint16, g.Len())
+		// Absolute time since the session start drives the drift.
+		tabs := ts.Offset + t
 		for v := range mag {
-			i, _, _ := g.IJK(v)
-			x := g.Point(float64(i), 0, 0).Sub(s.Phantom.Center)[0]
-			// Absolute time since the session start drives the drift.
-			tabs := ts.Offset + t
-			phi := obj.bg[v] + ppd*float64(rise[v]) + p.DriftRate*tabs + p.DriftGradient*x/100*tabs
-			m := obj.mag[v]
-			re := m*math.Cos(phi) + sigma*rng.NormFloat64()
-			im := m*math.Sin(phi) + sigma*rng.NormFloat64()
-			mag[v] = clamp12u(math.Hypot(re, im))
+			// Signal = unheated signal × e^{i(PRF shift + drift)} + noise.
+			dphi := ppd*float64(rise[v]) + (p.DriftRate+p.DriftGradient*xoff[v]/100)*tabs
+			c, sn := math.Cos(dphi), math.Sin(dphi)
+			re := obj.re[v]*c - obj.im[v]*sn + sigma*rng.NormFloat64()
+			im := obj.re[v]*sn + obj.im[v]*c + sigma*rng.NormFloat64()
+			mag[v] = clamp12u(math.Sqrt(re*re + im*im))
 			pha[v] = phaseStored(math.Atan2(im, re))
 		}
 		sub := filepath.Join(dir, fmt.Sprintf(sonicationFolder, n+1))
