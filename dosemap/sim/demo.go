@@ -113,10 +113,15 @@ func DemoDir() (string, error) {
 	if err != nil {
 		return "", fmt.Errorf("finding the user cache folder: %w", err)
 	}
-	return demoDirIn(filepath.Join(cache, "dosecover"))
+	return demoDirIn(filepath.Join(cache, "dosecover"), func(dir string) error {
+		_, err := WriteDemo(dir)
+		return err
+	})
 }
 
-func demoDirIn(parent string) (string, error) {
+// demoDirIn generates the demo with write into parent/demo-VERSION unless a
+// complete one is there.
+func demoDirIn(parent string, write func(dir string) error) (string, error) {
 	final := filepath.Join(parent, "demo-"+dosemap.Version)
 	if fi, err := os.Stat(filepath.Join(final, TruthFile)); err == nil && !fi.IsDir() {
 		return final, nil
@@ -128,7 +133,7 @@ func demoDirIn(parent string) (string, error) {
 	if err != nil {
 		return "", fmt.Errorf("creating a folder in %s: %w", parent, err)
 	}
-	if _, err := WriteDemo(tmp); err != nil {
+	if err := write(tmp); err != nil {
 		os.RemoveAll(tmp)
 		return "", err
 	}

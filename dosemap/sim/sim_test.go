@@ -305,7 +305,20 @@ func TestDemoDeterministic(t *testing.T) {
 
 func TestDemoDir(t *testing.T) {
 	parent := t.TempDir()
-	d1, err := demoDirIn(parent)
+	calls := 0
+	write := func(dir string) error {
+		calls++
+		_, err := WriteSession(dir, smallSession())
+		return err
+	}
+	// A failed generation leaves nothing behind.
+	if _, err := demoDirIn(parent, func(string) error { return os.ErrPermission }); err == nil {
+		t.Fatal("failed generation reported success")
+	}
+	if entries, _ := os.ReadDir(parent); len(entries) != 0 {
+		t.Fatalf("failed generation left %v", entries)
+	}
+	d1, err := demoDirIn(parent, write)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -317,9 +330,9 @@ func TestDemoDir(t *testing.T) {
 		t.Fatal(err)
 	}
 	// Second use: no regeneration.
-	d2, err := demoDirIn(parent)
-	if err != nil || d2 != d1 {
-		t.Fatalf("second call: %s, %v", d2, err)
+	d2, err := demoDirIn(parent, write)
+	if err != nil || d2 != d1 || calls != 1 {
+		t.Fatalf("second call: %s, %v, %d generations", d2, err, calls)
 	}
 	st2, _ := os.Stat(filepath.Join(d1, TruthFile))
 	if !st2.ModTime().Equal(st.ModTime()) {
