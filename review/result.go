@@ -191,7 +191,7 @@ type SonicationQuality struct {
 	Sonication    int            `json:"sonication"`
 	Frames        []FrameQuality `json:"frames"`
 	FlaggedFrames []int          `json:"flagged_frames"` // 1-based
-	MaxMotionMM   float64        `json:"max_motion_mm"`
+	MaxMotion     float64        `json:"max_motion"`     // largest FrameQuality.Motion
 	MaxDriftC     float64        `json:"max_drift_c"`
 	MinSNR        *float64       `json:"min_snr"`
 	Wraps         int            `json:"suspected_wraps"`
@@ -201,14 +201,14 @@ type SonicationQuality struct {
 // FrameQuality is the quality of one thermometry frame as measured by the
 // thermometry.
 type FrameQuality struct {
-	TimeS    float64  `json:"time_s"`
-	MotionMM float64  `json:"motion_mm"`
-	DriftC   float64  `json:"drift_c"`
-	SNR      *float64 `json:"snr"`
-	Wraps    int      `json:"suspected_wraps"`
-	Invalid  int      `json:"invalidated_voxels"`
-	Flagged  bool     `json:"flagged"`
-	Note     string   `json:"note,omitempty"`
+	TimeS   float64  `json:"time_s"`
+	Motion  float64  `json:"motion"`  // 1 − correlation of the magnitude image with the baseline magnitude
+	DriftC  float64  `json:"drift_c"` // mean drift removed over the reference region
+	SNR     *float64 `json:"snr"`     // mean magnitude SNR over valid voxels
+	Wraps   int      `json:"suspected_wraps"`
+	Invalid int      `json:"invalidated_voxels"`
+	Flagged bool     `json:"flagged"`
+	Note    string   `json:"note,omitempty"`
 }
 
 // WriteJSON writes r as indented JSON.

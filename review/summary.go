@@ -81,8 +81,8 @@ func (r *Result) WriteText(w io.Writer) error {
 	}
 	for _, q := range r.Quality {
 		if len(q.FlaggedFrames) > 0 || q.Wraps > 0 {
-			p("Sonication %d thermometry: flagged frames %v, suspected wraps %d, max motion %.1f mm, max drift %.1f °C\n",
-				q.Sonication, q.FlaggedFrames, q.Wraps, q.MaxMotionMM, q.MaxDriftC)
+			p("Sonication %d thermometry: flagged frames %v, suspected wraps %d, max motion %.3f, max drift %.1f °C\n",
+				q.Sonication, q.FlaggedFrames, q.Wraps, q.MaxMotion, q.MaxDriftC)
 		}
 	}
 	if len(r.Warnings) > 0 {
