@@ -36,6 +36,8 @@ type Result struct {
 	MarginMM        float64  `json:"margin_mm"`
 	Settings        Settings `json:"settings"`
 	Grid            GridInfo `json:"analysis_grid"`
+	// Thermometry summarises the PRF thermometry options used.
+	Thermometry ThermometryInfo `json:"thermometry"`
 
 	Coverage
 
@@ -60,6 +62,20 @@ type Result struct {
 	HoleLabels  *dosemap.Volume `json:"-"` // n > 0 in voxels of Holes[n-1], analysis grid
 	SpillLabels *dosemap.Volume `json:"-"` // n > 0 in voxels of OutsideClusters[n-1], analysis grid
 	Probability *dosemap.Volume `json:"-"` // probability of lethal dose (Monte Carlo), thermometry grid; nil without trials
+}
+
+// ThermometryInfo summarises the thermometry options of an analysis.
+type ThermometryInfo struct {
+	AlphaPPMPerC   float64  `json:"alpha_ppm_per_c"`
+	B0T            *float64 `json:"b0_t"` // override; null: each series' own
+	TES            *float64 `json:"te_s"` // override; null: each series' own
+	BaselineFrames int      `json:"baseline_frames"`
+	BodyTempC      float64  `json:"body_temp_c"`
+	Drift          string   `json:"drift"`
+	DriftOrder     int      `json:"drift_order"`
+	Reference      string   `json:"reference"` // "automatic" or "given"
+	MinMagnitude   float64  `json:"min_magnitude"`
+	MaxMotion      float64  `json:"max_motion"`
 }
 
 // GridInfo describes the analysis grid.
