@@ -49,7 +49,7 @@ type Style struct {
 // 2.5, avoid 3 (dots), hole and spill outlines 1.5, isodoses 1.5.
 func DefaultStyle() Style {
 	return Style{Lethal: 3.5, Target: 2.5, Margin: 2.5, Avoid: 3, Outline: 1.5, Isodose: 1.5,
-		FillOpacity: 0.45, Background: color.RGBA{0x0a, 0x0a, 0x0c, 0xFF}}
+		FillOpacity: 0.7, Background: color.RGBA{0x0a, 0x0a, 0x0c, 0xFF}}
 }
 
 // Renderer composites Scenes into images. It keeps what depends only on
@@ -63,7 +63,7 @@ type Renderer struct {
 
 	key     cacheKey
 	anat    []float32
-	dose    []float32 // scale position t (NaN: no wash)
+	dose    []float32 // log10 of the dose (NaN: no wash)
 	doseRaw []float32
 	lethal  []Polyline
 	isos    [][]Polyline
@@ -130,14 +130,19 @@ func (r *Renderer) prepare(s *Scene, sc DoseScale) {
 			SampleInto(r.doseRaw, s.Dose, p)
 		}
 	}
-	if doseChanged || old.scale != sc {
+	if doseChanged {
+		// The wash interpolates log10 of the dose between plane pixels, so
+		// the floor edge is smooth at any zoom; zero and negative doses
+		// sit far below any floor.
 		r.dose = grow(r.dose, n)
 		for m, d := range r.doseRaw[:n] {
-			t := sc.T(float64(d))
-			if t < 0 {
-				r.dose[m] = float32(math.NaN())
-			} else {
-				r.dose[m] = float32(t)
+			switch {
+			case d != d:
+				r.dose[m] = d
+			case d <= 0:
+				r.dose[m] = -30
+			default:
+				r.dose[m] = float32(math.Log10(float64(d)))
 			}
 		}
 	}
@@ -222,21 +227,12 @@ func (r *Renderer) Render(s *Scene, v View, dst *image.RGBA) (*image.RGBA, error
 	notMon := r.field(p, s.NotMonitored)
 	spill := r.field(p, s.Spill)
 	holes := r.field(p, s.Holes)
-	r.fill(dst, p, v, notMon, func(x, y int) (float64, bool) {
-		m := (x - y) & 7
-		n := (x + y) & 7
-		if m == 0 || n == 0 {
-			return 0.85, true
-		}
-		return 0.18, true
-	}, review.ColorNotMonitored)
-	r.fill(dst, p, v, spill, func(x, y int) (float64, bool) { return st.FillOpacity, true }, review.ColorSpill)
-	r.fill(dst, p, v, holes, func(x, y int) (float64, bool) {
-		if (x+y)%6 < 2 {
-			return 0.9, true
-		}
-		return 0.22, true
-	}, review.ColorHole)
+	// Not monitored: darkened, then light grey cross-hatch, so it reads on
+	// grey anatomy too.
+	r.fill(dst, p, v, notMon, func(x, y int) float64 { return 0.55 }, haloColor)
+	r.fill(dst, p, v, notMon, crossHatch, review.ColorNotMonitored)
+	r.fill(dst, p, v, spill, func(x, y int) float64 { return st.FillOpacity }, review.ColorSpill)
+	r.fill(dst, p, v, holes, hatch, review.ColorHole)
 
 	cv := newCanvas(dst, r.scratch)
 	r.scratch = cv.cov
@@ -270,6 +266,16 @@ func (r *Renderer) Render(s *Scene, v View, dst *image.RGBA) (*image.RGBA, error
 	if s.Caption != "" {
 		size := labelSize(v)
 		y := 8
+		if s.Annotations {
+			// Keep clear of the top orientation letter.
+			for _, line := range strings.Split(s.Caption, "\n") {
+				if w, _ := textSize(line, size); 8+w > v.Width/2-int(size) {
+					_, lh := textSize("A", size+2)
+					y += lh + 6
+					break
+				}
+			}
+		}
 		for _, line := range strings.Split(s.Caption, "\n") {
 			drawText(dst, line, size, 8, y, anchorTopLeft, color.RGBA{0xF2, 0xF2, 0xF2, 0xFF})
 			_, h := textSize(line, size)
@@ -308,6 +314,8 @@ func (r *Renderer) base(dst *image.RGBA, s *Scene, v View, win Window, sc DoseSc
 	haveAnat := s.Anatomy != nil
 	haveDose := s.Dose != nil && !s.HideWash
 	alpha := int(sc.Opacity*255 + 0.5)
+	lf := math.Log10(sc.Floor)
+	inv := 1 / (math.Log10(sc.Ceiling) - lf)
 	sx := 1 / (v.Zoom * p.PixelU)
 	q0 := v.ToPlane(p, 0.5, 0.5)
 	xmax, ymax := float64(w)-0.5, float64(h)-0.5
@@ -364,8 +372,9 @@ func (r *Renderer) base(dst *image.RGBA, s *Scene, v View, win Window, sc DoseSc
 			o[0], o[1], o[2], o[3] = g, g, g, 0xFF
 			if haveDose {
 				ds := r.dose
-				t := (float64(ds[a])*(1-fx)+float64(ds[b])*fx)*(1-fy) + (float64(ds[c])*(1-fx)+float64(ds[d])*fx)*fy
-				if t == t {
+				l := (float64(ds[a])*(1-fx)+float64(ds[b])*fx)*(1-fy) + (float64(ds[c])*(1-fx)+float64(ds[d])*fx)*fy
+				if t := (l - lf) * inv; t >= 0 { // false for NaN
+					t = math.Min(t, 1)
 					lc := washLUT[int(t*(lutSize-1)+0.5)]
 					blend(o, color.RGBA{lc[0], lc[1], lc[2], 0xFF}, alpha)
 				}
@@ -377,7 +386,7 @@ func (r *Renderer) base(dst *image.RGBA, s *Scene, v View, win Window, sc DoseSc
 // fill blends colour col over the display pixels whose plane position lies
 // inside region f (field >= 0.5); pattern gives the opacity at each display
 // pixel.
-func (r *Renderer) fill(dst *image.RGBA, p Plane, v View, f *regionField, pattern func(x, y int) (float64, bool), col color.RGBA) {
+func (r *Renderer) fill(dst *image.RGBA, p Plane, v View, f *regionField, pattern func(x, y int) float64, col color.RGBA) {
 	if f == nil || f.box.Empty() {
 		return
 	}
@@ -392,13 +401,27 @@ func (r *Renderer) fill(dst *image.RGBA, p Plane, v View, f *regionField, patter
 			if !(bilinear(f.field, w, h, q.X, q.Y) >= 0.5) {
 				continue
 			}
-			a, ok := pattern(i, j)
-			if !ok {
-				continue
-			}
-			blend(dst.Pix[dst.PixOffset(i, j):], col, int(a*255+0.5))
+			blend(dst.Pix[dst.PixOffset(i, j):], col, int(pattern(i, j)*255+0.5))
 		}
 	}
+}
+
+// hatch is the hole pattern: diagonal stripes (rising to the right) of 2
+// pixels every 6 over a light tint; opacity at display pixel (x, y).
+func hatch(x, y int) float64 {
+	if (x+y)%6 < 2 {
+		return 0.9
+	}
+	return 0.22
+}
+
+// crossHatch is the not-monitored pattern: one-pixel lines along both
+// diagonals every 8 pixels over a faint tint.
+func crossHatch(x, y int) float64 {
+	if (x-y)&7 == 0 || (x+y)&7 == 0 {
+		return 0.95
+	}
+	return 0
 }
 
 // bilinear interpolates a w×h field at continuous pixel coordinate (x, y)
