@@ -68,6 +68,8 @@ type Renderer struct {
 	lethal  []Polyline
 	isos    [][]Polyline
 	fields  map[regionID]*regionField
+	doseBox image.Rectangle // plane pixels with positive dose
+	cols    []column
 	scratch []uint8
 	pts     []Point
 }
@@ -135,6 +137,10 @@ func (r *Renderer) prepare(s *Scene, sc DoseScale) {
 		// the floor edge is smooth at any zoom; zero and negative doses
 		// sit far below any floor.
 		r.dose = grow(r.dose, n)
+		r.doseBox = image.Rectangle{}
+		if s.Dose != nil {
+			r.doseBox = positiveBox(r.doseRaw[:n], p.Width, p.Height)
+		}
 		for m, d := range r.doseRaw[:n] {
 			switch {
 			case d != d:
@@ -175,6 +181,28 @@ func (r *Renderer) field(p Plane, g Region) *regionField {
 	f := newRegionField(p, g, nil)
 	r.fields[id] = f
 	return f
+}
+
+// positiveBox returns the bounding rectangle of the samples > 0 of a w×h
+// field (empty when there are none).
+func positiveBox(f []float32, w, h int) image.Rectangle {
+	b := image.Rectangle{}
+	for y := 0; y < h; y++ {
+		row := f[y*w : y*w+w]
+		lo, hi := -1, -1
+		for x, v := range row {
+			if v > 0 {
+				if lo < 0 {
+					lo = x
+				}
+				hi = x
+			}
+		}
+		if lo >= 0 {
+			b = b.Union(image.Rect(lo, y, hi+1, y+1))
+		}
+	}
+	return b
 }
 
 func grow(b []float32, n int) []float32 {
@@ -305,62 +333,74 @@ func (r *Renderer) outline(cv *canvas, p Plane, v View, g Region, width float64,
 	}
 }
 
+// column is the horizontal interpolation of one display column: the two
+// plane pixels and the weight of the right one; x0 < 0 outside the plane.
+type column struct {
+	x0, x1 int32
+	fx     float32
+	dose   bool // within the box of positive dose
+}
+
 // base draws the anatomy and the dose colourwash for every display pixel.
+// The horizontal interpolation is the same on every display row, so it is
+// tabulated once per column.
 func (r *Renderer) base(dst *image.RGBA, s *Scene, v View, win Window, sc DoseScale) {
 	p := s.Plane
 	w, h := p.Width, p.Height
 	bg := r.Style.Background
 	gs, gofs := win.affine()
+	g32, o32 := float32(gs), float32(gofs)
 	haveAnat := s.Anatomy != nil
-	haveDose := s.Dose != nil && !s.HideWash
+	haveDose := s.Dose != nil && !s.HideWash && !r.doseBox.Empty()
 	alpha := int(sc.Opacity*255 + 0.5)
-	lf := math.Log10(sc.Floor)
-	inv := 1 / (math.Log10(sc.Ceiling) - lf)
-	sx := 1 / (v.Zoom * p.PixelU)
+	lf := float32(math.Log10(sc.Floor))
+	inv := float32(1 / (math.Log10(sc.Ceiling) - math.Log10(sc.Floor)))
 	q0 := v.ToPlane(p, 0.5, 0.5)
-	xmax, ymax := float64(w)-0.5, float64(h)-0.5
+	if cap(r.cols) < v.Width {
+		r.cols = make([]column, v.Width)
+	}
+	cols := r.cols[:v.Width]
+	for i := range cols {
+		cols[i] = column{x0: -1}
+		x := q0.X + float64(i)/(v.Zoom*p.PixelU)
+		if x < -0.5 || x > float64(w)-0.5 {
+			continue
+		}
+		x0, fx := splitf(math.Max(0, math.Min(float64(w-1), x)), w)
+		cols[i] = column{x0: int32(x0), x1: int32(min(x0+1, w-1)), fx: float32(fx),
+			dose: x0+1 >= r.doseBox.Min.X && x0 < r.doseBox.Max.X}
+	}
 	for j := 0; j < v.Height; j++ {
 		y := q0.Y + float64(j)/(v.Zoom*p.PixelV)
 		pix := dst.Pix[j*dst.Stride : j*dst.Stride+4*v.Width]
-		if y < -0.5 || y > ymax {
+		if y < -0.5 || y > float64(h)-0.5 {
 			for i := 0; i < v.Width; i++ {
 				pix[4*i], pix[4*i+1], pix[4*i+2], pix[4*i+3] = bg.R, bg.G, bg.B, 0xFF
 			}
 			continue
 		}
-		yc := math.Max(0, math.Min(float64(h-1), y))
-		y0 := int(yc)
-		if y0 > h-2 {
-			y0 = max(h-2, 0)
+		y0, fy64 := splitf(math.Max(0, math.Min(float64(h-1), y)), h)
+		y1 := min(y0+1, h-1)
+		fy := float32(fy64)
+		var a0, a1, d0, d1 []float32
+		if haveAnat {
+			a0, a1 = r.anat[y0*w:y0*w+w], r.anat[y1*w:y1*w+w]
 		}
-		fy := yc - float64(y0)
-		y1 := y0 + 1
-		if h == 1 {
-			y1, fy = 0, 0
+		rowDose := haveDose && y0+1 >= r.doseBox.Min.Y && y0 < r.doseBox.Max.Y
+		if rowDose {
+			d0, d1 = r.dose[y0*w:y0*w+w], r.dose[y1*w:y1*w+w]
 		}
-		for i := 0; i < v.Width; i++ {
-			x := q0.X + float64(i)*sx
+		for i, c := range cols {
 			o := pix[4*i : 4*i+4 : 4*i+4]
-			if x < -0.5 || x > xmax {
+			if c.x0 < 0 {
 				o[0], o[1], o[2], o[3] = bg.R, bg.G, bg.B, 0xFF
 				continue
 			}
-			xc := math.Max(0, math.Min(float64(w-1), x))
-			x0 := int(xc)
-			if x0 > w-2 {
-				x0 = max(w-2, 0)
-			}
-			fx := xc - float64(x0)
-			x1 := x0 + 1
-			if w == 1 {
-				x1, fx = 0, 0
-			}
-			a, b, c, d := y0*w+x0, y0*w+x1, y1*w+x0, y1*w+x1
 			g := uint8(0)
-			if haveAnat {
-				an := r.anat
-				val := (float64(an[a])*(1-fx)+float64(an[b])*fx)*(1-fy) + (float64(an[c])*(1-fx)+float64(an[d])*fx)*fy
-				gv := val*gs + gofs
+			if a0 != nil {
+				t := a0[c.x0] + (a0[c.x1]-a0[c.x0])*c.fx
+				b := a1[c.x0] + (a1[c.x1]-a1[c.x0])*c.fx
+				gv := (t+(b-t)*fy)*g32 + o32
 				switch {
 				case !(gv > 0):
 				case gv >= 255:
@@ -370,12 +410,12 @@ func (r *Renderer) base(dst *image.RGBA, s *Scene, v View, win Window, sc DoseSc
 				}
 			}
 			o[0], o[1], o[2], o[3] = g, g, g, 0xFF
-			if haveDose {
-				ds := r.dose
-				l := (float64(ds[a])*(1-fx)+float64(ds[b])*fx)*(1-fy) + (float64(ds[c])*(1-fx)+float64(ds[d])*fx)*fy
-				if t := (l - lf) * inv; t >= 0 { // false for NaN
-					t = math.Min(t, 1)
-					lc := washLUT[int(t*(lutSize-1)+0.5)]
+			if rowDose && c.dose {
+				t := d0[c.x0] + (d0[c.x1]-d0[c.x0])*c.fx
+				b := d1[c.x0] + (d1[c.x1]-d1[c.x0])*c.fx
+				if u := (t + (b-t)*fy - lf) * inv; u >= 0 { // false for NaN
+					u = min(u, 1)
+					lc := washLUT[int(u*(lutSize-1)+0.5)]
 					blend(o, color.RGBA{lc[0], lc[1], lc[2], 0xFF}, alpha)
 				}
 			}

@@ -69,6 +69,11 @@ func sampleRect(dst []float32, stride int, vol *dosemap.Volume, p Plane, r image
 		st[2] = n[0] * n[1]
 	}
 	data := vol.Data
+	// aligned: one plane pixel to the right is one voxel along i.
+	aligned := math.Abs(du[0]-1) < 1e-9 && math.Abs(du[1]) < 1e-9 && math.Abs(du[2]) < 1e-9
+	if aligned {
+		du = [3]float64{1, 0, 0}
+	}
 	for y := r.Min.Y; y < r.Max.Y; y++ {
 		fy := float64(y)
 		base := [3]float64{c0[0] + fy*dv[0], c0[1] + fy*dv[1], c0[2] + fy*dv[2]}
@@ -101,6 +106,13 @@ func sampleRect(dst []float32, stride int, vol *dosemap.Volume, p Plane, r image
 			out[x] = fill
 		}
 		if x0 >= x1 {
+			continue
+		}
+		// A row running along a grid row through voxel centres is a copy.
+		if ci, cj, ck := snap(base[0]+float64(x0)*du[0]), snap(base[1]), snap(base[2]); aligned &&
+			ci == math.Trunc(ci) && cj == math.Trunc(cj) && ck == math.Trunc(ck) {
+			m := (int(ck)*n[1]+int(cj))*n[0] + int(ci)
+			copy(out[x0:x1], data[m:m+x1-x0])
 			continue
 		}
 		// A row lying in one slice of the grid takes the bilinear path.
