@@ -145,7 +145,7 @@ func (r *Renderer) prepare(s *Scene, sc DoseScale) {
 			switch {
 			case d != d:
 				r.dose[m] = d
-			case d <= 0:
+			case d <= 1e-9: // far below any useful floor; skips the logarithm
 				r.dose[m] = -30
 			default:
 				r.dose[m] = float32(math.Log10(float64(d)))
