@@ -227,3 +227,14 @@ func displayDown(d dosemap.Vec3) dosemap.Vec3 {
 // axial and coronal (patient left on the viewer's right) and sagittal
 // (posterior on the right) presentations.
 func displayRight(d dosemap.Vec3) dosemap.Vec3 { return displayDown(d) }
+
+// NearestSlice returns the index of the slice of g whose centre plane is
+// nearest to patient point q, clamped to the grid: with AcquisitionPlane it
+// gives the acquired image through a point.
+func NearestSlice(g dosemap.Geometry, q dosemap.Vec3) int {
+	_, _, k := g.Voxel(q)
+	if k != k {
+		return 0
+	}
+	return max(0, min(g.Slices-1, int(math.Round(k))))
+}

@@ -10,9 +10,17 @@ import (
 )
 
 // Region is a region of patient space to outline or fill: either a mask on
-// a grid (inside where the value is >= 0.5; a 0/1 volume as made by
-// MaskVolume) or a structure of closed planar contours. When both are set
-// the mask is used.
+// a grid or a structure of closed planar contours. When both are set the
+// mask is used.
+//
+// A mask may hold 0/1 values (as made by MaskVolume) or the fraction of
+// each voxel inside the region (0..1, partial volume): it is interpolated
+// trilinearly and the region is where the result is >= 0.5, so fractions
+// place the outline between voxel centres where the surface crosses. A
+// mask with values above 1 (a label volume, n > 0 in the voxels of region
+// n) or with NaN is first reduced to 1 where the value is >= 0.5 and 0
+// elsewhere (NaN included), so labels and unmeasured voxels cannot shift
+// the outline.
 type Region struct {
 	Mask      *dosemap.Volume
 	Structure *dosemap.Structure
@@ -43,6 +51,28 @@ func MaskRegion(g dosemap.Geometry, m []bool) (Region, error) {
 		return Region{}, err
 	}
 	return Region{Mask: v}, nil
+}
+
+// binaryMask returns m when its values are all within 0..1, and otherwise
+// a 0/1 copy: 1 where m >= 0.5, 0 elsewhere and at NaN.
+func binaryMask(m *dosemap.Volume) *dosemap.Volume {
+	clean := true
+	for _, v := range m.Data {
+		if !(v >= 0 && v <= 1) {
+			clean = false
+			break
+		}
+	}
+	if clean {
+		return m
+	}
+	b := dosemap.NewVolume(m.Geometry)
+	for n, v := range m.Data {
+		if v >= 0.5 {
+			b.Data[n] = 1
+		}
+	}
+	return b
 }
 
 // maskBox returns the voxel index box [lo, hi] of the voxels of v that are
@@ -335,6 +365,7 @@ func newRegionField(p Plane, r Region, buf []float32) *regionField {
 		if m.Check() != nil {
 			return rf
 		}
+		m = binaryMask(m)
 		lo, hi, ok := maskBox(m)
 		if !ok {
 			return rf

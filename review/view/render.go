@@ -19,11 +19,15 @@ type Scene struct {
 	Anatomy *dosemap.Volume // grey background
 	Window  Window          // anatomy window; Width 0: AutoWindow(Anatomy)
 
-	Dose     *dosemap.Volume // cumulative thermal dose, CEM43 minutes
-	Scale    DoseScale       // colourwash; zero value: DefaultDoseScale()
-	Lethal   float64         // lethal dose level for the thick isoline; 0: none
-	Isodoses []float64       // further isodose levels, drawn thin in their wash colour
-	HideWash bool            // draw the isolines without the colourwash
+	Dose   *dosemap.Volume // cumulative thermal dose, CEM43 minutes
+	Scale  DoseScale       // colourwash; zero value: DefaultDoseScale()
+	Lethal float64         // lethal dose level for the thick isoline; 0: none
+	// LethalRegion, when set, is outlined as the lethal line instead of
+	// the Lethal isoline of Dose: pass the analysis' own lethal mask so the
+	// picture shows exactly the region its figures count.
+	LethalRegion Region
+	Isodoses     []float64 // further isodose levels, drawn thin in their wash colour
+	HideWash     bool      // draw the isolines without the colourwash
 
 	Target, Margin Region   // solid and dashed outlines
 	Avoid          []Region // dotted outlines
@@ -68,6 +72,7 @@ type Renderer struct {
 	lethal  []Polyline
 	isos    [][]Polyline
 	fields  map[regionID]*regionField
+	binary  map[*dosemap.Volume]*dosemap.Volume
 	doseBox image.Rectangle // plane pixels with positive dose
 	cols    []column
 	scratch []uint8
@@ -97,6 +102,7 @@ func NewRenderer() *Renderer {
 func (r *Renderer) Invalidate() {
 	r.key = cacheKey{}
 	r.fields = map[regionID]*regionField{}
+	r.binary = nil
 }
 
 // Render composites s as seen through v into dst and returns it; dst is
@@ -177,6 +183,22 @@ func (r *Renderer) field(p Plane, g Region) *regionField {
 	}
 	if f, ok := r.fields[id]; ok {
 		return f
+	}
+	if g.Mask != nil {
+		// Reduce label and NaN masks once, not on every plane.
+		b, ok := r.binary[g.Mask]
+		if !ok {
+			if g.Mask.Check() == nil {
+				b = binaryMask(g.Mask)
+			} else {
+				b = g.Mask
+			}
+			if r.binary == nil {
+				r.binary = map[*dosemap.Volume]*dosemap.Volume{}
+			}
+			r.binary[g.Mask] = b
+		}
+		g.Mask = b
 	}
 	f := newRegionField(p, g, nil)
 	r.fields[id] = f
@@ -276,8 +298,12 @@ func (r *Renderer) Render(s *Scene, v View, dst *image.RGBA) (*image.RGBA, error
 	for _, a := range s.Avoid {
 		r.outline(cv, p, v, a, st.Avoid, Dotted, review.ColorAvoid)
 	}
-	for _, l := range r.lethal {
-		cv.stroke(r.display(p, v, l.Pixels), l.Closed, st.Lethal, Solid, review.ColorLethal)
+	if !s.LethalRegion.IsZero() {
+		r.outline(cv, p, v, s.LethalRegion, st.Lethal, Solid, review.ColorLethal)
+	} else {
+		for _, l := range r.lethal {
+			cv.stroke(r.display(p, v, l.Pixels), l.Closed, st.Lethal, Solid, review.ColorLethal)
+		}
 	}
 	r.outline(cv, p, v, s.Holes, st.Outline, Solid, review.ColorHole)
 	r.outline(cv, p, v, s.Spill, st.Outline, Solid, review.ColorSpill)

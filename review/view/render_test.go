@@ -175,3 +175,40 @@ func TestStructureOutlines(t *testing.T) {
 		t.Errorf("plane at z = 30 mm: %d outlines of a sphere of radius 12", n)
 	}
 }
+
+// TestLabelMasks: a label volume (region numbers 1, 2, 3) and a mask with
+// NaN outline the same region as the equivalent 0/1 mask, as Region
+// documents; and NearestSlice picks the slice through a point.
+func TestLabelMasks(t *testing.T) {
+	g := dosemap.NewAxialGeometry(30, 30, 3, dosemap.Vec3{1, 1, 2}, dosemap.Vec3{-15, -15, -2})
+	bin, lab, nan := dosemap.NewVolume(g), dosemap.NewVolume(g), dosemap.NewVolume(g)
+	for n := range bin.Data {
+		i, j, _ := g.IJK(n)
+		if i >= 5 && i < 20 && j >= 8 && j < 18 {
+			bin.Data[n] = 1
+			lab.Data[n] = float32(1 + i%3)
+			nan.Data[n] = 1
+		} else if i > 25 {
+			nan.Data[n] = float32(math.NaN())
+		}
+	}
+	p := AcquisitionPlane(g, NearestSlice(g, dosemap.Vec3{0, 0, 0.3}))
+	if d := p.Distance(dosemap.Vec3{0, 0, 0}); d != 0 {
+		t.Fatalf("NearestSlice: plane at %g mm from z = 0", d)
+	}
+	want := RegionOutlines(p, Region{Mask: bin})
+	if len(want) != 1 {
+		t.Fatalf("0/1 mask: %d outlines, want 1", len(want))
+	}
+	for name, m := range map[string]*dosemap.Volume{"labels": lab, "NaN": nan} {
+		got := RegionOutlines(p, Region{Mask: m})
+		if len(got) != 1 || len(got[0].Pixels) != len(want[0].Pixels) {
+			t.Fatalf("%s: %d outlines, want the 0/1 mask's", name, len(got))
+		}
+		for n := range got[0].Pixels {
+			if got[0].Pixels[n] != want[0].Pixels[n] {
+				t.Fatalf("%s: vertex %d at %v, 0/1 mask's at %v", name, n, got[0].Pixels[n], want[0].Pixels[n])
+			}
+		}
+	}
+}
