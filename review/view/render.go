@@ -35,10 +35,22 @@ type Scene struct {
 	Spill          Region   // filled: lethal dose outside the margin
 	NotMonitored   Region   // cross-hatched: no valid thermometry
 
+	Lines []LevelLine // further isolines of any volume (e.g. lethal probability)
+
 	Marker *dosemap.Vec3 // crosshair at a patient point; nil: none
 
 	Caption     string // lines of text drawn at the top left
 	Annotations bool   // orientation letters and scale bar
+}
+
+// LevelLine is an isoline of any volume drawn over the picture, for
+// example the 50 % contour of the lethal-dose probability.
+type LevelLine struct {
+	Volume *dosemap.Volume
+	Level  float64
+	Color  color.RGBA
+	Style  LineStyle
+	Width  float64 // display pixels; 0: 1.5
 }
 
 // Style holds the line widths (display pixels) of the overlays. The
@@ -73,10 +85,17 @@ type Renderer struct {
 	isos    [][]Polyline
 	fields  map[regionID]*regionField
 	binary  map[*dosemap.Volume]*dosemap.Volume
-	doseBox image.Rectangle // plane pixels with positive dose
+	samples map[*dosemap.Volume][]float32 // extra volumes on the plane
+	levels  map[levelKey][]Polyline       // their isolines
+	doseBox image.Rectangle               // plane pixels with positive dose
 	cols    []column
 	scratch []uint8
 	pts     []Point
+}
+
+type levelKey struct {
+	vol   *dosemap.Volume
+	level float64
 }
 
 type regionID struct {
@@ -101,6 +120,7 @@ func NewRenderer() *Renderer {
 // Invalidate drops everything cached.
 func (r *Renderer) Invalidate() {
 	r.key = cacheKey{}
+	r.samples, r.levels = nil, nil
 	r.fields = map[regionID]*regionField{}
 	r.binary = nil
 }
@@ -121,8 +141,10 @@ func (r *Renderer) prepare(s *Scene, sc DoseScale) {
 		r.fields = map[regionID]*regionField{}
 	}
 	old := r.key
-	if old.plane != p {
+	if old.plane != p || !old.valid {
 		r.fields = map[regionID]*regionField{}
+		r.samples = map[*dosemap.Volume][]float32{}
+		r.levels = map[levelKey][]Polyline{}
 	}
 	n := p.Len()
 	if old.plane != p || old.anat != s.Anatomy || !old.valid {
@@ -297,6 +319,29 @@ func (r *Renderer) Render(s *Scene, v View, dst *image.RGBA) (*image.RGBA, error
 	r.outline(cv, p, v, s.Target, st.Target, Solid, review.ColorTarget)
 	for _, a := range s.Avoid {
 		r.outline(cv, p, v, a, st.Avoid, Dotted, review.ColorAvoid)
+	}
+	for _, ll := range s.Lines {
+		if ll.Volume == nil {
+			continue
+		}
+		k := levelKey{ll.Volume, ll.Level}
+		lines, ok := r.levels[k]
+		if !ok {
+			vals, ok := r.samples[ll.Volume]
+			if !ok {
+				vals = Sample(ll.Volume, p)
+				r.samples[ll.Volume] = vals
+			}
+			lines = MarchingSquares(vals, p.Width, p.Height, ll.Level)
+			r.levels[k] = lines
+		}
+		w := ll.Width
+		if w <= 0 {
+			w = 1.5
+		}
+		for _, l := range lines {
+			cv.stroke(r.display(p, v, l.Pixels), l.Closed, w, ll.Style, ll.Color)
+		}
 	}
 	if !s.LethalRegion.IsZero() {
 		r.outline(cv, p, v, s.LethalRegion, st.Lethal, Solid, review.ColorLethal)
