@@ -222,7 +222,7 @@ func (r *Renderer) field(p Plane, g Region) *regionField {
 		}
 		g.Mask = b
 	}
-	f := newRegionField(p, g, nil)
+	f := newRegionField(p, g)
 	r.fields[id] = f
 	return f
 }
@@ -505,11 +505,10 @@ func (r *Renderer) fill(dst *image.RGBA, p Plane, v View, f *regionField, patter
 	ax, ay := v.ToDisplay(p, Point{float64(f.box.Min.X) - 0.5, float64(f.box.Min.Y) - 0.5})
 	bx, by := v.ToDisplay(p, Point{float64(f.box.Max.X) - 0.5, float64(f.box.Max.Y) - 0.5})
 	rect := image.Rect(int(math.Floor(ax)), int(math.Floor(ay)), int(math.Ceil(bx)), int(math.Ceil(by))).Intersect(dst.Rect)
-	w, h := p.Width, p.Height
 	for j := rect.Min.Y; j < rect.Max.Y; j++ {
 		for i := rect.Min.X; i < rect.Max.X; i++ {
 			q := v.ToPlane(p, float64(i)+0.5, float64(j)+0.5)
-			if !(bilinear(f.field, w, h, q.X, q.Y) >= 0.5) {
+			if !(f.at(q.X, q.Y) >= 0.5) {
 				continue
 			}
 			blend(dst.Pix[dst.PixOffset(i, j):], col, int(pattern(i, j)*255+0.5))
