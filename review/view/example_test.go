@@ -118,3 +118,50 @@ func ExampleColorBar() {
 	// Output:
 	// 120 360
 }
+
+// The outline of a target structure on the plane of one of its contours
+// is that contour; on other planes the structure is cut slab by slab.
+func ExampleRegionOutlines() {
+	target := &dosemap.Structure{Name: "Target", Role: dosemap.RoleTarget}
+	for _, z := range []float64{-3, 0, 3} {
+		var c dosemap.Contour
+		for a := 0; a < 32; a++ {
+			t := 2 * math.Pi * float64(a) / 32
+			c.Points = append(c.Points, dosemap.Vec3{8 * math.Cos(t), 8 * math.Sin(t), z})
+		}
+		target.Contours = append(target.Contours, c)
+	}
+	g := dosemap.NewAxialGeometry(40, 40, 3, dosemap.Vec3{1, 1, 3}, dosemap.Vec3{-19.5, -19.5, -3})
+	axial := view.RegionOutlines(view.AcquisitionPlane(g, 1), view.Region{Structure: target})
+	fmt.Println("axial:", len(axial), "outline of", len(axial[0].Pixels), "points")
+	coronal := view.RegionOutlines(view.PlaneThrough(g, view.RowNormal, dosemap.Vec3{}, 0.5), view.Region{Structure: target})
+	fmt.Println("coronal:", len(coronal), "outline, closed:", coronal[0].Closed)
+	// Output:
+	// axial: 1 outline of 32 points
+	// coronal: 1 outline, closed: true
+}
+
+// Isolines traced on a plane come in patient millimetres too.
+func ExamplePlane_Isolines() {
+	g := dosemap.NewAxialGeometry(41, 41, 1, dosemap.Vec3{0.5, 0.5, 1}, dosemap.Vec3{-10, -10, 5})
+	v := dosemap.NewVolume(g)
+	for n := range v.Data {
+		i, j, _ := g.IJK(n)
+		q := g.Point(float64(i), float64(j), 0)
+		v.Data[n] = float32(q[0]*q[0] + q[1]*q[1]) // r² in mm²
+	}
+	p := view.AcquisitionPlane(g, 0)
+	lines := p.Isolines(view.Sample(v, p), 36) // r = 6 mm
+	q := lines[0].Patient[0]
+	fmt.Printf("closed %v, |p| = %.2f mm at z = %.0f mm\n", lines[0].Closed, math.Hypot(q[0], q[1]), q[2])
+	// Output:
+	// closed true, |p| = 6.00 mm at z = 5 mm
+}
+
+// The overlay key shows each overlay's colour with its line style or fill.
+func ExampleOverlayKey() {
+	img := view.OverlayKey(view.DefaultStyle(), 260)
+	fmt.Println(img.Bounds().Dx() == 260, img.Bounds().Dy() > 100)
+	// Output:
+	// true true
+}
