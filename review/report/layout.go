@@ -51,8 +51,7 @@ type pen struct {
 }
 
 // boldVariant names Liberation Sans Bold as a variant of its own with normal
-// weight: vgpdf registers each font under a name with an empty style but
-// asks fpdf for style "B" when the weight is bold, which fpdf rejects.
+// weight, so that every face has its own name whatever canvas draws it.
 const boldVariant = "SansBold"
 
 func init() {

@@ -10,7 +10,6 @@ import (
 	"io"
 
 	"gonum.org/v1/plot/vg/vgimg"
-	"gonum.org/v1/plot/vg/vgpdf"
 )
 
 // DefaultDPI is the resolution of the PNG report unless asked otherwise:
@@ -105,13 +104,18 @@ func addPNGChunks(data []byte, dpi int, texts [][2]string) ([]byte, error) {
 }
 
 // RenderPDF writes the report as a one-page PDF with the same layout as the
-// PNG; text stays text (fonts embedded), images are embedded as PNG.
+// PNG; text stays text (fonts embedded as UTF-8 subsets), images are
+// embedded as PNG. The document's creation date is the review date.
 func RenderPDF(w io.Writer, in *Input) error {
-	c := vgpdf.New(PageWidth, PageHeight)
+	c := newPDFCanvas(PageWidth, PageHeight)
 	if err := Render(c, in); err != nil {
 		return err
 	}
-	if _, err := c.WriteTo(w); err != nil {
+	title := in.Title
+	if title == "" {
+		title = "Thermal dose coverage review"
+	}
+	if err := c.writeTo(w, title+" - "+in.CaseLabel, in.ReviewDate); err != nil {
 		return fmt.Errorf("report: writing PDF: %w", err)
 	}
 	return nil
