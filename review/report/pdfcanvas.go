@@ -22,9 +22,9 @@ import (
 // shows the first one's glyphs with its own widths, and its text is limited
 // to Windows-1252.
 type pdfCanvas struct {
-	doc   *fpdf.Fpdf
-	w, h  vg.Length
-	stack []float64 // line widths of the pushed states
+	doc    *fpdf.Fpdf
+	w, h   vg.Length
+	stack  []float64 // line widths of the pushed states
 	fonts  map[string]bool
 	images int
 	err    error
