@@ -53,18 +53,20 @@ type Facts struct {
 	MarginMM   float64 // safety margin around the target, mm
 	TargetName string  // name of the target structure
 
-	TargetVolumeML float64 // target volume, mL
-	Covered        float64 // fraction of the target volume at or above the threshold
-	CoveredLow     float64 // lower end of the uncertainty band of Covered (NaN if none)
-	CoveredHigh    float64 // upper end of the uncertainty band of Covered (NaN if none)
-	BandLabel      string  // what the band is, e.g. "5th-95th percentile, 200 trials"
-	NotMonitored   float64 // fraction of the target volume without valid thermometry
+	TargetVolumeML  float64 // target volume, mL
+	Covered         float64 // fraction of the monitored target at or above the threshold
+	CoveredLow      float64 // lower end of the uncertainty band of Covered (NaN if none)
+	CoveredHigh     float64 // upper end of the uncertainty band of Covered (NaN if none)
+	BandLabel       string  // what the band is, e.g. "5th-95th percentile, 200 trials"
+	CoveredOfTarget float64 // fraction of the whole target covered (not monitored counts as not covered)
+	NotMonitored    float64 // fraction of the target volume without valid thermometry
+	LethalML        float64 // total lethal volume, mL
 
 	D98, D50, D2 float64 // near-minimum, median, near-maximum target dose (ICRU Report 83), DoseUnit
 
 	Holes []Region // connected regions of the target below the threshold, largest first
 
-	Outside         []Region // lethal clusters outside the target plus margin, largest first
+	Outside         []Region // lethal clusters outside the target plus margin, largest first (DepthMM: farthest beyond the target surface)
 	OutsideMarginML float64  // total lethal volume outside the margin, mL
 
 	Avoid []AvoidRow // lethal volume in each avoid structure
@@ -73,7 +75,7 @@ type Facts struct {
 // Region is one connected region (a hole or a lethal cluster).
 type Region struct {
 	VolumeML float64 // mL
-	ExtentMM float64 // largest extent, mm (NaN if unknown)
+	DepthMM  float64 // hole: largest distance from the hole to its rim; cluster: farthest reach beyond the target surface; NaN if unknown
 }
 
 // AvoidRow is the lethal dose landing in one avoid structure.
@@ -98,25 +100,28 @@ type CurvePoint struct {
 
 // SonicationRow is one line of the per-sonication table.
 type SonicationRow struct {
-	Number   int
-	Label    string
-	Frames   int
-	PeakC    float64 // hottest valid voxel temperature, °C (NaN if none)
-	LethalML float64 // volume this sonication alone made lethal, mL
-	Flagged  int     // frames flagged by the quality checks
-	Excluded bool    // left out of the cumulative dose by the reviewer
-	Note     string
+	Number        int
+	Label         string
+	Frames        int
+	PeakC         float64 // hottest valid voxel temperature, °C (NaN if none)
+	PeakDose      float64 // highest dose of this sonication alone, dose unit (NaN if none)
+	LethalML      float64 // lethal volume added by this sonication (in delivery order), mL
+	AddedCoverage float64 // covered fraction of the monitored target it added
+	OutsideML     float64 // lethal volume outside the margin it added, mL
+	Flagged       int     // frames flagged by the quality checks
+	Excluded      bool    // left out of the cumulative dose by the reviewer
 }
 
 // Quality summarises the thermometry quality over all sonications.
 type Quality struct {
-	Frames       int     // frames analysed
-	Flagged      int     // frames flagged
-	MaxMotionMM  float64 // NaN if not measured
-	MaxDriftC    float64 // NaN if not measured
-	MedianSNR    float64 // NaN if not measured
-	WrappedVoxel int     // voxel-frames with a corrected phase wrap
-	Notes        []string
+	Frames      int     // frames analysed
+	Flagged     int     // frames flagged
+	MaxMotionMM float64 // NaN if not measured
+	MaxDriftC   float64 // NaN if not measured
+	MinSNR      float64 // NaN if not measured
+	Wraps       int     // suspected phase wraps, summed over frames
+	Invalid     int     // voxel-frames invalidated (low signal, wraps), summed
+	Notes       []string
 }
 
 // Setting is one named line of the methods block.

@@ -302,9 +302,9 @@ func factLines(in *Input) (left, right [][2]string) {
 		}
 	}
 	left = append(left,
-		[2]string{"Covered (" + target + ")", pct(f.Covered) + " of " + num(f.TargetVolumeML, 2) + " mL"},
+		[2]string{"Covered (" + target + ")", pct(f.Covered) + " of the monitored part of " + num(f.TargetVolumeML, 2) + " mL"},
 		[2]string{"Uncertainty band", band},
-		[2]string{"Not monitored", pct(f.NotMonitored) + " of the target"},
+		[2]string{"Not monitored", pct(f.NotMonitored) + " of the target; covered of whole target " + pct(f.CoveredOfTarget)},
 		[2]string{"D98 / D50 / D2", dose(f.D98) + " / " + dose(f.D50) + " / " + dose(f.D2) + " " + unit},
 		[2]string{"Threshold, margin", dose(f.Threshold) + " " + unit + ", " + num(f.MarginMM, 1) + " mm"},
 	)
@@ -315,15 +315,19 @@ func factLines(in *Input) (left, right [][2]string) {
 			tot += h.VolumeML
 		}
 		holes = fmt.Sprintf("%d, total %s mL; largest %s mL", len(f.Holes), num(tot, 3), num(f.Holes[0].VolumeML, 3))
-		if !math.IsNaN(f.Holes[0].ExtentMM) {
-			holes += fmt.Sprintf(", %s mm across", num(f.Holes[0].ExtentMM, 1))
+		if !math.IsNaN(f.Holes[0].DepthMM) {
+			holes += fmt.Sprintf(", %s mm deep", num(f.Holes[0].DepthMM, 1))
 		}
 	}
 	out := num(f.OutsideMarginML, 3) + " mL"
 	if len(f.Outside) > 0 {
 		out += fmt.Sprintf(" in %d cluster(s); largest %s mL", len(f.Outside), num(f.Outside[0].VolumeML, 3))
+		if !math.IsNaN(f.Outside[0].DepthMM) {
+			out += fmt.Sprintf(", up to %s mm beyond the target", num(f.Outside[0].DepthMM, 1))
+		}
 	}
 	right = append(right,
+		[2]string{"Lethal volume", num(f.LethalML, 3) + " mL in all"},
 		[2]string{"Holes in target", holes},
 		[2]string{"Lethal outside margin", out},
 	)
@@ -380,8 +384,8 @@ func drawFacts(p pen, in *Input, x, y, w vg.Length) vg.Length {
 	fb := sans(22, true)
 	p.text(x, y, fb, colInk, pct(in.Facts.Covered))
 	bw := fb.Width("100.0 %") + 10
-	yb := p.text(x, y+fb.Extents().Height, sans(smallSize, false), colFaint, "of the target at or above")
-	p.text(x, yb, sans(smallSize, false), colFaint, "the lethal threshold")
+	yb := p.text(x, y+fb.Extents().Height, sans(smallSize, false), colFaint, "of the monitored target")
+	p.text(x, yb, sans(smallSize, false), colFaint, "at or above the threshold")
 	lw := (w - bw - gap) * 0.47
 	yl := p.kv(x+bw, y, lw, fl, fv, left)
 	yr := p.kv(x+bw+lw+gap, y, w-bw-gap-lw, fl, fv, right)
@@ -588,7 +592,7 @@ func drawPlots(p pen, in *Input, x, y, w vg.Length) vg.Length {
 }
 
 func drawTables(p pen, in *Input, x, y, w vg.Length) vg.Length {
-	tw := w * 0.6
+	tw := w * 0.64
 	qx := x + tw + gap
 	qw := w - tw - gap
 	yt := drawSonications(p, in, x, y, tw)
@@ -608,8 +612,8 @@ func drawSonications(p pen, in *Input, x, y, w vg.Length) vg.Length {
 		width float64 // fraction of w
 		right bool
 	}{
-		{"#", 0.06, true}, {"label", 0.30, false}, {"frames", 0.10, true}, {"peak °C", 0.11, true},
-		{"lethal mL", 0.12, true}, {"flagged", 0.10, true}, {"note", 0.21, false},
+		{"#", 0.05, true}, {"label", 0.25, false}, {"frames", 0.09, true}, {"peak °C", 0.10, true},
+		{"+lethal mL", 0.13, true}, {"+coverage", 0.12, true}, {"outside mL", 0.13, true}, {"flagged", 0.11, true},
 	}
 	xs := make([]vg.Length, len(cols)+1)
 	xs[0] = x
@@ -618,7 +622,7 @@ func drawSonications(p pen, in *Input, x, y, w vg.Length) vg.Length {
 	}
 	cell := func(n int, y vg.Length, f font.Face, clr color.Color, s string) {
 		if cols[n].right {
-			p.textRight(xs[n+1]-4, y, f, clr, s)
+			p.textRight(xs[n+1]-3, y, f, clr, s)
 			return
 		}
 		p.text(xs[n], y, f, clr, clip(f, s, xs[n+1]-xs[n]-2))
@@ -640,22 +644,19 @@ func drawSonications(p pen, in *Input, x, y, w vg.Length) vg.Length {
 			p.rect(x, y, w, rh, colShade)
 		}
 		clr := color.Color(colInk)
-		note := s.Note
+		label := s.Label
 		if s.Excluded {
 			clr = colFaint
-			if note == "" {
-				note = "excluded"
-			} else {
-				note = "excluded; " + note
-			}
+			label = "(excluded) " + label
 		}
 		cell(0, y, fb, clr, fmt.Sprintf("%d", s.Number))
-		cell(1, y, fb, clr, s.Label)
+		cell(1, y, fb, clr, label)
 		cell(2, y, fb, clr, fmt.Sprintf("%d", s.Frames))
 		cell(3, y, fb, clr, num(s.PeakC, 1))
 		cell(4, y, fb, clr, num(s.LethalML, 3))
-		cell(5, y, fb, clr, fmt.Sprintf("%d", s.Flagged))
-		cell(6, y, fb, clr, note)
+		cell(5, y, fb, clr, pct(s.AddedCoverage))
+		cell(6, y, fb, clr, num(s.OutsideML, 3))
+		cell(7, y, fb, clr, fmt.Sprintf("%d", s.Flagged))
 		y += rh
 	}
 	return y
@@ -671,8 +672,9 @@ func drawQuality(p pen, in *Input, x, y, w vg.Length) vg.Length {
 		{"frames flagged", fmt.Sprintf("%d", q.Flagged)},
 		{"largest motion", num(q.MaxMotionMM, 2) + " mm"},
 		{"largest drift", num(q.MaxDriftC, 2) + " °C"},
-		{"median SNR", num(q.MedianSNR, 0)},
-		{"phase wraps corrected", fmt.Sprintf("%d voxel-frames", q.WrappedVoxel)},
+		{"lowest SNR", num(q.MinSNR, 0)},
+		{"suspected phase wraps", fmt.Sprintf("%d", q.Wraps)},
+		{"invalidated voxels", fmt.Sprintf("%d voxel-frames", q.Invalid)},
 	})
 	for n, note := range q.Notes {
 		if n == 4 {

@@ -45,7 +45,9 @@ func (in *Input) Metrics() []Metric {
 	add("target.covered_fraction", f.Covered, "1")
 	add("target.covered_fraction_low", f.CoveredLow, "1")
 	add("target.covered_fraction_high", f.CoveredHigh, "1")
+	add("target.covered_fraction_of_target", f.CoveredOfTarget, "1")
 	add("target.not_monitored_fraction", f.NotMonitored, "1")
+	add("lethal_ml", f.LethalML, "mL")
 	add("target.d98", f.D98, du)
 	add("target.d50", f.D50, du)
 	add("target.d2", f.D2, du)
@@ -57,13 +59,13 @@ func (in *Input) Metrics() []Metric {
 	add("holes.total_ml", tot, "mL")
 	for n, h := range f.Holes {
 		add(fmt.Sprintf("holes.%d.volume_ml", n+1), h.VolumeML, "mL")
-		add(fmt.Sprintf("holes.%d.extent_mm", n+1), h.ExtentMM, "mm")
+		add(fmt.Sprintf("holes.%d.depth_mm", n+1), h.DepthMM, "mm")
 	}
 	add("outside.lethal_ml", f.OutsideMarginML, "mL")
 	add("outside.count", float64(len(f.Outside)), "count")
 	for n, c := range f.Outside {
 		add(fmt.Sprintf("outside.%d.volume_ml", n+1), c.VolumeML, "mL")
-		add(fmt.Sprintf("outside.%d.extent_mm", n+1), c.ExtentMM, "mm")
+		add(fmt.Sprintf("outside.%d.beyond_target_mm", n+1), c.DepthMM, "mm")
 	}
 	for _, a := range f.Avoid {
 		key := "avoid." + metricKey(a.Name)
@@ -74,7 +76,10 @@ func (in *Input) Metrics() []Metric {
 		key := fmt.Sprintf("sonication.%d", s.Number)
 		add(key+".frames", float64(s.Frames), "count")
 		add(key+".peak_c", s.PeakC, "°C")
-		add(key+".lethal_ml", s.LethalML, "mL")
+		add(key+".peak_dose", s.PeakDose, du)
+		add(key+".lethal_added_ml", s.LethalML, "mL")
+		add(key+".coverage_added", s.AddedCoverage, "1")
+		add(key+".outside_added_ml", s.OutsideML, "mL")
 		add(key+".flagged_frames", float64(s.Flagged), "count")
 		ex := 0.0
 		if s.Excluded {
@@ -87,8 +92,9 @@ func (in *Input) Metrics() []Metric {
 	add("quality.flagged_frames", float64(q.Flagged), "count")
 	add("quality.max_motion_mm", q.MaxMotionMM, "mm")
 	add("quality.max_drift_c", q.MaxDriftC, "°C")
-	add("quality.median_snr", q.MedianSNR, "1")
-	add("quality.wrapped_voxel_frames", float64(q.WrappedVoxel), "count")
+	add("quality.min_snr", q.MinSNR, "1")
+	add("quality.suspected_wraps", float64(q.Wraps), "count")
+	add("quality.invalidated_voxel_frames", float64(q.Invalid), "count")
 	return ms
 }
 

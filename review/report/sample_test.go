@@ -25,11 +25,11 @@ func sampleInput() *Input {
 	for n := 1; n <= 7; n++ {
 		rows = append(rows, SonicationRow{
 			Number: n, Label: "sonication " + string(rune('A'+n-1)), Frames: 12 + n,
-			PeakC: 52 + float64(n)*0.7, LethalML: 0.05 * float64(n), Flagged: n % 3,
+			PeakC: 52 + float64(n)*0.7, PeakDose: 300 * float64(n), LethalML: 0.05 * float64(n),
+			AddedCoverage: 0.13, OutsideML: 0.004 * float64(n%2), Flagged: n % 3,
 		})
 	}
 	rows[4].Excluded = true
-	rows[2].Note = "motion 1.2 mm in frame 7"
 	return &Input{
 		CaseLabel:  "Phantom case P-001",
 		ScanDate:   "2026-03-14",
@@ -39,10 +39,11 @@ func sampleInput() *Input {
 			Model: "CEM43 (Sapareto & Dewey 1984)", DoseUnit: "CEM43 min",
 			Threshold: 240, MarginMM: 3, TargetName: "Target",
 			TargetVolumeML: 2.143, Covered: 0.934, CoveredLow: 0.911, CoveredHigh: 0.952,
-			BandLabel: "5th-95th percentile, 200 trials", NotMonitored: 0.012,
+			BandLabel: "5th-95th percentile, 200 trials", NotMonitored: 0.012, CoveredOfTarget: 0.923,
+			LethalML: 2.61,
 			D98: 61.5, D50: 2210, D2: 30500,
-			Holes:           []Region{{VolumeML: 0.094, ExtentMM: 6.2}, {VolumeML: 0.012, ExtentMM: 2.1}},
-			Outside:         []Region{{VolumeML: 0.031, ExtentMM: 3.4}},
+			Holes:           []Region{{VolumeML: 0.094, DepthMM: 2.2}, {VolumeML: 0.012, DepthMM: 0.8}},
+			Outside:         []Region{{VolumeML: 0.031, DepthMM: 4.4}},
 			OutsideMarginML: 0.031,
 			Avoid:           []AvoidRow{{Name: "Nerve", LethalML: 0, MaxDose: 12.4}},
 		},
@@ -53,7 +54,7 @@ func sampleInput() *Input {
 		},
 		DVH: dvh, CoverageVsThreshold: cov,
 		Sonications: rows,
-		Quality: Quality{Frames: 112, Flagged: 4, MaxMotionMM: 1.2, MaxDriftC: 0.8, MedianSNR: 41, WrappedVoxel: 3,
+		Quality: Quality{Frames: 112, Flagged: 4, MaxMotionMM: 1.2, MaxDriftC: 0.8, MinSNR: 41, Wraps: 3, Invalid: 57,
 			Notes: []string{"frame 7 of sonication 3: motion 1.2 mm"}},
 		Methods: []Setting{
 			{"Dose model", "CEM43, R 0.5 above / 0.25 below 43 °C, rectangle rule"},
