@@ -29,6 +29,10 @@ type Input struct {
 	// informative plane).
 	Panels []Panel
 
+	// Wash is the dose colour scale of the panels, shown in their legend;
+	// nil: no colour bar.
+	Wash *Wash
+
 	DVH                 []CurvePoint // cumulative DVH of the target: X dose, Y fraction of volume >= X
 	CoverageVsThreshold []CurvePoint // X threshold, Y covered fraction; Low/High the uncertainty band (NaN if none)
 
@@ -90,6 +94,12 @@ type Panel struct {
 	Title   string      // heading above the image
 	Caption string      // line below the image (plane position, what it shows)
 	Image   image.Image // rendered plane with overlays, scale bar and orientation letters; nil: "no image"
+}
+
+// Wash is the logarithmic dose colour scale of the image panels (see
+// review/view.DoseScale): transparent below Floor, top colour from Ceiling.
+type Wash struct {
+	Floor, Ceiling float64 // in the dose unit
 }
 
 // CurvePoint is one point of a curve with an optional band.

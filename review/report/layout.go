@@ -15,6 +15,7 @@ import (
 	"gonum.org/v1/plot/vg/draw"
 
 	"dosecover/review"
+	"dosecover/review/view"
 )
 
 // PageWidth and PageHeight are the size of the report page, A4 portrait
@@ -427,11 +428,11 @@ func drawPanels(p pen, in *Input, x, y, w vg.Length) vg.Length {
 			bottom = yy
 		}
 	}
-	return drawLegend(p, x, bottom+2, w)
+	return drawLegend(p, in, x, bottom+2, w)
 }
 
 // drawLegend explains the overlay colours and line styles of the panels.
-func drawLegend(p pen, x, y, w vg.Length) vg.Length {
+func drawLegend(p pen, in *Input, x, y, w vg.Length) vg.Length {
 	f := sans(smallSize, false)
 	h := f.Extents().Height
 	items := []struct {
@@ -468,7 +469,33 @@ func drawLegend(p pen, x, y, w vg.Length) vg.Length {
 		p.text(cx, y, f, colInk, it.name)
 		cx += f.Width(it.name) + 8
 	}
+	if ws := in.Wash; ws != nil && ws.Floor > 0 && ws.Ceiling > ws.Floor {
+		lo, hi := fmt.Sprintf("%g", ws.Floor), fmt.Sprintf("%g", ws.Ceiling)+" "+doseUnit(in)+" (log)"
+		bw := vg.Length(50)
+		need := f.Width("dose ") + f.Width(lo) + 3 + bw + 3 + f.Width(hi)
+		if cx+need > x+w {
+			y += h + 2
+			cx = x
+		}
+		p.legendWash(cx, y, h, bw, f, lo, hi)
+	}
 	return y + h
+}
+
+// legendWash draws the dose colour bar "dose LO [bar] HI" from x and
+// returns the x after it.
+func (p pen) legendWash(x, y, h, bw vg.Length, f font.Face, lo, hi string) vg.Length {
+	p.text(x, y, f, colInk, "dose")
+	x += f.Width("dose") + 4
+	p.text(x, y, f, colInk, lo)
+	x += f.Width(lo) + 3
+	const steps = 40
+	for s := 0; s < steps; s++ {
+		p.rect(x+bw*vg.Length(s)/steps, y+1, bw/steps+0.2, h-2, view.Colormap(float64(s)/(steps-1)))
+	}
+	x += bw + 3
+	p.text(x, y, f, colInk, hi)
+	return x + f.Width(hi)
 }
 
 // plotFonts sets every text of pl to Liberation Sans at small sizes.
@@ -501,7 +528,7 @@ func (logTicks) Ticks(min, max float64) []plot.Tick {
 		if v < min*0.999 || v > max*1.001 {
 			continue
 		}
-		ts = append(ts, plot.Tick{Value: v, Label: fmt.Sprintf("%g", v)})
+		ts = append(ts, plot.Tick{Value: v, Label: strings.Replace(fmt.Sprintf("%g", v), "e+0", "e", 1)})
 		for m := 2.0; m < 10; m++ {
 			if mv := m * v; mv <= max && mv >= min {
 				ts = append(ts, plot.Tick{Value: mv})
