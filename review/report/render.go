@@ -37,7 +37,7 @@ func RenderPNG(w io.Writer, in *Input, dpi int) error {
 		return err
 	}
 	var buf bytes.Buffer
-	enc := png.Encoder{CompressionLevel: png.BestCompression}
+	enc := png.Encoder{CompressionLevel: png.DefaultCompression}
 	if err := enc.Encode(&buf, img); err != nil {
 		return fmt.Errorf("report: encoding PNG: %w", err)
 	}
