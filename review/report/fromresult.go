@@ -245,6 +245,14 @@ func methods(c *dosemap.Case, r *review.Result, opt Options) []Setting {
 		}
 		ms = append(ms, Setting{"Dose model", fmt.Sprintf("CEM43, R %.2g at or above / %.2g below %.4g °C, %s", m.RAbove, m.RBelow, m.Break, rule)})
 	}
+	measured := false
+	for _, so := range c.Sonications {
+		measured = measured || so.Phase != nil || so.Temperature != nil
+	}
+	if !measured {
+		ms = append(ms, Setting{"Thermometry", "not used: the case holds ready dose maps"})
+		return append(ms, analysisSettings(r)...)
+	}
 	th := opt.Thermometry
 	def := dosemap.DefaultThermometryOptions()
 	if th.PRF.Alpha == 0 {
@@ -283,6 +291,12 @@ func methods(c *dosemap.Case, r *review.Result, opt Options) []Setting {
 		Setting{"Baseline frames", fmt.Sprintf("%d", th.BaselineFrames)},
 		Setting{"Body temperature", fmt.Sprintf("%.1f °C", th.BodyTemp)},
 	)
+	return append(ms, analysisSettings(r)...)
+}
+
+// analysisSettings lists the settings of the analysis itself.
+func analysisSettings(r *review.Result) []Setting {
+	var ms []Setting
 	ms = append(ms, Setting{"Threshold, margin", fmt.Sprintf("%s %s, %.1f mm", dose(r.Threshold), r.DoseUnit, r.MarginMM)})
 	if r.Trials > 0 {
 		ms = append(ms, Setting{"Uncertainty", fmt.Sprintf("Monte Carlo, %d trials, seed %d", r.Trials, r.Settings.Seed)})
