@@ -36,10 +36,10 @@ func Header(settings []Column) []string {
 func (r Row) Record(settings []Column) []string {
 	m := r.Metrics
 	out := []string{
-		r.Case, r.Source, string(r.Status), oneLine(r.Reason),
+		r.Case, flat(r.Source), string(r.Status), oneLine(r.Reason),
 		m.TargetML.cell(), m.CoveragePct.cell(), m.CoverageP05Pct.cell(), m.CoverageP95Pct.cell(),
 		m.NotMonitoredPct.cell(), strconv.Itoa(m.Holes), m.LargestHoleML.cell(),
-		m.OutsideMarginML.cell(), m.AvoidLethalML.cell(), strings.Join(r.Flags, "; "),
+		m.OutsideMarginML.cell(), m.AvoidLethalML.cell(), flat(strings.Join(r.Flags, "; ")),
 	}
 	if r.Status != StatusOK {
 		out[9] = "" // holes not counted
@@ -78,7 +78,7 @@ func WriteErrors(w io.Writer, rows []Row) error {
 		if r.Status == StatusOK {
 			continue
 		}
-		if err := cw.Write([]string{r.Case, r.Source, string(r.Status), oneLine(r.Reason)}); err != nil {
+		if err := cw.Write([]string{r.Case, flat(r.Source), string(r.Status), oneLine(r.Reason)}); err != nil {
 			return err
 		}
 	}
@@ -86,9 +86,15 @@ func WriteErrors(w io.Writer, rows []Row) error {
 	return cw.Error()
 }
 
+// flat replaces line breaks by spaces, so that every row of a table is one
+// line and shard tables can be joined line by line.
+func flat(s string) string {
+	return strings.NewReplacer("\r\n", " ", "\n", " ", "\r", " ").Replace(s)
+}
+
 // oneLine keeps the first line of s (a panic's stack trace stays in the
 // case record only).
 func oneLine(s string) string {
 	s, _, _ = strings.Cut(s, "\n")
-	return s
+	return flat(s)
 }
