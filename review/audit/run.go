@@ -503,3 +503,28 @@ func resolve(p string) (string, error) {
 		cur = parent
 	}
 }
+
+// LoadRows reads the rows of every case record below outDir/cases (for
+// example to show a finished audit again), sorted by Case. Records that
+// cannot be read are returned as problems, one line each.
+func LoadRows(outDir string) (rows []Row, problems []string, err error) {
+	recs, err := filepath.Glob(filepath.Join(outDir, "cases", "*", RecordFile))
+	if err != nil {
+		return nil, nil, err
+	}
+	if _, err := os.Stat(outDir); err != nil {
+		return nil, nil, fmt.Errorf("audit folder %s: %w", outDir, err)
+	}
+	for _, p := range recs {
+		rec, err := ReadRecord(p)
+		if err != nil {
+			problems = append(problems, err.Error())
+			continue
+		}
+		r := rowOf(rec)
+		r.Dir = rec.dir
+		rows = append(rows, r)
+	}
+	sort.Slice(rows, func(a, b int) bool { return rows[a].Case < rows[b].Case })
+	return rows, problems, nil
+}

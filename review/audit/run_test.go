@@ -446,3 +446,31 @@ func TestNumJSON(t *testing.T) {
 		}
 	}
 }
+
+func TestLoadRows(t *testing.T) {
+	tmp := t.TempDir()
+	in := makeCases(t, filepath.Join(tmp, "in"), 4)
+	out := filepath.Join(tmp, "out")
+	fc := newFileCounter()
+	sum, err := Run(context.Background(), Config{Inputs: []string{in}, OutDir: out, Analyzer: fc.analyze})
+	if err != nil {
+		t.Fatal(err)
+	}
+	writeFiles(t, out, map[string][]byte{"cases/junk/case.json": []byte("not json")})
+	rows, problems, err := LoadRows(out)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(rows) != 4 || len(problems) != 1 {
+		t.Fatalf("LoadRows: %d rows, problems %v", len(rows), problems)
+	}
+	for k := range rows {
+		a, b := rows[k], sum.Rows[k]
+		if a.Case != b.Case || a.InputSHA256 != b.InputSHA256 || a.Metrics.CoveragePct != b.Metrics.CoveragePct || a.Dir != b.Dir {
+			t.Errorf("row %d: loaded %+v, run gave %+v", k, a, b)
+		}
+	}
+	if _, _, err := LoadRows(filepath.Join(tmp, "nope")); err == nil {
+		t.Error("LoadRows on a missing folder: no error")
+	}
+}
