@@ -317,7 +317,7 @@ func (w *worker) do(ctx context.Context, c *Case) Row {
 		c.ID = "case-" + hash[:12]
 		c.Name = ""
 	}
-	if rec, ok := w.index[resumeKey(hash, w.settingsHash)]; ok {
+	if rec, ok := w.index[resumeKey(hash, w.settingsHash, w.cfg.Deidentify)]; ok {
 		r := rowOf(rec)
 		r.Resumed = true
 		r.Dir = rec.dir
@@ -417,7 +417,11 @@ func safeAnalyze(ctx context.Context, a Analyzer, c *Case) (res *CaseResult, err
 	return a(ctx, c)
 }
 
-func resumeKey(inputHash, settingsHash string) string { return inputHash + "/" + settingsHash }
+// resumeKey identifies a result that may be reused: same inputs, same
+// settings, and made with or without de-identification like this run.
+func resumeKey(inputHash, settingsHash string, deidentified bool) string {
+	return fmt.Sprintf("%s/%s/%v", inputHash, settingsHash, deidentified)
+}
 
 // resumeIndex reads the finished records below outDir/cases. A record
 // counts when its status is ok or incomplete and all its artifacts exist.
@@ -436,7 +440,7 @@ func resumeIndex(outDir string) map[string]*Record {
 			}
 		}
 		if complete {
-			index[resumeKey(rec.InputSHA256, rec.SettingsHash)] = rec
+			index[resumeKey(rec.InputSHA256, rec.SettingsHash, rec.Deidentified)] = rec
 		}
 	}
 	return index

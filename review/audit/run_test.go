@@ -474,3 +474,29 @@ func TestLoadRows(t *testing.T) {
 		t.Error("LoadRows on a missing folder: no error")
 	}
 }
+
+// TestResumeKeepsDeidentification: a de-identified run never reuses a
+// result made with identity, which would carry the source path.
+func TestResumeKeepsDeidentification(t *testing.T) {
+	tmp := t.TempDir()
+	in := makeCases(t, filepath.Join(tmp, "Doe_Jane"), 2)
+	out := filepath.Join(tmp, "out")
+	cfg := Config{Inputs: []string{in}, OutDir: out, Workers: 1, Resume: true}
+	for k, deid := range []bool{false, true, true} {
+		fc := newFileCounter()
+		cfg.Analyzer, cfg.Deidentify = fc.analyze, deid
+		sum, err := Run(context.Background(), cfg)
+		if err != nil {
+			t.Fatal(err)
+		}
+		want := []int{2, 2, 0}[k]
+		if fc.total() != want {
+			t.Errorf("run %d (deidentify %v): %d cases analysed, want %d", k, deid, fc.total(), want)
+		}
+		for _, r := range sum.Rows {
+			if deid && (r.Source != "" || strings.Contains(r.Case, "Doe")) {
+				t.Errorf("run %d: de-identified row %+v", k, r)
+			}
+		}
+	}
+}
