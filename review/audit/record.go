@@ -43,21 +43,24 @@ type Artifact struct {
 // Volumes are in mL, fractions in percent of the target volume. NaN means
 // "not computed" and is written as null in JSON and as an empty cell in CSV.
 type Metrics struct {
-	TargetML        Num `json:"target_ml"`
-	CoveragePct     Num `json:"coverage_pct"`      // monitored target volume at or above the lethal threshold
-	CoverageP05Pct  Num `json:"coverage_p05_pct"`  // 5th percentile of coverage under thermometry noise
-	CoverageP95Pct  Num `json:"coverage_p95_pct"`  // 95th percentile
-	NotMonitoredPct Num `json:"not_monitored_pct"` // target volume without valid thermometry
-	Holes           int `json:"holes"`             // connected unlethal regions inside the target
-	LargestHoleML   Num `json:"largest_hole_ml"`
-	OutsideMarginML Num `json:"outside_margin_ml"` // lethal volume outside target plus margin
-	AvoidLethalML   Num `json:"avoid_lethal_ml"`   // lethal volume inside avoid structures
+	TargetML    Num `json:"target_ml"`
+	CoveragePct Num `json:"coverage_pct"` // monitored target volume at or above the lethal threshold
+	// CoverageOfTargetPct is the covered part of the whole target (the part
+	// not monitored counts as not covered).
+	CoverageOfTargetPct Num `json:"coverage_of_target_pct"`
+	CoverageP05Pct      Num `json:"coverage_p05_pct"`  // 5th percentile of coverage under thermometry noise
+	CoverageP95Pct      Num `json:"coverage_p95_pct"`  // 95th percentile
+	NotMonitoredPct     Num `json:"not_monitored_pct"` // target volume without valid thermometry
+	Holes               int `json:"holes"`             // connected unlethal regions inside the target
+	LargestHoleML       Num `json:"largest_hole_ml"`
+	OutsideMarginML     Num `json:"outside_margin_ml"` // lethal volume outside target plus margin
+	AvoidLethalML       Num `json:"avoid_lethal_ml"`   // lethal volume inside avoid structures
 }
 
 // NoMetrics returns Metrics with every figure NaN (not computed).
 func NoMetrics() Metrics {
 	n := Num(math.NaN())
-	return Metrics{n, n, n, n, n, 0, n, n, n}
+	return Metrics{n, n, n, n, n, n, 0, n, n, n}
 }
 
 // Num is a float64 that is written as JSON null when NaN or infinite.

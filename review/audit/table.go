@@ -10,7 +10,7 @@ import (
 // baseHeader are the columns of summary.csv before the settings columns.
 var baseHeader = []string{
 	"case", "source", "status", "reason",
-	"target_ml", "coverage_pct", "coverage_p05_pct", "coverage_p95_pct",
+	"target_ml", "coverage_pct", "coverage_of_target_pct", "coverage_p05_pct", "coverage_p95_pct",
 	"not_monitored_pct", "holes", "largest_hole_ml",
 	"outside_margin_ml", "avoid_lethal_ml", "quality_flags",
 }
@@ -20,7 +20,7 @@ var tailHeader = []string{"settings_sha256", "input_sha256", "seconds", "resumed
 
 // Header returns the columns of summary.csv for the given settings
 // columns: case, source, status, reason, the Metrics (target_ml,
-// coverage_pct, coverage_p05_pct, coverage_p95_pct, not_monitored_pct,
+// coverage_pct, coverage_of_target_pct, coverage_p05_pct, coverage_p95_pct, not_monitored_pct,
 // holes, largest_hole_ml, outside_margin_ml, avoid_lethal_ml),
 // quality_flags (separated by "; "), one column per setting, then
 // settings_sha256, input_sha256, seconds and resumed.
@@ -37,12 +37,12 @@ func (r Row) Record(settings []Column) []string {
 	m := r.Metrics
 	out := []string{
 		r.Case, flat(r.Source), string(r.Status), oneLine(r.Reason),
-		m.TargetML.cell(), m.CoveragePct.cell(), m.CoverageP05Pct.cell(), m.CoverageP95Pct.cell(),
+		m.TargetML.cell(), m.CoveragePct.cell(), m.CoverageOfTargetPct.cell(), m.CoverageP05Pct.cell(), m.CoverageP95Pct.cell(),
 		m.NotMonitoredPct.cell(), strconv.Itoa(m.Holes), m.LargestHoleML.cell(),
 		m.OutsideMarginML.cell(), m.AvoidLethalML.cell(), flat(strings.Join(r.Flags, "; ")),
 	}
 	if r.Status != StatusOK {
-		out[9] = "" // holes not counted
+		out[10] = "" // holes not counted
 	}
 	for _, c := range settings {
 		out = append(out, c.Value)
