@@ -31,10 +31,14 @@ type Case struct {
 	// Dir is the absolute path of the case folder.
 	Dir string
 	// Files lists every regular file of the case below Dir (slash separated,
-	// relative to Dir, sorted bytewise); names starting with "." are left out.
+	// relative to Dir, sorted bytewise), hidden ones included; symbolic
+	// links are not followed.
 	Files []string
 	// Bytes is the total size of Files.
 	Bytes int64
+	// InputSHA256 is the case's InputHash; Run sets it before it calls the
+	// Analyzer.
+	InputSHA256 string
 	// Deidentify asks the Analyzer to leave patient identity out of
 	// everything it returns.
 	Deidentify bool
@@ -162,25 +166,21 @@ func holdsDICOMBelow(dir string) (bool, error) {
 	return false, err
 }
 
-// collect lists the files of the case in dir.
+// collect lists the files of the case in dir: every regular file below it
+// (hidden ones included; symbolic links are not followed), as the input
+// hash takes them.
 func collect(dir, name string) (Case, error) {
 	c := Case{Name: name, Dir: dir}
 	err := filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {
 		if err != nil {
 			return err
 		}
-		if p != dir && strings.HasPrefix(d.Name(), ".") {
-			if d.IsDir() {
-				return filepath.SkipDir
-			}
+		if !d.Type().IsRegular() {
 			return nil
 		}
-		if d.IsDir() {
-			return nil
-		}
-		fi, err := os.Stat(p) // follows a symbolic link to a file
-		if err != nil || !fi.Mode().IsRegular() {
-			return nil
+		fi, err := d.Info()
+		if err != nil {
+			return err
 		}
 		rel, err := filepath.Rel(dir, p)
 		if err != nil {

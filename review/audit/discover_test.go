@@ -123,7 +123,7 @@ func TestDiscover(t *testing.T) {
 	want := []got{
 		{"registry/deep", "registry__deep", []string{"level2/series/IM1", "level2/series/IM2.json"}},
 		{"registry/flat", "registry__flat", []string{"a.dcm", "b.dcm", "notes.txt"}},
-		{"registry/nested", "registry__nested", []string{"anatomy/IM0001", "sonication-1/IM0001"}},
+		{"registry/nested", "registry__nested", []string{".cache/x", "anatomy/IM0001", "sonication-1/IM0001"}},
 		{"registry/odd name (copy)", "registry__odd_name__copy_", []string{"img.dcm"}},
 		{"registry/odd name [copy]", "registry__odd_name__copy_-2", []string{"img.dcm"}},
 	}

@@ -17,7 +17,9 @@ import (
 // For every file of c.Files, in their sorted order, the hash takes the
 // slash-separated relative path, a zero byte, the file size as 8 bytes big
 // endian, and the file contents. Renaming, adding, removing or changing any
-// file changes the hash; moving the whole case folder does not.
+// file changes the hash; moving the whole case folder does not. It is the
+// same hash as report.HashFolder of the case folder, so a case's report and
+// its row of the summary carry the same value.
 func InputHash(ctx context.Context, c *Case) (string, error) {
 	h := sha256.New()
 	buf := make([]byte, 256<<10)

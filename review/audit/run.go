@@ -313,6 +313,7 @@ func (w *worker) do(ctx context.Context, c *Case) Row {
 		}
 		return w.finish(c, "", nil, err, 0)
 	}
+	c.InputSHA256 = hash
 	if w.cfg.Deidentify {
 		c.ID = "case-" + hash[:12]
 		c.Name = ""
