@@ -62,8 +62,8 @@ func gridCentre(g dosemap.Geometry) dosemap.Vec3 {
 //
 // with s the millimetres per pixel; Centre lies on the displayed slice.
 type viewTransform struct {
-	Centre dosemap.Vec3
-	U, V   dosemap.Vec3
+	Centre     dosemap.Vec3
+	U, V       dosemap.Vec3
 	MMPerPixel float64
 	W, H       int
 }
