@@ -212,6 +212,7 @@ func fmtOpt(v float64, f string) string {
 type metricsPanel struct {
 	rw       *reviewWindow
 	content  fyne.CanvasObject
+	box      *fyne.Container
 	facts    *widget.Label
 	used     *widget.Label
 	holes    *widget.List
@@ -281,7 +282,7 @@ func newMetricsPanel(rw *reviewWindow) *metricsPanel {
 	listBox := func(l *widget.List) fyne.CanvasObject {
 		return container.NewGridWrap(fyne.NewSize(420, 110), l)
 	}
-	m.content = container.NewVScroll(container.NewVBox(
+	m.box = container.NewVBox(
 		bold("Coverage of the target"), m.facts,
 		bold("Holes in the target (click to show)"), listBox(m.holes),
 		bold("Lethal dose outside the margin (click to show)"), listBox(m.outside),
@@ -289,7 +290,8 @@ func newMetricsPanel(rw *reviewWindow) *metricsPanel {
 		m.dvh.raster, m.coverage.raster,
 		bold("Thermometry quality"), m.quality,
 		bold("Settings used"), m.used, m.hint,
-	))
+	)
+	m.content = container.NewVScroll(m.box)
 	m.update()
 	return m
 }
@@ -310,6 +312,7 @@ func (m *metricsPanel) update() {
 		m.coverage.set(nil)
 		m.holes.Refresh()
 		m.outside.Refresh()
+		m.box.Refresh()
 		return
 	}
 	pct := func(f float64) string { return fmtOpt(100*f, "%.1f %%") }
@@ -353,6 +356,7 @@ func (m *metricsPanel) update() {
 	m.coverage.set(func() *plotPlot { return coveragePlot(r) })
 	m.holes.Refresh()
 	m.outside.Refresh()
+	m.box.Refresh()
 }
 
 func sumML(rs []region) float64 {

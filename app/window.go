@@ -134,10 +134,12 @@ func (rw *reviewWindow) build() {
 	rw.active = rw.viewers[0]
 
 	viewPane := func(n int) fyne.CanvasObject {
-		head := container.NewBorder(nil, nil, rw.planeSel[n], rw.sliceInfo[n])
+		head := container.NewBorder(nil, nil, container.NewGridWrap(fyne.NewSize(250, 36), rw.planeSel[n]),
+			container.NewGridWrap(fyne.NewSize(130, 36), rw.sliceInfo[n]))
 		return container.NewBorder(head, rw.sliders[n], nil, nil, rw.viewers[n])
 	}
-	views := container.NewStack(container.NewGridWithColumns(2, viewPane(0), viewPane(1)), container.NewCenter(rw.notice))
+	views := container.NewStack(container.NewGridWithColumns(2, viewPane(0), viewPane(1)),
+		container.NewCenter(container.NewGridWrap(fyne.NewSize(560, 110), rw.notice)))
 
 	rw.opacity = widget.NewSlider(0, 1)
 	rw.opacity.Step = 0.05
@@ -171,7 +173,6 @@ func (rw *reviewWindow) build() {
 		widget.NewLabel("Wash opacity"), container.NewGridWrap(fyne.NewSize(120, 36), rw.opacity),
 		widget.NewLabel("Floor"), container.NewGridWrap(fyne.NewSize(80, 36), rw.floorEntry),
 		showDose, showCont, showHoles, resetWL, zoomOut, zoomIn, zoomFit,
-		widget.NewSeparator(), rw.selInfo, cumul,
 	)
 	legend := legendRow()
 
@@ -183,14 +184,16 @@ func (rw *reviewWindow) build() {
 	rw.loadInfo.Wrapping = fyne.TextWrapWord
 	rw.loadInfo.TextStyle.Monospace = true
 	bottom := container.NewAppTabs(
-		container.NewTabItem("Sonications", rw.sonTable),
+		container.NewTabItem("Sonications", container.NewBorder(
+			container.NewHBox(rw.selInfo, cumul, widget.NewLabel("· untick a sonication to re-analyse without it; select a row to show its dose alone")),
+			nil, nil, nil, rw.sonTable)),
 		container.NewTabItem("Pinned point", container.NewBorder(rw.probeMsg, nil, nil, nil, rw.probe.raster)),
 		container.NewTabItem("Folder and skipped files", container.NewVScroll(rw.loadInfo)),
 	)
 	left := container.NewVSplit(
 		container.NewBorder(nil, container.NewVBox(display, legend), nil, nil, views),
 		bottom)
-	left.SetOffset(0.66)
+	left.SetOffset(0.62)
 
 	rw.metrics = newMetricsPanel(rw)
 	main := container.NewHSplit(left, rw.metrics.content)
