@@ -101,10 +101,14 @@ type analysisResult struct {
 	Dose           *dosemap.Volume   // cumulative dose of the included sonications
 	PeakTemp       *dosemap.Volume   // highest temperature of the included sonications, °C (nil unknown)
 	SonicationDose []*dosemap.Volume // dose of each sonication (index = row), may hold nil
-	Target, Margin []bool            // masks on Dose's grid
-	Holes3D        []bool            // voxels of the holes, on Dose's grid (nil: none)
-	Outside3D      []bool            // lethal voxels outside the margin (nil: none)
-	Avoid3D        []bool            // voxels of avoid structures (nil: none)
+	// Masks for display, each on its own grid: a voxel belongs to the
+	// region when its value is 0.5 or more (labels count from 1). nil: none.
+	Target, Margin  *dosemap.Volume
+	Holes3D         *dosemap.Volume
+	Outside3D       *dosemap.Volume
+	Avoid3D         *dosemap.Volume
+	TargetStructure *dosemap.Structure   // planned target contours (nil: none)
+	AvoidStructures []*dosemap.Structure // planned avoid contours
 }
 
 // probeCurve is the temperature history of one point over the whole session.

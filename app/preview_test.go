@@ -46,14 +46,18 @@ func (ps *previewSession) Analyze(_ context.Context, s analysisSettings) (*analy
 	g := ps.c.Anatomy.Geometry
 	ex := s.excludedSet()
 	sum := dosemap.NewVolume(g)
-	target := make([]bool, g.Len())
-	margin := make([]bool, g.Len())
+	target := dosemap.NewVolume(g)
+	margin := dosemap.NewVolume(g)
 	centres := []dosemap.Vec3{{-6, 0, 0}, {6, 0, 0}, {0, 8, 3}}
 	for n := range sum.Data {
 		i, j, k := g.IJK(n)
 		p := g.Point(float64(i), float64(j), float64(k))
-		target[n] = p.Norm() < 12
-		margin[n] = p.Norm() < 17
+		if p.Norm() < 12 {
+			target.Data[n] = 1
+		}
+		if p.Norm() < 17 {
+			margin.Data[n] = 1
+		}
 		for m, cc := range centres {
 			if ex[m+1] {
 				continue
@@ -63,8 +67,8 @@ func (ps *previewSession) Analyze(_ context.Context, s analysisSettings) (*analy
 		}
 	}
 	var tot, cov float64
-	for n := range target {
-		if target[n] {
+	for n := range target.Data {
+		if target.Data[n] > 0 {
 			tot++
 			if float64(sum.Data[n]) >= s.Threshold {
 				cov++

@@ -21,8 +21,40 @@ type sceneLayers struct {
 	Anatomy   *dosemap.Volume // nil: no anatomy series
 	Dose      *dosemap.Volume // cumulative (or selected sonication's) dose; nil before analysis
 	Threshold float64         // lethal threshold, Dose's unit
-	// Masks on Dose's grid; nil when absent.
-	Target, Margin, Holes, Outside, Avoid []bool
+	// Masks, each on its own grid (value >= 0.5 inside); nil when absent.
+	Target, Margin, Holes, Outside, Avoid *dosemap.Volume
+	TargetStructure                       *dosemap.Structure
+	AvoidStructures                       []*dosemap.Structure
+}
+
+// maskSampler reads a mask volume at display pixels by nearest voxel.
+type maskSampler struct {
+	v         *dosemap.Volume
+	o, dx, dy [3]float64
+}
+
+func newMaskSampler(v *dosemap.Volume, t viewTransform) *maskSampler {
+	if v == nil {
+		return nil
+	}
+	m := &maskSampler{v: v}
+	m.o, m.dx, m.dy = affineVoxel(v.Geometry, t)
+	return m
+}
+
+// at reports whether display pixel (x, y) lies in the mask.
+func (m *maskSampler) at(x, y int) bool {
+	if m == nil {
+		return false
+	}
+	fx, fy := float64(x), float64(y)
+	i := int(math.Round(m.o[0] + fx*m.dx[0] + fy*m.dy[0]))
+	j := int(math.Round(m.o[1] + fx*m.dx[1] + fy*m.dy[1]))
+	k := int(math.Round(m.o[2] + fx*m.dx[2] + fy*m.dy[2]))
+	if !m.v.Contains(i, j, k) {
+		return false
+	}
+	return m.v.Data[m.v.Index(i, j, k)] >= 0.5
 }
 
 // displayOptions are the viewer's display choices.
@@ -131,37 +163,37 @@ func renderPlaneBasic(s *sceneLayers, t viewTransform, opt displayOptions) *imag
 	o, dx, dy := affineVoxel(g, t)
 	bits := make([]uint8, t.W*t.H)
 	top := washTop(s.Threshold)
-	mask := func(m []bool, n int) bool { return m != nil && m[n] }
+	target, margin := newMaskSampler(s.Target, t), newMaskSampler(s.Margin, t)
+	holes, outside, avoid := newMaskSampler(s.Holes, t), newMaskSampler(s.Outside, t), newMaskSampler(s.Avoid, t)
 	for y := 0; y < t.H; y++ {
 		for x := 0; x < t.W; x++ {
 			fx, fy := float64(x), float64(y)
 			ci, cj, ck := o[0]+fx*dx[0]+fy*dy[0], o[1]+fx*dx[1]+fy*dy[1], o[2]+fx*dx[2]+fy*dy[2]
 			i, j, k := int(math.Round(ci)), int(math.Round(cj)), int(math.Round(ck))
-			if !g.Contains(i, j, k) {
-				continue
+			d := math.NaN()
+			if g.Contains(i, j, k) {
+				d = float64(s.Dose.Data[g.Index(i, j, k)])
 			}
-			n := g.Index(i, j, k)
-			d := float64(s.Dose.Data[n])
 			var b uint8
-			if mask(s.Target, n) {
+			if target.at(x, y) {
 				b |= bitTarget
 				if d != d {
 					b |= bitUnmonitored
 				}
 			}
-			if mask(s.Margin, n) {
+			if margin.at(x, y) {
 				b |= bitMargin
 			}
 			if d >= s.Threshold {
 				b |= bitLethal
 			}
-			if mask(s.Holes, n) {
+			if holes.at(x, y) {
 				b |= bitHole
 			}
-			if mask(s.Outside, n) {
+			if outside.at(x, y) {
 				b |= bitOutside
 			}
-			if mask(s.Avoid, n) {
+			if avoid.at(x, y) {
 				b |= bitAvoid
 			}
 			bits[y*t.W+x] = b
