@@ -1,0 +1,79 @@
+//go:build cgo
+
+package main
+
+import (
+	"bytes"
+	"encoding/json"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+func TestInspectUsage(t *testing.T) {
+	for _, args := range [][]string{{"inspect"}, {"inspect", "a", "b"}, {"inspect", "--bogus", "x"}} {
+		var out, errb bytes.Buffer
+		if code := run(args, &out, &errb); code != 2 {
+			t.Errorf("%v: exit %d, want 2 (usage)", args, code)
+		}
+	}
+}
+
+func TestInspectMissingFolder(t *testing.T) {
+	var out, errb bytes.Buffer
+	if code := run([]string{"inspect", filepath.Join(t.TempDir(), "absent")}, &out, &errb); code != 1 {
+		t.Errorf("exit %d, want 1", code)
+	}
+	if !strings.Contains(errb.String(), "absent") {
+		t.Errorf("message does not name the folder: %q", errb.String())
+	}
+}
+
+// An anatomy image and an unrelated structure set (pydicom's MR_small.dcm
+// and rtstruct.dcm) are not a reviewable case: exit 1 with the reason, and
+// the frame-of-reference mismatch listed.
+func TestInspectNotReviewable(t *testing.T) {
+	dir := ""
+	for _, py := range []string{"python3", "/usr/bin/python3"} {
+		if o, err := exec.Command(py, "-c", "import pydicom, os; print(os.path.dirname(pydicom.__file__))").Output(); err == nil {
+			dir = filepath.Join(strings.TrimSpace(string(o)), "data", "test_files")
+			break
+		}
+	}
+	if _, err := os.Stat(filepath.Join(dir, "MR_small.dcm")); dir == "" || err != nil {
+		if os.Getenv("CI") == "true" {
+			t.Fatal("pydicom test files not found")
+		}
+		t.Skip("pydicom test files not found; skipping")
+	}
+	caseDir := t.TempDir()
+	for _, n := range []string{"MR_small.dcm", "rtstruct.dcm"} {
+		if err := os.Symlink(filepath.Join(dir, n), filepath.Join(caseDir, n)); err != nil {
+			t.Skip(err)
+		}
+	}
+	var out, errb bytes.Buffer
+	if code := run([]string{"inspect", caseDir}, &out, &errb); code != 1 {
+		t.Errorf("exit %d, want 1", code)
+	}
+	if !strings.Contains(out.String(), "frame of reference mismatch") || !strings.Contains(errb.String(), "not a reviewable case") {
+		t.Errorf("output:\n%s\nstderr:\n%s", out.String(), errb.String())
+	}
+	out.Reset()
+	if code := run([]string{"inspect", "--json", caseDir}, &out, &errb); code != 1 {
+		t.Errorf("--json: exit %d, want 1", code)
+	}
+	var inv struct {
+		Reviewable bool
+		Series     []struct{ Role string }
+		Problems   []string
+	}
+	if err := json.Unmarshal(out.Bytes(), &inv); err != nil {
+		t.Fatalf("--json output is not JSON: %v", err)
+	}
+	if inv.Reviewable || len(inv.Series) != 2 || len(inv.Problems) == 0 {
+		t.Errorf("JSON inventory %+v", inv)
+	}
+}

@@ -1,0 +1,544 @@
+package dicomio
+
+import (
+	"bytes"
+	"encoding/binary"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"os"
+	"regexp"
+	"strings"
+
+	"dosecover/dosemap"
+
+	"github.com/suyashkumar/dicom"
+	"github.com/suyashkumar/dicom/pkg/tag"
+)
+
+// Standard attributes that the library's tag table names differently or
+// that are read from functional-group items.
+var (
+	tagTemporalPositionIndex = tag.Tag{Group: 0x0020, Element: 0x9128}
+	tagFrameAcqDateTime      = tag.Tag{Group: 0x0018, Element: 0x9074}
+	tagFrameRefDateTime      = tag.Tag{Group: 0x0018, Element: 0x9151}
+	tagEffectiveEchoTime     = tag.Tag{Group: 0x0018, Element: 0x9082}
+	tagMREchoSequence        = tag.Tag{Group: 0x0018, Element: 0x9114}
+	tagMRImageFrameType      = tag.Tag{Group: 0x0018, Element: 0x9226}
+	tagFrameType             = tag.Tag{Group: 0x0008, Element: 0x9007}
+	tagComplexImageComponent = tag.Tag{Group: 0x0008, Element: 0x9208}
+	tagPixelValueTransform   = tag.Tag{Group: 0x0028, Element: 0x9145}
+	tagRWVMapping            = tag.Tag{Group: 0x0040, Element: 0x9096}
+	tagRWVSlope              = tag.Tag{Group: 0x0040, Element: 0x9225}
+	tagRWVIntercept          = tag.Tag{Group: 0x0040, Element: 0x9224}
+	tagLUTLabel              = tag.Tag{Group: 0x0040, Element: 0x9210}
+	tagUnitsCodeSequence     = tag.Tag{Group: 0x0040, Element: 0x08EA}
+	tagCodeValue             = tag.Tag{Group: 0x0008, Element: 0x0100}
+	tagPerFrameGroups        = tag.Tag{Group: 0x5200, Element: 0x9230}
+	tagSharedGroups          = tag.Tag{Group: 0x5200, Element: 0x9229}
+	tagPlanePosition         = tag.Tag{Group: 0x0020, Element: 0x9113}
+	tagPlaneOrientation      = tag.Tag{Group: 0x0020, Element: 0x9116}
+	tagFrameContent          = tag.Tag{Group: 0x0020, Element: 0x9111}
+	tagPixelMeasures         = tag.Tag{Group: 0x0028, Element: 0x9110}
+	tagGridFrameOffset       = tag.Tag{Group: 0x3004, Element: 0x000C}
+	tagFloatPixelData        = tag.Tag{Group: 0x7FE0, Element: 0x0008}
+	tagDoubleFloatPixelData  = tag.Tag{Group: 0x7FE0, Element: 0x0009}
+)
+
+// transferSyntaxes names the transfer syntaxes dosecover recognises; those
+// marked false have compressed pixel data the DICOM library cannot decode.
+var transferSyntaxes = map[string]struct {
+	name      string
+	supported bool
+}{
+	"1.2.840.10008.1.2":         {"Implicit VR Little Endian", true},
+	"1.2.840.10008.1.2.1":       {"Explicit VR Little Endian", true},
+	"1.2.840.10008.1.2.2":       {"Explicit VR Big Endian", true},
+	"1.2.840.10008.1.2.1.99":    {"Deflated Explicit VR Little Endian", false},
+	"1.2.840.10008.1.2.4.50":    {"JPEG Baseline (Process 1)", false},
+	"1.2.840.10008.1.2.4.51":    {"JPEG Extended (Process 2 & 4)", false},
+	"1.2.840.10008.1.2.4.57":    {"JPEG Lossless, Non-Hierarchical (Process 14)", false},
+	"1.2.840.10008.1.2.4.70":    {"JPEG Lossless, First-Order Prediction (Process 14 SV1)", false},
+	"1.2.840.10008.1.2.4.80":    {"JPEG-LS Lossless", false},
+	"1.2.840.10008.1.2.4.81":    {"JPEG-LS Near-Lossless", false},
+	"1.2.840.10008.1.2.4.90":    {"JPEG 2000 (Lossless Only)", false},
+	"1.2.840.10008.1.2.4.91":    {"JPEG 2000", false},
+	"1.2.840.10008.1.2.4.92":    {"JPEG 2000 Part 2 Multi-component (Lossless Only)", false},
+	"1.2.840.10008.1.2.4.93":    {"JPEG 2000 Part 2 Multi-component", false},
+	"1.2.840.10008.1.2.4.100":   {"MPEG2 Main Profile", false},
+	"1.2.840.10008.1.2.4.201":   {"High-Throughput JPEG 2000 (Lossless Only)", false},
+	"1.2.840.10008.1.2.4.203":   {"High-Throughput JPEG 2000", false},
+	"1.2.840.10008.1.2.5":       {"RLE Lossless", false},
+	"1.2.840.10008.1.2.1.98":    {"Encapsulated Uncompressed Explicit VR Little Endian", false},
+	"1.2.840.10008.1.2.4.201.1": {"High-Throughput JPEG 2000", false},
+}
+
+// tagInError finds the first "(gggg,eeee)" in a parser error.
+var tagInError = regexp.MustCompile(`\(([0-9a-fA-F]{4}),([0-9a-fA-F]{4})\)`)
+
+// syntaxName returns the name of transfer syntax uid, or the UID itself.
+func syntaxName(uid string) string {
+	if s, ok := transferSyntaxes[uid]; ok {
+		return s.name
+	}
+	return "transfer syntax " + uid
+}
+
+// rwv is one item of the Real World Value Mapping Sequence (0040,9096):
+// real value = Slope*stored + Intercept (PS3.3 C.7.6.16.2.11).
+type rwv struct {
+	Slope, Intercept float64
+	Units            string // MeasurementUnitsCodeSequence CodeValue (UCUM)
+	Label            string // LUTLabel
+}
+
+// clockTime is a frame time as written: Day is days since 1970-01-01 (or
+// -1 when the file gives no date), Sec seconds after midnight.
+type clockTime struct {
+	Day int
+	Sec float64
+	OK  bool
+}
+
+// abs returns seconds since 1970-01-01 (seconds of day when undated).
+func (c clockTime) abs() float64 {
+	if c.Day < 0 {
+		return c.Sec
+	}
+	return float64(c.Day)*86400 + c.Sec
+}
+
+// frameMeta is what dosecover needs of one image frame: one single-frame
+// file, or one frame of an enhanced multi-frame file.
+type frameMeta struct {
+	IPP         dosemap.Vec3
+	Row, Col    dosemap.Vec3 // ImageOrientationPatient triplets
+	Spacing     [2]float64   // PixelSpacing: row spacing, column spacing (mm)
+	Thickness   float64
+	TemporalPos int // TemporalPositionIdentifier / TemporalPositionIndex; 0 none
+	Time        clockTime
+	Component   string // "P", "M", "R", "I" or ""
+	Slope       float64
+	Intercept   float64
+	RWV         []rwv
+	TE          float64 // s; 0 unknown
+}
+
+// fileInfo is the result of reading one file.
+type fileInfo struct {
+	Path                               string
+	SOPClass, SOPInstance              string
+	Modality                           string
+	StudyUID, SeriesUID                string
+	SeriesDescription                  string
+	SeriesNumber, AcquisitionNumber    int
+	FrameOfRef                         string
+	ImageType                          []string
+	Rows, Cols                         int
+	BitsAllocated, BitsStored, HighBit int
+	PixelRep, Samples                  int
+	B0, TE                             float64 // T, s; 0 when absent
+	WindowCenter, WindowWidth          float64
+	Patient                            dosemap.Patient
+	Syntax                             string
+	BigEndian                          bool
+	Frames                             []frameMeta
+	Pixels                             []byte // raw pixel data when read
+	Structures                         *structureSet
+	IsImage                            bool
+}
+
+// fileError is a reason a file is skipped.
+type fileError struct{ Reason string }
+
+func (e *fileError) Error() string { return e.Reason }
+
+func skip(format string, a ...any) error { return &fileError{fmt.Sprintf(format, a...)} }
+
+// looksLikeDICOM reports whether data starts with the DICM preamble or with
+// a plausible first element of a preamble-less dataset (group 0002 or 0008,
+// either byte order).
+func looksLikeDICOM(data []byte) bool {
+	if len(data) >= 132 && string(data[128:132]) == "DICM" {
+		return true
+	}
+	if len(data) < 8 {
+		return false
+	}
+	le := binary.LittleEndian.Uint16(data)
+	be := binary.BigEndian.Uint16(data)
+	for _, g := range []uint16{0x0002, 0x0008} {
+		if le == g || be == g {
+			return true
+		}
+	}
+	return false
+}
+
+// readFile reads the file at path. With pixels false it stops at the pixel
+// data (which is skipped, not decoded); with pixels true the raw pixel
+// bytes are kept in fileInfo.Pixels. Panics inside the DICOM library are
+// recovered and reported as an unreadable file.
+func readFile(path string, pixels bool) (fi *fileInfo, err error) {
+	data, err := os.ReadFile(path)
+	if err != nil {
+		return nil, skip("cannot read: %v", err)
+	}
+	return readBytes(path, data, pixels)
+}
+
+// readBytes parses one file already in memory; see readFile.
+func readBytes(path string, data []byte, pixels bool) (fi *fileInfo, err error) {
+	defer func() {
+		if r := recover(); r != nil {
+			fi = nil
+			err = skip("unreadable: the DICOM parser failed (%v)", r)
+		}
+	}()
+	if !looksLikeDICOM(data) {
+		return nil, skip("not a DICOM file (no DICM marker and no DICOM element at the start)")
+	}
+	opts := []dicom.ParseOption{dicom.AllowMismatchPixelDataLength(), dicom.AllowUnknownSpecificCharacterSet()}
+	if pixels {
+		opts = append(opts, dicom.SkipProcessingPixelDataValue())
+	} else {
+		opts = append(opts, dicom.SkipPixelData())
+	}
+	ds, perr := dicom.Parse(bytes.NewReader(data), int64(len(data)), nil, opts...)
+	es := elems(ds.Elements)
+	syntax := es.str(tag.TransferSyntaxUID)
+	if ts, ok := transferSyntaxes[syntax]; ok && !ts.supported {
+		return nil, skip("unsupported compression: %s (%s)", ts.name, syntax)
+	}
+	if perr != nil {
+		if len(es) == 0 {
+			if errors.Is(perr, dicom.ErrorMagicWord) || len(data) < 132 {
+				return nil, skip("not a DICOM file (%v)", perr)
+			}
+		}
+		msg := perr.Error()
+		if errors.Is(perr, io.EOF) || errors.Is(perr, io.ErrUnexpectedEOF) || strings.Contains(msg, "EOF") ||
+			strings.Contains(msg, "not enough bytes") || strings.Contains(msg, "exceeds current limit") {
+			where := "in the header"
+			if m := tagInError.FindStringSubmatch(msg); m != nil {
+				var g, e uint16
+				fmt.Sscanf(m[1]+" "+m[2], "%x %x", &g, &e)
+				where = "inside " + tagName(tag.Tag{Group: g, Element: e})
+			} else if len(es) > 0 {
+				where = "after " + tagName(es[len(es)-1].Tag)
+			}
+			return nil, skip("truncated: the file ends early (%s)", where)
+		}
+		return nil, skip("unreadable: %v", perr)
+	}
+	fi = &fileInfo{Path: path, Syntax: syntax, BigEndian: syntax == "1.2.840.10008.1.2.2"}
+	if err := fi.fill(es, pixels); err != nil {
+		return nil, err
+	}
+	return fi, nil
+}
+
+// fill extracts the attributes dosecover uses from the top-level dataset.
+func (fi *fileInfo) fill(es elems, pixels bool) error {
+	fi.SOPClass = es.str(tag.SOPClassUID)
+	if fi.SOPClass == "" {
+		fi.SOPClass = es.str(tag.MediaStorageSOPClassUID)
+	}
+	fi.SOPInstance = es.str(tag.SOPInstanceUID)
+	fi.Modality = strings.ToUpper(es.str(tag.Modality))
+	fi.StudyUID = es.str(tag.StudyInstanceUID)
+	fi.SeriesUID = es.str(tag.SeriesInstanceUID)
+	fi.SeriesDescription = es.str(tag.SeriesDescription)
+	fi.SeriesNumber, _ = es.int(tag.SeriesNumber)
+	fi.AcquisitionNumber, _ = es.int(tag.AcquisitionNumber)
+	fi.FrameOfRef = es.str(tag.FrameOfReferenceUID)
+	fi.ImageType = es.strs(tag.ImageType)
+	fi.Patient = dosemap.Patient{
+		Name:        es.str(tag.PatientName),
+		ID:          es.str(tag.PatientID),
+		BirthDate:   es.str(tag.PatientBirthDate),
+		StudyDate:   es.str(tag.StudyDate),
+		Institution: es.str(tag.InstitutionName),
+	}
+	if b0, ok := es.float(tag.MagneticFieldStrength); ok && b0 > 0 {
+		fi.B0 = b0
+	}
+	if te, ok := es.float(tag.EchoTime); ok && te > 0 {
+		fi.TE = te / 1000
+	}
+	fi.WindowCenter, _ = es.float(tag.WindowCenter)
+	fi.WindowWidth, _ = es.float(tag.WindowWidth)
+
+	if fi.Modality == "RTSTRUCT" || fi.SOPClass == sopRTStructureSet {
+		ss, err := parseStructureSet(es)
+		if err != nil {
+			return err
+		}
+		fi.Structures = ss
+		return nil
+	}
+	pd := es.find(tag.PixelData)
+	if pd == nil {
+		if es.find(tagFloatPixelData) != nil || es.find(tagDoubleFloatPixelData) != nil {
+			return skip("unsupported pixel data: floating-point pixels (FloatPixelData) are not read")
+		}
+		return nil // not an image: listed as "other" by the caller
+	}
+	fi.IsImage = true
+	var ok bool
+	if fi.Rows, ok = es.int(tag.Rows); !ok || fi.Rows <= 0 {
+		return skip("missing tag %s", tagName(tag.Rows))
+	}
+	if fi.Cols, ok = es.int(tag.Columns); !ok || fi.Cols <= 0 {
+		return skip("missing tag %s", tagName(tag.Columns))
+	}
+	if fi.BitsAllocated, ok = es.int(tag.BitsAllocated); !ok {
+		return skip("missing tag %s", tagName(tag.BitsAllocated))
+	}
+	switch fi.BitsAllocated {
+	case 8, 16, 32:
+	default:
+		return skip("unsupported BitsAllocated %d (8, 16 or 32 are read)", fi.BitsAllocated)
+	}
+	if fi.BitsStored, ok = es.int(tag.BitsStored); !ok || fi.BitsStored <= 0 || fi.BitsStored > fi.BitsAllocated {
+		fi.BitsStored = fi.BitsAllocated
+	}
+	if fi.HighBit, ok = es.int(tag.HighBit); !ok || fi.HighBit < fi.BitsStored-1 || fi.HighBit >= fi.BitsAllocated {
+		fi.HighBit = fi.BitsStored - 1
+	}
+	fi.PixelRep, _ = es.int(tag.PixelRepresentation)
+	if fi.Samples, ok = es.int(tag.SamplesPerPixel); !ok {
+		fi.Samples = 1
+	}
+	if fi.Samples != 1 {
+		return skip("colour image (SamplesPerPixel %d): only greyscale images are used", fi.Samples)
+	}
+	info := dicom.MustGetPixelDataInfo(pd.Value)
+	if info.IsEncapsulated {
+		return skip("unsupported compression: %s (encapsulated pixel data)", syntaxName(fi.Syntax))
+	}
+	nf := 1
+	if n, ok := es.int(tag.NumberOfFrames); ok && n > 0 {
+		nf = n
+	}
+	if nf > 1<<20 || fi.Rows*fi.Cols > 1<<26 {
+		return skip("implausible image size %d×%d×%d", fi.Cols, fi.Rows, nf)
+	}
+	if pixels {
+		need := nf * fi.Rows * fi.Cols * fi.BitsAllocated / 8
+		if len(info.UnprocessedValueData) < need {
+			return skip("truncated: pixel data holds %d bytes, %d×%d×%d frames need %d",
+				len(info.UnprocessedValueData), fi.Cols, fi.Rows, nf, need)
+		}
+		fi.Pixels = info.UnprocessedValueData[:need]
+	}
+	return fi.frames(es, nf)
+}
+
+// frames fills fi.Frames from the top level (single-frame and classic
+// multi-frame images) or from the functional groups of an enhanced image.
+func (fi *fileInfo) frames(es elems, nf int) error {
+	base := frameMeta{Slope: 1}
+	readFrameAttrs(es, &base, true)
+	base.Time = frameTimeOf(es)
+	if base.TE == 0 {
+		base.TE = fi.TE
+	}
+	perFrame := es.items(tagPerFrameGroups)
+	shared := es.first(tagSharedGroups)
+	fi.Frames = make([]frameMeta, nf)
+	offsets, hasOffsets := es.floats(tagGridFrameOffset)
+	for n := range fi.Frames {
+		f := base
+		f.RWV = append([]rwv(nil), base.RWV...)
+		if shared != nil {
+			readGroups(shared, &f)
+		}
+		if n < len(perFrame) {
+			readGroups(perFrame[n], &f)
+		}
+		if hasOffsets && len(offsets) == nf && perFrame == nil {
+			f.IPP = f.IPP.Add(f.Row.Cross(f.Col).Unit().Scale(offsets[n]))
+		}
+		fi.Frames[n] = f
+	}
+	if perFrame != nil && len(perFrame) != nf {
+		return skip("enhanced image: %d frames but %d items in %s", nf, len(perFrame), tagName(tagPerFrameGroups))
+	}
+	for _, f := range fi.Frames {
+		if f.Spacing[0] <= 0 || f.Spacing[1] <= 0 {
+			return skip("missing tag %s", tagName(tag.PixelSpacing))
+		}
+		if f.Row.Norm() == 0 || f.Col.Norm() == 0 {
+			return skip("missing tag %s", tagName(tag.ImageOrientationPatient))
+		}
+		if f.IPP[0] != f.IPP[0] {
+			return skip("missing tag %s", tagName(tag.ImagePositionPatient))
+		}
+	}
+	if fi.B0 == 0 {
+		// Enhanced MR may carry the field strength only at the top level,
+		// which was read above; nothing else to look at.
+	}
+	if fi.TE == 0 && len(fi.Frames) > 0 {
+		fi.TE = fi.Frames[0].TE
+	}
+	return nil
+}
+
+// readGroups applies one functional-groups item (shared or per frame).
+func readGroups(g elems, f *frameMeta) {
+	if it := g.first(tagPlanePosition); it != nil {
+		if v, ok := it.floats(tag.ImagePositionPatient); ok && len(v) == 3 {
+			f.IPP = dosemap.Vec3{v[0], v[1], v[2]}
+		}
+	}
+	if it := g.first(tagPlaneOrientation); it != nil {
+		readOrientation(it, f)
+	}
+	if it := g.first(tagPixelMeasures); it != nil {
+		if v, ok := it.floats(tag.PixelSpacing); ok && len(v) == 2 {
+			f.Spacing = [2]float64{v[0], v[1]}
+		}
+		if v, ok := it.float(tag.SliceThickness); ok {
+			f.Thickness = v
+		}
+	}
+	if it := g.first(tagFrameContent); it != nil {
+		if v, ok := it.int(tagTemporalPositionIndex); ok {
+			f.TemporalPos = v
+		}
+		if t, ok := parseDT(it.str(tagFrameAcqDateTime)); ok {
+			f.Time = t
+		} else if t, ok := parseDT(it.str(tagFrameRefDateTime)); ok && !f.Time.OK {
+			f.Time = t
+		}
+	}
+	if it := g.first(tagMRImageFrameType); it != nil {
+		if c := componentOf(it.strs(tagFrameType), it.str(tagComplexImageComponent)); c != "" {
+			f.Component = c
+		}
+	}
+	if it := g.first(tagPixelValueTransform); it != nil {
+		if v, ok := it.float(tag.RescaleSlope); ok {
+			f.Slope = v
+		}
+		if v, ok := it.float(tag.RescaleIntercept); ok {
+			f.Intercept = v
+		}
+	}
+	if r := readRWV(g); r != nil {
+		f.RWV = r
+	}
+	if it := g.first(tagMREchoSequence); it != nil {
+		if v, ok := it.float(tagEffectiveEchoTime); ok && v > 0 {
+			f.TE = v / 1000
+		}
+	}
+}
+
+// readFrameAttrs reads the image-plane, pixel-value and type attributes of a
+// classic image (or the top level of an enhanced one) into f.
+func readFrameAttrs(es elems, f *frameMeta, top bool) {
+	f.IPP = dosemap.Vec3{math.NaN(), math.NaN(), math.NaN()}
+	if v, ok := es.floats(tag.ImagePositionPatient); ok && len(v) == 3 {
+		f.IPP = dosemap.Vec3{v[0], v[1], v[2]}
+	}
+	readOrientation(es, f)
+	if v, ok := es.floats(tag.PixelSpacing); ok && len(v) == 2 {
+		f.Spacing = [2]float64{v[0], v[1]}
+	}
+	f.Thickness, _ = es.float(tag.SliceThickness)
+	f.TemporalPos, _ = es.int(tag.TemporalPositionIdentifier)
+	f.Component = componentOf(es.strs(tag.ImageType), es.str(tagComplexImageComponent))
+	if v, ok := es.float(tag.RescaleSlope); ok && v != 0 {
+		f.Slope = v
+	}
+	f.Intercept, _ = es.float(tag.RescaleIntercept)
+	f.RWV = readRWV(es)
+	if te, ok := es.float(tag.EchoTime); ok && te > 0 {
+		f.TE = te / 1000
+	}
+	_ = top
+}
+
+func readOrientation(es elems, f *frameMeta) {
+	if v, ok := es.floats(tag.ImageOrientationPatient); ok && len(v) == 6 {
+		f.Row = dosemap.Vec3{v[0], v[1], v[2]}.Unit()
+		f.Col = dosemap.Vec3{v[3], v[4], v[5]}.Unit()
+	}
+}
+
+// componentOf returns the complex component of an image: ImageType value 3
+// (or FrameType value 3 in enhanced images) P/PHASE, M/MAGNITUDE, R/REAL,
+// I/IMAGINARY, else ComplexImageComponent (0008,9208).
+func componentOf(imageType []string, complex string) string {
+	if len(imageType) >= 3 {
+		switch strings.ToUpper(strings.TrimSpace(imageType[2])) {
+		case "P", "PHASE":
+			return "P"
+		case "M", "MAGNITUDE":
+			return "M"
+		case "R", "REAL":
+			return "R"
+		case "I", "IMAGINARY":
+			return "I"
+		}
+	}
+	switch strings.ToUpper(strings.TrimSpace(complex)) {
+	case "PHASE":
+		return "P"
+	case "MAGNITUDE":
+		return "M"
+	case "REAL":
+		return "R"
+	case "IMAGINARY":
+		return "I"
+	}
+	return ""
+}
+
+// readRWV returns the items of the Real World Value Mapping Sequence at this
+// level, or nil.
+func readRWV(es elems) []rwv {
+	var out []rwv
+	for _, it := range es.items(tagRWVMapping) {
+		r := rwv{Slope: 1, Label: strings.TrimSpace(it.str(tagLUTLabel))}
+		if v, ok := it.float(tagRWVSlope); ok {
+			r.Slope = v
+		}
+		r.Intercept, _ = it.float(tagRWVIntercept)
+		if u := it.first(tagUnitsCodeSequence); u != nil {
+			r.Units = strings.TrimSpace(u.str(tagCodeValue))
+		}
+		out = append(out, r)
+	}
+	return out
+}
+
+// frameTimeOf returns the acquisition time of a classic image:
+// AcquisitionDateTime, else AcquisitionDate (or another date of the file)
+// plus AcquisitionTime, else ContentDate plus ContentTime.
+func frameTimeOf(es elems) clockTime {
+	if t, ok := parseDT(es.str(tag.AcquisitionDateTime)); ok {
+		return t
+	}
+	date := -1
+	for _, d := range []tag.Tag{tag.AcquisitionDate, tag.ContentDate, tag.SeriesDate, tag.StudyDate} {
+		if day, ok := parseDA(es.str(d)); ok {
+			date = day
+			break
+		}
+	}
+	if s, ok := parseTM(es.str(tag.AcquisitionTime)); ok {
+		return clockTime{Day: date, Sec: s, OK: true}
+	}
+	if s, ok := parseTM(es.str(tag.ContentTime)); ok {
+		if day, ok := parseDA(es.str(tag.ContentDate)); ok {
+			date = day
+		}
+		return clockTime{Day: date, Sec: s, OK: true}
+	}
+	return clockTime{Day: -1}
+}

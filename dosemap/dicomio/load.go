@@ -1,0 +1,151 @@
+package dicomio
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"path/filepath"
+	"strings"
+
+	"dosecover/dosemap"
+)
+
+// target is where one frame's pixels go: value = A*stored + B.
+type target struct {
+	frame int
+	dst   []float32
+	a, b  float64
+}
+
+// load reads the pixel data of the files the case uses.
+func (cr *caseReader) load(ctx context.Context, progress func(done, total int)) (*dosemap.Case, error) {
+	inv := cr.inv
+	c := &dosemap.Case{Label: filepath.Base(filepath.Clean(cr.dir)), Patient: cr.patient}
+	plan := map[*fileInfo][]target{}
+	nan := float32(math.NaN())
+	// alloc returns one []float32 per time point of st, with missing frames
+	// NaN, and schedules the decoding of the present ones.
+	alloc := func(st *stack, conv func(m *frameMeta, fi *fileInfo) (a, b float64), times []int) [][]float32 {
+		g := st.Geometry
+		sl := g.SliceLen()
+		var out [][]float32
+		for _, t := range times {
+			buf := make([]float32, g.Len())
+			for k, r := range st.Grid[t] {
+				dst := buf[k*sl : (k+1)*sl]
+				if r == nil {
+					for n := range dst {
+						dst[n] = nan
+					}
+					continue
+				}
+				a, b := conv(r.meta(), r.fi)
+				plan[r.fi] = append(plan[r.fi], target{frame: r.n, dst: dst, a: a, b: b})
+			}
+			out = append(out, buf)
+		}
+		return out
+	}
+	all := func(st *stack) []int {
+		ts := make([]int, len(st.Grid))
+		for n := range ts {
+			ts[n] = n
+		}
+		return ts
+	}
+	rescale := func(m *frameMeta, _ *fileInfo) (float64, float64) { return m.Slope, m.Intercept }
+	if s := cr.anatomy; s != nil {
+		v := alloc(s.image, rescale, []int{0})
+		c.Anatomy = &dosemap.Volume{Geometry: s.image.Geometry, Data: v[0]}
+		c.FrameOfRef = s.info.FrameOfRef
+		f0 := s.files[0]
+		c.WindowCenter, c.WindowWidth = f0.WindowCenter, f0.WindowWidth
+		if s.files[0].Patient != (dosemap.Patient{}) {
+			c.Patient = s.files[0].Patient
+		}
+	}
+	phaseConv := func(m *frameMeta, fi *fileInfo) (float64, float64) {
+		if cr.opt.PhaseScale == 0 {
+			for _, r := range m.RWV {
+				if r.Units == "rad" {
+					return r.Slope, r.Intercept
+				}
+			}
+		}
+		return fi.phaseLinear(cr.opt.PhaseScale)
+	}
+	mapConv := func(want func(rwv) bool) func(m *frameMeta, fi *fileInfo) (float64, float64) {
+		return func(m *frameMeta, fi *fileInfo) (float64, float64) {
+			for _, r := range m.RWV {
+				if want(r) {
+					return r.Slope, r.Intercept
+				}
+			}
+			return m.Slope, m.Intercept
+		}
+	}
+	for _, u := range cr.units {
+		s := &dosemap.Sonication{
+			Number: u.info.Number, Label: u.info.Label, SeriesUID: u.phase.info.UID,
+			FrameOfRef: u.phase.info.FrameOfRef, Geometry: u.data.Geometry,
+			Start: u.info.Start, Times: u.data.relTimes(), B0: u.info.B0, TE: u.info.TE,
+		}
+		switch u.kind {
+		case "phase":
+			s.Phase = alloc(u.data, phaseConv, all(u.data))
+			if u.mag != nil {
+				s.Magnitude = alloc(u.mag, rescale, all(u.mag))
+			}
+		case "temperature":
+			s.Temperature = alloc(u.data, mapConv(func(r rwv) bool { return r.Units == "Cel" }), all(u.data))
+		case "dose":
+			last := len(u.data.Grid) - 1
+			s.Dose = alloc(u.data, mapConv(func(r rwv) bool { return strings.EqualFold(r.Label, "CEM43") }), []int{last})[0]
+			s.Times = []float64{0}
+		}
+		c.Sonications = append(c.Sonications, s)
+	}
+	for _, ss := range cr.structs {
+		c.Structures = append(c.Structures, ss.Structures...)
+	}
+	files := make([]*fileInfo, 0, len(plan))
+	for _, s := range cr.series {
+		for _, fi := range s.files {
+			if _, ok := plan[fi]; ok {
+				files = append(files, fi)
+			}
+		}
+	}
+	paths := make([]string, len(files))
+	for n, fi := range files {
+		paths[n] = fi.Path
+	}
+	errs := make([]error, len(files))
+	err := readAll(ctx, paths, cr.opt.workers(), progress, func(i int) {
+		fi := files[i]
+		px, err := readFile(fi.Path, true)
+		if err == nil && (px.Rows != fi.Rows || px.Cols != fi.Cols || len(px.Frames) != len(fi.Frames)) {
+			err = fmt.Errorf("the file changed while it was being read")
+		}
+		for _, t := range plan[fi] {
+			if err != nil {
+				for n := range t.dst {
+					t.dst[n] = nan
+				}
+				continue
+			}
+			px.decodeFrame(t.frame, t.dst, t.a, t.b)
+		}
+		errs[i] = err
+	})
+	if err != nil {
+		return nil, err
+	}
+	for i, e := range errs {
+		if e != nil {
+			inv.Skipped = append(inv.Skipped, SkippedFile{Path: cr.rel(paths[i]), Reason: "pixel data: " + e.Error()})
+			inv.problem("%s: pixel data could not be read (%v); its frames are marked not monitored", cr.rel(paths[i]), e)
+		}
+	}
+	return c, nil
+}

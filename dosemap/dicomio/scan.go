@@ -1,0 +1,708 @@
+package dicomio
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io/fs"
+	"math"
+	"os"
+	"path/filepath"
+	"runtime"
+	"sort"
+	"strconv"
+	"strings"
+	"sync"
+
+	"dosecover/dosemap"
+)
+
+// LoadOptions tune Load.
+type LoadOptions struct {
+	// AnatomySeries selects the anatomy series by SeriesInstanceUID or
+	// SeriesNumber; empty: the anatomy series with the most slices.
+	AnatomySeries string
+	// PhaseScale, when non-zero, is the phase in radians per stored unit,
+	// replacing both an RWV mapping in "rad" and the default mapping of the
+	// stored range onto [-π, π) (unsigned values are first centred on
+	// 2^(BitsStored-1)).
+	PhaseScale float64
+	// Workers is the number of files read in parallel; 0: GOMAXPROCS.
+	Workers int
+}
+
+// Scan reads the attributes of every file under dir (any depth, any names),
+// skipping pixel data, and returns the inventory of the case. progress, when
+// not nil, is called from one goroutine with the number of files done and
+// the total. The error is non-nil only when dir cannot be read or ctx ends;
+// every problem with the files is reported in the Inventory.
+func Scan(ctx context.Context, dir string, progress func(done, total int)) (*Inventory, error) {
+	cr, err := scan(ctx, dir, LoadOptions{}, progress)
+	if err != nil {
+		return nil, err
+	}
+	return cr.inv, nil
+}
+
+// ScanOptions is Scan with options (only Workers and AnatomySeries matter:
+// the latter decides which anatomy series the inventory marks as used).
+func ScanOptions(ctx context.Context, dir string, opt LoadOptions, progress func(done, total int)) (*Inventory, error) {
+	cr, err := scan(ctx, dir, opt, progress)
+	if err != nil {
+		return nil, err
+	}
+	return cr.inv, nil
+}
+
+// Load reads the case under dir: the anatomy volume, the sonications (phase
+// and magnitude, temperature or dose frames) and the structures. It reads
+// the attributes of every file first (as Scan does), then the pixel data of
+// the files used. progress is called for each pass (attributes, then pixels)
+// with the files done and the total of that pass. A case that is not
+// reviewable is still returned with what could be read; the Inventory says
+// why. The error is non-nil only when dir cannot be read or ctx ends.
+func Load(ctx context.Context, dir string, opt LoadOptions, progress func(done, total int)) (*dosemap.Case, *Inventory, error) {
+	cr, err := scan(ctx, dir, opt, progress)
+	if err != nil {
+		return nil, nil, err
+	}
+	c, err := cr.load(ctx, progress)
+	if err != nil {
+		return nil, nil, err
+	}
+	return c, cr.inv, nil
+}
+
+// series is one series being assembled.
+type series struct {
+	info    SeriesInfo
+	files   []*fileInfo
+	phase   *stack // RolePhase, RolePhaseMagnitude
+	mag     *stack // RoleMagnitude, RolePhaseMagnitude
+	image   *stack // anatomy, temperature and dose maps
+	paired  bool
+	mapping string // "rad", "Cel", "CEM43"
+}
+
+// unit is one sonication being assembled.
+type unit struct {
+	kind      string
+	phase     *series
+	magSeries *series
+	data      *stack // phase, temperature or dose frames
+	mag       *stack
+	start     float64
+	info      SonicationInfo
+}
+
+type caseReader struct {
+	dir       string
+	opt       LoadOptions
+	inv       *Inventory
+	series    []*series
+	anatomy   *series
+	units     []*unit
+	structs   []*structureSet
+	structFis []*fileInfo
+	patient   dosemap.Patient
+}
+
+func (o LoadOptions) workers() int {
+	if o.Workers > 0 {
+		return o.Workers
+	}
+	return runtime.GOMAXPROCS(0)
+}
+
+// listFiles returns the regular files under dir (following symbolic links
+// to files), sorted by path.
+func listFiles(dir string) ([]string, error) {
+	fi, err := os.Stat(dir)
+	if err != nil {
+		return nil, fmt.Errorf("reading case folder %s: %w", dir, err)
+	}
+	if !fi.IsDir() {
+		return nil, fmt.Errorf("reading case folder %s: not a folder", dir)
+	}
+	var out []string
+	err = filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {
+		if err != nil {
+			if p == dir {
+				return err
+			}
+			return nil // unreadable sub-folder: skipped below
+		}
+		if d.IsDir() {
+			return nil
+		}
+		if d.Type()&fs.ModeSymlink != 0 {
+			if st, err := os.Stat(p); err != nil || !st.Mode().IsRegular() {
+				return nil
+			}
+		} else if !d.Type().IsRegular() {
+			return nil
+		}
+		out = append(out, p)
+		return nil
+	})
+	if err != nil {
+		return nil, fmt.Errorf("reading case folder %s: %w", dir, err)
+	}
+	sort.Strings(out)
+	return out, nil
+}
+
+// readAll reads paths with n workers; fn is called once per path (from the
+// worker goroutines) and its results are kept by index.
+func readAll(ctx context.Context, paths []string, workers int, progress func(done, total int), fn func(i int)) error {
+	if workers < 1 {
+		workers = 1
+	}
+	jobs := make(chan int)
+	done := make(chan struct{}, 64)
+	var wg sync.WaitGroup
+	for w := 0; w < workers; w++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for i := range jobs {
+				fn(i)
+				done <- struct{}{}
+			}
+		}()
+	}
+	finished := make(chan struct{})
+	go func() {
+		n := 0
+		for range done {
+			n++
+			if progress != nil {
+				progress(n, len(paths))
+			}
+		}
+		close(finished)
+	}()
+	var err error
+feed:
+	for i := range paths {
+		select {
+		case <-ctx.Done():
+			err = ctx.Err()
+			break feed
+		case jobs <- i:
+		}
+	}
+	close(jobs)
+	wg.Wait()
+	close(done)
+	<-finished
+	return err
+}
+
+func scan(ctx context.Context, dir string, opt LoadOptions, progress func(done, total int)) (*caseReader, error) {
+	paths, err := listFiles(dir)
+	if err != nil {
+		return nil, err
+	}
+	infos := make([]*fileInfo, len(paths))
+	errs := make([]error, len(paths))
+	err = readAll(ctx, paths, opt.workers(), progress, func(i int) {
+		infos[i], errs[i] = readFile(paths[i], false)
+	})
+	if err != nil {
+		return nil, err
+	}
+	cr := &caseReader{dir: dir, opt: opt, inv: &Inventory{Dir: dir, Files: len(paths)}}
+	cr.inv.Series = []SeriesInfo{}
+	cr.inv.Sonications = []SonicationInfo{}
+	cr.inv.Structures = []StructureInfo{}
+	cr.inv.Skipped = []SkippedFile{}
+	cr.inv.Problems = []string{}
+	cr.assemble(paths, infos, errs)
+	return cr, nil
+}
+
+func (cr *caseReader) rel(p string) string {
+	if r, err := filepath.Rel(cr.dir, p); err == nil {
+		return r
+	}
+	return p
+}
+
+// assemble groups the files into series, classifies them, builds the
+// sonications and runs the consistency checks.
+func (cr *caseReader) assemble(paths []string, infos []*fileInfo, errs []error) {
+	inv := cr.inv
+	byUID := map[string]*series{}
+	for i, fi := range infos {
+		if errs[i] != nil {
+			reason := errs[i].Error()
+			var fe *fileError
+			if !errors.As(errs[i], &fe) {
+				reason = "unreadable: " + reason
+			}
+			inv.Skipped = append(inv.Skipped, SkippedFile{Path: cr.rel(paths[i]), Reason: reason})
+			continue
+		}
+		if fi.Structures != nil {
+			cr.structs = append(cr.structs, fi.Structures)
+			cr.structFis = append(cr.structFis, fi)
+		}
+		if fi.SeriesUID == "" && fi.SOPClass == "1.2.840.10008.1.3.10" {
+			inv.Skipped = append(inv.Skipped, SkippedFile{Path: cr.rel(fi.Path), Reason: "DICOM directory (DICOMDIR): an index of files, not used (the folder is searched instead)"})
+			continue
+		}
+		if fi.SeriesUID == "" && !fi.IsImage {
+			inv.Skipped = append(inv.Skipped, SkippedFile{Path: cr.rel(fi.Path), Reason: "no image data, no structure set and no SeriesInstanceUID (0020,000E): not used"})
+			continue
+		}
+		if fi.SeriesUID == "" {
+			inv.Skipped = append(inv.Skipped, SkippedFile{Path: cr.rel(fi.Path), Reason: "missing tag SeriesInstanceUID (0020,000E)"})
+			continue
+		}
+		s := byUID[fi.SeriesUID]
+		if s == nil {
+			s = &series{info: SeriesInfo{UID: fi.SeriesUID, Number: fi.SeriesNumber, Description: fi.SeriesDescription, Modality: fi.Modality, FrameOfRef: fi.FrameOfRef}}
+			byUID[fi.SeriesUID] = s
+			cr.series = append(cr.series, s)
+		}
+		s.files = append(s.files, fi)
+		s.info.Paths = append(s.info.Paths, fi.Path)
+		if cr.patient == (dosemap.Patient{}) {
+			cr.patient = fi.Patient
+		}
+	}
+	sort.SliceStable(cr.series, func(a, b int) bool {
+		if cr.series[a].info.Number != cr.series[b].info.Number {
+			return cr.series[a].info.Number < cr.series[b].info.Number
+		}
+		return cr.series[a].info.UID < cr.series[b].info.UID
+	})
+	for _, s := range cr.series {
+		cr.classify(s)
+	}
+	cr.chooseAnatomy()
+	cr.buildSonications()
+	cr.structures()
+	cr.checkFrames()
+	for _, s := range cr.series {
+		inv.Series = append(inv.Series, s.info)
+	}
+	if len(cr.units) == 0 {
+		inv.NotReviewable = "no thermometry (phase), temperature-map or dose-map series found"
+		if len(inv.Skipped) > 0 {
+			inv.NotReviewable += fmt.Sprintf(" (%d files skipped, see below)", len(inv.Skipped))
+		}
+	} else {
+		inv.Reviewable = true
+	}
+}
+
+// classify decides the role of a series from its attributes.
+func (cr *caseReader) classify(s *series) {
+	inv := cr.inv
+	var frames, pf, mf, other []frameRef
+	for _, fi := range s.files {
+		if fi.B0 > 0 && s.info.B0 == 0 {
+			s.info.B0 = fi.B0
+		}
+		if fi.TE > 0 && s.info.TE == 0 {
+			s.info.TE = fi.TE
+		}
+		if fi.B0 > 0 && math.Abs(fi.B0-s.info.B0) > 1e-6 {
+			inv.problem("series %s: MagneticFieldStrength differs between files (%g T and %g T); %g T is used", s.name(), s.info.B0, fi.B0, s.info.B0)
+		}
+		for n := range fi.Frames {
+			r := frameRef{fi, n}
+			frames = append(frames, r)
+			switch fi.Frames[n].Component {
+			case "P":
+				pf = append(pf, r)
+			case "M":
+				mf = append(mf, r)
+			default:
+				other = append(other, r)
+			}
+		}
+	}
+	s.info.Files = len(s.files)
+	s.info.Frames = len(frames)
+	if len(s.files) > 0 && s.files[0].Structures != nil {
+		s.info.Role = RoleStructureSet
+		return
+	}
+	if len(frames) == 0 {
+		s.info.Role = RoleOther
+		s.info.Note = "no image data"
+		return
+	}
+	for _, r := range frames {
+		for _, m := range r.meta().RWV {
+			switch {
+			case strings.EqualFold(m.Label, "CEM43"):
+				s.mapping = "CEM43"
+			case m.Units == "Cel" && s.mapping != "CEM43":
+				s.mapping = "Cel"
+			case m.Units == "rad" && s.mapping == "":
+				s.mapping = "rad"
+			}
+		}
+	}
+	build := func(fr []frameRef) *stack {
+		st, err := buildStack(fr)
+		if err != nil {
+			s.info.Note = err.Error()
+			inv.problem("series %s: %v; the series is not used", s.name(), err)
+			return nil
+		}
+		for _, p := range st.Problems {
+			inv.problem("series %s: %s", s.name(), p)
+		}
+		return st
+	}
+	setInfo := func(st *stack) {
+		s.info.Geometry = st.Geometry
+		s.info.TimePoints = len(st.Grid)
+		if st.HasTimes && len(st.Times) > 0 {
+			s.info.Start = toTime(st.Times[0], st.Dated)
+			s.info.StartClock = clockString(st.Times[0])
+			s.info.Duration = st.Times[len(st.Times)-1] - st.Times[0]
+		}
+	}
+	switch {
+	case s.mapping == "CEM43" || s.mapping == "Cel":
+		if s.mapping == "CEM43" {
+			s.info.Role = RoleDoseMap
+			s.info.Note = "Real World Value Mapping labelled CEM43 (minutes)"
+		} else {
+			s.info.Role = RoleTemperatureMap
+			s.info.Note = "Real World Value Mapping in Cel (absolute °C)"
+		}
+		if s.image = build(frames); s.image == nil {
+			s.info.Role = RoleOther
+			return
+		}
+		setInfo(s.image)
+		return
+	case s.info.Modality != "MR" && s.info.Modality != "CT":
+		s.info.Role = RoleOther
+		s.info.Note = fmt.Sprintf("modality %s is not used", orNone(s.info.Modality))
+		return
+	case s.info.Modality == "MR" && len(pf) > 0:
+		if len(other) > 0 {
+			inv.problem("series %s: %d frames that are neither phase nor magnitude are ignored", s.name(), len(other))
+		}
+		if s.phase = build(pf); s.phase == nil {
+			s.info.Role = RoleOther
+			return
+		}
+		setInfo(s.phase)
+		if len(s.phase.Grid) < 2 {
+			s.info.Role = RoleOther
+			s.info.Note = "phase images with one time frame per slice: not thermometry"
+			s.phase = nil
+			return
+		}
+		s.info.Role = RolePhase
+		if len(mf) > 0 {
+			if s.mag = build(mf); s.mag != nil {
+				if !s.mag.Geometry.SameGrid(s.phase.Geometry, posTol) || len(s.mag.Grid) != len(s.phase.Grid) {
+					inv.problem("series %s: magnitude frames (%d time points, %s) do not match the phase frames (%d time points, %s); magnitude not used",
+						s.name(), len(s.mag.Grid), s.mag.Geometry, len(s.phase.Grid), s.phase.Geometry)
+					s.mag = nil
+				} else {
+					s.info.Role = RolePhaseMagnitude
+				}
+			}
+		}
+		return
+	case s.info.Modality == "MR" && len(mf) > 0 && len(other) == 0:
+		st := build(mf)
+		if st == nil {
+			s.info.Role = RoleOther
+			return
+		}
+		setInfo(st)
+		if len(st.Grid) > 1 {
+			s.info.Role = RoleMagnitude
+			s.mag = st
+			return
+		}
+		s.info.Role = RoleAnatomy
+		s.image = st
+		return
+	}
+	// MR or CT images without phase: anatomy.
+	st := build(frames)
+	if st == nil {
+		s.info.Role = RoleOther
+		return
+	}
+	setInfo(st)
+	s.info.Role = RoleAnatomy
+	s.image = st
+	if len(st.Grid) > 1 {
+		s.info.Note = fmt.Sprintf("%d time points; the first is used as anatomy", len(st.Grid))
+	}
+}
+
+func orNone(s string) string {
+	if s == "" {
+		return "(none)"
+	}
+	return s
+}
+
+func (s *series) name() string {
+	d := s.info.Description
+	if d == "" {
+		d = "(no description)"
+	}
+	return fmt.Sprintf("#%d %q", s.info.Number, d)
+}
+
+// chooseAnatomy picks the anatomy series: the one named by
+// LoadOptions.AnatomySeries, else the one with the most slices.
+func (cr *caseReader) chooseAnatomy() {
+	var cands []*series
+	for _, s := range cr.series {
+		if s.info.Role == RoleAnatomy && s.image != nil {
+			cands = append(cands, s)
+		}
+	}
+	if want := cr.opt.AnatomySeries; want != "" {
+		for _, s := range cands {
+			if s.info.UID == want || strconv.Itoa(s.info.Number) == want {
+				cr.anatomy = s
+			}
+		}
+		if cr.anatomy == nil {
+			cr.inv.problem("anatomy series %q not found among the anatomy series; the one with the most slices is used", want)
+		}
+	}
+	if cr.anatomy == nil {
+		for _, s := range cands {
+			if cr.anatomy == nil || s.image.Geometry.Slices > cr.anatomy.image.Geometry.Slices {
+				cr.anatomy = s
+			}
+		}
+	}
+	if cr.anatomy != nil {
+		cr.anatomy.info.Default = true
+		if len(cands) > 1 {
+			cr.inv.problem("%d anatomy series; %s (%d slices) is used (choose another with its SeriesInstanceUID or number)", len(cands), cr.anatomy.name(), cr.anatomy.image.Geometry.Slices)
+		}
+	} else {
+		cr.inv.problem("no anatomy series (MR or CT images that are not thermometry): dose is shown without anatomy")
+	}
+}
+
+// buildSonications makes one sonication per thermometry acquisition
+// (phase series, with its magnitude in the same series or in a magnitude
+// series of the same geometry and frame times), per temperature-map series
+// and per dose-map series, ordered by acquisition time.
+func (cr *caseReader) buildSonications() {
+	inv := cr.inv
+	var mags []*series
+	for _, s := range cr.series {
+		switch s.info.Role {
+		case RolePhase, RolePhaseMagnitude:
+			cr.units = append(cr.units, &unit{kind: "phase", phase: s, data: s.phase, mag: s.mag})
+		case RoleMagnitude:
+			mags = append(mags, s)
+		case RoleTemperatureMap:
+			cr.units = append(cr.units, &unit{kind: "temperature", phase: s, data: s.image})
+		case RoleDoseMap:
+			cr.units = append(cr.units, &unit{kind: "dose", phase: s, data: s.image})
+		}
+	}
+	// Pair phase-only acquisitions with magnitude series: same grid, same
+	// number of time points, first frames within 1 s (when both have times).
+	for _, u := range cr.units {
+		if u.kind != "phase" || u.mag != nil {
+			continue
+		}
+		best, bestDT := -1, math.Inf(1)
+		for n, m := range mags {
+			if m.paired || !m.mag.Geometry.SameGrid(u.data.Geometry, posTol) || len(m.mag.Grid) != len(u.data.Grid) {
+				continue
+			}
+			dt := 0.0
+			if m.mag.HasTimes && u.data.HasTimes {
+				dt = math.Abs(m.mag.Times[0] - u.data.Times[0])
+				if dt > 1 {
+					continue
+				}
+				// Every frame time must agree.
+				ok := true
+				for t := range m.mag.Times {
+					if math.Abs(m.mag.Times[t]-u.data.Times[t]) > 1 {
+						ok = false
+					}
+				}
+				if !ok {
+					continue
+				}
+			}
+			if dt < bestDT {
+				best, bestDT = n, dt
+			}
+		}
+		if best >= 0 {
+			mags[best].paired = true
+			u.mag = mags[best].mag
+			u.magSeries = mags[best]
+			mags[best].info.Note = "magnitude of phase series " + u.phase.name()
+		}
+	}
+	for _, m := range mags {
+		if !m.paired {
+			inv.problem("magnitude series %s has no phase series of the same geometry and frame times; it is not used", m.name())
+			m.info.Note = "no matching phase series"
+		}
+	}
+	starts := make([]clockTime, len(cr.units))
+	for n, u := range cr.units {
+		if u.data.HasTimes {
+			starts[n] = u.data.Grid0Time()
+		}
+	}
+	abs := unwrapMidnight(starts)
+	for n, u := range cr.units {
+		u.start = abs[n]
+		if !u.data.HasTimes {
+			u.start = math.Inf(1)
+		}
+	}
+	sort.SliceStable(cr.units, func(a, b int) bool { return cr.units[a].start < cr.units[b].start })
+	for n, u := range cr.units {
+		kind := u.kind
+		if kind == "phase" && u.mag != nil {
+			kind = "phase+magnitude"
+		}
+		si := SonicationInfo{
+			Number: n + 1, Kind: kind, Label: u.phase.info.Description,
+			Series: []string{u.phase.info.UID}, Frames: len(u.data.Grid), Slices: u.data.Geometry.Slices,
+			B0: u.phase.info.B0, TE: u.phase.info.TE,
+		}
+		if si.Label == "" {
+			si.Label = fmt.Sprintf("series %d", u.phase.info.Number)
+		}
+		if u.magSeries != nil {
+			si.Series = append(si.Series, u.magSeries.info.UID)
+			if si.B0 == 0 {
+				si.B0 = u.magSeries.info.B0
+			}
+			if si.TE == 0 {
+				si.TE = u.magSeries.info.TE
+			}
+		}
+		if u.data.HasTimes {
+			si.Start = toTime(u.data.Times[0], u.data.Dated)
+			si.StartClock = clockString(u.data.Times[0])
+			si.Duration = u.data.Times[len(u.data.Times)-1] - u.data.Times[0]
+		} else if len(u.data.Grid) > 1 {
+			inv.problem("sonication %d (series %s): frames carry no acquisition or content times; thermal dose cannot be timed", n+1, u.phase.name())
+		}
+		if u.kind == "phase" {
+			if si.B0 == 0 {
+				inv.problem("sonication %d (series %s): MagneticFieldStrength (0018,0087) missing; temperature needs B0 - give it in the thermometry settings", n+1, u.phase.name())
+			}
+			if si.TE == 0 {
+				inv.problem("sonication %d (series %s): EchoTime (0018,0081) missing; temperature needs TE - give it in the thermometry settings", n+1, u.phase.name())
+			}
+		}
+		if u.kind == "dose" && len(u.data.Grid) > 1 {
+			inv.problem("sonication %d (dose map %s): %d time points; the last is used", n+1, u.phase.name(), len(u.data.Grid))
+		}
+		u.info = si
+		inv.Sonications = append(inv.Sonications, si)
+	}
+}
+
+// Grid0Time returns the clock time of the first time point.
+func (st *stack) Grid0Time() clockTime {
+	for _, r := range st.Grid[0] {
+		if r != nil {
+			// Times[0] is already unwrapped within the series; rebuild a
+			// clock time from it so that series compare on one scale.
+			t := st.Times[0]
+			if st.Dated {
+				return clockTime{Day: int(math.Floor(t / 86400)), Sec: t - 86400*math.Floor(t/86400), OK: true}
+			}
+			return clockTime{Day: -1, Sec: t, OK: true}
+		}
+	}
+	return clockTime{Day: -1}
+}
+
+// structures collects the ROIs of every structure set.
+func (cr *caseReader) structures() {
+	inv := cr.inv
+	if len(cr.structs) > 1 {
+		inv.problem("%d structure sets; the ROIs of all are listed and used", len(cr.structs))
+	}
+	target := false
+	for n, ss := range cr.structs {
+		for i := range ss.Info {
+			ss.Info[i].File = cr.rel(cr.structFis[n].Path)
+			inv.Structures = append(inv.Structures, ss.Info[i])
+			if ss.Structures[i].Role == dosemap.RoleTarget && len(ss.Structures[i].Contours) > 0 {
+				target = true
+			}
+		}
+		for _, p := range ss.Problems {
+			inv.problem("structure set %s: %s", cr.rel(cr.structFis[n].Path), p)
+		}
+	}
+	if len(cr.structs) == 0 {
+		inv.problem("no RTSTRUCT: no target to measure coverage against")
+	} else if !target {
+		inv.problem("no target structure (RTROIInterpretedType PTV, CTV or GTV with closed planar contours)")
+	}
+}
+
+// checkFrames compares the frames of reference of anatomy, thermometry and
+// structures: positions in different frames of reference cannot be related.
+func (cr *caseReader) checkFrames() {
+	inv := cr.inv
+	ref, refName := "", ""
+	if cr.anatomy != nil && cr.anatomy.info.FrameOfRef != "" {
+		ref, refName = cr.anatomy.info.FrameOfRef, "anatomy series "+cr.anatomy.name()
+	}
+	check := func(uid, name string) {
+		if uid == "" {
+			inv.problem("%s has no FrameOfReferenceUID; its positions are assumed to match", name)
+			return
+		}
+		if ref == "" {
+			ref, refName = uid, name
+			return
+		}
+		if uid != ref {
+			inv.problem("frame of reference mismatch: %s uses FrameOfReferenceUID %s but %s uses %s; their positions cannot be related", name, uid, refName, ref)
+		}
+	}
+	for _, u := range cr.units {
+		check(u.phase.info.FrameOfRef, fmt.Sprintf("sonication %d (series %s)", u.info.Number, u.phase.name()))
+	}
+	for n, ss := range cr.structs {
+		fors := map[string]bool{}
+		for _, s := range ss.Structures {
+			if s.FrameOfRef != "" {
+				fors[s.FrameOfRef] = true
+			}
+		}
+		if len(fors) == 0 {
+			fors[ss.FrameOfRef] = true
+		}
+		keys := make([]string, 0, len(fors))
+		for k := range fors {
+			keys = append(keys, k)
+		}
+		sort.Strings(keys)
+		for _, k := range keys {
+			check(k, "structure set "+cr.rel(cr.structFis[n].Path))
+		}
+	}
+}
