@@ -86,7 +86,9 @@ type analysisResult struct {
 	TargetName     string
 	TargetML       float64
 	Covered        float64 // fraction of the target at or above the threshold
+	CoveredWhole   float64 // covered fraction of the whole target (unmonitored counts as not covered)
 	CoveredP05     float64 // NaN when no uncertainty run
+	Trials         int     // noise trials behind the band
 	CoveredP95     float64
 	NotMonitored   float64 // fraction of the target without valid thermometry
 	D98, D50, D2   float64 // dose received by at least 98/50/2 % of the target
@@ -107,6 +109,7 @@ type analysisResult struct {
 	Holes3D         *dosemap.Volume
 	Outside3D       *dosemap.Volume
 	Avoid3D         *dosemap.Volume
+	NotMonitored3D  *dosemap.Volume      // target voxels without valid thermometry
 	TargetStructure *dosemap.Structure   // planned target contours (nil: none)
 	AvoidStructures []*dosemap.Structure // planned avoid contours
 }

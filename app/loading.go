@@ -382,6 +382,7 @@ func (rw *reviewWindow) updateScene() {
 	rw.scene.Target, rw.scene.Margin, rw.scene.Avoid = r.Target, r.Margin, r.Avoid3D
 	rw.scene.TargetStructure, rw.scene.AvoidStructures = r.TargetStructure, r.AvoidStructures
 	rw.scene.Holes, rw.scene.Outside = r.Holes3D, r.Outside3D
+	rw.scene.NotMonitored = r.NotMonitored3D
 	rw.selInfo.SetText("Showing the cumulative dose")
 	if rw.selected >= 0 && rw.selected < len(r.SonicationDose) && r.SonicationDose[rw.selected] != nil {
 		row := r.Sonications[rw.selected]

@@ -73,7 +73,9 @@ func legendSwatch(style swatchStyle, c color.RGBA) fyne.CanvasObject {
 	return container.NewCenter(r)
 }
 
-// pin fixes the probe at p and plots its temperature history.
+// pin fixes the probe at p and plots its temperature history. The
+// history is computed off the UI goroutine (the first pin of a case
+// computes the temperature of every sonication).
 func (rw *reviewWindow) pin(p dosemap.Vec3) {
 	rw.pinned = &p
 	rw.opt.Marker = &p
@@ -81,24 +83,38 @@ func (rw *reviewWindow) pin(p dosemap.Vec3) {
 	if rw.loaded == nil {
 		return
 	}
+	where := fmt.Sprintf("(%.1f, %.1f, %.1f) mm", p[0], p[1], p[2])
 	if rw.sess == nil {
-		rw.probeMsg.SetText("Pinned " + rw.describePoint(p) + ". The temperature history appears once the analysis has run.")
+		rw.probeMsg.SetText("Pinned " + where + ". The temperature history appears once the analysis has run.")
 		return
 	}
-	c, err := rw.sess.Probe(p, rw.settings)
-	if err != nil {
-		rw.probeMsg.SetText("Pinned " + fmt.Sprintf("(%.1f, %.1f, %.1f) mm", p[0], p[1], p[2]) + ": " + err.Error())
-		rw.probe.set(nil)
-		return
-	}
-	msg := rw.describePoint(p)
-	if math.IsNaN(c.LethalAt) {
-		msg += fmt.Sprintf(" · did not reach %s %s (final %s)", fmtNum(c.Threshold), c.Unit, fmtDose(c.FinalDose))
-	} else {
-		msg += fmt.Sprintf(" · reached %s %s at %.0f s (final %s)", fmtNum(c.Threshold), c.Unit, c.LethalAt, fmtDose(c.FinalDose))
-	}
-	rw.probeMsg.SetText(msg)
-	rw.probe.set(func() *plotPlot { return probePlot(c) })
+	rw.probeMsg.SetText("Pinned " + where + ": computing its temperature history…")
+	sess, set := rw.sess, rw.settings
+	rw.probeGen++
+	gen := rw.probeGen
+	go func() {
+		c, err := sess.Probe(p, set)
+		fyne.Do(func() {
+			defer rw.completed.Add(1)
+			if gen != rw.probeGen {
+				return
+			}
+			if err != nil {
+				rw.probeMsg.SetText("Pinned " + where + ": " + err.Error())
+				rw.probe.set(nil)
+				return
+			}
+			msg := rw.describePoint(p)
+			if math.IsNaN(c.LethalAt) {
+				msg += fmt.Sprintf(" · did not reach %s %s (final %s)", fmtNum(c.Threshold), c.Unit, fmtDose(c.FinalDose))
+			} else {
+				msg += fmt.Sprintf(" · reached %s %s at %.0f s (final %s)", fmtNum(c.Threshold), c.Unit, c.LethalAt, fmtDose(c.FinalDose))
+			}
+			rw.probeCurve = c
+			rw.probeMsg.SetText(msg)
+			rw.probe.set(func() *plotPlot { return probePlot(c) })
+		})
+	}()
 }
 
 // Sonication table columns.

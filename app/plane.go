@@ -31,24 +31,41 @@ func (k planeKind) String() string {
 // planeAxes returns the in-plane unit directions (u to the right, v
 // downwards on screen), the through-plane direction n, the number of
 // slices along n and their spacing, and the plane's extent along u and v in
-// mm, for kind on grid g. Reformats put the slice axis vertical with the
-// patient's superior side up when the stack runs along S/I.
+// mm, for kind on grid g. The acquisition plane keeps the grid's row and
+// column directions; the reformats take (row or column, slice normal), made
+// orthogonal, with the signs of the usual presentation (displayDown), as
+// the shared renderer and the report do.
 func planeAxes(g dosemap.Geometry, kind planeKind) (u, v, n dosemap.Vec3, slices int, step, width, height float64) {
 	switch kind {
-	case planeReformatRow:
-		v = g.Normal.Scale(-1)
-		if g.Normal[2] < 0 {
-			v = g.Normal
+	case planeReformatRow, planeReformatCol:
+		u, n, slices, step, width = g.Row, g.Col, g.Rows, g.Spacing[1], float64(g.Cols)*g.Spacing[0]
+		if kind == planeReformatCol {
+			u, n, slices, step, width = g.Col, g.Row, g.Cols, g.Spacing[0], float64(g.Rows)*g.Spacing[1]
 		}
-		return g.Row, v, g.Col, g.Rows, g.Spacing[1], float64(g.Cols) * g.Spacing[0], float64(g.Slices) * g.Spacing[2]
-	case planeReformatCol:
-		v = g.Normal.Scale(-1)
-		if g.Normal[2] < 0 {
-			v = g.Normal
-		}
-		return g.Col, v, g.Row, g.Cols, g.Spacing[0], float64(g.Rows) * g.Spacing[1], float64(g.Slices) * g.Spacing[2]
+		v = g.Normal.Sub(u.Scale(g.Normal.Dot(u))).Unit()
+		u, v = displayDown(u), displayDown(v)
+		// n is the grid axis that is not in the plane; the slice step is
+		// measured along it, so positions follow the grid's voxel centres.
+		return u, v, n, slices, step, width, float64(g.Slices) * g.Spacing[2] * math.Abs(g.Normal.Dot(v))
 	}
 	return g.Row, g.Col, g.Normal, g.Slices, g.Spacing[2], float64(g.Cols) * g.Spacing[0], float64(g.Rows) * g.Spacing[1]
+}
+
+// displayDown flips d so that it points towards patient left (+x),
+// posterior (+y) or inferior (-z), whichever axis dominates: the downward
+// (and rightward) directions of the usual axial, coronal and sagittal
+// presentations (common practice).
+func displayDown(d dosemap.Vec3) dosemap.Vec3 {
+	a := 0
+	for k := 1; k < 3; k++ {
+		if math.Abs(d[k]) > math.Abs(d[a]) {
+			a = k
+		}
+	}
+	if (a == 2 && d[2] > 0) || (a != 2 && d[a] < 0) {
+		return d.Scale(-1)
+	}
+	return d
 }
 
 // gridCentre returns the patient position of the centre of g.

@@ -23,6 +23,7 @@ type sceneLayers struct {
 	Threshold float64         // lethal threshold, Dose's unit
 	// Masks, each on its own grid (value >= 0.5 inside); nil when absent.
 	Target, Margin, Holes, Outside, Avoid *dosemap.Volume
+	NotMonitored                          *dosemap.Volume
 	TargetStructure                       *dosemap.Structure
 	AvoidStructures                       []*dosemap.Structure
 }
@@ -70,7 +71,10 @@ type displayOptions struct {
 // renderPlane composites one view. The review window uses the shared
 // renderer of the review packages when the build has it (see backend files);
 // renderPlaneBasic draws the same layers with plain per-pixel sampling.
-var renderPlane = renderPlaneBasic
+// cache holds the renderer's state between calls for one viewer.
+var renderPlane func(s *sceneLayers, t viewTransform, opt displayOptions, cache *any) *image.RGBA = func(s *sceneLayers, t viewTransform, opt displayOptions, _ *any) *image.RGBA {
+	return renderPlaneBasic(s, t, opt)
+}
 
 // doseWash maps a dose to the colourwash on a log scale from floor to
 // top: a blue–grey–yellow ramp of increasing lightness (after the

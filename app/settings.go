@@ -41,19 +41,25 @@ type analysisSettings struct {
 	B0         float64 `json:"b0_t"`        // tesla; 0: from the files
 	TEms       float64 `json:"te_ms"`       // ms; 0: from the files
 
+	Trials int `json:"trials"` // noise trials for the uncertainty band; 0: none
+
 	Excluded []int `json:"excluded,omitempty"` // sonication numbers left out
 }
 
-// defaultSettings returns the defaults the analysis package recommends; the
-// backend replaces it with the analysis package's own defaults.
-var defaultSettings = func() analysisSettings {
+// defaultSettings returns the defaults; the analysis backend replaces it
+// with one taking the analysis package's own defaults.
+var defaultSettings = builtinSettings
+
+// builtinSettings are the defaults of the window's own fields.
+func builtinSettings() analysisSettings {
 	return analysisSettings{
 		// 240 CEM43: Sapareto & Dewey 1984; McDannold et al., Radiology 2006.
 		Threshold: 240, MarginMM: 5, Model: "cem43",
 		// R = 0.5 at or above 43 °C, 0.25 below (Sapareto & Dewey 1984).
 		CEM43Break: 43, CEM43RAbove: 0.5, CEM43RBelow: 0.25,
 		// PRF coefficient -0.01 ppm/°C (Ishihara et al., MRM 1995, common practice).
-		PRFAlpha: -0.01, BodyTemp: 37, BaselineFrames: 3, Drift: "mean", DriftOrder: 1,
+		PRFAlpha: -0.01, BodyTemp: 37, BaselineFrames: 2, Drift: "mean", DriftOrder: 1,
+		Trials: 50,
 	}
 }
 
@@ -140,6 +146,9 @@ func (s analysisSettings) validate() error {
 		}
 	default:
 		return fmt.Errorf("unknown drift correction %q", s.Drift)
+	}
+	if s.Trials < 0 || s.Trials > 1000 {
+		return fmt.Errorf("noise trials %d are outside 0–1000", s.Trials)
 	}
 	if s.PhaseScale < 0 || s.B0 < 0 || s.TEms < 0 {
 		return fmt.Errorf("phase scale, B0 and TE must not be negative")
@@ -279,6 +288,9 @@ func showSettingsDialog(w fyne.Window, cur analysisSettings, note string, apply 
 	te := floatEntry(cur.TEms)
 	te.SetPlaceHolder("from the files")
 
+	trials := widget.NewEntry()
+	trials.SetText(strconv.Itoa(cur.Trials))
+
 	errLabel := widget.NewLabel("")
 	errLabel.Wrapping = fyne.TextWrapWord
 	errLabel.Importance = widget.DangerImportance
@@ -287,6 +299,7 @@ func showSettingsDialog(w fyne.Window, cur analysisSettings, note string, apply 
 		widget.NewFormItem("Lethal threshold", threshold),
 		widget.NewFormItem("Safety margin (mm)", margin),
 		widget.NewFormItem("Dose model", model),
+		widget.NewFormItem("Noise trials for the band (0: none)", trials),
 	)
 	thermo := widget.NewForm(
 		widget.NewFormItem("PRF coefficient α (ppm/°C)", alpha),
@@ -335,6 +348,9 @@ func showSettingsDialog(w fyne.Window, cur analysisSettings, note string, apply 
 		}
 		if s.BaselineFrames, err = strconv.Atoi(strings.TrimSpace(baseline.Text)); err != nil {
 			return s, fmt.Errorf("baseline frames: %q is not a whole number", baseline.Text)
+		}
+		if s.Trials, err = strconv.Atoi(strings.TrimSpace(trials.Text)); err != nil {
+			return s, fmt.Errorf("noise trials: %q is not a whole number", trials.Text)
 		}
 		if s.DriftOrder, err = strconv.Atoi(strings.TrimSpace(order.Text)); err != nil {
 			return s, fmt.Errorf("drift order: %q is not a whole number", order.Text)

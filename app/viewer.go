@@ -31,6 +31,7 @@ type sliceViewer struct {
 	panU      float64 // mm of the view centre from the plane centre along u
 	panV      float64
 	raster    *canvas.Raster
+	cache     any           // the renderer's state for this viewer
 	last      viewTransform // of the latest render, in raster pixels
 	lastSize  fyne.Size     // widget size at that render
 	dragWL    bool
@@ -146,7 +147,7 @@ func (v *sliceViewer) draw(w, h int) image.Image {
 	}
 	v.last = t
 	v.lastSize = v.Size()
-	return renderPlane(v.scene, t, *v.opt)
+	return renderPlane(v.scene, t, *v.opt, &v.cache)
 }
 
 // pointAt returns the patient position under widget position pos.

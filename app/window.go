@@ -26,21 +26,23 @@ type reviewWindow struct {
 	win fyne.Window
 
 	// Case state; touched only on the UI goroutine.
-	loaded    *loadedCase
-	hash      string
-	nFiles    int
-	record    *reviewRecord
-	settings  analysisSettings
-	sess      session
-	result    *analysisResult
-	selected  int // sonication row shown alone; -1 for the cumulative dose
-	pinned    *dosemap.Vec3
-	teaching  bool
-	scene     sceneLayers
-	opt       displayOptions
-	jobCancel context.CancelFunc
-	jobGen    int
-	active    *sliceViewer
+	loaded     *loadedCase
+	hash       string
+	nFiles     int
+	record     *reviewRecord
+	settings   analysisSettings
+	sess       session
+	result     *analysisResult
+	selected   int // sonication row shown alone; -1 for the cumulative dose
+	pinned     *dosemap.Vec3
+	teaching   bool
+	scene      sceneLayers
+	opt        displayOptions
+	jobCancel  context.CancelFunc
+	jobGen     int
+	probeGen   int
+	probeCurve *probeCurve
+	active     *sliceViewer
 
 	// completed counts finished background jobs (loads and analyses, with
 	// or without error); tests wait on it.
