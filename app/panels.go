@@ -256,18 +256,23 @@ func newMetricsPanel(rw *reviewWindow) *metricsPanel {
 	regionList := func(get func() []region) *widget.List {
 		l := widget.NewList(
 			func() int { return len(get()) },
-			func() fyne.CanvasObject { return widget.NewLabel("") },
+			func() fyne.CanvasObject {
+				head := widget.NewLabelWithStyle("", fyne.TextAlignLeading, fyne.TextStyle{Bold: true})
+				detail := widget.NewLabel("")
+				detail.Truncation = fyne.TextTruncateEllipsis
+				detail.Importance = widget.LowImportance
+				return container.NewVBox(head, detail)
+			},
 			func(id widget.ListItemID, o fyne.CanvasObject) {
 				rs := get()
 				if id >= len(rs) {
 					return
 				}
 				r := rs[id]
-				txt := fmt.Sprintf("%s  %.3f mL  at (%.0f, %.0f, %.0f) mm", r.Label, r.VolumeML, r.Centre[0], r.Centre[1], r.Centre[2])
-				if r.Detail != "" {
-					txt += "  " + r.Detail
-				}
-				o.(*widget.Label).SetText(txt)
+				box := o.(*fyne.Container)
+				box.Objects[0].(*widget.Label).SetText(fmt.Sprintf("%s   %.3f mL   at (%s, %s, %s) mm", r.Label, r.VolumeML,
+					fmtMM(r.Centre[0]), fmtMM(r.Centre[1]), fmtMM(r.Centre[2])))
+				box.Objects[1].(*widget.Label).SetText(r.Detail)
 			})
 		l.OnSelected = func(id widget.ListItemID) {
 			rs := get()
@@ -296,18 +301,23 @@ func newMetricsPanel(rw *reviewWindow) *metricsPanel {
 		return widget.NewLabelWithStyle(s, fyne.TextAlignLeading, fyne.TextStyle{Bold: true})
 	}
 	listBox := func(l *widget.List) fyne.CanvasObject {
-		return container.NewGridWrap(fyne.NewSize(420, 110), l)
+		return container.NewGridWrap(fyne.NewSize(440, 150), l)
 	}
 	m.box = container.NewVBox(
 		bold("Coverage of the target"), m.facts,
 		bold("Holes in the target (click to show)"), listBox(m.holes),
 		bold("Lethal dose outside the margin (click to show)"), listBox(m.outside),
 		bold("Avoid structures"), m.avoid,
-		m.dvh.raster, m.coverage.raster,
 		bold("Thermometry quality"), m.quality,
 		bold("Settings used"), m.used, m.hint,
 	)
-	m.content = container.NewVScroll(m.box)
+	plots := container.NewAppTabs(
+		container.NewTabItem("Target DVH", m.dvh.raster),
+		container.NewTabItem("Coverage vs threshold", m.coverage.raster),
+	)
+	split := container.NewVSplit(container.NewVScroll(m.box), plots)
+	split.SetOffset(0.58)
+	m.content = split
 	m.update()
 	return m
 }
@@ -375,6 +385,15 @@ func (m *metricsPanel) update() {
 	m.box.Refresh()
 }
 
+// fmtMM prints a coordinate in mm without a negative zero.
+func fmtMM(v float64) string {
+	s := fmt.Sprintf("%.0f", v)
+	if s == "-0" {
+		return "0"
+	}
+	return s
+}
+
 func sumML(rs []region) float64 {
 	var s float64
 	for _, r := range rs {
@@ -390,4 +409,33 @@ func (rw *reviewWindow) jumpTo(r region) {
 		rw.sliceChanged(n)
 	}
 	rw.status.SetText(fmt.Sprintf("Showing %s (%.3f mL) at (%.1f, %.1f, %.1f) mm", r.Label, r.VolumeML, r.Centre[0], r.Centre[1], r.Centre[2]))
+}
+
+// washBar shows the dose colourwash scale: floor to ceiling, log scale.
+type washBar struct {
+	content   fyne.CanvasObject
+	lo, hi    *widget.Label
+	floor, to float64
+}
+
+func newWashBar() *washBar {
+	b := &washBar{lo: widget.NewLabel(""), hi: widget.NewLabel("")}
+	bar := canvas.NewRasterWithPixels(func(x, _, w, _ int) color.Color {
+		if b.to <= b.floor || b.floor <= 0 {
+			return color.RGBA{0x30, 0x30, 0x34, 0xFF}
+		}
+		d := b.floor * math.Pow(b.to/b.floor, float64(x)/float64(max(w-1, 1)))
+		return washColour(d, b.floor, b.to)
+	})
+	bar.SetMinSize(fyne.NewSize(140, 12))
+	b.content = container.NewHBox(widget.NewLabel("dose (log)"), b.lo, container.NewCenter(bar), b.hi)
+	return b
+}
+
+// set shows the scale from floor to top in unit.
+func (b *washBar) set(floor, top float64, unit string) {
+	b.floor, b.to = floor, top
+	b.lo.SetText(fmtDose(floor))
+	b.hi.SetText(fmtDose(top) + " " + unit)
+	b.content.Refresh()
 }

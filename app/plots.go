@@ -4,6 +4,7 @@ package main
 
 import (
 	"image"
+	stddraw "image/draw"
 	"image/color"
 	"math"
 
@@ -65,10 +66,15 @@ func (pv *plotView) draw(w, h int) image.Image {
 // renderPlotImage draws p into a w×h image; scale enlarges text and lines
 // on high-density screens.
 func renderPlotImage(p *plot.Plot, w, h int, scale float64) *image.RGBA {
-	img := image.NewRGBA(image.Rect(0, 0, w, h))
-	dpi := 96 * scale
-	c := vgimg.NewWith(vgimg.UseImage(img), vgimg.UseDPI(int(dpi)))
+	dpi := int(96 * scale)
+	c := vgimg.NewWith(vgimg.UseWH(vg.Length(w)/vg.Length(dpi)*vg.Inch, vg.Length(h)/vg.Length(dpi)*vg.Inch),
+		vgimg.UseDPI(dpi), vgimg.UseBackgroundColor(plotBackground))
 	p.Draw(draw.New(c))
+	if img, ok := c.Image().(*image.RGBA); ok {
+		return img
+	}
+	img := image.NewRGBA(c.Image().Bounds())
+	stddraw.Draw(img, img.Bounds(), c.Image(), image.Point{}, stddraw.Src)
 	return img
 }
 
@@ -98,7 +104,11 @@ func newStyledPlot(title, xLabel, yLabel string) *plot.Plot {
 	p.Y.Label.Text = yLabel
 	p.Legend.TextStyle.Color = plotInk
 	p.Legend.TextStyle.Font = font.From(font.Font{Typeface: "Liberation", Variant: "Sans"}, 8)
-	p.Legend.Top = true
+	p.Legend.Top = false
+	p.Legend.Left = true
+	p.Legend.XOffs = vg.Points(40)
+	p.Legend.YOffs = vg.Points(8)
+	p.Title.Padding = vg.Points(6)
 	g := plotter.NewGrid()
 	g.Vertical.Color = plotGrid
 	g.Horizontal.Color = plotGrid
@@ -153,8 +163,23 @@ func dvhPlot(r *analysisResult) *plot.Plot {
 	}
 	p.X.Scale = plot.LogScale{}
 	p.X.Tick.Marker = plot.LogTicks{Prec: -1}
-	addLine(p, pts, review.ColorTarget, vg.Points(2), nil, "target")
-	addVLine(p, r.Threshold, 0, 100, plotGuide, []vg.Length{vg.Points(4), vg.Points(3)}, "threshold "+fmtNum(r.Threshold))
+	// Show from a hundredth of the threshold to twice the highest dose
+	// any part of the target received.
+	lo, hi := r.Threshold/100, r.Threshold*10
+	for _, q := range pts {
+		if q.Y > 0 && q.X*2 > hi {
+			hi = q.X * 2
+		}
+	}
+	var shown plotter.XYs
+	for _, q := range pts {
+		if q.X >= lo && q.X <= hi {
+			shown = append(shown, q)
+		}
+	}
+	addLine(p, shown, review.ColorTarget, vg.Points(2), nil, "target")
+	addVLine(p, r.Threshold, 0, 100, plotGuide, []vg.Length{vg.Points(4), vg.Points(3)}, "threshold "+fmtNum(r.Threshold)+" "+r.Unit)
+	p.X.Min, p.X.Max = lo, hi
 	p.Y.Min, p.Y.Max = 0, 100
 	return p
 }
@@ -170,7 +195,7 @@ func coveragePlot(r *analysisResult) *plot.Plot {
 	p.X.Scale = plot.LogScale{}
 	p.X.Tick.Marker = plot.LogTicks{Prec: -1}
 	addLine(p, pts, review.ColorMargin, vg.Points(2), nil, "covered")
-	addVLine(p, r.Threshold, 0, 100, plotGuide, []vg.Length{vg.Points(4), vg.Points(3)}, "in use "+fmtNum(r.Threshold))
+	addVLine(p, r.Threshold, 0, 100, plotGuide, []vg.Length{vg.Points(4), vg.Points(3)}, "in use "+fmtNum(r.Threshold)+" "+r.Unit)
 	p.Y.Min, p.Y.Max = 0, 100
 	return p
 }

@@ -101,6 +101,13 @@ func doseWash(d, floor, top float64) (color.RGBA, bool) {
 	}, true
 }
 
+// washColour is the colour of dose d in the wash legend; it follows
+// renderPlane.
+var washColour = func(d, floor, top float64) color.RGBA {
+	c, _ := doseWash(d, floor, top)
+	return c
+}
+
 // washTop is the dose drawn at full colour: eight times the threshold.
 func washTop(threshold float64) float64 { return 8 * threshold }
 

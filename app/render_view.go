@@ -4,6 +4,7 @@ package main
 
 import (
 	"image"
+	"image/color"
 	"math"
 
 	"dosecover/review/view"
@@ -13,6 +14,7 @@ import (
 // used by the report, so the window and the report draw alike.
 func init() {
 	renderPlane = renderPlaneShared
+	washColour = washColourShared
 }
 
 // renderPlaneShared draws the display of transform t as a plane of its
@@ -72,4 +74,9 @@ func renderPlaneShared(s *sceneLayers, t viewTransform, opt displayOptions, cach
 		return renderPlaneBasic(s, t, opt)
 	}
 	return img
+}
+
+// washColour is the colour of dose d on the shared renderer's wash.
+func washColourShared(d, floor, top float64) color.RGBA {
+	return view.Colormap(view.DoseScale{Floor: floor, Ceiling: top, Opacity: 1}.T(d))
 }

@@ -65,6 +65,7 @@ type reviewWindow struct {
 	opacity    *widget.Slider
 	floorEntry *widget.Entry
 
+	washBar  *washBar
 	metrics  *metricsPanel
 	sonTable *widget.Table
 	probe    *plotView
@@ -143,6 +144,7 @@ func (rw *reviewWindow) build() {
 	views := container.NewStack(container.NewGridWithColumns(2, viewPane(0), viewPane(1)),
 		container.NewCenter(container.NewGridWrap(fyne.NewSize(560, 110), rw.notice)))
 
+	rw.washBar = newWashBar()
 	rw.opacity = widget.NewSlider(0, 1)
 	rw.opacity.Step = 0.05
 	rw.opacity.Value = rw.opt.Opacity
@@ -175,6 +177,7 @@ func (rw *reviewWindow) build() {
 		widget.NewLabel("Wash opacity"), container.NewGridWrap(fyne.NewSize(120, 36), rw.opacity),
 		widget.NewLabel("Floor"), container.NewGridWrap(fyne.NewSize(80, 36), rw.floorEntry),
 		showDose, showCont, showHoles, resetWL, zoomOut, zoomIn, zoomFit,
+		widget.NewSeparator(), rw.washBar.content,
 	)
 	legend := legendRow()
 
@@ -373,7 +376,11 @@ func (rw *reviewWindow) applyFloor() {
 	if err := parseFloatField("floor", rw.floorEntry.Text, &f); err != nil || f <= 0 {
 		f = defaultFloor(rw.result.Threshold)
 	}
+	if top := washTop(rw.result.Threshold); f >= top/2 {
+		f = top / 2
+	}
 	rw.opt.Floor = f
+	rw.washBar.set(f, washTop(rw.result.Threshold), rw.result.Unit)
 	rw.redraw()
 }
 
