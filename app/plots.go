@@ -4,8 +4,8 @@ package main
 
 import (
 	"image"
-	stddraw "image/draw"
 	"image/color"
+	stddraw "image/draw"
 	"math"
 
 	"dosecover/review"
