@@ -99,6 +99,7 @@ type analysisResult struct {
 	DVH            []xy // dose (unit) -> fraction of target receiving at least that dose
 	CoverageVsThr  []xy // threshold (unit) -> covered fraction
 	Sonications    []sonicationRow
+	Raw            any // the analysis package's own result, for exports
 	QualityNotes   []string
 	Dose           *dosemap.Volume   // cumulative dose of the included sonications
 	PeakTemp       *dosemap.Volume   // highest temperature of the included sonications, °C (nil unknown)

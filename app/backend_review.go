@@ -82,6 +82,7 @@ func (ss *reviewSession) Analyze(ctx context.Context, s analysisSettings) (*anal
 		Holes3D: r.HoleLabels, Outside3D: r.SpillLabels,
 		TargetStructure: ss.c.Target(),
 		QualityNotes:    append([]string(nil), r.Warnings...),
+		Raw:             r,
 	}
 	for n := range ss.c.Structures {
 		if st := &ss.c.Structures[n]; st.Role == dosemap.RoleAvoid {

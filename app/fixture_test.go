@@ -10,6 +10,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 	"time"
 
@@ -142,6 +143,18 @@ func TestPreviewLayout(t *testing.T) {
 	}
 	rw.pin(dosemap.Vec3{0, 0, 0})
 	writePNG(t, out, rw.win.Canvas().Capture())
+	rw.showAbout()
+	writePNG(t, strings.TrimSuffix(out, ".png")+"-about.png", rw.win.Canvas().Capture())
+	for _, o := range rw.win.Canvas().Overlays().List() {
+		rw.win.Canvas().Overlays().Remove(o)
+	}
+	rw.showShortcuts()
+	writePNG(t, strings.TrimSuffix(out, ".png")+"-keys.png", rw.win.Canvas().Capture())
+	for _, o := range rw.win.Canvas().Overlays().List() {
+		rw.win.Canvas().Overlays().Remove(o)
+	}
+	rw.openSettings()
+	writePNG(t, strings.TrimSuffix(out, ".png")+"-settings.png", rw.win.Canvas().Capture())
 	_ = context.Background
 }
 

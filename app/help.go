@@ -19,7 +19,7 @@ const methodsText = `Methods
 • Thermal dose as cumulative equivalent minutes at 43 °C: CEM43 = Σ R^(43−T)·Δt, R = 0.5 at or above 43 °C, 0.25 below (Sapareto & Dewey, Int J Radiat Oncol Biol Phys 1984). Optional Arrhenius damage integral Ω = A ∫ exp(−Ea/RT) dt (Henriques & Moritz 1947).
 • Coverage: fraction of the target at or above the lethal threshold; holes are connected uncovered regions of the target; lethal dose outside the target grown by the margin is reported as clusters. Dose–volume metrics D98/D50/D2 after ICRU Report 83. The noise band repeats the dose calculation with seeded Gaussian temperature noise.
 • Geometry in DICOM patient coordinates (LPS), DICOM PS3.3 C.7.6.2.1.1.
-• Colours from the Okabe–Ito set (2008); dose colourwash after "cividis" (Nuñez et al., PLoS ONE 2018).`
+• Overlay colours from the Okabe–Ito set (2008); dose colourwash "viridis" (van der Walt, Smith & Firing, 2015) on a log scale.`
 
 // showAbout shows version, methods, sources and cautions.
 func (rw *reviewWindow) showAbout() {
