@@ -156,10 +156,20 @@ func (rw *reviewWindow) openCase(dir string) {
 				setting = rec.Settings
 			}
 			progress("Reading "+base+"…", 0.05)
+			// The reader reports two passes (attributes, then pixel data),
+			// each from zero: a drop in done starts the second.
+			pass, last := 0, -1
 			lc, err = readCase(ctx, dir, loadOptions{PhaseScale: setting.PhaseScale}, func(done, total int) {
-				if total > 0 {
-					progress(fmt.Sprintf("Reading %s: %d of %d files", base, done, total), 0.05+0.45*float64(done)/float64(total))
+				if total <= 0 {
+					return
 				}
+				if done < last && pass == 0 {
+					pass = 1
+				}
+				last = done
+				what := [2]string{"attributes", "images"}[pass]
+				progress(fmt.Sprintf("Reading %s (%s): %d of %d files", base, what, done, total),
+					0.05+0.225*(float64(pass)+float64(done)/float64(total)))
 			})
 		}
 		fyne.Do(func() {
@@ -199,7 +209,12 @@ func (rw *reviewWindow) caseLoaded(lc *loadedCase, hash string, nFiles int, rec 
 	rw.probeMsg.SetText("Click a point on an image to pin it and plot its temperature over the session.")
 	c := lc.Case
 	rw.opt.WindowCentre, rw.opt.WindowWidth = defaultWindow(c)
-	rw.scene = sceneLayers{Anatomy: c.Anatomy}
+	rw.scene = sceneLayers{Anatomy: c.Anatomy, TargetStructure: c.Target()}
+	for n := range c.Structures {
+		if st := &c.Structures[n]; st.Role == dosemap.RoleAvoid {
+			rw.scene.AvoidStructures = append(rw.scene.AvoidStructures, st)
+		}
+	}
 	rw.setViewGrid()
 	rw.metrics.update()
 	rw.sonTable.Refresh()

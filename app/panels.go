@@ -301,7 +301,7 @@ func newMetricsPanel(rw *reviewWindow) *metricsPanel {
 		return widget.NewLabelWithStyle(s, fyne.TextAlignLeading, fyne.TextStyle{Bold: true})
 	}
 	listBox := func(l *widget.List) fyne.CanvasObject {
-		return container.NewGridWrap(fyne.NewSize(440, 150), l)
+		return container.NewGridWrap(fyne.NewSize(380, 150), l)
 	}
 	m.box = container.NewVBox(
 		bold("Coverage of the target"), m.facts,
@@ -427,8 +427,8 @@ func newWashBar() *washBar {
 		d := b.floor * math.Pow(b.to/b.floor, float64(x)/float64(max(w-1, 1)))
 		return washColour(d, b.floor, b.to)
 	})
-	bar.SetMinSize(fyne.NewSize(140, 12))
-	b.content = container.NewHBox(widget.NewLabel("dose (log)"), b.lo, container.NewCenter(bar), b.hi)
+	bar.SetMinSize(fyne.NewSize(120, 12))
+	b.content = container.NewHBox(widget.NewLabel("Dose (log)"), b.lo, container.NewCenter(bar), b.hi)
 	return b
 }
 

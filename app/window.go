@@ -137,9 +137,14 @@ func (rw *reviewWindow) build() {
 	rw.active = rw.viewers[0]
 
 	viewPane := func(n int) fyne.CanvasObject {
-		head := container.NewBorder(nil, nil, container.NewGridWrap(fyne.NewSize(250, 36), rw.planeSel[n]),
-			container.NewGridWrap(fyne.NewSize(130, 36), rw.sliceInfo[n]))
-		return container.NewBorder(head, rw.sliders[n], nil, nil, rw.viewers[n])
+		v := rw.viewers[n]
+		zoomIn := widget.NewButtonWithIcon("", theme.ZoomInIcon(), func() { v.zoomBy(1.25) })
+		zoomOut := widget.NewButtonWithIcon("", theme.ZoomOutIcon(), func() { v.zoomBy(0.8) })
+		zoomFit := widget.NewButtonWithIcon("", theme.ZoomFitIcon(), v.resetView)
+		head := container.NewBorder(nil, nil,
+			container.NewHBox(container.NewGridWrap(fyne.NewSize(230, 36), rw.planeSel[n]), zoomOut, zoomIn, zoomFit),
+			container.NewGridWrap(fyne.NewSize(120, 36), rw.sliceInfo[n]))
+		return container.NewBorder(head, rw.sliders[n], nil, nil, v)
 	}
 	views := container.NewStack(container.NewGridWithColumns(2, viewPane(0), viewPane(1)),
 		container.NewCenter(container.NewGridWrap(fyne.NewSize(560, 110), rw.notice)))
@@ -164,19 +169,12 @@ func (rw *reviewWindow) build() {
 	showHoles := widget.NewCheck("Holes & spill", func(b bool) { rw.opt.ShowHoles = b; rw.redraw() })
 	showHoles.SetChecked(true)
 	resetWL := widget.NewButton("Reset window", rw.resetWindow)
-	zoomIn := widget.NewButtonWithIcon("", theme.ZoomInIcon(), func() { rw.active.zoomBy(1.25) })
-	zoomOut := widget.NewButtonWithIcon("", theme.ZoomOutIcon(), func() { rw.active.zoomBy(0.8) })
-	zoomFit := widget.NewButtonWithIcon("", theme.ZoomFitIcon(), func() {
-		for _, v := range rw.viewers {
-			v.resetView()
-		}
-	})
 	rw.selInfo = widget.NewLabel("Showing the cumulative dose")
 	cumul := widget.NewButton("Cumulative", func() { rw.selectSonication(-1) })
 	display := container.NewHBox(
-		widget.NewLabel("Wash opacity"), container.NewGridWrap(fyne.NewSize(120, 36), rw.opacity),
-		widget.NewLabel("Floor"), container.NewGridWrap(fyne.NewSize(80, 36), rw.floorEntry),
-		showDose, showCont, showHoles, resetWL, zoomOut, zoomIn, zoomFit,
+		widget.NewLabel("Opacity"), container.NewGridWrap(fyne.NewSize(110, 36), rw.opacity),
+		widget.NewLabel("Floor"), container.NewGridWrap(fyne.NewSize(76, 36), rw.floorEntry),
+		showDose, showCont, showHoles, resetWL,
 		widget.NewSeparator(), rw.washBar.content,
 	)
 	legend := legendRow()
@@ -218,7 +216,7 @@ func (rw *reviewWindow) build() {
 			widget.NewButtonWithIcon("", theme.InfoIcon(), rw.showAbout)),
 		container.NewHBox(widget.NewSeparator(), rw.title, rw.identity))
 	statusBar := container.NewBorder(nil, nil, nil,
-		container.NewHBox(container.NewGridWrap(fyne.NewSize(220, 30), rw.progress), rw.cancelBtn),
+		container.NewHBox(container.NewGridWrap(fyne.NewSize(200, 30), rw.progress), rw.cancelBtn),
 		container.NewGridWithColumns(2, rw.hover, rw.status))
 	rw.win.SetContent(container.NewBorder(header, statusBar, nil, nil, main))
 	rw.showNotice("Open a case folder (File ▸ Open folder…, or drop a folder on this window).")
