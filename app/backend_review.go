@@ -174,7 +174,7 @@ func qualityFlags(q review.SonicationQuality) []string {
 		f = append(f, fmt.Sprintf("drift up to %.2f °C", q.MaxDriftC))
 	}
 	if q.MaxMotion > 0 {
-		f = append(f, fmt.Sprintf("motion up to %.2g (1 − correlation)", q.MaxMotion))
+		f = append(f, fmt.Sprintf("motion up to %.2g (1 − magnitude correlation)", q.MaxMotion))
 	}
 	return f
 }
