@@ -135,6 +135,10 @@ type session interface {
 	Analyze(ctx context.Context, s analysisSettings) (*analysisResult, error)
 	// Probe returns the temperature history at patient position p.
 	Probe(p dosemap.Vec3, s analysisSettings) (*probeCurve, error)
+	// PeakTemperature returns the highest temperature of every voxel over
+	// the included sonications (°C, NaN where never valid), on the
+	// thermometry grid; nil when the case has no temperatures.
+	PeakTemperature(s analysisSettings) (*dosemap.Volume, error)
 }
 
 // Hooks filled by the backend files.

@@ -415,3 +415,42 @@ func mean3x3(g dosemap.Geometry, fr []float32, i, j, k int) float64 {
 	}
 	return s / float64(n)
 }
+
+// PeakTemperature implements session.
+func (ss *reviewSession) PeakTemperature(s analysisSettings) (*dosemap.Volume, error) {
+	series, err := ss.temperatures(s)
+	if err != nil {
+		return nil, err
+	}
+	ex := s.excludedSet()
+	var peak *dosemap.Volume
+	for n, ts := range series {
+		if ts == nil || ex[ss.c.Sonications[n].Number] {
+			continue
+		}
+		v := &dosemap.Volume{Geometry: ts.Geometry, Data: make([]float32, ts.Geometry.Len())}
+		for i := range v.Data {
+			v.Data[i] = float32(math.NaN())
+		}
+		for _, fr := range ts.Frames {
+			for i, x := range fr {
+				if x == x && !(v.Data[i] >= x) {
+					v.Data[i] = x
+				}
+			}
+		}
+		if peak == nil {
+			peak = v
+			continue
+		}
+		if !v.Geometry.SameGrid(peak.Geometry, 0.01) {
+			v = dosemap.Resample(v, peak.Geometry)
+		}
+		for i, x := range v.Data {
+			if x == x && !(peak.Data[i] >= x) {
+				peak.Data[i] = x
+			}
+		}
+	}
+	return peak, nil
+}

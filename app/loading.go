@@ -28,6 +28,7 @@ func (rw *reviewWindow) openDemo() {
 	go func() {
 		dir, err := demoCaseDir()
 		fyne.Do(func() {
+			defer rw.completed.Add(1)
 			if !rw.finishJob(gen) || ctx.Err() != nil {
 				return
 			}
@@ -173,6 +174,7 @@ func (rw *reviewWindow) openCase(dir string) {
 			})
 		}
 		fyne.Do(func() {
+			defer rw.completed.Add(1)
 			if !rw.finishJob(gen) {
 				return
 			}
@@ -334,6 +336,7 @@ func (rw *reviewWindow) runAnalysis(prepare bool) {
 			res, err = sess.Analyze(ctx, set)
 		}
 		fyne.Do(func() {
+			defer rw.completed.Add(1)
 			if !rw.finishJob(gen) {
 				return
 			}
@@ -373,6 +376,7 @@ func (rw *reviewWindow) showResult(res *analysisResult) {
 	if rw.pinned != nil {
 		rw.pin(*rw.pinned)
 	}
+	rw.startPeakTemperature(res)
 	if rw.record != nil {
 		rw.record.Settings = rw.settings
 		if !rw.teaching && rw.loaded != nil {
@@ -475,4 +479,24 @@ func sortInts(s []int) {
 			s[j], s[j-1] = s[j-1], s[j]
 		}
 	}
+}
+
+// startPeakTemperature computes the peak temperature map for the hover
+// readout off the UI goroutine (the first time it recomputes the
+// temperature of every sonication, which also makes the probe instant).
+func (rw *reviewWindow) startPeakTemperature(res *analysisResult) {
+	sess, set := rw.sess, rw.settings
+	if sess == nil {
+		return
+	}
+	go func() {
+		v, err := sess.PeakTemperature(set)
+		fyne.Do(func() {
+			defer rw.auxDone.Add(1)
+			if rw.result != res || err != nil {
+				return
+			}
+			res.PeakTemp = v
+		})
+	}()
 }

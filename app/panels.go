@@ -95,7 +95,7 @@ func (rw *reviewWindow) pin(p dosemap.Vec3) {
 	go func() {
 		c, err := sess.Probe(p, set)
 		fyne.Do(func() {
-			defer rw.completed.Add(1)
+			defer rw.auxDone.Add(1)
 			if gen != rw.probeGen {
 				return
 			}

@@ -47,6 +47,7 @@ type reviewWindow struct {
 	// completed counts finished background jobs (loads and analyses, with
 	// or without error); tests wait on it.
 	completed atomic.Int64
+	auxDone   atomic.Int64 // finished probe and peak-temperature computations
 
 	viewers   [2]*sliceViewer
 	sliders   [2]*widget.Slider
@@ -494,8 +495,8 @@ func (rw *reviewWindow) startJob() (context.Context, int) {
 
 // finishJob ends job gen; it reports false for a superseded job, whose
 // result must be dropped.
+// The caller counts the job in completed when its callback is done.
 func (rw *reviewWindow) finishJob(gen int) bool {
-	defer rw.completed.Add(1)
 	if gen != rw.jobGen {
 		return false
 	}
