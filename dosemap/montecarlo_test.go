@@ -42,7 +42,7 @@ func TestMonteCarloLognormalMoments(t *testing.T) {
 	// 200 voxels × 100 trials (rectangle rule: n = 60 equal terms): the
 	// standard error of the mean is ≈ 0.4 % (CV 0.53 over 20000 shared
 	// draws), that of the CV about 1.5 %; tolerances 1.5 % and 6 %.
-	// Independent frames would give a CV of 0.08: the test tells them apart.
+	// Independent frames would give a CV of 0.10: the test tells them apart.
 	const nv, n = 200, 60
 	temps := make([]float32, nv)
 	for v := range temps {
