@@ -313,6 +313,7 @@ type thermo struct {
 	baseMag []float32 // baseline mean magnitude (nil without magnitude)
 	magThr  float32   // absolute magnitude threshold
 	noise   []float64 // per-slice magnitude noise σ (nil when unknown)
+	pass    []float32 // stand-in magnitudes for phase-only series
 	out     *TemperatureSeries
 }
 
@@ -502,26 +503,44 @@ func (t *thermo) unwrap() {
 		}
 		thr := t.magThr
 		wraps := 0
+		// Equal lengths let the compiler drop the bounds checks.
+		ref, lastf, turnsf, outf := t.ref[:len(ph)], last[:len(ph)], turns[:len(ph)], out[:len(ph)]
+		if mf == nil {
+			mf = t.noMagnitude(len(ph))
+		}
+		mf = mf[:len(ph)]
 		for n, v := range ph {
-			r := t.ref[n]
-			if v != v || r != r || (mf != nil && !(mf[n] >= thr)) {
-				out[n] = nan
+			r := ref[n]
+			if v != v || r != r || !(mf[n] >= thr) {
+				outf[n] = nan
 				continue
 			}
 			w := wrapPhase(float64(v) - r)
 			// Nearest turn count: floor by truncation after an offset of
 			// 2^20 turns (phase changes of a million turns do not occur).
-			k := float64(int64((float64(last[n])-w)*invTwoPi+0.5+1<<20)) - 1<<20
+			k := float64(int64((float64(lastf[n])-w)*invTwoPi+0.5+1<<20)) - 1<<20
 			u := w + twoPi*k
-			if int32(k) != turns[n] {
+			if int32(k) != turnsf[n] {
 				wraps++
-				turns[n] = int32(k)
+				turnsf[n] = int32(k)
 			}
-			last[n] = float32(u)
-			out[n] = float32(u)
+			lastf[n] = float32(u)
+			outf[n] = float32(u)
 		}
 		q.Wraps = wraps
 	}
+}
+
+// noMagnitude returns n magnitudes of +Inf, which pass every magnitude check (for
+// phase-only series), cached.
+func (t *thermo) noMagnitude(n int) []float32 {
+	if len(t.pass) != n {
+		t.pass = make([]float32, n)
+		for i := range t.pass {
+			t.pass[i] = float32(math.Inf(1))
+		}
+	}
+	return t.pass
 }
 
 // toTemperature converts the phase frames into °C and fills the counts.
