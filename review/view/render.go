@@ -26,7 +26,7 @@ type Scene struct {
 	// the Lethal isoline of Dose: pass the analysis' own lethal mask so the
 	// picture shows exactly the region its figures count.
 	LethalRegion Region
-	Isodoses     []float64 // further isodose levels, drawn thin in their wash colour
+	Isodoses     []float64 // further isodose levels: thin light grey lines, labelled
 	HideWash     bool      // draw the isolines without the colourwash
 
 	Target, Margin Region   // solid and dashed outlines
@@ -308,12 +308,31 @@ func (r *Renderer) Render(s *Scene, v View, dst *image.RGBA) (*image.RGBA, error
 
 	cv := newCanvas(dst, r.scratch)
 	r.scratch = cv.cov
-	// Isodoses in their wash colour.
+	// Isodoses: thin light lines, each labelled with its level where it
+	// reaches furthest right on screen (labels drawn after all lines).
+	type isoLabel struct {
+		text string
+		x, y int
+	}
+	var labels []isoLabel
 	for n, lines := range r.isos {
-		c := Colormap(sc.T(s.Isodoses[n]))
 		for _, l := range lines {
-			cv.stroke(r.display(p, v, l.Pixels), l.Closed, st.Isodose, Solid, c)
+			d := r.display(p, v, l.Pixels)
+			cv.stroke(d, l.Closed, st.Isodose, Solid, isodoseColor)
+			best := -1
+			for m, q := range d {
+				if q.X >= 4 && q.Y >= 10 && q.X < float64(v.Width)-30 && q.Y < float64(v.Height)-10 &&
+					(best < 0 || q.X > d[best].X) {
+					best = m
+				}
+			}
+			if best >= 0 && len(d) >= 8 {
+				labels = append(labels, isoLabel{formatDose(s.Isodoses[n]), int(d[best].X), int(d[best].Y)})
+			}
 		}
+	}
+	for _, l := range labels {
+		drawText(dst, l.text, math.Max(11, labelSize(v)-3), l.x, l.y, anchorCentre, isodoseColor)
 	}
 	r.outline(cv, p, v, s.Margin, st.Margin, Dashed, review.ColorMargin)
 	r.outline(cv, p, v, s.Target, st.Target, Solid, review.ColorTarget)

@@ -212,3 +212,34 @@ func TestLabelMasks(t *testing.T) {
 		}
 	}
 }
+
+// TestLevelLine: a further isoline of a volume (here r² at 100 mm², a
+// circle of 10 mm) is drawn in its colour on the circle and nowhere near
+// the centre.
+func TestLevelLine(t *testing.T) {
+	g := dosemap.NewAxialGeometry(41, 41, 1, dosemap.Vec3{1, 1, 1}, dosemap.Vec3{-20, -20, 0})
+	f := dosemap.NewVolume(g)
+	for n := range f.Data {
+		i, j, _ := g.IJK(n)
+		q := g.Point(float64(i), float64(j), 0)
+		f.Data[n] = float32(q[0]*q[0] + q[1]*q[1])
+	}
+	p := AcquisitionPlane(g, 0)
+	col := color.RGBA{0x10, 0xE0, 0x30, 0xFF}
+	s := &Scene{Plane: p, Lines: []LevelLine{{Volume: f, Level: 100, Color: col, Width: 3}}}
+	v := FitView(p, 410, 410) // 10 display pixels per mm
+	img, err := Render(s, v)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, a := range []float64{0, 1, 2, 3, 4, 5} {
+		x, y := v.ToDisplay(p, func() Point { x, y := p.Pixel(dosemap.Vec3{10 * math.Cos(a), 10 * math.Sin(a), 0}); return Point{x, y} }())
+		if got := img.RGBAAt(int(x), int(y)); absDiff(got.G, col.G) > 40 || absDiff(got.R, col.R) > 40 {
+			t.Errorf("angle %g: pixel %v on the circle, want about %v", a, got, col)
+		}
+	}
+	cx, cy := v.ToDisplay(p, Point{20, 20})
+	if got := img.RGBAAt(int(cx), int(cy)); got.G > 30 {
+		t.Errorf("centre pixel %v, want background", got)
+	}
+}
