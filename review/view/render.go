@@ -88,6 +88,8 @@ type Renderer struct {
 	samples map[*dosemap.Volume][]float32 // extra volumes on the plane
 	levels  map[levelKey][]Polyline       // their isolines
 	doseBox image.Rectangle               // plane pixels with positive dose
+	auto    Window                        // AutoWindow of autoFor
+	autoFor *dosemap.Volume
 	cols    []column
 	scratch []uint8
 	pts     []Point
@@ -121,6 +123,7 @@ func NewRenderer() *Renderer {
 func (r *Renderer) Invalidate() {
 	r.key = cacheKey{}
 	r.samples, r.levels = nil, nil
+	r.autoFor = nil
 	r.fields = map[regionID]*regionField{}
 	r.binary = nil
 }
@@ -290,7 +293,10 @@ func (r *Renderer) Render(s *Scene, v View, dst *image.RGBA) (*image.RGBA, error
 	r.prepare(s, sc)
 	win := s.Window
 	if win.Width == 0 && s.Anatomy != nil {
-		win = AutoWindow(s.Anatomy)
+		if r.autoFor != s.Anatomy {
+			r.auto, r.autoFor = AutoWindow(s.Anatomy), s.Anatomy
+		}
+		win = r.auto
 	}
 	st := r.Style
 	r.base(dst, s, v, win, sc)
