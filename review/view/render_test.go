@@ -243,3 +243,42 @@ func TestLevelLine(t *testing.T) {
 		t.Errorf("centre pixel %v, want background", got)
 	}
 }
+
+// TestRenderOddInputs: malformed or degenerate inputs render (possibly
+// empty) pictures without panicking: a volume whose data does not match its
+// grid, structures with too few or collinear points, a plane far from
+// every volume, one-pixel views, extreme zoom and a one-voxel volume.
+func TestRenderOddInputs(t *testing.T) {
+	g := dosemap.NewAxialGeometry(10, 10, 2, dosemap.Vec3{1, 1, 1}, dosemap.Vec3{})
+	bad := &dosemap.Volume{Geometry: g, Data: make([]float32, 7)}
+	tiny := dosemap.NewVolume(dosemap.NewAxialGeometry(1, 1, 1, dosemap.Vec3{1, 1, 1}, dosemap.Vec3{})).Fill(300)
+	odd := &dosemap.Structure{Contours: []dosemap.Contour{
+		{Points: []dosemap.Vec3{{0, 0, 0}, {1, 0, 0}}},
+		{Points: []dosemap.Vec3{{0, 0, 0}, {1, 1, 0}, {2, 2, 0}}},
+		{},
+	}}
+	p := AcquisitionPlane(g, 0)
+	far := p
+	far.Origin = dosemap.Vec3{0, 0, 1e4}
+	for _, c := range []struct {
+		name string
+		s    Scene
+		v    View
+	}{
+		{"bad volumes", Scene{Plane: p, Anatomy: bad, Dose: bad, Lethal: 240, Margin: Region{Mask: bad}}, FitView(p, 50, 50)},
+		{"odd structure", Scene{Plane: p, Target: Region{Structure: odd}, Avoid: []Region{{Structure: &dosemap.Structure{}}}}, FitView(p, 50, 50)},
+		{"far plane", Scene{Plane: far, Anatomy: tiny, Dose: tiny, Lethal: 240, Annotations: true}, FitView(far, 64, 64)},
+		{"one pixel", Scene{Plane: p, Anatomy: tiny, Annotations: true, Caption: "x"}, FitView(p, 1, 1)},
+		{"extreme zoom", Scene{Plane: p, Anatomy: tiny, Dose: tiny, Lethal: 100, Annotations: true}, FitView(p, 64, 64).ZoomAt(p, 3, 3, 1e5)},
+		{"one voxel", Scene{Plane: AcquisitionPlane(tiny.Geometry, 0), Anatomy: tiny, Dose: tiny, Lethal: 100, Target: Region{Mask: tiny}}, FitView(AcquisitionPlane(tiny.Geometry, 0), 32, 32)},
+	} {
+		img, err := Render(&c.s, c.v)
+		if err != nil {
+			t.Errorf("%s: %v", c.name, err)
+			continue
+		}
+		if img.Rect.Dx() != c.v.Width || img.Rect.Dy() != c.v.Height {
+			t.Errorf("%s: image %v for a %d×%d view", c.name, img.Rect, c.v.Width, c.v.Height)
+		}
+	}
+}
