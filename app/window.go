@@ -48,6 +48,7 @@ type reviewWindow struct {
 	// or without error); tests wait on it.
 	completed atomic.Int64
 	auxDone   atomic.Int64 // finished probe and peak-temperature computations
+	exported  atomic.Int64 // finished report exports
 
 	viewers   [2]*sliceViewer
 	sliders   [2]*widget.Slider
@@ -210,6 +211,7 @@ func (rw *reviewWindow) build() {
 		widget.NewButtonWithIcon("Recent", theme.HistoryIcon(), rw.showRecentMenu),
 		widget.NewButtonWithIcon("Settings…", theme.SettingsIcon(), rw.openSettings),
 		widget.NewButtonWithIcon("Sign off…", theme.ConfirmIcon(), rw.signOff),
+		widget.NewButtonWithIcon("Export report…", theme.DocumentSaveIcon(), rw.exportReport),
 		rw.teachCheck,
 	)
 	header := container.NewBorder(nil, nil, toolbar,
@@ -244,6 +246,7 @@ func (rw *reviewWindow) mainMenu() *fyne.MainMenu {
 	review := fyne.NewMenu("Review",
 		fyne.NewMenuItem("Analysis settings…", rw.openSettings),
 		fyne.NewMenuItem("Sign off…", rw.signOff),
+		fyne.NewMenuItem("Export report…", rw.exportReport),
 	)
 	help := fyne.NewMenu("Help",
 		fyne.NewMenuItem("Keyboard and mouse", rw.showShortcuts),

@@ -11,6 +11,7 @@ import (
 	"sort"
 	"strings"
 	"testing"
+	"time"
 
 	"dosecover/dosemap"
 
@@ -208,7 +209,7 @@ func TestTeachingModeHidesIdentity(t *testing.T) {
 	openSynthetic(t, rw)
 	rw.teachCheck.SetChecked(true)
 	for _, s := range []string{rw.win.Title(), rw.title.Text, rw.identity.Text, rw.loadInfo.Text} {
-		for _, secret := range []string{"PHANTOM", "T-0001", "Synthetic phantom", os.TempDir()} {
+		for _, secret := range []string{"PHANTOM", "T-0001", "Synthetic phantom", rw.loaded.Dir} {
 			if strings.Contains(s, secret) {
 				t.Errorf("teaching mode shows %q in %q", secret, s)
 			}
@@ -294,4 +295,59 @@ func absDiff(a, b uint32) uint32 {
 		return a - b
 	}
 	return b - a
+}
+
+// exportTo writes the report into a new folder and returns it.
+func exportTo(t *testing.T, rw *reviewWindow) string {
+	t.Helper()
+	out := t.TempDir()
+	mark := rw.exported.Load()
+	rw.writeReport(out)
+	deadline := time.Now().Add(60 * time.Second)
+	for rw.exported.Load() == mark {
+		if time.Now().After(deadline) {
+			t.Fatal("report export did not finish")
+		}
+		time.Sleep(10 * time.Millisecond)
+	}
+	return out
+}
+
+func TestExportReportTeachingMode(t *testing.T) {
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	if err := rw.addSignOff("A. Reviewer", "", testTime); err != nil {
+		t.Fatal(err)
+	}
+	// Without teaching mode the metrics name the case.
+	plain := exportTo(t, rw)
+	js, err := os.ReadFile(filepath.Join(plain, rw.reportBase()+".json"))
+	if err != nil || !strings.Contains(string(js), "Synthetic phantom") {
+		t.Fatalf("identified export lacks the case label (%v)", err)
+	}
+	rw.teachCheck.SetChecked(true)
+	out := exportTo(t, rw)
+	ents, err := os.ReadDir(out)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(ents) != 4 {
+		t.Fatalf("wrote %d files, want PNG, PDF, JSON and CSV: %v (status %s)", len(ents), ents, rw.status.Text)
+	}
+	for _, e := range ents {
+		if strings.Contains(e.Name(), "Synthetic") {
+			t.Errorf("teaching-mode file name %q carries the case label", e.Name())
+		}
+		b, err := os.ReadFile(filepath.Join(out, e.Name()))
+		if err != nil {
+			t.Fatal(err)
+		}
+		if strings.HasSuffix(e.Name(), ".json") || strings.HasSuffix(e.Name(), ".csv") {
+			for _, secret := range []string{"PHANTOM^TEST", "T-0001", "Synthetic phantom"} {
+				if strings.Contains(string(b), secret) {
+					t.Errorf("%s contains %q in teaching mode", e.Name(), secret)
+				}
+			}
+		}
+	}
 }
