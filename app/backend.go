@@ -28,13 +28,14 @@ type skippedFile struct {
 // loadedCase is a case folder as read: the case itself and what the reader
 // has to say about the folder.
 type loadedCase struct {
-	Dir       string
-	Case      *dosemap.Case
-	Skipped   []skippedFile
-	Problems  []string // warnings about the folder that did not stop the load
-	Inventory string   // the reader's plain-text inventory of the folder
-	MissingB0 bool     // some thermometry lacks MagneticFieldStrength
-	MissingTE bool     // some thermometry lacks EchoTime
+	Dir           string
+	Case          *dosemap.Case
+	Skipped       []skippedFile
+	Problems      []string // warnings about the folder that did not stop the load
+	Inventory     string   // the reader's plain-text inventory of the folder
+	NotReviewable string   // why the folder cannot be reviewed; "" when it can
+	MissingB0     bool     // some thermometry lacks MagneticFieldStrength
+	MissingTE     bool     // some thermometry lacks EchoTime
 }
 
 // loadOptions are the reader's options the user can change.

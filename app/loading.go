@@ -221,6 +221,13 @@ func (rw *reviewWindow) caseLoaded(lc *loadedCase, hash string, nFiles int, rec 
 	rw.metrics.update()
 	rw.sonTable.Refresh()
 	rw.setBusy(fmt.Sprintf("Read %d sonications, %d structures; %d files skipped.", len(c.Sonications), len(c.Structures), len(lc.Skipped)), -1)
+	if lc.NotReviewable != "" {
+		rw.showError("The folder "+rw.displayPath(lc.Dir)+" cannot be reviewed", errors.New(lc.NotReviewable+". The folder tab lists what was found and the files skipped."))
+		if c.Anatomy == nil {
+			rw.showNotice("Nothing to show: " + lc.NotReviewable + ".")
+		}
+		return
+	}
 	if note := rw.missingScannerValues(); note != "" {
 		showSettingsDialog(rw.win, rw.settings, note, func(s analysisSettings) {
 			rw.settings = s

@@ -16,6 +16,7 @@ import (
 	"dosecover/dosemap"
 
 	"fyne.io/fyne/v2"
+	"fyne.io/fyne/v2/storage"
 	"fyne.io/fyne/v2/test"
 	"fyne.io/fyne/v2/widget"
 )
@@ -349,5 +350,39 @@ func TestExportReportTeachingMode(t *testing.T) {
 				}
 			}
 		}
+	}
+}
+
+func TestDropFolderOpensIt(t *testing.T) {
+	rw := testWindow(t)
+	dir := t.TempDir()
+	if err := os.WriteFile(filepath.Join(dir, "readme.txt"), []byte("not an image"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	mark := rw.completed.Load()
+	// Dropping a file opens the folder that holds it.
+	rw.dropped(fyne.NewPos(10, 10), []fyne.URI{storage.NewFileURI(filepath.Join(dir, "readme.txt"))})
+	waitJobs(t, rw, mark, 1)
+	// The folder holds no DICOM file: the reader's message names the
+	// folder, and nothing was written into it.
+	if !strings.Contains(rw.status.Text, "cannot be reviewed") || !strings.Contains(rw.status.Text, filepath.Base(dir)) {
+		t.Errorf("status after dropping a folder without a case: %q", rw.status.Text)
+	}
+	if ents, _ := os.ReadDir(dir); len(ents) != 1 {
+		t.Errorf("the dropped folder now holds %d entries", len(ents))
+	}
+}
+
+func TestRecentCases(t *testing.T) {
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	first := rw.loaded.Dir
+	if r := rw.recentCases(); len(r) == 0 || r[0] != first {
+		t.Fatalf("recent cases %v, want %s first", r, first)
+	}
+	openSynthetic(t, rw)
+	r := rw.recentCases()
+	if len(r) != 2 || r[1] != first {
+		t.Errorf("recent cases %v: want the new case first, then %s", r, first)
 	}
 }
