@@ -16,6 +16,7 @@ import (
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/container"
 	"fyne.io/fyne/v2/dialog"
+	"fyne.io/fyne/v2/driver/desktop"
 	"fyne.io/fyne/v2/theme"
 	"fyne.io/fyne/v2/widget"
 )
@@ -93,6 +94,13 @@ func newReviewWindow(a fyne.App) *reviewWindow {
 	rw.win.SetMainMenu(rw.mainMenu())
 	rw.win.SetOnDropped(rw.dropped)
 	rw.win.Canvas().SetOnTypedKey(rw.typedKey)
+	for _, sc := range []struct {
+		key fyne.KeyName
+		fn  func()
+	}{{fyne.KeyO, rw.chooseFolder}, {fyne.KeyE, rw.exportReport}, {fyne.KeyComma, rw.openSettings}, {fyne.KeyT, func() { rw.teachCheck.SetChecked(!rw.teaching) }}} {
+		fn := sc.fn
+		rw.win.Canvas().AddShortcut(&desktop.CustomShortcut{KeyName: sc.key, Modifier: fyne.KeyModifierShortcutDefault}, func(fyne.Shortcut) { fn() })
+	}
 	rw.win.Canvas().SetOnTypedRune(func(r rune) {
 		if rw.active != nil {
 			rw.active.TypedRune(r)
