@@ -173,8 +173,8 @@ func qualityFlags(q review.SonicationQuality) []string {
 	if q.MaxDriftC != 0 && !math.IsNaN(q.MaxDriftC) {
 		f = append(f, fmt.Sprintf("drift up to %.2f °C", q.MaxDriftC))
 	}
-	if q.MaxMotionMM > 0 {
-		f = append(f, fmt.Sprintf("motion up to %.2g", q.MaxMotionMM))
+	if q.MaxMotion > 0 {
+		f = append(f, fmt.Sprintf("motion up to %.2g", q.MaxMotion))
 	}
 	return f
 }

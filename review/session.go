@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"reflect"
 	"slices"
 	"sort"
 	"strconv"
@@ -41,13 +42,19 @@ type Settings struct {
 	Excluded  []int   `json:"excluded_sonications"` // sonication numbers left out of the cumulative dose
 	Trials    int     `json:"trials"`               // Monte Carlo trials; 0 for none
 	Seed      uint64  `json:"seed"`                 // Monte Carlo seed
+
+	CEM43       dosemap.CEM43              `json:"cem43"`     // parameters of the cem43 model
+	Arrhenius   dosemap.Arrhenius          `json:"arrhenius"` // parameters of the arrhenius model
+	Thermometry dosemap.ThermometryOptions `json:"-"`         // PRF thermometry; summarised in Result.Thermometry
 }
 
 // DefaultSettings returns 240 CEM43 (Sapareto & Dewey 1984; the common
 // lethal threshold, McDannold et al., Radiology 2006), DefaultMarginMM, no
-// exclusions, 50 Monte Carlo trials with seed 1.
+// exclusions, 50 Monte Carlo trials with seed 1, the default CEM43 and
+// Arrhenius parameters and thermometry options of package dosemap.
 func DefaultSettings() Settings {
-	return Settings{Threshold: 240, MarginMM: DefaultMarginMM, Model: "cem43", Trials: 50, Seed: 1}
+	return Settings{Threshold: 240, MarginMM: DefaultMarginMM, Model: "cem43", Trials: 50, Seed: 1,
+		CEM43: dosemap.DefaultCEM43(), Arrhenius: dosemap.DefaultArrhenius(), Thermometry: dosemap.DefaultThermometryOptions()}
 }
 
 // ProgressFunc receives the name of the stage being worked on and the
@@ -265,6 +272,9 @@ func (s *Session) checkSettings(set Settings) error {
 	if set.Model != s.model {
 		return fmt.Errorf("dose model %q differs from the %q this session was prepared with; prepare it again", set.Model, s.model)
 	}
+	if set.CEM43 != s.prepared.CEM43 || set.Arrhenius != s.prepared.Arrhenius || !reflect.DeepEqual(set.Thermometry, s.prepared.Thermometry) {
+		return errors.New("dose model parameters or thermometry options differ from those this session was prepared with; prepare it again")
+	}
 	if set.Trials < 0 {
 		return fmt.Errorf("%d Monte Carlo trials: want 0 or more", set.Trials)
 	}
@@ -374,6 +384,7 @@ func (s *Session) Analyze(ctx context.Context, set Settings, progress ProgressFu
 	if set.Model == "cem43" {
 		r.ThresholdCEM43 = opt(set.Threshold)
 	}
+	r.Thermometry = thermometryInfo(set.Thermometry)
 	n := g.Len()
 	lethal := make([]bool, n) // measured dose at or above threshold (also where partly measured)
 	lethalVol := &dosemap.Volume{Geometry: g, Data: make([]float32, n)}
@@ -569,7 +580,7 @@ func (s *Session) Analyze(ctx context.Context, set Settings, progress ProgressFu
 	r.Lethal = lethalVol
 	if set.Trials > 0 {
 		progress.report("Monte Carlo", 0.8)
-		if err := s.uncertainty(ctx, r, set, dc, hl); err != nil {
+		if err := s.uncertainty(ctx, r, set, dc); err != nil {
 			return nil, err
 		}
 	}
@@ -830,4 +841,38 @@ func (s *Session) perSonication(r *Result, set Settings, dc *doseCache, lethal, 
 		}
 		r.Sonications = append(r.Sonications, st)
 	}
+}
+
+// thermometryInfo summarises o, with zero fields shown as the defaults
+// dosemap.Thermometry applies.
+func thermometryInfo(o dosemap.ThermometryOptions) ThermometryInfo {
+	d := dosemap.DefaultThermometryOptions()
+	ti := ThermometryInfo{AlphaPPMPerC: o.PRF.Alpha, BaselineFrames: o.BaselineFrames, BodyTempC: o.BodyTemp,
+		Drift: o.Drift.String(), DriftOrder: o.DriftOrder, Reference: "automatic",
+		MinMagnitude: o.MinMagnitude, MaxMotion: o.MaxMotion}
+	if ti.AlphaPPMPerC == 0 {
+		ti.AlphaPPMPerC = d.PRF.Alpha
+	}
+	if o.PRF.B0 != 0 {
+		ti.B0T = opt(o.PRF.B0)
+	}
+	if o.PRF.TE != 0 {
+		ti.TES = opt(o.PRF.TE)
+	}
+	if ti.BaselineFrames <= 0 {
+		ti.BaselineFrames = d.BaselineFrames
+	}
+	if ti.BodyTempC == 0 {
+		ti.BodyTempC = d.BodyTemp
+	}
+	if ti.MinMagnitude == 0 {
+		ti.MinMagnitude = d.MinMagnitude
+	}
+	if ti.MaxMotion == 0 {
+		ti.MaxMotion = d.MaxMotion
+	}
+	if o.Reference != nil {
+		ti.Reference = "given"
+	}
+	return ti
 }

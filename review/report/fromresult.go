@@ -136,7 +136,7 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 		q.Wraps += sq.Wraps
 		q.Invalid += sq.Invalid
 		if len(sq.Frames) > 0 {
-			q.MaxMotionMM = nanMax(q.MaxMotionMM, sq.MaxMotionMM)
+			q.MaxMotionMM = nanMax(q.MaxMotionMM, sq.MaxMotion)
 			q.MaxDriftC = nanMax(q.MaxDriftC, sq.MaxDriftC)
 		}
 		if sq.MinSNR != nil {
