@@ -114,13 +114,13 @@ type Session struct {
 
 // doseCache holds what depends only on the set of included sonications.
 type doseCache struct {
-	key       string
-	included  []int       // indexes into sons, delivery order
-	cum       []float32   // cumulative measured dose (NaN where none measured), thermometry grid
-	full      []bool      // every included sonication measured the voxel
-	logPrefix [][]float32 // log cumulative after each included sonication (unmeasured counted 0)
-	logFine   []float32   // analysis grid log-dose
-	monFine   []bool      // analysis grid monitored
+	key      string
+	included []int       // indexes into sons, delivery order
+	cum      []float32   // cumulative measured dose (NaN where none measured), thermometry grid
+	full     []bool      // every included sonication measured the voxel
+	prefix   [][]float32 // cumulative after each included sonication (unmeasured counted 0)
+	logFine  []float32   // analysis grid log-dose
+	monFine  []bool      // analysis grid monitored
 }
 
 // Prepare computes the thermometry and dose of every sonication of c and
@@ -323,15 +323,13 @@ func (s *Session) doses(ctx context.Context, set Settings) (*doseCache, error) {
 			return nil, err
 		}
 		d := s.sons[n].dose
-		lp := make([]float32, cl)
 		for v, x := range d {
 			if x == x {
 				run[v] += x
 				cnt[v]++
 			}
-			lp[v] = logDose(run[v])
 		}
-		dc.logPrefix = append(dc.logPrefix, lp)
+		dc.prefix = append(dc.prefix, slices.Clone(run))
 	}
 	lc := make([]float32, cl)
 	for v := range run {
@@ -803,7 +801,7 @@ func (s *Session) perSonication(r *Result, set Settings, dc *doseCache, lethal, 
 		}
 		m := ni - 1
 		for a := 0; a < ni; a++ {
-			if s.fg.logAt(dc.logPrefix[a], v) >= lt {
+			if s.fg.logAtLinear(dc.prefix[a], v) >= lt {
 				m = a
 				break
 			}
