@@ -453,3 +453,26 @@ func TestAvoidDose(t *testing.T) {
 		t.Errorf("peak %v at %v", ptrString(a.PeakDose), a.PeakMM)
 	}
 }
+
+// TestPreparedSettings: a session re-analyses with settings whose model
+// parameters are left zero (the defaults) but refuses other parameters.
+func TestPreparedSettings(t *testing.T) {
+	g := thermoGrid(16, 16, 4)
+	c := &dosemap.Case{
+		Sonications: []*dosemap.Sonication{doseSonication(1, g, ballDose(dosemap.Vec3{}, 3, 1))},
+		Structures:  []dosemap.Structure{sphereStructure("target", dosemap.Vec3{}, 4, 1.5, 0, 32, dosemap.RoleTarget)},
+	}
+	ses, err := Prepare(context.Background(), c, DefaultSettings(), nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	zero := Settings{Threshold: 240, MarginMM: 3, Model: "cem43"}
+	if _, err := ses.Analyze(context.Background(), zero, nil); err != nil {
+		t.Errorf("zero parameters: %v", err)
+	}
+	other := DefaultSettings()
+	other.CEM43.RBelow = 0.3
+	if _, err := ses.Analyze(context.Background(), other, nil); err == nil || !strings.Contains(err.Error(), "prepare it again") {
+		t.Errorf("changed CEM43 parameters: %v", err)
+	}
+}

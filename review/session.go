@@ -272,7 +272,7 @@ func (s *Session) checkSettings(set Settings) error {
 	if set.Model != s.model {
 		return fmt.Errorf("dose model %q differs from the %q this session was prepared with; prepare it again", set.Model, s.model)
 	}
-	if set.CEM43 != s.prepared.CEM43 || set.Arrhenius != s.prepared.Arrhenius || !reflect.DeepEqual(set.Thermometry, s.prepared.Thermometry) {
+	if set.doseModel() != s.prepared.doseModel() || !reflect.DeepEqual(normThermometry(set.Thermometry), normThermometry(s.prepared.Thermometry)) {
 		return errors.New("dose model parameters or thermometry options differ from those this session was prepared with; prepare it again")
 	}
 	if set.Trials < 0 {
@@ -873,4 +873,13 @@ func thermometryInfo(o dosemap.ThermometryOptions) ThermometryInfo {
 		ti.Reference = "given"
 	}
 	return ti
+}
+
+// normThermometry returns o, or the default options when o is the zero
+// value (which dosemap.Thermometry reads as the defaults).
+func normThermometry(o dosemap.ThermometryOptions) dosemap.ThermometryOptions {
+	if reflect.DeepEqual(o, dosemap.ThermometryOptions{}) {
+		return dosemap.DefaultThermometryOptions()
+	}
+	return o
 }
