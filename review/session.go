@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"math"
 	"reflect"
+	"runtime"
 	"slices"
 	"sort"
 	"strconv"
@@ -151,25 +152,63 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 		return nil, fmt.Errorf("sonication %d: thermometry grid: %w", c.Sonications[0].Number, err)
 	}
 	seen := map[int]bool{}
-	for n, so := range c.Sonications {
-		if err := ctx.Err(); err != nil {
-			return nil, err
+	for _, so := range c.Sonications {
+		if so == nil {
+			return nil, errors.New("the case lists a missing sonication")
 		}
-		progress.report(fmt.Sprintf("thermometry and dose, sonication %d", so.Number), 0.8*float64(n)/float64(len(c.Sonications)))
 		if seen[so.Number] {
 			return nil, fmt.Errorf("sonication number %d appears twice", so.Number)
 		}
 		seen[so.Number] = true
-		sd, unit, err := prepareSonication(ctx, so, s, ref)
-		if err != nil {
-			return nil, fmt.Errorf("sonication %d (%s): %w", so.Number, so.Label, err)
+	}
+	// Thermometry and dose of the sonications in parallel, one worker per
+	// CPU.
+	ns := len(c.Sonications)
+	sons := make([]*sonData, ns)
+	units := make([]string, ns)
+	errs := make([]error, ns)
+	var pmu sync.Mutex
+	done := 0
+	jobs := make(chan int)
+	var wg sync.WaitGroup
+	for w := 0; w < min(runtime.GOMAXPROCS(0), ns); w++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for n := range jobs {
+				so := c.Sonications[n]
+				if err := ctx.Err(); err != nil {
+					errs[n] = err
+					continue
+				}
+				sons[n], units[n], errs[n] = prepareSonication(ctx, so, s, ref)
+				pmu.Lock()
+				done++
+				progress.report(fmt.Sprintf("thermometry and dose, sonication %d", so.Number), 0.8*float64(done)/float64(ns))
+				pmu.Unlock()
+			}
+		}()
+	}
+	for n := range c.Sonications {
+		jobs <- n
+	}
+	close(jobs)
+	wg.Wait()
+	if err := ctx.Err(); err != nil {
+		return nil, err
+	}
+	for n, so := range c.Sonications {
+		if errs[n] != nil {
+			return nil, fmt.Errorf("sonication %d (%s): %w", so.Number, so.Label, errs[n])
+		}
+		if n > 0 && units[n] != units[0] {
+			return nil, fmt.Errorf("sonication %d: dose in %s, sonication %d in %s", so.Number, units[n], c.Sonications[0].Number, units[0])
 		}
 		if !so.Geometry.SameGrid(ref, 0.01) {
 			ses.warnings = append(ses.warnings, fmt.Sprintf("sonication %d was acquired on a different grid and was resampled onto the grid of sonication %d", so.Number, c.Sonications[0].Number))
 		}
-		ses.unit = unit
-		ses.sons = append(ses.sons, sd)
 	}
+	ses.sons, ses.unit = sons, units[0]
 	progress.report("structures", 0.8)
 	sol, err := newPlaneSolid(tgt, ref.Spacing[2])
 	if err != nil {
