@@ -476,3 +476,17 @@ func TestPreparedSettings(t *testing.T) {
 		t.Errorf("changed CEM43 parameters: %v", err)
 	}
 }
+
+// TestTargetOutsideThermometry: contours 500 mm away from the thermometry
+// (another frame of reference, say) are an error naming the problem.
+func TestTargetOutsideThermometry(t *testing.T) {
+	g := thermoGrid(16, 16, 4)
+	c := &dosemap.Case{
+		Sonications: []*dosemap.Sonication{doseSonication(1, g, ballDose(dosemap.Vec3{}, 3, 1))},
+		Structures:  []dosemap.Structure{sphereStructure("target", dosemap.Vec3{0, 0, 500}, 4, 1.5, 0, 32, dosemap.RoleTarget)},
+	}
+	_, err := Analyze(context.Background(), c, DefaultSettings(), nil)
+	if err == nil || !strings.Contains(err.Error(), "outside the thermometry") {
+		t.Errorf("error %v", err)
+	}
+}

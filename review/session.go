@@ -31,6 +31,10 @@ const MaxMarginMM = 20.0
 // LargestMarginMM is the largest margin dosecover analyses.
 const LargestMarginMM = 50.0
 
+// maxAnalysisVoxels bounds the analysis grid (about 1.5 GB of working
+// memory).
+const maxAnalysisVoxels = 40_000_000
+
 // ProbabilityCertain is the Monte Carlo mean probability of lethal dose at
 // or below which a hole is called "certain".
 const ProbabilityCertain = 0.05
@@ -220,8 +224,33 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 			ext = append(ext, p.Add(d.Scale(ses.maxMargin+2*ref.Spacing.Norm())))
 		}
 	}
+	// The target must overlap the thermometry somewhere: contours in
+	// another frame of reference would otherwise stretch the analysis grid
+	// across the patient.
+	lo, hi := [3]float64{math.Inf(1), math.Inf(1), math.Inf(1)}, [3]float64{math.Inf(-1), math.Inf(-1), math.Inf(-1)}
+	for _, p := range sol.corners() {
+		i, j, k := ref.Voxel(p)
+		for a, x := range [3]float64{i, j, k} {
+			lo[a], hi[a] = math.Min(lo[a], x), math.Max(hi[a], x)
+		}
+	}
+	dims := [3]int{ref.Cols, ref.Rows, ref.Slices}
+	for a := 0; a < 3; a++ {
+		if hi[a] < -0.5 || lo[a] > float64(dims[a])-0.5 {
+			return nil, fmt.Errorf("target %q lies entirely outside the thermometry field of view (%s); check that contours and thermometry share a frame of reference", tgt.Name, ref)
+		}
+	}
+	if tgt.FrameOfRef != "" && c.Sonications[0].FrameOfRef != "" && tgt.FrameOfRef != c.Sonications[0].FrameOfRef {
+		ses.warnings = append(ses.warnings, fmt.Sprintf("target %q refers to frame of reference %s, the thermometry to %s; positions are compared as given", tgt.Name, tgt.FrameOfRef, c.Sonications[0].FrameOfRef))
+	}
+	if math.Abs(ref.Normal.Dot(ref.Row.Cross(ref.Col))) < 0.999 {
+		ses.warnings = append(ses.warnings, "the thermometry slices are sheared (slice normal not perpendicular to the image plane); distances are computed as if the grid axes were orthogonal")
+	}
 	ses.fg = newFineGrid(ref, ext)
 	g := ses.fg.fine
+	if n := g.Len(); n > maxAnalysisVoxels {
+		return nil, fmt.Errorf("the analysis grid would hold %d voxels (%s), more than the %d supported; the target is far larger than the thermometry", n, g, maxAnalysisVoxels)
+	}
 	if ses.occ, err = Occupancy(tgt, g, ref.Spacing[2]); err != nil {
 		return nil, fmt.Errorf("target: %w", err)
 	}
