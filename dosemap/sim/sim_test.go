@@ -726,3 +726,55 @@ func BenchmarkWriteSession(b *testing.B) {
 		})
 	}
 }
+
+// pydicom reads the structure set: ROI names and interpreted types, the
+// number of contours and the first vertex, and the referenced frame of
+// reference.
+func TestPydicomReadsStructures(t *testing.T) {
+	py := pythonWithPydicom(t)
+	dir, tr := demo(t)
+	script := `
+import json, sys, pydicom
+d = pydicom.dcmread(sys.argv[1])
+print(json.dumps({
+  "rois": [[int(r.ROINumber), r.ROIName, r.ReferencedFrameOfReferenceUID] for r in d.StructureSetROISequence],
+  "types": [o.RTROIInterpretedType for o in d.RTROIObservationsSequence],
+  "contours": [len(c.ContourSequence) for c in d.ROIContourSequence],
+  "first": [float(x) for x in d.ROIContourSequence[0].ContourSequence[0].ContourData[:3]],
+  "npoints": int(d.ROIContourSequence[0].ContourSequence[0].NumberOfContourPoints),
+  "frame": d.ReferencedFrameOfReferenceSequence[0].FrameOfReferenceUID,
+  "modality": d.Modality}))
+`
+	raw, err := exec.Command(py, "-c", script, filepath.Join(dir, StructuresFile)).Output()
+	if err != nil {
+		t.Fatalf("pydicom: %v", err)
+	}
+	var got struct {
+		ROIs     [][]any
+		Types    []string
+		Contours []int
+		First    []float64
+		NPoints  int
+		Frame    string
+		Modality string
+	}
+	if err := json.Unmarshal(raw, &got); err != nil {
+		t.Fatal(err)
+	}
+	target, avoid, _ := DemoSession().Contours()
+	if got.Modality != "RTSTRUCT" || got.Frame != tr.FrameOfReferenceUID || fmt.Sprint(got.Types) != "[PTV AVOIDANCE]" {
+		t.Errorf("modality %s frame %s types %v", got.Modality, got.Frame, got.Types)
+	}
+	if len(got.ROIs) != 2 || got.ROIs[0][1] != "Target" || got.ROIs[0][2] != tr.FrameOfReferenceUID {
+		t.Errorf("ROIs %v", got.ROIs)
+	}
+	if fmt.Sprint(got.Contours) != fmt.Sprint([]int{len(target), len(avoid)}) || got.NPoints != len(target[0].Points) {
+		t.Errorf("contours %v points %d", got.Contours, got.NPoints)
+	}
+	for ax := 0; ax < 3; ax++ {
+		if math.Abs(got.First[ax]-target[0].Points[0][ax]) > 5e-4 {
+			t.Errorf("first vertex %v, want %v", got.First, target[0].Points[0])
+			break
+		}
+	}
+}
