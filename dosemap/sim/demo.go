@@ -258,12 +258,13 @@ func WriteCases(dir string, n int, seed uint64) ([]*Truth, error) {
 	return out, nil
 }
 
-// TypicalSession returns a large session for benchmarks: a 25 mm lesion,
+// TypicalSession returns a large session for benchmarks: a 25 × 18 × 15 mm
+// lesion,
 // 24 sonications of 14 frames each, 6 thermometry slices of 128×128,
 // magnitude and phase (4032 thermometry files).
 func TypicalSession(seed uint64) *Session {
 	centre := dosemap.Vec3{-3, -10, 20}
-	lesion := Ellipsoid{Center: centre, SemiAxes: dosemap.Vec3{12.5, 12.5, 9}}
+	lesion := Ellipsoid{Center: centre, SemiAxes: dosemap.Vec3{12.5, 9, 7.5}}
 	p := baseProtocol(centre)
 	p.Cols, p.Rows, p.Slices, p.SliceThickness, p.Frames = 128, 128, 6, 3, 14
 	s := &Session{
