@@ -417,13 +417,18 @@ func TestValidateRejects(t *testing.T) {
 func TestDciodvfy(t *testing.T) {
 	tool := needTool(t, "dciodvfy")
 	dir, _ := demo(t)
-	for _, f := range []string{
-		filepath.Join(AnatomyFolder, "IM0001.dcm"),
-		"sonication-01/IM00001.dcm", // magnitude
-		"sonication-01/IM00002.dcm", // phase
-		StructuresFile,
+	for f, iod := range map[string]string{
+		filepath.Join(AnatomyFolder, "IM0001.dcm"): "MRImage",
+		"sonication-01/IM00001.dcm":                "MRImage", // magnitude
+		"sonication-01/IM00002.dcm":                "MRImage", // phase
+		StructuresFile:                             "RTStructureSet",
 	} {
 		out, _ := exec.Command(tool, filepath.Join(dir, f)).CombinedOutput()
+		// dciodvfy first names the IOD it recognised; without that line
+		// the file was not validated at all.
+		if first, _, _ := strings.Cut(string(out), "\n"); strings.TrimSpace(first) != iod {
+			t.Errorf("%s: dciodvfy recognised %q, want %s", f, first, iod)
+		}
 		for _, line := range strings.Split(string(out), "\n") {
 			switch {
 			case strings.HasPrefix(line, "Error"):
