@@ -174,7 +174,7 @@ func qualityFlags(q review.SonicationQuality) []string {
 		f = append(f, fmt.Sprintf("drift up to %.2f °C", q.MaxDriftC))
 	}
 	if q.MaxMotion > 0 {
-		f = append(f, fmt.Sprintf("motion up to %.2g", q.MaxMotion))
+		f = append(f, fmt.Sprintf("motion 1−r up to %.2g", q.MaxMotion))
 	}
 	return f
 }

@@ -116,7 +116,7 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 	for _, q := range r.Quality {
 		quality[q.Sonication] = q
 	}
-	q := Quality{MaxMotionMM: math.NaN(), MaxDriftC: math.NaN(), MinSNR: math.NaN()}
+	q := Quality{MaxMotion: math.NaN(), MaxDriftC: math.NaN(), MinSNR: math.NaN()}
 	for _, s := range r.Sonications {
 		sq := quality[s.Number]
 		label := s.Label
@@ -136,7 +136,7 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 		q.Wraps += sq.Wraps
 		q.Invalid += sq.Invalid
 		if len(sq.Frames) > 0 {
-			q.MaxMotionMM = nanMax(q.MaxMotionMM, sq.MaxMotion)
+			q.MaxMotion = nanMax(q.MaxMotion, sq.MaxMotion)
 			q.MaxDriftC = nanMax(q.MaxDriftC, sq.MaxDriftC)
 		}
 		if sq.MinSNR != nil {
