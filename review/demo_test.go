@@ -2,6 +2,7 @@ package review_test
 
 import (
 	"context"
+	"io"
 	"testing"
 
 	"dosecover/dosemap/dicomio"
@@ -64,6 +65,9 @@ func TestDemoCase(t *testing.T) {
 		if !g.Contains(ii, jj, kk) || r.HoleLabels.At(ii, jj, kk) == 0 {
 			t.Errorf("simulated under-dosed region at %v (%.0f mm³) is not in a reported hole", h.Center, h.VolumeMM3)
 		}
+	}
+	if err := r.WriteJSON(io.Discard); err != nil {
+		t.Errorf("JSON: %v", err)
 	}
 	// The simulation's covered fraction comes from its own 1.2 mm
 	// temperature grid, not from the thermometry images: logged for

@@ -2,6 +2,7 @@ package review
 
 import (
 	"context"
+	"io"
 	"math"
 	"math/rand/v2"
 	"testing"
@@ -76,6 +77,10 @@ func TestThermometryPath(t *testing.T) {
 	}
 	if r.CoveredFractionP05 == nil || *r.CoveredFractionP05 < 0.999 {
 		t.Errorf("p05 %v, want 1", ptrString(r.CoveredFractionP05))
+	}
+	// The result encodes as JSON (no NaN or Inf escapes into it).
+	if err := r.WriteJSON(io.Discard); err != nil {
+		t.Errorf("JSON: %v", err)
 	}
 }
 
