@@ -18,8 +18,15 @@ func init() {
 	defaultSettings = func() analysisSettings {
 		d := review.DefaultSettings()
 		s := builtinSettings()
-		s.Threshold, s.MarginMM, s.Model = d.Threshold, d.MarginMM, d.Model
-		s.Trials = d.Trials
+		s.Threshold, s.MarginMM, s.Model, s.Trials = d.Threshold, d.MarginMM, d.Model, d.Trials
+		s.CEM43Break, s.CEM43RAbove, s.CEM43RBelow = d.CEM43.Break, d.CEM43.RAbove, d.CEM43.RBelow
+		s.ArrheniusSet, s.ArrheniusA, s.ArrheniusEa = d.Arrhenius.Tissue, d.Arrhenius.A, d.Arrhenius.Ea
+		t := d.Thermometry
+		s.PRFAlpha, s.BodyTemp, s.BaselineFrames, s.DriftOrder = t.PRF.Alpha, t.BodyTemp, t.BaselineFrames, max(t.DriftOrder, 1)
+		s.Drift = map[dosemap.DriftMethod]string{dosemap.DriftNone: "none", dosemap.DriftMean: "mean", dosemap.DriftPolynomial: "polynomial"}[t.Drift]
+		if s.Drift == "" {
+			s.Drift = "mean"
+		}
 		return s
 	}
 	for _, a := range dosemap.ArrheniusSets {
@@ -35,6 +42,13 @@ func reviewSettings(s analysisSettings) review.Settings {
 	if s.Trials >= 0 {
 		r.Trials = s.Trials
 	}
+	if c, ok := doseModel(analysisSettings{Model: "cem43", CEM43Break: s.CEM43Break, CEM43RAbove: s.CEM43RAbove, CEM43RBelow: s.CEM43RBelow}).(dosemap.CEM43); ok {
+		r.CEM43 = c
+	}
+	if a, ok := doseModel(analysisSettings{Model: "arrhenius", ArrheniusSet: s.ArrheniusSet, ArrheniusA: s.ArrheniusA, ArrheniusEa: s.ArrheniusEa}).(dosemap.Arrhenius); ok {
+		r.Arrhenius = a
+	}
+	r.Thermometry = thermometryOptions(s)
 	return r
 }
 
