@@ -74,7 +74,8 @@ type sonicationRow struct {
 	PeakTemp      float64   // °C, highest temperature inside the target (NaN unknown)
 	DoseAddedML   float64   // mL of tissue newly above the threshold
 	CoverageAdded float64   // fraction of the target newly covered
-	Flags         []string  // quality flags, plain words
+	Flags         []string  // quality flags and notes, plain words
+	Flagged       bool      // a flag (not only notes) was raised
 }
 
 // analysisResult is what the review window displays from one analysis run.

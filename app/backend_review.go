@@ -155,7 +155,11 @@ func (ss *reviewSession) Analyze(ctx context.Context, s analysisSettings) (*anal
 			}
 		}
 		if q, ok := quality[st.Number]; ok {
-			row.Flags = qualityFlags(q)
+			vf := 0
+			if so := ss.sonication(st.Number); so != nil {
+				vf = so.Geometry.Len() * so.Frames()
+			}
+			row.Flags, row.Flagged = qualityFlags(q, vf)
 		}
 		out.Sonications = append(out.Sonications, row)
 		out.SonicationDose = append(out.SonicationDose, ss.rs.SonicationDose(st.Number))
@@ -172,8 +176,11 @@ func (ss *reviewSession) sonication(num int) *dosemap.Sonication {
 	return nil
 }
 
-// qualityFlags states what the thermometry flagged, in plain words.
-func qualityFlags(q review.SonicationQuality) []string {
+// qualityFlags states what the thermometry flagged (rejected frames,
+// suspected phase wraps) and, as plain notes, the drift removed, the motion
+// measure and the share of invalid voxel-frames. It reports whether any
+// flag (not only notes) was raised.
+func qualityFlags(q review.SonicationQuality, voxelFrames int) ([]string, bool) {
 	var f []string
 	if n := len(q.FlaggedFrames); n > 0 {
 		f = append(f, fmt.Sprintf("%d frame(s) rejected: %s", n, sliceList(q.FlaggedFrames)))
@@ -181,16 +188,17 @@ func qualityFlags(q review.SonicationQuality) []string {
 	if q.Wraps > 0 {
 		f = append(f, fmt.Sprintf("%d suspected phase wraps", q.Wraps))
 	}
-	if q.Invalid > 0 {
-		f = append(f, fmt.Sprintf("%d voxel-frames invalid", q.Invalid))
-	}
+	flagged := len(f) > 0
 	if q.MaxDriftC != 0 && !math.IsNaN(q.MaxDriftC) {
-		f = append(f, fmt.Sprintf("drift up to %.2f °C", q.MaxDriftC))
+		f = append(f, fmt.Sprintf("drift ≤ %.2f °C", math.Abs(q.MaxDriftC)))
 	}
 	if q.MaxMotion > 0 {
-		f = append(f, fmt.Sprintf("motion up to %.2g (1 − magnitude correlation)", q.MaxMotion))
+		f = append(f, fmt.Sprintf("motion 1−r ≤ %.2g", q.MaxMotion))
 	}
-	return f
+	if q.Invalid > 0 && voxelFrames > 0 {
+		f = append(f, fmt.Sprintf("invalid %.1f %% of voxel-frames", 100*float64(q.Invalid)/float64(voxelFrames)))
+	}
+	return f, flagged
 }
 
 // sliceList prints 1-based slice or frame numbers compactly: "3–7, 9".

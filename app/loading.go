@@ -6,6 +6,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"math"
 	"os"
 	"path/filepath"
 	"strings"
@@ -378,6 +379,9 @@ func (rw *reviewWindow) showResult(res *analysisResult) {
 	if !hadDose && rw.scene.Anatomy == nil {
 		rw.setViewGrid()
 	}
+	if !hadDose {
+		rw.frameTarget()
+	}
 	rw.metrics.update()
 	rw.sonTable.Refresh()
 	if rw.pinned != nil {
@@ -506,4 +510,51 @@ func (rw *reviewWindow) startPeakTemperature(res *analysisResult) {
 			res.PeakTemp = v
 		})
 	}()
+}
+
+// frameTarget shows the target: both views go to the slice through its
+// centroid, centred on it, zoomed so that three target widths fill the
+// view (1× to 8×).
+func (rw *reviewWindow) frameTarget() {
+	r := rw.result
+	if r == nil || r.Target == nil {
+		return
+	}
+	var c dosemap.Vec3
+	var pts []dosemap.Vec3
+	g := r.Target.Geometry
+	for i, x := range r.Target.Data {
+		if x >= 0.5 {
+			a, b, k := g.IJK(i)
+			p := g.Point(float64(a), float64(b), float64(k))
+			c = c.Add(p)
+			pts = append(pts, p)
+		}
+	}
+	if len(pts) == 0 {
+		return
+	}
+	c = c.Scale(1 / float64(len(pts)))
+	for k, v := range rw.viewers {
+		if v.ref == nil {
+			continue
+		}
+		u, w, _, _, _, width, height := planeAxes(*v.ref, v.kind)
+		du, dv := spread(pts, u)+g.Spacing[0], spread(pts, w)+g.Spacing[1]
+		zoom := math.Max(1, math.Min(8, math.Min(width/(3*du), height/(3*dv))))
+		v.centreOn(c)
+		v.zoom = zoom
+		v.raster.Refresh()
+		rw.sliceChanged(k)
+	}
+}
+
+// spread returns the extent of pts along direction d, mm.
+func spread(pts []dosemap.Vec3, d dosemap.Vec3) float64 {
+	lo, hi := math.Inf(1), math.Inf(-1)
+	for _, p := range pts {
+		x := p.Dot(d)
+		lo, hi = math.Min(lo, x), math.Max(hi, x)
+	}
+	return hi - lo
 }

@@ -177,11 +177,14 @@ func (rw *reviewWindow) newSonicationTable() *widget.Table {
 			case 6:
 				l.SetText(fmtOpt(100*row.CoverageAdded, "%.1f %%"))
 			case 7:
-				if len(row.Flags) == 0 {
+				switch {
+				case len(row.Flags) == 0:
 					l.SetText("no flag")
-				} else {
+				case row.Flagged:
 					l.Importance = widget.WarningImportance
 					l.SetText(strings.Join(row.Flags, "; "))
+				default:
+					l.SetText("no flag; " + strings.Join(row.Flags, "; "))
 				}
 			}
 		})
@@ -357,8 +360,10 @@ func (m *metricsPanel) update() {
 		fmt.Sprintf("%-24s %s", "Not monitored", pct(r.NotMonitored)),
 		fmt.Sprintf("%-24s %d (%.3f mL)", "Holes", len(r.Holes), sumML(r.Holes)),
 		fmt.Sprintf("%-24s %d (%.3f mL)", "Lethal outside margin", len(r.Outside), r.LethalOutside),
-		fmt.Sprintf("%-24s %s / %s / %s %s", "D98 / D50 / D2", fmtDose(r.D98), fmtDose(r.D50), fmtDose(r.D2), r.Unit),
-		fmt.Sprintf("%-24s %s %s, margin %g mm", "Threshold", fmtNum(r.Threshold), r.Unit, r.MarginMM),
+		fmt.Sprintf("%-24s %s / %s / %s", "D98 / D50 / D2", fmtDose(r.D98), fmtDose(r.D50), fmtDose(r.D2)),
+		fmt.Sprintf("%-24s %s", "  dose unit", r.Unit),
+		fmt.Sprintf("%-24s %s %s", "Threshold", fmtNum(r.Threshold), r.Unit),
+		fmt.Sprintf("%-24s %g mm", "Margin", r.MarginMM),
 	}
 	if ex := m.rw.settings.Excluded; len(ex) > 0 {
 		lines = append(lines, fmt.Sprintf("%-24s %v", "Sonications left out", ex))

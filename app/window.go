@@ -206,7 +206,7 @@ func (rw *reviewWindow) build() {
 	left := container.NewVSplit(
 		container.NewBorder(nil, container.NewVBox(display, legend), nil, nil, views),
 		bottom)
-	left.SetOffset(0.62)
+	left.SetOffset(0.68)
 
 	rw.metrics = newMetricsPanel(rw)
 	main := container.NewHSplit(left, rw.metrics.content)

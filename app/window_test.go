@@ -38,7 +38,7 @@ func TestOpenShowsMetrics(t *testing.T) {
 		t.Errorf("target volume %.3f mL, want %.3f ± 5 %%", r.TargetML, want)
 	}
 	facts := rw.metrics.facts.Text
-	for _, want := range []string{"PTV phantom", "Covered", "100.0 %", "Holes", "Lethal outside margin", "240 CEM43 min, margin 3 mm"} {
+	for _, want := range []string{"PTV phantom", "Covered", "100.0 %", "Holes", "Lethal outside margin", "240 CEM43 min", "3 mm"} {
 		if !strings.Contains(facts, want) {
 			t.Errorf("metrics panel lacks %q:\n%s", want, facts)
 		}
