@@ -128,7 +128,8 @@ type probeCurve struct {
 	FinalDose   float64
 	Unit        string
 	Threshold   float64
-	Description string // the voxel and what was sampled
+	Description string       // the voxel and what was sampled
+	Voxel       dosemap.Vec3 // centre of the thermometry voxel sampled, mm
 }
 
 // session is a case prepared for fast re-analysis: thermometry and dose of

@@ -370,6 +370,7 @@ func (ss *reviewSession) Probe(p dosemap.Vec3, s analysisSettings) (*probeCurve,
 			continue
 		}
 		voxelText = fmt.Sprintf("voxel (%d, %d, %d)", i, j, k)
+		c.Voxel = g.Point(float64(i), float64(j), float64(k))
 		one := &dosemap.TemperatureSeries{Geometry: dosemap.NewAxialGeometry(1, 1, 1, dosemap.Vec3{1, 1, 1}, dosemap.Vec3{})}
 		idx := g.Index(i, j, k)
 		for f, fr := range ts.Frames {
@@ -406,7 +407,7 @@ func (ss *reviewSession) Probe(p dosemap.Vec3, s analysisSettings) (*probeCurve,
 		return nil, fmt.Errorf("the point (%.1f, %.1f, %.1f) mm lies outside the thermometry of every sonication", p[0], p[1], p[2])
 	}
 	c.FinalDose = cum
-	c.Description = fmt.Sprintf("(%.1f, %.1f, %.1f) mm, %s", p[0], p[1], p[2], voxelText)
+	c.Description = fmt.Sprintf("%s at (%.1f, %.1f, %.1f) mm", voxelText, c.Voxel[0], c.Voxel[1], c.Voxel[2])
 	return c, nil
 }
 

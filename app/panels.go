@@ -104,7 +104,7 @@ func (rw *reviewWindow) pin(p dosemap.Vec3) {
 				rw.probe.set(nil)
 				return
 			}
-			msg := rw.describePoint(p)
+			msg := "Voxel centre " + rw.describePoint(c.Voxel)
 			if math.IsNaN(c.LethalAt) {
 				msg += fmt.Sprintf(" · did not reach %s %s (final %s)", fmtNum(c.Threshold), c.Unit, fmtDose(c.FinalDose))
 			} else {

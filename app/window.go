@@ -465,7 +465,7 @@ func (rw *reviewWindow) describePoint(p dosemap.Vec3) string {
 func fmtDose(d float64) string {
 	switch {
 	case d >= 1e5:
-		return fmt.Sprintf("%.2g", d)
+		return fmt.Sprintf("%.3g", d)
 	case d >= 10:
 		return fmt.Sprintf("%.0f", d)
 	case d >= 0.01:
