@@ -177,6 +177,11 @@ func (rw *reviewWindow) newSonicationTable() *widget.Table {
 			case 6:
 				l.SetText(fmtOpt(100*row.CoverageAdded, "%.1f %%"))
 			case 7:
+				if rw.settings.excludedSet()[row.Number] {
+					l.Importance = widget.LowImportance
+					l.SetText("left out of the cumulative dose")
+					return
+				}
 				switch {
 				case len(row.Flags) == 0:
 					l.SetText("no flag")
@@ -263,7 +268,6 @@ func newMetricsPanel(rw *reviewWindow) *metricsPanel {
 				head := widget.NewLabelWithStyle("", fyne.TextAlignLeading, fyne.TextStyle{Bold: true})
 				detail := widget.NewLabel("")
 				detail.Truncation = fyne.TextTruncateEllipsis
-				detail.Importance = widget.LowImportance
 				return container.NewVBox(head, detail)
 			},
 			func(id widget.ListItemID, o fyne.CanvasObject) {
