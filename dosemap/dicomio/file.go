@@ -219,9 +219,14 @@ func readBytes(path string, data []byte, pixels bool) (fi *fileInfo, err error) 
 	if ts, ok := transferSyntaxes[syntax]; ok && !ts.supported {
 		return nil, skip("unsupported compression: %s (%s)", ts.name, syntax)
 	}
-	var le *lengthError
-	if errors.As(err, &le) {
-		return nil, skip("truncated or corrupt: %v", err)
+	if err != nil {
+		// The DICOM library would misread such a file, possibly
+		// allocating whatever a corrupt length declares: it is not parsed.
+		var le *lengthError
+		if errors.As(err, &le) {
+			return nil, skip("truncated or corrupt: %v", err)
+		}
+		return nil, skip("corrupt: %v", err)
 	}
 	opts := []dicom.ParseOption{dicom.AllowMismatchPixelDataLength(), dicom.AllowUnknownSpecificCharacterSet()}
 	if pixels {
@@ -354,8 +359,12 @@ func (fi *fileInfo) fill(es elems, pixels bool) error {
 	if nf > 1<<20 || fi.Rows*fi.Cols > 1<<26 {
 		return skip("implausible image size %d×%d×%d", fi.Cols, fi.Rows, nf)
 	}
+	need := nf * fi.Rows * fi.Cols * fi.BitsAllocated / 8
+	if int64(pd.ValueLength) < int64(need) {
+		return skip("truncated or corrupt: PixelData (7fe0,0010) holds %d bytes, %d×%d×%d frames of %d bits need %d",
+			pd.ValueLength, fi.Cols, fi.Rows, nf, fi.BitsAllocated, need)
+	}
 	if pixels {
-		need := nf * fi.Rows * fi.Cols * fi.BitsAllocated / 8
 		if len(info.UnprocessedValueData) < need {
 			return skip("truncated: pixel data holds %d bytes, %d×%d×%d frames need %d",
 				len(info.UnprocessedValueData), fi.Cols, fi.Rows, nf, need)

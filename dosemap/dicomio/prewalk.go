@@ -30,27 +30,49 @@ type walker struct {
 	explicit bool
 	bo       binary.ByteOrder
 	syntax   string
+	inMeta   bool // reading the file meta information (explicit VR LE)
+	trace    func(pos int, t tag.Tag, vr string, vl uint32) // debugging aid; nil normally
 }
 
 // checkLengths returns nil when every element length fits, else an error
 // naming the element. It also reports the transfer syntax found in the file
 // meta information ("" when absent).
-func checkLengths(data []byte) (syntax string, err error) {
+func checkLengths(data []byte) (syntax string, err error) { return checkLengthsTrace(data, nil) }
+
+func checkLengthsTrace(data []byte, trace func(pos int, t tag.Tag, vr string, vl uint32)) (syntax string, err error) {
 	pos := 0
 	if len(data) >= 132 && string(data[128:132]) == "DICM" {
 		pos = 132
 	}
-	w := &walker{data: data, explicit: true, bo: binary.LittleEndian}
-	// File meta information: group 0002, explicit VR little endian.
-	for pos+8 <= len(data) && binary.LittleEndian.Uint16(data[pos:]) == 0x0002 {
+	w := &walker{data: data, explicit: true, bo: binary.LittleEndian, trace: trace}
+	// File meta information: group 0002, explicit VR little endian. The
+	// library reads exactly FileMetaInformationGroupLength bytes of it (and
+	// gives up without that element), so the walk does the same.
+	if pos+8 <= len(data) && binary.LittleEndian.Uint16(data[pos:]) == 0x0002 {
+		w.inMeta = true
 		next, t, val, err := w.header(pos, len(data))
 		if err != nil {
 			return "", err
 		}
-		if t == tag.TransferSyntaxUID {
-			w.syntax = trimUID(val)
+		if t != tag.FileMetaInformationGroupLength || len(val) != 4 {
+			return "", fmt.Errorf("file meta information does not start with %s", tagName(tag.FileMetaInformationGroupLength))
+		}
+		metaEnd := int64(next) + int64(binary.LittleEndian.Uint32(val))
+		if metaEnd > int64(len(data)) {
+			return "", &lengthError{fmt.Sprintf("%s declares %d bytes but only %d remain", tagName(t), metaEnd-int64(next), len(data)-next)}
 		}
 		pos = next
+		for pos < int(metaEnd) {
+			next, t, val, err := w.header(pos, int(metaEnd))
+			if err != nil {
+				return "", err
+			}
+			if t == tag.TransferSyntaxUID {
+				w.syntax = trimUID(val)
+			}
+			pos = next
+		}
+		w.inMeta = false
 	}
 	switch w.syntax {
 	case "1.2.840.10008.1.2":
@@ -58,8 +80,26 @@ func checkLengths(data []byte) (syntax string, err error) {
 	case "1.2.840.10008.1.2.2":
 		w.bo = binary.BigEndian
 	case "":
-		// No meta information: guess byte order and VR style from the
-		// first element.
+		// Without a transfer syntax the library tries to read the first
+		// element in three syntaxes, allocating whatever length each
+		// reading declares: refuse implausible ones.
+		if pos+12 <= len(data) {
+			d := data[pos:]
+			cands := []uint32{binary.LittleEndian.Uint32(d[4:])}
+			for _, bo := range []binary.ByteOrder{binary.BigEndian, binary.LittleEndian} {
+				if longVR[string(d[4:6])] {
+					cands = append(cands, bo.Uint32(d[8:]))
+				} else {
+					cands = append(cands, uint32(bo.Uint16(d[6:])))
+				}
+			}
+			for _, vl := range cands {
+				if vl != undefinedLength && vl > 16<<20 && int64(vl) > int64(len(data)) {
+					return "", &lengthError{fmt.Sprintf("no transfer syntax given and the first element declares %d bytes in a %d-byte file", vl, len(data))}
+				}
+			}
+		}
+		// Guess byte order and VR style from the first element.
 		if pos+6 <= len(data) && binary.LittleEndian.Uint16(data[pos:]) != 0x0008 && binary.BigEndian.Uint16(data[pos:]) == 0x0008 {
 			w.bo = binary.BigEndian
 		}
@@ -104,11 +144,11 @@ func (w *walker) readHeader(pos, end int) (valPos int, t tag.Tag, vr string, vl 
 		return 0, t, "", 0, fmt.Errorf("element header at byte %d cut short", pos)
 	}
 	bo := w.bo
-	if pos < len(w.data) && w.metaGroup(pos) {
-		bo = binary.LittleEndian
+	explicit := w.explicit
+	if w.inMeta {
+		bo, explicit = binary.LittleEndian, true
 	}
 	t = tag.Tag{Group: bo.Uint16(w.data[pos:]), Element: bo.Uint16(w.data[pos+2:])}
-	explicit := w.explicit || t.Group == 0x0002
 	switch {
 	case t.Group == 0xFFFE: // item and delimiters: always tag + 4-byte length
 		vl = bo.Uint32(w.data[pos+4:])
@@ -129,14 +169,16 @@ func (w *walker) readHeader(pos, end int) (valPos int, t tag.Tag, vr string, vl 
 		vl = bo.Uint32(w.data[pos+4:])
 		valPos = pos + 8
 	}
+	if w.trace != nil {
+		w.trace(pos, t, vr, vl)
+	}
+	if (t == tag.ItemDelimitationItem || t == tag.SequenceDelimitationItem) && vl != 0 {
+		return 0, t, vr, vl, fmt.Errorf("%s at byte %d has length %d instead of 0", tagName(t), pos, vl)
+	}
 	if vl != undefinedLength && int64(valPos)+int64(vl) > int64(end) {
 		return 0, t, vr, vl, &lengthError{fmt.Sprintf("%s declares %d bytes but only %d remain", tagName(t), vl, end-valPos)}
 	}
 	return valPos, t, vr, vl, nil
-}
-
-func (w *walker) metaGroup(pos int) bool {
-	return binary.LittleEndian.Uint16(w.data[pos:]) == 0x0002
 }
 
 // isSequence reports whether the element is a sequence: VR SQ, or, in
@@ -174,24 +216,28 @@ func (w *walker) elements(pos, end int, inUndefined bool, depth int) (int, error
 			return 0, err
 		}
 		switch {
+		case t == tag.ItemDelimitationItem && inUndefined:
+			return valPos, nil
 		case t == tag.ItemDelimitationItem || t == tag.SequenceDelimitationItem:
-			if inUndefined {
-				return valPos, nil
-			}
-			pos = valPos
-			continue
+			// The library reads a delimiter out of place as an ordinary
+			// element with a VR, so its view and ours would part here.
+			return 0, fmt.Errorf("%s out of place at byte %d", tagName(t), pos)
 		case t == tag.Item:
-			// A stray item at this level: step over its content.
+			// A stray item at this level: the library parses its content
+			// as elements, so it is walked the same way.
 			if vl == undefinedLength {
 				if pos, err = w.elements(valPos, end, true, depth+1); err != nil {
 					return 0, err
 				}
 				continue
 			}
+			if _, err := w.elements(valPos, valPos+int(vl), false, depth+1); err != nil {
+				return 0, err
+			}
 			pos = valPos + int(vl)
 			continue
 		}
-		explicit := w.explicit || t.Group == 0x0002
+		explicit := w.explicit
 		seq := isSequence(t, vr, explicit) || (vl == undefinedLength && (vr == "UN" || !explicit) && t != tag.PixelData)
 		switch {
 		case seq:
