@@ -30,7 +30,7 @@ type walker struct {
 	explicit bool
 	bo       binary.ByteOrder
 	syntax   string
-	inMeta   bool // reading the file meta information (explicit VR LE)
+	inMeta   bool                                           // reading the file meta information (explicit VR LE)
 	trace    func(pos int, t tag.Tag, vr string, vl uint32) // debugging aid; nil normally
 }
 
