@@ -63,8 +63,10 @@ func (v *Volume) Check() error {
 // coordinate (i, j, k). A point within half a voxel outside the outermost
 // voxel centres takes the value of the nearest edge voxel (the edge voxel's
 // extent); a point farther out returns NaN. Interpolation touching a NaN
-// voxel returns NaN, so missing data never blends into valid data. A grid
-// of one slice is sampled bilinearly within ±half a slice.
+// voxel returns NaN, so missing data never blends into valid data; a
+// coordinate within 1e-6 voxel of a voxel centre is taken as that centre,
+// so rounding never lets a NaN neighbour leak in. A grid of one slice is
+// sampled bilinearly within ±half a slice.
 func (v *Volume) SampleVoxel(i, j, k float64) float32 {
 	x, ok0 := clampAxis(i, v.Cols)
 	y, ok1 := clampAxis(j, v.Rows)
@@ -133,14 +135,27 @@ func clampAxis(x float64, n int) (float64, bool) {
 	return x, true
 }
 
+// snap is the distance, in voxels, within which a coordinate counts as a
+// voxel centre. Coordinates computed through patient space carry rounding
+// errors of ~1e-13 voxels; without snapping, a grid resampled onto itself
+// would blend in neighbours with tiny weights and spread their NaN.
+const snap = 1e-6
+
 // split returns the lower neighbour index and the fractional weight of the
-// upper neighbour, keeping the upper neighbour inside [0, n-1].
+// upper neighbour, keeping the upper neighbour inside [0, n-1]. A weight
+// within snap of 0 or 1 is rounded to the voxel centre.
 func split(x float64, n int) (int, float64) {
 	i0 := int(math.Floor(x))
+	f := x - float64(i0)
+	if f > 1-snap {
+		i0, f = i0+1, 0
+	} else if f < snap {
+		f = 0
+	}
 	if i0 >= n-1 {
 		return n - 1, 0
 	}
-	return i0, x - float64(i0)
+	return i0, f
 }
 
 // Resample returns v trilinearly interpolated onto the voxel centres of dst.

@@ -1,0 +1,1035 @@
+package dosemap
+
+import (
+	"cmp"
+	"errors"
+	"fmt"
+	"math"
+
+	"gonum.org/v1/gonum/mat"
+)
+
+// DriftMethod selects how Thermometry removes the slow background phase
+// drift (main-field drift, shim heating) that PRF thermometry mistakes for
+// temperature change.
+type DriftMethod int
+
+// Drift correction methods.
+const (
+	// DriftNone leaves the phase as measured.
+	DriftNone DriftMethod = iota
+	// DriftMean subtracts, frame by frame, the mean phase change of the
+	// reference region (one value for the whole volume).
+	DriftMean
+	// DriftPolynomial fits, frame by frame and slice by slice, a 2-D
+	// polynomial of order DriftOrder (0–2) in the in-plane coordinates to
+	// the phase change of the reference region by weighted least squares,
+	// and subtracts it everywhere in the slice. Weights are the squared
+	// baseline magnitude (the inverse of the phase-noise variance); 1 when
+	// there is no magnitude. This is the background model of referenceless
+	// thermometry (Rieke et al., Magn Reson Med 2004;51:1223) applied to the
+	// phase difference.
+	DriftPolynomial
+)
+
+// String returns "none", "mean" or "polynomial".
+func (d DriftMethod) String() string {
+	switch d {
+	case DriftMean:
+		return "mean"
+	case DriftPolynomial:
+		return "polynomial"
+	}
+	return "none"
+}
+
+// ThermometryOptions are the settings of Thermometry. A zero field takes the
+// default of DefaultThermometryOptions, except Drift and DriftOrder, whose
+// zero values are meaningful; a negative MinMagnitude or MaxMotion turns that
+// check off.
+type ThermometryOptions struct {
+	// PRF gives α and the phase sign; B0 (T) and TE (s) override the
+	// sonication's values when non-zero.
+	PRF PRF
+	// BaselineFrames is the number of frames at the start of each series,
+	// before heating, whose complex mean is the phase reference (default 2;
+	// clamped to the number of frames).
+	BaselineFrames int
+	// BodyTemp is the temperature (°C) of the tissue in the baseline frames;
+	// the result is BodyTemp + ΔT (default 37).
+	BodyTemp float64
+	// Drift and DriftOrder select the drift correction (default
+	// DriftPolynomial of order 1).
+	Drift      DriftMethod
+	DriftOrder int
+	// Reference marks the unheated voxels the drift is measured in (one
+	// value per voxel). Nil selects it automatically: the hottest spot is
+	// the voxel of largest 3×3-smoothed peak phase change after a
+	// per-slice first-order (or DriftOrder) background fit; the reference
+	// is every voxel with signal whose in-plane distance from it is at
+	// least max(20 mm, a quarter of the smaller in-plane field of view).
+	Reference []bool
+	// MinMagnitude is a fraction of the 98th percentile of the baseline
+	// magnitude: a voxel whose baseline magnitude, or whose magnitude in a
+	// frame, falls below it is NaN in every frame, or in that frame (default
+	// 0.1). Ignored without magnitude images.
+	MinMagnitude float64
+	// MaxMotion flags a frame whose magnitude image correlates with the
+	// baseline magnitude by less than 1 − MaxMotion (Pearson r over every
+	// other voxel of the volume, background included); a flagged frame is
+	// NaN throughout (default 0.1, i.e. r < 0.9).
+	MaxMotion float64
+}
+
+// Defaults of ThermometryOptions.
+const (
+	DefaultBaselineFrames = 2
+	DefaultMinMagnitude   = 0.1
+	DefaultMaxMotion      = 0.1
+)
+
+// DefaultThermometryOptions returns α = −0.01 ppm/°C, sign +1, B0 and TE
+// from the series, 2 baseline frames, body temperature 37 °C, first-order
+// polynomial drift correction in an automatic reference region, magnitude
+// threshold 0.1 and motion threshold 0.1.
+func DefaultThermometryOptions() ThermometryOptions {
+	return ThermometryOptions{
+		PRF:            PRF{Alpha: DefaultAlpha, Sign: 1},
+		BaselineFrames: DefaultBaselineFrames,
+		BodyTemp:       DefaultBodyTemp,
+		Drift:          DriftPolynomial,
+		DriftOrder:     1,
+		MinMagnitude:   DefaultMinMagnitude,
+		MaxMotion:      DefaultMaxMotion,
+	}
+}
+
+func (o ThermometryOptions) withDefaults() ThermometryOptions {
+	d := DefaultThermometryOptions()
+	if o.PRF.Alpha == 0 {
+		o.PRF.Alpha = d.PRF.Alpha
+	}
+	if o.PRF.Sign == 0 {
+		o.PRF.Sign = 1
+	}
+	if o.BaselineFrames <= 0 {
+		o.BaselineFrames = d.BaselineFrames
+	}
+	if o.BodyTemp == 0 {
+		o.BodyTemp = d.BodyTemp
+	}
+	if o.MinMagnitude == 0 {
+		o.MinMagnitude = d.MinMagnitude
+	}
+	if o.MaxMotion == 0 {
+		o.MaxMotion = d.MaxMotion
+	}
+	return o
+}
+
+// FrameQuality describes one thermometry frame.
+type FrameQuality struct {
+	Time    float64 // seconds from the series start
+	Motion  float64 // 1 − r, r the Pearson correlation of magnitude with baseline magnitude; NaN without magnitude
+	Drift   float64 // mean drift removed over the reference region, °C
+	SNR     float64 // mean magnitude SNR over the valid voxels; NaN when unknown
+	Wraps   int     // voxels whose temporal unwrapping added or removed a turn in this frame
+	Invalid int     // NaN voxels in the frame
+	Flagged bool    // frame rejected (motion); all its voxels are NaN
+	Note    string  // why the frame was flagged, or other remarks
+}
+
+// TemperatureSeries is the temperature of one sonication, frame by frame.
+type TemperatureSeries struct {
+	Geometry Geometry
+	Times    []float64   // seconds from the series start, increasing
+	Frames   [][]float32 // absolute °C per frame, NaN invalid
+	Sigma    []float32   // per-voxel noise °C (NaN unknown)
+	Quality  []FrameQuality
+}
+
+// Thermometry converts the phase (and magnitude) frames of s into
+// temperature by the PRF shift (see PRF):
+//
+//  1. The reference is the complex mean of the first BaselineFrames frames,
+//     z_ref = mean(m·e^{iφ}) (m = 1 without magnitude). The phase change of
+//     frame t is Δφ_t = arg(z_t·conj(z_ref)), wrapped into (−π, π].
+//  2. Δφ is unwrapped in time voxel by voxel (Itoh's method: the turn count
+//     is chosen so that the change from the previous valid frame lies in
+//     (−π, π]), so rises beyond PRF.WrapLimit are tracked as long as the
+//     change between frames stays below it. FrameQuality.Wraps counts the
+//     voxels where a turn was added or removed.
+//  3. The drift of the reference region is removed (opt.Drift).
+//  4. T = BodyTemp + Δφ / PRF.PhasePerDegree.
+//
+// Low-signal voxels and frames flagged for motion are NaN, never zero.
+// Sigma is NoiseSigma(SNR) per voxel, with SNR = baseline mean magnitude
+// divided by the slice's noise level, estimated robustly (median) from the
+// temporal variance of the magnitude over the baseline frames (two or more
+// needed); without magnitude, SNR = 1/σ_φ from the voxel's temporal phase
+// standard deviation over the baseline (three or more frames needed);
+// otherwise Sigma is NaN. The √2 of NoiseSigma makes Sigma exact for a
+// one-frame baseline and conservative for longer ones.
+//
+// A temperature-map sonication passes through: its frames are shared, not
+// copied, and Sigma is NaN. B0 and TE come from opt.PRF when non-zero, else
+// from s; when neither has them the error names the sonication and the
+// missing attribute.
+func Thermometry(s *Sonication, opt ThermometryOptions) (*TemperatureSeries, error) {
+	if s == nil {
+		return nil, errors.New("thermometry: no sonication")
+	}
+	name := sonicationName(s)
+	opt = opt.withDefaults()
+	g := s.Geometry
+	if err := g.Validate(); err != nil {
+		return nil, fmt.Errorf("%s: thermometry grid: %w", name, err)
+	}
+	nv := g.Len()
+	switch {
+	case s.Temperature != nil:
+		return passThrough(s, name)
+	case s.Phase == nil && s.Dose != nil:
+		return nil, fmt.Errorf("%s is a ready-made dose map and holds no thermometry frames", name)
+	case len(s.Phase) == 0:
+		return nil, fmt.Errorf("%s holds no thermometry frames", name)
+	}
+	nf := len(s.Phase)
+	if err := checkFrames(name, "phase", s.Phase, nv); err != nil {
+		return nil, err
+	}
+	mag := s.Magnitude
+	if len(mag) == 0 {
+		mag = nil
+	}
+	if mag != nil {
+		if len(mag) != nf {
+			return nil, fmt.Errorf("%s: %d magnitude frames for %d phase frames", name, len(mag), nf)
+		}
+		if err := checkFrames(name, "magnitude", mag, nv); err != nil {
+			return nil, err
+		}
+	}
+	if err := checkTimes(name, s.Times, nf); err != nil {
+		return nil, err
+	}
+	p := opt.PRF
+	if p.B0 == 0 {
+		p.B0 = s.B0
+	}
+	if p.TE == 0 {
+		p.TE = s.TE
+	}
+	var miss []string
+	if !(p.B0 > 0) || math.IsInf(p.B0, 0) {
+		miss = append(miss, "the field strength B0 (MagneticFieldStrength, 0018,0087)")
+	}
+	if !(p.TE > 0) || math.IsInf(p.TE, 0) {
+		miss = append(miss, "the echo time TE (EchoTime, 0018,0081)")
+	}
+	if len(miss) > 0 {
+		what := miss[0]
+		if len(miss) == 2 {
+			what += " and " + miss[1]
+		}
+		return nil, fmt.Errorf("%s: PRF thermometry needs %s, which the series lacks; enter it in the thermometry settings", name, what)
+	}
+	if opt.Reference != nil && len(opt.Reference) != nv {
+		return nil, fmt.Errorf("%s: drift reference mask holds %d values for %d voxels", name, len(opt.Reference), nv)
+	}
+	if opt.Drift == DriftPolynomial && (opt.DriftOrder < 0 || opt.DriftOrder > 2) {
+		return nil, fmt.Errorf("drift polynomial order %d is not 0, 1 or 2", opt.DriftOrder)
+	}
+	t := &thermo{s: s, g: g, p: p, opt: opt, mag: mag, nv: nv, nf: nf, nb: min(opt.BaselineFrames, nf)}
+	return t.run(), nil
+}
+
+func checkFrames(name, kind string, frames [][]float32, nv int) error {
+	for n, f := range frames {
+		if len(f) != nv {
+			return fmt.Errorf("%s: %s frame %d holds %d values for %d voxels", name, kind, n+1, len(f), nv)
+		}
+	}
+	return nil
+}
+
+func checkTimes(name string, times []float64, nf int) error {
+	if len(times) != nf {
+		return fmt.Errorf("%s: %d frame times for %d frames", name, len(times), nf)
+	}
+	for n, t := range times {
+		if math.IsNaN(t) || math.IsInf(t, 0) {
+			return fmt.Errorf("%s: frame %d has no valid acquisition time", name, n+1)
+		}
+		if n > 0 && !(t > times[n-1]) {
+			return fmt.Errorf("%s: frame %d time %.3f s does not follow frame %d time %.3f s", name, n+1, t, n, times[n-1])
+		}
+	}
+	return nil
+}
+
+func passThrough(s *Sonication, name string) (*TemperatureSeries, error) {
+	nv := s.Geometry.Len()
+	if err := checkFrames(name, "temperature", s.Temperature, nv); err != nil {
+		return nil, err
+	}
+	if err := checkTimes(name, s.Times, len(s.Temperature)); err != nil {
+		return nil, err
+	}
+	ts := &TemperatureSeries{Geometry: s.Geometry, Times: s.Times, Frames: s.Temperature,
+		Sigma: nanSlice(nv), Quality: make([]FrameQuality, len(s.Temperature))}
+	for n, f := range s.Temperature {
+		q := &ts.Quality[n]
+		q.Time, q.Motion, q.SNR = s.Times[n], math.NaN(), math.NaN()
+		q.Note = "temperature map from the scanner"
+		for _, v := range f {
+			if v != v {
+				q.Invalid++
+			}
+		}
+	}
+	return ts, nil
+}
+
+func nanSlice(n int) []float32 {
+	s := make([]float32, n)
+	nan := float32(math.NaN())
+	for i := range s {
+		s[i] = nan
+	}
+	return s
+}
+
+// thermo carries the working state of one Thermometry call.
+type thermo struct {
+	s          *Sonication
+	g          Geometry
+	p          PRF
+	opt        ThermometryOptions
+	mag        [][]float32
+	nv, nf, nb int
+
+	ref     []float64 // reference phase, NaN for voxels without signal
+	baseMag []float32 // baseline mean magnitude (nil without magnitude)
+	magThr  float32   // absolute magnitude threshold
+	noise   []float64 // per-slice magnitude noise σ (nil when unknown)
+	pass    []float32 // stand-in magnitudes for phase-only series
+	out     *TemperatureSeries
+}
+
+func (t *thermo) run() *TemperatureSeries {
+	ts := &TemperatureSeries{Geometry: t.g, Times: append([]float64(nil), t.s.Times...),
+		Frames: make([][]float32, t.nf), Quality: make([]FrameQuality, t.nf)}
+	t.out = ts
+	t.baseline()
+	ts.Sigma = t.sigma()
+	t.unwrap()
+	if t.opt.Drift != DriftNone {
+		t.drift()
+	}
+	t.toTemperature()
+	if t.nb < t.opt.BaselineFrames {
+		ts.Quality[0].Note = joinNote(ts.Quality[0].Note, fmt.Sprintf("only %d baseline frames available", t.nb))
+	}
+	return ts
+}
+
+// baseline computes the reference phase, the baseline magnitude and the
+// magnitude threshold.
+func (t *thermo) baseline() {
+	nv := t.nv
+	t.ref = make([]float64, nv)
+	re := make([]float64, nv)
+	im := make([]float64, nv)
+	cnt := make([]int32, nv)
+	var msum []float64
+	if t.mag != nil {
+		msum = make([]float64, nv)
+	}
+	for f := 0; f < t.nb; f++ {
+		ph := t.s.Phase[f]
+		for n, v := range ph {
+			m := 1.0
+			if t.mag != nil {
+				m = float64(t.mag[f][n])
+			}
+			if v != v || m != m {
+				continue
+			}
+			sn, cs := math.Sincos(float64(v))
+			re[n] += m * cs
+			im[n] += m * sn
+			cnt[n]++
+			if msum != nil {
+				msum[n] += m
+			}
+		}
+	}
+	for n := range t.ref {
+		if cnt[n] == 0 || (re[n] == 0 && im[n] == 0) {
+			t.ref[n] = math.NaN()
+			continue
+		}
+		t.ref[n] = math.Atan2(im[n], re[n])
+	}
+	if t.mag == nil {
+		return
+	}
+	t.baseMag = make([]float32, nv)
+	var vals []float32
+	for n := range msum {
+		if cnt[n] == 0 {
+			t.baseMag[n] = float32(math.NaN())
+			continue
+		}
+		t.baseMag[n] = float32(msum[n] / float64(cnt[n]))
+		vals = append(vals, t.baseMag[n])
+	}
+	if t.opt.MinMagnitude > 0 && len(vals) > 0 {
+		p98 := nthSmallest(vals, min(len(vals)-1, int(0.98*float64(len(vals)))))
+		t.magThr = float32(t.opt.MinMagnitude) * p98
+	}
+	for n, m := range t.baseMag {
+		if !(m >= t.magThr) || (t.magThr == 0 && !(m > 0)) {
+			t.ref[n] = math.NaN() // no signal: never valid
+		}
+	}
+}
+
+// sigma estimates the per-voxel temperature noise from the baseline frames.
+func (t *thermo) sigma() []float32 {
+	sig := nanSlice(t.nv)
+	g := t.g
+	sl := g.SliceLen()
+	if t.mag != nil && t.nb >= 2 {
+		// Per-slice noise σ: the median of the voxels' temporal variances
+		// divided by the median of χ²_k/k (Wilson–Hilferty approximation,
+		// k = nb−1), so heated, moving or flowing voxels do not inflate it.
+		k := float64(t.nb - 1)
+		medChi := math.Pow(1-2/(9*k), 3)
+		t.noise = make([]float64, g.Slices)
+		vars := make([]float64, 0, sl)
+		for s := 0; s < g.Slices; s++ {
+			vars = vars[:0]
+			for n := s * sl; n < (s+1)*sl; n++ {
+				if math.IsNaN(t.ref[n]) {
+					continue
+				}
+				mean := float64(t.baseMag[n])
+				var ss float64
+				ok := true
+				for f := 0; f < t.nb; f++ {
+					m := float64(t.mag[f][n])
+					if m != m {
+						ok = false
+						break
+					}
+					ss += (m - mean) * (m - mean)
+				}
+				if ok {
+					vars = append(vars, ss/k)
+				}
+			}
+			t.noise[s] = math.NaN()
+			if len(vars) >= 10 {
+				t.noise[s] = math.Sqrt(nthSmallest(vars, len(vars)/2) / medChi)
+			}
+		}
+		for n := range sig {
+			s := n / sl
+			if math.IsNaN(t.ref[n]) || !(t.noise[s] > 0) {
+				continue
+			}
+			snr := float64(t.baseMag[n]) / t.noise[s]
+			sig[n] = float32(t.p.NoiseSigma(snr))
+		}
+		return sig
+	}
+	if t.mag == nil && t.nb >= 3 {
+		for n := range sig {
+			if math.IsNaN(t.ref[n]) {
+				continue
+			}
+			var ss float64
+			ok := true
+			for f := 0; f < t.nb; f++ {
+				v := float64(t.s.Phase[f][n])
+				if v != v {
+					ok = false
+					break
+				}
+				d := wrapPhase(v - t.ref[n])
+				ss += d * d
+			}
+			if ok && ss > 0 {
+				sigPhi := math.Sqrt(ss / float64(t.nb-1))
+				sig[n] = float32(t.p.NoiseSigma(1 / sigPhi))
+			}
+		}
+	}
+	return sig
+}
+
+// unwrap computes the temporally unwrapped phase change of every frame into
+// the output frames (radians for now), with motion and signal checks.
+func (t *thermo) unwrap() {
+	nv := t.nv
+	last := make([]float32, nv) // last valid unwrapped phase change
+	turns := make([]int32, nv)  // its number of turns
+	nan := float32(math.NaN())
+	const twoPi = 2 * math.Pi
+	const invTwoPi = 1 / twoPi
+	slab := make([]float32, t.nf*nv) // all frames in one allocation
+	for f := 0; f < t.nf; f++ {
+		q := &t.out.Quality[f]
+		q.Time = t.s.Times[f]
+		q.Motion, q.SNR = math.NaN(), math.NaN()
+		out := slab[f*nv : (f+1)*nv : (f+1)*nv]
+		t.out.Frames[f] = out
+		ph := t.s.Phase[f]
+		var mf []float32
+		if t.mag != nil {
+			mf = t.mag[f]
+			q.Motion = 1 - correlation(mf, t.baseMag, 2)
+			if t.opt.MaxMotion > 0 && !(q.Motion <= t.opt.MaxMotion) {
+				q.Flagged = true
+				q.Note = fmt.Sprintf("motion: magnitude correlation with baseline %.3f below %.3f", 1-q.Motion, 1-t.opt.MaxMotion)
+				for n := range out {
+					out[n] = nan
+				}
+				q.Invalid = nv
+				continue
+			}
+		}
+		thr := t.magThr
+		wraps := 0
+		// Equal lengths let the compiler drop the bounds checks.
+		ref, lastf, turnsf, outf := t.ref[:len(ph)], last[:len(ph)], turns[:len(ph)], out[:len(ph)]
+		if mf == nil {
+			mf = t.noMagnitude(len(ph))
+		}
+		mf = mf[:len(ph)]
+		for n, v := range ph {
+			r := ref[n]
+			if v != v || r != r || !(mf[n] >= thr) {
+				outf[n] = nan
+				continue
+			}
+			w := wrapPhase(float64(v) - r)
+			// Nearest turn count: floor by truncation after an offset of
+			// 2^20 turns (phase changes of a million turns do not occur).
+			k := float64(int64((float64(lastf[n])-w)*invTwoPi+0.5+1<<20)) - 1<<20
+			u := w + twoPi*k
+			if int32(k) != turnsf[n] {
+				wraps++
+				turnsf[n] = int32(k)
+			}
+			lastf[n] = float32(u)
+			outf[n] = float32(u)
+		}
+		q.Wraps = wraps
+	}
+}
+
+// noMagnitude returns n magnitudes of +Inf, which pass every magnitude check (for
+// phase-only series), cached.
+func (t *thermo) noMagnitude(n int) []float32 {
+	if len(t.pass) != n {
+		t.pass = make([]float32, n)
+		for i := range t.pass {
+			t.pass[i] = float32(math.Inf(1))
+		}
+	}
+	return t.pass
+}
+
+// toTemperature converts the phase frames into °C and fills the counts.
+func (t *thermo) toTemperature() {
+	ppd := t.p.PhasePerDegree()
+	inv := 1 / ppd
+	body := t.opt.BodyTemp
+	g := t.g
+	sl := g.SliceLen()
+	for f, out := range t.out.Frames {
+		q := &t.out.Quality[f]
+		q.Drift *= inv
+		inval := 0
+		var mf []float32
+		if t.noise != nil && !q.Flagged {
+			mf = t.mag[f]
+		}
+		var snrSum float64
+		snrCnt := 0
+		for s := 0; s < g.Slices; s++ {
+			sv := out[s*sl : (s+1)*sl]
+			var msum float64
+			valid := 0
+			if mf != nil {
+				ms := mf[s*sl : (s+1)*sl]
+				ms = ms[:len(sv)]
+				for n, u := range sv {
+					if u != u {
+						continue
+					}
+					sv[n] = float32(body + float64(u)*inv)
+					msum += float64(ms[n])
+					valid++
+				}
+			} else {
+				for n, u := range sv {
+					if u != u {
+						continue
+					}
+					sv[n] = float32(body + float64(u)*inv)
+					valid++
+				}
+			}
+			inval += sl - valid
+			if mf != nil && t.noise[s] > 0 {
+				snrSum += msum / t.noise[s]
+				snrCnt += valid
+			}
+		}
+		q.Invalid = inval
+		if snrCnt > 0 {
+			q.SNR = snrSum / float64(snrCnt)
+		}
+	}
+}
+
+// correlation returns the Pearson correlation of a and b over every
+// stride-th voxel where both are finite (NaN when undefined): a regular
+// sample of the whole volume, which estimates r as well as all voxels do
+// for images of many thousand voxels at a fraction of the work.
+func correlation(a, b []float32, stride int) float64 {
+	var sa, sb, saa, sbb, sab float64
+	n := 0
+	b = b[:len(a)]
+	for i := 0; i < len(a); i += stride {
+		x, y := a[i], b[i]
+		if x != x || y != y {
+			continue
+		}
+		fx, fy := float64(x), float64(y)
+		sa += fx
+		sb += fy
+		saa += fx * fx
+		sbb += fy * fy
+		sab += fx * fy
+		n++
+	}
+	if n < 2 {
+		return math.NaN()
+	}
+	fn := float64(n)
+	cov := sab - sa*sb/fn
+	va := saa - sa*sa/fn
+	vb := sbb - sb*sb/fn
+	if !(va > 0) || !(vb > 0) {
+		return math.NaN()
+	}
+	return cov / math.Sqrt(va*vb)
+}
+
+func joinNote(a, b string) string {
+	if a == "" {
+		return b
+	}
+	return a + "; " + b
+}
+
+// referenceMask returns the drift reference region: opt.Reference, or the
+// automatic region (see ThermometryOptions.Reference), restricted to voxels
+// with signal.
+func (t *thermo) referenceMask() []bool {
+	nv := t.nv
+	ref := make([]bool, nv)
+	if t.opt.Reference != nil {
+		for n, r := range t.opt.Reference {
+			ref[n] = r && !math.IsNaN(t.ref[n])
+		}
+		return ref
+	}
+	g := t.g
+	sl := g.SliceLen()
+	// Peak phase change on the lattice of even i and j, after removing,
+	// frame by frame and slice by slice, a least-squares polynomial (order
+	// max(1, DriftOrder)) fitted to the lattice voxels with signal, so a
+	// drift is not taken for the hot spot; then smoothed over the 3×3
+	// lattice neighbours. The hottest spot is located to within a voxel.
+	lat := make([]bool, nv)
+	for n := range lat {
+		i, j, _ := g.IJK(n)
+		lat[n] = !math.IsNaN(t.ref[n]) && i%2 == 0 && j%2 == 0
+	}
+	order := 1
+	if t.opt.Drift == DriftPolynomial {
+		order = max(1, t.opt.DriftOrder)
+	}
+	peak := make([]float64, nv)
+	for s := 0; s < g.Slices; s++ {
+		sf := newSliceFit(g, s, lat, nil, order)
+		for f := t.nb; f < t.nf; f++ {
+			if t.out.Quality[f].Flagged {
+				continue
+			}
+			v := t.out.Frames[f][s*sl : (s+1)*sl]
+			cf, err := sf.fit(v)
+			if err != nil {
+				// Too few voxels for the polynomial: use the lattice mean.
+				var sum float64
+				cnt := 0
+				for _, n := range sf.idx {
+					if x := v[n]; x == x {
+						sum += float64(x)
+						cnt++
+					}
+				}
+				cf = [6]float64{sum / float64(max(cnt, 1))}
+			}
+			pk := peak[s*sl : (s+1)*sl]
+			for j := 0; j < g.Rows; j++ {
+				y := sf.y[j]
+				a := cf[0] + cf[2]*y + cf[5]*y*y
+				b := cf[1] + cf[4]*y
+				c := cf[3]
+				for p := sf.rowStart[j]; p < sf.rowStart[j+1]; p++ {
+					n := int(sf.idx[p])
+					if u := v[n]; u == u {
+						x := sf.x[n-j*g.Cols]
+						pk[n] = max(pk[n], math.Abs(float64(u)-(a+x*(b+x*c))))
+					}
+				}
+			}
+		}
+	}
+	best, bi, bj := -1.0, 0, 0
+	for k := 0; k < g.Slices; k++ {
+		for j := 0; j < g.Rows; j += 2 {
+			for i := 0; i < g.Cols; i += 2 {
+				if !lat[g.Index(i, j, k)] {
+					continue
+				}
+				var sum float64
+				cnt := 0
+				for dj := -2; dj <= 2; dj += 2 {
+					for di := -2; di <= 2; di += 2 {
+						if g.Contains(i+di, j+dj, k) {
+							if n := g.Index(i+di, j+dj, k); lat[n] {
+								sum += peak[n]
+								cnt++
+							}
+						}
+					}
+				}
+				if m := sum / float64(cnt); m > best {
+					best, bi, bj = m, i, j
+				}
+			}
+		}
+	}
+	fovMin := math.Min(float64(g.Cols)*g.Spacing[0], float64(g.Rows)*g.Spacing[1])
+	r := math.Max(20, fovMin/4)
+	for k := 0; k < g.Slices; k++ {
+		for j := 0; j < g.Rows; j++ {
+			dy := float64(j-bj) * g.Spacing[1]
+			for i := 0; i < g.Cols; i++ {
+				dx := float64(i-bi) * g.Spacing[0]
+				n := g.Index(i, j, k)
+				ref[n] = !math.IsNaN(t.ref[n]) && dx*dx+dy*dy >= r*r
+			}
+		}
+	}
+	return ref
+}
+
+// drift removes the background phase drift from the unwrapped frames and
+// records it in Quality.Drift (radians here; toTemperature converts).
+func (t *thermo) drift() {
+	ref := t.referenceMask()
+	if t.opt.Drift == DriftMean {
+		for f, fr := range t.out.Frames {
+			q := &t.out.Quality[f]
+			if q.Flagged {
+				continue
+			}
+			var sum float64
+			cnt := 0
+			for n, v := range fr {
+				if ref[n] && v == v {
+					sum += float64(v)
+					cnt++
+				}
+			}
+			if cnt == 0 {
+				q.Note = joinNote(q.Note, "no valid reference voxels: drift not corrected")
+				continue
+			}
+			d := float32(sum / float64(cnt))
+			for n, v := range fr {
+				if v == v {
+					fr[n] = v - d
+				}
+			}
+			q.Drift = float64(d)
+		}
+		return
+	}
+	g := t.g
+	sl := g.SliceLen()
+	fits := make([]*sliceFit, g.Slices)
+	for s := range fits {
+		fits[s] = newSliceFit(g, s, ref, t.baseMag, t.opt.DriftOrder)
+	}
+	for f, fr := range t.out.Frames {
+		q := &t.out.Quality[f]
+		if q.Flagged {
+			continue
+		}
+		var dsum float64
+		dcnt := 0
+		for s, sf := range fits {
+			d, cnt, err := sf.remove(fr[s*sl : (s+1)*sl])
+			if err != nil {
+				q.Note = joinNote(q.Note, fmt.Sprintf("slice %d: drift not corrected: %v", s+1, err))
+				continue
+			}
+			dsum += d
+			dcnt += cnt
+		}
+		if dcnt > 0 {
+			q.Drift = dsum / float64(dcnt)
+		}
+	}
+}
+
+// sliceFit fits and removes a weighted 2-D polynomial of the phase change
+// over the reference voxels of one slice. Coordinates are normalised to
+// [−1, 1] across the slice for a well-conditioned normal matrix.
+type sliceFit struct {
+	cols, rows int
+	terms      int
+	idx        []int32   // in-slice indices of the reference voxels, row by row
+	rowStart   []int32   // idx[rowStart[j]:rowStart[j+1]] lie in row j
+	w          []float64 // their weights
+	x, y       []float64 // normalised coordinates per column and row
+	chol       *mat.Cholesky
+	err        error
+}
+
+func polyTerms(order int) int { return (order + 1) * (order + 2) / 2 }
+
+func newSliceFit(g Geometry, s int, ref []bool, baseMag []float32, order int) *sliceFit {
+	sl := g.SliceLen()
+	sf := &sliceFit{cols: g.Cols, rows: g.Rows, terms: polyTerms(order), rowStart: make([]int32, g.Rows+1)}
+	sf.x = normCoords(g.Cols)
+	sf.y = normCoords(g.Rows)
+	for j := 0; j < g.Rows; j++ {
+		sf.rowStart[j] = int32(len(sf.idx))
+		for i := 0; i < g.Cols; i++ {
+			n := j*g.Cols + i
+			if !ref[s*sl+n] {
+				continue
+			}
+			w := 1.0
+			if baseMag != nil {
+				m := float64(baseMag[s*sl+n])
+				w = m * m
+			}
+			if w > 0 {
+				sf.idx = append(sf.idx, int32(n))
+				sf.w = append(sf.w, w)
+			}
+		}
+	}
+	sf.rowStart[g.Rows] = int32(len(sf.idx))
+	sf.chol, sf.err = sf.factor(nil)
+	return sf
+}
+
+func normCoords(n int) []float64 {
+	c := make([]float64, n)
+	h := float64(n-1) / 2
+	for i := range c {
+		if h > 0 {
+			c[i] = (float64(i) - h) / h
+		}
+	}
+	return c
+}
+
+// basis returns the polynomial terms 1, x, y, x², xy, y² at in-slice index n.
+func (sf *sliceFit) basis(n int) [6]float64 {
+	x, y := sf.x[n%sf.cols], sf.y[n/sf.cols]
+	return [6]float64{1, x, y, x * x, x * y, y * y}
+}
+
+// factor builds and factorises the normal matrix AᵀWA over the reference
+// voxels that are not NaN in valid (all when valid is nil).
+func (sf *sliceFit) factor(valid []float32) (*mat.Cholesky, error) {
+	m := sf.terms
+	if len(sf.idx) < 3*m {
+		return nil, fmt.Errorf("only %d reference voxels for a %d-term drift fit", len(sf.idx), m)
+	}
+	var a [6][6]float64
+	cnt := 0
+	for p, n := range sf.idx {
+		if valid != nil && valid[n] != valid[n] {
+			continue
+		}
+		cnt++
+		b := sf.basis(int(n))
+		w := sf.w[p]
+		for r := 0; r < m; r++ {
+			wr := w * b[r]
+			for c := r; c < m; c++ {
+				a[r][c] += wr * b[c]
+			}
+		}
+	}
+	if cnt < 3*m {
+		return nil, fmt.Errorf("only %d valid reference voxels for a %d-term drift fit", cnt, m)
+	}
+	sym := mat.NewSymDense(m, nil)
+	for r := 0; r < m; r++ {
+		for c := r; c < m; c++ {
+			sym.SetSym(r, c, a[r][c])
+		}
+	}
+	var ch mat.Cholesky
+	if !ch.Factorize(sym) {
+		return nil, errors.New("reference voxels do not determine the drift polynomial")
+	}
+	return &ch, nil
+}
+
+// fit returns the weighted least-squares polynomial coefficients of the
+// phase change v (one slice) over its valid reference voxels: the solution
+// of AᵀWA·c = AᵀW·v. AᵀW·v is summed row by row (Σw·v, Σw·v·x, Σw·v·x²
+// per row, then multiplied by the row's powers of y).
+func (sf *sliceFit) fit(v []float32) ([6]float64, error) {
+	var cf [6]float64
+	var rhs [6]float64
+	m := sf.terms
+	anyNaN := false
+	for j := 0; j < sf.rows; j++ {
+		lo, hi := sf.rowStart[j], sf.rowStart[j+1]
+		if lo == hi {
+			continue
+		}
+		row := j * sf.cols
+		var s0, s1, s2 float64
+		for p := lo; p < hi; p++ {
+			n := sf.idx[p]
+			u := v[n]
+			if u != u {
+				anyNaN = true
+				continue
+			}
+			wu := sf.w[p] * float64(u)
+			x := sf.x[int(n)-row]
+			s0 += wu
+			s1 += wu * x
+			s2 += wu * x * x
+		}
+		y := sf.y[j]
+		rhs[0] += s0
+		rhs[1] += s1
+		rhs[2] += s0 * y
+		rhs[3] += s2
+		rhs[4] += s1 * y
+		rhs[5] += s0 * y * y
+	}
+	ch, err := sf.chol, sf.err
+	if anyNaN {
+		ch, err = sf.factor(v)
+	}
+	if err != nil {
+		return cf, err
+	}
+	var c mat.VecDense
+	if err := ch.SolveVecTo(&c, mat.NewVecDense(m, rhs[:m])); err != nil {
+		return cf, fmt.Errorf("drift fit: %w", err)
+	}
+	for r := 0; r < m; r++ {
+		cf[r] = c.AtVec(r)
+	}
+	return cf, nil
+}
+
+// remove fits the polynomial to the phase change v (one slice) and subtracts
+// it from every valid voxel. It returns the sum of the removed drift over the
+// valid reference voxels and their number.
+func (sf *sliceFit) remove(v []float32) (float64, int, error) {
+	cf, err := sf.fit(v)
+	if err != nil {
+		return 0, 0, err
+	}
+	var sum float64
+	cnt := 0
+	for j := 0; j < sf.rows; j++ {
+		y := sf.y[j]
+		// d(x) = a + b·x + c·x² along the row.
+		a := cf[0] + cf[2]*y + cf[5]*y*y
+		b := cf[1] + cf[4]*y
+		c := cf[3]
+		row := v[j*sf.cols : (j+1)*sf.cols]
+		for p := sf.rowStart[j]; p < sf.rowStart[j+1]; p++ {
+			i := int(sf.idx[p]) - j*sf.cols
+			if u := row[i]; u == u {
+				x := sf.x[i]
+				sum += a + x*(b+x*c)
+				cnt++
+			}
+		}
+		for i, u := range row {
+			if u == u {
+				x := sf.x[i]
+				row[i] = float32(float64(u) - (a + x*(b+x*c)))
+			}
+		}
+	}
+	return sum, cnt, nil
+}
+
+// nthSmallest returns the k-th smallest value of v (0-based), reordering v
+// (Hoare's selection with a median-of-three pivot; expected linear time).
+func nthSmallest[T cmp.Ordered](v []T, k int) T {
+	lo, hi := 0, len(v)-1
+	for lo < hi {
+		mid := lo + (hi-lo)/2
+		if v[mid] < v[lo] {
+			v[mid], v[lo] = v[lo], v[mid]
+		}
+		if v[hi] < v[lo] {
+			v[hi], v[lo] = v[lo], v[hi]
+		}
+		if v[hi] < v[mid] {
+			v[hi], v[mid] = v[mid], v[hi]
+		}
+		pivot := v[mid]
+		i, j := lo, hi
+		for i <= j {
+			for v[i] < pivot {
+				i++
+			}
+			for pivot < v[j] {
+				j--
+			}
+			if i <= j {
+				v[i], v[j] = v[j], v[i]
+				i++
+				j--
+			}
+		}
+		switch {
+		case k <= j:
+			hi = j
+		case k >= i:
+			lo = i
+		default:
+			return v[k]
+		}
+	}
+	return v[k]
+}

@@ -1,0 +1,238 @@
+package review
+
+import (
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"os"
+	"path/filepath"
+	"strings"
+
+	"dosecover/dosemap"
+)
+
+// ContourFormat is the value of the "format" field of a dosecover contour
+// file; ContourVersion the newest version this build reads and writes.
+const (
+	ContourFormat  = "dosecover-contours"
+	ContourVersion = 1
+)
+
+// ContourFile is dosecover's own contour file (JSON), for cases without an
+// RTSTRUCT and for contours edited in the review window:
+//
+//	{
+//	  "format": "dosecover-contours",
+//	  "version": 1,
+//	  "frame_of_reference": "1.2.826.0.1.3680043.2.1125.1",
+//	  "structures": [
+//	    {"name": "target", "role": "target", "number": 1,
+//	     "contours": [[[x, y, z], [x, y, z], [x, y, z], ...], ...]}
+//	  ]
+//	}
+//
+// Points are patient millimetres (DICOM LPS); each contour is a closed
+// planar polygon (closing edge implied); role is "target", "avoid" or
+// "other".
+type ContourFile struct {
+	Format     string          `json:"format"`
+	Version    int             `json:"version"`
+	FrameOfRef string          `json:"frame_of_reference,omitempty"`
+	Comment    string          `json:"comment,omitempty"`
+	Structures []ContourRecord `json:"structures"`
+}
+
+// ContourRecord is one structure of a ContourFile.
+type ContourRecord struct {
+	Name            string         `json:"name"`
+	Role            string         `json:"role"`
+	Number          int            `json:"number,omitempty"`
+	InterpretedType string         `json:"interpreted_type,omitempty"`
+	Contours        [][][3]float64 `json:"contours"`
+}
+
+// ReadContours decodes a contour file from r. name is used in error
+// messages (the file path).
+func ReadContours(r io.Reader, name string) ([]dosemap.Structure, string, error) {
+	var f ContourFile
+	dec := json.NewDecoder(r)
+	dec.DisallowUnknownFields()
+	if err := dec.Decode(&f); err != nil {
+		return nil, "", fmt.Errorf("reading contours %s: %w", name, err)
+	}
+	if f.Format != ContourFormat {
+		return nil, "", fmt.Errorf("reading contours %s: format %q is not %q", name, f.Format, ContourFormat)
+	}
+	if f.Version < 1 || f.Version > ContourVersion {
+		return nil, "", fmt.Errorf("reading contours %s: version %d not supported (this build reads 1..%d)", name, f.Version, ContourVersion)
+	}
+	var out []dosemap.Structure
+	targets := 0
+	for n, rec := range f.Structures {
+		where := fmt.Sprintf("reading contours %s: structure %d (%q)", name, n+1, rec.Name)
+		if strings.TrimSpace(rec.Name) == "" {
+			return nil, "", fmt.Errorf("%s: no name", where)
+		}
+		s := dosemap.Structure{Number: rec.Number, Name: rec.Name, InterpretedType: rec.InterpretedType, FrameOfRef: f.FrameOfRef}
+		if s.Number == 0 {
+			s.Number = n + 1
+		}
+		switch rec.Role {
+		case "target":
+			s.Role = dosemap.RoleTarget
+			targets++
+		case "avoid":
+			s.Role = dosemap.RoleAvoid
+		case "other", "":
+			s.Role = dosemap.RoleOther
+		default:
+			return nil, "", fmt.Errorf("%s: role %q is not target, avoid or other", where, rec.Role)
+		}
+		for c, pts := range rec.Contours {
+			if len(pts) < 3 {
+				return nil, "", fmt.Errorf("%s: contour %d has %d points; a closed contour needs 3 or more", where, c+1, len(pts))
+			}
+			ct := dosemap.Contour{Points: make([]dosemap.Vec3, len(pts))}
+			for p, xyz := range pts {
+				for _, x := range xyz {
+					if math.IsNaN(x) || math.IsInf(x, 0) || math.Abs(x) > 1e5 {
+						return nil, "", fmt.Errorf("%s: contour %d point %d %v is not a position in mm", where, c+1, p+1, xyz)
+					}
+				}
+				ct.Points[p] = dosemap.Vec3(xyz)
+			}
+			s.Contours = append(s.Contours, ct)
+		}
+		if len(s.Contours) == 0 {
+			return nil, "", fmt.Errorf("%s: no contours", where)
+		}
+		if _, err := newPlaneSolid(&s, 1); err != nil {
+			return nil, "", fmt.Errorf("%s: %w", where, err)
+		}
+		out = append(out, s)
+	}
+	if len(out) == 0 {
+		return nil, "", fmt.Errorf("reading contours %s: no structures", name)
+	}
+	if targets > 1 {
+		return nil, "", fmt.Errorf("reading contours %s: %d structures have role target; mark exactly one", name, targets)
+	}
+	return out, f.FrameOfRef, nil
+}
+
+// ReadContourFile reads a contour file. It returns the structures and the
+// frame of reference they refer to.
+func ReadContourFile(path string) ([]dosemap.Structure, string, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, "", fmt.Errorf("reading contours: %w", err)
+	}
+	defer f.Close()
+	return ReadContours(f, path)
+}
+
+// EncodeContours writes structures as a contour file to w.
+func EncodeContours(w io.Writer, structures []dosemap.Structure, frameOfRef string) error {
+	f := ContourFile{Format: ContourFormat, Version: ContourVersion, FrameOfRef: frameOfRef,
+		Comment: "positions in mm, DICOM patient coordinates (LPS)", Structures: []ContourRecord{}}
+	for _, s := range structures {
+		rec := ContourRecord{Name: s.Name, Role: s.Role.String(), Number: s.Number, InterpretedType: s.InterpretedType, Contours: [][][3]float64{}}
+		for _, c := range s.Contours {
+			pts := make([][3]float64, len(c.Points))
+			for p, q := range c.Points {
+				pts[p] = [3]float64(q)
+			}
+			rec.Contours = append(rec.Contours, pts)
+		}
+		f.Structures = append(f.Structures, rec)
+	}
+	enc := json.NewEncoder(w)
+	enc.SetIndent("", " ")
+	return enc.Encode(&f)
+}
+
+// WriteContourFile writes structures to path atomically (see
+// WriteOutside); it never writes inside caseDir, the folder the case was
+// read from (pass "" when there is none).
+func WriteContourFile(path, caseDir string, structures []dosemap.Structure, frameOfRef string) error {
+	err := WriteOutside(path, caseDir, func(w io.Writer) error { return EncodeContours(w, structures, frameOfRef) })
+	if err != nil {
+		return fmt.Errorf("writing contours %s: %w", path, err)
+	}
+	return nil
+}
+
+// WriteOutside writes a file at path with write, atomically: into a
+// temporary file in the same folder, synced, then renamed over path, so a
+// reader never sees half a file. It refuses when path lies in or below
+// caseDir (after resolving symbolic links), the folder a case was read
+// from, which dosecover never modifies; caseDir "" skips the check.
+func WriteOutside(path, caseDir string, write func(io.Writer) error) error {
+	if caseDir != "" {
+		inside, err := within(path, caseDir)
+		if err != nil {
+			return err
+		}
+		if inside {
+			return fmt.Errorf("the file would lie inside the case folder %s, which dosecover does not modify; choose another folder", caseDir)
+		}
+	}
+	tmp, err := os.CreateTemp(filepath.Dir(path), "."+filepath.Base(path)+"-*.tmp")
+	if err != nil {
+		return err
+	}
+	defer os.Remove(tmp.Name())
+	if err := write(tmp); err != nil {
+		tmp.Close()
+		return err
+	}
+	if err := tmp.Sync(); err != nil {
+		tmp.Close()
+		return err
+	}
+	if err := tmp.Close(); err != nil {
+		return err
+	}
+	return os.Rename(tmp.Name(), path)
+}
+
+// within reports whether path lies in or below dir, resolving symbolic
+// links of the existing parts.
+func within(path, dir string) (bool, error) {
+	real := func(p string) (string, error) {
+		p, err := filepath.Abs(p)
+		if err != nil {
+			return "", err
+		}
+		// Resolve the longest existing prefix.
+		rest := ""
+		for {
+			if r, err := filepath.EvalSymlinks(p); err == nil {
+				return filepath.Join(r, rest), nil
+			} else if !errors.Is(err, os.ErrNotExist) {
+				return "", err
+			}
+			parent := filepath.Dir(p)
+			if parent == p {
+				return filepath.Join(p, rest), nil
+			}
+			rest = filepath.Join(filepath.Base(p), rest)
+			p = parent
+		}
+	}
+	p, err := real(path)
+	if err != nil {
+		return false, err
+	}
+	d, err := real(dir)
+	if err != nil {
+		return false, err
+	}
+	rel, err := filepath.Rel(d, p)
+	if err != nil {
+		return false, nil
+	}
+	return rel == "." || (rel != ".." && !strings.HasPrefix(rel, ".."+string(filepath.Separator))), nil
+}
