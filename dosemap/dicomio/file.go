@@ -145,6 +145,8 @@ type fileInfo struct {
 	BigEndian                          bool
 	Frames                             []frameMeta
 	Pixels                             []byte // raw pixel data when read
+	Size                               int64  // file size when the attributes were read
+	PixelPos, PixelLen                 int    // where the native pixel data lie in the file (0 unknown)
 	Structures                         *structureSet
 	IsImage                            bool
 }
@@ -215,7 +217,8 @@ func readBytes(path string, data []byte, pixels bool) (fi *fileInfo, err error) 
 	if !looksLikeDICOM(data) {
 		return nil, skip("not a DICOM file (no DICM marker and no DICOM element at the start)")
 	}
-	syntax, err := checkLengths(data)
+	w, err := walk(data, nil)
+	syntax := w.syntax
 	if ts, ok := transferSyntaxes[syntax]; ok && !ts.supported {
 		return nil, skip("unsupported compression: %s (%s)", ts.name, syntax)
 	}
@@ -266,7 +269,8 @@ func readBytes(path string, data []byte, pixels bool) (fi *fileInfo, err error) 
 		}
 		return nil, skip("unreadable: %v", perr)
 	}
-	fi = &fileInfo{Path: path, Syntax: syntax, BigEndian: syntax == "1.2.840.10008.1.2.2"}
+	fi = &fileInfo{Path: path, Syntax: syntax, BigEndian: w.bo == binary.BigEndian,
+		Size: int64(len(data)), PixelPos: w.pixelPos, PixelLen: w.pixelLen}
 	if err := fi.fill(es, pixels); err != nil {
 		return nil, err
 	}

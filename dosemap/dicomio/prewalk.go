@@ -30,21 +30,43 @@ type walker struct {
 	explicit bool
 	bo       binary.ByteOrder
 	syntax   string
-	inMeta   bool                                           // reading the file meta information (explicit VR LE)
+	inMeta   bool // reading the file meta information (explicit VR LE)
+	pixelPos int  // offset of the top-level native PixelData value; 0 none
+	pixelLen int
 	trace    func(pos int, t tag.Tag, vr string, vl uint32) // debugging aid; nil normally
 }
 
 // checkLengths returns nil when every element length fits, else an error
 // naming the element. It also reports the transfer syntax found in the file
 // meta information ("" when absent).
-func checkLengths(data []byte) (syntax string, err error) { return checkLengthsTrace(data, nil) }
+func checkLengths(data []byte) (syntax string, err error) {
+	w, err := walk(data, nil)
+	return w.syntax, err
+}
 
-func checkLengthsTrace(data []byte, trace func(pos int, t tag.Tag, vr string, vl uint32)) (syntax string, err error) {
+// checkLengthsTrace is checkLengths calling trace for every element header
+// (a debugging aid).
+func checkLengthsTrace(data []byte, trace func(pos int, t tag.Tag, vr string, vl uint32)) (string, error) {
+	w, err := walk(data, trace)
+	return w.syntax, err
+}
+
+// walk checks the lengths of data (see checkLengths) and returns the walker
+// with what it found: the transfer syntax and where the top-level native
+// pixel data lie. The walker is returned even with an error.
+func walk(data []byte, trace func(pos int, t tag.Tag, vr string, vl uint32)) (*walker, error) {
 	pos := 0
 	if len(data) >= 132 && string(data[128:132]) == "DICM" {
 		pos = 132
 	}
 	w := &walker{data: data, explicit: true, bo: binary.LittleEndian, trace: trace}
+	err := w.run(pos)
+	w.data = nil
+	return w, err
+}
+
+func (w *walker) run(pos int) error {
+	data := w.data
 	// File meta information: group 0002, explicit VR little endian. The
 	// library reads exactly FileMetaInformationGroupLength bytes of it (and
 	// gives up without that element), so the walk does the same.
@@ -52,20 +74,20 @@ func checkLengthsTrace(data []byte, trace func(pos int, t tag.Tag, vr string, vl
 		w.inMeta = true
 		next, t, val, err := w.header(pos, len(data))
 		if err != nil {
-			return "", err
+			return err
 		}
 		if t != tag.FileMetaInformationGroupLength || len(val) != 4 {
-			return "", fmt.Errorf("file meta information does not start with %s", tagName(tag.FileMetaInformationGroupLength))
+			return fmt.Errorf("file meta information does not start with %s", tagName(tag.FileMetaInformationGroupLength))
 		}
 		metaEnd := int64(next) + int64(binary.LittleEndian.Uint32(val))
 		if metaEnd > int64(len(data)) {
-			return "", &lengthError{fmt.Sprintf("%s declares %d bytes but only %d remain", tagName(t), metaEnd-int64(next), len(data)-next)}
+			return &lengthError{fmt.Sprintf("%s declares %d bytes but only %d remain", tagName(t), metaEnd-int64(next), len(data)-next)}
 		}
 		pos = next
 		for pos < int(metaEnd) {
 			next, t, val, err := w.header(pos, int(metaEnd))
 			if err != nil {
-				return "", err
+				return err
 			}
 			if t == tag.TransferSyntaxUID {
 				w.syntax = trimUID(val)
@@ -95,7 +117,7 @@ func checkLengthsTrace(data []byte, trace func(pos int, t tag.Tag, vr string, vl
 			}
 			for _, vl := range cands {
 				if vl != undefinedLength && vl > 16<<20 && int64(vl) > int64(len(data)) {
-					return "", &lengthError{fmt.Sprintf("no transfer syntax given and the first element declares %d bytes in a %d-byte file", vl, len(data))}
+					return &lengthError{fmt.Sprintf("no transfer syntax given and the first element declares %d bytes in a %d-byte file", vl, len(data))}
 				}
 			}
 		}
@@ -109,11 +131,11 @@ func checkLengthsTrace(data []byte, trace func(pos int, t tag.Tag, vr string, vl
 		}
 	default:
 		if ts, ok := transferSyntaxes[w.syntax]; ok && !ts.supported && w.syntax == "1.2.840.10008.1.2.1.99" {
-			return w.syntax, nil // deflated: the body cannot be walked
+			return nil // deflated: the body cannot be walked
 		}
 	}
-	_, err = w.elements(pos, len(data), false, 0)
-	return w.syntax, err
+	_, err := w.elements(pos, len(data), false, 0)
+	return err
 }
 
 func trimUID(b []byte) string {
@@ -258,6 +280,9 @@ func (w *walker) elements(pos, end int, inUndefined bool, depth int) (int, error
 				return 0, err
 			}
 		default:
+			if depth == 0 && t == tag.PixelData {
+				w.pixelPos, w.pixelLen = valPos, int(vl)
+			}
 			pos = valPos + int(vl)
 		}
 	}
