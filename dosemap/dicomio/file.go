@@ -382,7 +382,7 @@ func (fi *fileInfo) fill(es elems, pixels bool) error {
 // multi-frame images) or from the functional groups of an enhanced image.
 func (fi *fileInfo) frames(es elems, nf int) error {
 	base := frameMeta{Slope: 1}
-	readFrameAttrs(es, &base, true)
+	readFrameAttrs(es, &base)
 	base.Time = frameTimeOf(es)
 	if base.TE == 0 {
 		base.TE = fi.TE
@@ -418,10 +418,6 @@ func (fi *fileInfo) frames(es elems, nf int) error {
 		if f.IPP[0] != f.IPP[0] {
 			return skip("missing tag %s", tagName(tag.ImagePositionPatient))
 		}
-	}
-	if fi.B0 == 0 {
-		// Enhanced MR may carry the field strength only at the top level,
-		// which was read above; nothing else to look at.
 	}
 	if fi.TE == 0 && len(fi.Frames) > 0 {
 		fi.TE = fi.Frames[0].TE
@@ -482,7 +478,7 @@ func readGroups(g elems, f *frameMeta) {
 
 // readFrameAttrs reads the image-plane, pixel-value and type attributes of a
 // classic image (or the top level of an enhanced one) into f.
-func readFrameAttrs(es elems, f *frameMeta, top bool) {
+func readFrameAttrs(es elems, f *frameMeta) {
 	f.IPP = dosemap.Vec3{math.NaN(), math.NaN(), math.NaN()}
 	if v, ok := es.floats(tag.ImagePositionPatient); ok && len(v) == 3 {
 		f.IPP = dosemap.Vec3{v[0], v[1], v[2]}
@@ -502,7 +498,6 @@ func readFrameAttrs(es elems, f *frameMeta, top bool) {
 	if te, ok := es.float(tag.EchoTime); ok && te > 0 {
 		f.TE = te / 1000
 	}
-	_ = top
 }
 
 func readOrientation(es elems, f *frameMeta) {
