@@ -203,20 +203,20 @@ func (w *walker) readHeader(pos, end int) (valPos int, t tag.Tag, vr string, vl 
 	return valPos, t, vr, vl, nil
 }
 
-// isSequence reports whether the element is a sequence: VR SQ, or, in
-// implicit VR, a tag the dictionary knows as SQ.
-func isSequence(t tag.Tag, vr string, explicit bool) bool {
+// libraryVR returns the VR the DICOM library will use for an element: the
+// VR written (explicit syntaxes), else the first VR of its dictionary entry
+// (OW for pixel and overlay data), else UN.
+func libraryVR(t tag.Tag, vr string, explicit bool) string {
 	if explicit {
-		return vr == "SQ"
+		return vr
 	}
-	if info, err := tag.Find(t); err == nil {
-		for _, v := range info.VRs {
-			if v == "SQ" {
-				return true
-			}
-		}
+	if t == tag.PixelData || t == tag.OverlayData {
+		return "OW"
 	}
-	return false
+	if info, err := tag.Find(t); err == nil && len(info.VRs) > 0 {
+		return info.VRs[0]
+	}
+	return "UN"
 }
 
 // elements walks the elements in [pos, end). inUndefined says the list
@@ -259,10 +259,14 @@ func (w *walker) elements(pos, end int, inUndefined bool, depth int) (int, error
 			pos = valPos + int(vl)
 			continue
 		}
-		explicit := w.explicit
-		seq := isSequence(t, vr, explicit) || (vl == undefinedLength && (vr == "UN" || !explicit) && t != tag.PixelData)
+		lvr := libraryVR(t, vr, w.explicit)
 		switch {
-		case seq:
+		case t == tag.PixelData && vl == undefinedLength:
+			// Encapsulated pixel data: fragments up to the delimiter.
+			if pos, err = w.fragments(valPos, end); err != nil {
+				return 0, err
+			}
+		case t != tag.PixelData && (lvr == "SQ" || (lvr == "UN" && vl == undefinedLength)):
 			seqEnd := end
 			if vl != undefinedLength {
 				seqEnd = valPos + int(vl)
@@ -273,12 +277,14 @@ func (w *walker) elements(pos, end int, inUndefined bool, depth int) (int, error
 			if vl != undefinedLength {
 				pos = seqEnd
 			}
-		case vl == undefinedLength:
-			// Encapsulated pixel data (or another undefined-length OB/OW):
-			// fragments as items up to the sequence delimiter.
+		case vl == undefinedLength && (lvr == "OB" || lvr == "OW"):
 			if pos, err = w.fragments(valPos, end); err != nil {
 				return 0, err
 			}
+		case vl == undefinedLength:
+			// The library would read the value with the undefined length
+			// (0xFFFFFFFF bytes) as its size.
+			return 0, &lengthError{fmt.Sprintf("%s (VR %s) has undefined length", tagName(t), lvr)}
 		default:
 			if depth == 0 && t == tag.PixelData {
 				w.pixelPos, w.pixelLen = valPos, int(vl)
