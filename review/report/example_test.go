@@ -21,7 +21,7 @@ func ExampleWriteCSV() {
 			Holes:           []report.Region{{VolumeML: 0.1, DepthMM: 1.5}},
 			OutsideMarginML: 0,
 		},
-		Quality: report.Quality{MaxMotionMM: math.NaN(), MaxDriftC: math.NaN(), MinSNR: math.NaN()},
+		Quality: report.Quality{MaxMotion: math.NaN(), MaxDriftC: math.NaN(), MinSNR: math.NaN()},
 	}
 	if err := report.WriteCSV(os.Stdout, in); err != nil {
 		fmt.Println(err)

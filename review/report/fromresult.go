@@ -24,8 +24,9 @@ type Options struct {
 	ReviewDate   time.Time // zero: now
 	InputsSHA256 string    // see HashFolder
 	PanelPixels  int       // side of each image panel in pixels; 0: 480
-	// Thermometry are the thermometry options the analysis used; the zero
-	// value stands for dosemap.DefaultThermometryOptions().
+	// Thermometry are the thermometry options the analysis used, for an
+	// analysis that does not record them itself (Result.Thermometry); the
+	// zero value stands for dosemap.DefaultThermometryOptions().
 	Thermometry dosemap.ThermometryOptions
 }
 
@@ -116,7 +117,7 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 	for _, q := range r.Quality {
 		quality[q.Sonication] = q
 	}
-	q := Quality{MaxMotionMM: math.NaN(), MaxDriftC: math.NaN(), MinSNR: math.NaN()}
+	q := Quality{MaxMotion: math.NaN(), MaxDriftC: math.NaN(), MinSNR: math.NaN()}
 	for _, s := range r.Sonications {
 		sq := quality[s.Number]
 		label := s.Label
@@ -136,7 +137,7 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 		q.Wraps += sq.Wraps
 		q.Invalid += sq.Invalid
 		if len(sq.Frames) > 0 {
-			q.MaxMotionMM = nanMax(q.MaxMotionMM, sq.MaxMotionMM)
+			q.MaxMotion = nanMax(q.MaxMotion, sq.MaxMotion)
 			q.MaxDriftC = nanMax(q.MaxDriftC, sq.MaxDriftC)
 		}
 		if sq.MinSNR != nil {
@@ -253,43 +254,28 @@ func methods(c *dosemap.Case, r *review.Result, opt Options) []Setting {
 		ms = append(ms, Setting{"Thermometry", "not used: the case holds ready dose maps"})
 		return append(ms, analysisSettings(r)...)
 	}
-	th := opt.Thermometry
-	def := dosemap.DefaultThermometryOptions()
-	if th.PRF.Alpha == 0 {
-		th.PRF.Alpha = def.PRF.Alpha
-		if th.PRF.Alpha == 0 {
-			th.PRF.Alpha = dosemap.DefaultAlpha
-		}
+	ti := r.Thermometry
+	if ti.AlphaPPMPerC == 0 {
+		// The analysis did not record its thermometry options: they are
+		// opt.Thermometry, with the engine's defaults for zero fields.
+		ti = thermometryInfo(opt.Thermometry)
 	}
-	if th.BaselineFrames == 0 {
-		th.BaselineFrames = def.BaselineFrames
+	ms = append(ms, Setting{"PRF alpha", fmt.Sprintf("%.4f ppm/°C", ti.AlphaPPMPerC)})
+	ms = append(ms, Setting{"B0 / TE", fieldAndEcho(c, ti)})
+	drift := ti.Drift
+	switch strings.ToLower(drift) {
+	case "", "none":
+		drift = "none"
+	case "polynomial":
+		drift = fmt.Sprintf("polynomial, order %d", ti.DriftOrder)
 	}
-	if th.BodyTemp == 0 {
-		th.BodyTemp = def.BodyTemp
-	}
-	if th.Drift == 0 && th.DriftOrder == 0 {
-		th.Drift, th.DriftOrder = def.Drift, def.DriftOrder
-	}
-	ms = append(ms, Setting{"PRF alpha", fmt.Sprintf("%.4f ppm/°C", th.PRF.Alpha)})
-	ms = append(ms, Setting{"B0 / TE", fieldAndEcho(c, th)})
-	drift := "none"
-	switch th.Drift {
-	case dosemap.DriftMean:
-		drift = "mean of the reference region"
-	case dosemap.DriftPolynomial:
-		drift = fmt.Sprintf("polynomial, order %d", th.DriftOrder)
-	}
-	if th.Drift != dosemap.DriftNone {
-		if th.Reference == nil {
-			drift += ", automatic reference"
-		} else {
-			drift += ", given reference"
-		}
+	if drift != "none" && ti.Reference != "" {
+		drift += ", " + ti.Reference + " reference"
 	}
 	ms = append(ms,
 		Setting{"Drift correction", drift},
-		Setting{"Baseline frames", fmt.Sprintf("%d", th.BaselineFrames)},
-		Setting{"Body temperature", fmt.Sprintf("%.1f °C", th.BodyTemp)},
+		Setting{"Baseline frames", fmt.Sprintf("%d", ti.BaselineFrames)},
+		Setting{"Body temperature", fmt.Sprintf("%.1f °C", ti.BodyTempC)},
 	)
 	return append(ms, analysisSettings(r)...)
 }
@@ -313,20 +299,66 @@ func analysisSettings(r *review.Result) []Setting {
 	return ms
 }
 
-// fieldAndEcho describes B0 and TE: the override of the options, or the
+// thermometryInfo summarises thermometry options the way the analysis
+// records them, with the engine's defaults for zero fields.
+func thermometryInfo(th dosemap.ThermometryOptions) review.ThermometryInfo {
+	def := dosemap.DefaultThermometryOptions()
+	ti := review.ThermometryInfo{
+		AlphaPPMPerC: th.PRF.Alpha, BaselineFrames: th.BaselineFrames, BodyTempC: th.BodyTemp,
+		DriftOrder: th.DriftOrder, Reference: "automatic",
+	}
+	if ti.AlphaPPMPerC == 0 {
+		ti.AlphaPPMPerC = def.PRF.Alpha
+		if ti.AlphaPPMPerC == 0 {
+			ti.AlphaPPMPerC = dosemap.DefaultAlpha
+		}
+	}
+	if th.PRF.B0 > 0 {
+		b := th.PRF.B0
+		ti.B0T = &b
+	}
+	if th.PRF.TE > 0 {
+		t := th.PRF.TE
+		ti.TES = &t
+	}
+	if ti.BaselineFrames == 0 {
+		ti.BaselineFrames = def.BaselineFrames
+	}
+	if ti.BodyTempC == 0 {
+		ti.BodyTempC = def.BodyTemp
+	}
+	drift := th.Drift
+	if th.Drift == 0 && th.DriftOrder == 0 {
+		drift, ti.DriftOrder = def.Drift, def.DriftOrder
+	}
+	switch drift {
+	case dosemap.DriftMean:
+		ti.Drift = "mean"
+	case dosemap.DriftPolynomial:
+		ti.Drift = "polynomial"
+	default:
+		ti.Drift = "none"
+	}
+	if th.Reference != nil {
+		ti.Reference = "given"
+	}
+	return ti
+}
+
+// fieldAndEcho describes B0 and TE: the override of the analysis, or the
 // values of the sonications (a range when they differ).
-func fieldAndEcho(c *dosemap.Case, th dosemap.ThermometryOptions) string {
+func fieldAndEcho(c *dosemap.Case, ti review.ThermometryInfo) string {
 	b0lo, b0hi, telo, tehi := math.Inf(1), math.Inf(-1), math.Inf(1), math.Inf(-1)
 	for _, s := range c.Sonications {
 		if s.Dose != nil && s.Phase == nil {
 			continue
 		}
 		b, t := s.B0, s.TE
-		if th.PRF.B0 > 0 {
-			b = th.PRF.B0
+		if ti.B0T != nil {
+			b = *ti.B0T
 		}
-		if th.PRF.TE > 0 {
-			t = th.PRF.TE
+		if ti.TES != nil {
+			t = *ti.TES
 		}
 		if b > 0 {
 			b0lo, b0hi = math.Min(b0lo, b), math.Max(b0hi, b)

@@ -124,14 +124,14 @@ type SonicationRow struct {
 
 // Quality summarises the thermometry quality over all sonications.
 type Quality struct {
-	Frames      int     // frames analysed
-	Flagged     int     // frames flagged
-	MaxMotionMM float64 // NaN if not measured
-	MaxDriftC   float64 // NaN if not measured
-	MinSNR      float64 // NaN if not measured
-	Wraps       int     // suspected phase wraps, summed over frames
-	Invalid     int     // voxel-frames invalidated (low signal, wraps), summed
-	Notes       []string
+	Frames    int     // frames analysed
+	Flagged   int     // frames flagged
+	MaxMotion float64 // largest frame motion index, 1 − correlation of the magnitude with the baseline (NaN if not measured)
+	MaxDriftC float64 // NaN if not measured
+	MinSNR    float64 // NaN if not measured
+	Wraps     int     // suspected phase wraps, summed over frames
+	Invalid   int     // voxel-frames invalidated (low signal, wraps), summed
+	Notes     []string
 }
 
 // Setting is one named line of the methods block.

@@ -697,7 +697,7 @@ func drawQuality(p pen, in *Input, x, y, w vg.Length) vg.Length {
 	y = p.kv(x, y, w, fl, fv, [][2]string{
 		{"frames analysed", fmt.Sprintf("%d", q.Frames)},
 		{"frames flagged", fmt.Sprintf("%d", q.Flagged)},
-		{"largest motion", num(q.MaxMotionMM, 2) + " mm"},
+		{"largest motion index", num(q.MaxMotion, 3) + " (1 − correlation)"},
 		{"largest drift", num(q.MaxDriftC, 2) + " °C"},
 		{"lowest SNR", num(q.MinSNR, 0)},
 		{"suspected phase wraps", fmt.Sprintf("%d", q.Wraps)},

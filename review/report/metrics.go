@@ -90,7 +90,7 @@ func (in *Input) Metrics() []Metric {
 	q := in.Quality
 	add("quality.frames", float64(q.Frames), "count")
 	add("quality.flagged_frames", float64(q.Flagged), "count")
-	add("quality.max_motion_mm", q.MaxMotionMM, "mm")
+	add("quality.max_motion", q.MaxMotion, "1")
 	add("quality.max_drift_c", q.MaxDriftC, "°C")
 	add("quality.min_snr", q.MinSNR, "1")
 	add("quality.suspected_wraps", float64(q.Wraps), "count")

@@ -54,7 +54,7 @@ func sampleInput() *Input {
 		},
 		DVH: dvh, CoverageVsThreshold: cov, Wash: &Wash{Floor: 1, Ceiling: 1000},
 		Sonications: rows,
-		Quality: Quality{Frames: 112, Flagged: 4, MaxMotionMM: 1.2, MaxDriftC: 0.8, MinSNR: 41, Wraps: 3, Invalid: 57,
+		Quality: Quality{Frames: 112, Flagged: 4, MaxMotion: 0.012, MaxDriftC: 0.8, MinSNR: 41, Wraps: 3, Invalid: 57,
 			Notes: []string{"frame 7 of sonication 3: motion 1.2 mm"}},
 		Methods: []Setting{
 			{"Dose model", "CEM43, R 0.5 above / 0.25 below 43 °C, rectangle rule"},
