@@ -36,7 +36,7 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	deidentify := fs.Bool("deidentify", false, "hide identity: neutral case label, no scan date, generic sonication labels")
 	reviewer := fs.String("reviewer", "", "name of the reviewer, printed in the header")
 	signoff := fs.String("sign-off", "", "sign-off statement, printed in the header")
-	dpi := fs.Int("dpi", report.DefaultDPI, "resolution of the PNG (at least 150 for printing)")
+	dpi := fs.Int("dpi", report.DefaultDPI, "resolution of the PNG, 150 to 1200 dots per inch")
 	af := addAnalysisFlags(fs)
 	fs.Usage = func() {
 		fmt.Fprintln(stderr, "usage: dosecover report CASE_DIR -o report.png [--pdf report.pdf] [--json metrics.json] [--csv metrics.csv] [--deidentify] [options]")
@@ -59,8 +59,8 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintln(stderr, "dosecover report: give at least one output (-o report.png, --pdf, --json or --csv)")
 		return 2
 	}
-	if *dpi < 72 || *dpi > 1200 {
-		fmt.Fprintf(stderr, "dosecover report: --dpi %d: want 72 to 1200\n", *dpi)
+	if *dpi < 150 || *dpi > 1200 {
+		fmt.Fprintf(stderr, "dosecover report: --dpi %d: want 150 (legible in print) to 1200\n", *dpi)
 		return 2
 	}
 	set, err := af.settings()
