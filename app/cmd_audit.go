@@ -1,0 +1,167 @@
+//go:build cgo
+
+package main
+
+import (
+	"context"
+	"encoding/json"
+	"errors"
+	"flag"
+	"fmt"
+	"io"
+	"os"
+	"os/signal"
+	"syscall"
+
+	"dosecover/review/audit"
+)
+
+func init() {
+	register(command{
+		name:    "audit",
+		summary: "analyse many past cases with one set of settings: a table, a figure and a report per case",
+		run:     runAudit,
+	})
+}
+
+// auditAnalysis builds the per-case analysis of an audit from the settings
+// file (empty: the default settings). It returns the analysis, the settings
+// as JSON (stored with every result and hashed for --resume) and the
+// settings columns of the summary table.
+var auditAnalysis = func(settingsFile string) (audit.Analyzer, []byte, []audit.Column, error) {
+	s, err := audit.LoadSettings(settingsFile)
+	if err != nil {
+		return nil, nil, nil, err
+	}
+	js, err := json.Marshal(s)
+	if err != nil {
+		return nil, nil, nil, err
+	}
+	return audit.NewAnalyzer(s, nil), js, audit.SettingsColumns(s), nil
+}
+
+func auditUsage(w io.Writer, fs *flag.FlagSet) {
+	fmt.Fprintln(w, "usage: dosecover audit DIR... -o OUT_DIR [--settings FILE] [--workers N] [--resume] [--shard I/N] [--deidentify]")
+	fmt.Fprintln(w)
+	fmt.Fprintln(w, "Analyses every case below the folders DIR with the same settings and writes, into")
+	fmt.Fprintln(w, "OUT_DIR, one record and one report per case (cases/ID/), summary.csv, errors.csv")
+	fmt.Fprintln(w, "and summary.png. A folder holding DICOM files is one case; otherwise each of its")
+	fmt.Fprintln(w, "subfolders holding DICOM files is one. OUT_DIR must not lie inside any DIR.")
+	fmt.Fprintln(w)
+	fmt.Fprintln(w, "Exit code: 0 every case analysed, 1 some case incomplete or failed (see errors.csv)")
+	fmt.Fprintln(w, "or the audit was interrupted, 2 usage error.")
+	fmt.Fprintln(w)
+	fmt.Fprintln(w, "options:")
+	fs.SetOutput(w)
+	fs.PrintDefaults()
+}
+
+func runAudit(args []string, stdout, stderr io.Writer) int {
+	fs := flag.NewFlagSet("audit", flag.ContinueOnError)
+	fs.SetOutput(io.Discard)
+	var cfg audit.Config
+	var settingsFile, shard string
+	fs.StringVar(&cfg.OutDir, "o", "", "output folder `OUT_DIR` (created when missing)")
+	fs.StringVar(&cfg.OutDir, "out", "", "same as -o")
+	fs.StringVar(&settingsFile, "settings", "", "analysis settings as a JSON `FILE` (see README); default settings when not given")
+	fs.IntVar(&cfg.Workers, "workers", 0, "cases analysed at once, and held in memory at once (0: one per CPU core)")
+	fs.BoolVar(&cfg.Resume, "resume", false, "skip cases already analysed in OUT_DIR with the same inputs and settings")
+	fs.StringVar(&shard, "shard", "", "analyse only shard `I/N` of the cases (1 <= I <= N; split by a hash of the case path)")
+	fs.BoolVar(&cfg.Deidentify, "deidentify", false, "name cases by a pseudonym and leave patient identity and source paths out of every output")
+
+	inputs, err := parseInterspersed(fs, args)
+	if errors.Is(err, flag.ErrHelp) {
+		auditUsage(stdout, fs)
+		return 0
+	}
+	if err != nil {
+		fmt.Fprintf(stderr, "dosecover audit: %v\n\n", err)
+		auditUsage(stderr, fs)
+		return 2
+	}
+	if len(inputs) == 0 {
+		fmt.Fprintln(stderr, "dosecover audit: no case folder given")
+		auditUsage(stderr, fs)
+		return 2
+	}
+	if cfg.OutDir == "" {
+		fmt.Fprintln(stderr, "dosecover audit: no output folder given (-o OUT_DIR)")
+		auditUsage(stderr, fs)
+		return 2
+	}
+	if shard != "" {
+		if cfg.Shard, err = audit.ParseShard(shard); err != nil {
+			fmt.Fprintf(stderr, "dosecover audit: %v\n", err)
+			return 2
+		}
+	}
+	if cfg.Workers < 0 {
+		fmt.Fprintf(stderr, "dosecover audit: --workers %d: want 0 (one per core) or more\n", cfg.Workers)
+		return 2
+	}
+	cfg.Inputs = inputs
+	cfg.Analyzer, cfg.Settings, cfg.SettingsColumns, err = auditAnalysis(settingsFile)
+	if err != nil {
+		fmt.Fprintf(stderr, "dosecover audit: %v\n", err)
+		if settingsFile != "" {
+			return 2
+		}
+		return 1
+	}
+	terminal := false
+	if f, ok := stderr.(*os.File); ok {
+		terminal = audit.IsTerminal(f)
+	}
+	cfg.Progress = audit.ProgressPrinter(stderr, terminal)
+
+	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
+	defer stop()
+	sum, err := audit.Run(ctx, cfg)
+	var ue *audit.UsageError
+	switch {
+	case errors.As(err, &ue):
+		fmt.Fprintf(stderr, "dosecover audit: %v\n", err)
+		return 2
+	case sum != nil && sum.Interrupted:
+		fmt.Fprintf(stderr, "\ndosecover audit: interrupted after %d cases; every finished case is saved in %s.\n"+
+			"Run the same command with --resume to continue where it stopped.\n", len(sum.Rows), cfg.OutDir)
+		return 1
+	case err != nil:
+		fmt.Fprintf(stderr, "dosecover audit: %v\n", err)
+		return 1
+	}
+	for _, p := range sum.Problems {
+		fmt.Fprintf(stderr, "dosecover audit: skipped folder: %s\n", p)
+	}
+	fmt.Fprintf(stdout, "%d cases: %d analysed (%d from an earlier run), %d incomplete, %d failed\n",
+		len(sum.Rows), sum.Analysed, sum.Resumed, sum.Incomplete, sum.Failed)
+	for _, f := range sum.Files {
+		fmt.Fprintln(stdout, f)
+	}
+	if n := sum.Incomplete + sum.Failed; n > 0 {
+		fmt.Fprintf(stdout, "%d cases were not analysed; their reasons are in errors.csv.\n", n)
+	}
+	return sum.ExitCode()
+}
+
+// parseInterspersed parses args with fs, allowing options after and
+// between the positional arguments ("DIR... -o OUT"); "--" ends the
+// options. It returns the positional arguments.
+func parseInterspersed(fs *flag.FlagSet, args []string) ([]string, error) {
+	var pos []string
+	for {
+		if err := fs.Parse(args); err != nil {
+			return nil, err
+		}
+		rest := fs.Args()
+		if len(rest) == 0 {
+			return pos, nil
+		}
+		// fs.Parse stops at the first positional argument or after "--".
+		if len(args) > len(rest) && args[len(args)-len(rest)-1] == "--" {
+			return append(pos, rest...), nil
+		}
+		pos = append(pos, rest[0])
+		args = rest[1:]
+	}
+}

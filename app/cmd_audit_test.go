@@ -1,0 +1,131 @@
+//go:build cgo
+
+package main
+
+import (
+	"bytes"
+	"context"
+	"errors"
+	"flag"
+	"os"
+	"path/filepath"
+	"reflect"
+	"strings"
+	"testing"
+
+	"dosecover/review/audit"
+)
+
+// fakeAuditCase writes a case folder with one file that starts like a DICOM
+// Part 10 file (128-byte preamble, "DICM"; PS3.10 7.1).
+func fakeAuditCase(t *testing.T, dir string, extra ...string) {
+	t.Helper()
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		t.Fatal(err)
+	}
+	b := append(make([]byte, 128), "DICM"...)
+	if err := os.WriteFile(filepath.Join(dir, "IM1"), b, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	for _, e := range extra {
+		os.WriteFile(filepath.Join(dir, e), nil, 0o644)
+	}
+}
+
+// withFakeAuditAnalysis replaces the analysis by one that fails on a file
+// named FAIL and otherwise reports one percent of coverage per file.
+func withFakeAuditAnalysis(t *testing.T) {
+	old := auditAnalysis
+	t.Cleanup(func() { auditAnalysis = old })
+	auditAnalysis = func(settingsFile string) (audit.Analyzer, []byte, []audit.Column, error) {
+		settings := []byte(`{}`)
+		if settingsFile != "" {
+			b, err := os.ReadFile(settingsFile)
+			if err != nil {
+				return nil, nil, nil, err
+			}
+			settings = b
+		}
+		return func(ctx context.Context, c *audit.Case) (*audit.CaseResult, error) {
+			for _, f := range c.Files {
+				if f == "FAIL" {
+					return nil, errors.New("marker file FAIL")
+				}
+			}
+			m := audit.NoMetrics()
+			m.CoveragePct = audit.Num(len(c.Files))
+			return &audit.CaseResult{Metrics: m}, nil
+		}, settings, nil, nil
+	}
+}
+
+func TestAuditExitCodes(t *testing.T) {
+	withFakeAuditAnalysis(t)
+	tmp := t.TempDir()
+	good := filepath.Join(tmp, "good")
+	fakeAuditCase(t, filepath.Join(good, "a"))
+	fakeAuditCase(t, filepath.Join(good, "b"))
+	mixed := filepath.Join(tmp, "mixed")
+	fakeAuditCase(t, filepath.Join(mixed, "a"))
+	fakeAuditCase(t, filepath.Join(mixed, "bad"), "FAIL")
+	out := filepath.Join(tmp, "out")
+	for _, c := range []struct {
+		name string
+		args []string
+		want int
+	}{
+		{"all analysed, options after the folder", []string{good, "-o", out + "1", "--workers", "2"}, 0},
+		{"one case failed", []string{"--out", out + "2", mixed}, 1},
+		{"help", []string{"-h"}, 0},
+		{"no folder", []string{"-o", out}, 2},
+		{"no output", []string{good}, 2},
+		{"unknown option", []string{good, "-o", out, "--fast"}, 2},
+		{"bad shard", []string{good, "-o", out, "--shard", "3/2"}, 2},
+		{"bad workers", []string{good, "-o", out, "--workers", "-3"}, 2},
+		{"output inside input", []string{good, "-o", filepath.Join(good, "a", "out")}, 2},
+		{"missing input", []string{filepath.Join(tmp, "nope"), "-o", out}, 2},
+		{"missing settings file", []string{good, "-o", out, "--settings", filepath.Join(tmp, "nope.json")}, 2},
+	} {
+		var stdout, stderr bytes.Buffer
+		got := run(append([]string{"audit"}, c.args...), &stdout, &stderr)
+		if got != c.want {
+			t.Errorf("%s: exit %d, want %d\nstdout: %s\nstderr: %s", c.name, got, c.want, stdout.String(), stderr.String())
+		}
+		if c.want == 2 && c.name != "help" && stderr.Len() == 0 {
+			t.Errorf("%s: usage error without a message", c.name)
+		}
+	}
+	if _, err := os.Stat(filepath.Join(good, "a", "out")); !os.IsNotExist(err) {
+		t.Errorf("output folder created inside the input")
+	}
+	b, err := os.ReadFile(filepath.Join(out+"2", "errors.csv"))
+	if err != nil || !strings.Contains(string(b), "marker file FAIL") {
+		t.Errorf("errors.csv: %s %v", b, err)
+	}
+	// Not a terminal: plain progress lines, one per case.
+	var stdout, stderr bytes.Buffer
+	run([]string{"audit", good, "-o", out + "3"}, &stdout, &stderr)
+	if strings.Count(stderr.String(), "audit: [") != 2 || strings.Contains(stderr.String(), "\r") {
+		t.Errorf("progress on a pipe:\n%q", stderr.String())
+	}
+}
+
+func TestParseInterspersed(t *testing.T) {
+	for _, c := range []struct {
+		args []string
+		pos  []string
+		out  string
+	}{
+		{[]string{"a", "b", "-o", "x"}, []string{"a", "b"}, "x"},
+		{[]string{"-o", "x", "a"}, []string{"a"}, "x"},
+		{[]string{"a", "-o", "x", "b"}, []string{"a", "b"}, "x"},
+		{[]string{"-o", "x", "--", "-a", "b"}, []string{"-a", "b"}, "x"},
+	} {
+		fs := flag.NewFlagSet("t", flag.ContinueOnError)
+		out := fs.String("o", "", "")
+		pos, err := parseInterspersed(fs, c.args)
+		if err != nil || !reflect.DeepEqual(pos, c.pos) || *out != c.out {
+			t.Errorf("%v: %v %q %v; want %v %q", c.args, pos, *out, err, c.pos, c.out)
+		}
+	}
+}

@@ -1,0 +1,209 @@
+package audit
+
+import (
+	"bytes"
+	"context"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"os"
+	"path/filepath"
+	"strconv"
+	"strings"
+
+	"dosecover/dosemap"
+	"dosecover/dosemap/dicomio"
+	"dosecover/review"
+)
+
+// LoadSettings reads analysis settings for an audit from a JSON file: the
+// object of review.Settings (keys "threshold", "margin_mm", "model",
+// "trials", "seed"); keys left out keep their defaults
+// (review.DefaultSettings) and unknown keys are rejected. An empty path
+// gives the defaults. "excluded_sonications" is refused: it names
+// sonications of one case, while an audit applies one set of settings to
+// every case.
+func LoadSettings(path string) (review.Settings, error) {
+	s := review.DefaultSettings()
+	if path == "" {
+		return s, nil
+	}
+	b, err := os.ReadFile(path)
+	if err != nil {
+		return s, fmt.Errorf("reading settings: %w", err)
+	}
+	d := json.NewDecoder(bytes.NewReader(b))
+	d.DisallowUnknownFields()
+	if err := d.Decode(&s); err != nil {
+		return s, fmt.Errorf("settings file %s: %w", path, err)
+	}
+	if _, err := d.Token(); err != io.EOF {
+		return s, fmt.Errorf("settings file %s: more than one JSON value", path)
+	}
+	if err := CheckSettings(s); err != nil {
+		return s, fmt.Errorf("settings file %s: %w", path, err)
+	}
+	return s, nil
+}
+
+// CheckSettings reports settings an audit cannot use.
+func CheckSettings(s review.Settings) error {
+	switch {
+	case !(s.Threshold > 0) || math.IsInf(s.Threshold, 0):
+		return fmt.Errorf("threshold %g: want a positive dose", s.Threshold)
+	case !(s.MarginMM >= 0) || s.MarginMM > review.LargestMarginMM:
+		return fmt.Errorf("margin_mm %g: want 0 to %g mm", s.MarginMM, review.LargestMarginMM)
+	case s.Model != "cem43" && s.Model != "arrhenius":
+		return fmt.Errorf("model %q: want \"cem43\" or \"arrhenius\"", s.Model)
+	case s.Trials < 0:
+		return fmt.Errorf("trials %d: want 0 or more", s.Trials)
+	case len(s.Excluded) > 0:
+		return errors.New("excluded_sonications names sonications of one case; an audit analyses every sonication of every case")
+	}
+	return nil
+}
+
+// SettingsColumns returns the settings columns of the summary table.
+func SettingsColumns(s review.Settings) []Column {
+	f := func(x float64) string { return strconv.FormatFloat(x, 'g', -1, 64) }
+	return []Column{
+		{"model", s.Model},
+		{"threshold", f(s.Threshold)},
+		{"margin_mm", f(s.MarginMM)},
+		{"trials", strconv.Itoa(s.Trials)},
+		{"seed", strconv.FormatUint(s.Seed, 10)},
+	}
+}
+
+// Artifacts makes the report files of one analysed case; nil writes none.
+type Artifacts func(c *Case, cs *dosemap.Case, res *review.Result) []Artifact
+
+// NewAnalyzer returns the Analyzer of the coverage analysis (package
+// review) with settings s. Per case it reads the folder with
+// dicomio.Load, one file at a time (the audit's workers run cases in
+// parallel), and then:
+//   - fails the case when a file that is DICOM (by content) or named *.dcm
+//     could not be read: a corrupted file must not silently shorten a
+//     series;
+//   - marks it incomplete when it lacks thermometry or a target contour;
+//   - else analyses it with review.Analyze and returns its figures, the
+//     Result JSON and the files made by artifacts.
+//
+// With Case.Deidentify the case's patient attributes are dropped and its
+// label is the case ID before the analysis sees it.
+func NewAnalyzer(s review.Settings, artifacts Artifacts) Analyzer {
+	return func(ctx context.Context, c *Case) (*CaseResult, error) {
+		cs, inv, err := dicomio.Load(ctx, c.Dir, dicomio.LoadOptions{Workers: 1}, nil)
+		if err != nil {
+			return nil, fmt.Errorf("reading case folder %s: %w", c.Dir, err)
+		}
+		if err := corrupted(c, inv); err != nil {
+			return nil, err
+		}
+		if !inv.Reviewable {
+			return nil, Incomplete(inv.NotReviewable)
+		}
+		if cs.Target() == nil {
+			if len(cs.Structures) == 0 {
+				return nil, Incomplete("no contours: no RTSTRUCT with a target structure found")
+			}
+			names := make([]string, len(cs.Structures))
+			for n, st := range cs.Structures {
+				names[n] = fmt.Sprintf("%q (%s)", st.Name, st.InterpretedType)
+			}
+			return nil, Incomplete("no target contour among the structures " + strings.Join(names, ", "))
+		}
+		if c.Deidentify {
+			cs.Patient = dosemap.Patient{}
+			cs.Label = c.ID
+		}
+		res, err := review.Analyze(ctx, cs, s, nil)
+		if err != nil {
+			return nil, fmt.Errorf("analysing %s: %w", c.Dir, err)
+		}
+		var js bytes.Buffer
+		if err := res.WriteJSON(&js); err != nil {
+			return nil, fmt.Errorf("encoding the analysis of %s: %w", c.Dir, err)
+		}
+		out := &CaseResult{Metrics: MetricsOf(res), Flags: FlagsOf(res), Analysis: js.Bytes()}
+		if artifacts != nil {
+			out.Artifacts = artifacts(c, cs, res)
+		}
+		return out, nil
+	}
+}
+
+// corrupted returns an error naming the first file of the case that looks
+// like DICOM (by content or by a .dcm name) but could not be read.
+func corrupted(c *Case, inv *dicomio.Inventory) error {
+	var bad []string
+	for _, sk := range inv.Skipped {
+		r := sk.Reason
+		broken := strings.HasPrefix(r, "unreadable") || strings.HasPrefix(r, "truncated") ||
+			strings.HasPrefix(r, "cannot read") || strings.HasPrefix(r, "pixel data") || strings.HasPrefix(r, "not a DICOM file")
+		if !broken {
+			continue
+		}
+		p := sk.Path
+		if !filepath.IsAbs(p) {
+			p = filepath.Join(c.Dir, p)
+		}
+		isDCM := strings.EqualFold(filepath.Ext(p), ".dcm")
+		if ok, _ := IsDICOMFile(p); ok || isDCM {
+			bad = append(bad, fmt.Sprintf("%s: %s", p, r))
+		}
+	}
+	switch len(bad) {
+	case 0:
+		return nil
+	case 1:
+		return fmt.Errorf("unreadable file %s", bad[0])
+	}
+	return fmt.Errorf("unreadable file %s (and %d more)", bad[0], len(bad)-1)
+}
+
+// MetricsOf returns the summary figures of a Result: fractions in percent,
+// volumes in mL.
+func MetricsOf(r *review.Result) Metrics {
+	pct := func(f float64) Num { return Num(100 * f) }
+	optPct := func(f *float64) Num {
+		if f == nil {
+			return Num(math.NaN())
+		}
+		return pct(*f)
+	}
+	m := Metrics{
+		TargetML:            Num(r.TargetVolumeML),
+		CoveragePct:         pct(r.CoveredFraction),
+		CoverageOfTargetPct: pct(r.CoveredFractionOfTarget),
+		CoverageP05Pct:      optPct(r.CoveredFractionP05),
+		CoverageP95Pct:      optPct(r.CoveredFractionP95),
+		NotMonitoredPct:     pct(r.NotMonitoredFraction),
+		Holes:               len(r.Holes),
+		LargestHoleML:       0,
+		OutsideMarginML:     Num(r.OutsideMarginLethalML),
+	}
+	for _, h := range r.Holes {
+		m.LargestHoleML = Num(math.Max(float64(m.LargestHoleML), h.VolumeMM3/1000))
+	}
+	var avoid float64
+	for _, a := range r.Avoid {
+		avoid += a.LethalVolumeMM3 / 1000
+	}
+	m.AvoidLethalML = Num(avoid)
+	return m
+}
+
+// FlagsOf returns the quality remarks of a Result: sonications with
+// flagged thermometry frames, then the analysis warnings.
+func FlagsOf(r *review.Result) []string {
+	flags := []string{}
+	for _, q := range r.Quality {
+		if len(q.FlaggedFrames) > 0 {
+			flags = append(flags, fmt.Sprintf("sonication %d: %d of %d frames flagged", q.Sonication, len(q.FlaggedFrames), len(q.Frames)))
+		}
+	}
+	return append(flags, r.Warnings...)
+}

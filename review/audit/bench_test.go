@@ -1,0 +1,87 @@
+package audit
+
+import (
+	"context"
+	"fmt"
+	"path/filepath"
+	"runtime"
+	"sync"
+	"testing"
+	"time"
+)
+
+// peakHeap samples the in-use heap every few milliseconds until stop is
+// called and returns the largest value seen, in bytes.
+func peakHeap() (stop func() uint64) {
+	var mu sync.Mutex
+	var peak uint64
+	done := make(chan struct{})
+	finished := make(chan struct{})
+	go func() {
+		defer close(finished)
+		var ms runtime.MemStats
+		tick := time.NewTicker(5 * time.Millisecond)
+		defer tick.Stop()
+		for {
+			runtime.ReadMemStats(&ms)
+			mu.Lock()
+			peak = max(peak, ms.HeapInuse)
+			mu.Unlock()
+			select {
+			case <-done:
+				return
+			case <-tick.C:
+			}
+		}
+	}()
+	return func() uint64 {
+		close(done)
+		<-finished
+		mu.Lock()
+		defer mu.Unlock()
+		return peak
+	}
+}
+
+// benchAudit runs a whole audit of the cases below in (a fresh output
+// folder per iteration) and reports cases per minute and the peak heap
+// above the starting heap, per worker.
+func benchAudit(b *testing.B, in string, cases int, workers int, a Analyzer) {
+	b.Helper()
+	runtime.GC()
+	var base runtime.MemStats
+	runtime.ReadMemStats(&base)
+	stop := peakHeap()
+	b.ResetTimer()
+	for i := 0; i < b.N; i++ {
+		out := filepath.Join(b.TempDir(), fmt.Sprint("out", i))
+		sum, err := Run(context.Background(), Config{Inputs: []string{in}, OutDir: out, Workers: workers, Analyzer: a})
+		if err != nil {
+			b.Fatal(err)
+		}
+		if sum.Analysed != cases {
+			b.Fatalf("analysed %d of %d cases: %+v", sum.Analysed, cases, sum.Rows)
+		}
+	}
+	b.StopTimer()
+	peak := stop()
+	perCase := b.Elapsed().Minutes() / float64(b.N*cases)
+	b.ReportMetric(1/perCase, "cases/min")
+	if peak > base.HeapInuse {
+		b.ReportMetric(float64(peak-base.HeapInuse)/float64(workers)/(1<<20), "peak-MB/worker")
+	}
+}
+
+// BenchmarkFramework measures the audit machinery alone (discovery,
+// hashing, records, summary) with the file-counting stand-in analysis on
+// cases of 1 to 3 small files: the overhead the framework adds per case.
+func BenchmarkFramework(b *testing.B) {
+	for _, n := range []int{10, 100} {
+		in := makeCases(b, filepath.Join(b.TempDir(), "in"), n)
+		for _, w := range []int{1, 2} {
+			b.Run(fmt.Sprintf("cases=%d/workers=%d", n, w), func(b *testing.B) {
+				benchAudit(b, in, n, w, newFileCounter().analyze)
+			})
+		}
+	}
+}

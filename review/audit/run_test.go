@@ -1,0 +1,502 @@
+package audit
+
+import (
+	"context"
+	"encoding/csv"
+	"encoding/json"
+	"errors"
+	"math"
+	"os"
+	"path/filepath"
+	"sort"
+	"strconv"
+	"strings"
+	"sync"
+	"testing"
+	"time"
+)
+
+func readCSV(t *testing.T, p string) [][]string {
+	t.Helper()
+	f, err := os.Open(p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	recs, err := csv.NewReader(f).ReadAll()
+	if err != nil {
+		t.Fatalf("%s: %v", p, err)
+	}
+	return recs
+}
+
+// TestRunEveryCase audits 12 cases, one of them failing, one incomplete and
+// one panicking, and checks the table, the records, the errors file and the
+// exit code.
+func TestRunEveryCase(t *testing.T) {
+	tmp := t.TempDir()
+	in := makeCases(t, filepath.Join(tmp, "in"), 12)
+	writeFiles(t, in, map[string][]byte{
+		"case-003/FAIL":       []byte("x"),
+		"case-005/INCOMPLETE": []byte("x"),
+		"case-007/PANIC":      []byte("x"),
+	})
+	out := filepath.Join(tmp, "out")
+	fc := newFileCounter()
+	cols := []Column{{"threshold", "240"}, {"margin_mm", "5"}}
+	sum, err := Run(context.Background(), Config{
+		Inputs: []string{in}, OutDir: out, Workers: 3, Analyzer: fc.analyze,
+		Settings: json.RawMessage(`{"threshold": 240, "margin_mm": 5}`), SettingsColumns: cols,
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(sum.Rows) != 12 || sum.Analysed != 9 || sum.Failed != 2 || sum.Incomplete != 1 {
+		t.Fatalf("rows %d analysed %d failed %d incomplete %d; want 12 9 2 1", len(sum.Rows), sum.Analysed, sum.Failed, sum.Incomplete)
+	}
+	if sum.ExitCode() != 1 {
+		t.Errorf("ExitCode = %d with failed cases, want 1", sum.ExitCode())
+	}
+	if fc.total() != 12 {
+		t.Errorf("analyzer called %d times for 12 cases", fc.total())
+	}
+	if got := fc.maxSeen.Load(); got > 3 {
+		t.Errorf("%d cases in flight with 3 workers", got)
+	}
+
+	rows := readCSV(t, filepath.Join(out, "summary.csv"))
+	if !equal(rows[0], Header(cols)) {
+		t.Errorf("header %v", rows[0])
+	}
+	if len(rows) != 13 {
+		t.Fatalf("summary.csv has %d lines, want 13", len(rows))
+	}
+	col := map[string]int{}
+	for k, h := range rows[0] {
+		col[h] = k
+	}
+	for _, r := range rows[1:] {
+		k, _ := strconv.Atoi(strings.TrimPrefix(r[col["source"]], "in/case-"))
+		switch k {
+		case 3, 7:
+			if r[col["status"]] != "failed" || r[col["reason"]] == "" {
+				t.Errorf("case %d: %v", k, r)
+			}
+		case 5:
+			if r[col["status"]] != "incomplete" || r[col["reason"]] != "no thermometry series" {
+				t.Errorf("case %d: %v", k, r)
+			}
+		default:
+			// The fake analysis reports 10 % per file; case k has 1+k%3 files.
+			want := strconv.Itoa(10 * (1 + k%3))
+			if r[col["status"]] != "ok" || r[col["coverage_pct"]] != want || r[col["coverage_p05_pct"]] != "" {
+				t.Errorf("case %d: status %s coverage %q p05 %q; want ok %s and empty", k, r[col["status"]], r[col["coverage_pct"]], r[col["coverage_p05_pct"]], want)
+			}
+			if r[col["threshold"]] != "240" || r[col["margin_mm"]] != "5" || len(r[col["input_sha256"]]) != 64 {
+				t.Errorf("case %d: settings/hash cells %v", k, r)
+			}
+		}
+		if r[col["case"]] != "in__case-"+r[col["source"]][len("in/case-"):] {
+			t.Errorf("case id %q for source %q", r[col["case"]], r[col["source"]])
+		}
+	}
+	errs := readCSV(t, filepath.Join(out, "errors.csv"))
+	if len(errs) != 4 {
+		t.Errorf("errors.csv: %v", errs)
+	}
+	if !strings.Contains(errs[3][3], "internal error") || strings.Contains(errs[3][3], "\n") {
+		t.Errorf("panic reason %q", errs[3][3])
+	}
+
+	// Records: one per case; the ok ones with their artifact and analysis.
+	rec, err := ReadRecord(filepath.Join(out, "cases", "in__case-004", RecordFile))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if rec.Status != StatusOK || rec.Files != 2 || rec.Artifacts[0] != "report.txt" || rec.Source != "in/case-004" {
+		t.Errorf("record %+v", rec)
+	}
+	b, _ := os.ReadFile(filepath.Join(out, "cases", "in__case-004", "report.txt"))
+	if string(b) != "img0.dcm\nimg1.dcm" {
+		t.Errorf("artifact %q", b)
+	}
+	raw, _ := os.ReadFile(filepath.Join(out, "cases", "in__case-004", RecordFile))
+	var generic map[string]any
+	if err := json.Unmarshal(raw, &generic); err != nil {
+		t.Fatal(err)
+	}
+	if generic["analysis"].(map[string]any)["files"].(float64) != 2 {
+		t.Errorf("analysis not stored: %v", generic["analysis"])
+	}
+	if generic["metrics"].(map[string]any)["coverage_p05_pct"] != nil {
+		t.Errorf("NaN metric not written as null")
+	}
+	if tf := tempFiles(t, out); len(tf) != 0 {
+		t.Errorf("temporary files left: %v", tf)
+	}
+	// Inputs untouched: no file was added to the input folders.
+	cases, _, _ := Discover([]string{in})
+	n := 0
+	for _, c := range cases {
+		n += len(c.Files)
+	}
+	if n != 4*1+4*2+4*3+3 { // 4x1 + 4x2 + 4x3 image files, 3 marker files
+		t.Errorf("input folders now hold %d files, want %d", n, 4*1+4*2+4*3+3)
+	}
+}
+
+func equal(a, b []string) bool {
+	if len(a) != len(b) {
+		return false
+	}
+	for k := range a {
+		if a[k] != b[k] {
+			return false
+		}
+	}
+	return true
+}
+
+// TestRunParallel proves that cases are analysed at the same time: each
+// call waits until all workers are busy, which only happens when they run
+// in parallel (a serial pool would wait out every timeout and fail).
+func TestRunParallel(t *testing.T) {
+	for _, workers := range []int{2, 4} {
+		tmp := t.TempDir()
+		in := makeCases(t, filepath.Join(tmp, "in"), 8)
+		fc := newFileCounter()
+		fc.hold = func(ctx context.Context, _ int32) {
+			deadline := time.Now().Add(5 * time.Second)
+			for fc.maxSeen.Load() < int32(workers) && time.Now().Before(deadline) {
+				time.Sleep(time.Millisecond)
+			}
+		}
+		sum, err := Run(context.Background(), Config{Inputs: []string{in}, OutDir: filepath.Join(tmp, "out"), Workers: workers, Analyzer: fc.analyze})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if got := fc.maxSeen.Load(); got != int32(workers) {
+			t.Errorf("workers %d: at most %d cases in flight, want exactly %d", workers, got, workers)
+		}
+		if sum.Analysed != 8 || sum.ExitCode() != 0 {
+			t.Errorf("workers %d: analysed %d, exit %d", workers, sum.Analysed, sum.ExitCode())
+		}
+	}
+}
+
+// TestResumeAfterInterrupt simulates a killed audit: the context is
+// cancelled after four cases, the run is resumed and must analyse only the
+// cases that had not finished.
+func TestResumeAfterInterrupt(t *testing.T) {
+	tmp := t.TempDir()
+	in := makeCases(t, filepath.Join(tmp, "in"), 10)
+	out := filepath.Join(tmp, "out")
+	settings := json.RawMessage(`{"threshold":240}`)
+	ctx, cancel := context.WithCancel(context.Background())
+	defer cancel()
+	first := newFileCounter()
+	var progress []Progress
+	cfg := Config{Inputs: []string{in}, OutDir: out, Workers: 2, Analyzer: first.analyze, Settings: settings,
+		Progress: func(p Progress) {
+			progress = append(progress, p)
+			if p.Done == 4 {
+				cancel()
+			}
+		}}
+	sum, err := Run(ctx, cfg)
+	if !errors.Is(err, context.Canceled) || !sum.Interrupted || sum.ExitCode() != 1 {
+		t.Fatalf("interrupted run: err %v interrupted %v exit %d", err, sum.Interrupted, sum.ExitCode())
+	}
+	done := map[string]bool{}
+	for _, r := range sum.Rows {
+		done[r.Case] = true
+	}
+	if len(done) < 4 || len(done) >= 10 {
+		t.Fatalf("%d cases finished before the interrupt", len(done))
+	}
+	if _, err := os.Stat(filepath.Join(out, "summary.csv")); !os.IsNotExist(err) {
+		t.Errorf("an interrupted run wrote summary.csv (%v)", err)
+	}
+	if tf := tempFiles(t, out); len(tf) != 0 {
+		t.Errorf("temporary files left: %v", tf)
+	}
+	// A killed run may leave a temporary file; the next run removes it.
+	writeFiles(t, out, map[string][]byte{"cases/in__case-009/" + tempPrefix + "case.json.123.tmp": []byte(`{"cas`)})
+
+	second := newFileCounter()
+	cfg.Analyzer, cfg.Progress, cfg.Resume = second.analyze, nil, true
+	sum, err = Run(context.Background(), cfg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if second.total() != 10-len(done) {
+		t.Errorf("resume analysed %d cases, want %d", second.total(), 10-len(done))
+	}
+	for _, r := range sum.Rows {
+		if done[r.Case] != r.Resumed {
+			t.Errorf("case %s: finished before %v, resumed %v", r.Case, done[r.Case], r.Resumed)
+		}
+	}
+	if sum.Analysed != 10 || sum.Resumed != len(done) || sum.ExitCode() != 0 {
+		t.Errorf("analysed %d resumed %d exit %d", sum.Analysed, sum.Resumed, sum.ExitCode())
+	}
+	if len(readCSV(t, filepath.Join(out, "summary.csv"))) != 11 {
+		t.Errorf("summary.csv does not list all 10 cases")
+	}
+	if tf := tempFiles(t, out); len(tf) != 0 {
+		t.Errorf("temporary files left: %v", tf)
+	}
+
+	// Resume again after changing one case's file: only that case is redone.
+	writeFiles(t, in, map[string][]byte{"case-002/img0.dcm": fakeDICOM("changed")})
+	third := newFileCounter()
+	cfg.Analyzer = third.analyze
+	if _, err := Run(context.Background(), cfg); err != nil {
+		t.Fatal(err)
+	}
+	if third.total() != 1 || third.calls[filepath.Join(in, "case-002")] != 1 {
+		t.Errorf("after changing case-002, resume analysed %v", third.calls)
+	}
+
+	// Other settings: everything is redone.
+	fourth := newFileCounter()
+	cfg.Analyzer, cfg.Settings = fourth.analyze, json.RawMessage(`{"threshold":100}`)
+	if _, err := Run(context.Background(), cfg); err != nil {
+		t.Fatal(err)
+	}
+	if fourth.total() != 10 {
+		t.Errorf("with new settings resume analysed %d of 10", fourth.total())
+	}
+
+	// Same settings written differently (key order, spaces) count as equal.
+	fifth := newFileCounter()
+	cfg.Analyzer, cfg.Settings = fifth.analyze, json.RawMessage("{ \"threshold\" : 100 }")
+	if _, err := Run(context.Background(), cfg); err != nil {
+		t.Fatal(err)
+	}
+	if fifth.total() != 0 {
+		t.Errorf("equal settings in another layout: %d cases redone", fifth.total())
+	}
+
+	// A deleted artifact makes its case count as unfinished.
+	os.Remove(filepath.Join(out, "cases", "in__case-001", "report.txt"))
+	sixth := newFileCounter()
+	cfg.Analyzer = sixth.analyze
+	if _, err := Run(context.Background(), cfg); err != nil {
+		t.Fatal(err)
+	}
+	if sixth.total() != 1 {
+		t.Errorf("after deleting an artifact, resume analysed %d cases, want 1", sixth.total())
+	}
+}
+
+// TestResumeRetriesFailed: a failed case is tried again on resume, an
+// incomplete one is not (its inputs decide, and they have not changed).
+func TestResumeRetriesFailed(t *testing.T) {
+	tmp := t.TempDir()
+	in := makeCases(t, filepath.Join(tmp, "in"), 3)
+	writeFiles(t, in, map[string][]byte{"case-000/FAIL": nil, "case-001/INCOMPLETE": nil})
+	cfg := Config{Inputs: []string{in}, OutDir: filepath.Join(tmp, "out"), Workers: 1, Resume: true}
+	for run, want := range []int{3, 1} {
+		fc := newFileCounter()
+		cfg.Analyzer = fc.analyze
+		sum, err := Run(context.Background(), cfg)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if fc.total() != want || sum.Failed != 1 || sum.Incomplete != 1 {
+			t.Errorf("run %d: %d calls (want %d), failed %d, incomplete %d", run, fc.total(), want, sum.Failed, sum.Incomplete)
+		}
+	}
+}
+
+func TestRunUsageErrors(t *testing.T) {
+	tmp := t.TempDir()
+	in := makeCases(t, filepath.Join(tmp, "in"), 2)
+	fc := newFileCounter()
+	if err := os.Symlink(in, filepath.Join(tmp, "link")); err != nil {
+		t.Fatal(err)
+	}
+	for _, c := range []struct {
+		name string
+		cfg  Config
+	}{
+		{"output inside input", Config{Inputs: []string{in}, OutDir: filepath.Join(in, "case-000", "audit"), Analyzer: fc.analyze}},
+		{"output is input", Config{Inputs: []string{in}, OutDir: in, Analyzer: fc.analyze}},
+		{"output inside input by a link", Config{Inputs: []string{in}, OutDir: filepath.Join(tmp, "link", "out"), Analyzer: fc.analyze}},
+		{"no inputs", Config{OutDir: filepath.Join(tmp, "out"), Analyzer: fc.analyze}},
+		{"missing input", Config{Inputs: []string{filepath.Join(tmp, "nope")}, OutDir: filepath.Join(tmp, "out"), Analyzer: fc.analyze}},
+		{"no output", Config{Inputs: []string{in}, Analyzer: fc.analyze}},
+		{"no analyzer", Config{Inputs: []string{in}, OutDir: filepath.Join(tmp, "out")}},
+		{"negative workers", Config{Inputs: []string{in}, OutDir: filepath.Join(tmp, "out"), Workers: -1, Analyzer: fc.analyze}},
+		{"bad shard", Config{Inputs: []string{in}, OutDir: filepath.Join(tmp, "out"), Shard: Shard{5, 4}, Analyzer: fc.analyze}},
+		{"bad settings", Config{Inputs: []string{in}, OutDir: filepath.Join(tmp, "out"), Settings: json.RawMessage("{"), Analyzer: fc.analyze}},
+	} {
+		_, err := Run(context.Background(), c.cfg)
+		var ue *UsageError
+		if !errors.As(err, &ue) {
+			t.Errorf("%s: err %v, want a UsageError", c.name, err)
+		}
+	}
+	if fc.total() != 0 {
+		t.Errorf("analyzer ran %d times despite usage errors", fc.total())
+	}
+	if _, err := os.Stat(filepath.Join(in, "case-000", "audit")); !os.IsNotExist(err) {
+		t.Errorf("an output folder was created inside the input")
+	}
+	// No cases at all: a failure, not a usage error.
+	empty := filepath.Join(tmp, "empty")
+	writeFiles(t, empty, map[string][]byte{"x/notes.txt": []byte("no DICOM here")})
+	_, err := Run(context.Background(), Config{Inputs: []string{empty}, OutDir: filepath.Join(tmp, "out2"), Analyzer: fc.analyze})
+	var ue *UsageError
+	if err == nil || errors.As(err, &ue) {
+		t.Errorf("no cases: err %v", err)
+	}
+}
+
+// TestShardRunsCoverAll runs every shard of 3 into one shared output folder
+// and checks that the shard tables together list every case once.
+func TestShardRunsCoverAll(t *testing.T) {
+	tmp := t.TempDir()
+	in := makeCases(t, filepath.Join(tmp, "in"), 15)
+	out := filepath.Join(tmp, "out")
+	var all []string
+	for i := 1; i <= 3; i++ {
+		fc := newFileCounter()
+		sum, err := Run(context.Background(), Config{Inputs: []string{in}, OutDir: out, Shard: Shard{i, 3}, Workers: 2, Analyzer: fc.analyze})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if fc.total() != len(sum.Rows) {
+			t.Errorf("shard %d: %d calls for %d rows", i, fc.total(), len(sum.Rows))
+		}
+		rows := readCSV(t, filepath.Join(out, "summary-"+strconv.Itoa(i)+"-of-3.csv"))
+		for _, r := range rows[1:] {
+			all = append(all, r[0])
+		}
+	}
+	sort.Strings(all)
+	if len(all) != 15 {
+		t.Fatalf("shards list %d cases, want 15: %v", len(all), all)
+	}
+	for k := 1; k < len(all); k++ {
+		if all[k] == all[k-1] {
+			t.Errorf("case %s in two shards", all[k])
+		}
+	}
+}
+
+func TestDeidentify(t *testing.T) {
+	tmp := t.TempDir()
+	in := makeCases(t, filepath.Join(tmp, "Doe_Jane"), 3)
+	writeFiles(t, in, map[string][]byte{"case-001/FAIL": nil})
+	out := filepath.Join(tmp, "out")
+	var seen []Case
+	var mu sync.Mutex
+	fc := newFileCounter()
+	analyze := func(ctx context.Context, c *Case) (*CaseResult, error) {
+		mu.Lock()
+		seen = append(seen, *c)
+		mu.Unlock()
+		return fc.analyze(ctx, c)
+	}
+	sum, err := Run(context.Background(), Config{Inputs: []string{in}, OutDir: out, Deidentify: true, Analyzer: analyze})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, c := range seen {
+		if !c.Deidentify || c.Name != "" || !strings.HasPrefix(c.ID, "case-") {
+			t.Errorf("analyzer got %+v", c)
+		}
+	}
+	for _, f := range append(sum.Files, filepath.Join(out, "cases", sum.Rows[0].Case, RecordFile), filepath.Join(out, "cases", sum.Rows[1].Case, RecordFile)) {
+		if strings.HasSuffix(f, ".png") {
+			continue
+		}
+		b, err := os.ReadFile(f)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if strings.Contains(string(b), "Doe_Jane") {
+			t.Errorf("%s names the source folder:\n%s", f, b)
+		}
+	}
+	for _, r := range sum.Rows {
+		if len(r.Case) != len("case-")+12 || r.Source != "" {
+			t.Errorf("row %+v", r)
+		}
+	}
+}
+
+func TestNumJSON(t *testing.T) {
+	for _, c := range []struct {
+		x    Num
+		want string
+	}{{1.5, "1.5"}, {0, "0"}, {Num(math.NaN()), "null"}, {Num(math.Inf(1)), "null"}, {-2e-7, "-2e-07"}} {
+		b, err := json.Marshal(c.x)
+		if err != nil || string(b) != c.want {
+			t.Errorf("Marshal(%v) = %s, %v; want %s", c.x, b, err, c.want)
+		}
+		var back Num
+		if err := json.Unmarshal(b, &back); err != nil {
+			t.Fatal(err)
+		}
+		if !(back == c.x || math.IsNaN(float64(back)) && (math.IsNaN(float64(c.x)) || math.IsInf(float64(c.x), 0))) {
+			t.Errorf("round trip %v -> %v", c.x, back)
+		}
+	}
+}
+
+func TestLoadRows(t *testing.T) {
+	tmp := t.TempDir()
+	in := makeCases(t, filepath.Join(tmp, "in"), 4)
+	out := filepath.Join(tmp, "out")
+	fc := newFileCounter()
+	sum, err := Run(context.Background(), Config{Inputs: []string{in}, OutDir: out, Analyzer: fc.analyze})
+	if err != nil {
+		t.Fatal(err)
+	}
+	writeFiles(t, out, map[string][]byte{"cases/junk/case.json": []byte("not json")})
+	rows, problems, err := LoadRows(out)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(rows) != 4 || len(problems) != 1 {
+		t.Fatalf("LoadRows: %d rows, problems %v", len(rows), problems)
+	}
+	for k := range rows {
+		a, b := rows[k], sum.Rows[k]
+		if a.Case != b.Case || a.InputSHA256 != b.InputSHA256 || a.Metrics.CoveragePct != b.Metrics.CoveragePct || a.Dir != b.Dir {
+			t.Errorf("row %d: loaded %+v, run gave %+v", k, a, b)
+		}
+	}
+	if _, _, err := LoadRows(filepath.Join(tmp, "nope")); err == nil {
+		t.Error("LoadRows on a missing folder: no error")
+	}
+}
+
+// TestResumeKeepsDeidentification: a de-identified run never reuses a
+// result made with identity, which would carry the source path.
+func TestResumeKeepsDeidentification(t *testing.T) {
+	tmp := t.TempDir()
+	in := makeCases(t, filepath.Join(tmp, "Doe_Jane"), 2)
+	out := filepath.Join(tmp, "out")
+	cfg := Config{Inputs: []string{in}, OutDir: out, Workers: 1, Resume: true}
+	for k, deid := range []bool{false, true, true} {
+		fc := newFileCounter()
+		cfg.Analyzer, cfg.Deidentify = fc.analyze, deid
+		sum, err := Run(context.Background(), cfg)
+		if err != nil {
+			t.Fatal(err)
+		}
+		want := []int{2, 2, 0}[k]
+		if fc.total() != want {
+			t.Errorf("run %d (deidentify %v): %d cases analysed, want %d", k, deid, fc.total(), want)
+		}
+		for _, r := range sum.Rows {
+			if deid && (r.Source != "" || strings.Contains(r.Case, "Doe")) {
+				t.Errorf("run %d: de-identified row %+v", k, r)
+			}
+		}
+	}
+}
