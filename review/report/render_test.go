@@ -64,7 +64,8 @@ func comparePixels(t *testing.T, got image.Image, path string, tol int, maxFrac 
 	}
 	frac := float64(bad) / float64(b.Dx()*b.Dy())
 	if frac > maxFrac {
-		out := filepath.Join(t.TempDir(), "diff.png")
+		// Kept after the test (outside its temporary folder) for inspection.
+		out := filepath.Join(os.TempDir(), "dosecover-"+strings.TrimSuffix(filepath.Base(path), ".png")+"-diff.png")
 		var buf bytes.Buffer
 		png.Encode(&buf, diff)
 		os.WriteFile(out, buf.Bytes(), 0o644)
