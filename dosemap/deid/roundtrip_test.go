@@ -104,6 +104,18 @@ func TestSimulatedSessionRoundTrip(t *testing.T) {
 			}
 		}
 	}
+	// dciodvfy (Debian dicom3tools) finds no error in the copies of the
+	// first anatomy image and of the structure set (the last file) that it
+	// did not find in the originals.
+	needDciodvfy(t)
+	for _, f := range []FileResult{res.Files[0], res.Files[len(res.Files)-1]} {
+		before := errorsOf(f.Src)
+		for l := range errorsOf(f.Dst) {
+			if !before[l] {
+				t.Errorf("%s: new dciodvfy finding: %s", filepath.Base(f.Dst), l)
+			}
+		}
+	}
 	ctx := context.Background()
 	a, ainv, err := dicomio.Load(ctx, ident, dicomio.LoadOptions{}, nil)
 	if err != nil {
