@@ -7,6 +7,7 @@ import (
 	"encoding/json"
 	"io/fs"
 	"os"
+	"os/exec"
 	"path/filepath"
 	"strings"
 	"testing"
@@ -99,6 +100,15 @@ func containsAny(t *testing.T, dir string, extra ...string) []string {
 			return err
 		}
 		b, _ := os.ReadFile(p)
+		if strings.HasSuffix(p, ".pdf") {
+			// PDF text sits in compressed, subset-encoded streams: search
+			// the text a reader extracts too.
+			txt, err := exec.Command("pdftotext", p, "-").Output()
+			if err != nil && os.Getenv("CI") == "true" {
+				t.Fatalf("pdftotext (poppler-utils) is required in CI: %v", err)
+			}
+			b = append(b, txt...)
+		}
 		for _, s := range append(append([]string{}, invented...), extra...) {
 			for _, form := range []string{s, strings.ToUpper(s), strings.ToLower(s)} {
 				if bytes.Contains(b, []byte(form)) || strings.Contains(e.Name(), form) {

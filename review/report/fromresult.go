@@ -93,8 +93,9 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 	for _, cl := range r.OutsideClusters {
 		f.Outside = append(f.Outside, Region{VolumeML: cl.VolumeMM3 / 1000, DepthMM: cl.MaxDistanceMM})
 	}
+	f.TargetName = hide(f.TargetName, c, opt.Deidentify)
 	for _, a := range r.Avoid {
-		f.Avoid = append(f.Avoid, AvoidRow{Name: a.Name, LethalML: a.LethalVolumeMM3 / 1000, MaxDose: val(a.PeakDose)})
+		f.Avoid = append(f.Avoid, AvoidRow{Name: hide(a.Name, c, opt.Deidentify), LethalML: a.LethalVolumeMM3 / 1000, MaxDose: val(a.PeakDose)})
 	}
 	in.Facts = f
 	if strings.EqualFold(r.Model, "cem43") {
@@ -163,6 +164,11 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 		for n := range rr.Sonications {
 			rr.Sonications[n].Label = fmt.Sprintf("sonication %d", rr.Sonications[n].Number)
 		}
+		rr.Target = hide(r.Target, c, true)
+		rr.Avoid = append([]review.AvoidDose(nil), r.Avoid...)
+		for n := range rr.Avoid {
+			rr.Avoid[n].Name = hide(rr.Avoid[n].Name, c, true)
+		}
 		rr.Warnings = nil
 		for _, w := range r.Warnings {
 			rr.Warnings = append(rr.Warnings, hide(w, c, true))
@@ -198,6 +204,26 @@ func hide(s string, c *dosemap.Case, deid bool) string {
 	for _, so := range c.Sonications {
 		if so.Label != "" {
 			s = strings.ReplaceAll(s, so.Label, fmt.Sprintf("sonication %d", so.Number))
+		}
+	}
+	// Identity of the patient wherever it appears (a structure or a
+	// series named after the patient), case-insensitively.
+	p := c.Patient
+	var toks []string
+	for _, v := range []string{p.Name, p.ID, p.BirthDate, p.Institution} {
+		toks = append(toks, v)
+		toks = append(toks, strings.FieldsFunc(v, func(r rune) bool { return r == '^' || r == ' ' || r == ',' || r == '=' })...)
+	}
+	for _, t := range toks {
+		if len(t) < 3 {
+			continue
+		}
+		for {
+			i := strings.Index(strings.ToUpper(s), strings.ToUpper(t))
+			if i < 0 {
+				break
+			}
+			s = s[:i] + strings.Repeat("X", len(t)) + s[i+len(t):]
 		}
 	}
 	return s

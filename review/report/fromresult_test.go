@@ -2,13 +2,18 @@ package report
 
 import (
 	"bytes"
+	"context"
 	"encoding/csv"
 	"encoding/json"
 	"math"
+	"os/exec"
 	"path/filepath"
 	"strconv"
 	"strings"
 	"testing"
+
+	"dosecover/dosemap"
+	"dosecover/review"
 )
 
 // TestFromResultNumbers checks that the report carries the analysis'
@@ -120,6 +125,16 @@ func titles(ps []Panel) []string {
 
 func TestFromResultDeidentify(t *testing.T) {
 	c, _, in := phantomInput(t, true)
+	// phantomCase names its avoid structure "Nerve"; a patient of that
+	// (invented) name would be hidden from it, and the label and date too.
+	c.Patient = dosemap.Patient{Name: "NERVE^INVENTED", StudyDate: "20260314"}
+	r, err := review.Analyze(context.Background(), c, review.Settings{Threshold: 240, MarginMM: 3, Model: "cem43"}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if in, err = FromResult(c, r, Options{Deidentify: true, PanelPixels: 120}); err != nil {
+		t.Fatal(err)
+	}
 	if strings.Contains(in.CaseLabel, c.Label) || !strings.HasPrefix(in.CaseLabel, "Teaching case ") {
 		t.Errorf("label %q", in.CaseLabel)
 	}
@@ -132,7 +147,21 @@ func TestFromResultDeidentify(t *testing.T) {
 		t.Fatal(err)
 	}
 	for _, p := range []string{out.PNG, out.PDF, out.JSON, out.CSV} {
-		assertAbsent(t, p, c.Label, "2026-03-14", "20260314")
+		assertAbsent(t, p, c.Label, "2026-03-14", "20260314", "Nerve", "NERVE", "INVENTED")
+	}
+	// The PDF keeps its text in compressed, subset-encoded streams, so
+	// check the text a reader extracts as well.
+	txt, err := exec.Command(pdfTool(t, "pdftotext"), out.PDF, "-").CombinedOutput()
+	if err != nil {
+		t.Fatalf("pdftotext: %v\n%s", err, txt)
+	}
+	for _, s := range []string{c.Label, "2026-03-14", "Nerve", "NERVE", "INVENTED"} {
+		if strings.Contains(string(txt), s) {
+			t.Errorf("PDF text shows %q", s)
+		}
+	}
+	if !strings.Contains(string(txt), in.CaseLabel) {
+		t.Errorf("PDF text lacks the neutral label %q", in.CaseLabel)
 	}
 }
 
