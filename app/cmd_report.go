@@ -25,7 +25,7 @@ func init() {
 // runReport implements
 //
 //	dosecover report CASE_DIR -o report.png [--pdf report.pdf] [--json metrics.json]
-//	    [--csv metrics.csv] [--deidentify] [analysis options]
+//	    [--csv metrics.csv] [--deidentify] [analysis options] [--contours FILE] [--target NAME]
 func runReport(args []string, stdout, stderr io.Writer) int {
 	fs := flag.NewFlagSet("report", flag.ContinueOnError)
 	fs.SetOutput(stderr)
@@ -38,6 +38,7 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	signoff := fs.String("sign-off", "", "sign-off statement, printed in the header")
 	dpi := fs.Int("dpi", report.DefaultDPI, "resolution of the PNG, 150 to 1200 dots per inch")
 	af := addAnalysisFlags(fs)
+	sf := addStructureFlags(fs)
 	fs.Usage = func() {
 		fmt.Fprintln(stderr, "usage: dosecover report CASE_DIR -o report.png [--pdf report.pdf] [--json metrics.json] [--csv metrics.csv] [--deidentify] [options]")
 		fmt.Fprintln(stderr, "Analyses the case as \"dosecover analyze\" does with the same options and writes the")
@@ -91,6 +92,10 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	}
 	if inv != nil && !inv.Reviewable {
 		fmt.Fprintf(stderr, "dosecover report: %s is not a reviewable case: %s\n", dir, inv.NotReviewable)
+		return 1
+	}
+	if err := sf.apply(c); err != nil {
+		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
 		return 1
 	}
 	r, err := review.Analyze(ctx, c, set, nil)
