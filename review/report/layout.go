@@ -196,12 +196,33 @@ func Render(c vg.Canvas, in *Input) error {
 	y += gap
 	y = drawPlots(p, in, x0, y, w)
 	y += gap
-	y = drawTables(p, in, x0, y, w)
+	// The tables take the room left above the methods and the cautions,
+	// which are measured first on a canvas that draws nothing.
+	dry := pen{c: nopCanvas{}, h: PageHeight}
+	methodsH := drawMethods(dry, in, x0, 0, w)
+	footTop := PageHeight - margin - footHeight(in, w)
+	y = drawTables(p, in, x0, y, w, footTop-gap-methodsH-gap)
 	y += gap
 	y = drawMethods(p, in, x0, y, w)
 	drawFoot(p, in, x0, y+gap, w)
 	return nil
 }
+
+// nopCanvas is a vg.Canvas that draws nothing, for measuring a block.
+type nopCanvas struct{}
+
+func (nopCanvas) SetLineWidth(vg.Length)                 {}
+func (nopCanvas) SetLineDash([]vg.Length, vg.Length)     {}
+func (nopCanvas) SetColor(color.Color)                   {}
+func (nopCanvas) Rotate(float64)                         {}
+func (nopCanvas) Translate(vg.Point)                     {}
+func (nopCanvas) Scale(float64, float64)                 {}
+func (nopCanvas) Push()                                  {}
+func (nopCanvas) Pop()                                   {}
+func (nopCanvas) Stroke(vg.Path)                         {}
+func (nopCanvas) Fill(vg.Path)                           {}
+func (nopCanvas) FillString(font.Face, vg.Point, string) {}
+func (nopCanvas) DrawImage(vg.Rectangle, image.Image)    {}
 
 func drawHeader(p pen, in *Input, x, y, w vg.Length) vg.Length {
 	title := in.Title
@@ -605,7 +626,7 @@ func curvePlot(title, xlabel, ylabel string, pts []CurvePoint, threshold float64
 }
 
 func drawPlots(p pen, in *Input, x, y, w vg.Length) vg.Length {
-	const h = 165
+	const h = 150
 	pw := (w - gap) / 2
 	unit := doseUnit(in)
 	dvh := curvePlot("Target dose-volume histogram", "dose ("+unit+", log)", "volume >= dose (%)", in.DVH, in.Facts.Threshold, review.ColorTarget, "target")
@@ -618,19 +639,22 @@ func drawPlots(p pen, in *Input, x, y, w vg.Length) vg.Length {
 	return y + h
 }
 
-func drawTables(p pen, in *Input, x, y, w vg.Length) vg.Length {
+// drawTables draws the sonication table and the quality summary side by
+// side, keeping both above bottom: rows and notes that do not fit are
+// counted in a last line instead (the metrics files hold them all).
+func drawTables(p pen, in *Input, x, y, w, bottom vg.Length) vg.Length {
 	tw := w * 0.64
 	qx := x + tw + gap
 	qw := w - tw - gap
-	yt := drawSonications(p, in, x, y, tw)
-	yq := drawQuality(p, in, qx, y, qw)
+	yt := drawSonications(p, in, x, y, tw, bottom)
+	yq := drawQuality(p, in, qx, y, qw, bottom)
 	return vg.Length(math.Max(float64(yt), float64(yq)))
 }
 
-// maxRows is the number of sonication rows the page has room for.
-const maxRows = 12
+// minRows is the number of sonication rows shown however full the page.
+const minRows = 4
 
-func drawSonications(p pen, in *Input, x, y, w vg.Length) vg.Length {
+func drawSonications(p pen, in *Input, x, y, w, bottom vg.Length) vg.Length {
 	y = p.heading(x, y, w, "Sonications")
 	fh := sans(smallSize, true)
 	fb := sans(smallSize, false)
@@ -639,8 +663,8 @@ func drawSonications(p pen, in *Input, x, y, w vg.Length) vg.Length {
 		width float64 // fraction of w
 		right bool
 	}{
-		{"#", 0.05, true}, {"label", 0.25, false}, {"frames", 0.09, true}, {"peak °C", 0.10, true},
-		{"+lethal mL", 0.13, true}, {"+coverage", 0.12, true}, {"outside mL", 0.13, true}, {"flagged", 0.11, true},
+		{"#", 0.05, true}, {"label", 0.29, false}, {"frames", 0.09, true}, {"peak °C", 0.10, true},
+		{"+lethal mL", 0.12, true}, {"+coverage", 0.12, true}, {"outside mL", 0.12, true}, {"flagged", 0.11, true},
 	}
 	xs := make([]vg.Length, len(cols)+1)
 	xs[0] = x
@@ -662,9 +686,10 @@ func drawSonications(p pen, in *Input, x, y, w vg.Length) vg.Length {
 		return p.text(x, y, fb, colFaint, "no sonications")
 	}
 	rh := fb.Extents().Height
+	rows := max(minRows, int((bottom-y)/rh))
 	for r, s := range in.Sonications {
-		if r == maxRows && len(in.Sonications) > maxRows+1 {
-			y = p.text(x, y, fb, colFaint, fmt.Sprintf("... %d more sonications in the metrics file", len(in.Sonications)-maxRows))
+		if r == rows-1 && len(in.Sonications) > rows {
+			y = p.text(x, y, fb, colFaint, fmt.Sprintf("... %d more sonications in the metrics files", len(in.Sonications)-r))
 			break
 		}
 		if r%2 == 1 {
@@ -689,7 +714,7 @@ func drawSonications(p pen, in *Input, x, y, w vg.Length) vg.Length {
 	return y
 }
 
-func drawQuality(p pen, in *Input, x, y, w vg.Length) vg.Length {
+func drawQuality(p pen, in *Input, x, y, w, bottom vg.Length) vg.Length {
 	y = p.heading(x, y, w, "Thermometry quality")
 	q := in.Quality
 	fl := sans(smallSize, false)
@@ -703,12 +728,21 @@ func drawQuality(p pen, in *Input, x, y, w vg.Length) vg.Length {
 		{"suspected phase wraps", fmt.Sprintf("%d", q.Wraps)},
 		{"invalidated voxels", fmt.Sprintf("%d voxel-frames", q.Invalid)},
 	})
+	lh := fl.Extents().Height
 	for n, note := range q.Notes {
-		if n == 4 {
-			y = p.text(x, y, fl, colFaint, fmt.Sprintf("... %d more notes", len(q.Notes)-4))
+		lines := wrap(fl, "- "+note, w)
+		// Room for this note and, unless it is the last, a closing line.
+		need := vg.Length(len(lines)) * lh
+		if n < len(q.Notes)-1 {
+			need += lh
+		}
+		if y+need > bottom {
+			y = p.text(x, y, fl, colFaint, fmt.Sprintf("... %d more notes in the metrics JSON", len(q.Notes)-n))
 			break
 		}
-		y = p.para(x, y, w, fl, colInk, "- "+note)
+		for _, l := range lines {
+			y = p.text(x, y, fl, colInk, l)
+		}
 	}
 	return y
 }
@@ -743,19 +777,27 @@ func drawMethods(p pen, in *Input, x, y, w vg.Length) vg.Length {
 	return p.text(x+lw, y, fv, colInk, sw)
 }
 
-func drawFoot(p pen, in *Input, x, y, w vg.Length) {
-	cautions := in.Cautions
-	if len(cautions) == 0 {
-		cautions = DefaultCautions
-	}
+// footLines returns the wrapped lines of the cautions box.
+func footLines(in *Input, w vg.Length) []string {
 	f := sans(smallSize, false)
-	fb := sans(smallSize, true)
 	var lines []string
-	for _, c := range cautions {
+	for _, c := range in.cautions() {
 		lines = append(lines, wrap(f, c, w-12)...)
 	}
-	lh := f.Extents().Height
-	h := fb.Extents().Height + vg.Length(len(lines))*lh + 6
+	return lines
+}
+
+// footHeight returns the height of the cautions box.
+func footHeight(in *Input, w vg.Length) vg.Length {
+	fb, f := sans(smallSize, true), sans(smallSize, false)
+	return fb.Extents().Height + vg.Length(len(footLines(in, w)))*f.Extents().Height + 6
+}
+
+func drawFoot(p pen, in *Input, x, y, w vg.Length) {
+	f := sans(smallSize, false)
+	fb := sans(smallSize, true)
+	lines := footLines(in, w)
+	h := footHeight(in, w)
 	// Anchor the cautions to the bottom margin when there is room.
 	if yb := PageHeight - margin - h; yb > y {
 		y = yb

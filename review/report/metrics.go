@@ -136,6 +136,7 @@ type MetricsDocument struct {
 	Metrics       []Metric        `json:"metrics"`
 	DVH           []jsonPoint     `json:"target_dvh"`
 	Coverage      []jsonPoint     `json:"coverage_vs_threshold"`
+	QualityNotes  []string        `json:"quality_notes"`
 	Analysis      json.RawMessage `json:"analysis,omitempty"` // the analysis' own JSON, verbatim
 	Cautions      []string        `json:"cautions"`
 }
@@ -183,8 +184,9 @@ func (in *Input) Document() *MetricsDocument {
 		Settings: append([]Setting{}, in.Methods...),
 		Metrics:  in.Metrics(),
 		DVH:      curve(in.DVH), Coverage: curve(in.CoverageVsThreshold),
-		Analysis: in.Analysis,
-		Cautions: in.cautions(),
+		QualityNotes: append([]string{}, in.Quality.Notes...),
+		Analysis:     in.Analysis,
+		Cautions:     in.cautions(),
 	}
 	if !in.ReviewDate.IsZero() {
 		d.ReviewDate = in.ReviewDate.UTC().Format(time.RFC3339)
