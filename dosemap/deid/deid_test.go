@@ -20,7 +20,7 @@ var identity = []string{
 	"Imaginary Lane 7", "DRFICTION", "OPERATORFAKE", "SCANROOM-Q",
 }
 
-func el(t *testing.T, tg tag.Tag, v any) *dicom.Element {
+func el(t testing.TB, tg tag.Tag, v any) *dicom.Element {
 	t.Helper()
 	e, err := dicom.NewElement(tg, v)
 	if err != nil {
@@ -41,7 +41,7 @@ const (
 )
 
 // patient returns the identifying patient and site elements shared by both files.
-func patient(t *testing.T) []*dicom.Element {
+func patient(t testing.TB) []*dicom.Element {
 	return []*dicom.Element{
 		el(t, tag.PatientName, []string{"TESTPERSON^INVENTED"}),
 		el(t, tag.PatientID, []string{"INV-0042-XZ"}),
@@ -62,7 +62,7 @@ func patient(t *testing.T) []*dicom.Element {
 
 // writeMR writes a small invented MR image with identifying values, a
 // private attribute and known pixel bytes.
-func writeMR(t *testing.T, path string, pixels []byte) {
+func writeMR(t testing.TB, path string, pixels []byte) {
 	t.Helper()
 	es := []*dicom.Element{
 		el(t, tag.MediaStorageSOPClassUID, []string{mrClass}),
@@ -136,7 +136,7 @@ func writeRT(t *testing.T, path string) {
 	writeDS(t, path, append(es, patient(t)...))
 }
 
-func mustValue(t *testing.T, v any) dicom.Value {
+func mustValue(t testing.TB, v any) dicom.Value {
 	val, err := dicom.NewValue(v)
 	if err != nil {
 		t.Fatal(err)
@@ -144,7 +144,7 @@ func mustValue(t *testing.T, v any) dicom.Value {
 	return val
 }
 
-func writeDS(t *testing.T, path string, es []*dicom.Element) {
+func writeDS(t testing.TB, path string, es []*dicom.Element) {
 	t.Helper()
 	sortElements(es)
 	var buf bytes.Buffer
