@@ -157,22 +157,9 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 	in.Methods = methods(c, r, opt)
 
 	// The analysis' own JSON, with identity removed when asked.
-	rr := *r
+	rr := r
 	if opt.Deidentify {
-		rr.Case = in.CaseLabel
-		rr.Sonications = append([]review.SonicationStats(nil), r.Sonications...)
-		for n := range rr.Sonications {
-			rr.Sonications[n].Label = fmt.Sprintf("sonication %d", rr.Sonications[n].Number)
-		}
-		rr.Target = hide(r.Target, c, true)
-		rr.Avoid = append([]review.AvoidDose(nil), r.Avoid...)
-		for n := range rr.Avoid {
-			rr.Avoid[n].Name = hide(rr.Avoid[n].Name, c, true)
-		}
-		rr.Warnings = nil
-		for _, w := range r.Warnings {
-			rr.Warnings = append(rr.Warnings, hide(w, c, true))
-		}
+		rr = DeidentifyResult(c, r, in.CaseLabel)
 	}
 	var buf bytes.Buffer
 	if err := rr.WriteJSON(&buf); err != nil {
@@ -190,6 +177,31 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 	}
 	in.Panels = panels
 	return in, nil
+}
+
+// DeidentifyResult returns a shallow copy of r for output without
+// identity: the case label replaced by label (see DeidentifiedLabel), the
+// sonications named by number, and the patient's name, ID, birth date and
+// institution, the case label and the sonication labels of c blanked out of
+// the target and avoid structure names and the warnings. The grids are
+// shared with r.
+func DeidentifyResult(c *dosemap.Case, r *review.Result, label string) *review.Result {
+	rr := *r
+	rr.Case = label
+	rr.Sonications = append([]review.SonicationStats(nil), r.Sonications...)
+	for n := range rr.Sonications {
+		rr.Sonications[n].Label = fmt.Sprintf("sonication %d", rr.Sonications[n].Number)
+	}
+	rr.Target = hide(r.Target, c, true)
+	rr.Avoid = append([]review.AvoidDose(nil), r.Avoid...)
+	for n := range rr.Avoid {
+		rr.Avoid[n].Name = hide(rr.Avoid[n].Name, c, true)
+	}
+	rr.Warnings = nil
+	for _, w := range r.Warnings {
+		rr.Warnings = append(rr.Warnings, hide(w, c, true))
+	}
+	return &rr
 }
 
 // hide replaces the case label and the sonication labels of c in s when

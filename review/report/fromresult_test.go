@@ -175,3 +175,28 @@ func TestPhantomGolden(t *testing.T) {
 	}
 	comparePixels(t, img, filepath.Join("testdata", "phantom.png"), 16, 0.001)
 }
+
+func TestDeidentifyResult(t *testing.T) {
+	c, r, _ := phantomInput(t, false)
+	c.Label = "case INVENTED"
+	c.Patient = dosemap.Patient{Name: "NERVE^INVENTED", ID: "ID-42-QQ"}
+	r.Case = c.Label
+	r.Warnings = append(r.Warnings, "case INVENTED: sonication 1 of ID-42-QQ was resampled")
+	d := DeidentifyResult(c, r, "Teaching case 0001")
+	var buf bytes.Buffer
+	if err := d.WriteJSON(&buf); err != nil {
+		t.Fatal(err)
+	}
+	for _, s := range []string{"INVENTED", "ID-42-QQ", "Nerve"} {
+		if strings.Contains(buf.String(), s) {
+			t.Errorf("de-identified result JSON holds %q", s)
+		}
+	}
+	if !strings.Contains(buf.String(), `"case": "Teaching case 0001"`) {
+		t.Error("label not set")
+	}
+	// The original is left as it was.
+	if r.Case != "case INVENTED" || r.Avoid[0].Name != "Nerve" || !strings.Contains(r.Warnings[len(r.Warnings)-1], "ID-42-QQ") {
+		t.Error("DeidentifyResult changed its argument")
+	}
+}
