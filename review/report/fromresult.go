@@ -493,7 +493,8 @@ func Panels(c *dosemap.Case, r *review.Result, px int) ([]Panel, error) {
 		v := view.View{Width: px, Height: px, Zoom: float64(px) / ext, Centre: view.Point{X: cx, Y: cy}}
 		img, err := view.Render(&s, v)
 		if err != nil {
-			return Panel{}, fmt.Errorf("report: rendering %s: %w", strings.ToLower(title), err)
+			// The page is still made; the panel says why it is empty.
+			return Panel{Title: title, Caption: "not drawn: " + err.Error()}, nil
 		}
 		return Panel{Title: title, Caption: planeCaption(s.Plane, q) + what, Image: image.Image(img)}, nil
 	}
