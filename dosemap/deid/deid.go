@@ -34,7 +34,9 @@
 //     what was done; LongitudinalTemporalInformationModified (0028,0303)
 //     says whether dates were modified or removed.
 //
-// Pixel data are copied byte for byte; files that declare burned-in
+// Pixel data are copied byte for byte (compressed frames too; only the
+// Basic Offset Table of encapsulated data is rewritten, and may come out
+// empty for one frame, which PS3.5 A.4 allows); files that declare burned-in
 // annotation (0028,0301 = YES) are refused, since identity in the pixels
 // cannot be removed here.
 package deid
