@@ -555,3 +555,50 @@ print("ok")
 		})
 	}
 }
+
+// A file that cannot be de-identified stops the run and leaves neither the
+// output folder nor a temporary folder behind.
+func TestFolderFailureLeavesNothing(t *testing.T) {
+	src, _ := makeCase(t)
+	writeDS(t, filepath.Join(src, "zz_burned.dcm"), []*dicom.Element{
+		el(t, tag.MediaStorageSOPClassUID, []string{mrClass}),
+		el(t, tag.MediaStorageSOPInstanceUID, []string{"1.2.826.0.1.3680043.99.1.9"}),
+		el(t, tag.TransferSyntaxUID, []string{explicit}),
+		el(t, tag.BurnedInAnnotation, []string{"YES"}),
+	})
+	if err := os.Symlink(filepath.Join(src, "notes.txt"), filepath.Join(src, "link.txt")); err != nil {
+		t.Fatal(err)
+	}
+	parent := t.TempDir()
+	dst := filepath.Join(parent, "out")
+	_, err := Folder(context.Background(), src, dst, Options{}, nil)
+	if err == nil || !strings.Contains(err.Error(), "zz_burned.dcm") {
+		t.Fatalf("err = %v, want a failure naming zz_burned.dcm", err)
+	}
+	if ents, _ := os.ReadDir(parent); len(ents) != 0 {
+		t.Errorf("after a failed run %s holds %d entries, want none", parent, len(ents))
+	}
+	// Without the bad file the run succeeds, lists the link as skipped and
+	// fills an existing empty folder.
+	os.Remove(filepath.Join(src, "zz_burned.dcm"))
+	os.Mkdir(dst, 0o755)
+	res, err := Folder(context.Background(), src, dst, Options{}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var link bool
+	for _, s := range res.Skipped {
+		link = link || strings.Contains(s.Reason, "symbolic link")
+	}
+	if !link || len(res.Files) != 2 {
+		t.Errorf("files %d, skipped %v: want 2 files and the link skipped", len(res.Files), res.Skipped)
+	}
+	for _, f := range res.Files {
+		if _, err := os.Stat(f.Dst); err != nil {
+			t.Errorf("listed output %s: %v", f.Dst, err)
+		}
+	}
+	if ents, _ := os.ReadDir(parent); len(ents) != 1 {
+		t.Errorf("%s holds %d entries, want only the output folder", parent, len(ents))
+	}
+}
