@@ -108,7 +108,7 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
 		return 1
 	}
-	px := int(float64(*dpi) * 2.4) // panel side: about 61 mm of the page
+	px := report.PanelSize(float64(*dpi)).X // panels at the page's resolution
 	in, err := report.FromResult(c, r, report.Options{
 		Deidentify: *deidentify, Reviewer: *reviewer, SignOff: *signoff,
 		ReviewDate: time.Now().UTC().Truncate(time.Second), InputsSHA256: sum, PanelPixels: px,

@@ -421,7 +421,8 @@ func fieldAndEcho(c *dosemap.Case, ti review.ThermometryInfo) string {
 // the largest target cross-section, through the largest hole and through
 // the largest lethal cluster outside the margin. Without a hole the second
 // panel is a reformat across the slices through the target centre; without
-// a cluster the third is the other reformat. Each panel is px × px pixels.
+// a cluster the third is the other reformat. Each panel is px pixels wide
+// and PanelAspect as high.
 func Panels(c *dosemap.Case, r *review.Result, px int) ([]Panel, error) {
 	if r.Dose == nil || r.TargetMask == nil {
 		return nil, fmt.Errorf("report: the analysis carries no dose or target grid to draw")
@@ -490,7 +491,7 @@ func Panels(c *dosemap.Case, r *review.Result, px int) ([]Panel, error) {
 		s := sc
 		s.Plane = view.PlaneThrough(grid, o, q, pixelMM)
 		cx, cy := s.Plane.Pixel(centre)
-		v := view.View{Width: px, Height: px, Zoom: float64(px) / ext, Centre: view.Point{X: cx, Y: cy}}
+		v := view.View{Width: px, Height: int(math.Round(float64(px) * PanelAspect)), Zoom: float64(px) / ext, Centre: view.Point{X: cx, Y: cy}}
 		img, err := view.Render(&s, v)
 		if err != nil {
 			// The page is still made; the panel says why it is empty.

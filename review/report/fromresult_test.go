@@ -62,8 +62,8 @@ func TestFromResultNumbers(t *testing.T) {
 		t.Errorf("panels %v", titles(in.Panels))
 	}
 	for _, p := range in.Panels {
-		if p.Image == nil || p.Image.Bounds().Dx() != 360 {
-			t.Errorf("panel %q: image %v, want 360 px wide", p.Title, p.Image)
+		if p.Image == nil || p.Image.Bounds().Dx() != 360 || p.Image.Bounds().Dy() != 295 { // 360 × PanelAspect, rounded
+			t.Errorf("panel %q: image %v, want 360×295 px", p.Title, p.Image.Bounds())
 		}
 	}
 	// CSV and JSON agree with Metrics exactly.

@@ -420,7 +420,7 @@ func drawPanels(p pen, in *Input, x, y, w vg.Length) vg.Length {
 	pw := (w - 2*gap) / n
 	fh := sans(bodySize, true)
 	fc := sans(smallSize, false)
-	side := pw
+	side := pw * PanelAspect
 	bottom := y
 	for k := 0; k < n; k++ {
 		px := x + vg.Length(k)*(pw+gap)
@@ -626,7 +626,7 @@ func curvePlot(title, xlabel, ylabel string, pts []CurvePoint, threshold float64
 }
 
 func drawPlots(p pen, in *Input, x, y, w vg.Length) vg.Length {
-	const h = 150
+	const h = 128
 	pw := (w - gap) / 2
 	unit := doseUnit(in)
 	dvh := curvePlot("Target dose-volume histogram", "dose ("+unit+", log)", "volume >= dose (%)", in.DVH, in.Facts.Threshold, review.ColorTarget, "target")
@@ -689,7 +689,7 @@ func drawSonications(p pen, in *Input, x, y, w, bottom vg.Length) vg.Length {
 	rows := max(minRows, int((bottom-y)/rh))
 	for r, s := range in.Sonications {
 		if r == rows-1 && len(in.Sonications) > rows {
-			y = p.text(x, y, fb, colFaint, fmt.Sprintf("... %d more sonications in the metrics files", len(in.Sonications)-r))
+			y = p.text(x, y, fb, colFaint, fmt.Sprintf("... %s in the metrics files", plural(len(in.Sonications)-r, "more sonication")))
 			break
 		}
 		if r%2 == 1 {
@@ -737,7 +737,7 @@ func drawQuality(p pen, in *Input, x, y, w, bottom vg.Length) vg.Length {
 			need += lh
 		}
 		if y+need > bottom {
-			y = p.text(x, y, fl, colFaint, fmt.Sprintf("... %d more notes in the metrics JSON", len(q.Notes)-n))
+			y = p.text(x, y, fl, colFaint, fmt.Sprintf("... %s in the metrics JSON", plural(len(q.Notes)-n, "more note")))
 			break
 		}
 		for _, l := range lines {
@@ -810,10 +810,20 @@ func drawFoot(p pen, in *Input, x, y, w vg.Length) {
 	}
 }
 
-// imageBounds is a helper for tests and callers that want the panel size
-// in pixels at a given resolution.
-func panelPixels(dpi float64) image.Point {
+// PanelAspect is the height of an image panel over its width.
+const PanelAspect = 0.82
+
+// PanelSize returns the size in pixels of one image panel of the page at
+// dpi, so panels can be rendered at the page's own resolution.
+func PanelSize(dpi float64) image.Point {
 	w := (PageWidth - 2*margin - 2*gap) / 3
-	n := int(w.Dots(dpi))
-	return image.Pt(n, n)
+	return image.Pt(int(w.Dots(dpi)), int((w * PanelAspect).Dots(dpi)))
+}
+
+// plural returns "1 thing" or "n things".
+func plural(n int, thing string) string {
+	if n == 1 {
+		return "1 " + thing
+	}
+	return fmt.Sprintf("%d %ss", n, thing)
 }
