@@ -176,6 +176,9 @@ func TestDeidentifyDemoRoundTrip(t *testing.T) {
 		t.Errorf("de-identified DICOM copy still holds %v", f)
 	}
 	deid := reportJSON(t, copyDir)
+	if len(orig.Metrics) < 20 {
+		t.Fatalf("only %d metrics in the original's report", len(orig.Metrics))
+	}
 	if len(deid.Metrics) != len(orig.Metrics) {
 		t.Fatalf("%d metrics from the copy, %d from the original", len(deid.Metrics), len(orig.Metrics))
 	}

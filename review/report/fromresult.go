@@ -333,7 +333,7 @@ func analysisSettings(r *review.Result) []Setting {
 	}
 	ms = append(ms, Setting{"Excluded sonications", ex})
 	g := r.Grid
-	ms = append(ms, Setting{"Analysis grid", fmt.Sprintf("%d×%d×%d voxels of %.2g×%.2g×%.2g mm", g.Size[0], g.Size[1], g.Size[2], g.SpacingMM[0], g.SpacingMM[1], g.SpacingMM[2])})
+	ms = append(ms, Setting{"Analysis grid", fmt.Sprintf("%d×%d×%d voxels of %.3g×%.3g×%.3g mm", g.Size[0], g.Size[1], g.Size[2], g.SpacingMM[0], g.SpacingMM[1], g.SpacingMM[2])})
 	return ms
 }
 

@@ -543,17 +543,22 @@ func plotFonts(pl *plot.Plot) {
 type logTicks struct{}
 
 func (logTicks) Ticks(min, max float64) []plot.Tick {
+	label := func(v float64) string { return strings.Replace(fmt.Sprintf("%g", v), "e+0", "e", 1) }
+	// Over less than two decades label 2 and 5 times the powers of ten too.
+	few := math.Log10(max/min) < 2
 	var ts []plot.Tick
 	for e := math.Floor(math.Log10(min)); e <= math.Ceil(math.Log10(max)); e++ {
 		v := math.Pow(10, e)
-		if v < min*0.999 || v > max*1.001 {
-			continue
-		}
-		ts = append(ts, plot.Tick{Value: v, Label: strings.Replace(fmt.Sprintf("%g", v), "e+0", "e", 1)})
-		for m := 2.0; m < 10; m++ {
-			if mv := m * v; mv <= max && mv >= min {
-				ts = append(ts, plot.Tick{Value: mv})
+		for m := 1.0; m < 10; m++ {
+			mv := m * v
+			if mv < min*0.999 || mv > max*1.001 {
+				continue
 			}
+			t := plot.Tick{Value: mv}
+			if m == 1 || (few && (m == 2 || m == 5)) {
+				t.Label = label(mv)
+			}
+			ts = append(ts, t)
 		}
 	}
 	return ts
