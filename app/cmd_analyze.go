@@ -15,6 +15,7 @@ import (
 	"dosecover/dosemap"
 	"dosecover/dosemap/dicomio"
 	"dosecover/review"
+	"dosecover/review/report"
 )
 
 func init() {
@@ -37,6 +38,7 @@ func runAnalyze(args []string, stdout, stderr io.Writer) int {
 	contours := fs.String("contours", "", "dosecover contour `FILE` to use instead of the case's structures")
 	target := fs.String("target", "", "`NAME` of the structure to analyse as the target")
 	af := addAnalysisFlags(fs)
+	deidentify := fs.Bool("deidentify", false, "hide identity in the outputs: neutral case label, sonications by number, patient identity blanked out of names and warnings")
 	fs.Usage = func() {
 		fmt.Fprintln(stderr, "usage: dosecover analyze CASE_DIR [--json FILE] [--threshold T] [--margin M] [--model cem43|arrhenius] [options]")
 		fmt.Fprintln(stderr, "Reads the case folder (never changes it), computes temperature and thermal dose,")
@@ -119,6 +121,14 @@ func runAnalyze(args []string, stdout, stderr io.Writer) int {
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover analyze: analysing %s: %v\n", dir, err)
 		return 1
+	}
+	if *deidentify {
+		sum, err := report.HashFolder(dir)
+		if err != nil {
+			fmt.Fprintf(stderr, "dosecover analyze: %v\n", err)
+			return 1
+		}
+		res = report.DeidentifyResult(c, res, report.DeidentifiedLabel(c.Label, sum))
 	}
 	switch *jsonPath {
 	case "-":

@@ -197,4 +197,18 @@ func TestDeidentifyDemoRoundTrip(t *testing.T) {
 	if f := containsAny(t, outDir, "TESTPERSON case"); len(f) > 0 {
 		t.Errorf("--deidentify outputs hold %v", f)
 	}
+	// And so does analyze --deidentify, in its JSON and its summary.
+	aDir := t.TempDir()
+	out.Reset()
+	errb.Reset()
+	if code := run([]string{"analyze", ident, "--deidentify", "--trials", "0", "--json", filepath.Join(aDir, "r.json")}, &out, &errb); code != 0 {
+		t.Fatalf("analyze --deidentify: exit %d\n%s", code, errb.String())
+	}
+	os.WriteFile(filepath.Join(aDir, "stdout.txt"), out.Bytes(), 0o644)
+	if f := containsAny(t, aDir, "TESTPERSON case"); len(f) > 0 {
+		t.Errorf("analyze --deidentify outputs hold %v", f)
+	}
+	if !strings.Contains(out.String(), "Teaching case ") {
+		t.Errorf("analyze --deidentify summary lacks the neutral label:\n%s", out.String())
+	}
 }
