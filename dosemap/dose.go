@@ -128,7 +128,7 @@ func (c CEM43) rates(T []float32, f []float64) {
 	for n, t := range T {
 		x := float64(t)
 		if x != x {
-			f[n] = math.NaN()
+			f[n] = x
 			continue
 		}
 		e := lb
@@ -225,10 +225,18 @@ func (a Arrhenius) rates(T []float32, f []float64) {
 // Dose returns the damage integral Ω of ts.
 func (a Arrhenius) Dose(ts *TemperatureSeries) *DoseMap { return integrate(a, ts) }
 
-// exp2 returns 2^x for the dose rates: a range reduction to x = n + f with
-// |f| ≤ ½ and a degree-10 Taylor polynomial of 2^f, relative error below
-// 3e-13, several times faster than math.Exp2. Results below 2^−1022 are
-// returned as 0.
+// exp2Table holds 2^(j/64), j = 0..63.
+var exp2Table = func() (t [64]float64) {
+	for j := range t {
+		t[j] = math.Exp2(float64(j) / 64)
+	}
+	return t
+}()
+
+// exp2 returns 2^x for the dose rates, several times faster than
+// math.Exp2: x = n + j/64 + r with |r| ≤ 1/128, 2^x = 2^n · 2^(j/64) · 2^r,
+// the middle factor from a table and 2^r from a degree-4 Taylor polynomial
+// (relative error below 1e-13). Results below 2^−1022 are returned as 0.
 func exp2(x float64) float64 {
 	if !(x > -1022) {
 		if x != x {
@@ -236,23 +244,29 @@ func exp2(x float64) float64 {
 		}
 		return 0
 	}
-	if x >= 1024 {
-		return math.Inf(1)
+	if !(x < 1023) {
+		return math.Exp2(x)
 	}
-	n := math.Floor(x + 0.5)
-	f := (x - n) * math.Ln2
-	p := 1 + f*(1+f*(1.0/2+f*(1.0/6+f*(1.0/24+f*(1.0/120+f*(1.0/720+f*(1.0/5040+f*(1.0/40320+f*(1.0/362880+f*(1.0/3628800))))))))))
-	return math.Float64frombits(uint64(int64(n)+1023)<<52) * p
+	const magic = 0x1.8p52 // adding it rounds to an integer held in the low mantissa bits
+	t := x*64 + magic
+	k := int64(math.Float64bits(t)) - int64(math.Float64bits(magic)) // round(64x)
+	r := (x - (t-magic)/64) * math.Ln2
+	p := 1 + r*(1+r*(1.0/2+r*(1.0/6+r*(1.0/24))))
+	return math.Float64frombits(uint64((k>>6)+1023)<<52) * exp2Table[k&63] * p
 }
 
 // chunk is the number of voxels processed at a time, so the rate buffer
-// stays in the first-level cache.
+// and the running sums stay in the first-level cache.
 const chunk = 1024
 
 // accumulator integrates a rate model frame by frame over a set of voxels.
 // The dose of consecutive series adds up; start begins a new series.
 type accumulator struct {
 	m       rateModel
+	trap    bool
+	cem     bool    // m is CEM43: brk, la, lb are its break and −log2 R
+	brk     float64 // above and below
+	la, lb  float64
 	acc     []float64
 	prev    []float64
 	missing []uint32
@@ -263,7 +277,57 @@ type accumulator struct {
 }
 
 func newAccumulator(m rateModel, n int) *accumulator {
-	return &accumulator{m: m, acc: make([]float64, n), prev: make([]float64, n), missing: make([]uint32, n), got: make([]bool, n)}
+	a := &accumulator{m: m, trap: m.rule() != RuleRectangle,
+		acc: make([]float64, n), prev: make([]float64, n), missing: make([]uint32, n), got: make([]bool, n)}
+	if c, ok := m.(CEM43); ok {
+		c = c.withDefaults()
+		a.cem, a.brk, a.la, a.lb = true, c.Break, -math.Log2(c.RAbove), -math.Log2(c.RBelow)
+	}
+	return a
+}
+
+// cemTrapezoid is addChunk for CEM43 and the trapezoid rule with the rate
+// computed inline (the default model: the hot loop of dose review).
+func (a *accumulator) cemTrapezoid(T []float32, lo int, w float64) {
+	hi := lo + len(T)
+	acc := a.acc[lo:hi:hi]
+	prev := a.prev[lo:hi:hi]
+	got := a.got[lo:hi:hi]
+	miss := a.missing[lo:hi:hi]
+	acc, prev, got, miss = acc[:len(T)], prev[:len(T)], got[:len(T)], miss[:len(T)]
+	h := 0.5 * w
+	brk, la, lb := a.brk, a.la, a.lb
+	for n, t := range T {
+		x := float64(t)
+		if x != x {
+			prev[n] = x
+			miss[n]++
+			continue
+		}
+		e := lb
+		if x >= brk {
+			e = la
+		}
+		y := e * (x - 43)
+		var f float64
+		if y > -1022 && y < 1023 {
+			// exp2 inlined (see there).
+			const magic = 0x1.8p52
+			t := y*64 + magic
+			k := int64(math.Float64bits(t)) - int64(math.Float64bits(magic))
+			r := (y - (t-magic)/64) * math.Ln2
+			p := 1 + r*(1+r*(1.0/2+r*(1.0/6+r*(1.0/24))))
+			f = math.Float64frombits(uint64((k>>6)+1023)<<52) * exp2Table[k&63] * p
+		} else {
+			f = exp2(y)
+		}
+		s := prev[n] + f
+		prev[n] = f
+		if s == s {
+			acc[n] += h * s
+			got[n] = true
+		}
+	}
 }
 
 // reset clears the accumulated dose.
@@ -277,50 +341,73 @@ func (a *accumulator) reset() {
 // start begins a new series: the next frame has no predecessor.
 func (a *accumulator) start() { a.frames = 0 }
 
-// add integrates one frame of temperatures T (one per voxel) at time t
-// seconds.
-func (a *accumulator) add(T []float32, t float64) {
-	w := (t - a.lastT) * a.m.perSecond()
-	first := a.frames == 0 || !(w > 0)
-	trap := a.m.rule() != RuleRectangle
-	for lo := 0; lo < len(T); lo += chunk {
-		hi := min(lo+chunk, len(T))
-		f := a.buf[:hi-lo]
-		a.m.rates(T[lo:hi], f)
-		acc := a.acc[lo:hi]
-		prev := a.prev[lo:hi]
-		got := a.got[lo:hi]
-		for n, x := range f {
-			if x != x {
-				a.missing[lo+n]++
-			}
-		}
-		switch {
-		case first:
-			copy(prev, f)
-		case trap:
-			h := 0.5 * w
-			for n, x := range f {
-				s := prev[n] + x
-				prev[n] = x
-				if s == s {
-					acc[n] += h * s
-					got[n] = true
-				}
-			}
-		default:
-			for n, x := range f {
-				if x == x {
-					acc[n] += w * x
-					got[n] = true
-				}
-			}
-		}
-	}
+// step returns the integration weight of a frame at time t (seconds) and
+// whether it starts a new run (first frame, or a time that does not
+// advance), and advances the clock.
+func (a *accumulator) step(t float64) (w float64, first bool) {
+	w = (t - a.lastT) * a.m.perSecond()
+	first = a.frames == 0 || !(w > 0)
 	if a.frames == 0 || w > 0 {
 		a.lastT = t
 	}
 	a.frames++
+	return w, first
+}
+
+// add integrates one frame of temperatures T (one per voxel) at time t
+// seconds.
+func (a *accumulator) add(T []float32, t float64) {
+	w, first := a.step(t)
+	for lo := 0; lo < len(T); lo += chunk {
+		a.addChunk(T[lo:min(lo+chunk, len(T))], lo, w, first)
+	}
+}
+
+// addChunk integrates temperatures T of the voxels lo, lo+1, ... with
+// weight w (time unit of the model).
+func (a *accumulator) addChunk(T []float32, lo int, w float64, first bool) {
+	if a.cem && a.trap && !first {
+		a.cemTrapezoid(T, lo, w)
+		return
+	}
+	f := a.buf[:len(T)]
+	a.m.rates(T, f)
+	hi := lo + len(f)
+	acc := a.acc[lo:hi:hi]
+	prev := a.prev[lo:hi:hi]
+	got := a.got[lo:hi:hi]
+	miss := a.missing[lo:hi:hi]
+	acc, prev, got, miss = acc[:len(f)], prev[:len(f)], got[:len(f)], miss[:len(f)]
+	switch {
+	case first:
+		for n, x := range f {
+			prev[n] = x
+			if x != x {
+				miss[n]++
+			}
+		}
+	case a.trap:
+		h := 0.5 * w
+		for n, x := range f {
+			s := prev[n] + x
+			prev[n] = x
+			if s == s {
+				acc[n] += h * s
+				got[n] = true
+			} else if x != x {
+				miss[n]++
+			}
+		}
+	default:
+		for n, x := range f {
+			if x == x {
+				acc[n] += w * x
+				got[n] = true
+			} else {
+				miss[n]++
+			}
+		}
+	}
 }
 
 // result writes the dose into out (NaN where no interval counted).
@@ -350,6 +437,8 @@ func (a *accumulator) missingCounts() []uint16 {
 	return out
 }
 
+// integrate computes the dose of ts with m. It runs voxel block by voxel
+// block through all frames, so the running sums never leave the cache.
 func integrate(m rateModel, ts *TemperatureSeries) *DoseMap {
 	if ts == nil {
 		panic("dosemap: nil temperature series")
@@ -358,12 +447,22 @@ func integrate(m rateModel, ts *TemperatureSeries) *DoseMap {
 		panic(fmt.Sprintf("dosemap: %d frame times for %d frames", len(ts.Times), len(ts.Frames)))
 	}
 	n := ts.Geometry.Len()
-	a := newAccumulator(m, n)
 	for f, fr := range ts.Frames {
 		if len(fr) != n {
 			panic(fmt.Sprintf("dosemap: frame %d holds %d values for %d voxels", f, len(fr), n))
 		}
-		a.add(fr, ts.Times[f])
+	}
+	a := newAccumulator(m, n)
+	ws := make([]float64, len(ts.Frames))
+	first := make([]bool, len(ts.Frames))
+	for f := range ts.Frames {
+		ws[f], first[f] = a.step(ts.Times[f])
+	}
+	for lo := 0; lo < n; lo += chunk {
+		hi := min(lo+chunk, n)
+		for f, fr := range ts.Frames {
+			a.addChunk(fr[lo:hi], lo, ws[f], first[f])
+		}
 	}
 	d := &DoseMap{Volume: *NewVolume(ts.Geometry), Unit: m.Unit()}
 	a.result(d.Data)

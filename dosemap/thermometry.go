@@ -1,10 +1,10 @@
 package dosemap
 
 import (
+	"cmp"
 	"errors"
 	"fmt"
 	"math"
-	"slices"
 
 	"gonum.org/v1/gonum/mat"
 )
@@ -385,8 +385,7 @@ func (t *thermo) baseline() {
 		vals = append(vals, t.baseMag[n])
 	}
 	if t.opt.MinMagnitude > 0 && len(vals) > 0 {
-		slices.Sort(vals)
-		p98 := vals[min(len(vals)-1, int(0.98*float64(len(vals))))]
+		p98 := nthSmallest(vals, min(len(vals)-1, int(0.98*float64(len(vals)))))
 		t.magThr = float32(t.opt.MinMagnitude) * p98
 	}
 	for n, m := range t.baseMag {
@@ -432,8 +431,7 @@ func (t *thermo) sigma() []float32 {
 			}
 			t.noise[s] = math.NaN()
 			if len(vars) >= 10 {
-				slices.Sort(vars)
-				t.noise[s] = math.Sqrt(vars[len(vars)/2] / medChi)
+				t.noise[s] = math.Sqrt(nthSmallest(vars, len(vars)/2) / medChi)
 			}
 		}
 		for n := range sig {
@@ -479,11 +477,13 @@ func (t *thermo) unwrap() {
 	turns := make([]int32, nv)  // its number of turns
 	nan := float32(math.NaN())
 	const twoPi = 2 * math.Pi
+	const invTwoPi = 1 / twoPi
+	slab := make([]float32, t.nf*nv) // all frames in one allocation
 	for f := 0; f < t.nf; f++ {
 		q := &t.out.Quality[f]
 		q.Time = t.s.Times[f]
 		q.Motion, q.SNR = math.NaN(), math.NaN()
-		out := make([]float32, nv)
+		out := slab[f*nv : (f+1)*nv : (f+1)*nv]
 		t.out.Frames[f] = out
 		ph := t.s.Phase[f]
 		var mf []float32
@@ -509,7 +509,9 @@ func (t *thermo) unwrap() {
 				continue
 			}
 			w := wrapPhase(float64(v) - r)
-			k := math.Floor((float64(last[n])-w)/twoPi + 0.5)
+			// Nearest turn count: floor by truncation after an offset of
+			// 2^20 turns (phase changes of a million turns do not occur).
+			k := float64(int64((float64(last[n])-w)*invTwoPi+0.5+1<<20)) - 1<<20
 			u := w + twoPi*k
 			if int32(k) != turns[n] {
 				wraps++
@@ -544,11 +546,20 @@ func (t *thermo) toTemperature() {
 			var sum float64
 			cnt := 0
 			mf := t.mag[f]
-			for n, u := range out {
-				if u == u && t.noise[n/sl] > 0 {
-					sum += float64(mf[n]) / t.noise[n/sl]
-					cnt++
+			for s, noise := range t.noise {
+				if !(noise > 0) {
+					continue
 				}
+				var ss float64
+				c := 0
+				for n := s * sl; n < (s+1)*sl; n++ {
+					if u := out[n]; u == u {
+						ss += float64(mf[n])
+						c++
+					}
+				}
+				sum += ss / noise
+				cnt += c
 			}
 			if cnt > 0 {
 				q.SNR = sum / float64(cnt)
@@ -609,68 +620,70 @@ func (t *thermo) referenceMask() []bool {
 	}
 	g := t.g
 	sl := g.SliceLen()
-	// Peak phase change per voxel after removing, frame by frame and slice
-	// by slice, a least-squares polynomial (order max(1, DriftOrder)) fitted
-	// to every other voxel with signal in i and j, so a drift is not taken
-	// for the hot spot; then smoothed 3×3 in-plane.
-	sig := make([]bool, nv)
-	for n := range sig {
+	// Peak phase change on the lattice of even i and j, after removing,
+	// frame by frame and slice by slice, a least-squares polynomial (order
+	// max(1, DriftOrder)) fitted to the lattice voxels with signal, so a
+	// drift is not taken for the hot spot; then smoothed over the 3×3
+	// lattice neighbours. The hottest spot is located to within a voxel.
+	lat := make([]bool, nv)
+	for n := range lat {
 		i, j, _ := g.IJK(n)
-		sig[n] = !math.IsNaN(t.ref[n]) && i%2 == 0 && j%2 == 0
+		lat[n] = !math.IsNaN(t.ref[n]) && i%2 == 0 && j%2 == 0
 	}
 	order := 1
 	if t.opt.Drift == DriftPolynomial {
 		order = max(1, t.opt.DriftOrder)
 	}
-	fits := make([]*sliceFit, g.Slices)
-	for s := range fits {
-		fits[s] = newSliceFit(g, s, sig, nil, order)
-	}
 	peak := make([]float64, nv)
-	buf := make([]float32, sl)
-	for f := t.nb; f < t.nf; f++ {
-		fr := t.out.Frames[f]
-		if t.out.Quality[f].Flagged {
-			continue
-		}
-		for s := 0; s < g.Slices; s++ {
-			copy(buf, fr[s*sl:(s+1)*sl])
-			if _, _, err := fits[s].remove(buf); err != nil {
+	for s := 0; s < g.Slices; s++ {
+		sf := newSliceFit(g, s, lat, nil, order)
+		for f := t.nb; f < t.nf; f++ {
+			if t.out.Quality[f].Flagged {
+				continue
+			}
+			v := t.out.Frames[f][s*sl : (s+1)*sl]
+			cf, err := sf.fit(v)
+			if err != nil {
+				// Too few voxels for the polynomial: use the lattice mean.
 				var sum float64
 				cnt := 0
-				for _, v := range buf {
-					if v == v {
-						sum += float64(v)
+				for _, n := range sf.idx {
+					if x := v[n]; x == x {
+						sum += float64(x)
 						cnt++
 					}
 				}
-				for n, v := range buf {
-					if v == v {
-						buf[n] = v - float32(sum/float64(max(cnt, 1)))
-					}
-				}
+				cf = [6]float64{sum / float64(max(cnt, 1))}
 			}
-			for n, v := range buf {
-				if v == v {
-					peak[s*sl+n] = max(peak[s*sl+n], math.Abs(float64(v)))
+			pk := peak[s*sl : (s+1)*sl]
+			for j := 0; j < g.Rows; j++ {
+				y := sf.y[j]
+				a := cf[0] + cf[2]*y + cf[5]*y*y
+				b := cf[1] + cf[4]*y
+				c := cf[3]
+				for p := sf.rowStart[j]; p < sf.rowStart[j+1]; p++ {
+					n := int(sf.idx[p])
+					if u := v[n]; u == u {
+						x := sf.x[n-j*g.Cols]
+						pk[n] = max(pk[n], math.Abs(float64(u)-(a+x*(b+x*c))))
+					}
 				}
 			}
 		}
 	}
 	best, bi, bj := -1.0, 0, 0
 	for k := 0; k < g.Slices; k++ {
-		for j := 0; j < g.Rows; j++ {
-			for i := 0; i < g.Cols; i++ {
-				if math.IsNaN(t.ref[g.Index(i, j, k)]) {
+		for j := 0; j < g.Rows; j += 2 {
+			for i := 0; i < g.Cols; i += 2 {
+				if !lat[g.Index(i, j, k)] {
 					continue
 				}
 				var sum float64
 				cnt := 0
-				for dj := -1; dj <= 1; dj++ {
-					for di := -1; di <= 1; di++ {
+				for dj := -2; dj <= 2; dj += 2 {
+					for di := -2; di <= 2; di += 2 {
 						if g.Contains(i+di, j+dj, k) {
-							n := g.Index(i+di, j+dj, k)
-							if !math.IsNaN(t.ref[n]) {
+							if n := g.Index(i+di, j+dj, k); lat[n] {
 								sum += peak[n]
 								cnt++
 							}
@@ -746,7 +759,7 @@ func (t *thermo) drift() {
 		for s, sf := range fits {
 			d, cnt, err := sf.remove(fr[s*sl : (s+1)*sl])
 			if err != nil {
-				q.Note = joinNote(q.Note, fmt.Sprintf("slice %d: %v", s+1, err))
+				q.Note = joinNote(q.Note, fmt.Sprintf("slice %d: drift not corrected: %v", s+1, err))
 				continue
 			}
 			dsum += d
@@ -759,11 +772,13 @@ func (t *thermo) drift() {
 }
 
 // sliceFit fits and removes a weighted 2-D polynomial of the phase change
-// over the reference voxels of one slice.
+// over the reference voxels of one slice. Coordinates are normalised to
+// [−1, 1] across the slice for a well-conditioned normal matrix.
 type sliceFit struct {
 	cols, rows int
 	terms      int
-	idx        []int     // in-slice indices of the reference voxels
+	idx        []int32   // in-slice indices of the reference voxels, row by row
+	rowStart   []int32   // idx[rowStart[j]:rowStart[j+1]] lie in row j
 	w          []float64 // their weights
 	x, y       []float64 // normalised coordinates per column and row
 	chol       *mat.Cholesky
@@ -774,23 +789,28 @@ func polyTerms(order int) int { return (order + 1) * (order + 2) / 2 }
 
 func newSliceFit(g Geometry, s int, ref []bool, baseMag []float32, order int) *sliceFit {
 	sl := g.SliceLen()
-	sf := &sliceFit{cols: g.Cols, rows: g.Rows, terms: polyTerms(order)}
+	sf := &sliceFit{cols: g.Cols, rows: g.Rows, terms: polyTerms(order), rowStart: make([]int32, g.Rows+1)}
 	sf.x = normCoords(g.Cols)
 	sf.y = normCoords(g.Rows)
-	for n := 0; n < sl; n++ {
-		if !ref[s*sl+n] {
-			continue
-		}
-		w := 1.0
-		if baseMag != nil {
-			m := float64(baseMag[s*sl+n])
-			w = m * m
-		}
-		if w > 0 {
-			sf.idx = append(sf.idx, n)
-			sf.w = append(sf.w, w)
+	for j := 0; j < g.Rows; j++ {
+		sf.rowStart[j] = int32(len(sf.idx))
+		for i := 0; i < g.Cols; i++ {
+			n := j*g.Cols + i
+			if !ref[s*sl+n] {
+				continue
+			}
+			w := 1.0
+			if baseMag != nil {
+				m := float64(baseMag[s*sl+n])
+				w = m * m
+			}
+			if w > 0 {
+				sf.idx = append(sf.idx, int32(n))
+				sf.w = append(sf.w, w)
+			}
 		}
 	}
+	sf.rowStart[g.Rows] = int32(len(sf.idx))
 	sf.chol, sf.err = sf.factor(nil)
 	return sf
 }
@@ -806,16 +826,10 @@ func normCoords(n int) []float64 {
 	return c
 }
 
-// basis writes the polynomial terms at in-slice index n into b.
-func (sf *sliceFit) basis(n int, b []float64) {
+// basis returns the polynomial terms 1, x, y, x², xy, y² at in-slice index n.
+func (sf *sliceFit) basis(n int) [6]float64 {
 	x, y := sf.x[n%sf.cols], sf.y[n/sf.cols]
-	b[0] = 1
-	if sf.terms > 1 {
-		b[1], b[2] = x, y
-	}
-	if sf.terms > 3 {
-		b[3], b[4], b[5] = x*x, x*y, y*y
-	}
+	return [6]float64{1, x, y, x * x, x * y, y * y}
 }
 
 // factor builds and factorises the normal matrix AᵀWA over the reference
@@ -825,101 +839,165 @@ func (sf *sliceFit) factor(valid []float32) (*mat.Cholesky, error) {
 	if len(sf.idx) < 3*m {
 		return nil, fmt.Errorf("only %d reference voxels for a %d-term drift fit", len(sf.idx), m)
 	}
-	a := mat.NewSymDense(m, nil)
-	var b [6]float64
+	var a [6][6]float64
 	cnt := 0
 	for p, n := range sf.idx {
 		if valid != nil && valid[n] != valid[n] {
 			continue
 		}
 		cnt++
-		sf.basis(n, b[:])
+		b := sf.basis(int(n))
 		w := sf.w[p]
 		for r := 0; r < m; r++ {
+			wr := w * b[r]
 			for c := r; c < m; c++ {
-				a.SetSym(r, c, a.At(r, c)+w*b[r]*b[c])
+				a[r][c] += wr * b[c]
 			}
 		}
 	}
 	if cnt < 3*m {
 		return nil, fmt.Errorf("only %d valid reference voxels for a %d-term drift fit", cnt, m)
 	}
+	sym := mat.NewSymDense(m, nil)
+	for r := 0; r < m; r++ {
+		for c := r; c < m; c++ {
+			sym.SetSym(r, c, a[r][c])
+		}
+	}
 	var ch mat.Cholesky
-	if !ch.Factorize(a) {
+	if !ch.Factorize(sym) {
 		return nil, errors.New("reference voxels do not determine the drift polynomial")
 	}
 	return &ch, nil
 }
 
-// remove fits the polynomial to the phase change v (one slice) and subtracts
-// it from every valid voxel. It returns the sum of the removed drift over the
-// reference voxels used and their number.
-func (sf *sliceFit) remove(v []float32) (float64, int, error) {
-	ch, err := sf.chol, sf.err
-	full := true
-	for _, n := range sf.idx {
-		if v[n] != v[n] {
-			full = false
-			break
+// fit returns the weighted least-squares polynomial coefficients of the
+// phase change v (one slice) over its valid reference voxels: the solution
+// of AᵀWA·c = AᵀW·v. AᵀW·v is summed row by row (Σw·v, Σw·v·x, Σw·v·x²
+// per row, then multiplied by the row's powers of y).
+func (sf *sliceFit) fit(v []float32) ([6]float64, error) {
+	var cf [6]float64
+	var rhs [6]float64
+	m := sf.terms
+	anyNaN := false
+	for j := 0; j < sf.rows; j++ {
+		lo, hi := sf.rowStart[j], sf.rowStart[j+1]
+		if lo == hi {
+			continue
 		}
+		row := j * sf.cols
+		var s0, s1, s2 float64
+		for p := lo; p < hi; p++ {
+			n := sf.idx[p]
+			u := v[n]
+			if u != u {
+				anyNaN = true
+				continue
+			}
+			wu := sf.w[p] * float64(u)
+			x := sf.x[int(n)-row]
+			s0 += wu
+			s1 += wu * x
+			s2 += wu * x * x
+		}
+		y := sf.y[j]
+		rhs[0] += s0
+		rhs[1] += s1
+		rhs[2] += s0 * y
+		rhs[3] += s2
+		rhs[4] += s1 * y
+		rhs[5] += s0 * y * y
 	}
-	if !full {
+	ch, err := sf.chol, sf.err
+	if anyNaN {
 		ch, err = sf.factor(v)
 	}
 	if err != nil {
-		return 0, 0, err
-	}
-	m := sf.terms
-	rhs := mat.NewVecDense(m, nil)
-	var b [6]float64
-	for p, n := range sf.idx {
-		x := v[n]
-		if x != x {
-			continue
-		}
-		sf.basis(n, b[:])
-		w := sf.w[p] * float64(x)
-		for r := 0; r < m; r++ {
-			rhs.SetVec(r, rhs.AtVec(r)+w*b[r])
-		}
+		return cf, err
 	}
 	var c mat.VecDense
-	if err := ch.SolveVecTo(&c, rhs); err != nil {
-		return 0, 0, fmt.Errorf("drift fit: %w", err)
+	if err := ch.SolveVecTo(&c, mat.NewVecDense(m, rhs[:m])); err != nil {
+		return cf, fmt.Errorf("drift fit: %w", err)
 	}
-	var cf [6]float64
 	for r := 0; r < m; r++ {
 		cf[r] = c.AtVec(r)
+	}
+	return cf, nil
+}
+
+// remove fits the polynomial to the phase change v (one slice) and subtracts
+// it from every valid voxel. It returns the sum of the removed drift over the
+// valid reference voxels and their number.
+func (sf *sliceFit) remove(v []float32) (float64, int, error) {
+	cf, err := sf.fit(v)
+	if err != nil {
+		return 0, 0, err
 	}
 	var sum float64
 	cnt := 0
 	for j := 0; j < sf.rows; j++ {
 		y := sf.y[j]
-		for i := 0; i < sf.cols; i++ {
-			x := sf.x[i]
-			d := cf[0]
-			if m > 1 {
-				d += cf[1]*x + cf[2]*y
-			}
-			if m > 3 {
-				d += cf[3]*x*x + cf[4]*x*y + cf[5]*y*y
-			}
-			n := j*sf.cols + i
-			if u := v[n]; u == u {
-				v[n] = float32(float64(u) - d)
+		// d(x) = a + b·x + c·x² along the row.
+		a := cf[0] + cf[2]*y + cf[5]*y*y
+		b := cf[1] + cf[4]*y
+		c := cf[3]
+		row := v[j*sf.cols : (j+1)*sf.cols]
+		for p := sf.rowStart[j]; p < sf.rowStart[j+1]; p++ {
+			i := int(sf.idx[p]) - j*sf.cols
+			if u := row[i]; u == u {
+				x := sf.x[i]
+				sum += a + x*(b+x*c)
+				cnt++
 			}
 		}
-	}
-	for _, n := range sf.idx {
-		if v[n] == v[n] {
-			sf.basis(n, b[:])
-			d := 0.0
-			for r := 0; r < m; r++ {
-				d += cf[r] * b[r]
+		for i, u := range row {
+			if u == u {
+				x := sf.x[i]
+				row[i] = float32(float64(u) - (a + x*(b+x*c)))
 			}
-			sum += d
-			cnt++
 		}
 	}
 	return sum, cnt, nil
+}
+
+// nthSmallest returns the k-th smallest value of v (0-based), reordering v
+// (Hoare's selection with a median-of-three pivot; expected linear time).
+func nthSmallest[T cmp.Ordered](v []T, k int) T {
+	lo, hi := 0, len(v)-1
+	for lo < hi {
+		mid := lo + (hi-lo)/2
+		if v[mid] < v[lo] {
+			v[mid], v[lo] = v[lo], v[mid]
+		}
+		if v[hi] < v[lo] {
+			v[hi], v[lo] = v[lo], v[hi]
+		}
+		if v[hi] < v[mid] {
+			v[hi], v[mid] = v[mid], v[hi]
+		}
+		pivot := v[mid]
+		i, j := lo, hi
+		for i <= j {
+			for v[i] < pivot {
+				i++
+			}
+			for pivot < v[j] {
+				j--
+			}
+			if i <= j {
+				v[i], v[j] = v[j], v[i]
+				i++
+				j--
+			}
+		}
+		switch {
+		case k <= j:
+			hi = j
+		case k >= i:
+			lo = i
+		default:
+			return v[k]
+		}
+	}
+	return v[k]
 }

@@ -497,3 +497,20 @@ func TestThermometryErrors(t *testing.T) {
 		t.Errorf("B0/TE from options: %v", err)
 	}
 }
+
+func TestNthSmallest(t *testing.T) {
+	// Reference: the k-th element of the sorted slice (seeded, with ties).
+	rng := rand.New(rand.NewPCG(8, 8))
+	for trial := 0; trial < 200; trial++ {
+		v := make([]float64, 1+rng.IntN(300))
+		for i := range v {
+			v[i] = float64(rng.IntN(50))
+		}
+		k := rng.IntN(len(v))
+		s := slices.Clone(v)
+		slices.Sort(s)
+		if got := nthSmallest(v, k); got != s[k] {
+			t.Fatalf("k = %d of %d: %g, want %g", k, len(v), got, s[k])
+		}
+	}
+}

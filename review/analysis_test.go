@@ -3,6 +3,7 @@ package review
 import (
 	"context"
 	"encoding/json"
+	"fmt"
 	"math"
 	"strconv"
 	"strings"
@@ -394,4 +395,27 @@ func ptrString(p *float64) string {
 		return "nil"
 	}
 	return strconv.FormatFloat(*p, 'g', 6, 64)
+}
+
+// TestWriteText: the summary states the threshold, the margin, the
+// covered fraction and the cautions.
+func TestWriteText(t *testing.T) {
+	g := thermoGrid(48, 48, 14)
+	c := &dosemap.Case{Label: "phantom",
+		Sonications: []*dosemap.Sonication{doseSonication(1, g, ballDose(dosemap.Vec3{}, 9, 1)), doseSonication(2, g, ballDose(dosemap.Vec3{17, 0, 0}, 3, 1))},
+		Structures:  []dosemap.Structure{sphereStructure("target", dosemap.Vec3{}, 10, 1.5, 0, 64, dosemap.RoleTarget)},
+	}
+	r := analyseCase(t, c, DefaultSettings())
+	var b strings.Builder
+	if err := r.WriteText(&b); err != nil {
+		t.Fatal(err)
+	}
+	out := b.String()
+	for _, want := range []string{"threshold 240 CEM43", "margin 3 mm", fmt.Sprintf("%.1f %% of the monitored target", 100*r.CoveredFraction),
+		"mostly sonication 2", "not a treatment planning", "Holes (monitored target below threshold): 1"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("summary lacks %q:\n%s", want, out)
+		}
+	}
+	t.Log(out)
 }

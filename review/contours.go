@@ -153,41 +153,49 @@ func EncodeContours(w io.Writer, structures []dosemap.Structure, frameOfRef stri
 	return enc.Encode(&f)
 }
 
-// WriteContourFile writes structures to path atomically (a temporary file
-// in the same folder renamed over path). It refuses to write inside
-// caseDir, the folder the case was read from, which dosecover never
-// modifies; pass "" when there is none.
+// WriteContourFile writes structures to path atomically (see
+// WriteOutside); it never writes inside caseDir, the folder the case was
+// read from (pass "" when there is none).
 func WriteContourFile(path, caseDir string, structures []dosemap.Structure, frameOfRef string) error {
-	if caseDir != "" {
-		inside, err := within(path, caseDir)
-		if err != nil {
-			return fmt.Errorf("writing contours %s: %w", path, err)
-		}
-		if inside {
-			return fmt.Errorf("writing contours %s: the file would lie inside the case folder %s, which dosecover does not modify; choose another folder", path, caseDir)
-		}
-	}
-	dir := filepath.Dir(path)
-	tmp, err := os.CreateTemp(dir, ".contours-*.tmp")
+	err := WriteOutside(path, caseDir, func(w io.Writer) error { return EncodeContours(w, structures, frameOfRef) })
 	if err != nil {
 		return fmt.Errorf("writing contours %s: %w", path, err)
 	}
+	return nil
+}
+
+// WriteOutside writes a file at path with write, atomically: into a
+// temporary file in the same folder, synced, then renamed over path, so a
+// reader never sees half a file. It refuses when path lies in or below
+// caseDir (after resolving symbolic links), the folder a case was read
+// from, which dosecover never modifies; caseDir "" skips the check.
+func WriteOutside(path, caseDir string, write func(io.Writer) error) error {
+	if caseDir != "" {
+		inside, err := within(path, caseDir)
+		if err != nil {
+			return err
+		}
+		if inside {
+			return fmt.Errorf("the file would lie inside the case folder %s, which dosecover does not modify; choose another folder", caseDir)
+		}
+	}
+	tmp, err := os.CreateTemp(filepath.Dir(path), "."+filepath.Base(path)+"-*.tmp")
+	if err != nil {
+		return err
+	}
 	defer os.Remove(tmp.Name())
-	if err := EncodeContours(tmp, structures, frameOfRef); err != nil {
+	if err := write(tmp); err != nil {
 		tmp.Close()
-		return fmt.Errorf("writing contours %s: %w", path, err)
+		return err
 	}
 	if err := tmp.Sync(); err != nil {
 		tmp.Close()
-		return fmt.Errorf("writing contours %s: %w", path, err)
+		return err
 	}
 	if err := tmp.Close(); err != nil {
-		return fmt.Errorf("writing contours %s: %w", path, err)
+		return err
 	}
-	if err := os.Rename(tmp.Name(), path); err != nil {
-		return fmt.Errorf("writing contours %s: %w", path, err)
-	}
-	return nil
+	return os.Rename(tmp.Name(), path)
 }
 
 // within reports whether path lies in or below dir, resolving symbolic

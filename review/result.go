@@ -36,6 +36,8 @@ type Result struct {
 	MarginMM        float64  `json:"margin_mm"`
 	Settings        Settings `json:"settings"`
 	Grid            GridInfo `json:"analysis_grid"`
+	// Thermometry summarises the PRF thermometry options used.
+	Thermometry ThermometryInfo `json:"thermometry"`
 
 	Coverage
 
@@ -60,6 +62,20 @@ type Result struct {
 	HoleLabels  *dosemap.Volume `json:"-"` // n > 0 in voxels of Holes[n-1], analysis grid
 	SpillLabels *dosemap.Volume `json:"-"` // n > 0 in voxels of OutsideClusters[n-1], analysis grid
 	Probability *dosemap.Volume `json:"-"` // probability of lethal dose (Monte Carlo), thermometry grid; nil without trials
+}
+
+// ThermometryInfo summarises the thermometry options of an analysis.
+type ThermometryInfo struct {
+	AlphaPPMPerC   float64  `json:"alpha_ppm_per_c"`
+	B0T            *float64 `json:"b0_t"` // override; null: each series' own
+	TES            *float64 `json:"te_s"` // override; null: each series' own
+	BaselineFrames int      `json:"baseline_frames"`
+	BodyTempC      float64  `json:"body_temp_c"`
+	Drift          string   `json:"drift"`
+	DriftOrder     int      `json:"drift_order"`
+	Reference      string   `json:"reference"` // "automatic" or "given"
+	MinMagnitude   float64  `json:"min_magnitude"`
+	MaxMotion      float64  `json:"max_motion"`
 }
 
 // GridInfo describes the analysis grid.
@@ -191,7 +207,7 @@ type SonicationQuality struct {
 	Sonication    int            `json:"sonication"`
 	Frames        []FrameQuality `json:"frames"`
 	FlaggedFrames []int          `json:"flagged_frames"` // 1-based
-	MaxMotionMM   float64        `json:"max_motion_mm"`
+	MaxMotion     float64        `json:"max_motion"`     // largest FrameQuality.Motion
 	MaxDriftC     float64        `json:"max_drift_c"`
 	MinSNR        *float64       `json:"min_snr"`
 	Wraps         int            `json:"suspected_wraps"`
@@ -201,14 +217,14 @@ type SonicationQuality struct {
 // FrameQuality is the quality of one thermometry frame as measured by the
 // thermometry.
 type FrameQuality struct {
-	TimeS    float64  `json:"time_s"`
-	MotionMM float64  `json:"motion_mm"`
-	DriftC   float64  `json:"drift_c"`
-	SNR      *float64 `json:"snr"`
-	Wraps    int      `json:"suspected_wraps"`
-	Invalid  int      `json:"invalidated_voxels"`
-	Flagged  bool     `json:"flagged"`
-	Note     string   `json:"note,omitempty"`
+	TimeS   float64  `json:"time_s"`
+	Motion  float64  `json:"motion"`  // 1 − correlation of the magnitude image with the baseline magnitude
+	DriftC  float64  `json:"drift_c"` // mean drift removed over the reference region
+	SNR     *float64 `json:"snr"`     // mean magnitude SNR over valid voxels
+	Wraps   int      `json:"suspected_wraps"`
+	Invalid int      `json:"invalidated_voxels"`
+	Flagged bool     `json:"flagged"`
+	Note    string   `json:"note,omitempty"`
 }
 
 // WriteJSON writes r as indented JSON.

@@ -373,7 +373,7 @@ func TestTemperatureAndDoseMaps(t *testing.T) {
 
 // writeEnhanced writes one enhanced MR file holding slices × times phase
 // frames described by per-frame functional groups.
-func writeEnhanced(t *testing.T, path string, slices, times int) {
+func writeEnhanced(t testing.TB, path string, slices, times int) {
 	var perFrame [][]*dicom.Element
 	var raw []int
 	const cols, rows = 4, 4

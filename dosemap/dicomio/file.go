@@ -185,19 +185,43 @@ func readFile(path string, pixels bool) (fi *fileInfo, err error) {
 	if err != nil {
 		return nil, skip("cannot read: %v", err)
 	}
-	return readBytes(path, data, pixels)
-}
-
-// readBytes parses one file already in memory; see readFile.
-func readBytes(path string, data []byte, pixels bool) (fi *fileInfo, err error) {
+	// readBytes recovers panics of the DICOM library; this second guard
+	// keeps any other failure on one file from stopping the whole case.
 	defer func() {
 		if r := recover(); r != nil {
 			fi = nil
-			err = skip("unreadable: the DICOM parser failed (%v)", r)
+			err = skip("unreadable: internal error while reading (%v)", r)
 		}
 	}()
+	return readBytes(path, data, pixels)
+}
+
+// parse runs the DICOM library on data, turning its panics into errors.
+func parse(data []byte, opts []dicom.ParseOption) (ds dicom.Dataset, panicked bool, err error) {
+	defer func() {
+		if r := recover(); r != nil {
+			err = fmt.Errorf("%v", r)
+			panicked = true
+		}
+	}()
+	ds, err = dicom.Parse(bytes.NewReader(data), int64(len(data)), nil, opts...)
+	return ds, false, err
+}
+
+// readBytes parses one file already in memory; see readFile. Panics of the
+// DICOM library are recovered; the code of this package is not guarded
+// here, so that fuzzing finds its faults.
+func readBytes(path string, data []byte, pixels bool) (fi *fileInfo, err error) {
 	if !looksLikeDICOM(data) {
 		return nil, skip("not a DICOM file (no DICM marker and no DICOM element at the start)")
+	}
+	syntax, err := checkLengths(data)
+	if ts, ok := transferSyntaxes[syntax]; ok && !ts.supported {
+		return nil, skip("unsupported compression: %s (%s)", ts.name, syntax)
+	}
+	var le *lengthError
+	if errors.As(err, &le) {
+		return nil, skip("truncated or corrupt: %v", err)
 	}
 	opts := []dicom.ParseOption{dicom.AllowMismatchPixelDataLength(), dicom.AllowUnknownSpecificCharacterSet()}
 	if pixels {
@@ -205,9 +229,14 @@ func readBytes(path string, data []byte, pixels bool) (fi *fileInfo, err error) 
 	} else {
 		opts = append(opts, dicom.SkipPixelData())
 	}
-	ds, perr := dicom.Parse(bytes.NewReader(data), int64(len(data)), nil, opts...)
+	ds, panicked, perr := parse(data, opts)
+	if panicked {
+		return nil, skip("unreadable: the DICOM parser failed (%v)", perr)
+	}
 	es := elems(ds.Elements)
-	syntax := es.str(tag.TransferSyntaxUID)
+	if s := es.str(tag.TransferSyntaxUID); s != "" {
+		syntax = s
+	}
 	if ts, ok := transferSyntaxes[syntax]; ok && !ts.supported {
 		return nil, skip("unsupported compression: %s (%s)", ts.name, syntax)
 	}

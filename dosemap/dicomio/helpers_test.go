@@ -13,14 +13,8 @@ import (
 // except under CI=true, where it fails.
 func pydicomDir(t testing.TB) string {
 	t.Helper()
-	for _, py := range []string{"python3", "/usr/bin/python3"} {
-		out, err := exec.Command(py, "-c", "import pydicom, os; print(os.path.dirname(pydicom.__file__))").Output()
-		if err == nil {
-			d := filepath.Join(strings.TrimSpace(string(out)), "data", "test_files")
-			if _, err := os.Stat(d); err == nil {
-				return d
-			}
-		}
+	if d := findPydicom(); d != "" {
+		return d
 	}
 	if os.Getenv("CI") == "true" {
 		t.Fatal("pydicom test files not found (install python3-pydicom)")
@@ -40,4 +34,18 @@ func pydicomFile(t testing.TB, name string) string {
 		t.Skipf("pydicom test file %s missing; skipping", name)
 	}
 	return p
+}
+
+// findPydicom asks python3 where pydicom lives; "" when it cannot.
+func findPydicom() string {
+	for _, py := range []string{"python3", "/usr/bin/python3"} {
+		out, err := exec.Command(py, "-c", "import pydicom, os; print(os.path.dirname(pydicom.__file__))").Output()
+		if err == nil {
+			d := filepath.Join(strings.TrimSpace(string(out)), "data", "test_files")
+			if _, err := os.Stat(d); err == nil {
+				return d
+			}
+		}
+	}
+	return ""
 }

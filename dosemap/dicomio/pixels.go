@@ -5,85 +5,73 @@ import (
 	"math"
 )
 
-// storedReader returns the stored value of pixel n of frame f in fi.Pixels,
-// honouring BitsAllocated, BitsStored, HighBit, PixelRepresentation and the
-// byte order. The DICOM library ignores PixelRepresentation, so signed
-// values are sign-extended here from bit BitsStored-1 (PS3.5 8.1.1).
+// decodeFrame converts frame number frame of fi.Pixels into dst as
+// a*stored + b. The stored value honours BitsAllocated, BitsStored, HighBit,
+// PixelRepresentation and the byte order (PS3.5 8.1.1, PS3.3 C.7.6.3.1).
+// The DICOM library ignores PixelRepresentation, so signed values are
+// sign-extended here from bit BitsStored-1; bits above HighBit are masked
+// off, so it does not matter whether the writer sign-extended them.
 func (fi *fileInfo) decodeFrame(frame int, dst []float32, a, b float64) {
 	npix := fi.Rows * fi.Cols
 	bpp := fi.BitsAllocated / 8
 	raw := fi.Pixels[frame*npix*bpp : (frame+1)*npix*bpp]
+	dst = dst[:npix]
 	shift := uint(fi.HighBit + 1 - fi.BitsStored)
 	bits := uint(fi.BitsStored)
-	mask := uint32(1)<<bits - 1
-	if bits >= 32 {
-		mask = math.MaxUint32
+	if bits > 32 {
+		bits = 32
 	}
+	// ext = 32 - bits: (u << ext) as int32 >> ext sign-extends a value of
+	// `bits` bits; for unsigned data the shift back is logical.
+	ext := 32 - bits
 	signed := fi.PixelRep == 1
-	sign := uint32(1) << (bits - 1)
 	var bo binary.ByteOrder = binary.LittleEndian
 	if fi.BigEndian {
 		bo = binary.BigEndian
 	}
-	af, bf := float32(a), float32(b)
-	exact := a == float64(af) && b == float64(bf)
-	conv := func(u uint32) float32 {
-		u = (u >> shift) & mask
-		var v float64
-		if signed && u&sign != 0 {
-			v = float64(int64(u) - int64(1)<<bits)
-		} else {
-			v = float64(u)
-		}
-		if exact {
-			return float32(v)*af + bf
-		}
-		return float32(v*a + b)
-	}
 	switch bpp {
 	case 1:
-		for n := range dst[:npix] {
-			dst[n] = conv(uint32(raw[n]))
+		for n := range dst {
+			dst[n] = float32(value(uint32(raw[n])>>shift, ext, signed)*a + b)
 		}
 	case 2:
-		if !signed && shift == 0 && bits == 16 && !fi.BigEndian {
-			// Fast path for plain unsigned 16-bit little-endian data.
-			for n := range dst[:npix] {
-				v := float64(uint16(raw[2*n]) | uint16(raw[2*n+1])<<8)
-				dst[n] = float32(v*a + b)
+		if shift == 0 && bits == 16 && !fi.BigEndian {
+			// Plain 16-bit little-endian data.
+			if signed {
+				for n := range dst {
+					dst[n] = float32(float64(int16(uint16(raw[2*n])|uint16(raw[2*n+1])<<8))*a + b)
+				}
+			} else {
+				for n := range dst {
+					dst[n] = float32(float64(uint16(raw[2*n])|uint16(raw[2*n+1])<<8)*a + b)
+				}
 			}
 			return
 		}
-		if signed && shift == 0 && bits == 16 && !fi.BigEndian {
-			for n := range dst[:npix] {
-				v := float64(int16(uint16(raw[2*n]) | uint16(raw[2*n+1])<<8))
-				dst[n] = float32(v*a + b)
-			}
-			return
-		}
-		for n := range dst[:npix] {
-			dst[n] = conv(uint32(bo.Uint16(raw[2*n:])))
+		for n := range dst {
+			dst[n] = float32(value(uint32(bo.Uint16(raw[2*n:]))>>shift, ext, signed)*a + b)
 		}
 	case 4:
-		for n := range dst[:npix] {
-			dst[n] = conv(bo.Uint32(raw[4*n:]))
+		for n := range dst {
+			dst[n] = float32(value(bo.Uint32(raw[4*n:])>>shift, ext, signed)*a + b)
 		}
 	}
 }
 
-// storedRange returns the smallest and largest stored values that
-// BitsStored and PixelRepresentation allow.
-func (fi *fileInfo) storedRange() (lo, hi float64) {
-	if fi.PixelRep == 1 {
-		return -math.Ldexp(1, fi.BitsStored-1), math.Ldexp(1, fi.BitsStored-1) - 1
+// value keeps the low 32-ext bits of u, sign-extended when signed.
+func value(u uint32, ext uint, signed bool) float64 {
+	u <<= ext
+	if signed {
+		return float64(int32(u) >> ext)
 	}
-	return 0, math.Ldexp(1, fi.BitsStored) - 1
+	return float64(u >> ext)
 }
 
 // phaseLinear returns a, b such that phase = a*stored + b radians when no
 // RWV mapping in radians is present: the stored range maps linearly onto
-// [-π, π): signed v·π/2^(BitsStored-1), unsigned (v - 2^(BitsStored-1))·π/2^(BitsStored-1).
-// scale, when non-zero, replaces π/2^(BitsStored-1) (radians per stored unit).
+// [-π, π): signed v·π/2^(BitsStored-1), unsigned
+// (v - 2^(BitsStored-1))·π/2^(BitsStored-1). scale, when non-zero,
+// replaces π/2^(BitsStored-1) (radians per stored unit).
 func (fi *fileInfo) phaseLinear(scale float64) (a, b float64) {
 	half := math.Ldexp(1, fi.BitsStored-1)
 	a = math.Pi / half

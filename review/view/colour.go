@@ -84,7 +84,8 @@ func AutoWindow(vol *dosemap.Volume) Window {
 //	t = (log10 D - log10 Floor) / (log10 Ceiling - log10 Floor)
 //
 // clipped to [0, 1]. Doses below Floor (and NaN) are transparent; doses
-// above Ceiling take the top colour. Opacity (0..1) is the alpha of the
+// above Ceiling take the top colour. Doses of 1e-9 CEM43 or less count as
+// zero. Opacity (0..1) is the alpha of the
 // wash over the anatomy.
 type DoseScale struct {
 	Floor, Ceiling float64 // CEM43 minutes, 0 < Floor < Ceiling

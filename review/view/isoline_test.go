@@ -26,7 +26,7 @@ func signedArea(pts []Point) float64 {
 // f = exp(-r²/(2σ²)) at level L (radius σ·sqrt(-2 ln L)). Every vertex must
 // lie within 0.05 pixel of the circle. Reference: the exact radius
 // (computed). Tolerance: linear interpolation of f along a cell edge errs
-// by at most h²/8·|f''| (h = 1 pixel), which for these radii and widths is
+// by at most h²/8·|f”| (h = 1 pixel), which for these radii and widths is
 // below 0.035 pixel of radius; 0.05 leaves room for rounding.
 func TestIsolineCircles(t *testing.T) {
 	for _, c := range []struct {

@@ -58,6 +58,9 @@ func (p Plane) Validate() error {
 	if p.Width <= 0 || p.Height <= 0 {
 		return fmt.Errorf("plane size %d×%d is not positive", p.Width, p.Height)
 	}
+	if p.Width > maxSide || p.Height > maxSide {
+		return fmt.Errorf("plane size %d×%d exceeds %d pixels a side", p.Width, p.Height, maxSide)
+	}
 	if !(p.PixelU > 0) || !(p.PixelV > 0) || math.IsInf(p.PixelU, 0) || math.IsInf(p.PixelV, 0) {
 		return fmt.Errorf("plane pixel size %g×%g mm is not positive", p.PixelU, p.PixelV)
 	}
@@ -72,6 +75,11 @@ func (p Plane) Validate() error {
 	}
 	return nil
 }
+
+// maxSide bounds the pixels along each side of a plane or view, so that an
+// odd geometry (a tiny pixel size, say) gives an error instead of
+// exhausting memory.
+const maxSide = 16384
 
 // AcquisitionPlane returns the image plane of slice k of g: pixel (x, y) of
 // the plane is voxel (x, y, k) of the grid, so sampling a volume on g
@@ -163,7 +171,11 @@ func ObliquePlane(g dosemap.Geometry, q, u, v dosemap.Vec3, pixelMM float64) (Pl
 	if pixelMM <= 0 {
 		pixelMM = math.Min(g.Spacing[0], math.Min(g.Spacing[1], g.Spacing[2]))
 	}
-	return fitPlane(g, q, u, v, pixelMM, pixelMM), nil
+	p := fitPlane(g, q, u, v, pixelMM, pixelMM)
+	if err := p.Validate(); err != nil {
+		return Plane{}, fmt.Errorf("oblique plane: %w", err)
+	}
+	return p, nil
 }
 
 // fitPlane returns the plane through q with axes u, v whose pixel grid
@@ -227,3 +239,14 @@ func displayDown(d dosemap.Vec3) dosemap.Vec3 {
 // axial and coronal (patient left on the viewer's right) and sagittal
 // (posterior on the right) presentations.
 func displayRight(d dosemap.Vec3) dosemap.Vec3 { return displayDown(d) }
+
+// NearestSlice returns the index of the slice of g whose centre plane is
+// nearest to patient point q, clamped to the grid: with AcquisitionPlane it
+// gives the acquired image through a point.
+func NearestSlice(g dosemap.Geometry, q dosemap.Vec3) int {
+	_, _, k := g.Voxel(q)
+	if k != k {
+		return 0
+	}
+	return max(0, min(g.Slices-1, int(math.Round(k))))
+}

@@ -10,9 +10,17 @@ import (
 )
 
 // Region is a region of patient space to outline or fill: either a mask on
-// a grid (inside where the value is >= 0.5; a 0/1 volume as made by
-// MaskVolume) or a structure of closed planar contours. When both are set
-// the mask is used.
+// a grid or a structure of closed planar contours. When both are set the
+// mask is used.
+//
+// A mask may hold 0/1 values (as made by MaskVolume) or the fraction of
+// each voxel inside the region (0..1, partial volume): it is interpolated
+// trilinearly and the region is where the result is >= 0.5, so fractions
+// place the outline between voxel centres where the surface crosses. A
+// mask with values above 1 (a label volume, n > 0 in the voxels of region
+// n) or with NaN is first reduced to 1 where the value is >= 0.5 and 0
+// elsewhere (NaN included), so labels and unmeasured voxels cannot shift
+// the outline.
 type Region struct {
 	Mask      *dosemap.Volume
 	Structure *dosemap.Structure
@@ -43,6 +51,28 @@ func MaskRegion(g dosemap.Geometry, m []bool) (Region, error) {
 		return Region{}, err
 	}
 	return Region{Mask: v}, nil
+}
+
+// binaryMask returns m when its values are all within 0..1, and otherwise
+// a 0/1 copy: 1 where m >= 0.5, 0 elsewhere and at NaN.
+func binaryMask(m *dosemap.Volume) *dosemap.Volume {
+	clean := true
+	for _, v := range m.Data {
+		if !(v >= 0 && v <= 1) {
+			clean = false
+			break
+		}
+	}
+	if clean {
+		return m
+	}
+	b := dosemap.NewVolume(m.Geometry)
+	for n, v := range m.Data {
+		if v >= 0.5 {
+			b.Data[n] = 1
+		}
+	}
+	return b
 }
 
 // maskBox returns the voxel index box [lo, hi] of the voxels of v that are
@@ -245,7 +275,7 @@ func (ps *planarStructure) coplanarSlab(p Plane) *slab {
 }
 
 // rasterise writes the structure's inside (1) and outside (0) at the pixel
-// centres of p within r into field (row stride p.Width). A pixel is inside
+// centres of p within r into the r-local field. A pixel is inside
 // when the contours of the slab containing its centre enclose it by the
 // even-odd rule.
 func (ps *planarStructure) rasterise(p Plane, r image.Rectangle, field []float32) {
@@ -260,7 +290,7 @@ func (ps *planarStructure) rasterise(p Plane, r image.Rectangle, field []float32
 			if s != nil && insidePolys(s.polys, q.Dot(ps.e1), q.Dot(ps.e2)) {
 				v = 1
 			}
-			field[y*p.Width+x] = v
+			field[(y-r.Min.Y)*r.Dx()+x-r.Min.X] = v
 		}
 	}
 }
@@ -307,34 +337,38 @@ func boxCorners(lo, hi dosemap.Vec3) []dosemap.Vec3 {
 // one of its contour planes and otherwise rasterised on p (nearest contour
 // plane, even-odd rule) and traced at 0.5.
 func RegionOutlines(p Plane, r Region) []Polyline {
-	f := newRegionField(p, r, nil)
-	return f.outlines
+	return newRegionField(p, r).outlines
 }
 
-// regionField is a region evaluated on a plane: a 0..1 field at plane
-// pixels (inside >= 0.5), its bounding rectangle and its outlines.
+// regionField is a region evaluated on a plane: a 0..1 field (inside
+// >= 0.5) at the plane pixels of its bounding rectangle box, row by row
+// (index (y-box.Min.Y)*box.Dx() + x-box.Min.X), and its outlines.
 type regionField struct {
 	field    []float32
 	box      image.Rectangle
 	outlines []Polyline
 }
 
-// newRegionField evaluates r on p; buf is reused when large enough.
-func newRegionField(p Plane, r Region, buf []float32) *regionField {
-	rf := &regionField{}
-	n := p.Len()
-	if cap(buf) < n {
-		buf = make([]float32, n)
+// at returns the field bilinearly interpolated at plane pixel coordinate
+// (x, y); 0 outside the box.
+func (rf *regionField) at(x, y float64) float64 {
+	v := bilinear(rf.field, rf.box.Dx(), rf.box.Dy(), x-float64(rf.box.Min.X), y-float64(rf.box.Min.Y))
+	if v != v {
+		return 0
 	}
-	buf = buf[:n]
-	clear(buf)
-	rf.field = buf
+	return v
+}
+
+// newRegionField evaluates r on p.
+func newRegionField(p Plane, r Region) *regionField {
+	rf := &regionField{}
 	switch {
 	case r.Mask != nil:
 		m := r.Mask
 		if m.Check() != nil {
 			return rf
 		}
+		m = binaryMask(m)
 		lo, hi, ok := maskBox(m)
 		if !ok {
 			return rf
@@ -347,34 +381,33 @@ func newRegionField(p Plane, r Region, buf []float32) *regionField {
 			corners = append(corners, m.Point(i, j, k))
 		}
 		rf.box = projectBox(p, corners, 1)
-		sampleRect(buf, p.Width, m, p, rf.box, 0)
-		for y := rf.box.Min.Y; y < rf.box.Max.Y; y++ {
-			row := buf[y*p.Width+rf.box.Min.X : y*p.Width+rf.box.Max.X]
-			for x, v := range row {
-				if v != v {
-					row[x] = 0
-				}
+		rf.field = make([]float32, rf.box.Dx()*rf.box.Dy())
+		sampleRect(rf.field, rf.box.Dx(), rf.box.Min, m, p, rf.box, 0)
+		for n, v := range rf.field {
+			if v != v {
+				rf.field[n] = 0
 			}
 		}
-		rf.outlines = traceBox(p, buf, rf.box)
+		rf.outlines = traceBox(p, rf.field, rf.box)
 	case r.Structure != nil:
 		ps := prepareStructure(r.Structure)
 		if !ps.ok {
 			return rf
 		}
 		rf.box = projectBox(p, boxCorners(ps.lo, ps.hi), 1)
+		rf.field = make([]float32, rf.box.Dx()*rf.box.Dy())
 		if s := ps.coplanarSlab(p); s != nil {
 			rf.outlines = ps.slabOutlines(p, s)
-			fillPolys(p, rf.outlines, rf.box, buf)
+			fillPolys(rf.outlines, rf.box, rf.field)
 			return rf
 		}
-		ps.rasterise(p, rf.box, buf)
-		rf.outlines = traceBox(p, buf, rf.box)
+		ps.rasterise(p, rf.box, rf.field)
+		rf.outlines = traceBox(p, rf.field, rf.box)
 	}
 	return rf
 }
 
-// traceBox traces the 0.5 isoline of field within box (padded by one pixel
+// traceBox traces the 0.5 isoline of the box-local field (padded by one pixel
 // of zeros so outlines close at the box edge) and returns it in plane
 // pixel and patient coordinates.
 func traceBox(p Plane, field []float32, box image.Rectangle) []Polyline {
@@ -384,7 +417,7 @@ func traceBox(p Plane, field []float32, box image.Rectangle) []Polyline {
 	w, h := box.Dx()+2, box.Dy()+2
 	sub := make([]float32, w*h)
 	for y := box.Min.Y; y < box.Max.Y; y++ {
-		copy(sub[(y-box.Min.Y+1)*w+1:], field[y*p.Width+box.Min.X:y*p.Width+box.Max.X])
+		copy(sub[(y-box.Min.Y+1)*w+1:], field[(y-box.Min.Y)*box.Dx():(y-box.Min.Y+1)*box.Dx()])
 	}
 	lines := MarchingSquares(sub, w, h, 0.5)
 	ox, oy := float64(box.Min.X-1), float64(box.Min.Y-1)
@@ -400,9 +433,9 @@ func traceBox(p Plane, field []float32, box image.Rectangle) []Polyline {
 	return lines
 }
 
-// fillPolys sets field to 1 at the pixel centres within box enclosed by the
-// polylines (even-odd rule), by scanlines.
-func fillPolys(p Plane, lines []Polyline, box image.Rectangle, field []float32) {
+// fillPolys sets the box-local field to 1 at the pixel centres within box
+// enclosed by the polylines (even-odd rule), by scanlines.
+func fillPolys(lines []Polyline, box image.Rectangle, field []float32) {
 	var xs []float64
 	for y := box.Min.Y; y < box.Max.Y; y++ {
 		fy := float64(y)
@@ -422,7 +455,7 @@ func fillPolys(p Plane, lines []Polyline, box image.Rectangle, field []float32) 
 			x0 := max(box.Min.X, int(math.Ceil(xs[n])))
 			x1 := min(box.Max.X-1, int(math.Floor(xs[n+1])))
 			for x := x0; x <= x1; x++ {
-				field[y*p.Width+x] = 1
+				field[(y-box.Min.Y)*box.Dx()+x-box.Min.X] = 1
 			}
 		}
 	}

@@ -19,11 +19,15 @@ type Scene struct {
 	Anatomy *dosemap.Volume // grey background
 	Window  Window          // anatomy window; Width 0: AutoWindow(Anatomy)
 
-	Dose     *dosemap.Volume // cumulative thermal dose, CEM43 minutes
-	Scale    DoseScale       // colourwash; zero value: DefaultDoseScale()
-	Lethal   float64         // lethal dose level for the thick isoline; 0: none
-	Isodoses []float64       // further isodose levels, drawn thin in their wash colour
-	HideWash bool            // draw the isolines without the colourwash
+	Dose   *dosemap.Volume // cumulative thermal dose, CEM43 minutes
+	Scale  DoseScale       // colourwash; zero value: DefaultDoseScale()
+	Lethal float64         // lethal dose level for the thick isoline; 0: none
+	// LethalRegion, when set, is outlined as the lethal line instead of
+	// the Lethal isoline of Dose: pass the analysis' own lethal mask so the
+	// picture shows exactly the region its figures count.
+	LethalRegion Region
+	Isodoses     []float64 // further isodose levels, drawn thin in their wash colour
+	HideWash     bool      // draw the isolines without the colourwash
 
 	Target, Margin Region   // solid and dashed outlines
 	Avoid          []Region // dotted outlines
@@ -31,10 +35,22 @@ type Scene struct {
 	Spill          Region   // filled: lethal dose outside the margin
 	NotMonitored   Region   // cross-hatched: no valid thermometry
 
+	Lines []LevelLine // further isolines of any volume (e.g. lethal probability)
+
 	Marker *dosemap.Vec3 // crosshair at a patient point; nil: none
 
 	Caption     string // lines of text drawn at the top left
 	Annotations bool   // orientation letters and scale bar
+}
+
+// LevelLine is an isoline of any volume drawn over the picture, for
+// example the 50 % contour of the lethal-dose probability.
+type LevelLine struct {
+	Volume *dosemap.Volume
+	Level  float64
+	Color  color.RGBA
+	Style  LineStyle
+	Width  float64 // display pixels; 0: 1.5
 }
 
 // Style holds the line widths (display pixels) of the overlays. The
@@ -49,7 +65,7 @@ type Style struct {
 // 2.5, avoid 3 (dots), hole and spill outlines 1.5, isodoses 1.5.
 func DefaultStyle() Style {
 	return Style{Lethal: 3.5, Target: 2.5, Margin: 2.5, Avoid: 3, Outline: 1.5, Isodose: 1.5,
-		FillOpacity: 0.45, Background: color.RGBA{0x0a, 0x0a, 0x0c, 0xFF}}
+		FillOpacity: 0.7, Background: color.RGBA{0x0a, 0x0a, 0x0c, 0xFF}}
 }
 
 // Renderer composites Scenes into images. It keeps what depends only on
@@ -63,13 +79,23 @@ type Renderer struct {
 
 	key     cacheKey
 	anat    []float32
-	dose    []float32 // scale position t (NaN: no wash)
+	dose    []float32 // log10 of the dose (NaN: no wash)
 	doseRaw []float32
 	lethal  []Polyline
 	isos    [][]Polyline
 	fields  map[regionID]*regionField
+	binary  map[*dosemap.Volume]*dosemap.Volume
+	samples map[*dosemap.Volume][]float32 // extra volumes on the plane
+	levels  map[levelKey][]Polyline       // their isolines
+	doseBox image.Rectangle               // plane pixels with positive dose
+	cols    []column
 	scratch []uint8
 	pts     []Point
+}
+
+type levelKey struct {
+	vol   *dosemap.Volume
+	level float64
 }
 
 type regionID struct {
@@ -94,7 +120,9 @@ func NewRenderer() *Renderer {
 // Invalidate drops everything cached.
 func (r *Renderer) Invalidate() {
 	r.key = cacheKey{}
+	r.samples, r.levels = nil, nil
 	r.fields = map[regionID]*regionField{}
+	r.binary = nil
 }
 
 // Render composites s as seen through v into dst and returns it; dst is
@@ -113,8 +141,10 @@ func (r *Renderer) prepare(s *Scene, sc DoseScale) {
 		r.fields = map[regionID]*regionField{}
 	}
 	old := r.key
-	if old.plane != p {
+	if old.plane != p || !old.valid {
 		r.fields = map[regionID]*regionField{}
+		r.samples = map[*dosemap.Volume][]float32{}
+		r.levels = map[levelKey][]Polyline{}
 	}
 	n := p.Len()
 	if old.plane != p || old.anat != s.Anatomy || !old.valid {
@@ -130,14 +160,23 @@ func (r *Renderer) prepare(s *Scene, sc DoseScale) {
 			SampleInto(r.doseRaw, s.Dose, p)
 		}
 	}
-	if doseChanged || old.scale != sc {
+	if doseChanged {
+		// The wash interpolates log10 of the dose between plane pixels, so
+		// the floor edge is smooth at any zoom; zero and negative doses
+		// sit far below any floor.
 		r.dose = grow(r.dose, n)
+		r.doseBox = image.Rectangle{}
+		if s.Dose != nil {
+			r.doseBox = positiveBox(r.doseRaw[:n], p.Width, p.Height)
+		}
 		for m, d := range r.doseRaw[:n] {
-			t := sc.T(float64(d))
-			if t < 0 {
-				r.dose[m] = float32(math.NaN())
-			} else {
-				r.dose[m] = float32(t)
+			switch {
+			case d != d:
+				r.dose[m] = d
+			case d <= 1e-9: // far below any useful floor; skips the logarithm
+				r.dose[m] = -30
+			default:
+				r.dose[m] = float32(math.Log10(float64(d)))
 			}
 		}
 	}
@@ -167,9 +206,47 @@ func (r *Renderer) field(p Plane, g Region) *regionField {
 	if f, ok := r.fields[id]; ok {
 		return f
 	}
-	f := newRegionField(p, g, nil)
+	if g.Mask != nil {
+		// Reduce label and NaN masks once, not on every plane.
+		b, ok := r.binary[g.Mask]
+		if !ok {
+			if g.Mask.Check() == nil {
+				b = binaryMask(g.Mask)
+			} else {
+				b = g.Mask
+			}
+			if r.binary == nil {
+				r.binary = map[*dosemap.Volume]*dosemap.Volume{}
+			}
+			r.binary[g.Mask] = b
+		}
+		g.Mask = b
+	}
+	f := newRegionField(p, g)
 	r.fields[id] = f
 	return f
+}
+
+// positiveBox returns the bounding rectangle of the samples > 0 of a w×h
+// field (empty when there are none).
+func positiveBox(f []float32, w, h int) image.Rectangle {
+	b := image.Rectangle{}
+	for y := 0; y < h; y++ {
+		row := f[y*w : y*w+w]
+		lo, hi := -1, -1
+		for x, v := range row {
+			if v > 0 {
+				if lo < 0 {
+					lo = x
+				}
+				hi = x
+			}
+		}
+		if lo >= 0 {
+			b = b.Union(image.Rect(lo, y, hi+1, y+1))
+		}
+	}
+	return b
 }
 
 func grow(b []float32, n int) []float32 {
@@ -222,21 +299,12 @@ func (r *Renderer) Render(s *Scene, v View, dst *image.RGBA) (*image.RGBA, error
 	notMon := r.field(p, s.NotMonitored)
 	spill := r.field(p, s.Spill)
 	holes := r.field(p, s.Holes)
-	r.fill(dst, p, v, notMon, func(x, y int) (float64, bool) {
-		m := (x - y) & 7
-		n := (x + y) & 7
-		if m == 0 || n == 0 {
-			return 0.85, true
-		}
-		return 0.18, true
-	}, review.ColorNotMonitored)
-	r.fill(dst, p, v, spill, func(x, y int) (float64, bool) { return st.FillOpacity, true }, review.ColorSpill)
-	r.fill(dst, p, v, holes, func(x, y int) (float64, bool) {
-		if (x+y)%6 < 2 {
-			return 0.9, true
-		}
-		return 0.22, true
-	}, review.ColorHole)
+	// Not monitored: darkened, then light grey cross-hatch, so it reads on
+	// grey anatomy too.
+	r.fill(dst, p, v, notMon, func(x, y int) float64 { return 0.55 }, haloColor)
+	r.fill(dst, p, v, notMon, crossHatch, review.ColorNotMonitored)
+	r.fill(dst, p, v, spill, func(x, y int) float64 { return st.FillOpacity }, review.ColorSpill)
+	r.fill(dst, p, v, holes, hatch, review.ColorHole)
 
 	cv := newCanvas(dst, r.scratch)
 	r.scratch = cv.cov
@@ -252,8 +320,35 @@ func (r *Renderer) Render(s *Scene, v View, dst *image.RGBA) (*image.RGBA, error
 	for _, a := range s.Avoid {
 		r.outline(cv, p, v, a, st.Avoid, Dotted, review.ColorAvoid)
 	}
-	for _, l := range r.lethal {
-		cv.stroke(r.display(p, v, l.Pixels), l.Closed, st.Lethal, Solid, review.ColorLethal)
+	for _, ll := range s.Lines {
+		if ll.Volume == nil {
+			continue
+		}
+		k := levelKey{ll.Volume, ll.Level}
+		lines, ok := r.levels[k]
+		if !ok {
+			vals, ok := r.samples[ll.Volume]
+			if !ok {
+				vals = Sample(ll.Volume, p)
+				r.samples[ll.Volume] = vals
+			}
+			lines = MarchingSquares(vals, p.Width, p.Height, ll.Level)
+			r.levels[k] = lines
+		}
+		w := ll.Width
+		if w <= 0 {
+			w = 1.5
+		}
+		for _, l := range lines {
+			cv.stroke(r.display(p, v, l.Pixels), l.Closed, w, ll.Style, ll.Color)
+		}
+	}
+	if !s.LethalRegion.IsZero() {
+		r.outline(cv, p, v, s.LethalRegion, st.Lethal, Solid, review.ColorLethal)
+	} else {
+		for _, l := range r.lethal {
+			cv.stroke(r.display(p, v, l.Pixels), l.Closed, st.Lethal, Solid, review.ColorLethal)
+		}
 	}
 	r.outline(cv, p, v, s.Holes, st.Outline, Solid, review.ColorHole)
 	r.outline(cv, p, v, s.Spill, st.Outline, Solid, review.ColorSpill)
@@ -270,6 +365,16 @@ func (r *Renderer) Render(s *Scene, v View, dst *image.RGBA) (*image.RGBA, error
 	if s.Caption != "" {
 		size := labelSize(v)
 		y := 8
+		if s.Annotations {
+			// Keep clear of the top orientation letter.
+			for _, line := range strings.Split(s.Caption, "\n") {
+				if w, _ := textSize(line, size); 8+w > v.Width/2-int(size) {
+					_, lh := textSize("A", size+2)
+					y += lh + 6
+					break
+				}
+			}
+		}
 		for _, line := range strings.Split(s.Caption, "\n") {
 			drawText(dst, line, size, 8, y, anchorTopLeft, color.RGBA{0xF2, 0xF2, 0xF2, 0xFF})
 			_, h := textSize(line, size)
@@ -299,60 +404,74 @@ func (r *Renderer) outline(cv *canvas, p Plane, v View, g Region, width float64,
 	}
 }
 
+// column is the horizontal interpolation of one display column: the two
+// plane pixels and the weight of the right one; x0 < 0 outside the plane.
+type column struct {
+	x0, x1 int32
+	fx     float32
+	dose   bool // within the box of positive dose
+}
+
 // base draws the anatomy and the dose colourwash for every display pixel.
+// The horizontal interpolation is the same on every display row, so it is
+// tabulated once per column.
 func (r *Renderer) base(dst *image.RGBA, s *Scene, v View, win Window, sc DoseScale) {
 	p := s.Plane
 	w, h := p.Width, p.Height
 	bg := r.Style.Background
 	gs, gofs := win.affine()
+	g32, o32 := float32(gs), float32(gofs)
 	haveAnat := s.Anatomy != nil
-	haveDose := s.Dose != nil && !s.HideWash
+	haveDose := s.Dose != nil && !s.HideWash && !r.doseBox.Empty()
 	alpha := int(sc.Opacity*255 + 0.5)
-	sx := 1 / (v.Zoom * p.PixelU)
+	lf := float32(math.Log10(sc.Floor))
+	inv := float32(1 / (math.Log10(sc.Ceiling) - math.Log10(sc.Floor)))
 	q0 := v.ToPlane(p, 0.5, 0.5)
-	xmax, ymax := float64(w)-0.5, float64(h)-0.5
+	if cap(r.cols) < v.Width {
+		r.cols = make([]column, v.Width)
+	}
+	cols := r.cols[:v.Width]
+	for i := range cols {
+		cols[i] = column{x0: -1}
+		x := q0.X + float64(i)/(v.Zoom*p.PixelU)
+		if x < -0.5 || x > float64(w)-0.5 {
+			continue
+		}
+		x0, fx := splitf(math.Max(0, math.Min(float64(w-1), x)), w)
+		cols[i] = column{x0: int32(x0), x1: int32(min(x0+1, w-1)), fx: float32(fx),
+			dose: x0+1 >= r.doseBox.Min.X && x0 < r.doseBox.Max.X}
+	}
 	for j := 0; j < v.Height; j++ {
 		y := q0.Y + float64(j)/(v.Zoom*p.PixelV)
 		pix := dst.Pix[j*dst.Stride : j*dst.Stride+4*v.Width]
-		if y < -0.5 || y > ymax {
+		if y < -0.5 || y > float64(h)-0.5 {
 			for i := 0; i < v.Width; i++ {
 				pix[4*i], pix[4*i+1], pix[4*i+2], pix[4*i+3] = bg.R, bg.G, bg.B, 0xFF
 			}
 			continue
 		}
-		yc := math.Max(0, math.Min(float64(h-1), y))
-		y0 := int(yc)
-		if y0 > h-2 {
-			y0 = max(h-2, 0)
+		y0, fy64 := splitf(math.Max(0, math.Min(float64(h-1), y)), h)
+		y1 := min(y0+1, h-1)
+		fy := float32(fy64)
+		var a0, a1, d0, d1 []float32
+		if haveAnat {
+			a0, a1 = r.anat[y0*w:y0*w+w], r.anat[y1*w:y1*w+w]
 		}
-		fy := yc - float64(y0)
-		y1 := y0 + 1
-		if h == 1 {
-			y1, fy = 0, 0
+		rowDose := haveDose && y0+1 >= r.doseBox.Min.Y && y0 < r.doseBox.Max.Y
+		if rowDose {
+			d0, d1 = r.dose[y0*w:y0*w+w], r.dose[y1*w:y1*w+w]
 		}
-		for i := 0; i < v.Width; i++ {
-			x := q0.X + float64(i)*sx
+		for i, c := range cols {
 			o := pix[4*i : 4*i+4 : 4*i+4]
-			if x < -0.5 || x > xmax {
+			if c.x0 < 0 {
 				o[0], o[1], o[2], o[3] = bg.R, bg.G, bg.B, 0xFF
 				continue
 			}
-			xc := math.Max(0, math.Min(float64(w-1), x))
-			x0 := int(xc)
-			if x0 > w-2 {
-				x0 = max(w-2, 0)
-			}
-			fx := xc - float64(x0)
-			x1 := x0 + 1
-			if w == 1 {
-				x1, fx = 0, 0
-			}
-			a, b, c, d := y0*w+x0, y0*w+x1, y1*w+x0, y1*w+x1
 			g := uint8(0)
-			if haveAnat {
-				an := r.anat
-				val := (float64(an[a])*(1-fx)+float64(an[b])*fx)*(1-fy) + (float64(an[c])*(1-fx)+float64(an[d])*fx)*fy
-				gv := val*gs + gofs
+			if a0 != nil {
+				t := a0[c.x0] + (a0[c.x1]-a0[c.x0])*c.fx
+				b := a1[c.x0] + (a1[c.x1]-a1[c.x0])*c.fx
+				gv := (t+(b-t)*fy)*g32 + o32
 				switch {
 				case !(gv > 0):
 				case gv >= 255:
@@ -362,11 +481,12 @@ func (r *Renderer) base(dst *image.RGBA, s *Scene, v View, win Window, sc DoseSc
 				}
 			}
 			o[0], o[1], o[2], o[3] = g, g, g, 0xFF
-			if haveDose {
-				ds := r.dose
-				t := (float64(ds[a])*(1-fx)+float64(ds[b])*fx)*(1-fy) + (float64(ds[c])*(1-fx)+float64(ds[d])*fx)*fy
-				if t == t {
-					lc := washLUT[int(t*(lutSize-1)+0.5)]
+			if rowDose && c.dose {
+				t := d0[c.x0] + (d0[c.x1]-d0[c.x0])*c.fx
+				b := d1[c.x0] + (d1[c.x1]-d1[c.x0])*c.fx
+				if u := (t + (b-t)*fy - lf) * inv; u >= 0 { // false for NaN
+					u = min(u, 1)
+					lc := washLUT[int(u*(lutSize-1)+0.5)]
 					blend(o, color.RGBA{lc[0], lc[1], lc[2], 0xFF}, alpha)
 				}
 			}
@@ -377,7 +497,7 @@ func (r *Renderer) base(dst *image.RGBA, s *Scene, v View, win Window, sc DoseSc
 // fill blends colour col over the display pixels whose plane position lies
 // inside region f (field >= 0.5); pattern gives the opacity at each display
 // pixel.
-func (r *Renderer) fill(dst *image.RGBA, p Plane, v View, f *regionField, pattern func(x, y int) (float64, bool), col color.RGBA) {
+func (r *Renderer) fill(dst *image.RGBA, p Plane, v View, f *regionField, pattern func(x, y int) float64, col color.RGBA) {
 	if f == nil || f.box.Empty() {
 		return
 	}
@@ -385,20 +505,33 @@ func (r *Renderer) fill(dst *image.RGBA, p Plane, v View, f *regionField, patter
 	ax, ay := v.ToDisplay(p, Point{float64(f.box.Min.X) - 0.5, float64(f.box.Min.Y) - 0.5})
 	bx, by := v.ToDisplay(p, Point{float64(f.box.Max.X) - 0.5, float64(f.box.Max.Y) - 0.5})
 	rect := image.Rect(int(math.Floor(ax)), int(math.Floor(ay)), int(math.Ceil(bx)), int(math.Ceil(by))).Intersect(dst.Rect)
-	w, h := p.Width, p.Height
 	for j := rect.Min.Y; j < rect.Max.Y; j++ {
 		for i := rect.Min.X; i < rect.Max.X; i++ {
 			q := v.ToPlane(p, float64(i)+0.5, float64(j)+0.5)
-			if !(bilinear(f.field, w, h, q.X, q.Y) >= 0.5) {
+			if !(f.at(q.X, q.Y) >= 0.5) {
 				continue
 			}
-			a, ok := pattern(i, j)
-			if !ok {
-				continue
-			}
-			blend(dst.Pix[dst.PixOffset(i, j):], col, int(a*255+0.5))
+			blend(dst.Pix[dst.PixOffset(i, j):], col, int(pattern(i, j)*255+0.5))
 		}
 	}
+}
+
+// hatch is the hole pattern: diagonal stripes (rising to the right) of 2
+// pixels every 6 over a light tint; opacity at display pixel (x, y).
+func hatch(x, y int) float64 {
+	if (x+y)%6 < 2 {
+		return 0.9
+	}
+	return 0.22
+}
+
+// crossHatch is the not-monitored pattern: one-pixel lines along both
+// diagonals every 8 pixels over a faint tint.
+func crossHatch(x, y int) float64 {
+	if (x-y)&7 == 0 || (x+y)&7 == 0 {
+		return 0.95
+	}
+	return 0
 }
 
 // bilinear interpolates a w×h field at continuous pixel coordinate (x, y)

@@ -28,20 +28,22 @@ func Sample(vol *dosemap.Volume, p Plane) []float32 {
 // voxel centre are snapped onto it, so an acquisition plane reproduces its
 // slice exactly even next to NaN voxels.
 func SampleInto(dst []float32, vol *dosemap.Volume, p Plane) {
-	sampleRect(dst, p.Width, vol, p, image.Rect(0, 0, p.Width, p.Height), float32(math.NaN()))
+	sampleRect(dst, p.Width, image.Point{}, vol, p, image.Rect(0, 0, p.Width, p.Height), float32(math.NaN()))
 }
 
 // sampleRect samples vol on the pixels of p inside r (clipped to the plane)
-// into dst (row stride stride), writing fill at pixels outside the volume's
-// grid. Pixels of dst outside r are left alone.
-func sampleRect(dst []float32, stride int, vol *dosemap.Volume, p Plane, r image.Rectangle, fill float32) {
+// into dst, where pixel (x, y) goes to (y-org.Y)*stride + x-org.X, writing
+// fill at pixels outside the volume's grid. Pixels of dst outside r are left
+// alone.
+func sampleRect(dst []float32, stride int, org image.Point, vol *dosemap.Volume, p Plane, r image.Rectangle, fill float32) {
 	r = r.Intersect(image.Rect(0, 0, p.Width, p.Height))
 	if r.Empty() {
 		return
 	}
+
 	if vol == nil || vol.Check() != nil || vol.Len() == 0 {
 		for y := r.Min.Y; y < r.Max.Y; y++ {
-			row := dst[y*stride+r.Min.X : y*stride+r.Max.X]
+			row := dst[(y-org.Y)*stride+r.Min.X-org.X : (y-org.Y)*stride+r.Max.X-org.X]
 			for n := range row {
 				row[n] = fill
 			}
@@ -69,6 +71,11 @@ func sampleRect(dst []float32, stride int, vol *dosemap.Volume, p Plane, r image
 		st[2] = n[0] * n[1]
 	}
 	data := vol.Data
+	// aligned: one plane pixel to the right is one voxel along i.
+	aligned := math.Abs(du[0]-1) < 1e-9 && math.Abs(du[1]) < 1e-9 && math.Abs(du[2]) < 1e-9
+	if aligned {
+		du = [3]float64{1, 0, 0}
+	}
 	for y := r.Min.Y; y < r.Max.Y; y++ {
 		fy := float64(y)
 		base := [3]float64{c0[0] + fy*dv[0], c0[1] + fy*dv[1], c0[2] + fy*dv[2]}
@@ -89,18 +96,27 @@ func sampleRect(dst []float32, stride int, vol *dosemap.Volume, p Plane, r image
 			lo = math.Max(lo, math.Ceil(t0-1e-9))
 			hi = math.Min(hi, math.Floor(t1+1e-9))
 		}
-		out := dst[y*stride : y*stride+r.Max.X]
+		// out[x-xo] is plane pixel (x, y).
+		xo := r.Min.X
+		out := dst[(y-org.Y)*stride+xo-org.X : (y-org.Y)*stride+r.Max.X-org.X]
 		x0, x1 := r.Min.X, r.Min.X // [x0, x1) is sampled
 		if lo <= hi {
 			x0, x1 = int(lo), int(hi)+1
 		}
 		for x := r.Min.X; x < x0; x++ {
-			out[x] = fill
+			out[x-xo] = fill
 		}
 		for x := x1; x < r.Max.X; x++ {
-			out[x] = fill
+			out[x-xo] = fill
 		}
 		if x0 >= x1 {
+			continue
+		}
+		// A row running along a grid row through voxel centres is a copy.
+		if ci, cj, ck := snap(base[0]+float64(x0)*du[0]), snap(base[1]), snap(base[2]); aligned &&
+			ci == math.Trunc(ci) && cj == math.Trunc(cj) && ck == math.Trunc(ck) {
+			m := (int(ck)*n[1]+int(cj))*n[0] + int(ci)
+			copy(out[x0-xo:x1-xo], data[m:m+x1-x0])
 			continue
 		}
 		// A row lying in one slice of the grid takes the bilinear path.
@@ -109,9 +125,9 @@ func sampleRect(dst []float32, stride int, vol *dosemap.Volume, p Plane, r image
 		flat := du[2] == 0 && fz == 0
 		for x := x0; x < x1; x++ {
 			fx := float64(x)
-			ci := snap(base[0] + fx*du[0])
-			cj := snap(base[1] + fx*du[1])
-			ck := snap(base[2] + fx*du[2])
+			ci := base[0] + fx*du[0]
+			cj := base[1] + fx*du[1]
+			ck := base[2] + fx*du[2]
 			i0, wx := splitf(clampf(ci, n[0]), n[0])
 			j0, wy := splitf(clampf(cj, n[1]), n[1])
 			var v float64
@@ -135,10 +151,10 @@ func sampleRect(dst []float32, stride int, vol *dosemap.Volume, p Plane, r image
 			if v != v {
 				// A NaN tap: Volume.SampleVoxel skips taps of zero
 				// weight, which decides whether this pixel is NaN.
-				out[x] = vol.SampleVoxel(ci, cj, ck)
+				out[x-xo] = vol.SampleVoxel(snap(ci), snap(cj), snap(ck))
 				continue
 			}
-			out[x] = float32(v)
+			out[x-xo] = float32(v)
 		}
 	}
 }

@@ -89,6 +89,6 @@ func (v View) DisplayPlane(p Plane) Plane {
 
 // valid reports whether v can be drawn.
 func (v View) valid() bool {
-	return v.Width > 0 && v.Height > 0 && v.Zoom > 0 && !math.IsInf(v.Zoom, 0) &&
+	return v.Width > 0 && v.Height > 0 && v.Width <= maxSide && v.Height <= maxSide && v.Zoom > 0 && !math.IsInf(v.Zoom, 0) &&
 		!math.IsNaN(v.Centre.X) && !math.IsNaN(v.Centre.Y)
 }

@@ -1,0 +1,148 @@
+//go:build cgo
+
+package main
+
+import (
+	"context"
+	"errors"
+	"time"
+
+	"dosecover/dosemap"
+)
+
+// The review window talks to the reader, the analysis and the plane
+// renderer only through the small set of types and hooks in this file. The
+// files gluing in the real packages (backend_*.go) fill the hooks from their
+// init functions; a hook left nil means that part is missing from the build,
+// and the window says so instead of showing anything made up.
+
+// errMissingPart is returned when a hook is not filled in this build.
+var errMissingPart = errors.New("this build of dosecover lacks the part needed for this step")
+
+// skippedFile is a file of the case folder that was not used, with the
+// reader's reason.
+type skippedFile struct {
+	Path, Reason string
+}
+
+// loadedCase is a case folder as read: the case itself and what the reader
+// has to say about the folder.
+type loadedCase struct {
+	Dir       string
+	Case      *dosemap.Case
+	Skipped   []skippedFile
+	Problems  []string // warnings about the folder that did not stop the load
+	Inventory string   // the reader's plain-text inventory of the folder
+	MissingB0 bool     // some thermometry lacks MagneticFieldStrength
+	MissingTE bool     // some thermometry lacks EchoTime
+}
+
+// loadOptions are the reader's options the user can change.
+type loadOptions struct {
+	PhaseScale float64 // radians per stored unit; 0: from the files' tags
+}
+
+// xy is one point of a curve.
+type xy struct{ X, Y float64 }
+
+// region is a connected region the analysis found (a hole in the target or a
+// lethal cluster outside the margin).
+type region struct {
+	Label    string       // short name, e.g. "H1"
+	VolumeML float64      // mL
+	Centre   dosemap.Vec3 // centroid, patient mm
+	MaxDose  float64      // highest dose inside, model unit
+	Detail   string       // extra facts from the analysis (distance etc.)
+}
+
+// avoidDose is the lethal dose inside one avoid structure.
+type avoidDose struct {
+	Name     string
+	VolumeML float64 // structure volume, mL
+	LethalML float64 // lethal volume inside, mL
+	MaxDose  float64
+}
+
+// sonicationRow is one line of the sonication table.
+type sonicationRow struct {
+	Number        int
+	Label         string
+	Start         time.Time // zero when unknown
+	Offset        float64   // seconds from the first sonication's start
+	Duration      float64   // seconds of thermometry
+	PeakTemp      float64   // °C, highest temperature inside the target (NaN unknown)
+	DoseAddedML   float64   // mL of tissue newly above the threshold
+	CoverageAdded float64   // fraction of the target newly covered
+	Flags         []string  // quality flags, plain words
+}
+
+// analysisResult is what the review window displays from one analysis run.
+type analysisResult struct {
+	Threshold float64 // lethal threshold used, in Unit
+	Unit      string  // "CEM43 min" or the model's unit
+	Model     string  // model name as shown
+	MarginMM  float64
+
+	TargetName     string
+	TargetML       float64
+	Covered        float64 // fraction of the target at or above the threshold
+	CoveredWhole   float64 // covered fraction of the whole target (unmonitored counts as not covered)
+	CoveredP05     float64 // NaN when no uncertainty run
+	Trials         int     // noise trials behind the band
+	CoveredP95     float64
+	NotMonitored   float64 // fraction of the target without valid thermometry
+	D98, D50, D2   float64 // dose received by at least 98/50/2 % of the target
+	LethalOutside  float64 // mL lethal outside the margin
+	Holes          []region
+	Outside        []region
+	Avoid          []avoidDose
+	DVH            []xy // dose (unit) -> fraction of target receiving at least that dose
+	CoverageVsThr  []xy // threshold (unit) -> covered fraction
+	Sonications    []sonicationRow
+	Raw            any // the analysis package's own result, for exports
+	QualityNotes   []string
+	Dose           *dosemap.Volume   // cumulative dose of the included sonications
+	PeakTemp       *dosemap.Volume   // highest temperature of the included sonications, °C (nil unknown)
+	SonicationDose []*dosemap.Volume // dose of each sonication (index = row), may hold nil
+	// Masks for display, each on its own grid: a voxel belongs to the
+	// region when its value is 0.5 or more (labels count from 1). nil: none.
+	Target, Margin  *dosemap.Volume
+	Holes3D         *dosemap.Volume
+	Outside3D       *dosemap.Volume
+	Avoid3D         *dosemap.Volume
+	NotMonitored3D  *dosemap.Volume      // target voxels without valid thermometry
+	TargetStructure *dosemap.Structure   // planned target contours (nil: none)
+	AvoidStructures []*dosemap.Structure // planned avoid contours
+}
+
+// probeCurve is the temperature history of one point over the whole session.
+type probeCurve struct {
+	Times       []float64 // seconds from the first sonication's start
+	Temp        []float64 // °C at the voxel (NaN where invalid)
+	Mean        []float64 // °C, 3×3 in-plane mean around the voxel
+	Dose        []float64 // cumulative dose at the voxel, model unit
+	Boundaries  []float64 // start time of each sonication
+	LethalAt    float64   // time the cumulative dose reached the threshold; NaN never
+	FinalDose   float64
+	Unit        string
+	Threshold   float64
+	Description string // the voxel and what was sampled
+}
+
+// session is a case prepared for fast re-analysis: thermometry and dose of
+// every sonication are computed once; Analyze only recombines them.
+type session interface {
+	Analyze(ctx context.Context, s analysisSettings) (*analysisResult, error)
+	// Probe returns the temperature history at patient position p.
+	Probe(p dosemap.Vec3, s analysisSettings) (*probeCurve, error)
+}
+
+// Hooks filled by the backend files.
+var (
+	// readCase loads a case folder.
+	readCase func(ctx context.Context, dir string, opt loadOptions, progress func(done, total int)) (*loadedCase, error)
+	// prepareCase computes thermometry and per-sonication dose.
+	prepareCase func(ctx context.Context, c *loadedCase, s analysisSettings, progress func(stage string, frac float64)) (session, error)
+	// demoCaseDir returns the folder of the built-in demo case, writing it first when needed.
+	demoCaseDir func() (string, error)
+)

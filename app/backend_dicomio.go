@@ -1,0 +1,52 @@
+//go:build cgo
+
+package main
+
+import (
+	"context"
+	"fmt"
+	"strings"
+
+	"dosecover/dosemap/dicomio"
+)
+
+// The case reader: dosemap/dicomio.
+func init() {
+	readCase = readCaseDICOM
+}
+
+func readCaseDICOM(ctx context.Context, dir string, opt loadOptions, progress func(done, total int)) (*loadedCase, error) {
+	c, inv, err := dicomio.Load(ctx, dir, dicomio.LoadOptions{PhaseScale: opt.PhaseScale}, progress)
+	if err != nil {
+		return nil, err
+	}
+	lc := &loadedCase{Dir: dir, Case: c}
+	if inv != nil {
+		var b strings.Builder
+		if err := inv.WriteText(&b); err == nil {
+			lc.Inventory = b.String()
+		}
+		for _, s := range inv.Skipped {
+			lc.Skipped = append(lc.Skipped, skippedFile{Path: s.Path, Reason: s.Reason})
+		}
+		lc.Problems = append(lc.Problems, inv.Problems...)
+		if !inv.Reviewable && inv.NotReviewable != "" {
+			lc.Problems = append(lc.Problems, "not reviewable: "+inv.NotReviewable)
+		}
+	}
+	if c == nil {
+		return nil, fmt.Errorf("reading %s: no case found", dir)
+	}
+	for _, s := range c.Sonications {
+		if s.Phase == nil {
+			continue // temperature or dose maps need no scanner values
+		}
+		if s.B0 == 0 {
+			lc.MissingB0 = true
+		}
+		if s.TE == 0 {
+			lc.MissingTE = true
+		}
+	}
+	return lc, nil
+}

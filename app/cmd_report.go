@@ -1,0 +1,127 @@
+//go:build cgo
+
+package main
+
+import (
+	"context"
+	"flag"
+	"fmt"
+	"io"
+	"os"
+	"os/signal"
+	"path/filepath"
+	"time"
+
+	"dosecover/dosemap/dicomio"
+	"dosecover/dosemap/safefile"
+	"dosecover/review"
+	"dosecover/review/report"
+)
+
+func init() {
+	register(command{name: "report", summary: "write the one-page report (PNG, PDF) and metrics (JSON, CSV) of a case", run: runReport})
+}
+
+// runReport implements
+//
+//	dosecover report CASE_DIR -o report.png [--pdf report.pdf] [--json metrics.json]
+//	    [--csv metrics.csv] [--deidentify] [analysis options]
+func runReport(args []string, stdout, stderr io.Writer) int {
+	fs := flag.NewFlagSet("report", flag.ContinueOnError)
+	fs.SetOutput(stderr)
+	png := fs.String("o", "", "the report page as PNG (required unless --pdf, --json or --csv is given)")
+	pdf := fs.String("pdf", "", "also write the report as PDF")
+	js := fs.String("json", "", "also write every metric as JSON")
+	csv := fs.String("csv", "", "also write every metric as CSV (name,value,unit)")
+	deidentify := fs.Bool("deidentify", false, "hide identity: neutral case label, no scan date, generic sonication labels")
+	reviewer := fs.String("reviewer", "", "name of the reviewer, printed in the header")
+	signoff := fs.String("sign-off", "", "sign-off statement, printed in the header")
+	dpi := fs.Int("dpi", report.DefaultDPI, "resolution of the PNG (at least 150 for printing)")
+	af := addAnalysisFlags(fs)
+	fs.Usage = func() {
+		fmt.Fprintln(stderr, "usage: dosecover report CASE_DIR -o report.png [--pdf report.pdf] [--json metrics.json] [--csv metrics.csv] [--deidentify] [options]")
+		fmt.Fprintln(stderr, "Analyses the case as \"dosecover analyze\" does with the same options and writes the")
+		fmt.Fprintln(stderr, "one-page A4 report. Nothing is written into CASE_DIR. No display is needed.")
+		fs.PrintDefaults()
+	}
+	pos, err := parseArgs(fs, args)
+	if err != nil {
+		return 2
+	}
+	if len(pos) != 1 {
+		fmt.Fprintf(stderr, "dosecover report: one case folder expected, got %d arguments\n", len(pos))
+		fs.Usage()
+		return 2
+	}
+	dir := pos[0]
+	out := report.Outputs{PNG: *png, PDF: *pdf, JSON: *js, CSV: *csv, DPI: *dpi}
+	if out.PNG == "" && out.PDF == "" && out.JSON == "" && out.CSV == "" {
+		fmt.Fprintln(stderr, "dosecover report: give at least one output (-o report.png, --pdf, --json or --csv)")
+		return 2
+	}
+	if *dpi < 72 || *dpi > 1200 {
+		fmt.Fprintf(stderr, "dosecover report: --dpi %d: want 72 to 1200\n", *dpi)
+		return 2
+	}
+	set, err := af.settings()
+	if err != nil {
+		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
+		return 2
+	}
+	// Refuse outputs inside the case folder before any work.
+	for _, p := range []string{out.PNG, out.PDF, out.JSON, out.CSV} {
+		if p == "" {
+			continue
+		}
+		if err := safefile.CheckOutside(dir, p); err != nil {
+			fmt.Fprintf(stderr, "dosecover report: %v\n", err)
+			return 1
+		}
+		if fi, err := os.Stat(filepath.Dir(p)); err != nil || !fi.IsDir() {
+			fmt.Fprintf(stderr, "dosecover report: cannot write %s: folder %s does not exist\n", p, filepath.Dir(p))
+			return 1
+		}
+	}
+	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
+	defer stop()
+	c, inv, err := dicomio.Load(ctx, dir, dicomio.LoadOptions{}, nil)
+	if err != nil {
+		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
+		return 1
+	}
+	if inv != nil && !inv.Reviewable {
+		fmt.Fprintf(stderr, "dosecover report: %s is not a reviewable case: %s\n", dir, inv.NotReviewable)
+		return 1
+	}
+	r, err := review.Analyze(ctx, c, set, nil)
+	if err != nil {
+		fmt.Fprintf(stderr, "dosecover report: analysing %s: %v\n", dir, err)
+		return 1
+	}
+	sum, err := report.HashFolder(dir)
+	if err != nil {
+		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
+		return 1
+	}
+	px := int(float64(*dpi) * 2.4) // panel side: about 61 mm of the page
+	in, err := report.FromResult(c, r, report.Options{
+		Deidentify: *deidentify, Reviewer: *reviewer, SignOff: *signoff,
+		ReviewDate: time.Now().UTC().Truncate(time.Second), InputsSHA256: sum, PanelPixels: px,
+	})
+	if err != nil {
+		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
+		return 1
+	}
+	if err := report.Write(in, dir, out); err != nil {
+		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
+		return 1
+	}
+	fmt.Fprintf(stdout, "%s: covered %.1f %% of the monitored target at %g %s (margin %g mm)\n",
+		in.CaseLabel, 100*r.CoveredFraction, r.Threshold, r.DoseUnit, r.MarginMM)
+	for _, p := range []string{out.PNG, out.PDF, out.JSON, out.CSV} {
+		if p != "" {
+			fmt.Fprintf(stdout, "wrote %s\n", p)
+		}
+	}
+	return 0
+}

@@ -1,0 +1,463 @@
+//go:build cgo
+
+package main
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"os"
+	"path/filepath"
+	"strings"
+
+	"dosecover/dosemap"
+
+	"fyne.io/fyne/v2"
+	"fyne.io/fyne/v2/dialog"
+	"fyne.io/fyne/v2/widget"
+)
+
+// openDemo opens the built-in demo case, writing it first when needed.
+func (rw *reviewWindow) openDemo() {
+	if demoCaseDir == nil {
+		rw.showNotice("This build of dosecover has no demo case. Open a case folder instead (File ▸ Open folder…).")
+		return
+	}
+	ctx, gen := rw.startJob()
+	rw.setBusy("Preparing the demo case (the first time takes a while)…", 0)
+	go func() {
+		dir, err := demoCaseDir()
+		fyne.Do(func() {
+			if !rw.finishJob(gen) || ctx.Err() != nil {
+				return
+			}
+			if err != nil {
+				rw.showError("The demo case could not be prepared", err)
+				return
+			}
+			rw.openCase(dir)
+		})
+	}()
+}
+
+// chooseFolder asks for a case folder.
+func (rw *reviewWindow) chooseFolder() {
+	d := dialog.NewFolderOpen(func(u fyne.ListableURI, err error) {
+		if err != nil {
+			rw.showError("The folder could not be opened", err)
+			return
+		}
+		if u != nil {
+			rw.openCase(u.Path())
+		}
+	}, rw.win)
+	d.Resize(fyne.NewSize(800, 560))
+	d.Show()
+}
+
+// dropped opens a folder dropped on the window (a dropped file opens the
+// folder holding it).
+func (rw *reviewWindow) dropped(_ fyne.Position, items []fyne.URI) {
+	for _, u := range items {
+		if u.Scheme() != "file" {
+			continue
+		}
+		p := u.Path()
+		fi, err := os.Stat(p)
+		if err != nil {
+			rw.showError("The dropped item could not be opened", err)
+			return
+		}
+		if !fi.IsDir() {
+			p = filepath.Dir(p)
+		}
+		rw.openCase(p)
+		return
+	}
+}
+
+// recentCases returns the recently opened folders, newest first.
+func (rw *reviewWindow) recentCases() []string {
+	return rw.app.Preferences().StringList(prefRecent)
+}
+
+func (rw *reviewWindow) addRecent(dir string) {
+	list := []string{dir}
+	for _, d := range rw.recentCases() {
+		if d != dir && len(list) < 10 {
+			list = append(list, d)
+		}
+	}
+	rw.app.Preferences().SetStringList(prefRecent, list)
+	rw.win.SetMainMenu(rw.mainMenu())
+}
+
+// recentLabel is how a recent folder is listed: hidden in teaching mode.
+func (rw *reviewWindow) recentLabel(n int, dir string) string {
+	if rw.teaching {
+		return fmt.Sprintf("Recent case %d", n+1)
+	}
+	return dir
+}
+
+func (rw *reviewWindow) fillRecentMenu(m *fyne.Menu) {
+	m.Items = nil
+	for n, d := range rw.recentCases() {
+		d := d
+		m.Items = append(m.Items, fyne.NewMenuItem(rw.recentLabel(n, d), func() { rw.openCase(d) }))
+	}
+	if len(m.Items) == 0 {
+		it := fyne.NewMenuItem("(none yet)", nil)
+		it.Disabled = true
+		m.Items = append(m.Items, it)
+	}
+}
+
+func (rw *reviewWindow) showRecentMenu() {
+	m := fyne.NewMenu("")
+	rw.fillRecentMenu(m)
+	m.Items = append(m.Items, fyne.NewMenuItemSeparator(), fyne.NewMenuItem("Open the demo case", rw.openDemo))
+	widget.ShowPopUpMenuAtPosition(m, rw.win.Canvas(), fyne.NewPos(120, 40))
+}
+
+// openCase reads dir in the background: it hashes the input files, finds
+// the review record, reads the case, then prepares and analyses it.
+func (rw *reviewWindow) openCase(dir string) {
+	if readCase == nil {
+		rw.showNotice("This build of dosecover cannot read case folders yet (its DICOM reader is missing).")
+		return
+	}
+	dir = filepath.Clean(dir)
+	ctx, gen := rw.startJob()
+	base := rw.displayPath(dir)
+	rw.setBusy("Checking the files of "+base+"…", 0)
+	prefs := loadPrefSettings(rw.app.Preferences())
+	progress := func(text string, frac float64) {
+		fyne.Do(func() {
+			if gen == rw.jobGen {
+				rw.setBusy(text, frac)
+			}
+		})
+	}
+	go func() {
+		var (
+			lc      *loadedCase
+			rec     *reviewRecord
+			recErr  error
+			hash    string
+			nFiles  int
+			err     error
+			setting = prefs
+		)
+		hash, nFiles, err = hashInputs(ctx, dir)
+		if err == nil {
+			rec, recErr = loadRecord(hash)
+			if rec != nil && rec.Settings.validate() == nil {
+				setting = rec.Settings
+			}
+			progress("Reading "+base+"…", 0.05)
+			lc, err = readCase(ctx, dir, loadOptions{PhaseScale: setting.PhaseScale}, func(done, total int) {
+				if total > 0 {
+					progress(fmt.Sprintf("Reading %s: %d of %d files", base, done, total), 0.05+0.45*float64(done)/float64(total))
+				}
+			})
+		}
+		fyne.Do(func() {
+			if !rw.finishJob(gen) {
+				return
+			}
+			if errors.Is(err, context.Canceled) {
+				rw.setBusy("Opening "+base+" was cancelled.", -1)
+				return
+			}
+			if err != nil {
+				rw.showError("The case in "+base+" could not be read", err)
+				return
+			}
+			rw.caseLoaded(lc, hash, nFiles, rec, setting)
+			if recErr != nil {
+				rw.status.SetText(recErr.Error() + " (a new record will be written)")
+			}
+		})
+	}()
+}
+
+// caseLoaded shows a freshly read case and starts its analysis.
+func (rw *reviewWindow) caseLoaded(lc *loadedCase, hash string, nFiles int, rec *reviewRecord, s analysisSettings) {
+	rw.loaded, rw.hash, rw.nFiles = lc, hash, nFiles
+	rw.sess, rw.result, rw.selected, rw.pinned = nil, nil, -1, nil
+	if rec == nil {
+		rec = &reviewRecord{InputHash: hash}
+	}
+	rec.Files = nFiles
+	rw.record = rec
+	rw.settings = s
+	rw.addRecent(lc.Dir)
+	rw.updateTitle()
+	rw.showLoadInfo()
+	rw.probe.set(nil)
+	rw.probeMsg.SetText("Click a point on an image to pin it and plot its temperature over the session.")
+	c := lc.Case
+	rw.opt.WindowCentre, rw.opt.WindowWidth = defaultWindow(c)
+	rw.scene = sceneLayers{Anatomy: c.Anatomy}
+	rw.setViewGrid()
+	rw.metrics.update()
+	rw.sonTable.Refresh()
+	rw.setBusy(fmt.Sprintf("Read %d sonications, %d structures; %d files skipped.", len(c.Sonications), len(c.Structures), len(lc.Skipped)), -1)
+	if note := rw.missingScannerValues(); note != "" {
+		showSettingsDialog(rw.win, rw.settings, note, func(s analysisSettings) {
+			rw.settings = s
+			rw.runAnalysis(true)
+		})
+		return
+	}
+	rw.runAnalysis(true)
+}
+
+// missingScannerValues returns a request for B0 or TE when the thermometry
+// lacks them and the settings do not supply them.
+func (rw *reviewWindow) missingScannerValues() string {
+	var miss []string
+	if rw.loaded.MissingB0 && rw.settings.B0 == 0 {
+		miss = append(miss, "the field strength B0 (MagneticFieldStrength, 0018,0087)")
+	}
+	if rw.loaded.MissingTE && rw.settings.TEms == 0 {
+		miss = append(miss, "the echo time TE (EchoTime, 0018,0081)")
+	}
+	if len(miss) == 0 {
+		return ""
+	}
+	return "The thermometry files of this case do not record " + strings.Join(miss, " or ") +
+		". Temperature cannot be computed from phase without them. Enter the values used on the scanner below (from the scan protocol), then Apply."
+}
+
+// setViewGrid puts the viewers on the anatomy grid (the dose grid without
+// anatomy).
+func (rw *reviewWindow) setViewGrid() {
+	var ref *dosemap.Geometry
+	switch {
+	case rw.scene.Anatomy != nil:
+		g := rw.scene.Anatomy.Geometry
+		ref = &g
+	case rw.scene.Dose != nil:
+		g := rw.scene.Dose.Geometry
+		ref = &g
+	}
+	for n, v := range rw.viewers {
+		v.setScene(&rw.scene, ref)
+		rw.sliceChanged(n)
+	}
+	if ref == nil {
+		rw.showNotice("This case has no anatomy series; the images appear when the dose has been computed.")
+	} else {
+		rw.showNotice("")
+	}
+}
+
+// showLoadInfo fills the folder tab: the reader's inventory, problems and
+// skipped files with reasons.
+func (rw *reviewWindow) showLoadInfo() {
+	lc := rw.loaded
+	if lc == nil {
+		rw.loadInfo.SetText("")
+		return
+	}
+	var b strings.Builder
+	fmt.Fprintf(&b, "Folder: %s\n%d input files · input SHA-256 %s\n\n", rw.displayPath(lc.Dir), rw.nFiles, rw.hash)
+	if lc.Inventory != "" && !rw.teaching {
+		b.WriteString(lc.Inventory)
+		b.WriteString("\n")
+	}
+	if len(lc.Problems) > 0 {
+		b.WriteString("Problems:\n")
+		for _, p := range lc.Problems {
+			fmt.Fprintf(&b, "  • %s\n", p)
+		}
+		b.WriteString("\n")
+	}
+	if len(lc.Skipped) == 0 {
+		b.WriteString("No file was skipped.\n")
+	} else {
+		fmt.Fprintf(&b, "%d files skipped:\n", len(lc.Skipped))
+		for _, s := range lc.Skipped {
+			fmt.Fprintf(&b, "  • %s: %s\n", rw.displayPath(s.Path), s.Reason)
+		}
+	}
+	rw.loadInfo.SetText(b.String())
+}
+
+// runAnalysis analyses the open case in the background with the current
+// settings; prepare recomputes thermometry and per-sonication dose first.
+func (rw *reviewWindow) runAnalysis(prepare bool) {
+	if rw.loaded == nil {
+		return
+	}
+	if prepareCase == nil {
+		rw.showNotice("")
+		rw.setBusy("This build of dosecover has no analysis: only the anatomy is shown.", -1)
+		return
+	}
+	ctx, gen := rw.startJob()
+	lc, set, sess := rw.loaded, rw.settings, rw.sess
+	if prepare {
+		sess = nil
+	}
+	rw.setBusy("Computing temperature and dose…", 0.5)
+	go func() {
+		var err error
+		if sess == nil {
+			sess, err = prepareCase(ctx, lc, set, func(stage string, frac float64) {
+				fyne.Do(func() {
+					if gen == rw.jobGen {
+						rw.setBusy(stage, 0.5+0.45*frac)
+					}
+				})
+			})
+		}
+		var res *analysisResult
+		if err == nil {
+			res, err = sess.Analyze(ctx, set)
+		}
+		fyne.Do(func() {
+			if !rw.finishJob(gen) {
+				return
+			}
+			if errors.Is(err, context.Canceled) {
+				rw.setBusy("Analysis cancelled; the previous result stays on screen.", -1)
+				return
+			}
+			if err != nil {
+				rw.showError("The analysis failed", err)
+				return
+			}
+			rw.sess = sess
+			rw.showResult(res)
+			rw.setBusy(fmt.Sprintf("Analysed with %s.", set.describe()), -1)
+		})
+	}()
+}
+
+// showResult puts a finished analysis on screen.
+func (rw *reviewWindow) showResult(res *analysisResult) {
+	hadDose := rw.scene.Dose != nil
+	rw.result = res
+	if rw.floorEntry.Text == "" || rw.opt.Floor <= 0 {
+		rw.opt.Floor = defaultFloor(res.Threshold)
+	}
+	rw.applyFloor()
+	rw.washBar.set(rw.opt.Floor, washTop(res.Threshold), res.Unit)
+	if rw.selected >= len(res.Sonications) {
+		rw.selected = -1
+	}
+	rw.updateScene()
+	if !hadDose && rw.scene.Anatomy == nil {
+		rw.setViewGrid()
+	}
+	rw.metrics.update()
+	rw.sonTable.Refresh()
+	if rw.pinned != nil {
+		rw.pin(*rw.pinned)
+	}
+	if rw.record != nil {
+		rw.record.Settings = rw.settings
+		if !rw.teaching && rw.loaded != nil {
+			rw.record.CaseDir = rw.loaded.Dir
+			if rw.loaded.Case != nil {
+				rw.record.CaseLabel = rw.loaded.Case.Label
+			}
+		}
+		if err := rw.record.save(); err != nil {
+			rw.status.SetText(err.Error())
+		}
+	}
+}
+
+// updateScene shows the cumulative dose or the selected sonication's.
+func (rw *reviewWindow) updateScene() {
+	r := rw.result
+	if r == nil {
+		return
+	}
+	rw.scene.Dose = r.Dose
+	rw.scene.Threshold = r.Threshold
+	rw.scene.Target, rw.scene.Margin, rw.scene.Avoid = r.Target, r.Margin, r.Avoid3D
+	rw.scene.TargetStructure, rw.scene.AvoidStructures = r.TargetStructure, r.AvoidStructures
+	rw.scene.Holes, rw.scene.Outside = r.Holes3D, r.Outside3D
+	rw.scene.NotMonitored = r.NotMonitored3D
+	rw.selInfo.SetText("Showing the cumulative dose")
+	if rw.selected >= 0 && rw.selected < len(r.SonicationDose) && r.SonicationDose[rw.selected] != nil {
+		row := r.Sonications[rw.selected]
+		rw.scene.Dose = r.SonicationDose[rw.selected]
+		// Holes and spill are properties of the cumulative dose only.
+		rw.scene.Holes, rw.scene.Outside = nil, nil
+		rw.selInfo.SetText(fmt.Sprintf("Showing sonication %d alone", row.Number))
+	}
+	rw.redraw()
+}
+
+// selectSonication shows one sonication's dose (n is a row; -1 cumulative).
+func (rw *reviewWindow) selectSonication(n int) {
+	rw.selected = n
+	if n < 0 {
+		rw.sonTable.UnselectAll()
+	}
+	rw.updateScene()
+}
+
+// setExcluded ticks or unticks sonication number num and re-analyses.
+func (rw *reviewWindow) setExcluded(num int, excluded bool) {
+	ex := rw.settings.excludedSet()
+	if ex[num] == excluded {
+		return
+	}
+	ex[num] = excluded
+	rw.settings.Excluded = rw.settings.Excluded[:0:0]
+	for n, on := range ex {
+		if on {
+			rw.settings.Excluded = append(rw.settings.Excluded, n)
+		}
+	}
+	sortInts(rw.settings.Excluded)
+	rw.runAnalysis(false)
+}
+
+// openSettings shows the settings dialog; thermometry changes recompute
+// temperature, a phase-scale change re-reads the folder.
+func (rw *reviewWindow) openSettings() {
+	showSettingsDialog(rw.win, rw.settings, "", func(s analysisSettings) {
+		old := rw.settings
+		rw.settings = s
+		savePrefSettings(rw.app.Preferences(), s)
+		if rw.loaded == nil {
+			return
+		}
+		switch {
+		case s.PhaseScale != old.PhaseScale:
+			if rw.record != nil {
+				rw.record.Settings = s
+				_ = rw.record.save()
+			}
+			rw.openCase(rw.loaded.Dir)
+		case thermometryChanged(old, s):
+			rw.runAnalysis(true)
+		default:
+			rw.runAnalysis(false)
+		}
+	})
+}
+
+// thermometryChanged reports whether temperature must be recomputed.
+func thermometryChanged(a, b analysisSettings) bool {
+	return a.PRFAlpha != b.PRFAlpha || a.BodyTemp != b.BodyTemp || a.BaselineFrames != b.BaselineFrames ||
+		a.Drift != b.Drift || a.DriftOrder != b.DriftOrder || a.B0 != b.B0 || a.TEms != b.TEms ||
+		a.Model != b.Model || a.CEM43Break != b.CEM43Break || a.CEM43RAbove != b.CEM43RAbove ||
+		a.CEM43RBelow != b.CEM43RBelow || a.ArrheniusA != b.ArrheniusA || a.ArrheniusEa != b.ArrheniusEa
+}
+
+func sortInts(s []int) {
+	for i := 1; i < len(s); i++ {
+		for j := i; j > 0 && s[j] < s[j-1]; j-- {
+			s[j], s[j-1] = s[j-1], s[j]
+		}
+	}
+}

@@ -1,0 +1,441 @@
+//go:build cgo
+
+package main
+
+import (
+	"fmt"
+	"image/color"
+	"math"
+	"strings"
+
+	"dosecover/dosemap"
+	"dosecover/review"
+
+	"fyne.io/fyne/v2"
+	"fyne.io/fyne/v2/canvas"
+	"fyne.io/fyne/v2/container"
+	"fyne.io/fyne/v2/widget"
+)
+
+// Legend entries of the overlays (palette: review/palette.go).
+type swatchStyle int
+
+const (
+	swatchSolid swatchStyle = iota
+	swatchDashed
+	swatchDotted
+	swatchHatched
+	swatchFill
+)
+
+var overlayLegend = []struct {
+	name  string
+	c     color.RGBA
+	style swatchStyle
+}{
+	{"target", review.ColorTarget, swatchSolid},
+	{"margin", review.ColorMargin, swatchDashed},
+	{"lethal isoline", review.ColorLethal, swatchSolid},
+	{"hole", review.ColorHole, swatchHatched},
+	{"lethal outside margin", review.ColorSpill, swatchFill},
+	{"avoid", review.ColorAvoid, swatchDotted},
+	{"not monitored", review.ColorNotMonitored, swatchHatched},
+}
+
+// legendSwatch draws a small sample of an overlay style.
+func legendSwatch(style swatchStyle, c color.RGBA) fyne.CanvasObject {
+	r := canvas.NewRasterWithPixels(func(x, y, w, h int) color.Color {
+		bg := color.RGBA{0x30, 0x30, 0x34, 0xFF}
+		mid := h / 2
+		switch style {
+		case swatchSolid:
+			if y >= mid-1 && y <= mid+1 {
+				return c
+			}
+		case swatchDashed:
+			if y >= mid-1 && y <= mid+1 && (x/5)%2 == 0 {
+				return c
+			}
+		case swatchDotted:
+			if y >= mid-1 && y <= mid+1 && (x/2)%2 == 0 {
+				return c
+			}
+		case swatchHatched:
+			if (x+y)%5 < 2 {
+				return c
+			}
+		case swatchFill:
+			return c
+		}
+		return bg
+	})
+	r.SetMinSize(fyne.NewSize(22, 12))
+	return container.NewCenter(r)
+}
+
+// pin fixes the probe at p and plots its temperature history. The
+// history is computed off the UI goroutine (the first pin of a case
+// computes the temperature of every sonication).
+func (rw *reviewWindow) pin(p dosemap.Vec3) {
+	rw.pinned = &p
+	rw.opt.Marker = &p
+	rw.redraw()
+	if rw.loaded == nil {
+		return
+	}
+	where := fmt.Sprintf("(%.1f, %.1f, %.1f) mm", p[0], p[1], p[2])
+	if rw.sess == nil {
+		rw.probeMsg.SetText("Pinned " + where + ". The temperature history appears once the analysis has run.")
+		return
+	}
+	rw.probeMsg.SetText("Pinned " + where + ": computing its temperature history…")
+	sess, set := rw.sess, rw.settings
+	rw.probeGen++
+	gen := rw.probeGen
+	go func() {
+		c, err := sess.Probe(p, set)
+		fyne.Do(func() {
+			defer rw.completed.Add(1)
+			if gen != rw.probeGen {
+				return
+			}
+			if err != nil {
+				rw.probeMsg.SetText("Pinned " + where + ": " + err.Error())
+				rw.probe.set(nil)
+				return
+			}
+			msg := rw.describePoint(p)
+			if math.IsNaN(c.LethalAt) {
+				msg += fmt.Sprintf(" · did not reach %s %s (final %s)", fmtNum(c.Threshold), c.Unit, fmtDose(c.FinalDose))
+			} else {
+				msg += fmt.Sprintf(" · reached %s %s at %.0f s (final %s)", fmtNum(c.Threshold), c.Unit, c.LethalAt, fmtDose(c.FinalDose))
+			}
+			rw.probeCurve = c
+			rw.probeMsg.SetText(msg)
+			rw.probe.set(func() *plotPlot { return probePlot(c) })
+		})
+	}()
+}
+
+// Sonication table columns.
+var sonColumns = []struct {
+	title string
+	width float32
+}{
+	{"use", 52}, {"no.", 44}, {"time", 90}, {"label", 150}, {"peak °C", 76}, {"lethal added mL", 120},
+	{"coverage added", 116}, {"quality", 360},
+}
+
+func (rw *reviewWindow) newSonicationTable() *widget.Table {
+	t := widget.NewTableWithHeaders(
+		func() (int, int) {
+			if rw.result == nil {
+				return 0, len(sonColumns)
+			}
+			return len(rw.result.Sonications), len(sonColumns)
+		},
+		func() fyne.CanvasObject {
+			l := widget.NewLabel("")
+			l.Truncation = fyne.TextTruncateEllipsis
+			return container.NewStack(widget.NewCheck("", nil), l)
+		},
+		func(id widget.TableCellID, o fyne.CanvasObject) {
+			st := o.(*fyne.Container)
+			chk := st.Objects[0].(*widget.Check)
+			l := st.Objects[1].(*widget.Label)
+			if rw.result == nil || id.Row >= len(rw.result.Sonications) {
+				return
+			}
+			row := rw.result.Sonications[id.Row]
+			if id.Col == 0 {
+				l.Hide()
+				chk.Show()
+				chk.OnChanged = nil
+				chk.SetChecked(!rw.settings.excludedSet()[row.Number])
+				num := row.Number
+				chk.OnChanged = func(on bool) { rw.setExcluded(num, !on) }
+				return
+			}
+			chk.Hide()
+			l.Show()
+			l.Importance = widget.MediumImportance
+			switch id.Col {
+			case 1:
+				l.SetText(fmt.Sprint(row.Number))
+			case 2:
+				l.SetText(fmtClock(row.Offset))
+			case 3:
+				if rw.teaching {
+					l.SetText(fmt.Sprintf("sonication %d", row.Number))
+				} else {
+					l.SetText(row.Label)
+				}
+			case 4:
+				l.SetText(fmtOpt(row.PeakTemp, "%.1f"))
+			case 5:
+				l.SetText(fmtOpt(row.DoseAddedML, "%.2f"))
+			case 6:
+				l.SetText(fmtOpt(100*row.CoverageAdded, "%.1f %%"))
+			case 7:
+				if len(row.Flags) == 0 {
+					l.SetText("no flag")
+				} else {
+					l.Importance = widget.WarningImportance
+					l.SetText(strings.Join(row.Flags, "; "))
+				}
+			}
+		})
+	t.CreateHeader = func() fyne.CanvasObject {
+		return widget.NewLabelWithStyle("", fyne.TextAlignLeading, fyne.TextStyle{Bold: true})
+	}
+	t.UpdateHeader = func(id widget.TableCellID, o fyne.CanvasObject) {
+		l := o.(*widget.Label)
+		if id.Row < 0 && id.Col >= 0 {
+			l.SetText(sonColumns[id.Col].title)
+		} else {
+			l.SetText("")
+		}
+	}
+	t.ShowHeaderColumn = false
+	for n, c := range sonColumns {
+		t.SetColumnWidth(n, c.width)
+	}
+	t.OnSelected = func(id widget.TableCellID) {
+		if id.Row >= 0 && id.Col > 0 {
+			rw.selectSonication(id.Row)
+		}
+	}
+	return t
+}
+
+// fmtClock prints seconds as m:ss.
+func fmtClock(s float64) string {
+	if math.IsNaN(s) {
+		return "—"
+	}
+	m := int(s) / 60
+	return fmt.Sprintf("%d:%02d", m, int(s)-60*m)
+}
+
+func fmtOpt(v float64, f string) string {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return "—"
+	}
+	return fmt.Sprintf(f, v)
+}
+
+// metricsPanel states the facts of the analysis and the thresholds used.
+type metricsPanel struct {
+	rw       *reviewWindow
+	content  fyne.CanvasObject
+	box      *fyne.Container
+	facts    *widget.Label
+	used     *widget.Label
+	holes    *widget.List
+	outside  *widget.List
+	avoid    *widget.Label
+	quality  *widget.Label
+	dvh      *plotView
+	coverage *plotView
+	hint     *widget.Label
+}
+
+func newMetricsPanel(rw *reviewWindow) *metricsPanel {
+	m := &metricsPanel{rw: rw}
+	m.facts = widget.NewLabel("")
+	m.facts.TextStyle.Monospace = true
+	m.used = widget.NewLabel("")
+	m.used.Wrapping = fyne.TextWrapWord
+	m.avoid = widget.NewLabel("")
+	m.avoid.Wrapping = fyne.TextWrapWord
+	m.quality = widget.NewLabel("")
+	m.quality.Wrapping = fyne.TextWrapWord
+	m.hint = widget.NewLabel("Facts measured from the thermometry; the clinician decides what they mean.")
+	m.hint.Wrapping = fyne.TextWrapWord
+	m.hint.Importance = widget.LowImportance
+	regionList := func(get func() []region) *widget.List {
+		l := widget.NewList(
+			func() int { return len(get()) },
+			func() fyne.CanvasObject {
+				head := widget.NewLabelWithStyle("", fyne.TextAlignLeading, fyne.TextStyle{Bold: true})
+				detail := widget.NewLabel("")
+				detail.Truncation = fyne.TextTruncateEllipsis
+				detail.Importance = widget.LowImportance
+				return container.NewVBox(head, detail)
+			},
+			func(id widget.ListItemID, o fyne.CanvasObject) {
+				rs := get()
+				if id >= len(rs) {
+					return
+				}
+				r := rs[id]
+				box := o.(*fyne.Container)
+				box.Objects[0].(*widget.Label).SetText(fmt.Sprintf("%s   %.3f mL   at (%s, %s, %s) mm", r.Label, r.VolumeML,
+					fmtMM(r.Centre[0]), fmtMM(r.Centre[1]), fmtMM(r.Centre[2])))
+				box.Objects[1].(*widget.Label).SetText(r.Detail)
+			})
+		l.OnSelected = func(id widget.ListItemID) {
+			rs := get()
+			if id < len(rs) {
+				rw.jumpTo(rs[id])
+			}
+			l.UnselectAll()
+		}
+		return l
+	}
+	m.holes = regionList(func() []region {
+		if rw.result == nil {
+			return nil
+		}
+		return rw.result.Holes
+	})
+	m.outside = regionList(func() []region {
+		if rw.result == nil {
+			return nil
+		}
+		return rw.result.Outside
+	})
+	m.dvh = newPlotView()
+	m.coverage = newPlotView()
+	bold := func(s string) *widget.Label {
+		return widget.NewLabelWithStyle(s, fyne.TextAlignLeading, fyne.TextStyle{Bold: true})
+	}
+	listBox := func(l *widget.List) fyne.CanvasObject {
+		return container.NewGridWrap(fyne.NewSize(440, 150), l)
+	}
+	m.box = container.NewVBox(
+		bold("Coverage of the target"), m.facts,
+		bold("Holes in the target (click to show)"), listBox(m.holes),
+		bold("Lethal dose outside the margin (click to show)"), listBox(m.outside),
+		bold("Avoid structures"), m.avoid,
+		bold("Thermometry quality"), m.quality,
+		bold("Settings used"), m.used, m.hint,
+	)
+	plots := container.NewAppTabs(
+		container.NewTabItem("Target DVH", m.dvh.raster),
+		container.NewTabItem("Coverage vs threshold", m.coverage.raster),
+	)
+	split := container.NewVSplit(container.NewVScroll(m.box), plots)
+	split.SetOffset(0.58)
+	m.content = split
+	m.update()
+	return m
+}
+
+// update shows the current result.
+func (m *metricsPanel) update() {
+	r := m.rw.result
+	m.used.SetText(m.rw.settings.describe())
+	if r == nil {
+		if m.rw.loaded == nil {
+			m.facts.SetText("No case open.")
+		} else {
+			m.facts.SetText("Not analysed yet.")
+		}
+		m.avoid.SetText("")
+		m.quality.SetText("")
+		m.dvh.set(nil)
+		m.coverage.set(nil)
+		m.holes.Refresh()
+		m.outside.Refresh()
+		m.box.Refresh()
+		return
+	}
+	pct := func(f float64) string { return fmtOpt(100*f, "%.1f %%") }
+	band := "not estimated"
+	if !math.IsNaN(r.CoveredP05) && !math.IsNaN(r.CoveredP95) {
+		band = fmt.Sprintf("%s – %s", pct(r.CoveredP05), pct(r.CoveredP95))
+	}
+	name := r.TargetName
+	if name == "" {
+		name = "target"
+	}
+	lines := []string{
+		fmt.Sprintf("%-24s %s (%.2f mL)", "Target", name, r.TargetML),
+		fmt.Sprintf("%-24s %s", "Covered (≥ threshold)", pct(r.Covered)),
+		fmt.Sprintf("%-24s %s", "  noise band p05–p95", band),
+		fmt.Sprintf("%-24s %s", "Not monitored", pct(r.NotMonitored)),
+		fmt.Sprintf("%-24s %d (%.3f mL)", "Holes", len(r.Holes), sumML(r.Holes)),
+		fmt.Sprintf("%-24s %d (%.3f mL)", "Lethal outside margin", len(r.Outside), r.LethalOutside),
+		fmt.Sprintf("%-24s %s / %s / %s %s", "D98 / D50 / D2", fmtDose(r.D98), fmtDose(r.D50), fmtDose(r.D2), r.Unit),
+		fmt.Sprintf("%-24s %s %s, margin %g mm", "Threshold", fmtNum(r.Threshold), r.Unit, r.MarginMM),
+	}
+	if ex := m.rw.settings.Excluded; len(ex) > 0 {
+		lines = append(lines, fmt.Sprintf("%-24s %v", "Sonications left out", ex))
+	}
+	m.facts.SetText(strings.Join(lines, "\n"))
+	if len(r.Avoid) == 0 {
+		m.avoid.SetText("No avoid structure in this case.")
+	} else {
+		var b []string
+		for _, a := range r.Avoid {
+			b = append(b, fmt.Sprintf("%s: %.3f mL lethal of %.2f mL, highest dose %s %s", a.Name, a.LethalML, a.VolumeML, fmtDose(a.MaxDose), r.Unit))
+		}
+		m.avoid.SetText(strings.Join(b, "\n"))
+	}
+	if len(r.QualityNotes) == 0 {
+		m.quality.SetText("No frame was flagged.")
+	} else {
+		m.quality.SetText(strings.Join(r.QualityNotes, "\n"))
+	}
+	m.dvh.set(func() *plotPlot { return dvhPlot(r) })
+	m.coverage.set(func() *plotPlot { return coveragePlot(r) })
+	m.holes.Refresh()
+	m.outside.Refresh()
+	m.box.Refresh()
+}
+
+// fmtMM prints a coordinate in mm without a negative zero.
+func fmtMM(v float64) string {
+	s := fmt.Sprintf("%.0f", v)
+	if s == "-0" {
+		return "0"
+	}
+	return s
+}
+
+func sumML(rs []region) float64 {
+	var s float64
+	for _, r := range rs {
+		s += r.VolumeML
+	}
+	return s
+}
+
+// jumpTo shows a region in both viewers: its slice, centred.
+func (rw *reviewWindow) jumpTo(r region) {
+	for n, v := range rw.viewers {
+		v.centreOn(r.Centre)
+		rw.sliceChanged(n)
+	}
+	rw.status.SetText(fmt.Sprintf("Showing %s (%.3f mL) at (%.1f, %.1f, %.1f) mm", r.Label, r.VolumeML, r.Centre[0], r.Centre[1], r.Centre[2]))
+}
+
+// washBar shows the dose colourwash scale: floor to ceiling, log scale.
+type washBar struct {
+	content   fyne.CanvasObject
+	lo, hi    *widget.Label
+	floor, to float64
+}
+
+func newWashBar() *washBar {
+	b := &washBar{lo: widget.NewLabel(""), hi: widget.NewLabel("")}
+	bar := canvas.NewRasterWithPixels(func(x, _, w, _ int) color.Color {
+		if b.to <= b.floor || b.floor <= 0 {
+			return color.RGBA{0x30, 0x30, 0x34, 0xFF}
+		}
+		d := b.floor * math.Pow(b.to/b.floor, float64(x)/float64(max(w-1, 1)))
+		return washColour(d, b.floor, b.to)
+	})
+	bar.SetMinSize(fyne.NewSize(140, 12))
+	b.content = container.NewHBox(widget.NewLabel("dose (log)"), b.lo, container.NewCenter(bar), b.hi)
+	return b
+}
+
+// set shows the scale from floor to top in unit.
+func (b *washBar) set(floor, top float64, unit string) {
+	b.floor, b.to = floor, top
+	b.lo.SetText(fmtDose(floor))
+	b.hi.SetText(fmtDose(top) + " " + unit)
+	b.content.Refresh()
+}

@@ -1,0 +1,212 @@
+//go:build cgo
+
+package main
+
+import (
+	"context"
+	"crypto/sha256"
+	"encoding/hex"
+	"math"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+	"time"
+
+	"dosecover/dosemap"
+
+	"fyne.io/fyne/v2/test"
+)
+
+func TestSettingsValidate(t *testing.T) {
+	ok := defaultSettings()
+	if err := ok.validate(); err != nil {
+		t.Fatalf("built-in defaults rejected: %v", err)
+	}
+	for _, c := range []struct {
+		name   string
+		change func(*analysisSettings)
+		want   string // part of the error message
+	}{
+		{"zero threshold", func(s *analysisSettings) { s.Threshold = 0 }, "threshold"},
+		{"NaN threshold", func(s *analysisSettings) { s.Threshold = math.NaN() }, "threshold"},
+		{"negative margin", func(s *analysisSettings) { s.MarginMM = -1 }, "margin"},
+		{"unknown model", func(s *analysisSettings) { s.Model = "linear" }, "model"},
+		{"positive PRF alpha", func(s *analysisSettings) { s.PRFAlpha = 0.01 }, "PRF"},
+		{"no baseline", func(s *analysisSettings) { s.BaselineFrames = 0 }, "baseline"},
+		{"bad drift", func(s *analysisSettings) { s.Drift = "spline" }, "drift"},
+		{"drift order", func(s *analysisSettings) { s.Drift, s.DriftOrder = "polynomial", 9 }, "order"},
+		{"arrhenius without A", func(s *analysisSettings) { s.Model, s.ArrheniusA, s.ArrheniusEa = "arrhenius", 0, 1 }, "frequency factor"},
+		{"B0 too high", func(s *analysisSettings) { s.B0 = 30 }, "B0"},
+		{"R below", func(s *analysisSettings) { s.CEM43RBelow = 0 }, "below"},
+	} {
+		s := defaultSettings()
+		c.change(&s)
+		err := s.validate()
+		if err == nil || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("%s: got %v, want an error mentioning %q", c.name, err, c.want)
+		}
+	}
+}
+
+func TestSettingsPreferencesKeepDefaultsNotExclusions(t *testing.T) {
+	a := test.NewTempApp(t)
+	s := defaultSettings()
+	s.Threshold, s.MarginMM, s.Excluded = 100, 3, []int{2}
+	savePrefSettings(a.Preferences(), s)
+	got := loadPrefSettings(a.Preferences())
+	if got.Threshold != 100 || got.MarginMM != 3 {
+		t.Errorf("saved threshold/margin not restored: %+v", got)
+	}
+	if len(got.Excluded) != 0 {
+		t.Errorf("exclusions belong to one case but were kept as defaults: %v", got.Excluded)
+	}
+	a.Preferences().SetString(prefSettings, `{"threshold": -5}`)
+	if got := loadPrefSettings(a.Preferences()); got.Threshold != defaultSettings().Threshold {
+		t.Errorf("invalid saved settings were used: %+v", got)
+	}
+}
+
+func TestHashInputs(t *testing.T) {
+	dir := t.TempDir()
+	if err := os.WriteFile(filepath.Join(dir, "a.dcm"), []byte("abc"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	h1, n, err := hashInputs(context.Background(), dir)
+	if err != nil || n != 1 {
+		t.Fatalf("hashInputs: %v, %d files", err, n)
+	}
+	// SHA-256("abc") from FIPS 180-2, Appendix B.1; the outer hash is over
+	// "path NUL hex newline" as documented on hashInputs.
+	const abc = "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad"
+	outer := sha256.Sum256([]byte("a.dcm\x00" + abc + "\n"))
+	if want := hex.EncodeToString(outer[:]); h1 != want {
+		t.Errorf("hash %s, want %s", h1, want)
+	}
+	// The same content in another folder gives the same hash; a changed
+	// byte or a new file changes it.
+	dir2 := t.TempDir()
+	os.WriteFile(filepath.Join(dir2, "a.dcm"), []byte("abc"), 0o644)
+	if h, _, _ := hashInputs(context.Background(), dir2); h != h1 {
+		t.Errorf("copy of the folder hashes differently: %s vs %s", h, h1)
+	}
+	os.WriteFile(filepath.Join(dir2, "a.dcm"), []byte("abd"), 0o644)
+	if h, _, _ := hashInputs(context.Background(), dir2); h == h1 {
+		t.Error("changed file content left the hash unchanged")
+	}
+	os.MkdirAll(filepath.Join(dir, "sub"), 0o755)
+	os.WriteFile(filepath.Join(dir, "sub", "b.dcm"), []byte{}, 0o644)
+	if h, n, _ := hashInputs(context.Background(), dir); h == h1 || n != 2 {
+		t.Errorf("added file: hash unchanged or %d files", n)
+	}
+	ctx, cancel := context.WithCancel(context.Background())
+	cancel()
+	if _, _, err := hashInputs(ctx, dir); err == nil {
+		t.Error("cancelled hashing did not fail")
+	}
+}
+
+func TestReviewRecordRoundTripOutsideInput(t *testing.T) {
+	store := t.TempDir()
+	reviewsDir = func() (string, error) { return store, nil }
+	input := t.TempDir()
+	os.WriteFile(filepath.Join(input, "x.dcm"), []byte("data"), 0o644)
+	hash, n, err := hashInputs(context.Background(), input)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if r, err := loadRecord(hash); r != nil || err != nil {
+		t.Fatalf("record before any save: %v, %v", r, err)
+	}
+	rec := &reviewRecord{InputHash: hash, Files: n, Settings: defaultSettings()}
+	at := time.Date(2026, 3, 4, 5, 6, 7, 0, time.UTC)
+	rec.SignOffs = append(rec.SignOffs, signOff{Reviewer: "Dr. Example", Comment: "ok", Time: at, InputHash: hash})
+	if err := rec.save(); err != nil {
+		t.Fatal(err)
+	}
+	got, err := loadRecord(hash)
+	if err != nil || got == nil {
+		t.Fatalf("loadRecord: %v", err)
+	}
+	if len(got.SignOffs) != 1 || got.SignOffs[0].Reviewer != "Dr. Example" || !got.SignOffs[0].Time.Equal(at) {
+		t.Errorf("sign-off not kept: %+v", got.SignOffs)
+	}
+	ents, _ := os.ReadDir(input)
+	if len(ents) != 1 {
+		t.Errorf("the input folder was written to: %d entries", len(ents))
+	}
+	if h, _, _ := hashInputs(context.Background(), input); h != hash {
+		t.Error("input hash changed after saving the record")
+	}
+}
+
+func TestOrientationLetters(t *testing.T) {
+	// DICOM PS3.3 C.7.6.1.1.1: +x is the patient's left (L), +y posterior
+	// (P), +z head (shown as S, superior, common practice).
+	for _, c := range []struct {
+		d    dosemap.Vec3
+		want string
+	}{
+		{dosemap.Vec3{1, 0, 0}, "L"}, {dosemap.Vec3{-1, 0, 0}, "R"},
+		{dosemap.Vec3{0, 1, 0}, "P"}, {dosemap.Vec3{0, -1, 0}, "A"},
+		{dosemap.Vec3{0, 0, 1}, "S"}, {dosemap.Vec3{0, 0, -1}, "I"},
+		{dosemap.Vec3{0.8, 0.6, 0}, "L"}, {dosemap.Vec3{0.2, -0.3, 0.9}, "S"},
+	} {
+		if got := orientationLetter(c.d); got != c.want {
+			t.Errorf("orientationLetter(%v) = %s, want %s", c.d, got, c.want)
+		}
+	}
+}
+
+func TestViewTransformRoundTrip(t *testing.T) {
+	g := dosemap.NewAxialGeometry(64, 48, 10, dosemap.Vec3{0.8, 0.8, 2.5}, dosemap.Vec3{-25, -19, -11})
+	for _, k := range []planeKind{planeAcquisition, planeReformatRow, planeReformatCol} {
+		u, v, n, _, _, _, _ := planeAxes(g, k)
+		if math.Abs(u.Dot(v)) > 1e-12 || math.Abs(u.Dot(n)) > 1e-12 || math.Abs(v.Dot(n)) > 1e-12 {
+			t.Errorf("%v: axes not orthogonal", k)
+		}
+		tr := viewTransform{Centre: gridCentre(g), U: u, V: v, MMPerPixel: 0.37, W: 300, H: 200}
+		for _, px := range [][2]float64{{0, 0}, {150, 100}, {299.5, 12.25}} {
+			x, y := tr.Pixel(tr.At(px[0], px[1]))
+			if math.Abs(x-px[0]) > 1e-9 || math.Abs(y-px[1]) > 1e-9 {
+				t.Errorf("%v: pixel %v -> %v, %v", k, px, x, y)
+			}
+		}
+	}
+	// Axial acquisition plane: image right is patient left, image down is
+	// posterior (the radiological presentation, common practice).
+	u, v, _, _, _, _, _ := planeAxes(g, planeAcquisition)
+	if orientationLetter(u) != "L" || orientationLetter(v) != "P" {
+		t.Errorf("axial plane shows %s right and %s down", orientationLetter(u), orientationLetter(v))
+	}
+	// Reformats of an axial stack put the patient's head at the top.
+	for _, k := range []planeKind{planeReformatRow, planeReformatCol} {
+		_, v, _, _, _, _, _ := planeAxes(g, k)
+		if orientationLetter(v.Scale(-1)) != "S" {
+			t.Errorf("%v: top of the image is %s, want S", k, orientationLetter(v.Scale(-1)))
+		}
+	}
+}
+
+func TestDoseWashOrderedAndTransparentBelowFloor(t *testing.T) {
+	if _, ok := doseWash(0.5, 1, 100); ok {
+		t.Error("dose below the floor is drawn")
+	}
+	if _, ok := doseWash(math.NaN(), 1, 100); ok {
+		t.Error("NaN dose (not monitored) is drawn")
+	}
+	// Relative luminance (ITU-R BT.709 weights) must rise with dose so the
+	// wash reads in order without hue.
+	prev := -1.0
+	for _, d := range []float64{1, 3, 10, 30, 100, 1000} {
+		c, ok := doseWash(d, 1, 100)
+		if !ok {
+			t.Fatalf("dose %g not drawn", d)
+		}
+		l := 0.2126*float64(c.R) + 0.7152*float64(c.G) + 0.0722*float64(c.B)
+		if l < prev {
+			t.Errorf("luminance falls at dose %g: %.1f < %.1f", d, l, prev)
+		}
+		prev = l
+	}
+}

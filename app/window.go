@@ -1,0 +1,511 @@
+//go:build cgo
+
+package main
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"path/filepath"
+	"sort"
+	"strings"
+	"sync/atomic"
+
+	"dosecover/dosemap"
+
+	"fyne.io/fyne/v2"
+	"fyne.io/fyne/v2/container"
+	"fyne.io/fyne/v2/dialog"
+	"fyne.io/fyne/v2/theme"
+	"fyne.io/fyne/v2/widget"
+)
+
+// reviewWindow is the review window of one case at a time.
+type reviewWindow struct {
+	app fyne.App
+	win fyne.Window
+
+	// Case state; touched only on the UI goroutine.
+	loaded     *loadedCase
+	hash       string
+	nFiles     int
+	record     *reviewRecord
+	settings   analysisSettings
+	sess       session
+	result     *analysisResult
+	selected   int // sonication row shown alone; -1 for the cumulative dose
+	pinned     *dosemap.Vec3
+	teaching   bool
+	scene      sceneLayers
+	opt        displayOptions
+	jobCancel  context.CancelFunc
+	jobGen     int
+	probeGen   int
+	probeCurve *probeCurve
+	active     *sliceViewer
+
+	// completed counts finished background jobs (loads and analyses, with
+	// or without error); tests wait on it.
+	completed atomic.Int64
+
+	viewers   [2]*sliceViewer
+	sliders   [2]*widget.Slider
+	sliceInfo [2]*widget.Label
+	planeSel  [2]*widget.Select
+
+	title      *widget.Label
+	identity   *widget.Label
+	hover      *widget.Label
+	status     *widget.Label
+	progress   *widget.ProgressBar
+	cancelBtn  *widget.Button
+	notice     *widget.Label // shown over the viewers when there is nothing to show
+	teachCheck *widget.Check
+	selInfo    *widget.Label
+	opacity    *widget.Slider
+	floorEntry *widget.Entry
+
+	washBar  *washBar
+	metrics  *metricsPanel
+	sonTable *widget.Table
+	probe    *plotView
+	probeMsg *widget.Label
+	loadInfo *widget.Label
+}
+
+const (
+	prefRecent   = "recent.v1"
+	prefTeaching = "teaching"
+	prefReviewer = "reviewer"
+	prefOpacity  = "opacity"
+)
+
+func newReviewWindow(a fyne.App) *reviewWindow {
+	rw := &reviewWindow{app: a, selected: -1}
+	rw.win = a.NewWindow("dosecover")
+	rw.settings = loadPrefSettings(a.Preferences())
+	rw.teaching = a.Preferences().Bool(prefTeaching)
+	rw.opt = displayOptions{WindowCentre: 500, WindowWidth: 1000, Opacity: a.Preferences().FloatWithFallback(prefOpacity, 0.55),
+		ShowDose: true, ShowContours: true, ShowHoles: true}
+	rw.build()
+	rw.win.SetMainMenu(rw.mainMenu())
+	rw.win.SetOnDropped(rw.dropped)
+	rw.win.Canvas().SetOnTypedKey(rw.typedKey)
+	rw.win.Canvas().SetOnTypedRune(func(r rune) {
+		if rw.active != nil {
+			rw.active.TypedRune(r)
+		}
+	})
+	rw.updateTitle()
+	return rw
+}
+
+func (rw *reviewWindow) build() {
+	rw.title = widget.NewLabelWithStyle("No case open", fyne.TextAlignLeading, fyne.TextStyle{Bold: true})
+	rw.identity = widget.NewLabel("")
+	rw.hover = widget.NewLabel("Hover over an image to read position, anatomy, temperature and dose.")
+	rw.hover.Truncation = fyne.TextTruncateEllipsis
+	rw.status = widget.NewLabel("")
+	rw.status.Truncation = fyne.TextTruncateEllipsis
+	rw.progress = widget.NewProgressBar()
+	rw.progress.Hide()
+	rw.cancelBtn = widget.NewButtonWithIcon("Cancel", theme.CancelIcon(), rw.cancelJob)
+	rw.cancelBtn.Hide()
+	rw.notice = widget.NewLabel("")
+	rw.notice.Wrapping = fyne.TextWrapWord
+	rw.notice.Alignment = fyne.TextAlignCenter
+
+	for n, kind := range []planeKind{planeAcquisition, planeReformatRow} {
+		n := n
+		v := newSliceViewer(kind, &rw.opt)
+		rw.viewers[n] = v
+		rw.sliceInfo[n] = widget.NewLabel("")
+		s := widget.NewSlider(0, 1)
+		s.Step = 1
+		s.OnChanged = func(f float64) { v.setSlice(int(f)) }
+		rw.sliders[n] = s
+		v.onSlice = func(k int) { rw.sliceChanged(n) }
+		v.onHover = rw.hovered
+		v.onPin = rw.pin
+		v.onWindow = rw.redraw
+		v.onFocus = func(v *sliceViewer) { rw.active = v }
+		sel := widget.NewSelect([]string{planeAcquisition.String(), planeReformatRow.String(), planeReformatCol.String()}, nil)
+		sel.SetSelectedIndex(int(kind))
+		sel.OnChanged = func(string) { v.setKind(planeKind(sel.SelectedIndex())) }
+		rw.planeSel[n] = sel
+	}
+	rw.active = rw.viewers[0]
+
+	viewPane := func(n int) fyne.CanvasObject {
+		head := container.NewBorder(nil, nil, container.NewGridWrap(fyne.NewSize(250, 36), rw.planeSel[n]),
+			container.NewGridWrap(fyne.NewSize(130, 36), rw.sliceInfo[n]))
+		return container.NewBorder(head, rw.sliders[n], nil, nil, rw.viewers[n])
+	}
+	views := container.NewStack(container.NewGridWithColumns(2, viewPane(0), viewPane(1)),
+		container.NewCenter(container.NewGridWrap(fyne.NewSize(560, 110), rw.notice)))
+
+	rw.washBar = newWashBar()
+	rw.opacity = widget.NewSlider(0, 1)
+	rw.opacity.Step = 0.05
+	rw.opacity.Value = rw.opt.Opacity
+	rw.opacity.OnChanged = func(f float64) {
+		rw.opt.Opacity = f
+		rw.app.Preferences().SetFloat(prefOpacity, f)
+		rw.redraw()
+	}
+	rw.floorEntry = widget.NewEntry()
+	rw.floorEntry.SetPlaceHolder("auto")
+	rw.floorEntry.OnSubmitted = func(string) { rw.applyFloor() }
+	rw.floorEntry.OnChanged = func(string) { rw.applyFloor() }
+	showDose := widget.NewCheck("Dose", func(b bool) { rw.opt.ShowDose = b; rw.redraw() })
+	showDose.SetChecked(true)
+	showCont := widget.NewCheck("Contours", func(b bool) { rw.opt.ShowContours = b; rw.redraw() })
+	showCont.SetChecked(true)
+	showHoles := widget.NewCheck("Holes & spill", func(b bool) { rw.opt.ShowHoles = b; rw.redraw() })
+	showHoles.SetChecked(true)
+	resetWL := widget.NewButton("Reset window", rw.resetWindow)
+	zoomIn := widget.NewButtonWithIcon("", theme.ZoomInIcon(), func() { rw.active.zoomBy(1.25) })
+	zoomOut := widget.NewButtonWithIcon("", theme.ZoomOutIcon(), func() { rw.active.zoomBy(0.8) })
+	zoomFit := widget.NewButtonWithIcon("", theme.ZoomFitIcon(), func() {
+		for _, v := range rw.viewers {
+			v.resetView()
+		}
+	})
+	rw.selInfo = widget.NewLabel("Showing the cumulative dose")
+	cumul := widget.NewButton("Cumulative", func() { rw.selectSonication(-1) })
+	display := container.NewHBox(
+		widget.NewLabel("Wash opacity"), container.NewGridWrap(fyne.NewSize(120, 36), rw.opacity),
+		widget.NewLabel("Floor"), container.NewGridWrap(fyne.NewSize(80, 36), rw.floorEntry),
+		showDose, showCont, showHoles, resetWL, zoomOut, zoomIn, zoomFit,
+		widget.NewSeparator(), rw.washBar.content,
+	)
+	legend := legendRow()
+
+	rw.sonTable = rw.newSonicationTable()
+	rw.probe = newPlotView()
+	rw.probeMsg = widget.NewLabel("Click a point on an image to pin it and plot its temperature over the session.")
+	rw.probeMsg.Wrapping = fyne.TextWrapWord
+	rw.loadInfo = widget.NewLabel("")
+	rw.loadInfo.Wrapping = fyne.TextWrapWord
+	rw.loadInfo.TextStyle.Monospace = true
+	bottom := container.NewAppTabs(
+		container.NewTabItem("Sonications", container.NewBorder(
+			container.NewHBox(rw.selInfo, cumul, widget.NewLabel("· untick a sonication to re-analyse without it; select a row to show its dose alone")),
+			nil, nil, nil, rw.sonTable)),
+		container.NewTabItem("Pinned point", container.NewBorder(rw.probeMsg, nil, nil, nil, rw.probe.raster)),
+		container.NewTabItem("Folder and skipped files", container.NewVScroll(rw.loadInfo)),
+	)
+	left := container.NewVSplit(
+		container.NewBorder(nil, container.NewVBox(display, legend), nil, nil, views),
+		bottom)
+	left.SetOffset(0.62)
+
+	rw.metrics = newMetricsPanel(rw)
+	main := container.NewHSplit(left, rw.metrics.content)
+	main.SetOffset(0.70)
+
+	rw.teachCheck = widget.NewCheck("Teaching mode (hide identity)", rw.setTeaching)
+	rw.teachCheck.SetChecked(rw.teaching)
+	toolbar := container.NewHBox(
+		widget.NewButtonWithIcon("Open folder…", theme.FolderOpenIcon(), rw.chooseFolder),
+		widget.NewButtonWithIcon("Recent", theme.HistoryIcon(), rw.showRecentMenu),
+		widget.NewButtonWithIcon("Settings…", theme.SettingsIcon(), rw.openSettings),
+		widget.NewButtonWithIcon("Sign off…", theme.ConfirmIcon(), rw.signOff),
+		rw.teachCheck,
+	)
+	header := container.NewBorder(nil, nil, toolbar,
+		container.NewHBox(widget.NewButtonWithIcon("", theme.HelpIcon(), rw.showShortcuts),
+			widget.NewButtonWithIcon("", theme.InfoIcon(), rw.showAbout)),
+		container.NewHBox(widget.NewSeparator(), rw.title, rw.identity))
+	statusBar := container.NewBorder(nil, nil, nil,
+		container.NewHBox(container.NewGridWrap(fyne.NewSize(220, 30), rw.progress), rw.cancelBtn),
+		container.NewGridWithColumns(2, rw.hover, rw.status))
+	rw.win.SetContent(container.NewBorder(header, statusBar, nil, nil, main))
+	rw.showNotice("Open a case folder (File ▸ Open folder…, or drop a folder on this window).")
+}
+
+// legendRow explains the overlay colours and line styles.
+func legendRow() fyne.CanvasObject {
+	items := []fyne.CanvasObject{}
+	for _, l := range overlayLegend {
+		items = append(items, legendSwatch(l.style, l.c), widget.NewLabel(l.name))
+	}
+	return container.NewHBox(items...)
+}
+
+func (rw *reviewWindow) mainMenu() *fyne.MainMenu {
+	recent := fyne.NewMenuItem("Recent cases", nil)
+	recent.ChildMenu = fyne.NewMenu("")
+	file := fyne.NewMenu("File",
+		fyne.NewMenuItem("Open folder…", rw.chooseFolder),
+		fyne.NewMenuItem("Open the demo case", func() { rw.openDemo() }),
+		recent,
+	)
+	rw.fillRecentMenu(recent.ChildMenu)
+	review := fyne.NewMenu("Review",
+		fyne.NewMenuItem("Analysis settings…", rw.openSettings),
+		fyne.NewMenuItem("Sign off…", rw.signOff),
+	)
+	help := fyne.NewMenu("Help",
+		fyne.NewMenuItem("Keyboard and mouse", rw.showShortcuts),
+		fyne.NewMenuItem("About dosecover", rw.showAbout),
+	)
+	return fyne.NewMainMenu(file, review, help)
+}
+
+// showNotice shows text over the viewers; empty hides it.
+func (rw *reviewWindow) showNotice(text string) {
+	rw.notice.SetText(text)
+	if text == "" {
+		rw.notice.Hide()
+	} else {
+		rw.notice.Show()
+	}
+}
+
+// updateTitle sets the window title and the case header. In teaching mode
+// no identifying attribute appears anywhere.
+func (rw *reviewWindow) updateTitle() {
+	name := rw.caseName()
+	if name == "" {
+		rw.win.SetTitle("dosecover " + version)
+		rw.title.SetText("No case open")
+		rw.identity.SetText("")
+		return
+	}
+	rw.win.SetTitle(name + " — dosecover " + version)
+	rw.title.SetText(name)
+	id := ""
+	if !rw.teaching && rw.loaded != nil && rw.loaded.Case != nil {
+		p := rw.loaded.Case.Patient
+		var parts []string
+		for _, f := range []struct{ k, v string }{{"", p.Name}, {"ID ", p.ID}, {"born ", p.BirthDate}, {"study ", p.StudyDate}, {"", p.Institution}} {
+			if f.v != "" {
+				parts = append(parts, f.k+f.v)
+			}
+		}
+		id = strings.Join(parts, " · ")
+	} else if rw.teaching {
+		id = "teaching mode: identity hidden"
+	}
+	rw.identity.SetText(id)
+}
+
+// caseName is the display name of the open case: in teaching mode a
+// neutral name made from the input hash.
+func (rw *reviewWindow) caseName() string {
+	if rw.loaded == nil {
+		return ""
+	}
+	if rw.teaching {
+		if len(rw.hash) >= 8 {
+			return "Case " + rw.hash[:8]
+		}
+		return "Case"
+	}
+	if rw.loaded.Case != nil && rw.loaded.Case.Label != "" {
+		return rw.loaded.Case.Label
+	}
+	return filepath.Base(rw.loaded.Dir)
+}
+
+func (rw *reviewWindow) setTeaching(on bool) {
+	rw.teaching = on
+	rw.app.Preferences().SetBool(prefTeaching, on)
+	rw.updateTitle()
+	rw.showLoadInfo()
+	rw.metrics.update()
+}
+
+// displayPath returns p for display: relative to the case folder in
+// teaching mode, so folder names cannot reveal identity.
+func (rw *reviewWindow) displayPath(p string) string {
+	if rw.loaded != nil {
+		if rel, err := filepath.Rel(rw.loaded.Dir, p); err == nil && !strings.HasPrefix(rel, "..") {
+			if rw.teaching {
+				return rel
+			}
+		}
+	}
+	if rw.teaching {
+		return filepath.Base(p)
+	}
+	return p
+}
+
+// redraw repaints both viewers.
+func (rw *reviewWindow) redraw() {
+	for _, v := range rw.viewers {
+		v.raster.Refresh()
+	}
+}
+
+func (rw *reviewWindow) sliceChanged(n int) {
+	v := rw.viewers[n]
+	total := v.slices()
+	s := rw.sliders[n]
+	s.Max = math.Max(1, float64(total-1))
+	s.Value = float64(v.slice)
+	s.Refresh()
+	if total > 0 {
+		rw.sliceInfo[n].SetText(fmt.Sprintf("slice %d / %d", v.slice+1, total))
+	} else {
+		rw.sliceInfo[n].SetText("")
+	}
+}
+
+func (rw *reviewWindow) typedKey(ev *fyne.KeyEvent) {
+	if rw.active != nil {
+		rw.active.TypedKey(ev)
+	}
+}
+
+func (rw *reviewWindow) resetWindow() {
+	if rw.loaded == nil || rw.loaded.Case == nil {
+		return
+	}
+	rw.opt.WindowCentre, rw.opt.WindowWidth = defaultWindow(rw.loaded.Case)
+	rw.redraw()
+}
+
+func (rw *reviewWindow) applyFloor() {
+	if rw.result == nil {
+		return
+	}
+	var f float64
+	if err := parseFloatField("floor", rw.floorEntry.Text, &f); err != nil || f <= 0 {
+		f = defaultFloor(rw.result.Threshold)
+	}
+	if top := washTop(rw.result.Threshold); f >= top/2 {
+		f = top / 2
+	}
+	rw.opt.Floor = f
+	rw.washBar.set(f, washTop(rw.result.Threshold), rw.result.Unit)
+	rw.redraw()
+}
+
+// defaultFloor is the dose below which the wash is transparent: a
+// hundredth of the threshold.
+func defaultFloor(threshold float64) float64 { return threshold / 100 }
+
+// defaultWindow returns the display window of the anatomy: the files'
+// window tags, else the 1st–99th percentile of the voxel values.
+func defaultWindow(c *dosemap.Case) (centre, width float64) {
+	if c.WindowWidth > 0 {
+		return c.WindowCenter, c.WindowWidth
+	}
+	if c.Anatomy == nil || len(c.Anatomy.Data) == 0 {
+		return 500, 1000
+	}
+	step := max(1, len(c.Anatomy.Data)/200000)
+	var vals []float64
+	for n := 0; n < len(c.Anatomy.Data); n += step {
+		if v := c.Anatomy.Data[n]; v == v {
+			vals = append(vals, float64(v))
+		}
+	}
+	if len(vals) == 0 {
+		return 500, 1000
+	}
+	sort.Float64s(vals)
+	lo, hi := vals[len(vals)/100], vals[len(vals)*99/100]
+	if hi <= lo {
+		hi = lo + 1
+	}
+	return (lo + hi) / 2, hi - lo
+}
+
+// hovered shows the values under the pointer.
+func (rw *reviewWindow) hovered(p dosemap.Vec3, inside bool) {
+	if !inside || rw.loaded == nil {
+		rw.hover.SetText("")
+		return
+	}
+	rw.hover.SetText(rw.describePoint(p))
+}
+
+// describePoint returns position, anatomy value, peak temperature and dose
+// at p.
+func (rw *reviewWindow) describePoint(p dosemap.Vec3) string {
+	s := fmt.Sprintf("(%.1f, %.1f, %.1f) mm", p[0], p[1], p[2])
+	c := rw.loaded.Case
+	if c != nil && c.Anatomy != nil {
+		if v := c.Anatomy.Sample(p); v == v {
+			s += fmt.Sprintf(" · anatomy %.0f", v)
+		}
+	}
+	if r := rw.result; r != nil {
+		if r.PeakTemp != nil {
+			if v := r.PeakTemp.Sample(p); v == v {
+				s += fmt.Sprintf(" · peak %.1f °C", v)
+			} else {
+				s += " · temperature not monitored"
+			}
+		}
+		if rw.scene.Dose != nil {
+			if v := rw.scene.Dose.Sample(p); v == v {
+				s += fmt.Sprintf(" · dose %s %s", fmtDose(float64(v)), r.Unit)
+			}
+		}
+	}
+	return s
+}
+
+// fmtDose prints a dose with sensible precision over many decades.
+func fmtDose(d float64) string {
+	switch {
+	case d >= 1e5:
+		return fmt.Sprintf("%.2g", d)
+	case d >= 10:
+		return fmt.Sprintf("%.0f", d)
+	case d >= 0.01:
+		return fmt.Sprintf("%.2f", d)
+	}
+	return fmt.Sprintf("%.1g", d)
+}
+
+// setBusy shows the progress bar and the cancel button while a job runs.
+func (rw *reviewWindow) setBusy(text string, frac float64) {
+	rw.status.SetText(text)
+	if frac < 0 {
+		rw.progress.Hide()
+		rw.cancelBtn.Hide()
+		return
+	}
+	rw.progress.SetValue(frac)
+	rw.progress.Show()
+	rw.cancelBtn.Show()
+}
+
+func (rw *reviewWindow) cancelJob() {
+	if rw.jobCancel != nil {
+		rw.jobCancel()
+		rw.jobCancel = nil
+	}
+}
+
+// startJob cancels any running job and returns the context and generation
+// of a new one.
+func (rw *reviewWindow) startJob() (context.Context, int) {
+	rw.cancelJob()
+	ctx, cancel := context.WithCancel(context.Background())
+	rw.jobCancel = cancel
+	rw.jobGen++
+	return ctx, rw.jobGen
+}
+
+// finishJob ends job gen; it reports false for a superseded job, whose
+// result must be dropped.
+func (rw *reviewWindow) finishJob(gen int) bool {
+	defer rw.completed.Add(1)
+	if gen != rw.jobGen {
+		return false
+	}
+	rw.jobCancel = nil
+	return true
+}
+
+func (rw *reviewWindow) showError(title string, err error) {
+	rw.setBusy(title+": "+err.Error(), -1)
+	dialog.ShowError(fmt.Errorf("%s\n\n%w", title, err), rw.win)
+}

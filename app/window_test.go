@@ -1,0 +1,297 @@
+//go:build cgo
+
+package main
+
+import (
+	"image"
+	"image/png"
+	"math"
+	"os"
+	"path/filepath"
+	"sort"
+	"strings"
+	"testing"
+
+	"dosecover/dosemap"
+
+	"fyne.io/fyne/v2"
+	"fyne.io/fyne/v2/test"
+	"fyne.io/fyne/v2/widget"
+)
+
+func TestOpenShowsMetrics(t *testing.T) {
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	r := rw.result
+	// Sonications 1 and 2 (peak 3000 CEM43, sigma 5 mm) cover the 10 mm
+	// sphere: the weakest target point, (0, ±10, 0), receives
+	// 2·3000·exp(-(25+100)/50) = 492 CEM43 ≥ 240 (computed).
+	if r.Covered < 0.999 {
+		t.Errorf("covered fraction %.4f, want 1 (every target point gets ≥ 492 CEM43)", r.Covered)
+	}
+	// Target volume: a 10 mm sphere, 4/3·π·1000 mm³ = 4.19 mL; the slab
+	// model of 2 mm slices approximates it within 5 % (tolerance for the
+	// slice discretisation).
+	if want := 4.0 / 3 * math.Pi * 1000 / 1000; math.Abs(r.TargetML-want) > 0.05*want {
+		t.Errorf("target volume %.3f mL, want %.3f ± 5 %%", r.TargetML, want)
+	}
+	facts := rw.metrics.facts.Text
+	for _, want := range []string{"PTV phantom", "Covered", "100.0 %", "Holes", "Lethal outside margin", "240 CEM43 min, margin 3 mm"} {
+		if !strings.Contains(facts, want) {
+			t.Errorf("metrics panel lacks %q:\n%s", want, facts)
+		}
+	}
+	if len(r.Outside) == 0 {
+		t.Error("sonication 3, 16 mm posterior, left no lethal cluster outside the margin")
+	}
+	if rows, _ := rw.sonTable.Length(); rows != 3 {
+		t.Errorf("sonication table has %d rows, want 3", rows)
+	}
+	if !strings.Contains(rw.win.Title(), "Synthetic phantom") {
+		t.Errorf("title %q lacks the case label", rw.win.Title())
+	}
+	if !strings.Contains(rw.identity.Text, "PHANTOM^TEST") {
+		t.Errorf("identity line %q lacks the patient name", rw.identity.Text)
+	}
+	// Hovering the target centre reads the dose there: 2·3000·exp(-25/50)
+	// = 3639 CEM43 (computed), within 10 % for trilinear sampling of a
+	// 2 mm grid.
+	s := rw.describePoint(dosemap.Vec3{0, 0, 0})
+	if !strings.Contains(s, "dose") || !strings.Contains(s, "anatomy") {
+		t.Errorf("hover text %q lacks anatomy or dose", s)
+	}
+	if d := float64(rw.scene.Dose.Sample(dosemap.Vec3{0, 0, 0})); math.Abs(d-3639) > 364 {
+		t.Errorf("dose at the centre %.0f, want 3639 ± 10 %%", d)
+	}
+}
+
+// checksOf returns the check boxes drawn in the table, top to bottom.
+func checksOf(tb *widget.Table) []*widget.Check {
+	var out []*widget.Check
+	var walk func(o fyne.CanvasObject)
+	walk = func(o fyne.CanvasObject) {
+		if !o.Visible() {
+			return
+		}
+		if c, ok := o.(*widget.Check); ok {
+			out = append(out, c)
+			return
+		}
+		switch w := o.(type) {
+		case *fyne.Container:
+			for _, ch := range w.Objects {
+				walk(ch)
+			}
+		case fyne.Widget:
+			r := test.WidgetRenderer(w)
+			r.Refresh() // the table creates its visible cells on refresh
+			for _, ch := range r.Objects() {
+				walk(ch)
+			}
+		}
+	}
+	walk(tb)
+	sort.SliceStable(out, func(i, j int) bool {
+		return fyne.CurrentApp().Driver().AbsolutePositionForObject(out[i]).Y < fyne.CurrentApp().Driver().AbsolutePositionForObject(out[j]).Y
+	})
+	return out
+}
+
+func TestUntickSonicationChangesCoverage(t *testing.T) {
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	before := rw.result
+	var addedBy1 float64
+	for _, s := range before.Sonications {
+		if s.Number == 1 {
+			addedBy1 = s.CoverageAdded
+		}
+	}
+	checks := checksOf(rw.sonTable)
+	if len(checks) != 3 {
+		t.Fatalf("found %d check boxes in the sonication table, want 3", len(checks))
+	}
+	mark := rw.completed.Load()
+	test.Tap(checks[1]) // untick sonication 2
+	waitJobs(t, rw, mark, 1)
+	after := rw.result
+	if got := rw.settings.Excluded; len(got) != 1 || got[0] != 2 {
+		t.Fatalf("excluded sonications %v, want [2]", got)
+	}
+	if !(after.Covered < before.Covered-0.1) {
+		t.Errorf("coverage %.3f -> %.3f: leaving out sonication 2 should uncover the right half", before.Covered, after.Covered)
+	}
+	// Coverage is credited in delivery order, so the coverage without
+	// sonication 2 (sonication 3 adds none) equals what sonication 1 added
+	// in the full analysis; 1 % for the analysis grid.
+	if math.Abs(after.Covered-addedBy1) > 0.01 {
+		t.Errorf("coverage without sonication 2 is %.3f, sonication 1 alone was credited %.3f", after.Covered, addedBy1)
+	}
+	if len(after.Holes) == 0 {
+		t.Error("no hole reported after leaving out sonication 2")
+	}
+	if !strings.Contains(rw.metrics.facts.Text, "Sonications left out") {
+		t.Errorf("metrics do not state the exclusion:\n%s", rw.metrics.facts.Text)
+	}
+	// Ticking it again restores the full coverage.
+	mark = rw.completed.Load()
+	test.Tap(checksOf(rw.sonTable)[1])
+	waitJobs(t, rw, mark, 1)
+	if math.Abs(rw.result.Covered-before.Covered) > 1e-9 {
+		t.Errorf("coverage after re-ticking %.4f, want %.4f", rw.result.Covered, before.Covered)
+	}
+}
+
+func TestClickHoleJumpsToSlice(t *testing.T) {
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	mark := rw.completed.Load()
+	rw.setExcluded(2, true)
+	waitJobs(t, rw, mark, 1)
+	if len(rw.result.Holes) == 0 {
+		t.Fatal("no hole to click")
+	}
+	h := rw.result.Holes[0]
+	v := rw.viewers[0]
+	v.setSlice(0)
+	rw.metrics.holes.Select(0)
+	// The acquisition plane is the anatomy stack: slices 2 mm apart from
+	// z = -14 mm.
+	want := int(math.Round((h.Centre[2] + 14) / 2))
+	if v.slice != want {
+		t.Errorf("viewer shows slice %d after clicking the hole at z = %.1f mm, want %d", v.slice, h.Centre[2], want)
+	}
+	// The hole is centred: the view transform maps the display centre onto
+	// its in-plane position.
+	tr, ok := v.transform(400, 400)
+	if !ok {
+		t.Fatal("no view transform")
+	}
+	c := tr.At(200, 200)
+	if math.Abs(c[0]-h.Centre[0]) > 1e-6 || math.Abs(c[1]-h.Centre[1]) > 1e-6 {
+		t.Errorf("display centre at (%.2f, %.2f) mm, hole at (%.2f, %.2f)", c[0], c[1], h.Centre[0], h.Centre[1])
+	}
+	if int(rw.sliders[0].Value) != want {
+		t.Errorf("slider at %v, want %d", rw.sliders[0].Value, want)
+	}
+}
+
+func TestSliceKeysWheelAndSlider(t *testing.T) {
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	v := rw.viewers[0]
+	k := v.slice
+	v.TypedKey(&fyne.KeyEvent{Name: fyne.KeyUp})
+	if v.slice != k+1 {
+		t.Errorf("arrow up: slice %d, want %d", v.slice, k+1)
+	}
+	v.Scrolled(&fyne.ScrollEvent{Scrolled: fyne.NewDelta(0, -10)})
+	if v.slice != k {
+		t.Errorf("wheel: slice %d, want %d", v.slice, k)
+	}
+	rw.sliders[0].SetValue(2)
+	if v.slice != 2 {
+		t.Errorf("slider: slice %d, want 2", v.slice)
+	}
+	v.TypedKey(&fyne.KeyEvent{Name: fyne.KeyEnd})
+	if v.slice != 14 {
+		t.Errorf("End: slice %d, want 14", v.slice)
+	}
+	v.TypedKey(&fyne.KeyEvent{Name: fyne.KeyPageUp})
+	if v.slice != 14 {
+		t.Errorf("Page Up past the end: slice %d, want 14", v.slice)
+	}
+}
+
+func TestTeachingModeHidesIdentity(t *testing.T) {
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	rw.teachCheck.SetChecked(true)
+	for _, s := range []string{rw.win.Title(), rw.title.Text, rw.identity.Text, rw.loadInfo.Text} {
+		for _, secret := range []string{"PHANTOM", "T-0001", "Synthetic phantom", os.TempDir()} {
+			if strings.Contains(s, secret) {
+				t.Errorf("teaching mode shows %q in %q", secret, s)
+			}
+		}
+	}
+	for n, d := range rw.recentCases() {
+		if strings.Contains(rw.recentLabel(n, d), d) {
+			t.Errorf("teaching mode lists the recent folder %q", d)
+		}
+	}
+	rw.teachCheck.SetChecked(false)
+	if !strings.Contains(rw.identity.Text, "PHANTOM") {
+		t.Errorf("identity not shown again after teaching mode: %q", rw.identity.Text)
+	}
+}
+
+func TestSignOffRecorded(t *testing.T) {
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	if err := rw.addSignOff("A. Reviewer", "reviewed in rounds", testTime); err != nil {
+		t.Fatal(err)
+	}
+	rec, err := loadRecord(rw.hash)
+	if err != nil || rec == nil {
+		t.Fatalf("record not found: %v", err)
+	}
+	if len(rec.SignOffs) != 1 {
+		t.Fatalf("%d sign-offs, want 1", len(rec.SignOffs))
+	}
+	s := rec.SignOffs[0]
+	if s.Reviewer != "A. Reviewer" || s.InputHash != rw.hash || !s.Time.Equal(testTime) || s.Covered != rw.result.Covered {
+		t.Errorf("sign-off %+v does not match the review", s)
+	}
+	if !strings.Contains(s.Settings, "240 CEM43") {
+		t.Errorf("sign-off does not state the threshold: %q", s.Settings)
+	}
+}
+
+// TestViewerGolden compares the viewer's picture of the synthetic case
+// (middle acquisition slice, 320×320) with testdata/viewer_synthetic.png;
+// run with -update to rewrite it after a deliberate change.
+func TestViewerGolden(t *testing.T) {
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	img := rw.viewers[0].draw(320, 320).(*image.RGBA)
+	path := filepath.Join("testdata", "viewer_synthetic.png")
+	if *update {
+		writePNG(t, path, img)
+		return
+	}
+	f, err := os.Open(path)
+	if err != nil {
+		t.Fatalf("golden image missing (run go test -run TestViewerGolden -update): %v", err)
+	}
+	defer f.Close()
+	want, err := png.Decode(f)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if want.Bounds() != img.Bounds() {
+		t.Fatalf("size %v, golden %v", img.Bounds(), want.Bounds())
+	}
+	// Allow a difference of 3 levels per channel (floating-point rounding
+	// across machines) on at most 0.5 % of the pixels.
+	bad := 0
+	for y := 0; y < 320; y++ {
+		for x := 0; x < 320; x++ {
+			r1, g1, b1, _ := img.At(x, y).RGBA()
+			r2, g2, b2, _ := want.At(x, y).RGBA()
+			if absDiff(r1, r2) > 3*257 || absDiff(g1, g2) > 3*257 || absDiff(b1, b2) > 3*257 {
+				bad++
+			}
+		}
+	}
+	if bad > 320*320/200 {
+		writePNG(t, filepath.Join(t.TempDir(), "got.png"), img)
+		t.Errorf("%d pixels differ from %s", bad, path)
+	}
+}
+
+func absDiff(a, b uint32) uint32 {
+	if a > b {
+		return a - b
+	}
+	return b - a
+}

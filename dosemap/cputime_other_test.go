@@ -1,0 +1,9 @@
+//go:build !linux
+
+package dosemap
+
+import "time"
+
+// threadCPU is unavailable here; benchmarks then report wall-clock figures
+// only.
+func threadCPU() (time.Duration, bool) { return 0, false }

@@ -1,0 +1,141 @@
+package deid
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"io/fs"
+	"os"
+	"path/filepath"
+	"sort"
+
+	"github.com/suyashkumar/dicom"
+
+	"dosecover/dosemap/safefile"
+)
+
+// FileResult is one de-identified file.
+type FileResult struct {
+	Src, Dst string
+}
+
+// Skipped is a file of the input folder that was not copied, and why.
+type Skipped struct {
+	Path, Reason string
+}
+
+// Result summarises a folder de-identification.
+type Result struct {
+	Files     []FileResult
+	Skipped   []Skipped
+	Dates     DateMode
+	ShiftDays int // applied offset in DatesShift mode
+}
+
+func parse(path string, skipPixels bool) (dicom.Dataset, error) {
+	opts := []dicom.ParseOption{dicom.SkipProcessingPixelDataValue()}
+	if skipPixels {
+		opts = []dicom.ParseOption{dicom.SkipPixelData()}
+	}
+	return dicom.ParseFile(path, nil, opts...)
+}
+
+// File de-identifies the DICOM file src into dst (written atomically).
+// The pixel data are copied byte for byte.
+func (d *Deidentifier) File(src, dst string) error {
+	ds, err := parse(src, false)
+	if err != nil {
+		return fmt.Errorf("reading %s: %w", src, err)
+	}
+	if err := d.Dataset(&ds); err != nil {
+		return fmt.Errorf("de-identifying %s: %w", src, err)
+	}
+	return safefile.WriteFile(dst, func(w io.Writer) error {
+		return dicom.Write(w, ds, dicom.SkipVRVerification(), dicom.SkipValueTypeVerification(), dicom.DefaultMissingTransferSyntax())
+	})
+}
+
+// Folder writes a de-identified copy of every DICOM file under srcDir into
+// dstDir, which must be new or empty and must not lie inside srcDir. Files
+// are named 00001.dcm, 00002.dcm, ... in the sorted order of their source
+// paths (original names may carry identity). Files that are not DICOM are
+// not copied and are listed in Result.Skipped; a DICOM file that cannot be
+// de-identified stops the run with an error naming it.
+func Folder(ctx context.Context, srcDir, dstDir string, opt Options, progress func(done, total int)) (*Result, error) {
+	fi, err := os.Stat(srcDir)
+	if err != nil {
+		return nil, fmt.Errorf("reading %s: %w", srcDir, err)
+	}
+	if !fi.IsDir() {
+		return nil, fmt.Errorf("reading %s: not a folder", srcDir)
+	}
+	if err := safefile.CheckOutside(srcDir, dstDir); err != nil {
+		return nil, err
+	}
+	if in, err := safefile.Within(dstDir, srcDir); err == nil && in {
+		return nil, fmt.Errorf("refusing to write into %s: it contains the case folder %s", dstDir, srcDir)
+	}
+	if ents, err := os.ReadDir(dstDir); err == nil {
+		if len(ents) > 0 {
+			return nil, fmt.Errorf("output folder %s is not empty: give a new or empty folder", dstDir)
+		}
+	} else if !errors.Is(err, fs.ErrNotExist) {
+		return nil, fmt.Errorf("output folder %s: %w", dstDir, err)
+	}
+	var paths []string
+	err = filepath.WalkDir(srcDir, func(p string, e fs.DirEntry, err error) error {
+		if err != nil {
+			return fmt.Errorf("reading %s: %w", p, err)
+		}
+		if e.Type().IsRegular() {
+			paths = append(paths, p)
+		}
+		return nil
+	})
+	if err != nil {
+		return nil, err
+	}
+	sort.Strings(paths)
+	d, err := New(opt)
+	if err != nil {
+		return nil, err
+	}
+	res := &Result{Dates: opt.Dates, ShiftDays: d.ShiftDays()}
+	// First pass: find the DICOM files and collect the identifying values
+	// of the whole case, so that a name in one file is also cleaned from
+	// the descriptions of another.
+	var dicoms []string
+	for _, p := range paths {
+		if err := ctx.Err(); err != nil {
+			return nil, err
+		}
+		ds, err := parse(p, true)
+		if err != nil {
+			res.Skipped = append(res.Skipped, Skipped{Path: p, Reason: "not a readable DICOM file (" + err.Error() + ")"})
+			continue
+		}
+		d.Collect(&ds)
+		dicoms = append(dicoms, p)
+	}
+	if len(dicoms) == 0 {
+		return nil, fmt.Errorf("no DICOM file found in %s", srcDir)
+	}
+	if err := os.MkdirAll(dstDir, 0o755); err != nil {
+		return nil, fmt.Errorf("creating %s: %w", dstDir, err)
+	}
+	for n, p := range dicoms {
+		if err := ctx.Err(); err != nil {
+			return nil, err
+		}
+		dst := filepath.Join(dstDir, fmt.Sprintf("%05d.dcm", n+1))
+		if err := d.File(p, dst); err != nil {
+			return nil, err
+		}
+		res.Files = append(res.Files, FileResult{Src: p, Dst: dst})
+		if progress != nil {
+			progress(n+1, len(dicoms))
+		}
+	}
+	return res, nil
+}

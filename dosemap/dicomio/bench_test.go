@@ -1,0 +1,252 @@
+package dicomio
+
+import (
+	"bytes"
+	"context"
+	"fmt"
+	"os"
+	"path/filepath"
+	"runtime"
+	"runtime/metrics"
+	"sync"
+	"testing"
+	"time"
+
+	"github.com/suyashkumar/dicom"
+)
+
+// The reading benchmarks use one folder of 4000 single-frame 128×128
+// 16-bit MR files (a phase series of 8 slices × 500 time points), written
+// once with the DICOM library's writer and removed by TestMain.
+const (
+	benchFiles  = 4000
+	benchSlices = 8
+	benchSide   = 128
+)
+
+var (
+	benchOnce sync.Once
+	benchDir  string
+	benchErr  error
+)
+
+func TestMain(m *testing.M) {
+	code := m.Run()
+	if benchDir != "" {
+		os.RemoveAll(benchDir)
+	}
+	os.Exit(code)
+}
+
+func benchFolder(b *testing.B) string {
+	b.Helper()
+	benchOnce.Do(func() {
+		benchDir, benchErr = os.MkdirTemp("", "dosecover-bench-")
+		if benchErr != nil {
+			return
+		}
+		mrSpec{Dir: benchDir, SeriesUID: "2.25.801", Desc: "bench phase", FoR: testFoR, Number: 1,
+			Cols: benchSide, Rows: benchSide, Slices: benchSlices, Times: benchFiles / benchSlices,
+			Spacing: 1.5, SliceGap: 3, Components: []string{"P"}, StartSec: 3600, DT: 2, TPI: true, B0: 3, TE: 12,
+			Value: func(_ string, i, j, k, t int) int { return (i*31 + j*17 + k + t) & 0xFFFF }}.write(b)
+	})
+	if benchErr != nil {
+		b.Fatal(benchErr)
+	}
+	return benchDir
+}
+
+func benchPaths(b *testing.B) []string {
+	dir := benchFolder(b)
+	paths, err := listFiles(dir)
+	if err != nil || len(paths) != benchFiles {
+		b.Fatalf("%d files, %v", len(paths), err)
+	}
+	return paths
+}
+
+// parallelFiles runs fn over paths with workers goroutines.
+func parallelFiles(paths []string, workers int, fn func(p string)) {
+	var wg sync.WaitGroup
+	ch := make(chan string)
+	for w := 0; w < workers; w++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for p := range ch {
+				fn(p)
+			}
+		}()
+	}
+	for _, p := range paths {
+		ch <- p
+	}
+	close(ch)
+	wg.Wait()
+}
+
+var (
+	baselineOnce sync.Once
+	baselineRate float64
+)
+
+// readFileRate measures plain os.ReadFile of the same files with 2
+// workers (files/s), once per test binary run.
+func readFileRate(b *testing.B, paths []string) float64 {
+	baselineOnce.Do(func() {
+		best := 0.0
+		for rep := 0; rep < 3; rep++ {
+			start := time.Now()
+			parallelFiles(paths, 2, func(p string) { os.ReadFile(p) })
+			if r := float64(len(paths)) / time.Since(start).Seconds(); r > best {
+				best = r
+			}
+		}
+		baselineRate = best
+	})
+	return baselineRate
+}
+
+// peakHeap samples the live heap every millisecond while fn runs and
+// returns the peak in bytes above the heap at the start.
+func peakHeap(fn func()) uint64 {
+	runtime.GC()
+	sample := []metrics.Sample{{Name: "/memory/classes/heap/objects:bytes"}}
+	read := func() uint64 { metrics.Read(sample); return sample[0].Value.Uint64() }
+	base := read()
+	var peak uint64
+	stop := make(chan struct{})
+	done := make(chan struct{})
+	go func() {
+		t := time.NewTicker(time.Millisecond)
+		defer t.Stop()
+		for {
+			if v := read(); v > peak {
+				peak = v
+			}
+			select {
+			case <-stop:
+				close(done)
+				return
+			case <-t.C:
+			}
+		}
+	}()
+	fn()
+	close(stop)
+	<-done
+	if v := read(); v > peak {
+		peak = v
+	}
+	if peak < base {
+		return 0
+	}
+	return peak - base
+}
+
+func report(b *testing.B, paths []string, elapsed time.Duration, peak uint64) {
+	rate := float64(len(paths)*b.N) / elapsed.Seconds()
+	b.ReportMetric(rate, "files/s")
+	b.ReportMetric(rate/readFileRate(b, paths), "x_ReadFile")
+	pixelBytes := float64(len(paths) * benchSide * benchSide * 2)
+	b.ReportMetric(float64(peak)/pixelBytes, "peak/pixelbytes")
+}
+
+// BenchmarkReadFile is the reference: os.ReadFile of every file, 2 workers.
+func BenchmarkReadFile(b *testing.B) {
+	paths := benchPaths(b)
+	b.ResetTimer()
+	start := time.Now()
+	for n := 0; n < b.N; n++ {
+		parallelFiles(paths, 2, func(p string) { os.ReadFile(p) })
+	}
+	b.ReportMetric(float64(len(paths)*b.N)/time.Since(start).Seconds(), "files/s")
+}
+
+// BenchmarkLibraryParse is the DICOM library's default parse (pixels
+// processed into frames), 2 workers, for comparison.
+func BenchmarkLibraryParse(b *testing.B) {
+	paths := benchPaths(b)
+	b.ResetTimer()
+	start := time.Now()
+	for n := 0; n < b.N; n++ {
+		parallelFiles(paths, 2, func(p string) {
+			data, _ := os.ReadFile(p)
+			dicom.Parse(bytes.NewReader(data), int64(len(data)), nil)
+		})
+	}
+	b.ReportMetric(float64(len(paths)*b.N)/time.Since(start).Seconds(), "files/s")
+}
+
+// BenchmarkScan is the inventory pass (attributes only), 2 workers.
+func BenchmarkScan(b *testing.B) {
+	paths := benchPaths(b)
+	dir := benchFolder(b)
+	b.ResetTimer()
+	var elapsed time.Duration
+	var peak uint64
+	for n := 0; n < b.N; n++ {
+		start := time.Now()
+		p := peakHeap(func() {
+			inv, err := ScanOptions(context.Background(), dir, LoadOptions{Workers: 2}, nil)
+			if err != nil || len(inv.Sonications) != 1 {
+				b.Fatalf("scan: %v", err)
+			}
+		})
+		elapsed += time.Since(start)
+		peak = max(peak, p)
+	}
+	report(b, paths, elapsed, peak)
+}
+
+// BenchmarkLoad reads attributes and pixels of every file into one
+// sonication of 500 phase frames, 2 workers. The float32 result alone is
+// twice the 16-bit pixel bytes; "transient/pixelbytes" is the peak heap
+// above the result.
+func BenchmarkLoad(b *testing.B) {
+	paths := benchPaths(b)
+	dir := benchFolder(b)
+	b.ResetTimer()
+	var elapsed time.Duration
+	var peak uint64
+	for n := 0; n < b.N; n++ {
+		start := time.Now()
+		p := peakHeap(func() {
+			c, _, err := Load(context.Background(), dir, LoadOptions{Workers: 2}, nil)
+			if err != nil || len(c.Sonications) != 1 || c.Sonications[0].Frames() != benchFiles/benchSlices {
+				b.Fatalf("load: %v", err)
+			}
+		})
+		elapsed += time.Since(start)
+		peak = max(peak, p)
+	}
+	report(b, paths, elapsed, peak)
+	result := float64(benchFiles * benchSide * benchSide * 4)
+	b.ReportMetric((float64(peak)-result)/float64(benchFiles*benchSide*benchSide*2), "transient/pixelbytes")
+}
+
+// BenchmarkDecodeFrame converts one frame of stored 16-bit values to
+// float32 at several image sizes.
+func BenchmarkDecodeFrame(b *testing.B) {
+	for _, side := range []int{64, 128, 256, 512} {
+		for _, signed := range []bool{false, true} {
+			b.Run(fmt.Sprintf("%dx%d/signed=%v", side, side, signed), func(b *testing.B) {
+				fi := &fileInfo{Rows: side, Cols: side, BitsAllocated: 16, BitsStored: 16, HighBit: 15, Samples: 1}
+				if signed {
+					fi.PixelRep, fi.BitsStored, fi.HighBit = 1, 12, 11
+				}
+				fi.Pixels = make([]byte, side*side*2)
+				for n := range fi.Pixels {
+					fi.Pixels[n] = byte(n * 7)
+				}
+				dst := make([]float32, side*side)
+				b.SetBytes(int64(len(fi.Pixels)))
+				for n := 0; n < b.N; n++ {
+					fi.decodeFrame(0, dst, 0.5, -3)
+				}
+			})
+		}
+	}
+}
+
+var _ = filepath.Join

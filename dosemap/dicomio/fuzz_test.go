@@ -1,0 +1,61 @@
+package dicomio
+
+import (
+	"os"
+	"path/filepath"
+	"testing"
+)
+
+// fuzzSeeds adds the pydicom test files (when installed) and a synthetic
+// file of our own as seeds.
+func fuzzSeeds(f *testing.F, names ...string) {
+	if dir := seedDir(); dir != "" {
+		for _, n := range names {
+			if data, err := os.ReadFile(filepath.Join(dir, n)); err == nil {
+				f.Add(data)
+			}
+		}
+	}
+}
+
+// seedDir is the pydicom test folder, or "" (seeds are optional).
+func seedDir() string { return findPydicom() }
+
+// FuzzReadFile: the per-file reader must never panic, whatever the bytes;
+// a file it accepts must decode every frame without panicking.
+func FuzzReadFile(f *testing.F) {
+	fuzzSeeds(f, "MR_small.dcm", "MR_small_implicit.dcm", "MR_small_bigendian.dcm", "CT_small.dcm",
+		"MR_truncated.dcm", "rtdose.dcm", "no_meta.dcm", "emri_small.dcm", "MR_small_RLE.dcm", "rtstruct.dcm")
+	dir := f.TempDir()
+	writeEnhanced(f, filepath.Join(dir, "enh"), 2, 2)
+	if data, err := os.ReadFile(filepath.Join(dir, "enh")); err == nil {
+		f.Add(data)
+	}
+	f.Add([]byte("not a DICOM file"))
+	f.Fuzz(func(t *testing.T, data []byte) {
+		fi, err := readBytes("fuzz", data, true)
+		if err != nil {
+			if err.Error() == "" {
+				t.Fatal("empty reason")
+			}
+			return
+		}
+		if fi.IsImage {
+			dst := make([]float32, fi.Rows*fi.Cols)
+			for n := range fi.Frames {
+				fi.decodeFrame(n, dst, 1, 0)
+			}
+		}
+	})
+}
+
+// FuzzStructureSet: the RTSTRUCT reader must never panic.
+func FuzzStructureSet(f *testing.F) {
+	fuzzSeeds(f, "rtstruct.dcm", "rtplan.dcm")
+	f.Fuzz(func(t *testing.T, data []byte) {
+		ss, info, err := ReadStructureSet("fuzz", data)
+		if err == nil && len(ss) != len(info) {
+			t.Fatalf("%d structures, %d infos", len(ss), len(info))
+		}
+	})
+}

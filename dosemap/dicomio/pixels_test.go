@@ -1,0 +1,112 @@
+package dicomio
+
+import (
+	"encoding/binary"
+	"math"
+	"os"
+	"runtime"
+	"strings"
+	"testing"
+)
+
+// Stored-value decoding by PS3.5 8.1.1 (BitsAllocated, BitsStored, HighBit,
+// PixelRepresentation two's complement). Expected values worked by hand;
+// exact comparisons (small integers are exact in float32).
+func TestDecodeStoredValues(t *testing.T) {
+	cases := []struct {
+		name                     string
+		alloc, stored, high, rep int
+		big                      bool
+		raw                      []uint32
+		want                     []float32
+	}{
+		{"u8", 8, 8, 7, 0, false, []uint32{0, 200, 255}, []float32{0, 200, 255}},
+		{"u16", 16, 16, 15, 0, false, []uint32{0, 40000, 65535}, []float32{0, 40000, 65535}},
+		{"s16", 16, 16, 15, 1, false, []uint32{0xFFFF, 0x8000, 0x7FFF}, []float32{-1, -32768, 32767}},
+		{"s12 sign-extended", 16, 12, 11, 1, false, []uint32{0xF800, 0xFFFF, 0x07FF}, []float32{-2048, -1, 2047}},
+		{"s12 masked", 16, 12, 11, 1, false, []uint32{0x0800, 0x0FFF, 0x07FF}, []float32{-2048, -1, 2047}},
+		{"u12 with overlay bits", 16, 12, 11, 0, false, []uint32{0xF001, 0x0FFF}, []float32{1, 4095}},
+		{"u12 high bit 15", 16, 12, 15, 0, false, []uint32{0x0010, 0xFFF0}, []float32{1, 4095}},
+		{"s16 big endian", 16, 16, 15, 1, true, []uint32{0xFFFE, 0x0102}, []float32{-2, 258}},
+		{"s32", 32, 32, 31, 1, false, []uint32{0xFFFFFFFF, 100000}, []float32{-1, 100000}},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			bpp := c.alloc / 8
+			raw := make([]byte, bpp*len(c.raw))
+			for n, v := range c.raw {
+				switch {
+				case bpp == 1:
+					raw[n] = byte(v)
+				case bpp == 2 && c.big:
+					binary.BigEndian.PutUint16(raw[2*n:], uint16(v))
+				case bpp == 2:
+					binary.LittleEndian.PutUint16(raw[2*n:], uint16(v))
+				default:
+					binary.LittleEndian.PutUint32(raw[4*n:], v)
+				}
+			}
+			fi := &fileInfo{Rows: 1, Cols: len(c.raw), BitsAllocated: c.alloc, BitsStored: c.stored, HighBit: c.high, PixelRep: c.rep, BigEndian: c.big, Pixels: raw}
+			dst := make([]float32, len(c.raw))
+			fi.decodeFrame(0, dst, 1, 0)
+			for n := range dst {
+				if dst[n] != c.want[n] {
+					t.Errorf("value %d: %g, want %g", n, dst[n], c.want[n])
+				}
+			}
+			// Rescale: 2*v - 1.
+			fi.decodeFrame(0, dst, 2, -1)
+			for n := range dst {
+				if dst[n] != 2*c.want[n]-1 {
+					t.Errorf("rescaled %d: %g, want %g", n, dst[n], 2*c.want[n]-1)
+				}
+			}
+		})
+	}
+}
+
+// Default phase mapping onto [-π, π): the extremes of the stored range.
+func TestPhaseLinear(t *testing.T) {
+	for _, c := range []struct {
+		bits, rep int
+		lo, hi    float64 // smallest and largest stored values
+	}{{12, 0, 0, 4095}, {12, 1, -2048, 2047}, {16, 0, 0, 65535}, {16, 1, -32768, 32767}} {
+		fi := &fileInfo{BitsStored: c.bits, PixelRep: c.rep}
+		a, b := fi.phaseLinear(0)
+		step := math.Pi / math.Ldexp(1, c.bits-1)
+		if got := a*c.lo + b; math.Abs(got+math.Pi) > 1e-12 {
+			t.Errorf("%+v: lowest -> %g, want -π", c, got)
+		}
+		if got := a*c.hi + b; math.Abs(got-(math.Pi-step)) > 1e-12 {
+			t.Errorf("%+v: highest -> %g, want π - step", c, got)
+		}
+		if a2, _ := fi.phaseLinear(0.001); a2 != 0.001 {
+			t.Errorf("PhaseScale override ignored")
+		}
+	}
+}
+
+// A corrupt length must be rejected before the DICOM library allocates
+// the buffer it declares (here 4 GB).
+func TestHugeDeclaredLength(t *testing.T) {
+	dir := t.TempDir()
+	mrSpec{Dir: dir, SeriesUID: "2.25.901", FoR: testFoR, Number: 1, Cols: 4, Rows: 4, Slices: 1, Times: 1,
+		Spacing: 1, SliceGap: 1}.write(t)
+	paths, _ := listFiles(dir)
+	data, err := os.ReadFile(paths[0])
+	if err != nil {
+		t.Fatal(err)
+	}
+	// Append (0011,0010) OB with length 0xFFFFFFF0 (explicit VR LE).
+	data = append(data, 0x11, 0x00, 0x10, 0x00, 'O', 'B', 0, 0, 0xF0, 0xFF, 0xFF, 0xFF, 1, 2, 3, 4)
+	var before, after runtime.MemStats
+	runtime.ReadMemStats(&before)
+	_, err = readBytes("huge", data, true)
+	runtime.ReadMemStats(&after)
+	if err == nil || !strings.Contains(err.Error(), "truncated or corrupt") {
+		t.Errorf("reason %v, want truncated or corrupt", err)
+	}
+	if d := after.TotalAlloc - before.TotalAlloc; d > 64<<20 {
+		t.Errorf("allocated %d MB reading a 1 kB file", d>>20)
+	}
+}

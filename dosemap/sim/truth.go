@@ -1,0 +1,219 @@
+package sim
+
+import (
+	"fmt"
+	"math"
+	"sort"
+	"time"
+
+	"dosecover/dosemap"
+)
+
+// Truth records what was simulated for one case; WriteSession saves it as
+// truth.json in the case folder so analyses can be checked against it.
+type Truth struct {
+	Label       string `json:"label"`
+	Version     string `json:"generator_version"`
+	Seed        uint64 `json:"seed"`
+	Description string `json:"description"`
+	PatientName string `json:"patient_name"`
+	PatientID   string `json:"patient_id"`
+
+	Phantom   Phantom `json:"phantom"`
+	MarginMM  float64 `json:"margin_mm"`
+	Threshold float64 `json:"threshold_cem43"`
+
+	FrameOfReferenceUID string `json:"frame_of_reference_uid"`
+	StudyUID            string `json:"study_uid"`
+	AnatomySeriesUID    string `json:"anatomy_series_uid"`
+	StructureSetUID     string `json:"structure_set_uid"`
+
+	Thermometry TruthThermometry  `json:"thermometry"`
+	Planned     []PlannedSpot     `json:"planned_spots"`
+	Sonications []TruthSonication `json:"sonications"`
+	Undelivered []int             `json:"undelivered_spots"` // planned spot numbers never delivered
+	Spill       []int             `json:"spill_sonications"` // sonication numbers that landed beyond the margin
+	Motion      []Motion          `json:"motion_frames"`
+
+	// From the simulated temperature on the bioheat grid (not from the
+	// images): the ground truth an analysis should approach.
+	BioheatGrid        string        `json:"bioheat_grid"`
+	TargetVolumeMM3    float64       `json:"target_volume_mm3"`
+	CoveredFraction    float64       `json:"covered_fraction"` // target fraction at or above Threshold
+	Holes              []TruthRegion `json:"holes"`            // under-dosed regions inside the target, largest first
+	LethalOutsideMM3   float64       `json:"lethal_outside_margin_mm3"`
+	LethalOutsideAvoid float64       `json:"lethal_in_avoid_mm3"`
+
+	Files int `json:"files"`
+}
+
+// TruthThermometry records the acquisition and the phase model.
+type TruthThermometry struct {
+	Geometry       dosemap.Geometry `json:"geometry"`
+	FrameInterval  float64          `json:"frame_interval_s"`
+	Frames         int              `json:"frames_per_sonication"`
+	BaselineFrames int              `json:"baseline_frames"`
+	B0             float64          `json:"b0_t"`
+	TE             float64          `json:"te_s"`
+	Alpha          float64          `json:"alpha_ppm_per_c"`
+	Sign           float64          `json:"sign"`
+	PhasePerDegree float64          `json:"phase_per_degree_rad"`
+	PhaseScale     float64          `json:"phase_rad_per_stored_unit"`
+	SNR            float64          `json:"snr"`
+	DriftRate      float64          `json:"drift_rad_per_s"`
+	DriftGradient  float64          `json:"drift_gradient_rad_per_s_per_100mm"`
+	BeamDirection  dosemap.Vec3     `json:"beam_direction"`
+	SigmaAxialMM   float64          `json:"focal_sigma_axial_mm"`
+	SigmaLateralMM float64          `json:"focal_sigma_lateral_mm"`
+	SeriesLayout   string           `json:"series_layout"`
+}
+
+// PlannedSpot is one planned focal position.
+type PlannedSpot struct {
+	Number     int          `json:"number"`
+	Position   dosemap.Vec3 `json:"position_mm"`
+	Delivered  bool         `json:"delivered"`
+	Sonication []int        `json:"sonications,omitempty"`
+}
+
+// TruthSonication is one delivered sonication.
+type TruthSonication struct {
+	Number    int          `json:"number"`
+	Planned   int          `json:"planned_spot"`
+	Focus     dosemap.Vec3 `json:"focus_mm"`
+	Power     float64      `json:"power_w"`
+	Duration  float64      `json:"duration_s"`
+	Spill     bool         `json:"spill"`
+	Start     time.Time    `json:"start"`
+	Offset    float64      `json:"offset_s"` // seconds from the session start
+	SeriesUID string       `json:"series_uid"`
+	Folder    string       `json:"folder"`
+	PeakTemp  float64      `json:"peak_temperature_c"`        // hottest bioheat voxel during the imaged frames
+	StartTemp float64      `json:"focus_start_temperature_c"` // residual heat at the focus when it began
+}
+
+// TruthRegion is a connected region.
+type TruthRegion struct {
+	Center    dosemap.Vec3 `json:"center_mm"`
+	VolumeMM3 float64      `json:"volume_mm3"`
+}
+
+func (s *Session) truth(res *simResult, id ids) *Truth {
+	p := s.Thermometry
+	t := &Truth{
+		Label: s.Label, Version: dosemap.Version, Seed: s.Seed, Description: s.Description,
+		PatientName: s.PatientName, PatientID: s.PatientID, Phantom: s.Phantom,
+		MarginMM: s.MarginMM, Threshold: s.Threshold,
+		FrameOfReferenceUID: id.frame, StudyUID: id.study, AnatomySeriesUID: id.anatomySeries, StructureSetUID: id.structInstance,
+		Thermometry: TruthThermometry{Geometry: s.ThermometryGeometry(), FrameInterval: p.FrameInterval, Frames: p.Frames,
+			BaselineFrames: p.BaselineFrames, B0: p.B0, TE: p.TE, Alpha: p.Alpha, Sign: p.Sign,
+			PhasePerDegree: p.PhasePerDegree(), PhaseScale: PhaseScale, SNR: p.SNR,
+			DriftRate: p.DriftRate, DriftGradient: p.DriftGradient, BeamDirection: p.BeamDirection.Unit(),
+			SigmaAxialMM: p.SigmaAxial, SigmaLateralMM: p.SigmaLateral,
+			SeriesLayout: "one series per sonication holding magnitude and phase images (ImageType value 3 M or P, ComplexImageComponent MAGNITUDE or PHASE)"},
+		Motion:      append([]Motion(nil), s.Motion...),
+		BioheatGrid: res.grid.String(),
+	}
+	for n, q := range s.Planned {
+		t.Planned = append(t.Planned, PlannedSpot{Number: n + 1, Position: q})
+	}
+	offset := 0.0
+	for n, so := range s.Sonications {
+		start := s.Start.Add(time.Duration(offset * float64(time.Second)))
+		ts := TruthSonication{Number: n + 1, Planned: so.Planned, Focus: so.Focus, Power: so.Power, Duration: so.Duration,
+			Spill: so.Spill, Start: start, Offset: offset, SeriesUID: id.thermoSeries(n + 1),
+			Folder: fmt.Sprintf(sonicationFolder, n+1), PeakTemp: res.peak[n], StartTemp: res.before[n]}
+		t.Sonications = append(t.Sonications, ts)
+		if so.Spill {
+			t.Spill = append(t.Spill, n+1)
+		}
+		if so.Planned > 0 {
+			ps := &t.Planned[so.Planned-1]
+			ps.Delivered = true
+			ps.Sonication = append(ps.Sonication, n+1)
+		}
+		offset += float64(p.Frames-1)*p.FrameInterval + so.Cooling
+	}
+	for _, ps := range t.Planned {
+		if !ps.Delivered {
+			t.Undelivered = append(t.Undelivered, ps.Number)
+		}
+	}
+	// Dose truth on the bioheat grid.
+	g := res.grid
+	vox := g.VoxelVolume()
+	lesion := s.Phantom.Lesion
+	grown := lesion.Grown(s.MarginMM)
+	inTarget := make([]bool, g.Len())
+	var nTarget, nCovered int
+	for n, d := range res.dose {
+		i, j, k := g.IJK(n)
+		q := g.Point(float64(i), float64(j), float64(k))
+		lethal := d >= s.Threshold
+		if lesion.Contains(q) {
+			nTarget++
+			if lethal {
+				nCovered++
+			} else {
+				inTarget[n] = true // under-dosed target voxel
+			}
+		} else if lethal && !grown.Contains(q) {
+			t.LethalOutsideMM3 += vox
+		}
+		if lethal && s.Phantom.Avoid.Contains(q) {
+			t.LethalOutsideAvoid += vox
+		}
+	}
+	t.TargetVolumeMM3 = float64(nTarget) * vox
+	if nTarget > 0 {
+		t.CoveredFraction = float64(nCovered) / float64(nTarget)
+	}
+	for _, r := range components(g, inTarget) {
+		if r.VolumeMM3 >= 8 { // ignore specks of a few voxels on the boundary
+			t.Holes = append(t.Holes, r)
+		}
+	}
+	return t
+}
+
+// components returns the 6-connected regions of mask with their centroids.
+func components(g dosemap.Geometry, mask []bool) []TruthRegion {
+	seen := make([]bool, len(mask))
+	var out []TruthRegion
+	var stack []int
+	for start, m := range mask {
+		if !m || seen[start] {
+			continue
+		}
+		var sum dosemap.Vec3
+		cnt := 0
+		stack = append(stack[:0], start)
+		seen[start] = true
+		for len(stack) > 0 {
+			n := stack[len(stack)-1]
+			stack = stack[:len(stack)-1]
+			i, j, k := g.IJK(n)
+			sum = sum.Add(g.Point(float64(i), float64(j), float64(k)))
+			cnt++
+			for _, d := range [6][3]int{{1, 0, 0}, {-1, 0, 0}, {0, 1, 0}, {0, -1, 0}, {0, 0, 1}, {0, 0, -1}} {
+				a, b, c := i+d[0], j+d[1], k+d[2]
+				if !g.Contains(a, b, c) {
+					continue
+				}
+				m := g.Index(a, b, c)
+				if mask[m] && !seen[m] {
+					seen[m] = true
+					stack = append(stack, m)
+				}
+			}
+		}
+		out = append(out, TruthRegion{Center: sum.Scale(1 / float64(cnt)), VolumeMM3: float64(cnt) * g.VoxelVolume()})
+	}
+	sort.SliceStable(out, func(a, b int) bool { return out[a].VolumeMM3 > out[b].VolumeMM3 })
+	for n := range out {
+		for ax := 0; ax < 3; ax++ {
+			out[n].Center[ax] = math.Round(out[n].Center[ax]*100) / 100
+		}
+	}
+	return out
+}

@@ -1,0 +1,486 @@
+package sim
+
+import (
+	"encoding/binary"
+	"encoding/json"
+	"fmt"
+	"hash/fnv"
+	"math"
+	"math/rand/v2"
+	"os"
+	"path/filepath"
+	"runtime"
+	"sync"
+	"time"
+
+	"dosecover/dosemap"
+
+	"github.com/suyashkumar/dicom/pkg/tag"
+)
+
+// PhaseScale is the phase in radians of one stored unit of the thermometry
+// phase images: the wrapped phase [−π, π) maps onto the 12-bit signed range
+// [−2048, 2047]. The files carry it in RealWorldValueMappingSequence
+// (slope π/2048 rad, intercept 0).
+const PhaseScale = math.Pi / 2048
+
+// Folder and file names inside a written case.
+const (
+	AnatomyFolder    = "anatomy"
+	StructuresFile   = "structures/rtstruct.dcm"
+	TruthFile        = "truth.json"
+	sonicationFolder = "sonication-%02d"
+)
+
+// ids holds the UIDs shared by the files of one session.
+type ids struct {
+	seed           string
+	study, frame   string
+	anatomySeries  string
+	structSeries   string
+	structInstance string
+}
+
+func newIDs(s *Session) ids {
+	p := fmt.Sprintf("%s/%d/", s.Label, s.Seed)
+	return ids{seed: p, study: UID(p + "study"), frame: UID(p + "frame-of-reference"),
+		anatomySeries: UID(p + "anatomy"), structSeries: UID(p + "rtstruct-series"), structInstance: UID(p + "rtstruct")}
+}
+
+func (id ids) thermoSeries(n int) string { return UID(fmt.Sprintf("%sthermometry/%d", id.seed, n)) }
+
+func (id ids) instance(series string, n int) string { return UID(fmt.Sprintf("%s/%d", series, n)) }
+
+func dicomDate(t time.Time) string { return t.Format("20060102") }
+func dicomTime(t time.Time) string { return t.Format("150405.000") }
+func dicomDateTime(t time.Time) string {
+	return t.Format("20060102150405.000")
+}
+
+// patientStudy adds the Patient, General Study, General Equipment and SOP
+// Common attributes shared by every file (PS3.3 C.7.1.1, C.7.2.1, C.7.5.1,
+// C.12.1).
+func (s *Session) patientStudy(e *elems, id ids, sopClass, sopInstance string) {
+	e.add(tag.SpecificCharacterSet, "ISO_IR 100")
+	e.add(tag.SOPClassUID, sopClass)
+	e.add(tag.SOPInstanceUID, sopInstance)
+	e.add(tag.StudyDate, dicomDate(s.Start))
+	e.add(tag.StudyTime, dicomTime(s.Start.Add(-20*time.Minute)))
+	e.add(tag.AccessionNumber, "")
+	e.add(tag.Manufacturer, "dosecover simulator")
+	e.add(tag.ReferringPhysicianName, "")
+	e.add(tag.StudyDescription, "Focused ultrasound ablation (simulated)")
+	e.add(tag.ManufacturerModelName, "sim")
+	e.add(tag.PatientName, s.PatientName)
+	e.add(tag.PatientID, s.PatientID)
+	e.add(tag.PatientBirthDate, "")
+	e.add(tag.PatientSex, "O")
+	e.add(tag.PatientIdentityRemoved, "YES")
+	e.add(tag.DeidentificationMethod, "invented data: simulated phantom, no patient involved")
+	e.add(tag.DeviceSerialNumber, "0")
+	e.add(tag.SoftwareVersions, dosemap.Version)
+	e.add(tag.StudyInstanceUID, id.study)
+	e.add(tag.StudyID, "1")
+}
+
+// mrImage holds one MR image to be written.
+type mrImage struct {
+	seriesUID, instanceUID string
+	seriesNumber, instance int
+	description            string
+	imageType              []string
+	complex                string // ComplexImageComponent; "" for none
+	geom                   dosemap.Geometry
+	slice                  int
+	acquired, seriesStart  time.Time
+	acquisition, temporal  int // AcquisitionNumber, TemporalPositionIdentifier (0: none)
+	temporalPositions      int
+	signed                 bool
+	pixels                 []uint16
+	center, width          float64
+	te, tr, flip, b0       float64
+	thickness              float64
+}
+
+// encodeMR returns the bytes of an MR Image Storage file (PS3.3 A.4):
+// Patient, General Study, General Series, Frame of Reference, General
+// Equipment, General Image, General Acquisition, Image Plane, Image Pixel,
+// MR Image, VOI LUT and SOP Common modules.
+func (s *Session) encodeMR(id ids, im *mrImage) ([]byte, error) {
+	var e elems
+	s.patientStudy(&e, id, SOPClassMRImage, im.instanceUID)
+	g := im.geom
+	e.add(tag.ImageType, im.imageType)
+	e.add(tag.InstanceCreationDate, dicomDate(im.acquired))
+	e.add(tag.InstanceCreationTime, dicomTime(im.acquired))
+	e.add(tag.SeriesDate, dicomDate(im.seriesStart))
+	e.add(tag.SeriesTime, dicomTime(im.seriesStart))
+	e.add(tag.AcquisitionDate, dicomDate(im.acquired))
+	e.add(tag.AcquisitionTime, dicomTime(im.acquired))
+	e.add(tag.ContentDate, dicomDate(im.acquired))
+	e.add(tag.ContentTime, dicomTime(im.acquired))
+	e.add(tag.AcquisitionDateTime, dicomDateTime(im.acquired))
+	e.add(tag.Modality, "MR")
+	e.add(tag.Laterality, "") // type 2C: an unpaired object
+	e.add(tag.SeriesDescription, im.description)
+	if im.complex != "" {
+		e.add(tag.ComplexImageComponent, im.complex)
+	}
+	e.add(tag.ScanningSequence, "GR")
+	e.add(tag.SequenceVariant, "SP")
+	e.add(tag.ScanOptions, "")
+	e.add(tag.MRAcquisitionType, "2D")
+	e.add(tag.SequenceName, "sim_gre")
+	e.add(tag.SliceThickness, ds(im.thickness))
+	e.add(tag.RepetitionTime, ds(im.tr*1e3))
+	e.add(tag.EchoTime, ds(im.te*1e3))
+	e.add(tag.NumberOfAverages, "1")
+	e.add(tag.ImagingFrequency, ds(42.57747892*im.b0))
+	e.add(tag.ImagedNucleus, "1H")
+	e.add(tag.EchoNumbers, "1")
+	e.add(tag.MagneticFieldStrength, ds(im.b0))
+	e.add(tag.SpacingBetweenSlices, ds(g.Spacing[2]))
+	e.add(tag.EchoTrainLength, "1")
+	e.add(tag.FlipAngle, ds(im.flip))
+	e.add(tag.PatientPosition, "HFS")
+	e.add(tag.SeriesInstanceUID, im.seriesUID)
+	e.add(tag.SeriesNumber, fmt.Sprint(im.seriesNumber))
+	e.add(tag.AcquisitionNumber, fmt.Sprint(max(im.acquisition, 1)))
+	e.add(tag.InstanceNumber, fmt.Sprint(im.instance))
+	ipp := g.Point(0, 0, float64(im.slice))
+	e.add(tag.ImagePositionPatient, dsList(ipp[0], ipp[1], ipp[2]))
+	e.add(tag.ImageOrientationPatient, dsList(g.Row[0], g.Row[1], g.Row[2], g.Col[0], g.Col[1], g.Col[2]))
+	e.add(tag.FrameOfReferenceUID, id.frame)
+	if im.temporal > 0 {
+		e.add(tag.TemporalPositionIdentifier, fmt.Sprint(im.temporal))
+		e.add(tag.NumberOfTemporalPositions, fmt.Sprint(im.temporalPositions))
+	}
+	e.add(tag.PositionReferenceIndicator, "")
+	e.add(tag.SliceLocation, ds(ipp.Dot(g.Row.Cross(g.Col))))
+	e.add(tag.SamplesPerPixel, 1)
+	e.add(tag.PhotometricInterpretation, "MONOCHROME2")
+	e.add(tag.Rows, g.Rows)
+	e.add(tag.Columns, g.Cols)
+	e.add(tag.PixelSpacing, dsList(g.Spacing[1], g.Spacing[0]))
+	e.add(tag.BitsAllocated, 16)
+	e.add(tag.BitsStored, 12)
+	e.add(tag.HighBit, 11)
+	if im.signed {
+		e.add(tag.PixelRepresentation, 1)
+	} else {
+		e.add(tag.PixelRepresentation, 0)
+	}
+	if im.width > 0 {
+		e.add(tag.WindowCenter, ds(im.center))
+		e.add(tag.WindowWidth, ds(im.width))
+	}
+	if im.complex == "PHASE" {
+		var code elems
+		code.add(tag.CodeValue, "rad")
+		code.add(tag.CodingSchemeDesignator, "UCUM")
+		code.add(tag.CodeMeaning, "radian")
+		var m elems
+		m.add(tag.LUTExplanation, "phase in radians")
+		m.addVR(tag.RealWorldValueFirstValueMapped, "SS", []int{-2048})
+		m.addVR(tag.RealWorldValueLastValueMapped, "SS", []int{2047})
+		m.add(tag.RealWorldValueIntercept, 0.0)
+		m.add(tag.RealWorldValueSlope, PhaseScale)
+		m.add(tag.LUTLabel, "PHASE")
+		m.seq(tag.MeasurementUnitsCodeSequence, code)
+		e.seq(tag.RealWorldValueMappingSequence, m)
+	}
+	e = append(e, pixelElement(im.pixels))
+	return encode(SOPClassMRImage, im.instanceUID, e)
+}
+
+// rngFor returns a generator seeded from the session seed and a label, so
+// every image gets its own reproducible noise regardless of the order or the
+// goroutine that generates it.
+func (s *Session) rngFor(label string) *rand.Rand {
+	h := fnv.New64a()
+	var b [8]byte
+	binary.LittleEndian.PutUint64(b[:], s.Seed)
+	h.Write(b[:])
+	h.Write([]byte(label))
+	v := h.Sum64()
+	return rand.New(rand.NewPCG(v, v^0x9e3779b97f4a7c15))
+}
+
+// WriteSession simulates s and writes it into dir (which must exist): the
+// anatomy series in anatomy/, one thermometry series per sonication in
+// sonication-NN/, the RTSTRUCT in structures/ and truth.json. Every file is
+// written under a temporary name and renamed into place.
+func WriteSession(dir string, s *Session) (*Truth, error) {
+	if err := s.Validate(); err != nil {
+		return nil, err
+	}
+	res, err := s.simulate()
+	if err != nil {
+		return nil, fmt.Errorf("simulating %s: %w", s.Label, err)
+	}
+	id := newIDs(s)
+	truth := s.truth(res, id)
+	if err := s.writeAnatomy(dir, id, truth); err != nil {
+		return nil, err
+	}
+	if err := s.writeThermometry(dir, id, res, truth); err != nil {
+		return nil, err
+	}
+	if err := s.writeStructures(dir, id, truth); err != nil {
+		return nil, err
+	}
+	data, err := json.MarshalIndent(truth, "", "  ")
+	if err != nil {
+		return nil, err
+	}
+	if err := writeFileAtomic(filepath.Join(dir, TruthFile), append(data, '\n')); err != nil {
+		return nil, err
+	}
+	return truth, nil
+}
+
+// anatomyValue is the noiseless T2-like intensity of the phantom at p.
+func (s *Session) anatomyValue(p dosemap.Vec3) float64 {
+	ph := s.Phantom
+	dx, dy := p[0]-ph.Center[0], p[1]-ph.Center[1]
+	r := math.Hypot(dx, dy)
+	// Smooth edges (logistic, 0.4 mm) stand in for partial volume.
+	edge := func(d float64) float64 { return 1 / (1 + math.Exp(d/0.4)) }
+	inGel := edge(r - ph.Radius)
+	v := 1150 * inGel
+	// Lesion: brighter, with an edge about 0.5 mm wide in level units.
+	ll := ph.Lesion.level(p)
+	lr := (math.Sqrt(ll) - 1) * ph.Lesion.SemiAxes[0]
+	v += 650 * edge(lr) * inGel
+	// Avoid tube: dark (fluid-free rod).
+	tr := math.Hypot(p[0]-ph.Avoid.Center[0], p[1]-ph.Avoid.Center[1]) - ph.Avoid.Radius
+	v -= 750 * edge(tr) * inGel
+	// Receive-coil sensitivity falls off gently with depth (posterior coil).
+	v *= 1 + 0.15*math.Tanh((ph.Center[1]-p[1])/80)
+	return v
+}
+
+func (s *Session) writeAnatomy(dir string, id ids, truth *Truth) error {
+	g := s.AnatomyGeometry()
+	sub := filepath.Join(dir, AnatomyFolder)
+	if err := os.MkdirAll(sub, 0o755); err != nil {
+		return fmt.Errorf("creating %s: %w", sub, err)
+	}
+	acq := s.Start.Add(-12 * time.Minute)
+	errs := make([]error, g.Slices)
+	parallel(g.Slices, func(k int) {
+		rng := s.rngFor(fmt.Sprintf("anatomy/%d", k))
+		px := make([]uint16, g.SliceLen())
+		for j := 0; j < g.Rows; j++ {
+			for i := 0; i < g.Cols; i++ {
+				v := s.anatomyValue(g.Point(float64(i), float64(j), float64(k)))
+				// Rician noise, σ = 18 (SNR ≈ 64 in the gel).
+				re, im := v+18*rng.NormFloat64(), 18*rng.NormFloat64()
+				px[j*g.Cols+i] = clamp12u(math.Hypot(re, im))
+			}
+		}
+		im := &mrImage{seriesUID: id.anatomySeries, instanceUID: id.instance(id.anatomySeries, k+1),
+			seriesNumber: 2, instance: k + 1, description: "Anatomy T2w (phantom)",
+			imageType: []string{"ORIGINAL", "PRIMARY", "M"}, geom: g, slice: k,
+			acquired: acq.Add(time.Duration(k) * 200 * time.Millisecond), seriesStart: acq,
+			pixels: px, center: 1200, width: 2400, te: 0.09, tr: 3.2, flip: 90, b0: s.Thermometry.B0,
+			thickness: g.Spacing[2]}
+		data, err := s.encodeMR(id, im)
+		if err == nil {
+			err = writeFileAtomic(filepath.Join(sub, fmt.Sprintf("IM%04d.dcm", k+1)), data)
+		}
+		errs[k] = err
+	})
+	for _, err := range errs {
+		if err != nil {
+			return fmt.Errorf("writing anatomy of %s: %w", s.Label, err)
+		}
+	}
+	truth.Files += g.Slices
+	return nil
+}
+
+func clamp12u(v float64) uint16 {
+	x := math.Round(v)
+	if x < 0 {
+		return 0
+	}
+	if x > 4095 {
+		return 4095
+	}
+	return uint16(x)
+}
+
+// phaseStored maps a phase in radians, wrapped into [−π, π), onto the
+// 12-bit signed stored value and returns its 16-bit two's-complement word.
+func phaseStored(phi float64) uint16 {
+	w := math.Mod(phi+math.Pi, 2*math.Pi)
+	if w < 0 {
+		w += 2 * math.Pi
+	}
+	x := int(math.Round((w - math.Pi) / PhaseScale))
+	if x > 2047 {
+		x -= 4096 // +π wraps to −π
+	}
+	if x < -2048 {
+		x = -2048
+	}
+	return uint16(int16(x))
+}
+
+// backgroundPhase is the smooth phase of the unheated object (B0
+// inhomogeneity and receive phase), a few radians across the phantom so the
+// stored phase wraps.
+func (s *Session) backgroundPhase(p dosemap.Vec3) float64 {
+	d := p.Sub(s.Phantom.Center)
+	return 0.7 + 0.045*d[0] - 0.03*d[1] + 4e-4*(d[0]*d[0]-d[1]*d[1]) + 0.01*d[2]
+}
+
+// thermoMagnitude is the noiseless gradient-echo magnitude at p.
+func (s *Session) thermoMagnitude(p dosemap.Vec3) float64 {
+	return 1000 * s.anatomyValue(p) / 1150
+}
+
+func (s *Session) writeThermometry(dir string, id ids, res *simResult, truth *Truth) error {
+	p := s.Thermometry
+	g := s.ThermometryGeometry()
+	ppd := p.PhasePerDegree()
+	sigma := 1000 / p.SNR
+	// Static per-voxel object properties, evaluated once per shift.
+	// The noiseless unheated signal m·e^{iφ_bg} of every voxel, as re, im.
+	type object struct{ re, im []float64 }
+	build := func(shift dosemap.Vec3) object {
+		o := object{re: make([]float64, g.Len()), im: make([]float64, g.Len())}
+		for n := range o.re {
+			i, j, k := g.IJK(n)
+			q := g.Point(float64(i), float64(j), float64(k)).Sub(shift)
+			m, bg := s.thermoMagnitude(q), s.backgroundPhase(q)
+			o.re[n], o.im[n] = m*math.Cos(bg), m*math.Sin(bg)
+		}
+		return o
+	}
+	// Distance along x from the phantom axis of each voxel (drift gradient).
+	xoff := make([]float64, g.Len())
+	for n := range xoff {
+		i, j, k := g.IJK(n)
+		xoff[n] = g.Point(float64(i), float64(j), float64(k))[0] - s.Phantom.Center[0]
+	}
+	still := build(dosemap.Vec3{})
+	type job struct{ son, frame int }
+	var jobs []job
+	for n := range s.Sonications {
+		sub := filepath.Join(dir, fmt.Sprintf(sonicationFolder, n+1))
+		if err := os.MkdirAll(sub, 0o755); err != nil {
+			return fmt.Errorf("creating %s: %w", sub, err)
+		}
+		for f := 0; f < p.Frames; f++ {
+			jobs = append(jobs, job{n, f})
+		}
+	}
+	errs := make([]error, len(jobs))
+	parallel(len(jobs), func(jn int) {
+		jb := jobs[jn]
+		n, f := jb.son, jb.frame
+		ts := truth.Sonications[n]
+		start := ts.Start
+		obj := still
+		var shift dosemap.Vec3
+		for _, m := range s.Motion {
+			if m.Sonication == n+1 && m.Frame == f+1 {
+				shift = m.Shift
+			}
+		}
+		rise := res.frames[n][f]
+		if shift != (dosemap.Vec3{}) {
+			obj = build(shift)
+			rise = shiftField(g, rise, shift)
+		}
+		t := float64(f) * p.FrameInterval
+		rng := s.rngFor(fmt.Sprintf("thermometry/%d/%d", n, f))
+		mag := make([]uint16, g.Len())
+		pha := make([]uint16, g.Len())
+		// Absolute time since the session start drives the drift.
+		tabs := ts.Offset + t
+		for v := range mag {
+			// Signal = unheated signal × e^{i(PRF shift + drift)} + noise.
+			dphi := ppd*float64(rise[v]) + (p.DriftRate+p.DriftGradient*xoff[v]/100)*tabs
+			c, sn := math.Cos(dphi), math.Sin(dphi)
+			re := obj.re[v]*c - obj.im[v]*sn + sigma*rng.NormFloat64()
+			im := obj.re[v]*sn + obj.im[v]*c + sigma*rng.NormFloat64()
+			mag[v] = clamp12u(math.Sqrt(re*re + im*im))
+			pha[v] = phaseStored(math.Atan2(im, re))
+		}
+		sub := filepath.Join(dir, fmt.Sprintf(sonicationFolder, n+1))
+		acq := start.Add(time.Duration(t * float64(time.Second)))
+		for k := 0; k < g.Slices; k++ {
+			for c, comp := range []struct {
+				name, code string
+				px         []uint16
+			}{{"MAGNITUDE", "M", mag}, {"PHASE", "P", pha}} {
+				inst := (f*g.Slices+k)*2 + c + 1
+				im := &mrImage{seriesUID: ts.SeriesUID, instanceUID: id.instance(ts.SeriesUID, inst),
+					seriesNumber: 100 + n + 1, instance: inst,
+					description: fmt.Sprintf("Thermometry sonication %d", n+1),
+					imageType:   []string{"ORIGINAL", "PRIMARY", comp.code}, complex: comp.name,
+					geom: g, slice: k, acquired: acq.Add(time.Duration(k) * 20 * time.Millisecond), seriesStart: start,
+					acquisition: f + 1, temporal: f + 1, temporalPositions: p.Frames, signed: comp.code == "P",
+					pixels: comp.px[k*g.SliceLen() : (k+1)*g.SliceLen()],
+					te:     p.TE, tr: p.TR, flip: p.FlipAngle, b0: p.B0, thickness: p.SliceThickness}
+				if comp.code == "M" {
+					im.center, im.width = 900, 1800
+				}
+				data, err := s.encodeMR(id, im)
+				if err == nil {
+					err = writeFileAtomic(filepath.Join(sub, fmt.Sprintf("IM%05d.dcm", inst)), data)
+				}
+				if err != nil {
+					errs[jn] = err
+					return
+				}
+			}
+		}
+	})
+	for _, err := range errs {
+		if err != nil {
+			return fmt.Errorf("writing thermometry of %s: %w", s.Label, err)
+		}
+	}
+	truth.Files += len(jobs) * g.Slices * 2
+	return nil
+}
+
+// shiftField moves a field on g by shift mm (nearest voxel in plane, the
+// slab is not shifted through-plane by more than it can hold).
+func shiftField(g dosemap.Geometry, f []float32, shift dosemap.Vec3) []float32 {
+	v := &dosemap.Volume{Geometry: g, Data: f}
+	out := make([]float32, len(f))
+	for n := range out {
+		i, j, k := g.IJK(n)
+		x := v.Sample(g.Point(float64(i), float64(j), float64(k)).Sub(shift))
+		if x == x {
+			out[n] = x
+		}
+	}
+	return out
+}
+
+// parallel runs fn(0..n-1) on GOMAXPROCS goroutines.
+func parallel(n int, fn func(int)) {
+	workers := min(runtime.GOMAXPROCS(0), n)
+	var wg sync.WaitGroup
+	next := make(chan int)
+	for w := 0; w < workers; w++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for i := range next {
+				fn(i)
+			}
+		}()
+	}
+	for i := 0; i < n; i++ {
+		next <- i
+	}
+	close(next)
+	wg.Wait()
+}

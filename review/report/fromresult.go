@@ -1,0 +1,526 @@
+package report
+
+import (
+	"bytes"
+	"crypto/sha256"
+	"encoding/hex"
+	"encoding/json"
+	"fmt"
+	"image"
+	"math"
+	"strings"
+	"time"
+
+	"dosecover/dosemap"
+	"dosecover/review"
+	"dosecover/review/view"
+)
+
+// Options are the parts of a report that do not come from the analysis.
+type Options struct {
+	Deidentify   bool      // hide identity: neutral case label, no scan date, generic sonication labels
+	Reviewer     string    // who reviewed ("" not given)
+	SignOff      string    // sign-off statement ("" not signed off)
+	ReviewDate   time.Time // zero: now
+	InputsSHA256 string    // see HashFolder
+	PanelPixels  int       // side of each image panel in pixels; 0: 480
+	// Thermometry are the thermometry options the analysis used; the zero
+	// value stands for dosemap.DefaultThermometryOptions().
+	Thermometry dosemap.ThermometryOptions
+}
+
+// DeidentifiedLabel returns the neutral label a de-identified report shows
+// for a case: "Teaching case " and eight hex digits of SHA-256 over the
+// original label and the inputs' hash, so different cases get different
+// labels and the label reveals nothing of the original.
+func DeidentifiedLabel(label, inputsSHA256 string) string {
+	h := sha256.Sum256([]byte(label + "\x00" + inputsSHA256))
+	return "Teaching case " + strings.ToUpper(hex.EncodeToString(h[:4]))
+}
+
+// FromResult fills a report Input from the case c and its analysis r: all
+// facts, curves and tables, the three image panels (rendered with
+// review/view), the methods block and, as "analysis" in the metrics JSON,
+// the analysis' own JSON (with identity removed when opt.Deidentify). It is
+// the one place that maps the analysis onto the report.
+func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) {
+	if c == nil || r == nil {
+		return nil, fmt.Errorf("report: no case or no analysis")
+	}
+	in := &Input{
+		CaseLabel:    c.Label,
+		Deidentified: opt.Deidentify,
+		ReviewDate:   opt.ReviewDate,
+		Reviewer:     opt.Reviewer,
+		SignOff:      opt.SignOff,
+		InputsSHA256: opt.InputsSHA256,
+		Software:     "dosecover " + dosemap.Version,
+		Cautions:     nil, // DefaultCautions
+	}
+	if in.ReviewDate.IsZero() {
+		in.ReviewDate = time.Now().UTC().Truncate(time.Second)
+	}
+	if opt.Deidentify {
+		in.CaseLabel = DeidentifiedLabel(c.Label, opt.InputsSHA256)
+	} else if d := c.Patient.StudyDate; len(d) == 8 {
+		in.ScanDate = d[:4] + "-" + d[4:6] + "-" + d[6:]
+	}
+	unit := r.DoseUnit
+	if unit == "CEM43" {
+		unit = "CEM43 min"
+	}
+	f := Facts{
+		Model: r.Model, DoseUnit: unit, Threshold: r.Threshold, MarginMM: r.MarginMM, TargetName: r.Target,
+		TargetVolumeML: r.TargetVolumeML, Covered: r.CoveredFraction,
+		CoveredLow: val(r.CoveredFractionP05), CoveredHigh: val(r.CoveredFractionP95),
+		CoveredOfTarget: r.CoveredFractionOfTarget, NotMonitored: r.NotMonitoredFraction,
+		LethalML: r.LethalVolumeML, OutsideMarginML: r.OutsideMarginLethalML,
+		D98: val(r.D98), D50: val(r.D50), D2: val(r.D2),
+	}
+	switch strings.ToLower(r.Model) {
+	case "cem43":
+		f.Model = "CEM43 (Sapareto & Dewey 1984)"
+	case "arrhenius":
+		f.Model = "Arrhenius damage integral (Henriques & Moritz 1947)"
+	}
+	if r.Trials > 0 {
+		f.BandLabel = fmt.Sprintf("5th-95th percentile, %d Monte Carlo trials", r.Trials)
+	}
+	for _, h := range r.Holes {
+		f.Holes = append(f.Holes, Region{VolumeML: h.VolumeMM3 / 1000, DepthMM: h.DepthMM})
+	}
+	for _, cl := range r.OutsideClusters {
+		f.Outside = append(f.Outside, Region{VolumeML: cl.VolumeMM3 / 1000, DepthMM: cl.MaxDistanceMM})
+	}
+	for _, a := range r.Avoid {
+		f.Avoid = append(f.Avoid, AvoidRow{Name: a.Name, LethalML: a.LethalVolumeMM3 / 1000, MaxDose: val(a.PeakDose)})
+	}
+	in.Facts = f
+	if strings.EqualFold(r.Model, "cem43") {
+		ds := view.DefaultDoseScale()
+		in.Wash = &Wash{Floor: ds.Floor, Ceiling: ds.Ceiling}
+	} else if r.Threshold > 0 {
+		in.Wash = &Wash{Floor: r.Threshold / 100, Ceiling: r.Threshold * 10}
+	}
+
+	for n, d := range r.DVH.Dose {
+		if n < len(r.DVH.Target) {
+			in.DVH = append(in.DVH, CurvePoint{X: d, Y: r.DVH.Target[n], Low: math.NaN(), High: math.NaN()})
+		}
+	}
+	for _, p := range r.CoverageVsThreshold {
+		in.CoverageVsThreshold = append(in.CoverageVsThreshold, CurvePoint{X: p.Threshold, Y: p.CoveredFraction, Low: math.NaN(), High: math.NaN()})
+	}
+
+	quality := map[int]review.SonicationQuality{}
+	for _, q := range r.Quality {
+		quality[q.Sonication] = q
+	}
+	q := Quality{MaxMotion: math.NaN(), MaxDriftC: math.NaN(), MinSNR: math.NaN()}
+	for _, s := range r.Sonications {
+		sq := quality[s.Number]
+		label := s.Label
+		if opt.Deidentify || label == "" {
+			label = fmt.Sprintf("sonication %d", s.Number)
+		}
+		in.Sonications = append(in.Sonications, SonicationRow{
+			Number: s.Number, Label: label, Frames: len(sq.Frames),
+			PeakC: val(s.PeakTempC), PeakDose: s.PeakDose, LethalML: s.LethalAddedML,
+			AddedCoverage: s.AddedCoverage, OutsideML: s.OutsideAddedML,
+			Flagged: len(sq.FlaggedFrames), Excluded: s.Excluded,
+		})
+	}
+	for _, sq := range r.Quality {
+		q.Frames += len(sq.Frames)
+		q.Flagged += len(sq.FlaggedFrames)
+		q.Wraps += sq.Wraps
+		q.Invalid += sq.Invalid
+		if len(sq.Frames) > 0 {
+			q.MaxMotion = nanMax(q.MaxMotion, sq.MaxMotion)
+			q.MaxDriftC = nanMax(q.MaxDriftC, sq.MaxDriftC)
+		}
+		if sq.MinSNR != nil {
+			q.MinSNR = nanMin(q.MinSNR, *sq.MinSNR)
+		}
+		for fn, fr := range sq.Frames {
+			if fr.Flagged && fr.Note != "" {
+				q.Notes = append(q.Notes, fmt.Sprintf("sonication %d frame %d: %s", sq.Sonication, fn+1, fr.Note))
+			}
+		}
+	}
+	for _, w := range r.Warnings {
+		q.Notes = append(q.Notes, hide(w, c, opt.Deidentify))
+	}
+	in.Quality = q
+	in.Methods = methods(c, r, opt)
+
+	// The analysis' own JSON, with identity removed when asked.
+	rr := *r
+	if opt.Deidentify {
+		rr.Case = in.CaseLabel
+		rr.Sonications = append([]review.SonicationStats(nil), r.Sonications...)
+		for n := range rr.Sonications {
+			rr.Sonications[n].Label = fmt.Sprintf("sonication %d", rr.Sonications[n].Number)
+		}
+		rr.Warnings = nil
+		for _, w := range r.Warnings {
+			rr.Warnings = append(rr.Warnings, hide(w, c, true))
+		}
+	}
+	var buf bytes.Buffer
+	if err := rr.WriteJSON(&buf); err != nil {
+		return nil, fmt.Errorf("report: encoding the analysis: %w", err)
+	}
+	in.Analysis = json.RawMessage(bytes.TrimSpace(buf.Bytes()))
+
+	px := opt.PanelPixels
+	if px <= 0 {
+		px = 480
+	}
+	panels, err := Panels(c, r, px)
+	if err != nil {
+		return nil, err
+	}
+	in.Panels = panels
+	return in, nil
+}
+
+// hide replaces the case label and the sonication labels of c in s when
+// de-identifying.
+func hide(s string, c *dosemap.Case, deid bool) string {
+	if !deid {
+		return s
+	}
+	if c.Label != "" {
+		s = strings.ReplaceAll(s, c.Label, "the case")
+	}
+	for _, so := range c.Sonications {
+		if so.Label != "" {
+			s = strings.ReplaceAll(s, so.Label, fmt.Sprintf("sonication %d", so.Number))
+		}
+	}
+	return s
+}
+
+func val(p *float64) float64 {
+	if p == nil {
+		return math.NaN()
+	}
+	return *p
+}
+
+func nanMax(a, b float64) float64 {
+	if math.IsNaN(a) {
+		return b
+	}
+	if math.IsNaN(b) {
+		return a
+	}
+	return math.Max(a, b)
+}
+
+func nanMin(a, b float64) float64 {
+	if math.IsNaN(a) {
+		return b
+	}
+	if math.IsNaN(b) {
+		return a
+	}
+	return math.Min(a, b)
+}
+
+// methods lists the dose model and parameters, the thermometry settings and
+// the analysis settings.
+func methods(c *dosemap.Case, r *review.Result, opt Options) []Setting {
+	var ms []Setting
+	switch strings.ToLower(r.Model) {
+	case "arrhenius":
+		a := dosemap.DefaultArrhenius()
+		ms = append(ms, Setting{"Dose model", fmt.Sprintf("Arrhenius (%s), A %.3g /s, Ea %.4g J/mol", a.Tissue, a.A, a.Ea)})
+	default:
+		m := dosemap.DefaultCEM43()
+		rule := "trapezoid rule"
+		if m.Rule == dosemap.RuleRectangle {
+			rule = "rectangle rule"
+		}
+		ms = append(ms, Setting{"Dose model", fmt.Sprintf("CEM43, R %.2g at or above / %.2g below %.4g °C, %s", m.RAbove, m.RBelow, m.Break, rule)})
+	}
+	measured := false
+	for _, so := range c.Sonications {
+		measured = measured || so.Phase != nil || so.Temperature != nil
+	}
+	if !measured {
+		ms = append(ms, Setting{"Thermometry", "not used: the case holds ready dose maps"})
+		return append(ms, analysisSettings(r)...)
+	}
+	th := opt.Thermometry
+	def := dosemap.DefaultThermometryOptions()
+	if th.PRF.Alpha == 0 {
+		th.PRF.Alpha = def.PRF.Alpha
+		if th.PRF.Alpha == 0 {
+			th.PRF.Alpha = dosemap.DefaultAlpha
+		}
+	}
+	if th.BaselineFrames == 0 {
+		th.BaselineFrames = def.BaselineFrames
+	}
+	if th.BodyTemp == 0 {
+		th.BodyTemp = def.BodyTemp
+	}
+	if th.Drift == 0 && th.DriftOrder == 0 {
+		th.Drift, th.DriftOrder = def.Drift, def.DriftOrder
+	}
+	ms = append(ms, Setting{"PRF alpha", fmt.Sprintf("%.4f ppm/°C", th.PRF.Alpha)})
+	ms = append(ms, Setting{"B0 / TE", fieldAndEcho(c, th)})
+	drift := "none"
+	switch th.Drift {
+	case dosemap.DriftMean:
+		drift = "mean of the reference region"
+	case dosemap.DriftPolynomial:
+		drift = fmt.Sprintf("polynomial, order %d", th.DriftOrder)
+	}
+	if th.Drift != dosemap.DriftNone {
+		if th.Reference == nil {
+			drift += ", automatic reference"
+		} else {
+			drift += ", given reference"
+		}
+	}
+	ms = append(ms,
+		Setting{"Drift correction", drift},
+		Setting{"Baseline frames", fmt.Sprintf("%d", th.BaselineFrames)},
+		Setting{"Body temperature", fmt.Sprintf("%.1f °C", th.BodyTemp)},
+	)
+	return append(ms, analysisSettings(r)...)
+}
+
+// analysisSettings lists the settings of the analysis itself.
+func analysisSettings(r *review.Result) []Setting {
+	var ms []Setting
+	ms = append(ms, Setting{"Threshold, margin", fmt.Sprintf("%s %s, %.1f mm", dose(r.Threshold), r.DoseUnit, r.MarginMM)})
+	if r.Trials > 0 {
+		ms = append(ms, Setting{"Uncertainty", fmt.Sprintf("Monte Carlo, %d trials, seed %d", r.Trials, r.Settings.Seed)})
+	} else {
+		ms = append(ms, Setting{"Uncertainty", "not computed"})
+	}
+	ex := "none"
+	if len(r.Settings.Excluded) > 0 {
+		ex = strings.Trim(strings.Join(strings.Fields(fmt.Sprint(r.Settings.Excluded)), ", "), "[]")
+	}
+	ms = append(ms, Setting{"Excluded sonications", ex})
+	g := r.Grid
+	ms = append(ms, Setting{"Analysis grid", fmt.Sprintf("%d×%d×%d voxels of %.2g×%.2g×%.2g mm", g.Size[0], g.Size[1], g.Size[2], g.SpacingMM[0], g.SpacingMM[1], g.SpacingMM[2])})
+	return ms
+}
+
+// fieldAndEcho describes B0 and TE: the override of the options, or the
+// values of the sonications (a range when they differ).
+func fieldAndEcho(c *dosemap.Case, th dosemap.ThermometryOptions) string {
+	b0lo, b0hi, telo, tehi := math.Inf(1), math.Inf(-1), math.Inf(1), math.Inf(-1)
+	for _, s := range c.Sonications {
+		if s.Dose != nil && s.Phase == nil {
+			continue
+		}
+		b, t := s.B0, s.TE
+		if th.PRF.B0 > 0 {
+			b = th.PRF.B0
+		}
+		if th.PRF.TE > 0 {
+			t = th.PRF.TE
+		}
+		if b > 0 {
+			b0lo, b0hi = math.Min(b0lo, b), math.Max(b0hi, b)
+		}
+		if t > 0 {
+			telo, tehi = math.Min(telo, t), math.Max(tehi, t)
+		}
+	}
+	rng := func(lo, hi, scale float64, format, unit string) string {
+		if math.IsInf(lo, 1) {
+			return "n/a"
+		}
+		if hi-lo < 1e-9 {
+			return fmt.Sprintf(format, lo*scale) + " " + unit
+		}
+		return fmt.Sprintf(format+" to "+format, lo*scale, hi*scale) + " " + unit
+	}
+	return rng(b0lo, b0hi, 1, "%.2f", "T") + " / " + rng(telo, tehi, 1000, "%.1f", "ms")
+}
+
+// Panels renders the three image panels of the report: the plane through
+// the largest target cross-section, through the largest hole and through
+// the largest lethal cluster outside the margin. Without a hole the second
+// panel is a reformat across the slices through the target centre; without
+// a cluster the third is the other reformat. Each panel is px × px pixels.
+func Panels(c *dosemap.Case, r *review.Result, px int) ([]Panel, error) {
+	if r.Dose == nil || r.TargetMask == nil {
+		return nil, fmt.Errorf("report: the analysis carries no dose or target grid to draw")
+	}
+	tg := r.TargetMask.Geometry
+	// Target: the slice of the analysis grid with the largest cross-section,
+	// the centroid of that cross-section and of the whole target, and the
+	// target's extent.
+	best, bestK := 0.0, 0
+	var cen dosemap.Vec3
+	var wsum float64
+	lo := dosemap.Vec3{math.Inf(1), math.Inf(1), math.Inf(1)}
+	hi := dosemap.Vec3{math.Inf(-1), math.Inf(-1), math.Inf(-1)}
+	area := make([]float64, tg.Slices)
+	for n, v := range r.TargetMask.Data {
+		if !(v > 0) {
+			continue
+		}
+		i, j, k := tg.IJK(n)
+		area[k] += float64(v)
+		p := tg.Point(float64(i), float64(j), float64(k))
+		cen = cen.Add(p.Scale(float64(v)))
+		wsum += float64(v)
+		for a := 0; a < 3; a++ {
+			lo[a], hi[a] = math.Min(lo[a], p[a]), math.Max(hi[a], p[a])
+		}
+	}
+	if wsum == 0 {
+		return nil, fmt.Errorf("report: the target mask is empty")
+	}
+	cen = cen.Scale(1 / wsum)
+	for k, a := range area {
+		if a > best {
+			best, bestK = a, k
+		}
+	}
+	var sec dosemap.Vec3
+	var sw float64
+	for j := 0; j < tg.Rows; j++ {
+		for i := 0; i < tg.Cols; i++ {
+			if v := r.TargetMask.Data[tg.Index(i, j, bestK)]; v > 0 {
+				sec = sec.Add(tg.Point(float64(i), float64(j), float64(bestK)).Scale(float64(v)))
+				sw += float64(v)
+			}
+		}
+	}
+	sec = sec.Scale(1 / sw)
+	extent := hi.Sub(lo).Norm() + 2*r.MarginMM + 10
+	extent = math.Max(extent, 30)
+
+	sc := baseScene(c, r)
+	// Planes span the anatomy when it shares the thermometry's slice
+	// orientation (the usual case), so zoomed-out panels keep their
+	// surroundings; else the thermometry grid.
+	grid := r.Dose.Geometry
+	if a := c.Anatomy; a != nil && math.Abs(a.Normal.Dot(grid.Normal)) > 0.999 && math.Abs(a.Row.Dot(grid.Row)) > 0.999 {
+		grid = a.Geometry
+	}
+	pixelMM := math.Min(r.Dose.Spacing[0], r.Dose.Spacing[1]) / 2
+	if c.Anatomy != nil {
+		pixelMM = math.Min(pixelMM, math.Min(c.Anatomy.Spacing[0], c.Anatomy.Spacing[1]))
+	}
+	pixelMM = math.Max(pixelMM, extent/float64(px)) // no finer than the display
+
+	panel := func(title string, o view.Orientation, q, centre dosemap.Vec3, ext float64, what string) (Panel, error) {
+		s := sc
+		s.Plane = view.PlaneThrough(grid, o, q, pixelMM)
+		cx, cy := s.Plane.Pixel(centre)
+		v := view.View{Width: px, Height: px, Zoom: float64(px) / ext, Centre: view.Point{X: cx, Y: cy}}
+		img, err := view.Render(&s, v)
+		if err != nil {
+			return Panel{}, fmt.Errorf("report: rendering %s: %w", strings.ToLower(title), err)
+		}
+		return Panel{Title: title, Caption: planeCaption(s.Plane, q) + what, Image: image.Image(img)}, nil
+	}
+	var out []Panel
+	p, err := panel("Largest target cross-section", view.Acquisition, sec, cen, extent, "")
+	if err != nil {
+		return nil, err
+	}
+	out = append(out, p)
+	if len(r.Holes) > 0 {
+		h := r.Holes[0]
+		hc := dosemap.Vec3(h.CentroidMM)
+		p, err = panel("Largest hole", view.Acquisition, hc, cen, extent,
+			fmt.Sprintf("; hole %.3f mL, %.1f mm deep", h.VolumeMM3/1000, h.DepthMM))
+	} else {
+		p, err = panel("No hole: across the slices", view.RowNormal, cen, cen, extent, "; through the target centre")
+	}
+	if err != nil {
+		return nil, err
+	}
+	out = append(out, p)
+	if len(r.OutsideClusters) > 0 {
+		cl := r.OutsideClusters[0]
+		cc := dosemap.Vec3(cl.CentroidMM)
+		mid := cen.Add(cc).Scale(0.5)
+		ext := math.Max(extent, 2*cc.Sub(cen).Norm()+20)
+		p, err = panel("Largest lethal cluster outside margin", view.Acquisition, cc, mid, ext,
+			fmt.Sprintf("; %.3f mL, up to %.1f mm beyond target", cl.VolumeMM3/1000, cl.MaxDistanceMM))
+	} else {
+		p, err = panel("No lethal dose outside margin", view.ColNormal, cen, cen, extent, "; through the target centre")
+	}
+	if err != nil {
+		return nil, err
+	}
+	return append(out, p), nil
+}
+
+// baseScene holds the layers shared by the three panels.
+func baseScene(c *dosemap.Case, r *review.Result) view.Scene {
+	s := view.Scene{
+		Anatomy:     c.Anatomy,
+		Window:      view.Window{Center: c.WindowCenter, Width: c.WindowWidth},
+		Dose:        r.Dose,
+		Lethal:      r.Threshold,
+		Annotations: true,
+	}
+	if !strings.EqualFold(r.Model, "cem43") && r.Threshold > 0 {
+		s.Scale = view.DoseScale{Floor: r.Threshold / 100, Ceiling: r.Threshold * 10, Opacity: 0.55}
+	}
+	if t := c.Target(); t != nil {
+		s.Target = view.Region{Structure: t}
+	}
+	for n := range c.Structures {
+		if c.Structures[n].Role == dosemap.RoleAvoid {
+			s.Avoid = append(s.Avoid, view.Region{Structure: &c.Structures[n]})
+		}
+	}
+	if r.MarginMask != nil {
+		s.Margin = view.Region{Mask: r.MarginMask}
+	}
+	if r.HoleLabels != nil {
+		s.Holes = view.Region{Mask: r.HoleLabels}
+	}
+	if r.SpillLabels != nil {
+		s.Spill = view.Region{Mask: r.SpillLabels}
+	}
+	// Not monitored: unmeasured voxels within target plus margin.
+	if r.Lethal != nil && r.MarginMask != nil && r.Lethal.Geometry == r.MarginMask.Geometry {
+		nm := dosemap.NewVolume(r.Lethal.Geometry)
+		any := false
+		for n, v := range r.Lethal.Data {
+			if v != v && r.MarginMask.Data[n] >= 0.5 {
+				nm.Data[n] = 1
+				any = true
+			}
+		}
+		if any {
+			s.NotMonitored = view.Region{Mask: nm}
+		}
+	}
+	return s
+}
+
+// planeCaption names the plane: axial, coronal or sagittal with its
+// position when its normal is within about 10° of a patient axis, else
+// "oblique" with the point it passes through.
+func planeCaption(p view.Plane, q dosemap.Vec3) string {
+	n := p.Normal()
+	names := [3]string{"sagittal, x", "coronal, y", "axial, z"}
+	for a := 0; a < 3; a++ {
+		if math.Abs(n[a]) > 0.985 {
+			v := q[a]
+			if math.Abs(v) < 0.05 {
+				v = 0 // no "-0.0"
+			}
+			return fmt.Sprintf("%s = %.1f mm", names[a], v)
+		}
+	}
+	return fmt.Sprintf("oblique through (%.1f, %.1f, %.1f) mm", q[0], q[1], q[2])
+}

@@ -1,0 +1,777 @@
+package report
+
+import (
+	"fmt"
+	"image"
+	"image/color"
+	"math"
+	"strings"
+
+	stdfnt "golang.org/x/image/font"
+	"gonum.org/v1/plot"
+	"gonum.org/v1/plot/font"
+	"gonum.org/v1/plot/plotter"
+	"gonum.org/v1/plot/vg"
+	"gonum.org/v1/plot/vg/draw"
+
+	"dosecover/review"
+	"dosecover/review/view"
+)
+
+// PageWidth and PageHeight are the size of the report page, A4 portrait
+// (ISO 216: 210 mm × 297 mm).
+const (
+	PageWidth  = 210 * vg.Millimeter
+	PageHeight = 297 * vg.Millimeter
+)
+
+// Layout constants of the page, in points.
+const (
+	margin    = 12 * vg.Millimeter
+	gap       = 8
+	bodySize  = 8
+	smallSize = 7
+	headSize  = 9.5
+	titleSize = 15
+)
+
+var (
+	colInk    = color.Gray{0x10}
+	colFaint  = color.Gray{0x60}
+	colRule   = color.Gray{0xB0}
+	colShade  = color.Gray{0xEE}
+	colPanel  = color.Gray{0x30}
+	colAccent = review.ColorSpill
+)
+
+// pen draws text and boxes in top-down page coordinates: y is the distance
+// from the top edge of the page, x from the left edge.
+type pen struct {
+	c vg.Canvas
+	h vg.Length
+}
+
+// boldVariant names Liberation Sans Bold as a variant of its own with normal
+// weight, so that every face has its own name whatever canvas draws it.
+const boldVariant = "SansBold"
+
+func init() {
+	b := font.DefaultCache.Lookup(font.Font{Typeface: "Liberation", Variant: "Sans", Weight: stdfnt.WeightBold}, 10)
+	font.DefaultCache.Add(font.Collection{{Font: font.Font{Typeface: "Liberation", Variant: boldVariant}, Face: b.Face}})
+}
+
+func sans(size vg.Length, bold bool) font.Face {
+	f := font.Font{Typeface: "Liberation", Variant: "Sans", Size: size}
+	if bold {
+		f.Variant = boldVariant
+	}
+	return font.DefaultCache.Lookup(f, size)
+}
+
+func mono(size vg.Length) font.Face {
+	f := font.Font{Typeface: "Liberation", Variant: "Mono", Size: size}
+	return font.DefaultCache.Lookup(f, size)
+}
+
+// pt converts top-down coordinates to the canvas' bottom-up ones.
+func (p pen) pt(x, y vg.Length) vg.Point { return vg.Point{X: x, Y: p.h - y} }
+
+// text draws s with its top at y and returns the y below the line.
+func (p pen) text(x, y vg.Length, f font.Face, clr color.Color, s string) vg.Length {
+	e := f.Extents()
+	p.c.SetColor(clr)
+	p.c.FillString(f, p.pt(x, y+e.Ascent), s)
+	return y + e.Height
+}
+
+// textRight draws s right-aligned at x.
+func (p pen) textRight(x, y vg.Length, f font.Face, clr color.Color, s string) vg.Length {
+	return p.text(x-f.Width(s), y, f, clr, s)
+}
+
+// wrap breaks s into lines no wider than w.
+func wrap(f font.Face, s string, w vg.Length) []string {
+	var lines []string
+	for _, para := range strings.Split(s, "\n") {
+		words := strings.Fields(para)
+		line := ""
+		for _, wd := range words {
+			try := wd
+			if line != "" {
+				try = line + " " + wd
+			}
+			if line != "" && f.Width(try) > w {
+				lines = append(lines, line)
+				line = wd
+				continue
+			}
+			line = try
+		}
+		lines = append(lines, line)
+	}
+	return lines
+}
+
+// para draws s wrapped to width w and returns the y below it.
+func (p pen) para(x, y, w vg.Length, f font.Face, clr color.Color, s string) vg.Length {
+	for _, l := range wrap(f, s, w) {
+		y = p.text(x, y, f, clr, l)
+	}
+	return y
+}
+
+// rect fills the rectangle with top-left corner (x, y).
+func (p pen) rect(x, y, w, h vg.Length, clr color.Color) {
+	p.c.SetColor(clr)
+	p.c.Fill(p.box(x, y, w, h))
+}
+
+func (p pen) box(x, y, w, h vg.Length) vg.Path {
+	var path vg.Path
+	path.Move(p.pt(x, y))
+	path.Line(p.pt(x+w, y))
+	path.Line(p.pt(x+w, y+h))
+	path.Line(p.pt(x, y+h))
+	path.Close()
+	return path
+}
+
+// frame strokes the rectangle outline.
+func (p pen) frame(x, y, w, h, lw vg.Length, clr color.Color) {
+	p.c.SetColor(clr)
+	p.c.SetLineWidth(lw)
+	p.c.SetLineDash(nil, 0)
+	p.c.Stroke(p.box(x, y, w, h))
+}
+
+// line strokes a straight segment.
+func (p pen) line(x0, y0, x1, y1, lw vg.Length, clr color.Color, dash []vg.Length) {
+	p.c.SetColor(clr)
+	p.c.SetLineWidth(lw)
+	p.c.SetLineDash(dash, 0)
+	var path vg.Path
+	path.Move(p.pt(x0, y0))
+	path.Line(p.pt(x1, y1))
+	p.c.Stroke(path)
+	p.c.SetLineDash(nil, 0)
+}
+
+// clip shortens s with an ellipsis until it fits in w.
+func clip(f font.Face, s string, w vg.Length) string {
+	if f.Width(s) <= w {
+		return s
+	}
+	r := []rune(s)
+	for len(r) > 0 && f.Width(string(r)+"…") > w {
+		r = r[:len(r)-1]
+	}
+	return string(r) + "…"
+}
+
+// heading draws a section heading with a rule and returns the y below it.
+func (p pen) heading(x, y, w vg.Length, s string) vg.Length {
+	f := sans(headSize, true)
+	y = p.text(x, y, f, colInk, s)
+	p.line(x, y+0.5, x+w, y+0.5, 0.6, colRule, nil)
+	return y + 3
+}
+
+// Render draws the report page of in onto c, which must be PageWidth ×
+// PageHeight. It is the single layout used by RenderPNG and RenderPDF.
+func Render(c vg.Canvas, in *Input) error {
+	if in == nil {
+		return fmt.Errorf("report: no input")
+	}
+	p := pen{c: c, h: PageHeight}
+	p.rect(0, 0, PageWidth, PageHeight, color.White)
+	x0 := margin
+	w := PageWidth - 2*margin
+	y := margin
+
+	y = drawHeader(p, in, x0, y, w)
+	y += gap
+	y = drawFacts(p, in, x0, y, w)
+	y += gap
+	y = drawPanels(p, in, x0, y, w)
+	y += gap
+	y = drawPlots(p, in, x0, y, w)
+	y += gap
+	y = drawTables(p, in, x0, y, w)
+	y += gap
+	y = drawMethods(p, in, x0, y, w)
+	drawFoot(p, in, x0, y+gap, w)
+	return nil
+}
+
+func drawHeader(p pen, in *Input, x, y, w vg.Length) vg.Length {
+	title := in.Title
+	if title == "" {
+		title = "Thermal dose coverage review"
+	}
+	ft := sans(titleSize, true)
+	p.text(x, y, ft, colInk, title)
+	label := in.CaseLabel
+	if label == "" {
+		label = "unnamed case"
+	}
+	fl := sans(headSize+1, true)
+	p.textRight(x+w, y+2, fl, colInk, label)
+	y += ft.Extents().Height + 2
+
+	fb := sans(bodySize, false)
+	var parts []string
+	scan := in.ScanDate
+	if scan == "" {
+		scan = "not given"
+		if in.Deidentified {
+			scan = "hidden (de-identified)"
+		}
+	}
+	parts = append(parts, "Scan date: "+scan)
+	rd := "not given"
+	if !in.ReviewDate.IsZero() {
+		rd = in.ReviewDate.UTC().Format("2006-01-02 15:04 UTC")
+	}
+	parts = append(parts, "Review date: "+rd)
+	rv := in.Reviewer
+	if rv == "" {
+		rv = "not given"
+	}
+	parts = append(parts, "Reviewer: "+rv)
+	so := in.SignOff
+	if so == "" {
+		so = "not signed off"
+	}
+	parts = append(parts, "Sign-off: "+so)
+	y = p.text(x, y, fb, colInk, strings.Join(parts, "    "))
+	y += 2
+	// Short caution strip under the header; the full text is at the foot.
+	fs := sans(smallSize, true)
+	h := fs.Extents().Height + 3
+	p.rect(x, y, w, h, colShade)
+	p.rect(x, y, 2, h, colAccent)
+	p.text(x+6, y+1.5, fs, colInk, "For retrospective review, QA and teaching - not a planning or treatment system. Thresholds vary by tissue; defer to local protocols.")
+	return y + h
+}
+
+// pct formats a fraction as a percentage.
+func pct(f float64) string {
+	if math.IsNaN(f) {
+		return "n/a"
+	}
+	return fmt.Sprintf("%.1f %%", 100*f)
+}
+
+// num formats x with the given number of decimals, "n/a" for NaN.
+func num(x float64, dec int) string {
+	if math.IsNaN(x) || math.IsInf(x, 0) {
+		return "n/a"
+	}
+	return fmt.Sprintf("%.*f", dec, x)
+}
+
+// dose formats a dose value compactly (dose spans many decades).
+func dose(x float64) string {
+	switch {
+	case math.IsNaN(x):
+		return "n/a"
+	case math.IsInf(x, 1):
+		return "inf"
+	case x >= 1e5:
+		return fmt.Sprintf("%.2g", x)
+	case x >= 100:
+		return fmt.Sprintf("%.0f", x)
+	case x >= 1:
+		return fmt.Sprintf("%.1f", x)
+	}
+	return fmt.Sprintf("%.2g", x)
+}
+
+// factLines returns the facts block as (label, value) pairs in two columns.
+func factLines(in *Input) (left, right [][2]string) {
+	f := in.Facts
+	unit := doseUnit(in)
+	target := f.TargetName
+	if target == "" {
+		target = "target"
+	}
+	band := "not computed"
+	if !math.IsNaN(f.CoveredLow) && !math.IsNaN(f.CoveredHigh) {
+		band = pct(f.CoveredLow) + " to " + pct(f.CoveredHigh)
+		if f.BandLabel != "" {
+			band += " (" + f.BandLabel + ")"
+		}
+	}
+	left = append(left,
+		[2]string{"Covered (" + target + ")", pct(f.Covered) + " of the monitored part of " + num(f.TargetVolumeML, 2) + " mL"},
+		[2]string{"Uncertainty band", band},
+		[2]string{"Not monitored", pct(f.NotMonitored) + " of the target; covered of whole target " + pct(f.CoveredOfTarget)},
+		[2]string{"D98 / D50 / D2", dose(f.D98) + " / " + dose(f.D50) + " / " + dose(f.D2) + " " + unit},
+		[2]string{"Threshold, margin", dose(f.Threshold) + " " + unit + ", " + num(f.MarginMM, 1) + " mm"},
+	)
+	holes := "none"
+	if len(f.Holes) > 0 {
+		var tot float64
+		for _, h := range f.Holes {
+			tot += h.VolumeML
+		}
+		holes = fmt.Sprintf("%d, total %s mL; largest %s mL", len(f.Holes), num(tot, 3), num(f.Holes[0].VolumeML, 3))
+		if !math.IsNaN(f.Holes[0].DepthMM) {
+			holes += fmt.Sprintf(", %s mm deep", num(f.Holes[0].DepthMM, 1))
+		}
+	}
+	out := num(f.OutsideMarginML, 3) + " mL"
+	if len(f.Outside) > 0 {
+		out += fmt.Sprintf(" in %d cluster(s); largest %s mL", len(f.Outside), num(f.Outside[0].VolumeML, 3))
+		if !math.IsNaN(f.Outside[0].DepthMM) {
+			out += fmt.Sprintf(", up to %s mm beyond the target", num(f.Outside[0].DepthMM, 1))
+		}
+	}
+	right = append(right,
+		[2]string{"Lethal volume", num(f.LethalML, 3) + " mL in all"},
+		[2]string{"Holes in target", holes},
+		[2]string{"Lethal outside margin", out},
+	)
+	if len(f.Avoid) == 0 {
+		right = append(right, [2]string{"Lethal in avoid", "no avoid structure"})
+	}
+	for _, a := range f.Avoid {
+		v := num(a.LethalML, 3) + " mL"
+		if !math.IsNaN(a.MaxDose) {
+			v += "; max dose " + dose(a.MaxDose) + " " + unit
+		}
+		right = append(right, [2]string{"Lethal in " + a.Name, v})
+	}
+	right = append(right, [2]string{"Dose model", orNA(f.Model)})
+	return left, right
+}
+
+func doseUnit(in *Input) string {
+	if in.Facts.DoseUnit == "" {
+		return "CEM43 min"
+	}
+	return in.Facts.DoseUnit
+}
+
+func orNA(s string) string {
+	if s == "" {
+		return "n/a"
+	}
+	return s
+}
+
+// kv draws label/value rows in a column of width w: labels in fl, values
+// in fv wrapped to the room right of the widest label. It returns the y
+// below the last row.
+func (p pen) kv(x, y, w vg.Length, fl, fv font.Face, rows [][2]string) vg.Length {
+	var lw vg.Length
+	for _, r := range rows {
+		lw = max(lw, fl.Width(r[0]))
+	}
+	lw += 6
+	for _, r := range rows {
+		p.text(x, y, fl, colFaint, r[0])
+		y = p.para(x+lw, y, w-lw, fv, colInk, r[1])
+	}
+	return y
+}
+
+func drawFacts(p pen, in *Input, x, y, w vg.Length) vg.Length {
+	y = p.heading(x, y, w, "Coverage")
+	left, right := factLines(in)
+	fl := sans(bodySize, false)
+	fv := sans(bodySize, true)
+	// The headline figure: big, at the left.
+	fb := sans(22, true)
+	p.text(x, y, fb, colInk, pct(in.Facts.Covered))
+	bw := fb.Width("100.0 %") + 10
+	yb := p.text(x, y+fb.Extents().Height, sans(smallSize, false), colFaint, "of the monitored target")
+	p.text(x, yb, sans(smallSize, false), colFaint, "at or above the threshold")
+	lw := (w - bw - gap) * 0.47
+	yl := p.kv(x+bw, y, lw, fl, fv, left)
+	yr := p.kv(x+bw+lw+gap, y, w-bw-gap-lw, fl, fv, right)
+	return max(yl, yr)
+}
+
+func drawPanels(p pen, in *Input, x, y, w vg.Length) vg.Length {
+	y = p.heading(x, y, w, "Planes")
+	const n = 3
+	pw := (w - 2*gap) / n
+	fh := sans(bodySize, true)
+	fc := sans(smallSize, false)
+	side := pw
+	bottom := y
+	for k := 0; k < n; k++ {
+		px := x + vg.Length(k)*(pw+gap)
+		var pan Panel
+		if k < len(in.Panels) {
+			pan = in.Panels[k]
+		}
+		yy := p.text(px, y, fh, colInk, orNA(pan.Title))
+		yy += 1
+		p.rect(px, yy, pw, side, colPanel)
+		if pan.Image != nil && !pan.Image.Bounds().Empty() {
+			b := pan.Image.Bounds()
+			iw, ih := vg.Length(b.Dx()), vg.Length(b.Dy())
+			s := vg.Length(math.Min(float64(pw/iw), float64(side/ih)))
+			dw, dh := iw*s, ih*s
+			ox, oy := px+(pw-dw)/2, yy+(side-dh)/2
+			p.c.DrawImage(vg.Rectangle{Min: p.pt(ox, oy+dh), Max: p.pt(ox+dw, oy)}, pan.Image)
+		} else {
+			p.text(px+6, yy+6, fc, color.White, "no image")
+		}
+		yy += side + 1.5
+		for _, l := range wrap(fc, pan.Caption, pw) {
+			yy = p.text(px, yy, fc, colFaint, l)
+		}
+		if yy > bottom {
+			bottom = yy
+		}
+	}
+	return drawLegend(p, in, x, bottom+2, w)
+}
+
+// drawLegend explains the overlay colours and line styles of the panels.
+func drawLegend(p pen, in *Input, x, y, w vg.Length) vg.Length {
+	f := sans(smallSize, false)
+	h := f.Extents().Height
+	items := []struct {
+		name  string
+		clr   color.Color
+		style int // 0 solid line, 1 dashed, 2 dotted, 3 fill, 4 thick line
+	}{
+		{"target", review.ColorTarget, 0},
+		{"margin", review.ColorMargin, 1},
+		{"lethal isoline", review.ColorLethal, 4},
+		{"hole", review.ColorHole, 3},
+		{"lethal outside margin", review.ColorSpill, 3},
+		{"avoid", review.ColorAvoid, 2},
+		{"not monitored", review.ColorNotMonitored, 3},
+	}
+	cx := x
+	for _, it := range items {
+		sw := vg.Length(16)
+		p.rect(cx, y, sw, h, colPanel)
+		mid := y + h/2
+		switch it.style {
+		case 0:
+			p.line(cx+2, mid, cx+sw-2, mid, 1.2, it.clr, nil)
+		case 1:
+			p.line(cx+2, mid, cx+sw-2, mid, 1.2, it.clr, []vg.Length{2.5, 1.5})
+		case 2:
+			p.line(cx+2, mid, cx+sw-2, mid, 1.2, it.clr, []vg.Length{0.8, 1.2})
+		case 3:
+			p.rect(cx+3, y+2, sw-6, h-4, it.clr)
+		case 4:
+			p.line(cx+2, mid, cx+sw-2, mid, 2, it.clr, nil)
+		}
+		cx += sw + 2
+		p.text(cx, y, f, colInk, it.name)
+		cx += f.Width(it.name) + 8
+	}
+	if ws := in.Wash; ws != nil && ws.Floor > 0 && ws.Ceiling > ws.Floor {
+		lo, hi := fmt.Sprintf("%g", ws.Floor), fmt.Sprintf("%g", ws.Ceiling)+" "+doseUnit(in)+" (log)"
+		bw := vg.Length(50)
+		need := f.Width("dose ") + f.Width(lo) + 3 + bw + 3 + f.Width(hi)
+		if cx+need > x+w {
+			y += h + 2
+			cx = x
+		}
+		p.legendWash(cx, y, h, bw, f, lo, hi)
+	}
+	return y + h
+}
+
+// legendWash draws the dose colour bar "dose LO [bar] HI" from x and
+// returns the x after it.
+func (p pen) legendWash(x, y, h, bw vg.Length, f font.Face, lo, hi string) vg.Length {
+	p.text(x, y, f, colInk, "dose")
+	x += f.Width("dose") + 4
+	p.text(x, y, f, colInk, lo)
+	x += f.Width(lo) + 3
+	const steps = 40
+	for s := 0; s < steps; s++ {
+		p.rect(x+bw*vg.Length(s)/steps, y+1, bw/steps+0.2, h-2, view.Colormap(float64(s)/(steps-1)))
+	}
+	x += bw + 3
+	p.text(x, y, f, colInk, hi)
+	return x + f.Width(hi)
+}
+
+// plotFonts sets every text of pl to Liberation Sans at small sizes.
+func plotFonts(pl *plot.Plot) {
+	set := func(s *font.Font, size vg.Length) {
+		s.Typeface, s.Variant, s.Size = "Liberation", "Sans", size
+	}
+	set(&pl.Title.TextStyle.Font, headSize-1)
+	set(&pl.X.Label.TextStyle.Font, smallSize)
+	set(&pl.Y.Label.TextStyle.Font, smallSize)
+	set(&pl.X.Tick.Label.Font, smallSize-0.5)
+	set(&pl.Y.Tick.Label.Font, smallSize-0.5)
+	set(&pl.Legend.TextStyle.Font, smallSize-0.5)
+	pl.Title.TextStyle.Color = colInk
+	pl.Title.TextStyle.Font.Variant = boldVariant
+	pl.X.Padding, pl.Y.Padding = 2, 2
+	pl.Legend.Top = false
+	pl.Legend.Left = true
+	pl.Legend.XOffs, pl.Legend.YOffs = 4, 4
+	pl.Legend.ThumbnailWidth = 12
+}
+
+// logTicks labels a log axis at decades.
+type logTicks struct{}
+
+func (logTicks) Ticks(min, max float64) []plot.Tick {
+	var ts []plot.Tick
+	for e := math.Floor(math.Log10(min)); e <= math.Ceil(math.Log10(max)); e++ {
+		v := math.Pow(10, e)
+		if v < min*0.999 || v > max*1.001 {
+			continue
+		}
+		ts = append(ts, plot.Tick{Value: v, Label: strings.Replace(fmt.Sprintf("%g", v), "e+0", "e", 1)})
+		for m := 2.0; m < 10; m++ {
+			if mv := m * v; mv <= max && mv >= min {
+				ts = append(ts, plot.Tick{Value: mv})
+			}
+		}
+	}
+	return ts
+}
+
+// curvePlot builds a log-x plot of pts with the threshold marked.
+func curvePlot(title, xlabel, ylabel string, pts []CurvePoint, threshold float64, clr color.Color, legend string) *plot.Plot {
+	pl := plot.New()
+	plotFonts(pl)
+	pl.Title.Text = title
+	pl.X.Label.Text = xlabel
+	pl.Y.Label.Text = ylabel
+	pl.Y.Min, pl.Y.Max = 0, 100
+	var xy, lo, hi plotter.XYs
+	xmin, xmax := math.Inf(1), math.Inf(-1)
+	for _, q := range pts {
+		if !(q.X > 0) || math.IsNaN(q.Y) || math.IsInf(q.X, 0) {
+			continue
+		}
+		xy = append(xy, plotter.XY{X: q.X, Y: 100 * q.Y})
+		if !math.IsNaN(q.Low) && !math.IsNaN(q.High) {
+			lo = append(lo, plotter.XY{X: q.X, Y: 100 * q.Low})
+			hi = append(hi, plotter.XY{X: q.X, Y: 100 * q.High})
+		}
+		xmin, xmax = math.Min(xmin, q.X), math.Max(xmax, q.X)
+	}
+	if len(xy) < 2 {
+		pl.X.Min, pl.X.Max = 1, 1000
+		pl.X.Scale = plot.LogScale{}
+		pl.X.Tick.Marker = logTicks{}
+		return pl
+	}
+	if threshold > 0 {
+		xmin, xmax = math.Min(xmin, threshold), math.Max(xmax, threshold)
+	}
+	pl.X.Min, pl.X.Max = xmin, xmax
+	pl.X.Scale = plot.LogScale{}
+	pl.X.Tick.Marker = logTicks{}
+	pl.Add(plotter.NewGrid())
+	if len(lo) >= 2 && len(lo) == len(xy) {
+		poly := append(plotter.XYs{}, lo...)
+		for n := len(hi) - 1; n >= 0; n-- {
+			poly = append(poly, hi[n])
+		}
+		if pg, err := plotter.NewPolygon(poly); err == nil {
+			pg.Color = color.Gray{0xD8}
+			pg.LineStyle.Width = 0
+			pl.Add(pg)
+			pl.Legend.Add("uncertainty band", pg)
+		}
+	}
+	if l, err := plotter.NewLine(xy); err == nil {
+		l.Color = clr
+		l.Width = 1.4
+		pl.Add(l)
+		if legend != "" {
+			pl.Legend.Add(legend, l)
+		}
+	}
+	if threshold > 0 {
+		if t, err := plotter.NewLine(plotter.XYs{{X: threshold, Y: 0}, {X: threshold, Y: 100}}); err == nil {
+			t.Color = colInk
+			t.Width = 0.8
+			t.Dashes = []vg.Length{3, 2}
+			pl.Add(t)
+			pl.Legend.Add(fmt.Sprintf("threshold %s", dose(threshold)), t)
+		}
+	}
+	return pl
+}
+
+func drawPlots(p pen, in *Input, x, y, w vg.Length) vg.Length {
+	const h = 165
+	pw := (w - gap) / 2
+	unit := doseUnit(in)
+	dvh := curvePlot("Target dose-volume histogram", "dose ("+unit+", log)", "volume >= dose (%)", in.DVH, in.Facts.Threshold, review.ColorTarget, "target")
+	cov := curvePlot("Coverage versus threshold", "threshold ("+unit+", log)", "covered (%)", in.CoverageVsThreshold, in.Facts.Threshold, colInk, "covered")
+	for k, pl := range []*plot.Plot{dvh, cov} {
+		px := x + vg.Length(k)*(pw+gap)
+		dc := draw.Canvas{Canvas: p.c, Rectangle: vg.Rectangle{Min: p.pt(px, y+h), Max: p.pt(px+pw, y)}}
+		pl.Draw(dc)
+	}
+	return y + h
+}
+
+func drawTables(p pen, in *Input, x, y, w vg.Length) vg.Length {
+	tw := w * 0.64
+	qx := x + tw + gap
+	qw := w - tw - gap
+	yt := drawSonications(p, in, x, y, tw)
+	yq := drawQuality(p, in, qx, y, qw)
+	return vg.Length(math.Max(float64(yt), float64(yq)))
+}
+
+// maxRows is the number of sonication rows the page has room for.
+const maxRows = 12
+
+func drawSonications(p pen, in *Input, x, y, w vg.Length) vg.Length {
+	y = p.heading(x, y, w, "Sonications")
+	fh := sans(smallSize, true)
+	fb := sans(smallSize, false)
+	cols := []struct {
+		name  string
+		width float64 // fraction of w
+		right bool
+	}{
+		{"#", 0.05, true}, {"label", 0.25, false}, {"frames", 0.09, true}, {"peak °C", 0.10, true},
+		{"+lethal mL", 0.13, true}, {"+coverage", 0.12, true}, {"outside mL", 0.13, true}, {"flagged", 0.11, true},
+	}
+	xs := make([]vg.Length, len(cols)+1)
+	xs[0] = x
+	for n, c := range cols {
+		xs[n+1] = xs[n] + w*vg.Length(c.width)
+	}
+	cell := func(n int, y vg.Length, f font.Face, clr color.Color, s string) {
+		if cols[n].right {
+			p.textRight(xs[n+1]-3, y, f, clr, s)
+			return
+		}
+		p.text(xs[n], y, f, clr, clip(f, s, xs[n+1]-xs[n]-2))
+	}
+	for n, c := range cols {
+		cell(n, y, fh, colInk, c.name)
+	}
+	y += fh.Extents().Height + 1
+	if len(in.Sonications) == 0 {
+		return p.text(x, y, fb, colFaint, "no sonications")
+	}
+	rh := fb.Extents().Height
+	for r, s := range in.Sonications {
+		if r == maxRows && len(in.Sonications) > maxRows+1 {
+			y = p.text(x, y, fb, colFaint, fmt.Sprintf("... %d more sonications in the metrics file", len(in.Sonications)-maxRows))
+			break
+		}
+		if r%2 == 1 {
+			p.rect(x, y, w, rh, colShade)
+		}
+		clr := color.Color(colInk)
+		label := s.Label
+		if s.Excluded {
+			clr = colFaint
+			label = "(excluded) " + label
+		}
+		cell(0, y, fb, clr, fmt.Sprintf("%d", s.Number))
+		cell(1, y, fb, clr, label)
+		cell(2, y, fb, clr, fmt.Sprintf("%d", s.Frames))
+		cell(3, y, fb, clr, num(s.PeakC, 1))
+		cell(4, y, fb, clr, num(s.LethalML, 3))
+		cell(5, y, fb, clr, pct(s.AddedCoverage))
+		cell(6, y, fb, clr, num(s.OutsideML, 3))
+		cell(7, y, fb, clr, fmt.Sprintf("%d", s.Flagged))
+		y += rh
+	}
+	return y
+}
+
+func drawQuality(p pen, in *Input, x, y, w vg.Length) vg.Length {
+	y = p.heading(x, y, w, "Thermometry quality")
+	q := in.Quality
+	fl := sans(smallSize, false)
+	fv := sans(smallSize, true)
+	y = p.kv(x, y, w, fl, fv, [][2]string{
+		{"frames analysed", fmt.Sprintf("%d", q.Frames)},
+		{"frames flagged", fmt.Sprintf("%d", q.Flagged)},
+		{"largest motion (1 − r)", num(q.MaxMotion, 3)},
+		{"largest drift", num(q.MaxDriftC, 2) + " °C"},
+		{"lowest SNR", num(q.MinSNR, 0)},
+		{"suspected phase wraps", fmt.Sprintf("%d", q.Wraps)},
+		{"invalidated voxels", fmt.Sprintf("%d voxel-frames", q.Invalid)},
+	})
+	for n, note := range q.Notes {
+		if n == 4 {
+			y = p.text(x, y, fl, colFaint, fmt.Sprintf("... %d more notes", len(q.Notes)-4))
+			break
+		}
+		y = p.para(x, y, w, fl, colInk, "- "+note)
+	}
+	return y
+}
+
+func drawMethods(p pen, in *Input, x, y, w vg.Length) vg.Length {
+	y = p.heading(x, y, w, "Methods and settings")
+	fl := sans(smallSize, false)
+	fv := sans(smallSize, true)
+	colW := (w - gap) / 2
+	half := (len(in.Methods) + 1) / 2
+	var l, r [][2]string
+	for n, s := range in.Methods {
+		if n < half {
+			l = append(l, [2]string{s.Name, s.Value})
+		} else {
+			r = append(r, [2]string{s.Name, s.Value})
+		}
+	}
+	y = max(p.kv(x, y, colW, fl, fv, l), p.kv(x+colW+gap, y, colW, fl, fv, r)) + 2
+	sha := in.InputsSHA256
+	if sha == "" {
+		sha = "not computed"
+	}
+	sw := in.Software
+	if sw == "" {
+		sw = "dosecover"
+	}
+	lw := fl.Width("Inputs SHA-256") + 6
+	p.text(x, y, fl, colFaint, "Inputs SHA-256")
+	y = p.text(x+lw, y, mono(smallSize), colInk, sha)
+	p.text(x, y, fl, colFaint, "Software")
+	return p.text(x+lw, y, fv, colInk, sw)
+}
+
+func drawFoot(p pen, in *Input, x, y, w vg.Length) {
+	cautions := in.Cautions
+	if len(cautions) == 0 {
+		cautions = DefaultCautions
+	}
+	f := sans(smallSize, false)
+	fb := sans(smallSize, true)
+	var lines []string
+	for _, c := range cautions {
+		lines = append(lines, wrap(f, c, w-12)...)
+	}
+	lh := f.Extents().Height
+	h := fb.Extents().Height + vg.Length(len(lines))*lh + 6
+	// Anchor the cautions to the bottom margin when there is room.
+	if yb := PageHeight - margin - h; yb > y {
+		y = yb
+	}
+	p.rect(x, y, w, h, colShade)
+	p.rect(x, y, 2, h, colAccent)
+	yy := p.text(x+6, y+3, fb, colInk, "Cautions")
+	for _, l := range lines {
+		yy = p.text(x+6, yy, f, colInk, l)
+	}
+}
+
+// imageBounds is a helper for tests and callers that want the panel size
+// in pixels at a given resolution.
+func panelPixels(dpi float64) image.Point {
+	w := (PageWidth - 2*margin - 2*gap) / 3
+	n := int(w.Dots(dpi))
+	return image.Pt(n, n)
+}

@@ -1,0 +1,122 @@
+package report
+
+import (
+	"bytes"
+	"encoding/binary"
+	"fmt"
+	"hash/crc32"
+	"image"
+	"image/png"
+	"io"
+
+	"gonum.org/v1/plot/vg/vgimg"
+)
+
+// DefaultDPI is the resolution of the PNG report unless asked otherwise:
+// 150 dpi prints legibly on A4 (1240 × 1754 pixels).
+const DefaultDPI = 150
+
+// RenderImage draws the report page at dpi (at least 72) and returns it.
+func RenderImage(in *Input, dpi int) (image.Image, error) {
+	if dpi < 72 {
+		return nil, fmt.Errorf("report: resolution %d dpi is below 72", dpi)
+	}
+	c := vgimg.NewWith(vgimg.UseWH(PageWidth, PageHeight), vgimg.UseDPI(dpi))
+	if err := Render(c, in); err != nil {
+		return nil, err
+	}
+	return c.Image(), nil
+}
+
+// RenderPNG writes the report page as a PNG at dpi. The PNG carries the
+// title, the case label and the software as tEXt chunks (PNG 1.2, section
+// 4.2.3.1) and its resolution as a pHYs chunk (section 4.2.4.4).
+func RenderPNG(w io.Writer, in *Input, dpi int) error {
+	img, err := RenderImage(in, dpi)
+	if err != nil {
+		return err
+	}
+	var buf bytes.Buffer
+	enc := png.Encoder{CompressionLevel: png.DefaultCompression}
+	if err := enc.Encode(&buf, img); err != nil {
+		return fmt.Errorf("report: encoding PNG: %w", err)
+	}
+	title := in.Title
+	if title == "" {
+		title = "Thermal dose coverage review"
+	}
+	out, err := addPNGChunks(buf.Bytes(), dpi, [][2]string{
+		{"Title", title + " - " + in.CaseLabel},
+		{"Software", in.Software},
+		{"Disclaimer", "For retrospective review, QA and teaching; not a planning or treatment system."},
+	})
+	if err != nil {
+		return err
+	}
+	_, err = w.Write(out)
+	return err
+}
+
+// addPNGChunks inserts pHYs and tEXt chunks after the IHDR chunk of an
+// encoded PNG. tEXt holds Latin-1; other runes are replaced by '?'.
+func addPNGChunks(data []byte, dpi int, texts [][2]string) ([]byte, error) {
+	const sigLen = 8
+	if len(data) < sigLen+25 || string(data[12:16]) != "IHDR" {
+		return nil, fmt.Errorf("report: encoded PNG has no IHDR chunk")
+	}
+	ihdrEnd := sigLen + 8 + int(binary.BigEndian.Uint32(data[8:12])) + 4
+	var out bytes.Buffer
+	out.Write(data[:ihdrEnd])
+	chunk := func(typ string, body []byte) {
+		var hdr [8]byte
+		binary.BigEndian.PutUint32(hdr[:4], uint32(len(body)))
+		copy(hdr[4:], typ)
+		out.Write(hdr[:])
+		out.Write(body)
+		crc := crc32.NewIEEE()
+		crc.Write([]byte(typ))
+		crc.Write(body)
+		var c [4]byte
+		binary.BigEndian.PutUint32(c[:], crc.Sum32())
+		out.Write(c[:])
+	}
+	ppm := uint32(float64(dpi)/0.0254 + 0.5) // pixels per metre
+	phys := make([]byte, 9)
+	binary.BigEndian.PutUint32(phys[0:4], ppm)
+	binary.BigEndian.PutUint32(phys[4:8], ppm)
+	phys[8] = 1 // unit: metre
+	chunk("pHYs", phys)
+	for _, t := range texts {
+		if t[1] == "" {
+			continue
+		}
+		body := append([]byte(t[0]), 0)
+		for _, r := range t[1] {
+			if r > 0xFF || r == 0 {
+				r = '?'
+			}
+			body = append(body, byte(r))
+		}
+		chunk("tEXt", body)
+	}
+	out.Write(data[ihdrEnd:])
+	return out.Bytes(), nil
+}
+
+// RenderPDF writes the report as a one-page PDF with the same layout as the
+// PNG; text stays text (fonts embedded as UTF-8 subsets), images are
+// embedded as PNG. The document's creation date is the review date.
+func RenderPDF(w io.Writer, in *Input) error {
+	c := newPDFCanvas(PageWidth, PageHeight)
+	if err := Render(c, in); err != nil {
+		return err
+	}
+	title := in.Title
+	if title == "" {
+		title = "Thermal dose coverage review"
+	}
+	if err := c.writeTo(w, title+" - "+in.CaseLabel, in.ReviewDate); err != nil {
+		return fmt.Errorf("report: writing PDF: %w", err)
+	}
+	return nil
+}

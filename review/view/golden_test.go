@@ -1,0 +1,188 @@
+package view
+
+import (
+	"flag"
+	"fmt"
+	"image"
+	"image/png"
+	"math"
+	"os"
+	"path/filepath"
+	"sync"
+	"testing"
+
+	"dosecover/dosemap"
+)
+
+var update = flag.Bool("update", false, "rewrite the golden images in testdata/golden")
+
+var (
+	phOnce sync.Once
+	ph     *phantom
+)
+
+func testPhantom() *phantom {
+	phOnce.Do(func() { ph = newPhantom() })
+	return ph
+}
+
+// goldenCase is one rendered picture of the phantom.
+type goldenCase struct {
+	name   string
+	render func(t *testing.T) image.Image
+}
+
+func goldenCases() []goldenCase {
+	ph := testPhantom()
+	ga := ph.anatomy.Geometry
+	centre := dosemap.Vec3{0, 0, 0}
+	return []goldenCase{
+		{"axial", func(t *testing.T) image.Image {
+			p := AcquisitionPlane(ga, 20) // z = 0
+			s := ph.scene(p)
+			s.Caption = "Phantom A · axial · z = 0.0 mm"
+			return mustRender(t, s, FitView(p, 512, 512))
+		}},
+		{"axial_zoom", func(t *testing.T) image.Image {
+			p := AcquisitionPlane(ga, 20)
+			s := ph.scene(p)
+			s.Isodoses = []float64{30, 1000}
+			v := FitView(p, 512, 512)
+			cx, cy := v.ToDisplay(p, func() Point { x, y := p.Pixel(centre); return Point{x, y} }())
+			v = v.ZoomAt(p, cx, cy, 3.5)
+			v = v.Pan(p, -60, 0)
+			s.Caption = "Phantom A · axial · z = 0.0 mm · zoom 3.5×\nisodoses 30, 240, 1000 CEM43"
+			return mustRender(t, s, v)
+		}},
+		{"coronal", func(t *testing.T) image.Image {
+			p := PlaneThrough(ga, RowNormal, centre, 0)
+			s := ph.scene(p)
+			s.Caption = "Phantom A · coronal · y = 0.0 mm"
+			return mustRender(t, s, FitView(p, 512, 320))
+		}},
+		{"oblique", func(t *testing.T) image.Image {
+			// Tilted 30° from axial about the patient's left-right axis.
+			a := 30 * math.Pi / 180
+			p, err := ObliquePlane(ga, dosemap.Vec3{0, 0, 2}, dosemap.Vec3{1, 0, 0},
+				dosemap.Vec3{0, math.Cos(a), math.Sin(a)}, 1)
+			if err != nil {
+				t.Fatal(err)
+			}
+			s := ph.scene(p)
+			s.Caption = "Phantom A · oblique 30°"
+			return mustRender(t, s, FitView(p, 448, 448))
+		}},
+		{"colorbar", func(t *testing.T) image.Image {
+			img, err := ColorBar(DefaultDoseScale(), phLethal, 120, 360)
+			if err != nil {
+				t.Fatal(err)
+			}
+			return img
+		}},
+		{"key", func(t *testing.T) image.Image { return OverlayKey(DefaultStyle(), 260) }},
+	}
+}
+
+func mustRender(t *testing.T, s *Scene, v View) image.Image {
+	t.Helper()
+	img, err := Render(s, v)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return img
+}
+
+// TestGolden compares the rendered phantom scenes with the stored images
+// in testdata/golden (go test -run Golden -update rewrites them). A pixel
+// may differ by up to 8 levels per channel (anti-aliasing rounding across
+// platforms); at most 0.2 % of the pixels may differ by more.
+func TestGolden(t *testing.T) {
+	for _, c := range goldenCases() {
+		t.Run(c.name, func(t *testing.T) {
+			got := c.render(t)
+			path := filepath.Join("testdata", "golden", c.name+".png")
+			if *update {
+				if err := writePNG(path, got); err != nil {
+					t.Fatal(err)
+				}
+				return
+			}
+			f, err := os.Open(path)
+			if err != nil {
+				t.Fatalf("reading golden image: %v (run go test -run Golden -update)", err)
+			}
+			defer f.Close()
+			want, err := png.Decode(f)
+			if err != nil {
+				t.Fatalf("decoding %s: %v", path, err)
+			}
+			if err := compareImages(got, want, 8, 0.002); err != nil {
+				_ = writePNG(filepath.Join(t.TempDir(), c.name+".png"), got)
+				t.Errorf("%s: %v", path, err)
+			}
+		})
+	}
+}
+
+func writePNG(path string, img image.Image) error {
+	f, err := os.Create(path)
+	if err != nil {
+		return err
+	}
+	if err := png.Encode(f, img); err != nil {
+		f.Close()
+		return err
+	}
+	return f.Close()
+}
+
+// compareImages reports whether got and want differ in size or in more
+// than frac of their pixels by more than tol levels in a channel.
+func compareImages(got, want image.Image, tol int, frac float64) error {
+	if got.Bounds().Size() != want.Bounds().Size() {
+		return fmt.Errorf("size %v, golden %v", got.Bounds().Size(), want.Bounds().Size())
+	}
+	b := got.Bounds()
+	wb := want.Bounds()
+	bad, worst := 0, 0
+	for y := 0; y < b.Dy(); y++ {
+		for x := 0; x < b.Dx(); x++ {
+			r1, g1, b1, a1 := got.At(b.Min.X+x, b.Min.Y+y).RGBA()
+			r2, g2, b2, a2 := want.At(wb.Min.X+x, wb.Min.Y+y).RGBA()
+			d := 0
+			for _, p := range [][2]uint32{{r1, r2}, {g1, g2}, {b1, b2}, {a1, a2}} {
+				dd := int(p[0]>>8) - int(p[1]>>8)
+				if dd < 0 {
+					dd = -dd
+				}
+				d = max(d, dd)
+			}
+			worst = max(worst, d)
+			if d > tol {
+				bad++
+			}
+		}
+	}
+	if n := b.Dx() * b.Dy(); float64(bad) > frac*float64(n) {
+		return fmt.Errorf("%d of %d pixels differ by more than %d levels (worst %d)", bad, n, tol, worst)
+	}
+	return nil
+}
+
+// TestCompareImagesDetectsChange guards the golden comparison itself: a
+// changed block of pixels must be reported.
+func TestCompareImagesDetectsChange(t *testing.T) {
+	a := image.NewRGBA(image.Rect(0, 0, 50, 50))
+	b := image.NewRGBA(image.Rect(0, 0, 50, 50))
+	if err := compareImages(a, b, 8, 0.002); err != nil {
+		t.Fatalf("identical images reported different: %v", err)
+	}
+	for y := 10; y < 13; y++ {
+		for x := 10; x < 13; x++ {
+			b.Pix[b.PixOffset(x, y)] = 200
+		}
+	}
+	if compareImages(a, b, 8, 0.002) == nil {
+		t.Error("9 changed pixels of 2500 not reported")
+	}
+}
