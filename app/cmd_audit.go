@@ -37,7 +37,7 @@ var auditAnalysis = func(settingsFile string) (audit.Analyzer, []byte, []audit.C
 	if err != nil {
 		return nil, nil, nil, err
 	}
-	return audit.NewAnalyzer(s, nil), js, audit.SettingsColumns(s), nil
+	return audit.NewAnalyzer(s, audit.ReportArtifacts), js, audit.SettingsColumns(s), nil
 }
 
 func auditUsage(w io.Writer, fs *flag.FlagSet) {

@@ -47,6 +47,11 @@ func peakHeap() (stop func() uint64) {
 // folder per iteration) and reports cases per minute and the peak heap
 // above the starting heap, per worker.
 func benchAudit(b *testing.B, in string, cases int, workers int, a Analyzer) {
+	benchAuditSettings(b, in, cases, workers, a, nil)
+}
+
+// benchAuditSettings is benchAudit with settings stored in the records.
+func benchAuditSettings(b *testing.B, in string, cases int, workers int, a Analyzer, settings []byte) {
 	b.Helper()
 	runtime.GC()
 	var base runtime.MemStats
@@ -55,12 +60,17 @@ func benchAudit(b *testing.B, in string, cases int, workers int, a Analyzer) {
 	b.ResetTimer()
 	for i := 0; i < b.N; i++ {
 		out := filepath.Join(b.TempDir(), fmt.Sprint("out", i))
-		sum, err := Run(context.Background(), Config{Inputs: []string{in}, OutDir: out, Workers: workers, Analyzer: a})
+		sum, err := Run(context.Background(), Config{Inputs: []string{in}, OutDir: out, Workers: workers, Analyzer: a, Settings: settings})
 		if err != nil {
 			b.Fatal(err)
 		}
 		if sum.Analysed != cases {
-			b.Fatalf("analysed %d of %d cases: %+v", sum.Analysed, cases, sum.Rows)
+			for _, r := range sum.Rows {
+				if r.Status != StatusOK {
+					b.Logf("%s: %s: %s", r.Case, r.Status, oneLine(r.Reason))
+				}
+			}
+			b.Fatalf("analysed %d of %d cases", sum.Analysed, cases)
 		}
 	}
 	b.StopTimer()
