@@ -33,7 +33,8 @@ type Config struct {
 	Workers int
 	// Resume skips cases whose inputs (by InputHash) already have a
 	// finished record in OutDir made with the same settings (by
-	// SettingsHash); failed cases are tried again.
+	// SettingsHash) and the same version of dosecover; failed cases are
+	// tried again.
 	Resume bool
 	// Shard restricts the run to one part of the case list (zero: all).
 	Shard Shard
@@ -425,13 +426,15 @@ func resumeKey(inputHash, settingsHash string, deidentified bool) string {
 }
 
 // resumeIndex reads the finished records below outDir/cases. A record
-// counts when its status is ok or incomplete and all its artifacts exist.
+// counts when its status is ok or incomplete, it was made by this version
+// of dosecover (so one table never mixes versions of the method) and all
+// its artifacts exist.
 func resumeIndex(outDir string) map[string]*Record {
 	index := map[string]*Record{}
 	recs, _ := filepath.Glob(filepath.Join(outDir, "cases", "*", RecordFile))
 	for _, p := range recs {
 		rec, err := ReadRecord(p)
-		if err != nil || rec.InputSHA256 == "" || (rec.Status != StatusOK && rec.Status != StatusIncomplete) {
+		if err != nil || rec.InputSHA256 == "" || rec.Version != dosemap.Version || (rec.Status != StatusOK && rec.Status != StatusIncomplete) {
 			continue
 		}
 		complete := true
