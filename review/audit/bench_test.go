@@ -44,8 +44,10 @@ func peakHeap() (stop func() uint64) {
 }
 
 // benchAudit runs a whole audit of the cases below in (a fresh output
-// folder per iteration) and reports cases per minute and the peak heap
-// above the starting heap, per worker.
+// folder per iteration) and reports cases per minute, the peak heap above
+// the starting heap per worker, the CPU seconds per case and the average
+// number of cores kept busy (which tells a starved run on a shared machine
+// from a framework that does not scale).
 func benchAudit(b *testing.B, in string, cases int, workers int, a Analyzer) {
 	benchAuditSettings(b, in, cases, workers, a, nil)
 }
@@ -57,6 +59,7 @@ func benchAuditSettings(b *testing.B, in string, cases int, workers int, a Analy
 	var base runtime.MemStats
 	runtime.ReadMemStats(&base)
 	stop := peakHeap()
+	cpu0, cpuOK := cpuTime()
 	b.ResetTimer()
 	for i := 0; i < b.N; i++ {
 		out := filepath.Join(b.TempDir(), fmt.Sprint("out", i))
@@ -74,7 +77,14 @@ func benchAuditSettings(b *testing.B, in string, cases int, workers int, a Analy
 		}
 	}
 	b.StopTimer()
+	cpu1, _ := cpuTime()
 	peak := stop()
+	if cpuOK && b.Elapsed() > 0 {
+		// Cores kept busy on average: near the number of workers when the
+		// machine is otherwise idle; lower when other work takes the CPU.
+		b.ReportMetric((cpu1-cpu0).Seconds()/b.Elapsed().Seconds(), "cores-used")
+		b.ReportMetric((cpu1-cpu0).Seconds()/float64(b.N*cases), "cpu-s/case")
+	}
 	perCase := b.Elapsed().Minutes() / float64(b.N*cases)
 	b.ReportMetric(1/perCase, "cases/min")
 	if peak > base.HeapInuse {
