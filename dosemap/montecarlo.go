@@ -7,11 +7,18 @@ import (
 	"math/rand/v2"
 )
 
-// MonteCarlo propagates thermometry noise into dose. Each trial adds to
-// every valid temperature of every series an independent Gaussian error of
-// the voxel's standard deviation (the series' Sigma; a voxel of unknown
-// Sigma gets none), computes the dose of each series with m and adds them up
-// (as SumDose does). fn receives each trial's cumulative dose: Len()
+// MonteCarlo propagates thermometry noise into dose. Sigma of a series is
+// the noise of a temperature difference between a frame and the baseline
+// (see PRF.NoiseSigma: √2 times the noise of one image), so each trial
+// draws, per voxel, one baseline error shared by all frames of the series
+// and an independent error per frame, each of standard deviation Sigma/√2:
+//
+//	T' = T + (Sigma/√2)·(Z_baseline + Z_frame),  Z standard normal,
+//
+// which gives every frame the noise Sigma and frames the correlation ½
+// they have through their common baseline. A voxel of unknown Sigma gets
+// no noise. The dose of each series is computed with m and the doses add
+// up as in SumDose. fn receives each trial's cumulative dose: Len()
 // values, NaN outside mask; the slice is reused and valid only during the
 // call. A nil mask means every voxel; only masked voxels are computed.
 //
@@ -74,7 +81,7 @@ func MonteCarlo(series []*TemperatureSeries, m DoseModel, mask []bool, trials in
 		for q, n := range idx {
 			if ts.Sigma != nil {
 				if v := ts.Sigma[n]; v > 0 && !math.IsInf(float64(v), 0) {
-					p.sigma[q] = v
+					p.sigma[q] = v / math.Sqrt2
 				}
 			}
 		}
@@ -90,15 +97,21 @@ func MonteCarlo(series []*TemperatureSeries, m DoseModel, mask []bool, trials in
 	acc := newAccumulator(rm, len(idx))
 	noisy := make([]float32, len(idx))
 	res := make([]float32, len(idx))
+	shared := make([]float32, len(idx))
 	for trial := 0; trial < trials; trial++ {
 		rng := rand.New(rand.NewPCG(seed, uint64(trial)))
 		acc.reset()
 		for _, p := range ps {
 			acc.start()
+			for q, sg := range p.sigma {
+				if sg != 0 {
+					shared[q] = float32(rng.NormFloat64())
+				}
+			}
 			for f, fr := range p.frames {
 				for q, v := range fr {
 					if sg := p.sigma[q]; sg != 0 && v == v {
-						v += sg * float32(rng.NormFloat64())
+						v += sg * (shared[q] + float32(rng.NormFloat64()))
 					}
 					noisy[q] = v
 				}
@@ -126,19 +139,31 @@ func monteCarloSlow(series []*TemperatureSeries, m DoseModel, idx []int, trials 
 		}
 		copies[s] = &c
 	}
+	sigma := func(ts *TemperatureSeries, n int) float32 {
+		if ts.Sigma != nil {
+			if sg := ts.Sigma[n]; sg > 0 && !math.IsInf(float64(sg), 0) {
+				return sg / math.Sqrt2
+			}
+		}
+		return 0
+	}
+	shared := make([]float32, len(idx))
 	for trial := 0; trial < trials; trial++ {
 		rng := rand.New(rand.NewPCG(seed, uint64(trial)))
 		maps := make([]*DoseMap, len(series))
 		for s, ts := range series {
 			c := copies[s]
+			for q, n := range idx {
+				if sigma(ts, n) != 0 {
+					shared[q] = float32(rng.NormFloat64())
+				}
+			}
 			for f, fr := range ts.Frames {
 				copy(c.Frames[f], fr)
-				for _, n := range idx {
+				for q, n := range idx {
 					v := fr[n]
-					if ts.Sigma != nil {
-						if sg := ts.Sigma[n]; sg > 0 && v == v && !math.IsInf(float64(sg), 0) {
-							v += sg * float32(rng.NormFloat64())
-						}
+					if sg := sigma(ts, n); sg != 0 && v == v {
+						v += sg * (shared[q] + float32(rng.NormFloat64()))
 					}
 					c.Frames[f][n] = v
 				}

@@ -191,6 +191,9 @@ func (c *canvas) stroke(pts []Point, closed bool, width float64, style LineStyle
 	c.flush(col, 1)
 }
 
+// isodoseColor draws the further isodose lines and their labels.
+var isodoseColor = color.RGBA{0xD8, 0xD8, 0xD8, 0xFF}
+
 // haloColor outlines lines and letters.
 var haloColor = color.RGBA{0, 0, 0, 0xFF}
 

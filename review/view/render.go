@@ -26,7 +26,7 @@ type Scene struct {
 	// the Lethal isoline of Dose: pass the analysis' own lethal mask so the
 	// picture shows exactly the region its figures count.
 	LethalRegion Region
-	Isodoses     []float64 // further isodose levels, drawn thin in their wash colour
+	Isodoses     []float64 // further isodose levels: thin light grey lines, labelled
 	HideWash     bool      // draw the isolines without the colourwash
 
 	Target, Margin Region   // solid and dashed outlines
@@ -88,6 +88,8 @@ type Renderer struct {
 	samples map[*dosemap.Volume][]float32 // extra volumes on the plane
 	levels  map[levelKey][]Polyline       // their isolines
 	doseBox image.Rectangle               // plane pixels with positive dose
+	auto    Window                        // AutoWindow of autoFor
+	autoFor *dosemap.Volume
 	cols    []column
 	scratch []uint8
 	pts     []Point
@@ -121,6 +123,7 @@ func NewRenderer() *Renderer {
 func (r *Renderer) Invalidate() {
 	r.key = cacheKey{}
 	r.samples, r.levels = nil, nil
+	r.autoFor = nil
 	r.fields = map[regionID]*regionField{}
 	r.binary = nil
 }
@@ -290,7 +293,10 @@ func (r *Renderer) Render(s *Scene, v View, dst *image.RGBA) (*image.RGBA, error
 	r.prepare(s, sc)
 	win := s.Window
 	if win.Width == 0 && s.Anatomy != nil {
-		win = AutoWindow(s.Anatomy)
+		if r.autoFor != s.Anatomy {
+			r.auto, r.autoFor = AutoWindow(s.Anatomy), s.Anatomy
+		}
+		win = r.auto
 	}
 	st := r.Style
 	r.base(dst, s, v, win, sc)
@@ -308,12 +314,31 @@ func (r *Renderer) Render(s *Scene, v View, dst *image.RGBA) (*image.RGBA, error
 
 	cv := newCanvas(dst, r.scratch)
 	r.scratch = cv.cov
-	// Isodoses in their wash colour.
+	// Isodoses: thin light lines, each labelled with its level where it
+	// reaches furthest right on screen (labels drawn after all lines).
+	type isoLabel struct {
+		text string
+		x, y int
+	}
+	var labels []isoLabel
 	for n, lines := range r.isos {
-		c := Colormap(sc.T(s.Isodoses[n]))
 		for _, l := range lines {
-			cv.stroke(r.display(p, v, l.Pixels), l.Closed, st.Isodose, Solid, c)
+			d := r.display(p, v, l.Pixels)
+			cv.stroke(d, l.Closed, st.Isodose, Solid, isodoseColor)
+			best := -1
+			for m, q := range d {
+				if q.X >= 4 && q.Y >= 10 && q.X < float64(v.Width)-30 && q.Y < float64(v.Height)-10 &&
+					(best < 0 || q.X > d[best].X) {
+					best = m
+				}
+			}
+			if best >= 0 && len(d) >= 8 {
+				labels = append(labels, isoLabel{formatDose(s.Isodoses[n]), int(d[best].X), int(d[best].Y)})
+			}
 		}
+	}
+	for _, l := range labels {
+		drawText(dst, l.text, math.Max(11, labelSize(v)-3), l.x, l.y, anchorCentre, isodoseColor)
 	}
 	r.outline(cv, p, v, s.Margin, st.Margin, Dashed, review.ColorMargin)
 	r.outline(cv, p, v, s.Target, st.Target, Solid, review.ColorTarget)

@@ -212,3 +212,73 @@ func TestLabelMasks(t *testing.T) {
 		}
 	}
 }
+
+// TestLevelLine: a further isoline of a volume (here r² at 100 mm², a
+// circle of 10 mm) is drawn in its colour on the circle and nowhere near
+// the centre.
+func TestLevelLine(t *testing.T) {
+	g := dosemap.NewAxialGeometry(41, 41, 1, dosemap.Vec3{1, 1, 1}, dosemap.Vec3{-20, -20, 0})
+	f := dosemap.NewVolume(g)
+	for n := range f.Data {
+		i, j, _ := g.IJK(n)
+		q := g.Point(float64(i), float64(j), 0)
+		f.Data[n] = float32(q[0]*q[0] + q[1]*q[1])
+	}
+	p := AcquisitionPlane(g, 0)
+	col := color.RGBA{0x10, 0xE0, 0x30, 0xFF}
+	s := &Scene{Plane: p, Lines: []LevelLine{{Volume: f, Level: 100, Color: col, Width: 3}}}
+	v := FitView(p, 410, 410) // 10 display pixels per mm
+	img, err := Render(s, v)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, a := range []float64{0, 1, 2, 3, 4, 5} {
+		x, y := v.ToDisplay(p, func() Point { x, y := p.Pixel(dosemap.Vec3{10 * math.Cos(a), 10 * math.Sin(a), 0}); return Point{x, y} }())
+		if got := img.RGBAAt(int(x), int(y)); absDiff(got.G, col.G) > 40 || absDiff(got.R, col.R) > 40 {
+			t.Errorf("angle %g: pixel %v on the circle, want about %v", a, got, col)
+		}
+	}
+	cx, cy := v.ToDisplay(p, Point{20, 20})
+	if got := img.RGBAAt(int(cx), int(cy)); got.G > 30 {
+		t.Errorf("centre pixel %v, want background", got)
+	}
+}
+
+// TestRenderOddInputs: malformed or degenerate inputs render (possibly
+// empty) pictures without panicking: a volume whose data does not match its
+// grid, structures with too few or collinear points, a plane far from
+// every volume, one-pixel views, extreme zoom and a one-voxel volume.
+func TestRenderOddInputs(t *testing.T) {
+	g := dosemap.NewAxialGeometry(10, 10, 2, dosemap.Vec3{1, 1, 1}, dosemap.Vec3{})
+	bad := &dosemap.Volume{Geometry: g, Data: make([]float32, 7)}
+	tiny := dosemap.NewVolume(dosemap.NewAxialGeometry(1, 1, 1, dosemap.Vec3{1, 1, 1}, dosemap.Vec3{})).Fill(300)
+	odd := &dosemap.Structure{Contours: []dosemap.Contour{
+		{Points: []dosemap.Vec3{{0, 0, 0}, {1, 0, 0}}},
+		{Points: []dosemap.Vec3{{0, 0, 0}, {1, 1, 0}, {2, 2, 0}}},
+		{},
+	}}
+	p := AcquisitionPlane(g, 0)
+	far := p
+	far.Origin = dosemap.Vec3{0, 0, 1e4}
+	for _, c := range []struct {
+		name string
+		s    Scene
+		v    View
+	}{
+		{"bad volumes", Scene{Plane: p, Anatomy: bad, Dose: bad, Lethal: 240, Margin: Region{Mask: bad}}, FitView(p, 50, 50)},
+		{"odd structure", Scene{Plane: p, Target: Region{Structure: odd}, Avoid: []Region{{Structure: &dosemap.Structure{}}}}, FitView(p, 50, 50)},
+		{"far plane", Scene{Plane: far, Anatomy: tiny, Dose: tiny, Lethal: 240, Annotations: true}, FitView(far, 64, 64)},
+		{"one pixel", Scene{Plane: p, Anatomy: tiny, Annotations: true, Caption: "x"}, FitView(p, 1, 1)},
+		{"extreme zoom", Scene{Plane: p, Anatomy: tiny, Dose: tiny, Lethal: 100, Annotations: true}, FitView(p, 64, 64).ZoomAt(p, 3, 3, 1e5)},
+		{"one voxel", Scene{Plane: AcquisitionPlane(tiny.Geometry, 0), Anatomy: tiny, Dose: tiny, Lethal: 100, Target: Region{Mask: tiny}}, FitView(AcquisitionPlane(tiny.Geometry, 0), 32, 32)},
+	} {
+		img, err := Render(&c.s, c.v)
+		if err != nil {
+			t.Errorf("%s: %v", c.name, err)
+			continue
+		}
+		if img.Rect.Dx() != c.v.Width || img.Rect.Dy() != c.v.Height {
+			t.Errorf("%s: image %v for a %d×%d view", c.name, img.Rect, c.v.Width, c.v.Height)
+		}
+	}
+}
