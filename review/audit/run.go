@@ -71,9 +71,10 @@ type Row struct {
 	Flags        []string
 	InputSHA256  string
 	SettingsHash string
-	Seconds      float64 // analysis time of the case
-	Resumed      bool    // taken from an earlier run
-	Dir          string  // the case's output folder (absolute); empty when nothing was written
+	Seconds      float64  // analysis time of the case
+	Resumed      bool     // taken from an earlier run
+	Dir          string   // the case's output folder (absolute); empty when nothing was written
+	Artifacts    []string // files of the case in Dir besides case.json (the report)
 }
 
 // Progress reports how far a run has got.
@@ -403,7 +404,7 @@ func rowOf(rec *Record) Row {
 	return Row{
 		Case: rec.Case, Source: rec.Source, Status: rec.Status, Reason: rec.Reason,
 		Metrics: rec.Metrics, Flags: rec.Flags, InputSHA256: rec.InputSHA256,
-		SettingsHash: rec.SettingsHash, Seconds: rec.Seconds,
+		SettingsHash: rec.SettingsHash, Seconds: rec.Seconds, Artifacts: rec.Artifacts,
 	}
 }
 

@@ -113,6 +113,11 @@ func TestRunEveryCase(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
+	for _, r := range sum.Rows {
+		if r.Case == "in__case-004" && (len(r.Artifacts) != 1 || r.Artifacts[0] != "report.txt" || r.Dir != filepath.Join(out, "cases", "in__case-004")) {
+			t.Errorf("row of case 4: artifacts %v in %s", r.Artifacts, r.Dir)
+		}
+	}
 	if rec.Status != StatusOK || rec.Files != 2 || rec.Artifacts[0] != "report.txt" || rec.Source != "in/case-004" {
 		t.Errorf("record %+v", rec)
 	}
