@@ -3,11 +3,14 @@ package audit
 import (
 	"context"
 	"encoding/json"
+	"errors"
 	"math"
 	"os"
 	"path/filepath"
+	"runtime"
 	"slices"
 	"strings"
+	"sync"
 	"testing"
 
 	"dosecover/dosemap"
@@ -36,6 +39,34 @@ func copyDir(t testing.TB, src, dst string) {
 	if err != nil {
 		t.Fatal(err)
 	}
+}
+
+// writeCasesParallel writes the same cases as sim.WriteCases(dir, n, seed)
+// (sim.VariedSession k into dir/case-k) using every core.
+func writeCasesParallel(dir string, n int, seed uint64) ([]*sim.Truth, error) {
+	truths := make([]*sim.Truth, n)
+	errs := make([]error, n)
+	next := make(chan int)
+	var wg sync.WaitGroup
+	for range runtime.GOMAXPROCS(0) {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for k := range next {
+				s := sim.VariedSession(k+1, seed)
+				sub := filepath.Join(dir, s.Label)
+				if errs[k] = os.MkdirAll(sub, 0o755); errs[k] == nil {
+					truths[k], errs[k] = sim.WriteSession(sub, s)
+				}
+			}
+		}()
+	}
+	for k := range n {
+		next <- k
+	}
+	close(next)
+	wg.Wait()
+	return truths, errors.Join(errs...)
 }
 
 // analysisOf reads the analysis part of a case record.
@@ -67,7 +98,7 @@ func TestAuditSimulatedCases(t *testing.T) {
 	}
 	tmp := t.TempDir()
 	root := filepath.Join(tmp, "registry")
-	truths, err := sim.WriteCases(root, 10, 7)
+	truths, err := writeCasesParallel(root, 10, 7)
 	if err != nil {
 		t.Fatal(err)
 	}
