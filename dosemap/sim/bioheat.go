@@ -12,13 +12,13 @@ import (
 // Tissue holds the thermal properties of a homogeneous medium for the Pennes
 // bioheat equation (SI units).
 type Tissue struct {
-	Name         string
-	Conductivity float64 // k, W m^-1 K^-1
-	Density      float64 // rho, kg m^-3
-	SpecificHeat float64 // c, J kg^-1 K^-1
-	Perfusion    float64 // w_b, blood mass perfused per tissue volume, kg m^-3 s^-1
-	BloodHeat    float64 // c_b, specific heat of blood, J kg^-1 K^-1
-	Source       string  // where the values come from
+	Name         string  `json:"name"`
+	Conductivity float64 `json:"conductivity_w_per_m_k"`         // k, W m^-1 K^-1
+	Density      float64 `json:"density_kg_per_m3"`              // rho, kg m^-3
+	SpecificHeat float64 `json:"specific_heat_j_per_kg_k"`       // c, J kg^-1 K^-1
+	Perfusion    float64 `json:"perfusion_kg_per_m3_s"`          // w_b, blood mass perfused per tissue volume, kg m^-3 s^-1
+	BloodHeat    float64 `json:"blood_specific_heat_j_per_kg_k"` // c_b, specific heat of blood, J kg^-1 K^-1
+	Source       string  `json:"source"`                         // where the values come from
 }
 
 // Diffusivity returns the thermal diffusivity alpha = k/(rho*c) in m² s^-1.

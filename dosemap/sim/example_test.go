@@ -51,5 +51,5 @@ func ExampleWriteSession() {
 		panic(err)
 	}
 	fmt.Println(truth.Files, "files,", len(truth.Sonications), "sonications,", truth.Sonications[0].Folder)
-	// Output: 197 files, 2 sonications, sonication-01
+	// Output: 193 files, 2 sonications, sonication-01
 }

@@ -69,9 +69,9 @@ type SonicationSpec struct {
 
 // Motion shifts the object in one thermometry frame.
 type Motion struct {
-	Sonication int          // 1-based
-	Frame      int          // 1-based TemporalPositionIdentifier
-	Shift      dosemap.Vec3 // displacement of the object, mm
+	Sonication int          `json:"sonication"` // 1-based
+	Frame      int          `json:"frame"`      // 1-based TemporalPositionIdentifier
+	Shift      dosemap.Vec3 `json:"shift_mm"`   // displacement of the object, mm
 }
 
 // Protocol is the thermometry acquisition.

@@ -44,7 +44,27 @@ type Truth struct {
 	LethalOutsideMM3   float64       `json:"lethal_outside_margin_mm3"`
 	LethalOutsideAvoid float64       `json:"lethal_in_avoid_mm3"`
 
+	// The same figures from the noiseless thermometry: the simulated rise
+	// sampled on the thermometry grid (slice-thickness average), added to
+	// the base temperature from each series' baseline frames, CEM43 by the
+	// trapezoid rule over the frame times. This is what an ideal analysis
+	// of the images finds; it differs from the bioheat figures above
+	// because thermometry measures change only (residual heat from earlier
+	// sonications is invisible), samples every frame interval, and averages
+	// over its voxels.
+	Measured MeasuredTruth `json:"noiseless_thermometry"`
+
 	Files int `json:"files"`
+}
+
+// MeasuredTruth holds dose figures on the thermometry grid; a voxel belongs
+// to the target when its centre lies inside the lesion.
+type MeasuredTruth struct {
+	TargetVoxels     int           `json:"target_voxels"`
+	CoveredFraction  float64       `json:"covered_fraction"`
+	Holes            []TruthRegion `json:"holes"`
+	LethalOutsideMM3 float64       `json:"lethal_outside_margin_mm3"`
+	PeakTemp         []float64     `json:"peak_temperature_c"` // per sonication, hottest voxel
 }
 
 // TruthThermometry records the acquisition and the phase model.
@@ -173,7 +193,70 @@ func (s *Session) truth(res *simResult, id ids) *Truth {
 			t.Holes = append(t.Holes, r)
 		}
 	}
+	t.Measured = s.measuredTruth(res)
 	return t
+}
+
+// measuredTruth computes MeasuredTruth from the noiseless frames.
+func (s *Session) measuredTruth(res *simResult) MeasuredTruth {
+	p := s.Thermometry
+	g := s.ThermometryGeometry()
+	base := s.Phantom.BodyTemp
+	dose := make([]float64, g.Len())
+	var m MeasuredTruth
+	rate := func(T float64) float64 { // CEM43 per second (Sapareto & Dewey 1984)
+		if T >= 43 {
+			return math.Exp2(T-43) / 60
+		}
+		return math.Exp2(-2*(43-T)) / 60
+	}
+	for _, frames := range res.frames {
+		peak := math.Inf(-1)
+		for v := range dose {
+			var b float64
+			for f := 0; f < p.BaselineFrames; f++ {
+				b += float64(frames[f][v])
+			}
+			b /= float64(p.BaselineFrames)
+			prev := base + float64(frames[0][v]) - b
+			for f := 1; f < len(frames); f++ {
+				T := base + float64(frames[f][v]) - b
+				dose[v] += 0.5 * (rate(prev) + rate(T)) * p.FrameInterval
+				prev = T
+				peak = math.Max(peak, T)
+			}
+		}
+		m.PeakTemp = append(m.PeakTemp, math.Round(peak*100)/100)
+	}
+	lesion := s.Phantom.Lesion
+	grown := lesion.Grown(s.MarginMM)
+	under := make([]bool, g.Len())
+	covered := 0
+	for v, d := range dose {
+		i, j, k := g.IJK(v)
+		q := g.Point(float64(i), float64(j), float64(k))
+		lethal := d >= s.Threshold
+		switch {
+		case lesion.Contains(q):
+			m.TargetVoxels++
+			if lethal {
+				covered++
+			} else {
+				under[v] = true
+			}
+		case lethal && !grown.Contains(q):
+			m.LethalOutsideMM3 += g.VoxelVolume()
+		}
+	}
+	if m.TargetVoxels > 0 {
+		m.CoveredFraction = float64(covered) / float64(m.TargetVoxels)
+	}
+	for _, r := range components(g, under) {
+		if r.VolumeMM3 >= 2*g.VoxelVolume() {
+			m.Holes = append(m.Holes, r)
+		}
+	}
+	return m
 }
 
 // components returns the 6-connected regions of mask with their centroids.
