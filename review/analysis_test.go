@@ -419,3 +419,74 @@ func TestWriteText(t *testing.T) {
 	}
 	t.Log(out)
 }
+
+// TestAvoidDose: an avoid sphere r = 3 mm at (14, 0, 0) and a lethal ball
+// r = 4 mm at (17, 0, 0) overlap in a lens of π·4²·48/36 = 67.0 mm³
+// (lensVolume, computed); measured within 25 % (a 3 mm sphere spans about
+// five 1.25 mm voxels). The peak dose inside lies at the avoid voxel
+// nearest the dose centre, within one voxel of (16.5, 0, 0).
+func TestAvoidDose(t *testing.T) {
+	g := thermoGrid(48, 48, 12)
+	c := &dosemap.Case{
+		Sonications: []*dosemap.Sonication{doseSonication(1, g, ballDose(dosemap.Vec3{17, 0, 0}, 4, 1))},
+		Structures: []dosemap.Structure{
+			sphereStructure("target", dosemap.Vec3{}, 8, 1.5, 0, 64, dosemap.RoleTarget),
+			sphereStructure("nerve", dosemap.Vec3{14, 0, 0}, 3, 1, 0.5, 64, dosemap.RoleAvoid),
+		},
+	}
+	r := analyseCase(t, c, DefaultSettings())
+	if len(r.Avoid) != 1 {
+		t.Fatalf("avoid %+v", r.Avoid)
+	}
+	a := r.Avoid[0]
+	want := lensVolume(4, 3, 3)
+	if math.Abs(want-67.02) > 0.01 {
+		t.Fatalf("lens %.2f", want)
+	}
+	if math.Abs(a.LethalVolumeMM3-want) > 0.25*want {
+		t.Errorf("lethal in avoid %.1f mm³, want %.1f", a.LethalVolumeMM3, want)
+	}
+	if v := 4.0 / 3 * math.Pi * 27 / 1000; math.Abs(a.VolumeML-v) > 0.05*v || a.MonitoredFraction != 1 {
+		t.Errorf("avoid volume %.4f mL (want %.4f), monitored %.3f", a.VolumeML, v, a.MonitoredFraction)
+	}
+	if a.PeakMM == nil || dosemap.Vec3(*a.PeakMM).Sub(dosemap.Vec3{16.5, 0, 0}).Norm() > 1.3 || a.PeakDose == nil {
+		t.Errorf("peak %v at %v", ptrString(a.PeakDose), a.PeakMM)
+	}
+}
+
+// TestPreparedSettings: a session re-analyses with settings whose model
+// parameters are left zero (the defaults) but refuses other parameters.
+func TestPreparedSettings(t *testing.T) {
+	g := thermoGrid(16, 16, 4)
+	c := &dosemap.Case{
+		Sonications: []*dosemap.Sonication{doseSonication(1, g, ballDose(dosemap.Vec3{}, 3, 1))},
+		Structures:  []dosemap.Structure{sphereStructure("target", dosemap.Vec3{}, 4, 1.5, 0, 32, dosemap.RoleTarget)},
+	}
+	ses, err := Prepare(context.Background(), c, DefaultSettings(), nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	zero := Settings{Threshold: 240, MarginMM: 3, Model: "cem43"}
+	if _, err := ses.Analyze(context.Background(), zero, nil); err != nil {
+		t.Errorf("zero parameters: %v", err)
+	}
+	other := DefaultSettings()
+	other.CEM43.RBelow = 0.3
+	if _, err := ses.Analyze(context.Background(), other, nil); err == nil || !strings.Contains(err.Error(), "prepare it again") {
+		t.Errorf("changed CEM43 parameters: %v", err)
+	}
+}
+
+// TestTargetOutsideThermometry: contours 500 mm away from the thermometry
+// (another frame of reference, say) are an error naming the problem.
+func TestTargetOutsideThermometry(t *testing.T) {
+	g := thermoGrid(16, 16, 4)
+	c := &dosemap.Case{
+		Sonications: []*dosemap.Sonication{doseSonication(1, g, ballDose(dosemap.Vec3{}, 3, 1))},
+		Structures:  []dosemap.Structure{sphereStructure("target", dosemap.Vec3{0, 0, 500}, 4, 1.5, 0, 32, dosemap.RoleTarget)},
+	}
+	_, err := Analyze(context.Background(), c, DefaultSettings(), nil)
+	if err == nil || !strings.Contains(err.Error(), "outside the thermometry") {
+		t.Errorf("error %v", err)
+	}
+}

@@ -168,7 +168,8 @@ func WriteContourFile(path, caseDir string, structures []dosemap.Structure, fram
 // temporary file in the same folder, synced, then renamed over path, so a
 // reader never sees half a file. It refuses when path lies in or below
 // caseDir (after resolving symbolic links), the folder a case was read
-// from, which dosecover never modifies; caseDir "" skips the check.
+// from, which dosecover never modifies; caseDir "" skips the check. A nil
+// write only checks the location and writes nothing.
 func WriteOutside(path, caseDir string, write func(io.Writer) error) error {
 	if caseDir != "" {
 		inside, err := within(path, caseDir)
@@ -178,6 +179,9 @@ func WriteOutside(path, caseDir string, write func(io.Writer) error) error {
 		if inside {
 			return fmt.Errorf("the file would lie inside the case folder %s, which dosecover does not modify; choose another folder", caseDir)
 		}
+	}
+	if write == nil {
+		return nil
 	}
 	tmp, err := os.CreateTemp(filepath.Dir(path), "."+filepath.Base(path)+"-*.tmp")
 	if err != nil {

@@ -1,7 +1,17 @@
 // Package review measures how well the thermal dose of a treatment session
 // covered its target: target and margin masks, coverage, holes, lethal dose
-// outside the margin, dose-volume histograms, isolines and display planes.
+// outside the margin, dose-volume histograms and per-sonication figures.
+// Display planes, isolines and rendering live in review/view.
 //
-// It takes plain values from package dosemap and returns plain Go values and
-// image.Image; it never imports a GUI toolkit.
+// Prepare computes the thermometry and dose of every sonication of a
+// dosemap.Case once and rasterizes its structures onto the analysis grid
+// (the thermometry grid with slices of at most MaxAnalysisStep mm; see
+// Occupancy for the slab model of planar contours); Session.Analyze then
+// measures a Result for any threshold, margin or set of excluded
+// sonications quickly. Result.WriteJSON writes the result file documented
+// in the README (SchemaVersion), Result.WriteText a readable summary.
+//
+// The figures are facts about the dose maps and the thresholds chosen; the
+// package gives no advice. It takes plain values from package dosemap and
+// returns plain Go values; it never imports a GUI toolkit.
 package review

@@ -253,3 +253,23 @@ func logDose(d float32) float32 {
 	}
 	return float32(math.Log(float64(d)))
 }
+
+// logAtLinear is logAt for a coarse linear-domain dose field v without NaN
+// (the logarithms of the four taps are taken here, for fields of which few
+// voxels are needed).
+func (fg *fineGrid) logAtLinear(v []float32, n int) float32 {
+	fi, fj, f := fg.fine.IJK(n)
+	st := &fg.slices[f]
+	c := fg.coarseIndex(fi, fj)
+	if !st.valid || c < 0 {
+		return logDose(0)
+	}
+	cs := fg.coarse.SliceLen()
+	var s float32
+	for a := 0; a < 4; a++ {
+		if st.w[a] != 0 {
+			s += st.w[a] * logDose(v[st.k[a]*cs+c])
+		}
+	}
+	return s
+}

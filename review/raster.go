@@ -211,8 +211,11 @@ func (s *planeSolid) corners() []vec3 {
 const SubSamples = 4
 
 // Occupancy returns, for every voxel of g, the fraction of the voxel inside
-// structure s (0..1), by the slab model and even-odd rule described in the
-// package documentation. Voxels whose centre classification differs from
+// structure s (0..1). Every contour plane of s stands for the slab halfway
+// to its neighbouring planes; the end planes extend half the spacing to
+// their neighbour beyond themselves, and a structure on a single plane is a
+// slab of the given thickness. Contours on one plane combine by the
+// even-odd rule (a contour inside another cuts a hole). Voxels whose centre classification differs from
 // any of their 26 neighbours are measured with SubSamples³ regularly placed
 // points; the others are wholly in or out. thickness is the slab thickness
 // of a structure drawn on one plane only (mm).

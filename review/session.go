@@ -5,6 +5,8 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"reflect"
+	"runtime"
 	"slices"
 	"sort"
 	"strconv"
@@ -29,6 +31,10 @@ const MaxMarginMM = 20.0
 // LargestMarginMM is the largest margin dosecover analyses.
 const LargestMarginMM = 50.0
 
+// maxAnalysisVoxels bounds the analysis grid (about 1.5 GB of working
+// memory).
+const maxAnalysisVoxels = 40_000_000
+
 // ProbabilityCertain is the Monte Carlo mean probability of lethal dose at
 // or below which a hole is called "certain".
 const ProbabilityCertain = 0.05
@@ -41,13 +47,19 @@ type Settings struct {
 	Excluded  []int   `json:"excluded_sonications"` // sonication numbers left out of the cumulative dose
 	Trials    int     `json:"trials"`               // Monte Carlo trials; 0 for none
 	Seed      uint64  `json:"seed"`                 // Monte Carlo seed
+
+	CEM43       dosemap.CEM43              `json:"cem43"`     // parameters of the cem43 model
+	Arrhenius   dosemap.Arrhenius          `json:"arrhenius"` // parameters of the arrhenius model
+	Thermometry dosemap.ThermometryOptions `json:"-"`         // PRF thermometry; summarised in Result.Thermometry
 }
 
 // DefaultSettings returns 240 CEM43 (Sapareto & Dewey 1984; the common
 // lethal threshold, McDannold et al., Radiology 2006), DefaultMarginMM, no
-// exclusions, 50 Monte Carlo trials with seed 1.
+// exclusions, 50 Monte Carlo trials with seed 1, the default CEM43 and
+// Arrhenius parameters and thermometry options of package dosemap.
 func DefaultSettings() Settings {
-	return Settings{Threshold: 240, MarginMM: DefaultMarginMM, Model: "cem43", Trials: 50, Seed: 1}
+	return Settings{Threshold: 240, MarginMM: DefaultMarginMM, Model: "cem43", Trials: 50, Seed: 1,
+		CEM43: dosemap.DefaultCEM43(), Arrhenius: dosemap.DefaultArrhenius(), Thermometry: dosemap.DefaultThermometryOptions()}
 }
 
 // ProgressFunc receives the name of the stage being worked on and the
@@ -107,13 +119,13 @@ type Session struct {
 
 // doseCache holds what depends only on the set of included sonications.
 type doseCache struct {
-	key       string
-	included  []int       // indexes into sons, delivery order
-	cum       []float32   // cumulative measured dose (NaN where none measured), thermometry grid
-	full      []bool      // every included sonication measured the voxel
-	logPrefix [][]float32 // log cumulative after each included sonication (unmeasured counted 0)
-	logFine   []float32   // analysis grid log-dose
-	monFine   []bool      // analysis grid monitored
+	key      string
+	included []int       // indexes into sons, delivery order
+	cum      []float32   // cumulative measured dose (NaN where none measured), thermometry grid
+	full     []bool      // every included sonication measured the voxel
+	prefix   [][]float32 // cumulative after each included sonication (unmeasured counted 0)
+	logFine  []float32   // analysis grid log-dose
+	monFine  []bool      // analysis grid monitored
 }
 
 // Prepare computes the thermometry and dose of every sonication of c and
@@ -144,25 +156,63 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 		return nil, fmt.Errorf("sonication %d: thermometry grid: %w", c.Sonications[0].Number, err)
 	}
 	seen := map[int]bool{}
-	for n, so := range c.Sonications {
-		if err := ctx.Err(); err != nil {
-			return nil, err
+	for _, so := range c.Sonications {
+		if so == nil {
+			return nil, errors.New("the case lists a missing sonication")
 		}
-		progress.report(fmt.Sprintf("thermometry and dose, sonication %d", so.Number), 0.8*float64(n)/float64(len(c.Sonications)))
 		if seen[so.Number] {
 			return nil, fmt.Errorf("sonication number %d appears twice", so.Number)
 		}
 		seen[so.Number] = true
-		sd, unit, err := prepareSonication(ctx, so, s, ref)
-		if err != nil {
-			return nil, fmt.Errorf("sonication %d (%s): %w", so.Number, so.Label, err)
+	}
+	// Thermometry and dose of the sonications in parallel, one worker per
+	// CPU.
+	ns := len(c.Sonications)
+	sons := make([]*sonData, ns)
+	units := make([]string, ns)
+	errs := make([]error, ns)
+	var pmu sync.Mutex
+	done := 0
+	jobs := make(chan int)
+	var wg sync.WaitGroup
+	for w := 0; w < min(runtime.GOMAXPROCS(0), ns); w++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for n := range jobs {
+				so := c.Sonications[n]
+				if err := ctx.Err(); err != nil {
+					errs[n] = err
+					continue
+				}
+				sons[n], units[n], errs[n] = prepareSonication(ctx, so, s, ref)
+				pmu.Lock()
+				done++
+				progress.report(fmt.Sprintf("thermometry and dose, sonication %d", so.Number), 0.8*float64(done)/float64(ns))
+				pmu.Unlock()
+			}
+		}()
+	}
+	for n := range c.Sonications {
+		jobs <- n
+	}
+	close(jobs)
+	wg.Wait()
+	if err := ctx.Err(); err != nil {
+		return nil, err
+	}
+	for n, so := range c.Sonications {
+		if errs[n] != nil {
+			return nil, fmt.Errorf("sonication %d (%s): %w", so.Number, so.Label, errs[n])
+		}
+		if n > 0 && units[n] != units[0] {
+			return nil, fmt.Errorf("sonication %d: dose in %s, sonication %d in %s", so.Number, units[n], c.Sonications[0].Number, units[0])
 		}
 		if !so.Geometry.SameGrid(ref, 0.01) {
 			ses.warnings = append(ses.warnings, fmt.Sprintf("sonication %d was acquired on a different grid and was resampled onto the grid of sonication %d", so.Number, c.Sonications[0].Number))
 		}
-		ses.unit = unit
-		ses.sons = append(ses.sons, sd)
 	}
+	ses.sons, ses.unit = sons, units[0]
 	progress.report("structures", 0.8)
 	sol, err := newPlaneSolid(tgt, ref.Spacing[2])
 	if err != nil {
@@ -174,8 +224,33 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 			ext = append(ext, p.Add(d.Scale(ses.maxMargin+2*ref.Spacing.Norm())))
 		}
 	}
+	// The target must overlap the thermometry somewhere: contours in
+	// another frame of reference would otherwise stretch the analysis grid
+	// across the patient.
+	lo, hi := [3]float64{math.Inf(1), math.Inf(1), math.Inf(1)}, [3]float64{math.Inf(-1), math.Inf(-1), math.Inf(-1)}
+	for _, p := range sol.corners() {
+		i, j, k := ref.Voxel(p)
+		for a, x := range [3]float64{i, j, k} {
+			lo[a], hi[a] = math.Min(lo[a], x), math.Max(hi[a], x)
+		}
+	}
+	dims := [3]int{ref.Cols, ref.Rows, ref.Slices}
+	for a := 0; a < 3; a++ {
+		if hi[a] < -0.5 || lo[a] > float64(dims[a])-0.5 {
+			return nil, fmt.Errorf("target %q lies entirely outside the thermometry field of view (%s); check that contours and thermometry share a frame of reference", tgt.Name, ref)
+		}
+	}
+	if tgt.FrameOfRef != "" && c.Sonications[0].FrameOfRef != "" && tgt.FrameOfRef != c.Sonications[0].FrameOfRef {
+		ses.warnings = append(ses.warnings, fmt.Sprintf("target %q refers to frame of reference %s, the thermometry to %s; positions are compared as given", tgt.Name, tgt.FrameOfRef, c.Sonications[0].FrameOfRef))
+	}
+	if math.Abs(ref.Normal.Dot(ref.Row.Cross(ref.Col))) < 0.999 {
+		ses.warnings = append(ses.warnings, "the thermometry slices are sheared (slice normal not perpendicular to the image plane); distances are computed as if the grid axes were orthogonal")
+	}
 	ses.fg = newFineGrid(ref, ext)
 	g := ses.fg.fine
+	if n := g.Len(); n > maxAnalysisVoxels {
+		return nil, fmt.Errorf("the analysis grid would hold %d voxels (%s), more than the %d supported; the target is far larger than the thermometry", n, g, maxAnalysisVoxels)
+	}
 	if ses.occ, err = Occupancy(tgt, g, ref.Spacing[2]); err != nil {
 		return nil, fmt.Errorf("target: %w", err)
 	}
@@ -265,6 +340,9 @@ func (s *Session) checkSettings(set Settings) error {
 	if set.Model != s.model {
 		return fmt.Errorf("dose model %q differs from the %q this session was prepared with; prepare it again", set.Model, s.model)
 	}
+	if set.doseModel() != s.prepared.doseModel() || !reflect.DeepEqual(normThermometry(set.Thermometry), normThermometry(s.prepared.Thermometry)) {
+		return errors.New("dose model parameters or thermometry options differ from those this session was prepared with; prepare it again")
+	}
 	if set.Trials < 0 {
 		return fmt.Errorf("%d Monte Carlo trials: want 0 or more", set.Trials)
 	}
@@ -313,15 +391,13 @@ func (s *Session) doses(ctx context.Context, set Settings) (*doseCache, error) {
 			return nil, err
 		}
 		d := s.sons[n].dose
-		lp := make([]float32, cl)
 		for v, x := range d {
 			if x == x {
 				run[v] += x
 				cnt[v]++
 			}
-			lp[v] = logDose(run[v])
 		}
-		dc.logPrefix = append(dc.logPrefix, lp)
+		dc.prefix = append(dc.prefix, slices.Clone(run))
 	}
 	lc := make([]float32, cl)
 	for v := range run {
@@ -374,6 +450,7 @@ func (s *Session) Analyze(ctx context.Context, set Settings, progress ProgressFu
 	if set.Model == "cem43" {
 		r.ThresholdCEM43 = opt(set.Threshold)
 	}
+	r.Thermometry = thermometryInfo(set.Thermometry)
 	n := g.Len()
 	lethal := make([]bool, n) // measured dose at or above threshold (also where partly measured)
 	lethalVol := &dosemap.Volume{Geometry: g, Data: make([]float32, n)}
@@ -569,7 +646,7 @@ func (s *Session) Analyze(ctx context.Context, set Settings, progress ProgressFu
 	r.Lethal = lethalVol
 	if set.Trials > 0 {
 		progress.report("Monte Carlo", 0.8)
-		if err := s.uncertainty(ctx, r, set, dc, hl); err != nil {
+		if err := s.uncertainty(ctx, r, set, dc); err != nil {
 			return nil, err
 		}
 	}
@@ -792,7 +869,7 @@ func (s *Session) perSonication(r *Result, set Settings, dc *doseCache, lethal, 
 		}
 		m := ni - 1
 		for a := 0; a < ni; a++ {
-			if s.fg.logAt(dc.logPrefix[a], v) >= lt {
+			if s.fg.logAtLinear(dc.prefix[a], v) >= lt {
 				m = a
 				break
 			}
@@ -830,4 +907,47 @@ func (s *Session) perSonication(r *Result, set Settings, dc *doseCache, lethal, 
 		}
 		r.Sonications = append(r.Sonications, st)
 	}
+}
+
+// thermometryInfo summarises o, with zero fields shown as the defaults
+// dosemap.Thermometry applies.
+func thermometryInfo(o dosemap.ThermometryOptions) ThermometryInfo {
+	d := dosemap.DefaultThermometryOptions()
+	ti := ThermometryInfo{AlphaPPMPerC: o.PRF.Alpha, BaselineFrames: o.BaselineFrames, BodyTempC: o.BodyTemp,
+		Drift: o.Drift.String(), DriftOrder: o.DriftOrder, Reference: "automatic",
+		MinMagnitude: o.MinMagnitude, MaxMotion: o.MaxMotion}
+	if ti.AlphaPPMPerC == 0 {
+		ti.AlphaPPMPerC = d.PRF.Alpha
+	}
+	if o.PRF.B0 != 0 {
+		ti.B0T = opt(o.PRF.B0)
+	}
+	if o.PRF.TE != 0 {
+		ti.TES = opt(o.PRF.TE)
+	}
+	if ti.BaselineFrames <= 0 {
+		ti.BaselineFrames = d.BaselineFrames
+	}
+	if ti.BodyTempC == 0 {
+		ti.BodyTempC = d.BodyTemp
+	}
+	if ti.MinMagnitude == 0 {
+		ti.MinMagnitude = d.MinMagnitude
+	}
+	if ti.MaxMotion == 0 {
+		ti.MaxMotion = d.MaxMotion
+	}
+	if o.Reference != nil {
+		ti.Reference = "given"
+	}
+	return ti
+}
+
+// normThermometry returns o, or the default options when o is the zero
+// value (which dosemap.Thermometry reads as the defaults).
+func normThermometry(o dosemap.ThermometryOptions) dosemap.ThermometryOptions {
+	if reflect.DeepEqual(o, dosemap.ThermometryOptions{}) {
+		return dosemap.DefaultThermometryOptions()
+	}
+	return o
 }

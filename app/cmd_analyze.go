@@ -1,0 +1,142 @@
+//go:build cgo
+
+package main
+
+import (
+	"context"
+	"flag"
+	"fmt"
+	"io"
+	"os"
+	"os/signal"
+	"strconv"
+	"strings"
+
+	"dosecover/dosemap"
+	"dosecover/dosemap/dicomio"
+	"dosecover/review"
+)
+
+func init() {
+	register(command{name: "analyze", summary: "measure the thermal-dose coverage of a case folder (covered fraction, holes, lethal dose outside the margin)", run: runAnalyze})
+}
+
+// runAnalyze implements
+//
+//	dosecover analyze CASE_DIR [--json FILE] [--threshold T] [--margin M]
+//	    [--model cem43|arrhenius] [--exclude N,...] [--trials N] [--seed S]
+//	    [--contours FILE] [--target NAME]
+//
+// It prints a summary of the figures and of the settings used; exit code 0
+// when the analysis ran, 1 when it could not (reason printed), 2 for a
+// usage error.
+func runAnalyze(args []string, stdout, stderr io.Writer) int {
+	fs := flag.NewFlagSet("analyze", flag.ContinueOnError)
+	fs.SetOutput(stderr)
+	jsonPath := fs.String("json", "", "also write the full result as JSON to `FILE` (\"-\": to standard output instead of the summary)")
+	contours := fs.String("contours", "", "dosecover contour `FILE` to use instead of the case's structures")
+	target := fs.String("target", "", "`NAME` of the structure to analyse as the target")
+	af := addAnalysisFlags(fs)
+	fs.Usage = func() {
+		fmt.Fprintln(stderr, "usage: dosecover analyze CASE_DIR [--json FILE] [--threshold T] [--margin M] [--model cem43|arrhenius] [options]")
+		fmt.Fprintln(stderr, "Reads the case folder (never changes it), computes temperature and thermal dose,")
+		fmt.Fprintln(stderr, "and prints the covered fraction of the target, holes, lethal dose outside the")
+		fmt.Fprintln(stderr, "margin and per-sonication figures, with the settings used.")
+		fmt.Fprintln(stderr, "Exit status: 0 analysed, 1 could not analyse (reason given), 2 usage error.")
+		fs.PrintDefaults()
+	}
+	pos, err := parseArgs(fs, args)
+	if err != nil {
+		return 2
+	}
+	if len(pos) != 1 {
+		fmt.Fprintf(stderr, "dosecover analyze: one case folder expected, got %d arguments\n", len(pos))
+		fs.Usage()
+		return 2
+	}
+	dir := pos[0]
+	set, err := af.settings()
+	if err != nil {
+		fmt.Fprintf(stderr, "dosecover analyze: %v\n", err)
+		return 2
+	}
+	fi, err := os.Stat(dir)
+	if err != nil {
+		fmt.Fprintf(stderr, "dosecover analyze: %v\n", err)
+		return 1
+	}
+	if !fi.IsDir() {
+		fmt.Fprintf(stderr, "dosecover analyze: %s is not a folder\n", dir)
+		return 1
+	}
+	if *jsonPath != "" && *jsonPath != "-" {
+		// Refuse before any work.
+		if err := review.WriteOutside(*jsonPath, dir, nil); err != nil {
+			fmt.Fprintf(stderr, "dosecover analyze: cannot write %s: %v\n", *jsonPath, err)
+			return 1
+		}
+	}
+	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
+	defer stop()
+	c, inv, err := dicomio.Load(ctx, dir, dicomio.LoadOptions{}, nil)
+	if err != nil {
+		fmt.Fprintf(stderr, "dosecover analyze: %v\n", err)
+		return 1
+	}
+	if inv != nil && !inv.Reviewable {
+		fmt.Fprintf(stderr, "dosecover analyze: %s cannot be analysed: %s\n", dir, inv.NotReviewable)
+		return 1
+	}
+	if *contours != "" {
+		ss, _, err := review.ReadContourFile(*contours)
+		if err != nil {
+			fmt.Fprintf(stderr, "dosecover analyze: %v\n", err)
+			return 1
+		}
+		c.Structures = ss
+	}
+	if *target != "" {
+		found := false
+		for n := range c.Structures {
+			s := &c.Structures[n]
+			switch {
+			case s.Name == *target:
+				s.Role, found = dosemap.RoleTarget, true
+			case s.Role == dosemap.RoleTarget:
+				s.Role = dosemap.RoleOther
+			}
+		}
+		if !found {
+			var names []string
+			for _, s := range c.Structures {
+				names = append(names, strconv.Quote(s.Name))
+			}
+			fmt.Fprintf(stderr, "dosecover analyze: no structure named %q (structures: %s)\n", *target, strings.Join(names, ", "))
+			return 1
+		}
+	}
+	res, err := review.Analyze(ctx, c, set, nil)
+	if err != nil {
+		fmt.Fprintf(stderr, "dosecover analyze: analysing %s: %v\n", dir, err)
+		return 1
+	}
+	switch *jsonPath {
+	case "-":
+		if err := res.WriteJSON(stdout); err != nil {
+			fmt.Fprintf(stderr, "dosecover analyze: writing JSON: %v\n", err)
+			return 1
+		}
+		return 0
+	case "":
+	default:
+		if err := review.WriteOutside(*jsonPath, dir, res.WriteJSON); err != nil {
+			fmt.Fprintf(stderr, "dosecover analyze: writing %s: %v\n", *jsonPath, err)
+			return 1
+		}
+	}
+	if err := res.WriteText(stdout); err != nil {
+		fmt.Fprintf(stderr, "dosecover analyze: %v\n", err)
+		return 1
+	}
+	return 0
+}
