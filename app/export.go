@@ -37,6 +37,7 @@ func (rw *reviewWindow) exportReport() {
 		}
 	}, rw.win)
 	d.SetConfirmText("Export here")
+	d.SetTitleText("Export the report into a folder (not the case folder)")
 	d.Resize(fyne.NewSize(800, 560))
 	d.Show()
 }

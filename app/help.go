@@ -118,6 +118,7 @@ func (rw *reviewWindow) signOff() {
 			return
 		}
 		rw.status.SetText(fmt.Sprintf("Signed off by %s.", who))
+		rw.metrics.update()
 	}, rw.win)
 	d.Resize(fyne.NewSize(720, 420))
 	d.Show()

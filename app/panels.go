@@ -237,6 +237,7 @@ type metricsPanel struct {
 	rw       *reviewWindow
 	content  fyne.CanvasObject
 	box      *fyne.Container
+	signed   *widget.Label
 	facts    *widget.Label
 	used     *widget.Label
 	holes    *widget.List
@@ -258,6 +259,8 @@ func newMetricsPanel(rw *reviewWindow) *metricsPanel {
 	m.avoid.Wrapping = fyne.TextWrapWord
 	m.quality = widget.NewLabel("")
 	m.quality.Wrapping = fyne.TextWrapWord
+	m.signed = widget.NewLabel("")
+	m.signed.Wrapping = fyne.TextWrapWord
 	m.hint = widget.NewLabel("Facts measured from the thermometry; the clinician decides what they mean.")
 	m.hint.Wrapping = fyne.TextWrapWord
 	m.hint.Importance = widget.LowImportance
@@ -316,7 +319,8 @@ func newMetricsPanel(rw *reviewWindow) *metricsPanel {
 		bold("Lethal dose outside the margin (click to show)"), listBox(m.outside),
 		bold("Avoid structures"), m.avoid,
 		bold("Thermometry quality"), m.quality,
-		bold("Settings used"), m.used, m.hint,
+		bold("Settings used"), m.used,
+		bold("Sign-offs"), m.signed, m.hint,
 	)
 	plots := container.NewAppTabs(
 		container.NewTabItem("Target DVH", m.dvh.raster),
@@ -333,6 +337,7 @@ func newMetricsPanel(rw *reviewWindow) *metricsPanel {
 func (m *metricsPanel) update() {
 	r := m.rw.result
 	m.used.SetText(m.rw.settings.describe())
+	m.signed.SetText(m.rw.signOffText())
 	if r == nil {
 		if m.rw.loaded == nil {
 			m.facts.SetText("No case open.")
@@ -447,4 +452,25 @@ func (b *washBar) set(floor, top float64, unit string) {
 	b.lo.SetText(fmtDose(floor))
 	b.hi.SetText(fmtDose(top) + " " + unit)
 	b.content.Refresh()
+}
+
+// signOffText lists the sign-offs of the open case (names hidden in
+// teaching mode).
+func (rw *reviewWindow) signOffText() string {
+	if rw.record == nil || len(rw.record.SignOffs) == 0 {
+		return "Not signed off."
+	}
+	var b []string
+	for _, s := range rw.record.SignOffs {
+		who := s.Reviewer
+		if rw.teaching {
+			who = "a reviewer"
+		}
+		line := fmt.Sprintf("%s by %s, covered %.1f %%", s.Time.Local().Format("2006-01-02 15:04"), who, 100*s.Covered)
+		if s.InputHash != rw.hash {
+			line += " (different input files)"
+		}
+		b = append(b, line)
+	}
+	return strings.Join(b, "\n")
 }

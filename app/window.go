@@ -325,6 +325,8 @@ func (rw *reviewWindow) setTeaching(on bool) {
 	rw.updateTitle()
 	rw.showLoadInfo()
 	rw.metrics.update()
+	rw.sonTable.Refresh()
+	rw.win.SetMainMenu(rw.mainMenu())
 }
 
 // displayPath returns p for display: relative to the case folder in
