@@ -13,6 +13,8 @@ import (
 	"testing"
 
 	"dosecover/dosemap/sim"
+
+	"fyne.io/fyne/v2/test"
 )
 
 var (
@@ -105,4 +107,25 @@ func TestViewerGoldenDemo(t *testing.T) {
 	openDemoCase(t, rw)
 	img := rw.viewers[0].draw(360, 300).(*image.RGBA)
 	compareGolden(t, img, filepath.Join("testdata", "viewer_demo.png"))
+}
+
+func TestCancelLoading(t *testing.T) {
+	dir, _ := freshDemo(t)
+	rw := testWindow(t)
+	mark := rw.completed.Load()
+	rw.openCase(dir)
+	if !rw.cancelBtn.Visible() || !rw.progress.Visible() {
+		t.Error("no progress bar or Cancel button while loading")
+	}
+	test.Tap(rw.cancelBtn)
+	waitJobs(t, rw, mark, 1)
+	if rw.loaded != nil {
+		t.Fatal("the case was loaded although Cancel was pressed")
+	}
+	if !strings.Contains(rw.status.Text, "cancelled") {
+		t.Errorf("status after Cancel: %q", rw.status.Text)
+	}
+	if rw.cancelBtn.Visible() {
+		t.Error("Cancel button still shown after cancelling")
+	}
 }

@@ -131,6 +131,7 @@ func (rw *reviewWindow) openCase(dir string) {
 		return
 	}
 	dir = filepath.Clean(dir)
+	rw.pendingDir = dir
 	ctx, gen := rw.startJob()
 	base := rw.displayPath(dir)
 	rw.setBusy("Checking the files of "+base+"…", 0)

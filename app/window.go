@@ -41,6 +41,7 @@ type reviewWindow struct {
 	opt        displayOptions
 	jobCancel  context.CancelFunc
 	jobGen     int
+	pendingDir string // the folder being opened
 	probeGen   int
 	probeCurve *probeCurve
 	active     *sliceViewer
@@ -329,20 +330,43 @@ func (rw *reviewWindow) setTeaching(on bool) {
 	rw.win.SetMainMenu(rw.mainMenu())
 }
 
-// displayPath returns p for display: relative to the case folder in
-// teaching mode, so folder names cannot reveal identity.
+// displayPath returns p for display. In teaching mode folder names could
+// reveal identity: paths inside the open case folder are shown relative to
+// it and any other path as "the case folder" or its last element only.
 func (rw *reviewWindow) displayPath(p string) string {
+	if !rw.teaching {
+		return p
+	}
 	if rw.loaded != nil {
 		if rel, err := filepath.Rel(rw.loaded.Dir, p); err == nil && !strings.HasPrefix(rel, "..") {
-			if rw.teaching {
-				return rel
+			if rel == "." {
+				return "the case folder"
 			}
+			return rel
 		}
 	}
-	if rw.teaching {
-		return filepath.Base(p)
+	if rw.pendingDir != "" && filepath.Clean(p) == rw.pendingDir {
+		return "the case folder"
 	}
-	return p
+	return filepath.Base(p)
+}
+
+// scrub removes the case folder's path from a message in teaching mode.
+func (rw *reviewWindow) scrub(msg string) string {
+	if !rw.teaching {
+		return msg
+	}
+	for _, d := range []string{rw.pendingDir, func() string {
+		if rw.loaded != nil {
+			return rw.loaded.Dir
+		}
+		return ""
+	}()} {
+		if d != "" {
+			msg = strings.ReplaceAll(msg, d, "<case folder>")
+		}
+	}
+	return msg
 }
 
 // redraw repaints both viewers.
@@ -518,6 +542,7 @@ func (rw *reviewWindow) finishJob(gen int) bool {
 }
 
 func (rw *reviewWindow) showError(title string, err error) {
-	rw.setBusy(title+": "+err.Error(), -1)
-	dialog.ShowError(fmt.Errorf("%s\n\n%w", title, err), rw.win)
+	msg := rw.scrub(err.Error())
+	rw.setBusy(rw.scrub(title)+": "+msg, -1)
+	dialog.ShowError(fmt.Errorf("%s\n\n%s", rw.scrub(title), msg), rw.win)
 }

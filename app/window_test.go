@@ -216,6 +216,9 @@ func TestTeachingModeHidesIdentity(t *testing.T) {
 			}
 		}
 	}
+	if msg := rw.scrub("reading " + filepath.Join(rw.loaded.Dir, "x.dcm") + ": truncated"); strings.Contains(msg, rw.loaded.Dir) {
+		t.Errorf("teaching mode error message shows the folder: %q", msg)
+	}
 	for n, d := range rw.recentCases() {
 		if strings.Contains(rw.recentLabel(n, d), d) {
 			t.Errorf("teaching mode lists the recent folder %q", d)
