@@ -122,8 +122,8 @@ var sonColumns = []struct {
 	title string
 	width float32
 }{
-	{"use", 52}, {"no.", 44}, {"time", 90}, {"label", 150}, {"peak °C", 76}, {"lethal added mL", 120},
-	{"coverage added", 116}, {"quality", 360},
+	{"use", 48}, {"no.", 40}, {"time", 62}, {"label", 196}, {"peak °C", 72}, {"lethal added mL", 124},
+	{"coverage added", 118}, {"quality and notes", 560},
 }
 
 func (rw *reviewWindow) newSonicationTable() *widget.Table {
