@@ -53,6 +53,7 @@ var shortcuts = [][2]string{
 	{"Tick / untick a sonication", "re-analyse with or without it"},
 	{"Select a sonication row", "show that sonication's dose alone"},
 	{"Drop a folder on the window", "open it"},
+	{"Review ▸ Draw drift reference, then drag", "draw the drift reference rectangle on the left image (Esc cancels)"},
 	{"Ctrl+O", "open a case folder"},
 	{"Ctrl+E", "export the report (PNG, PDF, JSON, CSV)"},
 	{"Ctrl+,", "analysis settings"},

@@ -490,7 +490,7 @@ func (rw *reviewWindow) openSettings() {
 // thermometryChanged reports whether temperature must be recomputed.
 func thermometryChanged(a, b analysisSettings) bool {
 	return a.PRFAlpha != b.PRFAlpha || a.BodyTemp != b.BodyTemp || a.BaselineFrames != b.BaselineFrames ||
-		a.Drift != b.Drift || a.DriftOrder != b.DriftOrder || a.B0 != b.B0 || a.TEms != b.TEms ||
+		a.Drift != b.Drift || a.DriftOrder != b.DriftOrder || a.B0 != b.B0 || a.TEms != b.TEms || a.DriftRef != b.DriftRef ||
 		a.Model != b.Model || a.CEM43Break != b.CEM43Break || a.CEM43RAbove != b.CEM43RAbove ||
 		a.CEM43RBelow != b.CEM43RBelow || a.ArrheniusA != b.ArrheniusA || a.ArrheniusEa != b.ArrheniusEa
 }

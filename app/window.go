@@ -140,6 +140,8 @@ func (rw *reviewWindow) build() {
 		v.onPin = rw.pin
 		v.onWindow = rw.redraw
 		v.onFocus = func(v *sliceViewer) { rw.active = v }
+		v.refShown = func() *refRect { return rw.settings.DriftRef }
+		v.onRef = rw.refDrawn
 		sel := widget.NewSelect([]string{planeAcquisition.String(), planeReformatRow.String(), planeReformatCol.String()}, nil)
 		sel.SetSelectedIndex(int(kind))
 		sel.OnChanged = func(string) { v.setKind(planeKind(sel.SelectedIndex())) }
@@ -180,6 +182,7 @@ func (rw *reviewWindow) build() {
 	showHoles := widget.NewCheck("Holes & spill", func(b bool) { rw.opt.ShowHoles = b; rw.redraw() })
 	showHoles.SetChecked(true)
 	resetWL := widget.NewButton("Reset window", rw.resetWindow)
+
 	rw.selInfo = widget.NewLabel("Showing the cumulative dose")
 	cumul := widget.NewButton("Cumulative", func() { rw.selectSonication(-1) })
 	display := container.NewHBox(
@@ -254,6 +257,8 @@ func (rw *reviewWindow) mainMenu() *fyne.MainMenu {
 	rw.fillRecentMenu(recent.ChildMenu)
 	review := fyne.NewMenu("Review",
 		fyne.NewMenuItem("Analysis settings…", rw.openSettings),
+		fyne.NewMenuItem("Draw drift reference on the left image", rw.startRefMode),
+		fyne.NewMenuItem("Automatic drift reference", rw.automaticRef),
 		fyne.NewMenuItem("Sign off…", rw.signOff),
 		fyne.NewMenuItem("Export report…", rw.exportReport),
 	)
@@ -391,6 +396,13 @@ func (rw *reviewWindow) sliceChanged(n int) {
 }
 
 func (rw *reviewWindow) typedKey(ev *fyne.KeyEvent) {
+	if ev.Name == fyne.KeyEscape && rw.viewers[0].refMode {
+		rw.viewers[0].refMode = false
+		rw.viewers[0].refA, rw.viewers[0].refB = nil, nil
+		rw.redraw()
+		rw.status.SetText("Drawing the drift reference was cancelled.")
+		return
+	}
 	if rw.active != nil {
 		rw.active.TypedKey(ev)
 	}
@@ -545,4 +557,46 @@ func (rw *reviewWindow) showError(title string, err error) {
 	msg := rw.scrub(err.Error())
 	rw.setBusy(rw.scrub(title)+": "+msg, -1)
 	dialog.ShowError(fmt.Errorf("%s\n\n%s", rw.scrub(title), msg), rw.win)
+}
+
+// startRefMode lets the user drag the drift reference rectangle on the
+// acquisition view (the left image).
+func (rw *reviewWindow) startRefMode() {
+	if rw.loaded == nil {
+		return
+	}
+	v := rw.viewers[0]
+	v.refMode = true
+	rw.status.SetText("Drag a rectangle on the left image over unheated tissue: the drift is measured there on every slice. Esc cancels.")
+}
+
+// automaticRef returns to the automatically chosen drift reference.
+func (rw *reviewWindow) automaticRef() {
+	rw.viewers[0].refMode = false
+	if rw.settings.DriftRef == nil {
+		return
+	}
+	rw.settings.DriftRef = nil
+	rw.redraw()
+	rw.runAnalysis(true)
+}
+
+// refDrawn takes a drawn rectangle as the drift reference and recomputes
+// the temperatures.
+func (rw *reviewWindow) refDrawn(a, b, u, v dosemap.Vec3) {
+	rw.viewers[0].refMode = false
+	r := newRefRect(a, b, u, v)
+	if r.W < 1 || r.H < 1 {
+		rw.status.SetText("The rectangle was too small; the drift reference is unchanged.")
+		return
+	}
+	if rw.loaded != nil {
+		if _, err := referenceMask(r, rw.loaded.Case); err != nil {
+			rw.showError("The drift reference was not changed", err)
+			return
+		}
+	}
+	rw.settings.DriftRef = r
+	rw.redraw()
+	rw.runAnalysis(true)
 }

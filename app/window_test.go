@@ -418,3 +418,53 @@ func TestSelectSonicationShowsItsDose(t *testing.T) {
 		t.Error("Cumulative did not return to the cumulative dose")
 	}
 }
+
+func TestDrawDriftReference(t *testing.T) {
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	// The thermometry grid of the fixture has voxel centres at x, y = -29,
+	// -27, ... mm and 10 slices: a rectangle from (-30, -30) to (-20.5,
+	// -20.5) mm holds x, y in {-29, ..., -21}, 5 × 5 × 10 = 250 voxels.
+	r := newRefRect(dosemap.Vec3{-20.5, -20.5, 0}, dosemap.Vec3{-30, -30, 0}, dosemap.Vec3{1, 0, 0}, dosemap.Vec3{0, 1, 0})
+	if r.W != 9.5 || r.H != 9.5 || r.Origin != (dosemap.Vec3{-30, -30, 0}) {
+		t.Fatalf("rectangle %+v", r)
+	}
+	m, err := referenceMask(r, rw.loaded.Case)
+	if err != nil {
+		t.Fatal(err)
+	}
+	n := 0
+	for _, in := range m {
+		if in {
+			n++
+		}
+	}
+	if n != 250 {
+		t.Errorf("reference holds %d voxels, want 250", n)
+	}
+	if _, err := referenceMask(newRefRect(dosemap.Vec3{100, 100, 0}, dosemap.Vec3{110, 110, 0}, r.U, r.V), rw.loaded.Case); err == nil {
+		t.Error("a rectangle outside the thermometry was accepted")
+	}
+	// Drawing on the left image: a drag in reference mode sets the
+	// reference and re-analyses.
+	v := rw.viewers[0]
+	v.draw(int(v.Size().Width), int(v.Size().Height))
+	rw.startRefMode()
+	mark := rw.completed.Load()
+	v.Dragged(&fyne.DragEvent{PointEvent: fyne.PointEvent{Position: fyne.NewPos(60, 60)}, Dragged: fyne.NewDelta(10, 10)})
+	v.Dragged(&fyne.DragEvent{PointEvent: fyne.PointEvent{Position: fyne.NewPos(120, 110)}, Dragged: fyne.NewDelta(60, 50)})
+	v.DragEnd()
+	waitJobs(t, rw, mark, 1)
+	if rw.settings.DriftRef == nil || v.refMode {
+		t.Fatalf("no drift reference after drawing (mode still %v); status %q", v.refMode, rw.status.Text)
+	}
+	if !strings.Contains(rw.metrics.used.Text, "reference region drawn") {
+		t.Errorf("settings text does not say the reference was drawn: %q", rw.metrics.used.Text)
+	}
+	mark = rw.completed.Load()
+	rw.automaticRef()
+	waitJobs(t, rw, mark, 1)
+	if rw.settings.DriftRef != nil || !strings.Contains(rw.metrics.used.Text, "automatic reference") {
+		t.Errorf("automatic reference not restored: %q", rw.metrics.used.Text)
+	}
+}
