@@ -59,6 +59,7 @@ type Config struct {
 // while running); a command line turns it into exit code 2.
 type UsageError struct{ Msg string }
 
+// Error returns the message.
 func (e *UsageError) Error() string { return e.Msg }
 
 // Row is one case of the summary table.
