@@ -12,6 +12,7 @@ import (
 	"sync/atomic"
 
 	"dosecover/dosemap"
+	"dosecover/review/report"
 
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/container"
@@ -314,10 +315,13 @@ func (rw *reviewWindow) caseName() string {
 		return ""
 	}
 	if rw.teaching {
-		if len(rw.hash) >= 8 {
-			return "Case " + rw.hash[:8]
+		// The neutral label the exported reports carry, so window and
+		// report name the case alike.
+		label := ""
+		if rw.loaded.Case != nil {
+			label = rw.loaded.Case.Label
 		}
-		return "Case"
+		return report.DeidentifiedLabel(label, rw.hash)
 	}
 	if rw.loaded.Case != nil && rw.loaded.Case.Label != "" {
 		return rw.loaded.Case.Label
