@@ -72,6 +72,7 @@ type sonicationRow struct {
 	Offset        float64   // seconds from the first sonication's start
 	Duration      float64   // seconds of thermometry
 	PeakTemp      float64   // °C, highest temperature inside the target (NaN unknown)
+	PeakDose      float64   // highest dose of this sonication alone, model unit
 	DoseAddedML   float64   // mL of tissue newly above the threshold
 	CoverageAdded float64   // fraction of the target newly covered
 	Flags         []string  // quality flags and notes, plain words

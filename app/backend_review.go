@@ -178,7 +178,7 @@ func (ss *reviewSession) Analyze(ctx context.Context, s analysisSettings) (*anal
 		first = ss.c.Sonications[0]
 	}
 	for _, st := range r.Sonications {
-		row := sonicationRow{Number: st.Number, Label: st.Label, PeakTemp: ptr(st.PeakTempC),
+		row := sonicationRow{Number: st.Number, Label: st.Label, PeakTemp: ptr(st.PeakTempC), PeakDose: st.PeakDose,
 			DoseAddedML: st.LethalAddedML, CoverageAdded: st.AddedCoverage, Offset: math.NaN()}
 		if so := ss.sonication(st.Number); so != nil {
 			row.Start = so.Start

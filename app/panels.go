@@ -122,7 +122,7 @@ var sonColumns = []struct {
 	title string
 	width float32
 }{
-	{"use", 48}, {"no.", 40}, {"time", 62}, {"label", 196}, {"peak °C", 72}, {"lethal added mL", 124},
+	{"use", 48}, {"no.", 40}, {"time", 62}, {"label", 190}, {"peak °C", 70}, {"peak dose", 90}, {"lethal added mL", 124},
 	{"coverage added", 118}, {"quality and notes", 560},
 }
 
@@ -173,10 +173,16 @@ func (rw *reviewWindow) newSonicationTable() *widget.Table {
 			case 4:
 				l.SetText(fmtOpt(row.PeakTemp, "%.1f"))
 			case 5:
-				l.SetText(fmtOpt(row.DoseAddedML, "%.2f"))
+				if math.IsNaN(row.PeakDose) || math.IsInf(row.PeakDose, 0) {
+					l.SetText("—")
+				} else {
+					l.SetText(fmtDose(row.PeakDose))
+				}
 			case 6:
-				l.SetText(fmtOpt(100*row.CoverageAdded, "%.1f %%"))
+				l.SetText(fmtOpt(row.DoseAddedML, "%.2f"))
 			case 7:
+				l.SetText(fmtOpt(100*row.CoverageAdded, "%.1f %%"))
+			case 8:
 				if rw.settings.excludedSet()[row.Number] {
 					l.Importance = widget.LowImportance
 					l.SetText("left out of the cumulative dose")
