@@ -4,7 +4,6 @@ package main
 
 import (
 	"context"
-	"errors"
 	"time"
 
 	"dosecover/dosemap"
@@ -16,8 +15,6 @@ import (
 // init functions; a hook left nil means that part is missing from the build,
 // and the window says so instead of showing anything made up.
 
-// errMissingPart is returned when a hook is not filled in this build.
-var errMissingPart = errors.New("this build of dosecover lacks the part needed for this step")
 
 // skippedFile is a file of the case folder that was not used, with the
 // reader's reason.

@@ -363,6 +363,9 @@ func (m *metricsPanel) update() {
 	band := "not estimated"
 	if !math.IsNaN(r.CoveredP05) && !math.IsNaN(r.CoveredP95) {
 		band = fmt.Sprintf("%s – %s", pct(r.CoveredP05), pct(r.CoveredP95))
+		if r.Trials > 0 {
+			band += fmt.Sprintf(" (%d trials)", r.Trials)
+		}
 	}
 	name := r.TargetName
 	if name == "" {
