@@ -15,7 +15,6 @@ import (
 // init functions; a hook left nil means that part is missing from the build,
 // and the window says so instead of showing anything made up.
 
-
 // skippedFile is a file of the case folder that was not used, with the
 // reader's reason.
 type skippedFile struct {
