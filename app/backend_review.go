@@ -80,10 +80,13 @@ func referenceMask(rr *refRect, c *dosemap.Case) ([]bool, error) {
 }
 
 // reviewSession wraps a prepared review.Session. The temperature series
-// for the probe are computed on first use and kept.
+// for the probe are those the session keeps; only a sonication whose
+// series the session does not keep (another grid), or thermometry options
+// other than the prepared ones, are computed here, once, and kept.
 type reviewSession struct {
-	c  *dosemap.Case
-	rs *review.Session
+	c           *dosemap.Case
+	rs          *review.Session
+	preparedKey string // seriesKey of the settings rs was prepared with
 
 	mu        sync.Mutex
 	seriesKey string
@@ -100,7 +103,13 @@ func prepareReview(ctx context.Context, lc *loadedCase, s analysisSettings, prog
 	if err != nil {
 		return nil, err
 	}
-	return &reviewSession{c: lc.Case, rs: rs}, nil
+	return &reviewSession{c: lc.Case, rs: rs, preparedKey: seriesKey(s)}, nil
+}
+
+// seriesKey names the thermometry options of s the temperature series
+// depend on.
+func seriesKey(s analysisSettings) string {
+	return fmt.Sprintf("%+v %+v", thermometryOptions(s), s.DriftRef)
 }
 
 func ptr(p *float64) float64 {
@@ -339,7 +348,7 @@ func thermometryOptions(s analysisSettings) dosemap.ThermometryOptions {
 // dose-map sonications), computing them on first use.
 func (ss *reviewSession) temperatures(s analysisSettings) ([]*dosemap.TemperatureSeries, error) {
 	o := thermometryOptions(s)
-	key := fmt.Sprintf("%+v %+v", o, s.DriftRef)
+	key := seriesKey(s)
 	if s.DriftRef != nil {
 		ref, err := referenceMask(s.DriftRef, ss.c)
 		if err != nil {
@@ -357,6 +366,12 @@ func (ss *reviewSession) temperatures(s analysisSettings) ([]*dosemap.Temperatur
 		if so.Dose != nil && so.Phase == nil && so.Temperature == nil {
 			ss.series = append(ss.series, nil)
 			continue
+		}
+		if key == ss.preparedKey {
+			if ts := ss.rs.Temperature(so.Number); ts != nil {
+				ss.series = append(ss.series, ts)
+				continue
+			}
 		}
 		ts, err := dosemap.Thermometry(so, o)
 		if err != nil {

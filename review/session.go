@@ -308,6 +308,23 @@ func (s *Session) SonicationDose(n int) *dosemap.Volume {
 	return nil
 }
 
+// Temperature returns the temperature series Prepare computed for
+// sonication number n (absolute °C per frame, per-voxel noise and frame
+// quality, on the thermometry grid, with the thermometry options the
+// session was prepared with), or nil when there is no such sonication, it
+// came as a ready dose map, or it was acquired on a grid other than
+// ThermometryGrid (its series is then not kept). The series is shared with
+// the session and must not be modified.
+func (s *Session) Temperature(n int) *dosemap.TemperatureSeries {
+	for _, sd := range s.sons {
+		if sd.number == n {
+			ts, _ := sd.series.(*dosemap.TemperatureSeries)
+			return ts
+		}
+	}
+	return nil
+}
+
 // Sonications returns the numbers of the prepared sonications in delivery
 // order.
 func (s *Session) Sonications() []int {
