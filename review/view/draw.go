@@ -21,10 +21,15 @@ const (
 // accumulates its coverage (the maximum over its pieces) in a scratch
 // buffer and is composited once, so joints and overlapping dashes do not
 // darken.
+//
+// The pixels touched since the last flush are kept as one span per row
+// (lo[y] to hi[y], image coordinates), so that flushing a long thin stroke
+// visits only the pixels near it rather than its whole bounding box.
 type canvas struct {
-	img   *image.RGBA
-	cov   []uint8
-	dirty image.Rectangle
+	img    *image.RGBA
+	cov    []uint8
+	dirty  image.Rectangle // rows y0..y1 with spans; columns unused
+	lo, hi []int32         // per row of the image: touched columns [lo, hi)
 }
 
 func newCanvas(img *image.RGBA, scratch []uint8) *canvas {
@@ -34,6 +39,35 @@ func newCanvas(img *image.RGBA, scratch []uint8) *canvas {
 	}
 	scratch = scratch[:n]
 	return &canvas{img: img, cov: scratch}
+}
+
+// setSpans gives the canvas the row-span buffers held in buf (reused when
+// large enough) and returns the buffer to keep for the next canvas.
+func (c *canvas) setSpans(buf []int32) []int32 {
+	h := c.img.Rect.Dy()
+	if cap(buf) < 2*h {
+		buf = make([]int32, 2*h)
+	}
+	buf = buf[:2*h]
+	c.lo, c.hi = buf[:h], buf[h:]
+	for y := range c.lo {
+		c.lo[y], c.hi[y] = math.MaxInt32, math.MinInt32
+	}
+	return buf
+}
+
+// touch records that columns [x0, x1) of rows [y0, y1) hold coverage.
+func (c *canvas) touch(x0, y0, x1, y1 int) {
+	if c.lo == nil {
+		c.setSpans(nil)
+	}
+	c.dirty = c.dirty.Union(image.Rect(x0, y0, x1, y1))
+	b := c.img.Rect
+	for y := y0; y < y1; y++ {
+		r := y - b.Min.Y
+		c.lo[r] = min(c.lo[r], int32(x0))
+		c.hi[r] = max(c.hi[r], int32(x1))
+	}
 }
 
 // capsule adds the coverage of a segment from a to b with half-width hw
@@ -47,10 +81,14 @@ func (c *canvas) capsule(ax, ay, bx, by, hw float64) {
 	if x0 >= x1 || y0 >= y1 {
 		return
 	}
-	c.dirty = c.dirty.Union(image.Rect(x0, y0, x1, y1))
+	c.touch(x0, y0, x1, y1)
 	dx, dy := bx-ax, by-ay
 	l2 := dx*dx + dy*dy
 	w := b.Dx()
+	// Pixels whose squared distance exceeds reach² (with a margin far above
+	// rounding) get no coverage; skipping them spares the square root.
+	reach := hw + 0.5
+	reach2 := reach * reach * (1 + 1e-9)
 	for y := y0; y < y1; y++ {
 		py := float64(y) + 0.5 - ay
 		row := c.cov[(y-b.Min.Y)*w:]
@@ -62,7 +100,11 @@ func (c *canvas) capsule(ax, ay, bx, by, hw float64) {
 				t = math.Max(0, math.Min(1, t))
 			}
 			ex, ey := px-t*dx, py-t*dy
-			d := math.Sqrt(ex*ex + ey*ey)
+			d2 := ex*ex + ey*ey
+			if d2 > reach2 {
+				continue
+			}
+			d := math.Sqrt(d2)
 			cv := hw + 0.5 - d
 			if cv <= 0 {
 				continue
@@ -149,9 +191,15 @@ func (c *canvas) flush(col color.RGBA, alpha float64) {
 	w := b.Dx()
 	a := int(alpha*256 + 0.5)
 	for y := d.Min.Y; y < d.Max.Y; y++ {
-		row := c.cov[(y-b.Min.Y)*w:]
-		pix := c.img.Pix[c.img.PixOffset(d.Min.X, y):]
-		for x := d.Min.X; x < d.Max.X; x++ {
+		r := y - b.Min.Y
+		x0, x1 := max(int(c.lo[r]), d.Min.X), min(int(c.hi[r]), d.Max.X)
+		c.lo[r], c.hi[r] = math.MaxInt32, math.MinInt32
+		if x0 >= x1 {
+			continue
+		}
+		row := c.cov[r*w:]
+		pix := c.img.Pix[c.img.PixOffset(x0, y):]
+		for x := x0; x < x1; x++ {
 			i := x - b.Min.X
 			v := int(row[i])
 			if v == 0 {

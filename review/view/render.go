@@ -77,22 +77,24 @@ func DefaultStyle() Style {
 type Renderer struct {
 	Style Style
 
-	key     cacheKey
-	anat    []float32
-	dose    []float32 // log10 of the dose (NaN: no wash)
-	doseRaw []float32
-	lethal  []Polyline
-	isos    [][]Polyline
-	fields  map[regionID]*regionField
-	binary  map[*dosemap.Volume]*dosemap.Volume
-	samples map[*dosemap.Volume][]float32 // extra volumes on the plane
-	levels  map[levelKey][]Polyline       // their isolines
-	doseBox image.Rectangle               // plane pixels with positive dose
-	auto    Window                        // AutoWindow of autoFor
-	autoFor *dosemap.Volume
-	cols    []column
-	scratch []uint8
-	pts     []Point
+	key      cacheKey
+	anat     []float32
+	dose     []float32 // log10 of the dose (NaN: no wash)
+	doseRaw  []float32
+	lethal   []Polyline
+	isos     [][]Polyline
+	fields   map[regionID]*regionField
+	binary   map[*dosemap.Volume]*dosemap.Volume
+	samples  map[*dosemap.Volume][]float32 // extra volumes on the plane
+	levels   map[levelKey][]Polyline       // their isolines
+	doseBox  image.Rectangle               // plane pixels with positive dose
+	auto     Window                        // AutoWindow of autoFor
+	autoFor  *dosemap.Volume
+	cols     []column
+	scratch  []uint8
+	spans    []int32 // the canvas' row spans
+	fillCols []fillColumn
+	pts      []Point
 }
 
 type levelKey struct {
@@ -307,13 +309,14 @@ func (r *Renderer) Render(s *Scene, v View, dst *image.RGBA) (*image.RGBA, error
 	holes := r.field(p, s.Holes)
 	// Not monitored: darkened, then light grey cross-hatch, so it reads on
 	// grey anatomy too.
-	r.fill(dst, p, v, notMon, func(x, y int) float64 { return 0.55 }, haloColor)
-	r.fill(dst, p, v, notMon, crossHatch, review.ColorNotMonitored)
+	r.fillLayers(dst, p, v, notMon, fillLayer{func(x, y int) float64 { return 0.55 }, haloColor},
+		fillLayer{crossHatch, review.ColorNotMonitored})
 	r.fill(dst, p, v, spill, func(x, y int) float64 { return st.FillOpacity }, review.ColorSpill)
 	r.fill(dst, p, v, holes, hatch, review.ColorHole)
 
 	cv := newCanvas(dst, r.scratch)
 	r.scratch = cv.cov
+	r.spans = cv.setSpans(r.spans)
 	// Isodoses: thin light lines, each labelled with its level where it
 	// reaches furthest right on screen (labels drawn after all lines).
 	type isoLabel struct {
@@ -523,6 +526,20 @@ func (r *Renderer) base(dst *image.RGBA, s *Scene, v View, win Window, sc DoseSc
 // inside region f (field >= 0.5); pattern gives the opacity at each display
 // pixel.
 func (r *Renderer) fill(dst *image.RGBA, p Plane, v View, f *regionField, pattern func(x, y int) float64, col color.RGBA) {
+	r.fillLayers(dst, p, v, f, fillLayer{pattern, col})
+}
+
+// fillLayer is one pattern and colour blended over a region.
+type fillLayer struct {
+	pattern func(x, y int) float64
+	col     color.RGBA
+}
+
+// fillLayers blends each layer in turn over the display pixels inside
+// region f, in one pass over the region. The field is interpolated as
+// regionField.at does, with the horizontal part tabulated per display
+// column.
+func (r *Renderer) fillLayers(dst *image.RGBA, p Plane, v View, f *regionField, layers ...fillLayer) {
 	if f == nil || f.box.Empty() {
 		return
 	}
@@ -530,15 +547,54 @@ func (r *Renderer) fill(dst *image.RGBA, p Plane, v View, f *regionField, patter
 	ax, ay := v.ToDisplay(p, Point{float64(f.box.Min.X) - 0.5, float64(f.box.Min.Y) - 0.5})
 	bx, by := v.ToDisplay(p, Point{float64(f.box.Max.X) - 0.5, float64(f.box.Max.Y) - 0.5})
 	rect := image.Rect(int(math.Floor(ax)), int(math.Floor(ay)), int(math.Ceil(bx)), int(math.Ceil(by))).Intersect(dst.Rect)
+	if rect.Empty() {
+		return
+	}
+	w, h := f.box.Dx(), f.box.Dy()
+	if cap(r.fillCols) < rect.Dx() {
+		r.fillCols = make([]fillColumn, rect.Dx())
+	}
+	cols := r.fillCols[:rect.Dx()]
+	for n := range cols {
+		x := v.ToPlane(p, float64(rect.Min.X+n)+0.5, 0).X - float64(f.box.Min.X)
+		if x < -0.5 || x > float64(w)-0.5 {
+			cols[n] = fillColumn{x0: -1}
+			continue
+		}
+		x0, fx := splitf(math.Max(0, math.Min(float64(w-1), x)), w)
+		cols[n] = fillColumn{x0: int32(x0), x1: int32(min(x0+1, w-1)), fx: fx}
+	}
 	for j := rect.Min.Y; j < rect.Max.Y; j++ {
-		for i := rect.Min.X; i < rect.Max.X; i++ {
-			q := v.ToPlane(p, float64(i)+0.5, float64(j)+0.5)
-			if !(f.at(q.X, q.Y) >= 0.5) {
+		y := v.ToPlane(p, 0, float64(j)+0.5).Y - float64(f.box.Min.Y)
+		if y < -0.5 || y > float64(h)-0.5 {
+			continue
+		}
+		y0, fy := splitf(math.Max(0, math.Min(float64(h-1), y)), h)
+		y1 := min(y0+1, h-1)
+		r0, r1 := f.field[y0*w:y0*w+w], f.field[y1*w:y1*w+w]
+		for n, c := range cols {
+			if c.x0 < 0 {
 				continue
 			}
-			blend(dst.Pix[dst.PixOffset(i, j):], col, int(pattern(i, j)*255+0.5))
+			a := float64(r0[c.x0])*(1-c.fx) + float64(r0[c.x1])*c.fx
+			b := float64(r1[c.x0])*(1-c.fx) + float64(r1[c.x1])*c.fx
+			if !(a*(1-fy)+b*fy >= 0.5) { // false for NaN too
+				continue
+			}
+			i := rect.Min.X + n
+			o := dst.Pix[dst.PixOffset(i, j):]
+			for _, l := range layers {
+				blend(o, l.col, int(l.pattern(i, j)*255+0.5))
+			}
 		}
 	}
+}
+
+// fillColumn is the horizontal interpolation of a region field for one
+// display column; x0 < 0 outside the field.
+type fillColumn struct {
+	x0, x1 int32
+	fx     float64
 }
 
 // hatch is the hole pattern: diagonal stripes (rising to the right) of 2
