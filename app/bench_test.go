@@ -8,19 +8,48 @@ import (
 )
 
 // BenchmarkViewerDraw measures one redraw of the acquisition view of the
-// synthetic phantom (anatomy, dose wash, isoline, contours, holes), as
-// done on every slice change, at several display sizes.
+// synthetic phantom (anatomy, dose wash, isoline, contours, holes) at
+// several display sizes, for each way the view changes:
+//
+//	first  a slice shown for the first time by a new viewer (nothing cached)
+//	slice  a slice change (the slice's plane is sampled and traced anew)
+//	pan    a pan of 1 mm (the slice's plane is reused)
+//	zoom   a zoom between 1.5× and 1.65× (the slice's plane is reused)
+//
+// Besides wall time it reports the process CPU time per redraw
+// (cpu-ms/op), steadier on a machine shared with other work.
 func BenchmarkViewerDraw(b *testing.B) {
+	rw := benchWindow(b)
+	v := rw.viewers[0]
 	for _, size := range []int{256, 512, 1024} {
-		b.Run(fmt.Sprintf("%dpx", size), func(b *testing.B) {
-			rw := benchWindow(b)
-			v := rw.viewers[0]
-			b.ResetTimer()
-			for i := 0; i < b.N; i++ {
-				v.slice = (v.slice + 1) % v.slices() // a new plane each time: no cache reuse
+		for _, mode := range []string{"first", "slice", "pan", "zoom"} {
+			b.Run(fmt.Sprintf("%dpx/%s", size, mode), func(b *testing.B) {
+				v.zoom, v.panU, v.panV = 1.5, 0, 0
+				v.slice = v.slices() / 2
 				v.draw(size, size)
-			}
-		})
+				b.ReportAllocs()
+				b.ResetTimer()
+				c0 := cpuTime()
+				for i := 0; i < b.N; i++ {
+					switch mode {
+					case "first":
+						v.cache = nil
+						v.slice = v.slices()/2 + i%2
+					case "slice":
+						v.slice = (v.slice + 1) % v.slices()
+					case "pan":
+						v.panU = float64(i%2) - 0.5
+					case "zoom":
+						v.zoom = 1.5 * (1 + 0.1*float64(i%2))
+					}
+					v.draw(size, size)
+				}
+				b.StopTimer()
+				if c := cpuTime(); c > 0 {
+					b.ReportMetric(float64(c-c0)/float64(b.N)/1e6, "cpu-ms/op")
+				}
+			})
+		}
 	}
 }
 

@@ -83,6 +83,29 @@ type viewTransform struct {
 	U, V       dosemap.Vec3
 	MMPerPixel float64
 	W, H       int
+	// Slice is the whole displayed slice, independent of zoom and pan;
+	// zero when unknown.
+	Slice sliceFrame
+}
+
+// sliceFrame is the extent of one slice of the reference grid: its centre,
+// its size along U and V (mm) and the finest in-plane voxel spacing (mm)
+// of the grid. A renderer samples the slice once on a plane of its own
+// and reuses that plane while the view zooms and pans.
+type sliceFrame struct {
+	Centre        dosemap.Vec3
+	Width, Height float64
+	Spacing       float64
+}
+
+// slicePlanePixel is the pixel size (mm) of the plane on which a slice is
+// sampled: the grid's voxel spacing, made finer when needed to put at least
+// 256 pixels across the slice (so outlines stay smooth on a coarse grid),
+// and never so fine that a side exceeds 2048 pixels.
+func (f sliceFrame) slicePlanePixel() float64 {
+	ext := math.Max(f.Width, f.Height)
+	px := math.Min(f.Spacing, ext/256)
+	return math.Max(px, ext/2048)
 }
 
 // At returns the patient position of the centre of pixel (x, y).

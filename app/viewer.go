@@ -139,9 +139,14 @@ func (v *sliceViewer) transform(w, h int) (viewTransform, bool) {
 	}
 	u, vv, n, slices, step, width, height := planeAxes(*v.ref, v.kind)
 	s := math.Max(width/float64(w), height/float64(h)) / v.zoom
-	c := gridCentre(*v.ref).Add(n.Scale((float64(v.slice) - float64(slices-1)/2) * step))
-	c = c.Add(u.Scale(v.panU)).Add(vv.Scale(v.panV))
-	return viewTransform{Centre: c, U: u, V: vv, MMPerPixel: s, W: w, H: h}, true
+	sc := gridCentre(*v.ref).Add(n.Scale((float64(v.slice) - float64(slices-1)/2) * step))
+	c := sc.Add(u.Scale(v.panU)).Add(vv.Scale(v.panV))
+	sp := v.ref.Spacing
+	frame := sliceFrame{Centre: sc, Width: width, Height: height, Spacing: math.Min(sp[0], sp[1])}
+	if v.kind != planeAcquisition {
+		frame.Spacing = math.Min(frame.Spacing, sp[2])
+	}
+	return viewTransform{Centre: c, U: u, V: vv, MMPerPixel: s, W: w, H: h, Slice: frame}, true
 }
 
 func (v *sliceViewer) draw(w, h int) image.Image {
