@@ -352,17 +352,7 @@ func (r *Renderer) Render(s *Scene, v View, dst *image.RGBA) (*image.RGBA, error
 		if ll.Volume == nil {
 			continue
 		}
-		k := levelKey{ll.Volume, ll.Level}
-		lines, ok := r.levels[k]
-		if !ok {
-			vals, ok := r.samples[ll.Volume]
-			if !ok {
-				vals = Sample(ll.Volume, p)
-				r.samples[ll.Volume] = vals
-			}
-			lines = MarchingSquares(vals, p.Width, p.Height, ll.Level)
-			r.levels[k] = lines
-		}
+		lines := r.levelLines(p, ll)
 		w := ll.Width
 		if w <= 0 {
 			w = 1.5
@@ -411,6 +401,59 @@ func (r *Renderer) Render(s *Scene, v View, dst *image.RGBA) (*image.RGBA, error
 	}
 	return dst, nil
 }
+
+// levelLines returns the cached isolines of ll on plane p.
+func (r *Renderer) levelLines(p Plane, ll LevelLine) []Polyline {
+	k := levelKey{ll.Volume, ll.Level}
+	lines, ok := r.levels[k]
+	if !ok {
+		vals, ok := r.samples[ll.Volume]
+		if !ok {
+			vals = Sample(ll.Volume, p)
+			r.samples[ll.Volume] = vals
+		}
+		lines = MarchingSquares(vals, p.Width, p.Height, ll.Level)
+		r.levels[k] = lines
+	}
+	return lines
+}
+
+// Prepare does ahead of time the per-plane work of rendering s (sampling
+// anatomy, dose and further volumes on s.Plane, tracing isolines, region
+// fields and outlines), so that a later Render of a scene on the same plane
+// with the same volumes, regions and levels only composites. It fails like
+// Render on an unusable plane or dose scale. Prepare may run on another
+// goroutine than the one drawing, with a Renderer of its own.
+func (r *Renderer) Prepare(s *Scene) error {
+	p := s.Plane
+	if err := p.Validate(); err != nil {
+		return fmt.Errorf("preparing plane: %w", err)
+	}
+	sc := s.Scale
+	if sc == (DoseScale{}) {
+		sc = DefaultDoseScale()
+	}
+	if err := sc.Validate(); err != nil {
+		return err
+	}
+	r.prepare(s, sc)
+	for _, g := range []Region{s.NotMonitored, s.Spill, s.Holes, s.Margin, s.Target, s.LethalRegion} {
+		r.field(p, g)
+	}
+	for _, a := range s.Avoid {
+		r.field(p, a)
+	}
+	for _, ll := range s.Lines {
+		if ll.Volume != nil {
+			r.levelLines(p, ll)
+		}
+	}
+	return nil
+}
+
+// Plane returns the plane whose work the Renderer holds (from the latest
+// Render or Prepare) and whether it holds any.
+func (r *Renderer) Plane() (Plane, bool) { return r.key.plane, r.key.valid }
 
 // display maps plane pixel points to display coordinates (a reused buffer).
 func (r *Renderer) display(p Plane, v View, pts []Point) []Point {
