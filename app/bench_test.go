@@ -15,18 +15,31 @@ import (
 //	slice  a slice change (the slice's plane is sampled and traced anew)
 //	pan    a pan of 1 mm (the slice's plane is reused)
 //	zoom   a zoom between 1.5× and 1.65× (the slice's plane is reused)
+//	step   a step to the next slice after the viewer prepared it in the
+//	       background (as when scrolling through the slices)
 //
-// Besides wall time it reports the process CPU time per redraw
-// (cpu-ms/op), steadier on a machine shared with other work.
+// The first four run without the background preparation of neighbouring
+// slices. Besides wall time (of the drawing alone) it reports the process
+// CPU time per redraw (cpu-ms/op, which for step includes the background
+// preparation), steadier on a machine shared with other work.
 func BenchmarkViewerDraw(b *testing.B) {
 	rw := benchWindow(b)
 	v := rw.viewers[0]
+	defer func(p bool) { prefetchSlices = p }(prefetchSlices)
 	for _, size := range []int{256, 512, 1024} {
-		for _, mode := range []string{"first", "slice", "pan", "zoom"} {
+		for _, mode := range []string{"first", "slice", "pan", "zoom", "step"} {
 			b.Run(fmt.Sprintf("%dpx/%s", size, mode), func(b *testing.B) {
+				prefetchSlices = mode == "step"
+				v.cache = nil
 				v.zoom, v.panU, v.panV = 1.5, 0, 0
 				v.slice = v.slices() / 2
 				v.draw(size, size)
+				wait := func() {
+					if sv, ok := v.cache.(*sharedView); ok {
+						sv.wg.Wait()
+					}
+				}
+				wait()
 				b.ReportAllocs()
 				b.ResetTimer()
 				c0 := cpuTime()
@@ -35,7 +48,7 @@ func BenchmarkViewerDraw(b *testing.B) {
 					case "first":
 						v.cache = nil
 						v.slice = v.slices()/2 + i%2
-					case "slice":
+					case "slice", "step":
 						v.slice = (v.slice + 1) % v.slices()
 					case "pan":
 						v.panU = float64(i%2) - 0.5
@@ -43,6 +56,11 @@ func BenchmarkViewerDraw(b *testing.B) {
 						v.zoom = 1.5 * (1 + 0.1*float64(i%2))
 					}
 					v.draw(size, size)
+					if mode == "step" {
+						b.StopTimer()
+						wait()
+						b.StartTimer()
+					}
 				}
 				b.StopTimer()
 				if c := cpuTime(); c > 0 {

@@ -96,6 +96,21 @@ type sliceFrame struct {
 	Centre        dosemap.Vec3
 	Width, Height float64
 	Spacing       float64
+	Normal        dosemap.Vec3 // unit step direction between slices
+	Step          float64      // mm between slices
+	Index, Count  int          // this slice and the number of slices
+}
+
+// neighbour returns the frame of the slice d slices away and whether it
+// exists.
+func (f sliceFrame) neighbour(d int) (sliceFrame, bool) {
+	k := f.Index + d
+	if k < 0 || k >= f.Count || !(f.Step > 0) {
+		return f, false
+	}
+	f.Centre = f.Centre.Add(f.Normal.Scale(float64(d) * f.Step))
+	f.Index = k
+	return f, true
 }
 
 // slicePlanePixel is the pixel size (mm) of the plane on which a slice is

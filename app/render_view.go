@@ -6,7 +6,9 @@ import (
 	"image"
 	"image/color"
 	"math"
+	"sync"
 
+	"dosecover/dosemap"
 	"dosecover/review/view"
 )
 
@@ -17,15 +19,139 @@ func init() {
 	washColour = washColourShared
 }
 
-// sharedView is the shared renderer's state for one viewer: the renderer
-// (which keeps the samples, isolines and outlines of the current plane),
-// the scene handed to it and the destination image, all reused from one
-// frame to the next.
+// sharedView is the shared renderer's state for one viewer: renderers of
+// the latest slices shown or prepared (each keeps the samples, isolines and
+// outlines of its slice's plane), the scene handed to them and the
+// destination image, all reused from one frame to the next. After each
+// frame the neighbouring slices are prepared on other goroutines, so that
+// stepping through the slices finds them ready. The pool is guarded by mu;
+// the drawing itself happens on the UI goroutine only.
 type sharedView struct {
-	r     *view.Renderer
 	scene view.Scene
 	avoid []view.Region
 	dst   *image.RGBA
+
+	mu      sync.Mutex
+	layers  sceneLayers // what the pooled renderers were prepared for
+	gen     int         // bumped when layers change; late preparations are dropped
+	pool    []pooledRenderer
+	pending map[view.Plane]bool
+	wg      sync.WaitGroup // preparations under way
+}
+
+// pooledRenderer is a renderer holding the work of one plane.
+type pooledRenderer struct {
+	plane view.Plane
+	r     *view.Renderer
+}
+
+// slicePool is the number of slices whose work a viewer keeps.
+const slicePool = 6
+
+// prefetchSlices turns the background preparation of the neighbouring
+// slices on (benchmarks turn it off to measure an unprepared slice).
+var prefetchSlices = true
+
+// sameLayers reports whether a and b show the same volumes and structures.
+func sameLayers(a, b *sceneLayers) bool {
+	if a.Anatomy != b.Anatomy || a.Dose != b.Dose || a.Threshold != b.Threshold || a.Target != b.Target ||
+		a.Margin != b.Margin || a.Holes != b.Holes || a.Outside != b.Outside || a.Avoid != b.Avoid ||
+		a.NotMonitored != b.NotMonitored || a.TargetStructure != b.TargetStructure ||
+		len(a.AvoidStructures) != len(b.AvoidStructures) {
+		return false
+	}
+	for n := range a.AvoidStructures {
+		if a.AvoidStructures[n] != b.AvoidStructures[n] {
+			return false
+		}
+	}
+	return true
+}
+
+// renderer returns the renderer for plane p, most recently used first: the
+// one holding p, else a new one while the pool has room, else the least
+// recently used. When the layers differ from those the pool was prepared
+// for, the pool is emptied (so no renderer keeps fields of old masks).
+func (sv *sharedView) renderer(s *sceneLayers, p view.Plane) *view.Renderer {
+	sv.mu.Lock()
+	defer sv.mu.Unlock()
+	if !sameLayers(&sv.layers, s) {
+		sv.layers = *s
+		sv.layers.AvoidStructures = append([]*dosemap.Structure(nil), s.AvoidStructures...)
+		sv.pool = nil
+		sv.gen++
+	}
+	for n, e := range sv.pool {
+		if e.plane == p {
+			copy(sv.pool[n:], sv.pool[n+1:])
+			sv.pool[len(sv.pool)-1] = e
+			return e.r
+		}
+	}
+	e := pooledRenderer{plane: p}
+	if len(sv.pool) < slicePool {
+		e.r = view.NewRenderer()
+	} else {
+		e.r = sv.pool[0].r
+		sv.pool = sv.pool[1:]
+	}
+	sv.pool = append(sv.pool, e)
+	return e.r
+}
+
+// prefetch prepares, on other goroutines, the slices next to the one of t
+// that the pool does not hold yet, for scene sc.
+func (sv *sharedView) prefetch(t viewTransform, sc *view.Scene) {
+	sv.mu.Lock()
+	defer sv.mu.Unlock()
+	for _, d := range []int{1, -1} {
+		f, ok := t.Slice.neighbour(d)
+		if !ok {
+			continue
+		}
+		nt := t
+		nt.Slice = f
+		p, ok := slicePlane(nt)
+		if !ok || sv.pending[p] {
+			continue
+		}
+		held := false
+		for _, e := range sv.pool {
+			held = held || e.plane == p
+		}
+		if held {
+			continue
+		}
+		if sv.pending == nil {
+			sv.pending = map[view.Plane]bool{}
+		}
+		sv.pending[p] = true
+		job := *sc
+		job.Plane = p
+		job.Avoid = append([]view.Region(nil), sc.Avoid...)
+		gen := sv.gen
+		sv.wg.Add(1)
+		go func() {
+			defer sv.wg.Done()
+			r := view.NewRenderer()
+			err := r.Prepare(&job)
+			sv.mu.Lock()
+			defer sv.mu.Unlock()
+			delete(sv.pending, p)
+			if err != nil || gen != sv.gen {
+				return
+			}
+			for _, e := range sv.pool {
+				if e.plane == p {
+					return // drawn meanwhile
+				}
+			}
+			sv.pool = append(sv.pool, pooledRenderer{plane: p, r: r})
+			if len(sv.pool) > slicePool {
+				sv.pool = sv.pool[1:]
+			}
+		}()
+	}
 }
 
 // slicePlane returns the plane on which the slice of t is sampled: the
@@ -56,7 +182,7 @@ func renderPlaneShared(s *sceneLayers, t viewTransform, opt displayOptions, cach
 	}
 	sv, _ := (*cache).(*sharedView)
 	if sv == nil {
-		sv = &sharedView{r: view.NewRenderer()}
+		sv = &sharedView{}
 		*cache = sv
 	}
 	p, ok := slicePlane(t)
@@ -109,11 +235,14 @@ func renderPlaneShared(s *sceneLayers, t viewTransform, opt displayOptions, cach
 	if s.NotMonitored != nil {
 		sc.NotMonitored = view.Region{Mask: s.NotMonitored}
 	}
-	img, err := sv.r.Render(sc, v, sv.dst)
+	img, err := sv.renderer(s, p).Render(sc, v, sv.dst)
 	if err != nil {
 		return renderPlaneBasic(s, t, opt)
 	}
 	sv.dst = img
+	if ok && prefetchSlices {
+		sv.prefetch(t, sc)
+	}
 	return img
 }
 

@@ -142,7 +142,8 @@ func (v *sliceViewer) transform(w, h int) (viewTransform, bool) {
 	sc := gridCentre(*v.ref).Add(n.Scale((float64(v.slice) - float64(slices-1)/2) * step))
 	c := sc.Add(u.Scale(v.panU)).Add(vv.Scale(v.panV))
 	sp := v.ref.Spacing
-	frame := sliceFrame{Centre: sc, Width: width, Height: height, Spacing: math.Min(sp[0], sp[1])}
+	frame := sliceFrame{Centre: sc, Width: width, Height: height, Spacing: math.Min(sp[0], sp[1]),
+		Normal: n, Step: step, Index: v.slice, Count: slices}
 	if v.kind != planeAcquisition {
 		frame.Spacing = math.Min(frame.Spacing, sp[2])
 	}
