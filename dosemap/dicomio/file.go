@@ -147,6 +147,9 @@ type fileInfo struct {
 	Pixels                             []byte // raw pixel data when read
 	Structures                         *structureSet
 	IsImage                            bool
+
+	pixelAt pixelLocation // where the native pixel data lies in the file
+	size    int64         // file size when read
 }
 
 // fileError is a reason a file is skipped.
@@ -215,7 +218,7 @@ func readBytes(path string, data []byte, pixels bool) (fi *fileInfo, err error) 
 	if !looksLikeDICOM(data) {
 		return nil, skip("not a DICOM file (no DICM marker and no DICOM element at the start)")
 	}
-	syntax, err := checkLengths(data)
+	syntax, pxLoc, err := checkLayout(data)
 	if ts, ok := transferSyntaxes[syntax]; ok && !ts.supported {
 		return nil, skip("unsupported compression: %s (%s)", ts.name, syntax)
 	}
@@ -261,7 +264,7 @@ func readBytes(path string, data []byte, pixels bool) (fi *fileInfo, err error) 
 		}
 		return nil, skip("unreadable: %v", perr)
 	}
-	fi = &fileInfo{Path: path, Syntax: syntax, BigEndian: syntax == "1.2.840.10008.1.2.2"}
+	fi = &fileInfo{Path: path, Syntax: syntax, BigEndian: syntax == "1.2.840.10008.1.2.2", pixelAt: pxLoc, size: int64(len(data))}
 	if err := fi.fill(es, pixels); err != nil {
 		return nil, err
 	}

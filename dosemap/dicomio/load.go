@@ -1,9 +1,12 @@
 package dicomio
 
 import (
+	"bytes"
 	"context"
-	"fmt"
+	"errors"
+	"io"
 	"math"
+	"os"
 	"path/filepath"
 	"strings"
 
@@ -123,9 +126,9 @@ func (cr *caseReader) load(ctx context.Context, progress func(done, total int)) 
 	errs := make([]error, len(files))
 	err := readAll(ctx, paths, cr.opt.workers(), progress, func(i int) {
 		fi := files[i]
-		px, err := readFile(fi.Path, true)
+		px, err := readPixels(fi)
 		if err == nil && (px.Rows != fi.Rows || px.Cols != fi.Cols || len(px.Frames) != len(fi.Frames)) {
-			err = fmt.Errorf("the file changed while it was being read")
+			err = errChanged
 		}
 		for _, t := range plan[fi] {
 			if err != nil {
@@ -148,4 +151,39 @@ func (cr *caseReader) load(ctx context.Context, progress func(done, total int)) 
 		}
 	}
 	return c, nil
+}
+
+var errChanged = errors.New("the file changed while it was being read")
+
+// readPixels returns fi with its raw pixel bytes. When the attribute pass
+// located native pixel data, only those bytes (and the element header in
+// front of them) are read again, after checking that the file kept its
+// size and that header; otherwise the file is parsed again.
+func readPixels(fi *fileInfo) (*fileInfo, error) {
+	loc := fi.pixelAt
+	need := len(fi.Frames) * fi.Rows * fi.Cols * fi.BitsAllocated / 8
+	if loc.Header == nil || need == 0 || need > loc.Length {
+		return readFile(fi.Path, true)
+	}
+	f, err := os.Open(fi.Path)
+	if err != nil {
+		return nil, skip("cannot read: %v", err)
+	}
+	defer f.Close()
+	if st, err := f.Stat(); err != nil || st.Size() != fi.size {
+		return nil, errChanged
+	}
+	buf := make([]byte, len(loc.Header)+need)
+	if _, err := f.ReadAt(buf, int64(loc.Offset-len(loc.Header))); err != nil {
+		if errors.Is(err, io.EOF) {
+			return nil, errChanged
+		}
+		return nil, skip("cannot read: %v", err)
+	}
+	if !bytes.Equal(buf[:len(loc.Header)], loc.Header) {
+		return nil, errChanged
+	}
+	px := *fi
+	px.Pixels = buf[len(loc.Header):]
+	return &px, nil
 }

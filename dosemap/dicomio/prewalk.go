@@ -1,6 +1,7 @@
 package dicomio
 
 import (
+	"bytes"
 	"encoding/binary"
 	"fmt"
 
@@ -30,12 +31,30 @@ type walker struct {
 	explicit bool
 	bo       binary.ByteOrder
 	syntax   string
+	pixel    pixelLocation
+}
+
+// pixelLocation is where a file's native (not encapsulated) top-level
+// PixelData value lies: Header is the element header, the Length value
+// bytes start at Offset. The zero value: none found.
+type pixelLocation struct {
+	Header []byte
+	Offset int
+	Length int
 }
 
 // checkLengths returns nil when every element length fits, else an error
 // naming the element. It also reports the transfer syntax found in the file
 // meta information ("" when absent).
 func checkLengths(data []byte) (syntax string, err error) {
+	syntax, _, err = checkLayout(data)
+	return syntax, err
+}
+
+// checkLayout is checkLengths that also returns the location of the
+// native top-level pixel data, so that a later pass can read the pixels
+// without parsing the file again.
+func checkLayout(data []byte) (syntax string, px pixelLocation, err error) {
 	pos := 0
 	if len(data) >= 132 && string(data[128:132]) == "DICM" {
 		pos = 132
@@ -45,7 +64,7 @@ func checkLengths(data []byte) (syntax string, err error) {
 	for pos+8 <= len(data) && binary.LittleEndian.Uint16(data[pos:]) == 0x0002 {
 		next, t, val, err := w.header(pos, len(data))
 		if err != nil {
-			return "", err
+			return "", pixelLocation{}, err
 		}
 		if t == tag.TransferSyntaxUID {
 			w.syntax = trimUID(val)
@@ -69,11 +88,14 @@ func checkLengths(data []byte) (syntax string, err error) {
 		}
 	default:
 		if ts, ok := transferSyntaxes[w.syntax]; ok && !ts.supported && w.syntax == "1.2.840.10008.1.2.1.99" {
-			return w.syntax, nil // deflated: the body cannot be walked
+			return w.syntax, pixelLocation{}, nil // deflated: the body cannot be walked
 		}
 	}
 	_, err = w.elements(pos, len(data), false, 0)
-	return w.syntax, err
+	if err != nil {
+		return w.syntax, pixelLocation{}, err
+	}
+	return w.syntax, w.pixel, nil
 }
 
 func trimUID(b []byte) string {
@@ -212,6 +234,9 @@ func (w *walker) elements(pos, end int, inUndefined bool, depth int) (int, error
 				return 0, err
 			}
 		default:
+			if depth == 0 && t == tag.PixelData && w.pixel.Header == nil {
+				w.pixel = pixelLocation{Header: bytes.Clone(w.data[pos:valPos]), Offset: valPos, Length: int(vl)}
+			}
 			pos = valPos + int(vl)
 		}
 	}
