@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"slices"
 	"sort"
 	"strconv"
 
@@ -169,23 +170,45 @@ func frameInterval(times []float64, f int) float64 {
 
 // mcCache keeps Monte Carlo trial doses between analyses: they depend on
 // the included sonications, the margin region, the trials and the seed, not
-// on the threshold.
+// on the threshold. Only the voxels whose outcome some analysis found
+// uncertain are computed (see mcSkipSigmas); later thresholds add the
+// voxels they need.
 type mcCache struct {
 	key    string
-	idx    []int       // coarse voxels computed (target+margin region)
+	slot   []int32     // per coarse voxel: its column in trials, -1 not computed
+	idx    []int       // coarse voxels computed, in column order
 	trials [][]float32 // per trial, cumulative dose at idx
-	noise  bool        // some included sonication had a noise estimate
 }
+
+// mcSkipSigmas bounds the temperature error of a Monte Carlo frame. The
+// error of one frame is normal with standard deviation Sigma (see
+// dosemap.MonteCarlo), so it exceeds mcSkipSigmas·Sigma with probability
+// 2Φ(−8) ≈ 1.2e-15 (normal tail). Within that bound the CEM43 rate
+// R^(43−T) of every frame changes at most by the factor
+// F = 2^(L·8·Sigma), L = max(|log2 RAbove|, |log2 RBelow|) (2 for the
+// default R of 0.25 below 43 °C; Sapareto & Dewey 1984), so a trial's dose
+// D' of a voxel with noiseless dose D (noisy part) and Dfix (sonications
+// without noise) lies in [Dfix + D/F, Dfix + D·F], and its log-dose moves
+// by at most ln F; the interpolated analysis voxel moves by at most
+// Σ|w|·ln F over its cubic taps w. A voxel whose interval lies entirely on
+// one side of the threshold has the noiseless outcome in every trial
+// (except with probability below 1.2e-15 per frame drawn) and is not
+// simulated: only the uncertain voxels and the taps of the uncertain
+// analysis voxels are. The bound holds for the CEM43 model only; the
+// Arrhenius model simulates the whole region.
+const mcSkipSigmas = 8
 
 // uncertainty runs (or reuses) the Monte Carlo trials and fills the
 // percentiles of the covered fraction, the probability map and the hole
 // certainty of r.
 func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *doseCache) error {
 	var series []*dosemap.TemperatureSeries
+	var noisy []int // included sonications with thermometry noise
 	var fixed []int // included sonications without thermometry noise
 	for _, n := range dc.included {
 		if ts, ok := s.sons[n].series.(*dosemap.TemperatureSeries); ok && ts != nil {
 			series = append(series, ts)
+			noisy = append(noisy, n)
 		} else {
 			fixed = append(fixed, n)
 		}
@@ -198,37 +221,174 @@ func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *
 		r.Warnings = append(r.Warnings, fmt.Sprintf("%d included sonication(s) enter the Monte Carlo trials without noise (ready dose maps or resampled grids)", len(fixed)))
 	}
 	g, cg := s.fg.fine, s.fg.coarse
+	cl := cg.Len()
+	cs := cg.SliceLen()
 	key := dc.key + "|" + strconv.FormatFloat(set.MarginMM, 'g', -1, 64) + "|" + strconv.Itoa(set.Trials) + "|" + strconv.FormatUint(set.Seed, 10)
 	mc := s.mcCache
 	if mc == nil || mc.key != key {
-		// Coarse voxels whose stencil reaches a fine voxel of the target
-		// or its margin.
-		cmask := make([]bool, cg.Len())
-		cs := cg.SliceLen()
-		mm := float32(set.MarginMM)
-		for v, d := range s.dist {
-			if d > mm && s.occ[v] == 0 {
-				continue
+		mc = &mcCache{key: key, slot: make([]int32, cl), trials: make([][]float32, set.Trials)}
+		for n := range mc.slot {
+			mc.slot[n] = -1
+		}
+	}
+	// Coarse voxels whose stencil reaches a fine voxel of the target or
+	// its margin.
+	cmask := make([]bool, cl)
+	mm := float32(set.MarginMM)
+	for v, d := range s.dist {
+		if d > mm && s.occ[v] == 0 {
+			continue
+		}
+		fi, fj, f := g.IJK(v)
+		st := &s.fg.slices[f]
+		c := s.fg.coarseIndex(fi, fj)
+		if !st.valid || c < 0 {
+			continue
+		}
+		for a := 0; a < 4; a++ {
+			cmask[st.k[a]*cs+c] = true
+		}
+	}
+	var region []int
+	for n, m := range cmask {
+		if m {
+			region = append(region, n)
+		}
+	}
+	// Noiseless trial dose of the region (the noisy and the fixed part,
+	// added as the trials add them) and ln F of each voxel.
+	thr := float32(set.Threshold)
+	lt := float32(math.Log(set.Threshold))
+	nominal := make([]float32, cl)
+	lnF := make([]float32, cl)
+	prune := !s.exhaustiveMC
+	L := 0.0
+	if c, ok := set.doseModel().(dosemap.CEM43); ok {
+		L = math.Max(math.Abs(math.Log2(c.RAbove)), math.Abs(math.Log2(c.RBelow)))
+	} else {
+		prune = false
+	}
+	const certain, lethalAlways = 1, 2
+	state := make([]uint8, cl) // 0 uncertain, else certain (and lethal)
+	need := make([]bool, cl)
+	nan := float32(math.NaN())
+	for _, n := range region {
+		dn, sig := nan, 0.0
+		for m, sn := range noisy {
+			if y := s.sons[sn].dose[n]; y == y {
+				if dn != dn {
+					dn = 0
+				}
+				dn += y
 			}
-			fi, fj, f := g.IJK(v)
-			st := &s.fg.slices[f]
-			c := s.fg.coarseIndex(fi, fj)
-			if !st.valid || c < 0 {
-				continue
+			if sgs := series[m].Sigma; sgs != nil {
+				if sg := float64(sgs[n]); sg > 0 && !math.IsInf(sg, 0) {
+					sig = math.Max(sig, sg)
+				}
 			}
+		}
+		df := float32(0)
+		hasFix := false
+		for _, sn := range fixed {
+			if y := s.sons[sn].dose[n]; y == y {
+				df += y
+				hasFix = true
+			}
+		}
+		x := dn
+		if hasFix {
+			if x != x {
+				x = 0
+			}
+			x += df
+		}
+		nominal[n] = x
+		if !prune {
+			need[n] = true
+			continue
+		}
+		lf := L * mcSkipSigmas * sig * math.Ln2
+		lnF[n] = float32(lf)
+		switch {
+		case x != x:
+			state[n] = certain // NaN in every trial
+		case dn != dn || sig == 0:
+			state[n] = certain // no noise
+		default:
+			F := math.Exp(lf)
+			lo := float64(df) + float64(dn)/F
+			hi := float64(df) + float64(dn)*F
+			switch {
+			case lo >= float64(thr)*(1+1e-4):
+				state[n] = certain
+			case hi < float64(thr)*(1-1e-4):
+				state[n] = certain
+			default:
+				need[n] = true
+			}
+		}
+		if state[n] == certain && x >= thr {
+			state[n] = lethalAlways
+		}
+	}
+	nomFull := make([]float32, cl) // noiseless trial log-dose on the coarse grid
+	for n := range nomFull {
+		nomFull[n] = logDose(0) // finite: cubic weights may be negative
+	}
+	for _, n := range region {
+		nomFull[n] = logDose(nominal[n])
+	}
+	// Monitored fine target voxels, and which of them are uncertain.
+	var tv []int
+	var mv float64
+	fstate := []uint8{}
+	for v, o := range s.occ {
+		if !(o > 0 && dc.monFine[v]) {
+			continue
+		}
+		tv = append(tv, v)
+		mv += float64(o)
+		if !prune {
+			fstate = append(fstate, 0)
+			continue
+		}
+		fi, fj, f := g.IJK(v)
+		st := &s.fg.slices[f]
+		c := s.fg.coarseIndex(fi, fj)
+		nf := s.fg.logAt(nomFull, v)
+		var b float32 = 1e-3 // float32 rounding
+		for a := 0; a < 4; a++ {
+			if st.w[a] != 0 {
+				b += float32(math.Abs(float64(st.w[a]))) * lnF[st.k[a]*cs+c]
+			}
+		}
+		switch {
+		case nf-b >= lt:
+			fstate = append(fstate, lethalAlways)
+		case nf+b < lt:
+			fstate = append(fstate, certain)
+		default:
+			fstate = append(fstate, 0)
 			for a := 0; a < 4; a++ {
-				cmask[st.k[a]*cs+c] = true
+				if st.w[a] != 0 {
+					need[st.k[a]*cs+c] = true
+				}
 			}
 		}
-		mc = &mcCache{key: key}
-		for n, m := range cmask {
-			if m {
-				mc.idx = append(mc.idx, n)
-			}
+	}
+	// Simulate the needed voxels not computed yet.
+	missing := make([]bool, cl)
+	var add []int
+	for n, x := range need {
+		if x && mc.slot[n] < 0 {
+			missing[n] = true
+			add = append(add, n)
 		}
-		err := dosemap.MonteCarlo(series, set.doseModel(), cmask, set.Trials, set.Seed, func(trial int, dose []float32) {
-			out := make([]float32, len(mc.idx))
-			for q, n := range mc.idx {
+	}
+	if len(add) > 0 {
+		err := dosemap.MonteCarlo(series, set.doseModel(), missing, set.Trials, set.Seed, func(trial int, dose []float32) {
+			row := mc.trials[trial]
+			for _, n := range add {
 				x := dose[n]
 				for _, sn := range fixed {
 					if y := s.sons[sn].dose[n]; y == y {
@@ -238,9 +398,9 @@ func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *
 						x += y
 					}
 				}
-				out[q] = x
+				row = append(row, x)
 			}
-			mc.trials = append(mc.trials, out)
+			mc.trials[trial] = row
 		})
 		if err != nil {
 			return fmt.Errorf("Monte Carlo: %w", err)
@@ -248,38 +408,34 @@ func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *
 		if err := ctx.Err(); err != nil {
 			return err
 		}
-		s.mcCache = mc
-	}
-	// Per trial: covered fraction, and lethal counts per fine target voxel
-	// and per coarse voxel.
-	thr := float32(set.Threshold)
-	lt := float32(math.Log(set.Threshold))
-	cl := cg.Len()
-	full := make([]float32, cl) // trial log-dose on the whole coarse grid
-	for n := range full {
-		full[n] = logDose(0) // finite: cubic weights may be negative
-	}
-	var tv []int // monitored fine target voxels
-	var mv float64
-	for v, o := range s.occ {
-		if o > 0 && dc.monFine[v] {
-			tv = append(tv, v)
-			mv += float64(o)
+		for _, n := range add {
+			mc.slot[n] = int32(len(mc.idx))
+			mc.idx = append(mc.idx, n)
 		}
 	}
+	s.mcCache = mc
+	// Per trial: covered fraction, and lethal counts per fine target voxel
+	// and per coarse voxel.
+	full := slices.Clone(nomFull) // trial log-dose on the whole coarse grid
 	hits := make([]int, len(tv))
-	chits := make([]int, len(mc.idx))
+	chits := make([]int, cl)
+	var sure float64 // target volume lethal in every trial
+	for a, v := range tv {
+		if fstate[a] == lethalAlways {
+			sure += float64(s.occ[v])
+		}
+	}
 	fr := make([]float64, 0, len(mc.trials))
 	for _, tr := range mc.trials {
 		for q, n := range mc.idx {
 			full[n] = logDose(tr[q])
 			if tr[q] >= thr {
-				chits[q]++
+				chits[n]++
 			}
 		}
-		var cov float64
+		cov := sure
 		for a, v := range tv {
-			if s.fg.logAt(full, v) >= lt {
+			if fstate[a] == 0 && s.fg.logAt(full, v) >= lt {
 				hits[a]++
 				cov += float64(s.occ[v])
 			}
@@ -288,22 +444,31 @@ func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *
 			fr = append(fr, cov/mv)
 		}
 	}
-	nt := float64(len(mc.trials))
+	nt := len(mc.trials)
+	for a := range tv {
+		if fstate[a] == lethalAlways {
+			hits[a] = nt
+		}
+	}
 	if len(fr) > 0 {
 		sort.Float64s(fr)
 		r.CoveredFractionP05 = opt(quantile(fr, 0.05))
 		r.CoveredFractionP95 = opt(quantile(fr, 0.95))
 	}
-	r.Trials = len(mc.trials)
-	prob := dosemap.NewVolume(cg).Fill(float32(math.NaN()))
-	for q, n := range mc.idx {
-		prob.Data[n] = float32(float64(chits[q]) / nt)
+	r.Trials = nt
+	prob := dosemap.NewVolume(cg).Fill(nan)
+	for _, n := range region {
+		h := chits[n]
+		if mc.slot[n] < 0 && state[n] == lethalAlways {
+			h = nt
+		}
+		prob.Data[n] = float32(float64(h) / float64(nt))
 	}
 	r.Probability = prob
 	// Hole certainty from the fine-voxel lethal probability.
 	pf := make(map[int]float64, len(tv))
 	for a, v := range tv {
-		pf[v] = float64(hits[a]) / nt
+		pf[v] = float64(hits[a]) / float64(nt)
 	}
 	sum := make([]float64, len(r.Holes)+1)
 	cnt := make([]float64, len(r.Holes)+1)
