@@ -1,14 +1,13 @@
 package dicomio
 
 import (
-	"bytes"
 	"context"
-	"errors"
-	"io"
+	"fmt"
 	"math"
 	"os"
 	"path/filepath"
 	"strings"
+	"sync"
 
 	"dosecover/dosemap"
 )
@@ -124,12 +123,14 @@ func (cr *caseReader) load(ctx context.Context, progress func(done, total int)) 
 		paths[n] = fi.Path
 	}
 	errs := make([]error, len(files))
+	var pool sync.Pool
 	err := readAll(ctx, paths, cr.opt.workers(), progress, func(i int) {
 		fi := files[i]
-		px, err := readPixels(fi)
-		if err == nil && (px.Rows != fi.Rows || px.Cols != fi.Cols || len(px.Frames) != len(fi.Frames)) {
-			err = errChanged
+		var buf []byte
+		if b, ok := pool.Get().(*[]byte); ok {
+			buf = *b
 		}
+		px, err := fi.loadPixels(buf)
 		for _, t := range plan[fi] {
 			if err != nil {
 				for n := range t.dst {
@@ -138,6 +139,11 @@ func (cr *caseReader) load(ctx context.Context, progress func(done, total int)) 
 				continue
 			}
 			px.decodeFrame(t.frame, t.dst, t.a, t.b)
+		}
+		if px != nil && px.Pixels != nil && px == fi {
+			b := px.Pixels[:0]
+			fi.Pixels = nil
+			pool.Put(&b)
 		}
 		errs[i] = err
 	})
@@ -153,37 +159,39 @@ func (cr *caseReader) load(ctx context.Context, progress func(done, total int)) 
 	return c, nil
 }
 
-var errChanged = errors.New("the file changed while it was being read")
-
-// readPixels returns fi with its raw pixel bytes. When the attribute pass
-// located native pixel data, only those bytes (and the element header in
-// front of them) are read again, after checking that the file kept its
-// size and that header; otherwise the file is parsed again.
-func readPixels(fi *fileInfo) (*fileInfo, error) {
-	loc := fi.pixelAt
+// loadPixels returns fi with its raw pixel data. The bytes are read
+// straight from the offset the attribute pass found (into buf when it is
+// large enough), so the file is not parsed again; a file whose size
+// changed since is refused. Without a known offset the file is parsed
+// again.
+func (fi *fileInfo) loadPixels(buf []byte) (*fileInfo, error) {
 	need := len(fi.Frames) * fi.Rows * fi.Cols * fi.BitsAllocated / 8
-	if loc.Header == nil || need == 0 || need > loc.Length {
-		return readFile(fi.Path, true)
+	if fi.PixelPos <= 0 || fi.PixelLen < need {
+		px, err := readFile(fi.Path, true)
+		if err == nil && (px.Rows != fi.Rows || px.Cols != fi.Cols || len(px.Frames) != len(fi.Frames)) {
+			err = fmt.Errorf("the file changed while it was being read")
+		}
+		return px, err
 	}
 	f, err := os.Open(fi.Path)
 	if err != nil {
-		return nil, skip("cannot read: %v", err)
+		return nil, err
 	}
 	defer f.Close()
-	if st, err := f.Stat(); err != nil || st.Size() != fi.size {
-		return nil, errChanged
+	st, err := f.Stat()
+	if err != nil {
+		return nil, err
 	}
-	buf := make([]byte, len(loc.Header)+need)
-	if _, err := f.ReadAt(buf, int64(loc.Offset-len(loc.Header))); err != nil {
-		if errors.Is(err, io.EOF) {
-			return nil, errChanged
-		}
-		return nil, skip("cannot read: %v", err)
+	if st.Size() != fi.Size {
+		return nil, fmt.Errorf("the file changed while it was being read (size %d, was %d)", st.Size(), fi.Size)
 	}
-	if !bytes.Equal(buf[:len(loc.Header)], loc.Header) {
-		return nil, errChanged
+	if cap(buf) < need {
+		buf = make([]byte, need)
 	}
-	px := *fi
-	px.Pixels = buf[len(loc.Header):]
-	return &px, nil
+	buf = buf[:need]
+	if _, err := f.ReadAt(buf, int64(fi.PixelPos)); err != nil {
+		return nil, fmt.Errorf("reading pixel data: %w", err)
+	}
+	fi.Pixels = buf
+	return fi, nil
 }
