@@ -335,12 +335,12 @@ func (t *thermo) run() *TemperatureSeries {
 }
 
 // baseline computes the reference phase, the baseline magnitude and the
-// magnitude threshold.
+// magnitude threshold. The magnitude comes first, so the trigonometry of
+// the reference phase is done only for voxels with signal (the others are
+// NaN whatever their phase).
 func (t *thermo) baseline() {
 	nv := t.nv
 	t.ref = make([]float64, nv)
-	re := make([]float64, nv)
-	im := make([]float64, nv)
 	cnt := make([]int32, nv)
 	var msum []float64
 	if t.mag != nil {
@@ -356,43 +356,63 @@ func (t *thermo) baseline() {
 			if v != v || m != m {
 				continue
 			}
-			sn, cs := math.Sincos(float64(v))
-			re[n] += m * cs
-			im[n] += m * sn
 			cnt[n]++
 			if msum != nil {
 				msum[n] += m
 			}
 		}
 	}
+	signal := func(n int) bool { return cnt[n] > 0 }
+	if t.mag != nil {
+		t.baseMag = make([]float32, nv)
+		var vals []float32
+		for n := range msum {
+			if cnt[n] == 0 {
+				t.baseMag[n] = float32(math.NaN())
+				continue
+			}
+			t.baseMag[n] = float32(msum[n] / float64(cnt[n]))
+			vals = append(vals, t.baseMag[n])
+		}
+		if t.opt.MinMagnitude > 0 && len(vals) > 0 {
+			p98 := nthSmallest(vals, min(len(vals)-1, int(0.98*float64(len(vals)))))
+			t.magThr = float32(t.opt.MinMagnitude) * p98
+		}
+		signal = func(n int) bool {
+			m := t.baseMag[n]
+			return cnt[n] > 0 && m >= t.magThr && (t.magThr != 0 || m > 0)
+		}
+	}
+	re := make([]float64, nv)
+	im := make([]float64, nv)
+	has := make([]bool, nv)
+	for n := range has {
+		has[n] = signal(n)
+	}
+	for f := 0; f < t.nb; f++ {
+		ph := t.s.Phase[f]
+		for n, v := range ph {
+			if !has[n] {
+				continue
+			}
+			m := 1.0
+			if t.mag != nil {
+				m = float64(t.mag[f][n])
+			}
+			if v != v || m != m {
+				continue
+			}
+			sn, cs := math.Sincos(float64(v))
+			re[n] += m * cs
+			im[n] += m * sn
+		}
+	}
 	for n := range t.ref {
-		if cnt[n] == 0 || (re[n] == 0 && im[n] == 0) {
+		if !has[n] || (re[n] == 0 && im[n] == 0) {
 			t.ref[n] = math.NaN()
 			continue
 		}
 		t.ref[n] = math.Atan2(im[n], re[n])
-	}
-	if t.mag == nil {
-		return
-	}
-	t.baseMag = make([]float32, nv)
-	var vals []float32
-	for n := range msum {
-		if cnt[n] == 0 {
-			t.baseMag[n] = float32(math.NaN())
-			continue
-		}
-		t.baseMag[n] = float32(msum[n] / float64(cnt[n]))
-		vals = append(vals, t.baseMag[n])
-	}
-	if t.opt.MinMagnitude > 0 && len(vals) > 0 {
-		p98 := nthSmallest(vals, min(len(vals)-1, int(0.98*float64(len(vals)))))
-		t.magThr = float32(t.opt.MinMagnitude) * p98
-	}
-	for n, m := range t.baseMag {
-		if !(m >= t.magThr) || (t.magThr == 0 && !(m > 0)) {
-			t.ref[n] = math.NaN() // no signal: never valid
-		}
 	}
 }
 
