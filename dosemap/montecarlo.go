@@ -95,7 +95,10 @@ func MonteCarlo(series []*TemperatureSeries, m DoseModel, mask []bool, trials in
 		}
 		ps[s] = p
 	}
-	// Work is split into chunks of voxels, shared among the workers.
+	// Work is split into chunks of voxels, shared among the workers; each
+	// worker runs a whole batch of trials on a chunk, so the goroutines
+	// meet once per batch, not once per trial (on a loaded machine waking
+	// a thread can take milliseconds). A batch holds at most 2^24 values.
 	const mcChunk = 256
 	nchunks := (len(idx) + mcChunk - 1) / mcChunk
 	workers := min(runtime.GOMAXPROCS(0), nchunks)
@@ -103,8 +106,13 @@ func MonteCarlo(series []*TemperatureSeries, m DoseModel, mask []bool, trials in
 	for w := range ws {
 		ws[w] = newMCWorker(rm, mcChunk)
 	}
-	res := make([]float32, len(idx))
-	for trial := 0; trial < trials; trial++ {
+	batch := max(1, min(trials, (1<<24)/max(len(idx), 1)))
+	res := make([][]float32, batch)
+	for b := range res {
+		res[b] = make([]float32, len(idx))
+	}
+	for t0 := 0; t0 < trials; t0 += batch {
+		t1 := min(t0+batch, trials)
 		var next atomic.Int64
 		var wg sync.WaitGroup
 		for _, w := range ws {
@@ -117,15 +125,19 @@ func MonteCarlo(series []*TemperatureSeries, m DoseModel, mask []bool, trials in
 						return
 					}
 					lo, hi := c*mcChunk, min((c+1)*mcChunk, len(idx))
-					w.run(ps, idx, lo, hi, seed, uint64(trial), res[lo:hi])
+					for trial := t0; trial < t1; trial++ {
+						w.run(ps, idx, lo, hi, seed, uint64(trial), res[trial-t0][lo:hi])
+					}
 				}
 			}()
 		}
 		wg.Wait()
-		for q, n := range idx {
-			dose[n] = res[q]
+		for trial := t0; trial < t1; trial++ {
+			for q, n := range idx {
+				dose[n] = res[trial-t0][q]
+			}
+			fn(trial, dose)
 		}
-		fn(trial, dose)
 	}
 	return nil
 }
