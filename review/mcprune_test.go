@@ -13,15 +13,36 @@ import (
 // probability map, covered-fraction percentiles and hole probabilities as
 // simulating every voxel of the target and margin region, exactly (the
 // bound fails with probability below 1.2e-15 per frame drawn), for a
-// seeded case of six sonications plus one ready dose map, at several
-// thresholds analysed in turn on one session (the cache grows) and with
-// an excluded sonication.
+// seeded case of six sonications (CEM43 also with one ready dose map), at
+// several thresholds analysed in turn on one session (the cache grows) and
+// with an excluded sonication, for both dose models.
 func TestMonteCarloRestrictedEqualsFull(t *testing.T) {
+	for _, model := range []struct {
+		name  string
+		steps []mcStep
+	}{
+		{"cem43", []mcStep{{240, nil}, {100, nil}, {600, nil}, {240, []int{3}}}},
+		{"arrhenius", []mcStep{{1, nil}, {0.3, nil}, {1, []int{2}}}},
+	} {
+		t.Run(model.name, func(t *testing.T) { checkRestrictedMC(t, model.name, model.steps) })
+	}
+}
+
+// mcStep is one analysis of TestMonteCarloRestrictedEqualsFull.
+type mcStep struct {
+	thr      float64
+	excluded []int
+}
+
+func checkRestrictedMC(t *testing.T, model string, steps []mcStep) {
 	c := typicalCase(48, 6, 8)
 	g := c.Sonications[0].Geometry
-	c.Sonications = append(c.Sonications, doseSonication(7, g, ballDose(dosemap.Vec3{2, -1, 0}, 3, 1.5)))
+	if model == "cem43" {
+		c.Sonications = append(c.Sonications, doseSonication(7, g, ballDose(dosemap.Vec3{2, -1, 0}, 3, 1.5)))
+	}
 	ctx := context.Background()
 	set := DefaultSettings()
+	set.Model = model
 	set.Trials = 12
 	set.Seed = 5
 	pruned, err := Prepare(ctx, c, set, nil)
@@ -33,10 +54,7 @@ func TestMonteCarloRestrictedEqualsFull(t *testing.T) {
 		t.Fatal(err)
 	}
 	full.exhaustiveMC = true
-	for _, step := range []struct {
-		thr      float64
-		excluded []int
-	}{{240, nil}, {100, nil}, {600, nil}, {240, []int{3}}} {
+	for _, step := range steps {
 		s := set
 		s.Threshold, s.Excluded = step.thr, step.excluded
 		a, err := pruned.Analyze(ctx, s, nil)

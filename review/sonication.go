@@ -183,19 +183,16 @@ type mcCache struct {
 // mcSkipSigmas bounds the temperature error of a Monte Carlo frame. The
 // error of one frame is normal with standard deviation Sigma (see
 // dosemap.MonteCarlo), so it exceeds mcSkipSigmas·Sigma with probability
-// 2Φ(−8) ≈ 1.2e-15 (normal tail). Within that bound the CEM43 rate
-// R^(43−T) of every frame changes at most by the factor
-// F = 2^(L·8·Sigma), L = max(|log2 RAbove|, |log2 RBelow|) (2 for the
-// default R of 0.25 below 43 °C; Sapareto & Dewey 1984), so a trial's dose
-// D' of a voxel with noiseless dose D (noisy part) and Dfix (sonications
-// without noise) lies in [Dfix + D/F, Dfix + D·F], and its log-dose moves
-// by at most ln F; the interpolated analysis voxel moves by at most
-// Σ|w|·ln F over its cubic taps w. A voxel whose interval lies entirely on
-// one side of the threshold has the noiseless outcome in every trial
-// (except with probability below 1.2e-15 per frame drawn) and is not
-// simulated: only the uncertain voxels and the taps of the uncertain
-// analysis voxels are. The bound holds for the CEM43 model only; the
-// Arrhenius model simulates the whole region.
+// 2Φ(−8) ≈ 1.2e-15 (normal tail). Both dose models integrate a rate that
+// increases with temperature, with positive weights, so within that bound
+// a trial's dose lies between the doses of the thermometry with every
+// noisy frame moved down and up by 8·Sigma (computed once per analysis
+// for the region), and its log-dose moves by at most the larger distance
+// ln(hi/D) or ln(D/lo); an analysis voxel moves by at most Σ|w|·that over
+// its cubic taps w. A voxel whose interval lies entirely on one side of
+// the threshold has the noiseless outcome in every trial (except with
+// probability below 1.2e-15 per frame drawn) and is not simulated: only
+// the uncertain voxels and the taps of the uncertain analysis voxels are.
 const mcSkipSigmas = 8
 
 // uncertainty runs (or reuses) the Monte Carlo trials and fills the
@@ -256,35 +253,30 @@ func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *
 		}
 	}
 	// Noiseless trial dose of the region (the noisy and the fixed part,
-	// added as the trials add them) and ln F of each voxel.
+	// added as the trials add them), its bounds and the largest change of
+	// its log-dose.
 	thr := float32(set.Threshold)
 	lt := float32(math.Log(set.Threshold))
 	nominal := make([]float32, cl)
 	lnF := make([]float32, cl)
-	prune := !s.exhaustiveMC
-	L := 0.0
-	if c, ok := set.doseModel().(dosemap.CEM43); ok {
-		L = math.Max(math.Abs(math.Log2(c.RAbove)), math.Abs(math.Log2(c.RBelow)))
-	} else {
-		prune = false
+	prune := !s.exhaustiveMC && len(region) > 0
+	var dLo, dHi []float32
+	if prune {
+		dLo = boxDose(series, set.doseModel(), region, -mcSkipSigmas)
+		dHi = boxDose(series, set.doseModel(), region, mcSkipSigmas)
 	}
 	const certain, lethalAlways = 1, 2
 	state := make([]uint8, cl) // 0 uncertain, else certain (and lethal)
 	need := make([]bool, cl)
 	nan := float32(math.NaN())
-	for _, n := range region {
-		dn, sig := nan, 0.0
-		for m, sn := range noisy {
+	for q, n := range region {
+		dn := nan
+		for _, sn := range noisy {
 			if y := s.sons[sn].dose[n]; y == y {
 				if dn != dn {
 					dn = 0
 				}
 				dn += y
-			}
-			if sgs := series[m].Sigma; sgs != nil {
-				if sg := float64(sgs[n]); sg > 0 && !math.IsInf(sg, 0) {
-					sig = math.Max(sig, sg)
-				}
 			}
 		}
 		df := float32(0)
@@ -307,17 +299,21 @@ func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *
 			need[n] = true
 			continue
 		}
-		lf := L * mcSkipSigmas * sig * math.Ln2
-		lnF[n] = float32(lf)
 		switch {
 		case x != x:
 			state[n] = certain // NaN in every trial
-		case dn != dn || sig == 0:
-			state[n] = certain // no noise
+		case dn != dn:
+			state[n] = certain // no noisy sonication measured it
 		default:
-			F := math.Exp(lf)
-			lo := float64(df) + float64(dn)/F
-			hi := float64(df) + float64(dn)*F
+			lo, hi := float64(df), float64(df)
+			if y := dLo[q]; y == y {
+				lo += float64(y)
+			}
+			if y := dHi[q]; y == y {
+				hi += float64(y)
+			}
+			lx := float64(logDose(x))
+			lnF[n] = float32(math.Max(float64(logDose(float32(hi)))-lx, lx-float64(logDose(float32(lo)))))
 			switch {
 			case lo >= float64(thr)*(1+1e-4):
 				state[n] = certain
@@ -492,6 +488,44 @@ func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *
 		}
 	}
 	return nil
+}
+
+// boxDose returns, for the region voxels, the summed dose of the series
+// with every noisy frame temperature (Sigma known, value valid) moved by
+// k·Sigma: the bound of a trial's dose when no frame error exceeds
+// |k|·Sigma (see mcSkipSigmas). NaN where no series measured the voxel.
+func boxDose(series []*dosemap.TemperatureSeries, m dosemap.DoseModel, region []int, k float64) []float32 {
+	out := make([]float32, len(region))
+	nan := float32(math.NaN())
+	for q := range out {
+		out[q] = nan
+	}
+	g := dosemap.NewAxialGeometry(len(region), 1, 1, dosemap.Vec3{1, 1, 1}, dosemap.Vec3{})
+	for _, ts := range series {
+		sh := &dosemap.TemperatureSeries{Geometry: g, Times: ts.Times, Frames: make([][]float32, len(ts.Frames))}
+		for f, fr := range ts.Frames {
+			c := make([]float32, len(region))
+			for q, n := range region {
+				v := fr[n]
+				if ts.Sigma != nil && v == v {
+					if sg := float64(ts.Sigma[n]); sg > 0 && !math.IsInf(sg, 0) {
+						v = float32(float64(v) + k*sg)
+					}
+				}
+				c[q] = v
+			}
+			sh.Frames[f] = c
+		}
+		for q, y := range m.Dose(sh).Data {
+			if y == y {
+				if out[q] != out[q] {
+					out[q] = 0
+				}
+				out[q] += y
+			}
+		}
+	}
+	return out
 }
 
 // quantile returns the p-quantile of sorted x by linear interpolation
