@@ -178,6 +178,10 @@ type mcCache struct {
 	slot   []int32     // per coarse voxel: its column in trials, -1 not computed
 	idx    []int       // coarse voxels computed, in column order
 	trials [][]float32 // per trial, cumulative dose at idx
+
+	region   []int     // coarse voxels of the target and margin region
+	lo, hi   []float32 // per region voxel, the dose bounds of boxDose (nil: not pruning)
+	boundsOK bool      // lo, hi computed
 }
 
 // mcSkipSigmas bounds the temperature error of a Monte Carlo frame. The
@@ -228,43 +232,47 @@ func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *
 			mc.slot[n] = -1
 		}
 	}
-	// Coarse voxels whose stencil reaches a fine voxel of the target or
-	// its margin.
-	cmask := make([]bool, cl)
-	mm := float32(set.MarginMM)
-	for v, d := range s.dist {
-		if d > mm && s.occ[v] == 0 {
-			continue
+	if mc.region == nil {
+		// Coarse voxels whose stencil reaches a fine voxel of the target
+		// or its margin.
+		cmask := make([]bool, cl)
+		mm := float32(set.MarginMM)
+		for v, d := range s.dist {
+			if d > mm && s.occ[v] == 0 {
+				continue
+			}
+			fi, fj, f := g.IJK(v)
+			st := &s.fg.slices[f]
+			c := s.fg.coarseIndex(fi, fj)
+			if !st.valid || c < 0 {
+				continue
+			}
+			for a := 0; a < 4; a++ {
+				cmask[st.k[a]*cs+c] = true
+			}
 		}
-		fi, fj, f := g.IJK(v)
-		st := &s.fg.slices[f]
-		c := s.fg.coarseIndex(fi, fj)
-		if !st.valid || c < 0 {
-			continue
-		}
-		for a := 0; a < 4; a++ {
-			cmask[st.k[a]*cs+c] = true
+		mc.region = []int{}
+		for n, m := range cmask {
+			if m {
+				mc.region = append(mc.region, n)
+			}
 		}
 	}
-	var region []int
-	for n, m := range cmask {
-		if m {
-			region = append(region, n)
-		}
-	}
+	region := mc.region
 	// Noiseless trial dose of the region (the noisy and the fixed part,
-	// added as the trials add them), its bounds and the largest change of
-	// its log-dose.
+	// added as the trials add them), its bounds (threshold-independent,
+	// kept with the trials) and the largest change of its log-dose.
 	thr := float32(set.Threshold)
 	lt := float32(math.Log(set.Threshold))
 	nominal := make([]float32, cl)
 	lnF := make([]float32, cl)
 	prune := !s.exhaustiveMC && len(region) > 0
-	var dLo, dHi []float32
-	if prune {
-		dLo = boxDose(series, set.doseModel(), region, -mcSkipSigmas)
-		dHi = boxDose(series, set.doseModel(), region, mcSkipSigmas)
+	if prune && !mc.boundsOK {
+		mc.lo = boxDose(series, set.doseModel(), region, -mcSkipSigmas)
+		mc.hi = boxDose(series, set.doseModel(), region, mcSkipSigmas)
+		mc.boundsOK = true
 	}
+	dLo, dHi := mc.lo, mc.hi
 	const certain, lethalAlways = 1, 2
 	state := make([]uint8, cl) // 0 uncertain, else certain (and lethal)
 	need := make([]bool, cl)
