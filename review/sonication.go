@@ -407,17 +407,22 @@ func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *
 			mc.trials[trial] = row
 		})
 		if err != nil {
+			for t := range mc.trials {
+				mc.trials[t] = mc.trials[t][:min(len(mc.trials[t]), len(mc.idx))]
+			}
 			return fmt.Errorf("Monte Carlo: %w", err)
 		}
-		if err := ctx.Err(); err != nil {
-			return err
-		}
+		// The new columns are complete: record them before anything can
+		// return, so the cache stays consistent.
 		for _, n := range add {
 			mc.slot[n] = int32(len(mc.idx))
 			mc.idx = append(mc.idx, n)
 		}
 	}
 	s.mcCache = mc
+	if err := ctx.Err(); err != nil {
+		return err
+	}
 	// Per trial: covered fraction, and lethal counts per fine target voxel
 	// and per coarse voxel.
 	full := slices.Clone(nomFull) // trial log-dose on the whole coarse grid
