@@ -115,6 +115,9 @@ type Session struct {
 	maxMargin float64
 	cache     *doseCache
 	mcCache   *mcCache
+	// exhaustiveMC simulates every voxel of the region instead of the
+	// uncertain ones only (tests compare the two).
+	exhaustiveMC bool
 }
 
 // doseCache holds what depends only on the set of included sonications.
