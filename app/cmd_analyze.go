@@ -14,6 +14,7 @@ import (
 
 	"dosecover/dosemap"
 	"dosecover/dosemap/dicomio"
+	"dosecover/dosemap/safefile"
 	"dosecover/review"
 )
 
@@ -60,13 +61,8 @@ func runAnalyze(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "dosecover analyze: %v\n", err)
 		return 2
 	}
-	fi, err := os.Stat(dir)
-	if err != nil {
+	if err := safefile.CheckDir("case folder", dir); err != nil {
 		fmt.Fprintf(stderr, "dosecover analyze: %v\n", err)
-		return 1
-	}
-	if !fi.IsDir() {
-		fmt.Fprintf(stderr, "dosecover analyze: %s is not a folder\n", dir)
 		return 1
 	}
 	if *jsonPath != "" && *jsonPath != "-" {

@@ -203,7 +203,11 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 	}
 	for n, so := range c.Sonications {
 		if errs[n] != nil {
-			return nil, fmt.Errorf("sonication %d (%s): %w", so.Number, so.Label, errs[n])
+			name := fmt.Sprintf("sonication %d (%s)", so.Number, so.Label)
+			if strings.HasPrefix(errs[n].Error(), name) {
+				return nil, errs[n] // the thermometry and dose errors name it already
+			}
+			return nil, fmt.Errorf("%s: %w", name, errs[n])
 		}
 		if n > 0 && units[n] != units[0] {
 			return nil, fmt.Errorf("sonication %d: dose in %s, sonication %d in %s", so.Number, units[n], c.Sonications[0].Number, units[0])

@@ -33,7 +33,14 @@ type Result struct {
 	ShiftDays int // applied offset in DatesShift mode
 }
 
-func parse(path string, skipPixels bool) (dicom.Dataset, error) {
+// parse reads the file at path, turning a panic of the DICOM library on a
+// malformed file into an error wrapping errParserFailed.
+func parse(path string, skipPixels bool) (ds dicom.Dataset, err error) {
+	defer func() {
+		if r := recover(); r != nil {
+			err = errParserFailed // the panic's text means nothing to the user
+		}
+	}()
 	opts := []dicom.ParseOption{dicom.SkipProcessingPixelDataValue()}
 	if skipPixels {
 		opts = []dicom.ParseOption{dicom.SkipPixelData()}
@@ -46,7 +53,7 @@ func parse(path string, skipPixels bool) (dicom.Dataset, error) {
 func (d *Deidentifier) File(src, dst string) error {
 	ds, err := parse(src, false)
 	if err != nil {
-		return fmt.Errorf("reading %s: %w", src, err)
+		return fmt.Errorf("reading %s: %s", src, unreadable(src, err))
 	}
 	if err := d.Dataset(&ds); err != nil {
 		return fmt.Errorf("de-identifying %s: %w", src, err)
@@ -63,12 +70,8 @@ func (d *Deidentifier) File(src, dst string) error {
 // not copied and are listed in Result.Skipped; a DICOM file that cannot be
 // de-identified stops the run with an error naming it.
 func Folder(ctx context.Context, srcDir, dstDir string, opt Options, progress func(done, total int)) (*Result, error) {
-	fi, err := os.Stat(srcDir)
-	if err != nil {
-		return nil, fmt.Errorf("reading %s: %w", srcDir, err)
-	}
-	if !fi.IsDir() {
-		return nil, fmt.Errorf("reading %s: not a folder", srcDir)
+	if err := safefile.CheckDir("case folder", srcDir); err != nil {
+		return nil, err
 	}
 	if err := safefile.CheckOutside(srcDir, dstDir); err != nil {
 		return nil, err
@@ -81,12 +84,12 @@ func Folder(ctx context.Context, srcDir, dstDir string, opt Options, progress fu
 			return nil, fmt.Errorf("output folder %s is not empty: give a new or empty folder", dstDir)
 		}
 	} else if !errors.Is(err, fs.ErrNotExist) {
-		return nil, fmt.Errorf("output folder %s: %w", dstDir, err)
+		return nil, &safefile.PathError{What: "output folder", Path: dstDir, Err: err}
 	}
 	var paths []string
-	err = filepath.WalkDir(srcDir, func(p string, e fs.DirEntry, err error) error {
+	err := filepath.WalkDir(srcDir, func(p string, e fs.DirEntry, err error) error {
 		if err != nil {
-			return fmt.Errorf("reading %s: %w", p, err)
+			return &safefile.PathError{What: "reading", Path: p, Err: err}
 		}
 		if e.Type().IsRegular() {
 			paths = append(paths, p)
@@ -112,7 +115,7 @@ func Folder(ctx context.Context, srcDir, dstDir string, opt Options, progress fu
 		}
 		ds, err := parse(p, true)
 		if err != nil {
-			res.Skipped = append(res.Skipped, Skipped{Path: p, Reason: "not a readable DICOM file (" + err.Error() + ")"})
+			res.Skipped = append(res.Skipped, Skipped{Path: p, Reason: unreadable(p, err)})
 			continue
 		}
 		d.Collect(&ds)
@@ -122,7 +125,7 @@ func Folder(ctx context.Context, srcDir, dstDir string, opt Options, progress fu
 		return nil, fmt.Errorf("no DICOM file found in %s", srcDir)
 	}
 	if err := os.MkdirAll(dstDir, 0o755); err != nil {
-		return nil, fmt.Errorf("creating %s: %w", dstDir, err)
+		return nil, &safefile.PathError{What: "creating output folder", Path: dstDir, Err: err}
 	}
 	for n, p := range dicoms {
 		if err := ctx.Err(); err != nil {

@@ -212,6 +212,9 @@ func parse(data []byte, opts []dicom.ParseOption) (ds dicom.Dataset, panicked bo
 // DICOM library are recovered; the code of this package is not guarded
 // here, so that fuzzing finds its faults.
 func readBytes(path string, data []byte, pixels bool) (fi *fileInfo, err error) {
+	if len(data) == 0 {
+		return nil, skip("empty file (0 bytes)")
+	}
 	if !looksLikeDICOM(data) {
 		return nil, skip("not a DICOM file (no DICM marker and no DICOM element at the start)")
 	}
@@ -231,7 +234,9 @@ func readBytes(path string, data []byte, pixels bool) (fi *fileInfo, err error) 
 	}
 	ds, panicked, perr := parse(data, opts)
 	if panicked {
-		return nil, skip("unreadable: the DICOM parser failed (%v)", perr)
+		// The library's own failure (e.g. an index out of range) means
+		// nothing to the user; the cause is malformed data.
+		return nil, skip("unreadable: malformed DICOM data the parser cannot read (it stopped on an internal check)")
 	}
 	es := elems(ds.Elements)
 	if s := es.str(tag.TransferSyntaxUID); s != "" {
@@ -258,6 +263,9 @@ func readBytes(path string, data []byte, pixels bool) (fi *fileInfo, err error) 
 				where = "after " + tagName(es[len(es)-1].Tag)
 			}
 			return nil, skip("truncated: the file ends early (%s)", where)
+		}
+		if errors.Is(perr, dicom.ErrorMetaElementGroupLength) {
+			return nil, skip("unreadable: the file meta information does not start with its group length %s", tagName(tag.FileMetaInformationGroupLength))
 		}
 		return nil, skip("unreadable: %v", perr)
 	}
@@ -395,16 +403,8 @@ func (fi *fileInfo) frames(es elems, nf int) error {
 	if perFrame != nil && len(perFrame) != nf {
 		return skip("enhanced image: %d frames but %d items in %s", nf, len(perFrame), tagName(tagPerFrameGroups))
 	}
-	for _, f := range fi.Frames {
-		if f.Spacing[0] <= 0 || f.Spacing[1] <= 0 {
-			return skip("missing tag %s", tagName(tag.PixelSpacing))
-		}
-		if f.Row.Norm() == 0 || f.Col.Norm() == 0 {
-			return skip("missing tag %s", tagName(tag.ImageOrientationPatient))
-		}
-		if f.IPP[0] != f.IPP[0] {
-			return skip("missing tag %s", tagName(tag.ImagePositionPatient))
-		}
+	if err := checkPlanes(es, fi.Frames); err != nil {
+		return err
 	}
 	if fi.B0 == 0 {
 		// Enhanced MR may carry the field strength only at the top level,

@@ -15,6 +15,7 @@ import (
 	"sync"
 
 	"dosecover/dosemap"
+	"dosecover/dosemap/safefile"
 )
 
 // LoadOptions tune Load.
@@ -117,15 +118,11 @@ func (o LoadOptions) workers() int {
 // listFiles returns the regular files under dir (following symbolic links
 // to files), sorted by path.
 func listFiles(dir string) ([]string, error) {
-	fi, err := os.Stat(dir)
-	if err != nil {
-		return nil, fmt.Errorf("reading case folder %s: %w", dir, err)
-	}
-	if !fi.IsDir() {
-		return nil, fmt.Errorf("reading case folder %s: not a folder", dir)
+	if err := safefile.CheckDir("case folder", dir); err != nil {
+		return nil, err
 	}
 	var out []string
-	err = filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {
+	err := filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {
 		if err != nil {
 			if p == dir {
 				return err
@@ -146,7 +143,7 @@ func listFiles(dir string) ([]string, error) {
 		return nil
 	})
 	if err != nil {
-		return nil, fmt.Errorf("reading case folder %s: %w", dir, err)
+		return nil, &safefile.PathError{What: "reading case folder", Path: dir, Err: err}
 	}
 	sort.Strings(out)
 	return out, nil
@@ -290,8 +287,13 @@ func (cr *caseReader) assemble(paths []string, infos []*fileInfo, errs []error) 
 	}
 	if len(cr.units) == 0 {
 		inv.NotReviewable = "no thermometry (phase), temperature-map or dose-map series found"
-		if len(inv.Skipped) > 0 {
-			inv.NotReviewable += fmt.Sprintf(" (%d files skipped, see below)", len(inv.Skipped))
+		switch s := inv.Skipped; {
+		case inv.Files == 0:
+			inv.NotReviewable = "the folder holds no files"
+		case len(s) == inv.Files:
+			inv.NotReviewable = fmt.Sprintf("none of its %d files could be used (%s: %s%s)", inv.Files, s[0].Path, s[0].Reason, andMore(len(s)-1))
+		case len(s) > 0:
+			inv.NotReviewable += fmt.Sprintf("; %d files skipped (%s: %s%s)", len(s), s[0].Path, s[0].Reason, andMore(len(s)-1))
 		}
 	} else {
 		inv.Reviewable = true
@@ -705,4 +707,12 @@ func (cr *caseReader) checkFrames() {
 			check(k, "structure set "+cr.rel(cr.structFis[n].Path))
 		}
 	}
+}
+
+// andMore returns ", and N more" for n > 0.
+func andMore(n int) string {
+	if n <= 0 {
+		return ""
+	}
+	return fmt.Sprintf(", and %d more", n)
 }
