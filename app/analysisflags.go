@@ -8,6 +8,7 @@ import (
 	"strconv"
 	"strings"
 
+	"dosecover/dosemap"
 	"dosecover/review"
 )
 
@@ -93,4 +94,53 @@ func parseArgs(fs *flag.FlagSet, args []string) ([]string, error) {
 		}
 		pos, rest = append(pos, rest[0]), rest[1:]
 	}
+}
+
+// structureFlags choose the structures of an analysis: a dosecover contour
+// file instead of the case's own structures, and which structure is the
+// target.
+type structureFlags struct {
+	contours string
+	target   string
+}
+
+// addStructureFlags registers --contours and --target on fs.
+func addStructureFlags(fs *flag.FlagSet) *structureFlags {
+	s := &structureFlags{}
+	fs.StringVar(&s.contours, "contours", "", "dosecover contour `FILE` to use instead of the case's structures")
+	fs.StringVar(&s.target, "target", "", "`NAME` of the structure to analyse as the target")
+	return s
+}
+
+// apply replaces the structures of c by the contour file and marks the
+// named target; the error names the file or lists the structures.
+func (s *structureFlags) apply(c *dosemap.Case) error {
+	if s.contours != "" {
+		ss, _, err := review.ReadContourFile(s.contours)
+		if err != nil {
+			return err
+		}
+		c.Structures = ss
+	}
+	if s.target == "" {
+		return nil
+	}
+	found := false
+	for n := range c.Structures {
+		st := &c.Structures[n]
+		switch {
+		case st.Name == s.target:
+			st.Role, found = dosemap.RoleTarget, true
+		case st.Role == dosemap.RoleTarget:
+			st.Role = dosemap.RoleOther
+		}
+	}
+	if !found {
+		var names []string
+		for _, st := range c.Structures {
+			names = append(names, strconv.Quote(st.Name))
+		}
+		return fmt.Errorf("no structure named %q (structures: %s)", s.target, strings.Join(names, ", "))
+	}
+	return nil
 }

@@ -28,13 +28,14 @@ type skippedFile struct {
 // loadedCase is a case folder as read: the case itself and what the reader
 // has to say about the folder.
 type loadedCase struct {
-	Dir       string
-	Case      *dosemap.Case
-	Skipped   []skippedFile
-	Problems  []string // warnings about the folder that did not stop the load
-	Inventory string   // the reader's plain-text inventory of the folder
-	MissingB0 bool     // some thermometry lacks MagneticFieldStrength
-	MissingTE bool     // some thermometry lacks EchoTime
+	Dir           string
+	Case          *dosemap.Case
+	Skipped       []skippedFile
+	Problems      []string // warnings about the folder that did not stop the load
+	Inventory     string   // the reader's plain-text inventory of the folder
+	NotReviewable string   // why the folder cannot be reviewed; "" when it can
+	MissingB0     bool     // some thermometry lacks MagneticFieldStrength
+	MissingTE     bool     // some thermometry lacks EchoTime
 }
 
 // loadOptions are the reader's options the user can change.
@@ -73,7 +74,8 @@ type sonicationRow struct {
 	PeakTemp      float64   // °C, highest temperature inside the target (NaN unknown)
 	DoseAddedML   float64   // mL of tissue newly above the threshold
 	CoverageAdded float64   // fraction of the target newly covered
-	Flags         []string  // quality flags, plain words
+	Flags         []string  // quality flags and notes, plain words
+	Flagged       bool      // a flag (not only notes) was raised
 }
 
 // analysisResult is what the review window displays from one analysis run.
@@ -126,7 +128,8 @@ type probeCurve struct {
 	FinalDose   float64
 	Unit        string
 	Threshold   float64
-	Description string // the voxel and what was sampled
+	Description string       // the voxel and what was sampled
+	Voxel       dosemap.Vec3 // centre of the thermometry voxel sampled, mm
 }
 
 // session is a case prepared for fast re-analysis: thermometry and dose of
@@ -135,6 +138,10 @@ type session interface {
 	Analyze(ctx context.Context, s analysisSettings) (*analysisResult, error)
 	// Probe returns the temperature history at patient position p.
 	Probe(p dosemap.Vec3, s analysisSettings) (*probeCurve, error)
+	// PeakTemperature returns the highest temperature of every voxel over
+	// the included sonications (°C, NaN where never valid), on the
+	// thermometry grid; nil when the case has no temperatures.
+	PeakTemperature(s analysisSettings) (*dosemap.Volume, error)
 }
 
 // Hooks filled by the backend files.

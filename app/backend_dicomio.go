@@ -30,8 +30,11 @@ func readCaseDICOM(ctx context.Context, dir string, opt loadOptions, progress fu
 			lc.Skipped = append(lc.Skipped, skippedFile{Path: s.Path, Reason: s.Reason})
 		}
 		lc.Problems = append(lc.Problems, inv.Problems...)
-		if !inv.Reviewable && inv.NotReviewable != "" {
-			lc.Problems = append(lc.Problems, "not reviewable: "+inv.NotReviewable)
+		if !inv.Reviewable {
+			lc.NotReviewable = inv.NotReviewable
+			if lc.NotReviewable == "" {
+				lc.NotReviewable = "the reader found no reviewable case in it"
+			}
 		}
 	}
 	if c == nil {

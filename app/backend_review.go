@@ -18,8 +18,15 @@ func init() {
 	defaultSettings = func() analysisSettings {
 		d := review.DefaultSettings()
 		s := builtinSettings()
-		s.Threshold, s.MarginMM, s.Model = d.Threshold, d.MarginMM, d.Model
-		s.Trials = d.Trials
+		s.Threshold, s.MarginMM, s.Model, s.Trials = d.Threshold, d.MarginMM, d.Model, d.Trials
+		s.CEM43Break, s.CEM43RAbove, s.CEM43RBelow = d.CEM43.Break, d.CEM43.RAbove, d.CEM43.RBelow
+		s.ArrheniusSet, s.ArrheniusA, s.ArrheniusEa = d.Arrhenius.Tissue, d.Arrhenius.A, d.Arrhenius.Ea
+		t := d.Thermometry
+		s.PRFAlpha, s.BodyTemp, s.BaselineFrames, s.DriftOrder = t.PRF.Alpha, t.BodyTemp, t.BaselineFrames, max(t.DriftOrder, 1)
+		s.Drift = map[dosemap.DriftMethod]string{dosemap.DriftNone: "none", dosemap.DriftMean: "mean", dosemap.DriftPolynomial: "polynomial"}[t.Drift]
+		if s.Drift == "" {
+			s.Drift = "mean"
+		}
 		return s
 	}
 	for _, a := range dosemap.ArrheniusSets {
@@ -35,6 +42,13 @@ func reviewSettings(s analysisSettings) review.Settings {
 	if s.Trials >= 0 {
 		r.Trials = s.Trials
 	}
+	if c, ok := doseModel(analysisSettings{Model: "cem43", CEM43Break: s.CEM43Break, CEM43RAbove: s.CEM43RAbove, CEM43RBelow: s.CEM43RBelow}).(dosemap.CEM43); ok {
+		r.CEM43 = c
+	}
+	if a, ok := doseModel(analysisSettings{Model: "arrhenius", ArrheniusSet: s.ArrheniusSet, ArrheniusA: s.ArrheniusA, ArrheniusEa: s.ArrheniusEa}).(dosemap.Arrhenius); ok {
+		r.Arrhenius = a
+	}
+	r.Thermometry = thermometryOptions(s)
 	return r
 }
 
@@ -141,7 +155,11 @@ func (ss *reviewSession) Analyze(ctx context.Context, s analysisSettings) (*anal
 			}
 		}
 		if q, ok := quality[st.Number]; ok {
-			row.Flags = qualityFlags(q)
+			vf := 0
+			if so := ss.sonication(st.Number); so != nil {
+				vf = so.Geometry.Len() * so.Frames()
+			}
+			row.Flags, row.Flagged = qualityFlags(q, vf)
 		}
 		out.Sonications = append(out.Sonications, row)
 		out.SonicationDose = append(out.SonicationDose, ss.rs.SonicationDose(st.Number))
@@ -158,8 +176,11 @@ func (ss *reviewSession) sonication(num int) *dosemap.Sonication {
 	return nil
 }
 
-// qualityFlags states what the thermometry flagged, in plain words.
-func qualityFlags(q review.SonicationQuality) []string {
+// qualityFlags states what the thermometry flagged (rejected frames,
+// suspected phase wraps) and, as plain notes, the drift removed, the motion
+// measure and the share of invalid voxel-frames. It reports whether any
+// flag (not only notes) was raised.
+func qualityFlags(q review.SonicationQuality, voxelFrames int) ([]string, bool) {
 	var f []string
 	if n := len(q.FlaggedFrames); n > 0 {
 		f = append(f, fmt.Sprintf("%d frame(s) rejected: %s", n, sliceList(q.FlaggedFrames)))
@@ -167,16 +188,17 @@ func qualityFlags(q review.SonicationQuality) []string {
 	if q.Wraps > 0 {
 		f = append(f, fmt.Sprintf("%d suspected phase wraps", q.Wraps))
 	}
-	if q.Invalid > 0 {
-		f = append(f, fmt.Sprintf("%d voxel-frames invalid", q.Invalid))
-	}
+	flagged := len(f) > 0
 	if q.MaxDriftC != 0 && !math.IsNaN(q.MaxDriftC) {
-		f = append(f, fmt.Sprintf("drift up to %.2f °C", q.MaxDriftC))
+		f = append(f, fmt.Sprintf("drift ≤ %.2f °C", math.Abs(q.MaxDriftC)))
 	}
 	if q.MaxMotion > 0 {
-		f = append(f, fmt.Sprintf("motion 1−r up to %.2g", q.MaxMotion))
+		f = append(f, fmt.Sprintf("motion 1−r ≤ %.2g", q.MaxMotion))
 	}
-	return f
+	if q.Invalid > 0 && voxelFrames > 0 {
+		f = append(f, fmt.Sprintf("invalid %.1f %% of voxel-frames", 100*float64(q.Invalid)/float64(voxelFrames)))
+	}
+	return f, flagged
 }
 
 // sliceList prints 1-based slice or frame numbers compactly: "3–7, 9".
@@ -348,6 +370,7 @@ func (ss *reviewSession) Probe(p dosemap.Vec3, s analysisSettings) (*probeCurve,
 			continue
 		}
 		voxelText = fmt.Sprintf("voxel (%d, %d, %d)", i, j, k)
+		c.Voxel = g.Point(float64(i), float64(j), float64(k))
 		one := &dosemap.TemperatureSeries{Geometry: dosemap.NewAxialGeometry(1, 1, 1, dosemap.Vec3{1, 1, 1}, dosemap.Vec3{})}
 		idx := g.Index(i, j, k)
 		for f, fr := range ts.Frames {
@@ -384,7 +407,7 @@ func (ss *reviewSession) Probe(p dosemap.Vec3, s analysisSettings) (*probeCurve,
 		return nil, fmt.Errorf("the point (%.1f, %.1f, %.1f) mm lies outside the thermometry of every sonication", p[0], p[1], p[2])
 	}
 	c.FinalDose = cum
-	c.Description = fmt.Sprintf("(%.1f, %.1f, %.1f) mm, %s", p[0], p[1], p[2], voxelText)
+	c.Description = fmt.Sprintf("%s at (%.1f, %.1f, %.1f) mm", voxelText, c.Voxel[0], c.Voxel[1], c.Voxel[2])
 	return c, nil
 }
 
@@ -414,4 +437,43 @@ func mean3x3(g dosemap.Geometry, fr []float32, i, j, k int) float64 {
 		return math.NaN()
 	}
 	return s / float64(n)
+}
+
+// PeakTemperature implements session.
+func (ss *reviewSession) PeakTemperature(s analysisSettings) (*dosemap.Volume, error) {
+	series, err := ss.temperatures(s)
+	if err != nil {
+		return nil, err
+	}
+	ex := s.excludedSet()
+	var peak *dosemap.Volume
+	for n, ts := range series {
+		if ts == nil || ex[ss.c.Sonications[n].Number] {
+			continue
+		}
+		v := &dosemap.Volume{Geometry: ts.Geometry, Data: make([]float32, ts.Geometry.Len())}
+		for i := range v.Data {
+			v.Data[i] = float32(math.NaN())
+		}
+		for _, fr := range ts.Frames {
+			for i, x := range fr {
+				if x == x && !(v.Data[i] >= x) {
+					v.Data[i] = x
+				}
+			}
+		}
+		if peak == nil {
+			peak = v
+			continue
+		}
+		if !v.Geometry.SameGrid(peak.Geometry, 0.01) {
+			v = dosemap.Resample(v, peak.Geometry)
+		}
+		for i, x := range v.Data {
+			if x == x && !(peak.Data[i] >= x) {
+				peak.Data[i] = x
+			}
+		}
+	}
+	return peak, nil
 }

@@ -9,13 +9,11 @@ import (
 	"io"
 	"os"
 	"os/signal"
-	"strconv"
-	"strings"
 
-	"dosecover/dosemap"
 	"dosecover/dosemap/dicomio"
 	"dosecover/dosemap/safefile"
 	"dosecover/review"
+	"dosecover/review/report"
 )
 
 func init() {
@@ -35,9 +33,9 @@ func runAnalyze(args []string, stdout, stderr io.Writer) int {
 	fs := flag.NewFlagSet("analyze", flag.ContinueOnError)
 	fs.SetOutput(stderr)
 	jsonPath := fs.String("json", "", "also write the full result as JSON to `FILE` (\"-\": to standard output instead of the summary)")
-	contours := fs.String("contours", "", "dosecover contour `FILE` to use instead of the case's structures")
-	target := fs.String("target", "", "`NAME` of the structure to analyse as the target")
+	sf := addStructureFlags(fs)
 	af := addAnalysisFlags(fs)
+	deidentify := fs.Bool("deidentify", false, "hide identity in the outputs: neutral case label, sonications by number, patient identity blanked out of names and warnings")
 	fs.Usage = func() {
 		fmt.Fprintln(stderr, "usage: dosecover analyze CASE_DIR [--json FILE] [--threshold T] [--margin M] [--model cem43|arrhenius] [options]")
 		fmt.Fprintln(stderr, "Reads the case folder (never changes it), computes temperature and thermal dose,")
@@ -83,38 +81,22 @@ func runAnalyze(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "dosecover analyze: %s cannot be analysed: %s\n", dir, inv.NotReviewable)
 		return 1
 	}
-	if *contours != "" {
-		ss, _, err := review.ReadContourFile(*contours)
-		if err != nil {
-			fmt.Fprintf(stderr, "dosecover analyze: %v\n", err)
-			return 1
-		}
-		c.Structures = ss
-	}
-	if *target != "" {
-		found := false
-		for n := range c.Structures {
-			s := &c.Structures[n]
-			switch {
-			case s.Name == *target:
-				s.Role, found = dosemap.RoleTarget, true
-			case s.Role == dosemap.RoleTarget:
-				s.Role = dosemap.RoleOther
-			}
-		}
-		if !found {
-			var names []string
-			for _, s := range c.Structures {
-				names = append(names, strconv.Quote(s.Name))
-			}
-			fmt.Fprintf(stderr, "dosecover analyze: no structure named %q (structures: %s)\n", *target, strings.Join(names, ", "))
-			return 1
-		}
+	if err := sf.apply(c); err != nil {
+		fmt.Fprintf(stderr, "dosecover analyze: %v\n", err)
+		return 1
 	}
 	res, err := review.Analyze(ctx, c, set, nil)
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover analyze: analysing %s: %v\n", dir, err)
 		return 1
+	}
+	if *deidentify {
+		sum, err := report.HashFolder(dir)
+		if err != nil {
+			fmt.Fprintf(stderr, "dosecover analyze: %v\n", err)
+			return 1
+		}
+		res = report.DeidentifyResult(c, res, report.DeidentifiedLabel(c.Label, sum))
 	}
 	switch *jsonPath {
 	case "-":

@@ -37,7 +37,7 @@ var auditAnalysis = func(settingsFile string) (audit.Analyzer, []byte, []audit.C
 	if err != nil {
 		return nil, nil, nil, err
 	}
-	return audit.NewAnalyzer(s, nil), js, audit.SettingsColumns(s), nil
+	return audit.NewAnalyzer(s, audit.ReportArtifacts), js, audit.SettingsColumns(s), nil
 }
 
 func auditUsage(w io.Writer, fs *flag.FlagSet) {
@@ -116,6 +116,23 @@ func runAudit(args []string, stdout, stderr io.Writer) int {
 
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
 	defer stop()
+	finished := make(chan struct{})
+	defer close(finished)
+	go func() {
+		select {
+		case <-ctx.Done():
+			select {
+			case <-finished: // cancelled by the deferred stop: the audit is over
+				return
+			default:
+			}
+			// A second Ctrl-C ends the program at once; finished cases
+			// stay saved (every file is written atomically).
+			stop()
+			fmt.Fprintln(stderr, "\ndosecover audit: stopping after the cases in progress (Ctrl-C again to quit at once)")
+		case <-finished:
+		}
+	}()
 	sum, err := audit.Run(ctx, cfg)
 	var ue *audit.UsageError
 	switch {

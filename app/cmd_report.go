@@ -25,7 +25,7 @@ func init() {
 // runReport implements
 //
 //	dosecover report CASE_DIR -o report.png [--pdf report.pdf] [--json metrics.json]
-//	    [--csv metrics.csv] [--deidentify] [analysis options]
+//	    [--csv metrics.csv] [--deidentify] [analysis options] [--contours FILE] [--target NAME]
 func runReport(args []string, stdout, stderr io.Writer) int {
 	fs := flag.NewFlagSet("report", flag.ContinueOnError)
 	fs.SetOutput(stderr)
@@ -36,8 +36,9 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	deidentify := fs.Bool("deidentify", false, "hide identity: neutral case label, no scan date, generic sonication labels")
 	reviewer := fs.String("reviewer", "", "name of the reviewer, printed in the header")
 	signoff := fs.String("sign-off", "", "sign-off statement, printed in the header")
-	dpi := fs.Int("dpi", report.DefaultDPI, "resolution of the PNG (at least 150 for printing)")
+	dpi := fs.Int("dpi", report.DefaultDPI, "resolution of the PNG, 150 to 1200 dots per inch")
 	af := addAnalysisFlags(fs)
+	sf := addStructureFlags(fs)
 	fs.Usage = func() {
 		fmt.Fprintln(stderr, "usage: dosecover report CASE_DIR -o report.png [--pdf report.pdf] [--json metrics.json] [--csv metrics.csv] [--deidentify] [options]")
 		fmt.Fprintln(stderr, "Analyses the case as \"dosecover analyze\" does with the same options and writes the")
@@ -59,8 +60,8 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintln(stderr, "dosecover report: give at least one output (-o report.png, --pdf, --json or --csv)")
 		return 2
 	}
-	if *dpi < 72 || *dpi > 1200 {
-		fmt.Fprintf(stderr, "dosecover report: --dpi %d: want 72 to 1200\n", *dpi)
+	if *dpi < 150 || *dpi > 1200 {
+		fmt.Fprintf(stderr, "dosecover report: --dpi %d: want 150 (legible in print) to 1200\n", *dpi)
 		return 2
 	}
 	set, err := af.settings()
@@ -93,6 +94,10 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "dosecover report: %s is not a reviewable case: %s\n", dir, inv.NotReviewable)
 		return 1
 	}
+	if err := sf.apply(c); err != nil {
+		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
+		return 1
+	}
 	r, err := review.Analyze(ctx, c, set, nil)
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover report: analysing %s: %v\n", dir, err)
@@ -103,7 +108,7 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
 		return 1
 	}
-	px := int(float64(*dpi) * 2.4) // panel side: about 61 mm of the page
+	px := report.PanelSize(float64(*dpi)).X // panels at the page's resolution
 	in, err := report.FromResult(c, r, report.Options{
 		Deidentify: *deidentify, Reviewer: *reviewer, SignOff: *signoff,
 		ReviewDate: time.Now().UTC().Truncate(time.Second), InputsSHA256: sum, PanelPixels: px,

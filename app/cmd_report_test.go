@@ -8,6 +8,8 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+
+	"dosecover/dosemap"
 )
 
 func TestReportUsage(t *testing.T) {
@@ -80,5 +82,25 @@ func TestDeidentifyUsageAndRefusal(t *testing.T) {
 	errb.Reset()
 	if code := run([]string{"deidentify", caseDir, full}, &out, &errb); code != 1 || !strings.Contains(errb.String(), "not empty") {
 		t.Errorf("non-empty output: exit %d, %q", code, errb.String())
+	}
+}
+
+func TestStructureFlags(t *testing.T) {
+	c := &dosemap.Case{Structures: []dosemap.Structure{
+		{Name: "A", Role: dosemap.RoleTarget}, {Name: "B", Role: dosemap.RoleOther}, {Name: "C", Role: dosemap.RoleAvoid},
+	}}
+	s := &structureFlags{target: "B"}
+	if err := s.apply(c); err != nil {
+		t.Fatal(err)
+	}
+	if c.Structures[0].Role != dosemap.RoleOther || c.Structures[1].Role != dosemap.RoleTarget || c.Structures[2].Role != dosemap.RoleAvoid {
+		t.Errorf("roles after --target B: %v %v %v", c.Structures[0].Role, c.Structures[1].Role, c.Structures[2].Role)
+	}
+	if err := (&structureFlags{target: "Z"}).apply(c); err == nil || !strings.Contains(err.Error(), `"A", "B", "C"`) {
+		t.Errorf("unknown target: %v, want the structures listed", err)
+	}
+	missing := filepath.Join(t.TempDir(), "none.json")
+	if err := (&structureFlags{contours: missing}).apply(c); err == nil || !strings.Contains(err.Error(), missing) {
+		t.Errorf("missing contour file: %v, want its path named", err)
 	}
 }

@@ -106,7 +106,9 @@ func waitJobs(t *testing.T, rw *reviewWindow, mark int64, n int64) {
 func openSynthetic(t *testing.T, rw *reviewWindow) {
 	t.Helper()
 	mark := rw.completed.Load()
-	rw.caseLoaded(syntheticCase(), "5e11f0c0ffee5e11f0c0ffee5e11f0c0ffee5e11f0c0ffee5e11f0c0ffee5e11", 4, nil, defaultSettings())
+	lc := syntheticCase()
+	lc.Dir = t.TempDir()
+	rw.caseLoaded(lc, "5e11f0c0ffee5e11f0c0ffee5e11f0c0ffee5e11f0c0ffee5e11f0c0ffee5e11", 4, nil, defaultSettings())
 	waitJobs(t, rw, mark, 1)
 	if rw.result == nil {
 		t.Fatalf("no analysis result; status: %s", rw.status.Text)

@@ -53,6 +53,10 @@ var shortcuts = [][2]string{
 	{"Tick / untick a sonication", "re-analyse with or without it"},
 	{"Select a sonication row", "show that sonication's dose alone"},
 	{"Drop a folder on the window", "open it"},
+	{"Ctrl+O", "open a case folder"},
+	{"Ctrl+E", "export the report (PNG, PDF, JSON, CSV)"},
+	{"Ctrl+,", "analysis settings"},
+	{"Ctrl+T", "teaching mode on / off"},
 }
 
 func (rw *reviewWindow) showShortcuts() {
@@ -62,8 +66,8 @@ func (rw *reviewWindow) showShortcuts() {
 		l.Wrapping = fyne.TextWrapWord
 		form.Append(s[0], l)
 	}
-	d := dialog.NewCustom("Keyboard and mouse", "Close", form, rw.win)
-	d.Resize(fyne.NewSize(760, 560))
+	d := dialog.NewCustom("Keyboard and mouse", "Close", container.NewVScroll(form), rw.win)
+	d.Resize(fyne.NewSize(780, 700))
 	d.Show()
 }
 

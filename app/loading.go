@@ -6,6 +6,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"math"
 	"os"
 	"path/filepath"
 	"strings"
@@ -28,6 +29,7 @@ func (rw *reviewWindow) openDemo() {
 	go func() {
 		dir, err := demoCaseDir()
 		fyne.Do(func() {
+			defer rw.completed.Add(1)
 			if !rw.finishJob(gen) || ctx.Err() != nil {
 				return
 			}
@@ -156,13 +158,24 @@ func (rw *reviewWindow) openCase(dir string) {
 				setting = rec.Settings
 			}
 			progress("Reading "+base+"…", 0.05)
+			// The reader reports two passes (attributes, then pixel data),
+			// each from zero: a drop in done starts the second.
+			pass, last := 0, -1
 			lc, err = readCase(ctx, dir, loadOptions{PhaseScale: setting.PhaseScale}, func(done, total int) {
-				if total > 0 {
-					progress(fmt.Sprintf("Reading %s: %d of %d files", base, done, total), 0.05+0.45*float64(done)/float64(total))
+				if total <= 0 {
+					return
 				}
+				if done < last && pass == 0 {
+					pass = 1
+				}
+				last = done
+				what := [2]string{"attributes", "images"}[pass]
+				progress(fmt.Sprintf("Reading %s (%s): %d of %d files", base, what, done, total),
+					0.05+0.225*(float64(pass)+float64(done)/float64(total)))
 			})
 		}
 		fyne.Do(func() {
+			defer rw.completed.Add(1)
 			if !rw.finishJob(gen) {
 				return
 			}
@@ -199,11 +212,23 @@ func (rw *reviewWindow) caseLoaded(lc *loadedCase, hash string, nFiles int, rec 
 	rw.probeMsg.SetText("Click a point on an image to pin it and plot its temperature over the session.")
 	c := lc.Case
 	rw.opt.WindowCentre, rw.opt.WindowWidth = defaultWindow(c)
-	rw.scene = sceneLayers{Anatomy: c.Anatomy}
+	rw.scene = sceneLayers{Anatomy: c.Anatomy, TargetStructure: c.Target()}
+	for n := range c.Structures {
+		if st := &c.Structures[n]; st.Role == dosemap.RoleAvoid {
+			rw.scene.AvoidStructures = append(rw.scene.AvoidStructures, st)
+		}
+	}
 	rw.setViewGrid()
 	rw.metrics.update()
 	rw.sonTable.Refresh()
 	rw.setBusy(fmt.Sprintf("Read %d sonications, %d structures; %d files skipped.", len(c.Sonications), len(c.Structures), len(lc.Skipped)), -1)
+	if lc.NotReviewable != "" {
+		rw.showError("The folder "+rw.displayPath(lc.Dir)+" cannot be reviewed", errors.New(lc.NotReviewable+". The folder tab lists what was found and the files skipped."))
+		if c.Anatomy == nil {
+			rw.showNotice("Nothing to show: " + lc.NotReviewable + ".")
+		}
+		return
+	}
 	if note := rw.missingScannerValues(); note != "" {
 		showSettingsDialog(rw.win, rw.settings, note, func(s analysisSettings) {
 			rw.settings = s
@@ -319,6 +344,7 @@ func (rw *reviewWindow) runAnalysis(prepare bool) {
 			res, err = sess.Analyze(ctx, set)
 		}
 		fyne.Do(func() {
+			defer rw.completed.Add(1)
 			if !rw.finishJob(gen) {
 				return
 			}
@@ -353,11 +379,15 @@ func (rw *reviewWindow) showResult(res *analysisResult) {
 	if !hadDose && rw.scene.Anatomy == nil {
 		rw.setViewGrid()
 	}
+	if !hadDose {
+		rw.frameTarget()
+	}
 	rw.metrics.update()
 	rw.sonTable.Refresh()
 	if rw.pinned != nil {
 		rw.pin(*rw.pinned)
 	}
+	rw.startPeakTemperature(res)
 	if rw.record != nil {
 		rw.record.Settings = rw.settings
 		if !rw.teaching && rw.loaded != nil {
@@ -460,4 +490,71 @@ func sortInts(s []int) {
 			s[j], s[j-1] = s[j-1], s[j]
 		}
 	}
+}
+
+// startPeakTemperature computes the peak temperature map for the hover
+// readout off the UI goroutine (the first time it recomputes the
+// temperature of every sonication, which also makes the probe instant).
+func (rw *reviewWindow) startPeakTemperature(res *analysisResult) {
+	sess, set := rw.sess, rw.settings
+	if sess == nil {
+		return
+	}
+	go func() {
+		v, err := sess.PeakTemperature(set)
+		fyne.Do(func() {
+			defer rw.auxDone.Add(1)
+			if rw.result != res || err != nil {
+				return
+			}
+			res.PeakTemp = v
+		})
+	}()
+}
+
+// frameTarget shows the target: both views go to the slice through its
+// centroid, centred on it, zoomed so that three target widths fill the
+// view (1× to 8×).
+func (rw *reviewWindow) frameTarget() {
+	r := rw.result
+	if r == nil || r.Target == nil {
+		return
+	}
+	var c dosemap.Vec3
+	var pts []dosemap.Vec3
+	g := r.Target.Geometry
+	for i, x := range r.Target.Data {
+		if x >= 0.5 {
+			a, b, k := g.IJK(i)
+			p := g.Point(float64(a), float64(b), float64(k))
+			c = c.Add(p)
+			pts = append(pts, p)
+		}
+	}
+	if len(pts) == 0 {
+		return
+	}
+	c = c.Scale(1 / float64(len(pts)))
+	for k, v := range rw.viewers {
+		if v.ref == nil {
+			continue
+		}
+		u, w, _, _, _, width, height := planeAxes(*v.ref, v.kind)
+		du, dv := spread(pts, u)+g.Spacing[0], spread(pts, w)+g.Spacing[1]
+		zoom := math.Max(1, math.Min(8, math.Min(width/(3*du), height/(3*dv))))
+		v.centreOn(c)
+		v.zoom = zoom
+		v.raster.Refresh()
+		rw.sliceChanged(k)
+	}
+}
+
+// spread returns the extent of pts along direction d, mm.
+func spread(pts []dosemap.Vec3, d dosemap.Vec3) float64 {
+	lo, hi := math.Inf(1), math.Inf(-1)
+	for _, p := range pts {
+		x := p.Dot(d)
+		lo, hi = math.Min(lo, x), math.Max(hi, x)
+	}
+	return hi - lo
 }

@@ -95,7 +95,7 @@ func (rw *reviewWindow) pin(p dosemap.Vec3) {
 	go func() {
 		c, err := sess.Probe(p, set)
 		fyne.Do(func() {
-			defer rw.completed.Add(1)
+			defer rw.auxDone.Add(1)
 			if gen != rw.probeGen {
 				return
 			}
@@ -104,7 +104,7 @@ func (rw *reviewWindow) pin(p dosemap.Vec3) {
 				rw.probe.set(nil)
 				return
 			}
-			msg := rw.describePoint(p)
+			msg := "Voxel centre " + rw.describePoint(c.Voxel)
 			if math.IsNaN(c.LethalAt) {
 				msg += fmt.Sprintf(" · did not reach %s %s (final %s)", fmtNum(c.Threshold), c.Unit, fmtDose(c.FinalDose))
 			} else {
@@ -177,11 +177,14 @@ func (rw *reviewWindow) newSonicationTable() *widget.Table {
 			case 6:
 				l.SetText(fmtOpt(100*row.CoverageAdded, "%.1f %%"))
 			case 7:
-				if len(row.Flags) == 0 {
+				switch {
+				case len(row.Flags) == 0:
 					l.SetText("no flag")
-				} else {
+				case row.Flagged:
 					l.Importance = widget.WarningImportance
 					l.SetText(strings.Join(row.Flags, "; "))
+				default:
+					l.SetText("no flag; " + strings.Join(row.Flags, "; "))
 				}
 			}
 		})
@@ -301,7 +304,7 @@ func newMetricsPanel(rw *reviewWindow) *metricsPanel {
 		return widget.NewLabelWithStyle(s, fyne.TextAlignLeading, fyne.TextStyle{Bold: true})
 	}
 	listBox := func(l *widget.List) fyne.CanvasObject {
-		return container.NewGridWrap(fyne.NewSize(440, 150), l)
+		return container.NewGridWrap(fyne.NewSize(380, 150), l)
 	}
 	m.box = container.NewVBox(
 		bold("Coverage of the target"), m.facts,
@@ -357,8 +360,10 @@ func (m *metricsPanel) update() {
 		fmt.Sprintf("%-24s %s", "Not monitored", pct(r.NotMonitored)),
 		fmt.Sprintf("%-24s %d (%.3f mL)", "Holes", len(r.Holes), sumML(r.Holes)),
 		fmt.Sprintf("%-24s %d (%.3f mL)", "Lethal outside margin", len(r.Outside), r.LethalOutside),
-		fmt.Sprintf("%-24s %s / %s / %s %s", "D98 / D50 / D2", fmtDose(r.D98), fmtDose(r.D50), fmtDose(r.D2), r.Unit),
-		fmt.Sprintf("%-24s %s %s, margin %g mm", "Threshold", fmtNum(r.Threshold), r.Unit, r.MarginMM),
+		fmt.Sprintf("%-24s %s / %s / %s", "D98 / D50 / D2", fmtDose(r.D98), fmtDose(r.D50), fmtDose(r.D2)),
+		fmt.Sprintf("%-24s %s", "  dose unit", r.Unit),
+		fmt.Sprintf("%-24s %s %s", "Threshold", fmtNum(r.Threshold), r.Unit),
+		fmt.Sprintf("%-24s %g mm", "Margin", r.MarginMM),
 	}
 	if ex := m.rw.settings.Excluded; len(ex) > 0 {
 		lines = append(lines, fmt.Sprintf("%-24s %v", "Sonications left out", ex))
@@ -427,8 +432,8 @@ func newWashBar() *washBar {
 		d := b.floor * math.Pow(b.to/b.floor, float64(x)/float64(max(w-1, 1)))
 		return washColour(d, b.floor, b.to)
 	})
-	bar.SetMinSize(fyne.NewSize(140, 12))
-	b.content = container.NewHBox(widget.NewLabel("dose (log)"), b.lo, container.NewCenter(bar), b.hi)
+	bar.SetMinSize(fyne.NewSize(120, 12))
+	b.content = container.NewHBox(widget.NewLabel("Dose (log)"), b.lo, container.NewCenter(bar), b.hi)
 	return b
 }
 

@@ -204,7 +204,9 @@ func coveragePlot(r *analysisResult) *plot.Plot {
 // the 3×3 in-plane mean, the 43 °C level and the moment the cumulative
 // dose reached the threshold.
 func probePlot(c *probeCurve) *plot.Plot {
-	p := newStyledPlot("Pinned point: "+c.Description, "time from first sonication (s)", "temperature (°C)")
+	p := newStyledPlot("Temperature of "+c.Description, "time from the first sonication (s)", "temperature (°C)")
+	p.Legend.Top, p.Legend.Left = true, false
+	p.Legend.XOffs = -vg.Points(8)
 	var vox, mean plotter.XYs
 	lo, hi := math.Inf(1), math.Inf(-1)
 	for n, t := range c.Times {

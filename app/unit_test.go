@@ -14,6 +14,7 @@ import (
 	"time"
 
 	"dosecover/dosemap"
+	"dosecover/review/report"
 
 	"fyne.io/fyne/v2/test"
 )
@@ -76,12 +77,20 @@ func TestHashInputs(t *testing.T) {
 	if err != nil || n != 1 {
 		t.Fatalf("hashInputs: %v, %d files", err, n)
 	}
-	// SHA-256("abc") from FIPS 180-2, Appendix B.1; the outer hash is over
-	// "path NUL hex newline" as documented on hashInputs.
-	const abc = "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad"
-	outer := sha256.Sum256([]byte("a.dcm\x00" + abc + "\n"))
+	// One file "abc": the outer hash is over "a.dcm", a zero byte, the size
+	// 3 as 8 bytes big-endian and "abc", as documented on hashInputs.
+	outer := sha256.Sum256([]byte("a.dcm\x00\x00\x00\x00\x00\x00\x00\x00\x03abc"))
 	if want := hex.EncodeToString(outer[:]); h1 != want {
 		t.Errorf("hash %s, want %s", h1, want)
+	}
+	// FIPS 180-2, Appendix B.1: SHA-256("abc"), to check the library call
+	// the composition rests on.
+	if abc := sha256.Sum256([]byte("abc")); hex.EncodeToString(abc[:]) != "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad" {
+		t.Error("SHA-256 of abc differs from FIPS 180-2 B.1")
+	}
+	// The reports print the same hash (independent implementation).
+	if rep, err := report.HashFolder(dir); err != nil || rep != h1 {
+		t.Errorf("report.HashFolder = %s (%v), window %s", rep, err, h1)
 	}
 	// The same content in another folder gives the same hash; a changed
 	// byte or a new file changes it.

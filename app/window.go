@@ -16,6 +16,7 @@ import (
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/container"
 	"fyne.io/fyne/v2/dialog"
+	"fyne.io/fyne/v2/driver/desktop"
 	"fyne.io/fyne/v2/theme"
 	"fyne.io/fyne/v2/widget"
 )
@@ -47,6 +48,8 @@ type reviewWindow struct {
 	// completed counts finished background jobs (loads and analyses, with
 	// or without error); tests wait on it.
 	completed atomic.Int64
+	auxDone   atomic.Int64 // finished probe and peak-temperature computations
+	exported  atomic.Int64 // finished report exports
 
 	viewers   [2]*sliceViewer
 	sliders   [2]*widget.Slider
@@ -91,6 +94,13 @@ func newReviewWindow(a fyne.App) *reviewWindow {
 	rw.win.SetMainMenu(rw.mainMenu())
 	rw.win.SetOnDropped(rw.dropped)
 	rw.win.Canvas().SetOnTypedKey(rw.typedKey)
+	for _, sc := range []struct {
+		key fyne.KeyName
+		fn  func()
+	}{{fyne.KeyO, rw.chooseFolder}, {fyne.KeyE, rw.exportReport}, {fyne.KeyComma, rw.openSettings}, {fyne.KeyT, func() { rw.teachCheck.SetChecked(!rw.teaching) }}} {
+		fn := sc.fn
+		rw.win.Canvas().AddShortcut(&desktop.CustomShortcut{KeyName: sc.key, Modifier: fyne.KeyModifierShortcutDefault}, func(fyne.Shortcut) { fn() })
+	}
 	rw.win.Canvas().SetOnTypedRune(func(r rune) {
 		if rw.active != nil {
 			rw.active.TypedRune(r)
@@ -137,9 +147,14 @@ func (rw *reviewWindow) build() {
 	rw.active = rw.viewers[0]
 
 	viewPane := func(n int) fyne.CanvasObject {
-		head := container.NewBorder(nil, nil, container.NewGridWrap(fyne.NewSize(250, 36), rw.planeSel[n]),
-			container.NewGridWrap(fyne.NewSize(130, 36), rw.sliceInfo[n]))
-		return container.NewBorder(head, rw.sliders[n], nil, nil, rw.viewers[n])
+		v := rw.viewers[n]
+		zoomIn := widget.NewButtonWithIcon("", theme.ZoomInIcon(), func() { v.zoomBy(1.25) })
+		zoomOut := widget.NewButtonWithIcon("", theme.ZoomOutIcon(), func() { v.zoomBy(0.8) })
+		zoomFit := widget.NewButtonWithIcon("", theme.ZoomFitIcon(), v.resetView)
+		head := container.NewBorder(nil, nil,
+			container.NewHBox(container.NewGridWrap(fyne.NewSize(230, 36), rw.planeSel[n]), zoomOut, zoomIn, zoomFit),
+			container.NewGridWrap(fyne.NewSize(120, 36), rw.sliceInfo[n]))
+		return container.NewBorder(head, rw.sliders[n], nil, nil, v)
 	}
 	views := container.NewStack(container.NewGridWithColumns(2, viewPane(0), viewPane(1)),
 		container.NewCenter(container.NewGridWrap(fyne.NewSize(560, 110), rw.notice)))
@@ -164,19 +179,12 @@ func (rw *reviewWindow) build() {
 	showHoles := widget.NewCheck("Holes & spill", func(b bool) { rw.opt.ShowHoles = b; rw.redraw() })
 	showHoles.SetChecked(true)
 	resetWL := widget.NewButton("Reset window", rw.resetWindow)
-	zoomIn := widget.NewButtonWithIcon("", theme.ZoomInIcon(), func() { rw.active.zoomBy(1.25) })
-	zoomOut := widget.NewButtonWithIcon("", theme.ZoomOutIcon(), func() { rw.active.zoomBy(0.8) })
-	zoomFit := widget.NewButtonWithIcon("", theme.ZoomFitIcon(), func() {
-		for _, v := range rw.viewers {
-			v.resetView()
-		}
-	})
 	rw.selInfo = widget.NewLabel("Showing the cumulative dose")
 	cumul := widget.NewButton("Cumulative", func() { rw.selectSonication(-1) })
 	display := container.NewHBox(
-		widget.NewLabel("Wash opacity"), container.NewGridWrap(fyne.NewSize(120, 36), rw.opacity),
-		widget.NewLabel("Floor"), container.NewGridWrap(fyne.NewSize(80, 36), rw.floorEntry),
-		showDose, showCont, showHoles, resetWL, zoomOut, zoomIn, zoomFit,
+		widget.NewLabel("Opacity"), container.NewGridWrap(fyne.NewSize(110, 36), rw.opacity),
+		widget.NewLabel("Floor"), container.NewGridWrap(fyne.NewSize(76, 36), rw.floorEntry),
+		showDose, showCont, showHoles, resetWL,
 		widget.NewSeparator(), rw.washBar.content,
 	)
 	legend := legendRow()
@@ -198,7 +206,7 @@ func (rw *reviewWindow) build() {
 	left := container.NewVSplit(
 		container.NewBorder(nil, container.NewVBox(display, legend), nil, nil, views),
 		bottom)
-	left.SetOffset(0.62)
+	left.SetOffset(0.68)
 
 	rw.metrics = newMetricsPanel(rw)
 	main := container.NewHSplit(left, rw.metrics.content)
@@ -211,6 +219,7 @@ func (rw *reviewWindow) build() {
 		widget.NewButtonWithIcon("Recent", theme.HistoryIcon(), rw.showRecentMenu),
 		widget.NewButtonWithIcon("Settings…", theme.SettingsIcon(), rw.openSettings),
 		widget.NewButtonWithIcon("Sign off…", theme.ConfirmIcon(), rw.signOff),
+		widget.NewButtonWithIcon("Export report…", theme.DocumentSaveIcon(), rw.exportReport),
 		rw.teachCheck,
 	)
 	header := container.NewBorder(nil, nil, toolbar,
@@ -218,7 +227,7 @@ func (rw *reviewWindow) build() {
 			widget.NewButtonWithIcon("", theme.InfoIcon(), rw.showAbout)),
 		container.NewHBox(widget.NewSeparator(), rw.title, rw.identity))
 	statusBar := container.NewBorder(nil, nil, nil,
-		container.NewHBox(container.NewGridWrap(fyne.NewSize(220, 30), rw.progress), rw.cancelBtn),
+		container.NewHBox(container.NewGridWrap(fyne.NewSize(200, 30), rw.progress), rw.cancelBtn),
 		container.NewGridWithColumns(2, rw.hover, rw.status))
 	rw.win.SetContent(container.NewBorder(header, statusBar, nil, nil, main))
 	rw.showNotice("Open a case folder (File ▸ Open folder…, or drop a folder on this window).")
@@ -245,6 +254,7 @@ func (rw *reviewWindow) mainMenu() *fyne.MainMenu {
 	review := fyne.NewMenu("Review",
 		fyne.NewMenuItem("Analysis settings…", rw.openSettings),
 		fyne.NewMenuItem("Sign off…", rw.signOff),
+		fyne.NewMenuItem("Export report…", rw.exportReport),
 	)
 	help := fyne.NewMenu("Help",
 		fyne.NewMenuItem("Keyboard and mouse", rw.showShortcuts),
@@ -455,7 +465,7 @@ func (rw *reviewWindow) describePoint(p dosemap.Vec3) string {
 func fmtDose(d float64) string {
 	switch {
 	case d >= 1e5:
-		return fmt.Sprintf("%.2g", d)
+		return fmt.Sprintf("%.3g", d)
 	case d >= 10:
 		return fmt.Sprintf("%.0f", d)
 	case d >= 0.01:
@@ -496,8 +506,8 @@ func (rw *reviewWindow) startJob() (context.Context, int) {
 
 // finishJob ends job gen; it reports false for a superseded job, whose
 // result must be dropped.
+// The caller counts the job in completed when its callback is done.
 func (rw *reviewWindow) finishJob(gen int) bool {
-	defer rw.completed.Add(1)
 	if gen != rw.jobGen {
 		return false
 	}

@@ -11,10 +11,12 @@ import (
 	"sort"
 	"strings"
 	"testing"
+	"time"
 
 	"dosecover/dosemap"
 
 	"fyne.io/fyne/v2"
+	"fyne.io/fyne/v2/storage"
 	"fyne.io/fyne/v2/test"
 	"fyne.io/fyne/v2/widget"
 )
@@ -36,7 +38,7 @@ func TestOpenShowsMetrics(t *testing.T) {
 		t.Errorf("target volume %.3f mL, want %.3f ± 5 %%", r.TargetML, want)
 	}
 	facts := rw.metrics.facts.Text
-	for _, want := range []string{"PTV phantom", "Covered", "100.0 %", "Holes", "Lethal outside margin", "240 CEM43 min, margin 3 mm"} {
+	for _, want := range []string{"PTV phantom", "Covered", "100.0 %", "Holes", "Lethal outside margin", "240 CEM43 min", "3 mm"} {
 		if !strings.Contains(facts, want) {
 			t.Errorf("metrics panel lacks %q:\n%s", want, facts)
 		}
@@ -208,7 +210,7 @@ func TestTeachingModeHidesIdentity(t *testing.T) {
 	openSynthetic(t, rw)
 	rw.teachCheck.SetChecked(true)
 	for _, s := range []string{rw.win.Title(), rw.title.Text, rw.identity.Text, rw.loadInfo.Text} {
-		for _, secret := range []string{"PHANTOM", "T-0001", "Synthetic phantom", os.TempDir()} {
+		for _, secret := range []string{"PHANTOM", "T-0001", "Synthetic phantom", rw.loaded.Dir} {
 			if strings.Contains(s, secret) {
 				t.Errorf("teaching mode shows %q in %q", secret, s)
 			}
@@ -294,4 +296,93 @@ func absDiff(a, b uint32) uint32 {
 		return a - b
 	}
 	return b - a
+}
+
+// exportTo writes the report into a new folder and returns it.
+func exportTo(t *testing.T, rw *reviewWindow) string {
+	t.Helper()
+	out := t.TempDir()
+	mark := rw.exported.Load()
+	rw.writeReport(out)
+	deadline := time.Now().Add(60 * time.Second)
+	for rw.exported.Load() == mark {
+		if time.Now().After(deadline) {
+			t.Fatal("report export did not finish")
+		}
+		time.Sleep(10 * time.Millisecond)
+	}
+	return out
+}
+
+func TestExportReportTeachingMode(t *testing.T) {
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	if err := rw.addSignOff("A. Reviewer", "", testTime); err != nil {
+		t.Fatal(err)
+	}
+	// Without teaching mode the metrics name the case.
+	plain := exportTo(t, rw)
+	js, err := os.ReadFile(filepath.Join(plain, rw.reportBase()+".json"))
+	if err != nil || !strings.Contains(string(js), "Synthetic phantom") {
+		t.Fatalf("identified export lacks the case label (%v)", err)
+	}
+	rw.teachCheck.SetChecked(true)
+	out := exportTo(t, rw)
+	ents, err := os.ReadDir(out)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(ents) != 4 {
+		t.Fatalf("wrote %d files, want PNG, PDF, JSON and CSV: %v (status %s)", len(ents), ents, rw.status.Text)
+	}
+	for _, e := range ents {
+		if strings.Contains(e.Name(), "Synthetic") {
+			t.Errorf("teaching-mode file name %q carries the case label", e.Name())
+		}
+		b, err := os.ReadFile(filepath.Join(out, e.Name()))
+		if err != nil {
+			t.Fatal(err)
+		}
+		if strings.HasSuffix(e.Name(), ".json") || strings.HasSuffix(e.Name(), ".csv") {
+			for _, secret := range []string{"PHANTOM^TEST", "T-0001", "Synthetic phantom"} {
+				if strings.Contains(string(b), secret) {
+					t.Errorf("%s contains %q in teaching mode", e.Name(), secret)
+				}
+			}
+		}
+	}
+}
+
+func TestDropFolderOpensIt(t *testing.T) {
+	rw := testWindow(t)
+	dir := t.TempDir()
+	if err := os.WriteFile(filepath.Join(dir, "readme.txt"), []byte("not an image"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	mark := rw.completed.Load()
+	// Dropping a file opens the folder that holds it.
+	rw.dropped(fyne.NewPos(10, 10), []fyne.URI{storage.NewFileURI(filepath.Join(dir, "readme.txt"))})
+	waitJobs(t, rw, mark, 1)
+	// The folder holds no DICOM file: the reader's message names the
+	// folder, and nothing was written into it.
+	if !strings.Contains(rw.status.Text, "cannot be reviewed") || !strings.Contains(rw.status.Text, filepath.Base(dir)) {
+		t.Errorf("status after dropping a folder without a case: %q", rw.status.Text)
+	}
+	if ents, _ := os.ReadDir(dir); len(ents) != 1 {
+		t.Errorf("the dropped folder now holds %d entries", len(ents))
+	}
+}
+
+func TestRecentCases(t *testing.T) {
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	first := rw.loaded.Dir
+	if r := rw.recentCases(); len(r) == 0 || r[0] != first {
+		t.Fatalf("recent cases %v, want %s first", r, first)
+	}
+	openSynthetic(t, rw)
+	r := rw.recentCases()
+	if len(r) != 2 || r[1] != first {
+		t.Errorf("recent cases %v: want the new case first, then %s", r, first)
+	}
 }

@@ -12,8 +12,9 @@
 //     and similar patient attributes are emptied or removed.
 //   - Institution, department, station, device serial number and every
 //     person name (referring, performing, reading physician, operator,
-//     reviewer...) are removed or emptied; accession number and study ID
-//     are emptied.
+//     reviewer...) are removed or emptied (person names are kept present
+//     but empty, as several are Type 2 in their modules); accession number
+//     and study ID are emptied.
 //   - Every UID outside the DICOM root 1.2.840.10008 (which names standard
 //     SOP classes and transfer syntaxes) is replaced by 2.25.<decimal of the
 //     first 128 bits of SHA-256(salt ‖ uid)> (PS3.5 B.2, UUID-derived UIDs):
@@ -33,7 +34,9 @@
 //     what was done; LongitudinalTemporalInformationModified (0028,0303)
 //     says whether dates were modified or removed.
 //
-// Pixel data are copied byte for byte; files that declare burned-in
+// Pixel data are copied byte for byte (compressed frames too; only the
+// Basic Offset Table of encapsulated data is rewritten, and may come out
+// empty for one frame, which PS3.5 A.4 allows); files that declare burned-in
 // annotation (0028,0301 = YES) are refused, since identity in the pixels
 // cannot be removed here.
 package deid
@@ -275,13 +278,6 @@ var profile = map[tag.Tag]action{
 	tg(0x300E, 0x0008): actRemove,  // Reviewer Name
 	tg(0x4008, 0x0114): actRemove,  // Physician Approving Interpretation
 	tg(0xFFFC, 0xFFFC): actRemove,  // Data Set Trailing Padding
-}
-
-// Person-name attributes kept present but empty (type 2 in their modules);
-// every other PN attribute is removed.
-var emptyNames = map[tag.Tag]bool{
-	tg(0x0008, 0x0090): true, // Referring Physician's Name
-	tg(0x0070, 0x0084): true, // Content Creator's Name
 }
 
 var (
@@ -572,9 +568,10 @@ func (d *Deidentifier) elements(es []*dicom.Element, patientID string, top bool)
 		}
 		switch vr {
 		case "PN":
-			if !emptyNames[t] {
-				continue
-			}
+			// Every other person name is kept present but empty: several
+			// are Type 2 in their modules (Operators' Name in the RT
+			// Series, ROI Interpreter in the RT ROI Observations), so
+			// removing them would break the IOD.
 			if err := setStrings(e, []string{}); err != nil {
 				return nil, err
 			}

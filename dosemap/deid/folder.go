@@ -67,8 +67,11 @@ func (d *Deidentifier) File(src, dst string) error {
 // dstDir, which must be new or empty and must not lie inside srcDir. Files
 // are named 00001.dcm, 00002.dcm, ... in the sorted order of their source
 // paths (original names may carry identity). Files that are not DICOM are
-// not copied and are listed in Result.Skipped; a DICOM file that cannot be
-// de-identified stops the run with an error naming it.
+// not copied and are listed in Result.Skipped, as are symbolic links
+// (not followed); a DICOM file that cannot be de-identified stops the run
+// with an error naming it and leaves nothing behind: the copy is written
+// into a temporary folder beside dstDir and renamed into place when
+// complete.
 func Folder(ctx context.Context, srcDir, dstDir string, opt Options, progress func(done, total int)) (*Result, error) {
 	if err := safefile.CheckDir("case folder", srcDir); err != nil {
 		return nil, err
@@ -87,12 +90,16 @@ func Folder(ctx context.Context, srcDir, dstDir string, opt Options, progress fu
 		return nil, &safefile.PathError{What: "output folder", Path: dstDir, Err: err}
 	}
 	var paths []string
+	var links []Skipped
 	err := filepath.WalkDir(srcDir, func(p string, e fs.DirEntry, err error) error {
 		if err != nil {
 			return &safefile.PathError{What: "reading", Path: p, Err: err}
 		}
-		if e.Type().IsRegular() {
+		switch {
+		case e.Type().IsRegular():
 			paths = append(paths, p)
+		case e.Type()&fs.ModeSymlink != 0:
+			links = append(links, Skipped{Path: p, Reason: "symbolic link, not followed"})
 		}
 		return nil
 	})
@@ -104,7 +111,7 @@ func Folder(ctx context.Context, srcDir, dstDir string, opt Options, progress fu
 	if err != nil {
 		return nil, err
 	}
-	res := &Result{Dates: opt.Dates, ShiftDays: d.ShiftDays()}
+	res := &Result{Dates: opt.Dates, ShiftDays: d.ShiftDays(), Skipped: links}
 	// First pass: find the DICOM files and collect the identifying values
 	// of the whole case, so that a name in one file is also cleaned from
 	// the descriptions of another.
@@ -124,21 +131,45 @@ func Folder(ctx context.Context, srcDir, dstDir string, opt Options, progress fu
 	if len(dicoms) == 0 {
 		return nil, fmt.Errorf("no DICOM file found in %s", srcDir)
 	}
-	if err := os.MkdirAll(dstDir, 0o755); err != nil {
-		return nil, &safefile.PathError{What: "creating output folder", Path: dstDir, Err: err}
+	// Write into a temporary folder beside dstDir and rename it into place
+	// at the end, so a failed or cancelled run leaves no partial copy.
+	parent := filepath.Dir(filepath.Clean(dstDir))
+	if err := os.MkdirAll(parent, 0o755); err != nil {
+		return nil, &safefile.PathError{What: "creating output folder", Path: parent, Err: err}
 	}
+	tmp, err := os.MkdirTemp(parent, "."+filepath.Base(filepath.Clean(dstDir))+".part-*")
+	if err != nil {
+		return nil, &safefile.PathError{What: "creating a temporary folder beside", Path: dstDir, Err: err}
+	}
+	done := false
+	defer func() {
+		if !done {
+			os.RemoveAll(tmp)
+		}
+	}()
 	for n, p := range dicoms {
 		if err := ctx.Err(); err != nil {
 			return nil, err
 		}
-		dst := filepath.Join(dstDir, fmt.Sprintf("%05d.dcm", n+1))
-		if err := d.File(p, dst); err != nil {
+		name := fmt.Sprintf("%05d.dcm", n+1)
+		if err := d.File(p, filepath.Join(tmp, name)); err != nil {
 			return nil, err
 		}
-		res.Files = append(res.Files, FileResult{Src: p, Dst: dst})
+		res.Files = append(res.Files, FileResult{Src: p, Dst: filepath.Join(dstDir, name)})
 		if progress != nil {
 			progress(n+1, len(dicoms))
 		}
 	}
+	if err := os.Chmod(tmp, 0o755); err != nil {
+		return nil, fmt.Errorf("writing %s: %w", dstDir, err)
+	}
+	// dstDir is new or empty (checked above): an empty one makes way.
+	if err := os.Remove(dstDir); err != nil && !errors.Is(err, fs.ErrNotExist) {
+		return nil, fmt.Errorf("writing %s: %w", dstDir, err)
+	}
+	if err := os.Rename(tmp, dstDir); err != nil {
+		return nil, fmt.Errorf("writing %s: %w", dstDir, err)
+	}
+	done = true
 	return res, nil
 }

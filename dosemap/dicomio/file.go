@@ -145,6 +145,8 @@ type fileInfo struct {
 	BigEndian                          bool
 	Frames                             []frameMeta
 	Pixels                             []byte // raw pixel data when read
+	Size                               int64  // file size when the attributes were read
+	PixelPos, PixelLen                 int    // where the native pixel data lie in the file (0 unknown)
 	Structures                         *structureSet
 	IsImage                            bool
 }
@@ -218,13 +220,19 @@ func readBytes(path string, data []byte, pixels bool) (fi *fileInfo, err error) 
 	if !looksLikeDICOM(data) {
 		return nil, skip("not a DICOM file (no DICM marker and no DICOM element at the start)")
 	}
-	syntax, err := checkLengths(data)
+	w, err := walk(data, nil)
+	syntax := w.syntax
 	if ts, ok := transferSyntaxes[syntax]; ok && !ts.supported {
 		return nil, skip("unsupported compression: %s (%s)", ts.name, syntax)
 	}
-	var le *lengthError
-	if errors.As(err, &le) {
-		return nil, skip("truncated or corrupt: %v", err)
+	if err != nil {
+		// The DICOM library would misread such a file, possibly
+		// allocating whatever a corrupt length declares: it is not parsed.
+		var le *lengthError
+		if errors.As(err, &le) {
+			return nil, skip("truncated or corrupt: %v", err)
+		}
+		return nil, skip("corrupt: %v", err)
 	}
 	opts := []dicom.ParseOption{dicom.AllowMismatchPixelDataLength(), dicom.AllowUnknownSpecificCharacterSet()}
 	if pixels {
@@ -269,7 +277,8 @@ func readBytes(path string, data []byte, pixels bool) (fi *fileInfo, err error) 
 		}
 		return nil, skip("unreadable: %v", perr)
 	}
-	fi = &fileInfo{Path: path, Syntax: syntax, BigEndian: syntax == "1.2.840.10008.1.2.2"}
+	fi = &fileInfo{Path: path, Syntax: syntax, BigEndian: w.bo == binary.BigEndian,
+		Size: int64(len(data)), PixelPos: w.pixelPos, PixelLen: w.pixelLen}
 	if err := fi.fill(es, pixels); err != nil {
 		return nil, err
 	}
@@ -362,8 +371,12 @@ func (fi *fileInfo) fill(es elems, pixels bool) error {
 	if nf > 1<<20 || fi.Rows*fi.Cols > 1<<26 {
 		return skip("implausible image size %d×%d×%d", fi.Cols, fi.Rows, nf)
 	}
+	need := nf * fi.Rows * fi.Cols * fi.BitsAllocated / 8
+	if int64(pd.ValueLength) < int64(need) {
+		return skip("truncated or corrupt: PixelData (7fe0,0010) holds %d bytes, %d×%d×%d frames of %d bits need %d",
+			pd.ValueLength, fi.Cols, fi.Rows, nf, fi.BitsAllocated, need)
+	}
 	if pixels {
-		need := nf * fi.Rows * fi.Cols * fi.BitsAllocated / 8
 		if len(info.UnprocessedValueData) < need {
 			return skip("truncated: pixel data holds %d bytes, %d×%d×%d frames need %d",
 				len(info.UnprocessedValueData), fi.Cols, fi.Rows, nf, need)
@@ -377,7 +390,7 @@ func (fi *fileInfo) fill(es elems, pixels bool) error {
 // multi-frame images) or from the functional groups of an enhanced image.
 func (fi *fileInfo) frames(es elems, nf int) error {
 	base := frameMeta{Slope: 1}
-	readFrameAttrs(es, &base, true)
+	readFrameAttrs(es, &base)
 	base.Time = frameTimeOf(es)
 	if base.TE == 0 {
 		base.TE = fi.TE
@@ -405,10 +418,6 @@ func (fi *fileInfo) frames(es elems, nf int) error {
 	}
 	if err := checkPlanes(es, fi.Frames); err != nil {
 		return err
-	}
-	if fi.B0 == 0 {
-		// Enhanced MR may carry the field strength only at the top level,
-		// which was read above; nothing else to look at.
 	}
 	if fi.TE == 0 && len(fi.Frames) > 0 {
 		fi.TE = fi.Frames[0].TE
@@ -469,7 +478,7 @@ func readGroups(g elems, f *frameMeta) {
 
 // readFrameAttrs reads the image-plane, pixel-value and type attributes of a
 // classic image (or the top level of an enhanced one) into f.
-func readFrameAttrs(es elems, f *frameMeta, top bool) {
+func readFrameAttrs(es elems, f *frameMeta) {
 	f.IPP = dosemap.Vec3{math.NaN(), math.NaN(), math.NaN()}
 	if v, ok := es.floats(tag.ImagePositionPatient); ok && len(v) == 3 {
 		f.IPP = dosemap.Vec3{v[0], v[1], v[2]}
@@ -489,7 +498,6 @@ func readFrameAttrs(es elems, f *frameMeta, top bool) {
 	if te, ok := es.float(tag.EchoTime); ok && te > 0 {
 		f.TE = te / 1000
 	}
-	_ = top
 }
 
 func readOrientation(es elems, f *frameMeta) {

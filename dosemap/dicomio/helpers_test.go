@@ -5,6 +5,7 @@ import (
 	"os/exec"
 	"path/filepath"
 	"strings"
+	"sync"
 	"testing"
 )
 
@@ -36,8 +37,18 @@ func pydicomFile(t testing.TB, name string) string {
 	return p
 }
 
-// findPydicom asks python3 where pydicom lives; "" when it cannot.
+var (
+	pydicomOnce sync.Once
+	pydicomPath string
+)
+
+// findPydicom asks python3 (once) where pydicom lives; "" when it cannot.
 func findPydicom() string {
+	pydicomOnce.Do(func() { pydicomPath = askPython() })
+	return pydicomPath
+}
+
+func askPython() string {
 	for _, py := range []string{"python3", "/usr/bin/python3"} {
 		out, err := exec.Command(py, "-c", "import pydicom, os; print(os.path.dirname(pydicom.__file__))").Output()
 		if err == nil {

@@ -4,8 +4,10 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"os"
 	"path/filepath"
 	"strings"
+	"sync"
 
 	"dosecover/dosemap"
 )
@@ -121,12 +123,14 @@ func (cr *caseReader) load(ctx context.Context, progress func(done, total int)) 
 		paths[n] = fi.Path
 	}
 	errs := make([]error, len(files))
+	var pool sync.Pool
 	err := readAll(ctx, paths, cr.opt.workers(), progress, func(i int) {
 		fi := files[i]
-		px, err := readFile(fi.Path, true)
-		if err == nil && (px.Rows != fi.Rows || px.Cols != fi.Cols || len(px.Frames) != len(fi.Frames)) {
-			err = fmt.Errorf("the file changed while it was being read")
+		var buf []byte
+		if b, ok := pool.Get().(*[]byte); ok {
+			buf = *b
 		}
+		px, err := fi.loadPixels(buf)
 		for _, t := range plan[fi] {
 			if err != nil {
 				for n := range t.dst {
@@ -135,6 +139,11 @@ func (cr *caseReader) load(ctx context.Context, progress func(done, total int)) 
 				continue
 			}
 			px.decodeFrame(t.frame, t.dst, t.a, t.b)
+		}
+		if px != nil && px.Pixels != nil && px == fi {
+			b := px.Pixels[:0]
+			fi.Pixels = nil
+			pool.Put(&b)
 		}
 		errs[i] = err
 	})
@@ -148,4 +157,41 @@ func (cr *caseReader) load(ctx context.Context, progress func(done, total int)) 
 		}
 	}
 	return c, nil
+}
+
+// loadPixels returns fi with its raw pixel data. The bytes are read
+// straight from the offset the attribute pass found (into buf when it is
+// large enough), so the file is not parsed again; a file whose size
+// changed since is refused. Without a known offset the file is parsed
+// again.
+func (fi *fileInfo) loadPixels(buf []byte) (*fileInfo, error) {
+	need := len(fi.Frames) * fi.Rows * fi.Cols * fi.BitsAllocated / 8
+	if fi.PixelPos <= 0 || fi.PixelLen < need {
+		px, err := readFile(fi.Path, true)
+		if err == nil && (px.Rows != fi.Rows || px.Cols != fi.Cols || len(px.Frames) != len(fi.Frames)) {
+			err = fmt.Errorf("the file changed while it was being read")
+		}
+		return px, err
+	}
+	f, err := os.Open(fi.Path)
+	if err != nil {
+		return nil, err
+	}
+	defer f.Close()
+	st, err := f.Stat()
+	if err != nil {
+		return nil, err
+	}
+	if st.Size() != fi.Size {
+		return nil, fmt.Errorf("the file changed while it was being read (size %d, was %d)", st.Size(), fi.Size)
+	}
+	if cap(buf) < need {
+		buf = make([]byte, need)
+	}
+	buf = buf[:need]
+	if _, err := f.ReadAt(buf, int64(fi.PixelPos)); err != nil {
+		return nil, fmt.Errorf("reading pixel data: %w", err)
+	}
+	fi.Pixels = buf
+	return fi, nil
 }

@@ -30,27 +30,71 @@ type walker struct {
 	explicit bool
 	bo       binary.ByteOrder
 	syntax   string
+	inMeta   bool // reading the file meta information (explicit VR LE)
+	pixelPos int  // offset of the top-level native PixelData value; 0 none
+	pixelLen int
+	trace    func(pos int, t tag.Tag, vr string, vl uint32) // debugging aid; nil normally
 }
 
 // checkLengths returns nil when every element length fits, else an error
 // naming the element. It also reports the transfer syntax found in the file
 // meta information ("" when absent).
 func checkLengths(data []byte) (syntax string, err error) {
+	w, err := walk(data, nil)
+	return w.syntax, err
+}
+
+// checkLengthsTrace is checkLengths calling trace for every element header
+// (a debugging aid).
+func checkLengthsTrace(data []byte, trace func(pos int, t tag.Tag, vr string, vl uint32)) (string, error) {
+	w, err := walk(data, trace)
+	return w.syntax, err
+}
+
+// walk checks the lengths of data (see checkLengths) and returns the walker
+// with what it found: the transfer syntax and where the top-level native
+// pixel data lie. The walker is returned even with an error.
+func walk(data []byte, trace func(pos int, t tag.Tag, vr string, vl uint32)) (*walker, error) {
 	pos := 0
 	if len(data) >= 132 && string(data[128:132]) == "DICM" {
 		pos = 132
 	}
-	w := &walker{data: data, explicit: true, bo: binary.LittleEndian}
-	// File meta information: group 0002, explicit VR little endian.
-	for pos+8 <= len(data) && binary.LittleEndian.Uint16(data[pos:]) == 0x0002 {
+	w := &walker{data: data, explicit: true, bo: binary.LittleEndian, trace: trace}
+	err := w.run(pos)
+	w.data = nil
+	return w, err
+}
+
+func (w *walker) run(pos int) error {
+	data := w.data
+	// File meta information: group 0002, explicit VR little endian. The
+	// library reads exactly FileMetaInformationGroupLength bytes of it (and
+	// gives up without that element), so the walk does the same.
+	if pos+8 <= len(data) && binary.LittleEndian.Uint16(data[pos:]) == 0x0002 {
+		w.inMeta = true
 		next, t, val, err := w.header(pos, len(data))
 		if err != nil {
-			return "", err
+			return err
 		}
-		if t == tag.TransferSyntaxUID {
-			w.syntax = trimUID(val)
+		if t != tag.FileMetaInformationGroupLength || len(val) != 4 {
+			return fmt.Errorf("file meta information does not start with %s", tagName(tag.FileMetaInformationGroupLength))
+		}
+		metaEnd := int64(next) + int64(binary.LittleEndian.Uint32(val))
+		if metaEnd > int64(len(data)) {
+			return &lengthError{fmt.Sprintf("%s declares %d bytes but only %d remain", tagName(t), metaEnd-int64(next), len(data)-next)}
 		}
 		pos = next
+		for pos < int(metaEnd) {
+			next, t, val, err := w.header(pos, int(metaEnd))
+			if err != nil {
+				return err
+			}
+			if t == tag.TransferSyntaxUID {
+				w.syntax = trimUID(val)
+			}
+			pos = next
+		}
+		w.inMeta = false
 	}
 	switch w.syntax {
 	case "1.2.840.10008.1.2":
@@ -58,8 +102,26 @@ func checkLengths(data []byte) (syntax string, err error) {
 	case "1.2.840.10008.1.2.2":
 		w.bo = binary.BigEndian
 	case "":
-		// No meta information: guess byte order and VR style from the
-		// first element.
+		// Without a transfer syntax the library tries to read the first
+		// element in three syntaxes, allocating whatever length each
+		// reading declares: refuse implausible ones.
+		if pos+12 <= len(data) {
+			d := data[pos:]
+			cands := []uint32{binary.LittleEndian.Uint32(d[4:])}
+			for _, bo := range []binary.ByteOrder{binary.BigEndian, binary.LittleEndian} {
+				if longVR[string(d[4:6])] {
+					cands = append(cands, bo.Uint32(d[8:]))
+				} else {
+					cands = append(cands, uint32(bo.Uint16(d[6:])))
+				}
+			}
+			for _, vl := range cands {
+				if vl != undefinedLength && vl > 16<<20 && int64(vl) > int64(len(data)) {
+					return &lengthError{fmt.Sprintf("no transfer syntax given and the first element declares %d bytes in a %d-byte file", vl, len(data))}
+				}
+			}
+		}
+		// Guess byte order and VR style from the first element.
 		if pos+6 <= len(data) && binary.LittleEndian.Uint16(data[pos:]) != 0x0008 && binary.BigEndian.Uint16(data[pos:]) == 0x0008 {
 			w.bo = binary.BigEndian
 		}
@@ -69,11 +131,11 @@ func checkLengths(data []byte) (syntax string, err error) {
 		}
 	default:
 		if ts, ok := transferSyntaxes[w.syntax]; ok && !ts.supported && w.syntax == "1.2.840.10008.1.2.1.99" {
-			return w.syntax, nil // deflated: the body cannot be walked
+			return nil // deflated: the body cannot be walked
 		}
 	}
-	_, err = w.elements(pos, len(data), false, 0)
-	return w.syntax, err
+	_, err := w.elements(pos, len(data), false, 0)
+	return err
 }
 
 func trimUID(b []byte) string {
@@ -104,11 +166,11 @@ func (w *walker) readHeader(pos, end int) (valPos int, t tag.Tag, vr string, vl 
 		return 0, t, "", 0, fmt.Errorf("element header at byte %d cut short", pos)
 	}
 	bo := w.bo
-	if pos < len(w.data) && w.metaGroup(pos) {
-		bo = binary.LittleEndian
+	explicit := w.explicit
+	if w.inMeta {
+		bo, explicit = binary.LittleEndian, true
 	}
 	t = tag.Tag{Group: bo.Uint16(w.data[pos:]), Element: bo.Uint16(w.data[pos+2:])}
-	explicit := w.explicit || t.Group == 0x0002
 	switch {
 	case t.Group == 0xFFFE: // item and delimiters: always tag + 4-byte length
 		vl = bo.Uint32(w.data[pos+4:])
@@ -129,30 +191,32 @@ func (w *walker) readHeader(pos, end int) (valPos int, t tag.Tag, vr string, vl 
 		vl = bo.Uint32(w.data[pos+4:])
 		valPos = pos + 8
 	}
+	if w.trace != nil {
+		w.trace(pos, t, vr, vl)
+	}
+	if (t == tag.ItemDelimitationItem || t == tag.SequenceDelimitationItem) && vl != 0 {
+		return 0, t, vr, vl, fmt.Errorf("%s at byte %d has length %d instead of 0", tagName(t), pos, vl)
+	}
 	if vl != undefinedLength && int64(valPos)+int64(vl) > int64(end) {
 		return 0, t, vr, vl, &lengthError{fmt.Sprintf("%s declares %d bytes but only %d remain", tagName(t), vl, end-valPos)}
 	}
 	return valPos, t, vr, vl, nil
 }
 
-func (w *walker) metaGroup(pos int) bool {
-	return binary.LittleEndian.Uint16(w.data[pos:]) == 0x0002
-}
-
-// isSequence reports whether the element is a sequence: VR SQ, or, in
-// implicit VR, a tag the dictionary knows as SQ.
-func isSequence(t tag.Tag, vr string, explicit bool) bool {
+// libraryVR returns the VR the DICOM library will use for an element: the
+// VR written (explicit syntaxes), else the first VR of its dictionary entry
+// (OW for pixel and overlay data), else UN.
+func libraryVR(t tag.Tag, vr string, explicit bool) string {
 	if explicit {
-		return vr == "SQ"
+		return vr
 	}
-	if info, err := tag.Find(t); err == nil {
-		for _, v := range info.VRs {
-			if v == "SQ" {
-				return true
-			}
-		}
+	if t == tag.PixelData || t == tag.OverlayData {
+		return "OW"
 	}
-	return false
+	if info, err := tag.Find(t); err == nil && len(info.VRs) > 0 {
+		return info.VRs[0]
+	}
+	return "UN"
 }
 
 // elements walks the elements in [pos, end). inUndefined says the list
@@ -174,27 +238,35 @@ func (w *walker) elements(pos, end int, inUndefined bool, depth int) (int, error
 			return 0, err
 		}
 		switch {
+		case t == tag.ItemDelimitationItem && inUndefined:
+			return valPos, nil
 		case t == tag.ItemDelimitationItem || t == tag.SequenceDelimitationItem:
-			if inUndefined {
-				return valPos, nil
-			}
-			pos = valPos
-			continue
+			// The library reads a delimiter out of place as an ordinary
+			// element with a VR, so its view and ours would part here.
+			return 0, fmt.Errorf("%s out of place at byte %d", tagName(t), pos)
 		case t == tag.Item:
-			// A stray item at this level: step over its content.
+			// A stray item at this level: the library parses its content
+			// as elements, so it is walked the same way.
 			if vl == undefinedLength {
 				if pos, err = w.elements(valPos, end, true, depth+1); err != nil {
 					return 0, err
 				}
 				continue
 			}
+			if _, err := w.elements(valPos, valPos+int(vl), false, depth+1); err != nil {
+				return 0, err
+			}
 			pos = valPos + int(vl)
 			continue
 		}
-		explicit := w.explicit || t.Group == 0x0002
-		seq := isSequence(t, vr, explicit) || (vl == undefinedLength && (vr == "UN" || !explicit) && t != tag.PixelData)
+		lvr := libraryVR(t, vr, w.explicit)
 		switch {
-		case seq:
+		case t == tag.PixelData && vl == undefinedLength:
+			// Encapsulated pixel data: fragments up to the delimiter.
+			if pos, err = w.fragments(valPos, end); err != nil {
+				return 0, err
+			}
+		case t != tag.PixelData && (lvr == "SQ" || (lvr == "UN" && vl == undefinedLength)):
 			seqEnd := end
 			if vl != undefinedLength {
 				seqEnd = valPos + int(vl)
@@ -205,13 +277,18 @@ func (w *walker) elements(pos, end int, inUndefined bool, depth int) (int, error
 			if vl != undefinedLength {
 				pos = seqEnd
 			}
-		case vl == undefinedLength:
-			// Encapsulated pixel data (or another undefined-length OB/OW):
-			// fragments as items up to the sequence delimiter.
+		case vl == undefinedLength && (lvr == "OB" || lvr == "OW"):
 			if pos, err = w.fragments(valPos, end); err != nil {
 				return 0, err
 			}
+		case vl == undefinedLength:
+			// The library would read the value with the undefined length
+			// (0xFFFFFFFF bytes) as its size.
+			return 0, &lengthError{fmt.Sprintf("%s (VR %s) has undefined length", tagName(t), lvr)}
 		default:
+			if depth == 0 && t == tag.PixelData {
+				w.pixelPos, w.pixelLen = valPos, int(vl)
+			}
 			pos = valPos + int(vl)
 		}
 	}

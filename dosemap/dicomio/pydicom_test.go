@@ -116,6 +116,23 @@ func TestPydicomMRSmall(t *testing.T) {
 			if math.Abs(fi.TE-0.240) > 1e-12 || fi.B0 != 0 {
 				t.Errorf("TE %g s (want 0.240), B0 %g (want absent)", fi.TE, fi.B0)
 			}
+			// The same through Load, which reads the pixel bytes at the
+			// offset found by the attribute pass (file linked, read in place).
+			dir := t.TempDir()
+			if err := os.Symlink(pydicomFile(t, name), filepath.Join(dir, "img")); err != nil {
+				t.Skipf("symbolic links unavailable: %v", err)
+			}
+			c, _, err := Load(t.Context(), dir, LoadOptions{}, nil)
+			if err != nil || c.Anatomy == nil {
+				t.Fatalf("Load: %v", err)
+			}
+			sum = 0
+			for _, v := range c.Anatomy.Data {
+				sum += float64(v)
+			}
+			if sum != 2125338 || c.Anatomy.Data[0] != 905 {
+				t.Errorf("Load: sum %g [0,0] %g; want 2125338, 905", sum, c.Anatomy.Data[0])
+			}
 		})
 	}
 }

@@ -2,12 +2,10 @@ package dicomio
 
 import (
 	"fmt"
-	"sort"
 	"strings"
 
 	"dosecover/dosemap"
 
-	"github.com/suyashkumar/dicom"
 	"github.com/suyashkumar/dicom/pkg/tag"
 )
 
@@ -190,21 +188,3 @@ func contourPoints(c elems) ([]dosemap.Vec3, error) {
 	}
 	return pts, nil
 }
-
-// sortStructures orders structures by ROI number.
-func sortStructures(s []dosemap.Structure, info []StructureInfo) {
-	idx := make([]int, len(s))
-	for n := range idx {
-		idx[n] = n
-	}
-	sort.SliceStable(idx, func(a, b int) bool { return s[idx[a]].Number < s[idx[b]].Number })
-	s2 := make([]dosemap.Structure, len(s))
-	i2 := make([]StructureInfo, len(s))
-	for n, k := range idx {
-		s2[n], i2[n] = s[k], info[k]
-	}
-	copy(s, s2)
-	copy(info, i2)
-}
-
-var _ = dicom.ErrorElementNotFound

@@ -196,7 +196,7 @@ func (s mrSpec) write(t testing.TB) {
 				els = append(els, s.RWV...)
 				uid := fmt.Sprintf("%s.%d", s.SeriesUID, n)
 				// Scatter files over sub-folders with meaningless names.
-				p := filepath.Join(s.Dir, fmt.Sprintf("d%d", (n*7)%3), fmt.Sprintf("x%s_%04d", s.SeriesUID[len(s.SeriesUID)-2:], (n*37)%1000))
+				p := filepath.Join(s.Dir, fmt.Sprintf("d%d", (n*7)%3), fmt.Sprintf("x%s_%06d", s.SeriesUID[len(s.SeriesUID)-2:], (n*37)%100003))
 				writeDICOM(t, p, "1.2.840.10008.5.1.4.1.1.4", uid, s.Big, els)
 			}
 		}

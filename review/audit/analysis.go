@@ -77,8 +77,9 @@ func SettingsColumns(s review.Settings) []Column {
 	}
 }
 
-// Artifacts makes the report files of one analysed case; nil writes none.
-type Artifacts func(c *Case, cs *dosemap.Case, res *review.Result) []Artifact
+// Artifacts makes the report files of one analysed case (for example
+// ReportArtifacts); an error fails the case.
+type Artifacts func(c *Case, cs *dosemap.Case, res *review.Result) ([]Artifact, error)
 
 // NewAnalyzer returns the Analyzer of the coverage analysis (package
 // review) with settings s. Per case it reads the folder with
@@ -89,7 +90,7 @@ type Artifacts func(c *Case, cs *dosemap.Case, res *review.Result) []Artifact
 //     series;
 //   - marks it incomplete when it lacks thermometry or a target contour;
 //   - else analyses it with review.Analyze and returns its figures, the
-//     Result JSON and the files made by artifacts.
+//     Result JSON and the files made by artifacts (nil: none).
 //
 // With Case.Deidentify the case's patient attributes are dropped and its
 // label is the case ID before the analysis sees it.
@@ -129,7 +130,9 @@ func NewAnalyzer(s review.Settings, artifacts Artifacts) Analyzer {
 		}
 		out := &CaseResult{Metrics: MetricsOf(res), Flags: FlagsOf(res), Analysis: js.Bytes()}
 		if artifacts != nil {
-			out.Artifacts = artifacts(c, cs, res)
+			if out.Artifacts, err = artifacts(c, cs, res); err != nil {
+				return nil, fmt.Errorf("making the report of %s: %w", c.Dir, err)
+			}
 		}
 		return out, nil
 	}

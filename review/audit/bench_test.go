@@ -44,27 +44,47 @@ func peakHeap() (stop func() uint64) {
 }
 
 // benchAudit runs a whole audit of the cases below in (a fresh output
-// folder per iteration) and reports cases per minute and the peak heap
-// above the starting heap, per worker.
+// folder per iteration) and reports cases per minute, the peak heap above
+// the starting heap per worker, the CPU seconds per case and the average
+// number of cores kept busy (which tells a starved run on a shared machine
+// from a framework that does not scale).
 func benchAudit(b *testing.B, in string, cases int, workers int, a Analyzer) {
+	benchAuditSettings(b, in, cases, workers, a, nil)
+}
+
+// benchAuditSettings is benchAudit with settings stored in the records.
+func benchAuditSettings(b *testing.B, in string, cases int, workers int, a Analyzer, settings []byte) {
 	b.Helper()
 	runtime.GC()
 	var base runtime.MemStats
 	runtime.ReadMemStats(&base)
 	stop := peakHeap()
+	cpu0, cpuOK := cpuTime()
 	b.ResetTimer()
 	for i := 0; i < b.N; i++ {
 		out := filepath.Join(b.TempDir(), fmt.Sprint("out", i))
-		sum, err := Run(context.Background(), Config{Inputs: []string{in}, OutDir: out, Workers: workers, Analyzer: a})
+		sum, err := Run(context.Background(), Config{Inputs: []string{in}, OutDir: out, Workers: workers, Analyzer: a, Settings: settings})
 		if err != nil {
 			b.Fatal(err)
 		}
 		if sum.Analysed != cases {
-			b.Fatalf("analysed %d of %d cases: %+v", sum.Analysed, cases, sum.Rows)
+			for _, r := range sum.Rows {
+				if r.Status != StatusOK {
+					b.Logf("%s: %s: %s", r.Case, r.Status, oneLine(r.Reason))
+				}
+			}
+			b.Fatalf("analysed %d of %d cases", sum.Analysed, cases)
 		}
 	}
 	b.StopTimer()
+	cpu1, _ := cpuTime()
 	peak := stop()
+	if cpuOK && b.Elapsed() > 0 {
+		// Cores kept busy on average: near the number of workers when the
+		// machine is otherwise idle; lower when other work takes the CPU.
+		b.ReportMetric((cpu1-cpu0).Seconds()/b.Elapsed().Seconds(), "cores-used")
+		b.ReportMetric((cpu1-cpu0).Seconds()/float64(b.N*cases), "cpu-s/case")
+	}
 	perCase := b.Elapsed().Minutes() / float64(b.N*cases)
 	b.ReportMetric(1/perCase, "cases/min")
 	if peak > base.HeapInuse {

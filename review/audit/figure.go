@@ -60,7 +60,7 @@ func WriteFigure(w io.Writer, rows []Row) error {
 
 	left := plot.New()
 	left.Title.Text = "Coverage of the target"
-	left.X.Label.Text = "coverage (% of target volume at or above threshold)"
+	left.X.Label.Text = "coverage (% of the monitored target at or above the threshold)"
 	left.Y.Label.Text = "cases"
 	left.X.Min, left.X.Max = 0, 100
 	left.Y.Min = 0

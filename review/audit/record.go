@@ -8,6 +8,7 @@ import (
 	"io"
 	"math"
 	"strconv"
+	"strings"
 	"time"
 )
 
@@ -89,13 +90,20 @@ func (x *Num) UnmarshalJSON(b []byte) error {
 	return nil
 }
 
-// cell formats x for CSV: empty when NaN, else with up to 4 decimals.
+// cell formats x for CSV: empty when NaN, else rounded to 4 decimals
+// (0.1 µL for volumes in mL, 0.0001 percentage points) without trailing
+// zeros.
 func (x Num) cell() string {
 	f := float64(x)
 	if math.IsNaN(f) || math.IsInf(f, 0) {
 		return ""
 	}
-	return strconv.FormatFloat(f, 'f', -1, 64)
+	s := strconv.FormatFloat(f, 'f', 4, 64)
+	s = strings.TrimRight(strings.TrimRight(s, "0"), ".")
+	if s == "-0" {
+		s = "0"
+	}
+	return s
 }
 
 // IncompleteError marks a case that lacks inputs the analysis needs.

@@ -33,7 +33,8 @@ type Config struct {
 	Workers int
 	// Resume skips cases whose inputs (by InputHash) already have a
 	// finished record in OutDir made with the same settings (by
-	// SettingsHash); failed cases are tried again.
+	// SettingsHash) and the same version of dosecover; failed cases are
+	// tried again.
 	Resume bool
 	// Shard restricts the run to one part of the case list (zero: all).
 	Shard Shard
@@ -70,9 +71,10 @@ type Row struct {
 	Flags        []string
 	InputSHA256  string
 	SettingsHash string
-	Seconds      float64 // analysis time of the case
-	Resumed      bool    // taken from an earlier run
-	Dir          string  // the case's output folder (absolute); empty when nothing was written
+	Seconds      float64  // analysis time of the case
+	Resumed      bool     // taken from an earlier run
+	Dir          string   // the case's output folder (absolute); empty when nothing was written
+	Artifacts    []string // files of the case in Dir besides case.json (the report)
 }
 
 // Progress reports how far a run has got.
@@ -402,7 +404,7 @@ func rowOf(rec *Record) Row {
 	return Row{
 		Case: rec.Case, Source: rec.Source, Status: rec.Status, Reason: rec.Reason,
 		Metrics: rec.Metrics, Flags: rec.Flags, InputSHA256: rec.InputSHA256,
-		SettingsHash: rec.SettingsHash, Seconds: rec.Seconds,
+		SettingsHash: rec.SettingsHash, Seconds: rec.Seconds, Artifacts: rec.Artifacts,
 	}
 }
 
@@ -425,13 +427,15 @@ func resumeKey(inputHash, settingsHash string, deidentified bool) string {
 }
 
 // resumeIndex reads the finished records below outDir/cases. A record
-// counts when its status is ok or incomplete and all its artifacts exist.
+// counts when its status is ok or incomplete, it was made by this version
+// of dosecover (so one table never mixes versions of the method) and all
+// its artifacts exist.
 func resumeIndex(outDir string) map[string]*Record {
 	index := map[string]*Record{}
 	recs, _ := filepath.Glob(filepath.Join(outDir, "cases", "*", RecordFile))
 	for _, p := range recs {
 		rec, err := ReadRecord(p)
-		if err != nil || rec.InputSHA256 == "" || (rec.Status != StatusOK && rec.Status != StatusIncomplete) {
+		if err != nil || rec.InputSHA256 == "" || rec.Version != dosemap.Version || (rec.Status != StatusOK && rec.Status != StatusIncomplete) {
 			continue
 		}
 		complete := true

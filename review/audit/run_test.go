@@ -113,6 +113,11 @@ func TestRunEveryCase(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
+	for _, r := range sum.Rows {
+		if r.Case == "in__case-004" && (len(r.Artifacts) != 1 || r.Artifacts[0] != "report.txt" || r.Dir != filepath.Join(out, "cases", "in__case-004")) {
+			t.Errorf("row of case 4: artifacts %v in %s", r.Artifacts, r.Dir)
+		}
+	}
 	if rec.Status != StatusOK || rec.Files != 2 || rec.Artifacts[0] != "report.txt" || rec.Source != "in/case-004" {
 		t.Errorf("record %+v", rec)
 	}
@@ -276,6 +281,23 @@ func TestResumeAfterInterrupt(t *testing.T) {
 	}
 	if fifth.total() != 0 {
 		t.Errorf("equal settings in another layout: %d cases redone", fifth.total())
+	}
+
+	// A record made by another version of dosecover is not reused.
+	recPath := filepath.Join(out, "cases", "in__case-003", RecordFile)
+	b, _ := os.ReadFile(recPath)
+	old := strings.Replace(string(b), `"dosecover_version": "`, `"dosecover_version": "0.0.9-`, 1)
+	if old == string(b) {
+		t.Fatal("no version in the record")
+	}
+	writeFiles(t, out, map[string][]byte{"cases/in__case-003/" + RecordFile: []byte(old)})
+	seventh := newFileCounter()
+	cfg.Analyzer = seventh.analyze
+	if _, err := Run(context.Background(), cfg); err != nil {
+		t.Fatal(err)
+	}
+	if seventh.total() != 1 || seventh.calls[filepath.Join(in, "case-003")] != 1 {
+		t.Errorf("record of another version: resume analysed %v", seventh.calls)
 	}
 
 	// A deleted artifact makes its case count as unfinished.

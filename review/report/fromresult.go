@@ -24,8 +24,9 @@ type Options struct {
 	ReviewDate   time.Time // zero: now
 	InputsSHA256 string    // see HashFolder
 	PanelPixels  int       // side of each image panel in pixels; 0: 480
-	// Thermometry are the thermometry options the analysis used; the zero
-	// value stands for dosemap.DefaultThermometryOptions().
+	// Thermometry are the thermometry options the analysis used, for an
+	// analysis that does not record them itself (Result.Thermometry); the
+	// zero value stands for dosemap.DefaultThermometryOptions().
 	Thermometry dosemap.ThermometryOptions
 }
 
@@ -92,8 +93,9 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 	for _, cl := range r.OutsideClusters {
 		f.Outside = append(f.Outside, Region{VolumeML: cl.VolumeMM3 / 1000, DepthMM: cl.MaxDistanceMM})
 	}
+	f.TargetName = hide(f.TargetName, c, opt.Deidentify)
 	for _, a := range r.Avoid {
-		f.Avoid = append(f.Avoid, AvoidRow{Name: a.Name, LethalML: a.LethalVolumeMM3 / 1000, MaxDose: val(a.PeakDose)})
+		f.Avoid = append(f.Avoid, AvoidRow{Name: hide(a.Name, c, opt.Deidentify), LethalML: a.LethalVolumeMM3 / 1000, MaxDose: val(a.PeakDose)})
 	}
 	in.Facts = f
 	if strings.EqualFold(r.Model, "cem43") {
@@ -155,17 +157,9 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 	in.Methods = methods(c, r, opt)
 
 	// The analysis' own JSON, with identity removed when asked.
-	rr := *r
+	rr := r
 	if opt.Deidentify {
-		rr.Case = in.CaseLabel
-		rr.Sonications = append([]review.SonicationStats(nil), r.Sonications...)
-		for n := range rr.Sonications {
-			rr.Sonications[n].Label = fmt.Sprintf("sonication %d", rr.Sonications[n].Number)
-		}
-		rr.Warnings = nil
-		for _, w := range r.Warnings {
-			rr.Warnings = append(rr.Warnings, hide(w, c, true))
-		}
+		rr = DeidentifyResult(c, r, in.CaseLabel)
 	}
 	var buf bytes.Buffer
 	if err := rr.WriteJSON(&buf); err != nil {
@@ -185,6 +179,31 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 	return in, nil
 }
 
+// DeidentifyResult returns a shallow copy of r for output without
+// identity: the case label replaced by label (see DeidentifiedLabel), the
+// sonications named by number, and the patient's name, ID, birth date and
+// institution, the case label and the sonication labels of c blanked out of
+// the target and avoid structure names and the warnings. The grids are
+// shared with r.
+func DeidentifyResult(c *dosemap.Case, r *review.Result, label string) *review.Result {
+	rr := *r
+	rr.Case = label
+	rr.Sonications = append([]review.SonicationStats(nil), r.Sonications...)
+	for n := range rr.Sonications {
+		rr.Sonications[n].Label = fmt.Sprintf("sonication %d", rr.Sonications[n].Number)
+	}
+	rr.Target = hide(r.Target, c, true)
+	rr.Avoid = append([]review.AvoidDose(nil), r.Avoid...)
+	for n := range rr.Avoid {
+		rr.Avoid[n].Name = hide(rr.Avoid[n].Name, c, true)
+	}
+	rr.Warnings = nil
+	for _, w := range r.Warnings {
+		rr.Warnings = append(rr.Warnings, hide(w, c, true))
+	}
+	return &rr
+}
+
 // hide replaces the case label and the sonication labels of c in s when
 // de-identifying.
 func hide(s string, c *dosemap.Case, deid bool) string {
@@ -197,6 +216,26 @@ func hide(s string, c *dosemap.Case, deid bool) string {
 	for _, so := range c.Sonications {
 		if so.Label != "" {
 			s = strings.ReplaceAll(s, so.Label, fmt.Sprintf("sonication %d", so.Number))
+		}
+	}
+	// Identity of the patient wherever it appears (a structure or a
+	// series named after the patient), case-insensitively.
+	p := c.Patient
+	var toks []string
+	for _, v := range []string{p.Name, p.ID, p.BirthDate, p.Institution} {
+		toks = append(toks, v)
+		toks = append(toks, strings.FieldsFunc(v, func(r rune) bool { return r == '^' || r == ' ' || r == ',' || r == '=' })...)
+	}
+	for _, t := range toks {
+		if len(t) < 3 {
+			continue
+		}
+		for {
+			i := strings.Index(strings.ToUpper(s), strings.ToUpper(t))
+			if i < 0 {
+				break
+			}
+			s = s[:i] + strings.Repeat("X", len(t)) + s[i+len(t):]
 		}
 	}
 	return s
@@ -253,43 +292,28 @@ func methods(c *dosemap.Case, r *review.Result, opt Options) []Setting {
 		ms = append(ms, Setting{"Thermometry", "not used: the case holds ready dose maps"})
 		return append(ms, analysisSettings(r)...)
 	}
-	th := opt.Thermometry
-	def := dosemap.DefaultThermometryOptions()
-	if th.PRF.Alpha == 0 {
-		th.PRF.Alpha = def.PRF.Alpha
-		if th.PRF.Alpha == 0 {
-			th.PRF.Alpha = dosemap.DefaultAlpha
-		}
+	ti := r.Thermometry
+	if ti.AlphaPPMPerC == 0 {
+		// The analysis did not record its thermometry options: they are
+		// opt.Thermometry, with the engine's defaults for zero fields.
+		ti = thermometryInfo(opt.Thermometry)
 	}
-	if th.BaselineFrames == 0 {
-		th.BaselineFrames = def.BaselineFrames
+	ms = append(ms, Setting{"PRF alpha", fmt.Sprintf("%.4f ppm/°C", ti.AlphaPPMPerC)})
+	ms = append(ms, Setting{"B0 / TE", fieldAndEcho(c, ti)})
+	drift := ti.Drift
+	switch strings.ToLower(drift) {
+	case "", "none":
+		drift = "none"
+	case "polynomial":
+		drift = fmt.Sprintf("polynomial, order %d", ti.DriftOrder)
 	}
-	if th.BodyTemp == 0 {
-		th.BodyTemp = def.BodyTemp
-	}
-	if th.Drift == 0 && th.DriftOrder == 0 {
-		th.Drift, th.DriftOrder = def.Drift, def.DriftOrder
-	}
-	ms = append(ms, Setting{"PRF alpha", fmt.Sprintf("%.4f ppm/°C", th.PRF.Alpha)})
-	ms = append(ms, Setting{"B0 / TE", fieldAndEcho(c, th)})
-	drift := "none"
-	switch th.Drift {
-	case dosemap.DriftMean:
-		drift = "mean of the reference region"
-	case dosemap.DriftPolynomial:
-		drift = fmt.Sprintf("polynomial, order %d", th.DriftOrder)
-	}
-	if th.Drift != dosemap.DriftNone {
-		if th.Reference == nil {
-			drift += ", automatic reference"
-		} else {
-			drift += ", given reference"
-		}
+	if drift != "none" && ti.Reference != "" {
+		drift += ", " + ti.Reference + " reference"
 	}
 	ms = append(ms,
 		Setting{"Drift correction", drift},
-		Setting{"Baseline frames", fmt.Sprintf("%d", th.BaselineFrames)},
-		Setting{"Body temperature", fmt.Sprintf("%.1f °C", th.BodyTemp)},
+		Setting{"Baseline frames", fmt.Sprintf("%d", ti.BaselineFrames)},
+		Setting{"Body temperature", fmt.Sprintf("%.1f °C", ti.BodyTempC)},
 	)
 	return append(ms, analysisSettings(r)...)
 }
@@ -309,24 +333,70 @@ func analysisSettings(r *review.Result) []Setting {
 	}
 	ms = append(ms, Setting{"Excluded sonications", ex})
 	g := r.Grid
-	ms = append(ms, Setting{"Analysis grid", fmt.Sprintf("%d×%d×%d voxels of %.2g×%.2g×%.2g mm", g.Size[0], g.Size[1], g.Size[2], g.SpacingMM[0], g.SpacingMM[1], g.SpacingMM[2])})
+	ms = append(ms, Setting{"Analysis grid", fmt.Sprintf("%d×%d×%d voxels of %.3g×%.3g×%.3g mm", g.Size[0], g.Size[1], g.Size[2], g.SpacingMM[0], g.SpacingMM[1], g.SpacingMM[2])})
 	return ms
 }
 
-// fieldAndEcho describes B0 and TE: the override of the options, or the
+// thermometryInfo summarises thermometry options the way the analysis
+// records them, with the engine's defaults for zero fields.
+func thermometryInfo(th dosemap.ThermometryOptions) review.ThermometryInfo {
+	def := dosemap.DefaultThermometryOptions()
+	ti := review.ThermometryInfo{
+		AlphaPPMPerC: th.PRF.Alpha, BaselineFrames: th.BaselineFrames, BodyTempC: th.BodyTemp,
+		DriftOrder: th.DriftOrder, Reference: "automatic",
+	}
+	if ti.AlphaPPMPerC == 0 {
+		ti.AlphaPPMPerC = def.PRF.Alpha
+		if ti.AlphaPPMPerC == 0 {
+			ti.AlphaPPMPerC = dosemap.DefaultAlpha
+		}
+	}
+	if th.PRF.B0 > 0 {
+		b := th.PRF.B0
+		ti.B0T = &b
+	}
+	if th.PRF.TE > 0 {
+		t := th.PRF.TE
+		ti.TES = &t
+	}
+	if ti.BaselineFrames == 0 {
+		ti.BaselineFrames = def.BaselineFrames
+	}
+	if ti.BodyTempC == 0 {
+		ti.BodyTempC = def.BodyTemp
+	}
+	drift := th.Drift
+	if th.Drift == 0 && th.DriftOrder == 0 {
+		drift, ti.DriftOrder = def.Drift, def.DriftOrder
+	}
+	switch drift {
+	case dosemap.DriftMean:
+		ti.Drift = "mean"
+	case dosemap.DriftPolynomial:
+		ti.Drift = "polynomial"
+	default:
+		ti.Drift = "none"
+	}
+	if th.Reference != nil {
+		ti.Reference = "given"
+	}
+	return ti
+}
+
+// fieldAndEcho describes B0 and TE: the override of the analysis, or the
 // values of the sonications (a range when they differ).
-func fieldAndEcho(c *dosemap.Case, th dosemap.ThermometryOptions) string {
+func fieldAndEcho(c *dosemap.Case, ti review.ThermometryInfo) string {
 	b0lo, b0hi, telo, tehi := math.Inf(1), math.Inf(-1), math.Inf(1), math.Inf(-1)
 	for _, s := range c.Sonications {
 		if s.Dose != nil && s.Phase == nil {
 			continue
 		}
 		b, t := s.B0, s.TE
-		if th.PRF.B0 > 0 {
-			b = th.PRF.B0
+		if ti.B0T != nil {
+			b = *ti.B0T
 		}
-		if th.PRF.TE > 0 {
-			t = th.PRF.TE
+		if ti.TES != nil {
+			t = *ti.TES
 		}
 		if b > 0 {
 			b0lo, b0hi = math.Min(b0lo, b), math.Max(b0hi, b)
@@ -351,7 +421,8 @@ func fieldAndEcho(c *dosemap.Case, th dosemap.ThermometryOptions) string {
 // the largest target cross-section, through the largest hole and through
 // the largest lethal cluster outside the margin. Without a hole the second
 // panel is a reformat across the slices through the target centre; without
-// a cluster the third is the other reformat. Each panel is px × px pixels.
+// a cluster the third is the other reformat. Each panel is px pixels wide
+// and PanelAspect as high.
 func Panels(c *dosemap.Case, r *review.Result, px int) ([]Panel, error) {
 	if r.Dose == nil || r.TargetMask == nil {
 		return nil, fmt.Errorf("report: the analysis carries no dose or target grid to draw")
@@ -420,10 +491,11 @@ func Panels(c *dosemap.Case, r *review.Result, px int) ([]Panel, error) {
 		s := sc
 		s.Plane = view.PlaneThrough(grid, o, q, pixelMM)
 		cx, cy := s.Plane.Pixel(centre)
-		v := view.View{Width: px, Height: px, Zoom: float64(px) / ext, Centre: view.Point{X: cx, Y: cy}}
+		v := view.View{Width: px, Height: int(math.Round(float64(px) * PanelAspect)), Zoom: float64(px) / ext, Centre: view.Point{X: cx, Y: cy}}
 		img, err := view.Render(&s, v)
 		if err != nil {
-			return Panel{}, fmt.Errorf("report: rendering %s: %w", strings.ToLower(title), err)
+			// The page is still made; the panel says why it is empty.
+			return Panel{Title: title, Caption: "not drawn: " + err.Error()}, nil
 		}
 		return Panel{Title: title, Caption: planeCaption(s.Plane, q) + what, Image: image.Image(img)}, nil
 	}

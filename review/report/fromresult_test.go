@@ -2,13 +2,18 @@ package report
 
 import (
 	"bytes"
+	"context"
 	"encoding/csv"
 	"encoding/json"
 	"math"
+	"os/exec"
 	"path/filepath"
 	"strconv"
 	"strings"
 	"testing"
+
+	"dosecover/dosemap"
+	"dosecover/review"
 )
 
 // TestFromResultNumbers checks that the report carries the analysis'
@@ -57,8 +62,8 @@ func TestFromResultNumbers(t *testing.T) {
 		t.Errorf("panels %v", titles(in.Panels))
 	}
 	for _, p := range in.Panels {
-		if p.Image == nil || p.Image.Bounds().Dx() != 360 {
-			t.Errorf("panel %q: image %v, want 360 px wide", p.Title, p.Image)
+		if p.Image == nil || p.Image.Bounds().Dx() != 360 || p.Image.Bounds().Dy() != 295 { // 360 × PanelAspect, rounded
+			t.Errorf("panel %q: image %v, want 360×295 px", p.Title, p.Image.Bounds())
 		}
 	}
 	// CSV and JSON agree with Metrics exactly.
@@ -120,6 +125,16 @@ func titles(ps []Panel) []string {
 
 func TestFromResultDeidentify(t *testing.T) {
 	c, _, in := phantomInput(t, true)
+	// phantomCase names its avoid structure "Nerve"; a patient of that
+	// (invented) name would be hidden from it, and the label and date too.
+	c.Patient = dosemap.Patient{Name: "NERVE^INVENTED", StudyDate: "20260314"}
+	r, err := review.Analyze(context.Background(), c, review.Settings{Threshold: 240, MarginMM: 3, Model: "cem43"}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if in, err = FromResult(c, r, Options{Deidentify: true, PanelPixels: 120}); err != nil {
+		t.Fatal(err)
+	}
 	if strings.Contains(in.CaseLabel, c.Label) || !strings.HasPrefix(in.CaseLabel, "Teaching case ") {
 		t.Errorf("label %q", in.CaseLabel)
 	}
@@ -132,7 +147,21 @@ func TestFromResultDeidentify(t *testing.T) {
 		t.Fatal(err)
 	}
 	for _, p := range []string{out.PNG, out.PDF, out.JSON, out.CSV} {
-		assertAbsent(t, p, c.Label, "2026-03-14", "20260314")
+		assertAbsent(t, p, c.Label, "2026-03-14", "20260314", "Nerve", "NERVE", "INVENTED")
+	}
+	// The PDF keeps its text in compressed, subset-encoded streams, so
+	// check the text a reader extracts as well.
+	txt, err := exec.Command(pdfTool(t, "pdftotext"), out.PDF, "-").CombinedOutput()
+	if err != nil {
+		t.Fatalf("pdftotext: %v\n%s", err, txt)
+	}
+	for _, s := range []string{c.Label, "2026-03-14", "Nerve", "NERVE", "INVENTED"} {
+		if strings.Contains(string(txt), s) {
+			t.Errorf("PDF text shows %q", s)
+		}
+	}
+	if !strings.Contains(string(txt), in.CaseLabel) {
+		t.Errorf("PDF text lacks the neutral label %q", in.CaseLabel)
 	}
 }
 
@@ -145,4 +174,29 @@ func TestPhantomGolden(t *testing.T) {
 		t.Fatal(err)
 	}
 	comparePixels(t, img, filepath.Join("testdata", "phantom.png"), 16, 0.001)
+}
+
+func TestDeidentifyResult(t *testing.T) {
+	c, r, _ := phantomInput(t, false)
+	c.Label = "case INVENTED"
+	c.Patient = dosemap.Patient{Name: "NERVE^INVENTED", ID: "ID-42-QQ"}
+	r.Case = c.Label
+	r.Warnings = append(r.Warnings, "case INVENTED: sonication 1 of ID-42-QQ was resampled")
+	d := DeidentifyResult(c, r, "Teaching case 0001")
+	var buf bytes.Buffer
+	if err := d.WriteJSON(&buf); err != nil {
+		t.Fatal(err)
+	}
+	for _, s := range []string{"INVENTED", "ID-42-QQ", "Nerve"} {
+		if strings.Contains(buf.String(), s) {
+			t.Errorf("de-identified result JSON holds %q", s)
+		}
+	}
+	if !strings.Contains(buf.String(), `"case": "Teaching case 0001"`) {
+		t.Error("label not set")
+	}
+	// The original is left as it was.
+	if r.Case != "case INVENTED" || r.Avoid[0].Name != "Nerve" || !strings.Contains(r.Warnings[len(r.Warnings)-1], "ID-42-QQ") {
+		t.Error("DeidentifyResult changed its argument")
+	}
 }

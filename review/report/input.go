@@ -126,7 +126,7 @@ type SonicationRow struct {
 type Quality struct {
 	Frames    int     // frames analysed
 	Flagged   int     // frames flagged
-	MaxMotion float64 // largest 1 − magnitude correlation with baseline; NaN if not measured
+	MaxMotion float64 // largest frame motion index, 1 − correlation of the magnitude with the baseline (NaN if not measured)
 	MaxDriftC float64 // NaN if not measured
 	MinSNR    float64 // NaN if not measured
 	Wraps     int     // suspected phase wraps, summed over frames

@@ -196,12 +196,33 @@ func Render(c vg.Canvas, in *Input) error {
 	y += gap
 	y = drawPlots(p, in, x0, y, w)
 	y += gap
-	y = drawTables(p, in, x0, y, w)
+	// The tables take the room left above the methods and the cautions,
+	// which are measured first on a canvas that draws nothing.
+	dry := pen{c: nopCanvas{}, h: PageHeight}
+	methodsH := drawMethods(dry, in, x0, 0, w)
+	footTop := PageHeight - margin - footHeight(in, w)
+	y = drawTables(p, in, x0, y, w, footTop-gap-methodsH-gap)
 	y += gap
 	y = drawMethods(p, in, x0, y, w)
 	drawFoot(p, in, x0, y+gap, w)
 	return nil
 }
+
+// nopCanvas is a vg.Canvas that draws nothing, for measuring a block.
+type nopCanvas struct{}
+
+func (nopCanvas) SetLineWidth(vg.Length)                 {}
+func (nopCanvas) SetLineDash([]vg.Length, vg.Length)     {}
+func (nopCanvas) SetColor(color.Color)                   {}
+func (nopCanvas) Rotate(float64)                         {}
+func (nopCanvas) Translate(vg.Point)                     {}
+func (nopCanvas) Scale(float64, float64)                 {}
+func (nopCanvas) Push()                                  {}
+func (nopCanvas) Pop()                                   {}
+func (nopCanvas) Stroke(vg.Path)                         {}
+func (nopCanvas) Fill(vg.Path)                           {}
+func (nopCanvas) FillString(font.Face, vg.Point, string) {}
+func (nopCanvas) DrawImage(vg.Rectangle, image.Image)    {}
 
 func drawHeader(p pen, in *Input, x, y, w vg.Length) vg.Length {
 	title := in.Title
@@ -399,7 +420,7 @@ func drawPanels(p pen, in *Input, x, y, w vg.Length) vg.Length {
 	pw := (w - 2*gap) / n
 	fh := sans(bodySize, true)
 	fc := sans(smallSize, false)
-	side := pw
+	side := pw * PanelAspect
 	bottom := y
 	for k := 0; k < n; k++ {
 		px := x + vg.Length(k)*(pw+gap)
@@ -522,17 +543,22 @@ func plotFonts(pl *plot.Plot) {
 type logTicks struct{}
 
 func (logTicks) Ticks(min, max float64) []plot.Tick {
+	label := func(v float64) string { return strings.Replace(fmt.Sprintf("%g", v), "e+0", "e", 1) }
+	// Over less than two decades label 2 and 5 times the powers of ten too.
+	few := math.Log10(max/min) < 2
 	var ts []plot.Tick
 	for e := math.Floor(math.Log10(min)); e <= math.Ceil(math.Log10(max)); e++ {
 		v := math.Pow(10, e)
-		if v < min*0.999 || v > max*1.001 {
-			continue
-		}
-		ts = append(ts, plot.Tick{Value: v, Label: strings.Replace(fmt.Sprintf("%g", v), "e+0", "e", 1)})
-		for m := 2.0; m < 10; m++ {
-			if mv := m * v; mv <= max && mv >= min {
-				ts = append(ts, plot.Tick{Value: mv})
+		for m := 1.0; m < 10; m++ {
+			mv := m * v
+			if mv < min*0.999 || mv > max*1.001 {
+				continue
 			}
+			t := plot.Tick{Value: mv}
+			if m == 1 || (few && (m == 2 || m == 5)) {
+				t.Label = label(mv)
+			}
+			ts = append(ts, t)
 		}
 	}
 	return ts
@@ -605,7 +631,7 @@ func curvePlot(title, xlabel, ylabel string, pts []CurvePoint, threshold float64
 }
 
 func drawPlots(p pen, in *Input, x, y, w vg.Length) vg.Length {
-	const h = 165
+	const h = 128
 	pw := (w - gap) / 2
 	unit := doseUnit(in)
 	dvh := curvePlot("Target dose-volume histogram", "dose ("+unit+", log)", "volume >= dose (%)", in.DVH, in.Facts.Threshold, review.ColorTarget, "target")
@@ -618,19 +644,22 @@ func drawPlots(p pen, in *Input, x, y, w vg.Length) vg.Length {
 	return y + h
 }
 
-func drawTables(p pen, in *Input, x, y, w vg.Length) vg.Length {
+// drawTables draws the sonication table and the quality summary side by
+// side, keeping both above bottom: rows and notes that do not fit are
+// counted in a last line instead (the metrics files hold them all).
+func drawTables(p pen, in *Input, x, y, w, bottom vg.Length) vg.Length {
 	tw := w * 0.64
 	qx := x + tw + gap
 	qw := w - tw - gap
-	yt := drawSonications(p, in, x, y, tw)
-	yq := drawQuality(p, in, qx, y, qw)
+	yt := drawSonications(p, in, x, y, tw, bottom)
+	yq := drawQuality(p, in, qx, y, qw, bottom)
 	return vg.Length(math.Max(float64(yt), float64(yq)))
 }
 
-// maxRows is the number of sonication rows the page has room for.
-const maxRows = 12
+// minRows is the number of sonication rows shown however full the page.
+const minRows = 4
 
-func drawSonications(p pen, in *Input, x, y, w vg.Length) vg.Length {
+func drawSonications(p pen, in *Input, x, y, w, bottom vg.Length) vg.Length {
 	y = p.heading(x, y, w, "Sonications")
 	fh := sans(smallSize, true)
 	fb := sans(smallSize, false)
@@ -639,8 +668,8 @@ func drawSonications(p pen, in *Input, x, y, w vg.Length) vg.Length {
 		width float64 // fraction of w
 		right bool
 	}{
-		{"#", 0.05, true}, {"label", 0.25, false}, {"frames", 0.09, true}, {"peak °C", 0.10, true},
-		{"+lethal mL", 0.13, true}, {"+coverage", 0.12, true}, {"outside mL", 0.13, true}, {"flagged", 0.11, true},
+		{"#", 0.05, true}, {"label", 0.29, false}, {"frames", 0.09, true}, {"peak °C", 0.10, true},
+		{"+lethal mL", 0.12, true}, {"+coverage", 0.12, true}, {"outside mL", 0.12, true}, {"flagged", 0.11, true},
 	}
 	xs := make([]vg.Length, len(cols)+1)
 	xs[0] = x
@@ -662,9 +691,10 @@ func drawSonications(p pen, in *Input, x, y, w vg.Length) vg.Length {
 		return p.text(x, y, fb, colFaint, "no sonications")
 	}
 	rh := fb.Extents().Height
+	rows := max(minRows, int((bottom-y)/rh))
 	for r, s := range in.Sonications {
-		if r == maxRows && len(in.Sonications) > maxRows+1 {
-			y = p.text(x, y, fb, colFaint, fmt.Sprintf("... %d more sonications in the metrics file", len(in.Sonications)-maxRows))
+		if r == rows-1 && len(in.Sonications) > rows {
+			y = p.text(x, y, fb, colFaint, fmt.Sprintf("... %s in the metrics files", plural(len(in.Sonications)-r, "more sonication")))
 			break
 		}
 		if r%2 == 1 {
@@ -689,7 +719,7 @@ func drawSonications(p pen, in *Input, x, y, w vg.Length) vg.Length {
 	return y
 }
 
-func drawQuality(p pen, in *Input, x, y, w vg.Length) vg.Length {
+func drawQuality(p pen, in *Input, x, y, w, bottom vg.Length) vg.Length {
 	y = p.heading(x, y, w, "Thermometry quality")
 	q := in.Quality
 	fl := sans(smallSize, false)
@@ -697,18 +727,27 @@ func drawQuality(p pen, in *Input, x, y, w vg.Length) vg.Length {
 	y = p.kv(x, y, w, fl, fv, [][2]string{
 		{"frames analysed", fmt.Sprintf("%d", q.Frames)},
 		{"frames flagged", fmt.Sprintf("%d", q.Flagged)},
-		{"largest motion (1 − r)", num(q.MaxMotion, 3)},
+		{"largest motion index", num(q.MaxMotion, 3) + " (1 − correlation)"},
 		{"largest drift", num(q.MaxDriftC, 2) + " °C"},
 		{"lowest SNR", num(q.MinSNR, 0)},
 		{"suspected phase wraps", fmt.Sprintf("%d", q.Wraps)},
 		{"invalidated voxels", fmt.Sprintf("%d voxel-frames", q.Invalid)},
 	})
+	lh := fl.Extents().Height
 	for n, note := range q.Notes {
-		if n == 4 {
-			y = p.text(x, y, fl, colFaint, fmt.Sprintf("... %d more notes", len(q.Notes)-4))
+		lines := wrap(fl, "- "+note, w)
+		// Room for this note and, unless it is the last, a closing line.
+		need := vg.Length(len(lines)) * lh
+		if n < len(q.Notes)-1 {
+			need += lh
+		}
+		if y+need > bottom {
+			y = p.text(x, y, fl, colFaint, fmt.Sprintf("... %s in the metrics JSON", plural(len(q.Notes)-n, "more note")))
 			break
 		}
-		y = p.para(x, y, w, fl, colInk, "- "+note)
+		for _, l := range lines {
+			y = p.text(x, y, fl, colInk, l)
+		}
 	}
 	return y
 }
@@ -743,19 +782,27 @@ func drawMethods(p pen, in *Input, x, y, w vg.Length) vg.Length {
 	return p.text(x+lw, y, fv, colInk, sw)
 }
 
-func drawFoot(p pen, in *Input, x, y, w vg.Length) {
-	cautions := in.Cautions
-	if len(cautions) == 0 {
-		cautions = DefaultCautions
-	}
+// footLines returns the wrapped lines of the cautions box.
+func footLines(in *Input, w vg.Length) []string {
 	f := sans(smallSize, false)
-	fb := sans(smallSize, true)
 	var lines []string
-	for _, c := range cautions {
+	for _, c := range in.cautions() {
 		lines = append(lines, wrap(f, c, w-12)...)
 	}
-	lh := f.Extents().Height
-	h := fb.Extents().Height + vg.Length(len(lines))*lh + 6
+	return lines
+}
+
+// footHeight returns the height of the cautions box.
+func footHeight(in *Input, w vg.Length) vg.Length {
+	fb, f := sans(smallSize, true), sans(smallSize, false)
+	return fb.Extents().Height + vg.Length(len(footLines(in, w)))*f.Extents().Height + 6
+}
+
+func drawFoot(p pen, in *Input, x, y, w vg.Length) {
+	f := sans(smallSize, false)
+	fb := sans(smallSize, true)
+	lines := footLines(in, w)
+	h := footHeight(in, w)
 	// Anchor the cautions to the bottom margin when there is room.
 	if yb := PageHeight - margin - h; yb > y {
 		y = yb
@@ -768,10 +815,20 @@ func drawFoot(p pen, in *Input, x, y, w vg.Length) {
 	}
 }
 
-// imageBounds is a helper for tests and callers that want the panel size
-// in pixels at a given resolution.
-func panelPixels(dpi float64) image.Point {
+// PanelAspect is the height of an image panel over its width.
+const PanelAspect = 0.82
+
+// PanelSize returns the size in pixels of one image panel of the page at
+// dpi, so panels can be rendered at the page's own resolution.
+func PanelSize(dpi float64) image.Point {
 	w := (PageWidth - 2*margin - 2*gap) / 3
-	n := int(w.Dots(dpi))
-	return image.Pt(n, n)
+	return image.Pt(int(w.Dots(dpi)), int((w * PanelAspect).Dots(dpi)))
+}
+
+// plural returns "1 thing" or "n things".
+func plural(n int, thing string) string {
+	if n == 1 {
+		return "1 " + thing
+	}
+	return fmt.Sprintf("%d %ss", n, thing)
 }

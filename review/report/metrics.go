@@ -90,7 +90,7 @@ func (in *Input) Metrics() []Metric {
 	q := in.Quality
 	add("quality.frames", float64(q.Frames), "count")
 	add("quality.flagged_frames", float64(q.Flagged), "count")
-	add("quality.max_motion", q.MaxMotion, "1-r")
+	add("quality.max_motion", q.MaxMotion, "1")
 	add("quality.max_drift_c", q.MaxDriftC, "°C")
 	add("quality.min_snr", q.MinSNR, "1")
 	add("quality.suspected_wraps", float64(q.Wraps), "count")
@@ -136,6 +136,7 @@ type MetricsDocument struct {
 	Metrics       []Metric        `json:"metrics"`
 	DVH           []jsonPoint     `json:"target_dvh"`
 	Coverage      []jsonPoint     `json:"coverage_vs_threshold"`
+	QualityNotes  []string        `json:"quality_notes"`
 	Analysis      json.RawMessage `json:"analysis,omitempty"` // the analysis' own JSON, verbatim
 	Cautions      []string        `json:"cautions"`
 }
@@ -183,8 +184,9 @@ func (in *Input) Document() *MetricsDocument {
 		Settings: append([]Setting{}, in.Methods...),
 		Metrics:  in.Metrics(),
 		DVH:      curve(in.DVH), Coverage: curve(in.CoverageVsThreshold),
-		Analysis: in.Analysis,
-		Cautions: in.cautions(),
+		QualityNotes: append([]string{}, in.Quality.Notes...),
+		Analysis:     in.Analysis,
+		Cautions:     in.cautions(),
 	}
 	if !in.ReviewDate.IsZero() {
 		d.ReviewDate = in.ReviewDate.UTC().Format(time.RFC3339)

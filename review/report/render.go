@@ -8,6 +8,7 @@ import (
 	"image"
 	"image/png"
 	"io"
+	"time"
 
 	"gonum.org/v1/plot/vg/vgimg"
 )
@@ -45,9 +46,14 @@ func RenderPNG(w io.Writer, in *Input, dpi int) error {
 	if title == "" {
 		title = "Thermal dose coverage review"
 	}
+	created := ""
+	if !in.ReviewDate.IsZero() {
+		created = in.ReviewDate.UTC().Format(time.RFC1123) // PNG 1.2, 11.3.4.2: RFC 1123 form
+	}
 	out, err := addPNGChunks(buf.Bytes(), dpi, [][2]string{
 		{"Title", title + " - " + in.CaseLabel},
 		{"Software", in.Software},
+		{"Creation Time", created},
 		{"Disclaimer", "For retrospective review, QA and teaching; not a planning or treatment system."},
 	})
 	if err != nil {

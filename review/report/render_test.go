@@ -12,6 +12,8 @@ import (
 	"regexp"
 	"strings"
 	"testing"
+
+	"gonum.org/v1/plot/vg/recorder"
 )
 
 var update = flag.Bool("update", false, "rewrite the golden images in testdata/")
@@ -64,7 +66,8 @@ func comparePixels(t *testing.T, got image.Image, path string, tol int, maxFrac 
 	}
 	frac := float64(bad) / float64(b.Dx()*b.Dy())
 	if frac > maxFrac {
-		out := filepath.Join(t.TempDir(), "diff.png")
+		// Kept after the test (outside its temporary folder) for inspection.
+		out := filepath.Join(os.TempDir(), "dosecover-"+strings.TrimSuffix(filepath.Base(path), ".png")+"-diff.png")
 		var buf bytes.Buffer
 		png.Encode(&buf, diff)
 		os.WriteFile(out, buf.Bytes(), 0o644)
@@ -232,4 +235,59 @@ func blockMean(img image.Image, x0, y0, n int) float64 {
 		}
 	}
 	return s / float64(n*n)
+}
+
+// TestLayoutFitsLongCase renders a case with far more sonications and
+// quality notes than the page holds: every text stays inside the page
+// margins, the cautions are drawn once, and the rows and notes left out
+// are counted.
+func TestLayoutFitsLongCase(t *testing.T) {
+	in := sampleInput()
+	for n := len(in.Sonications) + 1; n <= 40; n++ {
+		in.Sonications = append(in.Sonications, SonicationRow{Number: n, Label: fmt.Sprintf("sonication %d", n), PeakC: 55, PeakDose: 500})
+	}
+	for n := 0; n < 25; n++ {
+		in.Quality.Notes = append(in.Quality.Notes, fmt.Sprintf("sonication %d frame 4: motion: magnitude correlation with baseline 0.80 below 0.90, frame left out of the dose", n+1))
+	}
+	rec := &recorder.Canvas{}
+	if err := Render(rec, in); err != nil {
+		t.Fatal(err)
+	}
+	var cautions, moreRows, moreNotes int
+	// Text drawn in a transformed frame (the plots' rotated axis labels)
+	// has frame coordinates: follow transforms through Push and Pop.
+	transformed := []bool{false}
+	for _, a := range rec.Actions {
+		top := len(transformed) - 1
+		switch a.(type) {
+		case *recorder.Push:
+			transformed = append(transformed, transformed[top])
+			continue
+		case *recorder.Pop:
+			transformed = transformed[:top]
+			continue
+		case *recorder.Rotate, *recorder.Translate, *recorder.Scale:
+			transformed[top] = true
+			continue
+		}
+		fs, ok := a.(*recorder.FillString)
+		if !ok || transformed[top] {
+			continue
+		}
+		// Baselines between the bottom margin and the top margin (A4, 12 mm).
+		if fs.Point.Y < margin || fs.Point.Y > PageHeight-margin || fs.Point.X < margin-1 || fs.Point.X > PageWidth-margin {
+			t.Errorf("text %q at %v lies outside the page margins", fs.String, fs.Point)
+		}
+		switch {
+		case fs.String == "Cautions":
+			cautions++
+		case strings.HasPrefix(fs.String, "... ") && strings.Contains(fs.String, "more sonications"):
+			moreRows++
+		case strings.HasPrefix(fs.String, "... ") && strings.Contains(fs.String, "more notes"):
+			moreNotes++
+		}
+	}
+	if cautions != 1 || moreRows != 1 || moreNotes != 1 {
+		t.Errorf("cautions drawn %d times, row count line %d, note count line %d; want 1 each", cautions, moreRows, moreNotes)
+	}
 }

@@ -1,0 +1,110 @@
+//go:build cgo
+
+package main
+
+import (
+	"fmt"
+	"path/filepath"
+	"strings"
+	"time"
+	"unicode"
+
+	"dosecover/dosemap/safefile"
+	"dosecover/review"
+	"dosecover/review/report"
+
+	"fyne.io/fyne/v2"
+	"fyne.io/fyne/v2/dialog"
+)
+
+// exportReport asks for a folder and writes the one-page report (PNG and
+// PDF) and the metrics (JSON, CSV) of the current review there. In
+// teaching mode the files carry no identity: a neutral label, no scan date,
+// generic sonication labels, and neutral file names.
+func (rw *reviewWindow) exportReport() {
+	raw, _ := rw.resultRaw()
+	if raw == nil || rw.loaded == nil {
+		dialog.ShowInformation("Export report", "There is no analysis to export yet.", rw.win)
+		return
+	}
+	d := dialog.NewFolderOpen(func(u fyne.ListableURI, err error) {
+		if err != nil {
+			rw.showError("The folder could not be opened", err)
+			return
+		}
+		if u != nil {
+			rw.writeReport(u.Path())
+		}
+	}, rw.win)
+	d.SetConfirmText("Export here")
+	d.Resize(fyne.NewSize(800, 560))
+	d.Show()
+}
+
+func (rw *reviewWindow) resultRaw() (*review.Result, bool) {
+	if rw.result == nil {
+		return nil, false
+	}
+	r, ok := rw.result.Raw.(*review.Result)
+	return r, ok
+}
+
+// reportBase is the file name stem of the exported files.
+func (rw *reviewWindow) reportBase() string {
+	label := rw.caseName()
+	if rw.teaching {
+		label = report.DeidentifiedLabel(rw.loaded.Case.Label, rw.hash)
+	}
+	var b strings.Builder
+	for _, r := range label {
+		switch {
+		case unicode.IsLetter(r) || unicode.IsDigit(r) || r == '-' || r == '_' || r == '.':
+			b.WriteRune(r)
+		default:
+			b.WriteRune('_')
+		}
+	}
+	return strings.Trim(b.String(), "._") + "-dose-review"
+}
+
+// writeReport renders and writes the report into dir off the UI goroutine.
+func (rw *reviewWindow) writeReport(dir string) {
+	raw, _ := rw.resultRaw()
+	base := filepath.Join(dir, rw.reportBase())
+	out := report.Outputs{PNG: base + ".png", PDF: base + ".pdf", JSON: base + ".json", CSV: base + ".csv"}
+	for _, p := range []string{out.PNG, out.PDF, out.JSON, out.CSV} {
+		if err := safefile.CheckOutside(rw.loaded.Dir, p); err != nil {
+			rw.exported.Add(1)
+			rw.showError("The report was not written", err)
+			return
+		}
+	}
+	var reviewer, signoff string
+	if n := len(rw.record.SignOffs); n > 0 {
+		s := rw.record.SignOffs[n-1]
+		reviewer = s.Reviewer
+		signoff = fmt.Sprintf("signed off %s", s.Time.Format("2006-01-02 15:04 UTC"))
+	}
+	opt := report.Options{
+		Deidentify: rw.teaching, Reviewer: reviewer, SignOff: signoff,
+		ReviewDate: time.Now().UTC().Truncate(time.Second), InputsSHA256: rw.hash,
+		Thermometry: thermometryOptions(rw.settings),
+	}
+	c, caseDir := rw.loaded.Case, rw.loaded.Dir
+	rw.status.SetText("Writing the report…")
+	go func() {
+		in, err := report.FromResult(c, raw, opt)
+		if err == nil {
+			err = report.Write(in, caseDir, out)
+		}
+		fyne.Do(func() {
+			if err != nil {
+				rw.exported.Add(1)
+				rw.showError("The report was not written", err)
+				return
+			}
+			rw.status.SetText("Wrote " + rw.displayPath(out.PNG) + " and its .pdf, .json and .csv")
+			rw.exported.Add(1)
+		})
+	}()
+}
