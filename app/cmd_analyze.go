@@ -46,7 +46,7 @@ func runAnalyze(args []string, stdout, stderr io.Writer) int {
 	}
 	pos, err := parseArgs(fs, args)
 	if err != nil {
-		return 2
+		return parseFailed(err)
 	}
 	if len(pos) != 1 {
 		fmt.Fprintf(stderr, "dosecover analyze: one case folder expected, got %d arguments\n", len(pos))

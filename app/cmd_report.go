@@ -47,7 +47,7 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	}
 	pos, err := parseArgs(fs, args)
 	if err != nil {
-		return 2
+		return parseFailed(err)
 	}
 	if len(pos) != 1 {
 		fmt.Fprintf(stderr, "dosecover report: one case folder expected, got %d arguments\n", len(pos))

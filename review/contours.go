@@ -11,6 +11,7 @@ import (
 	"strings"
 
 	"dosecover/dosemap"
+	"dosecover/dosemap/safefile"
 )
 
 // ContourFormat is the value of the "format" field of a dosecover contour
@@ -127,7 +128,7 @@ func ReadContours(r io.Reader, name string) ([]dosemap.Structure, string, error)
 func ReadContourFile(path string) ([]dosemap.Structure, string, error) {
 	f, err := os.Open(path)
 	if err != nil {
-		return nil, "", fmt.Errorf("reading contours: %w", err)
+		return nil, "", &safefile.PathError{What: "contour file", Path: path, Err: err}
 	}
 	defer f.Close()
 	return ReadContours(f, path)
@@ -183,9 +184,15 @@ func WriteOutside(path, caseDir string, write func(io.Writer) error) error {
 	if write == nil {
 		return nil
 	}
+	if err := safefile.CheckDir("output folder", filepath.Dir(path)); err != nil {
+		return err
+	}
+	if write == nil {
+		return nil
+	}
 	tmp, err := os.CreateTemp(filepath.Dir(path), "."+filepath.Base(path)+"-*.tmp")
 	if err != nil {
-		return err
+		return &safefile.PathError{What: "output folder", Path: filepath.Dir(path), Err: err}
 	}
 	defer os.Remove(tmp.Name())
 	if err := write(tmp); err != nil {

@@ -15,6 +15,7 @@ import (
 
 	"dosecover/dosemap"
 	"dosecover/dosemap/dicomio"
+	"dosecover/dosemap/safefile"
 	"dosecover/review"
 )
 
@@ -32,7 +33,7 @@ func LoadSettings(path string) (review.Settings, error) {
 	}
 	b, err := os.ReadFile(path)
 	if err != nil {
-		return s, fmt.Errorf("reading settings: %w", err)
+		return s, &safefile.PathError{What: "settings file", Path: path, Err: err}
 	}
 	d := json.NewDecoder(bytes.NewReader(b))
 	d.DisallowUnknownFields()
