@@ -78,8 +78,8 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 			fmt.Fprintf(stderr, "dosecover report: %v\n", err)
 			return 1
 		}
-		if fi, err := os.Stat(filepath.Dir(p)); err != nil || !fi.IsDir() {
-			fmt.Fprintf(stderr, "dosecover report: cannot write %s: folder %s does not exist\n", p, filepath.Dir(p))
+		if err := safefile.CheckDir("output folder", filepath.Dir(p)); err != nil {
+			fmt.Fprintf(stderr, "dosecover report: cannot write %s: %v\n", p, err)
 			return 1
 		}
 	}

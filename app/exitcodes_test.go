@@ -67,7 +67,7 @@ func TestExitCodes(t *testing.T) {
 		{"analyze no folder", []string{"analyze"}, 2, "one case folder expected"},
 		{"analyze missing folder", []string{"analyze", missing}, 1, "does not exist"},
 		{"analyze json into missing folder", []string{"analyze", good, "--json", filepath.Join(missing, "r.json")}, 1, "absent"},
-		{"analyze json under a file", []string{"analyze", good, "--json", filepath.Join(file, "r.json")}, 1, "plain.txt"},
+		{"analyze json under a file", []string{"analyze", good, "--json", filepath.Join(file, "r.json")}, 1, "plain.txt: is a file, not a folder"},
 		{"analyze unknown target", []string{"analyze", good, "--target", "Nothing"}, 1, `"Nothing"`},
 		{"analyze missing contour file", []string{"analyze", good, "--contours", filepath.Join(tmp, "none.json")}, 1, "none.json"},
 
@@ -76,7 +76,7 @@ func TestExitCodes(t *testing.T) {
 		{"report dpi too low", []string{"report", good, "-o", out("r.png"), "--dpi", "10"}, 2, "--dpi 10"},
 		{"report bad model", []string{"report", good, "-o", out("r.png"), "--model", "x"}, 2, "--model"},
 		{"report into missing folder", []string{"report", good, "-o", filepath.Join(missing, "r.png")}, 1, "absent"},
-		{"report under a file", []string{"report", good, "--csv", filepath.Join(file, "m.csv")}, 1, "plain.txt"},
+		{"report under a file", []string{"report", good, "--csv", filepath.Join(file, "m.csv")}, 1, "plain.txt: is a file, not a folder"},
 		{"report missing case", []string{"report", missing, "--json", out("m.json")}, 1, "does not exist"},
 
 		// deidentify
@@ -84,7 +84,8 @@ func TestExitCodes(t *testing.T) {
 		{"deidentify bad dates", []string{"deidentify", good, out("d1"), "--dates", "blur"}, 2, "--dates"},
 		{"deidentify shift without shift mode", []string{"deidentify", good, out("d2"), "--dates", "remove", "--shift-days", "-400"}, 2, "--shift-days"},
 		{"deidentify into non-empty folder", []string{"deidentify", good, nonEmpty}, 1, "not empty"},
-		{"deidentify onto a file", []string{"deidentify", good, file}, 1, "plain.txt"},
+		{"deidentify onto a file", []string{"deidentify", good, file}, 1, "plain.txt: is a file, not a folder"},
+		{"deidentify under a file", []string{"deidentify", good, filepath.Join(file, "d")}, 1, "a part of the path is a file"},
 		{"deidentify missing case", []string{"deidentify", missing, out("d3")}, 1, "does not exist"},
 
 		// demo
@@ -102,6 +103,7 @@ func TestExitCodes(t *testing.T) {
 		{"audit missing input", []string{"audit", missing, "-o", out("a3")}, 2, "does not exist"},
 		{"audit missing settings", []string{"audit", good, "-o", out("a4"), "--settings", filepath.Join(tmp, "none.json")}, 2, "none.json"},
 		{"audit no case", []string{"audit", nonEmpty, "-o", out("a5")}, 1, "no case found"},
+		{"audit output under a file", []string{"audit", good, "-o", filepath.Join(file, "a")}, 1, "a part of the path is a file"},
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			code, stdout, stderr := runCmd(c.args...)

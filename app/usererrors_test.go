@@ -4,6 +4,7 @@ package main
 
 import (
 	"crypto/rand"
+	"encoding/binary"
 	"os"
 	"path/filepath"
 	"strings"
@@ -74,6 +75,11 @@ func badInputs() []badInput {
 			replaceFile(t, fs[0], b)
 			return dir
 		}, []string{"IM0001.dcm"}, true},
+		{"file that crashes the DICOM parser", func(t *testing.T, good string) string {
+			dir := cloneCase(t, good)
+			replaceFile(t, filesIn(t, dir, "anatomy")[0], crashingDICOM())
+			return dir
+		}, []string{"IM0001.dcm", "malformed DICOM data"}, true},
 		{"no ImagePositionPatient in one file", edit("anatomy", first, dropTags(tag.ImagePositionPatient)), []string{"IM0001.dcm", "ImagePositionPatient"}, false},
 		{"no ImagePositionPatient in the anatomy", edit("anatomy", all, dropTags(tag.ImagePositionPatient)), []string{"ImagePositionPatient"}, true},
 		{"no PixelSpacing in one file", edit("anatomy", first, dropTags(tag.PixelSpacing)), []string{"IM0001.dcm", "PixelSpacing"}, false},
@@ -169,4 +175,23 @@ func auditInput(in string) string {
 		return filepath.Dir(in)
 	}
 	return in
+}
+
+// crashingDICOM returns a file on which the DICOM library
+// (github.com/suyashkumar/dicom v1.1.0) panics: its file meta information
+// holds an empty TransferSyntaxUID (0002,0010). See also
+// dosemap/dicomio's TestParserPanicIsAFileError.
+func crashingDICOM() []byte {
+	el := func(group, elem uint16, vr string, v []byte) []byte {
+		b := binary.LittleEndian.AppendUint16(nil, group)
+		b = binary.LittleEndian.AppendUint16(b, elem)
+		b = append(b, vr...)
+		b = binary.LittleEndian.AppendUint16(b, uint16(len(v)))
+		return append(b, v...)
+	}
+	ts := el(0x0002, 0x0010, "UI", nil)
+	b := append(make([]byte, 128), "DICM"...)
+	b = append(b, el(0x0002, 0x0000, "UL", binary.LittleEndian.AppendUint32(nil, uint32(len(ts))))...)
+	b = append(b, ts...)
+	return append(b, el(0x0008, 0x0060, "CS", []byte("MR"))...)
 }

@@ -2,7 +2,6 @@ package review
 
 import (
 	"encoding/json"
-	"errors"
 	"fmt"
 	"io"
 	"math"
@@ -173,16 +172,13 @@ func WriteContourFile(path, caseDir string, structures []dosemap.Structure, fram
 // write only checks the location and writes nothing.
 func WriteOutside(path, caseDir string, write func(io.Writer) error) error {
 	if caseDir != "" {
-		inside, err := within(path, caseDir)
+		inside, err := safefile.Within(caseDir, path)
 		if err != nil {
 			return err
 		}
 		if inside {
 			return fmt.Errorf("the file would lie inside the case folder %s, which dosecover does not modify; choose another folder", caseDir)
 		}
-	}
-	if write == nil {
-		return nil
 	}
 	if err := safefile.CheckDir("output folder", filepath.Dir(path)); err != nil {
 		return err
@@ -207,43 +203,4 @@ func WriteOutside(path, caseDir string, write func(io.Writer) error) error {
 		return err
 	}
 	return os.Rename(tmp.Name(), path)
-}
-
-// within reports whether path lies in or below dir, resolving symbolic
-// links of the existing parts.
-func within(path, dir string) (bool, error) {
-	real := func(p string) (string, error) {
-		p, err := filepath.Abs(p)
-		if err != nil {
-			return "", err
-		}
-		// Resolve the longest existing prefix.
-		rest := ""
-		for {
-			if r, err := filepath.EvalSymlinks(p); err == nil {
-				return filepath.Join(r, rest), nil
-			} else if !errors.Is(err, os.ErrNotExist) {
-				return "", err
-			}
-			parent := filepath.Dir(p)
-			if parent == p {
-				return filepath.Join(p, rest), nil
-			}
-			rest = filepath.Join(filepath.Base(p), rest)
-			p = parent
-		}
-	}
-	p, err := real(path)
-	if err != nil {
-		return false, err
-	}
-	d, err := real(dir)
-	if err != nil {
-		return false, err
-	}
-	rel, err := filepath.Rel(d, p)
-	if err != nil {
-		return false, nil
-	}
-	return rel == "." || (rel != ".." && !strings.HasPrefix(rel, ".."+string(filepath.Separator))), nil
 }

@@ -82,6 +82,9 @@ func Folder(ctx context.Context, srcDir, dstDir string, opt Options, progress fu
 	if in, err := safefile.Within(dstDir, srcDir); err == nil && in {
 		return nil, fmt.Errorf("refusing to write into %s: it contains the case folder %s", dstDir, srcDir)
 	}
+	if fi, err := os.Stat(dstDir); err == nil && !fi.IsDir() {
+		return nil, &safefile.PathError{What: "output folder", Path: dstDir, Err: safefile.ErrNotFolder}
+	}
 	if ents, err := os.ReadDir(dstDir); err == nil {
 		if len(ents) > 0 {
 			return nil, fmt.Errorf("output folder %s is not empty: give a new or empty folder", dstDir)

@@ -163,9 +163,9 @@ func corrupted(c *Case, inv *dicomio.Inventory) error {
 	case 0:
 		return nil
 	case 1:
-		return fmt.Errorf("unreadable file %s", bad[0])
+		return fmt.Errorf("cannot use file %s", bad[0])
 	}
-	return fmt.Errorf("unreadable file %s (and %d more)", bad[0], len(bad)-1)
+	return fmt.Errorf("cannot use file %s (and %d more)", bad[0], len(bad)-1)
 }
 
 // MetricsOf returns the summary figures of a Result: fractions in percent,
