@@ -48,8 +48,22 @@ func (fi *fileInfo) decodeFrame(frame int, dst []float32, a, b float64) {
 			}
 			return
 		}
-		for n := range dst {
-			dst[n] = float32(value(uint32(bo.Uint16(raw[2*n:]))>>shift, ext, signed)*a + b)
+		// General 16-bit case (BitsStored < 16, HighBit, byte order),
+		// without an interface call per pixel.
+		lo, hi := 0, 1
+		if fi.BigEndian {
+			lo, hi = 1, 0
+		}
+		if signed {
+			for n := range dst {
+				u := (uint32(raw[2*n+lo]) | uint32(raw[2*n+hi])<<8) >> shift << ext
+				dst[n] = float32(float64(int32(u)>>ext)*a + b)
+			}
+		} else {
+			for n := range dst {
+				u := (uint32(raw[2*n+lo]) | uint32(raw[2*n+hi])<<8) >> shift << ext
+				dst[n] = float32(float64(u>>ext)*a + b)
+			}
 		}
 	case 4:
 		for n := range dst {

@@ -214,12 +214,19 @@ func VariedSession(n int, seed uint64) *Session {
 			continue
 		}
 		if num == spill {
-			// Beyond the lesion sideways (x), staying inside the slab.
-			dir := dosemap.Vec3{1, 0, 0}
+			// Beyond the lesion sideways (x), staying inside the slab: 5–8 mm
+			// past the lesion surface on the spot's own row, so the focus
+			// always lands outside the target and beyond a 3 mm margin.
+			sign := 1.0
 			if s.Planned[k][0] < centre[0] {
-				dir[0] = -1
+				sign = -1
 			}
-			miss := s.Planned[k].Add(dir.Unit().Scale(u(9, 12)))
+			a := lesion.SemiAxes
+			dy := (s.Planned[k][1] - lesion.Center[1]) / a[1]
+			dz := (s.Planned[k][2] - lesion.Center[2]) / a[2]
+			edge := a[0] * math.Sqrt(math.Max(0, 1-dy*dy-dz*dz))
+			miss := s.Planned[k]
+			miss[0] = lesion.Center[0] + sign*(edge+u(5, 8))
 			s.Sonications = append(s.Sonications, SonicationSpec{Planned: num, Focus: miss, Power: power, Duration: demoDuration, Cooling: demoCooling, Spill: true})
 		}
 		s.Sonications = append(s.Sonications, SonicationSpec{Planned: num, Focus: s.Planned[k], Power: power, Duration: demoDuration, Cooling: demoCooling})

@@ -7,6 +7,7 @@ import (
 	"os"
 	"path/filepath"
 	"strings"
+	"time"
 )
 
 // tempPrefix starts the name of every temporary file the package writes;
@@ -51,8 +52,10 @@ func writeAtomic(p string, fill func(w io.Writer) error) (err error) {
 }
 
 // removeTemps removes the temporary files an earlier, killed run left below
-// dir (only names made by writeAtomic).
-func removeTemps(dir string) error {
+// dir (only names made by writeAtomic) that were last written more than
+// age ago; age 0 removes them all.
+func removeTemps(dir string, age time.Duration) error {
+	cutoff := time.Now().Add(-age)
 	err := filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {
 		if err != nil {
 			if os.IsNotExist(err) {
@@ -60,8 +63,17 @@ func removeTemps(dir string) error {
 			}
 			return err
 		}
-		if !d.IsDir() && strings.HasPrefix(d.Name(), tempPrefix) && strings.HasSuffix(d.Name(), ".tmp") {
-			return os.Remove(p)
+		if d.IsDir() || !strings.HasPrefix(d.Name(), tempPrefix) || !strings.HasSuffix(d.Name(), ".tmp") {
+			return nil
+		}
+		if age > 0 {
+			fi, err := d.Info()
+			if err != nil || fi.ModTime().After(cutoff) {
+				return nil
+			}
+		}
+		if err := os.Remove(p); err != nil && !os.IsNotExist(err) {
+			return err
 		}
 		return nil
 	})

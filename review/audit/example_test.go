@@ -71,3 +71,26 @@ func ExampleShard() {
 	// registry/case-005 in shard 2/3
 	// registry/case-006 in shard 2/3
 }
+
+// ExampleLoadSettings reads an audit's settings file: keys left out keep
+// the defaults of the coverage analysis.
+func ExampleLoadSettings() {
+	dir, _ := os.MkdirTemp("", "audit-settings")
+	defer os.RemoveAll(dir)
+	p := filepath.Join(dir, "brain.json")
+	os.WriteFile(p, []byte(`{"threshold": 100, "margin_mm": 2}`), 0o644)
+	s, err := audit.LoadSettings(p)
+	if err != nil {
+		fmt.Println(err)
+		return
+	}
+	for _, c := range audit.SettingsColumns(s) {
+		fmt.Printf("%s=%s\n", c.Name, c.Value)
+	}
+	// Output:
+	// model=cem43
+	// threshold=100
+	// margin_mm=2
+	// trials=50
+	// seed=1
+}

@@ -109,6 +109,7 @@ func (x Num) cell() string {
 // IncompleteError marks a case that lacks inputs the analysis needs.
 type IncompleteError struct{ Reason string }
 
+// Error returns "incomplete case: " and the reason.
 func (e *IncompleteError) Error() string { return "incomplete case: " + e.Reason }
 
 // Incomplete returns an error marking an incomplete case (missing

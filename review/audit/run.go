@@ -59,6 +59,7 @@ type Config struct {
 // while running); a command line turns it into exit code 2.
 type UsageError struct{ Msg string }
 
+// Error returns the message.
 func (e *UsageError) Error() string { return e.Msg }
 
 // Row is one case of the summary table.
@@ -177,7 +178,14 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 	if err := os.MkdirAll(filepath.Join(outDir, "cases"), 0o755); err != nil {
 		return sum, &safefile.PathError{What: "creating output folder", Path: cfg.OutDir, Err: err}
 	}
-	if err := removeTemps(outDir); err != nil {
+	// Leftovers of a killed run. Shards may run at the same time into one
+	// output folder, so a shard removes only leftovers too old to belong to
+	// a write in progress (every write takes seconds).
+	age := time.Duration(0)
+	if cfg.Shard.Count > 1 {
+		age = staleTemp
+	}
+	if err := removeTemps(outDir, age); err != nil {
 		return sum, err
 	}
 	var index map[string]*Record
@@ -292,6 +300,10 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 	}
 	return sum, nil
 }
+
+// staleTemp is the age beyond which a sharded run removes temporary files
+// left in the output folder.
+const staleTemp = 10 * time.Minute
 
 // worker holds what every case of a run shares.
 type worker struct {

@@ -228,6 +228,25 @@ func TestResumeAfterInterrupt(t *testing.T) {
 	// A killed run may leave a temporary file; the next run removes it.
 	writeFiles(t, out, map[string][]byte{"cases/in__case-009/" + tempPrefix + "case.json.123.tmp": []byte(`{"cas`)})
 
+	// A shard running at the same time into the same folder may be writing
+	// a temporary file: a sharded run leaves recent ones alone.
+	recent := filepath.Join(out, "cases", "in__case-008", tempPrefix+"report.txt.456.tmp")
+	writeFiles(t, out, map[string][]byte{"cases/in__case-008/" + tempPrefix + "report.txt.456.tmp": []byte("partial")})
+	if err := removeTemps(out, staleTemp); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := os.Stat(recent); err != nil {
+		t.Errorf("a recent temporary file was removed by a sharded run: %v", err)
+	}
+	long := time.Now().Add(-2 * staleTemp)
+	os.Chtimes(recent, long, long)
+	if err := removeTemps(out, staleTemp); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := os.Stat(recent); !os.IsNotExist(err) {
+		t.Errorf("a stale temporary file was kept: %v", err)
+	}
+
 	second := newFileCounter()
 	cfg.Analyzer, cfg.Progress, cfg.Resume = second.analyze, nil, true
 	sum, err = Run(context.Background(), cfg)

@@ -93,7 +93,8 @@ func analysisOf(t *testing.T, dir string) *review.Result {
 // thermometry file overwritten by garbage and a copy of another without its
 // RTSTRUCT. The ten must be analysed and agree with their truth: target
 // volume, every resolvable true hole met by a reported hole, every spill
-// sonication seen as lethal dose outside the margin attributed to it. The
+// sonication whose focus lies outside the target seen as lethal dose
+// outside the margin attributed to a spill sonication. The
 // two damaged copies are reported as failed and incomplete.
 func TestAuditSimulatedCases(t *testing.T) {
 	if testing.Short() {
@@ -153,6 +154,7 @@ func TestAuditSimulatedCases(t *testing.T) {
 			t.Skipf("the analysis of this build cannot compute dose from thermometry: %s", r.Reason)
 		}
 	}
+	spillsChecked := 0
 	for _, tr := range truths {
 		r := rows["registry__"+tr.Label]
 		if r.Status != StatusOK {
@@ -170,8 +172,19 @@ func TestAuditSimulatedCases(t *testing.T) {
 		// 1.2 mm grid, the analysis from thermometry images (1.25 × 1.25 ×
 		// 3.5 mm, noise), which average the focal peaks down: logged for
 		// comparison, not asserted.
-		t.Logf("%s: coverage %.3f (truth %.3f), %d holes, %.0f mm³ beyond the margin (truth %.0f), spills %v",
-			tr.Label, res.CoveredFractionOfTarget, tr.CoveredFraction, len(res.Holes), 1000*res.OutsideMarginLethalML, tr.LethalOutsideMM3, tr.Spill)
+		t.Logf("%s: coverage %.3f (bioheat truth %.3f, noiseless thermometry %.3f), %d holes, %.0f mm³ beyond the margin (truth %.0f, noiseless thermometry %.0f), spills %v",
+			tr.Label, res.CoveredFractionOfTarget, tr.CoveredFraction, tr.Measured.CoveredFraction, len(res.Holes),
+			1000*res.OutsideMarginLethalML, tr.LethalOutsideMM3, tr.Measured.LethalOutsideMM3, tr.Spill)
+		// What the images can show: the simulator's own CEM43 of its
+		// noiseless thermometry frames, counted per thermometry voxel whose
+		// centre lies in the lesion. The analysis sees noise and drift,
+		// corrects them, and weighs boundary voxels by the part of them
+		// inside the contours on a finer grid, where the dose is lowest;
+		// 6 percentage points allow for both (judgement; the demo agrees
+		// to about 1 point, the varied cases to 1–5).
+		if d := res.CoveredFractionOfTarget - tr.Measured.CoveredFraction; math.Abs(d) > 0.06 {
+			t.Errorf("%s: covered fraction %.3f, noiseless thermometry gives %.3f", tr.Label, res.CoveredFractionOfTarget, tr.Measured.CoveredFraction)
+		}
 		// Holes where the truth has them: every true under-dosed region of
 		// at least 50 mm³ (about nine thermometry voxels, so it can be
 		// resolved; judgement) must meet a reported hole: centroids closer
@@ -193,15 +206,39 @@ func TestAuditSimulatedCases(t *testing.T) {
 				t.Errorf("%s: no reported hole meets the true hole at %v (%.0f mm³)", tr.Label, th.Center, th.VolumeMM3)
 			}
 		}
-		// Spills: a spill sonication shows as lethal dose beyond the
-		// margin, its largest cluster attributed to a spill sonication.
-		if len(tr.Spill) > 0 {
+		// Spills: a spill sonication whose focus lies outside the target
+		// (the lesion ellipsoid of the truth) shows as lethal dose beyond
+		// the margin, the largest cluster attributed to a spill
+		// sonication. A sonication the truth marks as a spill although its
+		// focus lies inside the target is logged, not required.
+		lesion := tr.Phantom.Lesion
+		outside := false
+		for _, so := range tr.Sonications {
+			if !so.Spill {
+				continue
+			}
+			var level float64 // Σ((p−c)/a)², above 1 outside the ellipsoid
+			for i := range 3 {
+				d := (so.Focus[i] - lesion.Center[i]) / lesion.SemiAxes[i]
+				level += d * d
+			}
+			if level <= 1 {
+				t.Logf("%s: sonication %d is marked as a spill but its focus %v lies inside the target", tr.Label, so.Number, so.Focus)
+				continue
+			}
+			outside = true
+		}
+		if outside {
+			spillsChecked++
 			if len(res.OutsideClusters) == 0 {
 				t.Errorf("%s: spill sonication %v but no lethal dose outside the margin", tr.Label, tr.Spill)
 			} else if !slices.Contains(tr.Spill, res.OutsideClusters[0].Sonication) {
 				t.Errorf("%s: largest cluster beyond the margin from sonication %d, truth spills %v", tr.Label, res.OutsideClusters[0].Sonication, tr.Spill)
 			}
 		}
+	}
+	if spillsChecked == 0 {
+		t.Error("no simulated case has a spill outside the target: the spill check tested nothing")
 	}
 	if len(readCSV(t, filepath.Join(out, "summary.csv"))) != 13 {
 		t.Error("summary.csv does not hold 12 rows")

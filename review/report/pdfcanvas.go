@@ -195,8 +195,14 @@ func (c *pdfCanvas) DrawImage(rect vg.Rectangle, img image.Image) {
 	c.images++
 	name := fmt.Sprintf("image%03d", c.images)
 	c.doc.RegisterImageOptionsReader(name, opt, &buf)
+	// fpdf places images in its own top-down page space; the user space here
+	// points up, so flip it about the rectangle's top edge first.
 	sz := rect.Size()
-	c.doc.ImageOptions(name, c.unit(rect.Min.X), c.unit(rect.Min.Y), c.unit(sz.X), c.unit(sz.Y), false, opt, 0, "")
+	c.Push()
+	c.Translate(vg.Point{X: rect.Min.X, Y: rect.Max.Y})
+	c.Scale(1, -1)
+	c.doc.ImageOptions(name, 0, 0, c.unit(sz.X), c.unit(sz.Y), false, opt, 0, "")
+	c.Pop()
 }
 
 // writeTo closes the page and writes the document.

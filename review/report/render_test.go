@@ -180,7 +180,13 @@ func TestPDFOnePageWithText(t *testing.T) {
 // for font rasterisation.
 func TestPDFMatchesPNGLayout(t *testing.T) {
 	ppm := pdfTool(t, "pdftoppm")
-	in := sampleInput()
+	_, _, phantom := phantomInput(t, false)
+	for name, in := range map[string]*Input{"sample": sampleInput(), "phantom": phantom} {
+		t.Run(name, func(t *testing.T) { comparePDFAndPNG(t, ppm, in) })
+	}
+}
+
+func comparePDFAndPNG(t *testing.T, ppm string, in *Input) {
 	dir := t.TempDir()
 	var buf bytes.Buffer
 	if err := RenderPDF(&buf, in); err != nil {

@@ -92,6 +92,9 @@ func samplePanel(kind int) *image.RGBA {
 			if rr := math.Hypot(dx, dy); math.Abs(rr-28) < 1 {
 				c = review.ColorTarget
 			}
+			if y < 16 && x < n/2 {
+				c = color.RGBA{255, 255, 255, 255} // marks the top left: a flip shows
+			}
 			img.SetRGBA(x, y, c)
 		}
 	}
