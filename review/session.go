@@ -144,7 +144,15 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 	}
 	tgt := c.Target()
 	if tgt == nil {
-		return nil, fmt.Errorf("case %q has no target structure (load a contour file or mark a structure as target)", c.Label)
+		have := "no structures"
+		if len(c.Structures) > 0 {
+			names := make([]string, len(c.Structures))
+			for n, st := range c.Structures {
+				names[n] = fmt.Sprintf("%q (%s)", st.Name, st.Role)
+			}
+			have = "structures: " + strings.Join(names, ", ")
+		}
+		return nil, fmt.Errorf("case %q has no target structure (%s); load a contour file or choose the structure to use as the target", c.Label, have)
 	}
 	if !(s.MarginMM >= 0) || s.MarginMM > LargestMarginMM {
 		return nil, fmt.Errorf("margin %g mm: want 0 to %g mm", s.MarginMM, LargestMarginMM)

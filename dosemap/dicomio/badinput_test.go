@@ -99,3 +99,51 @@ func TestParserPanicIsAFileError(t *testing.T) {
 		}
 	}
 }
+
+// TestUnreadableFileIsSkipped: a file the user may not read is listed as
+// skipped with the reason, and the rest of the folder is read. A process
+// running as root reads it anyway, so the test skips there.
+func TestUnreadableFileIsSkipped(t *testing.T) {
+	if os.Geteuid() == 0 {
+		t.Skip("running as root: file permissions do not stop reading")
+	}
+	dir := t.TempDir()
+	p := filepath.Join(dir, "locked.dcm")
+	if err := os.WriteFile(p, crashingFile(), 0o000); err != nil {
+		t.Fatal(err)
+	}
+	inv, err := Scan(context.Background(), dir, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(inv.Skipped) != 1 || inv.Skipped[0].Path != "locked.dcm" || inv.Skipped[0].Reason != "cannot read: permission denied" {
+		t.Errorf("skipped %+v, want locked.dcm: cannot read: permission denied", inv.Skipped)
+	}
+}
+
+// TestUnreadableFolderIsListed: a sub-folder the user may not read is
+// listed among the skipped entries with the reason (not silently left
+// out). Skipped when running as root, which reads it anyway.
+func TestUnreadableFolderIsListed(t *testing.T) {
+	if os.Geteuid() == 0 {
+		t.Skip("running as root: folder permissions do not stop reading")
+	}
+	dir := t.TempDir()
+	sub := filepath.Join(dir, "series2")
+	if err := os.Mkdir(sub, 0o755); err != nil {
+		t.Fatal(err)
+	}
+	os.WriteFile(filepath.Join(sub, "x.dcm"), crashingFile(), 0o644)
+	if err := os.Chmod(sub, 0o000); err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(func() { os.Chmod(sub, 0o755) })
+	inv, err := Scan(context.Background(), dir, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := "series2" + string(filepath.Separator)
+	if len(inv.Skipped) != 1 || inv.Skipped[0].Path != want || !strings.Contains(inv.Skipped[0].Reason, "permission denied") {
+		t.Errorf("skipped %+v, want %s with permission denied", inv.Skipped, want)
+	}
+}

@@ -13,6 +13,7 @@ import (
 
 	"dosecover/dosemap"
 
+	"dosecover/dosemap/safefile"
 	"github.com/suyashkumar/dicom"
 	"github.com/suyashkumar/dicom/pkg/tag"
 )
@@ -185,7 +186,7 @@ func looksLikeDICOM(data []byte) bool {
 func readFile(path string, pixels bool) (fi *fileInfo, err error) {
 	data, err := os.ReadFile(path)
 	if err != nil {
-		return nil, skip("cannot read: %v", err)
+		return nil, skip("cannot read: %s", safefile.Reason(err))
 	}
 	// readBytes recovers panics of the DICOM library; this second guard
 	// keeps any other failure on one file from stopping the whole case.

@@ -118,16 +118,28 @@ func (o LoadOptions) workers() int {
 // listFiles returns the regular files under dir (following symbolic links
 // to files), sorted by path.
 func listFiles(dir string) ([]string, error) {
+	out, _, err := walkCase(dir)
+	return out, err
+}
+
+// walkCase returns the regular files under dir (following symbolic links
+// to files), sorted by path, and the sub-folders that could not be read,
+// as skipped entries with the reason (their path relative to dir ends in
+// a separator).
+func walkCase(dir string) ([]string, []SkippedFile, error) {
 	if err := safefile.CheckDir("case folder", dir); err != nil {
-		return nil, err
+		return nil, nil, err
 	}
 	var out []string
+	var unreadable []SkippedFile
 	err := filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {
 		if err != nil {
 			if p == dir {
 				return err
 			}
-			return nil // unreadable sub-folder: skipped below
+			rel, _ := filepath.Rel(dir, p)
+			unreadable = append(unreadable, SkippedFile{Path: rel + string(filepath.Separator), Reason: "folder cannot be read (" + safefile.Reason(err) + "); the files in it are not used"})
+			return nil
 		}
 		if d.IsDir() {
 			return nil
@@ -143,10 +155,10 @@ func listFiles(dir string) ([]string, error) {
 		return nil
 	})
 	if err != nil {
-		return nil, &safefile.PathError{What: "reading case folder", Path: dir, Err: err}
+		return nil, nil, &safefile.PathError{What: "reading case folder", Path: dir, Err: err}
 	}
 	sort.Strings(out)
-	return out, nil
+	return out, unreadable, nil
 }
 
 // readAll reads paths with n workers; fn is called once per path (from the
@@ -197,7 +209,7 @@ feed:
 }
 
 func scan(ctx context.Context, dir string, opt LoadOptions, progress func(done, total int)) (*caseReader, error) {
-	paths, err := listFiles(dir)
+	paths, unreadable, err := walkCase(dir)
 	if err != nil {
 		return nil, err
 	}
@@ -213,7 +225,7 @@ func scan(ctx context.Context, dir string, opt LoadOptions, progress func(done, 
 	cr.inv.Series = []SeriesInfo{}
 	cr.inv.Sonications = []SonicationInfo{}
 	cr.inv.Structures = []StructureInfo{}
-	cr.inv.Skipped = []SkippedFile{}
+	cr.inv.Skipped = append([]SkippedFile{}, unreadable...)
 	cr.inv.Problems = []string{}
 	cr.assemble(paths, infos, errs)
 	return cr, nil
