@@ -60,7 +60,7 @@ func ReadContours(r io.Reader, name string) ([]dosemap.Structure, string, error)
 	dec := json.NewDecoder(r)
 	dec.DisallowUnknownFields()
 	if err := dec.Decode(&f); err != nil {
-		return nil, "", fmt.Errorf("reading contours %s: %w", name, err)
+		return nil, "", fmt.Errorf("reading contours %s: %s", name, jsonProblem(err))
 	}
 	if f.Format != ContourFormat {
 		return nil, "", fmt.Errorf("reading contours %s: format %q is not %q", name, f.Format, ContourFormat)

@@ -31,6 +31,11 @@ const MaxMarginMM = 20.0
 // LargestMarginMM is the largest margin dosecover analyses.
 const LargestMarginMM = 50.0
 
+// MaxTrials is the largest number of Monte Carlo trials an analysis runs;
+// the 5th-95th percentile band is stable long before (common practice: a
+// few hundred trials), and more only costs time.
+const MaxTrials = 10000
+
 // maxAnalysisVoxels bounds the analysis grid (about 1.5 GB of working
 // memory).
 const maxAnalysisVoxels = 40_000_000
@@ -355,8 +360,8 @@ func (s *Session) checkSettings(set Settings) error {
 	if set.doseModel() != s.prepared.doseModel() || !reflect.DeepEqual(normThermometry(set.Thermometry), normThermometry(s.prepared.Thermometry)) {
 		return errors.New("dose model parameters or thermometry options differ from those this session was prepared with; prepare it again")
 	}
-	if set.Trials < 0 {
-		return fmt.Errorf("%d Monte Carlo trials: want 0 or more", set.Trials)
+	if set.Trials < 0 || set.Trials > MaxTrials {
+		return fmt.Errorf("%d Monte Carlo trials: want 0 to %d", set.Trials, MaxTrials)
 	}
 	left := len(s.sons)
 	for _, e := range set.Excluded {
@@ -367,7 +372,11 @@ func (s *Session) checkSettings(set Settings) error {
 			}
 		}
 		if !found {
-			return fmt.Errorf("excluded sonication %d does not exist (sonications %v)", e, s.Sonications())
+			nums := make([]string, 0, len(s.sons))
+			for _, n := range s.Sonications() {
+				nums = append(nums, strconv.Itoa(n))
+			}
+			return fmt.Errorf("excluded sonication %d does not exist (the case has sonications %s)", e, strings.Join(nums, ", "))
 		}
 		left--
 	}
