@@ -65,7 +65,7 @@ func badInputs() []badInput {
 				replaceFile(t, fs[n], data[:cut])
 			}
 			return dir
-		}, []string{"IM0005.dcm", "truncated"}, true},
+		}, []string{"IM0001.dcm: empty file", "IM0005.dcm: truncated", "IM0008.dcm: no pixel data although its SOP class is MR Image Storage: the file is probably truncated"}, true},
 		{"garbage after preamble", func(t *testing.T, good string) string {
 			dir := cloneCase(t, good)
 			fs := filesIn(t, dir, "anatomy")

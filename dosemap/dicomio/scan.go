@@ -257,6 +257,10 @@ func (cr *caseReader) assemble(paths []string, infos []*fileInfo, errs []error) 
 			cr.structs = append(cr.structs, fi.Structures)
 			cr.structFis = append(cr.structFis, fi)
 		}
+		if name, ok := imageStorage[fi.SOPClass]; ok && !fi.IsImage {
+			inv.Skipped = append(inv.Skipped, SkippedFile{Path: cr.rel(fi.Path), Reason: "no pixel data although its SOP class is " + name + ": the file is probably truncated"})
+			continue
+		}
 		if fi.SeriesUID == "" && fi.SOPClass == "1.2.840.10008.1.3.10" {
 			inv.Skipped = append(inv.Skipped, SkippedFile{Path: cr.rel(fi.Path), Reason: "DICOM directory (DICOMDIR): an index of files, not used (the folder is searched instead)"})
 			continue
@@ -727,4 +731,15 @@ func andMore(n int) string {
 		return ""
 	}
 	return fmt.Sprintf(", and %d more", n)
+}
+
+// imageStorage names the image SOP classes (PS3.4 B.5) whose files must
+// carry pixel data (PS3.3 C.7.6.3, Type 1 in these IODs; RT Dose is left
+// out: its pixel data is conditional).
+var imageStorage = map[string]string{
+	"1.2.840.10008.5.1.4.1.1.4":   "MR Image Storage",
+	"1.2.840.10008.5.1.4.1.1.4.1": "Enhanced MR Image Storage",
+	"1.2.840.10008.5.1.4.1.1.2":   "CT Image Storage",
+	"1.2.840.10008.5.1.4.1.1.2.1": "Enhanced CT Image Storage",
+	"1.2.840.10008.5.1.4.1.1.7":   "Secondary Capture Image Storage",
 }
