@@ -81,6 +81,7 @@ func runAnalyze(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "dosecover analyze: %s cannot be analysed: %s\n", dir, inv.NotReviewable)
 		return 1
 	}
+	warnInventory(stderr, "analyze", inv)
 	if err := sf.apply(c); err != nil {
 		fmt.Fprintf(stderr, "dosecover analyze: %v\n", err)
 		return 1

@@ -94,6 +94,7 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "dosecover report: %s is not a reviewable case: %s\n", dir, inv.NotReviewable)
 		return 1
 	}
+	warnInventory(stderr, "report", inv)
 	if err := sf.apply(c); err != nil {
 		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
 		return 1

@@ -119,6 +119,16 @@ func badInputs() []badInput {
 // no raw error reaches the user and that the messages name the problem.
 func TestBadInputMessages(t *testing.T) {
 	good := smallCase(t)
+	// What analyze must say on standard error besides its figures: an
+	// analysis of an incomplete case must not look complete.
+	analyzeSays := map[string]string{
+		"truncated files":                                        "warning: 7 files of",
+		"no PixelSpacing in a thermometry series":                "warning: 88 files of",
+		"duplicated slice positions":                             "warning: series #2",
+		"RTSTRUCT without target":                                `has no target structure (structures: "Target" (avoid), "Avoid tube" (avoid))`,
+		"thermometry without MagneticFieldStrength and EchoTime": "sonication 2 (Thermometry sonication 2): PRF thermometry needs the field strength B0",
+		"RTSTRUCT in another frame of reference":                 "warning: frame of reference mismatch",
+	}
 	for _, bi := range badInputs() {
 		t.Run(bi.name, func(t *testing.T) {
 			in := bi.make(t, good)
@@ -146,6 +156,9 @@ func TestBadInputMessages(t *testing.T) {
 				}
 				if bad := rawMessage(msg); len(bad) > 0 {
 					t.Errorf("%s: raw error text %q in:\n%s", args[0], bad, msg)
+				}
+				if want := analyzeSays[bi.name]; args[0] == "analyze" && want != "" && !strings.Contains(stderr, want) {
+					t.Errorf("analyze: standard error does not say %q:\n%s", want, stderr)
 				}
 				if args[0] == "inspect" {
 					for _, n := range bi.names {

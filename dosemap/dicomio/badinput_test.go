@@ -147,3 +147,25 @@ func TestUnreadableFolderIsListed(t *testing.T) {
 		t.Errorf("skipped %+v, want %s with permission denied", inv.Skipped, want)
 	}
 }
+
+// TestInventoryWarnings: skipped DICOM files are summarised with the first
+// reasons, files that are not DICOM only counted, problems passed on.
+func TestInventoryWarnings(t *testing.T) {
+	for _, c := range []struct {
+		name string
+		inv  Inventory
+		want []string
+	}{
+		{"clean", Inventory{Dir: "c", Skipped: []SkippedFile{{"notes.txt", "not a DICOM file (no DICM marker)"}}}, nil},
+		{"one file", Inventory{Dir: "c", Skipped: []SkippedFile{{"a/1.dcm", "missing tag PixelSpacing (0028,0030)"}}},
+			[]string{"1 files of c were not used: a/1.dcm: missing tag PixelSpacing (0028,0030)"}},
+		{"many files and a problem", Inventory{Dir: "c", Problems: []string{"frame of reference mismatch"}, Skipped: []SkippedFile{
+			{"1.dcm", "r1"}, {"2.dcm", "r2"}, {"x.txt", "not a DICOM file"}, {"3.dcm", "r3"}, {"4.dcm", "r4"}}},
+			[]string{"4 files of c were not used: 1.dcm: r1; 2.dcm: r2; 3.dcm: r3; and 1 more (dosecover inspect lists them all) (1 other files are not DICOM)", "frame of reference mismatch"}},
+	} {
+		got := c.inv.Warnings()
+		if strings.Join(got, "|") != strings.Join(c.want, "|") {
+			t.Errorf("%s:\n got %q\nwant %q", c.name, got, c.want)
+		}
+	}
+}
