@@ -6,6 +6,7 @@ import (
 	"encoding/binary"
 	"os"
 	"path/filepath"
+	"runtime"
 	"strings"
 	"testing"
 
@@ -167,5 +168,34 @@ func TestInventoryWarnings(t *testing.T) {
 		if strings.Join(got, "|") != strings.Join(c.want, "|") {
 			t.Errorf("%s:\n got %q\nwant %q", c.name, got, c.want)
 		}
+	}
+}
+
+// TestLargeNonDICOMFileIsNotRead: a large file that is not DICOM (here a
+// sparse 3 GiB file of zeros, which takes no disk space) is skipped from
+// its first bytes; reading it whole would need 3 GiB of memory.
+func TestLargeNonDICOMFileIsNotRead(t *testing.T) {
+	dir := t.TempDir()
+	f, err := os.Create(filepath.Join(dir, "recording.mp4"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := f.Truncate(3 << 30); err != nil {
+		f.Close()
+		t.Skipf("cannot make a sparse file here: %v", err)
+	}
+	f.Close()
+	var before, after runtime.MemStats
+	runtime.ReadMemStats(&before)
+	inv, err := Scan(context.Background(), dir, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	runtime.ReadMemStats(&after)
+	if len(inv.Skipped) != 1 || !strings.HasPrefix(inv.Skipped[0].Reason, "not a DICOM file") {
+		t.Errorf("skipped %+v", inv.Skipped)
+	}
+	if grown := after.TotalAlloc - before.TotalAlloc; grown > 64<<20 {
+		t.Errorf("scanning allocated %d MiB for one non-DICOM file", grown>>20)
 	}
 }

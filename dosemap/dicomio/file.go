@@ -184,6 +184,13 @@ func looksLikeDICOM(data []byte) bool {
 // bytes are kept in fileInfo.Pixels. Panics inside the DICOM library are
 // recovered and reported as an unreadable file.
 func readFile(path string, pixels bool) (fi *fileInfo, err error) {
+	// Look at the start first, so that a large file that is not DICOM (a
+	// video, an archive) is never read into memory whole.
+	if head, err := readHead(path, 132); err != nil {
+		return nil, skip("cannot read: %s", safefile.Reason(err))
+	} else if len(head) > 0 && !looksLikeDICOM(head) {
+		return nil, skip("not a DICOM file (no DICM marker and no DICOM element at the start)")
+	}
 	data, err := os.ReadFile(path)
 	if err != nil {
 		return nil, skip("cannot read: %s", safefile.Reason(err))
@@ -579,4 +586,19 @@ func frameTimeOf(es elems) clockTime {
 		return clockTime{Day: date, Sec: s, OK: true}
 	}
 	return clockTime{Day: -1}
+}
+
+// readHead returns up to n bytes from the start of the file at path.
+func readHead(path string, n int) ([]byte, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, err
+	}
+	defer f.Close()
+	b := make([]byte, n)
+	m, err := io.ReadFull(f, b)
+	if err == io.EOF || err == io.ErrUnexpectedEOF {
+		err = nil
+	}
+	return b[:m], err
 }
