@@ -13,6 +13,8 @@ import (
 	"sort"
 	"strconv"
 	"strings"
+
+	"dosecover/dosemap/safefile"
 )
 
 // Case is one treatment session found below an input folder.
@@ -65,12 +67,8 @@ func Discover(inputs []string) (cases []Case, problems []string, err error) {
 		if err != nil {
 			return nil, nil, fmt.Errorf("input folder %s: %w", in, err)
 		}
-		fi, err := os.Stat(abs)
-		if err != nil {
-			return nil, nil, fmt.Errorf("input folder %s: %w", in, err)
-		}
-		if !fi.IsDir() {
-			return nil, nil, fmt.Errorf("input %s is not a folder", in)
+		if err := safefile.CheckDir("input folder", in); err != nil {
+			return nil, nil, err
 		}
 		if seen[abs] {
 			continue
