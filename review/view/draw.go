@@ -96,8 +96,14 @@ func (c *canvas) capsule(ax, ay, bx, by, hw float64) {
 			px := float64(x) + 0.5 - ax
 			t := 0.0
 			if l2 > 0 {
+				// Clamped to [0, 1] with branches: math.Max and math.Min
+				// are calls on this hot path.
 				t = (px*dx + py*dy) / l2
-				t = math.Max(0, math.Min(1, t))
+				if t < 0 {
+					t = 0
+				} else if t > 1 {
+					t = 1
+				}
 			}
 			ex, ey := px-t*dx, py-t*dy
 			d2 := ex*ex + ey*ey
