@@ -112,13 +112,13 @@ var auditColumns = []auditColumn{
 	{"largest hole mL", 124, func(r audit.Row) string { return mlCell(r.Metrics.LargestHoleML) }, func(r audit.Row) float64 { return numKey(r.Metrics.LargestHoleML) }},
 	{"lethal outside margin mL", 184, func(r audit.Row) string { return mlCell(r.Metrics.OutsideMarginML) }, func(r audit.Row) float64 { return numKey(r.Metrics.OutsideMarginML) }},
 	{"avoid lethal mL", 124, func(r audit.Row) string { return mlCell(r.Metrics.AvoidLethalML) }, func(r audit.Row) float64 { return numKey(r.Metrics.AvoidLethalML) }},
-	{"flags", 300, func(r audit.Row) string {
+	{"flags", 260, func(r audit.Row) string {
 		if len(r.Flags) == 0 {
 			return ""
 		}
 		return strings.Join(r.Flags, "; ")
 	}, nil},
-	{"reason", 420, func(r audit.Row) string { s, _, _ := strings.Cut(r.Reason, "\n"); return s }, nil},
+	{"reason", 380, func(r audit.Row) string { s, _, _ := strings.Cut(r.Reason, "\n"); return s }, nil},
 }
 
 // auditView is the audit window.
