@@ -23,6 +23,7 @@ import (
 	"dosecover/review/audit"
 
 	"fyne.io/fyne/v2"
+	"fyne.io/fyne/v2/canvas"
 	"fyne.io/fyne/v2/container"
 	"fyne.io/fyne/v2/dialog"
 	"fyne.io/fyne/v2/storage"
@@ -128,16 +129,18 @@ type auditView struct {
 	openCase func(dir string)                                         // opens a case folder in the review window
 	current  func() (s review.Settings, describe string, note string) // settings of the review window
 
-	inputs    []string
-	inputList *widget.List
-	inputSel  int
-	outEntry  *widget.Entry
-	workers   *widget.Entry
-	resume    *widget.Check
-	deid      *widget.Check
-	source    *widget.RadioGroup
-	fileEntry *widget.Entry
-	settInfo  *widget.Label
+	inputs     []string
+	inputList  *widget.List
+	inputEntry *widget.Entry
+	noInput    *widget.Label
+	inputSel   int
+	outEntry   *widget.Entry
+	workers    *widget.Entry
+	resume     *widget.Check
+	deid       *widget.Check
+	source     *widget.RadioGroup
+	fileEntry  *widget.Entry
+	settInfo   *widget.Label
 
 	runBtn    *widget.Button
 	cancelBtn *widget.Button
@@ -151,6 +154,7 @@ type auditView struct {
 	sortDesc bool
 	selected int // index into rows; -1 none
 	selInfo  *widget.Label
+	noRows   *widget.Label
 	openBtn  *widget.Button
 	repBtn   *widget.Button
 
@@ -239,8 +243,16 @@ func (av *auditView) build() {
 			av.removeInput(av.inputSel)
 		}
 	})
-	inputs := container.NewBorder(nil, nil, nil, container.NewVBox(addBtn, removeBtn),
-		container.NewGridWrap(fyne.NewSize(900, 110), av.inputList))
+	av.inputEntry = widget.NewEntry()
+	av.inputEntry.SetPlaceHolder("type or paste a folder path and press Enter, use Add folder…, or drop folders on this window")
+	av.inputEntry.OnSubmitted = av.typedInput
+	av.noInput = widget.NewLabel("No input folder yet. A folder holding DICOM files is one case; otherwise each of its subfolders holding DICOM files is one.")
+	av.noInput.Importance = widget.LowImportance
+	av.noInput.Wrapping = fyne.TextWrapWord
+	listBack := canvas.NewRectangle(theme.Color(theme.ColorNameInputBackground))
+	listBack.CornerRadius = theme.InputRadiusSize()
+	inputs := container.NewBorder(av.inputEntry, nil, nil, container.NewVBox(addBtn, removeBtn),
+		container.NewGridWrap(fyne.NewSize(900, 104), container.NewStack(listBack, av.inputList, av.noInput)))
 
 	av.outEntry = widget.NewEntry()
 	av.outEntry.SetPlaceHolder("folder for the results (created when missing; not inside an input folder)")
@@ -306,7 +318,11 @@ func (av *auditView) build() {
 
 	top := container.NewVBox(form, runRow, av.message, widget.NewSeparator())
 	bottom := container.NewVBox(actions, caution)
-	av.win.SetContent(container.NewBorder(top, bottom, nil, nil, av.table))
+	av.noRows = widget.NewLabel("No cases yet: choose the folders and press Run audit, or open an existing audit.")
+	av.noRows.Importance = widget.LowImportance
+	av.win.SetContent(container.NewBorder(top, bottom, nil, nil,
+		container.NewStack(av.table, container.NewCenter(av.noRows))))
+	av.win.SetOnDropped(av.dropped)
 	av.describeSettings()
 }
 
@@ -319,13 +335,49 @@ func (av *auditView) addInput(dir string) {
 		}
 	}
 	av.inputs = append(av.inputs, dir)
+	av.noInput.Hide()
 	av.inputList.Refresh()
+}
+
+// typedInput adds the folder typed into the path entry.
+func (av *auditView) typedInput(text string) {
+	p := strings.TrimSpace(text)
+	if p == "" {
+		return
+	}
+	fi, err := os.Stat(p)
+	switch {
+	case err != nil:
+		av.showMessage("Input folder "+p+": "+err.Error(), true)
+		return
+	case !fi.IsDir():
+		av.showMessage("Input "+p+" is not a folder.", true)
+		return
+	}
+	av.showMessage("", false)
+	av.addInput(p)
+	av.inputEntry.SetText("")
+}
+
+// dropped adds folders dropped on the window as input folders.
+func (av *auditView) dropped(_ fyne.Position, items []fyne.URI) {
+	for _, u := range items {
+		if u.Scheme() != "file" {
+			continue
+		}
+		if fi, err := os.Stat(u.Path()); err == nil && fi.IsDir() {
+			av.addInput(u.Path())
+		}
+	}
 }
 
 func (av *auditView) removeInput(n int) {
 	av.inputs = append(av.inputs[:n], av.inputs[n+1:]...)
 	av.inputList.UnselectAll()
 	av.inputSel = -1
+	if len(av.inputs) == 0 {
+		av.noInput.Show()
+	}
 	av.inputList.Refresh()
 }
 
@@ -668,11 +720,21 @@ func (av *auditView) resort() {
 			return ta < tb
 		})
 	}
+	if len(av.rows) == 0 {
+		av.noRows.Show()
+	} else {
+		av.noRows.Hide()
+	}
 	av.selected = -1
 	for n, r := range av.rows {
 		if r.Case == sel && sel != "" {
 			av.selected = n
 		}
+	}
+	if av.selected >= 0 {
+		av.table.Select(widget.TableCellID{Row: av.selected, Col: 0})
+	} else if sel != "" {
+		av.table.UnselectAll()
 	}
 	av.table.Refresh()
 }

@@ -249,7 +249,7 @@ func (rw *reviewWindow) mainMenu() *fyne.MainMenu {
 		fyne.NewMenuItem("Open folder…", rw.chooseFolder),
 		fyne.NewMenuItem("Open the demo case", func() { rw.openDemo() }),
 		recent,
-		fyne.NewMenuItem("Audit many cases…", rw.openAuditView),
+		fyne.NewMenuItemSeparator(), fyne.NewMenuItem("Audit many cases…", rw.openAuditView),
 	)
 	rw.fillRecentMenu(recent.ChildMenu)
 	review := fyne.NewMenu("Review",
