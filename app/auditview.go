@@ -88,10 +88,10 @@ func caseLabel(r audit.Row) string {
 }
 
 var auditColumns = []auditColumn{
-	{"case", 220, caseLabel, nil},
+	{"case", 200, caseLabel, nil},
 	{"status", 150, statusWord, nil},
 	{"covered %", 92, func(r audit.Row) string { return pctCell(r.Metrics.CoveragePct) }, func(r audit.Row) float64 { return numKey(r.Metrics.CoveragePct) }},
-	{"p05–p95 %", 112, func(r audit.Row) string {
+	{"p05–p95 %", 104, func(r audit.Row) string {
 		m := r.Metrics
 		if math.IsNaN(float64(m.CoverageP05Pct)) || math.IsNaN(float64(m.CoverageP95Pct)) {
 			return "—"
@@ -99,7 +99,7 @@ var auditColumns = []auditColumn{
 		return fmt.Sprintf("%.1f–%.1f", float64(m.CoverageP05Pct), float64(m.CoverageP95Pct))
 	}, func(r audit.Row) float64 { return numKey(r.Metrics.CoverageP05Pct) }},
 	{"not monitored %", 128, func(r audit.Row) string { return pctCell(r.Metrics.NotMonitoredPct) }, func(r audit.Row) float64 { return numKey(r.Metrics.NotMonitoredPct) }},
-	{"holes", 64, func(r audit.Row) string {
+	{"holes", 60, func(r audit.Row) string {
 		if r.Status != audit.StatusOK {
 			return "—"
 		}
@@ -113,13 +113,24 @@ var auditColumns = []auditColumn{
 	{"largest hole mL", 124, func(r audit.Row) string { return mlCell(r.Metrics.LargestHoleML) }, func(r audit.Row) float64 { return numKey(r.Metrics.LargestHoleML) }},
 	{"lethal outside margin mL", 184, func(r audit.Row) string { return mlCell(r.Metrics.OutsideMarginML) }, func(r audit.Row) float64 { return numKey(r.Metrics.OutsideMarginML) }},
 	{"avoid lethal mL", 124, func(r audit.Row) string { return mlCell(r.Metrics.AvoidLethalML) }, func(r audit.Row) float64 { return numKey(r.Metrics.AvoidLethalML) }},
-	{"flags", 260, func(r audit.Row) string {
+	{"reason", 320, func(r audit.Row) string { s, _, _ := strings.Cut(r.Reason, "\n"); return s }, nil},
+	{"flags", 300, func(r audit.Row) string {
 		if len(r.Flags) == 0 {
 			return ""
 		}
 		return strings.Join(r.Flags, "; ")
 	}, nil},
-	{"reason", 380, func(r audit.Row) string { s, _, _ := strings.Cut(r.Reason, "\n"); return s }, nil},
+}
+
+// columnIndex returns the index of the audit table's column title; -1
+// when there is none.
+func columnIndex(title string) int {
+	for n, c := range auditColumns {
+		if c.title == title {
+			return n
+		}
+	}
+	return -1
 }
 
 // auditView is the audit window.
@@ -218,7 +229,7 @@ func newAuditView(a fyne.App, openCase func(dir string), current func() (review.
 	av := &auditView{app: a, openCase: openCase, current: current, sortCol: -1, selected: -1, inputSel: -1, sources: map[string]string{}}
 	av.win = a.NewWindow("Audit many cases — dosecover " + version)
 	av.build()
-	av.win.Resize(fyne.NewSize(1400, 860))
+	av.win.Resize(fyne.NewSize(1560, 900))
 	return av
 }
 
@@ -251,8 +262,9 @@ func (av *auditView) build() {
 	av.noInput.Wrapping = fyne.TextWrapWord
 	listBack := canvas.NewRectangle(theme.Color(theme.ColorNameInputBackground))
 	listBack.CornerRadius = theme.InputRadiusSize()
+	listBack.SetMinSize(fyne.NewSize(400, 104))
 	inputs := container.NewBorder(av.inputEntry, nil, nil, container.NewVBox(addBtn, removeBtn),
-		container.NewGridWrap(fyne.NewSize(900, 104), container.NewStack(listBack, av.inputList, av.noInput)))
+		container.NewStack(listBack, av.inputList, av.noInput))
 
 	av.outEntry = widget.NewEntry()
 	av.outEntry.SetPlaceHolder("folder for the results (created when missing; not inside an input folder)")
@@ -807,7 +819,7 @@ func (av *auditView) newTable() *widget.Table {
 					c.text.Importance = widget.DangerImportance
 				}
 			}
-			if id.Col == len(auditColumns)-1 && r.Status != audit.StatusOK {
+			if auditColumns[id.Col].title == "reason" && r.Status != audit.StatusOK {
 				c.text.Importance = widget.WarningImportance
 			}
 			c.text.SetText(auditColumns[id.Col].text(r))
