@@ -568,19 +568,7 @@ func (av *auditView) start() {
 			}
 		})
 	}
-	inputs := cfg.Inputs
 	go func() {
-		// Case IDs of a named (not de-identified) run follow from the
-		// folders alone; find them so resumed cases can be opened too.
-		if !cfg.Deidentify {
-			if cases, _, err := audit.Discover(inputs); err == nil {
-				av.mu.Lock()
-				for _, c := range cases {
-					av.sources[c.ID] = c.Dir
-				}
-				av.mu.Unlock()
-			}
-		}
 		sum, err := audit.Run(ctx, cfg)
 		fyne.Do(func() {
 			defer av.finished.Add(1)
@@ -805,6 +793,7 @@ func (av *auditView) newTable() *widget.Table {
 			}
 			r := av.rows[id.Row]
 			c.text.Importance = widget.MediumImportance
+			c.text.TextStyle.Bold = id.Row == av.selected // the whole selected row stands out
 			c.icon.Hide()
 			if id.Col == 1 {
 				c.icon.Show()
@@ -859,8 +848,12 @@ func (av *auditView) newTable() *widget.Table {
 	}
 	t.OnSelected = func(id widget.TableCellID) {
 		if id.Row >= 0 && id.Row < len(av.rows) {
+			prev := av.selected
 			av.selected = id.Row
 			av.updateSelection()
+			if prev != id.Row {
+				av.table.Refresh()
+			}
 		}
 	}
 	return t
