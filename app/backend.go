@@ -4,7 +4,6 @@ package main
 
 import (
 	"context"
-	"errors"
 	"time"
 
 	"dosecover/dosemap"
@@ -15,9 +14,6 @@ import (
 // files gluing in the real packages (backend_*.go) fill the hooks from their
 // init functions; a hook left nil means that part is missing from the build,
 // and the window says so instead of showing anything made up.
-
-// errMissingPart is returned when a hook is not filled in this build.
-var errMissingPart = errors.New("this build of dosecover lacks the part needed for this step")
 
 // skippedFile is a file of the case folder that was not used, with the
 // reader's reason.
@@ -72,6 +68,7 @@ type sonicationRow struct {
 	Offset        float64   // seconds from the first sonication's start
 	Duration      float64   // seconds of thermometry
 	PeakTemp      float64   // °C, highest temperature inside the target (NaN unknown)
+	PeakDose      float64   // highest dose of this sonication alone, model unit
 	DoseAddedML   float64   // mL of tissue newly above the threshold
 	CoverageAdded float64   // fraction of the target newly covered
 	Flags         []string  // quality flags and notes, plain words

@@ -34,8 +34,9 @@ func init() {
 	}
 }
 
-// reviewSettings maps the window's settings onto the analysis settings.
-func reviewSettings(s analysisSettings) review.Settings {
+// reviewSettings maps the window's settings onto the analysis settings of
+// case c (the drawn drift reference becomes a mask on its thermometry grid).
+func reviewSettings(s analysisSettings, c *dosemap.Case) (review.Settings, error) {
 	r := review.DefaultSettings()
 	r.Threshold, r.MarginMM, r.Model = s.Threshold, s.MarginMM, s.Model
 	r.Excluded = append([]int(nil), s.Excluded...)
@@ -49,7 +50,33 @@ func reviewSettings(s analysisSettings) review.Settings {
 		r.Arrhenius = a
 	}
 	r.Thermometry = thermometryOptions(s)
-	return r
+	if s.DriftRef != nil {
+		ref, err := referenceMask(s.DriftRef, c)
+		if err != nil {
+			return r, err
+		}
+		r.Thermometry.Reference = ref
+	}
+	return r, nil
+}
+
+// referenceMask turns a drawn drift reference into the mask the thermometry
+// takes; every sonication must share one grid.
+func referenceMask(rr *refRect, c *dosemap.Case) ([]bool, error) {
+	if c == nil || len(c.Sonications) == 0 {
+		return nil, fmt.Errorf("no thermometry to place the drift reference on")
+	}
+	g := c.Sonications[0].Geometry
+	for _, so := range c.Sonications[1:] {
+		if !so.Geometry.SameGrid(g, 0.01) {
+			return nil, fmt.Errorf("the sonications were acquired on different grids; a drawn drift reference needs one grid (use the automatic reference)")
+		}
+	}
+	m, n := rr.mask(g)
+	if n == 0 {
+		return nil, fmt.Errorf("the drawn drift reference (%.0f × %.0f mm) holds no thermometry voxel; draw it inside the thermometry field of view", rr.W, rr.H)
+	}
+	return m, nil
 }
 
 // reviewSession wraps a prepared review.Session. The temperature series
@@ -65,7 +92,11 @@ type reviewSession struct {
 }
 
 func prepareReview(ctx context.Context, lc *loadedCase, s analysisSettings, progress func(stage string, frac float64)) (session, error) {
-	rs, err := review.Prepare(ctx, lc.Case, reviewSettings(s), progress)
+	set, err := reviewSettings(s, lc.Case)
+	if err != nil {
+		return nil, err
+	}
+	rs, err := review.Prepare(ctx, lc.Case, set, progress)
 	if err != nil {
 		return nil, err
 	}
@@ -80,7 +111,11 @@ func ptr(p *float64) float64 {
 }
 
 func (ss *reviewSession) Analyze(ctx context.Context, s analysisSettings) (*analysisResult, error) {
-	r, err := ss.rs.Analyze(ctx, reviewSettings(s), nil)
+	set, err := reviewSettings(s, ss.c)
+	if err != nil {
+		return nil, err
+	}
+	r, err := ss.rs.Analyze(ctx, set, nil)
 	if err != nil {
 		return nil, err
 	}
@@ -143,7 +178,7 @@ func (ss *reviewSession) Analyze(ctx context.Context, s analysisSettings) (*anal
 		first = ss.c.Sonications[0]
 	}
 	for _, st := range r.Sonications {
-		row := sonicationRow{Number: st.Number, Label: st.Label, PeakTemp: ptr(st.PeakTempC),
+		row := sonicationRow{Number: st.Number, Label: st.Label, PeakTemp: ptr(st.PeakTempC), PeakDose: st.PeakDose,
 			DoseAddedML: st.LethalAddedML, CoverageAdded: st.AddedCoverage, Offset: math.NaN()}
 		if so := ss.sonication(st.Number); so != nil {
 			row.Start = so.Start
@@ -304,7 +339,14 @@ func thermometryOptions(s analysisSettings) dosemap.ThermometryOptions {
 // dose-map sonications), computing them on first use.
 func (ss *reviewSession) temperatures(s analysisSettings) ([]*dosemap.TemperatureSeries, error) {
 	o := thermometryOptions(s)
-	key := fmt.Sprintf("%+v", o)
+	key := fmt.Sprintf("%+v %+v", o, s.DriftRef)
+	if s.DriftRef != nil {
+		ref, err := referenceMask(s.DriftRef, ss.c)
+		if err != nil {
+			return nil, err
+		}
+		o.Reference = ref
+	}
 	ss.mu.Lock()
 	defer ss.mu.Unlock()
 	if ss.seriesKey == key {

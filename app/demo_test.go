@@ -3,44 +3,129 @@
 package main
 
 import (
+	"fmt"
+	"image"
+	"math"
+	"os"
+	"path/filepath"
 	"strings"
+	"sync"
 	"testing"
-	"time"
 
 	"dosecover/dosemap/sim"
+
+	"fyne.io/fyne/v2/test"
 )
 
-// TestDemoOpens opens the built-in demo case as "dosecover" with no
-// arguments does, through the DICOM reader and the analysis, and checks
-// what the metrics panel states against the simulator's own truth file.
-func TestDemoOpens(t *testing.T) {
+var (
+	demoOnce  sync.Once
+	demoDir   string
+	demoTruth *sim.Truth
+	demoErr   error
+)
+
+// freshDemo writes the demo case with the current simulator into a
+// temporary folder, once per test run (the cached copy "dosecover" opens
+// could stem from an older build).
+func freshDemo(t *testing.T) (string, *sim.Truth) {
+	t.Helper()
 	if testing.Short() {
-		t.Skip("reads and analyses the whole demo case; skipped with -short")
+		t.Skip("writes, reads and analyses the whole demo case; skipped with -short")
 	}
-	dir, err := sim.DemoDir()
-	if err != nil {
-		t.Fatalf("demo case: %v", err)
+	demoOnce.Do(func() {
+		var parent string
+		if parent, demoErr = os.MkdirTemp("", "dosecover-demo-"); demoErr == nil {
+			demoDir = filepath.Join(parent, "demo")
+			demoTruth, demoErr = sim.WriteDemo(demoDir)
+		}
+	})
+	if demoErr != nil {
+		t.Fatalf("writing the demo case: %v", demoErr)
 	}
-	rw := testWindow(t)
-	start := time.Now()
+	return demoDir, demoTruth
+}
+
+func TestMain(m *testing.M) {
+	code := m.Run()
+	if demoDir != "" {
+		os.RemoveAll(filepath.Dir(demoDir))
+	}
+	os.Exit(code)
+}
+
+// openDemo opens the demo case in rw through the DICOM reader and the
+// analysis, as "dosecover" with no arguments does.
+func openDemoCase(t *testing.T, rw *reviewWindow) *sim.Truth {
+	t.Helper()
+	dir, truth := freshDemo(t)
 	mark := rw.completed.Load()
 	rw.openCase(dir)
-	waitJobs(t, rw, mark, 1) // the load
-	if rw.loaded == nil {
-		t.Fatalf("demo not loaded: %s", rw.status.Text)
-	}
-	waitJobs(t, rw, mark, 2) // the analysis
+	waitJobs(t, rw, mark, 2) // the load, then the analysis
 	if rw.result == nil {
-		if strings.Contains(rw.status.Text, "not available in this build") {
-			t.Skipf("the analysis of this build cannot compute dose from thermometry yet: %s", rw.status.Text)
-		}
 		t.Fatalf("demo not analysed: %s", rw.status.Text)
 	}
-	t.Logf("demo opened and analysed in %v", time.Since(start))
-	if len(rw.result.Sonications) != len(rw.loaded.Case.Sonications) {
-		t.Errorf("%d sonication rows for %d sonications", len(rw.result.Sonications), len(rw.loaded.Case.Sonications))
+	return truth
+}
+
+func TestDemoOpens(t *testing.T) {
+	rw := testWindow(t)
+	truth := openDemoCase(t, rw)
+	r := rw.result
+	if len(r.Sonications) != len(truth.Sonications) {
+		t.Errorf("%d sonication rows, the simulator delivered %d", len(r.Sonications), len(truth.Sonications))
 	}
-	if !strings.Contains(rw.metrics.facts.Text, "Covered") {
-		t.Errorf("metrics panel:\n%s", rw.metrics.facts.Text)
+	// The panel states what the analysis measured.
+	facts := rw.metrics.facts.Text
+	for _, want := range []string{
+		fmt.Sprintf("%.1f %%", 100*r.Covered),
+		fmt.Sprintf("%d (%.3f mL)", len(r.Holes), sumML(r.Holes)),
+		"240 CEM43 min",
+	} {
+		if !strings.Contains(facts, want) {
+			t.Errorf("metrics panel lacks %q:\n%s", want, facts)
+		}
+	}
+	// Against the simulator's truth: the target volume within 10 %
+	// (voxelisation of the contours on the analysis grid).
+	if want := truth.TargetVolumeMM3 / 1000; math.Abs(r.TargetML-want) > 0.1*want {
+		t.Errorf("target %.2f mL, truth %.2f mL", r.TargetML, want)
+	}
+	t.Logf("covered %.3f (truth from the bioheat temperature %.3f)", r.Covered, truth.CoveredFraction)
+	if len(truth.Spill) > 0 && len(r.Outside) == 0 {
+		t.Errorf("the simulator sent sonications %v beyond the margin; no lethal cluster outside it is listed", truth.Spill)
+	}
+	if !strings.Contains(rw.win.Title(), "demo") {
+		t.Errorf("window title %q", rw.win.Title())
+	}
+}
+
+// TestViewerGoldenDemo compares the acquisition view of the demo case as
+// opened (target framed, 360×300) with testdata/viewer_demo.png; run with
+// -update after a deliberate change of the renderer or the demo.
+func TestViewerGoldenDemo(t *testing.T) {
+	rw := testWindow(t)
+	openDemoCase(t, rw)
+	img := rw.viewers[0].draw(360, 300).(*image.RGBA)
+	compareGolden(t, img, filepath.Join("testdata", "viewer_demo.png"))
+}
+
+func TestCancelLoading(t *testing.T) {
+	dir, _ := freshDemo(t)
+	rw := testWindow(t)
+	mark := rw.completed.Load()
+	rw.openCase(dir)
+	if !rw.cancelBtn.Visible() || !rw.progress.Visible() {
+		t.Error("no progress bar or Cancel button while loading")
+	}
+	test.Tap(rw.cancelBtn)
+	waitJobs(t, rw, mark, 1)
+	if rw.loaded != nil {
+		t.Fatal("the case was loaded although Cancel was pressed")
+	}
+	if !strings.Contains(rw.status.Text, "cancelled") {
+		t.Errorf("status after Cancel: %q", rw.status.Text)
+	}
+	if rw.cancelBtn.Visible() {
+		t.Error("Cancel button still shown after cancelling")
 	}
 }

@@ -37,6 +37,7 @@ func (rw *reviewWindow) exportReport() {
 		}
 	}, rw.win)
 	d.SetConfirmText("Export here")
+	d.SetTitleText("Export the report into a folder (not the case folder)")
 	d.Resize(fyne.NewSize(800, 560))
 	d.Show()
 }
@@ -52,9 +53,6 @@ func (rw *reviewWindow) resultRaw() (*review.Result, bool) {
 // reportBase is the file name stem of the exported files.
 func (rw *reviewWindow) reportBase() string {
 	label := rw.caseName()
-	if rw.teaching {
-		label = report.DeidentifiedLabel(rw.loaded.Case.Label, rw.hash)
-	}
 	var b strings.Builder
 	for _, r := range label {
 		switch {

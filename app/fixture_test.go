@@ -75,6 +75,29 @@ func syntheticCase() *loadedCase {
 	return &loadedCase{Dir: os.TempDir(), Case: c, Skipped: []skippedFile{{"notes.txt", "not a DICOM file (no DICM marker)"}}}
 }
 
+// benchWindow is testWindow with the synthetic case open, for benchmarks.
+func benchWindow(b *testing.B) *reviewWindow {
+	b.Helper()
+	dir := b.TempDir()
+	old := reviewsDir
+	reviewsDir = func() (string, error) { return dir, nil }
+	b.Cleanup(func() { reviewsDir = old })
+	a := test.NewTempApp(b)
+	rw := newReviewWindow(a)
+	b.Cleanup(rw.win.Close)
+	mark := rw.completed.Load()
+	lc := syntheticCase()
+	lc.Dir = b.TempDir()
+	rw.caseLoaded(lc, "5e11f0c0ffee5e11f0c0ffee5e11f0c0ffee5e11f0c0ffee5e11f0c0ffee5e11", 4, nil, defaultSettings())
+	for rw.completed.Load() < mark+1 {
+		time.Sleep(5 * time.Millisecond)
+	}
+	if rw.result == nil {
+		b.Fatalf("no analysis: %s", rw.status.Text)
+	}
+	return rw
+}
+
 // testWindow returns a review window of the test app with the review
 // records kept in a temporary folder.
 func testWindow(t *testing.T) *reviewWindow {

@@ -53,6 +53,7 @@ var shortcuts = [][2]string{
 	{"Tick / untick a sonication", "re-analyse with or without it"},
 	{"Select a sonication row", "show that sonication's dose alone"},
 	{"Drop a folder on the window", "open it"},
+	{"Review ▸ Draw drift reference, then drag", "draw the drift reference rectangle on the left image (Esc cancels)"},
 	{"Ctrl+O", "open a case folder"},
 	{"Ctrl+E", "export the report (PNG, PDF, JSON, CSV)"},
 	{"Ctrl+,", "analysis settings"},
@@ -118,6 +119,7 @@ func (rw *reviewWindow) signOff() {
 			return
 		}
 		rw.status.SetText(fmt.Sprintf("Signed off by %s.", who))
+		rw.metrics.update()
 	}, rw.win)
 	d.Resize(fyne.NewSize(720, 420))
 	d.Show()

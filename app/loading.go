@@ -26,6 +26,7 @@ func (rw *reviewWindow) openDemo() {
 	}
 	ctx, gen := rw.startJob()
 	rw.setBusy("Preparing the demo case (the first time takes a while)…", 0)
+	rw.showNotice("Preparing the demo case…")
 	go func() {
 		dir, err := demoCaseDir()
 		fyne.Do(func() {
@@ -130,9 +131,13 @@ func (rw *reviewWindow) openCase(dir string) {
 		return
 	}
 	dir = filepath.Clean(dir)
+	rw.pendingDir = dir
 	ctx, gen := rw.startJob()
 	base := rw.displayPath(dir)
 	rw.setBusy("Checking the files of "+base+"…", 0)
+	if rw.loaded == nil {
+		rw.showNotice("Reading " + base + "… (the Cancel button at the bottom right stops it)")
+	}
 	prefs := loadPrefSettings(rw.app.Preferences())
 	progress := func(text string, frac float64) {
 		fyne.Do(func() {
@@ -181,9 +186,15 @@ func (rw *reviewWindow) openCase(dir string) {
 			}
 			if errors.Is(err, context.Canceled) {
 				rw.setBusy("Opening "+base+" was cancelled.", -1)
+				if rw.loaded == nil {
+					rw.showNotice("Opening " + base + " was cancelled. Open a case folder (File ▸ Open folder…, or drop a folder on this window).")
+				}
 				return
 			}
 			if err != nil {
+				if rw.loaded == nil {
+					rw.showNotice("Open a case folder (File ▸ Open folder…, or drop a folder on this window).")
+				}
 				rw.showError("The case in "+base+" could not be read", err)
 				return
 			}
@@ -479,7 +490,7 @@ func (rw *reviewWindow) openSettings() {
 // thermometryChanged reports whether temperature must be recomputed.
 func thermometryChanged(a, b analysisSettings) bool {
 	return a.PRFAlpha != b.PRFAlpha || a.BodyTemp != b.BodyTemp || a.BaselineFrames != b.BaselineFrames ||
-		a.Drift != b.Drift || a.DriftOrder != b.DriftOrder || a.B0 != b.B0 || a.TEms != b.TEms ||
+		a.Drift != b.Drift || a.DriftOrder != b.DriftOrder || a.B0 != b.B0 || a.TEms != b.TEms || a.DriftRef != b.DriftRef ||
 		a.Model != b.Model || a.CEM43Break != b.CEM43Break || a.CEM43RAbove != b.CEM43RAbove ||
 		a.CEM43RBelow != b.CEM43RBelow || a.ArrheniusA != b.ArrheniusA || a.ArrheniusEa != b.ArrheniusEa
 }

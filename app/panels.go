@@ -122,8 +122,8 @@ var sonColumns = []struct {
 	title string
 	width float32
 }{
-	{"use", 52}, {"no.", 44}, {"time", 90}, {"label", 150}, {"peak °C", 76}, {"lethal added mL", 120},
-	{"coverage added", 116}, {"quality", 360},
+	{"use", 48}, {"no.", 40}, {"time", 62}, {"label", 190}, {"peak °C", 70}, {"peak dose", 90}, {"lethal added mL", 124},
+	{"coverage added", 118}, {"quality and notes", 560},
 }
 
 func (rw *reviewWindow) newSonicationTable() *widget.Table {
@@ -173,10 +173,21 @@ func (rw *reviewWindow) newSonicationTable() *widget.Table {
 			case 4:
 				l.SetText(fmtOpt(row.PeakTemp, "%.1f"))
 			case 5:
-				l.SetText(fmtOpt(row.DoseAddedML, "%.2f"))
+				if math.IsNaN(row.PeakDose) || math.IsInf(row.PeakDose, 0) {
+					l.SetText("—")
+				} else {
+					l.SetText(fmtDose(row.PeakDose))
+				}
 			case 6:
-				l.SetText(fmtOpt(100*row.CoverageAdded, "%.1f %%"))
+				l.SetText(fmtOpt(row.DoseAddedML, "%.2f"))
 			case 7:
+				l.SetText(fmtOpt(100*row.CoverageAdded, "%.1f %%"))
+			case 8:
+				if rw.settings.excludedSet()[row.Number] {
+					l.Importance = widget.LowImportance
+					l.SetText("left out of the cumulative dose")
+					return
+				}
 				switch {
 				case len(row.Flags) == 0:
 					l.SetText("no flag")
@@ -232,6 +243,7 @@ type metricsPanel struct {
 	rw       *reviewWindow
 	content  fyne.CanvasObject
 	box      *fyne.Container
+	signed   *widget.Label
 	facts    *widget.Label
 	used     *widget.Label
 	holes    *widget.List
@@ -253,6 +265,8 @@ func newMetricsPanel(rw *reviewWindow) *metricsPanel {
 	m.avoid.Wrapping = fyne.TextWrapWord
 	m.quality = widget.NewLabel("")
 	m.quality.Wrapping = fyne.TextWrapWord
+	m.signed = widget.NewLabel("")
+	m.signed.Wrapping = fyne.TextWrapWord
 	m.hint = widget.NewLabel("Facts measured from the thermometry; the clinician decides what they mean.")
 	m.hint.Wrapping = fyne.TextWrapWord
 	m.hint.Importance = widget.LowImportance
@@ -263,7 +277,6 @@ func newMetricsPanel(rw *reviewWindow) *metricsPanel {
 				head := widget.NewLabelWithStyle("", fyne.TextAlignLeading, fyne.TextStyle{Bold: true})
 				detail := widget.NewLabel("")
 				detail.Truncation = fyne.TextTruncateEllipsis
-				detail.Importance = widget.LowImportance
 				return container.NewVBox(head, detail)
 			},
 			func(id widget.ListItemID, o fyne.CanvasObject) {
@@ -312,7 +325,8 @@ func newMetricsPanel(rw *reviewWindow) *metricsPanel {
 		bold("Lethal dose outside the margin (click to show)"), listBox(m.outside),
 		bold("Avoid structures"), m.avoid,
 		bold("Thermometry quality"), m.quality,
-		bold("Settings used"), m.used, m.hint,
+		bold("Settings used"), m.used,
+		bold("Sign-offs"), m.signed, m.hint,
 	)
 	plots := container.NewAppTabs(
 		container.NewTabItem("Target DVH", m.dvh.raster),
@@ -329,6 +343,7 @@ func newMetricsPanel(rw *reviewWindow) *metricsPanel {
 func (m *metricsPanel) update() {
 	r := m.rw.result
 	m.used.SetText(m.rw.settings.describe())
+	m.signed.SetText(m.rw.signOffText())
 	if r == nil {
 		if m.rw.loaded == nil {
 			m.facts.SetText("No case open.")
@@ -348,6 +363,9 @@ func (m *metricsPanel) update() {
 	band := "not estimated"
 	if !math.IsNaN(r.CoveredP05) && !math.IsNaN(r.CoveredP95) {
 		band = fmt.Sprintf("%s – %s", pct(r.CoveredP05), pct(r.CoveredP95))
+		if r.Trials > 0 {
+			band += fmt.Sprintf(" (%d trials)", r.Trials)
+		}
 	}
 	name := r.TargetName
 	if name == "" {
@@ -443,4 +461,25 @@ func (b *washBar) set(floor, top float64, unit string) {
 	b.lo.SetText(fmtDose(floor))
 	b.hi.SetText(fmtDose(top) + " " + unit)
 	b.content.Refresh()
+}
+
+// signOffText lists the sign-offs of the open case (names hidden in
+// teaching mode).
+func (rw *reviewWindow) signOffText() string {
+	if rw.record == nil || len(rw.record.SignOffs) == 0 {
+		return "Not signed off."
+	}
+	var b []string
+	for _, s := range rw.record.SignOffs {
+		who := s.Reviewer
+		if rw.teaching {
+			who = "a reviewer"
+		}
+		line := fmt.Sprintf("%s by %s, covered %.1f %%", s.Time.Local().Format("2006-01-02 15:04"), who, 100*s.Covered)
+		if s.InputHash != rw.hash {
+			line += " (different input files)"
+		}
+		b = append(b, line)
+	}
+	return strings.Join(b, "\n")
 }

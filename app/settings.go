@@ -9,6 +9,8 @@ import (
 	"strconv"
 	"strings"
 
+	"dosecover/dosemap"
+
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/container"
 	"fyne.io/fyne/v2/dialog"
@@ -42,6 +44,11 @@ type analysisSettings struct {
 	TEms       float64 `json:"te_ms"`       // ms; 0: from the files
 
 	Trials int `json:"trials"` // noise trials for the uncertainty band; 0: none
+
+	// DriftRef, when set, is the drift reference region drawn on the
+	// acquisition view: every thermometry voxel whose centre projects into
+	// the rectangle (on any slice). nil: chosen automatically.
+	DriftRef *refRect `json:"drift_reference,omitempty"`
 
 	Excluded []int `json:"excluded,omitempty"` // sonication numbers left out
 }
@@ -159,6 +166,51 @@ func (s analysisSettings) validate() error {
 	return nil
 }
 
+// refRect is a rectangle in patient space: corner Origin, unit edge
+// directions U and V, extents W and H (mm).
+type refRect struct {
+	Origin dosemap.Vec3 `json:"origin_mm"`
+	U      dosemap.Vec3 `json:"u"`
+	V      dosemap.Vec3 `json:"v"`
+	W      float64      `json:"width_mm"`
+	H      float64      `json:"height_mm"`
+}
+
+// newRefRect returns the rectangle spanned by corners a and b in the plane
+// with in-plane directions u and v.
+func newRefRect(a, b, u, v dosemap.Vec3) *refRect {
+	d := b.Sub(a)
+	du, dv := d.Dot(u), d.Dot(v)
+	o := a
+	if du < 0 {
+		o, du = o.Add(u.Scale(du)), -du
+	}
+	if dv < 0 {
+		o, dv = o.Add(v.Scale(dv)), -dv
+	}
+	return &refRect{Origin: o, U: u, V: v, W: du, H: dv}
+}
+
+// corners returns the four corners in drawing order.
+func (r *refRect) corners() [4]dosemap.Vec3 {
+	return [4]dosemap.Vec3{r.Origin, r.Origin.Add(r.U.Scale(r.W)), r.Origin.Add(r.U.Scale(r.W)).Add(r.V.Scale(r.H)), r.Origin.Add(r.V.Scale(r.H))}
+}
+
+// mask returns the voxels of g whose centres project into r.
+func (r *refRect) mask(g dosemap.Geometry) ([]bool, int) {
+	m := make([]bool, g.Len())
+	n := 0
+	for i := range m {
+		a, b, k := g.IJK(i)
+		d := g.Point(float64(a), float64(b), float64(k)).Sub(r.Origin)
+		if x, y := d.Dot(r.U), d.Dot(r.V); x >= 0 && x <= r.W && y >= 0 && y <= r.H {
+			m[i] = true
+			n++
+		}
+	}
+	return m, n
+}
+
 // excludedSet returns the excluded sonication numbers as a set.
 func (s analysisSettings) excludedSet() map[int]bool {
 	m := map[int]bool{}
@@ -191,8 +243,12 @@ func (s analysisSettings) describe() string {
 	if drift == "polynomial" {
 		drift = fmt.Sprintf("polynomial order %d", s.DriftOrder)
 	}
-	return fmt.Sprintf("Threshold %s %s · margin %g mm · %s · PRF α %g ppm/°C · body %g °C · %d baseline frames · drift %s (automatic reference region)",
-		fmtNum(s.Threshold), s.unitName(), s.MarginMM, model, s.PRFAlpha, s.BodyTemp, s.BaselineFrames, drift)
+	ref := "automatic reference region"
+	if s.DriftRef != nil {
+		ref = fmt.Sprintf("reference region drawn, %.0f × %.0f mm", s.DriftRef.W, s.DriftRef.H)
+	}
+	return fmt.Sprintf("Threshold %s %s · margin %g mm · %s · PRF α %g ppm/°C · body %g °C · %d baseline frames · drift %s (%s)",
+		fmtNum(s.Threshold), s.unitName(), s.MarginMM, model, s.PRFAlpha, s.BodyTemp, s.BaselineFrames, drift, ref)
 }
 
 func fmtNum(v float64) string { return strconv.FormatFloat(v, 'g', 4, 64) }
@@ -311,7 +367,7 @@ func showSettingsDialog(w fyne.Window, cur analysisSettings, note string, apply 
 		widget.NewFormItem("Field strength B0 (T)", b0),
 		widget.NewFormItem("Echo time TE (ms)", te),
 	)
-	driftNote := widget.NewLabel("Drift is measured in an unheated reference region chosen automatically (voxels that stay near body temperature, away from the target).")
+	driftNote := widget.NewLabel("Drift is measured in an unheated reference region: chosen automatically (voxels away from the heating), or drawn as a rectangle on the left image (Review ▸ Draw drift reference).")
 	driftNote.Wrapping = fyne.TextWrapWord
 	top := []fyne.CanvasObject{}
 	if note != "" {

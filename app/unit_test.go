@@ -219,3 +219,26 @@ func TestDoseWashOrderedAndTransparentBelowFloor(t *testing.T) {
 		prev = l
 	}
 }
+
+func TestMissingScannerValuesAsked(t *testing.T) {
+	rw := &reviewWindow{loaded: &loadedCase{MissingB0: true, MissingTE: true}, settings: defaultSettings()}
+	note := rw.missingScannerValues()
+	for _, want := range []string{"B0", "MagneticFieldStrength", "TE", "EchoTime"} {
+		if !strings.Contains(note, want) {
+			t.Errorf("request %q lacks %q", note, want)
+		}
+	}
+	rw.settings.B0 = 3
+	if note := rw.missingScannerValues(); strings.Contains(note, "B0") || !strings.Contains(note, "TE") {
+		t.Errorf("with B0 given the request is %q", note)
+	}
+	rw.settings.TEms = 12
+	if note := rw.missingScannerValues(); note != "" {
+		t.Errorf("with B0 and TE given the window still asks: %q", note)
+	}
+	// The settings reach the thermometry in SI units.
+	o := thermometryOptions(rw.settings)
+	if o.PRF.B0 != 3 || math.Abs(o.PRF.TE-0.012) > 1e-15 {
+		t.Errorf("thermometry B0 %g T, TE %g s; want 3 T, 0.012 s", o.PRF.B0, o.PRF.TE)
+	}
+}

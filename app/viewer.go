@@ -4,6 +4,7 @@ package main
 
 import (
 	"image"
+	"image/color"
 	"math"
 
 	"dosecover/dosemap"
@@ -37,6 +38,13 @@ type sliceViewer struct {
 	dragWL    bool
 	wlFrom    fyne.Position
 	wlStarted bool
+
+	// Drift reference drawing: while refMode is on, a left-drag draws a
+	// rectangle (refA to refB) instead of panning; onRef receives it.
+	refMode    bool
+	refA, refB *dosemap.Vec3
+	onRef      func(a, b, u, v dosemap.Vec3)
+	refShown   func() *refRect // the reference region to outline; nil: none
 
 	onHover  func(p dosemap.Vec3, inside bool)
 	onPin    func(p dosemap.Vec3)
@@ -147,7 +155,37 @@ func (v *sliceViewer) draw(w, h int) image.Image {
 	}
 	v.last = t
 	v.lastSize = v.Size()
-	return renderPlane(v.scene, t, *v.opt, &v.cache)
+	img := renderPlane(v.scene, t, *v.opt, &v.cache)
+	if v.refA != nil && v.refB != nil {
+		drawRect(img, t, newRefRect(*v.refA, *v.refB, t.U, t.V))
+	} else if v.refShown != nil {
+		if r := v.refShown(); r != nil {
+			drawRect(img, t, r)
+		}
+	}
+	return img
+}
+
+// drawRect outlines r (projected onto the view) with a dotted white line.
+func drawRect(img *image.RGBA, t viewTransform, r *refRect) {
+	c := r.corners()
+	for n := range 4 {
+		x0, y0 := t.Pixel(c[n])
+		x1, y1 := t.Pixel(c[(n+1)%4])
+		steps := int(math.Max(math.Abs(x1-x0), math.Abs(y1-y0))) + 1
+		for s := 0; s <= steps; s++ {
+			if s%6 >= 3 {
+				continue
+			}
+			f := float64(s) / float64(steps)
+			x, y := int(x0+f*(x1-x0)), int(y0+f*(y1-y0))
+			for _, p := range []image.Point{{x, y}, {x + 1, y}, {x, y + 1}} {
+				if p.In(img.Rect) {
+					img.Set(p.X, p.Y, color.RGBA{0xFF, 0xFF, 0xFF, 0xFF})
+				}
+			}
+		}
+	}
 }
 
 // pointAt returns the patient position under widget position pos.
@@ -233,8 +271,21 @@ func (v *sliceViewer) MouseOut() {
 	}
 }
 
-// Dragged pans, or changes window/level when Shift was held.
+// Dragged pans, changes window/level when Shift was held, or draws the
+// drift reference rectangle in reference mode.
 func (v *sliceViewer) Dragged(ev *fyne.DragEvent) {
+	if v.refMode {
+		if v.refA == nil {
+			if p, ok := v.pointAt(ev.Position.Subtract(ev.Dragged)); ok {
+				v.refA = &p
+			}
+		}
+		if p, ok := v.pointAt(ev.Position); ok {
+			v.refB = &p
+		}
+		v.raster.Refresh()
+		return
+	}
 	if v.dragWL {
 		v.adjustWindow(ev.Dragged.DX, ev.Dragged.DY)
 		return
@@ -248,8 +299,18 @@ func (v *sliceViewer) Dragged(ev *fyne.DragEvent) {
 	v.raster.Refresh()
 }
 
-// DragEnd implements fyne.Draggable.
-func (v *sliceViewer) DragEnd() { v.dragWL = false }
+// DragEnd ends a drag; in reference mode it hands over the rectangle.
+func (v *sliceViewer) DragEnd() {
+	v.dragWL = false
+	if v.refMode && v.refA != nil && v.refB != nil {
+		a, b := *v.refA, *v.refB
+		v.refA, v.refB = nil, nil
+		if v.onRef != nil {
+			v.onRef(a, b, v.last.U, v.last.V)
+		}
+		v.raster.Refresh()
+	}
+}
 
 // adjustWindow changes the window width with horizontal motion and the
 // level with vertical motion, proportionally to the current width.
@@ -295,9 +356,15 @@ func (v *sliceViewer) TypedRune(r rune) {
 	}
 }
 
-// TypedKey handles the slice keys.
+// TypedKey handles the slice keys (Escape leaves reference drawing).
 func (v *sliceViewer) TypedKey(ev *fyne.KeyEvent) {
 	switch ev.Name {
+	case fyne.KeyEscape:
+		if v.refMode {
+			v.refMode = false
+			v.refA, v.refB = nil, nil
+			v.raster.Refresh()
+		}
 	case fyne.KeyUp, fyne.KeyRight:
 		v.setSlice(v.slice + 1)
 	case fyne.KeyDown, fyne.KeyLeft:

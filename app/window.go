@@ -12,6 +12,7 @@ import (
 	"sync/atomic"
 
 	"dosecover/dosemap"
+	"dosecover/review/report"
 
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/container"
@@ -41,6 +42,7 @@ type reviewWindow struct {
 	opt        displayOptions
 	jobCancel  context.CancelFunc
 	jobGen     int
+	pendingDir string // the folder being opened
 	probeGen   int
 	probeCurve *probeCurve
 	active     *sliceViewer
@@ -139,6 +141,8 @@ func (rw *reviewWindow) build() {
 		v.onPin = rw.pin
 		v.onWindow = rw.redraw
 		v.onFocus = func(v *sliceViewer) { rw.active = v }
+		v.refShown = func() *refRect { return rw.settings.DriftRef }
+		v.onRef = rw.refDrawn
 		sel := widget.NewSelect([]string{planeAcquisition.String(), planeReformatRow.String(), planeReformatCol.String()}, nil)
 		sel.SetSelectedIndex(int(kind))
 		sel.OnChanged = func(string) { v.setKind(planeKind(sel.SelectedIndex())) }
@@ -179,6 +183,7 @@ func (rw *reviewWindow) build() {
 	showHoles := widget.NewCheck("Holes & spill", func(b bool) { rw.opt.ShowHoles = b; rw.redraw() })
 	showHoles.SetChecked(true)
 	resetWL := widget.NewButton("Reset window", rw.resetWindow)
+
 	rw.selInfo = widget.NewLabel("Showing the cumulative dose")
 	cumul := widget.NewButton("Cumulative", func() { rw.selectSonication(-1) })
 	display := container.NewHBox(
@@ -254,6 +259,8 @@ func (rw *reviewWindow) mainMenu() *fyne.MainMenu {
 	rw.fillRecentMenu(recent.ChildMenu)
 	review := fyne.NewMenu("Review",
 		fyne.NewMenuItem("Analysis settings…", rw.openSettings),
+		fyne.NewMenuItem("Draw drift reference on the left image", rw.startRefMode),
+		fyne.NewMenuItem("Automatic drift reference", rw.automaticRef),
 		fyne.NewMenuItem("Sign off…", rw.signOff),
 		fyne.NewMenuItem("Export report…", rw.exportReport),
 	)
@@ -309,10 +316,13 @@ func (rw *reviewWindow) caseName() string {
 		return ""
 	}
 	if rw.teaching {
-		if len(rw.hash) >= 8 {
-			return "Case " + rw.hash[:8]
+		// The neutral label the exported reports carry, so window and
+		// report name the case alike.
+		label := ""
+		if rw.loaded.Case != nil {
+			label = rw.loaded.Case.Label
 		}
-		return "Case"
+		return report.DeidentifiedLabel(label, rw.hash)
 	}
 	if rw.loaded.Case != nil && rw.loaded.Case.Label != "" {
 		return rw.loaded.Case.Label
@@ -326,22 +336,47 @@ func (rw *reviewWindow) setTeaching(on bool) {
 	rw.updateTitle()
 	rw.showLoadInfo()
 	rw.metrics.update()
+	rw.sonTable.Refresh()
+	rw.win.SetMainMenu(rw.mainMenu())
 }
 
-// displayPath returns p for display: relative to the case folder in
-// teaching mode, so folder names cannot reveal identity.
+// displayPath returns p for display. In teaching mode folder names could
+// reveal identity: paths inside the open case folder are shown relative to
+// it and any other path as "the case folder" or its last element only.
 func (rw *reviewWindow) displayPath(p string) string {
+	if !rw.teaching {
+		return p
+	}
 	if rw.loaded != nil {
 		if rel, err := filepath.Rel(rw.loaded.Dir, p); err == nil && !strings.HasPrefix(rel, "..") {
-			if rw.teaching {
-				return rel
+			if rel == "." {
+				return "the case folder"
 			}
+			return rel
 		}
 	}
-	if rw.teaching {
-		return filepath.Base(p)
+	if rw.pendingDir != "" && filepath.Clean(p) == rw.pendingDir {
+		return "the case folder"
 	}
-	return p
+	return filepath.Base(p)
+}
+
+// scrub removes the case folder's path from a message in teaching mode.
+func (rw *reviewWindow) scrub(msg string) string {
+	if !rw.teaching {
+		return msg
+	}
+	for _, d := range []string{rw.pendingDir, func() string {
+		if rw.loaded != nil {
+			return rw.loaded.Dir
+		}
+		return ""
+	}()} {
+		if d != "" {
+			msg = strings.ReplaceAll(msg, d, "<case folder>")
+		}
+	}
+	return msg
 }
 
 // redraw repaints both viewers.
@@ -366,6 +401,13 @@ func (rw *reviewWindow) sliceChanged(n int) {
 }
 
 func (rw *reviewWindow) typedKey(ev *fyne.KeyEvent) {
+	if ev.Name == fyne.KeyEscape && rw.viewers[0].refMode {
+		rw.viewers[0].refMode = false
+		rw.viewers[0].refA, rw.viewers[0].refB = nil, nil
+		rw.redraw()
+		rw.status.SetText("Drawing the drift reference was cancelled.")
+		return
+	}
 	if rw.active != nil {
 		rw.active.TypedKey(ev)
 	}
@@ -517,6 +559,49 @@ func (rw *reviewWindow) finishJob(gen int) bool {
 }
 
 func (rw *reviewWindow) showError(title string, err error) {
-	rw.setBusy(title+": "+err.Error(), -1)
-	dialog.ShowError(fmt.Errorf("%s\n\n%w", title, err), rw.win)
+	msg := rw.scrub(err.Error())
+	rw.setBusy(rw.scrub(title)+": "+msg, -1)
+	dialog.ShowError(fmt.Errorf("%s\n\n%s", rw.scrub(title), msg), rw.win)
+}
+
+// startRefMode lets the user drag the drift reference rectangle on the
+// acquisition view (the left image).
+func (rw *reviewWindow) startRefMode() {
+	if rw.loaded == nil {
+		return
+	}
+	v := rw.viewers[0]
+	v.refMode = true
+	rw.status.SetText("Drag a rectangle on the left image over unheated tissue: the drift is measured there on every slice. Esc cancels.")
+}
+
+// automaticRef returns to the automatically chosen drift reference.
+func (rw *reviewWindow) automaticRef() {
+	rw.viewers[0].refMode = false
+	if rw.settings.DriftRef == nil {
+		return
+	}
+	rw.settings.DriftRef = nil
+	rw.redraw()
+	rw.runAnalysis(true)
+}
+
+// refDrawn takes a drawn rectangle as the drift reference and recomputes
+// the temperatures.
+func (rw *reviewWindow) refDrawn(a, b, u, v dosemap.Vec3) {
+	rw.viewers[0].refMode = false
+	r := newRefRect(a, b, u, v)
+	if r.W < 1 || r.H < 1 {
+		rw.status.SetText("The rectangle was too small; the drift reference is unchanged.")
+		return
+	}
+	if rw.loaded != nil {
+		if _, err := referenceMask(r, rw.loaded.Case); err != nil {
+			rw.showError("The drift reference was not changed", err)
+			return
+		}
+	}
+	rw.settings.DriftRef = r
+	rw.redraw()
+	rw.runAnalysis(true)
 }

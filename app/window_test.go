@@ -216,6 +216,9 @@ func TestTeachingModeHidesIdentity(t *testing.T) {
 			}
 		}
 	}
+	if msg := rw.scrub("reading " + filepath.Join(rw.loaded.Dir, "x.dcm") + ": truncated"); strings.Contains(msg, rw.loaded.Dir) {
+		t.Errorf("teaching mode error message shows the folder: %q", msg)
+	}
 	for n, d := range rw.recentCases() {
 		if strings.Contains(rw.recentLabel(n, d), d) {
 			t.Errorf("teaching mode lists the recent folder %q", d)
@@ -256,14 +259,21 @@ func TestViewerGolden(t *testing.T) {
 	rw := testWindow(t)
 	openSynthetic(t, rw)
 	img := rw.viewers[0].draw(320, 320).(*image.RGBA)
-	path := filepath.Join("testdata", "viewer_synthetic.png")
+	compareGolden(t, img, filepath.Join("testdata", "viewer_synthetic.png"))
+}
+
+// compareGolden compares img with the PNG at path, or rewrites it with
+// -update. It allows a difference of 3 levels per channel (floating-point
+// rounding across machines) on at most 0.5 % of the pixels.
+func compareGolden(t *testing.T, img *image.RGBA, path string) {
+	t.Helper()
 	if *update {
 		writePNG(t, path, img)
 		return
 	}
 	f, err := os.Open(path)
 	if err != nil {
-		t.Fatalf("golden image missing (run go test -run TestViewerGolden -update): %v", err)
+		t.Fatalf("golden image missing (run go test -run %s -update): %v", t.Name(), err)
 	}
 	defer f.Close()
 	want, err := png.Decode(f)
@@ -273,11 +283,10 @@ func TestViewerGolden(t *testing.T) {
 	if want.Bounds() != img.Bounds() {
 		t.Fatalf("size %v, golden %v", img.Bounds(), want.Bounds())
 	}
-	// Allow a difference of 3 levels per channel (floating-point rounding
-	// across machines) on at most 0.5 % of the pixels.
+	b := img.Bounds()
 	bad := 0
-	for y := 0; y < 320; y++ {
-		for x := 0; x < 320; x++ {
+	for y := b.Min.Y; y < b.Max.Y; y++ {
+		for x := b.Min.X; x < b.Max.X; x++ {
 			r1, g1, b1, _ := img.At(x, y).RGBA()
 			r2, g2, b2, _ := want.At(x, y).RGBA()
 			if absDiff(r1, r2) > 3*257 || absDiff(g1, g2) > 3*257 || absDiff(b1, b2) > 3*257 {
@@ -285,8 +294,9 @@ func TestViewerGolden(t *testing.T) {
 			}
 		}
 	}
-	if bad > 320*320/200 {
-		writePNG(t, filepath.Join(t.TempDir(), "got.png"), img)
+	if bad > b.Dx()*b.Dy()/200 {
+		got := filepath.Join(t.TempDir(), "got.png")
+		writePNG(t, got, img)
 		t.Errorf("%d pixels differ from %s", bad, path)
 	}
 }
@@ -384,5 +394,77 @@ func TestRecentCases(t *testing.T) {
 	r := rw.recentCases()
 	if len(r) != 2 || r[1] != first {
 		t.Errorf("recent cases %v: want the new case first, then %s", r, first)
+	}
+}
+
+func TestSelectSonicationShowsItsDose(t *testing.T) {
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	rw.sonTable.Select(widget.TableCellID{Row: 2, Col: 1})
+	if rw.scene.Dose != rw.result.SonicationDose[2] || rw.scene.Dose == nil {
+		t.Fatal("selecting row 3 did not show sonication 3's dose")
+	}
+	// Sonication 3 alone at the grid node (1, 15, 1.5) mm next to its
+	// blob centre (0, 16, 0), sigma 2.5 mm: 3000·exp(−(1+1+2.25)/12.5) =
+	// 2135 CEM43 (computed); 1 % for float32 storage.
+	if d := float64(rw.scene.Dose.Sample(dosemap.Vec3{1, 15, 1.5})); math.Abs(d-2135.3) > 21 {
+		t.Errorf("dose of sonication 3 at (1, 15, 1.5) mm is %.1f, want 2135.3", d)
+	}
+	if !strings.Contains(rw.selInfo.Text, "sonication 3") {
+		t.Errorf("selection label %q", rw.selInfo.Text)
+	}
+	rw.selectSonication(-1)
+	if rw.scene.Dose != rw.result.Dose {
+		t.Error("Cumulative did not return to the cumulative dose")
+	}
+}
+
+func TestDrawDriftReference(t *testing.T) {
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	// The thermometry grid of the fixture has voxel centres at x, y = -29,
+	// -27, ... mm and 10 slices: a rectangle from (-30, -30) to (-20.5,
+	// -20.5) mm holds x, y in {-29, ..., -21}, 5 × 5 × 10 = 250 voxels.
+	r := newRefRect(dosemap.Vec3{-20.5, -20.5, 0}, dosemap.Vec3{-30, -30, 0}, dosemap.Vec3{1, 0, 0}, dosemap.Vec3{0, 1, 0})
+	if r.W != 9.5 || r.H != 9.5 || r.Origin != (dosemap.Vec3{-30, -30, 0}) {
+		t.Fatalf("rectangle %+v", r)
+	}
+	m, err := referenceMask(r, rw.loaded.Case)
+	if err != nil {
+		t.Fatal(err)
+	}
+	n := 0
+	for _, in := range m {
+		if in {
+			n++
+		}
+	}
+	if n != 250 {
+		t.Errorf("reference holds %d voxels, want 250", n)
+	}
+	if _, err := referenceMask(newRefRect(dosemap.Vec3{100, 100, 0}, dosemap.Vec3{110, 110, 0}, r.U, r.V), rw.loaded.Case); err == nil {
+		t.Error("a rectangle outside the thermometry was accepted")
+	}
+	// Drawing on the left image: a drag in reference mode sets the
+	// reference and re-analyses.
+	v := rw.viewers[0]
+	v.draw(int(v.Size().Width), int(v.Size().Height))
+	rw.startRefMode()
+	mark := rw.completed.Load()
+	v.Dragged(&fyne.DragEvent{PointEvent: fyne.PointEvent{Position: fyne.NewPos(60, 60)}, Dragged: fyne.NewDelta(10, 10)})
+	v.Dragged(&fyne.DragEvent{PointEvent: fyne.PointEvent{Position: fyne.NewPos(120, 110)}, Dragged: fyne.NewDelta(60, 50)})
+	v.DragEnd()
+	waitJobs(t, rw, mark, 1)
+	if rw.settings.DriftRef == nil || v.refMode {
+		t.Fatalf("no drift reference after drawing (mode still %v); status %q", v.refMode, rw.status.Text)
+	}
+	if !strings.Contains(rw.metrics.used.Text, "reference region drawn") {
+		t.Errorf("settings text does not say the reference was drawn: %q", rw.metrics.used.Text)
+	}
+	mark = rw.completed.Load()
+	rw.automaticRef()
+	waitJobs(t, rw, mark, 1)
+	if rw.settings.DriftRef != nil || !strings.Contains(rw.metrics.used.Text, "automatic reference") {
+		t.Errorf("automatic reference not restored: %q", rw.metrics.used.Text)
 	}
 }

@@ -132,10 +132,18 @@ func DemoDir() (string, error) {
 	})
 }
 
+// Revision numbers the simulator's output: raise it whenever a change alters
+// the files written for a given seed, so that a demo cached by an earlier
+// build is not reused.
+const Revision = 2
+
+// demoFolderName is the demo's folder in the user cache.
+var demoFolderName = fmt.Sprintf("demo-%s-r%d", dosemap.Version, Revision)
+
 // demoDirIn generates the demo with write into parent/demo-VERSION unless a
 // complete one is there.
 func demoDirIn(parent string, write func(dir string) error) (string, error) {
-	final := filepath.Join(parent, "demo-"+dosemap.Version)
+	final := filepath.Join(parent, demoFolderName)
 	if fi, err := os.Stat(filepath.Join(final, TruthFile)); err == nil && !fi.IsDir() {
 		return final, nil
 	}

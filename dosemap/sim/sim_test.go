@@ -337,7 +337,7 @@ func TestDemoDir(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if filepath.Base(d1) != "demo-"+dosemap.Version {
+	if filepath.Base(d1) != demoFolderName {
 		t.Errorf("demo folder %s", d1)
 	}
 	st, err := os.Stat(filepath.Join(d1, TruthFile))

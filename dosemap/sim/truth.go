@@ -121,7 +121,7 @@ type TruthRegion struct {
 func (s *Session) truth(res *simResult, id ids) *Truth {
 	p := s.Thermometry
 	t := &Truth{
-		Label: s.Label, Version: dosemap.Version, Seed: s.Seed, Description: s.Description,
+		Label: s.Label, Version: fmt.Sprintf("%s r%d", dosemap.Version, Revision), Seed: s.Seed, Description: s.Description,
 		PatientName: s.PatientName, PatientID: s.PatientID, Phantom: s.Phantom,
 		MarginMM: s.MarginMM, Threshold: s.Threshold,
 		FrameOfReferenceUID: id.frame, StudyUID: id.study, AnatomySeriesUID: id.anatomySeries, StructureSetUID: id.structInstance,
