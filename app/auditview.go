@@ -220,7 +220,15 @@ func windowAuditSettings(s analysisSettings) (review.Settings, string, string) {
 	if s.B0 > 0 || s.TEms > 0 {
 		notes = append(notes, fmt.Sprintf("the B0/TE entered in the review window (B0 %g T, TE %g ms; 0 = from the files) apply to every case", s.B0, s.TEms))
 	}
-	return reviewSettings(s), s.describe(), strings.Join(notes, "; ")
+	if s.DriftRef != nil {
+		notes = append(notes, "the drift reference region drawn on the open case is not used: each case gets its automatic reference region")
+		s.DriftRef = nil
+	}
+	r, err := reviewSettings(s, nil)
+	if err != nil { // only a drawn reference can fail, and it is dropped above
+		notes = append(notes, err.Error())
+	}
+	return r, s.describe(), strings.Join(notes, "; ")
 }
 
 // newAuditView builds the audit window. openCase opens a case folder in
