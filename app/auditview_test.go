@@ -13,6 +13,7 @@ import (
 	"testing"
 	"time"
 
+	"dosecover/dosemap"
 	"dosecover/dosemap/sim"
 	"dosecover/review"
 	"dosecover/review/audit"
@@ -410,6 +411,7 @@ func TestAuditViewFromMenu(t *testing.T) {
 		t.Fatal("no menu item \"Audit many cases…\"")
 	}
 	rw.settings.Excluded = []int{2}
+	rw.settings.DriftRef = &refRect{U: dosemap.Vec3{1, 0, 0}, V: dosemap.Vec3{0, 1, 0}, W: 10, H: 10}
 	item.Action()
 	av := auditWindows[rw]
 	if av == nil {
@@ -418,11 +420,12 @@ func TestAuditViewFromMenu(t *testing.T) {
 	t.Cleanup(av.win.Close)
 	// The review window's settings: 240 CEM43 (Sapareto & Dewey 1984,
 	// the default threshold) with its exclusions not carried over.
-	if !strings.Contains(av.settInfo.Text, "Threshold 240") || !strings.Contains(av.settInfo.Text, "not left out of the audit") {
+	if !strings.Contains(av.settInfo.Text, "Threshold 240") || !strings.Contains(av.settInfo.Text, "not left out of the audit") ||
+		!strings.Contains(av.settInfo.Text, "drift reference region drawn on the open case is not used") {
 		t.Errorf("settings line %q", av.settInfo.Text)
 	}
 	s, _, _, err := av.settings()
-	if err != nil || len(s.Excluded) != 0 || s.Threshold != rw.settings.Threshold {
+	if err != nil || len(s.Excluded) != 0 || s.Threshold != rw.settings.Threshold || s.Thermometry.Reference != nil {
 		t.Errorf("audit settings %+v, %v", s, err)
 	}
 	item.Action()
