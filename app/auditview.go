@@ -137,8 +137,11 @@ func columnIndex(title string) int {
 type auditView struct {
 	app      fyne.App
 	win      fyne.Window
-	openCase func(dir string)                                         // opens a case folder in the review window
-	current  func() (s review.Settings, describe string, note string) // settings of the review window
+	openCase func(dir string) // opens a case folder in the review window
+	// hideIdentity, when set, is called before a case of a de-identified
+	// audit is opened (the review window turns teaching mode on).
+	hideIdentity func()
+	current      func() (s review.Settings, describe string, note string) // settings of the review window
 
 	inputs     []string
 	inputList  *widget.List
@@ -199,6 +202,7 @@ func (rw *reviewWindow) openAuditView() {
 		return windowAuditSettings(rw.settings)
 	})
 	auditWindows[rw] = av
+	av.hideIdentity = func() { rw.teachCheck.SetChecked(true) }
 	av.win.SetOnClosed(func() {
 		av.stop()
 		delete(auditWindows, rw)
@@ -931,6 +935,9 @@ func (av *auditView) openSelected() {
 	if fi, err := os.Stat(dir); err != nil || !fi.IsDir() {
 		dialog.ShowError(fmt.Errorf("the case folder %s is no longer there", dir), av.win)
 		return
+	}
+	if av.rows[av.selected].Source == "" && av.hideIdentity != nil {
+		av.hideIdentity()
 	}
 	if av.openCase != nil {
 		av.openCase(dir)

@@ -502,3 +502,52 @@ func TestAuditViewRealAnalysis(t *testing.T) {
 		t.Errorf("opened %v, want %s", *opened, full)
 	}
 }
+
+func TestAuditViewDeidentified(t *testing.T) {
+	withStandInAnalysis(t)
+	tmp := t.TempDir()
+	reg := filepath.Join(tmp, "registry")
+	fakeAuditCase(t, filepath.Join(reg, "smith"), "s1")
+	fakeAuditCase(t, filepath.Join(reg, "jones"), "j1")
+	av, opened := testAuditView(t, test.NewTempApp(t), nil)
+	hidden := 0
+	av.hideIdentity = func() { hidden++ }
+	av.deid.SetChecked(true)
+	runAuditView(t, av, filepath.Join(tmp, "out"), reg)
+	if len(av.rows) != 2 {
+		t.Fatalf("%d rows (%s)", len(av.rows), av.message.Text)
+	}
+	for k, text := range cellTexts(av) {
+		if strings.Contains(text, "smith") || strings.Contains(text, "jones") || strings.Contains(text, "registry") {
+			t.Errorf("cell %v of a de-identified audit shows %q", k, text)
+		}
+	}
+	// Pseudonyms: "case-" and 12 hex digits of the input hash (the
+	// engine's rule).
+	r := av.rows[0]
+	if !strings.HasPrefix(r.Case, "case-") || len(r.Case) != 17 || r.Case[5:] != r.InputSHA256[:12] {
+		t.Errorf("pseudonym %q for input hash %s", r.Case, r.InputSHA256)
+	}
+	av.table.Select(widget.TableCellID{Row: 0, Col: 0})
+	test.Tap(av.openBtn)
+	if hidden != 1 || len(*opened) != 1 {
+		t.Fatalf("hide identity called %d times, opened %v", hidden, *opened)
+	}
+	if b := filepath.Base((*opened)[0]); b != "smith" && b != "jones" {
+		t.Errorf("opened %s", (*opened)[0])
+	}
+	// An earlier de-identified audit: its source folders are recorded
+	// nowhere, and the window says so.
+	av2, opened2 := testAuditView(t, av.app, nil)
+	mark := av2.finished.Load()
+	av2.loadExisting(filepath.Join(tmp, "out"))
+	waitAudit(t, av2, mark, 1)
+	av2.table.Select(widget.TableCellID{Row: 0, Col: 0})
+	if _, err := av2.sourceDir(av2.rows[0]); err == nil || !strings.Contains(err.Error(), "de-identified") {
+		t.Errorf("source of a case of an earlier de-identified audit: %v", err)
+	}
+	av2.openSelected()
+	if len(*opened2) != 0 {
+		t.Errorf("opened %v", *opened2)
+	}
+}
