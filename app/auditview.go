@@ -90,7 +90,7 @@ func caseLabel(r audit.Row) string {
 var auditColumns = []auditColumn{
 	{"case", 200, caseLabel, nil},
 	{"status", 150, statusWord, nil},
-	{"covered %", 92, func(r audit.Row) string { return pctCell(r.Metrics.CoveragePct) }, func(r audit.Row) float64 { return numKey(r.Metrics.CoveragePct) }},
+	{"covered %", 110, func(r audit.Row) string { return pctCell(r.Metrics.CoveragePct) }, func(r audit.Row) float64 { return numKey(r.Metrics.CoveragePct) }},
 	{"p05–p95 %", 104, func(r audit.Row) string {
 		m := r.Metrics
 		if math.IsNaN(float64(m.CoverageP05Pct)) || math.IsNaN(float64(m.CoverageP95Pct)) {
@@ -405,6 +405,24 @@ func (av *auditView) removeInput(n int) {
 	av.inputList.Refresh()
 }
 
+// startDir returns where the folder dialogs start: next to the output
+// folder, else next to the last input folder; "" when neither exists.
+func (av *auditView) startDir() string {
+	var cands []string
+	if out := strings.TrimSpace(av.outEntry.Text); out != "" {
+		cands = append(cands, filepath.Dir(filepath.Clean(out)))
+	}
+	if n := len(av.inputs); n > 0 {
+		cands = append(cands, filepath.Dir(av.inputs[n-1]))
+	}
+	for _, c := range cands {
+		if fi, err := os.Stat(c); err == nil && fi.IsDir() {
+			return c
+		}
+	}
+	return ""
+}
+
 // folderDialog asks for a folder and calls fn with its path.
 func (av *auditView) folderDialog(fn func(string)) {
 	d := dialog.NewFolderOpen(func(u fyne.ListableURI, err error) {
@@ -416,6 +434,11 @@ func (av *auditView) folderDialog(fn func(string)) {
 			fn(u.Path())
 		}
 	}, av.win)
+	if dir := av.startDir(); dir != "" {
+		if l, err := storage.ListerForURI(storage.NewFileURI(dir)); err == nil {
+			d.SetLocation(l)
+		}
+	}
 	d.Resize(fyne.NewSize(800, 560))
 	d.Show()
 }
@@ -1036,8 +1059,11 @@ func (av *auditView) loadExisting(outDir string) {
 			}
 			av.counts.SetText(fmt.Sprintf("Earlier audit: %d cases · %d incomplete · %d failed", len(rows), inc, fail))
 			msg := ""
+			if set, err := audit.LoadSettings(filepath.Join(outDir, "settings.json")); err == nil {
+				msg = "Settings of this audit: " + describeReviewSettings(set) + "."
+			}
 			if len(rows) == 0 {
-				msg = "No case record (cases/*/case.json) was found in " + outDir + "."
+				msg += "\nNo case record (cases/*/case.json) was found in " + outDir + "."
 			}
 			for _, p := range problems {
 				msg += "\nUnreadable record: " + p

@@ -257,6 +257,9 @@ func TestAuditViewStandInRunTableAndOpen(t *testing.T) {
 	if len(av2.rows) != 4 || !strings.Contains(av2.counts.Text, "1 incomplete · 1 failed") {
 		t.Fatalf("existing audit: %d rows, %q, %q", len(av2.rows), av2.counts.Text, av2.message.Text)
 	}
+	if !strings.Contains(av2.message.Text, "Settings of this audit: model cem43 · threshold 240") {
+		t.Errorf("message %q lacks the audit's settings (the defaults: cem43, 240)", av2.message.Text)
+	}
 	if len(av2.inputs) != 1 || av2.inputs[0] != reg {
 		t.Errorf("inputs of the earlier audit %v, want [%s]", av2.inputs, reg)
 	}
