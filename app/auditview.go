@@ -159,6 +159,7 @@ type auditView struct {
 	runBtn    *widget.Button
 	cancelBtn *widget.Button
 	progress  *widget.ProgressBar
+	searching *widget.ProgressBarInfinite // shown while the engine looks for cases
 	counts    *widget.Label
 	message   *widget.Label
 
@@ -191,6 +192,7 @@ var auditWindows = map[*reviewWindow]*auditView{}
 // openAuditView shows the audit window of rw, creating it on first use.
 func (rw *reviewWindow) openAuditView() {
 	if av := auditWindows[rw]; av != nil {
+		av.describeSettings()
 		av.win.Show()
 		av.win.RequestFocus()
 		return
@@ -318,12 +320,14 @@ func (av *auditView) build() {
 	av.cancelBtn = widget.NewButtonWithIcon("Cancel", theme.CancelIcon(), av.stop)
 	av.cancelBtn.Disable()
 	av.progress = widget.NewProgressBar()
+	av.searching = widget.NewProgressBarInfinite()
+	av.searching.Hide()
 	av.counts = widget.NewLabel("Not started.")
 	av.message = widget.NewLabel("")
 	av.message.Wrapping = fyne.TextWrapWord
 	av.message.Hide()
 	runRow := container.NewBorder(nil, nil, container.NewHBox(av.runBtn, av.cancelBtn),
-		nil, container.NewBorder(nil, nil, container.NewGridWrap(fyne.NewSize(260, 36), av.progress), nil, av.counts))
+		nil, container.NewBorder(nil, nil, container.NewGridWrap(fyne.NewSize(260, 36), container.NewStack(av.progress, av.searching)), nil, av.counts))
 
 	av.table = av.newTable()
 	av.selInfo = widget.NewLabel("Select a case; double-click or “Open case” shows it in the review window.")
@@ -575,6 +579,7 @@ func (av *auditView) start() {
 	if av.running {
 		return
 	}
+	av.describeSettings() // the review window's settings may have changed
 	cfg, err := av.config()
 	if err != nil {
 		av.showMessage("Cannot start the audit: "+err.Error(), true)
@@ -627,6 +632,7 @@ func (av *auditView) stop() {
 
 // showProgress follows the engine's progress report.
 func (av *auditView) showProgress(p audit.Progress, last *audit.Row) {
+	av.setSearching(p.Phase == "discovering")
 	switch p.Phase {
 	case "discovering":
 		av.counts.SetText("Looking for cases…")
@@ -644,6 +650,20 @@ func (av *auditView) showProgress(p audit.Progress, last *audit.Row) {
 		av.resort()
 	}
 	av.counts.SetText(countsText(p))
+}
+
+// setSearching shows the moving bar while the engine looks for cases,
+// the bar of cases done otherwise.
+func (av *auditView) setSearching(on bool) {
+	if on {
+		av.progress.Hide()
+		av.searching.Show()
+		av.searching.Start()
+		return
+	}
+	av.searching.Stop()
+	av.searching.Hide()
+	av.progress.Show()
 }
 
 // countsText states the counts, elapsed time and the time left.
@@ -668,6 +688,7 @@ func roundLeft(d time.Duration) string {
 
 // done shows the outcome of a run.
 func (av *auditView) done(cfg audit.Config, sum *audit.Summary, err error) {
+	av.setSearching(false)
 	av.running = false
 	av.cancel = nil
 	av.runBtn.Enable()

@@ -346,6 +346,26 @@ func TestAuditViewRefusals(t *testing.T) {
 	fakeAuditCase(t, filepath.Join(reg, "a"))
 	av, _ := testAuditView(t, test.NewTempApp(t), nil)
 
+	// Typed input folders: a missing path and a file are refused, a folder
+	// is added once.
+	notes := filepath.Join(tmp, "notes.txt")
+	os.WriteFile(notes, []byte("x"), 0o644)
+	for _, c := range []struct{ path, want string }{
+		{filepath.Join(tmp, "missing"), "no such file"},
+		{notes, "is not a folder"},
+		{reg, ""},
+		{reg + string(filepath.Separator), ""},
+	} {
+		av.inputEntry.SetText(c.path)
+		av.inputEntry.TypedKey(&fyne.KeyEvent{Name: fyne.KeyReturn})
+		if c.want != "" && (!strings.Contains(av.message.Text, c.want) || !strings.Contains(av.message.Text, c.path)) {
+			t.Errorf("typed %s: message %q, want %q", c.path, av.message.Text, c.want)
+		}
+	}
+	if len(av.inputs) != 1 || av.inputs[0] != reg || av.inputEntry.Text != "" {
+		t.Fatalf("inputs %v, entry %q after typing", av.inputs, av.inputEntry.Text)
+	}
+
 	// An output folder inside the input: the engine's refusal is shown and
 	// nothing is written.
 	inside := filepath.Join(reg, "results")
