@@ -179,7 +179,8 @@ type auditView struct {
 	gen     int
 	outDir  string // output folder of the rows shown
 
-	// sources maps case IDs of this window's runs to their source folders.
+	// sources maps the case IDs analysed by the last run to their source
+	// folders.
 	mu      sync.Mutex
 	sources map[string]string
 
@@ -304,7 +305,7 @@ func (av *auditView) build() {
 	av.resume = widget.NewCheck("Resume: skip cases already analysed in the output folder with the same inputs and settings", nil)
 	av.deid = widget.NewCheck("De-identify: pseudonyms instead of folder names, no patient identity in any output", nil)
 	options := container.NewVBox(
-		container.NewHBox(container.NewGridWrap(fyne.NewSize(80, 36), av.workers),
+		container.NewHBox(widget.NewLabel("Workers"), container.NewGridWrap(fyne.NewSize(80, 36), av.workers),
 			widget.NewLabel(fmt.Sprintf("cases at once (one per core: %d); each holds one case in memory", runtime.NumCPU()))),
 		av.resume, av.deid)
 
@@ -312,7 +313,7 @@ func (av *auditView) build() {
 		widget.NewFormItem("Input folders", inputs),
 		widget.NewFormItem("Output folder", out),
 		widget.NewFormItem("Settings", settings),
-		widget.NewFormItem("Workers", options),
+		widget.NewFormItem("Options", options),
 	)
 
 	av.runBtn = widget.NewButtonWithIcon("Run audit", theme.MediaPlayIcon(), av.start)
@@ -585,6 +586,10 @@ func (av *auditView) start() {
 		av.showMessage("Cannot start the audit: "+err.Error(), true)
 		return
 	}
+	// Folders of an earlier run may carry the same case IDs.
+	av.mu.Lock()
+	av.sources = map[string]string{}
+	av.mu.Unlock()
 	ctx, cancel := context.WithCancel(context.Background())
 	av.cancel = cancel
 	av.running = true
@@ -1048,6 +1053,9 @@ func (av *auditView) loadExisting(outDir string) {
 	}
 	av.gen++
 	gen := av.gen
+	av.mu.Lock()
+	av.sources = map[string]string{}
+	av.mu.Unlock()
 	av.counts.SetText("Reading " + outDir + "…")
 	go func() {
 		rows, problems, err := audit.LoadRows(outDir)
