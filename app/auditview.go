@@ -345,12 +345,15 @@ func (av *auditView) build() {
 	caution.Wrapping = fyne.TextWrapWord
 	caution.Importance = widget.WarningImportance
 
-	top := container.NewVBox(form, runRow, av.message, widget.NewSeparator())
-	bottom := container.NewVBox(actions, caution)
 	av.noRows = widget.NewLabel("No cases yet: choose the folders and press Run audit, or open an existing audit.")
 	av.noRows.Importance = widget.LowImportance
-	av.win.SetContent(container.NewBorder(top, bottom, nil, nil,
-		container.NewStack(av.table, container.NewCenter(av.noRows))))
+	// The form scrolls above a divider the user can drag up to give the
+	// table more room.
+	results := container.NewBorder(container.NewVBox(runRow, av.message, widget.NewSeparator()), actions, nil, nil,
+		container.NewStack(av.table, container.NewCenter(av.noRows)))
+	split := container.NewVSplit(container.NewVScroll(form), results)
+	split.SetOffset(0.48)
+	av.win.SetContent(container.NewBorder(nil, caution, nil, nil, split))
 	av.win.SetOnDropped(av.dropped)
 	av.describeSettings()
 }
