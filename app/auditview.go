@@ -41,6 +41,10 @@ var newAuditAnalyzer = func(s review.Settings) audit.Analyzer {
 	return audit.NewAnalyzer(s, audit.ReportArtifacts)
 }
 
+// uiDo runs f on the UI goroutine; every update of the audit window from
+// a background goroutine goes through it.
+var uiDo = fyne.Do
+
 // prefAuditInputs prefixes the preference that remembers which input
 // folders an audit (by its output folder) read, so that a case of an
 // earlier audit can be opened again.
@@ -610,7 +614,7 @@ func (av *auditView) start() {
 			r := *p.Last
 			last = &r
 		}
-		fyne.Do(func() {
+		uiDo(func() {
 			if gen == av.gen {
 				av.showProgress(p, last)
 			}
@@ -618,7 +622,7 @@ func (av *auditView) start() {
 	}
 	go func() {
 		sum, err := audit.Run(ctx, cfg)
-		fyne.Do(func() {
+		uiDo(func() {
 			defer av.finished.Add(1)
 			if gen != av.gen {
 				return
@@ -1062,7 +1066,7 @@ func (av *auditView) loadExisting(outDir string) {
 	av.counts.SetText("Reading " + outDir + "…")
 	go func() {
 		rows, problems, err := audit.LoadRows(outDir)
-		fyne.Do(func() {
+		uiDo(func() {
 			defer av.finished.Add(1)
 			if gen != av.gen {
 				return

@@ -10,6 +10,7 @@ import (
 	"os"
 	"path/filepath"
 	"strings"
+	"sync"
 	"testing"
 	"time"
 
@@ -57,10 +58,42 @@ func withStandInAnalysis(t *testing.T) {
 	}
 }
 
+// uiQueue collects the audit window's updates from background goroutines;
+// waitAudit runs them on the test goroutine, as the desktop driver runs
+// them on its main goroutine (the test driver would run them at once on the
+// calling goroutine, racing with the test's own taps).
+type uiQueue struct {
+	mu  sync.Mutex
+	fns []func()
+}
+
+func (q *uiQueue) push(f func()) {
+	q.mu.Lock()
+	q.fns = append(q.fns, f)
+	q.mu.Unlock()
+}
+
+// run runs the queued updates; it reports whether there were any.
+func (q *uiQueue) run() bool {
+	q.mu.Lock()
+	fns := q.fns
+	q.fns = nil
+	q.mu.Unlock()
+	for _, f := range fns {
+		f()
+	}
+	return len(fns) > 0
+}
+
+var testUI = &uiQueue{}
+
 // testAuditView opens an audit window whose "Open case" records the
 // folders it is asked to open.
 func testAuditView(t *testing.T, a fyne.App, current func() (review.Settings, string, string)) (*auditView, *[]string) {
 	t.Helper()
+	old := uiDo
+	uiDo = testUI.push
+	t.Cleanup(func() { testUI.run(); uiDo = old })
 	var opened []string
 	av := newAuditView(a, func(dir string) { opened = append(opened, dir) }, current)
 	av.win.Show()
@@ -73,7 +106,7 @@ func testAuditView(t *testing.T, a fyne.App, current func() (review.Settings, st
 func waitAudit(t *testing.T, av *auditView, mark, n int64) {
 	t.Helper()
 	deadline := time.Now().Add(120 * time.Second)
-	for av.finished.Load() < mark+n {
+	for testUI.run() || av.finished.Load() < mark+n {
 		if time.Now().After(deadline) {
 			t.Fatalf("the audit did not finish (%s)", av.counts.Text)
 		}
