@@ -61,8 +61,8 @@ func (a *analysisFlags) settings() (review.Settings, error) {
 		return s, fmt.Errorf("--margin %g: want 0 to %g mm", a.margin, review.LargestMarginMM)
 	}
 	s.MarginMM = a.margin
-	if a.trials < 0 {
-		return s, fmt.Errorf("--trials %d: must not be negative", a.trials)
+	if a.trials < 0 || a.trials > review.MaxTrials {
+		return s, fmt.Errorf("--trials %d: want 0 to %d", a.trials, review.MaxTrials)
 	}
 	s.Trials, s.Seed = a.trials, a.seed
 	for _, f := range strings.FieldsFunc(a.exclude, func(r rune) bool { return r == ',' || r == ' ' }) {

@@ -11,6 +11,7 @@ import (
 	"os/signal"
 
 	"dosecover/dosemap/dicomio"
+	"dosecover/dosemap/safefile"
 	"dosecover/review"
 	"dosecover/review/report"
 )
@@ -45,7 +46,7 @@ func runAnalyze(args []string, stdout, stderr io.Writer) int {
 	}
 	pos, err := parseArgs(fs, args)
 	if err != nil {
-		return 2
+		return parseFailed(err)
 	}
 	if len(pos) != 1 {
 		fmt.Fprintf(stderr, "dosecover analyze: one case folder expected, got %d arguments\n", len(pos))
@@ -58,13 +59,8 @@ func runAnalyze(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "dosecover analyze: %v\n", err)
 		return 2
 	}
-	fi, err := os.Stat(dir)
-	if err != nil {
+	if err := safefile.CheckDir("case folder", dir); err != nil {
 		fmt.Fprintf(stderr, "dosecover analyze: %v\n", err)
-		return 1
-	}
-	if !fi.IsDir() {
-		fmt.Fprintf(stderr, "dosecover analyze: %s is not a folder\n", dir)
 		return 1
 	}
 	if *jsonPath != "" && *jsonPath != "-" {
@@ -85,6 +81,7 @@ func runAnalyze(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "dosecover analyze: %s cannot be analysed: %s\n", dir, inv.NotReviewable)
 		return 1
 	}
+	warnInventory(stderr, "analyze", inv)
 	if err := sf.apply(c); err != nil {
 		fmt.Fprintf(stderr, "dosecover analyze: %v\n", err)
 		return 1

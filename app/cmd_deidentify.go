@@ -34,7 +34,7 @@ func runDeidentify(args []string, stdout, stderr io.Writer) int {
 	}
 	pos, err := parseArgs(fs, args)
 	if err != nil {
-		return 2
+		return parseFailed(err)
 	}
 	if len(pos) != 2 {
 		fmt.Fprintf(stderr, "dosecover deidentify: CASE_DIR and OUT_DIR expected, got %d arguments\n", len(pos))

@@ -10,6 +10,7 @@ import (
 	"os"
 	"path/filepath"
 
+	"dosecover/dosemap/safefile"
 	"dosecover/dosemap/sim"
 )
 
@@ -35,11 +36,13 @@ func runDemo(args []string, stdout, stderr io.Writer) int {
 		dir, args = args[0], args[1:]
 	}
 	if err := fs.Parse(args); err != nil {
-		return 2
+		return parseFailed(err)
 	}
 	if dir == "" && fs.NArg() > 0 {
 		dir = fs.Arg(0)
-		fs.Parse(fs.Args()[1:])
+		if err := fs.Parse(fs.Args()[1:]); err != nil {
+			return parseFailed(err)
+		}
 	}
 	if dir == "" || fs.NArg() > 0 {
 		fs.Usage()
@@ -55,7 +58,7 @@ func runDemo(args []string, stdout, stderr io.Writer) int {
 			return 1
 		}
 	} else if !errors.Is(err, os.ErrNotExist) {
-		fmt.Fprintf(stderr, "dosecover demo: %v\n", err)
+		fmt.Fprintf(stderr, "dosecover demo: %v\n", &safefile.PathError{What: "output folder", Path: dir, Err: err})
 		return 1
 	}
 	demo := filepath.Join(dir, "demo")

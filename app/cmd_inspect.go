@@ -38,10 +38,7 @@ func runInspect(args []string, stdout, stderr io.Writer) int {
 	rest := args
 	for len(rest) > 0 {
 		if err := fs.Parse(rest); err != nil {
-			if err == flag.ErrHelp {
-				return 2
-			}
-			return 2
+			return parseFailed(err)
 		}
 		rest = fs.Args()
 		if len(rest) == 0 {

@@ -47,7 +47,7 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	}
 	pos, err := parseArgs(fs, args)
 	if err != nil {
-		return 2
+		return parseFailed(err)
 	}
 	if len(pos) != 1 {
 		fmt.Fprintf(stderr, "dosecover report: one case folder expected, got %d arguments\n", len(pos))
@@ -78,8 +78,8 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 			fmt.Fprintf(stderr, "dosecover report: %v\n", err)
 			return 1
 		}
-		if fi, err := os.Stat(filepath.Dir(p)); err != nil || !fi.IsDir() {
-			fmt.Fprintf(stderr, "dosecover report: cannot write %s: folder %s does not exist\n", p, filepath.Dir(p))
+		if err := safefile.CheckDir("output folder", filepath.Dir(p)); err != nil {
+			fmt.Fprintf(stderr, "dosecover report: cannot write %s: %v\n", p, err)
 			return 1
 		}
 	}
@@ -94,6 +94,7 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "dosecover report: %s is not a reviewable case: %s\n", dir, inv.NotReviewable)
 		return 1
 	}
+	warnInventory(stderr, "report", inv)
 	if err := sf.apply(c); err != nil {
 		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
 		return 1

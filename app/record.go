@@ -4,18 +4,15 @@ package main
 
 import (
 	"context"
-	"crypto/sha256"
-	"encoding/binary"
-	"encoding/hex"
 	"encoding/json"
 	"errors"
 	"fmt"
-	"io"
 	"io/fs"
 	"os"
 	"path/filepath"
-	"sort"
 	"time"
+
+	"dosecover/review/report"
 )
 
 // reviewRecord is what dosecover remembers about the review of one case:
@@ -54,64 +51,11 @@ var reviewsDir = func() (string, error) {
 	return filepath.Join(d, "dosecover", "reviews"), nil
 }
 
-// hashInputs returns the SHA-256 (FIPS 180-4) over every regular file
-// under dir, the same value the reports print (review/report.HashFolder):
-// files in the sorted order of their slash-separated paths relative to dir,
-// and for each the path, a zero byte, the size as 8 bytes big-endian and
-// the content. The result identifies the input data exactly, whatever
-// folder it was copied to. It also returns the number of files, and stops
-// when ctx is cancelled.
+// hashInputs returns the SHA-256 of the input files that the reports print
+// (review/report.HashFolderContext) and the number of files; it stops when
+// ctx is cancelled.
 func hashInputs(ctx context.Context, dir string) (string, int, error) {
-	var files []string
-	err := filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {
-		if err != nil {
-			return fmt.Errorf("reading %s: %w", p, err)
-		}
-		if ctx.Err() != nil {
-			return ctx.Err()
-		}
-		if d.Type().IsRegular() {
-			rel, err := filepath.Rel(dir, p)
-			if err != nil {
-				return err
-			}
-			files = append(files, filepath.ToSlash(rel))
-		}
-		return nil
-	})
-	if err != nil {
-		return "", 0, fmt.Errorf("listing %s: %w", dir, err)
-	}
-	sort.Strings(files)
-	h := sha256.New()
-	for _, rel := range files {
-		if ctx.Err() != nil {
-			return "", 0, ctx.Err()
-		}
-		p := filepath.Join(dir, filepath.FromSlash(rel))
-		f, err := os.Open(p)
-		if err != nil {
-			return "", 0, fmt.Errorf("hashing %s: %w", p, err)
-		}
-		fi, err := f.Stat()
-		if err != nil {
-			f.Close()
-			return "", 0, fmt.Errorf("hashing %s: %w", p, err)
-		}
-		io.WriteString(h, rel)
-		var hdr [9]byte
-		binary.BigEndian.PutUint64(hdr[1:], uint64(fi.Size()))
-		h.Write(hdr[:])
-		n, err := io.Copy(h, f)
-		f.Close()
-		if err != nil {
-			return "", 0, fmt.Errorf("hashing %s: %w", p, err)
-		}
-		if n != fi.Size() {
-			return "", 0, fmt.Errorf("hashing %s: the file changed while being read", p)
-		}
-	}
-	return hex.EncodeToString(h.Sum(nil)), len(files), nil
+	return report.HashFolderContext(ctx, dir)
 }
 
 // recordPath returns where the record of the input with hash lives.

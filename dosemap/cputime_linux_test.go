@@ -16,3 +16,13 @@ func threadCPU() (time.Duration, bool) {
 	}
 	return time.Duration(ru.Utime.Nano() + ru.Stime.Nano()), true
 }
+
+// processCPU returns the CPU time used so far by the whole process (all
+// threads), for benchmarks of code that runs on several goroutines.
+func processCPU() (time.Duration, bool) {
+	var ru syscall.Rusage
+	if err := syscall.Getrusage(syscall.RUSAGE_SELF, &ru); err != nil {
+		return 0, false
+	}
+	return time.Duration(ru.Utime.Nano() + ru.Stime.Nano()), true
+}

@@ -5,6 +5,9 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"runtime"
+	"sync"
+	"sync/atomic"
 )
 
 // MonteCarlo propagates thermometry noise into dose. Sigma of a series is
@@ -22,8 +25,12 @@ import (
 // values, NaN outside mask; the slice is reused and valid only during the
 // call. A nil mask means every voxel; only masked voxels are computed.
 //
-// Trial n draws its noise from rand.NewPCG(seed, n), so a trial's result
-// does not depend on how many trials run. The series must share one grid.
+// Voxel v of trial n draws its noise, series after series (baseline, then
+// the valid frames in order), from rand.NewPCG(seed, n<<32|v): a voxel's
+// result depends neither on how many trials run nor on which other voxels
+// the mask holds, so a computation restricted to fewer voxels gives the
+// same numbers for them. The masked voxels are computed on GOMAXPROCS
+// goroutines. The series must share one grid.
 func MonteCarlo(series []*TemperatureSeries, m DoseModel, mask []bool, trials int, seed uint64, fn func(trial int, dose []float32)) error {
 	if len(series) == 0 {
 		return errors.New("Monte Carlo: no temperature series")
@@ -64,26 +71,20 @@ func MonteCarlo(series []*TemperatureSeries, m DoseModel, mask []bool, trials in
 			idx = append(idx, n)
 		}
 	}
+	if nv >= 1<<32 {
+		return fmt.Errorf("Monte Carlo: %d voxels; at most 2^32 supported", nv)
+	}
 	dose := nanSlice(nv)
 	rm, fast := m.(rateModel)
 	if !fast {
 		return monteCarloSlow(series, m, idx, trials, seed, dose, fn)
 	}
 	// Gather the masked voxels once: per series, frames and sigma.
-	type packed struct {
-		frames [][]float32
-		sigma  []float32
-		times  []float64
-	}
-	ps := make([]packed, len(series))
+	ps := make([]mcPacked, len(series))
 	for s, ts := range series {
-		p := packed{times: ts.Times, sigma: make([]float32, len(idx)), frames: make([][]float32, len(ts.Frames))}
+		p := mcPacked{times: ts.Times, sigma: make([]float32, len(idx)), frames: make([][]float32, len(ts.Frames))}
 		for q, n := range idx {
-			if ts.Sigma != nil {
-				if v := ts.Sigma[n]; v > 0 && !math.IsInf(float64(v), 0) {
-					p.sigma[q] = v / math.Sqrt2
-				}
-			}
+			p.sigma[q] = noiseSigma(ts, n)
 		}
 		for f, fr := range ts.Frames {
 			c := make([]float32, len(idx))
@@ -94,41 +95,132 @@ func MonteCarlo(series []*TemperatureSeries, m DoseModel, mask []bool, trials in
 		}
 		ps[s] = p
 	}
-	acc := newAccumulator(rm, len(idx))
-	noisy := make([]float32, len(idx))
-	res := make([]float32, len(idx))
-	shared := make([]float32, len(idx))
-	for trial := 0; trial < trials; trial++ {
-		rng := rand.New(rand.NewPCG(seed, uint64(trial)))
-		acc.reset()
-		for _, p := range ps {
-			acc.start()
-			for q, sg := range p.sigma {
-				if sg != 0 {
-					shared[q] = float32(rng.NormFloat64())
-				}
-			}
-			for f, fr := range p.frames {
-				for q, v := range fr {
-					if sg := p.sigma[q]; sg != 0 && v == v {
-						v += sg * (shared[q] + float32(rng.NormFloat64()))
+	// Work is split into chunks of voxels, shared among the workers; each
+	// worker runs a whole batch of trials on a chunk, so the goroutines
+	// meet once per batch, not once per trial (on a loaded machine waking
+	// a thread can take milliseconds). A batch holds at most 2^24 values.
+	const mcChunk = 256
+	nchunks := (len(idx) + mcChunk - 1) / mcChunk
+	workers := min(runtime.GOMAXPROCS(0), nchunks)
+	ws := make([]*mcWorker, workers)
+	for w := range ws {
+		ws[w] = newMCWorker(rm, mcChunk)
+	}
+	batch := max(1, min(trials, (1<<24)/max(len(idx), 1)))
+	res := make([][]float32, batch)
+	for b := range res {
+		res[b] = make([]float32, len(idx))
+	}
+	for t0 := 0; t0 < trials; t0 += batch {
+		t1 := min(t0+batch, trials)
+		var next atomic.Int64
+		var wg sync.WaitGroup
+		for _, w := range ws {
+			wg.Add(1)
+			go func() {
+				defer wg.Done()
+				for {
+					c := int(next.Add(1)) - 1
+					if c >= nchunks {
+						return
 					}
-					noisy[q] = v
+					lo, hi := c*mcChunk, min((c+1)*mcChunk, len(idx))
+					for trial := t0; trial < t1; trial++ {
+						w.run(ps, idx, lo, hi, seed, uint64(trial), res[trial-t0][lo:hi])
+					}
 				}
-				acc.add(noisy, p.times[f])
+			}()
+		}
+		wg.Wait()
+		for trial := t0; trial < t1; trial++ {
+			for q, n := range idx {
+				dose[n] = res[trial-t0][q]
 			}
+			fn(trial, dose)
 		}
-		acc.result(res)
-		for q, n := range idx {
-			dose[n] = res[q]
-		}
-		fn(trial, dose)
 	}
 	return nil
 }
 
+// noiseSigma is the standard deviation of each of the two normal draws of
+// voxel n of ts (Sigma/√2), 0 when unknown.
+func noiseSigma(ts *TemperatureSeries, n int) float32 {
+	if ts.Sigma != nil {
+		if v := ts.Sigma[n]; v > 0 && !math.IsInf(float64(v), 0) {
+			return v / math.Sqrt2
+		}
+	}
+	return 0
+}
+
+// noiseStream returns the generator of voxel v in trial n (see MonteCarlo).
+func noiseStream(src *rand.PCG, seed, trial uint64, v int) {
+	src.Seed(seed, trial<<32|uint64(v))
+}
+
+// mcPacked is one series restricted to the masked voxels.
+type mcPacked struct {
+	frames [][]float32
+	sigma  []float32
+	times  []float64
+}
+
+// mcWorker holds one goroutine's buffers.
+type mcWorker struct {
+	acc           *accumulator
+	src           []rand.PCG
+	rng           []*rand.Rand
+	noisy, shared []float32
+}
+
+func newMCWorker(rm rateModel, n int) *mcWorker {
+	w := &mcWorker{acc: newAccumulator(rm, n), src: make([]rand.PCG, n), rng: make([]*rand.Rand, n),
+		noisy: make([]float32, n), shared: make([]float32, n)}
+	for q := range w.rng {
+		w.rng[q] = rand.New(&w.src[q])
+	}
+	return w
+}
+
+// run computes the trial dose of the packed voxels lo..hi-1 into out.
+func (w *mcWorker) run(ps []mcPacked, idx []int, lo, hi int, seed, trial uint64, out []float32) {
+	n := hi - lo
+	acc := w.acc
+	acc.reset()
+	acc.acc, acc.prev, acc.missing, acc.got = acc.acc[:n], acc.prev[:n], acc.missing[:n], acc.got[:n]
+	defer func() {
+		c := cap(acc.acc)
+		acc.acc, acc.prev, acc.missing, acc.got = acc.acc[:c], acc.prev[:c], acc.missing[:c], acc.got[:c]
+	}()
+	rng := w.rng[:n]
+	for q := range rng {
+		noiseStream(&w.src[q], seed, trial, idx[lo+q])
+	}
+	noisy, shared := w.noisy[:n], w.shared[:n]
+	for _, p := range ps {
+		acc.start()
+		sigma := p.sigma[lo:hi]
+		for q, sg := range sigma {
+			if sg != 0 {
+				shared[q] = float32(rng[q].NormFloat64())
+			}
+		}
+		for f, fr := range p.frames {
+			for q, v := range fr[lo:hi] {
+				if sg := sigma[q]; sg != 0 && v == v {
+					v += sg * (shared[q] + float32(rng[q].NormFloat64()))
+				}
+				noisy[q] = v
+			}
+			acc.add(noisy, p.times[f])
+		}
+	}
+	acc.result(out)
+}
+
 // monteCarloSlow serves dose models from outside the package: each trial
-// builds noisy copies of the series and calls m.Dose.
+// builds noisy copies of the series and calls m.Dose. The noise is that of
+// the fast path.
 func monteCarloSlow(series []*TemperatureSeries, m DoseModel, idx []int, trials int, seed uint64, dose []float32, fn func(int, []float32)) error {
 	copies := make([]*TemperatureSeries, len(series))
 	for s, ts := range series {
@@ -139,31 +231,30 @@ func monteCarloSlow(series []*TemperatureSeries, m DoseModel, idx []int, trials 
 		}
 		copies[s] = &c
 	}
-	sigma := func(ts *TemperatureSeries, n int) float32 {
-		if ts.Sigma != nil {
-			if sg := ts.Sigma[n]; sg > 0 && !math.IsInf(float64(sg), 0) {
-				return sg / math.Sqrt2
-			}
-		}
-		return 0
-	}
 	shared := make([]float32, len(idx))
+	src := make([]rand.PCG, len(idx))
+	rng := make([]*rand.Rand, len(idx))
+	for q := range rng {
+		rng[q] = rand.New(&src[q])
+	}
 	for trial := 0; trial < trials; trial++ {
-		rng := rand.New(rand.NewPCG(seed, uint64(trial)))
+		for q, n := range idx {
+			noiseStream(&src[q], seed, uint64(trial), n)
+		}
 		maps := make([]*DoseMap, len(series))
 		for s, ts := range series {
 			c := copies[s]
 			for q, n := range idx {
-				if sigma(ts, n) != 0 {
-					shared[q] = float32(rng.NormFloat64())
+				if noiseSigma(ts, n) != 0 {
+					shared[q] = float32(rng[q].NormFloat64())
 				}
 			}
 			for f, fr := range ts.Frames {
 				copy(c.Frames[f], fr)
 				for q, n := range idx {
 					v := fr[n]
-					if sg := sigma(ts, n); sg != 0 && v == v {
-						v += sg * (shared[q] + float32(rng.NormFloat64()))
+					if sg := noiseSigma(ts, n); sg != 0 && v == v {
+						v += sg * (shared[q] + float32(rng[q].NormFloat64()))
 					}
 					c.Frames[f][n] = v
 				}

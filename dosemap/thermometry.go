@@ -335,12 +335,12 @@ func (t *thermo) run() *TemperatureSeries {
 }
 
 // baseline computes the reference phase, the baseline magnitude and the
-// magnitude threshold.
+// magnitude threshold. The magnitude comes first, so the trigonometry of
+// the reference phase is done only for voxels with signal (the others are
+// NaN whatever their phase).
 func (t *thermo) baseline() {
 	nv := t.nv
 	t.ref = make([]float64, nv)
-	re := make([]float64, nv)
-	im := make([]float64, nv)
 	cnt := make([]int32, nv)
 	var msum []float64
 	if t.mag != nil {
@@ -356,43 +356,63 @@ func (t *thermo) baseline() {
 			if v != v || m != m {
 				continue
 			}
-			sn, cs := math.Sincos(float64(v))
-			re[n] += m * cs
-			im[n] += m * sn
 			cnt[n]++
 			if msum != nil {
 				msum[n] += m
 			}
 		}
 	}
+	signal := func(n int) bool { return cnt[n] > 0 }
+	if t.mag != nil {
+		t.baseMag = make([]float32, nv)
+		var vals []float32
+		for n := range msum {
+			if cnt[n] == 0 {
+				t.baseMag[n] = float32(math.NaN())
+				continue
+			}
+			t.baseMag[n] = float32(msum[n] / float64(cnt[n]))
+			vals = append(vals, t.baseMag[n])
+		}
+		if t.opt.MinMagnitude > 0 && len(vals) > 0 {
+			p98 := nthSmallest(vals, min(len(vals)-1, int(0.98*float64(len(vals)))))
+			t.magThr = float32(t.opt.MinMagnitude) * p98
+		}
+		signal = func(n int) bool {
+			m := t.baseMag[n]
+			return cnt[n] > 0 && m >= t.magThr && (t.magThr != 0 || m > 0)
+		}
+	}
+	re := make([]float64, nv)
+	im := make([]float64, nv)
+	has := make([]bool, nv)
+	for n := range has {
+		has[n] = signal(n)
+	}
+	for f := 0; f < t.nb; f++ {
+		ph := t.s.Phase[f]
+		for n, v := range ph {
+			if !has[n] {
+				continue
+			}
+			m := 1.0
+			if t.mag != nil {
+				m = float64(t.mag[f][n])
+			}
+			if v != v || m != m {
+				continue
+			}
+			sn, cs := math.Sincos(float64(v))
+			re[n] += m * cs
+			im[n] += m * sn
+		}
+	}
 	for n := range t.ref {
-		if cnt[n] == 0 || (re[n] == 0 && im[n] == 0) {
+		if !has[n] || (re[n] == 0 && im[n] == 0) {
 			t.ref[n] = math.NaN()
 			continue
 		}
 		t.ref[n] = math.Atan2(im[n], re[n])
-	}
-	if t.mag == nil {
-		return
-	}
-	t.baseMag = make([]float32, nv)
-	var vals []float32
-	for n := range msum {
-		if cnt[n] == 0 {
-			t.baseMag[n] = float32(math.NaN())
-			continue
-		}
-		t.baseMag[n] = float32(msum[n] / float64(cnt[n]))
-		vals = append(vals, t.baseMag[n])
-	}
-	if t.opt.MinMagnitude > 0 && len(vals) > 0 {
-		p98 := nthSmallest(vals, min(len(vals)-1, int(0.98*float64(len(vals)))))
-		t.magThr = float32(t.opt.MinMagnitude) * p98
-	}
-	for n, m := range t.baseMag {
-		if !(m >= t.magThr) || (t.magThr == 0 && !(m > 0)) {
-			t.ref[n] = math.NaN() // no signal: never valid
-		}
 	}
 }
 
@@ -815,6 +835,8 @@ type sliceFit struct {
 	x, y       []float64 // normalised coordinates per column and row
 	chol       *mat.Cholesky
 	err        error
+	full       [6][6]float64 // AᵀWA over every reference voxel (upper triangle)
+	nanP       []int32       // scratch: positions in idx of NaN voxels
 }
 
 func polyTerms(order int) int { return (order + 1) * (order + 2) / 2 }
@@ -843,7 +865,7 @@ func newSliceFit(g Geometry, s int, ref []bool, baseMag []float32, order int) *s
 		}
 	}
 	sf.rowStart[g.Rows] = int32(len(sf.idx))
-	sf.chol, sf.err = sf.factor(nil)
+	sf.chol, sf.err = sf.factor(nil, nil)
 	return sf
 }
 
@@ -865,26 +887,36 @@ func (sf *sliceFit) basis(n int) [6]float64 {
 }
 
 // factor builds and factorises the normal matrix AᵀWA over the reference
-// voxels that are not NaN in valid (all when valid is nil).
-func (sf *sliceFit) factor(valid []float32) (*mat.Cholesky, error) {
+// voxels that are not NaN in valid (all when valid is nil). When nan lists
+// the positions in idx of the NaN voxels of valid (fewer than half), the
+// matrix is the full one (kept from the first call) less their terms.
+func (sf *sliceFit) factor(valid []float32, nan []int32) (*mat.Cholesky, error) {
 	m := sf.terms
 	if len(sf.idx) < 3*m {
 		return nil, fmt.Errorf("only %d reference voxels for a %d-term drift fit", len(sf.idx), m)
 	}
 	var a [6][6]float64
 	cnt := 0
-	for p, n := range sf.idx {
-		if valid != nil && valid[n] != valid[n] {
-			continue
+	switch {
+	case valid == nil:
+		for p, n := range sf.idx {
+			cnt++
+			sf.addTerms(&a, p, n, 1)
 		}
-		cnt++
-		b := sf.basis(int(n))
-		w := sf.w[p]
-		for r := 0; r < m; r++ {
-			wr := w * b[r]
-			for c := r; c < m; c++ {
-				a[r][c] += wr * b[c]
+		sf.full = a
+	case nan != nil && 2*len(nan) < len(sf.idx):
+		a = sf.full
+		for _, p := range nan {
+			sf.addTerms(&a, int(p), sf.idx[p], -1)
+		}
+		cnt = len(sf.idx) - len(nan)
+	default:
+		for p, n := range sf.idx {
+			if valid[n] != valid[n] {
+				continue
 			}
+			cnt++
+			sf.addTerms(&a, p, n, 1)
 		}
 	}
 	if cnt < 3*m {
@@ -903,6 +935,20 @@ func (sf *sliceFit) factor(valid []float32) (*mat.Cholesky, error) {
 	return &ch, nil
 }
 
+// addTerms adds sign·w·b·bᵀ of reference voxel p (in-slice index n) to the
+// upper triangle of a.
+func (sf *sliceFit) addTerms(a *[6][6]float64, p int, n int32, sign float64) {
+	m := sf.terms
+	b := sf.basis(int(n))
+	w := sign * sf.w[p]
+	for r := 0; r < m; r++ {
+		wr := w * b[r]
+		for c := r; c < m; c++ {
+			a[r][c] += wr * b[c]
+		}
+	}
+}
+
 // fit returns the weighted least-squares polynomial coefficients of the
 // phase change v (one slice) over its valid reference voxels: the solution
 // of AᵀWA·c = AᵀW·v. AᵀW·v is summed row by row (Σw·v, Σw·v·x, Σw·v·x²
@@ -912,6 +958,7 @@ func (sf *sliceFit) fit(v []float32) ([6]float64, error) {
 	var rhs [6]float64
 	m := sf.terms
 	anyNaN := false
+	nan := sf.nanP[:0]
 	for j := 0; j < sf.rows; j++ {
 		lo, hi := sf.rowStart[j], sf.rowStart[j+1]
 		if lo == hi {
@@ -924,6 +971,7 @@ func (sf *sliceFit) fit(v []float32) ([6]float64, error) {
 			u := v[n]
 			if u != u {
 				anyNaN = true
+				nan = append(nan, p)
 				continue
 			}
 			wu := sf.w[p] * float64(u)
@@ -941,8 +989,9 @@ func (sf *sliceFit) fit(v []float32) ([6]float64, error) {
 		rhs[5] += s0 * y * y
 	}
 	ch, err := sf.chol, sf.err
+	sf.nanP = nan
 	if anyNaN {
-		ch, err = sf.factor(v)
+		ch, err = sf.factor(v, nan)
 	}
 	if err != nil {
 		return cf, err

@@ -7,6 +7,8 @@ import (
 	"slices"
 	"strings"
 	"testing"
+
+	"gonum.org/v1/gonum/mat"
 )
 
 func TestPRFCheckValues(t *testing.T) {
@@ -513,4 +515,74 @@ func TestNthSmallest(t *testing.T) {
 			t.Fatalf("k = %d of %d: %g, want %g", k, len(v), got, s[k])
 		}
 	}
+}
+
+func TestSliceFitDowndate(t *testing.T) {
+	// The normal matrix of a frame with NaN reference voxels, obtained by
+	// removing their terms from the full matrix, gives the coefficients of
+	// the matrix summed over the valid voxels directly (to 1e-9 relative:
+	// the subtraction loses a few digits of the float64 sums), for orders 1
+	// and 2 and a few to nearly half the voxels NaN.
+	g := NewAxialGeometry(40, 30, 1, Vec3{1.5, 1.5, 3}, Vec3{})
+	rng := rand.New(rand.NewPCG(21, 4))
+	ref := make([]bool, g.Len())
+	mag := make([]float32, g.Len())
+	for n := range ref {
+		ref[n] = rng.Float64() < 0.8
+		mag[n] = float32(500 + 500*rng.Float64())
+	}
+	for _, order := range []int{1, 2} {
+		for _, frac := range []float64{0.01, 0.2, 0.45} {
+			sf := newSliceFit(g, 0, ref, mag, order)
+			v := make([]float32, g.Len())
+			for n := range v {
+				x, y := float64(n%g.Cols), float64(n/g.Cols)
+				v[n] = float32(0.3 + 0.01*x - 0.02*y + 1e-4*x*y + 0.05*rng.NormFloat64())
+				if rng.Float64() < frac {
+					v[n] = float32(math.NaN())
+				}
+			}
+			got, err := sf.fit(v)
+			if err != nil {
+				t.Fatal(err)
+			}
+			ch, err := sf.factor(v, nil) // summed over the valid voxels
+			if err != nil {
+				t.Fatal(err)
+			}
+			rhsFit, err := fitWith(sf, v, ch)
+			if err != nil {
+				t.Fatal(err)
+			}
+			for r := 0; r < polyTerms(order); r++ {
+				if d := math.Abs(got[r] - rhsFit[r]); d > 1e-9*math.Max(1, math.Abs(rhsFit[r])) {
+					t.Errorf("order %d, %.0f%% NaN: coefficient %d %g downdated, %g direct", order, 100*frac, r, got[r], rhsFit[r])
+				}
+			}
+		}
+	}
+}
+
+// fitWith is sliceFit.fit with the factorisation ch given.
+func fitWith(sf *sliceFit, v []float32, ch *mat.Cholesky) ([6]float64, error) {
+	var rhs [6]float64
+	for p, n := range sf.idx {
+		u := v[n]
+		if u != u {
+			continue
+		}
+		b := sf.basis(int(n))
+		for r := 0; r < sf.terms; r++ {
+			rhs[r] += sf.w[p] * float64(u) * b[r]
+		}
+	}
+	var c mat.VecDense
+	var cf [6]float64
+	if err := ch.SolveVecTo(&c, mat.NewVecDense(sf.terms, rhs[:sf.terms])); err != nil {
+		return cf, err
+	}
+	for r := 0; r < sf.terms; r++ {
+		cf[r] = c.AtVec(r)
+	}
+	return cf, nil
 }

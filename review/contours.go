@@ -2,7 +2,6 @@ package review
 
 import (
 	"encoding/json"
-	"errors"
 	"fmt"
 	"io"
 	"math"
@@ -11,6 +10,7 @@ import (
 	"strings"
 
 	"dosecover/dosemap"
+	"dosecover/dosemap/safefile"
 )
 
 // ContourFormat is the value of the "format" field of a dosecover contour
@@ -60,7 +60,7 @@ func ReadContours(r io.Reader, name string) ([]dosemap.Structure, string, error)
 	dec := json.NewDecoder(r)
 	dec.DisallowUnknownFields()
 	if err := dec.Decode(&f); err != nil {
-		return nil, "", fmt.Errorf("reading contours %s: %w", name, err)
+		return nil, "", fmt.Errorf("reading contours %s: %s", name, jsonProblem(err))
 	}
 	if f.Format != ContourFormat {
 		return nil, "", fmt.Errorf("reading contours %s: format %q is not %q", name, f.Format, ContourFormat)
@@ -127,7 +127,7 @@ func ReadContours(r io.Reader, name string) ([]dosemap.Structure, string, error)
 func ReadContourFile(path string) ([]dosemap.Structure, string, error) {
 	f, err := os.Open(path)
 	if err != nil {
-		return nil, "", fmt.Errorf("reading contours: %w", err)
+		return nil, "", &safefile.PathError{What: "contour file", Path: path, Err: err}
 	}
 	defer f.Close()
 	return ReadContours(f, path)
@@ -172,7 +172,7 @@ func WriteContourFile(path, caseDir string, structures []dosemap.Structure, fram
 // write only checks the location and writes nothing.
 func WriteOutside(path, caseDir string, write func(io.Writer) error) error {
 	if caseDir != "" {
-		inside, err := within(path, caseDir)
+		inside, err := safefile.Within(caseDir, path)
 		if err != nil {
 			return err
 		}
@@ -180,12 +180,15 @@ func WriteOutside(path, caseDir string, write func(io.Writer) error) error {
 			return fmt.Errorf("the file would lie inside the case folder %s, which dosecover does not modify; choose another folder", caseDir)
 		}
 	}
+	if err := safefile.CheckDir("output folder", filepath.Dir(path)); err != nil {
+		return err
+	}
 	if write == nil {
 		return nil
 	}
 	tmp, err := os.CreateTemp(filepath.Dir(path), "."+filepath.Base(path)+"-*.tmp")
 	if err != nil {
-		return err
+		return &safefile.PathError{What: "output folder", Path: filepath.Dir(path), Err: err}
 	}
 	defer os.Remove(tmp.Name())
 	if err := write(tmp); err != nil {
@@ -200,43 +203,4 @@ func WriteOutside(path, caseDir string, write func(io.Writer) error) error {
 		return err
 	}
 	return os.Rename(tmp.Name(), path)
-}
-
-// within reports whether path lies in or below dir, resolving symbolic
-// links of the existing parts.
-func within(path, dir string) (bool, error) {
-	real := func(p string) (string, error) {
-		p, err := filepath.Abs(p)
-		if err != nil {
-			return "", err
-		}
-		// Resolve the longest existing prefix.
-		rest := ""
-		for {
-			if r, err := filepath.EvalSymlinks(p); err == nil {
-				return filepath.Join(r, rest), nil
-			} else if !errors.Is(err, os.ErrNotExist) {
-				return "", err
-			}
-			parent := filepath.Dir(p)
-			if parent == p {
-				return filepath.Join(p, rest), nil
-			}
-			rest = filepath.Join(filepath.Base(p), rest)
-			p = parent
-		}
-	}
-	p, err := real(path)
-	if err != nil {
-		return false, err
-	}
-	d, err := real(dir)
-	if err != nil {
-		return false, err
-	}
-	rel, err := filepath.Rel(d, p)
-	if err != nil {
-		return false, nil
-	}
-	return rel == "." || (rel != ".." && !strings.HasPrefix(rel, ".."+string(filepath.Separator))), nil
 }

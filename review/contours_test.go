@@ -55,7 +55,7 @@ func TestContourFileRoundTrip(t *testing.T) {
 
 func TestReadContoursErrors(t *testing.T) {
 	for _, tc := range []struct{ name, json, want string }{
-		{"not json", `{`, "unexpected EOF"},
+		{"not json", `{`, "the file ends before the JSON is complete"},
 		{"format", `{"format":"x","version":1,"structures":[]}`, "format"},
 		{"version", `{"format":"dosecover-contours","version":9,"structures":[]}`, "version 9"},
 		{"empty", `{"format":"dosecover-contours","version":1,"structures":[]}`, "no structures"},

@@ -31,6 +31,11 @@ const MaxMarginMM = 20.0
 // LargestMarginMM is the largest margin dosecover analyses.
 const LargestMarginMM = 50.0
 
+// MaxTrials is the largest number of Monte Carlo trials an analysis runs;
+// the 5th-95th percentile band is stable long before (common practice: a
+// few hundred trials), and more only costs time.
+const MaxTrials = 10000
+
 // maxAnalysisVoxels bounds the analysis grid (about 1.5 GB of working
 // memory).
 const maxAnalysisVoxels = 40_000_000
@@ -115,6 +120,9 @@ type Session struct {
 	maxMargin float64
 	cache     *doseCache
 	mcCache   *mcCache
+	// exhaustiveMC simulates every voxel of the region instead of the
+	// uncertain ones only (tests compare the two).
+	exhaustiveMC bool
 }
 
 // doseCache holds what depends only on the set of included sonications.
@@ -144,7 +152,15 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 	}
 	tgt := c.Target()
 	if tgt == nil {
-		return nil, fmt.Errorf("case %q has no target structure (load a contour file or mark a structure as target)", c.Label)
+		have := "no structures"
+		if len(c.Structures) > 0 {
+			names := make([]string, len(c.Structures))
+			for n, st := range c.Structures {
+				names[n] = fmt.Sprintf("%q (%s)", st.Name, st.Role)
+			}
+			have = "structures: " + strings.Join(names, ", ")
+		}
+		return nil, fmt.Errorf("case %q has no target structure (%s); load a contour file or choose the structure to use as the target", c.Label, have)
 	}
 	if !(s.MarginMM >= 0) || s.MarginMM > LargestMarginMM {
 		return nil, fmt.Errorf("margin %g mm: want 0 to %g mm", s.MarginMM, LargestMarginMM)
@@ -203,7 +219,11 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 	}
 	for n, so := range c.Sonications {
 		if errs[n] != nil {
-			return nil, fmt.Errorf("sonication %d (%s): %w", so.Number, so.Label, errs[n])
+			name := fmt.Sprintf("sonication %d (%s)", so.Number, so.Label)
+			if strings.HasPrefix(errs[n].Error(), name) {
+				return nil, errs[n] // the thermometry and dose errors name it already
+			}
+			return nil, fmt.Errorf("%s: %w", name, errs[n])
 		}
 		if n > 0 && units[n] != units[0] {
 			return nil, fmt.Errorf("sonication %d: dose in %s, sonication %d in %s", so.Number, units[n], c.Sonications[0].Number, units[0])
@@ -343,8 +363,8 @@ func (s *Session) checkSettings(set Settings) error {
 	if set.doseModel() != s.prepared.doseModel() || !reflect.DeepEqual(normThermometry(set.Thermometry), normThermometry(s.prepared.Thermometry)) {
 		return errors.New("dose model parameters or thermometry options differ from those this session was prepared with; prepare it again")
 	}
-	if set.Trials < 0 {
-		return fmt.Errorf("%d Monte Carlo trials: want 0 or more", set.Trials)
+	if set.Trials < 0 || set.Trials > MaxTrials {
+		return fmt.Errorf("%d Monte Carlo trials: want 0 to %d", set.Trials, MaxTrials)
 	}
 	left := len(s.sons)
 	for _, e := range set.Excluded {
@@ -355,7 +375,11 @@ func (s *Session) checkSettings(set Settings) error {
 			}
 		}
 		if !found {
-			return fmt.Errorf("excluded sonication %d does not exist (sonications %v)", e, s.Sonications())
+			nums := make([]string, 0, len(s.sons))
+			for _, n := range s.Sonications() {
+				nums = append(nums, strconv.Itoa(n))
+			}
+			return fmt.Errorf("excluded sonication %d does not exist (the case has sonications %s)", e, strings.Join(nums, ", "))
 		}
 		left--
 	}

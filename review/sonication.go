@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"slices"
 	"sort"
 	"strconv"
 
@@ -169,23 +170,46 @@ func frameInterval(times []float64, f int) float64 {
 
 // mcCache keeps Monte Carlo trial doses between analyses: they depend on
 // the included sonications, the margin region, the trials and the seed, not
-// on the threshold.
+// on the threshold. Only the voxels whose outcome some analysis found
+// uncertain are computed (see mcSkipSigmas); later thresholds add the
+// voxels they need.
 type mcCache struct {
 	key    string
-	idx    []int       // coarse voxels computed (target+margin region)
+	slot   []int32     // per coarse voxel: its column in trials, -1 not computed
+	idx    []int       // coarse voxels computed, in column order
 	trials [][]float32 // per trial, cumulative dose at idx
-	noise  bool        // some included sonication had a noise estimate
+
+	region   []int     // coarse voxels of the target and margin region
+	lo, hi   []float32 // per region voxel, the dose bounds of boxDose (nil: not pruning)
+	boundsOK bool      // lo, hi computed
 }
+
+// mcSkipSigmas bounds the temperature error of a Monte Carlo frame. The
+// error of one frame is normal with standard deviation Sigma (see
+// dosemap.MonteCarlo), so it exceeds mcSkipSigmas·Sigma with probability
+// 2Φ(−8) ≈ 1.2e-15 (normal tail). Both dose models integrate a rate that
+// increases with temperature, with positive weights, so within that bound
+// a trial's dose lies between the doses of the thermometry with every
+// noisy frame moved down and up by 8·Sigma (computed once per analysis
+// for the region), and its log-dose moves by at most the larger distance
+// ln(hi/D) or ln(D/lo); an analysis voxel moves by at most Σ|w|·that over
+// its cubic taps w. A voxel whose interval lies entirely on one side of
+// the threshold has the noiseless outcome in every trial (except with
+// probability below 1.2e-15 per frame drawn) and is not simulated: only
+// the uncertain voxels and the taps of the uncertain analysis voxels are.
+const mcSkipSigmas = 8
 
 // uncertainty runs (or reuses) the Monte Carlo trials and fills the
 // percentiles of the covered fraction, the probability map and the hole
 // certainty of r.
 func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *doseCache) error {
 	var series []*dosemap.TemperatureSeries
+	var noisy []int // included sonications with thermometry noise
 	var fixed []int // included sonications without thermometry noise
 	for _, n := range dc.included {
 		if ts, ok := s.sons[n].series.(*dosemap.TemperatureSeries); ok && ts != nil {
 			series = append(series, ts)
+			noisy = append(noisy, n)
 		} else {
 			fixed = append(fixed, n)
 		}
@@ -198,13 +222,20 @@ func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *
 		r.Warnings = append(r.Warnings, fmt.Sprintf("%d included sonication(s) enter the Monte Carlo trials without noise (ready dose maps or resampled grids)", len(fixed)))
 	}
 	g, cg := s.fg.fine, s.fg.coarse
+	cl := cg.Len()
+	cs := cg.SliceLen()
 	key := dc.key + "|" + strconv.FormatFloat(set.MarginMM, 'g', -1, 64) + "|" + strconv.Itoa(set.Trials) + "|" + strconv.FormatUint(set.Seed, 10)
 	mc := s.mcCache
 	if mc == nil || mc.key != key {
+		mc = &mcCache{key: key, slot: make([]int32, cl), trials: make([][]float32, set.Trials)}
+		for n := range mc.slot {
+			mc.slot[n] = -1
+		}
+	}
+	if mc.region == nil {
 		// Coarse voxels whose stencil reaches a fine voxel of the target
 		// or its margin.
-		cmask := make([]bool, cg.Len())
-		cs := cg.SliceLen()
+		cmask := make([]bool, cl)
 		mm := float32(set.MarginMM)
 		for v, d := range s.dist {
 			if d > mm && s.occ[v] == 0 {
@@ -220,15 +251,148 @@ func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *
 				cmask[st.k[a]*cs+c] = true
 			}
 		}
-		mc = &mcCache{key: key}
+		mc.region = []int{}
 		for n, m := range cmask {
 			if m {
-				mc.idx = append(mc.idx, n)
+				mc.region = append(mc.region, n)
 			}
 		}
-		err := dosemap.MonteCarlo(series, set.doseModel(), cmask, set.Trials, set.Seed, func(trial int, dose []float32) {
-			out := make([]float32, len(mc.idx))
-			for q, n := range mc.idx {
+	}
+	region := mc.region
+	// Noiseless trial dose of the region (the noisy and the fixed part,
+	// added as the trials add them), its bounds (threshold-independent,
+	// kept with the trials) and the largest change of its log-dose.
+	thr := float32(set.Threshold)
+	lt := float32(math.Log(set.Threshold))
+	nominal := make([]float32, cl)
+	lnF := make([]float32, cl)
+	prune := !s.exhaustiveMC && len(region) > 0
+	if prune && !mc.boundsOK {
+		mc.lo = boxDose(series, set.doseModel(), region, -mcSkipSigmas)
+		mc.hi = boxDose(series, set.doseModel(), region, mcSkipSigmas)
+		mc.boundsOK = true
+	}
+	dLo, dHi := mc.lo, mc.hi
+	const certain, lethalAlways = 1, 2
+	state := make([]uint8, cl) // 0 uncertain, else certain (and lethal)
+	need := make([]bool, cl)
+	nan := float32(math.NaN())
+	for q, n := range region {
+		dn := nan
+		for _, sn := range noisy {
+			if y := s.sons[sn].dose[n]; y == y {
+				if dn != dn {
+					dn = 0
+				}
+				dn += y
+			}
+		}
+		df := float32(0)
+		hasFix := false
+		for _, sn := range fixed {
+			if y := s.sons[sn].dose[n]; y == y {
+				df += y
+				hasFix = true
+			}
+		}
+		x := dn
+		if hasFix {
+			if x != x {
+				x = 0
+			}
+			x += df
+		}
+		nominal[n] = x
+		if !prune {
+			need[n] = true
+			continue
+		}
+		switch {
+		case x != x:
+			state[n] = certain // NaN in every trial
+		case dn != dn:
+			state[n] = certain // no noisy sonication measured it
+		default:
+			lo, hi := float64(df), float64(df)
+			if y := dLo[q]; y == y {
+				lo += float64(y)
+			}
+			if y := dHi[q]; y == y {
+				hi += float64(y)
+			}
+			lx := float64(logDose(x))
+			lnF[n] = float32(math.Max(float64(logDose(float32(hi)))-lx, lx-float64(logDose(float32(lo)))))
+			switch {
+			case lo >= float64(thr)*(1+1e-4):
+				state[n] = certain
+			case hi < float64(thr)*(1-1e-4):
+				state[n] = certain
+			default:
+				need[n] = true
+			}
+		}
+		if state[n] == certain && x >= thr {
+			state[n] = lethalAlways
+		}
+	}
+	nomFull := make([]float32, cl) // noiseless trial log-dose on the coarse grid
+	for n := range nomFull {
+		nomFull[n] = logDose(0) // finite: cubic weights may be negative
+	}
+	for _, n := range region {
+		nomFull[n] = logDose(nominal[n])
+	}
+	// Monitored fine target voxels, and which of them are uncertain.
+	var tv []int
+	var mv float64
+	fstate := []uint8{}
+	for v, o := range s.occ {
+		if !(o > 0 && dc.monFine[v]) {
+			continue
+		}
+		tv = append(tv, v)
+		mv += float64(o)
+		if !prune {
+			fstate = append(fstate, 0)
+			continue
+		}
+		fi, fj, f := g.IJK(v)
+		st := &s.fg.slices[f]
+		c := s.fg.coarseIndex(fi, fj)
+		nf := s.fg.logAt(nomFull, v)
+		var b float32 = 1e-3 // float32 rounding
+		for a := 0; a < 4; a++ {
+			if st.w[a] != 0 {
+				b += float32(math.Abs(float64(st.w[a]))) * lnF[st.k[a]*cs+c]
+			}
+		}
+		switch {
+		case nf-b >= lt:
+			fstate = append(fstate, lethalAlways)
+		case nf+b < lt:
+			fstate = append(fstate, certain)
+		default:
+			fstate = append(fstate, 0)
+			for a := 0; a < 4; a++ {
+				if st.w[a] != 0 {
+					need[st.k[a]*cs+c] = true
+				}
+			}
+		}
+	}
+	// Simulate the needed voxels not computed yet.
+	missing := make([]bool, cl)
+	var add []int
+	for n, x := range need {
+		if x && mc.slot[n] < 0 {
+			missing[n] = true
+			add = append(add, n)
+		}
+	}
+	if len(add) > 0 {
+		err := dosemap.MonteCarlo(series, set.doseModel(), missing, set.Trials, set.Seed, func(trial int, dose []float32) {
+			row := mc.trials[trial]
+			for _, n := range add {
 				x := dose[n]
 				for _, sn := range fixed {
 					if y := s.sons[sn].dose[n]; y == y {
@@ -238,48 +402,49 @@ func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *
 						x += y
 					}
 				}
-				out[q] = x
+				row = append(row, x)
 			}
-			mc.trials = append(mc.trials, out)
+			mc.trials[trial] = row
 		})
 		if err != nil {
+			for t := range mc.trials {
+				mc.trials[t] = mc.trials[t][:min(len(mc.trials[t]), len(mc.idx))]
+			}
 			return fmt.Errorf("Monte Carlo: %w", err)
 		}
-		if err := ctx.Err(); err != nil {
-			return err
+		// The new columns are complete: record them before anything can
+		// return, so the cache stays consistent.
+		for _, n := range add {
+			mc.slot[n] = int32(len(mc.idx))
+			mc.idx = append(mc.idx, n)
 		}
-		s.mcCache = mc
+	}
+	s.mcCache = mc
+	if err := ctx.Err(); err != nil {
+		return err
 	}
 	// Per trial: covered fraction, and lethal counts per fine target voxel
 	// and per coarse voxel.
-	thr := float32(set.Threshold)
-	lt := float32(math.Log(set.Threshold))
-	cl := cg.Len()
-	full := make([]float32, cl) // trial log-dose on the whole coarse grid
-	for n := range full {
-		full[n] = logDose(0) // finite: cubic weights may be negative
-	}
-	var tv []int // monitored fine target voxels
-	var mv float64
-	for v, o := range s.occ {
-		if o > 0 && dc.monFine[v] {
-			tv = append(tv, v)
-			mv += float64(o)
+	full := slices.Clone(nomFull) // trial log-dose on the whole coarse grid
+	hits := make([]int, len(tv))
+	chits := make([]int, cl)
+	var sure float64 // target volume lethal in every trial
+	for a, v := range tv {
+		if fstate[a] == lethalAlways {
+			sure += float64(s.occ[v])
 		}
 	}
-	hits := make([]int, len(tv))
-	chits := make([]int, len(mc.idx))
 	fr := make([]float64, 0, len(mc.trials))
 	for _, tr := range mc.trials {
 		for q, n := range mc.idx {
 			full[n] = logDose(tr[q])
 			if tr[q] >= thr {
-				chits[q]++
+				chits[n]++
 			}
 		}
-		var cov float64
+		cov := sure
 		for a, v := range tv {
-			if s.fg.logAt(full, v) >= lt {
+			if fstate[a] == 0 && s.fg.logAt(full, v) >= lt {
 				hits[a]++
 				cov += float64(s.occ[v])
 			}
@@ -288,22 +453,31 @@ func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *
 			fr = append(fr, cov/mv)
 		}
 	}
-	nt := float64(len(mc.trials))
+	nt := len(mc.trials)
+	for a := range tv {
+		if fstate[a] == lethalAlways {
+			hits[a] = nt
+		}
+	}
 	if len(fr) > 0 {
 		sort.Float64s(fr)
 		r.CoveredFractionP05 = opt(quantile(fr, 0.05))
 		r.CoveredFractionP95 = opt(quantile(fr, 0.95))
 	}
-	r.Trials = len(mc.trials)
-	prob := dosemap.NewVolume(cg).Fill(float32(math.NaN()))
-	for q, n := range mc.idx {
-		prob.Data[n] = float32(float64(chits[q]) / nt)
+	r.Trials = nt
+	prob := dosemap.NewVolume(cg).Fill(nan)
+	for _, n := range region {
+		h := chits[n]
+		if mc.slot[n] < 0 && state[n] == lethalAlways {
+			h = nt
+		}
+		prob.Data[n] = float32(float64(h) / float64(nt))
 	}
 	r.Probability = prob
 	// Hole certainty from the fine-voxel lethal probability.
 	pf := make(map[int]float64, len(tv))
 	for a, v := range tv {
-		pf[v] = float64(hits[a]) / nt
+		pf[v] = float64(hits[a]) / float64(nt)
 	}
 	sum := make([]float64, len(r.Holes)+1)
 	cnt := make([]float64, len(r.Holes)+1)
@@ -327,6 +501,44 @@ func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *
 		}
 	}
 	return nil
+}
+
+// boxDose returns, for the region voxels, the summed dose of the series
+// with every noisy frame temperature (Sigma known, value valid) moved by
+// k·Sigma: the bound of a trial's dose when no frame error exceeds
+// |k|·Sigma (see mcSkipSigmas). NaN where no series measured the voxel.
+func boxDose(series []*dosemap.TemperatureSeries, m dosemap.DoseModel, region []int, k float64) []float32 {
+	out := make([]float32, len(region))
+	nan := float32(math.NaN())
+	for q := range out {
+		out[q] = nan
+	}
+	g := dosemap.NewAxialGeometry(len(region), 1, 1, dosemap.Vec3{1, 1, 1}, dosemap.Vec3{})
+	for _, ts := range series {
+		sh := &dosemap.TemperatureSeries{Geometry: g, Times: ts.Times, Frames: make([][]float32, len(ts.Frames))}
+		for f, fr := range ts.Frames {
+			c := make([]float32, len(region))
+			for q, n := range region {
+				v := fr[n]
+				if ts.Sigma != nil && v == v {
+					if sg := float64(ts.Sigma[n]); sg > 0 && !math.IsInf(sg, 0) {
+						v = float32(float64(v) + k*sg)
+					}
+				}
+				c[q] = v
+			}
+			sh.Frames[f] = c
+		}
+		for q, y := range m.Dose(sh).Data {
+			if y == y {
+				if out[q] != out[q] {
+					out[q] = 0
+				}
+				out[q] += y
+			}
+		}
+	}
+	return out
 }
 
 // quantile returns the p-quantile of sorted x by linear interpolation

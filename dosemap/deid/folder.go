@@ -33,7 +33,14 @@ type Result struct {
 	ShiftDays int // applied offset in DatesShift mode
 }
 
-func parse(path string, skipPixels bool) (dicom.Dataset, error) {
+// parse reads the file at path, turning a panic of the DICOM library on a
+// malformed file into an error wrapping errParserFailed.
+func parse(path string, skipPixels bool) (ds dicom.Dataset, err error) {
+	defer func() {
+		if r := recover(); r != nil {
+			err = errParserFailed // the panic's text means nothing to the user
+		}
+	}()
 	opts := []dicom.ParseOption{dicom.SkipProcessingPixelDataValue()}
 	if skipPixels {
 		opts = []dicom.ParseOption{dicom.SkipPixelData()}
@@ -46,7 +53,7 @@ func parse(path string, skipPixels bool) (dicom.Dataset, error) {
 func (d *Deidentifier) File(src, dst string) error {
 	ds, err := parse(src, false)
 	if err != nil {
-		return fmt.Errorf("reading %s: %w", src, err)
+		return fmt.Errorf("reading %s: %s", src, unreadable(src, err))
 	}
 	if err := d.Dataset(&ds); err != nil {
 		return fmt.Errorf("de-identifying %s: %w", src, err)
@@ -66,12 +73,8 @@ func (d *Deidentifier) File(src, dst string) error {
 // into a temporary folder beside dstDir and renamed into place when
 // complete.
 func Folder(ctx context.Context, srcDir, dstDir string, opt Options, progress func(done, total int)) (*Result, error) {
-	fi, err := os.Stat(srcDir)
-	if err != nil {
-		return nil, fmt.Errorf("reading %s: %w", srcDir, err)
-	}
-	if !fi.IsDir() {
-		return nil, fmt.Errorf("reading %s: not a folder", srcDir)
+	if err := safefile.CheckDir("case folder", srcDir); err != nil {
+		return nil, err
 	}
 	if err := safefile.CheckOutside(srcDir, dstDir); err != nil {
 		return nil, err
@@ -79,18 +82,21 @@ func Folder(ctx context.Context, srcDir, dstDir string, opt Options, progress fu
 	if in, err := safefile.Within(dstDir, srcDir); err == nil && in {
 		return nil, fmt.Errorf("refusing to write into %s: it contains the case folder %s", dstDir, srcDir)
 	}
+	if fi, err := os.Stat(dstDir); err == nil && !fi.IsDir() {
+		return nil, &safefile.PathError{What: "output folder", Path: dstDir, Err: safefile.ErrNotFolder}
+	}
 	if ents, err := os.ReadDir(dstDir); err == nil {
 		if len(ents) > 0 {
 			return nil, fmt.Errorf("output folder %s is not empty: give a new or empty folder", dstDir)
 		}
 	} else if !errors.Is(err, fs.ErrNotExist) {
-		return nil, fmt.Errorf("output folder %s: %w", dstDir, err)
+		return nil, &safefile.PathError{What: "output folder", Path: dstDir, Err: err}
 	}
 	var paths []string
 	var links []Skipped
-	err = filepath.WalkDir(srcDir, func(p string, e fs.DirEntry, err error) error {
+	err := filepath.WalkDir(srcDir, func(p string, e fs.DirEntry, err error) error {
 		if err != nil {
-			return fmt.Errorf("reading %s: %w", p, err)
+			return &safefile.PathError{What: "reading", Path: p, Err: err}
 		}
 		switch {
 		case e.Type().IsRegular():
@@ -119,7 +125,7 @@ func Folder(ctx context.Context, srcDir, dstDir string, opt Options, progress fu
 		}
 		ds, err := parse(p, true)
 		if err != nil {
-			res.Skipped = append(res.Skipped, Skipped{Path: p, Reason: "not a readable DICOM file (" + err.Error() + ")"})
+			res.Skipped = append(res.Skipped, Skipped{Path: p, Reason: unreadable(p, err)})
 			continue
 		}
 		d.Collect(&ds)
@@ -132,11 +138,11 @@ func Folder(ctx context.Context, srcDir, dstDir string, opt Options, progress fu
 	// at the end, so a failed or cancelled run leaves no partial copy.
 	parent := filepath.Dir(filepath.Clean(dstDir))
 	if err := os.MkdirAll(parent, 0o755); err != nil {
-		return nil, fmt.Errorf("creating %s: %w", parent, err)
+		return nil, &safefile.PathError{What: "creating output folder", Path: parent, Err: err}
 	}
 	tmp, err := os.MkdirTemp(parent, "."+filepath.Base(filepath.Clean(dstDir))+".part-*")
 	if err != nil {
-		return nil, fmt.Errorf("creating the output folder beside %s: %w", dstDir, err)
+		return nil, &safefile.PathError{What: "creating a temporary folder beside", Path: dstDir, Err: err}
 	}
 	done := false
 	defer func() {

@@ -13,6 +13,7 @@ import (
 
 	"dosecover/dosemap"
 
+	"dosecover/dosemap/safefile"
 	"github.com/suyashkumar/dicom"
 	"github.com/suyashkumar/dicom/pkg/tag"
 )
@@ -183,9 +184,16 @@ func looksLikeDICOM(data []byte) bool {
 // bytes are kept in fileInfo.Pixels. Panics inside the DICOM library are
 // recovered and reported as an unreadable file.
 func readFile(path string, pixels bool) (fi *fileInfo, err error) {
+	// Look at the start first, so that a large file that is not DICOM (a
+	// video, an archive) is never read into memory whole.
+	if head, err := readHead(path, 132); err != nil {
+		return nil, skip("cannot read: %s", safefile.Reason(err))
+	} else if len(head) > 0 && !looksLikeDICOM(head) {
+		return nil, skip("not a DICOM file (no DICM marker and no DICOM element at the start)")
+	}
 	data, err := os.ReadFile(path)
 	if err != nil {
-		return nil, skip("cannot read: %v", err)
+		return nil, skip("cannot read: %s", safefile.Reason(err))
 	}
 	// readBytes recovers panics of the DICOM library; this second guard
 	// keeps any other failure on one file from stopping the whole case.
@@ -214,6 +222,9 @@ func parse(data []byte, opts []dicom.ParseOption) (ds dicom.Dataset, panicked bo
 // DICOM library are recovered; the code of this package is not guarded
 // here, so that fuzzing finds its faults.
 func readBytes(path string, data []byte, pixels bool) (fi *fileInfo, err error) {
+	if len(data) == 0 {
+		return nil, skip("empty file (0 bytes)")
+	}
 	if !looksLikeDICOM(data) {
 		return nil, skip("not a DICOM file (no DICM marker and no DICOM element at the start)")
 	}
@@ -239,7 +250,9 @@ func readBytes(path string, data []byte, pixels bool) (fi *fileInfo, err error) 
 	}
 	ds, panicked, perr := parse(data, opts)
 	if panicked {
-		return nil, skip("unreadable: the DICOM parser failed (%v)", perr)
+		// The library's own failure (e.g. an index out of range) means
+		// nothing to the user; the cause is malformed data.
+		return nil, skip("unreadable: malformed DICOM data the parser cannot read (it stopped on an internal check)")
 	}
 	es := elems(ds.Elements)
 	if s := es.str(tag.TransferSyntaxUID); s != "" {
@@ -266,6 +279,9 @@ func readBytes(path string, data []byte, pixels bool) (fi *fileInfo, err error) 
 				where = "after " + tagName(es[len(es)-1].Tag)
 			}
 			return nil, skip("truncated: the file ends early (%s)", where)
+		}
+		if errors.Is(perr, dicom.ErrorMetaElementGroupLength) {
+			return nil, skip("unreadable: the file meta information does not start with its group length %s", tagName(tag.FileMetaInformationGroupLength))
 		}
 		return nil, skip("unreadable: %v", perr)
 	}
@@ -408,16 +424,8 @@ func (fi *fileInfo) frames(es elems, nf int) error {
 	if perFrame != nil && len(perFrame) != nf {
 		return skip("enhanced image: %d frames but %d items in %s", nf, len(perFrame), tagName(tagPerFrameGroups))
 	}
-	for _, f := range fi.Frames {
-		if f.Spacing[0] <= 0 || f.Spacing[1] <= 0 {
-			return skip("missing tag %s", tagName(tag.PixelSpacing))
-		}
-		if f.Row.Norm() == 0 || f.Col.Norm() == 0 {
-			return skip("missing tag %s", tagName(tag.ImageOrientationPatient))
-		}
-		if f.IPP[0] != f.IPP[0] {
-			return skip("missing tag %s", tagName(tag.ImagePositionPatient))
-		}
+	if err := checkPlanes(es, fi.Frames); err != nil {
+		return err
 	}
 	if fi.TE == 0 && len(fi.Frames) > 0 {
 		fi.TE = fi.Frames[0].TE
@@ -578,4 +586,19 @@ func frameTimeOf(es elems) clockTime {
 		return clockTime{Day: date, Sec: s, OK: true}
 	}
 	return clockTime{Day: -1}
+}
+
+// readHead returns up to n bytes from the start of the file at path.
+func readHead(path string, n int) ([]byte, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, err
+	}
+	defer f.Close()
+	b := make([]byte, n)
+	m, err := io.ReadFull(f, b)
+	if err == io.EOF || err == io.ErrUnexpectedEOF {
+		err = nil
+	}
+	return b[:m], err
 }

@@ -15,6 +15,7 @@ import (
 	"sync"
 
 	"dosecover/dosemap"
+	"dosecover/dosemap/safefile"
 )
 
 // LoadOptions tune Load.
@@ -117,20 +118,28 @@ func (o LoadOptions) workers() int {
 // listFiles returns the regular files under dir (following symbolic links
 // to files), sorted by path.
 func listFiles(dir string) ([]string, error) {
-	fi, err := os.Stat(dir)
-	if err != nil {
-		return nil, fmt.Errorf("reading case folder %s: %w", dir, err)
-	}
-	if !fi.IsDir() {
-		return nil, fmt.Errorf("reading case folder %s: not a folder", dir)
+	out, _, err := walkCase(dir)
+	return out, err
+}
+
+// walkCase returns the regular files under dir (following symbolic links
+// to files), sorted by path, and the sub-folders that could not be read,
+// as skipped entries with the reason (their path relative to dir ends in
+// a separator).
+func walkCase(dir string) ([]string, []SkippedFile, error) {
+	if err := safefile.CheckDir("case folder", dir); err != nil {
+		return nil, nil, err
 	}
 	var out []string
-	err = filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {
+	var unreadable []SkippedFile
+	err := filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {
 		if err != nil {
 			if p == dir {
 				return err
 			}
-			return nil // unreadable sub-folder: skipped below
+			rel, _ := filepath.Rel(dir, p)
+			unreadable = append(unreadable, SkippedFile{Path: rel + string(filepath.Separator), Reason: "folder cannot be read (" + safefile.Reason(err) + "); the files in it are not used"})
+			return nil
 		}
 		if d.IsDir() {
 			return nil
@@ -146,10 +155,10 @@ func listFiles(dir string) ([]string, error) {
 		return nil
 	})
 	if err != nil {
-		return nil, fmt.Errorf("reading case folder %s: %w", dir, err)
+		return nil, nil, &safefile.PathError{What: "reading case folder", Path: dir, Err: err}
 	}
 	sort.Strings(out)
-	return out, nil
+	return out, unreadable, nil
 }
 
 // readAll reads paths with n workers; fn is called once per path (from the
@@ -200,7 +209,7 @@ feed:
 }
 
 func scan(ctx context.Context, dir string, opt LoadOptions, progress func(done, total int)) (*caseReader, error) {
-	paths, err := listFiles(dir)
+	paths, unreadable, err := walkCase(dir)
 	if err != nil {
 		return nil, err
 	}
@@ -216,7 +225,7 @@ func scan(ctx context.Context, dir string, opt LoadOptions, progress func(done, 
 	cr.inv.Series = []SeriesInfo{}
 	cr.inv.Sonications = []SonicationInfo{}
 	cr.inv.Structures = []StructureInfo{}
-	cr.inv.Skipped = []SkippedFile{}
+	cr.inv.Skipped = append([]SkippedFile{}, unreadable...)
 	cr.inv.Problems = []string{}
 	cr.assemble(paths, infos, errs)
 	return cr, nil
@@ -247,6 +256,10 @@ func (cr *caseReader) assemble(paths []string, infos []*fileInfo, errs []error) 
 		if fi.Structures != nil {
 			cr.structs = append(cr.structs, fi.Structures)
 			cr.structFis = append(cr.structFis, fi)
+		}
+		if name, ok := imageStorage[fi.SOPClass]; ok && !fi.IsImage {
+			inv.Skipped = append(inv.Skipped, SkippedFile{Path: cr.rel(fi.Path), Reason: "no pixel data although its SOP class is " + name + ": the file is probably truncated"})
+			continue
 		}
 		if fi.SeriesUID == "" && fi.SOPClass == "1.2.840.10008.1.3.10" {
 			inv.Skipped = append(inv.Skipped, SkippedFile{Path: cr.rel(fi.Path), Reason: "DICOM directory (DICOMDIR): an index of files, not used (the folder is searched instead)"})
@@ -290,8 +303,13 @@ func (cr *caseReader) assemble(paths []string, infos []*fileInfo, errs []error) 
 	}
 	if len(cr.units) == 0 {
 		inv.NotReviewable = "no thermometry (phase), temperature-map or dose-map series found"
-		if len(inv.Skipped) > 0 {
-			inv.NotReviewable += fmt.Sprintf(" (%d files skipped, see below)", len(inv.Skipped))
+		switch s := inv.Skipped; {
+		case inv.Files == 0:
+			inv.NotReviewable = "the folder holds no files"
+		case len(s) == inv.Files:
+			inv.NotReviewable = fmt.Sprintf("none of its %d files could be used (%s: %s%s)", inv.Files, s[0].Path, s[0].Reason, andMore(len(s)-1))
+		case len(s) > 0:
+			inv.NotReviewable += fmt.Sprintf("; %d files skipped (%s: %s%s)", len(s), s[0].Path, s[0].Reason, andMore(len(s)-1))
 		}
 	} else {
 		inv.Reviewable = true
@@ -705,4 +723,23 @@ func (cr *caseReader) checkFrames() {
 			check(k, "structure set "+cr.rel(cr.structFis[n].Path))
 		}
 	}
+}
+
+// andMore returns ", and N more" for n > 0.
+func andMore(n int) string {
+	if n <= 0 {
+		return ""
+	}
+	return fmt.Sprintf(", and %d more", n)
+}
+
+// imageStorage names the image SOP classes (PS3.4 B.5) whose files must
+// carry pixel data (PS3.3 C.7.6.3, Type 1 in these IODs; RT Dose is left
+// out: its pixel data is conditional).
+var imageStorage = map[string]string{
+	"1.2.840.10008.5.1.4.1.1.4":   "MR Image Storage",
+	"1.2.840.10008.5.1.4.1.1.4.1": "Enhanced MR Image Storage",
+	"1.2.840.10008.5.1.4.1.1.2":   "CT Image Storage",
+	"1.2.840.10008.5.1.4.1.1.2.1": "Enhanced CT Image Storage",
+	"1.2.840.10008.5.1.4.1.1.7":   "Secondary Capture Image Storage",
 }

@@ -5,6 +5,7 @@ import (
 	"math"
 	"path/filepath"
 	"sort"
+	"strings"
 
 	"dosecover/dosemap"
 )
@@ -185,6 +186,23 @@ func buildStack(frames []frameRef) (*stack, error) {
 				nt = len(list)
 			}
 		}
+		// A time series repeats every slice position; frames repeating only
+		// a few positions of a single-time stack are duplicated slices.
+		repeated, named := 0, false
+		for _, list := range bySlice {
+			if len(list) > 1 {
+				repeated++
+			}
+		}
+		if nt > 1 && st.HasTimes && 2*repeated < ns {
+			for k, list := range bySlice {
+				if len(list) > 1 {
+					st.Problems = append(st.Problems, fmt.Sprintf("duplicated slice position: %s and %s have the same ImagePositionPatient (slice at %.2f mm); the earliest acquired is used",
+						frameName(list[0]), frameName(list[1]), positions[k]))
+				}
+			}
+			nt, named = 1, true
+		}
 		if nt > 1 && !st.HasTimes {
 			st.Problems = append(st.Problems, fmt.Sprintf("%d frames per slice position but no TemporalPositionIdentifier and no acquisition or content times to order them; treated as duplicated slices, the first of each is used", nt))
 			nt = 1
@@ -203,7 +221,7 @@ func buildStack(frames []frameRef) (*stack, error) {
 				}
 				st.Grid[t][k] = &r
 			}
-			if len(sorted) > nt {
+			if len(sorted) > nt && !named {
 				st.Problems = append(st.Problems, fmt.Sprintf("duplicated slices at %.2f mm: %d extra frames ignored", positions[k], len(sorted)-nt))
 			}
 		}
@@ -234,8 +252,8 @@ func buildStack(frames []frameRef) (*stack, error) {
 		if st.Missing > len(missing) {
 			more = fmt.Sprintf(" and %d more", st.Missing-len(missing))
 		}
-		st.Problems = append(st.Problems, fmt.Sprintf("missing frames: %d of %d×%d (%v%s); those voxels are marked not monitored",
-			st.Missing, len(st.Grid), ns, missing, more))
+		st.Problems = append(st.Problems, fmt.Sprintf("missing frames: %d of %d×%d (%s%s); those voxels are marked not monitored",
+			st.Missing, len(st.Grid), ns, strings.Join(missing, ", "), more))
 	}
 	if st.HasTimes {
 		for t := 1; t < len(st.Times); t++ {

@@ -28,7 +28,7 @@ func WriteFile(path string, write func(w io.Writer) error) (err error) {
 	dir := filepath.Dir(path)
 	fi, err := os.Stat(dir)
 	if err != nil {
-		return fmt.Errorf("writing %s: folder %s: %w", path, dir, err)
+		return &PathError{What: "writing " + path + ": folder", Path: dir, Err: err}
 	}
 	if !fi.IsDir() {
 		return fmt.Errorf("writing %s: %s is not a folder", path, dir)
@@ -38,7 +38,7 @@ func WriteFile(path string, write func(w io.Writer) error) (err error) {
 	}
 	tmp, err := os.CreateTemp(dir, "."+filepath.Base(path)+".part-*")
 	if err != nil {
-		return fmt.Errorf("writing %s: %w", path, err)
+		return &PathError{What: "writing", Path: path, Err: err}
 	}
 	defer func() {
 		if err != nil {
@@ -48,22 +48,22 @@ func WriteFile(path string, write func(w io.Writer) error) (err error) {
 	}()
 	bw := bufio.NewWriterSize(tmp, 1<<16)
 	if err = write(bw); err != nil {
-		return fmt.Errorf("writing %s: %w", path, err)
+		return &PathError{What: "writing", Path: path, Err: err}
 	}
 	if err = bw.Flush(); err != nil {
-		return fmt.Errorf("writing %s: %w", path, err)
+		return &PathError{What: "writing", Path: path, Err: err}
 	}
 	if err = tmp.Sync(); err != nil {
-		return fmt.Errorf("writing %s: %w", path, err)
+		return &PathError{What: "writing", Path: path, Err: err}
 	}
 	if err = tmp.Chmod(0o644); err != nil {
-		return fmt.Errorf("writing %s: %w", path, err)
+		return &PathError{What: "writing", Path: path, Err: err}
 	}
 	if err = tmp.Close(); err != nil {
-		return fmt.Errorf("writing %s: %w", path, err)
+		return &PathError{What: "writing", Path: path, Err: err}
 	}
 	if err = os.Rename(tmp.Name(), path); err != nil {
-		return fmt.Errorf("writing %s: %w", path, err)
+		return &PathError{What: "writing", Path: path, Err: err}
 	}
 	return nil
 }

@@ -10,6 +10,7 @@ import (
 	"time"
 
 	"dosecover/dosemap"
+	"dosecover/dosemap/safefile"
 )
 
 // DemoSeed is the seed of the built-in demo case.
@@ -112,7 +113,7 @@ func DemoSession() *Session {
 // should be empty) and returns its truth.
 func WriteDemo(dir string) (*Truth, error) {
 	if err := os.MkdirAll(dir, 0o755); err != nil {
-		return nil, fmt.Errorf("creating %s: %w", dir, err)
+		return nil, &safefile.PathError{What: "creating", Path: dir, Err: err}
 	}
 	return WriteSession(dir, DemoSession())
 }
@@ -264,7 +265,7 @@ func WriteCases(dir string, n int, seed uint64) ([]*Truth, error) {
 			return out, fmt.Errorf("writing %s: %w", sub, err)
 		}
 		if err := os.MkdirAll(sub, 0o755); err != nil {
-			return out, fmt.Errorf("creating %s: %w", sub, err)
+			return out, &safefile.PathError{What: "creating", Path: sub, Err: err}
 		}
 		t, err := WriteSession(sub, s)
 		if err != nil {

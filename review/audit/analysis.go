@@ -15,6 +15,7 @@ import (
 
 	"dosecover/dosemap"
 	"dosecover/dosemap/dicomio"
+	"dosecover/dosemap/safefile"
 	"dosecover/review"
 )
 
@@ -32,7 +33,7 @@ func LoadSettings(path string) (review.Settings, error) {
 	}
 	b, err := os.ReadFile(path)
 	if err != nil {
-		return s, fmt.Errorf("reading settings: %w", err)
+		return s, &safefile.PathError{What: "settings file", Path: path, Err: err}
 	}
 	d := json.NewDecoder(bytes.NewReader(b))
 	d.DisallowUnknownFields()
@@ -162,9 +163,9 @@ func corrupted(c *Case, inv *dicomio.Inventory) error {
 	case 0:
 		return nil
 	case 1:
-		return fmt.Errorf("unreadable file %s", bad[0])
+		return fmt.Errorf("cannot use file %s", bad[0])
 	}
-	return fmt.Errorf("unreadable file %s (and %d more)", bad[0], len(bad)-1)
+	return fmt.Errorf("cannot use file %s (and %d more)", bad[0], len(bad)-1)
 }
 
 // MetricsOf returns the summary figures of a Result: fractions in percent,

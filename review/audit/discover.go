@@ -13,6 +13,11 @@ import (
 	"sort"
 	"strconv"
 	"strings"
+
+	"dosecover/dosemap/safefile"
+
+	"github.com/suyashkumar/dicom"
+	"github.com/suyashkumar/dicom/pkg/tag"
 )
 
 // Case is one treatment session found below an input folder.
@@ -48,8 +53,11 @@ type Case struct {
 // DICOM files directly is one case, together with everything below it.
 // Otherwise each of its immediate subfolders that holds DICOM files at any
 // depth is one case, with everything below it (so a case may keep each
-// series in a subfolder of its own). For deeper registries pass the folders
-// one level above the cases, e.g. "registry/*/".
+// series in a subfolder of its own) — unless the DICOM files of all those
+// subfolders belong to one study (the same StudyInstanceUID, read from the
+// first DICOM file of each), in which case the folder given is itself one
+// case whose series sit in subfolders. For deeper registries pass the
+// folders one level above the cases, e.g. "registry/*/".
 //
 // Files are recognised as DICOM by their content (IsDICOM), never by name.
 // The cases are returned sorted by Name. An input that is not a readable
@@ -65,12 +73,8 @@ func Discover(inputs []string) (cases []Case, problems []string, err error) {
 		if err != nil {
 			return nil, nil, fmt.Errorf("input folder %s: %w", in, err)
 		}
-		fi, err := os.Stat(abs)
-		if err != nil {
-			return nil, nil, fmt.Errorf("input folder %s: %w", in, err)
-		}
-		if !fi.IsDir() {
-			return nil, nil, fmt.Errorf("input %s is not a folder", in)
+		if err := safefile.CheckDir("input folder", in); err != nil {
+			return nil, nil, err
 		}
 		if seen[abs] {
 			continue
@@ -93,6 +97,7 @@ func Discover(inputs []string) (cases []Case, problems []string, err error) {
 		if err != nil {
 			return nil, nil, fmt.Errorf("reading input folder %s: %w", in, err)
 		}
+		var subs []Case
 		for _, e := range entries {
 			if !e.IsDir() || strings.HasPrefix(e.Name(), ".") {
 				continue
@@ -111,12 +116,71 @@ func Discover(inputs []string) (cases []Case, problems []string, err error) {
 				problems = append(problems, err.Error())
 				continue
 			}
-			cases = append(cases, c)
+			subs = append(subs, c)
 		}
+		if len(subs) > 1 && oneStudy(subs) {
+			c, err := collect(abs, base)
+			if err != nil {
+				return nil, nil, err
+			}
+			subs = []Case{c}
+		}
+		cases = append(cases, subs...)
 	}
 	sort.Slice(cases, func(a, b int) bool { return cases[a].Name < cases[b].Name })
 	assignIDs(cases)
 	return cases, problems, nil
+}
+
+// oneStudy reports whether the first DICOM file of every case names the
+// same, non-empty StudyInstanceUID (0020,000D): the folders are then series
+// of one examination rather than separate cases.
+func oneStudy(cases []Case) bool {
+	study := ""
+	for _, c := range cases {
+		uid := firstStudyUID(c)
+		if uid == "" || (study != "" && uid != study) {
+			return false
+		}
+		study = uid
+	}
+	return true
+}
+
+// firstStudyUID returns the StudyInstanceUID of the first file of c that
+// parses as DICOM, or "" when none does. A parser panic on a malformed file
+// counts as "not DICOM".
+func firstStudyUID(c Case) string {
+	for _, rel := range c.Files {
+		p := filepath.Join(c.Dir, filepath.FromSlash(rel))
+		if ok, _ := IsDICOMFile(p); !ok {
+			continue
+		}
+		if uid := studyUIDOf(p); uid != "" {
+			return uid
+		}
+	}
+	return ""
+}
+
+func studyUIDOf(path string) (uid string) {
+	defer func() {
+		if recover() != nil {
+			uid = ""
+		}
+	}()
+	ds, err := dicom.ParseFile(path, nil, dicom.SkipPixelData())
+	if err != nil {
+		return ""
+	}
+	e, err := ds.FindElementByTag(tag.StudyInstanceUID)
+	if err != nil {
+		return ""
+	}
+	if v, ok := e.Value.GetValue().([]string); ok && len(v) > 0 {
+		return strings.TrimSpace(strings.TrimRight(v[0], "\x00"))
+	}
+	return ""
 }
 
 // holdsDICOMDirectly reports whether dir itself (not a subfolder) holds a

@@ -3,7 +3,6 @@ package audit
 import (
 	"context"
 	"encoding/json"
-	"errors"
 	"fmt"
 	"io"
 	"os"
@@ -16,6 +15,7 @@ import (
 	"time"
 
 	"dosecover/dosemap"
+	"dosecover/dosemap/safefile"
 )
 
 // Column is one settings column of the summary table, the same in every row
@@ -176,7 +176,7 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 	}
 
 	if err := os.MkdirAll(filepath.Join(outDir, "cases"), 0o755); err != nil {
-		return sum, fmt.Errorf("creating output folder: %w", err)
+		return sum, &safefile.PathError{What: "creating output folder", Path: cfg.OutDir, Err: err}
 	}
 	// Leftovers of a killed run. Shards may run at the same time into one
 	// output folder, so a shard removes only leftovers too old to belong to
@@ -513,9 +513,8 @@ func resolve(p string) (string, error) {
 		if err == nil {
 			return filepath.Join(r, rest), nil
 		}
-		if !errors.Is(err, os.ErrNotExist) {
-			return "", err
-		}
+		// Not there (or a part is a file): resolve the parent; the
+		// error, if any, shows when the folder is created or read.
 		parent := filepath.Dir(cur)
 		if parent == cur {
 			return abs, nil

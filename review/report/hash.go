@@ -1,6 +1,7 @@
 package report
 
 import (
+	"context"
 	"crypto/sha256"
 	"encoding/binary"
 	"encoding/hex"
@@ -19,10 +20,20 @@ import (
 // as 8 bytes big-endian and the content. Renaming, adding, removing or
 // changing any file changes the result. It only reads.
 func HashFolder(dir string) (string, error) {
+	sum, _, err := HashFolderContext(context.Background(), dir)
+	return sum, err
+}
+
+// HashFolderContext is HashFolder that also returns the number of files
+// hashed and stops with ctx's error when ctx is cancelled.
+func HashFolderContext(ctx context.Context, dir string) (string, int, error) {
 	var rels []string
 	err := filepath.WalkDir(dir, func(p string, e fs.DirEntry, err error) error {
 		if err != nil {
 			return fmt.Errorf("reading %s: %w", p, err)
+		}
+		if ctx.Err() != nil {
+			return ctx.Err()
 		}
 		if e.Type().IsRegular() {
 			r, err := filepath.Rel(dir, p)
@@ -34,20 +45,23 @@ func HashFolder(dir string) (string, error) {
 		return nil
 	})
 	if err != nil {
-		return "", err
+		return "", 0, err
 	}
 	sort.Strings(rels)
 	h := sha256.New()
 	for _, r := range rels {
+		if ctx.Err() != nil {
+			return "", 0, ctx.Err()
+		}
 		p := filepath.Join(dir, filepath.FromSlash(r))
 		f, err := os.Open(p)
 		if err != nil {
-			return "", fmt.Errorf("reading %s: %w", p, err)
+			return "", 0, fmt.Errorf("reading %s: %w", p, err)
 		}
 		fi, err := f.Stat()
 		if err != nil {
 			f.Close()
-			return "", fmt.Errorf("reading %s: %w", p, err)
+			return "", 0, fmt.Errorf("reading %s: %w", p, err)
 		}
 		io.WriteString(h, r)
 		var hdr [9]byte
@@ -56,11 +70,11 @@ func HashFolder(dir string) (string, error) {
 		n, err := io.Copy(h, f)
 		f.Close()
 		if err != nil {
-			return "", fmt.Errorf("reading %s: %w", p, err)
+			return "", 0, fmt.Errorf("reading %s: %w", p, err)
 		}
 		if n != fi.Size() {
-			return "", fmt.Errorf("reading %s: size changed while reading", p)
+			return "", 0, fmt.Errorf("reading %s: size changed while reading", p)
 		}
 	}
-	return hex.EncodeToString(h.Sum(nil)), nil
+	return hex.EncodeToString(h.Sum(nil)), len(rels), nil
 }
