@@ -491,7 +491,8 @@ func TestAuditViewFromMenu(t *testing.T) {
 }
 
 // TestAuditViewRealAnalysis audits one simulated session (dosemap/sim)
-// and a copy of it without its RTSTRUCT with the real analysis.
+// and, from a second input folder, a copy of it without its RTSTRUCT with
+// the real analysis.
 func TestAuditViewRealAnalysis(t *testing.T) {
 	if testing.Short() {
 		t.Skip("simulates and analyses a session; skipped with -short")
@@ -507,7 +508,11 @@ func TestAuditViewRealAnalysis(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	bare := filepath.Join(reg, "no-contours")
+	// The copy shares the study of the original, so it lies below a second
+	// input folder (below the same one, both would read as series of one
+	// case).
+	other := filepath.Join(tmp, "other")
+	bare := filepath.Join(other, "no-contours")
 	filepath.WalkDir(full, func(p string, d fs.DirEntry, err error) error {
 		if err != nil || d.IsDir() || strings.Contains(p, string(filepath.Separator)+"structures"+string(filepath.Separator)) {
 			return err
@@ -521,7 +526,7 @@ func TestAuditViewRealAnalysis(t *testing.T) {
 	set.Trials = 0 // keeps the test short
 	av, opened := testAuditView(t, test.NewTempApp(t), func() (review.Settings, string, string) { return set, "test settings", "" })
 	out := filepath.Join(tmp, "out")
-	runAuditView(t, av, out, reg)
+	runAuditView(t, av, out, reg, other)
 	if len(av.rows) != 2 {
 		t.Fatalf("%d rows (%s; %s)", len(av.rows), av.counts.Text, av.message.Text)
 	}
@@ -548,7 +553,7 @@ func TestAuditViewRealAnalysis(t *testing.T) {
 	if len(r.Artifacts) == 0 {
 		t.Error("no report written for the analysed case")
 	}
-	m := rowOfCase(t, av, "registry/no-contours")
+	m := rowOfCase(t, av, "other/no-contours")
 	if av.rows[m].Status != audit.StatusIncomplete || cells[[2]int{m, 1}] != "INCOMPLETE" || !strings.Contains(cells[[2]int{m, columnIndex("reason")}], "contour") {
 		t.Errorf("case without contours: %q %q", cells[[2]int{m, 1}], cells[[2]int{m, columnIndex("reason")}])
 	}
