@@ -238,6 +238,10 @@ func TestAuditViewStandInRunTableAndOpen(t *testing.T) {
 		t.Errorf("message %q does not name the summary", av.message.Text)
 	}
 
+	if !av.openBtn.Disabled() {
+		t.Error("Open case is enabled with no row selected")
+	}
+
 	// Sorting: tap the "covered %" header; empty values go last.
 	var covHeader *widget.Button
 	for _, b := range objectsOf[*widget.Button](av.table) {
@@ -248,7 +252,11 @@ func TestAuditViewStandInRunTableAndOpen(t *testing.T) {
 	if covHeader == nil {
 		t.Fatal("no header button \"covered %\"")
 	}
+	av.table.Select(widget.TableCellID{Row: rowOfCase(t, av, "registry/c"), Col: 2})
 	test.Tap(covHeader)
+	if av.selected < 0 || caseLabel(av.rows[av.selected]) != "registry/c" || !strings.HasPrefix(av.selInfo.Text, "registry/c: FAILED") {
+		t.Errorf("after sorting the selection points at row %d (%s)", av.selected, av.selInfo.Text)
+	}
 	if got := caseLabel(av.rows[0]) + " " + caseLabel(av.rows[1]); got != "registry/a registry/b" {
 		t.Errorf("ascending by coverage: %s first", got)
 	}
@@ -261,9 +269,6 @@ func TestAuditViewStandInRunTableAndOpen(t *testing.T) {
 	}
 
 	// Open case: select b, press the button.
-	if !av.openBtn.Disabled() {
-		t.Error("Open case is enabled with no row selected")
-	}
 	av.table.Select(widget.TableCellID{Row: rowOfCase(t, av, "registry/b"), Col: 0})
 	test.Tap(av.openBtn)
 	if len(*opened) != 1 || (*opened)[0] != filepath.Join(reg, "b") {
