@@ -254,6 +254,7 @@ func (rw *reviewWindow) mainMenu() *fyne.MainMenu {
 		fyne.NewMenuItem("Open folder…", rw.chooseFolder),
 		fyne.NewMenuItem("Open the demo case", func() { rw.openDemo() }),
 		recent,
+		fyne.NewMenuItemSeparator(), fyne.NewMenuItem("Audit many cases…", rw.openAuditView),
 	)
 	rw.fillRecentMenu(recent.ChildMenu)
 	review := fyne.NewMenu("Review",
