@@ -214,6 +214,11 @@ func parse(data []byte, opts []dicom.ParseOption) (ds dicom.Dataset, panicked bo
 // DICOM library are recovered; the code of this package is not guarded
 // here, so that fuzzing finds its faults.
 func readBytes(path string, data []byte, pixels bool) (fi *fileInfo, err error) {
+	return readBytesWith(path, data, pixels, fastAttrs)
+}
+
+// readBytesWith is readBytes with the direct attribute reader on or off.
+func readBytesWith(path string, data []byte, pixels, useFast bool) (fi *fileInfo, err error) {
 	if !looksLikeDICOM(data) {
 		return nil, skip("not a DICOM file (no DICM marker and no DICOM element at the start)")
 	}
@@ -231,17 +236,29 @@ func readBytes(path string, data []byte, pixels bool) (fi *fileInfo, err error) 
 		}
 		return nil, skip("corrupt: %v", err)
 	}
-	opts := []dicom.ParseOption{dicom.AllowMismatchPixelDataLength(), dicom.AllowUnknownSpecificCharacterSet()}
-	if pixels {
-		opts = append(opts, dicom.SkipProcessingPixelDataValue())
-	} else {
-		opts = append(opts, dicom.SkipPixelData())
+	var es elems
+	var perr error
+	fast := false
+	if useFast {
+		// Plain images in little-endian syntaxes: read directly (see
+		// fastattrs.go); everything else goes through the library.
+		es, fast = fastElems(data, pixels)
 	}
-	ds, panicked, perr := parse(data, opts)
-	if panicked {
-		return nil, skip("unreadable: the DICOM parser failed (%v)", perr)
+	if !fast {
+		opts := []dicom.ParseOption{dicom.AllowMismatchPixelDataLength(), dicom.AllowUnknownSpecificCharacterSet()}
+		if pixels {
+			opts = append(opts, dicom.SkipProcessingPixelDataValue())
+		} else {
+			opts = append(opts, dicom.SkipPixelData())
+		}
+		var ds dicom.Dataset
+		var panicked bool
+		ds, panicked, perr = parse(data, opts)
+		if panicked {
+			return nil, skip("unreadable: the DICOM parser failed (%v)", perr)
+		}
+		es = elems(ds.Elements)
 	}
-	es := elems(ds.Elements)
 	if s := es.str(tag.TransferSyntaxUID); s != "" {
 		syntax = s
 	}
