@@ -66,6 +66,7 @@ type fastReader struct {
 	implicit bool
 	pixels   bool
 	charset  bool // a SpecificCharacterSet was read: non-ASCII strings are declined
+	meta     bool // reading the file meta information
 }
 
 // fastElems returns the top-level elements of a plain image file as the
@@ -90,9 +91,11 @@ func fastElems(data []byte, pixels bool) (es elems, ok bool) {
 	}
 	es = make(elems, 0, 48)
 	var ok2 bool
+	r.meta = true
 	if es, ok2 = r.list(es, pos+12, int(metaEnd), 0, true); !ok2 {
 		return nil, false
 	}
+	r.meta = false
 	syntax := ""
 	for _, e := range es {
 		if e.Tag == tag.TransferSyntaxUID {
@@ -112,11 +115,6 @@ func fastElems(data []byte, pixels bool) (es elems, ok bool) {
 	nMeta := len(es)
 	if es, ok2 = r.list(es, int(metaEnd), len(data), 0, true); !ok2 {
 		return nil, false
-	}
-	for _, e := range es[nMeta:] {
-		if e.Tag.Group == 0x0002 {
-			return nil, false
-		}
 	}
 	// Plain images only.
 	body := es[nMeta:]
@@ -164,12 +162,25 @@ func (r *fastReader) element(pos, end, depth int, top bool) (*dicom.Element, int
 	if t.Group == 0xFFFE {
 		return nil, 0, false // items and delimiters only where sequences expect them
 	}
-	inMeta := t.Group == 0x0002 && top
+	if (t.Group == 0x0002) != r.meta {
+		return nil, 0, false // group 0002 outside the file meta information, or another group in it
+	}
 	var vr string
 	var vl uint32
 	valPos := pos + 8
-	if r.implicit && !inMeta {
-		vr = libraryVR(t, "", false)
+	if r.implicit && !r.meta {
+		// The library's VR for an implicit element: first VR of the
+		// dictionary entry (OW for pixel and overlay data), else UN.
+		vr = tag.UnknownVR
+		if info, err := tag.Find(t); err == nil {
+			if len(info.VRs) == 0 {
+				return nil, 0, false
+			}
+			vr = info.VRs[0]
+			if t == tag.PixelData || t == tag.OverlayData {
+				vr = "OW"
+			}
+		}
 		vl = binary.LittleEndian.Uint32(d[pos+4:])
 	} else {
 		vr = string(d[pos+4 : pos+6])
@@ -332,6 +343,9 @@ func (r *fastReader) seqElement(t tag.Tag, vr string, vl uint32, items [][]*dico
 // undefined true it ends with a sequence delimiter (the position after it
 // is returned), else at end.
 func (r *fastReader) sequence(pos, end int, undefined bool, depth int) ([][]*dicom.Element, int, bool) {
+	if depth > 16 {
+		return nil, 0, false
+	}
 	d := r.data
 	var items [][]*dicom.Element
 	for {
