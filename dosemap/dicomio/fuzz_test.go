@@ -73,3 +73,13 @@ func FuzzStructureSet(f *testing.F) {
 		}
 	})
 }
+
+// FuzzFastAttrs: on mutations of plain images the direct attribute reader
+// never panics and, when it takes a file, agrees with the DICOM library
+// element by element and on the fileInfo.
+func FuzzFastAttrs(f *testing.F) {
+	fuzzSeeds(f, "MR_small.dcm", "MR_small_implicit.dcm", "CT_small.dcm", "rtdose.dcm")
+	f.Fuzz(func(t *testing.T, data []byte) {
+		compareFast(t, "fuzz", data, len(data)%2 == 0)
+	})
+}
