@@ -214,7 +214,8 @@ func (r *fastReader) element(pos, end, depth int, top bool) (*dicom.Element, int
 		if !keep {
 			return nil, next, true
 		}
-		return r.seqElement(t, vr, vl, items), next, true
+		e, ok := seqElement(t, vr, vl, items)
+		return e, next, ok
 	}
 	if int64(valPos)+int64(vl) > int64(end) {
 		return nil, 0, false
@@ -242,7 +243,8 @@ func (r *fastReader) element(pos, end, depth int, top bool) (*dicom.Element, int
 		if !keep {
 			return nil, next, true
 		}
-		return r.seqElement(t, vr, vl, items), next, true
+		e, ok := seqElement(t, vr, vl, items)
+		return e, next, ok
 	case tag.VRBytes, tag.VRUnknown:
 		if vr == "OW" && vl%2 != 0 {
 			return nil, 0, false
@@ -331,12 +333,13 @@ func (r *fastReader) element(pos, end, depth int, top bool) (*dicom.Element, int
 	return &dicom.Element{Tag: t, ValueRepresentation: kind, RawValueRepresentation: vr, ValueLength: vl, Value: v}, next, true
 }
 
-func (r *fastReader) seqElement(t tag.Tag, vr string, vl uint32, items [][]*dicom.Element) *dicom.Element {
+// seqElement builds a sequence element from its items.
+func seqElement(t tag.Tag, vr string, vl uint32, items [][]*dicom.Element) (*dicom.Element, bool) {
 	v, err := dicom.NewValue(items)
 	if err != nil {
-		return nil
+		return nil, false
 	}
-	return &dicom.Element{Tag: t, ValueRepresentation: tag.GetVRKind(t, vr), RawValueRepresentation: vr, ValueLength: vl, Value: v}
+	return &dicom.Element{Tag: t, ValueRepresentation: tag.GetVRKind(t, vr), RawValueRepresentation: vr, ValueLength: vl, Value: v}, true
 }
 
 // sequence reads the items of a sequence whose content starts at pos; with
@@ -384,10 +387,7 @@ func (r *fastReader) sequence(pos, end int, undefined bool, depth int) ([][]*dic
 					break
 				}
 				e, next, ok := r.element(pos, end, depth+1, false)
-				if !ok {
-					return nil, 0, false
-				}
-				if e == nil {
+				if !ok || e == nil {
 					return nil, 0, false
 				}
 				it = append(it, e)
@@ -401,11 +401,6 @@ func (r *fastReader) sequence(pos, end int, undefined bool, depth int) ([][]*dic
 				return nil, 0, false
 			}
 			pos += int(vl)
-		}
-		for _, e := range it {
-			if e == nil {
-				return nil, 0, false
-			}
 		}
 		items = append(items, []*dicom.Element(it))
 	}
