@@ -87,10 +87,49 @@ func parallelFiles(paths []string, workers int, fn func(p string)) {
 // readFileTime times plain os.ReadFile of the same files with 2 workers;
 // the benchmarks run it right after each measured pass so that the ratio
 // compares like with like on a shared machine.
-func readFileTime(paths []string) time.Duration {
-	start := time.Now()
+func readFileTime(paths []string) (wall, cpu time.Duration) {
+	start, c0 := time.Now(), cpuTime()
 	parallelFiles(paths, 2, func(p string) { os.ReadFile(p) })
-	return time.Since(start)
+	return time.Since(start), cpuTime() - c0
+}
+
+// passTimes accumulates the wall and CPU time of the measured passes and
+// of the os.ReadFile reference run after each.
+type passTimes struct {
+	wall, cpu, baseWall, baseCPU time.Duration
+	peak                         uint64
+}
+
+// measure runs one measured pass (fn, with the peak heap sampled) and then,
+// with the timer stopped, the os.ReadFile reference.
+func (pt *passTimes) measure(b *testing.B, paths []string, fn func()) {
+	start, c0 := time.Now(), cpuTime()
+	p := peakHeap(fn)
+	pt.wall += time.Since(start)
+	pt.cpu += cpuTime() - c0
+	pt.peak = max(pt.peak, p)
+	b.StopTimer()
+	w, c := readFileTime(paths)
+	pt.baseWall += w
+	pt.baseCPU += c
+	b.StartTimer()
+}
+
+// withFast runs the benchmark body as two sub-benchmarks, "direct" (the
+// direct attribute reader of fastattrs.go) and "library" (every file
+// through the DICOM library).
+func withFast(b *testing.B, body func(b *testing.B)) {
+	for _, on := range []bool{true, false} {
+		name := "direct"
+		if !on {
+			name = "library"
+		}
+		b.Run(name, func(b *testing.B) {
+			defer func(v bool) { fastAttrs = v }(fastAttrs)
+			fastAttrs = on
+			body(b)
+		})
+	}
 }
 
 // peakHeap samples the live heap every millisecond while fn runs and
@@ -130,11 +169,20 @@ func peakHeap(fn func()) uint64 {
 	return peak - base
 }
 
-func report(b *testing.B, paths []string, elapsed, baseline time.Duration, peak uint64) {
-	b.ReportMetric(float64(len(paths)*b.N)/elapsed.Seconds(), "files/s")
-	b.ReportMetric(baseline.Seconds()/elapsed.Seconds(), "x_ReadFile")
+// report gives files/s by wall time and by CPU time, the ratios to
+// os.ReadFile of the same files (x_ReadFile by wall time, x_ReadFile_cpu by
+// CPU time: above 1 is faster than plain reading) and the peak heap over
+// the 16-bit pixel bytes.
+func report(b *testing.B, paths []string, pt *passTimes) {
+	files := float64(len(paths) * b.N)
+	b.ReportMetric(files/pt.wall.Seconds(), "files/s")
+	b.ReportMetric(pt.baseWall.Seconds()/pt.wall.Seconds(), "x_ReadFile")
+	if pt.cpu > 0 && pt.baseCPU > 0 {
+		b.ReportMetric(files/pt.cpu.Seconds(), "files/cpu-s")
+		b.ReportMetric(pt.baseCPU.Seconds()/pt.cpu.Seconds(), "x_ReadFile_cpu")
+	}
 	pixelBytes := float64(len(paths) * benchSide * benchSide * 2)
-	b.ReportMetric(float64(peak)/pixelBytes, "peak/pixelbytes")
+	b.ReportMetric(float64(pt.peak)/pixelBytes, "peak/pixelbytes")
 }
 
 // BenchmarkReadFile is the reference: os.ReadFile of every file, 2 workers.
@@ -163,57 +211,47 @@ func BenchmarkLibraryParse(b *testing.B) {
 	b.ReportMetric(float64(len(paths)*b.N)/time.Since(start).Seconds(), "files/s")
 }
 
-// BenchmarkScan is the inventory pass (attributes only), 2 workers.
+// BenchmarkScan is the inventory pass (attributes only), 2 workers, with
+// the direct attribute reader and with the library alone.
 func BenchmarkScan(b *testing.B) {
 	paths := benchPaths(b)
 	dir := benchFolder(b)
-	b.ResetTimer()
-	var elapsed, baseline time.Duration
-	var peak uint64
-	for n := 0; n < b.N; n++ {
-		start := time.Now()
-		p := peakHeap(func() {
-			inv, err := ScanOptions(context.Background(), dir, LoadOptions{Workers: 2}, nil)
-			if err != nil || len(inv.Sonications) != 1 {
-				b.Fatalf("scan: %v", err)
-			}
-		})
-		elapsed += time.Since(start)
-		peak = max(peak, p)
-		b.StopTimer()
-		baseline += readFileTime(paths)
-		b.StartTimer()
-	}
-	report(b, paths, elapsed, baseline, peak)
+	withFast(b, func(b *testing.B) {
+		var pt passTimes
+		for n := 0; n < b.N; n++ {
+			pt.measure(b, paths, func() {
+				inv, err := ScanOptions(context.Background(), dir, LoadOptions{Workers: 2}, nil)
+				if err != nil || len(inv.Sonications) != 1 {
+					b.Fatalf("scan: %v", err)
+				}
+			})
+		}
+		report(b, paths, &pt)
+	})
 }
 
 // BenchmarkLoad reads attributes and pixels of every file into one
-// sonication of 500 phase frames, 2 workers. The float32 result alone is
-// twice the 16-bit pixel bytes; "transient/pixelbytes" is the peak heap
-// above the result.
+// sonication of 500 phase frames, 2 workers, with the direct attribute
+// reader and with the library alone. The float32 result alone is twice the
+// 16-bit pixel bytes; "transient/pixelbytes" is the peak heap above the
+// result.
 func BenchmarkLoad(b *testing.B) {
 	paths := benchPaths(b)
 	dir := benchFolder(b)
-	b.ResetTimer()
-	var elapsed, baseline time.Duration
-	var peak uint64
-	for n := 0; n < b.N; n++ {
-		start := time.Now()
-		p := peakHeap(func() {
-			c, _, err := Load(context.Background(), dir, LoadOptions{Workers: 2}, nil)
-			if err != nil || len(c.Sonications) != 1 || c.Sonications[0].Frames() != benchFiles/benchSlices {
-				b.Fatalf("load: %v", err)
-			}
-		})
-		elapsed += time.Since(start)
-		peak = max(peak, p)
-		b.StopTimer()
-		baseline += readFileTime(paths)
-		b.StartTimer()
-	}
-	report(b, paths, elapsed, baseline, peak)
-	result := float64(benchFiles * benchSide * benchSide * 4)
-	b.ReportMetric((float64(peak)-result)/float64(benchFiles*benchSide*benchSide*2), "transient/pixelbytes")
+	withFast(b, func(b *testing.B) {
+		var pt passTimes
+		for n := 0; n < b.N; n++ {
+			pt.measure(b, paths, func() {
+				c, _, err := Load(context.Background(), dir, LoadOptions{Workers: 2}, nil)
+				if err != nil || len(c.Sonications) != 1 || c.Sonications[0].Frames() != benchFiles/benchSlices {
+					b.Fatalf("load: %v", err)
+				}
+			})
+		}
+		report(b, paths, &pt)
+		result := float64(benchFiles * benchSide * benchSide * 4)
+		b.ReportMetric((float64(pt.peak)-result)/float64(benchFiles*benchSide*benchSide*2), "transient/pixelbytes")
+	})
 }
 
 // BenchmarkDecodeFrame converts one frame of stored 16-bit values to

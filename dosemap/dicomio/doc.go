@@ -65,6 +65,12 @@
 // panics inside the library are recovered per file. Compressed transfer
 // syntaxes (JPEG, JPEG-LS, JPEG 2000, RLE, deflate) are not decoded.
 //
+// Plain image files (native pixel data, no functional groups) in Explicit
+// or Implicit VR Little Endian with the DICM preamble have their
+// attributes read directly from the file bytes, giving the values the
+// DICOM library gives; every other file, and any such file with something
+// unexpected in it, is read by the library.
+//
 // Scan reads attributes only (pixel data skipped); Load reads attributes,
 // then the pixel data of the files used, in parallel (LoadOptions.Workers,
 // default GOMAXPROCS), decoding stored values directly into the frames.

@@ -222,6 +222,11 @@ func parse(data []byte, opts []dicom.ParseOption) (ds dicom.Dataset, panicked bo
 // DICOM library are recovered; the code of this package is not guarded
 // here, so that fuzzing finds its faults.
 func readBytes(path string, data []byte, pixels bool) (fi *fileInfo, err error) {
+	return readBytesWith(path, data, pixels, fastAttrs)
+}
+
+// readBytesWith is readBytes with the direct attribute reader on or off.
+func readBytesWith(path string, data []byte, pixels, useFast bool) (fi *fileInfo, err error) {
 	if len(data) == 0 {
 		return nil, skip("empty file (0 bytes)")
 	}
@@ -242,19 +247,31 @@ func readBytes(path string, data []byte, pixels bool) (fi *fileInfo, err error) 
 		}
 		return nil, skip("corrupt: %v", err)
 	}
-	opts := []dicom.ParseOption{dicom.AllowMismatchPixelDataLength(), dicom.AllowUnknownSpecificCharacterSet()}
-	if pixels {
-		opts = append(opts, dicom.SkipProcessingPixelDataValue())
-	} else {
-		opts = append(opts, dicom.SkipPixelData())
+	var es elems
+	var perr error
+	fast := false
+	if useFast {
+		// Plain images in little-endian syntaxes: read directly (see
+		// fastattrs.go); everything else goes through the library.
+		es, fast = fastElems(data, pixels)
 	}
-	ds, panicked, perr := parse(data, opts)
-	if panicked {
-		// The library's own failure (e.g. an index out of range) means
-		// nothing to the user; the cause is malformed data.
-		return nil, skip("unreadable: malformed DICOM data the parser cannot read (it stopped on an internal check)")
+	if !fast {
+		opts := []dicom.ParseOption{dicom.AllowMismatchPixelDataLength(), dicom.AllowUnknownSpecificCharacterSet()}
+		if pixels {
+			opts = append(opts, dicom.SkipProcessingPixelDataValue())
+		} else {
+			opts = append(opts, dicom.SkipPixelData())
+		}
+		var ds dicom.Dataset
+		var panicked bool
+		ds, panicked, perr = parse(data, opts)
+		if panicked {
+			// The library's own failure (e.g. an index out of range) means
+			// nothing to the user; the cause is malformed data.
+			return nil, skip("unreadable: malformed DICOM data the parser cannot read (it stopped on an internal check)")
+		}
+		es = elems(ds.Elements)
 	}
-	es := elems(ds.Elements)
 	if s := es.str(tag.TransferSyntaxUID); s != "" {
 		syntax = s
 	}
