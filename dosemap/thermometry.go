@@ -314,7 +314,14 @@ type thermo struct {
 	magThr  float32   // absolute magnitude threshold
 	noise   []float64 // per-slice magnitude noise σ (nil when unknown)
 	pass    []float32 // stand-in magnitudes for phase-only series
-	out     *TemperatureSeries
+	runs    []int32   // [start, end) pairs of consecutive voxels with signal
+	ref32   []float32 // ref in float32 for the frame loop (rounding ≤ 1.2e-7 rad)
+	// drift[f*Slices+s] are the coefficients of the drift polynomial
+	// (see sliceFit.basis) removed from slice s of frame f in
+	// toTemperature, valid where hasDrift is set.
+	drift    [][6]float64
+	hasDrift []bool
+	out      *TemperatureSeries
 }
 
 func (t *thermo) run() *TemperatureSeries {
@@ -322,10 +329,11 @@ func (t *thermo) run() *TemperatureSeries {
 		Frames: make([][]float32, t.nf), Quality: make([]FrameQuality, t.nf)}
 	t.out = ts
 	t.baseline()
+	t.signalRuns()
 	ts.Sigma = t.sigma()
 	t.unwrap()
 	if t.opt.Drift != DriftNone {
-		t.drift()
+		t.removeDrift()
 	}
 	t.toTemperature()
 	if t.nb < t.opt.BaselineFrames {
@@ -416,6 +424,24 @@ func (t *thermo) baseline() {
 	}
 }
 
+// signalRuns records the runs of consecutive voxels with signal (a finite
+// reference phase), so the frame loops skip the background in blocks.
+func (t *thermo) signalRuns() {
+	t.runs = t.runs[:0]
+	t.ref32 = make([]float32, len(t.ref))
+	in := false
+	for n, r := range t.ref {
+		t.ref32[n] = float32(r)
+		if has := r == r; has != in {
+			t.runs = append(t.runs, int32(n))
+			in = has
+		}
+	}
+	if in {
+		t.runs = append(t.runs, int32(len(t.ref)))
+	}
+}
+
 // sigma estimates the per-voxel temperature noise from the baseline frames.
 func (t *thermo) sigma() []float32 {
 	sig := nanSlice(t.nv)
@@ -495,7 +521,9 @@ func (t *thermo) sigma() []float32 {
 func (t *thermo) unwrap() {
 	nv := t.nv
 	last := make([]float32, nv) // last valid unwrapped phase change
-	turns := make([]int32, nv)  // its number of turns
+	// Its number of turns; int16 holds ±32767 turns, i.e. phase changes of
+	// 2·10⁵ rad, far beyond any temperature.
+	turns := make([]int16, nv)
 	nan := float32(math.NaN())
 	const twoPi = 2 * math.Pi
 	const invTwoPi = 1 / twoPi
@@ -523,29 +551,40 @@ func (t *thermo) unwrap() {
 		}
 		thr := t.magThr
 		wraps := 0
-		// Equal lengths let the compiler drop the bounds checks.
-		ref, lastf, turnsf, outf := t.ref[:len(ph)], last[:len(ph)], turns[:len(ph)], out[:len(ph)]
 		if mf == nil {
 			mf = t.noMagnitude(len(ph))
 		}
-		mf = mf[:len(ph)]
-		for n, v := range ph {
-			r := ref[n]
-			if v != v || r != r || !(mf[n] >= thr) {
-				outf[n] = nan
-				continue
+		prev := 0
+		for r := 0; r < len(t.runs); r += 2 {
+			lo, hi := int(t.runs[r]), int(t.runs[r+1])
+			for n := prev; n < lo; n++ {
+				out[n] = nan // background: no signal
 			}
-			w := wrapPhase(float64(v) - r)
-			// Nearest turn count: floor by truncation after an offset of
-			// 2^20 turns (phase changes of a million turns do not occur).
-			k := float64(int64((float64(lastf[n])-w)*invTwoPi+0.5+1<<20)) - 1<<20
-			u := w + twoPi*k
-			if int32(k) != turnsf[n] {
-				wraps++
-				turnsf[n] = int32(k)
+			prev = hi
+			// Equal lengths let the compiler drop the bounds checks.
+			phr := ph[lo:hi]
+			ref, lastf, turnsf, outf, mr := t.ref32[lo:hi], last[lo:hi], turns[lo:hi], out[lo:hi], mf[lo:hi]
+			ref, lastf, turnsf, outf, mr = ref[:len(phr)], lastf[:len(phr)], turnsf[:len(phr)], outf[:len(phr)], mr[:len(phr)]
+			for n, v := range phr {
+				if v != v || !(mr[n] >= thr) {
+					outf[n] = nan
+					continue
+				}
+				w := wrapPhase(float64(v) - float64(ref[n]))
+				// Nearest turn count: floor by truncation after an offset of
+				// 2^20 turns (phase changes of a million turns do not occur).
+				k := float64(int64((float64(lastf[n])-w)*invTwoPi+0.5+1<<20)) - 1<<20
+				u := float32(w + twoPi*k)
+				if int16(k) != turnsf[n] {
+					wraps++
+					turnsf[n] = int16(k)
+				}
+				lastf[n] = u
+				outf[n] = u
 			}
-			lastf[n] = float32(u)
-			outf[n] = float32(u)
+		}
+		for n := prev; n < nv; n++ {
+			out[n] = nan
 		}
 		q.Wraps = wraps
 	}
@@ -563,45 +602,68 @@ func (t *thermo) noMagnitude(n int) []float32 {
 	return t.pass
 }
 
-// toTemperature converts the phase frames into °C and fills the counts.
+// toTemperature removes the drift polynomials recorded by removeDrift,
+// converts the phase frames into °C and fills the counts, in one pass per
+// frame: T = BodyTemp + (Δφ − d(x, y))/ppd.
 func (t *thermo) toTemperature() {
 	ppd := t.p.PhasePerDegree()
 	inv := 1 / ppd
 	body := t.opt.BodyTemp
 	g := t.g
 	sl := g.SliceLen()
+	xs := normCoords(g.Cols)
+	ys := normCoords(g.Rows)
 	for f, out := range t.out.Frames {
 		q := &t.out.Quality[f]
 		q.Drift *= inv
+		if q.Flagged {
+			q.Invalid = t.nv
+			continue
+		}
 		inval := 0
 		var mf []float32
-		if t.noise != nil && !q.Flagged {
+		if t.noise != nil {
 			mf = t.mag[f]
 		}
 		var snrSum float64
 		snrCnt := 0
 		for s := 0; s < g.Slices; s++ {
-			sv := out[s*sl : (s+1)*sl]
+			var cf [6]float64
+			if t.hasDrift != nil && t.hasDrift[f*g.Slices+s] {
+				cf = t.drift[f*g.Slices+s]
+			}
 			var msum float64
 			valid := 0
-			if mf != nil {
-				ms := mf[s*sl : (s+1)*sl]
-				ms = ms[:len(sv)]
-				for n, u := range sv {
-					if u != u {
-						continue
+			for j := 0; j < g.Rows; j++ {
+				row := s*sl + j*g.Cols
+				sv := out[row : row+g.Cols]
+				// d(x) = a + b·x + c·x² along the row, in °C offsets.
+				y := ys[j]
+				a := body - (cf[0]+cf[2]*y+cf[5]*y*y)*inv
+				bb := -(cf[1] + cf[4]*y) * inv
+				c := -cf[3] * inv
+				x := xs[:len(sv)]
+				if mf != nil {
+					ms := mf[row : row+g.Cols]
+					ms = ms[:len(sv)]
+					for i, u := range sv {
+						if u != u {
+							continue
+						}
+						xi := x[i]
+						sv[i] = float32(float64(u)*inv + (a + xi*(bb+xi*c)))
+						msum += float64(ms[i])
+						valid++
 					}
-					sv[n] = float32(body + float64(u)*inv)
-					msum += float64(ms[n])
-					valid++
-				}
-			} else {
-				for n, u := range sv {
-					if u != u {
-						continue
+				} else {
+					for i, u := range sv {
+						if u != u {
+							continue
+						}
+						xi := x[i]
+						sv[i] = float32(float64(u)*inv + (a + xi*(bb+xi*c)))
+						valid++
 					}
-					sv[n] = float32(body + float64(u)*inv)
-					valid++
 				}
 			}
 			inval += sl - valid
@@ -763,10 +825,16 @@ func (t *thermo) referenceMask() []bool {
 	return ref
 }
 
-// drift removes the background phase drift from the unwrapped frames and
-// records it in Quality.Drift (radians here; toTemperature converts).
-func (t *thermo) drift() {
+// removeDrift measures the background phase drift of the unwrapped frames,
+// records in t.drift the polynomial toTemperature subtracts and in
+// Quality.Drift its mean over the reference (radians here; toTemperature
+// converts).
+func (t *thermo) removeDrift() {
 	ref := t.referenceMask()
+	g := t.g
+	sl := g.SliceLen()
+	t.drift = make([][6]float64, t.nf*g.Slices)
+	t.hasDrift = make([]bool, t.nf*g.Slices)
 	if t.opt.Drift == DriftMean {
 		for f, fr := range t.out.Frames {
 			q := &t.out.Quality[f]
@@ -785,18 +853,17 @@ func (t *thermo) drift() {
 				q.Note = joinNote(q.Note, "no valid reference voxels: drift not corrected")
 				continue
 			}
-			d := float32(sum / float64(cnt))
-			for n, v := range fr {
-				if v == v {
-					fr[n] = v - d
-				}
+			// The float32 rounding keeps the value subtracted equal to the
+			// one reported.
+			d := float64(float32(sum / float64(cnt)))
+			for s := 0; s < g.Slices; s++ {
+				t.drift[f*g.Slices+s][0] = d
+				t.hasDrift[f*g.Slices+s] = true
 			}
-			q.Drift = float64(d)
+			q.Drift = d
 		}
 		return
 	}
-	g := t.g
-	sl := g.SliceLen()
 	fits := make([]*sliceFit, g.Slices)
 	for s := range fits {
 		fits[s] = newSliceFit(g, s, ref, t.baseMag, t.opt.DriftOrder)
@@ -809,11 +876,15 @@ func (t *thermo) drift() {
 		var dsum float64
 		dcnt := 0
 		for s, sf := range fits {
-			d, cnt, err := sf.remove(fr[s*sl : (s+1)*sl])
+			v := fr[s*sl : (s+1)*sl]
+			cf, err := sf.fit(v)
 			if err != nil {
 				q.Note = joinNote(q.Note, fmt.Sprintf("slice %d: drift not corrected: %v", s+1, err))
 				continue
 			}
+			d, cnt := sf.driftSum(v, cf)
+			t.drift[f*g.Slices+s] = cf
+			t.hasDrift[f*g.Slices+s] = true
 			dsum += d
 			dcnt += cnt
 		}
@@ -1006,14 +1077,9 @@ func (sf *sliceFit) fit(v []float32) ([6]float64, error) {
 	return cf, nil
 }
 
-// remove fits the polynomial to the phase change v (one slice) and subtracts
-// it from every valid voxel. It returns the sum of the removed drift over the
-// valid reference voxels and their number.
-func (sf *sliceFit) remove(v []float32) (float64, int, error) {
-	cf, err := sf.fit(v)
-	if err != nil {
-		return 0, 0, err
-	}
+// driftSum returns the sum of the polynomial cf over the valid reference
+// voxels of v (one slice) and their number.
+func (sf *sliceFit) driftSum(v []float32, cf [6]float64) (float64, int) {
 	var sum float64
 	cnt := 0
 	for j := 0; j < sf.rows; j++ {
@@ -1031,14 +1097,8 @@ func (sf *sliceFit) remove(v []float32) (float64, int, error) {
 				cnt++
 			}
 		}
-		for i, u := range row {
-			if u == u {
-				x := sf.x[i]
-				row[i] = float32(float64(u) - (a + x*(b+x*c)))
-			}
-		}
 	}
-	return sum, cnt, nil
+	return sum, cnt
 }
 
 // nthSmallest returns the k-th smallest value of v (0-based), reordering v
