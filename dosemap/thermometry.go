@@ -882,7 +882,7 @@ func (t *thermo) removeDrift() {
 				q.Note = joinNote(q.Note, fmt.Sprintf("slice %d: drift not corrected: %v", s+1, err))
 				continue
 			}
-			d, cnt := sf.driftSum(v, cf)
+			d, cnt := sf.driftSum(cf)
 			t.drift[f*g.Slices+s] = cf
 			t.hasDrift[f*g.Slices+s] = true
 			dsum += d
@@ -907,7 +907,8 @@ type sliceFit struct {
 	chol       *mat.Cholesky
 	err        error
 	full       [6][6]float64 // AᵀWA over every reference voxel (upper triangle)
-	nanP       []int32       // scratch: positions in idx of NaN voxels
+	nanP       []int32       // positions in idx of the NaN voxels found by the last fit
+	bsum       [6]float64    // basis summed over every reference voxel (unweighted)
 }
 
 func polyTerms(order int) int { return (order + 1) * (order + 2) / 2 }
@@ -936,6 +937,12 @@ func newSliceFit(g Geometry, s int, ref []bool, baseMag []float32, order int) *s
 		}
 	}
 	sf.rowStart[g.Rows] = int32(len(sf.idx))
+	for _, n := range sf.idx {
+		b := sf.basis(int(n))
+		for r := range sf.bsum {
+			sf.bsum[r] += b[r]
+		}
+	}
 	sf.chol, sf.err = sf.factor(nil, nil)
 	return sf
 }
@@ -1037,19 +1044,35 @@ func (sf *sliceFit) fit(v []float32) ([6]float64, error) {
 		}
 		row := j * sf.cols
 		var s0, s1, s2 float64
-		for p := lo; p < hi; p++ {
-			n := sf.idx[p]
-			u := v[n]
-			if u != u {
-				anyNaN = true
-				nan = append(nan, p)
-				continue
+		idx, w := sf.idx[lo:hi], sf.w[lo:hi]
+		w = w[:len(idx)]
+		if m > 3 {
+			for q, n := range idx {
+				u := v[n]
+				if u != u {
+					anyNaN = true
+					nan = append(nan, lo+int32(q))
+					continue
+				}
+				wu := w[q] * float64(u)
+				x := sf.x[int(n)-row]
+				s0 += wu
+				s1 += wu * x
+				s2 += wu * x * x
 			}
-			wu := sf.w[p] * float64(u)
-			x := sf.x[int(n)-row]
-			s0 += wu
-			s1 += wu * x
-			s2 += wu * x * x
+		} else {
+			// Orders 0 and 1 need no Σw·v·x².
+			for q, n := range idx {
+				u := v[n]
+				if u != u {
+					anyNaN = true
+					nan = append(nan, lo+int32(q))
+					continue
+				}
+				wu := w[q] * float64(u)
+				s0 += wu
+				s1 += wu * sf.x[int(n)-row]
+			}
 		}
 		y := sf.y[j]
 		rhs[0] += s0
@@ -1078,27 +1101,22 @@ func (sf *sliceFit) fit(v []float32) ([6]float64, error) {
 }
 
 // driftSum returns the sum of the polynomial cf over the valid reference
-// voxels of v (one slice) and their number.
-func (sf *sliceFit) driftSum(v []float32, cf [6]float64) (float64, int) {
-	var sum float64
-	cnt := 0
-	for j := 0; j < sf.rows; j++ {
-		y := sf.y[j]
-		// d(x) = a + b·x + c·x² along the row.
-		a := cf[0] + cf[2]*y + cf[5]*y*y
-		b := cf[1] + cf[4]*y
-		c := cf[3]
-		row := v[j*sf.cols : (j+1)*sf.cols]
-		for p := sf.rowStart[j]; p < sf.rowStart[j+1]; p++ {
-			i := int(sf.idx[p]) - j*sf.cols
-			if u := row[i]; u == u {
-				x := sf.x[i]
-				sum += a + x*(b+x*c)
-				cnt++
-			}
+// voxels of the slice last passed to fit, and their number: cf·Σb, with Σb
+// the basis summed over every reference voxel (newSliceFit) less the terms
+// of the voxels fit found NaN.
+func (sf *sliceFit) driftSum(cf [6]float64) (float64, int) {
+	bs := sf.bsum
+	for _, p := range sf.nanP {
+		b := sf.basis(int(sf.idx[p]))
+		for r := range bs {
+			bs[r] -= b[r]
 		}
 	}
-	return sum, cnt
+	var sum float64
+	for r := 0; r < sf.terms; r++ {
+		sum += cf[r] * bs[r]
+	}
+	return sum, len(sf.idx) - len(sf.nanP)
 }
 
 // nthSmallest returns the k-th smallest value of v (0-based), reordering v
