@@ -528,6 +528,10 @@ func (t *thermo) unwrap() {
 	const twoPi = 2 * math.Pi
 	const invTwoPi = 1 / twoPi
 	slab := make([]float32, t.nf*nv) // all frames in one allocation
+	var mc motionCheck
+	if t.mag != nil {
+		mc = newMotionCheck(t.baseMag, 2)
+	}
 	for f := 0; f < t.nf; f++ {
 		q := &t.out.Quality[f]
 		q.Time = t.s.Times[f]
@@ -538,7 +542,7 @@ func (t *thermo) unwrap() {
 		var mf []float32
 		if t.mag != nil {
 			mf = t.mag[f]
-			q.Motion = 1 - correlation(mf, t.baseMag, 2)
+			q.Motion = 1 - mc.correlation(mf)
 			if t.opt.MaxMotion > 0 && !(q.Motion <= t.opt.MaxMotion) {
 				q.Flagged = true
 				q.Note = fmt.Sprintf("motion: magnitude correlation with baseline %.3f below %.3f", 1-q.Motion, 1-t.opt.MaxMotion)
@@ -677,6 +681,66 @@ func (t *thermo) toTemperature() {
 			q.SNR = snrSum / float64(snrCnt)
 		}
 	}
+}
+
+// motionCheck correlates frames with a fixed baseline image over every
+// stride-th voxel. The baseline sample is centred once per series (b − b̄,
+// with Σ(b − b̄)² = sbb), so a frame costs the sums Σa, Σa² and Σa·(b − b̄):
+// r = Σa(b − b̄) / √((Σa² − (Σa)²/n)·sbb).
+type motionCheck struct {
+	b      []float32 // the baseline image
+	stride int
+	bc     []float32 // centred baseline sample; nil when it holds a NaN
+	sbb    float64
+}
+
+func newMotionCheck(b []float32, stride int) motionCheck {
+	mc := motionCheck{b: b, stride: stride}
+	var sb float64
+	n := 0
+	for i := 0; i < len(b); i += stride {
+		if b[i] != b[i] {
+			return mc
+		}
+		sb += float64(b[i])
+		n++
+	}
+	if n < 2 {
+		return mc
+	}
+	mean := sb / float64(n)
+	mc.bc = make([]float32, 0, n)
+	for i := 0; i < len(b); i += stride {
+		d := float64(b[i]) - mean
+		mc.bc = append(mc.bc, float32(d))
+		mc.sbb += float64(float32(d)) * float64(float32(d))
+	}
+	return mc
+}
+
+// correlation returns the Pearson correlation of a with the baseline (see
+// the function correlation, which it falls back to when a holds a NaN).
+func (mc *motionCheck) correlation(a []float32) float64 {
+	if mc.bc == nil || len(a) != len(mc.b) {
+		return correlation(a, mc.b, mc.stride)
+	}
+	var sa, saa, sab float64
+	bc := mc.bc
+	for i, q := 0, 0; i < len(a) && q < len(bc); i, q = i+mc.stride, q+1 {
+		x := float64(a[i])
+		sa += x
+		saa += x * x
+		sab += x * float64(bc[q])
+	}
+	if sa != sa {
+		return correlation(a, mc.b, mc.stride)
+	}
+	fn := float64(len(bc))
+	va := saa - sa*sa/fn
+	if !(va > 0) || !(mc.sbb > 0) {
+		return math.NaN()
+	}
+	return sab / math.Sqrt(va*mc.sbb)
 }
 
 // correlation returns the Pearson correlation of a and b over every
