@@ -391,18 +391,18 @@ func (t *thermo) baseline() {
 			return cnt[n] > 0 && m >= t.magThr && (t.magThr != 0 || m > 0)
 		}
 	}
-	re := make([]float64, nv)
-	im := make([]float64, nv)
-	has := make([]bool, nv)
-	for n := range has {
-		has[n] = signal(n)
-	}
-	for f := 0; f < t.nb; f++ {
-		ph := t.s.Phase[f]
-		for n, v := range ph {
-			if !has[n] {
-				continue
-			}
+	// arg Σ m·e^{iφ_f} = φ₀ + arg Σ m·e^{i(φ_f − φ₀)}, φ₀ the voxel's first
+	// valid baseline phase: the differences are mostly small (noise), where
+	// sincosSmall spares the general sine and cosine.
+	for n := range t.ref {
+		t.ref[n] = math.NaN()
+		if !signal(n) {
+			continue
+		}
+		var re, im, phi0 float64
+		first := true
+		for f := 0; f < t.nb; f++ {
+			v := t.s.Phase[f][n]
 			m := 1.0
 			if t.mag != nil {
 				m = float64(t.mag[f][n])
@@ -410,18 +410,33 @@ func (t *thermo) baseline() {
 			if v != v || m != m {
 				continue
 			}
-			sn, cs := math.Sincos(float64(v))
-			re[n] += m * cs
-			im[n] += m * sn
+			if first {
+				phi0, first = float64(v), false
+				re += m
+				continue
+			}
+			sn, cs := sincosSmall(float64(v) - phi0)
+			re += m * cs
+			im += m * sn
 		}
-	}
-	for n := range t.ref {
-		if !has[n] || (re[n] == 0 && im[n] == 0) {
-			t.ref[n] = math.NaN()
+		if re == 0 && im == 0 {
 			continue
 		}
-		t.ref[n] = math.Atan2(im[n], re[n])
+		t.ref[n] = wrapPhase(phi0 + math.Atan2(im, re))
 	}
+}
+
+// sincosSmall returns sin x and cos x: by their Taylor series to x¹¹ and
+// x¹² for |x| ≤ π/4 (truncation error below |x|¹³/13! ≈ 7e-12), else by
+// math.Sincos.
+func sincosSmall(x float64) (sin, cos float64) {
+	if !(x >= -math.Pi/4 && x <= math.Pi/4) {
+		return math.Sincos(x)
+	}
+	x2 := x * x
+	sin = x * (1 - x2/6*(1-x2/20*(1-x2/42*(1-x2/72*(1-x2/110)))))
+	cos = 1 - x2/2*(1-x2/12*(1-x2/30*(1-x2/56*(1-x2/90*(1-x2/132)))))
+	return sin, cos
 }
 
 // signalRuns records the runs of consecutive voxels with signal (a finite

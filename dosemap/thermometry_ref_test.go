@@ -213,3 +213,16 @@ func TestMotionCheckMatchesPearson(t *testing.T) {
 		}
 	}
 }
+
+// TestSincosSmall checks the series against math.Sincos (the standard
+// library's, accurate to an ulp) across and beyond the series range;
+// tolerance 1e-11 (truncation bound 7e-12 at π/4).
+func TestSincosSmall(t *testing.T) {
+	for x := -4.0; x <= 4; x += 1.0 / 1024 {
+		s, c := sincosSmall(x)
+		ws, wc := math.Sincos(x)
+		if math.Abs(s-ws) > 1e-11 || math.Abs(c-wc) > 1e-11 {
+			t.Fatalf("sincosSmall(%v) = %v, %v; math.Sincos %v, %v", x, s, c, ws, wc)
+		}
+	}
+}
