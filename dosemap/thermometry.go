@@ -434,8 +434,14 @@ func sincosSmall(x float64) (sin, cos float64) {
 		return math.Sincos(x)
 	}
 	x2 := x * x
-	sin = x * (1 - x2/6*(1-x2/20*(1-x2/42*(1-x2/72*(1-x2/110)))))
-	cos = 1 - x2/2*(1-x2/12*(1-x2/30*(1-x2/56*(1-x2/90*(1-x2/132)))))
+	// Horner form with the coefficients ±1/n! (constants, no division).
+	const (
+		s3, s5, s7, s9, s11 = -1.0 / 6, 1.0 / 120, -1.0 / 5040, 1.0 / 362880, -1.0 / 39916800
+		c2, c4, c6, c8, c10 = -1.0 / 2, 1.0 / 24, -1.0 / 720, 1.0 / 40320, -1.0 / 3628800
+		c12                 = 1.0 / 479001600
+	)
+	sin = x * (1 + x2*(s3+x2*(s5+x2*(s7+x2*(s9+x2*s11)))))
+	cos = 1 + x2*(c2+x2*(c4+x2*(c6+x2*(c8+x2*(c10+x2*c12)))))
 	return sin, cos
 }
 
