@@ -321,6 +321,14 @@ type thermo struct {
 	// toTemperature, valid where hasDrift is set.
 	drift    [][6]float64
 	hasDrift []bool
+	// Automatic reference: the lattice voxels with signal, their per-slice
+	// fits and the peak background-corrected phase change (referenceMask).
+	lat     []bool
+	latFits []*sliceFit
+	peak    []float64
+	// Drift correction: the reference region and its per-slice fits.
+	driftRef []bool
+	fits     []*sliceFit
 	out      *TemperatureSeries
 }
 
@@ -331,10 +339,10 @@ func (t *thermo) run() *TemperatureSeries {
 	t.baseline()
 	t.signalRuns()
 	ts.Sigma = t.sigma()
-	t.unwrap()
-	if t.opt.Drift != DriftNone {
-		t.removeDrift()
+	if t.opt.Drift != DriftNone && t.opt.Reference == nil {
+		t.startPeaks()
 	}
+	t.unwrap()
 	t.toTemperature()
 	if t.nb < t.opt.BaselineFrames {
 		ts.Quality[0].Note = joinNote(ts.Quality[0].Note, fmt.Sprintf("only %d baseline frames available", t.nb))
@@ -612,6 +620,9 @@ func (t *thermo) unwrap() {
 			out[n] = nan
 		}
 		q.Wraps = wraps
+		if t.latFits != nil && f >= t.nb {
+			t.updatePeaks(out) // while the frame is in cache
+		}
 	}
 }
 
@@ -627,9 +638,9 @@ func (t *thermo) noMagnitude(n int) []float32 {
 	return t.pass
 }
 
-// toTemperature removes the drift polynomials recorded by removeDrift,
-// converts the phase frames into °C and fills the counts, in one pass per
-// frame: T = BodyTemp + (Δφ − d(x, y))/ppd.
+// toTemperature measures and removes the drift (frameDrift), converts the
+// phase frames into °C and fills the counts, frame by frame while the frame
+// is in cache: T = BodyTemp + (Δφ − d(x, y))/ppd.
 func (t *thermo) toTemperature() {
 	ppd := t.p.PhasePerDegree()
 	inv := 1 / ppd
@@ -638,13 +649,19 @@ func (t *thermo) toTemperature() {
 	sl := g.SliceLen()
 	xs := normCoords(g.Cols)
 	ys := normCoords(g.Rows)
+	if t.opt.Drift != DriftNone {
+		t.startDrift()
+	}
 	for f, out := range t.out.Frames {
 		q := &t.out.Quality[f]
-		q.Drift *= inv
 		if q.Flagged {
 			q.Invalid = t.nv
 			continue
 		}
+		if t.opt.Drift != DriftNone {
+			t.frameDrift(f, out)
+		}
+		q.Drift *= inv
 		inval := 0
 		var mf []float32
 		if t.noise != nil {
@@ -805,6 +822,67 @@ func joinNote(a, b string) string {
 	return a + "; " + b
 }
 
+// startPeaks prepares the search for the hottest spot of the automatic
+// reference: the peak phase change on the lattice of even i and j, after
+// removing, frame by frame and slice by slice, a least-squares polynomial
+// (order max(1, DriftOrder)) fitted to the lattice voxels with signal, so
+// a drift is not taken for the hot spot (updatePeaks, per frame). The
+// hottest spot is located to within a voxel.
+func (t *thermo) startPeaks() {
+	g := t.g
+	t.lat = make([]bool, t.nv)
+	for n := range t.lat {
+		i, j, _ := g.IJK(n)
+		t.lat[n] = !math.IsNaN(t.ref[n]) && i%2 == 0 && j%2 == 0
+	}
+	order := 1
+	if t.opt.Drift == DriftPolynomial {
+		order = max(1, t.opt.DriftOrder)
+	}
+	t.latFits = make([]*sliceFit, g.Slices)
+	for s := range t.latFits {
+		t.latFits[s] = newSliceFit(g, s, t.lat, nil, order)
+	}
+	t.peak = make([]float64, t.nv)
+}
+
+// updatePeaks raises the lattice peaks with one unflagged frame of
+// unwrapped phase changes.
+func (t *thermo) updatePeaks(fr []float32) {
+	g := t.g
+	sl := g.SliceLen()
+	for s, sf := range t.latFits {
+		v := fr[s*sl : (s+1)*sl]
+		cf, err := sf.fit(v)
+		if err != nil {
+			// Too few voxels for the polynomial: use the lattice mean.
+			var sum float64
+			cnt := 0
+			for _, n := range sf.idx {
+				if x := v[n]; x == x {
+					sum += float64(x)
+					cnt++
+				}
+			}
+			cf = [6]float64{sum / float64(max(cnt, 1))}
+		}
+		pk := t.peak[s*sl : (s+1)*sl]
+		for j := 0; j < g.Rows; j++ {
+			y := sf.y[j]
+			a := cf[0] + cf[2]*y + cf[5]*y*y
+			b := cf[1] + cf[4]*y
+			c := cf[3]
+			for p := sf.rowStart[j]; p < sf.rowStart[j+1]; p++ {
+				n := int(sf.idx[p])
+				if u := v[n]; u == u {
+					x := sf.x[n-j*g.Cols]
+					pk[n] = max(pk[n], math.Abs(float64(u)-(a+x*(b+x*c))))
+				}
+			}
+		}
+	}
+}
+
 // referenceMask returns the drift reference region: opt.Reference, or the
 // automatic region (see ThermometryOptions.Reference), restricted to voxels
 // with signal.
@@ -818,58 +896,7 @@ func (t *thermo) referenceMask() []bool {
 		return ref
 	}
 	g := t.g
-	sl := g.SliceLen()
-	// Peak phase change on the lattice of even i and j, after removing,
-	// frame by frame and slice by slice, a least-squares polynomial (order
-	// max(1, DriftOrder)) fitted to the lattice voxels with signal, so a
-	// drift is not taken for the hot spot; then smoothed over the 3×3
-	// lattice neighbours. The hottest spot is located to within a voxel.
-	lat := make([]bool, nv)
-	for n := range lat {
-		i, j, _ := g.IJK(n)
-		lat[n] = !math.IsNaN(t.ref[n]) && i%2 == 0 && j%2 == 0
-	}
-	order := 1
-	if t.opt.Drift == DriftPolynomial {
-		order = max(1, t.opt.DriftOrder)
-	}
-	peak := make([]float64, nv)
-	for s := 0; s < g.Slices; s++ {
-		sf := newSliceFit(g, s, lat, nil, order)
-		for f := t.nb; f < t.nf; f++ {
-			if t.out.Quality[f].Flagged {
-				continue
-			}
-			v := t.out.Frames[f][s*sl : (s+1)*sl]
-			cf, err := sf.fit(v)
-			if err != nil {
-				// Too few voxels for the polynomial: use the lattice mean.
-				var sum float64
-				cnt := 0
-				for _, n := range sf.idx {
-					if x := v[n]; x == x {
-						sum += float64(x)
-						cnt++
-					}
-				}
-				cf = [6]float64{sum / float64(max(cnt, 1))}
-			}
-			pk := peak[s*sl : (s+1)*sl]
-			for j := 0; j < g.Rows; j++ {
-				y := sf.y[j]
-				a := cf[0] + cf[2]*y + cf[5]*y*y
-				b := cf[1] + cf[4]*y
-				c := cf[3]
-				for p := sf.rowStart[j]; p < sf.rowStart[j+1]; p++ {
-					n := int(sf.idx[p])
-					if u := v[n]; u == u {
-						x := sf.x[n-j*g.Cols]
-						pk[n] = max(pk[n], math.Abs(float64(u)-(a+x*(b+x*c))))
-					}
-				}
-			}
-		}
-	}
+	lat, peak := t.lat, t.peak
 	best, bi, bj := -1.0, 0, 0
 	for k := 0; k < g.Slices; k++ {
 		for j := 0; j < g.Rows; j += 2 {
@@ -910,72 +937,70 @@ func (t *thermo) referenceMask() []bool {
 	return ref
 }
 
-// removeDrift measures the background phase drift of the unwrapped frames,
-// records in t.drift the polynomial toTemperature subtracts and in
-// Quality.Drift its mean over the reference (radians here; toTemperature
-// converts).
-func (t *thermo) removeDrift() {
-	ref := t.referenceMask()
+// startDrift selects the drift reference region and prepares its
+// per-slice fits for frameDrift.
+func (t *thermo) startDrift() {
 	g := t.g
-	sl := g.SliceLen()
+	t.driftRef = t.referenceMask()
 	t.drift = make([][6]float64, t.nf*g.Slices)
 	t.hasDrift = make([]bool, t.nf*g.Slices)
-	if t.opt.Drift == DriftMean {
-		for f, fr := range t.out.Frames {
-			q := &t.out.Quality[f]
-			if q.Flagged {
-				continue
-			}
-			var sum float64
-			cnt := 0
-			for n, v := range fr {
-				if ref[n] && v == v {
-					sum += float64(v)
-					cnt++
-				}
-			}
-			if cnt == 0 {
-				q.Note = joinNote(q.Note, "no valid reference voxels: drift not corrected")
-				continue
-			}
-			// The float32 rounding keeps the value subtracted equal to the
-			// one reported.
-			d := float64(float32(sum / float64(cnt)))
-			for s := 0; s < g.Slices; s++ {
-				t.drift[f*g.Slices+s][0] = d
-				t.hasDrift[f*g.Slices+s] = true
-			}
-			q.Drift = d
+	if t.opt.Drift == DriftPolynomial {
+		t.fits = make([]*sliceFit, g.Slices)
+		for s := range t.fits {
+			t.fits[s] = newSliceFit(g, s, t.driftRef, t.baseMag, t.opt.DriftOrder)
 		}
+	}
+}
+
+// frameDrift measures the background phase drift of unflagged frame f
+// (unwrapped phase changes fr), records in t.drift the polynomial
+// toTemperature subtracts and in Quality.Drift its mean over the reference
+// (radians here; toTemperature converts).
+func (t *thermo) frameDrift(f int, fr []float32) {
+	g := t.g
+	sl := g.SliceLen()
+	q := &t.out.Quality[f]
+	if t.opt.Drift == DriftMean {
+		ref := t.driftRef[:len(fr)]
+		var sum float64
+		cnt := 0
+		for n, v := range fr {
+			if ref[n] && v == v {
+				sum += float64(v)
+				cnt++
+			}
+		}
+		if cnt == 0 {
+			q.Note = joinNote(q.Note, "no valid reference voxels: drift not corrected")
+			return
+		}
+		// The float32 rounding keeps the value subtracted equal to the
+		// one reported.
+		d := float64(float32(sum / float64(cnt)))
+		for s := 0; s < g.Slices; s++ {
+			t.drift[f*g.Slices+s][0] = d
+			t.hasDrift[f*g.Slices+s] = true
+		}
+		q.Drift = d
 		return
 	}
-	fits := make([]*sliceFit, g.Slices)
-	for s := range fits {
-		fits[s] = newSliceFit(g, s, ref, t.baseMag, t.opt.DriftOrder)
-	}
-	for f, fr := range t.out.Frames {
-		q := &t.out.Quality[f]
-		if q.Flagged {
+	var dsum float64
+	dcnt := 0
+	for s, sf := range t.fits {
+		v := fr[s*sl : (s+1)*sl]
+		cf, err := sf.fit(v)
+		if err != nil {
+			q.Note = joinNote(q.Note, fmt.Sprintf("slice %d: drift not corrected: %v", s+1, err))
 			continue
 		}
-		var dsum float64
-		dcnt := 0
-		for s, sf := range fits {
-			v := fr[s*sl : (s+1)*sl]
-			cf, err := sf.fit(v)
-			if err != nil {
-				q.Note = joinNote(q.Note, fmt.Sprintf("slice %d: drift not corrected: %v", s+1, err))
-				continue
-			}
-			d, cnt := sf.driftSum(cf)
-			t.drift[f*g.Slices+s] = cf
-			t.hasDrift[f*g.Slices+s] = true
-			dsum += d
-			dcnt += cnt
-		}
-		if dcnt > 0 {
-			q.Drift = dsum / float64(dcnt)
-		}
+		d, cnt := sf.driftSum(cf)
+		t.drift[f*g.Slices+s] = cf
+		t.hasDrift[f*g.Slices+s] = true
+		dsum += d
+		dcnt += cnt
+	}
+	if dcnt > 0 {
+		q.Drift = dsum / float64(dcnt)
 	}
 }
 
