@@ -1028,32 +1028,46 @@ func newSliceFit(g Geometry, s int, ref []bool, baseMag []float32, order int) *s
 	sf := &sliceFit{cols: g.Cols, rows: g.Rows, terms: polyTerms(order), rowStart: make([]int32, g.Rows+1)}
 	sf.x = normCoords(g.Cols)
 	sf.y = normCoords(g.Rows)
+	// One pass collects the reference voxels, the basis sums and the full
+	// normal matrix AᵀWA (upper triangle).
+	m := sf.terms
+	var a [6][6]float64
+	rs, ms := ref[s*sl:(s+1)*sl], []float32(nil)
+	if baseMag != nil {
+		ms = baseMag[s*sl : (s+1)*sl]
+	}
 	for j := 0; j < g.Rows; j++ {
 		sf.rowStart[j] = int32(len(sf.idx))
+		y := sf.y[j]
 		for i := 0; i < g.Cols; i++ {
 			n := j*g.Cols + i
-			if !ref[s*sl+n] {
+			if !rs[n] {
 				continue
 			}
 			w := 1.0
-			if baseMag != nil {
-				m := float64(baseMag[s*sl+n])
-				w = m * m
+			if ms != nil {
+				mg := float64(ms[n])
+				w = mg * mg
 			}
-			if w > 0 {
-				sf.idx = append(sf.idx, int32(n))
-				sf.w = append(sf.w, w)
+			if !(w > 0) {
+				continue
+			}
+			sf.idx = append(sf.idx, int32(n))
+			sf.w = append(sf.w, w)
+			x := sf.x[i]
+			b := [6]float64{1, x, y, x * x, x * y, y * y}
+			for r := 0; r < m; r++ {
+				sf.bsum[r] += b[r]
+				wr := w * b[r]
+				for c := r; c < m; c++ {
+					a[r][c] += wr * b[c]
+				}
 			}
 		}
 	}
 	sf.rowStart[g.Rows] = int32(len(sf.idx))
-	for _, n := range sf.idx {
-		b := sf.basis(int(n))
-		for r := range sf.bsum {
-			sf.bsum[r] += b[r]
-		}
-	}
-	sf.chol, sf.err = sf.factor(nil, nil)
+	sf.full = a
+	sf.chol, sf.err = sf.factorMatrix(&a, len(sf.idx))
 	return sf
 }
 
@@ -1106,6 +1120,16 @@ func (sf *sliceFit) factor(valid []float32, nan []int32) (*mat.Cholesky, error) 
 			cnt++
 			sf.addTerms(&a, p, n, 1)
 		}
+	}
+	return sf.factorMatrix(&a, cnt)
+}
+
+// factorMatrix factorises the normal matrix a (upper triangle) built over
+// cnt voxels.
+func (sf *sliceFit) factorMatrix(a *[6][6]float64, cnt int) (*mat.Cholesky, error) {
+	m := sf.terms
+	if len(sf.idx) < 3*m {
+		return nil, fmt.Errorf("only %d reference voxels for a %d-term drift fit", len(sf.idx), m)
 	}
 	if cnt < 3*m {
 		return nil, fmt.Errorf("only %d valid reference voxels for a %d-term drift fit", cnt, m)
