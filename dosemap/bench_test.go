@@ -118,7 +118,8 @@ func BenchmarkArrhenius(b *testing.B) {
 
 // BenchmarkThermometry measures phase-to-temperature conversion per frame
 // (target under 1 ms for one 128×128×6 frame), with and without drift
-// correction.
+// correction ("default" is DefaultThermometryOptions: polynomial of order 1,
+// automatic reference; "polynomial" is order 2).
 func BenchmarkThermometry(b *testing.B) {
 	for _, s := range []struct{ cols, frames int }{{64, 20}, {128, 20}, {128, 100}} {
 		p := newPhantom(s.cols, s.frames)
@@ -126,10 +127,16 @@ func BenchmarkThermometry(b *testing.B) {
 		p.rise = hotSpot(20, 2, 8)
 		p.snr = 40
 		son := p.sonication(true)
-		for _, d := range []DriftMethod{DriftNone, DriftMean, DriftPolynomial} {
-			b.Run(fmt.Sprintf("%dx%dx6/%d/%v", s.cols, s.cols, s.frames, d), func(b *testing.B) {
+		for _, d := range []DriftMethod{DriftNone, DriftMean, DriftPolynomial, -1} {
+			name := d.String()
+			if d < 0 {
+				name = "default"
+			}
+			b.Run(fmt.Sprintf("%dx%dx6/%d/%s", s.cols, s.cols, s.frames, name), func(b *testing.B) {
 				opt := DefaultThermometryOptions()
-				opt.Drift, opt.DriftOrder = d, 2
+				if d >= 0 {
+					opt.Drift, opt.DriftOrder = d, 2
+				}
 				cpu := startCPU(b)
 				for b.Loop() {
 					if _, err := Thermometry(son, opt); err != nil {

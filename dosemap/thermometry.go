@@ -314,7 +314,22 @@ type thermo struct {
 	magThr  float32   // absolute magnitude threshold
 	noise   []float64 // per-slice magnitude noise σ (nil when unknown)
 	pass    []float32 // stand-in magnitudes for phase-only series
-	out     *TemperatureSeries
+	runs    []int32   // [start, end) pairs of consecutive voxels with signal
+	ref32   []float32 // ref in float32 for the frame loop (rounding ≤ 1.2e-7 rad)
+	// drift[f*Slices+s] are the coefficients of the drift polynomial
+	// (see sliceFit.basis) removed from slice s of frame f in
+	// toTemperature, valid where hasDrift is set.
+	drift    [][6]float64
+	hasDrift []bool
+	// Automatic reference: the lattice voxels with signal, their per-slice
+	// fits and the peak background-corrected phase change (referenceMask).
+	lat     []bool
+	latFits []*sliceFit
+	peak    []float64
+	// Drift correction: the reference region and its per-slice fits.
+	driftRef []bool
+	fits     []*sliceFit
+	out      *TemperatureSeries
 }
 
 func (t *thermo) run() *TemperatureSeries {
@@ -322,11 +337,12 @@ func (t *thermo) run() *TemperatureSeries {
 		Frames: make([][]float32, t.nf), Quality: make([]FrameQuality, t.nf)}
 	t.out = ts
 	t.baseline()
+	t.signalRuns()
 	ts.Sigma = t.sigma()
-	t.unwrap()
-	if t.opt.Drift != DriftNone {
-		t.drift()
+	if t.opt.Drift != DriftNone && t.opt.Reference == nil {
+		t.startPeaks()
 	}
+	t.unwrap()
 	t.toTemperature()
 	if t.nb < t.opt.BaselineFrames {
 		ts.Quality[0].Note = joinNote(ts.Quality[0].Note, fmt.Sprintf("only %d baseline frames available", t.nb))
@@ -383,18 +399,18 @@ func (t *thermo) baseline() {
 			return cnt[n] > 0 && m >= t.magThr && (t.magThr != 0 || m > 0)
 		}
 	}
-	re := make([]float64, nv)
-	im := make([]float64, nv)
-	has := make([]bool, nv)
-	for n := range has {
-		has[n] = signal(n)
-	}
-	for f := 0; f < t.nb; f++ {
-		ph := t.s.Phase[f]
-		for n, v := range ph {
-			if !has[n] {
-				continue
-			}
+	// arg Σ m·e^{iφ_f} = φ₀ + arg Σ m·e^{i(φ_f − φ₀)}, φ₀ the voxel's first
+	// valid baseline phase: the differences are mostly small (noise), where
+	// sincosSmall spares the general sine and cosine.
+	for n := range t.ref {
+		t.ref[n] = math.NaN()
+		if !signal(n) {
+			continue
+		}
+		var re, im, phi0 float64
+		first := true
+		for f := 0; f < t.nb; f++ {
+			v := t.s.Phase[f][n]
 			m := 1.0
 			if t.mag != nil {
 				m = float64(t.mag[f][n])
@@ -402,17 +418,69 @@ func (t *thermo) baseline() {
 			if v != v || m != m {
 				continue
 			}
-			sn, cs := math.Sincos(float64(v))
-			re[n] += m * cs
-			im[n] += m * sn
+			if first {
+				phi0, first = float64(v), false
+				re += m
+				continue
+			}
+			sn, cs := sincosSmall(float64(v) - phi0)
+			re += m * cs
+			im += m * sn
 		}
-	}
-	for n := range t.ref {
-		if !has[n] || (re[n] == 0 && im[n] == 0) {
-			t.ref[n] = math.NaN()
+		if re == 0 && im == 0 {
 			continue
 		}
-		t.ref[n] = math.Atan2(im[n], re[n])
+		t.ref[n] = wrapPhase(phi0 + atan2Small(im, re))
+	}
+}
+
+// atan2Small returns math.Atan2(y, x); for x > 0 and |y| ≤ x/10 by the
+// Taylor series of atan(y/x) to the 11th power (truncation error below
+// 0.1¹³/13 ≈ 8e-15).
+func atan2Small(y, x float64) float64 {
+	if !(x > 0) || !(math.Abs(y) <= 0.1*x) {
+		return math.Atan2(y, x)
+	}
+	const a3, a5, a7, a9, a11 = -1.0 / 3, 1.0 / 5, -1.0 / 7, 1.0 / 9, -1.0 / 11
+	q := y / x
+	q2 := q * q
+	return q * (1 + q2*(a3+q2*(a5+q2*(a7+q2*(a9+q2*a11)))))
+}
+
+// sincosSmall returns sin x and cos x: by their Taylor series to x¹¹ and
+// x¹² for |x| ≤ π/4 (truncation error below |x|¹³/13! ≈ 7e-12), else by
+// math.Sincos.
+func sincosSmall(x float64) (sin, cos float64) {
+	if !(x >= -math.Pi/4 && x <= math.Pi/4) {
+		return math.Sincos(x)
+	}
+	x2 := x * x
+	// Horner form with the coefficients ±1/n! (constants, no division).
+	const (
+		s3, s5, s7, s9, s11 = -1.0 / 6, 1.0 / 120, -1.0 / 5040, 1.0 / 362880, -1.0 / 39916800
+		c2, c4, c6, c8, c10 = -1.0 / 2, 1.0 / 24, -1.0 / 720, 1.0 / 40320, -1.0 / 3628800
+		c12                 = 1.0 / 479001600
+	)
+	sin = x * (1 + x2*(s3+x2*(s5+x2*(s7+x2*(s9+x2*s11)))))
+	cos = 1 + x2*(c2+x2*(c4+x2*(c6+x2*(c8+x2*(c10+x2*c12)))))
+	return sin, cos
+}
+
+// signalRuns records the runs of consecutive voxels with signal (a finite
+// reference phase), so the frame loops skip the background in blocks.
+func (t *thermo) signalRuns() {
+	t.runs = t.runs[:0]
+	t.ref32 = make([]float32, len(t.ref))
+	in := false
+	for n, r := range t.ref {
+		t.ref32[n] = float32(r)
+		if has := r == r; has != in {
+			t.runs = append(t.runs, int32(n))
+			in = has
+		}
+	}
+	if in {
+		t.runs = append(t.runs, int32(len(t.ref)))
 	}
 }
 
@@ -495,11 +563,17 @@ func (t *thermo) sigma() []float32 {
 func (t *thermo) unwrap() {
 	nv := t.nv
 	last := make([]float32, nv) // last valid unwrapped phase change
-	turns := make([]int32, nv)  // its number of turns
+	// Its number of turns; int16 holds ±32767 turns, i.e. phase changes of
+	// 2·10⁵ rad, far beyond any temperature.
+	turns := make([]int16, nv)
 	nan := float32(math.NaN())
 	const twoPi = 2 * math.Pi
 	const invTwoPi = 1 / twoPi
 	slab := make([]float32, t.nf*nv) // all frames in one allocation
+	var mc motionCheck
+	if t.mag != nil {
+		mc = newMotionCheck(t.baseMag, 2)
+	}
 	for f := 0; f < t.nf; f++ {
 		q := &t.out.Quality[f]
 		q.Time = t.s.Times[f]
@@ -510,7 +584,7 @@ func (t *thermo) unwrap() {
 		var mf []float32
 		if t.mag != nil {
 			mf = t.mag[f]
-			q.Motion = 1 - correlation(mf, t.baseMag, 2)
+			q.Motion = 1 - mc.correlation(mf)
 			if t.opt.MaxMotion > 0 && !(q.Motion <= t.opt.MaxMotion) {
 				q.Flagged = true
 				q.Note = fmt.Sprintf("motion: magnitude correlation with baseline %.3f below %.3f", 1-q.Motion, 1-t.opt.MaxMotion)
@@ -523,31 +597,45 @@ func (t *thermo) unwrap() {
 		}
 		thr := t.magThr
 		wraps := 0
-		// Equal lengths let the compiler drop the bounds checks.
-		ref, lastf, turnsf, outf := t.ref[:len(ph)], last[:len(ph)], turns[:len(ph)], out[:len(ph)]
 		if mf == nil {
 			mf = t.noMagnitude(len(ph))
 		}
-		mf = mf[:len(ph)]
-		for n, v := range ph {
-			r := ref[n]
-			if v != v || r != r || !(mf[n] >= thr) {
-				outf[n] = nan
-				continue
+		prev := 0
+		for r := 0; r < len(t.runs); r += 2 {
+			lo, hi := int(t.runs[r]), int(t.runs[r+1])
+			for n := prev; n < lo; n++ {
+				out[n] = nan // background: no signal
 			}
-			w := wrapPhase(float64(v) - r)
-			// Nearest turn count: floor by truncation after an offset of
-			// 2^20 turns (phase changes of a million turns do not occur).
-			k := float64(int64((float64(lastf[n])-w)*invTwoPi+0.5+1<<20)) - 1<<20
-			u := w + twoPi*k
-			if int32(k) != turnsf[n] {
-				wraps++
-				turnsf[n] = int32(k)
+			prev = hi
+			// Equal lengths let the compiler drop the bounds checks.
+			phr := ph[lo:hi]
+			ref, lastf, turnsf, outf, mr := t.ref32[lo:hi], last[lo:hi], turns[lo:hi], out[lo:hi], mf[lo:hi]
+			ref, lastf, turnsf, outf, mr = ref[:len(phr)], lastf[:len(phr)], turnsf[:len(phr)], outf[:len(phr)], mr[:len(phr)]
+			for n, v := range phr {
+				if v != v || !(mr[n] >= thr) {
+					outf[n] = nan
+					continue
+				}
+				w := wrapPhase(float64(v) - float64(ref[n]))
+				// Nearest turn count: floor by truncation after an offset of
+				// 2^20 turns (phase changes of a million turns do not occur).
+				k := float64(int64((float64(lastf[n])-w)*invTwoPi+0.5+1<<20)) - 1<<20
+				u := float32(w + twoPi*k)
+				if int16(k) != turnsf[n] {
+					wraps++
+					turnsf[n] = int16(k)
+				}
+				lastf[n] = u
+				outf[n] = u
 			}
-			lastf[n] = float32(u)
-			outf[n] = float32(u)
+		}
+		for n := prev; n < nv; n++ {
+			out[n] = nan
 		}
 		q.Wraps = wraps
+		if t.latFits != nil && f >= t.nb {
+			t.updatePeaks(out) // while the frame is in cache
+		}
 	}
 }
 
@@ -563,45 +651,74 @@ func (t *thermo) noMagnitude(n int) []float32 {
 	return t.pass
 }
 
-// toTemperature converts the phase frames into °C and fills the counts.
+// toTemperature measures and removes the drift (frameDrift), converts the
+// phase frames into °C and fills the counts, frame by frame while the frame
+// is in cache: T = BodyTemp + (Δφ − d(x, y))/ppd.
 func (t *thermo) toTemperature() {
 	ppd := t.p.PhasePerDegree()
 	inv := 1 / ppd
 	body := t.opt.BodyTemp
 	g := t.g
 	sl := g.SliceLen()
+	xs := normCoords(g.Cols)
+	ys := normCoords(g.Rows)
+	if t.opt.Drift != DriftNone {
+		t.startDrift()
+	}
 	for f, out := range t.out.Frames {
 		q := &t.out.Quality[f]
+		if q.Flagged {
+			q.Invalid = t.nv
+			continue
+		}
+		if t.opt.Drift != DriftNone {
+			t.frameDrift(f, out)
+		}
 		q.Drift *= inv
 		inval := 0
 		var mf []float32
-		if t.noise != nil && !q.Flagged {
+		if t.noise != nil {
 			mf = t.mag[f]
 		}
 		var snrSum float64
 		snrCnt := 0
 		for s := 0; s < g.Slices; s++ {
-			sv := out[s*sl : (s+1)*sl]
+			var cf [6]float64
+			if t.hasDrift != nil && t.hasDrift[f*g.Slices+s] {
+				cf = t.drift[f*g.Slices+s]
+			}
 			var msum float64
 			valid := 0
-			if mf != nil {
-				ms := mf[s*sl : (s+1)*sl]
-				ms = ms[:len(sv)]
-				for n, u := range sv {
-					if u != u {
-						continue
+			for j := 0; j < g.Rows; j++ {
+				row := s*sl + j*g.Cols
+				sv := out[row : row+g.Cols]
+				// d(x) = a + b·x + c·x² along the row, in °C offsets.
+				y := ys[j]
+				a := body - (cf[0]+cf[2]*y+cf[5]*y*y)*inv
+				bb := -(cf[1] + cf[4]*y) * inv
+				c := -cf[3] * inv
+				x := xs[:len(sv)]
+				if mf != nil {
+					ms := mf[row : row+g.Cols]
+					ms = ms[:len(sv)]
+					for i, u := range sv {
+						if u != u {
+							continue
+						}
+						xi := x[i]
+						sv[i] = float32(float64(u)*inv + (a + xi*(bb+xi*c)))
+						msum += float64(ms[i])
+						valid++
 					}
-					sv[n] = float32(body + float64(u)*inv)
-					msum += float64(ms[n])
-					valid++
-				}
-			} else {
-				for n, u := range sv {
-					if u != u {
-						continue
+				} else {
+					for i, u := range sv {
+						if u != u {
+							continue
+						}
+						xi := x[i]
+						sv[i] = float32(float64(u)*inv + (a + xi*(bb+xi*c)))
+						valid++
 					}
-					sv[n] = float32(body + float64(u)*inv)
-					valid++
 				}
 			}
 			inval += sl - valid
@@ -615,6 +732,66 @@ func (t *thermo) toTemperature() {
 			q.SNR = snrSum / float64(snrCnt)
 		}
 	}
+}
+
+// motionCheck correlates frames with a fixed baseline image over every
+// stride-th voxel. The baseline sample is centred once per series (b − b̄,
+// with Σ(b − b̄)² = sbb), so a frame costs the sums Σa, Σa² and Σa·(b − b̄):
+// r = Σa(b − b̄) / √((Σa² − (Σa)²/n)·sbb).
+type motionCheck struct {
+	b      []float32 // the baseline image
+	stride int
+	bc     []float32 // centred baseline sample; nil when it holds a NaN
+	sbb    float64
+}
+
+func newMotionCheck(b []float32, stride int) motionCheck {
+	mc := motionCheck{b: b, stride: stride}
+	var sb float64
+	n := 0
+	for i := 0; i < len(b); i += stride {
+		if b[i] != b[i] {
+			return mc
+		}
+		sb += float64(b[i])
+		n++
+	}
+	if n < 2 {
+		return mc
+	}
+	mean := sb / float64(n)
+	mc.bc = make([]float32, 0, n)
+	for i := 0; i < len(b); i += stride {
+		d := float64(b[i]) - mean
+		mc.bc = append(mc.bc, float32(d))
+		mc.sbb += float64(float32(d)) * float64(float32(d))
+	}
+	return mc
+}
+
+// correlation returns the Pearson correlation of a with the baseline (see
+// the function correlation, which it falls back to when a holds a NaN).
+func (mc *motionCheck) correlation(a []float32) float64 {
+	if mc.bc == nil || len(a) != len(mc.b) {
+		return correlation(a, mc.b, mc.stride)
+	}
+	var sa, saa, sab float64
+	bc := mc.bc
+	for i, q := 0, 0; i < len(a) && q < len(bc); i, q = i+mc.stride, q+1 {
+		x := float64(a[i])
+		sa += x
+		saa += x * x
+		sab += x * float64(bc[q])
+	}
+	if sa != sa {
+		return correlation(a, mc.b, mc.stride)
+	}
+	fn := float64(len(bc))
+	va := saa - sa*sa/fn
+	if !(va > 0) || !(mc.sbb > 0) {
+		return math.NaN()
+	}
+	return sab / math.Sqrt(va*mc.sbb)
 }
 
 // correlation returns the Pearson correlation of a and b over every
@@ -658,6 +835,67 @@ func joinNote(a, b string) string {
 	return a + "; " + b
 }
 
+// startPeaks prepares the search for the hottest spot of the automatic
+// reference: the peak phase change on the lattice of even i and j, after
+// removing, frame by frame and slice by slice, a least-squares polynomial
+// (order max(1, DriftOrder)) fitted to the lattice voxels with signal, so
+// a drift is not taken for the hot spot (updatePeaks, per frame). The
+// hottest spot is located to within a voxel.
+func (t *thermo) startPeaks() {
+	g := t.g
+	t.lat = make([]bool, t.nv)
+	for n := range t.lat {
+		i, j, _ := g.IJK(n)
+		t.lat[n] = !math.IsNaN(t.ref[n]) && i%2 == 0 && j%2 == 0
+	}
+	order := 1
+	if t.opt.Drift == DriftPolynomial {
+		order = max(1, t.opt.DriftOrder)
+	}
+	t.latFits = make([]*sliceFit, g.Slices)
+	for s := range t.latFits {
+		t.latFits[s] = newSliceFit(g, s, t.lat, nil, order)
+	}
+	t.peak = make([]float64, t.nv)
+}
+
+// updatePeaks raises the lattice peaks with one unflagged frame of
+// unwrapped phase changes.
+func (t *thermo) updatePeaks(fr []float32) {
+	g := t.g
+	sl := g.SliceLen()
+	for s, sf := range t.latFits {
+		v := fr[s*sl : (s+1)*sl]
+		cf, err := sf.fit(v)
+		if err != nil {
+			// Too few voxels for the polynomial: use the lattice mean.
+			var sum float64
+			cnt := 0
+			for _, n := range sf.idx {
+				if x := v[n]; x == x {
+					sum += float64(x)
+					cnt++
+				}
+			}
+			cf = [6]float64{sum / float64(max(cnt, 1))}
+		}
+		pk := t.peak[s*sl : (s+1)*sl]
+		for j := 0; j < g.Rows; j++ {
+			y := sf.y[j]
+			a := cf[0] + cf[2]*y + cf[5]*y*y
+			b := cf[1] + cf[4]*y
+			c := cf[3]
+			for p := sf.rowStart[j]; p < sf.rowStart[j+1]; p++ {
+				n := int(sf.idx[p])
+				if u := v[n]; u == u {
+					x := sf.x[n-j*g.Cols]
+					pk[n] = max(pk[n], math.Abs(float64(u)-(a+x*(b+x*c))))
+				}
+			}
+		}
+	}
+}
+
 // referenceMask returns the drift reference region: opt.Reference, or the
 // automatic region (see ThermometryOptions.Reference), restricted to voxels
 // with signal.
@@ -671,58 +909,7 @@ func (t *thermo) referenceMask() []bool {
 		return ref
 	}
 	g := t.g
-	sl := g.SliceLen()
-	// Peak phase change on the lattice of even i and j, after removing,
-	// frame by frame and slice by slice, a least-squares polynomial (order
-	// max(1, DriftOrder)) fitted to the lattice voxels with signal, so a
-	// drift is not taken for the hot spot; then smoothed over the 3×3
-	// lattice neighbours. The hottest spot is located to within a voxel.
-	lat := make([]bool, nv)
-	for n := range lat {
-		i, j, _ := g.IJK(n)
-		lat[n] = !math.IsNaN(t.ref[n]) && i%2 == 0 && j%2 == 0
-	}
-	order := 1
-	if t.opt.Drift == DriftPolynomial {
-		order = max(1, t.opt.DriftOrder)
-	}
-	peak := make([]float64, nv)
-	for s := 0; s < g.Slices; s++ {
-		sf := newSliceFit(g, s, lat, nil, order)
-		for f := t.nb; f < t.nf; f++ {
-			if t.out.Quality[f].Flagged {
-				continue
-			}
-			v := t.out.Frames[f][s*sl : (s+1)*sl]
-			cf, err := sf.fit(v)
-			if err != nil {
-				// Too few voxels for the polynomial: use the lattice mean.
-				var sum float64
-				cnt := 0
-				for _, n := range sf.idx {
-					if x := v[n]; x == x {
-						sum += float64(x)
-						cnt++
-					}
-				}
-				cf = [6]float64{sum / float64(max(cnt, 1))}
-			}
-			pk := peak[s*sl : (s+1)*sl]
-			for j := 0; j < g.Rows; j++ {
-				y := sf.y[j]
-				a := cf[0] + cf[2]*y + cf[5]*y*y
-				b := cf[1] + cf[4]*y
-				c := cf[3]
-				for p := sf.rowStart[j]; p < sf.rowStart[j+1]; p++ {
-					n := int(sf.idx[p])
-					if u := v[n]; u == u {
-						x := sf.x[n-j*g.Cols]
-						pk[n] = max(pk[n], math.Abs(float64(u)-(a+x*(b+x*c))))
-					}
-				}
-			}
-		}
-	}
+	lat, peak := t.lat, t.peak
 	best, bi, bj := -1.0, 0, 0
 	for k := 0; k < g.Slices; k++ {
 		for j := 0; j < g.Rows; j += 2 {
@@ -763,63 +950,70 @@ func (t *thermo) referenceMask() []bool {
 	return ref
 }
 
-// drift removes the background phase drift from the unwrapped frames and
-// records it in Quality.Drift (radians here; toTemperature converts).
-func (t *thermo) drift() {
-	ref := t.referenceMask()
-	if t.opt.Drift == DriftMean {
-		for f, fr := range t.out.Frames {
-			q := &t.out.Quality[f]
-			if q.Flagged {
-				continue
-			}
-			var sum float64
-			cnt := 0
-			for n, v := range fr {
-				if ref[n] && v == v {
-					sum += float64(v)
-					cnt++
-				}
-			}
-			if cnt == 0 {
-				q.Note = joinNote(q.Note, "no valid reference voxels: drift not corrected")
-				continue
-			}
-			d := float32(sum / float64(cnt))
-			for n, v := range fr {
-				if v == v {
-					fr[n] = v - d
-				}
-			}
-			q.Drift = float64(d)
+// startDrift selects the drift reference region and prepares its
+// per-slice fits for frameDrift.
+func (t *thermo) startDrift() {
+	g := t.g
+	t.driftRef = t.referenceMask()
+	t.drift = make([][6]float64, t.nf*g.Slices)
+	t.hasDrift = make([]bool, t.nf*g.Slices)
+	if t.opt.Drift == DriftPolynomial {
+		t.fits = make([]*sliceFit, g.Slices)
+		for s := range t.fits {
+			t.fits[s] = newSliceFit(g, s, t.driftRef, t.baseMag, t.opt.DriftOrder)
 		}
-		return
 	}
+}
+
+// frameDrift measures the background phase drift of unflagged frame f
+// (unwrapped phase changes fr), records in t.drift the polynomial
+// toTemperature subtracts and in Quality.Drift its mean over the reference
+// (radians here; toTemperature converts).
+func (t *thermo) frameDrift(f int, fr []float32) {
 	g := t.g
 	sl := g.SliceLen()
-	fits := make([]*sliceFit, g.Slices)
-	for s := range fits {
-		fits[s] = newSliceFit(g, s, ref, t.baseMag, t.opt.DriftOrder)
+	q := &t.out.Quality[f]
+	if t.opt.Drift == DriftMean {
+		ref := t.driftRef[:len(fr)]
+		var sum float64
+		cnt := 0
+		for n, v := range fr {
+			if ref[n] && v == v {
+				sum += float64(v)
+				cnt++
+			}
+		}
+		if cnt == 0 {
+			q.Note = joinNote(q.Note, "no valid reference voxels: drift not corrected")
+			return
+		}
+		// The float32 rounding keeps the value subtracted equal to the
+		// one reported.
+		d := float64(float32(sum / float64(cnt)))
+		for s := 0; s < g.Slices; s++ {
+			t.drift[f*g.Slices+s][0] = d
+			t.hasDrift[f*g.Slices+s] = true
+		}
+		q.Drift = d
+		return
 	}
-	for f, fr := range t.out.Frames {
-		q := &t.out.Quality[f]
-		if q.Flagged {
+	var dsum float64
+	dcnt := 0
+	for s, sf := range t.fits {
+		v := fr[s*sl : (s+1)*sl]
+		cf, err := sf.fit(v)
+		if err != nil {
+			q.Note = joinNote(q.Note, fmt.Sprintf("slice %d: drift not corrected: %v", s+1, err))
 			continue
 		}
-		var dsum float64
-		dcnt := 0
-		for s, sf := range fits {
-			d, cnt, err := sf.remove(fr[s*sl : (s+1)*sl])
-			if err != nil {
-				q.Note = joinNote(q.Note, fmt.Sprintf("slice %d: drift not corrected: %v", s+1, err))
-				continue
-			}
-			dsum += d
-			dcnt += cnt
-		}
-		if dcnt > 0 {
-			q.Drift = dsum / float64(dcnt)
-		}
+		d, cnt := sf.driftSum(cf)
+		t.drift[f*g.Slices+s] = cf
+		t.hasDrift[f*g.Slices+s] = true
+		dsum += d
+		dcnt += cnt
+	}
+	if dcnt > 0 {
+		q.Drift = dsum / float64(dcnt)
 	}
 }
 
@@ -836,7 +1030,8 @@ type sliceFit struct {
 	chol       *mat.Cholesky
 	err        error
 	full       [6][6]float64 // AᵀWA over every reference voxel (upper triangle)
-	nanP       []int32       // scratch: positions in idx of NaN voxels
+	nanP       []int32       // positions in idx of the NaN voxels found by the last fit
+	bsum       [6]float64    // basis summed over every reference voxel (unweighted)
 }
 
 func polyTerms(order int) int { return (order + 1) * (order + 2) / 2 }
@@ -846,26 +1041,46 @@ func newSliceFit(g Geometry, s int, ref []bool, baseMag []float32, order int) *s
 	sf := &sliceFit{cols: g.Cols, rows: g.Rows, terms: polyTerms(order), rowStart: make([]int32, g.Rows+1)}
 	sf.x = normCoords(g.Cols)
 	sf.y = normCoords(g.Rows)
+	// One pass collects the reference voxels, the basis sums and the full
+	// normal matrix AᵀWA (upper triangle).
+	m := sf.terms
+	var a [6][6]float64
+	rs, ms := ref[s*sl:(s+1)*sl], []float32(nil)
+	if baseMag != nil {
+		ms = baseMag[s*sl : (s+1)*sl]
+	}
 	for j := 0; j < g.Rows; j++ {
 		sf.rowStart[j] = int32(len(sf.idx))
+		y := sf.y[j]
 		for i := 0; i < g.Cols; i++ {
 			n := j*g.Cols + i
-			if !ref[s*sl+n] {
+			if !rs[n] {
 				continue
 			}
 			w := 1.0
-			if baseMag != nil {
-				m := float64(baseMag[s*sl+n])
-				w = m * m
+			if ms != nil {
+				mg := float64(ms[n])
+				w = mg * mg
 			}
-			if w > 0 {
-				sf.idx = append(sf.idx, int32(n))
-				sf.w = append(sf.w, w)
+			if !(w > 0) {
+				continue
+			}
+			sf.idx = append(sf.idx, int32(n))
+			sf.w = append(sf.w, w)
+			x := sf.x[i]
+			b := [6]float64{1, x, y, x * x, x * y, y * y}
+			for r := 0; r < m; r++ {
+				sf.bsum[r] += b[r]
+				wr := w * b[r]
+				for c := r; c < m; c++ {
+					a[r][c] += wr * b[c]
+				}
 			}
 		}
 	}
 	sf.rowStart[g.Rows] = int32(len(sf.idx))
-	sf.chol, sf.err = sf.factor(nil, nil)
+	sf.full = a
+	sf.chol, sf.err = sf.factorMatrix(&a, len(sf.idx))
 	return sf
 }
 
@@ -919,6 +1134,16 @@ func (sf *sliceFit) factor(valid []float32, nan []int32) (*mat.Cholesky, error) 
 			sf.addTerms(&a, p, n, 1)
 		}
 	}
+	return sf.factorMatrix(&a, cnt)
+}
+
+// factorMatrix factorises the normal matrix a (upper triangle) built over
+// cnt voxels.
+func (sf *sliceFit) factorMatrix(a *[6][6]float64, cnt int) (*mat.Cholesky, error) {
+	m := sf.terms
+	if len(sf.idx) < 3*m {
+		return nil, fmt.Errorf("only %d reference voxels for a %d-term drift fit", len(sf.idx), m)
+	}
 	if cnt < 3*m {
 		return nil, fmt.Errorf("only %d valid reference voxels for a %d-term drift fit", cnt, m)
 	}
@@ -966,19 +1191,35 @@ func (sf *sliceFit) fit(v []float32) ([6]float64, error) {
 		}
 		row := j * sf.cols
 		var s0, s1, s2 float64
-		for p := lo; p < hi; p++ {
-			n := sf.idx[p]
-			u := v[n]
-			if u != u {
-				anyNaN = true
-				nan = append(nan, p)
-				continue
+		idx, w := sf.idx[lo:hi], sf.w[lo:hi]
+		w = w[:len(idx)]
+		if m > 3 {
+			for q, n := range idx {
+				u := v[n]
+				if u != u {
+					anyNaN = true
+					nan = append(nan, lo+int32(q))
+					continue
+				}
+				wu := w[q] * float64(u)
+				x := sf.x[int(n)-row]
+				s0 += wu
+				s1 += wu * x
+				s2 += wu * x * x
 			}
-			wu := sf.w[p] * float64(u)
-			x := sf.x[int(n)-row]
-			s0 += wu
-			s1 += wu * x
-			s2 += wu * x * x
+		} else {
+			// Orders 0 and 1 need no Σw·v·x².
+			for q, n := range idx {
+				u := v[n]
+				if u != u {
+					anyNaN = true
+					nan = append(nan, lo+int32(q))
+					continue
+				}
+				wu := w[q] * float64(u)
+				s0 += wu
+				s1 += wu * sf.x[int(n)-row]
+			}
 		}
 		y := sf.y[j]
 		rhs[0] += s0
@@ -1006,39 +1247,23 @@ func (sf *sliceFit) fit(v []float32) ([6]float64, error) {
 	return cf, nil
 }
 
-// remove fits the polynomial to the phase change v (one slice) and subtracts
-// it from every valid voxel. It returns the sum of the removed drift over the
-// valid reference voxels and their number.
-func (sf *sliceFit) remove(v []float32) (float64, int, error) {
-	cf, err := sf.fit(v)
-	if err != nil {
-		return 0, 0, err
+// driftSum returns the sum of the polynomial cf over the valid reference
+// voxels of the slice last passed to fit, and their number: cf·Σb, with Σb
+// the basis summed over every reference voxel (newSliceFit) less the terms
+// of the voxels fit found NaN.
+func (sf *sliceFit) driftSum(cf [6]float64) (float64, int) {
+	bs := sf.bsum
+	for _, p := range sf.nanP {
+		b := sf.basis(int(sf.idx[p]))
+		for r := range bs {
+			bs[r] -= b[r]
+		}
 	}
 	var sum float64
-	cnt := 0
-	for j := 0; j < sf.rows; j++ {
-		y := sf.y[j]
-		// d(x) = a + b·x + c·x² along the row.
-		a := cf[0] + cf[2]*y + cf[5]*y*y
-		b := cf[1] + cf[4]*y
-		c := cf[3]
-		row := v[j*sf.cols : (j+1)*sf.cols]
-		for p := sf.rowStart[j]; p < sf.rowStart[j+1]; p++ {
-			i := int(sf.idx[p]) - j*sf.cols
-			if u := row[i]; u == u {
-				x := sf.x[i]
-				sum += a + x*(b+x*c)
-				cnt++
-			}
-		}
-		for i, u := range row {
-			if u == u {
-				x := sf.x[i]
-				row[i] = float32(float64(u) - (a + x*(b+x*c)))
-			}
-		}
+	for r := 0; r < sf.terms; r++ {
+		sum += cf[r] * bs[r]
 	}
-	return sum, cnt, nil
+	return sum, len(sf.idx) - len(sf.nanP)
 }
 
 // nthSmallest returns the k-th smallest value of v (0-based), reordering v
