@@ -10,7 +10,6 @@ import (
 	"os"
 	"os/signal"
 
-	"dosecover/dosemap/dicomio"
 	"dosecover/dosemap/safefile"
 	"dosecover/review"
 	"dosecover/review/report"
@@ -72,24 +71,9 @@ func runAnalyze(args []string, stdout, stderr io.Writer) int {
 	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
 	defer stop()
-	c, inv, err := dicomio.Load(ctx, dir, dicomio.LoadOptions{}, nil)
-	if err != nil {
-		fmt.Fprintf(stderr, "dosecover analyze: %v\n", err)
-		return 1
-	}
-	if inv != nil && !inv.Reviewable {
-		fmt.Fprintf(stderr, "dosecover analyze: %s cannot be analysed: %s\n", dir, inv.NotReviewable)
-		return 1
-	}
-	warnInventory(stderr, "analyze", inv)
-	if err := sf.apply(c); err != nil {
-		fmt.Fprintf(stderr, "dosecover analyze: %v\n", err)
-		return 1
-	}
-	res, err := review.Analyze(ctx, c, set, nil)
-	if err != nil {
-		fmt.Fprintf(stderr, "dosecover analyze: analysing %s: %v\n", dir, err)
-		return 1
+	c, res, code := loadAndAnalyze(ctx, "analyze", dir, sf, set, stderr)
+	if code != 0 {
+		return code
 	}
 	if *deidentify {
 		sum, err := report.HashFolder(dir)

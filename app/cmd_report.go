@@ -12,9 +12,7 @@ import (
 	"path/filepath"
 	"time"
 
-	"dosecover/dosemap/dicomio"
 	"dosecover/dosemap/safefile"
-	"dosecover/review"
 	"dosecover/review/report"
 )
 
@@ -85,24 +83,9 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
 	defer stop()
-	c, inv, err := dicomio.Load(ctx, dir, dicomio.LoadOptions{}, nil)
-	if err != nil {
-		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
-		return 1
-	}
-	if inv != nil && !inv.Reviewable {
-		fmt.Fprintf(stderr, "dosecover report: %s is not a reviewable case: %s\n", dir, inv.NotReviewable)
-		return 1
-	}
-	warnInventory(stderr, "report", inv)
-	if err := sf.apply(c); err != nil {
-		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
-		return 1
-	}
-	r, err := review.Analyze(ctx, c, set, nil)
-	if err != nil {
-		fmt.Fprintf(stderr, "dosecover report: analysing %s: %v\n", dir, err)
-		return 1
+	c, r, code := loadAndAnalyze(ctx, "report", dir, sf, set, stderr)
+	if code != 0 {
+		return code
 	}
 	sum, err := report.HashFolder(dir)
 	if err != nil {
