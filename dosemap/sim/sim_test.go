@@ -337,7 +337,7 @@ func TestDemoDir(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if filepath.Base(d1) != demoFolderName {
+	if want := fmt.Sprintf("demo-%s-r%d", dosemap.Version, Revision); filepath.Base(d1) != want { // the documented cache name
 		t.Errorf("demo folder %s", d1)
 	}
 	st, err := os.Stat(filepath.Join(d1, TruthFile))
