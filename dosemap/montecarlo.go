@@ -174,7 +174,7 @@ type mcWorker struct {
 }
 
 func newMCWorker(rm rateModel, n int) *mcWorker {
-	w := &mcWorker{acc: newAccumulator(rm, n), src: make([]rand.PCG, n), rng: make([]*rand.Rand, n),
+	w := &mcWorker{acc: newAccumulator(rm, n, nil), src: make([]rand.PCG, n), rng: make([]*rand.Rand, n),
 		noisy: make([]float32, n), shared: make([]float32, n)}
 	for q := range w.rng {
 		w.rng[q] = rand.New(&w.src[q])
