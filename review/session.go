@@ -85,7 +85,8 @@ type sonData struct {
 	peak    float64   // largest dose
 	temp    *tempStats
 	quality *SonicationQuality
-	series  any // thermometry kept for Monte Carlo (engine type)
+	series  any      // thermometry kept for Monte Carlo (engine type)
+	notes   []string // frames that could not be read
 }
 
 // tempStats are the temperature figures of one sonication.
@@ -224,6 +225,9 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 				return nil, errs[n] // the thermometry and dose errors name it already
 			}
 			return nil, fmt.Errorf("%s: %w", name, errs[n])
+		}
+		for _, nt := range sons[n].notes {
+			ses.warnings = append(ses.warnings, fmt.Sprintf("sonication %d: %s", so.Number, nt))
 		}
 		if n > 0 && units[n] != units[0] {
 			return nil, fmt.Errorf("sonication %d: dose in %s, sonication %d in %s", so.Number, units[n], c.Sonications[0].Number, units[0])

@@ -48,10 +48,17 @@ func prepareSonication(ctx context.Context, so *dosemap.Sonication, s Settings, 
 		}
 		dm = d
 	default:
-		ts, err := dosemap.Thermometry(so, s.Thermometry)
+		// Frames kept in the files are decoded for the thermometry only.
+		r, notes, done, err := so.Resident(ctx)
 		if err != nil {
 			return nil, "", err
 		}
+		ts, err := dosemap.Thermometry(r, s.Thermometry)
+		done()
+		if err != nil {
+			return nil, "", err
+		}
+		sd.notes = notes
 		if err := ctx.Err(); err != nil {
 			return nil, "", err
 		}
