@@ -7,6 +7,7 @@ import (
 	"slices"
 	"sort"
 	"strconv"
+	"sync"
 
 	"dosecover/dosemap"
 )
@@ -275,8 +276,14 @@ func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *
 	lnF := make([]float32, cl)
 	prune := !s.exhaustiveMC && len(region) > 0
 	if prune && !mc.boundsOK {
-		mc.lo = boxDose(series, set.doseModel(), region, -mcSkipSigmas)
+		var wg sync.WaitGroup
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			mc.lo = boxDose(series, set.doseModel(), region, -mcSkipSigmas)
+		}()
 		mc.hi = boxDose(series, set.doseModel(), region, mcSkipSigmas)
+		wg.Wait()
 		mc.boundsOK = true
 	}
 	dLo, dHi := mc.lo, mc.hi
