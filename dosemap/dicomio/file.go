@@ -220,7 +220,13 @@ func readFile(path string, pixels bool) (fi *fileInfo, err error) {
 	} else {
 		data = make([]byte, 0, size+1)
 	}
-	data, err = readHeadThenRest(f, data)
+	if size > 0 && size <= maxPooledFile {
+		// A small file is read in one call (its size is known): a large
+		// one that is not DICOM would be the only cost of reading whole.
+		data, err = readSmall(f, data, size)
+	} else {
+		data, err = readHeadThenRest(f, data)
+	}
 	if err != nil {
 		if errors.Is(err, errNotDICOM) {
 			return nil, skip("not a DICOM file (no DICM marker and no DICOM element at the start)")
@@ -254,6 +260,28 @@ var fileBuffers = sync.Pool{New: func() any { b := make([]byte, 0, 64<<10); retu
 // errNotDICOM is returned by readHeadThenRest for a file whose start is not
 // DICOM.
 var errNotDICOM = errors.New("not DICOM")
+
+// readSmall appends the size bytes of f to data in one read when it can
+// (errNotDICOM if the start does not look like DICOM). A file that grew
+// since Stat is read to its end.
+func readSmall(f *os.File, data []byte, size int) ([]byte, error) {
+	if cap(data)-len(data) < size+1 {
+		data = slices.Grow(data, size+1)
+	}
+	buf := data[len(data) : len(data)+size+1]
+	m, err := io.ReadAtLeast(f, buf, size)
+	if err != nil && err != io.EOF && err != io.ErrUnexpectedEOF {
+		return nil, err
+	}
+	data = data[:len(data)+m]
+	if m > 0 && !looksLikeDICOM(data) {
+		return nil, errNotDICOM
+	}
+	if m <= size {
+		return data, nil // all of it (or it shrank: the parser says where it ends)
+	}
+	return readHeadThenRest(f, data) // it grew: read on
+}
 
 // readHeadThenRest appends the first 132 bytes of f to data, checks that
 // they look like DICOM (errNotDICOM if not), then appends the rest of f.
