@@ -399,7 +399,7 @@ func (t *thermo) baseline() {
 	signal := func(n int) bool { return cnt[n] > 0 }
 	if t.mag != nil {
 		t.baseMag = t.sc.f32.get(nv)
-		var vals []float32
+		vals := t.sc.f32.get(nv)[:0]
 		for n := range msum {
 			if cnt[n] == 0 {
 				t.baseMag[n] = float32(math.NaN())
