@@ -119,7 +119,9 @@ func (s *Summary) ExitCode() int {
 // When ctx is cancelled, Run lets the cases in progress stop, writes no
 // summary and returns the partial Summary with Interrupted set and ctx's
 // error; a later run with Resume continues where this one stopped. Errors
-// in the Config are returned as *UsageError.
+// in the Config are returned as *UsageError. An error that keeps the run
+// from starting (a usage error, an input folder that is missing or cannot
+// be read) comes with a nil Summary; nothing was written then.
 func Run(ctx context.Context, cfg Config) (*Summary, error) {
 	start := time.Now()
 	if cfg.Analyzer == nil {
@@ -152,7 +154,7 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 	}
 	for _, in := range cfg.Inputs {
 		if inside, err := isInside(outDir, in); err != nil {
-			return nil, &UsageError{fmt.Sprintf("input folder %s: %v", in, err)}
+			return nil, fmt.Errorf("input folder %s: %w", in, err)
 		} else if inside {
 			return nil, &UsageError{fmt.Sprintf("output folder %s is inside the input folder %s: dosecover never writes into the folders it reads; choose another output folder", cfg.OutDir, in)}
 		}
@@ -167,7 +169,9 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 	report(Progress{Phase: "discovering"})
 	all, problems, err := Discover(cfg.Inputs)
 	if err != nil {
-		return nil, &UsageError{err.Error()}
+		// An input folder that is missing or cannot be read is a failure
+		// of the run (its message names the folder), not a usage error.
+		return nil, err
 	}
 	cases := cfg.Shard.Select(all)
 	sum := &Summary{Problems: problems, Header: Header(cfg.SettingsColumns)}

@@ -366,7 +366,6 @@ func TestRunUsageErrors(t *testing.T) {
 		{"output is input", Config{Inputs: []string{in}, OutDir: in, Analyzer: fc.analyze}},
 		{"output inside input by a link", Config{Inputs: []string{in}, OutDir: filepath.Join(tmp, "link", "out"), Analyzer: fc.analyze}},
 		{"no inputs", Config{OutDir: filepath.Join(tmp, "out"), Analyzer: fc.analyze}},
-		{"missing input", Config{Inputs: []string{filepath.Join(tmp, "nope")}, OutDir: filepath.Join(tmp, "out"), Analyzer: fc.analyze}},
 		{"no output", Config{Inputs: []string{in}, Analyzer: fc.analyze}},
 		{"no analyzer", Config{Inputs: []string{in}, OutDir: filepath.Join(tmp, "out")}},
 		{"negative workers", Config{Inputs: []string{in}, OutDir: filepath.Join(tmp, "out"), Workers: -1, Analyzer: fc.analyze}},
@@ -384,6 +383,29 @@ func TestRunUsageErrors(t *testing.T) {
 	}
 	if _, err := os.Stat(filepath.Join(in, "case-000", "audit")); !os.IsNotExist(err) {
 		t.Errorf("an output folder was created inside the input")
+	}
+	// An input folder that is missing or is a file: a failure naming the
+	// folder, not a usage error, and nothing written.
+	plain := filepath.Join(tmp, "plain.txt")
+	writeFiles(t, tmp, map[string][]byte{"plain.txt": []byte("not a folder")})
+	for _, c := range []struct{ input, says string }{
+		{filepath.Join(tmp, "nope"), "does not exist"},
+		{plain, "not a folder"},
+	} {
+		out := filepath.Join(tmp, "out-missing")
+		sum, err := Run(context.Background(), Config{Inputs: []string{in, c.input}, OutDir: out, Analyzer: fc.analyze})
+		var ue *UsageError
+		if err == nil || errors.As(err, &ue) || sum != nil {
+			t.Errorf("input %s: summary %v, err %v; want a failure that is not a usage error", c.input, sum, err)
+		} else if !strings.Contains(err.Error(), c.input) || !strings.Contains(err.Error(), c.says) {
+			t.Errorf("input %s: message %q does not name the folder and say %q", c.input, err, c.says)
+		}
+		if _, err := os.Stat(out); !os.IsNotExist(err) {
+			t.Errorf("input %s: the output folder was created", c.input)
+		}
+	}
+	if fc.total() != 0 {
+		t.Errorf("analyzer ran %d times although an input folder was missing", fc.total())
 	}
 	// No cases at all: a failure, not a usage error.
 	empty := filepath.Join(tmp, "empty")
