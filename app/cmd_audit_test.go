@@ -129,3 +129,48 @@ func TestParseInterspersed(t *testing.T) {
 		}
 	}
 }
+
+// TestAuditShardsShareOutput runs both shards of an audit into one output
+// folder from the command line, then a shard with another settings file,
+// which is refused with exit code 1 and a message naming the difference.
+func TestAuditShardsShareOutput(t *testing.T) {
+	withFakeAuditAnalysis(t)
+	tmp := t.TempDir()
+	reg := filepath.Join(tmp, "registry")
+	for _, n := range []string{"a", "b", "c", "d", "e", "f"} {
+		fakeAuditCase(t, filepath.Join(reg, n))
+	}
+	s240 := filepath.Join(tmp, "s240.json")
+	s300 := filepath.Join(tmp, "s300.json")
+	os.WriteFile(s240, []byte(`{"threshold": 240, "margin_mm": 3}`), 0o644)
+	os.WriteFile(s300, []byte(`{"threshold": 300, "margin_mm": 3}`), 0o644)
+	out := filepath.Join(tmp, "out")
+	for _, shard := range []string{"1/2", "2/2"} {
+		if code, stdout, stderr := runCmd("audit", reg, "-o", out, "--shard", shard, "--settings", s240); code != 0 {
+			t.Fatalf("shard %s: exit %d\n%s\n%s", shard, code, stdout, stderr)
+		}
+	}
+	rows, _, err := audit.LoadRows(out)
+	if err != nil || len(rows) != 6 {
+		t.Fatalf("after both shards: %d case records, %v; want 6", len(rows), err)
+	}
+	b, err := os.ReadFile(filepath.Join(out, "settings.json"))
+	if err != nil || string(b) != `{"margin_mm":3,"threshold":240}`+"\n" {
+		t.Errorf("settings.json %q, %v; want the settings of both shards", b, err)
+	}
+	code, _, stderr := runCmd("audit", reg, "-o", out, "--shard", "2/2", "--settings", s300, "--resume")
+	if code != 1 {
+		t.Errorf("shard with other settings: exit %d, want 1", code)
+	}
+	for _, says := range []string{out, "other settings", "threshold: 240 in settings.json, 300 for this shard"} {
+		if !strings.Contains(stderr, says) {
+			t.Errorf("message does not say %q:\n%s", says, stderr)
+		}
+	}
+	if bad := rawMessage(stderr); len(bad) > 0 {
+		t.Errorf("raw error text %q in:\n%s", bad, stderr)
+	}
+	if b2, _ := os.ReadFile(filepath.Join(out, "settings.json")); string(b2) != string(b) {
+		t.Errorf("settings.json changed by the refused shard: %s", b2)
+	}
+}

@@ -44,7 +44,11 @@ type Config struct {
 	Deidentify bool
 	// Settings is the analysis settings as JSON; it is stored in every
 	// record and in OutDir/settings.json, and its SettingsHash decides
-	// whether an earlier result may be reused.
+	// whether an earlier result may be reused. A run without a shard
+	// replaces OutDir/settings.json; a sharded run writes it when absent
+	// and is refused (*SettingsConflictError) when it holds other
+	// settings, so that shards share an output folder only as parts of
+	// one audit.
 	Settings json.RawMessage
 	// SettingsColumns are added to every row of the summary table.
 	SettingsColumns []Column
@@ -160,6 +164,15 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 		}
 	}
 
+	// Shards of one audit share its output folder only with the same
+	// settings: refuse before searching the inputs, write nothing.
+	sharded := cfg.Shard.Count > 1
+	if sharded {
+		if err := sharedSettings(outDir, cfg.OutDir, settings, false); err != nil {
+			return nil, err
+		}
+	}
+
 	report := func(p Progress) {
 		if cfg.Progress != nil {
 			p.Elapsed = time.Since(start)
@@ -186,7 +199,7 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 	// output folder, so a shard removes only leftovers too old to belong to
 	// a write in progress (every write takes seconds).
 	age := time.Duration(0)
-	if cfg.Shard.Count > 1 {
+	if sharded {
 		age = staleTemp
 	}
 	if err := removeTemps(outDir, age); err != nil {
@@ -196,7 +209,12 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 	if cfg.Resume {
 		index = resumeIndex(outDir)
 	}
-	if err := writeAtomic(filepath.Join(outDir, "settings.json"), func(w io.Writer) error {
+	if sharded {
+		// Checked again as another shard may have started meanwhile.
+		if err := sharedSettings(outDir, cfg.OutDir, settings, true); err != nil {
+			return nil, err
+		}
+	} else if err := writeAtomic(filepath.Join(outDir, SettingsFile), func(w io.Writer) error {
 		_, err := w.Write(append(settings, '\n'))
 		return err
 	}); err != nil {
@@ -282,7 +300,7 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 	report(Progress{Phase: "summarising", Total: len(cases), Done: p.Done, Resumed: p.Resumed, Incomplete: p.Incomplete, Failed: p.Failed})
 	base := "summary"
 	errName := "errors"
-	if cfg.Shard.Count > 1 {
+	if sharded {
 		suffix := fmt.Sprintf("-%d-of-%d", cfg.Shard.Index, cfg.Shard.Count)
 		base += suffix
 		errName += suffix
