@@ -41,7 +41,7 @@ func readCaseDICOM(ctx context.Context, dir string, opt loadOptions, progress fu
 		return nil, fmt.Errorf("reading %s: no case found", dir)
 	}
 	for _, s := range c.Sonications {
-		if s.Phase == nil {
+		if !s.HasPhase() {
 			continue // temperature or dose maps need no scanner values
 		}
 		if s.B0 == 0 {

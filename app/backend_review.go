@@ -363,7 +363,7 @@ func (ss *reviewSession) temperatures(s analysisSettings) ([]*dosemap.Temperatur
 	}
 	ss.series, ss.seriesErr, ss.seriesKey = nil, nil, key
 	for _, so := range ss.c.Sonications {
-		if so.Dose != nil && so.Phase == nil && so.Temperature == nil {
+		if so.Dose != nil && !so.HasPhase() && so.Temperature == nil {
 			ss.series = append(ss.series, nil)
 			continue
 		}

@@ -30,7 +30,7 @@ func warnInventory(w io.Writer, cmd string, inv *dicomio.Inventory) {
 // applies the structure options. On failure it prints the reason prefixed
 // by "dosecover CMD:" and returns exit code 1.
 func loadAndAnalyze(ctx context.Context, cmd, dir string, sf *structureFlags, set review.Settings, stderr io.Writer) (*dosemap.Case, *review.Result, int) {
-	c, inv, err := dicomio.Load(ctx, dir, dicomio.LoadOptions{}, nil)
+	c, inv, err := dicomio.Load(ctx, dir, dicomio.LoadOptions{Deferred: true}, nil)
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover %s: %v\n", cmd, err)
 		return nil, nil, 1

@@ -1,6 +1,9 @@
 package dosemap
 
-import "time"
+import (
+	"context"
+	"time"
+)
 
 // Version is the version of dosecover. It is written into every report and
 // metrics file; FyneApp.toml carries the same number.
@@ -56,6 +59,9 @@ type Structure struct {
 // Every frame slice ([]float32) has Geometry.Len() values in the flat index
 // order of Geometry.Index. Exactly one of Phase, Temperature or Dose is the
 // primary data; Magnitude accompanies Phase when the scanner saved it.
+// Phase and Magnitude may instead stay in the files: Source is then set and
+// decodes them when asked (see Resident), so that an analysis of many
+// sonications holds the frames of one at a time.
 type Sonication struct {
 	Number      int       // 1-based, in delivery order
 	Label       string    // SeriesDescription or similar, for display
@@ -70,6 +76,47 @@ type Sonication struct {
 	Dose        []float32   // CEM43 minutes (dose-map series)
 	B0          float64     // MagneticFieldStrength, tesla; 0 when the file lacks it
 	TE          float64     // EchoTime, seconds; 0 when the file lacks it
+	// Source, when not nil, supplies Phase and Magnitude, which are then
+	// nil; Times has one value per frame.
+	Source FrameSource
+}
+
+// FrameSource supplies the phase and magnitude frames of a sonication that
+// are kept in their files rather than in memory. Its methods are safe for
+// concurrent use.
+type FrameSource interface {
+	// ReadFrames decodes the phase frames and, when the sonication has
+	// them, the magnitude frames (nil otherwise), one per time point on
+	// the sonication's Geometry. Frames or slices that could not be read
+	// are NaN and described in notes, one line each; err is set only when
+	// ctx ends. The buffers may be reused: hand them back to ReleaseFrames
+	// once done and do not use them after.
+	ReadFrames(ctx context.Context) (phase, magnitude [][]float32, notes []string, err error)
+	// ReleaseFrames takes back frames returned by ReadFrames.
+	ReleaseFrames(phase, magnitude [][]float32)
+}
+
+// HasPhase reports whether s is PRF thermometry: phase frames in memory or
+// in its Source.
+func (s *Sonication) HasPhase() bool { return s.Phase != nil || s.Source != nil }
+
+// Resident returns s with its phase and magnitude frames in memory: s
+// itself when it holds them or has no Source, else a shallow copy whose
+// frames come from s.Source. done must be called once the copy is no longer
+// used (it hands the frames back); notes are the Source's notes on frames
+// it could not read.
+func (s *Sonication) Resident(ctx context.Context) (r *Sonication, notes []string, done func(), err error) {
+	if s.Source == nil || s.Phase != nil {
+		return s, nil, func() {}, nil
+	}
+	ph, mag, notes, err := s.Source.ReadFrames(ctx)
+	if err != nil {
+		return nil, nil, nil, err
+	}
+	c := *s
+	c.Phase, c.Magnitude, c.Source = ph, mag, nil
+	src := s.Source
+	return &c, notes, func() { src.ReleaseFrames(ph, mag) }, nil
 }
 
 // Frames returns the number of time frames of s (1 for a dose map).
@@ -77,6 +124,8 @@ func (s *Sonication) Frames() int {
 	switch {
 	case s.Phase != nil:
 		return len(s.Phase)
+	case s.Source != nil:
+		return len(s.Times)
 	case s.Temperature != nil:
 		return len(s.Temperature)
 	case s.Dose != nil:

@@ -276,9 +276,15 @@ type accumulator struct {
 	frames  int
 }
 
-func newAccumulator(m rateModel, n int) *accumulator {
-	a := &accumulator{m: m, trap: m.rule() != RuleRectangle,
-		acc: make([]float64, n), prev: make([]float64, n), missing: make([]uint32, n), got: make([]bool, n)}
+// newAccumulator returns an accumulator for n voxels; its buffers live in
+// sc when sc is not nil.
+func newAccumulator(m rateModel, n int, sc *scratch) *accumulator {
+	a := &accumulator{m: m, trap: m.rule() != RuleRectangle}
+	if sc != nil {
+		a.acc, a.prev, a.missing, a.got = sc.f64.get(n), sc.f64.get(n), sc.u32.get(n), sc.b.get(n)
+	} else {
+		a.acc, a.prev, a.missing, a.got = make([]float64, n), make([]float64, n), make([]uint32, n), make([]bool, n)
+	}
 	if c, ok := m.(CEM43); ok {
 		c = c.withDefaults()
 		a.cem, a.brk, a.la, a.lb = true, c.Break, -math.Log2(c.RAbove), -math.Log2(c.RBelow)
@@ -452,7 +458,9 @@ func integrate(m rateModel, ts *TemperatureSeries) *DoseMap {
 			panic(fmt.Sprintf("dosemap: frame %d holds %d values for %d voxels", f, len(fr), n))
 		}
 	}
-	a := newAccumulator(m, n)
+	sc := getScratch()
+	defer sc.put()
+	a := newAccumulator(m, n, sc)
 	ws := make([]float64, len(ts.Frames))
 	first := make([]bool, len(ts.Frames))
 	for f := range ts.Frames {

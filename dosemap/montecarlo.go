@@ -25,8 +25,17 @@ import (
 // values, NaN outside mask; the slice is reused and valid only during the
 // call. A nil mask means every voxel; only masked voxels are computed.
 //
+// A series whose dose at a voxel, with every frame raised by
+// FreezeSigmas·Sigma, exceeds its noiseless dose there by no more than
+// FreezeRatio of the voxel's noiseless total (all series) enters that
+// voxel's trials without noise: its noise cannot move the total by more
+// than that short of a 5σ event, and in a long session most sonications
+// lie far from most voxels near the lethal edge (in a typical session of
+// 24 sonications, about one in five series remains noisy there).
+//
 // Voxel v of trial n draws its noise, series after series (baseline, then
-// the valid frames in order), from rand.NewPCG(seed, n<<32|v): a voxel's
+// the valid frames in order; none for a series it enters without noise),
+// from rand.NewPCG(seed, n<<32|v): a voxel's
 // result depends neither on how many trials run nor on which other voxels
 // the mask holds, so a computation restricted to fewer voxels gives the
 // same numbers for them. The masked voxels are computed on GOMAXPROCS
@@ -95,6 +104,7 @@ func MonteCarlo(series []*TemperatureSeries, m DoseModel, mask []bool, trials in
 		}
 		ps[s] = p
 	}
+	fz := freezeFast(rm, ps, len(idx))
 	// Work is split into chunks of voxels, shared among the workers; each
 	// worker runs a whole batch of trials on a chunk, so the goroutines
 	// meet once per batch, not once per trial (on a loaded machine waking
@@ -126,7 +136,7 @@ func MonteCarlo(series []*TemperatureSeries, m DoseModel, mask []bool, trials in
 					}
 					lo, hi := c*mcChunk, min((c+1)*mcChunk, len(idx))
 					for trial := t0; trial < t1; trial++ {
-						w.run(ps, idx, lo, hi, seed, uint64(trial), res[trial-t0][lo:hi])
+						w.run(ps, fz, idx, lo, hi, seed, uint64(trial), res[trial-t0][lo:hi])
 					}
 				}
 			}()
@@ -165,57 +175,169 @@ type mcPacked struct {
 	times  []float64
 }
 
+// FreezeSigmas and FreezeRatio decide which series enter a voxel's Monte
+// Carlo trials without noise (see MonteCarlo).
+const (
+	FreezeSigmas = 5
+	FreezeRatio  = 1e-4
+)
+
+// frozen says, per series and masked voxel, which series enter the trials
+// without noise; fixed is the total noiseless dose of those series per
+// voxel (summed as SumDose does), fixedGot whether any of them measured
+// the voxel.
+type frozen struct {
+	off      [][]bool
+	fixed    []float64
+	fixedGot []bool
+}
+
+// freeze decides from the noiseless doses nom and the raised doses hi of
+// each series at the masked voxels (sigma per series, 0: no noise).
+func freeze(nom, hi, sigma [][]float32, n int) *frozen {
+	fz := &frozen{off: make([][]bool, len(nom)), fixed: make([]float64, n), fixedGot: make([]bool, n)}
+	total := make([]float64, n)
+	for _, d := range nom {
+		for q, x := range d {
+			if x == x {
+				total[q] += float64(x)
+			}
+		}
+	}
+	for s := range nom {
+		off := make([]bool, n)
+		for q := range off {
+			x := nom[s][q]
+			off[q] = sigma[s][q] == 0 || x != x || !(float64(hi[s][q]-x) > FreezeRatio*total[q])
+			if off[q] && x == x {
+				fz.fixed[q] += float64(x)
+				fz.fixedGot[q] = true
+			}
+		}
+		fz.off[s] = off
+	}
+	return fz
+}
+
+// freezeFast computes the noiseless and raised doses of the packed series
+// and decides with freeze.
+func freezeFast(rm rateModel, ps []mcPacked, n int) *frozen {
+	a := newAccumulator(rm, n, nil)
+	buf := make([]float32, n)
+	nom, hi, sig := make([][]float32, len(ps)), make([][]float32, len(ps)), make([][]float32, len(ps))
+	for s, p := range ps {
+		for pass := 0; pass < 2; pass++ {
+			a.reset()
+			a.start()
+			for f, fr := range p.frames {
+				for q, v := range fr {
+					if sg := p.sigma[q]; pass == 1 && sg != 0 && v == v {
+						v += FreezeSigmas * math.Sqrt2 * sg // sg is Sigma/√2
+					}
+					buf[q] = v
+				}
+				a.add(buf, p.times[f])
+			}
+			out := make([]float32, n)
+			a.result(out)
+			if pass == 0 {
+				nom[s] = out
+			} else {
+				hi[s] = out
+			}
+		}
+		sig[s] = p.sigma
+	}
+	return freeze(nom, hi, sig, n)
+}
+
 // mcWorker holds one goroutine's buffers.
 type mcWorker struct {
 	acc           *accumulator
 	src           []rand.PCG
 	rng           []*rand.Rand
 	noisy, shared []float32
+	res           []float32
+	act           []int
+	tot           []float64
+	got           []bool
 }
 
 func newMCWorker(rm rateModel, n int) *mcWorker {
-	w := &mcWorker{acc: newAccumulator(rm, n), src: make([]rand.PCG, n), rng: make([]*rand.Rand, n),
-		noisy: make([]float32, n), shared: make([]float32, n)}
+	w := &mcWorker{acc: newAccumulator(rm, n, nil), src: make([]rand.PCG, n), rng: make([]*rand.Rand, n),
+		noisy: make([]float32, n), shared: make([]float32, n), res: make([]float32, n), act: make([]int, 0, n),
+		tot: make([]float64, n), got: make([]bool, n)}
 	for q := range w.rng {
 		w.rng[q] = rand.New(&w.src[q])
 	}
 	return w
 }
 
-// run computes the trial dose of the packed voxels lo..hi-1 into out.
-func (w *mcWorker) run(ps []mcPacked, idx []int, lo, hi int, seed, trial uint64, out []float32) {
+// run computes the trial dose of the packed voxels lo..hi-1 into out: the
+// fixed dose of the series entering without noise, plus the noisy dose of
+// the others, series by series over the voxels where they are noisy.
+func (w *mcWorker) run(ps []mcPacked, fz *frozen, idx []int, lo, hi int, seed, trial uint64, out []float32) {
 	n := hi - lo
 	acc := w.acc
-	acc.reset()
-	acc.acc, acc.prev, acc.missing, acc.got = acc.acc[:n], acc.prev[:n], acc.missing[:n], acc.got[:n]
+	full := cap(acc.acc)
 	defer func() {
-		c := cap(acc.acc)
-		acc.acc, acc.prev, acc.missing, acc.got = acc.acc[:c], acc.prev[:c], acc.missing[:c], acc.got[:c]
+		acc.acc, acc.prev, acc.missing, acc.got = acc.acc[:full], acc.prev[:full], acc.missing[:full], acc.got[:full]
 	}()
 	rng := w.rng[:n]
 	for q := range rng {
 		noiseStream(&w.src[q], seed, trial, idx[lo+q])
 	}
-	noisy, shared := w.noisy[:n], w.shared[:n]
-	for _, p := range ps {
+	tot, got := w.tot[:n], w.got[:n]
+	copy(tot, fz.fixed[lo:hi])
+	copy(got, fz.fixedGot[lo:hi])
+	noisy, shared, res := w.noisy, w.shared[:n], w.res
+	for s, p := range ps {
+		off := fz.off[s][lo:hi]
+		act := w.act[:0]
+		for q, o := range off {
+			if !o {
+				act = append(act, q)
+			}
+		}
+		if len(act) == 0 {
+			continue
+		}
+		m := len(act)
+		acc.acc, acc.prev, acc.missing, acc.got = acc.acc[:m], acc.prev[:m], acc.missing[:m], acc.got[:m]
+		acc.reset()
 		acc.start()
 		sigma := p.sigma[lo:hi]
-		for q, sg := range sigma {
-			if sg != 0 {
-				shared[q] = float32(rng[q].NormFloat64())
-			}
+		for _, q := range act {
+			shared[q] = float32(rng[q].NormFloat64())
 		}
+		nz := noisy[:m]
 		for f, fr := range p.frames {
-			for q, v := range fr[lo:hi] {
-				if sg := sigma[q]; sg != 0 && v == v {
-					v += sg * (shared[q] + float32(rng[q].NormFloat64()))
+			frc := fr[lo:hi]
+			for i, q := range act {
+				v := frc[q]
+				if v == v {
+					v += sigma[q] * (shared[q] + float32(rng[q].NormFloat64()))
 				}
-				noisy[q] = v
+				nz[i] = v
 			}
-			acc.add(noisy, p.times[f])
+			acc.add(nz, p.times[f])
+		}
+		acc.result(res[:m])
+		for i, q := range act {
+			if d := res[i]; d == d {
+				tot[q] += float64(d)
+				got[q] = true
+			}
 		}
 	}
-	acc.result(out)
+	nan := float32(math.NaN())
+	for q := range out[:n] {
+		if got[q] {
+			out[q] = float32(tot[q])
+		} else {
+			out[q] = nan
+		}
+	}
 }
 
 // monteCarloSlow serves dose models from outside the package: each trial
@@ -231,6 +353,27 @@ func monteCarloSlow(series []*TemperatureSeries, m DoseModel, idx []int, trials 
 		}
 		copies[s] = &c
 	}
+	// Which series enter each voxel without noise, as in the fast path.
+	nom, hi, sig := make([][]float32, len(series)), make([][]float32, len(series)), make([][]float32, len(series))
+	for s, ts := range series {
+		raised := *ts
+		raised.Frames = make([][]float32, len(ts.Frames))
+		for f, fr := range ts.Frames {
+			r := append([]float32(nil), fr...)
+			for _, n := range idx {
+				if sg := noiseSigma(ts, n); sg != 0 && r[n] == r[n] {
+					r[n] += FreezeSigmas * math.Sqrt2 * sg
+				}
+			}
+			raised.Frames[f] = r
+		}
+		dn, dh := m.Dose(ts), m.Dose(&raised)
+		nom[s], hi[s], sig[s] = make([]float32, len(idx)), make([]float32, len(idx)), make([]float32, len(idx))
+		for q, n := range idx {
+			nom[s][q], hi[s][q], sig[s][q] = dn.Data[n], dh.Data[n], noiseSigma(ts, n)
+		}
+	}
+	fz := freeze(nom, hi, sig, len(idx))
 	shared := make([]float32, len(idx))
 	src := make([]rand.PCG, len(idx))
 	rng := make([]*rand.Rand, len(idx))
@@ -244,8 +387,9 @@ func monteCarloSlow(series []*TemperatureSeries, m DoseModel, idx []int, trials 
 		maps := make([]*DoseMap, len(series))
 		for s, ts := range series {
 			c := copies[s]
-			for q, n := range idx {
-				if noiseSigma(ts, n) != 0 {
+			off := fz.off[s]
+			for q := range idx {
+				if !off[q] {
 					shared[q] = float32(rng[q].NormFloat64())
 				}
 			}
@@ -253,7 +397,7 @@ func monteCarloSlow(series []*TemperatureSeries, m DoseModel, idx []int, trials 
 				copy(c.Frames[f], fr)
 				for q, n := range idx {
 					v := fr[n]
-					if sg := noiseSigma(ts, n); sg != 0 && v == v {
+					if sg := noiseSigma(ts, n); !off[q] && v == v {
 						v += sg * (shared[q] + float32(rng[q].NormFloat64()))
 					}
 					c.Frames[f][n] = v

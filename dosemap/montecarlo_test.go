@@ -197,3 +197,46 @@ func TestMonteCarloMaskIndependent(t *testing.T) {
 		t.Error("two trials gave the same dose")
 	}
 }
+
+// TestMonteCarloFreezesFarSeries checks the rule that lets a series enter
+// a voxel's trials without noise (see MonteCarlo). Voxel 0 sees series B
+// at 35 °C and is heated by series A (52 °C for 40 s: 2⁹·40/60 ≈ 341
+// CEM43). B raised by 5σ (σ 1 °C) to 40 °C gives 0.25³·40/60 ≈ 0.010
+// CEM43, below 10⁻⁴ of the total (0.034), so B enters without noise and
+// draws nothing; as B comes first, A then draws exactly the numbers it
+// draws alone, and every trial of [B, A] is the trial of [A] plus B's
+// noiseless dose. Voxel 1 is heated by both (51 and 52 °C): B stays noisy,
+// takes the first draws, and the trials differ from that sum. Reference:
+// the rule's definition with CEM43 rates of Sapareto & Dewey (1984); the
+// general path (any DoseModel) follows the same rule.
+func TestMonteCarloFreezesFarSeries(t *testing.T) {
+	a := constSeries(uniformTimes(21, 2), 52, 52)
+	b := constSeries(uniformTimes(21, 2), 35, 51)
+	a.Sigma = []float32{1, 1}
+	b.Sigma = []float32{1, 1}
+	nomB := DefaultCEM43().Dose(b)
+	collect := func(m DoseModel, series ...*TemperatureSeries) [][]float32 {
+		var out [][]float32
+		if err := MonteCarlo(series, m, nil, 6, 5, func(_ int, d []float32) {
+			out = append(out, append([]float32(nil), d...))
+		}); err != nil {
+			t.Fatal(err)
+		}
+		return out
+	}
+	for _, m := range []DoseModel{DefaultCEM43(), wrapped{DefaultCEM43()}} {
+		both, alone := collect(m, b, a), collect(m, a)
+		differs := false
+		for tr := range both {
+			want := float32(float64(alone[tr][0]) + float64(nomB.Data[0]))
+			if relErr(float64(both[tr][0]), float64(want)) > 1e-6 {
+				t.Errorf("%T trial %d voxel 0: %g, want A's trial plus B's noiseless dose %g", m, tr, both[tr][0], want)
+			}
+			sum1 := float32(float64(alone[tr][1]) + float64(nomB.Data[1]))
+			differs = differs || relErr(float64(both[tr][1]), float64(sum1)) > 1e-3
+		}
+		if !differs {
+			t.Errorf("%T voxel 1: series B entered without noise although it heats the voxel", m)
+		}
+	}
+}

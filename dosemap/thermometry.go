@@ -2,9 +2,11 @@ package dosemap
 
 import (
 	"cmp"
+	"context"
 	"errors"
 	"fmt"
 	"math"
+	"strings"
 
 	"gonum.org/v1/gonum/mat"
 )
@@ -186,6 +188,19 @@ func Thermometry(s *Sonication, opt ThermometryOptions) (*TemperatureSeries, err
 		return nil, fmt.Errorf("%s: thermometry grid: %w", name, err)
 	}
 	nv := g.Len()
+	if s.Phase == nil && s.Source != nil && s.Temperature == nil {
+		// Frames kept in the files: decode them for this call.
+		r, notes, done, err := s.Resident(context.Background())
+		if err != nil {
+			return nil, fmt.Errorf("%s: reading the thermometry frames: %w", name, err)
+		}
+		defer done()
+		ts, err := Thermometry(r, opt)
+		if err == nil && len(notes) > 0 && len(ts.Quality) > 0 {
+			ts.Quality[0].Note = joinNote(ts.Quality[0].Note, strings.Join(notes, "; "))
+		}
+		return ts, err
+	}
 	switch {
 	case s.Temperature != nil:
 		return passThrough(s, name)
@@ -240,7 +255,9 @@ func Thermometry(s *Sonication, opt ThermometryOptions) (*TemperatureSeries, err
 	if opt.Drift == DriftPolynomial && (opt.DriftOrder < 0 || opt.DriftOrder > 2) {
 		return nil, fmt.Errorf("drift polynomial order %d is not 0, 1 or 2", opt.DriftOrder)
 	}
-	t := &thermo{s: s, g: g, p: p, opt: opt, mag: mag, nv: nv, nf: nf, nb: min(opt.BaselineFrames, nf)}
+	sc := getScratch()
+	defer sc.put()
+	t := &thermo{s: s, g: g, p: p, opt: opt, mag: mag, nv: nv, nf: nf, nb: min(opt.BaselineFrames, nf), sc: sc}
 	return t.run(), nil
 }
 
@@ -330,6 +347,7 @@ type thermo struct {
 	driftRef []bool
 	fits     []*sliceFit
 	out      *TemperatureSeries
+	sc       *scratch // working buffers (none may end up in out)
 }
 
 func (t *thermo) run() *TemperatureSeries {
@@ -356,11 +374,11 @@ func (t *thermo) run() *TemperatureSeries {
 // NaN whatever their phase).
 func (t *thermo) baseline() {
 	nv := t.nv
-	t.ref = make([]float64, nv)
-	cnt := make([]int32, nv)
+	t.ref = t.sc.f64.get(nv)
+	cnt := t.sc.i32.get(nv)
 	var msum []float64
 	if t.mag != nil {
-		msum = make([]float64, nv)
+		msum = t.sc.f64.get(nv)
 	}
 	for f := 0; f < t.nb; f++ {
 		ph := t.s.Phase[f]
@@ -380,7 +398,7 @@ func (t *thermo) baseline() {
 	}
 	signal := func(n int) bool { return cnt[n] > 0 }
 	if t.mag != nil {
-		t.baseMag = make([]float32, nv)
+		t.baseMag = t.sc.f32.get(nv)
 		var vals []float32
 		for n := range msum {
 			if cnt[n] == 0 {
@@ -470,7 +488,7 @@ func sincosSmall(x float64) (sin, cos float64) {
 // reference phase), so the frame loops skip the background in blocks.
 func (t *thermo) signalRuns() {
 	t.runs = t.runs[:0]
-	t.ref32 = make([]float32, len(t.ref))
+	t.ref32 = t.sc.f32.get(len(t.ref))
 	in := false
 	for n, r := range t.ref {
 		t.ref32[n] = float32(r)
@@ -496,7 +514,7 @@ func (t *thermo) sigma() []float32 {
 		k := float64(t.nb - 1)
 		medChi := math.Pow(1-2/(9*k), 3)
 		t.noise = make([]float64, g.Slices)
-		vars := make([]float64, 0, sl)
+		vars := t.sc.f64.get(sl)[:0]
 		for s := 0; s < g.Slices; s++ {
 			vars = vars[:0]
 			for n := s * sl; n < (s+1)*sl; n++ {
@@ -562,10 +580,10 @@ func (t *thermo) sigma() []float32 {
 // the output frames (radians for now), with motion and signal checks.
 func (t *thermo) unwrap() {
 	nv := t.nv
-	last := make([]float32, nv) // last valid unwrapped phase change
+	last := t.sc.f32.get(nv) // last valid unwrapped phase change
 	// Its number of turns; int16 holds ±32767 turns, i.e. phase changes of
 	// 2·10⁵ rad, far beyond any temperature.
-	turns := make([]int16, nv)
+	turns := t.sc.i16.get(nv)
 	nan := float32(math.NaN())
 	const twoPi = 2 * math.Pi
 	const invTwoPi = 1 / twoPi
@@ -843,7 +861,7 @@ func joinNote(a, b string) string {
 // hottest spot is located to within a voxel.
 func (t *thermo) startPeaks() {
 	g := t.g
-	t.lat = make([]bool, t.nv)
+	t.lat = t.sc.b.get(t.nv)
 	for n := range t.lat {
 		i, j, _ := g.IJK(n)
 		t.lat[n] = !math.IsNaN(t.ref[n]) && i%2 == 0 && j%2 == 0
@@ -854,9 +872,9 @@ func (t *thermo) startPeaks() {
 	}
 	t.latFits = make([]*sliceFit, g.Slices)
 	for s := range t.latFits {
-		t.latFits[s] = newSliceFit(g, s, t.lat, nil, order)
+		t.latFits[s] = newSliceFit(g, s, t.lat, nil, order, t.sc)
 	}
-	t.peak = make([]float64, t.nv)
+	t.peak = t.sc.f64.get(t.nv)
 }
 
 // updatePeaks raises the lattice peaks with one unflagged frame of
@@ -901,7 +919,7 @@ func (t *thermo) updatePeaks(fr []float32) {
 // with signal.
 func (t *thermo) referenceMask() []bool {
 	nv := t.nv
-	ref := make([]bool, nv)
+	ref := t.sc.b.get(nv)
 	if t.opt.Reference != nil {
 		for n, r := range t.opt.Reference {
 			ref[n] = r && !math.IsNaN(t.ref[n])
@@ -960,7 +978,7 @@ func (t *thermo) startDrift() {
 	if t.opt.Drift == DriftPolynomial {
 		t.fits = make([]*sliceFit, g.Slices)
 		for s := range t.fits {
-			t.fits[s] = newSliceFit(g, s, t.driftRef, t.baseMag, t.opt.DriftOrder)
+			t.fits[s] = newSliceFit(g, s, t.driftRef, t.baseMag, t.opt.DriftOrder, t.sc)
 		}
 	}
 }
@@ -1036,9 +1054,14 @@ type sliceFit struct {
 
 func polyTerms(order int) int { return (order + 1) * (order + 2) / 2 }
 
-func newSliceFit(g Geometry, s int, ref []bool, baseMag []float32, order int) *sliceFit {
+// newSliceFit prepares the fit of slice s over the voxels of ref (weighted
+// by baseMag² when given); its voxel lists live in sc when sc is not nil.
+func newSliceFit(g Geometry, s int, ref []bool, baseMag []float32, order int, sc *scratch) *sliceFit {
 	sl := g.SliceLen()
 	sf := &sliceFit{cols: g.Cols, rows: g.Rows, terms: polyTerms(order), rowStart: make([]int32, g.Rows+1)}
+	if sc != nil {
+		sf.idx, sf.w = sc.i32.get(sl)[:0], sc.f64.get(sl)[:0]
+	}
 	sf.x = normCoords(g.Cols)
 	sf.y = normCoords(g.Rows)
 	// One pass collects the reference voxels, the basis sums and the full

@@ -533,7 +533,7 @@ func TestSliceFitDowndate(t *testing.T) {
 	}
 	for _, order := range []int{1, 2} {
 		for _, frac := range []float64{0.01, 0.2, 0.45} {
-			sf := newSliceFit(g, 0, ref, mag, order)
+			sf := newSliceFit(g, 0, ref, mag, order, nil)
 			v := make([]float32, g.Len())
 			for n := range v {
 				x, y := float64(n%g.Cols), float64(n/g.Cols)

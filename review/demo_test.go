@@ -3,6 +3,9 @@ package review_test
 import (
 	"context"
 	"io"
+	"os"
+	"path/filepath"
+	"strings"
 	"testing"
 
 	"dosecover/dosemap"
@@ -85,4 +88,79 @@ func TestDemoCase(t *testing.T) {
 	// comparison, not asserted.
 	t.Logf("covered %.3f of the monitored target (truth on the bioheat grid %.3f); %d holes; %.1f mm³ beyond the margin (truth %.1f)",
 		r.CoveredFraction, truth.CoveredFraction, len(r.Holes), 1000*r.OutsideMarginLethalML, truth.LethalOutsideMM3)
+}
+
+// TestDeferredLoadSameResult analyses a simulated varied case loaded with
+// its thermometry frames in memory and loaded with them left in the files
+// (dicomio.LoadOptions.Deferred, as the commands do): the results must be
+// identical, to the last digit of the JSON, so the way of reading cannot
+// change a figure.
+func TestDeferredLoadSameResult(t *testing.T) {
+	if testing.Short() {
+		t.Skip("writes and analyses a simulated case twice")
+	}
+	dir := t.TempDir()
+	if _, err := sim.WriteSession(dir, sim.VariedSession(3, 11)); err != nil {
+		t.Fatal(err)
+	}
+	ctx := context.Background()
+	set := review.DefaultSettings()
+	set.Trials = 8
+	out := make([]string, 2)
+	for n, deferred := range []bool{false, true} {
+		c, inv, err := dicomio.Load(ctx, dir, dicomio.LoadOptions{Deferred: deferred}, nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !inv.Reviewable {
+			t.Fatalf("not reviewable: %s", inv.NotReviewable)
+		}
+		if deferred && (c.Sonications[0].Phase != nil || c.Sonications[0].Source == nil) {
+			t.Fatal("the deferred load holds the frames in memory")
+		}
+		r, err := review.Analyze(ctx, c, set, nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		var b strings.Builder
+		if err := r.WriteJSON(&b); err != nil {
+			t.Fatal(err)
+		}
+		out[n] = b.String()
+	}
+	if out[0] != out[1] {
+		t.Errorf("results differ between the resident and the deferred load:\n%s\n%s", out[0][:min(400, len(out[0]))], out[1][:min(400, len(out[1]))])
+	}
+	if !strings.Contains(out[0], `"covered_fraction"`) {
+		t.Errorf("no covered fraction in the result")
+	}
+	// A file that changes between reading the attributes and the frames
+	// is named in the result's warnings; its frames count as not
+	// monitored.
+	c, _, err := dicomio.Load(ctx, dir, dicomio.LoadOptions{Deferred: true}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	files, _ := filepath.Glob(filepath.Join(dir, "sonication-01", "*"))
+	if len(files) == 0 {
+		t.Fatal("no files of sonication 1")
+	}
+	f, err := os.OpenFile(files[0], os.O_APPEND|os.O_WRONLY, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	f.Write([]byte{0, 0})
+	f.Close()
+	r, err := review.Analyze(ctx, c, set, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	rel, _ := filepath.Rel(dir, files[0])
+	found := false
+	for _, w := range r.Warnings {
+		found = found || (strings.Contains(w, rel) && strings.Contains(w, "sonication 1"))
+	}
+	if !found {
+		t.Errorf("no warning names the changed file %s: %q", rel, r.Warnings)
+	}
 }

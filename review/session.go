@@ -85,7 +85,8 @@ type sonData struct {
 	peak    float64   // largest dose
 	temp    *tempStats
 	quality *SonicationQuality
-	series  any // thermometry kept for Monte Carlo (engine type)
+	series  any      // thermometry kept for Monte Carlo (engine type)
+	notes   []string // frames that could not be read
 }
 
 // tempStats are the temperature figures of one sonication.
@@ -181,8 +182,21 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 		}
 		seen[so.Number] = true
 	}
-	// Thermometry and dose of the sonications in parallel, one worker per
-	// CPU.
+	// The structures (which need only the thermometry grid) beside the
+	// thermometry and dose of the sonications, in parallel, one worker per
+	// CPU. A structure error stops the sonications.
+	sctx, stopSons := context.WithCancel(ctx)
+	defer stopSons()
+	var structWarnings []string
+	var structErr error
+	structDone := make(chan struct{})
+	go func() {
+		defer close(structDone)
+		structWarnings, structErr = ses.prepareStructures(ctx, c, tgt, ref)
+		if structErr != nil {
+			stopSons()
+		}
+	}()
 	ns := len(c.Sonications)
 	sons := make([]*sonData, ns)
 	units := make([]string, ns)
@@ -197,11 +211,11 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 			defer wg.Done()
 			for n := range jobs {
 				so := c.Sonications[n]
-				if err := ctx.Err(); err != nil {
+				if err := sctx.Err(); err != nil {
 					errs[n] = err
 					continue
 				}
-				sons[n], units[n], errs[n] = prepareSonication(ctx, so, s, ref)
+				sons[n], units[n], errs[n] = prepareSonication(sctx, so, s, ref)
 				pmu.Lock()
 				done++
 				progress.report(fmt.Sprintf("thermometry and dose, sonication %d", so.Number), 0.8*float64(done)/float64(ns))
@@ -214,8 +228,12 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 	}
 	close(jobs)
 	wg.Wait()
+	<-structDone
 	if err := ctx.Err(); err != nil {
 		return nil, err
+	}
+	if structErr != nil {
+		return nil, structErr
 	}
 	for n, so := range c.Sonications {
 		if errs[n] != nil {
@@ -225,6 +243,9 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 			}
 			return nil, fmt.Errorf("%s: %w", name, errs[n])
 		}
+		for _, nt := range sons[n].notes {
+			ses.warnings = append(ses.warnings, fmt.Sprintf("sonication %d: %s", so.Number, nt))
+		}
 		if n > 0 && units[n] != units[0] {
 			return nil, fmt.Errorf("sonication %d: dose in %s, sonication %d in %s", so.Number, units[n], c.Sonications[0].Number, units[0])
 		}
@@ -233,7 +254,16 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 		}
 	}
 	ses.sons, ses.unit = sons, units[0]
-	progress.report("structures", 0.8)
+	ses.warnings = append(ses.warnings, structWarnings...)
+	progress.report("prepared", 1)
+	return ses, nil
+}
+
+// prepareStructures rasterizes the target and avoid structures on the
+// analysis grid around the thermometry grid ref and measures the distance
+// from the target; it returns its warnings rather than adding them (it
+// runs beside the sonications).
+func (ses *Session) prepareStructures(ctx context.Context, c *dosemap.Case, tgt *dosemap.Structure, ref dosemap.Geometry) (warnings []string, err error) {
 	sol, err := newPlaneSolid(tgt, ref.Spacing[2])
 	if err != nil {
 		return nil, fmt.Errorf("target: %w", err)
@@ -261,10 +291,10 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 		}
 	}
 	if tgt.FrameOfRef != "" && c.Sonications[0].FrameOfRef != "" && tgt.FrameOfRef != c.Sonications[0].FrameOfRef {
-		ses.warnings = append(ses.warnings, fmt.Sprintf("target %q refers to frame of reference %s, the thermometry to %s; positions are compared as given", tgt.Name, tgt.FrameOfRef, c.Sonications[0].FrameOfRef))
+		warnings = append(warnings, fmt.Sprintf("target %q refers to frame of reference %s, the thermometry to %s; positions are compared as given", tgt.Name, tgt.FrameOfRef, c.Sonications[0].FrameOfRef))
 	}
 	if math.Abs(ref.Normal.Dot(ref.Row.Cross(ref.Col))) < 0.999 {
-		ses.warnings = append(ses.warnings, "the thermometry slices are sheared (slice normal not perpendicular to the image plane); distances are computed as if the grid axes were orthogonal")
+		warnings = append(warnings, "the thermometry slices are sheared (slice normal not perpendicular to the image plane); distances are computed as if the grid axes were orthogonal")
 	}
 	ses.fg = newFineGrid(ref, ext)
 	g := ses.fg.fine
@@ -297,10 +327,8 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 	if err := ctx.Err(); err != nil {
 		return nil, err
 	}
-	progress.report("distance from the target", 0.9)
 	ses.dist = Distance(g, ses.tmask)
-	progress.report("prepared", 1)
-	return ses, nil
+	return warnings, nil
 }
 
 func checkModel(m string) error {

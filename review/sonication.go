@@ -7,6 +7,7 @@ import (
 	"slices"
 	"sort"
 	"strconv"
+	"sync"
 
 	"dosecover/dosemap"
 )
@@ -48,10 +49,17 @@ func prepareSonication(ctx context.Context, so *dosemap.Sonication, s Settings, 
 		}
 		dm = d
 	default:
-		ts, err := dosemap.Thermometry(so, s.Thermometry)
+		// Frames kept in the files are decoded for the thermometry only.
+		r, notes, done, err := so.Resident(ctx)
 		if err != nil {
 			return nil, "", err
 		}
+		ts, err := dosemap.Thermometry(r, s.Thermometry)
+		done()
+		if err != nil {
+			return nil, "", err
+		}
+		sd.notes = notes
 		if err := ctx.Err(); err != nil {
 			return nil, "", err
 		}
@@ -268,8 +276,14 @@ func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *
 	lnF := make([]float32, cl)
 	prune := !s.exhaustiveMC && len(region) > 0
 	if prune && !mc.boundsOK {
-		mc.lo = boxDose(series, set.doseModel(), region, -mcSkipSigmas)
+		var wg sync.WaitGroup
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			mc.lo = boxDose(series, set.doseModel(), region, -mcSkipSigmas)
+		}()
 		mc.hi = boxDose(series, set.doseModel(), region, mcSkipSigmas)
+		wg.Wait()
 		mc.boundsOK = true
 	}
 	dLo, dHi := mc.lo, mc.hi

@@ -9,7 +9,9 @@ import (
 	"math"
 	"os"
 	"regexp"
+	"slices"
 	"strings"
+	"sync"
 
 	"dosecover/dosemap"
 
@@ -146,6 +148,7 @@ type fileInfo struct {
 	BigEndian                          bool
 	Frames                             []frameMeta
 	Pixels                             []byte // raw pixel data when read
+	pooled                             bool   // Pixels is a reused buffer (see decodeFile)
 	Size                               int64  // file size when the attributes were read
 	PixelPos, PixelLen                 int    // where the native pixel data lie in the file (0 unknown)
 	Structures                         *structureSet
@@ -183,17 +186,49 @@ func looksLikeDICOM(data []byte) bool {
 // data (which is skipped, not decoded); with pixels true the raw pixel
 // bytes are kept in fileInfo.Pixels. Panics inside the DICOM library are
 // recovered and reported as an unreadable file.
+//
+// The file is opened once: its start is looked at first, so that a large
+// file that is not DICOM (a video, an archive) is never read whole. Without
+// pixels the bytes go into a reused buffer (nothing read keeps a reference
+// to them), so a pass over thousands of files allocates little.
 func readFile(path string, pixels bool) (fi *fileInfo, err error) {
-	// Look at the start first, so that a large file that is not DICOM (a
-	// video, an archive) is never read into memory whole.
-	if head, err := readHead(path, 132); err != nil {
-		return nil, skip("cannot read: %s", safefile.Reason(err))
-	} else if len(head) > 0 && !looksLikeDICOM(head) {
-		return nil, skip("not a DICOM file (no DICM marker and no DICOM element at the start)")
-	}
-	data, err := os.ReadFile(path)
+	f, err := os.Open(path)
 	if err != nil {
 		return nil, skip("cannot read: %s", safefile.Reason(err))
+	}
+	defer f.Close()
+	st, err := f.Stat()
+	if err != nil {
+		return nil, skip("cannot read: %s", safefile.Reason(err))
+	}
+	var data []byte
+	var pooled *[]byte
+	size := int(st.Size())
+	if st.Size() > int64(maxFileBytes) {
+		size = 0 // read as it comes; readBytes refuses what it cannot hold
+	}
+	if !pixels && size > 0 && size <= maxPooledFile {
+		pooled = fileBuffers.Get().(*[]byte)
+		if cap(*pooled) < size+1 {
+			*pooled = make([]byte, 0, max(size+1, 64<<10))
+		}
+		data = (*pooled)[:0]
+		defer func() {
+			*pooled = (*pooled)[:0]
+			fileBuffers.Put(pooled)
+		}()
+	} else {
+		data = make([]byte, 0, size+1)
+	}
+	data, err = readHeadThenRest(f, data)
+	if err != nil {
+		if errors.Is(err, errNotDICOM) {
+			return nil, skip("not a DICOM file (no DICM marker and no DICOM element at the start)")
+		}
+		return nil, skip("cannot read: %s", safefile.Reason(err))
+	}
+	if pooled != nil {
+		*pooled = data[:0]
 	}
 	// readBytes recovers panics of the DICOM library; this second guard
 	// keeps any other failure on one file from stopping the whole case.
@@ -204,6 +239,53 @@ func readFile(path string, pixels bool) (fi *fileInfo, err error) {
 		}
 	}()
 	return readBytes(path, data, pixels)
+}
+
+// maxPooledFile is the largest file read into a reused buffer; larger ones
+// (multi-frame series) get their own.
+const maxPooledFile = 4 << 20
+
+// maxFileBytes bounds the size taken from Stat when sizing the buffer.
+const maxFileBytes = 1 << 31
+
+// fileBuffers holds the reused read buffers of readFile.
+var fileBuffers = sync.Pool{New: func() any { b := make([]byte, 0, 64<<10); return &b }}
+
+// errNotDICOM is returned by readHeadThenRest for a file whose start is not
+// DICOM.
+var errNotDICOM = errors.New("not DICOM")
+
+// readHeadThenRest appends the first 132 bytes of f to data, checks that
+// they look like DICOM (errNotDICOM if not), then appends the rest of f.
+func readHeadThenRest(f *os.File, data []byte) ([]byte, error) {
+	if cap(data)-len(data) < 132 {
+		data = slices.Grow(data, 132)
+	}
+	head := data[len(data) : len(data)+132]
+	m, err := io.ReadFull(f, head)
+	if err != nil && err != io.EOF && err != io.ErrUnexpectedEOF {
+		return nil, err
+	}
+	data = data[:len(data)+m]
+	if m > 0 && !looksLikeDICOM(data) {
+		return nil, errNotDICOM
+	}
+	if m < 132 {
+		return data, nil
+	}
+	for {
+		if len(data) == cap(data) {
+			data = slices.Grow(data, 1)[:len(data)]
+		}
+		n, err := f.Read(data[len(data):cap(data)])
+		data = data[:len(data)+n]
+		if err == io.EOF {
+			return data, nil
+		}
+		if err != nil {
+			return nil, err
+		}
+	}
 }
 
 // parse runs the DICOM library on data, turning its panics into errors.
@@ -603,19 +685,4 @@ func frameTimeOf(es elems) clockTime {
 		return clockTime{Day: date, Sec: s, OK: true}
 	}
 	return clockTime{Day: -1}
-}
-
-// readHead returns up to n bytes from the start of the file at path.
-func readHead(path string, n int) ([]byte, error) {
-	f, err := os.Open(path)
-	if err != nil {
-		return nil, err
-	}
-	defer f.Close()
-	b := make([]byte, n)
-	m, err := io.ReadFull(f, b)
-	if err == io.EOF || err == io.ErrUnexpectedEOF {
-		err = nil
-	}
-	return b[:m], err
 }

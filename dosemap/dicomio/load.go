@@ -94,6 +94,10 @@ func (cr *caseReader) load(ctx context.Context, progress func(done, total int)) 
 		}
 		switch u.kind {
 		case "phase":
+			if cr.opt.Deferred {
+				s.Source = cr.newFrameSource(u.data, u.mag, phaseConv, rescale)
+				break
+			}
 			s.Phase = alloc(u.data, phaseConv, all(u.data))
 			if u.mag != nil {
 				s.Magnitude = alloc(u.mag, rescale, all(u.mag))
@@ -123,29 +127,8 @@ func (cr *caseReader) load(ctx context.Context, progress func(done, total int)) 
 		paths[n] = fi.Path
 	}
 	errs := make([]error, len(files))
-	var pool sync.Pool
 	err := readAll(ctx, paths, cr.opt.workers(), progress, func(i int) {
-		fi := files[i]
-		var buf []byte
-		if b, ok := pool.Get().(*[]byte); ok {
-			buf = *b
-		}
-		px, err := fi.loadPixels(buf)
-		for _, t := range plan[fi] {
-			if err != nil {
-				for n := range t.dst {
-					t.dst[n] = nan
-				}
-				continue
-			}
-			px.decodeFrame(t.frame, t.dst, t.a, t.b)
-		}
-		if px != nil && px.Pixels != nil && px == fi {
-			b := px.Pixels[:0]
-			fi.Pixels = nil
-			pool.Put(&b)
-		}
-		errs[i] = err
+		errs[i] = decodeFile(files[i], plan[files[i]])
 	})
 	if err != nil {
 		return nil, err
@@ -159,11 +142,41 @@ func (cr *caseReader) load(ctx context.Context, progress func(done, total int)) 
 	return c, nil
 }
 
-// loadPixels returns fi with its raw pixel data. The bytes are read
-// straight from the offset the attribute pass found (into buf when it is
-// large enough), so the file is not parsed again; a file whose size
-// changed since is refused. Without a known offset the file is parsed
-// again.
+// pixelBuffers holds the reused buffers of the pixel pass.
+var pixelBuffers sync.Pool
+
+// decodeFile reads the pixel data of fi and decodes the frames ts asks
+// for; when the pixels cannot be read, those frames are NaN and the error
+// says why.
+func decodeFile(fi *fileInfo, ts []target) error {
+	var buf []byte
+	if b, ok := pixelBuffers.Get().(*[]byte); ok {
+		buf = *b
+	}
+	px, err := fi.loadPixels(buf)
+	nan := float32(math.NaN())
+	for _, t := range ts {
+		if err != nil {
+			for n := range t.dst {
+				t.dst[n] = nan
+			}
+			continue
+		}
+		px.decodeFrame(t.frame, t.dst, t.a, t.b)
+	}
+	if px != nil && px.pooled {
+		b := px.Pixels[:0]
+		pixelBuffers.Put(&b)
+	}
+	return err
+}
+
+// loadPixels returns a copy of fi holding its raw pixel data (fi itself is
+// not changed, so that files can be read again concurrently). The bytes
+// are read straight from the offset the attribute pass found (into buf
+// when it is large enough; the copy is then marked pooled), so the file is
+// not parsed again; a file whose size changed since is refused. Without a
+// known offset the file is parsed again.
 func (fi *fileInfo) loadPixels(buf []byte) (*fileInfo, error) {
 	need := len(fi.Frames) * fi.Rows * fi.Cols * fi.BitsAllocated / 8
 	if fi.PixelPos <= 0 || fi.PixelLen < need {
@@ -192,6 +205,7 @@ func (fi *fileInfo) loadPixels(buf []byte) (*fileInfo, error) {
 	if _, err := f.ReadAt(buf, int64(fi.PixelPos)); err != nil {
 		return nil, fmt.Errorf("reading pixel data: %w", err)
 	}
-	fi.Pixels = buf
-	return fi, nil
+	px := *fi
+	px.Pixels, px.pooled = buf, true
+	return &px, nil
 }

@@ -48,8 +48,27 @@ func (fi *fileInfo) decodeFrame(frame int, dst []float32, a, b float64) {
 			}
 			return
 		}
-		// General 16-bit case (BitsStored < 16, HighBit, byte order),
-		// without an interface call per pixel.
+		if !fi.BigEndian && fi.HighBit < 16 && fi.BitsStored <= fi.HighBit+1 {
+			// Little-endian with fewer stored bits: shifting bit HighBit
+			// up to bit 31 drops the bits above it, and the shift back
+			// down (arithmetic for signed data) leaves the value.
+			up := uint(31 - fi.HighBit)
+			raw = raw[:2*len(dst)]
+			if signed {
+				for n := range dst {
+					u := uint32(binary.LittleEndian.Uint16(raw[2*n:])) << up
+					dst[n] = float32(float64(int32(u)>>ext)*a + b)
+				}
+			} else {
+				for n := range dst {
+					u := uint32(binary.LittleEndian.Uint16(raw[2*n:])) << up
+					dst[n] = float32(float64(u>>ext)*a + b)
+				}
+			}
+			return
+		}
+		// General 16-bit case (big-endian, odd HighBit), without an
+		// interface call per pixel.
 		lo, hi := 0, 1
 		if fi.BigEndian {
 			lo, hi = 1, 0

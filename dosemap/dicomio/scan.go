@@ -30,6 +30,14 @@ type LoadOptions struct {
 	PhaseScale float64
 	// Workers is the number of files read in parallel; 0: GOMAXPROCS.
 	Workers int
+	// Deferred leaves the phase and magnitude frames of the sonications in
+	// their files: Load reads the pixels of the anatomy, the temperature
+	// and dose maps only, and each phase sonication gets a Source that
+	// decodes its frames into reused buffers when asked. An analysis then
+	// holds the frames of one sonication at a time instead of all of
+	// them. The files must stay as they are meanwhile: a file whose size
+	// changed is refused, its frames NaN and named in the Source's notes.
+	Deferred bool
 }
 
 // Scan reads the attributes of every file under dir (any depth, any names),

@@ -286,7 +286,7 @@ func methods(c *dosemap.Case, r *review.Result, opt Options) []Setting {
 	}
 	measured := false
 	for _, so := range c.Sonications {
-		measured = measured || so.Phase != nil || so.Temperature != nil
+		measured = measured || so.HasPhase() || so.Temperature != nil
 	}
 	if !measured {
 		ms = append(ms, Setting{"Thermometry", "not used: the case holds ready dose maps"})
@@ -388,7 +388,7 @@ func thermometryInfo(th dosemap.ThermometryOptions) review.ThermometryInfo {
 func fieldAndEcho(c *dosemap.Case, ti review.ThermometryInfo) string {
 	b0lo, b0hi, telo, tehi := math.Inf(1), math.Inf(-1), math.Inf(1), math.Inf(-1)
 	for _, s := range c.Sonications {
-		if s.Dose != nil && s.Phase == nil {
+		if s.Dose != nil && !s.HasPhase() {
 			continue
 		}
 		b, t := s.B0, s.TE
