@@ -705,11 +705,12 @@ func (av *auditView) done(cfg audit.Config, sum *audit.Summary, err error) {
 	av.cancel = nil
 	av.runBtn.Enable()
 	av.cancelBtn.Disable()
-	var ue *audit.UsageError
 	switch {
-	case errors.As(err, &ue):
+	case err != nil && sum == nil:
+		// Refused before it started (usage error, missing input folder,
+		// output folder of an audit with other settings): nothing written.
 		av.counts.SetText("Not started.")
-		av.showMessage("Cannot start the audit: "+ue.Msg, true)
+		av.showMessage("Cannot start the audit: "+err.Error(), true)
 		return
 	case sum != nil && sum.Interrupted:
 		av.setRows(sum.Rows, cfg.OutDir)

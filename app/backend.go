@@ -32,6 +32,7 @@ type loadedCase struct {
 	NotReviewable string   // why the folder cannot be reviewed; "" when it can
 	MissingB0     bool     // some thermometry lacks MagneticFieldStrength
 	MissingTE     bool     // some thermometry lacks EchoTime
+	Demo          bool     // the built-in demo case, opened from the user cache
 }
 
 // loadOptions are the reader's options the user can change.

@@ -48,8 +48,13 @@ func auditUsage(w io.Writer, fs *flag.FlagSet) {
 	fmt.Fprintln(w, "and summary.png. A folder holding DICOM files is one case; otherwise each of its")
 	fmt.Fprintln(w, "subfolders holding DICOM files is one. OUT_DIR must not lie inside any DIR.")
 	fmt.Fprintln(w)
-	fmt.Fprintln(w, "Exit code: 0 every case analysed, 1 some case incomplete or failed (see errors.csv)")
-	fmt.Fprintln(w, "or the audit was interrupted, 2 usage error.")
+	fmt.Fprintln(w, "Shards (--shard I/N) may share one OUT_DIR when they use the same settings: the")
+	fmt.Fprintln(w, "first writes OUT_DIR/settings.json, and a shard with other settings is refused.")
+	fmt.Fprintln(w)
+	fmt.Fprintln(w, "Exit code: 0 every case analysed; 1 some case incomplete or failed (see errors.csv),")
+	fmt.Fprintln(w, "the audit interrupted, an input folder missing or unreadable, the settings file")
+	fmt.Fprintln(w, "missing, unreadable or invalid, or a shard refused for other settings;")
+	fmt.Fprintln(w, "2 usage error (unknown or bad options, no DIR or no -o, OUT_DIR inside a DIR).")
 	fmt.Fprintln(w)
 	fmt.Fprintln(w, "options:")
 	fs.SetOutput(w)
@@ -102,10 +107,9 @@ func runAudit(args []string, stdout, stderr io.Writer) int {
 	cfg.Inputs = inputs
 	cfg.Analyzer, cfg.Settings, cfg.SettingsColumns, err = auditAnalysis(settingsFile)
 	if err != nil {
+		// A settings file that cannot be read or used is a failed input,
+		// like a case folder that cannot be read: exit 1.
 		fmt.Fprintf(stderr, "dosecover audit: %v\n", err)
-		if settingsFile != "" {
-			return 2
-		}
 		return 1
 	}
 	terminal := false

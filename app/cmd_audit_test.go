@@ -83,16 +83,16 @@ func TestAuditExitCodes(t *testing.T) {
 		{"bad shard", []string{good, "-o", out, "--shard", "3/2"}, 2},
 		{"bad workers", []string{good, "-o", out, "--workers", "-3"}, 2},
 		{"output inside input", []string{good, "-o", filepath.Join(good, "a", "out")}, 2},
-		{"missing input", []string{filepath.Join(tmp, "nope"), "-o", out}, 2},
-		{"missing settings file", []string{good, "-o", out, "--settings", filepath.Join(tmp, "nope.json")}, 2},
+		{"missing input", []string{filepath.Join(tmp, "nope"), "-o", out}, 1},
+		{"missing settings file", []string{good, "-o", out, "--settings", filepath.Join(tmp, "nope.json")}, 1},
 	} {
 		var stdout, stderr bytes.Buffer
 		got := run(append([]string{"audit"}, c.args...), &stdout, &stderr)
 		if got != c.want {
 			t.Errorf("%s: exit %d, want %d\nstdout: %s\nstderr: %s", c.name, got, c.want, stdout.String(), stderr.String())
 		}
-		if c.want == 2 && c.name != "help" && stderr.Len() == 0 {
-			t.Errorf("%s: usage error without a message", c.name)
+		if c.want != 0 && stderr.Len() == 0 {
+			t.Errorf("%s: exit %d without a message", c.name, c.want)
 		}
 	}
 	if _, err := os.Stat(filepath.Join(good, "a", "out")); !os.IsNotExist(err) {
@@ -127,5 +127,50 @@ func TestParseInterspersed(t *testing.T) {
 		if err != nil || !reflect.DeepEqual(pos, c.pos) || *out != c.out {
 			t.Errorf("%v: %v %q %v; want %v %q", c.args, pos, *out, err, c.pos, c.out)
 		}
+	}
+}
+
+// TestAuditShardsShareOutput runs both shards of an audit into one output
+// folder from the command line, then a shard with another settings file,
+// which is refused with exit code 1 and a message naming the difference.
+func TestAuditShardsShareOutput(t *testing.T) {
+	withFakeAuditAnalysis(t)
+	tmp := t.TempDir()
+	reg := filepath.Join(tmp, "registry")
+	for _, n := range []string{"a", "b", "c", "d", "e", "f"} {
+		fakeAuditCase(t, filepath.Join(reg, n))
+	}
+	s240 := filepath.Join(tmp, "s240.json")
+	s300 := filepath.Join(tmp, "s300.json")
+	os.WriteFile(s240, []byte(`{"threshold": 240, "margin_mm": 3}`), 0o644)
+	os.WriteFile(s300, []byte(`{"threshold": 300, "margin_mm": 3}`), 0o644)
+	out := filepath.Join(tmp, "out")
+	for _, shard := range []string{"1/2", "2/2"} {
+		if code, stdout, stderr := runCmd("audit", reg, "-o", out, "--shard", shard, "--settings", s240); code != 0 {
+			t.Fatalf("shard %s: exit %d\n%s\n%s", shard, code, stdout, stderr)
+		}
+	}
+	rows, _, err := audit.LoadRows(out)
+	if err != nil || len(rows) != 6 {
+		t.Fatalf("after both shards: %d case records, %v; want 6", len(rows), err)
+	}
+	b, err := os.ReadFile(filepath.Join(out, "settings.json"))
+	if err != nil || string(b) != `{"margin_mm":3,"threshold":240}`+"\n" {
+		t.Errorf("settings.json %q, %v; want the settings of both shards", b, err)
+	}
+	code, _, stderr := runCmd("audit", reg, "-o", out, "--shard", "2/2", "--settings", s300, "--resume")
+	if code != 1 {
+		t.Errorf("shard with other settings: exit %d, want 1", code)
+	}
+	for _, says := range []string{out, "other settings", "threshold: 240 in settings.json, 300 for this shard"} {
+		if !strings.Contains(stderr, says) {
+			t.Errorf("message does not say %q:\n%s", says, stderr)
+		}
+	}
+	if bad := rawMessage(stderr); len(bad) > 0 {
+		t.Errorf("raw error text %q in:\n%s", bad, stderr)
+	}
+	if b2, _ := os.ReadFile(filepath.Join(out, "settings.json")); string(b2) != string(b) {
+		t.Errorf("settings.json changed by the refused shard: %s", b2)
 	}
 }

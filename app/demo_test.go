@@ -12,6 +12,7 @@ import (
 	"sync"
 	"testing"
 
+	"dosecover/dosemap"
 	"dosecover/dosemap/sim"
 
 	"fyne.io/fyne/v2/test"
@@ -25,8 +26,9 @@ var (
 )
 
 // freshDemo writes the demo case with the current simulator into a
-// temporary folder, once per test run (the cached copy "dosecover" opens
-// could stem from an older build).
+// temporary folder named like its folder in the user cache
+// (demo-VERSION-rREVISION, see sim.DemoDir), once per test run (the cached
+// copy "dosecover" opens could stem from an older build).
 func freshDemo(t *testing.T) (string, *sim.Truth) {
 	t.Helper()
 	if testing.Short() {
@@ -35,7 +37,7 @@ func freshDemo(t *testing.T) (string, *sim.Truth) {
 	demoOnce.Do(func() {
 		var parent string
 		if parent, demoErr = os.MkdirTemp("", "dosecover-demo-"); demoErr == nil {
-			demoDir = filepath.Join(parent, "demo")
+			demoDir = filepath.Join(parent, fmt.Sprintf("demo-%s-r%d", dosemap.Version, sim.Revision))
 			demoTruth, demoErr = sim.WriteDemo(demoDir)
 		}
 	})
@@ -53,14 +55,17 @@ func TestMain(m *testing.M) {
 	os.Exit(code)
 }
 
-// openDemo opens the demo case in rw through the DICOM reader and the
+// openDemoCase opens the demo case in rw through the DICOM reader and the
 // analysis, as "dosecover" with no arguments does.
 func openDemoCase(t *testing.T, rw *reviewWindow) *sim.Truth {
 	t.Helper()
 	dir, truth := freshDemo(t)
+	old := demoCaseDir
+	t.Cleanup(func() { demoCaseDir = old })
+	demoCaseDir = func() (string, error) { return dir, nil }
 	mark := rw.completed.Load()
-	rw.openCase(dir)
-	waitJobs(t, rw, mark, 2) // the load, then the analysis
+	rw.openDemo()
+	waitJobs(t, rw, mark, 3) // the demo folder, the load, then the analysis
 	if rw.result == nil {
 		t.Fatalf("demo not analysed: %s", rw.status.Text)
 	}
@@ -94,8 +99,10 @@ func TestDemoOpens(t *testing.T) {
 	if len(truth.Spill) > 0 && len(r.Outside) == 0 {
 		t.Errorf("the simulator sent sonications %v beyond the margin; no lethal cluster outside it is listed", truth.Spill)
 	}
-	if !strings.Contains(rw.win.Title(), "demo") {
-		t.Errorf("window title %q", rw.win.Title())
+	// Named as the demo, not by its cache folder (which the reader gives
+	// as the label of any folder).
+	if want := demoLabel + " — dosecover " + version; rw.win.Title() != want {
+		t.Errorf("window title %q, want %q", rw.win.Title(), want)
 	}
 }
 

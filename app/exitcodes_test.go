@@ -26,6 +26,10 @@ func TestExitCodes(t *testing.T) {
 	if err := os.MkdirAll(out(""), 0o755); err != nil {
 		t.Fatal(err)
 	}
+	badSettings := filepath.Join(tmp, "bad-settings.json")
+	if err := os.WriteFile(badSettings, []byte(`{"treshold": 300}`), 0o644); err != nil {
+		t.Fatal(err)
+	}
 	nonEmpty := filepath.Join(tmp, "nonempty")
 	if err := os.MkdirAll(nonEmpty, 0o755); err != nil {
 		t.Fatal(err)
@@ -103,8 +107,12 @@ func TestExitCodes(t *testing.T) {
 		{"audit no output", []string{"audit", good}, 2, "no output folder"},
 		{"audit bad shard", []string{"audit", good, "-o", out("a1"), "--shard", "0/2"}, 2, "0/2"},
 		{"audit bad workers", []string{"audit", good, "-o", out("a2"), "--workers", "-2"}, 2, "--workers -2"},
-		{"audit missing input", []string{"audit", missing, "-o", out("a3")}, 2, "does not exist"},
-		{"audit missing settings", []string{"audit", good, "-o", out("a4"), "--settings", filepath.Join(tmp, "none.json")}, 2, "none.json"},
+		{"audit missing input", []string{"audit", missing, "-o", out("a3")}, 1, "input folder " + missing + ": does not exist"},
+		{"audit input is a file", []string{"audit", file, "-o", out("a6")}, 1, "plain.txt: is a file, not a folder"},
+		{"audit missing settings", []string{"audit", good, "-o", out("a4"), "--settings", filepath.Join(tmp, "none.json")}, 1, "none.json"},
+		{"audit invalid settings", []string{"audit", good, "-o", out("a9"), "--settings", badSettings}, 1, `unknown field "treshold"`},
+		{"audit unknown flag", []string{"audit", good, "-o", out("a7"), "--fast"}, 2, "fast"},
+		{"audit no folder", []string{"audit", "-o", out("a8")}, 2, "no case folder given"},
 		{"audit no case", []string{"audit", nonEmpty, "-o", out("a5")}, 1, "no case found"},
 		{"audit output under a file", []string{"audit", good, "-o", filepath.Join(file, "a")}, 1, "a part of the path is a file"},
 	} {
@@ -122,7 +130,7 @@ func TestExitCodes(t *testing.T) {
 		})
 	}
 	// Refused commands wrote nothing.
-	for _, p := range []string{"d1", "d2", "d3", "demo1", "demo2", "demo3", "a1", "a2", "a3", "a4", "r.png"} {
+	for _, p := range []string{"d1", "d2", "d3", "demo1", "demo2", "demo3", "a1", "a2", "a3", "a4", "a6", "a7", "a8", "a9", "r.png"} {
 		if _, err := os.Stat(out(p)); !os.IsNotExist(err) {
 			t.Errorf("%s was written by a refused command", p)
 		}

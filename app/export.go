@@ -50,16 +50,24 @@ func (rw *reviewWindow) resultRaw() (*review.Result, bool) {
 	return r, ok
 }
 
-// reportBase is the file name stem of the exported files.
+// reportBase is the file name stem of the exported files: the case name
+// with every run of other characters than letters, digits, '-', '_' and
+// '.' replaced by one '_' ("Demo case (gel phantom)" gives
+// "Demo_case_gel_phantom-dose-review").
 func (rw *reviewWindow) reportBase() string {
 	label := rw.caseName()
 	var b strings.Builder
+	gap := false
 	for _, r := range label {
 		switch {
 		case unicode.IsLetter(r) || unicode.IsDigit(r) || r == '-' || r == '_' || r == '.':
+			if gap {
+				b.WriteRune('_')
+				gap = false
+			}
 			b.WriteRune(r)
 		default:
-			b.WriteRune('_')
+			gap = true
 		}
 	}
 	return strings.Trim(b.String(), "._") + "-dose-review"

@@ -18,6 +18,16 @@ import (
 	"fyne.io/fyne/v2/widget"
 )
 
+// demoLabel names the built-in demo case wherever the window names a case
+// (title, recent cases, exported report, review record), in place of its
+// folder in the user cache, whose name only says which build wrote it.
+const demoLabel = "Demo case (gel phantom)"
+
+// recentDemo stands for the demo case in the list of recent cases. The list
+// keeps the case, not its folder: a new simulator revision writes the demo
+// into a new folder. No path contains a NUL byte.
+const recentDemo = "\x00demo"
+
 // openDemo opens the built-in demo case, writing it first when needed.
 func (rw *reviewWindow) openDemo() {
 	if demoCaseDir == nil {
@@ -38,7 +48,7 @@ func (rw *reviewWindow) openDemo() {
 				rw.showError("The demo case could not be prepared", err)
 				return
 			}
-			rw.openCase(dir)
+			rw.openFolder(dir, true)
 		})
 	}()
 }
@@ -95,8 +105,12 @@ func (rw *reviewWindow) addRecent(dir string) {
 	rw.win.SetMainMenu(rw.mainMenu())
 }
 
-// recentLabel is how a recent folder is listed: hidden in teaching mode.
+// recentLabel is how a recent folder is listed: hidden in teaching mode
+// (the demo, invented, is named in either mode).
 func (rw *reviewWindow) recentLabel(n int, dir string) string {
+	if dir == recentDemo {
+		return demoLabel
+	}
 	if rw.teaching {
 		return fmt.Sprintf("Recent case %d", n+1)
 	}
@@ -106,8 +120,11 @@ func (rw *reviewWindow) recentLabel(n int, dir string) string {
 func (rw *reviewWindow) fillRecentMenu(m *fyne.Menu) {
 	m.Items = nil
 	for n, d := range rw.recentCases() {
-		d := d
-		m.Items = append(m.Items, fyne.NewMenuItem(rw.recentLabel(n, d), func() { rw.openCase(d) }))
+		open := func() { rw.openCase(d) }
+		if d == recentDemo {
+			open = rw.openDemo
+		}
+		m.Items = append(m.Items, fyne.NewMenuItem(rw.recentLabel(n, d), open))
 	}
 	if len(m.Items) == 0 {
 		it := fyne.NewMenuItem("(none yet)", nil)
@@ -123,9 +140,15 @@ func (rw *reviewWindow) showRecentMenu() {
 	widget.ShowPopUpMenuAtPosition(m, rw.win.Canvas(), fyne.NewPos(120, 40))
 }
 
-// openCase reads dir in the background: it hashes the input files, finds
-// the review record, reads the case, then prepares and analyses it.
-func (rw *reviewWindow) openCase(dir string) {
+// openCase reads the case folder dir in the background: it hashes the
+// input files, finds the review record, reads the case, then prepares and
+// analyses it. The case is named by its folder (or the labels its files
+// carry, as the reader decides).
+func (rw *reviewWindow) openCase(dir string) { rw.openFolder(dir, false) }
+
+// openFolder is openCase; demo marks dir as the built-in demo case, named
+// demoLabel rather than by its cache folder.
+func (rw *reviewWindow) openFolder(dir string, demo bool) {
 	if readCase == nil {
 		rw.showNotice("This build of dosecover cannot read case folders yet (its DICOM reader is missing).")
 		return
@@ -134,6 +157,9 @@ func (rw *reviewWindow) openCase(dir string) {
 	rw.pendingDir = dir
 	ctx, gen := rw.startJob()
 	base := rw.displayPath(dir)
+	if demo {
+		base = "the demo case"
+	}
 	rw.setBusy("Checking the files of "+base+"…", 0)
 	if rw.loaded == nil {
 		rw.showNotice("Reading " + base + "… (the Cancel button at the bottom right stops it)")
@@ -179,6 +205,12 @@ func (rw *reviewWindow) openCase(dir string) {
 					0.05+0.225*(float64(pass)+float64(done)/float64(total)))
 			})
 		}
+		if err == nil && demo && lc != nil {
+			lc.Demo = true
+			if lc.Case != nil {
+				lc.Case.Label = demoLabel
+			}
+		}
 		fyne.Do(func() {
 			defer rw.completed.Add(1)
 			if !rw.finishJob(gen) {
@@ -195,7 +227,7 @@ func (rw *reviewWindow) openCase(dir string) {
 				if rw.loaded == nil {
 					rw.showNotice("Open a case folder (File ▸ Open folder…, or drop a folder on this window).")
 				}
-				rw.showError("The case in "+base+" could not be read", err)
+				rw.showError("The case in "+rw.displayPath(dir)+" could not be read", err)
 				return
 			}
 			rw.caseLoaded(lc, hash, nFiles, rec, setting)
@@ -216,7 +248,11 @@ func (rw *reviewWindow) caseLoaded(lc *loadedCase, hash string, nFiles int, rec 
 	rec.Files = nFiles
 	rw.record = rec
 	rw.settings = s
-	rw.addRecent(lc.Dir)
+	if lc.Demo {
+		rw.addRecent(recentDemo)
+	} else {
+		rw.addRecent(lc.Dir)
+	}
 	rw.updateTitle()
 	rw.showLoadInfo()
 	rw.probe.set(nil)

@@ -1,6 +1,7 @@
 package audit
 
 import (
+	"errors"
 	"fmt"
 	"io"
 	"io/fs"
@@ -17,16 +18,60 @@ const tempPrefix = ".dosecover-"
 // writeAtomic writes the file at p through fill: into a temporary file in
 // the same folder, synced and then renamed over p, so that p is either
 // absent, the old file or the complete new one, never half written.
-func writeAtomic(p string, fill func(w io.Writer) error) (err error) {
+func writeAtomic(p string, fill func(w io.Writer) error) error {
+	tmp, err := writeTemp(p, fill)
+	if err != nil {
+		return err
+	}
+	if err := os.Rename(tmp, p); err != nil {
+		os.Remove(tmp)
+		return fmt.Errorf("writing %s: %w", p, err)
+	}
+	return nil
+}
+
+// createAtomic writes the file at p through fill unless p exists, and
+// reports whether it wrote it. The complete temporary file is linked to p,
+// which fails when p exists, so of several processes creating p at once
+// exactly one succeeds and none sees p half written. On a file system
+// without hard links it falls back to a rename when p is absent.
+func createAtomic(p string, fill func(w io.Writer) error) (bool, error) {
+	tmp, err := writeTemp(p, fill)
+	if err != nil {
+		return false, err
+	}
+	defer os.Remove(tmp)
+	err = os.Link(tmp, p)
+	switch {
+	case err == nil:
+		return true, nil
+	case errors.Is(err, fs.ErrExist):
+		return false, nil
+	}
+	if _, serr := os.Lstat(p); serr == nil {
+		return false, nil
+	} else if !errors.Is(serr, fs.ErrNotExist) {
+		return false, fmt.Errorf("writing %s: %w", p, serr)
+	}
+	if err := os.Rename(tmp, p); err != nil {
+		return false, fmt.Errorf("writing %s: %w", p, err)
+	}
+	return true, nil
+}
+
+// writeTemp writes fill's output into a new temporary file next to p
+// (created with its folder when missing), synced, closed and readable by
+// all, and returns its path.
+func writeTemp(p string, fill func(w io.Writer) error) (tmp string, err error) {
 	dir := filepath.Dir(p)
 	if err := os.MkdirAll(dir, 0o755); err != nil {
-		return fmt.Errorf("writing %s: %w", p, err)
+		return "", fmt.Errorf("writing %s: %w", p, err)
 	}
 	f, err := os.CreateTemp(dir, tempPrefix+filepath.Base(p)+".*.tmp")
 	if err != nil {
-		return fmt.Errorf("writing %s: %w", p, err)
+		return "", fmt.Errorf("writing %s: %w", p, err)
 	}
-	tmp := f.Name()
+	tmp = f.Name()
 	defer func() {
 		if err != nil {
 			f.Close()
@@ -34,21 +79,18 @@ func writeAtomic(p string, fill func(w io.Writer) error) (err error) {
 		}
 	}()
 	if err = fill(f); err != nil {
-		return fmt.Errorf("writing %s: %w", p, err)
+		return "", fmt.Errorf("writing %s: %w", p, err)
 	}
 	if err = f.Sync(); err != nil {
-		return fmt.Errorf("writing %s: %w", p, err)
+		return "", fmt.Errorf("writing %s: %w", p, err)
 	}
 	if err = f.Close(); err != nil {
-		return fmt.Errorf("writing %s: %w", p, err)
+		return "", fmt.Errorf("writing %s: %w", p, err)
 	}
 	if err = os.Chmod(tmp, 0o644); err != nil {
-		return fmt.Errorf("writing %s: %w", p, err)
+		return "", fmt.Errorf("writing %s: %w", p, err)
 	}
-	if err = os.Rename(tmp, p); err != nil {
-		return fmt.Errorf("writing %s: %w", p, err)
-	}
-	return nil
+	return tmp, nil
 }
 
 // removeTemps removes the temporary files an earlier, killed run left below

@@ -13,7 +13,7 @@
 //
 // Output folder layout:
 //
-//	OUT_DIR/settings.json           the analysis settings of the run
+//	OUT_DIR/settings.json           the analysis settings of the audit
 //	OUT_DIR/cases/ID/case.json      one record per case (see Record)
 //	OUT_DIR/cases/ID/report.png ... files the Analyzer produced (Artifact)
 //	OUT_DIR/summary.csv             one row per case (see Header)
@@ -22,7 +22,9 @@
 //
 // With a shard the three summary files are named summary-I-of-N.csv,
 // errors-I-of-N.csv and summary-I-of-N.png so that shards may share one
-// output folder.
+// output folder. The shards of one audit share settings.json: the first
+// shard writes it, and a shard whose settings differ from those it holds
+// is refused before it analyses any case (SettingsConflictError).
 //
 // The package never imports a GUI toolkit; a GUI shows the same Rows that
 // Run returns and follows its Progress callback.

@@ -44,7 +44,11 @@ type Config struct {
 	Deidentify bool
 	// Settings is the analysis settings as JSON; it is stored in every
 	// record and in OutDir/settings.json, and its SettingsHash decides
-	// whether an earlier result may be reused.
+	// whether an earlier result may be reused. A run without a shard
+	// replaces OutDir/settings.json; a sharded run writes it when absent
+	// and is refused (*SettingsConflictError) when it holds other
+	// settings, so that shards share an output folder only as parts of
+	// one audit.
 	Settings json.RawMessage
 	// SettingsColumns are added to every row of the summary table.
 	SettingsColumns []Column
@@ -119,7 +123,9 @@ func (s *Summary) ExitCode() int {
 // When ctx is cancelled, Run lets the cases in progress stop, writes no
 // summary and returns the partial Summary with Interrupted set and ctx's
 // error; a later run with Resume continues where this one stopped. Errors
-// in the Config are returned as *UsageError.
+// in the Config are returned as *UsageError. An error that keeps the run
+// from starting (a usage error, an input folder that is missing or cannot
+// be read) comes with a nil Summary; nothing was written then.
 func Run(ctx context.Context, cfg Config) (*Summary, error) {
 	start := time.Now()
 	if cfg.Analyzer == nil {
@@ -152,9 +158,18 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 	}
 	for _, in := range cfg.Inputs {
 		if inside, err := isInside(outDir, in); err != nil {
-			return nil, &UsageError{fmt.Sprintf("input folder %s: %v", in, err)}
+			return nil, fmt.Errorf("input folder %s: %w", in, err)
 		} else if inside {
 			return nil, &UsageError{fmt.Sprintf("output folder %s is inside the input folder %s: dosecover never writes into the folders it reads; choose another output folder", cfg.OutDir, in)}
+		}
+	}
+
+	// Shards of one audit share its output folder only with the same
+	// settings: refuse before searching the inputs, write nothing.
+	sharded := cfg.Shard.Count > 1
+	if sharded {
+		if err := sharedSettings(outDir, cfg.OutDir, settings, false); err != nil {
+			return nil, err
 		}
 	}
 
@@ -167,7 +182,9 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 	report(Progress{Phase: "discovering"})
 	all, problems, err := Discover(cfg.Inputs)
 	if err != nil {
-		return nil, &UsageError{err.Error()}
+		// An input folder that is missing or cannot be read is a failure
+		// of the run (its message names the folder), not a usage error.
+		return nil, err
 	}
 	cases := cfg.Shard.Select(all)
 	sum := &Summary{Problems: problems, Header: Header(cfg.SettingsColumns)}
@@ -182,7 +199,7 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 	// output folder, so a shard removes only leftovers too old to belong to
 	// a write in progress (every write takes seconds).
 	age := time.Duration(0)
-	if cfg.Shard.Count > 1 {
+	if sharded {
 		age = staleTemp
 	}
 	if err := removeTemps(outDir, age); err != nil {
@@ -192,7 +209,12 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 	if cfg.Resume {
 		index = resumeIndex(outDir)
 	}
-	if err := writeAtomic(filepath.Join(outDir, "settings.json"), func(w io.Writer) error {
+	if sharded {
+		// Checked again as another shard may have started meanwhile.
+		if err := sharedSettings(outDir, cfg.OutDir, settings, true); err != nil {
+			return nil, err
+		}
+	} else if err := writeAtomic(filepath.Join(outDir, SettingsFile), func(w io.Writer) error {
 		_, err := w.Write(append(settings, '\n'))
 		return err
 	}); err != nil {
@@ -278,7 +300,7 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 	report(Progress{Phase: "summarising", Total: len(cases), Done: p.Done, Resumed: p.Resumed, Incomplete: p.Incomplete, Failed: p.Failed})
 	base := "summary"
 	errName := "errors"
-	if cfg.Shard.Count > 1 {
+	if sharded {
 		suffix := fmt.Sprintf("-%d-of-%d", cfg.Shard.Index, cfg.Shard.Count)
 		base += suffix
 		errName += suffix

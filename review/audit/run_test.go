@@ -5,6 +5,7 @@ import (
 	"encoding/csv"
 	"encoding/json"
 	"errors"
+	"fmt"
 	"math"
 	"os"
 	"path/filepath"
@@ -366,7 +367,6 @@ func TestRunUsageErrors(t *testing.T) {
 		{"output is input", Config{Inputs: []string{in}, OutDir: in, Analyzer: fc.analyze}},
 		{"output inside input by a link", Config{Inputs: []string{in}, OutDir: filepath.Join(tmp, "link", "out"), Analyzer: fc.analyze}},
 		{"no inputs", Config{OutDir: filepath.Join(tmp, "out"), Analyzer: fc.analyze}},
-		{"missing input", Config{Inputs: []string{filepath.Join(tmp, "nope")}, OutDir: filepath.Join(tmp, "out"), Analyzer: fc.analyze}},
 		{"no output", Config{Inputs: []string{in}, Analyzer: fc.analyze}},
 		{"no analyzer", Config{Inputs: []string{in}, OutDir: filepath.Join(tmp, "out")}},
 		{"negative workers", Config{Inputs: []string{in}, OutDir: filepath.Join(tmp, "out"), Workers: -1, Analyzer: fc.analyze}},
@@ -384,6 +384,29 @@ func TestRunUsageErrors(t *testing.T) {
 	}
 	if _, err := os.Stat(filepath.Join(in, "case-000", "audit")); !os.IsNotExist(err) {
 		t.Errorf("an output folder was created inside the input")
+	}
+	// An input folder that is missing or is a file: a failure naming the
+	// folder, not a usage error, and nothing written.
+	plain := filepath.Join(tmp, "plain.txt")
+	writeFiles(t, tmp, map[string][]byte{"plain.txt": []byte("not a folder")})
+	for _, c := range []struct{ input, says string }{
+		{filepath.Join(tmp, "nope"), "does not exist"},
+		{plain, "not a folder"},
+	} {
+		out := filepath.Join(tmp, "out-missing")
+		sum, err := Run(context.Background(), Config{Inputs: []string{in, c.input}, OutDir: out, Analyzer: fc.analyze})
+		var ue *UsageError
+		if err == nil || errors.As(err, &ue) || sum != nil {
+			t.Errorf("input %s: summary %v, err %v; want a failure that is not a usage error", c.input, sum, err)
+		} else if !strings.Contains(err.Error(), c.input) || !strings.Contains(err.Error(), c.says) {
+			t.Errorf("input %s: message %q does not name the folder and say %q", c.input, err, c.says)
+		}
+		if _, err := os.Stat(out); !os.IsNotExist(err) {
+			t.Errorf("input %s: the output folder was created", c.input)
+		}
+	}
+	if fc.total() != 0 {
+		t.Errorf("analyzer ran %d times although an input folder was missing", fc.total())
 	}
 	// No cases at all: a failure, not a usage error.
 	empty := filepath.Join(tmp, "empty")
@@ -540,4 +563,160 @@ func TestResumeKeepsDeidentification(t *testing.T) {
 			}
 		}
 	}
+}
+
+// TestShardsShareSettings runs the two shards of one audit into one output
+// folder, then a shard with other settings: the shards' results and one
+// settings file stand side by side, and the shard with other settings is
+// refused before it analyses anything.
+func TestShardsShareSettings(t *testing.T) {
+	tmp := t.TempDir()
+	in := makeCases(t, filepath.Join(tmp, "in"), 8)
+	out := filepath.Join(tmp, "out")
+	settings := json.RawMessage(`{"threshold": 240, "margin_mm": 3, "cem43": {"break": 43}}`)
+	want, _ := CanonicalSettings(settings)
+	wantHash, _ := SettingsHash(settings)
+	cfg := func(i int, s json.RawMessage, fc *fileCounter) Config {
+		return Config{Inputs: []string{in}, OutDir: out, Shard: Shard{i, 2}, Workers: 2, Settings: s, Analyzer: fc.analyze, Resume: true}
+	}
+	seen := map[string]bool{}
+	for i := 1; i <= 2; i++ {
+		fc := newFileCounter()
+		sum, err := Run(context.Background(), cfg(i, settings, fc))
+		if err != nil {
+			t.Fatalf("shard %d/2: %v", i, err)
+		}
+		if len(sum.Rows) == 0 || fc.total() != len(sum.Rows) {
+			t.Fatalf("shard %d/2: %d rows, %d analyses; want every case of the shard analysed", i, len(sum.Rows), fc.total())
+		}
+		for _, r := range sum.Rows {
+			seen[r.Case] = true
+		}
+	}
+	if len(seen) != 8 {
+		t.Fatalf("the two shards analysed %d distinct cases, want 8", len(seen))
+	}
+	// Every case's record is still there, made with the audit's settings,
+	// and settings.json holds those settings.
+	rows, problems, err := LoadRows(out)
+	if err != nil || len(problems) > 0 || len(rows) != 8 {
+		t.Fatalf("records after both shards: %d rows, problems %v, err %v", len(rows), problems, err)
+	}
+	for _, r := range rows {
+		if r.SettingsHash != wantHash || !seen[r.Case] {
+			t.Errorf("record of %s: settings hash %s, want %s", r.Case, r.SettingsHash, wantHash)
+		}
+	}
+	stored := filepath.Join(out, SettingsFile)
+	readStored := func() []byte { return readFile(t, stored) }
+	before := readStored()
+	if got, _ := CanonicalSettings(before); string(got) != string(want) {
+		t.Errorf("settings.json holds %s, want %s", before, want)
+	}
+
+	// The same shard again with --resume: taken from the first run.
+	fc := newFileCounter()
+	sum, err := Run(context.Background(), cfg(1, json.RawMessage(`{ "cem43": {"break": 43}, "margin_mm": 3, "threshold": 240 }`), fc))
+	if err != nil || fc.total() != 0 || sum.Resumed != len(sum.Rows) {
+		t.Errorf("resuming shard 1/2 with the same settings (other key order): err %v, %d analyses, %d of %d resumed", err, fc.total(), sum.Resumed, len(sum.Rows))
+	}
+
+	// Shard 2 with another threshold: refused, nothing analysed or changed.
+	records := map[string][]byte{}
+	recs, _ := filepath.Glob(filepath.Join(out, "cases", "*", RecordFile))
+	for _, p := range recs {
+		records[p] = readFile(t, p)
+	}
+	fc = newFileCounter()
+	sum, err = Run(context.Background(), cfg(2, json.RawMessage(`{"threshold": 300, "margin_mm": 3, "cem43": {"break": 43}}`), fc))
+	var ce *SettingsConflictError
+	if !errors.As(err, &ce) || sum != nil {
+		t.Fatalf("shard with other settings: summary %v, err %v; want a SettingsConflictError", sum, err)
+	}
+	for _, says := range []string{out, "threshold: 240 in settings.json, 300 for this shard", "(--settings)"} {
+		if !strings.Contains(err.Error(), says) {
+			t.Errorf("message %q does not say %q", err, says)
+		}
+	}
+	if len(ce.Differences) != 1 {
+		t.Errorf("differences %q, want only the threshold", ce.Differences)
+	}
+	if fc.total() != 0 {
+		t.Errorf("the refused shard analysed %d cases", fc.total())
+	}
+	if got := readStored(); string(got) != string(before) {
+		t.Errorf("settings.json changed by the refused shard: %s", got)
+	}
+	for p, b := range records {
+		if string(readFile(t, p)) != string(b) {
+			t.Errorf("%s changed by the refused shard", p)
+		}
+	}
+	// A nested setting that differs is named by its path.
+	_, err = Run(context.Background(), cfg(2, json.RawMessage(`{"threshold": 240, "margin_mm": 3, "cem43": {"break": 44}}`), newFileCounter()))
+	if err == nil || !strings.Contains(err.Error(), "cem43.break: 43 in settings.json, 44 for this shard") {
+		t.Errorf("nested difference: %v", err)
+	}
+}
+
+// TestShardsStartTogether starts two shards with different settings at
+// the same moment into an empty output folder: exactly one runs and the
+// other is refused, whatever the order in which they reach the folder.
+func TestShardsStartTogether(t *testing.T) {
+	tmp := t.TempDir()
+	in := makeCases(t, filepath.Join(tmp, "in"), 6)
+	for round := range 5 {
+		out := filepath.Join(tmp, fmt.Sprintf("out%d", round))
+		errs := make([]error, 2)
+		var wg sync.WaitGroup
+		for i := range 2 {
+			wg.Add(1)
+			go func() {
+				defer wg.Done()
+				s := json.RawMessage(fmt.Sprintf(`{"threshold": %d}`, 240+60*i))
+				_, errs[i] = Run(context.Background(), Config{Inputs: []string{in}, OutDir: out, Shard: Shard{i + 1, 2}, Workers: 1, Settings: s, Analyzer: newFileCounter().analyze})
+			}()
+		}
+		wg.Wait()
+		var ce *SettingsConflictError
+		ok, refused := 0, 0
+		for _, err := range errs {
+			switch {
+			case err == nil:
+				ok++
+			case errors.As(err, &ce):
+				refused++
+			default:
+				t.Errorf("round %d: %v", round, err)
+			}
+		}
+		if ok != 1 || refused != 1 {
+			t.Errorf("round %d: %d shards ran and %d were refused, want 1 and 1 (errors %v)", round, ok, refused, errs)
+		}
+		if left := tempFiles(t, out); len(left) > 0 {
+			t.Errorf("round %d: temporary files left: %v", round, left)
+		}
+	}
+}
+
+// TestShardBadSettingsFile: a settings.json that is not JSON stops a shard
+// with a message naming it.
+func TestShardBadSettingsFile(t *testing.T) {
+	tmp := t.TempDir()
+	in := makeCases(t, filepath.Join(tmp, "in"), 2)
+	out := filepath.Join(tmp, "out")
+	writeFiles(t, out, map[string][]byte{SettingsFile: []byte(`{"threshold": `)})
+	_, err := Run(context.Background(), Config{Inputs: []string{in}, OutDir: out, Shard: Shard{1, 2}, Analyzer: newFileCounter().analyze})
+	if err == nil || !strings.Contains(err.Error(), filepath.Join(out, SettingsFile)) {
+		t.Errorf("damaged settings.json: %v", err)
+	}
+}
+
+func readFile(t *testing.T, p string) []byte {
+	t.Helper()
+	b, err := os.ReadFile(p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return b
 }
