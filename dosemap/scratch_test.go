@@ -32,7 +32,8 @@ func TestScratchReuse(t *testing.T) {
 	pc.snr = 10
 	c := pc.sonication(false) // phase only: other buffers
 	first := do(a)
-	do(b)
+	checkHottest(t, first.ts)
+	checkHottest(t, do(b).ts)
 	do(c)
 	again := do(a)
 	same := func(what string, x, y []float32) {

@@ -139,6 +139,7 @@ type FrameQuality struct {
 	Invalid int     // NaN voxels in the frame
 	Flagged bool    // frame rejected (motion); all its voxels are NaN
 	Note    string  // why the frame was flagged, or other remarks
+	Hottest int     // index of the hottest valid voxel (the first of equals); -1 when none
 }
 
 // TemperatureSeries is the temperature of one sonication, frame by frame.
@@ -299,9 +300,13 @@ func passThrough(s *Sonication, name string) (*TemperatureSeries, error) {
 		q := &ts.Quality[n]
 		q.Time, q.Motion, q.SNR = s.Times[n], math.NaN(), math.NaN()
 		q.Note = "temperature map from the scanner"
-		for _, v := range f {
+		q.Hottest = -1
+		hot := float32(math.Inf(-1))
+		for i, v := range f {
 			if v != v {
 				q.Invalid++
+			} else if v > hot {
+				hot, q.Hottest = v, i
 			}
 		}
 	}
@@ -685,6 +690,7 @@ func (t *thermo) toTemperature() {
 	}
 	for f, out := range t.out.Frames {
 		q := &t.out.Quality[f]
+		q.Hottest = -1
 		if q.Flagged {
 			q.Invalid = t.nv
 			continue
@@ -700,6 +706,7 @@ func (t *thermo) toTemperature() {
 		}
 		var snrSum float64
 		snrCnt := 0
+		hot := float32(math.Inf(-1)) // the frame's hottest value, at q.Hottest
 		for s := 0; s < g.Slices; s++ {
 			var cf [6]float64
 			if t.hasDrift != nil && t.hasDrift[f*g.Slices+s] {
@@ -724,7 +731,11 @@ func (t *thermo) toTemperature() {
 							continue
 						}
 						xi := x[i]
-						sv[i] = float32(float64(u)*inv + (a + xi*(bb+xi*c)))
+						v := float32(float64(u)*inv + (a + xi*(bb+xi*c)))
+						sv[i] = v
+						if v > hot {
+							hot, q.Hottest = v, row+i
+						}
 						msum += float64(ms[i])
 						valid++
 					}
@@ -734,7 +745,11 @@ func (t *thermo) toTemperature() {
 							continue
 						}
 						xi := x[i]
-						sv[i] = float32(float64(u)*inv + (a + xi*(bb+xi*c)))
+						v := float32(float64(u)*inv + (a + xi*(bb+xi*c)))
+						sv[i] = v
+						if v > hot {
+							hot, q.Hottest = v, row+i
+						}
 						valid++
 					}
 				}

@@ -370,6 +370,7 @@ func TestThermometryLowSignalAndMotion(t *testing.T) {
 			t.Errorf("frame %d: flagged %v, motion %g; want unflagged, ≈0", f, q.Flagged, q.Motion)
 		}
 	}
+	checkHottest(t, ts)
 	// The frame after the motion is unwrapped from the last valid frame.
 	c := p.g.Index(16, 16, 0)
 	if got, want := float64(ts.Frames[7][c]), 37+p.truth(c, 7); math.Abs(got-want) > 1e-3 {
@@ -451,6 +452,24 @@ func TestThermometryPassThrough(t *testing.T) {
 	}
 	if ts.Frames[1][1] != 50 || ts.Quality[1].Invalid != 1 || ts.Sigma[0] == ts.Sigma[0] {
 		t.Errorf("pass-through: %+v", ts)
+	}
+	checkHottest(t, ts)
+}
+
+// checkHottest compares each frame's Hottest with a search of the frame:
+// the first valid voxel of the largest value, -1 for a frame without one.
+func checkHottest(t *testing.T, ts *TemperatureSeries) {
+	t.Helper()
+	for f, fr := range ts.Frames {
+		want, best := -1, float32(0)
+		for n, v := range fr {
+			if v == v && (want < 0 || v > best) {
+				want, best = n, v
+			}
+		}
+		if got := ts.Quality[f].Hottest; got != want {
+			t.Errorf("frame %d: hottest voxel %d, want %d", f, got, want)
+		}
 	}
 }
 

@@ -384,7 +384,7 @@ func TestTemperatureStats(t *testing.T) {
 		}
 	}
 	frames[3][0] = float32(math.NaN())
-	ts := temperatureStats(g, []float64{0, 3, 6, 9, 12}, frames)
+	ts := temperatureStats(g, []float64{0, 3, 6, 9, 12}, frames, nil)
 	if ts.peak != 57 || math.Abs(ts.peak3-(57+8*50)/9.0) > 1e-4 || ts.above43 != 9 {
 		t.Errorf("stats %+v", ts)
 	}

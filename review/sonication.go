@@ -64,7 +64,11 @@ func prepareSonication(ctx context.Context, so *dosemap.Sonication, s Settings, 
 			return nil, "", err
 		}
 		dm = m.Dose(ts)
-		sd.temp = temperatureStats(ts.Geometry, ts.Times, ts.Frames)
+		hottest := make([]int, len(ts.Quality))
+		for f, q := range ts.Quality {
+			hottest[f] = q.Hottest
+		}
+		sd.temp = temperatureStats(ts.Geometry, ts.Times, ts.Frames, hottest)
 		sd.quality = frameQuality(so.Number, ts.Quality)
 		if ts.Geometry.SameGrid(ref, 0.01) {
 			sd.series = ts
@@ -118,15 +122,24 @@ func onGrid(v *dosemap.Volume, ref dosemap.Geometry) []float32 {
 // in-plane 3×3 mean around the hottest voxel of each frame (largest over
 // frames; common practice), and the time the hottest voxel spent at or
 // above 43 °C (rectangle rule: each frame stands for the interval to the
-// next frame; the last frame for the interval before it).
-func temperatureStats(g dosemap.Geometry, times []float64, frames [][]float32) *tempStats {
+// next frame; the last frame for the interval before it). hottest, when
+// not nil, holds each frame's hottest valid voxel as the thermometry found
+// it (dosemap.FrameQuality.Hottest, -1 none); otherwise frames are
+// searched.
+func temperatureStats(g dosemap.Geometry, times []float64, frames [][]float32, hottest []int) *tempStats {
 	t := &tempStats{peak: math.NaN(), peak3: math.NaN(), above43: math.NaN()}
 	best := -1
-	for _, fr := range frames {
+	for f, fr := range frames {
 		fbest, fv := -1, float32(math.Inf(-1))
-		for v, x := range fr {
-			if x == x && x > fv {
-				fv, fbest = x, v
+		if hottest != nil {
+			if fbest = hottest[f]; fbest >= 0 {
+				fv = fr[fbest]
+			}
+		} else {
+			for v, x := range fr {
+				if x > fv { // false for NaN
+					fv, fbest = x, v
+				}
 			}
 		}
 		if fbest < 0 {
