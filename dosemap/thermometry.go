@@ -640,13 +640,21 @@ func (t *thermo) unwrap() {
 					continue
 				}
 				w := wrapPhase(float64(v) - float64(ref[n]))
-				// Nearest turn count: floor by truncation after an offset of
-				// 2^20 turns (phase changes of a million turns do not occur).
-				k := float64(int64((float64(lastf[n])-w)*invTwoPi+0.5+1<<20)) - 1<<20
-				u := float32(w + twoPi*k)
-				if int16(k) != turnsf[n] {
+				// Nearest turn count k to the last change: 0 when within
+				// ±π of it (nearly always); otherwise floor by truncation
+				// after an offset of 2^20 turns (phase changes of a million
+				// turns do not occur).
+				d := float64(lastf[n]) - w
+				u := float32(w)
+				var k16 int16
+				if !(d > -math.Pi && d < math.Pi) {
+					k := float64(int64(d*invTwoPi+0.5+1<<20)) - 1<<20
+					u = float32(w + twoPi*k)
+					k16 = int16(k)
+				}
+				if k16 != turnsf[n] {
 					wraps++
-					turnsf[n] = int16(k)
+					turnsf[n] = k16
 				}
 				lastf[n] = u
 				outf[n] = u
