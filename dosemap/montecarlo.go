@@ -41,6 +41,15 @@ import (
 // same numbers for them. The masked voxels are computed on GOMAXPROCS
 // goroutines. The series must share one grid.
 func MonteCarlo(series []*TemperatureSeries, m DoseModel, mask []bool, trials int, seed uint64, fn func(trial int, dose []float32)) error {
+	return MonteCarloVoxels(series, m, mask, nil, trials, seed, fn)
+}
+
+// MonteCarloVoxels is MonteCarlo for series cut out of a larger grid:
+// voxel v of the series draws the noise of voxel ids[v] of that grid (ids
+// holds one index per voxel of the series; nil: v itself), so a
+// computation on the cut-out gives the numbers of the whole grid for its
+// voxels.
+func MonteCarloVoxels(series []*TemperatureSeries, m DoseModel, mask []bool, ids []int, trials int, seed uint64, fn func(trial int, dose []float32)) error {
 	if len(series) == 0 {
 		return errors.New("Monte Carlo: no temperature series")
 	}
@@ -83,10 +92,22 @@ func MonteCarlo(series []*TemperatureSeries, m DoseModel, mask []bool, trials in
 	if nv >= 1<<32 {
 		return fmt.Errorf("Monte Carlo: %d voxels; at most 2^32 supported", nv)
 	}
+	if ids != nil && len(ids) != nv {
+		return fmt.Errorf("Monte Carlo: %d voxel numbers for %d voxels", len(ids), nv)
+	}
+	sid := idx // the noise stream of each masked voxel
+	if ids != nil {
+		sid = make([]int, len(idx))
+		for q, n := range idx {
+			if sid[q] = ids[n]; sid[q] < 0 || sid[q] >= 1<<32 {
+				return fmt.Errorf("Monte Carlo: voxel number %d out of range", sid[q])
+			}
+		}
+	}
 	dose := nanSlice(nv)
 	rm, fast := m.(rateModel)
 	if !fast {
-		return monteCarloSlow(series, m, idx, trials, seed, dose, fn)
+		return monteCarloSlow(series, m, idx, sid, trials, seed, dose, fn)
 	}
 	// Gather the masked voxels once: per series, frames and sigma.
 	ps := make([]mcPacked, len(series))
@@ -136,7 +157,7 @@ func MonteCarlo(series []*TemperatureSeries, m DoseModel, mask []bool, trials in
 					}
 					lo, hi := c*mcChunk, min((c+1)*mcChunk, len(idx))
 					for trial := t0; trial < t1; trial++ {
-						w.run(ps, fz, idx, lo, hi, seed, uint64(trial), res[trial-t0][lo:hi])
+						w.run(ps, fz, sid, lo, hi, seed, uint64(trial), res[trial-t0][lo:hi])
 					}
 				}
 			}()
@@ -276,7 +297,7 @@ func newMCWorker(rm rateModel, n int) *mcWorker {
 // run computes the trial dose of the packed voxels lo..hi-1 into out: the
 // fixed dose of the series entering without noise, plus the noisy dose of
 // the others, series by series over the voxels where they are noisy.
-func (w *mcWorker) run(ps []mcPacked, fz *frozen, idx []int, lo, hi int, seed, trial uint64, out []float32) {
+func (w *mcWorker) run(ps []mcPacked, fz *frozen, sid []int, lo, hi int, seed, trial uint64, out []float32) {
 	n := hi - lo
 	acc := w.acc
 	full := cap(acc.acc)
@@ -285,7 +306,7 @@ func (w *mcWorker) run(ps []mcPacked, fz *frozen, idx []int, lo, hi int, seed, t
 	}()
 	rng := w.rng[:n]
 	for q := range rng {
-		noiseStream(&w.src[q], seed, trial, idx[lo+q])
+		noiseStream(&w.src[q], seed, trial, sid[lo+q])
 	}
 	tot, got := w.tot[:n], w.got[:n]
 	copy(tot, fz.fixed[lo:hi])
@@ -343,7 +364,7 @@ func (w *mcWorker) run(ps []mcPacked, fz *frozen, idx []int, lo, hi int, seed, t
 // monteCarloSlow serves dose models from outside the package: each trial
 // builds noisy copies of the series and calls m.Dose. The noise is that of
 // the fast path.
-func monteCarloSlow(series []*TemperatureSeries, m DoseModel, idx []int, trials int, seed uint64, dose []float32, fn func(int, []float32)) error {
+func monteCarloSlow(series []*TemperatureSeries, m DoseModel, idx, sid []int, trials int, seed uint64, dose []float32, fn func(int, []float32)) error {
 	copies := make([]*TemperatureSeries, len(series))
 	for s, ts := range series {
 		c := *ts
@@ -381,8 +402,8 @@ func monteCarloSlow(series []*TemperatureSeries, m DoseModel, idx []int, trials 
 		rng[q] = rand.New(&src[q])
 	}
 	for trial := 0; trial < trials; trial++ {
-		for q, n := range idx {
-			noiseStream(&src[q], seed, uint64(trial), n)
+		for q := range idx {
+			noiseStream(&src[q], seed, uint64(trial), sid[q])
 		}
 		maps := make([]*DoseMap, len(series))
 		for s, ts := range series {

@@ -196,6 +196,48 @@ func TestMonteCarloMaskIndependent(t *testing.T) {
 	if full[0][3] == full[1][3] {
 		t.Error("two trials gave the same dose")
 	}
+	// A cut-out of the voxels 200..399 with their numbers in the whole
+	// grid gives the numbers of the whole run, on both paths; without the
+	// numbers it draws other noise.
+	cut := func(ts *TemperatureSeries) *TemperatureSeries {
+		c := constSeries(ts.Times, ts.Frames[0][200:400]...)
+		for f := range c.Frames {
+			copy(c.Frames[f], ts.Frames[f][200:400])
+		}
+		c.Sigma = append([]float32(nil), ts.Sigma[200:400]...)
+		return c
+	}
+	ca, cb := cut(a), cut(b)
+	ids := make([]int, 200)
+	for v := range ids {
+		ids[v] = 200 + v
+	}
+	for _, m := range []DoseModel{DefaultCEM43(), wrapped{DefaultCEM43()}} {
+		var got, plain [][]float32
+		if err := MonteCarloVoxels([]*TemperatureSeries{ca, cb}, m, nil, ids, 4, 9, func(_ int, d []float32) {
+			got = append(got, append([]float32(nil), d...))
+		}); err != nil {
+			t.Fatal(err)
+		}
+		MonteCarlo([]*TemperatureSeries{ca, cb}, m, nil, 4, 9, func(_ int, d []float32) {
+			plain = append(plain, append([]float32(nil), d...))
+		})
+		same := true
+		for tr := range got {
+			for v := range got[tr] {
+				if relErr(float64(got[tr][v]), float64(full[tr][200+v])) > 1e-6 {
+					t.Fatalf("%T trial %d cut-out voxel %d: %g, whole grid %g", m, tr, v, got[tr][v], full[tr][200+v])
+				}
+				same = same && plain[tr][v] == got[tr][v]
+			}
+		}
+		if same {
+			t.Errorf("%T: the cut-out without voxel numbers drew the same noise", m)
+		}
+	}
+	if err := MonteCarloVoxels([]*TemperatureSeries{ca}, DefaultCEM43(), nil, ids[:10], 1, 1, func(int, []float32) {}); err == nil {
+		t.Error("short voxel numbers accepted")
+	}
 }
 
 // TestMonteCarloFreezesFarSeries checks the rule that lets a series enter

@@ -85,8 +85,9 @@ type sonData struct {
 	peak    float64   // largest dose
 	temp    *tempStats
 	quality *SonicationQuality
-	series  any      // thermometry kept for Monte Carlo (engine type)
+	series  any      // thermometry kept for Monte Carlo (engine type), whole or the Session's keep block
 	notes   []string // frames that could not be read
+	source  *dosemap.Sonication
 }
 
 // tempStats are the temperature figures of one sonication.
@@ -121,6 +122,9 @@ type Session struct {
 	maxMargin float64
 	cache     *doseCache
 	mcCache   *mcCache
+	// keep, when not nil, is the block of thermometry voxels the kept
+	// series hold (a case whose frames stay in their files).
+	keep *keepBox
 	// exhaustiveMC simulates every voxel of the region instead of the
 	// uncertain ones only (tests compare the two).
 	exhaustiveMC bool
@@ -182,6 +186,27 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 		}
 		seen[so.Number] = true
 	}
+	sol, err := newPlaneSolid(tgt, ref.Spacing[2])
+	if err != nil {
+		return nil, fmt.Errorf("target: %w", err)
+	}
+	// The target's bounding box enlarged by the largest margin and two
+	// voxel diagonals: what the analysis grid must hold.
+	var ext []vec3
+	for _, p := range sol.corners() {
+		for _, d := range [6]vec3{{1, 0, 0}, {-1, 0, 0}, {0, 1, 0}, {0, -1, 0}, {0, 0, 1}, {0, 0, -1}} {
+			ext = append(ext, p.Add(d.Scale(ses.maxMargin+2*ref.Spacing.Norm())))
+		}
+	}
+	// A case whose frames stay in the files keeps for the Monte Carlo only
+	// the temperatures around the target (Temperature computes a whole
+	// series again when asked).
+	for _, so := range c.Sonications {
+		if so.Source != nil {
+			ses.keep = newKeepBox(ref, ext)
+			break
+		}
+	}
 	// The structures (which need only the thermometry grid) beside the
 	// thermometry and dose of the sonications, in parallel, one worker per
 	// CPU. A structure error stops the sonications.
@@ -192,7 +217,7 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 	structDone := make(chan struct{})
 	go func() {
 		defer close(structDone)
-		structWarnings, structErr = ses.prepareStructures(ctx, c, tgt, ref)
+		structWarnings, structErr = ses.prepareStructures(ctx, c, tgt, sol, ext, ref)
 		if structErr != nil {
 			stopSons()
 		}
@@ -215,7 +240,7 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 					errs[n] = err
 					continue
 				}
-				sons[n], units[n], errs[n] = prepareSonication(sctx, so, s, ref)
+				sons[n], units[n], errs[n] = prepareSonication(sctx, so, s, ref, ses.keep)
 				pmu.Lock()
 				done++
 				progress.report(fmt.Sprintf("thermometry and dose, sonication %d", so.Number), 0.8*float64(done)/float64(ns))
@@ -263,17 +288,7 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 // analysis grid around the thermometry grid ref and measures the distance
 // from the target; it returns its warnings rather than adding them (it
 // runs beside the sonications).
-func (ses *Session) prepareStructures(ctx context.Context, c *dosemap.Case, tgt *dosemap.Structure, ref dosemap.Geometry) (warnings []string, err error) {
-	sol, err := newPlaneSolid(tgt, ref.Spacing[2])
-	if err != nil {
-		return nil, fmt.Errorf("target: %w", err)
-	}
-	var ext []vec3
-	for _, p := range sol.corners() {
-		for _, d := range [6]vec3{{1, 0, 0}, {-1, 0, 0}, {0, 1, 0}, {0, -1, 0}, {0, 0, 1}, {0, 0, -1}} {
-			ext = append(ext, p.Add(d.Scale(ses.maxMargin+2*ref.Spacing.Norm())))
-		}
-	}
+func (ses *Session) prepareStructures(ctx context.Context, c *dosemap.Case, tgt *dosemap.Structure, sol *planeSolid, ext []vec3, ref dosemap.Geometry) (warnings []string, err error) {
 	// The target must overlap the thermometry somewhere: contours in
 	// another frame of reference would otherwise stretch the analysis grid
 	// across the patient.
@@ -362,11 +377,21 @@ func (s *Session) SonicationDose(n int) *dosemap.Volume {
 // session was prepared with), or nil when there is no such sonication, it
 // came as a ready dose map, or it was acquired on a grid other than
 // ThermometryGrid (its series is then not kept). The series is shared with
-// the session and must not be modified.
+// the session and must not be modified. For a case whose frames stay in
+// their files (dicomio.LoadOptions.Deferred) the session keeps only the
+// temperatures around the target, and Temperature computes the series
+// again from the files (nil if that fails).
 func (s *Session) Temperature(n int) *dosemap.TemperatureSeries {
 	for _, sd := range s.sons {
 		if sd.number == n {
 			ts, _ := sd.series.(*dosemap.TemperatureSeries)
+			if ts != nil && s.keep != nil {
+				full, err := dosemap.Thermometry(sd.source, s.prepared.Thermometry)
+				if err != nil {
+					return nil
+				}
+				return full
+			}
 			return ts
 		}
 	}

@@ -31,7 +31,7 @@ func (s Settings) doseModel() dosemap.DoseModel {
 // prepareSonication computes the dose of one sonication on the reference
 // thermometry grid ref, its temperature figures and thermometry quality.
 // It returns the dose unit.
-func prepareSonication(ctx context.Context, so *dosemap.Sonication, s Settings, ref dosemap.Geometry) (*sonData, string, error) {
+func prepareSonication(ctx context.Context, so *dosemap.Sonication, s Settings, ref dosemap.Geometry, keep *keepBox) (*sonData, string, error) {
 	if err := so.Geometry.Validate(); err != nil {
 		return nil, "", fmt.Errorf("thermometry grid: %w", err)
 	}
@@ -71,7 +71,10 @@ func prepareSonication(ctx context.Context, so *dosemap.Sonication, s Settings, 
 		sd.temp = temperatureStats(ts.Geometry, ts.Times, ts.Frames, hottest)
 		sd.quality = frameQuality(so.Number, ts.Quality)
 		if ts.Geometry.SameGrid(ref, 0.01) {
-			sd.series = ts
+			sd.series, sd.source = ts, so
+			if keep != nil {
+				sd.series = keep.crop(ts)
+			}
 		}
 	}
 	sd.dose = onGrid(&dm.Volume, ref)
@@ -239,6 +242,12 @@ func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *
 		r.Warnings = append(r.Warnings, "no included sonication has thermometry with a noise estimate; Monte Carlo uncertainty not computed")
 		return nil
 	}
+	// at maps a thermometry voxel to its index in the kept series.
+	at := func(n int) int { return n }
+	var ids []int // coarse voxel of each kept voxel, for the noise streams
+	if s.keep != nil {
+		at, ids = s.keep.index, s.keep.ids
+	}
 	if len(fixed) > 0 {
 		r.Warnings = append(r.Warnings, fmt.Sprintf("%d included sonication(s) enter the Monte Carlo trials without noise (ready dose maps or resampled grids)", len(fixed)))
 	}
@@ -289,13 +298,19 @@ func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *
 	lnF := make([]float32, cl)
 	prune := !s.exhaustiveMC && len(region) > 0
 	if prune && !mc.boundsOK {
+		sr := make([]int, len(region))
+		for q, n := range region {
+			if sr[q] = at(n); sr[q] < 0 {
+				return fmt.Errorf("internal error: Monte Carlo voxel %d outside the kept thermometry", n)
+			}
+		}
 		var wg sync.WaitGroup
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
-			mc.lo = boxDose(series, set.doseModel(), region, -mcSkipSigmas)
+			mc.lo = boxDose(series, set.doseModel(), sr, -mcSkipSigmas)
 		}()
-		mc.hi = boxDose(series, set.doseModel(), region, mcSkipSigmas)
+		mc.hi = boxDose(series, set.doseModel(), sr, mcSkipSigmas)
 		wg.Wait()
 		mc.boundsOK = true
 	}
@@ -408,19 +423,23 @@ func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *
 		}
 	}
 	// Simulate the needed voxels not computed yet.
-	missing := make([]bool, cl)
+	missing := make([]bool, series[0].Geometry.Len())
 	var add []int
 	for n, x := range need {
 		if x && mc.slot[n] < 0 {
-			missing[n] = true
+			m := at(n)
+			if m < 0 {
+				return fmt.Errorf("internal error: Monte Carlo voxel %d outside the kept thermometry", n)
+			}
+			missing[m] = true
 			add = append(add, n)
 		}
 	}
 	if len(add) > 0 {
-		err := dosemap.MonteCarlo(series, set.doseModel(), missing, set.Trials, set.Seed, func(trial int, dose []float32) {
+		err := dosemap.MonteCarloVoxels(series, set.doseModel(), missing, ids, set.Trials, set.Seed, func(trial int, dose []float32) {
 			row := mc.trials[trial]
 			for _, n := range add {
-				x := dose[n]
+				x := dose[at(n)]
 				for _, sn := range fixed {
 					if y := s.sons[sn].dose[n]; y == y {
 						if x != x {
