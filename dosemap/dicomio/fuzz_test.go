@@ -57,7 +57,7 @@ func FuzzReadFile(f *testing.F) {
 		if fi.IsImage {
 			dst := make([]float32, fi.Rows*fi.Cols)
 			for n := range fi.Frames {
-				fi.decodeFrame(n, dst, 1, 0)
+				fi.decodeFrame(n, dst, 1, 0, nil)
 			}
 		}
 	})

@@ -128,7 +128,7 @@ func (cr *caseReader) load(ctx context.Context, progress func(done, total int)) 
 	}
 	errs := make([]error, len(files))
 	err := readAll(ctx, paths, cr.opt.workers(), progress, func(i int) {
-		errs[i] = decodeFile(files[i], plan[files[i]])
+		errs[i] = decodeFile(files[i], plan[files[i]], nil)
 	})
 	if err != nil {
 		return nil, err
@@ -146,9 +146,9 @@ func (cr *caseReader) load(ctx context.Context, progress func(done, total int)) 
 var pixelBuffers sync.Pool
 
 // decodeFile reads the pixel data of fi and decodes the frames ts asks
-// for; when the pixels cannot be read, those frames are NaN and the error
+// for (with the value tables tabs, which may be nil); when the pixels cannot be read, those frames are NaN and the error
 // says why.
-func decodeFile(fi *fileInfo, ts []target) error {
+func decodeFile(fi *fileInfo, ts []target, tabs *valueTables) error {
 	var buf []byte
 	if b, ok := pixelBuffers.Get().(*[]byte); ok {
 		buf = *b
@@ -162,7 +162,7 @@ func decodeFile(fi *fileInfo, ts []target) error {
 			}
 			continue
 		}
-		px.decodeFrame(t.frame, t.dst, t.a, t.b)
+		px.decodeFrame(t.frame, t.dst, t.a, t.b, tabs)
 	}
 	if px != nil && px.pooled {
 		b := px.Pixels[:0]

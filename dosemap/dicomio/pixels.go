@@ -11,11 +11,27 @@ import (
 // The DICOM library ignores PixelRepresentation, so signed values are
 // sign-extended here from bit BitsStored-1; bits above HighBit are masked
 // off, so it does not matter whether the writer sign-extended them.
-func (fi *fileInfo) decodeFrame(frame int, dst []float32, a, b float64) {
+//
+// tabs, when not nil, keeps value tables for layouts of at most 12 stored
+// bits in 16-bit little-endian words: frames that share the layout and the
+// mapping then decode by lookup, to the same values.
+func (fi *fileInfo) decodeFrame(frame int, dst []float32, a, b float64, tabs *valueTables) {
 	npix := fi.Rows * fi.Cols
 	bpp := fi.BitsAllocated / 8
 	raw := fi.Pixels[frame*npix*bpp : (frame+1)*npix*bpp]
 	dst = dst[:npix]
+	if tabs != nil && bpp == 2 && !fi.BigEndian && fi.BitsStored >= 1 && fi.BitsStored <= 12 &&
+		fi.HighBit < 16 && fi.BitsStored <= fi.HighBit+1 && npix >= 1024 {
+		t := tabs.get(fi, a, b)
+		shift := uint(fi.HighBit+1-fi.BitsStored) & 15
+		mask := uint16(1)<<uint(fi.BitsStored) - 1
+		v := t.v[:mask+1]
+		raw = raw[:2*len(dst)]
+		for i := 0; i+1 < len(raw); i += 2 {
+			dst[i>>1] = v[(uint16(raw[i])|uint16(raw[i+1])<<8)>>shift&mask]
+		}
+		return
+	}
 	shift := uint(fi.HighBit + 1 - fi.BitsStored)
 	bits := uint(fi.BitsStored)
 	if bits > 32 {
@@ -117,4 +133,38 @@ func (fi *fileInfo) phaseLinear(scale float64) (a, b float64) {
 		return a, 0
 	}
 	return a, -half * a
+}
+
+// valueTable holds a*stored + b (as decodeFrame computes it) for every
+// stored value of one pixel layout.
+type valueTable struct {
+	bits, highBit int
+	signed        bool
+	a, b          float64
+	v             []float32 // by stored bit pattern
+}
+
+// valueTables keeps the tables of the last two layouts and mappings met
+// (phase and magnitude files alternate).
+type valueTables struct {
+	t    [2]*valueTable
+	next int
+}
+
+// get returns the table for fi's layout and the mapping a, b.
+func (ts *valueTables) get(fi *fileInfo, a, b float64) *valueTable {
+	signed := fi.PixelRep == 1
+	for _, t := range ts.t {
+		if t != nil && t.bits == fi.BitsStored && t.highBit == fi.HighBit && t.signed == signed && t.a == a && t.b == b {
+			return t
+		}
+	}
+	t := &valueTable{bits: fi.BitsStored, highBit: fi.HighBit, signed: signed, a: a, b: b, v: make([]float32, 1<<fi.BitsStored)}
+	ext := uint(32 - fi.BitsStored)
+	for s := range t.v {
+		t.v[s] = float32(value(uint32(s), ext, signed)*a + b)
+	}
+	ts.t[ts.next] = t
+	ts.next = 1 - ts.next
+	return t
 }

@@ -48,17 +48,39 @@ func TestDecodeStoredValues(t *testing.T) {
 			}
 			fi := &fileInfo{Rows: 1, Cols: len(c.raw), BitsAllocated: c.alloc, BitsStored: c.stored, HighBit: c.high, PixelRep: c.rep, BigEndian: c.big, Pixels: raw}
 			dst := make([]float32, len(c.raw))
-			fi.decodeFrame(0, dst, 1, 0)
+			fi.decodeFrame(0, dst, 1, 0, nil)
 			for n := range dst {
 				if dst[n] != c.want[n] {
 					t.Errorf("value %d: %g, want %g", n, dst[n], c.want[n])
 				}
 			}
 			// Rescale: 2*v - 1.
-			fi.decodeFrame(0, dst, 2, -1)
+			fi.decodeFrame(0, dst, 2, -1, nil)
 			for n := range dst {
 				if dst[n] != 2*c.want[n]-1 {
 					t.Errorf("rescaled %d: %g, want %g", n, dst[n], 2*c.want[n]-1)
+				}
+			}
+			// The same values tiled over a 32×32 frame, decoded with value
+			// tables (taken for layouts of at most 12 bits): the hand-worked
+			// values, and the same float32 as without tables for a mapping
+			// that is not exact (the default phase scale π/2048).
+			big := &fileInfo{Rows: 32, Cols: 32, BitsAllocated: c.alloc, BitsStored: c.stored, HighBit: c.high, PixelRep: c.rep, BigEndian: c.big}
+			for n := 0; n < 1024; n++ {
+				big.Pixels = append(big.Pixels, raw[(n%len(c.raw))*bpp:(n%len(c.raw)+1)*bpp]...)
+			}
+			var tabs valueTables
+			with, without := make([]float32, 1024), make([]float32, 1024)
+			for _, ab := range [][2]float64{{1, 0}, {math.Pi / 2048, 0}, {math.Pi / 2048, -math.Pi}, {1, 0}} {
+				big.decodeFrame(0, with, ab[0], ab[1], &tabs)
+				big.decodeFrame(0, without, ab[0], ab[1], nil)
+				for n := range with {
+					if with[n] != without[n] {
+						t.Fatalf("a=%g b=%g pixel %d: %g with tables, %g without", ab[0], ab[1], n, with[n], without[n])
+					}
+					if ab == [2]float64{1, 0} && with[n] != c.want[n%len(c.raw)] {
+						t.Fatalf("tiled pixel %d: %g, want %g", n, with[n], c.want[n%len(c.raw)])
+					}
 				}
 			}
 		})

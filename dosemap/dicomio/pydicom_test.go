@@ -33,7 +33,7 @@ func TestPydicomFolderEveryFile(t *testing.T) {
 				// Decode every frame: must not panic.
 				dst := make([]float32, fi.Rows*fi.Cols)
 				for n := range fi.Frames {
-					fi.decodeFrame(n, dst, 1, 0)
+					fi.decodeFrame(n, dst, 1, 0, nil)
 				}
 			}
 		}
@@ -105,7 +105,7 @@ func TestPydicomMRSmall(t *testing.T) {
 				t.Errorf("orientation %v %v, want axial", f.Row, f.Col)
 			}
 			dst := make([]float32, 64*64)
-			fi.decodeFrame(0, dst, 1, 0)
+			fi.decodeFrame(0, dst, 1, 0, nil)
 			lo, hi, sum := math.Inf(1), math.Inf(-1), 0.0
 			for _, v := range dst {
 				lo, hi, sum = math.Min(lo, float64(v)), math.Max(hi, float64(v)), sum+float64(v)

@@ -124,6 +124,7 @@ func (s *frameSource) ReadFrames(ctx context.Context) (phase, magnitude [][]floa
 		}
 	}
 	ts := make([]target, 0, 8)
+	var tabs valueTables
 	for n, fi := range s.files {
 		if err := ctx.Err(); err != nil {
 			s.put(fs)
@@ -133,7 +134,7 @@ func (s *frameSource) ReadFrames(ctx context.Context) (phase, magnitude [][]floa
 		for _, sl := range s.plan[n] {
 			ts = append(ts, target{frame: sl.frame, dst: slice(sl), a: sl.a, b: sl.b})
 		}
-		if err := decodeFile(fi, ts); err != nil {
+		if err := decodeFile(fi, ts, &tabs); err != nil {
 			notes = append(notes, fmt.Sprintf("%s: pixel data could not be read (%v); its frames are marked not monitored", s.rel(fi.Path), err))
 		}
 	}
