@@ -11,6 +11,7 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"runtime"
 	"sort"
 )
 
@@ -37,6 +38,11 @@ func run(args []string, stdout, stderr io.Writer) int {
 		return openGUI("", stderr)
 	}
 	if c, ok := commands[args[0]]; ok {
+		// The GUI toolkit locks main to the main OS thread at start-up (its
+		// event loop must run there). A subcommand opens no window: unlocked,
+		// the goroutine that hands out the work need not wake that one
+		// thread every time it waits.
+		runtime.UnlockOSThread()
 		return c.run(args[1:], stdout, stderr)
 	}
 	if fi, err := os.Stat(args[0]); err == nil && fi.IsDir() && len(args) == 1 {
