@@ -13,6 +13,7 @@ import (
 	"strconv"
 	"strings"
 	"sync"
+	"sync/atomic"
 
 	"dosecover/dosemap"
 	"dosecover/dosemap/safefile"
@@ -170,10 +171,37 @@ func walkCase(dir string) ([]string, []SkippedFile, error) {
 }
 
 // readAll reads paths with n workers; fn is called once per path (from the
-// worker goroutines) and its results are kept by index.
+// worker goroutines) and its results are kept by index. Without progress
+// the workers take the next index from a shared counter, with nothing to
+// hand over per file; with progress a goroutine reports each file done.
 func readAll(ctx context.Context, paths []string, workers int, progress func(done, total int), fn func(i int)) error {
 	if workers < 1 {
 		workers = 1
+	}
+	if progress == nil {
+		var next atomic.Int64
+		var wg sync.WaitGroup
+		stop := ctx.Done()
+		for w := 0; w < workers; w++ {
+			wg.Add(1)
+			go func() {
+				defer wg.Done()
+				for {
+					select {
+					case <-stop:
+						return
+					default:
+					}
+					i := int(next.Add(1)) - 1
+					if i >= len(paths) {
+						return
+					}
+					fn(i)
+				}
+			}()
+		}
+		wg.Wait()
+		return ctx.Err()
 	}
 	jobs := make(chan int)
 	done := make(chan struct{}, 64)
@@ -193,9 +221,7 @@ func readAll(ctx context.Context, paths []string, workers int, progress func(don
 		n := 0
 		for range done {
 			n++
-			if progress != nil {
-				progress(n, len(paths))
-			}
+			progress(n, len(paths))
 		}
 		close(finished)
 	}()
