@@ -49,3 +49,23 @@ func (sc *scratch) put() {
 	sc.f64.used, sc.f32.used, sc.i32.used, sc.i16.used, sc.u32.used, sc.b.used = 0, 0, 0, 0, 0, 0
 	scratchPool.Put(sc)
 }
+
+// slabs holds released frame storage of temperature series by length.
+var slabs sync.Map // int → *sync.Pool
+
+// getSlab returns n float32 values, reused when a series of that size was
+// released (not zeroed: the caller writes every value).
+func getSlab(n int) []float32 {
+	if p, ok := slabs.Load(n); ok {
+		if s, ok := p.(*sync.Pool).Get().(*[]float32); ok && len(*s) == n {
+			return *s
+		}
+	}
+	return make([]float32, n)
+}
+
+// putSlab keeps s for getSlab.
+func putSlab(s []float32) {
+	p, _ := slabs.LoadOrStore(len(s), &sync.Pool{})
+	p.(*sync.Pool).Put(&s)
+}

@@ -56,3 +56,47 @@ func TestScratchReuse(t *testing.T) {
 	same("sigma", first.ts.Sigma, again.ts.Sigma)
 	same("dose", first.d.Data, again.d.Data)
 }
+
+// TestReleaseReusesFrames: a released series' frame storage serves the next
+// series of that size, whose every value is then its own (equal to the
+// same series computed into fresh memory), and the released series holds
+// no frames any more.
+func TestReleaseReusesFrames(t *testing.T) {
+	pa := newPhantom(24, 9)
+	pa.snr, pa.rise = 40, hotSpot(12, 3, 3)
+	pb := newPhantom(24, 9)
+	pb.snr, pb.rise, pb.seed = 20, hotSpot(25, 2, 2), 3
+	b := pb.sonication(true)
+	fresh, err := Thermometry(b, DefaultThermometryOptions())
+	if err != nil {
+		t.Fatal(err)
+	}
+	for round := 0; round < 3; round++ {
+		a, err := Thermometry(pa.sonication(round != 1), DefaultThermometryOptions())
+		if err != nil {
+			t.Fatal(err)
+		}
+		// Scribble over a's frames, then hand them back.
+		for _, fr := range a.Frames {
+			for n := range fr {
+				fr[n] = 1234
+			}
+		}
+		a.Release()
+		if a.Frames != nil {
+			t.Fatal("a released series keeps its frames")
+		}
+		again, err := Thermometry(b, DefaultThermometryOptions())
+		if err != nil {
+			t.Fatal(err)
+		}
+		for f := range fresh.Frames {
+			for n, x := range fresh.Frames[f] {
+				if y := again.Frames[f][n]; x != y && !(x != x && y != y) {
+					t.Fatalf("round %d frame %d voxel %d: %g, computed into fresh memory %g", round, f, n, y, x)
+				}
+			}
+		}
+		again.Release()
+	}
+}

@@ -149,6 +149,20 @@ type TemperatureSeries struct {
 	Frames   [][]float32 // absolute °C per frame, NaN invalid
 	Sigma    []float32   // per-voxel noise °C (NaN unknown)
 	Quality  []FrameQuality
+	slab     []float32 // Frames' storage when Thermometry allocated it (see Release)
+}
+
+// Release hands the frames of a series Thermometry computed back for reuse
+// by later calls, so that a review of many sonications that keeps only
+// part of each series does not claim fresh memory for every one; ts and
+// its frames must not be used afterwards. It does nothing for other
+// series.
+func (ts *TemperatureSeries) Release() {
+	if ts == nil || ts.slab == nil {
+		return
+	}
+	putSlab(ts.slab)
+	ts.slab, ts.Frames = nil, nil
 }
 
 // Thermometry converts the phase (and magnitude) frames of s into
@@ -592,7 +606,8 @@ func (t *thermo) unwrap() {
 	nan := float32(math.NaN())
 	const twoPi = 2 * math.Pi
 	const invTwoPi = 1 / twoPi
-	slab := make([]float32, t.nf*nv) // all frames in one allocation
+	slab := getSlab(t.nf * nv) // all frames in one allocation (every value is written below)
+	t.out.slab = slab
 	var mc motionCheck
 	if t.mag != nil {
 		mc = newMotionCheck(t.baseMag, 2)

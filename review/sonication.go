@@ -76,6 +76,9 @@ func prepareSonication(ctx context.Context, so *dosemap.Sonication, s Settings, 
 				sd.series = keep.crop(ts)
 			}
 		}
+		if sd.series != ts {
+			ts.Release() // nothing refers to its frames any more
+		}
 	}
 	sd.dose = onGrid(&dm.Volume, ref)
 	sd.peak = math.Inf(-1)
