@@ -12,6 +12,7 @@ import (
 	"slices"
 	"strings"
 	"sync"
+	"time"
 
 	"dosecover/dosemap"
 
@@ -147,10 +148,11 @@ type fileInfo struct {
 	Syntax                             string
 	BigEndian                          bool
 	Frames                             []frameMeta
-	Pixels                             []byte // raw pixel data when read
-	pooled                             bool   // Pixels is a reused buffer (see decodeFile)
-	Size                               int64  // file size when the attributes were read
-	PixelPos, PixelLen                 int    // where the native pixel data lie in the file (0 unknown)
+	Pixels                             []byte    // raw pixel data when read
+	pooled                             bool      // Pixels is a reused buffer (see decodeFile)
+	Size                               int64     // file size when the attributes were read
+	ModTime                            time.Time // modification time then (zero when not read from a file)
+	PixelPos, PixelLen                 int       // where the native pixel data lie in the file (0 unknown)
 	Structures                         *structureSet
 	IsImage                            bool
 }
@@ -244,7 +246,11 @@ func readFile(path string, pixels bool) (fi *fileInfo, err error) {
 			err = skip("unreadable: internal error while reading (%v)", r)
 		}
 	}()
-	return readBytes(path, data, pixels)
+	fi, err = readBytes(path, data, pixels)
+	if fi != nil {
+		fi.ModTime = st.ModTime()
+	}
+	return fi, err
 }
 
 // maxPooledFile is the largest file read into a reused buffer; larger ones

@@ -198,6 +198,10 @@ func (fi *fileInfo) loadPixels(buf []byte) (*fileInfo, error) {
 	if st.Size() != fi.Size {
 		return nil, fmt.Errorf("the file changed while it was being read (size %d, was %d)", st.Size(), fi.Size)
 	}
+	if !fi.ModTime.IsZero() && !st.ModTime().Equal(fi.ModTime) {
+		return nil, fmt.Errorf("the file changed while it was being read (modified %s, was %s)",
+			st.ModTime().Format("15:04:05.000"), fi.ModTime.Format("15:04:05.000"))
+	}
 	if cap(buf) < need {
 		buf = make([]byte, need)
 	}

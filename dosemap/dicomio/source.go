@@ -7,6 +7,7 @@ import (
 	"sync"
 
 	"dosecover/dosemap"
+	"dosecover/dosemap/safefile"
 )
 
 // frameSource is the dosemap.FrameSource of a phase sonication loaded with
@@ -135,7 +136,7 @@ func (s *frameSource) ReadFrames(ctx context.Context) (phase, magnitude [][]floa
 			ts = append(ts, target{frame: sl.frame, dst: slice(sl), a: sl.a, b: sl.b})
 		}
 		if err := decodeFile(fi, ts, &tabs); err != nil {
-			notes = append(notes, fmt.Sprintf("%s: pixel data could not be read (%v); its frames are marked not monitored", s.rel(fi.Path), err))
+			notes = append(notes, fmt.Sprintf("%s: pixel data could not be read (%s); its frames are marked not monitored", s.rel(fi.Path), safefile.Reason(err)))
 		}
 	}
 	s.mu.Lock()

@@ -8,6 +8,7 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+	"time"
 
 	"dosecover/dosemap"
 )
@@ -179,6 +180,64 @@ func TestDeferredFileChanged(t *testing.T) {
 		t.Errorf("Resident: %v, notes %q", err, rnotes)
 	}
 	done()
+}
+
+// TestDeferredFileRemoved: a file removed after the attributes were read
+// is named with a plain reason; its frames are NaN.
+func TestDeferredFileRemoved(t *testing.T) {
+	dir := writeTestCase(t)
+	c, _, err := Load(t.Context(), dir, LoadOptions{Deferred: true}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	src := c.Sonications[1].Source.(*frameSource)
+	victim := src.files[len(src.files)-1]
+	if err := os.Remove(victim.Path); err != nil {
+		t.Fatal(err)
+	}
+	ph, mag, notes, err := src.ReadFrames(t.Context())
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer src.ReleaseFrames(ph, mag)
+	rel, _ := filepath.Rel(dir, victim.Path)
+	want := rel + ": pixel data could not be read (does not exist); its frames are marked not monitored"
+	if len(notes) != 1 || notes[0] != want {
+		t.Errorf("notes %q, want [%q]", notes, want)
+	}
+}
+
+// TestDeferredFileRewritten: a file rewritten with other bytes of the same
+// size after the attributes were read is refused by its modification
+// time.
+func TestDeferredFileRewritten(t *testing.T) {
+	dir := writeTestCase(t)
+	c, _, err := Load(t.Context(), dir, LoadOptions{Deferred: true}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	src := c.Sonications[0].Source.(*frameSource)
+	victim := src.files[0]
+	data, err := os.ReadFile(victim.Path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	data[len(data)-1] ^= 0xFF
+	if err := os.WriteFile(victim.Path, data, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	later := victim.ModTime.Add(2 * time.Second)
+	if err := os.Chtimes(victim.Path, later, later); err != nil {
+		t.Fatal(err)
+	}
+	ph, mag, notes, err := src.ReadFrames(t.Context())
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer src.ReleaseFrames(ph, mag)
+	if len(notes) != 1 || !strings.Contains(notes[0], "changed while it was being read (modified") {
+		t.Errorf("notes %q, want one naming the modification", notes)
+	}
 }
 
 // TestDeferredCancelled: reading the frames stops when the context ends.
