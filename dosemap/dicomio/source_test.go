@@ -134,16 +134,23 @@ func TestDeferredMatchesResident(t *testing.T) {
 	}
 }
 
-// TestDeferredFileChanged changes a phase file after the attributes were
-// read: its frames come back NaN, with a note naming the file, and the
-// other frames are still read.
-func TestDeferredFileChanged(t *testing.T) {
+// deferredCase writes the synthetic case, loads it with Deferred and
+// returns the folder, the case and the frame source of sonication index n.
+func deferredCase(t *testing.T, n int) (string, *dosemap.Case, *frameSource) {
+	t.Helper()
 	dir := writeTestCase(t)
 	c, _, err := Load(t.Context(), dir, LoadOptions{Deferred: true}, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
-	src := c.Sonications[0].Source.(*frameSource)
+	return dir, c, c.Sonications[n].Source.(*frameSource)
+}
+
+// TestDeferredFileChanged changes a phase file after the attributes were
+// read: its frames come back NaN, with a note naming the file, and the
+// other frames are still read.
+func TestDeferredFileChanged(t *testing.T) {
+	dir, c, src := deferredCase(t, 0)
 	victim := src.files[0]
 	f, err := os.OpenFile(victim.Path, os.O_APPEND|os.O_WRONLY, 0)
 	if err != nil {
@@ -185,12 +192,7 @@ func TestDeferredFileChanged(t *testing.T) {
 // TestDeferredFileRemoved: a file removed after the attributes were read
 // is named with a plain reason; its frames are NaN.
 func TestDeferredFileRemoved(t *testing.T) {
-	dir := writeTestCase(t)
-	c, _, err := Load(t.Context(), dir, LoadOptions{Deferred: true}, nil)
-	if err != nil {
-		t.Fatal(err)
-	}
-	src := c.Sonications[1].Source.(*frameSource)
+	dir, _, src := deferredCase(t, 1)
 	victim := src.files[len(src.files)-1]
 	if err := os.Remove(victim.Path); err != nil {
 		t.Fatal(err)
@@ -211,12 +213,7 @@ func TestDeferredFileRemoved(t *testing.T) {
 // size after the attributes were read is refused by its modification
 // time.
 func TestDeferredFileRewritten(t *testing.T) {
-	dir := writeTestCase(t)
-	c, _, err := Load(t.Context(), dir, LoadOptions{Deferred: true}, nil)
-	if err != nil {
-		t.Fatal(err)
-	}
-	src := c.Sonications[0].Source.(*frameSource)
+	_, _, src := deferredCase(t, 0)
 	victim := src.files[0]
 	data, err := os.ReadFile(victim.Path)
 	if err != nil {
