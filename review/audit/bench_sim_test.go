@@ -36,7 +36,11 @@ func BenchmarkAudit(b *testing.B) {
 			if _, err := sim.WriteTypical(filepath.Join(in, "typical-1"), 1); err != nil {
 				b.Fatal(err)
 			}
-			copyDir(b, filepath.Join(in, "typical-1"), filepath.Join(in, "typical-2"))
+			// Another seed: another study (copies of one study would be one
+			// case, see Discover).
+			if _, err := sim.WriteTypical(filepath.Join(in, "typical-2"), 2); err != nil {
+				b.Fatal(err)
+			}
 		}
 		for _, w := range []int{1, 2} {
 			b.Run(fmt.Sprintf("%s/cases=%d/workers=%d", kind, n, w), func(b *testing.B) {
