@@ -139,9 +139,11 @@ func (s *frameSource) ReadFrames(ctx context.Context) (phase, magnitude [][]floa
 			notes = append(notes, fmt.Sprintf("%s: pixel data could not be read (%s); its frames are marked not monitored", s.rel(fi.Path), safefile.Reason(err)))
 		}
 	}
-	s.mu.Lock()
-	s.lent[&fs.slab[0]] = fs
-	s.mu.Unlock()
+	if len(fs.slab) > 0 {
+		s.mu.Lock()
+		s.lent[&fs.slab[0]] = fs
+		s.mu.Unlock()
+	}
 	return fs.phase, fs.mag, notes, nil
 }
 
