@@ -113,6 +113,7 @@ func TestDeferredLoadSameResult(t *testing.T) {
 	set := review.DefaultSettings()
 	set.Trials = 20
 	out := make([]string, 2)
+	temps := make([]*dosemap.TemperatureSeries, 2)
 	for n, deferred := range []bool{false, true} {
 		c, inv, err := dicomio.Load(ctx, dir, dicomio.LoadOptions{Deferred: deferred}, nil)
 		if err != nil {
@@ -124,7 +125,15 @@ func TestDeferredLoadSameResult(t *testing.T) {
 		if deferred && (c.Sonications[0].Phase != nil || c.Sonications[0].Source == nil) {
 			t.Fatal("the deferred load holds the frames in memory")
 		}
-		r, err := review.Analyze(ctx, c, set, nil)
+		ses, err := review.Prepare(ctx, c, set, nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		// The whole temperature series, kept or computed again.
+		if temps[n] = ses.Temperature(c.Sonications[1].Number); temps[n] == nil {
+			t.Fatalf("no temperature series (deferred %v)", deferred)
+		}
+		r, err := ses.Analyze(ctx, set, nil)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -140,6 +149,16 @@ func TestDeferredLoadSameResult(t *testing.T) {
 	}
 	if out[0] != out[1] {
 		t.Errorf("results differ between the resident and the deferred load:\n%s\n%s", out[0][:min(400, len(out[0]))], out[1][:min(400, len(out[1]))])
+	}
+	if temps[0].Geometry != temps[1].Geometry || len(temps[0].Frames) != len(temps[1].Frames) {
+		t.Fatalf("temperature series on %v (%d frames) and %v (%d frames)", temps[0].Geometry, len(temps[0].Frames), temps[1].Geometry, len(temps[1].Frames))
+	}
+	for f := range temps[0].Frames {
+		for v, x := range temps[0].Frames[f] {
+			if y := temps[1].Frames[f][v]; x != y && !(x != x && y != y) {
+				t.Fatalf("temperature frame %d voxel %d: %g resident, %g deferred", f, v, x, y)
+			}
+		}
 	}
 	if !strings.Contains(out[0], `"covered_fraction"`) {
 		t.Errorf("no covered fraction in the result")
