@@ -174,3 +174,37 @@ func TestAuditShardsShareOutput(t *testing.T) {
 		t.Errorf("settings.json changed by the refused shard: %s", b2)
 	}
 }
+
+// TestAuditKeepsIdentityApart: a de-identified audit into a folder that
+// holds an identified one (and the other way round) exits 1 with a message
+// naming the folder, and adds nothing to it.
+func TestAuditKeepsIdentityApart(t *testing.T) {
+	withFakeAuditAnalysis(t)
+	tmp := t.TempDir()
+	reg := filepath.Join(tmp, "registry")
+	for _, n := range []string{"a", "b"} {
+		fakeAuditCase(t, filepath.Join(reg, n))
+	}
+	for _, c := range []struct{ first, second []string }{
+		{nil, []string{"--deidentify"}},
+		{[]string{"--deidentify"}, nil},
+	} {
+		out := filepath.Join(t.TempDir(), "out")
+		if code, stdout, stderr := runCmd(append([]string{"audit", reg, "-o", out}, c.first...)...); code != 0 {
+			t.Fatalf("first audit %v: exit %d\n%s\n%s", c.first, code, stdout, stderr)
+		}
+		before, _ := filepath.Glob(filepath.Join(out, "cases", "*"))
+		code, _, stderr := runCmd(append([]string{"audit", reg, "-o", out}, c.second...)...)
+		if code != 1 {
+			t.Errorf("second audit %v into the same folder: exit %d, want 1", c.second, code)
+		}
+		for _, says := range []string{out, "must not share it"} {
+			if !strings.Contains(stderr, says) {
+				t.Errorf("message does not say %q:\n%s", says, stderr)
+			}
+		}
+		if after, _ := filepath.Glob(filepath.Join(out, "cases", "*")); len(after) != len(before) {
+			t.Errorf("the refused audit changed the case folders: %v, was %v", after, before)
+		}
+	}
+}

@@ -172,6 +172,10 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 			return nil, err
 		}
 	}
+	// Identified and de-identified records never share a folder.
+	if err := checkIdentity(outDir, cfg.OutDir, cfg.Deidentify); err != nil {
+		return nil, err
+	}
 
 	report := func(p Progress) {
 		if cfg.Progress != nil {
@@ -219,6 +223,9 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 		return err
 	}); err != nil {
 		return sum, err
+	}
+	if err := claimIdentity(outDir, cfg.OutDir, cfg.Deidentify, sharded); err != nil {
+		return nil, err
 	}
 
 	w := &worker{cfg: &cfg, outDir: outDir, settings: settings, settingsHash: settingsHash, index: index}

@@ -6,6 +6,7 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"io/fs"
 	"math"
 	"os"
 	"path/filepath"
@@ -540,29 +541,60 @@ func TestLoadRows(t *testing.T) {
 }
 
 // TestResumeKeepsDeidentification: a de-identified run never reuses a
-// result made with identity, which would carry the source path.
+// result made with identity, which would carry the source path, and never
+// writes into a folder that holds identified records (nor the other way
+// round): the folder would be passed on as de-identified. Its resume
+// reuses its own de-identified records.
 func TestResumeKeepsDeidentification(t *testing.T) {
 	tmp := t.TempDir()
 	in := makeCases(t, filepath.Join(tmp, "Doe_Jane"), 2)
-	out := filepath.Join(tmp, "out")
-	cfg := Config{Inputs: []string{in}, OutDir: out, Workers: 1, Resume: true}
-	for k, deid := range []bool{false, true, true} {
+	mixed, clean := filepath.Join(tmp, "out"), filepath.Join(tmp, "deid")
+	runs := []struct {
+		out      string
+		deid     bool
+		analysed int // -1: refused
+	}{
+		{mixed, false, 2},
+		{mixed, true, -1}, // identified records there
+		{clean, true, 2},
+		{clean, true, 0}, // resumed
+		{clean, false, -1},
+	}
+	for k, r := range runs {
 		fc := newFileCounter()
-		cfg.Analyzer, cfg.Deidentify = fc.analyze, deid
+		cfg := Config{Inputs: []string{in}, OutDir: r.out, Workers: 1, Resume: true, Analyzer: fc.analyze, Deidentify: r.deid}
 		sum, err := Run(context.Background(), cfg)
+		if r.analysed < 0 {
+			var ic *IdentityConflictError
+			if !errors.As(err, &ic) || fc.total() != 0 || !strings.Contains(err.Error(), r.out) {
+				t.Errorf("run %d (deidentify %v into %s): err %v after %d analyses; want refused before any", k, r.deid, r.out, err, fc.total())
+			}
+			continue
+		}
 		if err != nil {
-			t.Fatal(err)
+			t.Fatalf("run %d: %v", k, err)
 		}
-		want := []int{2, 2, 0}[k]
-		if fc.total() != want {
-			t.Errorf("run %d (deidentify %v): %d cases analysed, want %d", k, deid, fc.total(), want)
+		if fc.total() != r.analysed {
+			t.Errorf("run %d (deidentify %v): %d cases analysed, want %d", k, r.deid, fc.total(), r.analysed)
 		}
-		for _, r := range sum.Rows {
-			if deid && (r.Source != "" || strings.Contains(r.Case, "Doe")) {
-				t.Errorf("run %d: de-identified row %+v", k, r)
+		for _, row := range sum.Rows {
+			if r.deid && (row.Source != "" || strings.Contains(row.Case, "Doe")) {
+				t.Errorf("run %d: de-identified row %+v", k, row)
 			}
 		}
 	}
+	// Nothing in the de-identified folder names the source.
+	filepath.WalkDir(clean, func(p string, d fs.DirEntry, err error) error {
+		if err == nil && strings.Contains(p, "Doe") {
+			t.Errorf("de-identified output holds %s", p)
+		}
+		if err == nil && d.Type().IsRegular() {
+			if b, _ := os.ReadFile(p); strings.Contains(string(b), "Doe_Jane") {
+				t.Errorf("de-identified output %s names the source folder", p)
+			}
+		}
+		return nil
+	})
 }
 
 // TestShardsShareSettings runs the two shards of one audit into one output
@@ -695,6 +727,43 @@ func TestShardsStartTogether(t *testing.T) {
 		}
 		if left := tempFiles(t, out); len(left) > 0 {
 			t.Errorf("round %d: temporary files left: %v", round, left)
+		}
+	}
+}
+
+// TestShardsIdentityStartTogether starts two shards of the same settings,
+// one de-identified, at the same moment into an empty output folder:
+// exactly one runs, the other is refused (identified and de-identified
+// records never share a folder).
+func TestShardsIdentityStartTogether(t *testing.T) {
+	tmp := t.TempDir()
+	in := makeCases(t, filepath.Join(tmp, "in"), 6)
+	for round := range 5 {
+		out := filepath.Join(tmp, fmt.Sprintf("out%d", round))
+		errs := make([]error, 2)
+		var wg sync.WaitGroup
+		for i := range 2 {
+			wg.Add(1)
+			go func() {
+				defer wg.Done()
+				_, errs[i] = Run(context.Background(), Config{Inputs: []string{in}, OutDir: out, Shard: Shard{i + 1, 2}, Workers: 1, Deidentify: i == 1, Analyzer: newFileCounter().analyze})
+			}()
+		}
+		wg.Wait()
+		var ic *IdentityConflictError
+		ok, refused := 0, 0
+		for _, err := range errs {
+			switch {
+			case err == nil:
+				ok++
+			case errors.As(err, &ic):
+				refused++
+			default:
+				t.Errorf("round %d: %v", round, err)
+			}
+		}
+		if ok != 1 || refused != 1 {
+			t.Errorf("round %d: %d shards ran and %d were refused, want 1 and 1 (errors %v)", round, ok, refused, errs)
 		}
 	}
 }
