@@ -8,6 +8,9 @@ import (
 	"io/fs"
 	"os"
 	"path/filepath"
+	"syscall"
+
+	"dosecover/dosemap/safefile"
 )
 
 // IdentityFile is the name of the file in the output folder that says
@@ -48,13 +51,15 @@ func checkIdentity(outDir, given string, deid bool) error {
 	case err == nil:
 		var id identity
 		if err := json.Unmarshal(b, &id); err != nil {
-			return fmt.Errorf("output folder %s: reading %s: %v; remove it or choose another output folder", given, IdentityFile, err)
+			return fmt.Errorf("output folder %s: %s is not an identity file of dosecover (not valid JSON); remove it or choose another output folder", given, IdentityFile)
 		}
 		if id.Deidentified != deid {
 			return &IdentityConflictError{OutDir: given, Deidentified: deid, Example: IdentityFile}
 		}
-	case !errors.Is(err, fs.ErrNotExist):
-		return fmt.Errorf("output folder %s: reading %s: %w", given, IdentityFile, err)
+	case errors.Is(err, fs.ErrNotExist) || errors.Is(err, syscall.ENOTDIR):
+		// No audit there yet (or no folder: creating it says why).
+	default:
+		return fmt.Errorf("output folder %s: %s cannot be read (%s); remove it or choose another output folder", given, IdentityFile, safefile.Reason(err))
 	}
 	// Folders written before the identity file existed: the records say.
 	recs, _ := filepath.Glob(filepath.Join(outDir, "cases", "*", RecordFile))

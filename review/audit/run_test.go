@@ -789,3 +789,20 @@ func readFile(t *testing.T, p string) []byte {
 	}
 	return b
 }
+
+// TestBadIdentityFile: an identity.json that is not JSON stops the run
+// with a message naming it, before anything is analysed.
+func TestBadIdentityFile(t *testing.T) {
+	tmp := t.TempDir()
+	in := makeCases(t, filepath.Join(tmp, "in"), 2)
+	out := filepath.Join(tmp, "out")
+	if err := os.MkdirAll(out, 0o755); err != nil {
+		t.Fatal(err)
+	}
+	os.WriteFile(filepath.Join(out, IdentityFile), []byte("{"), 0o644)
+	fc := newFileCounter()
+	_, err := Run(context.Background(), Config{Inputs: []string{in}, OutDir: out, Workers: 1, Analyzer: fc.analyze})
+	if err == nil || !strings.Contains(err.Error(), IdentityFile) || !strings.Contains(err.Error(), out) || fc.total() != 0 {
+		t.Errorf("err %v after %d analyses; want a refusal naming %s in %s", err, fc.total(), IdentityFile, out)
+	}
+}
