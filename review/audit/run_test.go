@@ -691,12 +691,12 @@ func TestShardsShareSettings(t *testing.T) {
 	}
 }
 
-// TestShardsStartTogether starts two shards with different settings at
-// the same moment into an empty output folder: exactly one runs and the
-// other is refused, whatever the order in which they reach the folder.
-func TestShardsStartTogether(t *testing.T) {
+// startTogether runs the two shards cfg(0) and cfg(1) at the same moment
+// into an empty folder, five times: each time exactly one must run and the
+// other be refused with an error for which refused is true.
+func startTogether(t *testing.T, cfg func(i int, out string) Config, refused func(error) bool) {
+	t.Helper()
 	tmp := t.TempDir()
-	in := makeCases(t, filepath.Join(tmp, "in"), 6)
 	for round := range 5 {
 		out := filepath.Join(tmp, fmt.Sprintf("out%d", round))
 		errs := make([]error, 2)
@@ -705,25 +705,23 @@ func TestShardsStartTogether(t *testing.T) {
 			wg.Add(1)
 			go func() {
 				defer wg.Done()
-				s := json.RawMessage(fmt.Sprintf(`{"threshold": %d}`, 240+60*i))
-				_, errs[i] = Run(context.Background(), Config{Inputs: []string{in}, OutDir: out, Shard: Shard{i + 1, 2}, Workers: 1, Settings: s, Analyzer: newFileCounter().analyze})
+				_, errs[i] = Run(context.Background(), cfg(i, out))
 			}()
 		}
 		wg.Wait()
-		var ce *SettingsConflictError
-		ok, refused := 0, 0
+		ran, no := 0, 0
 		for _, err := range errs {
 			switch {
 			case err == nil:
-				ok++
-			case errors.As(err, &ce):
-				refused++
+				ran++
+			case refused(err):
+				no++
 			default:
 				t.Errorf("round %d: %v", round, err)
 			}
 		}
-		if ok != 1 || refused != 1 {
-			t.Errorf("round %d: %d shards ran and %d were refused, want 1 and 1 (errors %v)", round, ok, refused, errs)
+		if ran != 1 || no != 1 {
+			t.Errorf("round %d: %d shards ran and %d were refused, want 1 and 1 (errors %v)", round, ran, no, errs)
 		}
 		if left := tempFiles(t, out); len(left) > 0 {
 			t.Errorf("round %d: temporary files left: %v", round, left)
@@ -731,41 +729,32 @@ func TestShardsStartTogether(t *testing.T) {
 	}
 }
 
+// TestShardsStartTogether starts two shards with different settings at
+// the same moment into an empty output folder: exactly one runs and the
+// other is refused, whatever the order in which they reach the folder.
+func TestShardsStartTogether(t *testing.T) {
+	in := makeCases(t, filepath.Join(t.TempDir(), "in"), 6)
+	startTogether(t, func(i int, out string) Config {
+		s := json.RawMessage(fmt.Sprintf(`{"threshold": %d}`, 240+60*i))
+		return Config{Inputs: []string{in}, OutDir: out, Shard: Shard{i + 1, 2}, Workers: 1, Settings: s, Analyzer: newFileCounter().analyze}
+	}, func(err error) bool {
+		var ce *SettingsConflictError
+		return errors.As(err, &ce)
+	})
+}
+
 // TestShardsIdentityStartTogether starts two shards of the same settings,
 // one de-identified, at the same moment into an empty output folder:
 // exactly one runs, the other is refused (identified and de-identified
 // records never share a folder).
 func TestShardsIdentityStartTogether(t *testing.T) {
-	tmp := t.TempDir()
-	in := makeCases(t, filepath.Join(tmp, "in"), 6)
-	for round := range 5 {
-		out := filepath.Join(tmp, fmt.Sprintf("out%d", round))
-		errs := make([]error, 2)
-		var wg sync.WaitGroup
-		for i := range 2 {
-			wg.Add(1)
-			go func() {
-				defer wg.Done()
-				_, errs[i] = Run(context.Background(), Config{Inputs: []string{in}, OutDir: out, Shard: Shard{i + 1, 2}, Workers: 1, Deidentify: i == 1, Analyzer: newFileCounter().analyze})
-			}()
-		}
-		wg.Wait()
+	in := makeCases(t, filepath.Join(t.TempDir(), "in"), 6)
+	startTogether(t, func(i int, out string) Config {
+		return Config{Inputs: []string{in}, OutDir: out, Shard: Shard{i + 1, 2}, Workers: 1, Deidentify: i == 1, Analyzer: newFileCounter().analyze}
+	}, func(err error) bool {
 		var ic *IdentityConflictError
-		ok, refused := 0, 0
-		for _, err := range errs {
-			switch {
-			case err == nil:
-				ok++
-			case errors.As(err, &ic):
-				refused++
-			default:
-				t.Errorf("round %d: %v", round, err)
-			}
-		}
-		if ok != 1 || refused != 1 {
-			t.Errorf("round %d: %d shards ran and %d were refused, want 1 and 1 (errors %v)", round, ok, refused, errs)
-		}
-	}
+		return errors.As(err, &ic)
+	})
 }
 
 // TestShardBadSettingsFile: a settings.json that is not JSON stops a shard
