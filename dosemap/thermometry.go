@@ -711,6 +711,10 @@ func (t *thermo) toTemperature() {
 	if t.opt.Drift != DriftNone {
 		t.startDrift()
 	}
+	var zeros []float32
+	if t.noise == nil {
+		zeros = t.sc.f32.get(t.nv)
+	}
 	for f, out := range t.out.Frames {
 		q := &t.out.Quality[f]
 		q.Hottest = -1
@@ -726,6 +730,10 @@ func (t *thermo) toTemperature() {
 		var mf []float32
 		if t.noise != nil {
 			mf = t.mag[f]
+		}
+		mags := mf // the magnitudes summed for the SNR (zeros when unknown)
+		if mags == nil {
+			mags = zeros
 		}
 		var snrSum float64
 		snrCnt := 0
@@ -746,35 +754,20 @@ func (t *thermo) toTemperature() {
 				bb := -(cf[1] + cf[4]*y) * inv
 				c := -cf[3] * inv
 				x := xs[:len(sv)]
-				if mf != nil {
-					ms := mf[row : row+g.Cols]
-					ms = ms[:len(sv)]
-					for i, u := range sv {
-						if u != u {
-							continue
-						}
-						xi := x[i]
-						v := float32(float64(u)*inv + (a + xi*(bb+xi*c)))
-						sv[i] = v
-						if v > hot {
-							hot, q.Hottest = v, row+i
-						}
-						msum += float64(ms[i])
-						valid++
+				ms := mags[row : row+g.Cols]
+				ms = ms[:len(sv)]
+				for i, u := range sv {
+					if u != u {
+						continue
 					}
-				} else {
-					for i, u := range sv {
-						if u != u {
-							continue
-						}
-						xi := x[i]
-						v := float32(float64(u)*inv + (a + xi*(bb+xi*c)))
-						sv[i] = v
-						if v > hot {
-							hot, q.Hottest = v, row+i
-						}
-						valid++
+					xi := x[i]
+					v := float32(float64(u)*inv + (a + xi*(bb+xi*c)))
+					sv[i] = v
+					if v > hot {
+						hot, q.Hottest = v, row+i
 					}
+					msum += float64(ms[i])
+					valid++
 				}
 			}
 			inval += sl - valid

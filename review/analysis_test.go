@@ -384,7 +384,18 @@ func TestTemperatureStats(t *testing.T) {
 		}
 	}
 	frames[3][0] = float32(math.NaN())
-	ts := temperatureStats(g, []float64{0, 3, 6, 9, 12}, frames, nil)
+	// Each frame's hottest voxel, as the thermometry records it (the first
+	// of the largest valid values).
+	hottest := make([]int, len(frames))
+	for f, fr := range frames {
+		hottest[f] = -1
+		for v, x := range fr {
+			if x == x && (hottest[f] < 0 || x > fr[hottest[f]]) {
+				hottest[f] = v
+			}
+		}
+	}
+	ts := temperatureStats(g, []float64{0, 3, 6, 9, 12}, frames, hottest)
 	if ts.peak != 57 || math.Abs(ts.peak3-(57+8*50)/9.0) > 1e-4 || ts.above43 != 9 {
 		t.Errorf("stats %+v", ts)
 	}

@@ -14,6 +14,9 @@ func TestKeepBox(t *testing.T) {
 	g := dosemap.NewAxialGeometry(40, 30, 8, dosemap.Vec3{1.25, 1.25, 3}, dosemap.Vec3{-20, -15, 0})
 	ext := []vec3{g.Point(10.2, 5.7, 3.4), g.Point(20.6, 12.1, 4.2)}
 	b := newKeepBox(g, ext)
+	// Worked by hand: i 10.2..20.6 → floor 10 − 1 = 9, ceil 21 + 1 = 22;
+	// j 5.7..12.1 → 5 − 1 = 4, 13 + 1 = 14; k 3.4..4.2 → 3 − 2 = 1,
+	// 5 + 2 = 7.
 	if b.lo != [3]int{9, 4, 1} || b.hi != [3]int{22, 14, 7} {
 		t.Fatalf("block %v..%v, want [9 4 1]..[22 14 7]", b.lo, b.hi)
 	}

@@ -128,29 +128,18 @@ func onGrid(v *dosemap.Volume, ref dosemap.Geometry) []float32 {
 // in-plane 3×3 mean around the hottest voxel of each frame (largest over
 // frames; common practice), and the time the hottest voxel spent at or
 // above 43 °C (rectangle rule: each frame stands for the interval to the
-// next frame; the last frame for the interval before it). hottest, when
-// not nil, holds each frame's hottest valid voxel as the thermometry found
-// it (dosemap.FrameQuality.Hottest, -1 none); otherwise frames are
-// searched.
+// next frame; the last frame for the interval before it). hottest holds
+// each frame's hottest valid voxel as the thermometry found it
+// (dosemap.FrameQuality.Hottest, -1 none).
 func temperatureStats(g dosemap.Geometry, times []float64, frames [][]float32, hottest []int) *tempStats {
 	t := &tempStats{peak: math.NaN(), peak3: math.NaN(), above43: math.NaN()}
 	best := -1
 	for f, fr := range frames {
-		fbest, fv := -1, float32(math.Inf(-1))
-		if hottest != nil {
-			if fbest = hottest[f]; fbest >= 0 {
-				fv = fr[fbest]
-			}
-		} else {
-			for v, x := range fr {
-				if x > fv { // false for NaN
-					fv, fbest = x, v
-				}
-			}
-		}
+		fbest := hottest[f]
 		if fbest < 0 {
 			continue
 		}
+		fv := fr[fbest]
 		if best < 0 || float64(fv) > t.peak {
 			t.peak, best = float64(fv), fbest
 		}
