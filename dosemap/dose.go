@@ -121,21 +121,33 @@ func (c CEM43) rule() TimeRule     { return c.Rule }
 // rates uses R^(43−T) = 2^((T−43)·(−log2 R)) with a fast exp2.
 func (c CEM43) rates(T []float32, f []float64) {
 	c = c.withDefaults()
-	brk := c.Break
-	la := -math.Log2(c.RAbove)
-	lb := -math.Log2(c.RBelow)
+	cemRates(T, f, c.Break, -math.Log2(c.RAbove), -math.Log2(c.RBelow))
+}
+
+// cemRates writes f[n] = 2^(e·(T[n] − 43)), e = la where T[n] ≥ brk and lb
+// elsewhere (NaN for NaN): by the vector kernel where the processor has
+// one (cemRatesAVX2), otherwise and for the lanes the kernel leaves by
+// exp2.
+func cemRates(T []float32, f []float64, brk, la, lb float64) {
 	f = f[:len(T)]
-	for n, t := range T {
+	m := 0
+	if vectorRates {
+		m = len(T) &^ 3
+		if m > 0 && cemRatesAVX2(&T[0], &f[0], m, brk, la, lb) < m {
+			m = 0 // some exponent out of the kernel's range: all again
+		}
+	}
+	for n, t := range T[m:] {
 		x := float64(t)
 		if x != x {
-			f[n] = x
+			f[m+n] = x
 			continue
 		}
 		e := lb
 		if x >= brk {
 			e = la
 		}
-		f[n] = exp2(e * (x - 43))
+		f[m+n] = exp2(e * (x - 43))
 	}
 }
 
@@ -300,8 +312,9 @@ func newAccumulator(m rateModel, n int, sc *scratch) *accumulator {
 	return a
 }
 
-// cemTrapezoid is addChunk for CEM43 and the trapezoid rule with the rate
-// computed inline (the default model: the hot loop of dose review).
+// cemTrapezoid is addChunk for CEM43 and the trapezoid rule (the default
+// model: the hot loop of dose review), with the rates of the chunk from the
+// vector kernel where there is one, otherwise computed inline.
 func (a *accumulator) cemTrapezoid(T []float32, lo int, w float64) {
 	hi := lo + len(T)
 	acc := a.acc[lo:hi:hi]
@@ -311,6 +324,24 @@ func (a *accumulator) cemTrapezoid(T []float32, lo int, w float64) {
 	acc, prev, got, miss = acc[:len(T)], prev[:len(T)], got[:len(T)], miss[:len(T)]
 	h := 0.5 * w
 	brk, la, lb := a.brk, a.la, a.lb
+	if vectorRates {
+		f := a.buf[:len(T)]
+		cemRates(T, f, brk, la, lb)
+		for n, x := range f {
+			if x != x {
+				prev[n] = x
+				miss[n]++
+				continue
+			}
+			s := prev[n] + x
+			prev[n] = x
+			if s == s {
+				acc[n] += h * s
+				got[n] = true
+			}
+		}
+		return
+	}
 	for n, t := range T {
 		x := float64(t)
 		if x != x {

@@ -1,0 +1,20 @@
+//go:build amd64 && !purego
+
+package dosemap
+
+import "golang.org/x/sys/cpu"
+
+// vectorRates reports whether cemRatesAVX2 may run: it needs AVX2 and FMA.
+var vectorRates = cpu.X86.HasAVX2 && cpu.X86.HasFMA
+
+// cemRatesAVX2 writes f[i] = 2^(e·(t[i] − 43)) for i < n, four at a time
+// (n a multiple of 4), with e = la where t[i] ≥ brk and lb elsewhere; a NaN
+// temperature gives NaN. 2^y is split as 2^k·2^r, k = round(y), |r| ≤ ½,
+// and 2^r = e^s, s = r·ln 2, by its Taylor polynomial of degree 11
+// (truncation below (ln 2/2)¹²/12! ≈ 6e-15, Horner with fused
+// multiply-adds). It returns the number of lanes whose y is finite and
+// inside (−1022, 1023) or NaN; the others (far outside any tissue
+// temperature) hold garbage and are computed again by the caller.
+//
+//go:noescape
+func cemRatesAVX2(t *float32, f *float64, n int, brk, la, lb float64) (fine int)

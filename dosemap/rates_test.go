@@ -1,0 +1,118 @@
+package dosemap
+
+import (
+	"math"
+	"math/rand/v2"
+	"testing"
+)
+
+// TestCEMRates checks the rate R^(43 − T) of the CEM43 loop (the vector
+// kernel where the processor has one, exp2 elsewhere) against math.Pow,
+// the general-purpose reference: relative error at most 1e-13 (the
+// kernel's polynomial truncates at 6e-15, exp2's at 1.4e-13 by its doc
+// comment; math.Pow itself is within 1 ulp). NaN stays NaN; temperatures
+// whose exponent lies beyond ±1022 (far outside tissue) take exp2's 0 or
+// +Inf. Lengths 0 to 13 cover the kernel's blocks of four and the tail.
+func TestCEMRates(t *testing.T) {
+	rng := rand.New(rand.NewPCG(11, 12))
+	models := []CEM43{DefaultCEM43(), {Break: 42.5, RAbove: 0.45, RBelow: 0.2}}
+	ref := func(c CEM43, x float32) float64 {
+		v := float64(x)
+		switch {
+		case v != v:
+			return v
+		case v >= c.Break:
+			return math.Pow(c.RAbove, 43-v)
+		default:
+			return math.Pow(c.RBelow, 43-v)
+		}
+	}
+	check := func(c CEM43, T []float32) {
+		t.Helper()
+		f := make([]float64, len(T))
+		c.rates(T, f)
+		for n, x := range T {
+			want := ref(c, x)
+			got := f[n]
+			switch {
+			case want != want:
+				if got == got {
+					t.Fatalf("%v: T = %g gives %g, want NaN", c, x, got)
+				}
+			case want < 0x1p-1022 || math.IsInf(want, 0):
+				// Beyond the exponent range: exp2 gives 0 below 2^-1022
+				// (math.Pow gives subnormals there) and +Inf above.
+				if !(got == 0 && float64(x) < 43 || math.IsInf(got, 1) && float64(x) > 43) {
+					t.Fatalf("%v: T = %g gives %g, want %g", c, x, got, want)
+				}
+			default:
+				if r := math.Abs(got-want) / want; !(r <= 1e-13) {
+					t.Fatalf("%v: T = %g (lane %d of %d) gives %.17g, math.Pow %.17g: relative error %.2g",
+						c, x, n, len(T), got, want, r)
+				}
+			}
+		}
+	}
+	for _, c := range models {
+		// Sapareto–Dewey by hand: R^(43−T) is 2 at 44 °C, 0.25 at 42 °C.
+		f := make([]float64, 4)
+		DefaultCEM43().rates([]float32{44, 42, 43, 45}, f)
+		if f[0] != 2 || f[1] != 0.25 || f[2] != 1 || f[3] != 4 {
+			t.Fatalf("rates(44, 42, 43, 45) = %v, want [2 0.25 1 4]", f)
+		}
+		for n := 0; n <= 13; n++ {
+			T := make([]float32, n)
+			for i := range T {
+				T[i] = float32(-20 + 180*rng.Float64())
+			}
+			check(c, T)
+		}
+		// Many blocks with NaN, the break itself and its neighbours.
+		T := make([]float32, 4099)
+		for i := range T {
+			switch rng.IntN(8) {
+			case 0:
+				T[i] = float32(math.NaN())
+			case 1:
+				T[i] = float32(c.Break)
+			case 2:
+				T[i] = math.Nextafter32(float32(c.Break), 0)
+			default:
+				T[i] = float32(20 + 50*rng.Float64())
+			}
+		}
+		check(c, T)
+		// Exponents beyond the kernel's range, in a block of four and in
+		// the middle of a longer run (every lane is then computed again).
+		for _, odd := range []float32{float32(math.Inf(1)), float32(math.Inf(-1)), 3000, -3000, 554.4, -468.1} {
+			run := []float32{37, 41.5, odd, 60, 52, 43, 44, 45, 46}
+			check(c, run)
+		}
+	}
+}
+
+// TestCEMRatesKernelCount checks the count of fine lanes the vector kernel
+// returns, which decides whether its caller computes a run again.
+func TestCEMRatesKernelCount(t *testing.T) {
+	if !vectorRates {
+		t.Skip("no vector kernel on this processor")
+	}
+	c := DefaultCEM43()
+	la, lb := -math.Log2(c.RAbove), -math.Log2(c.RBelow)
+	for _, tc := range []struct {
+		T    []float32
+		fine int
+	}{
+		{[]float32{37, 50, float32(math.NaN()), 43}, 4},
+		{[]float32{37, 3000, 43, 44, -3000, 40, 41, 42}, 6},
+		{[]float32{float32(math.Inf(1)), float32(math.Inf(-1)), 43, 44}, 2},
+		// y = 1·(554 − 43) = 511 and 2·(−468 − 43) = −1022: the first is
+		// inside (−1022, 1023), the second on its open end.
+		{[]float32{554, -468, 43, 43}, 3},
+	} {
+		f := make([]float64, len(tc.T))
+		if got := cemRatesAVX2(&tc.T[0], &f[0], len(tc.T), c.Break, la, lb); got != tc.fine {
+			t.Errorf("cemRatesAVX2(%v): %d fine lanes, want %d", tc.T, got, tc.fine)
+		}
+	}
+}
