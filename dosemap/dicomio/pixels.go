@@ -22,13 +22,25 @@ func (fi *fileInfo) decodeFrame(frame int, dst []float32, a, b float64, tabs *va
 	dst = dst[:npix]
 	if tabs != nil && bpp == 2 && !fi.BigEndian && fi.BitsStored >= 1 && fi.BitsStored <= 12 &&
 		fi.HighBit < 16 && fi.BitsStored <= fi.HighBit+1 && npix >= 1024 {
-		t := tabs.get(fi, a, b)
+		v := (*[tableLen]float32)(tabs.get(fi, a, b).v)
 		shift := uint(fi.HighBit+1-fi.BitsStored) & 15
-		mask := uint16(1)<<uint(fi.BitsStored) - 1
-		v := t.v[:mask+1]
+		mask := uint64(1)<<uint(fi.BitsStored) - 1
 		raw = raw[:2*len(dst)]
-		for i := 0; i+1 < len(raw); i += 2 {
-			dst[i>>1] = v[(uint16(raw[i])|uint16(raw[i+1])<<8)>>shift&mask]
+		// Four words per 8-byte load: word k is bits 16k to 16k+15, and
+		// its stored value the BitsStored bits from bit 16k+shift (which
+		// end at or below bit 16k+15, so no bit of the next word enters).
+		n := 0
+		for ; n+4 <= len(dst); n += 4 {
+			w := binary.LittleEndian.Uint64(raw[2*n : 2*n+8])
+			d := dst[n : n+4 : n+4]
+			d[0] = v[w>>shift&mask&(tableLen-1)]
+			d[1] = v[w>>(16+shift)&mask&(tableLen-1)]
+			d[2] = v[w>>(32+shift)&mask&(tableLen-1)]
+			d[3] = v[w>>(48+shift)&mask&(tableLen-1)]
+		}
+		for ; n < len(dst); n++ {
+			w := uint64(raw[2*n]) | uint64(raw[2*n+1])<<8
+			dst[n] = v[w>>shift&mask&(tableLen-1)]
 		}
 		return
 	}
@@ -135,13 +147,17 @@ func (fi *fileInfo) phaseLinear(scale float64) (a, b float64) {
 	return a, -half * a
 }
 
+// tableLen is the length of a value table: one entry per bit pattern of
+// up to 12 stored bits (entries past 2^BitsStored stay unused).
+const tableLen = 1 << 12
+
 // valueTable holds a*stored + b (as decodeFrame computes it) for every
 // stored value of one pixel layout.
 type valueTable struct {
 	bits, highBit int
 	signed        bool
 	a, b          float64
-	v             []float32 // by stored bit pattern
+	v             []float32 // by stored bit pattern, tableLen long
 }
 
 // valueTables keeps the tables of the last two layouts and mappings met
@@ -159,9 +175,9 @@ func (ts *valueTables) get(fi *fileInfo, a, b float64) *valueTable {
 			return t
 		}
 	}
-	t := &valueTable{bits: fi.BitsStored, highBit: fi.HighBit, signed: signed, a: a, b: b, v: make([]float32, 1<<fi.BitsStored)}
+	t := &valueTable{bits: fi.BitsStored, highBit: fi.HighBit, signed: signed, a: a, b: b, v: make([]float32, tableLen)}
 	ext := uint(32 - fi.BitsStored)
-	for s := range t.v {
+	for s := range t.v[:1<<fi.BitsStored] {
 		t.v[s] = float32(value(uint32(s), ext, signed)*a + b)
 	}
 	ts.t[ts.next] = t

@@ -61,16 +61,18 @@ func TestDecodeStoredValues(t *testing.T) {
 					t.Errorf("rescaled %d: %g, want %g", n, dst[n], 2*c.want[n]-1)
 				}
 			}
-			// The same values tiled over a 32×32 frame, decoded with value
-			// tables (taken for layouts of at most 12 bits): the hand-worked
-			// values, and the same float32 as without tables for a mapping
-			// that is not exact (the default phase scale π/2048).
-			big := &fileInfo{Rows: 32, Cols: 32, BitsAllocated: c.alloc, BitsStored: c.stored, HighBit: c.high, PixelRep: c.rep, BigEndian: c.big}
-			for n := 0; n < 1024; n++ {
+			// The same values tiled over a 33×33 frame, decoded with value
+			// tables (taken for layouts of at most 12 bits, four pixels at
+			// a time and a tail of one): the hand-worked values, and the
+			// same float32 as without tables for a mapping that is not
+			// exact (the default phase scale π/2048).
+			const side = 33
+			big := &fileInfo{Rows: side, Cols: side, BitsAllocated: c.alloc, BitsStored: c.stored, HighBit: c.high, PixelRep: c.rep, BigEndian: c.big}
+			for n := 0; n < side*side; n++ {
 				big.Pixels = append(big.Pixels, raw[(n%len(c.raw))*bpp:(n%len(c.raw)+1)*bpp]...)
 			}
 			var tabs valueTables
-			with, without := make([]float32, 1024), make([]float32, 1024)
+			with, without := make([]float32, side*side), make([]float32, side*side)
 			for _, ab := range [][2]float64{{1, 0}, {math.Pi / 2048, 0}, {math.Pi / 2048, -math.Pi}, {1, 0}} {
 				big.decodeFrame(0, with, ab[0], ab[1], &tabs)
 				big.decodeFrame(0, without, ab[0], ab[1], nil)
