@@ -529,6 +529,19 @@ func (s *Session) Analyze(ctx context.Context, set Settings, progress ProgressFu
 	if err != nil {
 		return nil, err
 	}
+	// The Monte Carlo trials need only the dose cache: they run beside the
+	// rest of the analysis, which waits for them before it returns.
+	var mcDone chan struct{}
+	var mcOut *mcOutcome
+	var mcErr error
+	if set.Trials > 0 {
+		mcDone = make(chan struct{})
+		go func() {
+			defer close(mcDone)
+			mcOut, mcErr = s.uncertainty(ctx, set, dc)
+		}()
+		defer func() { <-mcDone }() // also on early returns, before s.mu is released
+	}
 	g := s.fg.fine
 	vv := g.VoxelVolume()
 	lt := float32(math.Log(set.Threshold))
@@ -738,11 +751,13 @@ func (s *Session) Analyze(ctx context.Context, set Settings, progress ProgressFu
 	r.TargetMask = &dosemap.Volume{Geometry: g, Data: slices.Clone(s.occ)}
 	r.MarginMask = margin
 	r.Lethal = lethalVol
-	if set.Trials > 0 {
+	if mcDone != nil {
 		progress.report("Monte Carlo", 0.8)
-		if err := s.uncertainty(ctx, r, set, dc); err != nil {
-			return nil, err
+		<-mcDone
+		if mcErr != nil {
+			return nil, mcErr
 		}
+		mcOut.apply(r, s.occ)
 	}
 	progress.report("done", 1)
 	return r, nil

@@ -215,10 +215,58 @@ type mcCache struct {
 // the uncertain voxels and the taps of the uncertain analysis voxels are.
 const mcSkipSigmas = 8
 
-// uncertainty runs (or reuses) the Monte Carlo trials and fills the
-// percentiles of the covered fraction, the probability map and the hole
-// certainty of r.
-func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *doseCache) error {
+// mcOutcome is what the Monte Carlo trials of one analysis give, kept
+// apart from the result while the rest of the analysis runs beside them
+// (see apply).
+type mcOutcome struct {
+	warnings []string
+	trials   int // 0: no trials (no sonication with a noise estimate)
+	p05, p95 *float64
+	prob     *dosemap.Volume
+	pf       map[int]float64 // lethal probability per monitored analysis voxel of the target
+}
+
+// apply adds o to r: warnings, percentiles of the covered fraction, the
+// probability map and the certainty of r's holes (which must be final),
+// their voxels weighted by the target occupancy occ.
+func (o *mcOutcome) apply(r *Result, occ []float32) {
+	r.Warnings = append(r.Warnings, o.warnings...)
+	if o.trials == 0 {
+		return
+	}
+	r.CoveredFractionP05, r.CoveredFractionP95 = o.p05, o.p95
+	r.Trials = o.trials
+	r.Probability = o.prob
+	// Hole certainty from the fine-voxel lethal probability.
+	sum := make([]float64, len(r.Holes)+1)
+	cnt := make([]float64, len(r.Holes)+1)
+	for v, l := range r.HoleLabels.Data {
+		if l > 0 {
+			w := float64(occ[v])
+			sum[int(l)] += w * o.pf[v]
+			cnt[int(l)] += w
+		}
+	}
+	for h := range r.Holes {
+		if cnt[h+1] == 0 {
+			continue
+		}
+		p := sum[h+1] / cnt[h+1]
+		r.Holes[h].MeanProbability = opt(p)
+		if p <= ProbabilityCertain {
+			r.Holes[h].Certainty = "certain"
+		} else {
+			r.Holes[h].Certainty = "uncertain"
+		}
+	}
+}
+
+// uncertainty runs (or reuses) the Monte Carlo trials and returns the
+// percentiles of the covered fraction, the probability map and the lethal
+// probability of the target voxels. It reads only the session and dc, so
+// it may run beside the rest of Analyze.
+func (s *Session) uncertainty(ctx context.Context, set Settings, dc *doseCache) (*mcOutcome, error) {
+	out := &mcOutcome{}
 	var series []*dosemap.TemperatureSeries
 	var noisy []int // included sonications with thermometry noise
 	var fixed []int // included sonications without thermometry noise
@@ -231,8 +279,8 @@ func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *
 		}
 	}
 	if len(series) == 0 {
-		r.Warnings = append(r.Warnings, "no included sonication has thermometry with a noise estimate; Monte Carlo uncertainty not computed")
-		return nil
+		out.warnings = append(out.warnings, "no included sonication has thermometry with a noise estimate; Monte Carlo uncertainty not computed")
+		return out, nil
 	}
 	// at maps a thermometry voxel to its index in the kept series.
 	at := func(n int) int { return n }
@@ -241,7 +289,7 @@ func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *
 		at, ids = s.keep.index, s.keep.ids
 	}
 	if len(fixed) > 0 {
-		r.Warnings = append(r.Warnings, fmt.Sprintf("%d included sonication(s) enter the Monte Carlo trials without noise (ready dose maps or resampled grids)", len(fixed)))
+		out.warnings = append(out.warnings, fmt.Sprintf("%d included sonication(s) enter the Monte Carlo trials without noise (ready dose maps or resampled grids)", len(fixed)))
 	}
 	g, cg := s.fg.fine, s.fg.coarse
 	cl := cg.Len()
@@ -293,7 +341,7 @@ func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *
 		sr := make([]int, len(region))
 		for q, n := range region {
 			if sr[q] = at(n); sr[q] < 0 {
-				return fmt.Errorf("internal error: Monte Carlo voxel %d outside the kept thermometry", n)
+				return nil, fmt.Errorf("internal error: Monte Carlo voxel %d outside the kept thermometry", n)
 			}
 		}
 		var wg sync.WaitGroup
@@ -421,7 +469,7 @@ func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *
 		if x && mc.slot[n] < 0 {
 			m := at(n)
 			if m < 0 {
-				return fmt.Errorf("internal error: Monte Carlo voxel %d outside the kept thermometry", n)
+				return nil, fmt.Errorf("internal error: Monte Carlo voxel %d outside the kept thermometry", n)
 			}
 			missing[m] = true
 			add = append(add, n)
@@ -448,7 +496,7 @@ func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *
 			for t := range mc.trials {
 				mc.trials[t] = mc.trials[t][:min(len(mc.trials[t]), len(mc.idx))]
 			}
-			return fmt.Errorf("Monte Carlo: %w", err)
+			return nil, fmt.Errorf("Monte Carlo: %w", err)
 		}
 		// The new columns are complete: record them before anything can
 		// return, so the cache stays consistent.
@@ -459,7 +507,7 @@ func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *
 	}
 	s.mcCache = mc
 	if err := ctx.Err(); err != nil {
-		return err
+		return nil, err
 	}
 	// Per trial: covered fraction, and lethal counts per fine target voxel
 	// and per coarse voxel.
@@ -499,10 +547,10 @@ func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *
 	}
 	if len(fr) > 0 {
 		sort.Float64s(fr)
-		r.CoveredFractionP05 = opt(quantile(fr, 0.05))
-		r.CoveredFractionP95 = opt(quantile(fr, 0.95))
+		out.p05 = opt(quantile(fr, 0.05))
+		out.p95 = opt(quantile(fr, 0.95))
 	}
-	r.Trials = nt
+	out.trials = nt
 	prob := dosemap.NewVolume(cg).Fill(nan)
 	for _, n := range region {
 		h := chits[n]
@@ -511,34 +559,12 @@ func (s *Session) uncertainty(ctx context.Context, r *Result, set Settings, dc *
 		}
 		prob.Data[n] = float32(float64(h) / float64(nt))
 	}
-	r.Probability = prob
-	// Hole certainty from the fine-voxel lethal probability.
-	pf := make(map[int]float64, len(tv))
+	out.prob = prob
+	out.pf = make(map[int]float64, len(tv))
 	for a, v := range tv {
-		pf[v] = float64(hits[a]) / float64(nt)
+		out.pf[v] = float64(hits[a]) / float64(nt)
 	}
-	sum := make([]float64, len(r.Holes)+1)
-	cnt := make([]float64, len(r.Holes)+1)
-	for v, l := range r.HoleLabels.Data {
-		if l > 0 {
-			w := float64(s.occ[v])
-			sum[int(l)] += w * pf[v]
-			cnt[int(l)] += w
-		}
-	}
-	for h := range r.Holes {
-		if cnt[h+1] == 0 {
-			continue
-		}
-		p := sum[h+1] / cnt[h+1]
-		r.Holes[h].MeanProbability = opt(p)
-		if p <= ProbabilityCertain {
-			r.Holes[h].Certainty = "certain"
-		} else {
-			r.Holes[h].Certainty = "uncertain"
-		}
-	}
-	return nil
+	return out, nil
 }
 
 // boxDose returns, for the region voxels, the summed dose of the series
