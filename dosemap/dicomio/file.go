@@ -7,7 +7,6 @@ import (
 	"fmt"
 	"io"
 	"math"
-	"os"
 	"regexp"
 	"slices"
 	"strings"
@@ -194,19 +193,19 @@ func looksLikeDICOM(data []byte) bool {
 // pixels the bytes go into a reused buffer (nothing read keeps a reference
 // to them), so a pass over thousands of files allocates little.
 func readFile(path string, pixels bool) (fi *fileInfo, err error) {
-	f, err := os.Open(path)
+	f, err := openCaseFile(path)
 	if err != nil {
 		return nil, skip("cannot read: %s", safefile.Reason(err))
 	}
 	defer f.Close()
-	st, err := f.Stat()
+	fsize, mod, err := f.stat()
 	if err != nil {
 		return nil, skip("cannot read: %s", safefile.Reason(err))
 	}
 	var data []byte
 	var pooled *[]byte
-	size := int(st.Size())
-	if st.Size() > int64(maxFileBytes) {
+	size := int(fsize)
+	if fsize > int64(maxFileBytes) {
 		size = 0 // read as it comes; readBytes refuses what it cannot hold
 	}
 	if !pixels && size > 0 && size <= maxPooledFile {
@@ -248,7 +247,7 @@ func readFile(path string, pixels bool) (fi *fileInfo, err error) {
 	}()
 	fi, err = readBytes(path, data, pixels)
 	if fi != nil {
-		fi.ModTime = st.ModTime()
+		fi.ModTime = mod
 	}
 	return fi, err
 }
@@ -270,7 +269,7 @@ var errNotDICOM = errors.New("not DICOM")
 // readSmall appends the size bytes of f to data in one read when it can
 // (errNotDICOM if the start does not look like DICOM). A file that grew
 // since Stat is read to its end.
-func readSmall(f *os.File, data []byte, size int) ([]byte, error) {
+func readSmall(f caseFile, data []byte, size int) ([]byte, error) {
 	if cap(data)-len(data) < size+1 {
 		data = slices.Grow(data, size+1)
 	}
@@ -291,7 +290,7 @@ func readSmall(f *os.File, data []byte, size int) ([]byte, error) {
 
 // readHeadThenRest appends the first 132 bytes of f to data, checks that
 // they look like DICOM (errNotDICOM if not), then appends the rest of f.
-func readHeadThenRest(f *os.File, data []byte) ([]byte, error) {
+func readHeadThenRest(f caseFile, data []byte) ([]byte, error) {
 	if cap(data)-len(data) < 132 {
 		data = slices.Grow(data, 132)
 	}

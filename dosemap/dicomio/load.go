@@ -4,7 +4,6 @@ import (
 	"context"
 	"fmt"
 	"math"
-	"os"
 	"path/filepath"
 	"strings"
 	"sync"
@@ -186,21 +185,21 @@ func (fi *fileInfo) loadPixels(buf []byte) (*fileInfo, error) {
 		}
 		return px, err
 	}
-	f, err := os.Open(fi.Path)
+	f, err := openCaseFile(fi.Path)
 	if err != nil {
 		return nil, err
 	}
 	defer f.Close()
-	st, err := f.Stat()
+	size, mod, err := f.stat()
 	if err != nil {
 		return nil, err
 	}
-	if st.Size() != fi.Size {
-		return nil, fmt.Errorf("the file changed while it was being read (size %d, was %d)", st.Size(), fi.Size)
+	if size != fi.Size {
+		return nil, fmt.Errorf("the file changed while it was being read (size %d, was %d)", size, fi.Size)
 	}
-	if !fi.ModTime.IsZero() && !st.ModTime().Equal(fi.ModTime) {
+	if !fi.ModTime.IsZero() && !mod.Equal(fi.ModTime) {
 		return nil, fmt.Errorf("the file changed while it was being read (modified %s, was %s)",
-			st.ModTime().Format("15:04:05.000"), fi.ModTime.Format("15:04:05.000"))
+			mod.Format("15:04:05.000"), fi.ModTime.Format("15:04:05.000"))
 	}
 	if cap(buf) < need {
 		buf = make([]byte, need)
