@@ -131,7 +131,7 @@ func (c CEM43) rates(T []float32, f []float64) {
 func cemRates(T []float32, f []float64, brk, la, lb float64) {
 	f = f[:len(T)]
 	m := 0
-	if vectorRates {
+	if vectorKernels {
 		m = len(T) &^ 3
 		if m > 0 && cemRatesAVX2(&T[0], &f[0], m, brk, la, lb) < m {
 			m = 0 // some exponent out of the kernel's range: all again
@@ -324,7 +324,7 @@ func (a *accumulator) cemTrapezoid(T []float32, lo int, w float64) {
 	acc, prev, got, miss = acc[:len(T)], prev[:len(T)], got[:len(T)], miss[:len(T)]
 	h := 0.5 * w
 	brk, la, lb := a.brk, a.la, a.lb
-	if vectorRates {
+	if vectorKernels {
 		f := a.buf[:len(T)]
 		cemRates(T, f, brk, la, lb)
 		for n, x := range f {

@@ -604,8 +604,6 @@ func (t *thermo) unwrap() {
 	// 2·10⁵ rad, far beyond any temperature.
 	turns := t.sc.i16.get(nv)
 	nan := float32(math.NaN())
-	const twoPi = 2 * math.Pi
-	const invTwoPi = 1 / twoPi
 	slab := getSlab(t.nf * nv) // all frames in one allocation (every value is written below)
 	t.out.slab = slab
 	var mc motionCheck
@@ -645,35 +643,7 @@ func (t *thermo) unwrap() {
 				out[n] = nan // background: no signal
 			}
 			prev = hi
-			// Equal lengths let the compiler drop the bounds checks.
-			phr := ph[lo:hi]
-			ref, lastf, turnsf, outf, mr := t.ref32[lo:hi], last[lo:hi], turns[lo:hi], out[lo:hi], mf[lo:hi]
-			ref, lastf, turnsf, outf, mr = ref[:len(phr)], lastf[:len(phr)], turnsf[:len(phr)], outf[:len(phr)], mr[:len(phr)]
-			for n, v := range phr {
-				if v != v || !(mr[n] >= thr) {
-					outf[n] = nan
-					continue
-				}
-				w := wrapPhase(float64(v) - float64(ref[n]))
-				// Nearest turn count k to the last change: 0 when within
-				// ±π of it (nearly always); otherwise floor by truncation
-				// after an offset of 2^20 turns (phase changes of a million
-				// turns do not occur).
-				d := float64(lastf[n]) - w
-				u := float32(w)
-				var k16 int16
-				if !(d > -math.Pi && d < math.Pi) {
-					k := float64(int64(d*invTwoPi+0.5+1<<20)) - 1<<20
-					u = float32(w + twoPi*k)
-					k16 = int16(k)
-				}
-				if k16 != turnsf[n] {
-					wraps++
-					turnsf[n] = k16
-				}
-				lastf[n] = u
-				outf[n] = u
-			}
+			wraps += unwrapRun(ph[lo:hi], t.ref32[lo:hi], last[lo:hi], turns[lo:hi], out[lo:hi], mf[lo:hi], thr)
 		}
 		for n := prev; n < nv; n++ {
 			out[n] = nan
@@ -683,6 +653,59 @@ func (t *thermo) unwrap() {
 			t.updatePeaks(out) // while the frame is in cache
 		}
 	}
+}
+
+// unwrapRun unwraps the phase v of one run of voxels with signal against
+// their reference phase ref: the change w = wrapPhase(v − ref) takes the
+// turn count k that brings it nearest to the voxel's last valid change
+// (k = 0 when within ±π of it, nearly always), u = w + 2πk goes into out
+// and last, k into turns. A voxel whose phase is NaN or whose magnitude is
+// below thr is NaN in out and keeps last and turns. It returns the number
+// of voxels whose turn count changed. Where the processor has the vector
+// kernel (unwrapAVX2) it takes blocks of four voxels, to the same values.
+func unwrapRun(v, ref, last []float32, turns []int16, out, mag []float32, thr float32) (wraps int) {
+	if vectorKernels && len(v) >= 4 {
+		m := len(v) &^ 3
+		ref, last, turns, out, mag = ref[:len(v)], last[:len(v)], turns[:len(v)], out[:len(v)], mag[:len(v)]
+		wraps = unwrapAVX2(&v[0], &ref[0], &last[0], &turns[0], &out[0], &mag[0], m, thr)
+		v, ref, last, turns, out, mag = v[m:], ref[m:], last[m:], turns[m:], out[m:], mag[m:]
+	}
+	return wraps + unwrapScalar(v, ref, last, turns, out, mag, thr)
+}
+
+// unwrapScalar is unwrapRun one voxel at a time.
+func unwrapScalar(phr, ref, lastf []float32, turnsf []int16, outf, mr []float32, thr float32) (wraps int) {
+	const twoPi = 2 * math.Pi
+	const invTwoPi = 1 / twoPi
+	nan := float32(math.NaN())
+	// Equal lengths let the compiler drop the bounds checks.
+	ref, lastf, turnsf, outf, mr = ref[:len(phr)], lastf[:len(phr)], turnsf[:len(phr)], outf[:len(phr)], mr[:len(phr)]
+	for n, v := range phr {
+		if v != v || !(mr[n] >= thr) {
+			outf[n] = nan
+			continue
+		}
+		w := wrapPhase(float64(v) - float64(ref[n]))
+		// Nearest turn count k to the last change: 0 when within
+		// ±π of it (nearly always); otherwise floor by truncation
+		// after an offset of 2^20 turns (phase changes of a million
+		// turns do not occur).
+		d := float64(lastf[n]) - w
+		u := float32(w)
+		var k16 int16
+		if !(d > -math.Pi && d < math.Pi) {
+			k := float64(int64(d*invTwoPi+0.5+1<<20)) - 1<<20
+			u = float32(w + twoPi*k)
+			k16 = int16(k)
+		}
+		if k16 != turnsf[n] {
+			wraps++
+			turnsf[n] = k16
+		}
+		lastf[n] = u
+		outf[n] = u
+	}
+	return wraps
 }
 
 // noMagnitude returns n magnitudes of +Inf, which pass every magnitude check (for

@@ -4,8 +4,9 @@ package dosemap
 
 import "golang.org/x/sys/cpu"
 
-// vectorRates reports whether cemRatesAVX2 may run: it needs AVX2 and FMA.
-var vectorRates = cpu.X86.HasAVX2 && cpu.X86.HasFMA
+// vectorKernels reports whether the vector kernels of this file may run:
+// they need AVX2 and FMA.
+var vectorKernels = cpu.X86.HasAVX2 && cpu.X86.HasFMA
 
 // cemRatesAVX2 writes f[i] = 2^(e·(t[i] − 43)) for i < n, four at a time
 // (n a multiple of 4), with e = la where t[i] ≥ brk and lb elsewhere; a NaN
@@ -18,3 +19,10 @@ var vectorRates = cpu.X86.HasAVX2 && cpu.X86.HasFMA
 //
 //go:noescape
 func cemRatesAVX2(t *float32, f *float64, n int, brk, la, lb float64) (fine int)
+
+// unwrapAVX2 is unwrapRun for n voxels (n a multiple of 4), four at a
+// time, with the operations of unwrapScalar in the same order and
+// rounding (no fused multiply-add), so to the same values.
+//
+//go:noescape
+func unwrapAVX2(v, ref, last *float32, turns *int16, out, mag *float32, n int, thr float32) (wraps int)

@@ -94,7 +94,7 @@ func TestCEMRates(t *testing.T) {
 // TestCEMRatesKernelCount checks the count of fine lanes the vector kernel
 // returns, which decides whether its caller computes a run again.
 func TestCEMRatesKernelCount(t *testing.T) {
-	if !vectorRates {
+	if !vectorKernels {
 		t.Skip("no vector kernel on this processor")
 	}
 	c := DefaultCEM43()
@@ -114,5 +114,69 @@ func TestCEMRatesKernelCount(t *testing.T) {
 		if got := cemRatesAVX2(&tc.T[0], &f[0], len(tc.T), c.Break, la, lb); got != tc.fine {
 			t.Errorf("cemRatesAVX2(%v): %d fine lanes, want %d", tc.T, got, tc.fine)
 		}
+	}
+}
+
+// TestUnwrapRunKernel checks unwrapRun (the vector kernel in blocks of four
+// where the processor has it) against unwrapScalar, the voxel-by-voxel
+// loop whose method is tested against Itoh's unwrapping in
+// thermometry_test.go: equal to the last bit in out, last and turns, and
+// the same count of changed turn counts, frame after frame. Seeded random
+// phases within ±π and beyond (mappings in radians may exceed it), jumps
+// of several turns, NaN phases and magnitudes, magnitudes on the
+// threshold, and run lengths that leave a tail.
+func TestUnwrapRunKernel(t *testing.T) {
+	rng := rand.New(rand.NewPCG(21, 22))
+	nan := float32(math.NaN())
+	total := 0
+	for _, n := range []int{1, 3, 4, 7, 8, 61, 1000} {
+		ref := make([]float32, n)
+		for i := range ref {
+			ref[i] = float32(math.Pi * (2*rng.Float64() - 1))
+		}
+		lastA, lastB := make([]float32, n), make([]float32, n)
+		turnsA, turnsB := make([]int16, n), make([]int16, n)
+		outA, outB := make([]float32, n), make([]float32, n)
+		v, mag := make([]float32, n), make([]float32, n)
+		const thr = 0.25
+		for f := 0; f < 12; f++ {
+			for i := range v {
+				switch r := rng.IntN(20); {
+				case r == 0:
+					v[i] = nan
+				case r == 1:
+					v[i] = float32(4 * math.Pi * (2*rng.Float64() - 1)) // beyond ±π
+				case r < 5:
+					v[i] = ref[i] + float32(rng.NormFloat64()*3) // jumps past ±π
+				default:
+					v[i] = float32(math.Remainder(float64(ref[i])+0.3*float64(f)+0.05*rng.NormFloat64(), 2*math.Pi))
+				}
+				switch r := rng.IntN(20); {
+				case r == 0:
+					mag[i] = nan
+				case r == 1:
+					mag[i] = thr
+				case r == 2:
+					mag[i] = math.Nextafter32(thr, 0)
+				default:
+					mag[i] = float32(rng.Float64() + thr)
+				}
+			}
+			wa := unwrapRun(v, ref, lastA, turnsA, outA, mag, thr)
+			wb := unwrapScalar(v, ref, lastB, turnsB, outB, mag, thr)
+			total += wa
+			if wa != wb {
+				t.Fatalf("n=%d frame %d: %d turn changes, voxel by voxel %d", n, f, wa, wb)
+			}
+			for i := range v {
+				if math.Float32bits(outA[i]) != math.Float32bits(outB[i]) || math.Float32bits(lastA[i]) != math.Float32bits(lastB[i]) || turnsA[i] != turnsB[i] {
+					t.Fatalf("n=%d frame %d voxel %d (v %g, ref %g, mag %g): out %g last %g turns %d; voxel by voxel %g %g %d",
+						n, f, i, v[i], ref[i], mag[i], outA[i], lastA[i], turnsA[i], outB[i], lastB[i], turnsB[i])
+				}
+			}
+		}
+	}
+	if total < 100 {
+		t.Errorf("only %d turn changes: the data do not exercise unwrapping", total)
 	}
 }

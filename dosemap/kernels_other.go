@@ -1,0 +1,14 @@
+//go:build !amd64 || purego
+
+package dosemap
+
+// vectorKernels is false: no vector kernels on this architecture.
+const vectorKernels = false
+
+func cemRatesAVX2(t *float32, f *float64, n int, brk, la, lb float64) int {
+	panic("dosemap: no vector kernel")
+}
+
+func unwrapAVX2(v, ref, last *float32, turns *int16, out, mag *float32, n int, thr float32) int {
+	panic("dosemap: no vector kernel")
+}
