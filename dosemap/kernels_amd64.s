@@ -212,3 +212,78 @@ udone:
 	VZEROUPPER
 	MOVQ R11, wraps+64(FP)
 	RET
+
+// Lane numbers 0..3 and the step 4 (int32).
+DATA cidx<>+0(SB)/4, $0
+DATA cidx<>+4(SB)/4, $1
+DATA cidx<>+8(SB)/4, $2
+DATA cidx<>+12(SB)/4, $3
+GLOBL cidx<>(SB), RODATA|NOPTR, $16
+DATA cfour<>+0(SB)/4, $4
+DATA cfour<>+4(SB)/4, $4
+DATA cfour<>+8(SB)/4, $4
+DATA cfour<>+12(SB)/4, $4
+GLOBL cfour<>(SB), RODATA|NOPTR, $16
+
+// func convertAVX2(u *float32, x *float64, ms *float32, n int, k *[4]float64, best *[4]float32, at *[4]int32) (msum float64, valid int)
+TEXT ·convertAVX2(SB), NOSPLIT, $0-72
+	MOVQ u+0(FP), SI
+	MOVQ x+8(FP), DX
+	MOVQ ms+16(FP), R8
+	MOVQ n+24(FP), CX
+	MOVQ k+32(FP), AX
+	VBROADCASTSD 0(AX), Y15     // inv
+	VBROADCASTSD 8(AX), Y14     // a
+	VBROADCASTSD 16(AX), Y13    // bb
+	VBROADCASTSD 24(AX), Y12    // c
+	MOVQ best+40(FP), R12
+	MOVQ at+48(FP), R13
+	VMOVUPS (R12), X11          // per-lane largest
+	VMOVDQU (R13), X10          // per-lane position
+	VMOVDQU cidx<>(SB), X9      // positions of the current four
+	VXORPD Y8, Y8, Y8           // magnitude sums
+	XORQ R9, R9
+	TESTQ CX, CX
+	JLE cdone
+
+cloop:
+	VMOVUPS (SI), X0            // u
+	VCMPPS $0x00, X0, X0, X7    // valid (u == u), 32-bit lanes
+	VCVTPS2PD X0, Y1
+	VCMPPD $0x00, Y1, Y1, Y2    // valid, 64-bit lanes
+	VMOVUPD (DX), Y3            // x
+	VMULPD Y12, Y3, Y4          // x·c
+	VADDPD Y4, Y13, Y4          // bb + x·c
+	VMULPD Y4, Y3, Y4           // x·(bb + x·c)
+	VADDPD Y4, Y14, Y4          // a + x·(bb + x·c)
+	VMULPD Y15, Y1, Y5          // u·inv
+	VADDPD Y4, Y5, Y5           // u·inv + (a + ...)
+	VCVTPD2PSY Y5, X5           // T as float32
+	VBLENDVPS X7, X5, X0, X5    // NaN voxels keep their value
+	VMOVUPS X5, (SI)
+	VCMPPS $0x1E, X11, X5, X6   // T > largest (GT_OQ; false for NaN)
+	VBLENDVPS X6, X5, X11, X11
+	VBLENDVPS X6, X9, X10, X10
+	VPADDD cfour<>(SB), X9, X9
+	VCVTPS2PD (R8), Y6          // magnitudes
+	VANDPD Y2, Y6, Y6           // of the valid voxels
+	VADDPD Y6, Y8, Y8
+	VMOVMSKPD Y2, AX
+	POPCNTL AX, AX
+	ADDQ AX, R9
+	ADDQ $16, SI
+	ADDQ $32, DX
+	ADDQ $16, R8
+	SUBQ $4, CX
+	JGT cloop
+
+cdone:
+	VMOVUPS X11, (R12)
+	VMOVDQU X10, (R13)
+	VEXTRACTF128 $1, Y8, X0
+	VADDPD X0, X8, X0           // lanes 0+2, 1+3
+	VHADDPD X0, X0, X0          // their sum
+	VZEROUPPER
+	MOVSD X0, msum+56(FP)
+	MOVQ R9, valid+64(FP)
+	RET

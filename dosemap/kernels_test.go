@@ -180,3 +180,58 @@ func TestUnwrapRunKernel(t *testing.T) {
 		t.Errorf("only %d turn changes: the data do not exercise unwrapping", total)
 	}
 }
+
+// TestConvertRowKernel checks convertRow (the vector kernel in blocks of
+// four where the processor has it) against convertScalar, the voxel-by-
+// voxel conversion tested against the PRF formula in thermometry_test.go:
+// the temperatures equal to the last bit (NaN kept), the same count of
+// valid voxels and the same hottest value and first position, the
+// magnitude sum (taken in another order) within 1e-12 relative. Seeded
+// rows with NaN, repeated maxima (ties), an entry value above part of the
+// row, and lengths that leave a tail.
+func TestConvertRowKernel(t *testing.T) {
+	rng := rand.New(rand.NewPCG(31, 32))
+	nan := float32(math.NaN())
+	for _, n := range []int{1, 3, 4, 5, 8, 13, 128, 131} {
+		for trial := 0; trial < 40; trial++ {
+			u := make([]float32, n)
+			x := make([]float64, n)
+			ms := make([]float32, n)
+			for i := range u {
+				u[i] = float32(rng.NormFloat64() * 2)
+				if rng.IntN(6) == 0 {
+					u[i] = nan
+				}
+				x[i] = 2*float64(i)/float64(max(n-1, 1)) - 1
+				ms[i] = float32(100 + 50*rng.Float64())
+			}
+			if trial%3 == 0 && n > 4 {
+				// Ties for the hottest: in the same lane and in others.
+				p := rng.IntN(n - 4)
+				u[p], u[p+4], u[rng.IntN(n)] = 9, 9, 9
+			}
+			k := [4]float64{1 / 0.4, 37 + rng.Float64(), 0.1 * rng.NormFloat64(), 0.05 * rng.NormFloat64()}
+			if trial%3 == 0 {
+				k[2], k[3] = 0, 0 // no drift along the row: equal phases, equal temperatures
+			}
+			hot := float32(math.Inf(-1))
+			if trial%2 == 1 {
+				hot = 40 // above part of the row
+			}
+			ua, ub := append([]float32(nil), u...), append([]float32(nil), u...)
+			sa, va, ba, aa := convertRow(ua, x, ms, k, hot)
+			sb, vb, bb, ab := convertScalar(ub, x, ms, k, hot)
+			for i := range ua {
+				if math.Float32bits(ua[i]) != math.Float32bits(ub[i]) {
+					t.Fatalf("n=%d trial %d voxel %d: %g, voxel by voxel %g", n, trial, i, ua[i], ub[i])
+				}
+			}
+			if va != vb || aa != ab || math.Float32bits(ba) != math.Float32bits(bb) {
+				t.Fatalf("n=%d trial %d: valid %d hottest %g at %d; voxel by voxel %d, %g at %d", n, trial, va, ba, aa, vb, bb, ab)
+			}
+			if !(math.Abs(sa-sb) <= 1e-12*math.Abs(sb)) {
+				t.Fatalf("n=%d trial %d: magnitude sum %.17g, voxel by voxel %.17g", n, trial, sa, sb)
+			}
+		}
+	}
+}

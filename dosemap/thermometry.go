@@ -776,21 +776,11 @@ func (t *thermo) toTemperature() {
 				a := body - (cf[0]+cf[2]*y+cf[5]*y*y)*inv
 				bb := -(cf[1] + cf[4]*y) * inv
 				c := -cf[3] * inv
-				x := xs[:len(sv)]
-				ms := mags[row : row+g.Cols]
-				ms = ms[:len(sv)]
-				for i, u := range sv {
-					if u != u {
-						continue
-					}
-					xi := x[i]
-					v := float32(float64(u)*inv + (a + xi*(bb+xi*c)))
-					sv[i] = v
-					if v > hot {
-						hot, q.Hottest = v, row+i
-					}
-					msum += float64(ms[i])
-					valid++
+				rs, rv, best, at := convertRow(sv, xs, mags[row:row+g.Cols], [4]float64{inv, a, bb, c}, hot)
+				msum += rs
+				valid += rv
+				if at >= 0 {
+					hot, q.Hottest = best, row+at
 				}
 			}
 			inval += sl - valid
@@ -804,6 +794,60 @@ func (t *thermo) toTemperature() {
 			q.SNR = snrSum / float64(snrCnt)
 		}
 	}
+}
+
+// convertRow converts the unwrapped phase changes u of one row into °C in
+// place, T = u·k[0] + (k[1] + x·(k[2] + x·k[3])) with x the column's
+// coordinate (NaN stays NaN). It returns the sum of ms over the valid
+// voxels and their number, and the hottest converted value with its
+// position in the row when it exceeds hot (at = −1 otherwise; the first
+// such position on ties). Where the processor has the vector kernel
+// (convertAVX2) it takes blocks of four voxels: the same temperatures,
+// count and position, and the sum in another order (equal to about 1e-16
+// relative).
+func convertRow(u []float32, x []float64, ms []float32, k [4]float64, hot float32) (msum float64, valid int, best float32, at int) {
+	x, ms = x[:len(u)], ms[:len(u)]
+	best, at = hot, -1
+	m := 0
+	if vectorKernels && len(u) >= 4 {
+		m = len(u) &^ 3
+		lb := [4]float32{hot, hot, hot, hot}
+		la := [4]int32{-1, -1, -1, -1}
+		msum, valid = convertAVX2(&u[0], &x[0], &ms[0], m, &k, &lb, &la)
+		// The first position of the largest value: the smallest of the
+		// lanes' first positions of their largest.
+		for l := range lb {
+			if la[l] >= 0 && (lb[l] > best || lb[l] == best && int(la[l]) < at) {
+				best, at = lb[l], int(la[l])
+			}
+		}
+	}
+	s, n, b, a := convertScalar(u[m:], x[m:], ms[m:], k, best)
+	if a >= 0 {
+		best, at = b, m+a
+	}
+	return msum + s, valid + n, best, at
+}
+
+// convertScalar is convertRow one voxel at a time.
+func convertScalar(u []float32, x []float64, ms []float32, k [4]float64, hot float32) (msum float64, valid int, best float32, at int) {
+	inv, a, bb, c := k[0], k[1], k[2], k[3]
+	x, ms = x[:len(u)], ms[:len(u)]
+	best, at = hot, -1
+	for i, w := range u {
+		if w != w {
+			continue
+		}
+		xi := x[i]
+		v := float32(float64(w)*inv + (a + xi*(bb+xi*c)))
+		u[i] = v
+		if v > best {
+			best, at = v, i
+		}
+		msum += float64(ms[i])
+		valid++
+	}
+	return msum, valid, best, at
 }
 
 // motionCheck correlates frames with a fixed baseline image over every
