@@ -327,19 +327,7 @@ func (a *accumulator) cemTrapezoid(T []float32, lo int, w float64) {
 	if vectorKernels {
 		f := a.buf[:len(T)]
 		cemRates(T, f, brk, la, lb)
-		for n, x := range f {
-			if x != x {
-				prev[n] = x
-				miss[n]++
-				continue
-			}
-			s := prev[n] + x
-			prev[n] = x
-			if s == s {
-				acc[n] += h * s
-				got[n] = true
-			}
-		}
+		trapezoid(f, acc, prev, got, miss, h)
 		return
 	}
 	for n, t := range T {
@@ -373,6 +361,35 @@ func (a *accumulator) cemTrapezoid(T []float32, lo int, w float64) {
 		if s == s {
 			acc[n] += h * s
 			got[n] = true
+		}
+	}
+}
+
+// trapezoid adds the trapezoid-rule term h·(prev + f) of the rates f to
+// acc where both are valid (setting got), counts the NaN rates in miss and
+// makes f the new prev. Where the processor has the vector kernel
+// (trapezoidAVX2) it takes blocks of four voxels, to the same values.
+func trapezoid(f, acc, prev []float64, got []bool, miss []uint32, h float64) {
+	acc, prev, got, miss = acc[:len(f)], prev[:len(f)], got[:len(f)], miss[:len(f)]
+	if vectorKernels && len(f) >= 4 {
+		m := len(f) &^ 3
+		trapezoidAVX2(&f[0], &acc[0], &prev[0], &got[0], &miss[0], m, h)
+		f, acc, prev, got, miss = f[m:], acc[m:], prev[m:], got[m:], miss[m:]
+	}
+	trapezoidScalar(f, acc, prev, got, miss, h)
+}
+
+// trapezoidScalar is trapezoid one voxel at a time.
+func trapezoidScalar(f, acc, prev []float64, got []bool, miss []uint32, h float64) {
+	acc, prev, got, miss = acc[:len(f)], prev[:len(f)], got[:len(f)], miss[:len(f)]
+	for n, x := range f {
+		s := prev[n] + x
+		prev[n] = x
+		if s == s {
+			acc[n] += h * s
+			got[n] = true
+		} else if x != x {
+			miss[n]++
 		}
 	}
 }
@@ -434,17 +451,7 @@ func (a *accumulator) addChunk(T []float32, lo int, w float64, first bool) {
 			}
 		}
 	case a.trap:
-		h := 0.5 * w
-		for n, x := range f {
-			s := prev[n] + x
-			prev[n] = x
-			if s == s {
-				acc[n] += h * s
-				got[n] = true
-			} else if x != x {
-				miss[n]++
-			}
-		}
+		trapezoid(f, acc, prev, got, miss, 0.5*w)
 	default:
 		for n, x := range f {
 			if x == x {

@@ -36,3 +36,10 @@ func unwrapAVX2(v, ref, last *float32, turns *int16, out, mag *float32, n int, t
 //
 //go:noescape
 func convertAVX2(u *float32, x *float64, ms *float32, n int, k *[4]float64, best *[4]float32, at *[4]int32) (msum float64, valid int)
+
+// trapezoidAVX2 is trapezoid for n voxels (n a multiple of 4), four at a
+// time, with the product and the sum rounded separately as in
+// trapezoidScalar.
+//
+//go:noescape
+func trapezoidAVX2(f, acc, prev *float64, got *bool, miss *uint32, n int, h float64)

@@ -287,3 +287,67 @@ cdone:
 	MOVSD X0, msum+56(FP)
 	MOVQ R9, valid+64(FP)
 	RET
+
+// For each 4-bit mask, the four bytes 1 where its bit is set (the bools of
+// four voxels as one little-endian word).
+DATA tgot<>+0(SB)/4, $0x00000000
+DATA tgot<>+4(SB)/4, $0x00000001
+DATA tgot<>+8(SB)/4, $0x00000100
+DATA tgot<>+12(SB)/4, $0x00000101
+DATA tgot<>+16(SB)/4, $0x00010000
+DATA tgot<>+20(SB)/4, $0x00010001
+DATA tgot<>+24(SB)/4, $0x00010100
+DATA tgot<>+28(SB)/4, $0x00010101
+DATA tgot<>+32(SB)/4, $0x01000000
+DATA tgot<>+36(SB)/4, $0x01000001
+DATA tgot<>+40(SB)/4, $0x01000100
+DATA tgot<>+44(SB)/4, $0x01000101
+DATA tgot<>+48(SB)/4, $0x01010000
+DATA tgot<>+52(SB)/4, $0x01010001
+DATA tgot<>+56(SB)/4, $0x01010100
+DATA tgot<>+60(SB)/4, $0x01010101
+GLOBL tgot<>(SB), RODATA|NOPTR, $64
+
+// func trapezoidAVX2(f, acc, prev *float64, got *bool, miss *uint32, n int, h float64)
+TEXT ·trapezoidAVX2(SB), NOSPLIT, $0-56
+	MOVQ f+0(FP), SI
+	MOVQ acc+8(FP), DI
+	MOVQ prev+16(FP), DX
+	MOVQ got+24(FP), R8
+	MOVQ miss+32(FP), R9
+	MOVQ n+40(FP), CX
+	VBROADCASTSD h+48(FP), Y15
+	LEAQ tgot<>(SB), R10
+	TESTQ CX, CX
+	JLE tdone
+
+tloop:
+	VMOVUPD (SI), Y0            // f
+	VMOVUPD (DX), Y1            // prev
+	VADDPD Y0, Y1, Y1           // s = prev + f
+	VMOVUPD Y0, (DX)            // prev = f
+	VCMPPD $0x00, Y1, Y1, Y2    // s valid
+	VMULPD Y15, Y1, Y1          // h·s
+	VANDPD Y2, Y1, Y1           // 0 where s is NaN
+	VADDPD (DI), Y1, Y1         // acc + h·s
+	VMOVUPD Y1, (DI)
+	VMOVMSKPD Y2, AX
+	MOVL (R10)(AX*4), AX
+	ORL AX, (R8)                // got where s valid
+	VCMPPD $0x03, Y0, Y0, Y3    // f NaN
+	VEXTRACTF128 $1, Y3, X4
+	VSHUFPS $0x88, X4, X3, X3   // as 32-bit lanes (-1 where NaN)
+	VMOVDQU (R9), X4
+	VPSUBD X3, X4, X4           // miss + 1 where f is NaN
+	VMOVDQU X4, (R9)
+	ADDQ $32, SI
+	ADDQ $32, DI
+	ADDQ $32, DX
+	ADDQ $4, R8
+	ADDQ $16, R9
+	SUBQ $4, CX
+	JGT tloop
+
+tdone:
+	VZEROUPPER
+	RET
