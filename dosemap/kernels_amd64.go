@@ -4,9 +4,21 @@ package dosemap
 
 import "golang.org/x/sys/cpu"
 
-// vectorKernels reports whether the vector kernels of this file may run:
-// they need AVX2 and FMA.
-var vectorKernels = cpu.X86.HasAVX2 && cpu.X86.HasFMA
+// hasVectorKernels reports whether the processor can run the vector
+// kernels of this file: they need AVX2 and FMA.
+var hasVectorKernels = cpu.X86.HasAVX2 && cpu.X86.HasFMA
+
+// vectorKernels reports whether the vector kernels are used.
+var vectorKernels = hasVectorKernels
+
+// setVectorKernels turns the vector kernels on (where the processor has
+// them) or off and returns the previous setting (for tests that compare
+// both paths).
+func setVectorKernels(on bool) bool {
+	old := vectorKernels
+	vectorKernels = on && hasVectorKernels
+	return old
+}
 
 // cemRatesAVX2 writes f[i] = 2^(e·(t[i] − 43)) for i < n, four at a time
 // (n a multiple of 4), with e = la where t[i] ≥ brk and lb elsewhere; a NaN

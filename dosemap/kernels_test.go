@@ -3,6 +3,7 @@ package dosemap
 import (
 	"math"
 	"math/rand/v2"
+	"reflect"
 	"testing"
 )
 
@@ -267,6 +268,87 @@ func TestTrapezoidKernel(t *testing.T) {
 						n, step, i, accA[i], prevA[i], gotA[i], missA[i], accB[i], prevB[i], gotB[i], missB[i])
 				}
 			}
+		}
+	}
+}
+
+// TestKernelsMatchScalarPipeline runs thermometry and the CEM43 dose of
+// phantom sonications (hot spot rising 45 °C, past the phase wrap limit,
+// noisy magnitude, polynomial drift with the automatic reference; and a
+// phase-only series) with the vector kernels and without: temperatures,
+// noise, wraps, invalid counts, hottest voxels, drift and motion equal to
+// the last bit; the frame SNR (magnitudes summed in another order) within
+// 1e-12 relative, and the float32 dose (rates by another polynomial, each
+// within 1e-13 of math.Pow, see TestCEMRates) within one float32 rounding
+// step, 2^-23 relative. Without the kernels the scalar loops run, as on
+// processors without AVX2.
+func TestKernelsMatchScalarPipeline(t *testing.T) {
+	p := newPhantom(64, 16)
+	p.rise = hotSpot(45, 3, 6)
+	p.snr = 40
+	p.drift = func(x, y float64, f int) float64 { return 0.02 * float64(f) * (1 + 0.01*x - 0.02*y) }
+	for _, withMag := range []bool{true, false} {
+		s := p.sonication(withMag)
+		// A few NaN phases (voxels the scanner did not reconstruct).
+		for f := 4; f < len(s.Phase); f += 5 {
+			for n := 100 * f; n < 100*f+37; n++ {
+				s.Phase[f][n] = float32(math.NaN())
+			}
+		}
+		run := func(on bool) (*TemperatureSeries, *DoseMap) {
+			defer setVectorKernels(setVectorKernels(on))
+			ts, err := Thermometry(s, DefaultThermometryOptions())
+			if err != nil {
+				t.Fatal(err)
+			}
+			return ts, DefaultCEM43().Dose(ts)
+		}
+		tsV, dV := run(true)
+		tsS, dS := run(false)
+		wraps := 0
+		for f := range tsS.Frames {
+			for n, x := range tsS.Frames[f] {
+				if math.Float32bits(tsV.Frames[f][n]) != math.Float32bits(x) {
+					t.Fatalf("magnitude %v frame %d voxel %d: %g with kernels, %g without", withMag, f, n, tsV.Frames[f][n], x)
+				}
+			}
+			qv, qs := tsV.Quality[f], tsS.Quality[f]
+			wraps += qs.Wraps
+			snrV, snrS := qv.SNR, qs.SNR
+			qv.SNR, qs.SNR = 0, 0
+			if qv.Motion != qv.Motion && qs.Motion != qs.Motion {
+				qv.Motion, qs.Motion = 0, 0 // both unknown (no magnitude)
+			}
+			if !reflect.DeepEqual(qv, qs) {
+				t.Fatalf("magnitude %v frame %d: quality %+v with kernels, %+v without", withMag, f, qv, qs)
+			}
+			if !(snrV == snrS || snrV != snrV && snrS != snrS || math.Abs(snrV-snrS) <= 1e-12*math.Abs(snrS)) {
+				t.Fatalf("magnitude %v frame %d: SNR %.17g with kernels, %.17g without", withMag, f, snrV, snrS)
+			}
+		}
+		if wraps == 0 {
+			t.Errorf("magnitude %v: no phase wraps: the phantom does not exercise unwrapping", withMag)
+		}
+		for n, x := range tsS.Sigma {
+			if math.Float32bits(tsV.Sigma[n]) != math.Float32bits(x) {
+				t.Fatalf("magnitude %v voxel %d: sigma %g with kernels, %g without", withMag, n, tsV.Sigma[n], x)
+			}
+		}
+		if !reflect.DeepEqual(dV.Missing, dS.Missing) {
+			t.Fatalf("magnitude %v: missing-frame counts differ", withMag)
+		}
+		lethal := 0
+		for n, x := range dS.Data {
+			y := dV.Data[n]
+			if !(x == y || x != x && y != y || math.Abs(float64(y-x)) <= 0x1p-23*math.Abs(float64(x))) {
+				t.Fatalf("magnitude %v voxel %d: dose %g with kernels, %g without", withMag, n, y, x)
+			}
+			if x >= 240 {
+				lethal++
+			}
+		}
+		if lethal == 0 {
+			t.Errorf("magnitude %v: no lethal voxel: the phantom does not exercise the dose", withMag)
 		}
 	}
 }

@@ -4,8 +4,18 @@ package dicomio
 
 import "golang.org/x/sys/cpu"
 
-// vectorDecode reports whether decode16AVX2 may run.
+// vectorDecode reports whether decode16AVX2 is used (where the processor
+// has AVX2).
 var vectorDecode = cpu.X86.HasAVX2
+
+// setVectorDecode turns the vector kernel on (where the processor has
+// AVX2) or off and returns the previous setting (for tests that compare
+// both paths).
+func setVectorDecode(on bool) bool {
+	old := vectorDecode
+	vectorDecode = on && cpu.X86.HasAVX2
+	return old
+}
 
 // decode16AVX2 converts n stored values (n a multiple of 8) in 16-bit
 // little-endian words at src into dst, eight at a time:

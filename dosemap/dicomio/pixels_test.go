@@ -2,6 +2,7 @@ package dicomio
 
 import (
 	"encoding/binary"
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"os"
@@ -14,6 +15,22 @@ import (
 // PixelRepresentation two's complement). Expected values worked by hand;
 // exact comparisons (small integers are exact in float32).
 func TestDecodeStoredValues(t *testing.T) {
+	forBothDecoders(t, testDecodeStoredValues)
+}
+
+// forBothDecoders runs test with the vector decoding kernel (where the
+// processor has it) and without, so that the value tables and the scalar
+// loops are checked on every machine.
+func forBothDecoders(t *testing.T, test func(t *testing.T)) {
+	for _, on := range []bool{true, false} {
+		t.Run(fmt.Sprintf("vector=%v", on), func(t *testing.T) {
+			defer setVectorDecode(setVectorDecode(on))
+			test(t)
+		})
+	}
+}
+
+func testDecodeStoredValues(t *testing.T) {
 	cases := []struct {
 		name                     string
 		alloc, stored, high, rep int
@@ -146,6 +163,10 @@ func TestHugeDeclaredLength(t *testing.T) {
 // bits at every high bit, frame lengths that leave a tail after the
 // blocks of eight and four, and seeded random words with overlay bits.
 func TestDecodeLittleEndianWords(t *testing.T) {
+	forBothDecoders(t, testDecodeLittleEndianWords)
+}
+
+func testDecodeLittleEndianWords(t *testing.T) {
 	rng := rand.New(rand.NewPCG(5, 6))
 	maps := [][2]float64{{1, 0}, {math.Pi / 2048, -math.Pi}, {0.37, 12.5}, {-2.5e-3, 0}}
 	for bits := 1; bits <= 16; bits++ {
