@@ -69,8 +69,12 @@ func (p PRF) WrapLimit() float64 {
 // (phase noise 1/SNR per image; the √2 accounts for the difference of two
 // images). At 3 T, TE 12.8 ms, SNR 50 it is 0.275 °C.
 func (p PRF) NoiseSigma(snr float64) float64 {
-	return math.Sqrt2 / (math.Abs(p.PhasePerDegree()) * snr)
+	return sigmaOfSNR(math.Abs(p.PhasePerDegree()), snr)
 }
+
+// sigmaOfSNR is NoiseSigma with |PhasePerDegree| given (for loops over
+// voxels).
+func sigmaOfSNR(absPPD, snr float64) float64 { return math.Sqrt2 / (absPPD * snr) }
 
 // wrapPhase maps x into (−π, π].
 func wrapPhase(x float64) float64 {

@@ -401,21 +401,25 @@ func (t *thermo) baseline() {
 	}
 	for f := 0; f < t.nb; f++ {
 		ph := t.s.Phase[f]
-		for n, v := range ph {
-			m := 1.0
-			if t.mag != nil {
-				m = float64(t.mag[f][n])
+		cnt := cnt[:len(ph)]
+		if t.mag == nil {
+			for n, v := range ph {
+				if v == v {
+					cnt[n]++
+				}
 			}
+			continue
+		}
+		mg, ms := t.mag[f][:len(ph)], msum[:len(ph)]
+		for n, v := range ph {
+			m := float64(mg[n])
 			if v != v || m != m {
 				continue
 			}
 			cnt[n]++
-			if msum != nil {
-				msum[n] += m
-			}
+			ms[n] += m
 		}
 	}
-	signal := func(n int) bool { return cnt[n] > 0 }
 	if t.mag != nil {
 		t.baseMag = t.sc.f32.get(nv)
 		vals := t.sc.f32.get(nv)[:0]
@@ -431,18 +435,17 @@ func (t *thermo) baseline() {
 			p98 := nthSmallest(vals, min(len(vals)-1, int(0.98*float64(len(vals)))))
 			t.magThr = float32(t.opt.MinMagnitude) * p98
 		}
-		signal = func(n int) bool {
-			m := t.baseMag[n]
-			return cnt[n] > 0 && m >= t.magThr && (t.magThr != 0 || m > 0)
-		}
 	}
 	// arg Σ m·e^{iφ_f} = φ₀ + arg Σ m·e^{i(φ_f − φ₀)}, φ₀ the voxel's first
 	// valid baseline phase: the differences are mostly small (noise), where
 	// sincosSmall spares the general sine and cosine.
 	for n := range t.ref {
 		t.ref[n] = math.NaN()
-		if !signal(n) {
-			continue
+		if cnt[n] == 0 {
+			continue // no valid baseline frame
+		}
+		if m := t.baseMag; m != nil && !(m[n] >= t.magThr && (t.magThr != 0 || m[n] > 0)) {
+			continue // signal below the magnitude threshold
 		}
 		var re, im, phi0 float64
 		first := true
@@ -560,13 +563,17 @@ func (t *thermo) sigma() []float32 {
 				t.noise[s] = math.Sqrt(nthSmallest(vars, len(vars)/2) / medChi)
 			}
 		}
-		for n := range sig {
-			s := n / sl
-			if math.IsNaN(t.ref[n]) || !(t.noise[s] > 0) {
+		absPPD := math.Abs(t.p.PhasePerDegree())
+		for s, noise := range t.noise {
+			if !(noise > 0) {
 				continue
 			}
-			snr := float64(t.baseMag[n]) / t.noise[s]
-			sig[n] = float32(t.p.NoiseSigma(snr))
+			for n := s * sl; n < (s+1)*sl; n++ {
+				if math.IsNaN(t.ref[n]) {
+					continue
+				}
+				sig[n] = float32(sigmaOfSNR(absPPD, float64(t.baseMag[n])/noise))
+			}
 		}
 		return sig
 	}
@@ -959,10 +966,14 @@ func joinNote(a, b string) string {
 // hottest spot is located to within a voxel.
 func (t *thermo) startPeaks() {
 	g := t.g
-	t.lat = t.sc.b.get(t.nv)
-	for n := range t.lat {
-		i, j, _ := g.IJK(n)
-		t.lat[n] = !math.IsNaN(t.ref[n]) && i%2 == 0 && j%2 == 0
+	t.lat = t.sc.b.get(t.nv) // false everywhere
+	for k := 0; k < g.Slices; k++ {
+		for j := 0; j < g.Rows; j += 2 {
+			row := (k*g.Rows + j) * g.Cols
+			for i := 0; i < g.Cols; i += 2 {
+				t.lat[row+i] = !math.IsNaN(t.ref[row+i])
+			}
+		}
 	}
 	order := 1
 	if t.opt.Drift == DriftPolynomial {
@@ -1025,23 +1036,28 @@ func (t *thermo) referenceMask() []bool {
 		return ref
 	}
 	g := t.g
+	cols, rows := g.Cols, g.Rows
 	lat, peak := t.lat, t.peak
 	best, bi, bj := -1.0, 0, 0
+	// Flat indices (k·rows + j)·cols + i, as Geometry.Index, spelt out in
+	// the loops.
 	for k := 0; k < g.Slices; k++ {
-		for j := 0; j < g.Rows; j += 2 {
-			for i := 0; i < g.Cols; i += 2 {
-				if !lat[g.Index(i, j, k)] {
+		for j := 0; j < rows; j += 2 {
+			for i := 0; i < cols; i += 2 {
+				if !lat[(k*rows+j)*cols+i] {
 					continue
 				}
 				var sum float64
 				cnt := 0
-				for dj := -2; dj <= 2; dj += 2 {
-					for di := -2; di <= 2; di += 2 {
-						if g.Contains(i+di, j+dj, k) {
-							if n := g.Index(i+di, j+dj, k); lat[n] {
-								sum += peak[n]
-								cnt++
-							}
+				for jj := j - 2; jj <= j+2; jj += 2 {
+					if jj < 0 || jj >= rows {
+						continue
+					}
+					row := (k*rows + jj) * cols
+					for ii := i - 2; ii <= i+2; ii += 2 {
+						if ii >= 0 && ii < cols && lat[row+ii] {
+							sum += peak[row+ii]
+							cnt++
 						}
 					}
 				}
@@ -1051,15 +1067,15 @@ func (t *thermo) referenceMask() []bool {
 			}
 		}
 	}
-	fovMin := math.Min(float64(g.Cols)*g.Spacing[0], float64(g.Rows)*g.Spacing[1])
+	fovMin := math.Min(float64(cols)*g.Spacing[0], float64(rows)*g.Spacing[1])
 	r := math.Max(20, fovMin/4)
 	for k := 0; k < g.Slices; k++ {
-		for j := 0; j < g.Rows; j++ {
+		for j := 0; j < rows; j++ {
 			dy := float64(j-bj) * g.Spacing[1]
-			for i := 0; i < g.Cols; i++ {
+			row := (k*rows + j) * cols
+			for i := 0; i < cols; i++ {
 				dx := float64(i-bi) * g.Spacing[0]
-				n := g.Index(i, j, k)
-				ref[n] = !math.IsNaN(t.ref[n]) && dx*dx+dy*dy >= r*r
+				ref[row+i] = !math.IsNaN(t.ref[row+i]) && dx*dx+dy*dy >= r*r
 			}
 		}
 	}
