@@ -60,6 +60,39 @@ var fastVRs = map[string]bool{
 	"UC": true, "UR": true, "UT": true,
 }
 
+// vrEntry is what element needs of an explicit VR: its name (one string
+// per VR, not one per element) and whether it has a 4-byte length.
+type vrEntry struct {
+	name        string
+	known, long bool
+}
+
+// vrTable holds the VRs of fastVRs by their two letters ('A'..'Z' each),
+// and topLevelKeys the tags of fastTopLevel as group<<16 | element: the
+// lookups made for every element of every file.
+var (
+	vrTable      [26 * 26]vrEntry
+	topLevelKeys = map[uint32]bool{}
+)
+
+func init() {
+	for vr, long := range fastVRs {
+		vrTable[int(vr[0]-'A')*26+int(vr[1]-'A')] = vrEntry{vr, true, long}
+	}
+	for t := range fastTopLevel {
+		topLevelKeys[uint32(t.Group)<<16|uint32(t.Element)] = true
+	}
+}
+
+// lookupVR returns the entry of the VR spelt a, b (known false when
+// fastElems does not read it).
+func lookupVR(a, b byte) vrEntry {
+	if a < 'A' || a > 'Z' || b < 'A' || b > 'Z' {
+		return vrEntry{}
+	}
+	return vrTable[int(a-'A')*26+int(b-'A')]
+}
+
 // fastReader holds the state of one direct read.
 type fastReader struct {
 	data     []byte
@@ -183,12 +216,12 @@ func (r *fastReader) element(pos, end, depth int, top bool) (*dicom.Element, int
 		}
 		vl = binary.LittleEndian.Uint32(d[pos+4:])
 	} else {
-		vr = string(d[pos+4 : pos+6])
-		long, known := fastVRs[vr]
-		if !known {
+		e := lookupVR(d[pos+4], d[pos+5])
+		if !e.known {
 			return nil, 0, false
 		}
-		if long {
+		vr = e.name
+		if e.long {
 			if pos+12 > end {
 				return nil, 0, false
 			}
@@ -201,7 +234,7 @@ func (r *fastReader) element(pos, end, depth int, top bool) (*dicom.Element, int
 			}
 		}
 	}
-	keep := !top || fastTopLevel[t]
+	keep := !top || topLevelKeys[uint32(t.Group)<<16|uint32(t.Element)]
 	kind := tag.GetVRKind(t, vr)
 	if vl == undefinedLength {
 		if kind != tag.VRSequence {
