@@ -312,9 +312,10 @@ func newAccumulator(m rateModel, n int, sc *scratch) *accumulator {
 	return a
 }
 
-// cemTrapezoid is addChunk for CEM43 and the trapezoid rule (the default
-// model: the hot loop of dose review), with the rates of the chunk from the
-// vector kernel where there is one, otherwise computed inline.
+// cemTrapezoid is addChunk for CEM43 and the trapezoid rule with the rate
+// computed inline (the default model: the hot loop of dose review, where
+// the processor has no vector kernels; with them the general path of
+// addChunk is faster).
 func (a *accumulator) cemTrapezoid(T []float32, lo int, w float64) {
 	hi := lo + len(T)
 	acc := a.acc[lo:hi:hi]
@@ -324,12 +325,6 @@ func (a *accumulator) cemTrapezoid(T []float32, lo int, w float64) {
 	acc, prev, got, miss = acc[:len(T)], prev[:len(T)], got[:len(T)], miss[:len(T)]
 	h := 0.5 * w
 	brk, la, lb := a.brk, a.la, a.lb
-	if vectorKernels {
-		f := a.buf[:len(T)]
-		cemRates(T, f, brk, la, lb)
-		trapezoid(f, acc, prev, got, miss, h)
-		return
-	}
 	for n, t := range T {
 		x := float64(t)
 		if x != x {
@@ -430,7 +425,7 @@ func (a *accumulator) add(T []float32, t float64) {
 // addChunk integrates temperatures T of the voxels lo, lo+1, ... with
 // weight w (time unit of the model).
 func (a *accumulator) addChunk(T []float32, lo int, w float64, first bool) {
-	if a.cem && a.trap && !first {
+	if a.cem && a.trap && !first && !vectorKernels {
 		a.cemTrapezoid(T, lo, w)
 		return
 	}
