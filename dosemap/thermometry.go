@@ -1327,9 +1327,12 @@ func (sf *sliceFit) fit(v []float32) ([6]float64, error) {
 			continue
 		}
 		row := j * sf.cols
-		var s0, s1, s2 float64
 		idx, w := sf.idx[lo:hi], sf.w[lo:hi]
 		w = w[:len(idx)]
+		xs := sf.x[:sf.cols]
+		// Each sum in two parts (even and odd positions), added at the end
+		// of the row, so consecutive additions do not wait for each other.
+		var p0, p1, p2 [2]float64
 		if m > 3 {
 			for q, n := range idx {
 				u := v[n]
@@ -1339,10 +1342,10 @@ func (sf *sliceFit) fit(v []float32) ([6]float64, error) {
 					continue
 				}
 				wu := w[q] * float64(u)
-				x := sf.x[int(n)-row]
-				s0 += wu
-				s1 += wu * x
-				s2 += wu * x * x
+				x := xs[int(n)-row]
+				p0[q&1] += wu
+				p1[q&1] += wu * x
+				p2[q&1] += wu * x * x
 			}
 		} else {
 			// Orders 0 and 1 need no Σw·v·x².
@@ -1354,11 +1357,12 @@ func (sf *sliceFit) fit(v []float32) ([6]float64, error) {
 					continue
 				}
 				wu := w[q] * float64(u)
-				s0 += wu
-				s1 += wu * sf.x[int(n)-row]
+				p0[q&1] += wu
+				p1[q&1] += wu * xs[int(n)-row]
 			}
 		}
 		y := sf.y[j]
+		s0, s1, s2 := p0[0]+p0[1], p1[0]+p1[1], p2[0]+p2[1]
 		rhs[0] += s0
 		rhs[1] += s1
 		rhs[2] += s0 * y
