@@ -443,6 +443,50 @@ func (r *fastReader) sequence(pos, end int, undefined bool, depth int) ([][]*dic
 // value is only white space, spaces and NULs are trimmed from both ends;
 // then it is split at backslashes.
 func libraryStrings(val []byte) []string {
+	// Plain ASCII (nearly always): the same steps on the bytes, with one
+	// string for the value and the parts cut from it.
+	onlySpaces := true
+	for _, b := range val {
+		if b >= 0x80 {
+			return libraryStringsUTF8(val)
+		}
+		if onlySpaces && b != ' ' && (b < '\t' || b > '\r') { // unicode.IsSpace for ASCII
+			onlySpaces = false
+		}
+	}
+	if !onlySpaces {
+		lo, hi := 0, len(val)
+		for lo < hi && (val[lo] == ' ' || val[lo] == 0) {
+			lo++
+		}
+		for hi > lo && (val[hi-1] == ' ' || val[hi-1] == 0) {
+			hi--
+		}
+		val = val[lo:hi]
+	}
+	parts := 1
+	for _, b := range val {
+		if b == '\\' {
+			parts++
+		}
+	}
+	s := string(val)
+	if parts == 1 {
+		return []string{s}
+	}
+	out := make([]string, 0, parts)
+	for {
+		i := strings.IndexByte(s, '\\')
+		if i < 0 {
+			return append(out, s)
+		}
+		out = append(out, s[:i])
+		s = s[i+1:]
+	}
+}
+
+// libraryStringsUTF8 is libraryStrings for values with bytes above 0x7F.
+func libraryStringsUTF8(val []byte) []string {
 	s := string(val)
 	onlySpaces := true
 	for _, c := range s {

@@ -9,6 +9,7 @@ import (
 	"os"
 	"path/filepath"
 	"reflect"
+	"slices"
 	"testing"
 
 	"dosecover/dosemap/sim"
@@ -313,5 +314,29 @@ func TestFastAttrsCorrupt(t *testing.T) {
 			}
 		}
 		t.Logf("%s: direct reader took %d of 3000 mutations", name, taken)
+	}
+}
+
+// TestLibraryStringsASCII checks the ASCII path of libraryStrings against
+// libraryStringsUTF8, the step-by-step form of the library's splitting
+// (trim spaces and NULs unless only white space, split at backslashes),
+// on seeded values built from spaces, NULs, backslashes, control
+// characters and letters, and a few by hand: equal string lists.
+func TestLibraryStringsASCII(t *testing.T) {
+	cases := []string{"", " ", "  \t", "\x00", "A", " A ", "A\\B", "A\\", "\\", "\\\\", " 1.5\\2.5 \x00", "\t\n", "\x00A\x00"}
+	rng := rand.New(rand.NewPCG(51, 52))
+	alphabet := []byte{' ', 0, '\\', '\t', '\n', '\r', '\v', '\f', 'A', 'z', '1', '.', '-'}
+	for range 3000 {
+		b := make([]byte, rng.IntN(12))
+		for i := range b {
+			b[i] = alphabet[rng.IntN(len(alphabet))]
+		}
+		cases = append(cases, string(b))
+	}
+	for _, c := range cases {
+		got, want := libraryStrings([]byte(c)), libraryStringsUTF8([]byte(c))
+		if !slices.Equal(got, want) {
+			t.Fatalf("%q: %q, want %q", c, got, want)
+		}
 	}
 }
