@@ -1012,11 +1012,15 @@ func (t *thermo) updatePeaks(fr []float32) {
 			a := cf[0] + cf[2]*y + cf[5]*y*y
 			b := cf[1] + cf[4]*y
 			c := cf[3]
-			for p := sf.rowStart[j]; p < sf.rowStart[j+1]; p++ {
-				n := int(sf.idx[p])
+			row := j * g.Cols
+			xs := sf.x[:g.Cols]
+			for _, n := range sf.idx[sf.rowStart[j]:sf.rowStart[j+1]] {
 				if u := v[n]; u == u {
-					x := sf.x[n-j*g.Cols]
-					pk[n] = max(pk[n], math.Abs(float64(u)-(a+x*(b+x*c))))
+					x := xs[int(n)-row]
+					// d ≥ 0 and never NaN here: a plain comparison is max.
+					if d := math.Abs(float64(u) - (a + x*(b+x*c))); d > pk[n] {
+						pk[n] = d
+					}
 				}
 			}
 		}
