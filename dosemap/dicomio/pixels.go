@@ -25,20 +25,16 @@ func (fi *fileInfo) decodeFrame(frame int, dst []float32, a, b float64, tabs *va
 	if vectorDecode && bpp == 2 && !fi.BigEndian && fi.BitsStored >= 1 && fi.HighBit < 16 &&
 		fi.BitsStored <= fi.HighBit+1 && npix >= 8 {
 		// Little-endian words (the frames of a sonication): eight at a
-		// time by the vector kernel, the tail as below.
+		// time by the vector kernel; the tail (fewer than eight) by the
+		// loops below, which go by the lengths of raw and dst.
 		m := npix &^ 7
 		up, ext := uint(31-fi.HighBit)&31, uint(32-fi.BitsStored)&31
 		decode16AVX2(&raw[0], &dst[0], m, uint64(up), uint64(ext), fi.PixelRep == 1, a, b)
-		raw = raw[:2*len(dst)]
-		for n := m; n < len(dst); n++ {
-			u := (uint32(raw[2*n]) | uint32(raw[2*n+1])<<8) << up
-			if fi.PixelRep == 1 {
-				dst[n] = float32(float64(int32(u)>>ext)*a + b)
-			} else {
-				dst[n] = float32(float64(u>>ext)*a + b)
-			}
+		if m == npix {
+			return
 		}
-		return
+		raw, dst = raw[2*m:], dst[m:]
+		tabs = nil // no table for a handful of values
 	}
 	if tabs != nil && bpp == 2 && !fi.BigEndian && fi.BitsStored >= 1 && fi.BitsStored <= 12 &&
 		fi.HighBit < 16 && fi.BitsStored <= fi.HighBit+1 && npix >= 1024 {
