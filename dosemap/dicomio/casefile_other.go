@@ -3,6 +3,7 @@
 package dicomio
 
 import (
+	"io/fs"
 	"os"
 	"time"
 )
@@ -16,11 +17,11 @@ func openCaseFile(path string) (caseFile, error) {
 	return caseFile{f}, err
 }
 
-// stat returns the file's size and modification time.
-func (f caseFile) stat() (size int64, mod time.Time, err error) {
+// stat returns the file's size, modification time and type.
+func (f caseFile) stat() (size int64, mod time.Time, mode fs.FileMode, err error) {
 	st, err := f.Stat()
 	if err != nil {
-		return 0, time.Time{}, err
+		return 0, time.Time{}, 0, err
 	}
-	return st.Size(), st.ModTime(), nil
+	return st.Size(), st.ModTime(), st.Mode().Type(), nil
 }

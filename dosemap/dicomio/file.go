@@ -148,6 +148,7 @@ type fileInfo struct {
 	BigEndian                          bool
 	Frames                             []frameMeta
 	Pixels                             []byte    // raw pixel data when read
+	firstFrame                         int       // frame number of the first frame in Pixels
 	pooled                             bool      // Pixels is a reused buffer (see decodeFile)
 	Size                               int64     // file size when the attributes were read
 	ModTime                            time.Time // modification time then (zero when not read from a file)
@@ -198,17 +199,53 @@ func readFile(path string, pixels bool) (fi *fileInfo, err error) {
 		return nil, skip("cannot read: %s", safefile.Reason(err))
 	}
 	defer f.Close()
-	fsize, mod, err := f.stat()
+	fsize, mod, mode, err := f.stat()
 	if err != nil {
 		return nil, skip("cannot read: %s", safefile.Reason(err))
+	}
+	if r := SpecialFileReason(mode); r != "" {
+		return nil, skip("%s", r)
+	}
+	// readBytes recovers panics of the DICOM library; this second guard
+	// keeps any other failure on one file from stopping the whole case.
+	defer func() {
+		if r := recover(); r != nil {
+			fi = nil
+			err = skip("unreadable: internal error while reading (%v)", r)
+		}
+	}()
+	if fsize > maxPooledFile {
+		// A large file is read only up to its pixel data, whatever it
+		// declares; the frames used are read later by loadPixels.
+		data, pixPos, pixLen, err := readHead(f, fsize)
+		if errors.Is(err, errNotDICOM) {
+			return nil, skip("not a DICOM file (no DICM marker and no DICOM element at the start)")
+		}
+		var fe *fileError
+		if errors.As(err, &fe) {
+			return nil, err
+		}
+		if err != nil {
+			return nil, skip("cannot read: %s", safefile.Reason(err))
+		}
+		declared := -1
+		if pixPos > 0 {
+			declared = pixLen
+		}
+		fi, err = readBytesDeclared(path, data, false, fastAttrs, declared)
+		if err != nil {
+			return nil, err
+		}
+		fi.Size, fi.ModTime = fsize, mod
+		if pixels && fi.IsImage && len(fi.Frames) > 0 {
+			return fi.loadPixels(nil, 0, len(fi.Frames)-1)
+		}
+		return fi, nil
 	}
 	var data []byte
 	var pooled *[]byte
 	size := int(fsize)
-	if fsize > int64(maxFileBytes) {
-		size = 0 // read as it comes; readBytes refuses what it cannot hold
-	}
-	if !pixels && size > 0 && size <= maxPooledFile {
+	if !pixels && size > 0 {
 		pooled = fileBuffers.Get().(*[]byte)
 		if cap(*pooled) < size+1 {
 			*pooled = make([]byte, 0, max(size+1, 64<<10))
@@ -221,9 +258,8 @@ func readFile(path string, pixels bool) (fi *fileInfo, err error) {
 	} else {
 		data = make([]byte, 0, size+1)
 	}
-	if size > 0 && size <= maxPooledFile {
-		// A small file is read in one call (its size is known): a large
-		// one that is not DICOM would be the only cost of reading whole.
+	if size > 0 {
+		// A small file is read in one call (its size is known).
 		data, err = readSmall(f, data, size)
 	} else {
 		data, err = readHeadThenRest(f, data)
@@ -237,14 +273,6 @@ func readFile(path string, pixels bool) (fi *fileInfo, err error) {
 	if pooled != nil {
 		*pooled = data[:0]
 	}
-	// readBytes recovers panics of the DICOM library; this second guard
-	// keeps any other failure on one file from stopping the whole case.
-	defer func() {
-		if r := recover(); r != nil {
-			fi = nil
-			err = skip("unreadable: internal error while reading (%v)", r)
-		}
-	}()
 	fi, err = readBytes(path, data, pixels)
 	if fi != nil {
 		fi.ModTime = mod
@@ -255,9 +283,6 @@ func readFile(path string, pixels bool) (fi *fileInfo, err error) {
 // maxPooledFile is the largest file read into a reused buffer; larger ones
 // (multi-frame series) get their own.
 const maxPooledFile = 4 << 20
-
-// maxFileBytes bounds the size taken from Stat when sizing the buffer.
-const maxFileBytes = 1 << 31
 
 // fileBuffers holds the reused read buffers of readFile.
 var fileBuffers = sync.Pool{New: func() any { b := make([]byte, 0, 64<<10); return &b }}
@@ -342,6 +367,13 @@ func readBytes(path string, data []byte, pixels bool) (fi *fileInfo, err error) 
 
 // readBytesWith is readBytes with the direct attribute reader on or off.
 func readBytesWith(path string, data []byte, pixels, useFast bool) (fi *fileInfo, err error) {
+	return readBytesDeclared(path, data, pixels, useFast, -1)
+}
+
+// readBytesDeclared is readBytesWith for data that may be only the head of
+// a file (see readHead): declared, when not negative, is the length the
+// top-level pixel data declare in the file, whose value data do not hold.
+func readBytesDeclared(path string, data []byte, pixels, useFast bool, declared int) (fi *fileInfo, err error) {
 	if len(data) == 0 {
 		return nil, skip("empty file (0 bytes)")
 	}
@@ -419,6 +451,9 @@ func readBytesWith(path string, data []byte, pixels, useFast bool) (fi *fileInfo
 	}
 	fi = &fileInfo{Path: path, Syntax: syntax, BigEndian: w.bo == binary.BigEndian,
 		Size: int64(len(data)), PixelPos: w.pixelPos, PixelLen: w.pixelLen}
+	if declared >= 0 {
+		fi.PixelLen = declared
+	}
 	if err := fi.fill(es, pixels); err != nil {
 		return nil, err
 	}
@@ -512,9 +547,19 @@ func (fi *fileInfo) fill(es elems, pixels bool) error {
 		return skip("implausible image size %d×%d×%d", fi.Cols, fi.Rows, nf)
 	}
 	need := nf * fi.Rows * fi.Cols * fi.BitsAllocated / 8
-	if int64(pd.ValueLength) < int64(need) {
+	declared := int64(pd.ValueLength)
+	if fi.PixelPos > 0 {
+		declared = int64(fi.PixelLen) // also when only the file's head was read
+	}
+	if declared < int64(need) {
 		return skip("truncated or corrupt: PixelData (7fe0,0010) holds %d bytes, %d×%d×%d frames of %d bits need %d",
-			pd.ValueLength, fi.Cols, fi.Rows, nf, fi.BitsAllocated, need)
+			declared, fi.Cols, fi.Rows, nf, fi.BitsAllocated, need)
+	}
+	if declared > 2*int64(need)+1<<20 {
+		// Rows × Columns × frames × bits say how large the pixel data
+		// are; a file declaring far more is not what it says it is.
+		return skip("implausible pixel data: PixelData (7fe0,0010) declares %d bytes but %d×%d×%d frames of %d bits need %d; not read",
+			declared, fi.Cols, fi.Rows, nf, fi.BitsAllocated, need)
 	}
 	if pixels {
 		if len(info.UnprocessedValueData) < need {
