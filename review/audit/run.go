@@ -162,6 +162,11 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 		} else if inside {
 			return nil, &UsageError{fmt.Sprintf("output folder %s is inside the input folder %s: dosecover never writes into the folders it reads; choose another output folder", cfg.OutDir, in)}
 		}
+		if holds, err := isInside(in, outDir); err != nil {
+			return nil, fmt.Errorf("input folder %s: %w", in, err)
+		} else if holds {
+			return nil, &UsageError{fmt.Sprintf("output folder %s contains the input folder %s: dosecover never writes into the folders it reads; choose another output folder", cfg.OutDir, in)}
+		}
 	}
 
 	// Shards of one audit share its output folder only with the same
@@ -191,6 +196,16 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 		return nil, err
 	}
 	cases := cfg.Shard.Select(all)
+	for _, c := range cases {
+		for _, s := range c.Skipped {
+			if cfg.Deidentify {
+				// Names below a case folder may carry identity.
+				problems = append(problems, fmt.Sprintf("a file of a case was not read: %s", s[strings.LastIndex(s, ": ")+2:]))
+				continue
+			}
+			problems = append(problems, filepath.Join(c.Dir, s))
+		}
+	}
 	sum := &Summary{Problems: problems, Header: Header(cfg.SettingsColumns)}
 	if len(all) == 0 {
 		return sum, fmt.Errorf("no case found below %s: no folder holds DICOM files", strings.Join(cfg.Inputs, ", "))
@@ -199,15 +214,18 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 	if err := os.MkdirAll(filepath.Join(outDir, "cases"), 0o755); err != nil {
 		return sum, &safefile.PathError{What: "creating output folder", Path: cfg.OutDir, Err: err}
 	}
-	// Leftovers of a killed run. Shards may run at the same time into one
-	// output folder, so a shard removes only leftovers too old to belong to
-	// a write in progress (every write takes seconds).
-	age := time.Duration(0)
-	if sharded {
-		age = staleTemp
+	// One whole run at a time in an output folder, or the shards of one
+	// audit together; leftovers of killed runs are removed only by a run
+	// that holds the folder alone, so no live run loses its files.
+	release, alone, err := lockOutDir(outDir, cfg.OutDir, sharded)
+	if err != nil {
+		return nil, err
 	}
-	if err := removeTemps(outDir, age); err != nil {
-		return sum, err
+	defer release()
+	if alone {
+		if err := removeTemps(outDir, 0); err != nil {
+			return sum, err
+		}
 	}
 	var index map[string]*Record
 	if cfg.Resume {

@@ -1,0 +1,68 @@
+//go:build unix
+
+package audit
+
+import (
+	"errors"
+	"fmt"
+	"os"
+	"path/filepath"
+	"syscall"
+)
+
+// LockFile is the file in an output folder that runs lock while they
+// write there (flock(2); the lock goes with the process, so a killed run
+// leaves none behind).
+const LockFile = ".audit.lock"
+
+// lockOutDir takes a run's lock on outDir: a whole run holds it alone; the
+// shards of one audit share it. alone reports whether no other run holds
+// it, so that the leftovers of killed runs may be removed. A whole run
+// while another run writes there, or a shard while a whole run does, is
+// refused with an error naming the folder. release ends the lock.
+func lockOutDir(outDir, given string, shard bool) (release func(), alone bool, err error) {
+	p := filepath.Join(outDir, LockFile)
+	f, err := os.OpenFile(p, os.O_RDWR|os.O_CREATE, 0o644)
+	if err != nil {
+		return nil, false, fmt.Errorf("output folder %s: cannot open its lock file %s: %w", given, LockFile, err)
+	}
+	fd := int(f.Fd())
+	flock := func(how int) error {
+		for {
+			err := syscall.Flock(fd, how|syscall.LOCK_NB)
+			if err != syscall.EINTR {
+				return err
+			}
+		}
+	}
+	busy := func(err error) error {
+		f.Close()
+		if errors.Is(err, syscall.EWOULDBLOCK) {
+			what := "another audit run (a whole run or a shard)"
+			if shard {
+				what = "a whole audit run"
+			}
+			return &UsageError{fmt.Sprintf("output folder %s is in use by %s: wait until it finishes or choose another output folder", given, what)}
+		}
+		return fmt.Errorf("output folder %s: locking %s: %w", given, LockFile, err)
+	}
+	err = flock(syscall.LOCK_EX)
+	switch {
+	case err == nil:
+		alone = true
+		if shard {
+			// Alone for now: the leftovers may go; then share the lock
+			// with the other shards.
+			if err := flock(syscall.LOCK_SH); err != nil {
+				return nil, false, busy(err)
+			}
+		}
+	case shard && errors.Is(err, syscall.EWOULDBLOCK):
+		if err := flock(syscall.LOCK_SH); err != nil {
+			return nil, false, busy(err)
+		}
+	default:
+		return nil, false, busy(err)
+	}
+	return func() { f.Close() }, alone, nil
+}

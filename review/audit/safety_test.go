@@ -1,0 +1,148 @@
+//go:build unix
+
+package audit
+
+import (
+	"context"
+	"errors"
+	"os"
+	"path/filepath"
+	"strings"
+	"syscall"
+	"testing"
+)
+
+// TestOutputFolderHoldingInputIsRefused: with the output folder set to the
+// folder that holds the case, the run is refused before anything is
+// written or removed; a file inside the case whose name looks like one of
+// dosecover's temporary files survives.
+func TestOutputFolderHoldingInputIsRefused(t *testing.T) {
+	root := makeCases(t, t.TempDir(), 2)
+	planted := filepath.Join(root, "case-000", tempPrefix+"img.dcm.123.tmp")
+	writeFiles(t, root, map[string][]byte{"case-000/" + tempPrefix + "img.dcm.123.tmp": fakeDICOM("belongs to the case")})
+	for _, out := range []string{root, filepath.Dir(root)} {
+		cfg := Config{Inputs: []string{filepath.Join(root, "case-000")}, OutDir: out, Workers: 1, Analyzer: newFileCounter().analyze}
+		sum, err := Run(context.Background(), cfg)
+		var ue *UsageError
+		if !errors.As(err, &ue) || !strings.Contains(err.Error(), "contains the input folder") {
+			t.Errorf("output %s over the input: err %v, want a usage error saying it contains the input", out, err)
+		}
+		if sum != nil {
+			t.Errorf("output %s: a summary was returned for a refused run", out)
+		}
+	}
+	if _, err := os.Stat(planted); err != nil {
+		t.Errorf("a file of the case was removed: %v", err)
+	}
+	if _, err := os.Stat(filepath.Join(root, "cases")); !os.IsNotExist(err) {
+		t.Errorf("the refused run wrote into the folder holding the case: %v", err)
+	}
+}
+
+// TestCleanupOnlyTouchesItsOwnNames: the clean-up of leftovers removes
+// only names writeTemp makes, in the folders an audit writes (the output
+// folder and each cases/<case> folder), and nothing below them.
+func TestCleanupOnlyTouchesItsOwnNames(t *testing.T) {
+	out := t.TempDir()
+	files := map[string]bool{ // name -> removed
+		tempPrefix + "summary.csv.4711.tmp":                true,
+		"cases/a/" + tempPrefix + "case.json.99.tmp":       true,
+		"cases/a/deeper/" + tempPrefix + "case.json.9.tmp": false, // not a folder the audit writes
+		"cases/a/" + tempPrefix + "notes.tmp":              false, // no random part
+		"cases/a/" + tempPrefix + "case.json.12x.tmp":      false,
+		"other/" + tempPrefix + "x.1.tmp":                  false,
+		"cases/a/report.png":                               false,
+	}
+	for name := range files {
+		writeFiles(t, out, map[string][]byte{name: []byte("x")})
+	}
+	if err := removeTemps(out, 0); err != nil {
+		t.Fatal(err)
+	}
+	for name, removed := range files {
+		_, err := os.Stat(filepath.Join(out, filepath.FromSlash(name)))
+		if removed != os.IsNotExist(err) {
+			t.Errorf("%s: removed %v, want %v", name, os.IsNotExist(err), removed)
+		}
+	}
+}
+
+// TestRunsShareAFolderOnlyAsShards: while a shard holds the output folder,
+// a whole run into it is refused and the shard's live temporary file
+// stays; another shard may run, but removes no temporary file; once the
+// shard has finished, a whole run cleans the leftovers.
+func TestRunsShareAFolderOnlyAsShards(t *testing.T) {
+	root := makeCases(t, t.TempDir(), 4)
+	out := filepath.Join(t.TempDir(), "out")
+	if err := os.MkdirAll(filepath.Join(out, "cases", "x"), 0o755); err != nil {
+		t.Fatal(err)
+	}
+	live := filepath.Join(out, "cases", "x", tempPrefix+"case.json.77.tmp")
+	writeFiles(t, out, map[string][]byte{"cases/x/" + tempPrefix + "case.json.77.tmp": []byte("being written")})
+
+	release, alone, err := lockOutDir(out, out, true) // a shard in progress
+	if err != nil || !alone {
+		t.Fatalf("first shard: alone %v, %v", alone, err)
+	}
+	whole := Config{Inputs: []string{root}, OutDir: out, Workers: 1, Analyzer: newFileCounter().analyze}
+	_, err = Run(context.Background(), whole)
+	var ue *UsageError
+	if !errors.As(err, &ue) || !strings.Contains(err.Error(), "in use by another audit run") {
+		t.Errorf("whole run beside a shard: %v, want it refused", err)
+	}
+	shard := whole
+	shard.Shard = Shard{Index: 2, Count: 2}
+	if _, err := Run(context.Background(), shard); err != nil {
+		t.Errorf("second shard: %v", err)
+	}
+	if _, err := os.Stat(live); err != nil {
+		t.Errorf("the live temporary file of the running shard was removed: %v", err)
+	}
+	release()
+	if _, err := Run(context.Background(), whole); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := os.Stat(live); !os.IsNotExist(err) {
+		t.Errorf("a leftover of a finished run was kept by a run alone in the folder: %v", err)
+	}
+	// And the other way round: a shard is refused while a whole run holds
+	// the folder.
+	release, _, err = lockOutDir(out, out, false)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer release()
+	if _, err := Run(context.Background(), shard); err == nil || !strings.Contains(err.Error(), "in use by a whole audit run") {
+		t.Errorf("shard beside a whole run: %v, want it refused", err)
+	}
+}
+
+// TestDiscoveryListsSpecialFiles: a FIFO (no writer) and a dangling link
+// in a case are listed as skipped with their reason, and discovery does
+// not block on the FIFO.
+func TestDiscoveryListsSpecialFiles(t *testing.T) {
+	root := makeCases(t, t.TempDir(), 1)
+	c := filepath.Join(root, "case-000")
+	if err := syscall.Mkfifo(filepath.Join(c, "pipe"), 0o644); err != nil {
+		t.Skipf("cannot make a FIFO here: %v", err)
+	}
+	if err := os.Symlink(filepath.Join(c, "gone"), filepath.Join(c, "link")); err != nil {
+		t.Fatal(err)
+	}
+	cases, _, err := Discover([]string{c})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(cases) != 1 {
+		t.Fatalf("%d cases", len(cases))
+	}
+	got := strings.Join(cases[0].Skipped, "\n")
+	for _, want := range []string{"pipe: a named pipe (FIFO)", "link: dangling symbolic link"} {
+		if !strings.Contains(got, want) {
+			t.Errorf("skipped %q, want %q", got, want)
+		}
+	}
+	if ok, err := IsDICOMFile(filepath.Join(c, "pipe")); ok || err == nil {
+		t.Errorf("IsDICOMFile on a FIFO: %v, %v", ok, err)
+	}
+}
