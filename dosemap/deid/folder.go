@@ -12,6 +12,7 @@ import (
 
 	"github.com/suyashkumar/dicom"
 
+	"dosecover/dosemap/dicomio"
 	"dosecover/dosemap/safefile"
 )
 
@@ -33,34 +34,31 @@ type Result struct {
 	ShiftDays int // applied offset in DatesShift mode
 }
 
-// parse reads the file at path, turning a panic of the DICOM library on a
-// malformed file into an error wrapping errParserFailed.
-func parse(path string, skipPixels bool) (ds dicom.Dataset, err error) {
-	defer func() {
-		if r := recover(); r != nil {
-			err = errParserFailed // the panic's text means nothing to the user
-		}
-	}()
-	opts := []dicom.ParseOption{dicom.SkipProcessingPixelDataValue()}
-	if skipPixels {
-		opts = []dicom.ParseOption{dicom.SkipPixelData()}
-	}
-	return dicom.ParseFile(path, nil, opts...)
+// parse reads the file at path through dicomio.ParseFile, the guarded
+// entry point every part of dosecover shares: only regular files, lengths
+// and nesting checked before the DICOM library sees the data, pixel data
+// read only when asked for (and refused when far larger than the image
+// needs), the library's panics turned into errors.
+func parse(path string, skipPixels bool) (dicom.Dataset, error) {
+	return dicomio.ParseFile(path, !skipPixels)
 }
 
 // File de-identifies the DICOM file src into dst (written atomically).
 // The pixel data are copied byte for byte.
 func (d *Deidentifier) File(src, dst string) error {
+	return safefile.WriteFile(dst, func(w io.Writer) error { return d.copyFile(src, w) })
+}
+
+// copyFile writes the de-identified data set of the file src to w.
+func (d *Deidentifier) copyFile(src string, w io.Writer) error {
 	ds, err := parse(src, false)
 	if err != nil {
-		return fmt.Errorf("reading %s: %s", src, unreadable(src, err))
+		return fmt.Errorf("reading %s: %s", src, err)
 	}
 	if err := d.Dataset(&ds); err != nil {
 		return fmt.Errorf("de-identifying %s: %w", src, err)
 	}
-	return safefile.WriteFile(dst, func(w io.Writer) error {
-		return dicom.Write(w, ds, dicom.SkipVRVerification(), dicom.SkipValueTypeVerification(), dicom.DefaultMissingTransferSyntax())
-	})
+	return dicom.Write(w, ds, dicom.SkipVRVerification(), dicom.SkipValueTypeVerification(), dicom.DefaultMissingTransferSyntax())
 }
 
 // Folder writes a de-identified copy of every DICOM file under srcDir into
@@ -103,6 +101,8 @@ func Folder(ctx context.Context, srcDir, dstDir string, opt Options, progress fu
 			paths = append(paths, p)
 		case e.Type()&fs.ModeSymlink != 0:
 			links = append(links, Skipped{Path: p, Reason: "symbolic link, not followed"})
+		case !e.IsDir():
+			links = append(links, Skipped{Path: p, Reason: dicomio.SpecialFileReason(e.Type())})
 		}
 		return nil
 	})
@@ -125,7 +125,7 @@ func Folder(ctx context.Context, srcDir, dstDir string, opt Options, progress fu
 		}
 		ds, err := parse(p, true)
 		if err != nil {
-			res.Skipped = append(res.Skipped, Skipped{Path: p, Reason: unreadable(p, err)})
+			res.Skipped = append(res.Skipped, Skipped{Path: p, Reason: err.Error()})
 			continue
 		}
 		d.Collect(&ds)

@@ -217,7 +217,7 @@ func readFile(path string, pixels bool) (fi *fileInfo, err error) {
 	if fsize > maxPooledFile {
 		// A large file is read only up to its pixel data, whatever it
 		// declares; the frames used are read later by loadPixels.
-		data, pixPos, pixLen, err := readHead(f, fsize)
+		data, pixPos, pixLen, err := readHead(f, fsize, false)
 		if errors.Is(err, errNotDICOM) {
 			return nil, skip("not a DICOM file (no DICM marker and no DICOM element at the start)")
 		}
@@ -555,7 +555,7 @@ func (fi *fileInfo) fill(es elems, pixels bool) error {
 		return skip("truncated or corrupt: PixelData (7fe0,0010) holds %d bytes, %d×%d×%d frames of %d bits need %d",
 			declared, fi.Cols, fi.Rows, nf, fi.BitsAllocated, need)
 	}
-	if declared > 2*int64(need)+1<<20 {
+	if pixelDataTooLong(declared, int64(need)) {
 		// Rows × Columns × frames × bits say how large the pixel data
 		// are; a file declaring far more is not what it says it is.
 		return skip("implausible pixel data: PixelData (7fe0,0010) declares %d bytes but %d×%d×%d frames of %d bits need %d; not read",

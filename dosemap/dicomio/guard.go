@@ -146,7 +146,11 @@ func SniffFile(path string) (bool, error) {
 // that a parser reads an empty value), and pixPos and pixLen say where the
 // value lies in the file and how long it is declared. A file without
 // top-level native pixel data is returned whole (pixPos 0).
-func readHead(f caseFile, size int64) (data []byte, pixPos, pixLen int, err error) {
+//
+// Encapsulated (compressed) top-level pixel data end the read with a
+// "unsupported compression" skip, or, with keepEncapsulated, give the
+// head up to that element's header and pixPos -1.
+func readHead(f caseFile, size int64, keepEncapsulated bool) (data []byte, pixPos, pixLen int, err error) {
 	n := int(min(size, 1<<20))
 	for {
 		if cap(data) < n {
@@ -165,6 +169,8 @@ func readHead(f caseFile, size int64) (data []byte, pixPos, pixLen int, err erro
 		w := &walker{data: data, explicit: true, bo: binary.LittleEndian, stopAtPixels: true}
 		werr := w.run(walkStart(data))
 		switch {
+		case errors.Is(werr, errStopped) && w.encapsulated && keepEncapsulated:
+			return data[:w.pixelHdr], -1, 0, nil
 		case errors.Is(werr, errStopped) && w.encapsulated:
 			return nil, 0, 0, skip("unsupported compression: %s (encapsulated pixel data)", syntaxName(w.syntax))
 		case errors.Is(werr, errStopped):
@@ -235,41 +241,60 @@ func ParseFile(path string, pixels bool) (dicom.Dataset, error) {
 	if size == 0 {
 		return dicom.Dataset{}, errors.New("empty file")
 	}
-	data, pixPos, pixLen, err := readHead(f, size)
+	data, pixPos, pixLen, err := readHead(f, size, true)
 	if errors.Is(err, errNotDICOM) {
 		return dicom.Dataset{}, errors.New("not a DICOM file (no DICM marker and no DICOM element at the start)")
 	}
 	if err != nil {
 		return dicom.Dataset{}, errors.New(trimSkip(err))
 	}
-	if pixels && pixPos > 0 {
-		// The head is parsed first to learn how many bytes the pixel
-		// data may take; only then is the rest read.
-		ds, err := parseGuarded(data)
-		if err != nil {
-			return dicom.Dataset{}, err
+	if pixPos == 0 {
+		return parseGuarded(data)
+	}
+	if pixPos < 0 {
+		// Encapsulated pixel data: without pixels the data set ends
+		// before them; with pixels the file is read whole (its fragments
+		// are walked before they are parsed).
+		if !pixels {
+			return parseGuarded(data)
 		}
-		need, err := pixelBytesNeeded(elems(ds.Elements))
-		if err != nil {
-			return dicom.Dataset{}, err
+		return readWhole(f, size)
+	}
+	// The head is parsed first to learn how many bytes the pixel data may
+	// take; only then is the rest read.
+	ds, err := parseGuarded(data)
+	if err != nil {
+		return dicom.Dataset{}, err
+	}
+	// Without usable image attributes the pixel data may take 1 MiB.
+	need, nerr := pixelBytesNeeded(elems(ds.Elements))
+	if pixelDataTooLong(int64(pixLen), need) {
+		if nerr != nil {
+			return dicom.Dataset{}, fmt.Errorf("implausible pixel data: PixelData (7fe0,0010) declares %d bytes with %v; not read", pixLen, nerr)
 		}
-		if int64(pixLen) > need+1 {
-			return dicom.Dataset{}, fmt.Errorf("PixelData (7fe0,0010) declares %d bytes but its Rows, Columns, NumberOfFrames and BitsAllocated need %d: not read", pixLen, need)
-		}
+		return dicom.Dataset{}, fmt.Errorf("implausible pixel data: PixelData (7fe0,0010) declares %d bytes but its Rows, Columns, NumberOfFrames, SamplesPerPixel and BitsAllocated need %d; not read", pixLen, need)
+	}
+	if pixels {
 		if int64(pixPos)+int64(pixLen) > size {
 			return dicom.Dataset{}, fmt.Errorf("truncated: PixelData (7fe0,0010) declares %d bytes but the file ends %d bytes after its start", pixLen, size-int64(pixPos))
 		}
-		end := min(size, maxWholeFile+1)
-		if end > maxWholeFile {
-			return dicom.Dataset{}, fmt.Errorf("file of %d bytes: files over %d MB are not read", size, maxWholeFile>>20)
-		}
-		whole := make([]byte, end)
-		if _, err := f.ReadAt(whole, 0); err != nil && err != io.EOF {
-			return dicom.Dataset{}, errors.New(safefile.Reason(err))
-		}
-		data = whole
+		return readWhole(f, size)
 	}
-	return parseGuarded(data)
+	return ds, nil
+}
+
+// readWhole reads and parses (parseGuarded) all of f, of size bytes; files
+// over maxWholeFile are refused.
+func readWhole(f caseFile, size int64) (dicom.Dataset, error) {
+	if size > maxWholeFile {
+		return dicom.Dataset{}, fmt.Errorf("file of %d bytes: files over %d MB are not read whole", size, maxWholeFile>>20)
+	}
+	whole := make([]byte, size)
+	n, err := f.ReadAt(whole, 0)
+	if err != nil && err != io.EOF {
+		return dicom.Dataset{}, errors.New(safefile.Reason(err))
+	}
+	return parseGuarded(whole[:n])
 }
 
 // trimSkip returns the reason of a skip error, or the error's text.
@@ -339,3 +364,9 @@ func pixelBytesNeeded(es elems) (int64, error) {
 	}
 	return (int64(rows)*int64(cols)*int64(nf)*int64(spp)*int64(bits) + 7) / 8, nil
 }
+
+// pixelDataTooLong reports whether native pixel data of declared bytes are
+// far more than the need bytes Rows × Columns × frames × bits call for:
+// more than twice as many plus 1 MiB (room for padding and writers that
+// add a little). Such a file is named and skipped, never read whole.
+func pixelDataTooLong(declared, need int64) bool { return declared > 2*need+1<<20 }
