@@ -9,6 +9,7 @@ import (
 	"math"
 	"regexp"
 	"slices"
+	"strconv"
 	"strings"
 	"sync"
 	"time"
@@ -126,6 +127,7 @@ type frameMeta struct {
 	Intercept   float64
 	RWV         []rwv
 	TE          float64 // s; 0 unknown
+	badTE       float64 // an EffectiveEchoTime (ms) out of range, for the message
 }
 
 // fileInfo is the result of reading one file.
@@ -482,14 +484,23 @@ func (fi *fileInfo) fill(es elems, pixels bool) error {
 		StudyDate:   es.str(tag.StudyDate),
 		Institution: es.str(tag.InstitutionName),
 	}
-	if b0, ok := es.float(tag.MagneticFieldStrength); ok && b0 > 0 {
+	if b0, ok := es.float(tag.MagneticFieldStrength); ok && b0 != 0 {
+		if err := plausible(tag.MagneticFieldStrength, b0, "T", minB0, maxB0); err != nil {
+			return err
+		}
 		fi.B0 = b0
 	}
-	if te, ok := es.float(tag.EchoTime); ok && te > 0 {
+	if te, ok := es.float(tag.EchoTime); ok && te != 0 {
+		if err := plausible(tag.EchoTime, te, "ms", minTEms, maxTEms); err != nil {
+			return err
+		}
 		fi.TE = te / 1000
 	}
 	fi.WindowCenter, _ = es.float(tag.WindowCenter)
 	fi.WindowWidth, _ = es.float(tag.WindowWidth)
+	if !finite(fi.WindowCenter) || !finite(fi.WindowWidth) {
+		fi.WindowCenter, fi.WindowWidth = 0, 0 // display only: the image's own range is used
+	}
 
 	if fi.Modality == "RTSTRUCT" || fi.SOPClass == sopRTStructureSet {
 		ss, err := parseStructureSet(es)
@@ -522,13 +533,21 @@ func (fi *fileInfo) fill(es elems, pixels bool) error {
 	default:
 		return skip("unsupported BitsAllocated %d (8, 16 or 32 are read)", fi.BitsAllocated)
 	}
-	if fi.BitsStored, ok = es.int(tag.BitsStored); !ok || fi.BitsStored <= 0 || fi.BitsStored > fi.BitsAllocated {
+	if fi.BitsStored, ok = es.int(tag.BitsStored); !ok {
 		fi.BitsStored = fi.BitsAllocated
+	} else if fi.BitsStored < minBitsStored || fi.BitsStored > fi.BitsAllocated {
+		// PS3.3 C.7.6.3.1: BitsStored <= BitsAllocated; MR magnitude and
+		// phase images store 12 or 16 bits (common practice), so a
+		// handful of bits would turn the image into a few levels.
+		return skip("implausible %s %d: want %d to BitsAllocated (%d) for MR thermometry and anatomy", tagName(tag.BitsStored), fi.BitsStored, minBitsStored, fi.BitsAllocated)
 	}
 	if fi.HighBit, ok = es.int(tag.HighBit); !ok || fi.HighBit < fi.BitsStored-1 || fi.HighBit >= fi.BitsAllocated {
 		fi.HighBit = fi.BitsStored - 1
 	}
-	fi.PixelRep, _ = es.int(tag.PixelRepresentation)
+	if fi.PixelRep, ok = es.int(tag.PixelRepresentation); ok && fi.PixelRep != 0 && fi.PixelRep != 1 {
+		// PS3.3 C.7.6.3.1: 0000H unsigned, 0001H two's complement.
+		return skip("invalid %s %d: the standard allows 0 (unsigned) or 1 (two's complement)", tagName(tag.PixelRepresentation), fi.PixelRep)
+	}
 	if fi.Samples, ok = es.int(tag.SamplesPerPixel); !ok {
 		fi.Samples = 1
 	}
@@ -655,8 +674,13 @@ func readGroups(g elems, f *frameMeta) {
 		f.RWV = r
 	}
 	if it := g.first(tagMREchoSequence); it != nil {
-		if v, ok := it.float(tagEffectiveEchoTime); ok && v > 0 {
-			f.TE = v / 1000
+		if v, ok := it.float(tagEffectiveEchoTime); ok && v != 0 {
+			if plausible(tagEffectiveEchoTime, v, "ms", minTEms, maxTEms) == nil {
+				f.TE = v / 1000
+			} else {
+				f.TE = math.NaN() // refused by checkPlanes, naming the value
+				f.badTE = v
+			}
 		}
 	}
 }
@@ -680,7 +704,7 @@ func readFrameAttrs(es elems, f *frameMeta) {
 	}
 	f.Intercept, _ = es.float(tag.RescaleIntercept)
 	f.RWV = readRWV(es)
-	if te, ok := es.float(tag.EchoTime); ok && te > 0 {
+	if te, ok := es.float(tag.EchoTime); ok && te > 0 && plausible(tag.EchoTime, te, "ms", minTEms, maxTEms) == nil {
 		f.TE = te / 1000
 	}
 }
@@ -763,4 +787,38 @@ func frameTimeOf(es elems) clockTime {
 		return clockTime{Day: date, Sec: s, OK: true}
 	}
 	return clockTime{Day: -1}
+}
+
+// Ranges of the values dosecover refuses outside of, with their sources.
+const (
+	// MagneticFieldStrength (0018,0087), T: clinical MR runs at 0.2 to
+	// 7 T and research magnets reach 21.1 T (from memory); 25 T leaves
+	// room without letting a corrupt value through.
+	minB0, maxB0 = 0.01, 25.0
+	// EchoTime (0018,0081), ms: PRF thermometry uses gradient echoes of
+	// about 5 to 30 ms (common practice); 0.05 to 1000 ms takes every MR
+	// sequence while refusing values that would make the PRF factor
+	// 1/(γ·α·B0·TE) blow up or vanish.
+	minTEms, maxTEms = 0.05, 1000.0
+	// BitsStored (0028,0101): 8 at least (common practice for MR).
+	minBitsStored = 8
+	// maxPositionMM bounds ImagePositionPatient and contour coordinates:
+	// 10 m from the scanner's origin is outside any patient (common
+	// practice).
+	maxPositionMM = 1e4
+	// maxSpacingMM bounds PixelSpacing and SliceThickness (a 1 m pixel
+	// is no MR image; common practice).
+	maxSpacingMM = 1e3
+)
+
+// finite reports whether v is neither NaN nor infinite.
+func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
+
+// plausible refuses v of attribute t outside [lo, hi] (or not finite),
+// naming the attribute, the value and the range.
+func plausible(t tag.Tag, v float64, unit string, lo, hi float64) error {
+	if finite(v) && v >= lo && v <= hi {
+		return nil
+	}
+	return skip("implausible %s %s %s: want %g to %g %s", tagName(t), strconv.FormatFloat(v, 'g', -1, 64), unit, lo, hi, unit)
 }

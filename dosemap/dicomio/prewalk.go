@@ -188,6 +188,11 @@ func (w *walker) readHeader(pos, end int) (valPos int, t tag.Tag, vr string, vl 
 		valPos = pos + 8
 	case explicit:
 		vr = string(w.data[pos+4 : pos+6])
+		if !dicomVRs[vr] {
+			// PS3.5 6.2 lists every VR; a reader guessing the length of
+			// an unknown one would misread everything after it.
+			return 0, t, vr, 0, fmt.Errorf("%s at byte %d has the unknown value representation %q", tagName(t), pos, vr)
+		}
 		if longVR[vr] {
 			if pos+12 > end {
 				return 0, t, vr, 0, fmt.Errorf("header of %s cut short", tagName(t))
