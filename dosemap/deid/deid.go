@@ -310,10 +310,7 @@ func (d *Deidentifier) Collect(ds *dicom.Dataset) {
 			return
 		}
 		for _, s := range stringsOf(e) {
-			d.addToken(s)
-			for _, part := range strings.FieldsFunc(s, func(r rune) bool { return r == '^' || r == '=' || r == ' ' || r == ',' }) {
-				d.addToken(part)
-			}
+			d.addValue(s)
 		}
 	})
 }
@@ -365,6 +362,29 @@ func setStrings(e *dicom.Element, s []string) error {
 	e.Value = v
 	e.ValueLength = 0
 	return nil
+}
+
+// Blank returns s with every identifying value of values blanked out by
+// "X" characters of the same length: each value whole and each of its
+// parts (split at "^", "=", spaces and commas, as person names are) of 3
+// bytes or more, in any ASCII case. Bytes are compared as they are, so
+// text that is not valid UTF-8 (Latin-1 names without a character set) is
+// handled too. It is the cleaning the de-identified copies get, for text
+// that dosecover writes itself (reports, tables, messages).
+func Blank(s string, values ...string) string {
+	d := &Deidentifier{tokens: map[string]bool{}}
+	for _, v := range values {
+		d.addValue(v)
+	}
+	return d.clean(s)
+}
+
+// addValue records v and its parts as identifying tokens.
+func (d *Deidentifier) addValue(v string) {
+	d.addToken(v)
+	for _, part := range strings.FieldsFunc(v, func(r rune) bool { return r == '^' || r == '=' || r == ' ' || r == ',' }) {
+		d.addToken(part)
+	}
 }
 
 // clean replaces every identifying token in s by "X" characters of the
