@@ -4,8 +4,10 @@ import (
 	"context"
 	"encoding/json"
 	"fmt"
+	"hash/fnv"
 	"io"
 	"os"
+	"path"
 	"path/filepath"
 	"runtime"
 	"runtime/debug"
@@ -372,6 +374,14 @@ func (w *worker) do(ctx context.Context, c *Case) Row {
 		if ctx.Err() != nil {
 			return Row{}
 		}
+		if w.cfg.Deidentify {
+			// No input hash for a pseudonym: one from the case's name,
+			// which does not show the name.
+			h := fnv.New64a()
+			h.Write([]byte(c.Name))
+			c.ID = fmt.Sprintf("case-unread-%012x", h.Sum64()&(1<<48-1))
+			c.Name = ""
+		}
 		return w.finish(c, "", nil, err, 0)
 	}
 	c.InputSHA256 = hash
@@ -418,7 +428,7 @@ func (w *worker) finish(c *Case, hash string, res *CaseResult, aerr error, secs 
 		rec.Analysis = res.Analysis
 	}
 	if w.cfg.Deidentify && rec.Reason != "" {
-		rec.Reason = strings.ReplaceAll(rec.Reason, c.Dir, c.ID)
+		rec.Reason = hidePaths(rec.Reason, c)
 	}
 	dir := filepath.Join(w.outDir, "cases", c.ID)
 	recPath := filepath.Join(dir, RecordFile)
@@ -594,4 +604,40 @@ func LoadRows(outDir string) (rows []Row, problems []string, err error) {
 	}
 	sort.Slice(rows, func(a, b int) bool { return rows[a].Case < rows[b].Case })
 	return rows, problems, nil
+}
+
+// hidePaths returns s with the paths of case c, whose folder and file
+// names may carry the patient's name, replaced: the case folder by the
+// case ID, each file's path inside it (and, where it stands alone, its
+// name of 5 characters or more) by "file N" (N its place in c.Files), each
+// subfolder by "a folder of the case".
+func hidePaths(s string, c *Case) string {
+	s = strings.ReplaceAll(s, c.Dir, c.ID)
+	type sub struct{ from, to string }
+	var subs []sub
+	folders := map[string]bool{}
+	for n, f := range c.Files {
+		to := fmt.Sprintf("file %d", n+1)
+		subs = append(subs, sub{f, to}, sub{filepath.FromSlash(f), to})
+		if base := path.Base(f); len(base) >= 5 {
+			subs = append(subs, sub{base, to})
+		}
+		for d := path.Dir(f); d != "." && d != "/"; d = path.Dir(d) {
+			folders[d] = true
+		}
+	}
+	for d := range folders {
+		subs = append(subs, sub{d, "a folder of the case"}, sub{filepath.FromSlash(d), "a folder of the case"})
+	}
+	if c.Name != "" {
+		subs = append(subs, sub{c.Name, c.ID})
+	}
+	// Longest first, so that a path goes before its parts.
+	sort.SliceStable(subs, func(a, b int) bool { return len(subs[a].from) > len(subs[b].from) })
+	for _, x := range subs {
+		if x.from != "" {
+			s = strings.ReplaceAll(s, x.from, x.to)
+		}
+	}
+	return s
 }

@@ -146,3 +146,46 @@ func TestDiscoveryListsSpecialFiles(t *testing.T) {
 		t.Errorf("IsDICOMFile on a FIFO: %v, %v", ok, err)
 	}
 }
+
+// TestDeidentifiedFailureHidesPaths: in a de-identified audit, a case whose
+// folder and file names carry the patient's name fails; its reason in
+// case.json, summary.csv and errors.csv names the file by its number, not
+// by its path.
+func TestDeidentifiedFailureHidesPaths(t *testing.T) {
+	root := t.TempDir()
+	writeFiles(t, root, map[string][]byte{
+		"Doe_Jane/series_DOE/IM_DOE_JANE_001.dcm": fakeDICOM("image"),
+		"Doe_Jane/series_DOE/FAIL":                fakeDICOM("marker"),
+	})
+	out := filepath.Join(t.TempDir(), "out")
+	cfg := Config{Inputs: []string{filepath.Join(root, "Doe_Jane")}, OutDir: out, Workers: 1, Deidentify: true, Analyzer: newFileCounter().analyze}
+	sum, err := Run(context.Background(), cfg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(sum.Rows) != 1 || sum.Rows[0].Status != StatusFailed {
+		t.Fatalf("rows %+v: want one failed case", sum.Rows)
+	}
+	if !strings.Contains(sum.Rows[0].Reason, "reading case-") || !strings.Contains(sum.Rows[0].Reason, "file 1") {
+		t.Errorf("reason %q: want the case ID and the file's number", sum.Rows[0].Reason)
+	}
+	err = filepath.WalkDir(out, func(p string, d os.DirEntry, err error) error {
+		if err != nil || d.IsDir() {
+			return err
+		}
+		if strings.Contains(strings.ToUpper(p), "DOE") {
+			t.Errorf("output path %s carries the name", p)
+		}
+		b, err := os.ReadFile(p)
+		if err != nil {
+			return err
+		}
+		if strings.Contains(strings.ToUpper(string(b)), "DOE") || strings.Contains(strings.ToUpper(string(b)), "JANE") {
+			t.Errorf("%s carries the name:\n%s", p, b)
+		}
+		return nil
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+}
