@@ -1,6 +1,7 @@
 package deid
 
 import (
+	"bytes"
 	"context"
 	"errors"
 	"fmt"
@@ -24,6 +25,10 @@ type FileResult struct {
 // Skipped is a file of the input folder that was not copied, and why.
 type Skipped struct {
 	Path, Reason string
+	// Shown is Path relative to the input folder with the identifying
+	// values found in the case blanked out (folder and file names may
+	// carry the patient's name): what a de-identified listing shows.
+	Shown string
 }
 
 // Result summarises a folder de-identification.
@@ -58,7 +63,17 @@ func (d *Deidentifier) copyFile(src string, w io.Writer) error {
 	if err := d.Dataset(&ds); err != nil {
 		return fmt.Errorf("de-identifying %s: %w", src, err)
 	}
-	return dicom.Write(w, ds, dicom.SkipVRVerification(), dicom.SkipValueTypeVerification(), dicom.DefaultMissingTransferSyntax())
+	var buf bytes.Buffer
+	if err := dicom.Write(&buf, ds, dicom.SkipVRVerification(), dicom.SkipValueTypeVerification(), dicom.DefaultMissingTransferSyntax()); err != nil {
+		return fmt.Errorf("writing the copy of %s: %w", src, err)
+	}
+	// A malformed source can come out of the DICOM library's writer as
+	// a file that does not read again: such a copy is refused.
+	if _, err := dicomio.ParseBytes(buf.Bytes()); err != nil {
+		return fmt.Errorf("de-identifying %s: the copy does not read back (%v); the file is malformed", src, err)
+	}
+	_, err = w.Write(buf.Bytes())
+	return err
 }
 
 // Folder writes a de-identified copy of every DICOM file under srcDir into
@@ -133,6 +148,13 @@ func Folder(ctx context.Context, srcDir, dstDir string, opt Options, progress fu
 	}
 	if len(dicoms) == 0 {
 		return nil, fmt.Errorf("no DICOM file found in %s", srcDir)
+	}
+	for n, sk := range res.Skipped {
+		rel, err := filepath.Rel(srcDir, sk.Path)
+		if err != nil {
+			rel = filepath.Base(sk.Path)
+		}
+		res.Skipped[n].Shown = d.clean(rel)
 	}
 	// Write into a temporary folder beside dstDir and rename it into place
 	// at the end, so a failed or cancelled run leaves no partial copy.

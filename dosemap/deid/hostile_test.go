@@ -220,3 +220,23 @@ func TestLegacyDates(t *testing.T) {
 		t.Errorf("unreadable acquisition date kept as %q, want it emptied", v)
 	}
 }
+
+// TestSkippedNamesAreBlanked: the listing of files not copied shows their
+// paths inside the case with the patient's name blanked out.
+func TestSkippedNamesAreBlanked(t *testing.T) {
+	src := t.TempDir()
+	writeMR(t, filepath.Join(src, "good.dcm"), make([]byte, 8)) // PatientName TESTPERSON^INVENTED
+	if err := os.MkdirAll(filepath.Join(src, "TESTPERSON"), 0o755); err != nil {
+		t.Fatal(err)
+	}
+	if err := os.WriteFile(filepath.Join(src, "TESTPERSON", "notes_invented.txt"), []byte("x"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	res, err := Folder(context.Background(), src, filepath.Join(t.TempDir(), "out"), Options{Salt: "s"}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(res.Skipped) != 1 || res.Skipped[0].Shown != filepath.Join("XXXXXXXXXX", "notes_XXXXXXXX.txt") {
+		t.Errorf("skipped %+v: want the name blanked in Shown", res.Skipped)
+	}
+}

@@ -306,6 +306,18 @@ func trimSkip(err error) string {
 	return safefile.Reason(err)
 }
 
+// ParseBytes is ParseFile for a whole file already in memory (with its
+// pixel data, which are not size-checked here: the caller holds them).
+func ParseBytes(data []byte) (dicom.Dataset, error) {
+	if len(data) == 0 {
+		return dicom.Dataset{}, errors.New("empty file")
+	}
+	if !IsDICOM(data[:min(len(data), 132)]) {
+		return dicom.Dataset{}, errors.New("not a DICOM file (no DICM marker and no DICOM element at the start)")
+	}
+	return parseGuarded(data)
+}
+
 // parseGuarded walks data (lengths, nesting, transfer syntax) and then
 // parses it with the DICOM library, its panics recovered.
 func parseGuarded(data []byte) (dicom.Dataset, error) {
