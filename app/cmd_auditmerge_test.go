@@ -31,11 +31,19 @@ var (
 
 // mergeCaseCount simulated cases (sim.WriteCases, seed 7): small, so that
 // the tests stay well under a minute on two shared cores; both shards of
-// two hold at least one of them (checked).
+// two hold at least one of them (checked). A further case holds a damaged
+// DICOM file, so every audit of the registry lists one failed case.
 const mergeCaseCount = 4
 
+// mergeCounts tells whether out (an audit's or a merge's standard output)
+// counts the cases of the registry: all analysed but the damaged one.
+func mergeCounts(out string) bool {
+	return strings.Contains(out, fmt.Sprintf("%d cases: %d analysed (", mergeCaseCount+1, mergeCaseCount)) &&
+		strings.Contains(out, "run), 0 incomplete, 1 failed")
+}
+
 // auditReference returns the simulated registry and the output folder of
-// its whole audit (default settings, exit code 0 expected).
+// its whole audit (default settings; exit code 1 for the failed case).
 func auditReference(t *testing.T) (in, whole string) {
 	t.Helper()
 	if testing.Short() {
@@ -54,6 +62,16 @@ func auditReference(t *testing.T) (in, whole string) {
 			mergeRefErr = err.Error()
 			return
 		}
+		// A file that is DICOM by its preamble but holds no data elements.
+		broken := filepath.Join(in, "case-broken")
+		if err := os.Mkdir(broken, 0o755); err != nil {
+			mergeRefErr = err.Error()
+			return
+		}
+		if err := os.WriteFile(filepath.Join(broken, "IM1.dcm"), append(make([]byte, 128), "DICM\x02\x00"...), 0o644); err != nil {
+			mergeRefErr = err.Error()
+			return
+		}
 		for i := 1; i <= 2; i++ {
 			n := 0
 			for k := 1; k <= mergeCaseCount; k++ {
@@ -68,8 +86,8 @@ func auditReference(t *testing.T) (in, whole string) {
 		}
 		whole := filepath.Join(root, "whole")
 		var so, se bytes.Buffer
-		if code := run([]string{"audit", in, "-o", whole, "--workers", "2"}, &so, &se); code != 0 {
-			mergeRefErr = fmt.Sprintf("whole audit: exit %d: %s", code, se.String())
+		if code := run([]string{"audit", in, "-o", whole, "--workers", "2"}, &so, &se); code != 1 || !mergeCounts(so.String()) {
+			mergeRefErr = fmt.Sprintf("whole audit: exit %d, %s%s; want 1 and one failed case", code, so.String(), se.String())
 			return
 		}
 		mergeRefIn, mergeRefWhole = in, whole
@@ -134,8 +152,8 @@ func readTable(t *testing.T, path string) [][]string {
 func sameSummaries(t *testing.T, whole, merged string) {
 	t.Helper()
 	a, b := readTable(t, filepath.Join(whole, "summary.csv")), readTable(t, filepath.Join(merged, "summary.csv"))
-	if len(a) != mergeCaseCount+1 || len(b) != len(a) {
-		t.Fatalf("summary.csv: merged %d lines, whole audit %d; want %d", len(b), len(a), mergeCaseCount+1)
+	if len(a) != mergeCaseCount+2 || len(b) != len(a) {
+		t.Fatalf("summary.csv: merged %d lines, whole audit %d; want %d", len(b), len(a), mergeCaseCount+2)
 	}
 	for k := range a {
 		if strings.Join(a[k], ",") != strings.Join(b[k], ",") {
@@ -174,7 +192,7 @@ func TestAuditMergeAfterKilledShard(t *testing.T) {
 	in, whole := auditReference(t)
 	out := filepath.Join(t.TempDir(), "out")
 	var so, se bytes.Buffer
-	if code := run([]string{"audit", in, "-o", out, "--shard", "1/2", "--workers", "2"}, &so, &se); code != 0 {
+	if code := run([]string{"audit", in, "-o", out, "--shard", "1/2", "--workers", "2"}, &so, &se); code > 1 {
 		t.Fatalf("shard 1/2: exit %d: %s", code, se.String())
 	}
 	merge := func() (int, string, string) {
@@ -211,11 +229,11 @@ func TestAuditMergeAfterKilledShard(t *testing.T) {
 	}
 
 	se.Reset()
-	if code := run([]string{"audit", in, "-o", out, "--shard", "2/2", "--workers", "2", "--resume"}, &so, &se); code != 0 {
+	if code := run([]string{"audit", in, "-o", out, "--shard", "2/2", "--workers", "2", "--resume"}, &so, &se); code > 1 {
 		t.Fatalf("shard 2/2 run again: exit %d: %s", code, se.String())
 	}
 	code, stdout, msg := merge()
-	if code != 0 || !strings.Contains(stdout, "4 cases: 4 analysed") {
+	if code != 1 || !mergeCounts(stdout) {
 		t.Fatalf("merge after the rerun: exit %d, %q, %q", code, stdout, msg)
 	}
 	sameSummaries(t, whole, out)
