@@ -53,7 +53,7 @@ func needSlurm(t *testing.T) {
 	}
 	if len(missing) > 0 {
 		msg := fmt.Sprintf("%s not found: install the Debian packages slurm-wlm and munge (.ci/setup does)", strings.Join(missing, ", "))
-		if os.Getenv("CI") != "" {
+		if os.Getenv("CI") == "true" {
 			t.Fatal("CI must run the Slurm test: " + msg)
 		}
 		t.Skip("Slurm test skipped: " + msg)
@@ -258,7 +258,9 @@ func readTail(p string) string {
 // array, then the merge after them (--dependency=afterok). The reference
 // is a whole audit of the same cases on one machine: the merged
 // summary.csv must equal its table (timing columns aside), errors.csv and
-// summary.png its files byte for byte.
+// summary.png its files byte for byte. Then shard 2 is made to look killed:
+// the merge refuses it, and the script submitting shard 2 alone
+// (AUDIT_ARRAY=2) with a new merge completes the audit again.
 func TestAuditOnSlurm(t *testing.T) {
 	c := startSlurm(t)
 	in, whole := auditReference(t)
@@ -269,18 +271,7 @@ func TestAuditOnSlurm(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	sub := c.cmd("bash", script, in, out, "2")
-	sub.Dir = jobs
-	sub.Env = append(sub.Env, "PATH="+commandDir(t)+string(os.PathListSeparator)+os.Getenv("PATH"))
-	said, err := sub.CombinedOutput()
-	if err != nil {
-		t.Fatalf("submitting: %v\n%s", err, said)
-	}
-	m := regexp.MustCompile(`shards: job (\d+) .*merge: job (\d+)`).FindStringSubmatch(string(said))
-	if m == nil {
-		t.Fatalf("submitting: no job ids in %q", said)
-	}
-	shards, merge := m[1], m[2]
+	path := "PATH=" + commandDir(t) + string(os.PathListSeparator) + os.Getenv("PATH")
 	logs := func() string {
 		var b strings.Builder
 		q, _ := c.cmd("squeue", "-a").CombinedOutput()
@@ -292,45 +283,85 @@ func TestAuditOnSlurm(t *testing.T) {
 		b.WriteString(readTail(filepath.Join(c.dir, "slurm", "log", "slurmctld.log")))
 		return b.String()
 	}
-	waitFor(t, "the shards and the merge", 3*time.Minute, func() bool {
-		q, err := c.cmd("squeue", "-h", "-o", "%i").Output()
-		return err == nil && strings.TrimSpace(string(q)) == ""
-	}, logs)
-
-	// Both shard tasks end well, the one with the damaged case too (the
-	// script counts a finished shard as done); the merge then runs and,
-	// like the audit, exits 1 for the failed case.
-	for _, id := range []string{shards, merge} {
-		st, err := c.cmd("scontrol", "show", "job", id).CombinedOutput()
+	// submit runs the script, waits until the cluster is idle and checks
+	// that every shard task ended well, the one with the damaged case too
+	// (the script counts a finished shard as done), and that the merge
+	// ran and, like the audit, exited 1 for the failed case.
+	submit := func(tasks int, env ...string) {
+		t.Helper()
+		sub := c.cmd("bash", script, in, out, "2")
+		sub.Dir = jobs
+		sub.Env = append(append(sub.Env, path), env...)
+		said, err := sub.CombinedOutput()
 		if err != nil {
-			t.Fatalf("scontrol show job %s: %v\n%s", id, err, st)
+			t.Fatalf("submitting: %v\n%s", err, said)
 		}
-		states := regexp.MustCompile(`JobState=(\S+) .*\n(?:.*\n)*?\s*Requeue=.* ExitCode=(\S+)`).FindAllStringSubmatch(string(st), -1)
-		want, wantCode := "COMPLETED", "0:0"
-		if id == merge {
-			want, wantCode = "FAILED", "1:0"
+		m := regexp.MustCompile(`shards: job (\d+) .*merge: job (\d+)`).FindStringSubmatch(string(said))
+		if m == nil {
+			t.Fatalf("submitting: no job ids in %q", said)
 		}
-		if id == shards && len(states) != 2 || id == merge && len(states) != 1 {
-			t.Errorf("job %s: %d tasks:\n%s", id, len(states), st)
-		}
-		for _, s := range states {
-			if s[1] != want || s[2] != wantCode {
-				t.Errorf("job %s: state %s, exit code %s; want %s, %s\n%s", id, s[1], s[2], want, wantCode, logs())
+		shards, merge := m[1], m[2]
+		waitFor(t, "the shards and the merge", 3*time.Minute, func() bool {
+			q, err := c.cmd("squeue", "-h", "-o", "%i").Output()
+			return err == nil && strings.TrimSpace(string(q)) == ""
+		}, logs)
+		for _, id := range []string{shards, merge} {
+			st, err := c.cmd("scontrol", "show", "job", id).CombinedOutput()
+			if err != nil {
+				t.Fatalf("scontrol show job %s: %v\n%s", id, err, st)
+			}
+			states := regexp.MustCompile(`JobState=(\S+) .*\n(?:.*\n)*?\s*Requeue=.* ExitCode=(\S+)`).FindAllStringSubmatch(string(st), -1)
+			want, wantCode, n := "COMPLETED", "0:0", tasks
+			if id == merge {
+				want, wantCode, n = "FAILED", "1:0", 1
+			}
+			if len(states) != n {
+				t.Errorf("job %s: %d tasks, want %d:\n%s", id, len(states), n, st)
+			}
+			for _, s := range states {
+				if s[1] != want || s[2] != wantCode {
+					t.Errorf("job %s: state %s, exit code %s; want %s, %s\n%s", id, s[1], s[2], want, wantCode, logs())
+				}
 			}
 		}
-	}
-	mergeLog, err := os.ReadFile(filepath.Join(jobs, "dosecover-merge-"+merge+".log"))
-	if err != nil || !mergeCounts(string(mergeLog)) {
-		t.Errorf("merge log: %v\n%s", err, mergeLog)
-	}
-	t.Logf("merge job %s after shard array %s:\n%s", merge, shards, mergeLog)
-	for i := 1; i <= 2; i++ {
-		st, err := os.ReadFile(filepath.Join(out, fmt.Sprintf("shard-%d-of-2.json", i)))
-		if err != nil || !strings.Contains(string(st), `"state": "finished"`) {
-			t.Errorf("shard %d/2 state: %v\n%.300s", i, err, st)
+		mergeLog, err := os.ReadFile(filepath.Join(jobs, "dosecover-merge-"+merge+".log"))
+		if err != nil || !mergeCounts(string(mergeLog)) {
+			t.Errorf("merge log: %v\n%s", err, mergeLog)
 		}
+		t.Logf("merge job %s after shard array %s:\n%s", merge, shards, mergeLog)
+		for i := 1; i <= 2; i++ {
+			st, err := os.ReadFile(filepath.Join(out, fmt.Sprintf("shard-%d-of-2.json", i)))
+			if err != nil || !strings.Contains(string(st), `"state": "finished"`) {
+				t.Errorf("shard %d/2 state: %v\n%.300s", i, err, st)
+			}
+		}
+		sameSummaries(t, whole, out)
 	}
-	sameSummaries(t, whole, out)
+	submit(2)
+
+	// Shard 2 as a killed task leaves it: state running, its process gone.
+	gone := exec.Command("true")
+	if err := gone.Run(); err != nil {
+		t.Fatal(err)
+	}
+	statePath := filepath.Join(out, "shard-2-of-2.json")
+	st, err := os.ReadFile(statePath)
+	if err != nil {
+		t.Fatal(err)
+	}
+	killed := strings.Replace(string(st), `"state": "finished"`, `"state": "running"`, 1)
+	killed = regexp.MustCompile(`"pid": \d+,`).ReplaceAllString(killed, fmt.Sprintf(`"pid": %d,`, gone.Process.Pid))
+	if err := os.WriteFile(statePath, []byte(killed), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	for _, f := range []string{"summary.csv", "errors.csv", "summary.png"} {
+		os.Remove(filepath.Join(out, f))
+	}
+	var so, se bytes.Buffer
+	if code := run([]string{"audit", "merge", out}, &so, &se); code != 1 || !strings.Contains(se.String(), "shard 2/2 did not finish") {
+		t.Fatalf("merge with shard 2 killed: exit %d, %q; want 1 naming shard 2/2", code, se.String())
+	}
+	submit(1, "AUDIT_ARRAY=2")
 }
 
 // README shows the job script the Slurm test submits, verbatim (indented
