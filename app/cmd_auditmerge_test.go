@@ -5,6 +5,7 @@ package main
 import (
 	"bytes"
 	"encoding/csv"
+	"errors"
 	"fmt"
 	"os"
 	"os/exec"
@@ -258,4 +259,56 @@ func TestAuditMergeUsage(t *testing.T) {
 			t.Errorf("%v: exit %d, %q %q; want %d and %q", tc.args, code, so.String(), se.String(), tc.code, tc.want)
 		}
 	}
+}
+
+// README's loop over machines with ssh, run as written with an ssh that
+// runs the command here (as a remote shell would: the words joined by
+// spaces), four "machines" over the simulated registry: the merge at its
+// end must equal the whole audit.
+func TestAuditSSHLoopInREADME(t *testing.T) {
+	in, whole := auditReference(t)
+	readme, err := os.ReadFile("../README.md")
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, after, ok := strings.Cut(string(readme), "**With ssh instead of a scheduler.**")
+	if !ok {
+		t.Fatal("README has no paragraph **With ssh instead of a scheduler.**")
+	}
+	var script []string
+	for _, line := range strings.Split(after, "\n") {
+		code, isCode := strings.CutPrefix(line, "    ")
+		if !isCode && len(script) > 0 {
+			break // the end of the first code block
+		}
+		if isCode {
+			script = append(script, code)
+		}
+	}
+	if len(script) == 0 {
+		t.Fatal("README's ssh paragraph has no code block")
+	}
+	out := filepath.Join(t.TempDir(), "audit")
+	text := strings.NewReplacer("/data/registry", in, "/shared/audit-2026", out).Replace(strings.Join(script, "\n"))
+	if !strings.Contains(text, in) || !strings.Contains(text, "audit merge "+out) {
+		t.Fatalf("README's ssh loop does not use /data/registry and /shared/audit-2026 as expected:\n%s", text)
+	}
+	bin := commandDir(t)
+	if err := os.WriteFile(filepath.Join(bin, "ssh"), []byte("#!/bin/sh\nshift\nexec sh -c \"$*\"\n"), 0o755); err != nil {
+		t.Fatal(err)
+	}
+	cmd := exec.Command("bash", "-euo", "pipefail", "-c", text)
+	cmd.Dir = t.TempDir()
+	cmd.Env = append(os.Environ(), "PATH="+bin+string(os.PathListSeparator)+os.Getenv("PATH"))
+	said, err := cmd.CombinedOutput()
+	var ee *exec.ExitError
+	if !errors.As(err, &ee) || ee.ExitCode() != 1 || !mergeCounts(string(said)) {
+		t.Fatalf("README's ssh loop: %v; want the merge's exit code 1 for the damaged case\n%s", err, said)
+	}
+	for i := 1; i <= 4; i++ {
+		if _, err := os.Stat(filepath.Join(out, fmt.Sprintf("shard-%d-of-4.json", i))); err != nil {
+			t.Errorf("shard %d/4: %v", i, err)
+		}
+	}
+	sameSummaries(t, whole, out)
 }
