@@ -145,6 +145,42 @@ func TestMergeEqualsWholeRun(t *testing.T) {
 	}
 }
 
+// De-identified shards merge to the de-identified whole run (pseudonyms,
+// no source paths).
+func TestMergeDeidentified(t *testing.T) {
+	tmp := t.TempDir()
+	in := mergeCases(t, tmp)
+	whole, out := filepath.Join(tmp, "whole"), filepath.Join(tmp, "out")
+	cfg := mergeConfig(in, whole, 0, 0)
+	cfg.Deidentify = true
+	if _, err := Run(context.Background(), cfg); err != nil {
+		t.Fatal(err)
+	}
+	for i := 1; i <= 2; i++ {
+		cfg := mergeConfig(in, out, i, 2)
+		cfg.Deidentify = true
+		if _, err := Run(context.Background(), cfg); err != nil {
+			t.Fatal(err)
+		}
+	}
+	for i := 1; i <= 2; i++ {
+		b, err := os.ReadFile(filepath.Join(out, ShardStateFile(Shard{i, 2})))
+		if err != nil || bytes.Contains(b, []byte("in/case-")) || bytes.Contains(b, []byte(tmp)) {
+			t.Errorf("state of de-identified shard %d/2 names a source folder (or: %v)", i, err)
+		}
+	}
+	sum, err := Merge(out)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, r := range sum.Rows {
+		if r.Source != "" || !strings.HasPrefix(r.Case, "case-") {
+			t.Errorf("merged row %q has source %q; want a pseudonym and no source", r.Case, r.Source)
+		}
+	}
+	sameAsWholeRun(t, whole, out)
+}
+
 // deadPID returns the id of a process that has ended.
 func deadPID(t *testing.T) int {
 	t.Helper()
