@@ -145,6 +145,18 @@ func TestMergeEqualsWholeRun(t *testing.T) {
 	}
 }
 
+// Exit code as the audit's: 0 when every case of every shard was analysed.
+func TestMergeExitCodeAllAnalysed(t *testing.T) {
+	tmp := t.TempDir()
+	in := makeCases(t, filepath.Join(tmp, "in"), 6)
+	out := filepath.Join(tmp, "out")
+	runShards(t, in, out, 2, 1, 2)
+	sum, err := Merge(out)
+	if err != nil || sum.ExitCode() != 0 || sum.Analysed != 6 {
+		t.Fatalf("merge of clean shards: %v, %+v; want 6 analysed and exit code 0", err, sum)
+	}
+}
+
 // De-identified shards merge to the de-identified whole run (pseudonyms,
 // no source paths).
 func TestMergeDeidentified(t *testing.T) {
