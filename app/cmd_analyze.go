@@ -69,6 +69,9 @@ func runAnalyze(args []string, stdout, stderr io.Writer) int {
 			return 1
 		}
 	}
+	if *deidentify {
+		stderr = hidePathsOf(stderr, dir) // names in the case folder may carry identity
+	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
 	defer stop()
 	c, res, code := loadAndAnalyze(ctx, "analyze", dir, sf, set, stderr)

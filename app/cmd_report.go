@@ -81,6 +81,9 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 			return 1
 		}
 	}
+	if *deidentify {
+		stderr = hidePathsOf(stderr, dir) // names in the case folder may carry identity
+	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
 	defer stop()
 	c, r, code := loadAndAnalyze(ctx, "report", dir, sf, set, stderr)

@@ -610,6 +610,11 @@ func LoadRows(outDir string) (rows []Row, problems []string, err error) {
 	return rows, problems, nil
 }
 
+// HidePaths returns s with the paths of case c hidden as a de-identified
+// run shows them (see hidePaths): for messages of other commands that
+// de-identify their output.
+func HidePaths(s string, c *Case) string { return hidePaths(s, c) }
+
 // hidePaths returns s with the paths of case c, whose folder and file
 // names may carry the patient's name, replaced: the case folder by the
 // case ID, each file's path inside it (and, where it stands alone, its
