@@ -11,9 +11,10 @@ import (
 // caseFile is one file of a case open for reading.
 type caseFile struct{ *os.File }
 
-// openCaseFile opens path for reading; errors are *os.PathError.
+// openCaseFile opens path for reading, without blocking on a FIFO;
+// errors are *os.PathError.
 func openCaseFile(path string) (caseFile, error) {
-	f, err := os.Open(path)
+	f, err := os.OpenFile(path, os.O_RDONLY|openNonblock, 0)
 	return caseFile{f}, err
 }
 

@@ -354,8 +354,9 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 	return sum, nil
 }
 
-// staleTemp is the age beyond which a sharded run removes temporary files
-// left in the output folder.
+// staleTemp is an age for removeTemps (temporary files older than it are
+// leftovers). Run no longer uses an age: it removes leftovers only while
+// it holds the output folder's lock alone (lockOutDir).
 const staleTemp = 10 * time.Minute
 
 // worker holds what every case of a run shares.
