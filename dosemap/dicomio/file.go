@@ -809,6 +809,11 @@ const (
 	// maxSpacingMM bounds PixelSpacing and SliceThickness (a 1 m pixel
 	// is no MR image; common practice).
 	maxSpacingMM = 1e3
+	// maxMapping bounds rescale and real-world value slopes and
+	// intercepts: a 32-bit stored value (below 4.3e9) times 1e20 stays
+	// far inside float32 (3.4e38, IEEE 754), so no mapped value is
+	// infinite.
+	maxMapping = 1e20
 )
 
 // finite reports whether v is neither NaN nor infinite.

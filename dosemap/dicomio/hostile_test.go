@@ -106,6 +106,8 @@ func TestImplausibleValuesAreRefused(t *testing.T) {
 		{"position far", tag.ImagePositionPatient, []string{"0", "1e308", "0"}, "implausible ImagePositionPatient (0020,0032) 0\\1e+308\\0 mm"},
 		{"orientation NaN", tag.ImageOrientationPatient, []string{"NaN", "0", "0", "0", "1", "0"}, "implausible ImageOrientationPatient (0020,0037)"},
 		{"slope Inf", tag.RescaleSlope, []string{"Inf"}, "implausible rescale: RescaleSlope (0028,1053) +Inf"},
+		{"slope 1e300", tag.RescaleSlope, []string{"1e300"}, "implausible rescale: RescaleSlope (0028,1053) 1e+300"},
+		{"intercept -1e25", tag.RescaleIntercept, []string{"-1e25"}, "RescaleIntercept (0028,1052) -1e+25"},
 	}
 	dir := t.TempDir()
 	for _, c := range cases {

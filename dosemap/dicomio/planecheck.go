@@ -26,11 +26,11 @@ func checkPlanes(es elems, frames []frameMeta) error {
 		if !finite(f.Thickness) || f.Thickness < 0 || f.Thickness > maxSpacingMM {
 			return skip("implausible %s %s mm: want 0 to %g mm", tagName(tag.SliceThickness), strconv.FormatFloat(f.Thickness, 'g', -1, 64), maxSpacingMM)
 		}
-		if !finite(f.Slope) || !finite(f.Intercept) {
+		if !finite(f.Slope) || !finite(f.Intercept) || math.Abs(f.Slope) > maxMapping || math.Abs(f.Intercept) > maxMapping {
 			return skip("implausible rescale: %s %g, %s %g", tagName(tag.RescaleSlope), f.Slope, tagName(tag.RescaleIntercept), f.Intercept)
 		}
 		for _, r := range f.RWV {
-			if !finite(r.Slope) || !finite(r.Intercept) || r.Slope == 0 {
+			if !finite(r.Slope) || !finite(r.Intercept) || r.Slope == 0 || math.Abs(r.Slope) > maxMapping || math.Abs(r.Intercept) > maxMapping {
 				return skip("implausible real-world value mapping: %s %g, %s %g", tagName(tagRWVSlope), r.Slope, tagName(tagRWVIntercept), r.Intercept)
 			}
 		}
