@@ -219,27 +219,20 @@ func (rw *reviewWindow) openAuditView() {
 
 // windowAuditSettings turns the review window's settings into audit
 // settings with a description and a note on what is not carried over.
-func windowAuditSettings(s analysisSettings) (review.Settings, string, string) {
+func windowAuditSettings(s review.Settings) (review.Settings, string, string) {
 	var notes []string
 	if len(s.Excluded) > 0 {
 		notes = append(notes, "sonications left out of the open case are not left out of the audit")
+		s.Excluded = nil
 	}
-	s.Excluded = nil
-	if s.PhaseScale != 0 {
-		notes = append(notes, "the phase scale entered in the review window is not used: the audit reads it from each file's tags")
+	if t := s.Thermometry; t.B0T > 0 || t.TEms > 0 || t.PhaseScale > 0 {
+		notes = append(notes, fmt.Sprintf("the B0, TE and phase scale entered in the review window (B0 %g T, TE %g ms, phase scale %g rad; 0 = from the files) apply to every case", t.B0T, t.TEms, t.PhaseScale))
 	}
-	if s.B0 > 0 || s.TEms > 0 {
-		notes = append(notes, fmt.Sprintf("the B0/TE entered in the review window (B0 %g T, TE %g ms; 0 = from the files) apply to every case", s.B0, s.TEms))
-	}
-	if s.DriftRef != nil {
+	if s.Thermometry.DriftReference != nil {
 		notes = append(notes, "the drift reference region drawn on the open case is not used: each case gets its automatic reference region")
-		s.DriftRef = nil
+		s.Thermometry.DriftReference = nil
 	}
-	r, err := reviewSettings(s, nil)
-	if err != nil { // only a drawn reference can fail, and it is dropped above
-		notes = append(notes, err.Error())
-	}
-	return r, s.describe(), strings.Join(notes, "; ")
+	return s, s.Describe(), strings.Join(notes, "; ")
 }
 
 // newAuditView builds the audit window. openCase opens a case folder in

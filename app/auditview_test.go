@@ -472,7 +472,7 @@ func TestAuditViewFromMenu(t *testing.T) {
 		t.Fatal("no menu item \"Audit many cases…\"")
 	}
 	rw.settings.Excluded = []int{2}
-	rw.settings.DriftRef = &refRect{U: dosemap.Vec3{1, 0, 0}, V: dosemap.Vec3{0, 1, 0}, W: 10, H: 10}
+	rw.settings.Thermometry.DriftReference = &review.Rect{U: dosemap.Vec3{1, 0, 0}, V: dosemap.Vec3{0, 1, 0}, W: 10, H: 10}
 	item.Action()
 	av := auditWindows[rw]
 	if av == nil {
@@ -486,7 +486,7 @@ func TestAuditViewFromMenu(t *testing.T) {
 		t.Errorf("settings line %q", av.settInfo.Text)
 	}
 	s, _, _, err := av.settings()
-	if err != nil || len(s.Excluded) != 0 || s.Threshold != rw.settings.Threshold || s.Thermometry.Reference != nil {
+	if err != nil || len(s.Excluded) != 0 || s.Threshold != rw.settings.Threshold || s.Thermometry.DriftReference != nil {
 		t.Errorf("audit settings %+v, %v", s, err)
 	}
 	item.Action()

@@ -7,6 +7,7 @@ import (
 	"time"
 
 	"dosecover/dosemap"
+	"dosecover/review"
 )
 
 // The review window talks to the reader, the analysis and the plane
@@ -115,31 +116,16 @@ type analysisResult struct {
 	AvoidStructures []*dosemap.Structure // planned avoid contours
 }
 
-// probeCurve is the temperature history of one point over the whole session.
-type probeCurve struct {
-	Times       []float64 // seconds from the first sonication's start
-	Temp        []float64 // °C at the voxel (NaN where invalid)
-	Mean        []float64 // °C, 3×3 in-plane mean around the voxel
-	Dose        []float64 // cumulative dose at the voxel, model unit
-	Boundaries  []float64 // start time of each sonication
-	LethalAt    float64   // time the cumulative dose reached the threshold; NaN never
-	FinalDose   float64
-	Unit        string
-	Threshold   float64
-	Description string       // the voxel and what was sampled
-	Voxel       dosemap.Vec3 // centre of the thermometry voxel sampled, mm
-}
-
 // session is a case prepared for fast re-analysis: thermometry and dose of
 // every sonication are computed once; Analyze only recombines them.
 type session interface {
-	Analyze(ctx context.Context, s analysisSettings) (*analysisResult, error)
+	Analyze(ctx context.Context, s review.Settings) (*analysisResult, error)
 	// Probe returns the temperature history at patient position p.
-	Probe(p dosemap.Vec3, s analysisSettings) (*probeCurve, error)
+	Probe(p dosemap.Vec3, s review.Settings) (*review.Probe, error)
 	// PeakTemperature returns the highest temperature of every voxel over
 	// the included sonications (°C, NaN where never valid), on the
 	// thermometry grid; nil when the case has no temperatures.
-	PeakTemperature(s analysisSettings) (*dosemap.Volume, error)
+	PeakTemperature(s review.Settings) (*dosemap.Volume, error)
 }
 
 // Hooks filled by the backend files.
@@ -147,7 +133,7 @@ var (
 	// readCase loads a case folder.
 	readCase func(ctx context.Context, dir string, opt loadOptions, progress func(done, total int)) (*loadedCase, error)
 	// prepareCase computes thermometry and per-sonication dose.
-	prepareCase func(ctx context.Context, c *loadedCase, s analysisSettings, progress func(stage string, frac float64)) (session, error)
+	prepareCase func(ctx context.Context, c *loadedCase, s review.Settings, progress func(stage string, frac float64)) (session, error)
 	// demoCaseDir returns the folder of the built-in demo case, writing it first when needed.
 	demoCaseDir func() (string, error)
 )

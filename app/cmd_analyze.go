@@ -56,7 +56,7 @@ func runAnalyze(args []string, stdout, stderr io.Writer) int {
 	set, err := af.settings()
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover analyze: %v\n", err)
-		return 2
+		return settingsExitCode(err)
 	}
 	if err := safefile.CheckDir("case folder", dir); err != nil {
 		fmt.Fprintf(stderr, "dosecover analyze: %v\n", err)

@@ -4,7 +4,6 @@ package main
 
 import (
 	"context"
-	"encoding/json"
 	"errors"
 	"flag"
 	"fmt"
@@ -13,6 +12,7 @@ import (
 	"os/signal"
 	"syscall"
 
+	"dosecover/review"
 	"dosecover/review/audit"
 )
 
@@ -24,24 +24,19 @@ func init() {
 	})
 }
 
-// auditAnalysis builds the per-case analysis of an audit from the settings
-// file (empty: the default settings). It returns the analysis, the settings
-// as JSON (stored with every result and hashed for --resume) and the
-// settings columns of the summary table.
-var auditAnalysis = func(settingsFile string) (audit.Analyzer, []byte, []audit.Column, error) {
-	s, err := audit.LoadSettings(settingsFile)
-	if err != nil {
+// auditAnalysis builds the per-case analysis of an audit with settings s.
+// It returns the analysis, the settings as JSON (stored with every result;
+// their hash, over every setting, decides --resume and the shard check)
+// and the settings columns of the summary table.
+var auditAnalysis = func(s review.Settings) (audit.Analyzer, []byte, []audit.Column, error) {
+	if err := audit.CheckSettings(s); err != nil {
 		return nil, nil, nil, err
 	}
-	js, err := json.Marshal(s)
-	if err != nil {
-		return nil, nil, nil, err
-	}
-	return audit.NewAnalyzer(s, audit.ReportArtifacts), js, audit.SettingsColumns(s), nil
+	return audit.NewAnalyzer(s, audit.ReportArtifacts), s.JSON(), audit.SettingsColumns(s), nil
 }
 
 func auditUsage(w io.Writer, fs *flag.FlagSet) {
-	fmt.Fprintln(w, "usage: dosecover audit DIR... -o OUT_DIR [--settings FILE] [--workers N] [--resume] [--shard I/N] [--deidentify]")
+	fmt.Fprintln(w, "usage: dosecover audit DIR... -o OUT_DIR [--settings FILE] [analysis options] [--workers N] [--resume] [--shard I/N] [--deidentify]")
 	fmt.Fprintln(w)
 	fmt.Fprintln(w, "Analyses every case below the folders DIR with the same settings and writes, into")
 	fmt.Fprintln(w, "OUT_DIR, one record and one report per case (cases/ID/), summary.csv, errors.csv")
@@ -67,10 +62,10 @@ func runAudit(args []string, stdout, stderr io.Writer) int {
 	fs := flag.NewFlagSet("audit", flag.ContinueOnError)
 	fs.SetOutput(io.Discard)
 	var cfg audit.Config
-	var settingsFile, shard string
+	var shard string
 	fs.StringVar(&cfg.OutDir, "o", "", "output folder `OUT_DIR` (created when missing)")
 	fs.StringVar(&cfg.OutDir, "out", "", "same as -o")
-	fs.StringVar(&settingsFile, "settings", "", "analysis settings as a JSON `FILE` (see README); default settings when not given")
+	af := addAnalysisFlags(fs)
 	fs.IntVar(&cfg.Workers, "workers", 0, "cases analysed at once, and held in memory at once (0: one per CPU core)")
 	fs.BoolVar(&cfg.Resume, "resume", false, "skip cases already analysed in OUT_DIR with the same inputs and settings")
 	fs.StringVar(&shard, "shard", "", "analyse only shard `I/N` of the cases (1 <= I <= N; split by a hash of the case path)")
@@ -107,7 +102,12 @@ func runAudit(args []string, stdout, stderr io.Writer) int {
 		return 2
 	}
 	cfg.Inputs = inputs
-	cfg.Analyzer, cfg.Settings, cfg.SettingsColumns, err = auditAnalysis(settingsFile)
+	set, err := af.settings()
+	if err != nil {
+		fmt.Fprintf(stderr, "dosecover audit: %v\n", err)
+		return settingsExitCode(err)
+	}
+	cfg.Analyzer, cfg.Settings, cfg.SettingsColumns, err = auditAnalysis(set)
 	if err != nil {
 		// A settings file that cannot be read or used is a failed input,
 		// like a case folder that cannot be read: exit 1.

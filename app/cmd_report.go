@@ -65,7 +65,7 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	set, err := af.settings()
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
-		return 2
+		return settingsExitCode(err)
 	}
 	// Refuse outputs inside the case folder before any work.
 	for _, p := range []string{out.PNG, out.PDF, out.JSON, out.CSV} {

@@ -94,7 +94,6 @@ func (rw *reviewWindow) writeReport(dir string) {
 	opt := report.Options{
 		Deidentify: rw.teaching, Reviewer: reviewer, SignOff: signoff,
 		ReviewDate: time.Now().UTC().Truncate(time.Second), InputsSHA256: rw.hash,
-		Thermometry: thermometryOptions(rw.settings),
 	}
 	c, caseDir := rw.loaded.Case, rw.loaded.Dir
 	rw.status.SetText("Writing the report…")

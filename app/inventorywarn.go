@@ -30,23 +30,17 @@ func warnInventory(w io.Writer, cmd string, inv *dicomio.Inventory) {
 // applies the structure options. On failure it prints the reason prefixed
 // by "dosecover CMD:" and returns exit code 1.
 func loadAndAnalyze(ctx context.Context, cmd, dir string, sf *structureFlags, set review.Settings, stderr io.Writer) (*dosemap.Case, *review.Result, int) {
-	c, inv, err := dicomio.Load(ctx, dir, dicomio.LoadOptions{Deferred: true}, nil)
+	c, _, r, err := review.LoadAndAnalyze(ctx, dir, set, review.LoadOptions{
+		Check: func(c *dosemap.Case, inv *dicomio.Inventory) error {
+			if inv != nil && !inv.Reviewable {
+				return fmt.Errorf("%s cannot be analysed: %s", dir, inv.NotReviewable)
+			}
+			warnInventory(stderr, cmd, inv)
+			return sf.apply(c)
+		},
+	})
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover %s: %v\n", cmd, err)
-		return nil, nil, 1
-	}
-	if inv != nil && !inv.Reviewable {
-		fmt.Fprintf(stderr, "dosecover %s: %s cannot be analysed: %s\n", cmd, dir, inv.NotReviewable)
-		return nil, nil, 1
-	}
-	warnInventory(stderr, cmd, inv)
-	if err := sf.apply(c); err != nil {
-		fmt.Fprintf(stderr, "dosecover %s: %v\n", cmd, err)
-		return nil, nil, 1
-	}
-	r, err := review.Analyze(ctx, c, set, nil)
-	if err != nil {
-		fmt.Fprintf(stderr, "dosecover %s: analysing %s: %v\n", cmd, dir, err)
 		return nil, nil, 1
 	}
 	return c, r, 0

@@ -12,6 +12,7 @@ import (
 	"strings"
 
 	"dosecover/dosemap"
+	"dosecover/review"
 
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/dialog"
@@ -185,14 +186,14 @@ func (rw *reviewWindow) openFolder(dir string, demo bool) {
 		hash, nFiles, err = hashInputs(ctx, dir)
 		if err == nil {
 			rec, recErr = loadRecord(hash)
-			if rec != nil && rec.Settings.validate() == nil {
+			if rec != nil {
 				setting = rec.Settings
 			}
 			progress("Reading "+base+"…", 0.05)
 			// The reader reports two passes (attributes, then pixel data),
 			// each from zero: a drop in done starts the second.
 			pass, last := 0, -1
-			lc, err = readCase(ctx, dir, loadOptions{PhaseScale: setting.PhaseScale}, func(done, total int) {
+			lc, err = readCase(ctx, dir, loadOptions{PhaseScale: setting.Thermometry.PhaseScale}, func(done, total int) {
 				if total <= 0 {
 					return
 				}
@@ -239,7 +240,7 @@ func (rw *reviewWindow) openFolder(dir string, demo bool) {
 }
 
 // caseLoaded shows a freshly read case and starts its analysis.
-func (rw *reviewWindow) caseLoaded(lc *loadedCase, hash string, nFiles int, rec *reviewRecord, s analysisSettings) {
+func (rw *reviewWindow) caseLoaded(lc *loadedCase, hash string, nFiles int, rec *reviewRecord, s review.Settings) {
 	rw.loaded, rw.hash, rw.nFiles = lc, hash, nFiles
 	rw.sess, rw.result, rw.selected, rw.pinned = nil, nil, -1, nil
 	if rec == nil {
@@ -277,7 +278,7 @@ func (rw *reviewWindow) caseLoaded(lc *loadedCase, hash string, nFiles int, rec 
 		return
 	}
 	if note := rw.missingScannerValues(); note != "" {
-		showSettingsDialog(rw.win, rw.settings, note, func(s analysisSettings) {
+		showSettingsDialog(rw.win, rw.settings, note, func(s review.Settings) {
 			rw.settings = s
 			rw.runAnalysis(true)
 		})
@@ -290,10 +291,10 @@ func (rw *reviewWindow) caseLoaded(lc *loadedCase, hash string, nFiles int, rec 
 // lacks them and the settings do not supply them.
 func (rw *reviewWindow) missingScannerValues() string {
 	var miss []string
-	if rw.loaded.MissingB0 && rw.settings.B0 == 0 {
+	if rw.loaded.MissingB0 && rw.settings.Thermometry.B0T == 0 {
 		miss = append(miss, "the field strength B0 (MagneticFieldStrength, 0018,0087)")
 	}
-	if rw.loaded.MissingTE && rw.settings.TEms == 0 {
+	if rw.loaded.MissingTE && rw.settings.Thermometry.TEms == 0 {
 		miss = append(miss, "the echo time TE (EchoTime, 0018,0081)")
 	}
 	if len(miss) == 0 {
@@ -405,7 +406,7 @@ func (rw *reviewWindow) runAnalysis(prepare bool) {
 			}
 			rw.sess = sess
 			rw.showResult(res)
-			rw.setBusy(fmt.Sprintf("Analysed with %s.", set.describe()), -1)
+			rw.setBusy(fmt.Sprintf("Analysed with %s.", set.Describe()), -1)
 		})
 	}()
 }
@@ -483,7 +484,7 @@ func (rw *reviewWindow) selectSonication(n int) {
 
 // setExcluded ticks or unticks sonication number num and re-analyses.
 func (rw *reviewWindow) setExcluded(num int, excluded bool) {
-	ex := rw.settings.excludedSet()
+	ex := excludedSet(rw.settings)
 	if ex[num] == excluded {
 		return
 	}
@@ -501,34 +502,26 @@ func (rw *reviewWindow) setExcluded(num int, excluded bool) {
 // openSettings shows the settings dialog; thermometry changes recompute
 // temperature, a phase-scale change re-reads the folder.
 func (rw *reviewWindow) openSettings() {
-	showSettingsDialog(rw.win, rw.settings, "", func(s analysisSettings) {
+	showSettingsDialog(rw.win, rw.settings, "", func(s review.Settings) {
 		old := rw.settings
 		rw.settings = s
 		savePrefSettings(rw.app.Preferences(), s)
 		if rw.loaded == nil {
 			return
 		}
-		switch {
-		case s.PhaseScale != old.PhaseScale:
+		switch s.Redo(old) {
+		case review.RedoReading:
 			if rw.record != nil {
 				rw.record.Settings = s
 				_ = rw.record.save()
 			}
 			rw.openCase(rw.loaded.Dir)
-		case thermometryChanged(old, s):
+		case review.RedoThermometry:
 			rw.runAnalysis(true)
 		default:
 			rw.runAnalysis(false)
 		}
 	})
-}
-
-// thermometryChanged reports whether temperature must be recomputed.
-func thermometryChanged(a, b analysisSettings) bool {
-	return a.PRFAlpha != b.PRFAlpha || a.BodyTemp != b.BodyTemp || a.BaselineFrames != b.BaselineFrames ||
-		a.Drift != b.Drift || a.DriftOrder != b.DriftOrder || a.B0 != b.B0 || a.TEms != b.TEms || a.DriftRef != b.DriftRef ||
-		a.Model != b.Model || a.CEM43Break != b.CEM43Break || a.CEM43RAbove != b.CEM43RAbove ||
-		a.CEM43RBelow != b.CEM43RBelow || a.ArrheniusA != b.ArrheniusA || a.ArrheniusEa != b.ArrheniusEa
 }
 
 func sortInts(s []int) {

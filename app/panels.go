@@ -151,7 +151,7 @@ func (rw *reviewWindow) newSonicationTable() *widget.Table {
 				l.Hide()
 				chk.Show()
 				chk.OnChanged = nil
-				chk.SetChecked(!rw.settings.excludedSet()[row.Number])
+				chk.SetChecked(!excludedSet(rw.settings)[row.Number])
 				num := row.Number
 				chk.OnChanged = func(on bool) { rw.setExcluded(num, !on) }
 				return
@@ -183,7 +183,7 @@ func (rw *reviewWindow) newSonicationTable() *widget.Table {
 			case 7:
 				l.SetText(fmtOpt(100*row.CoverageAdded, "%.1f %%"))
 			case 8:
-				if rw.settings.excludedSet()[row.Number] {
+				if excludedSet(rw.settings)[row.Number] {
 					l.Importance = widget.LowImportance
 					l.SetText("left out of the cumulative dose")
 					return
@@ -342,7 +342,7 @@ func newMetricsPanel(rw *reviewWindow) *metricsPanel {
 // update shows the current result.
 func (m *metricsPanel) update() {
 	r := m.rw.result
-	m.used.SetText(m.rw.settings.describe())
+	m.used.SetText(m.rw.settings.Describe())
 	m.signed.SetText(m.rw.signOffText())
 	if r == nil {
 		if m.rw.loaded == nil {

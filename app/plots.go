@@ -203,7 +203,7 @@ func coveragePlot(r *analysisResult) *plot.Plot {
 // probePlot shows the temperature history of the pinned point: the voxel,
 // the 3×3 in-plane mean, the 43 °C level and the moment the cumulative
 // dose reached the threshold.
-func probePlot(c *probeCurve) *plot.Plot {
+func probePlot(c *review.Probe) *plot.Plot {
 	p := newStyledPlot("Temperature of "+c.Description, "time from the first sonication (s)", "temperature (°C)")
 	p.Legend.Top, p.Legend.Left = true, false
 	p.Legend.XOffs = -vg.Points(8)

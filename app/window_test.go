@@ -14,6 +14,7 @@ import (
 	"time"
 
 	"dosecover/dosemap"
+	"dosecover/review"
 
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/storage"
@@ -425,24 +426,17 @@ func TestDrawDriftReference(t *testing.T) {
 	// The thermometry grid of the fixture has voxel centres at x, y = -29,
 	// -27, ... mm and 10 slices: a rectangle from (-30, -30) to (-20.5,
 	// -20.5) mm holds x, y in {-29, ..., -21}, 5 × 5 × 10 = 250 voxels.
-	r := newRefRect(dosemap.Vec3{-20.5, -20.5, 0}, dosemap.Vec3{-30, -30, 0}, dosemap.Vec3{1, 0, 0}, dosemap.Vec3{0, 1, 0})
+	r := review.NewRect(dosemap.Vec3{-20.5, -20.5, 0}, dosemap.Vec3{-30, -30, 0}, dosemap.Vec3{1, 0, 0}, dosemap.Vec3{0, 1, 0})
 	if r.W != 9.5 || r.H != 9.5 || r.Origin != (dosemap.Vec3{-30, -30, 0}) {
 		t.Fatalf("rectangle %+v", r)
 	}
-	m, err := referenceMask(r, rw.loaded.Case)
-	if err != nil {
-		t.Fatal(err)
-	}
-	n := 0
-	for _, in := range m {
-		if in {
-			n++
-		}
-	}
-	if n != 250 {
+	g := rw.loaded.Case.Sonications[0].Geometry
+	if _, n := r.Mask(g); n != 250 {
 		t.Errorf("reference holds %d voxels, want 250", n)
 	}
-	if _, err := referenceMask(newRefRect(dosemap.Vec3{100, 100, 0}, dosemap.Vec3{110, 110, 0}, r.U, r.V), rw.loaded.Case); err == nil {
+	far := rw.settings.Thermometry
+	far.DriftReference = review.NewRect(dosemap.Vec3{100, 100, 0}, dosemap.Vec3{110, 110, 0}, r.U, r.V)
+	if _, err := far.Options(g); err == nil {
 		t.Error("a rectangle outside the thermometry was accepted")
 	}
 	// Drawing on the left image: a drag in reference mode sets the
@@ -455,7 +449,7 @@ func TestDrawDriftReference(t *testing.T) {
 	v.Dragged(&fyne.DragEvent{PointEvent: fyne.PointEvent{Position: fyne.NewPos(120, 110)}, Dragged: fyne.NewDelta(60, 50)})
 	v.DragEnd()
 	waitJobs(t, rw, mark, 1)
-	if rw.settings.DriftRef == nil || v.refMode {
+	if rw.settings.Thermometry.DriftReference == nil || v.refMode {
 		t.Fatalf("no drift reference after drawing (mode still %v); status %q", v.refMode, rw.status.Text)
 	}
 	if !strings.Contains(rw.metrics.used.Text, "reference region drawn") {
@@ -464,7 +458,7 @@ func TestDrawDriftReference(t *testing.T) {
 	mark = rw.completed.Load()
 	rw.automaticRef()
 	waitJobs(t, rw, mark, 1)
-	if rw.settings.DriftRef != nil || !strings.Contains(rw.metrics.used.Text, "automatic reference") {
+	if rw.settings.Thermometry.DriftReference != nil || !strings.Contains(rw.metrics.used.Text, "automatic reference") {
 		t.Errorf("automatic reference not restored: %q", rw.metrics.used.Text)
 	}
 }

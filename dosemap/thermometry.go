@@ -45,6 +45,37 @@ func (d DriftMethod) String() string {
 	return "none"
 }
 
+// ParseDriftMethod returns the method named "none", "mean" or "polynomial".
+func ParseDriftMethod(name string) (DriftMethod, error) {
+	switch name {
+	case "none":
+		return DriftNone, nil
+	case "mean":
+		return DriftMean, nil
+	case "polynomial":
+		return DriftPolynomial, nil
+	}
+	return 0, fmt.Errorf("drift correction %q: want none, mean or polynomial", name)
+}
+
+// MarshalText writes the method by name (JSON: "none", "mean" or
+// "polynomial").
+func (d DriftMethod) MarshalText() ([]byte, error) {
+	if d < DriftNone || d > DriftPolynomial {
+		return nil, fmt.Errorf("drift correction %d is not a method", int(d))
+	}
+	return []byte(d.String()), nil
+}
+
+// UnmarshalText reads a method written by MarshalText.
+func (d *DriftMethod) UnmarshalText(b []byte) error {
+	v, err := ParseDriftMethod(string(b))
+	if err == nil {
+		*d = v
+	}
+	return err
+}
+
 // ThermometryOptions are the settings of Thermometry. A zero field takes the
 // default of DefaultThermometryOptions, except Drift and DriftOrder, whose
 // zero values are meaningful; a negative MinMagnitude or MaxMotion turns that

@@ -336,7 +336,7 @@ func TestAnalyzeErrors(t *testing.T) {
 		{"no target", &dosemap.Case{Sonications: []*dosemap.Sonication{son}}, nil, "no target"},
 		{"no sonication", &dosemap.Case{Structures: []dosemap.Structure{tgt}}, nil, "no sonication"},
 		{"bad threshold", &dosemap.Case{Sonications: []*dosemap.Sonication{son}, Structures: []dosemap.Structure{tgt}}, func(s *Settings) { s.Threshold = -1 }, "threshold"},
-		{"bad model", &dosemap.Case{Sonications: []*dosemap.Sonication{son}, Structures: []dosemap.Structure{tgt}}, func(s *Settings) { s.Model = "x" }, "unknown dose model"},
+		{"bad model", &dosemap.Case{Sonications: []*dosemap.Sonication{son}, Structures: []dosemap.Structure{tgt}}, func(s *Settings) { s.Model = "x" }, `model "x": want cem43 or arrhenius`},
 		{"all excluded", &dosemap.Case{Sonications: []*dosemap.Sonication{son}, Structures: []dosemap.Structure{tgt}}, func(s *Settings) { s.Excluded = []int{1} }, "every sonication"},
 		{"unknown excluded", &dosemap.Case{Sonications: []*dosemap.Sonication{son}, Structures: []dosemap.Structure{tgt}}, func(s *Settings) { s.Excluded = []int{7} }, "does not exist"},
 		{"huge margin", &dosemap.Case{Sonications: []*dosemap.Sonication{son}, Structures: []dosemap.Structure{tgt}}, func(s *Settings) { s.MarginMM = 1e9 }, ""},

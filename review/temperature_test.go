@@ -37,7 +37,7 @@ func TestSessionTemperature(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	want, err := dosemap.Thermometry(heated, set.Thermometry)
+	want, err := dosemap.Thermometry(heated, dosemap.DefaultThermometryOptions())
 	if err != nil {
 		t.Fatal(err)
 	}
