@@ -13,8 +13,8 @@ import (
 	"strings"
 	"testing"
 
-	"dosecover/review/audit"
 	"dosecover/review"
+	"dosecover/review/audit"
 )
 
 // fakeAuditCase writes a case folder with one file that starts like a DICOM
