@@ -1,5 +1,3 @@
-//go:build cgo
-
 package main
 
 import (
@@ -175,27 +173,6 @@ func settingsExitCode(err error) int {
 		return exitFailure
 	}
 	return exitUsage
-}
-
-// parseArgs parses fs over args, which may mix options and positional
-// arguments in any order, and returns the positional ones. A parse error
-// has been reported by fs already.
-func parseArgs(fs *flag.FlagSet, args []string) ([]string, error) {
-	var pos []string
-	rest := args
-	for {
-		if err := fs.Parse(rest); err != nil {
-			return nil, err
-		}
-		rest = fs.Args()
-		if len(rest) == 0 {
-			return pos, nil
-		}
-		if rest[0] == "--" {
-			return append(pos, rest[1:]...), nil
-		}
-		pos, rest = append(pos, rest[0]), rest[1:]
-	}
 }
 
 // structureFlags choose the structures of an analysis: a dosecover contour

@@ -1,5 +1,3 @@
-//go:build cgo
-
 package main
 
 import (
@@ -71,35 +69,35 @@ func runAudit(args []string, stdout, stderr io.Writer) int {
 	fs.StringVar(&shard, "shard", "", "analyse only shard `I/N` of the cases (1 <= I <= N; split by a hash of the case path)")
 	fs.BoolVar(&cfg.Deidentify, "deidentify", false, "name cases by a pseudonym and leave patient identity and source paths out of every output")
 
-	inputs, err := parseInterspersed(fs, args)
+	inputs, err := parseArgs(fs, args)
 	if errors.Is(err, flag.ErrHelp) {
 		auditUsage(stdout, fs)
-		return 0
+		return exitOK
 	}
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover audit: %v\n\n", err)
 		auditUsage(stderr, fs)
-		return 2
+		return exitUsage
 	}
 	if len(inputs) == 0 {
 		fmt.Fprintln(stderr, "dosecover audit: no case folder given")
 		auditUsage(stderr, fs)
-		return 2
+		return exitUsage
 	}
 	if cfg.OutDir == "" {
 		fmt.Fprintln(stderr, "dosecover audit: no output folder given (-o OUT_DIR)")
 		auditUsage(stderr, fs)
-		return 2
+		return exitUsage
 	}
 	if shard != "" {
 		if cfg.Shard, err = audit.ParseShard(shard); err != nil {
 			fmt.Fprintf(stderr, "dosecover audit: %v\n", err)
-			return 2
+			return exitUsage
 		}
 	}
 	if cfg.Workers < 0 {
 		fmt.Fprintf(stderr, "dosecover audit: --workers %d: want 0 (one per core) or more\n", cfg.Workers)
-		return 2
+		return exitUsage
 	}
 	cfg.Inputs = inputs
 	set, err := af.settings()
@@ -112,7 +110,7 @@ func runAudit(args []string, stdout, stderr io.Writer) int {
 		// A settings file that cannot be read or used is a failed input,
 		// like a case folder that cannot be read: exit 1.
 		fmt.Fprintf(stderr, "dosecover audit: %v\n", err)
-		return 1
+		return exitFailure
 	}
 	terminal := false
 	if f, ok := stderr.(*os.File); ok {
@@ -144,14 +142,14 @@ func runAudit(args []string, stdout, stderr io.Writer) int {
 	switch {
 	case errors.As(err, &ue):
 		fmt.Fprintf(stderr, "dosecover audit: %v\n", err)
-		return 2
+		return exitUsage
 	case sum != nil && sum.Interrupted:
 		fmt.Fprintf(stderr, "\ndosecover audit: interrupted after %d cases; every finished case is saved in %s.\n"+
 			"Run the same command with --resume to continue where it stopped.\n", len(sum.Rows), cfg.OutDir)
-		return 1
+		return exitFailure
 	case err != nil:
 		fmt.Fprintf(stderr, "dosecover audit: %v\n", err)
-		return 1
+		return exitFailure
 	}
 	for _, p := range sum.Problems {
 		fmt.Fprintf(stderr, "dosecover audit: skipped folder: %s\n", p)
@@ -165,26 +163,4 @@ func runAudit(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stdout, "%d cases were not analysed; their reasons are in errors.csv.\n", n)
 	}
 	return sum.ExitCode()
-}
-
-// parseInterspersed parses args with fs, allowing options after and
-// between the positional arguments ("DIR... -o OUT"); "--" ends the
-// options. It returns the positional arguments.
-func parseInterspersed(fs *flag.FlagSet, args []string) ([]string, error) {
-	var pos []string
-	for {
-		if err := fs.Parse(args); err != nil {
-			return nil, err
-		}
-		rest := fs.Args()
-		if len(rest) == 0 {
-			return pos, nil
-		}
-		// fs.Parse stops at the first positional argument or after "--".
-		if len(args) > len(rest) && args[len(args)-len(rest)-1] == "--" {
-			return append(pos, rest...), nil
-		}
-		pos = append(pos, rest[0])
-		args = rest[1:]
-	}
 }

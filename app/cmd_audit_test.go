@@ -104,7 +104,7 @@ func TestAuditExitCodes(t *testing.T) {
 	}
 }
 
-func TestParseInterspersed(t *testing.T) {
+func TestParseArgs(t *testing.T) {
 	for _, c := range []struct {
 		args []string
 		pos  []string
@@ -117,7 +117,7 @@ func TestParseInterspersed(t *testing.T) {
 	} {
 		fs := flag.NewFlagSet("t", flag.ContinueOnError)
 		out := fs.String("o", "", "")
-		pos, err := parseInterspersed(fs, c.args)
+		pos, err := parseArgs(fs, c.args)
 		if err != nil || !reflect.DeepEqual(pos, c.pos) || *out != c.out {
 			t.Errorf("%v: %v %q %v; want %v %q", c.args, pos, *out, err, c.pos, c.out)
 		}

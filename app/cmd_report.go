@@ -1,5 +1,3 @@
-//go:build cgo
-
 package main
 
 import (
@@ -13,6 +11,7 @@ import (
 	"time"
 
 	"dosecover/dosemap/safefile"
+	"dosecover/review"
 	"dosecover/review/report"
 )
 
@@ -50,17 +49,17 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	if len(pos) != 1 {
 		fmt.Fprintf(stderr, "dosecover report: one case folder expected, got %d arguments\n", len(pos))
 		fs.Usage()
-		return 2
+		return exitUsage
 	}
 	dir := pos[0]
 	out := report.Outputs{PNG: *png, PDF: *pdf, JSON: *js, CSV: *csv, DPI: *dpi}
 	if out.PNG == "" && out.PDF == "" && out.JSON == "" && out.CSV == "" {
 		fmt.Fprintln(stderr, "dosecover report: give at least one output (-o report.png, --pdf, --json or --csv)")
-		return 2
+		return exitUsage
 	}
 	if *dpi < 150 || *dpi > 1200 {
 		fmt.Fprintf(stderr, "dosecover report: --dpi %d: want 150 (legible in print) to 1200\n", *dpi)
-		return 2
+		return exitUsage
 	}
 	set, err := af.settings()
 	if err != nil {
@@ -74,11 +73,11 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 		}
 		if err := safefile.CheckOutside(dir, p); err != nil {
 			fmt.Fprintf(stderr, "dosecover report: %v\n", err)
-			return 1
+			return exitFailure
 		}
 		if err := safefile.CheckDir("output folder", filepath.Dir(p)); err != nil {
 			fmt.Fprintf(stderr, "dosecover report: cannot write %s: %v\n", p, err)
-			return 1
+			return exitFailure
 		}
 	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
@@ -87,10 +86,10 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	if code != 0 {
 		return code
 	}
-	sum, err := report.HashFolder(dir)
+	sum, _, err := review.HashInputs(ctx, dir)
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
-		return 1
+		return exitFailure
 	}
 	px := report.PanelSize(float64(*dpi)).X // panels at the page's resolution
 	in, err := report.FromResult(c, r, report.Options{
@@ -99,11 +98,11 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	})
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
-		return 1
+		return exitFailure
 	}
 	if err := report.Write(in, dir, out); err != nil {
 		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
-		return 1
+		return exitFailure
 	}
 	fmt.Fprintf(stdout, "%s: covered %.1f %% of the monitored target at %g %s (margin %g mm)\n",
 		in.CaseLabel, 100*r.CoveredFraction, r.Threshold, r.DoseUnit, r.MarginMM)
@@ -112,5 +111,5 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 			fmt.Fprintf(stdout, "wrote %s\n", p)
 		}
 	}
-	return 0
+	return exitOK
 }

@@ -1,5 +1,3 @@
-//go:build cgo
-
 package main
 
 import (
@@ -41,7 +39,7 @@ func loadAndAnalyze(ctx context.Context, cmd, dir string, sf *structureFlags, se
 	})
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover %s: %v\n", cmd, err)
-		return nil, nil, 1
+		return nil, nil, exitFailure
 	}
-	return c, r, 0
+	return c, r, exitOK
 }

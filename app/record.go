@@ -14,7 +14,6 @@ import (
 
 	"dosecover/dosemap"
 	"dosecover/review"
-	"dosecover/review/report"
 )
 
 // reviewRecord is what dosecover remembers about the review of one case:
@@ -59,11 +58,11 @@ var reviewsDir = func() (string, error) {
 	return filepath.Join(d, "dosecover", "reviews"), nil
 }
 
-// hashInputs returns the SHA-256 of the input files that the reports print
-// (review/report.HashFolderContext) and the number of files; it stops when
-// ctx is cancelled.
+// hashInputs returns the input hash of dir that the reports print
+// (review.HashInputs) and the number of files; it stops when ctx is
+// cancelled.
 func hashInputs(ctx context.Context, dir string) (string, int, error) {
-	return report.HashFolderContext(ctx, dir)
+	return review.HashInputs(ctx, dir)
 }
 
 // recordPath returns where the record of the input with hash lives.

@@ -35,7 +35,7 @@ func TestDemoGolden(t *testing.T) {
 		}
 		t.Fatal(err)
 	}
-	sum, err := HashFolder(dir)
+	sum, _, err := review.HashInputs(context.Background(), dir)
 	if err != nil {
 		t.Fatal(err)
 	}

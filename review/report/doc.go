@@ -5,7 +5,7 @@
 // the PNG (vgimg) and the PDF (vgpdf, text kept as text) share one layout.
 // Its content comes from a plain Input — facts, tables, image panels and
 // texts — that FromResult fills from an analysis; nothing here reads a case
-// folder (except HashFolder, which only reads) or knows the GUI.
+// folder or knows the GUI.
 //
 // Every file is written atomically (a temporary file in the target's folder,
 // then a rename), and WriteFile refuses any target inside the case folder
