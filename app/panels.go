@@ -9,7 +9,7 @@ import (
 	"strings"
 
 	"dosecover/dosemap"
-	"dosecover/review"
+	"dosecover/review/view"
 
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/canvas"
@@ -33,13 +33,13 @@ var overlayLegend = []struct {
 	c     color.RGBA
 	style swatchStyle
 }{
-	{"target", review.ColorTarget, swatchSolid},
-	{"margin", review.ColorMargin, swatchDashed},
-	{"lethal isoline", review.ColorLethal, swatchSolid},
-	{"hole", review.ColorHole, swatchHatched},
-	{"lethal outside margin", review.ColorSpill, swatchFill},
-	{"avoid", review.ColorAvoid, swatchDotted},
-	{"not monitored", review.ColorNotMonitored, swatchHatched},
+	{"target", view.ColorTarget, swatchSolid},
+	{"margin", view.ColorMargin, swatchDashed},
+	{"lethal isoline", view.ColorLethal, swatchSolid},
+	{"hole", view.ColorHole, swatchHatched},
+	{"lethal outside margin", view.ColorSpill, swatchFill},
+	{"avoid", view.ColorAvoid, swatchDotted},
+	{"not monitored", view.ColorNotMonitored, swatchHatched},
 }
 
 // legendSwatch draws a small sample of an overlay style.

@@ -170,29 +170,6 @@ func TestViewTransformRoundTrip(t *testing.T) {
 	}
 }
 
-func TestDoseWashOrderedAndTransparentBelowFloor(t *testing.T) {
-	if _, ok := doseWash(0.5, 1, 100); ok {
-		t.Error("dose below the floor is drawn")
-	}
-	if _, ok := doseWash(math.NaN(), 1, 100); ok {
-		t.Error("NaN dose (not monitored) is drawn")
-	}
-	// Relative luminance (ITU-R BT.709 weights) must rise with dose so the
-	// wash reads in order without hue.
-	prev := -1.0
-	for _, d := range []float64{1, 3, 10, 30, 100, 1000} {
-		c, ok := doseWash(d, 1, 100)
-		if !ok {
-			t.Fatalf("dose %g not drawn", d)
-		}
-		l := 0.2126*float64(c.R) + 0.7152*float64(c.G) + 0.0722*float64(c.B)
-		if l < prev {
-			t.Errorf("luminance falls at dose %g: %.1f < %.1f", d, l, prev)
-		}
-		prev = l
-	}
-}
-
 func TestMissingScannerValuesAsked(t *testing.T) {
 	rw := &reviewWindow{loaded: &loadedCase{MissingB0: true, MissingTE: true}, settings: review.DefaultSettings()}
 	note := rw.missingScannerValues()
