@@ -28,7 +28,7 @@ func ballDose(c dosemap.Vec3, r, lam float64) func(p dosemap.Vec3) float64 {
 }
 
 // thermoGrid is a 1.25x1.25x3 mm axial thermometry grid centred near
-// origin (common practice resolution; check-values.md).
+// origin (common practice resolution; testdata/check-values.md).
 func thermoGrid(cols, rows, slices int) dosemap.Geometry {
 	sp := dosemap.Vec3{1.25, 1.25, 3}
 	return dosemap.NewAxialGeometry(cols, rows, slices, sp,
