@@ -135,14 +135,6 @@ func (p pen) box(x, y, w, h vg.Length) vg.Path {
 	return path
 }
 
-// frame strokes the rectangle outline.
-func (p pen) frame(x, y, w, h, lw vg.Length, clr color.Color) {
-	p.c.SetColor(clr)
-	p.c.SetLineWidth(lw)
-	p.c.SetLineDash(nil, 0)
-	p.c.Stroke(p.box(x, y, w, h))
-}
-
 // line strokes a straight segment.
 func (p pen) line(x0, y0, x1, y1, lw vg.Length, clr color.Color, dash []vg.Length) {
 	p.c.SetColor(clr)
