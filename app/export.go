@@ -43,11 +43,10 @@ func (rw *reviewWindow) exportReport() {
 }
 
 func (rw *reviewWindow) resultRaw() (*review.Result, bool) {
-	if rw.result == nil {
+	if rw.result == nil || rw.result.Result == nil {
 		return nil, false
 	}
-	r, ok := rw.result.Raw.(*review.Result)
-	return r, ok
+	return rw.result.Result, true
 }
 
 // reportBase is the file name stem of the exported files: the case name

@@ -90,7 +90,7 @@ func (rw *reviewWindow) signOff() {
 	comment.SetMinRowsVisible(4)
 	comment.Wrapping = fyne.TextWrapWord
 	facts := widget.NewLabel(fmt.Sprintf("Input files: %d, SHA-256 %s\nCovered %.1f %% with %s",
-		rw.nFiles, rw.hash, 100*rw.result.Covered, rw.settings.Describe()))
+		rw.nFiles, rw.hash, 100*rw.result.CoveredFraction, rw.settings.Describe()))
 	facts.Wrapping = fyne.TextWrapWord
 	var prev []string
 	for _, s := range rw.record.SignOffs {
@@ -129,7 +129,7 @@ func (rw *reviewWindow) signOff() {
 func (rw *reviewWindow) addSignOff(who, comment string, at time.Time) error {
 	rw.record.SignOffs = append(rw.record.SignOffs, signOff{
 		Reviewer: who, Comment: strings.TrimSpace(comment), Time: at.UTC(),
-		InputHash: rw.hash, Settings: rw.settings.Describe(), Covered: rw.result.Covered, Version: version,
+		InputHash: rw.hash, Settings: rw.settings.Describe(), Covered: rw.result.CoveredFraction, Version: version,
 	})
 	rw.record.Settings = rw.settings
 	return rw.record.save()

@@ -420,7 +420,7 @@ func (rw *reviewWindow) showResult(res *analysisResult) {
 	}
 	rw.applyFloor()
 	rw.washBar.set(rw.opt.Floor, washTop(res.Threshold), res.Unit)
-	if rw.selected >= len(res.Sonications) {
+	if rw.selected >= len(res.SonRows) {
 		rw.selected = -1
 	}
 	rw.updateScene()
@@ -458,13 +458,13 @@ func (rw *reviewWindow) updateScene() {
 	}
 	rw.scene.Dose = r.Dose
 	rw.scene.Threshold = r.Threshold
-	rw.scene.Target, rw.scene.Margin, rw.scene.Avoid = r.Target, r.Margin, r.Avoid3D
+	rw.scene.Target, rw.scene.Margin, rw.scene.Avoid = r.TargetMask, r.MarginMask, nil
 	rw.scene.TargetStructure, rw.scene.AvoidStructures = r.TargetStructure, r.AvoidStructures
-	rw.scene.Holes, rw.scene.Outside = r.Holes3D, r.Outside3D
+	rw.scene.Holes, rw.scene.Outside = r.HoleLabels, r.SpillLabels
 	rw.scene.NotMonitored = r.NotMonitored3D
 	rw.selInfo.SetText("Showing the cumulative dose")
 	if rw.selected >= 0 && rw.selected < len(r.SonicationDose) && r.SonicationDose[rw.selected] != nil {
-		row := r.Sonications[rw.selected]
+		row := r.SonRows[rw.selected]
 		rw.scene.Dose = r.SonicationDose[rw.selected]
 		// Holes and spill are properties of the cumulative dose only.
 		rw.scene.Holes, rw.scene.Outside = nil, nil
@@ -557,13 +557,13 @@ func (rw *reviewWindow) startPeakTemperature(res *analysisResult) {
 // view (1× to 8×).
 func (rw *reviewWindow) frameTarget() {
 	r := rw.result
-	if r == nil || r.Target == nil {
+	if r == nil || r.TargetMask == nil {
 		return
 	}
 	var c dosemap.Vec3
 	var pts []dosemap.Vec3
-	g := r.Target.Geometry
-	for i, x := range r.Target.Data {
+	g := r.TargetMask.Geometry
+	for i, x := range r.TargetMask.Data {
 		if x >= 0.5 {
 			a, b, k := g.IJK(i)
 			p := g.Point(float64(a), float64(b), float64(k))
