@@ -39,6 +39,11 @@ type LoadOptions struct {
 	// them. The files must stay as they are meanwhile: a file whose size
 	// changed is refused, its frames NaN and named in the Source's notes.
 	Deferred bool
+	// Study is the StudyInstanceUID of the study to read when the folder
+	// holds several; empty: the folder must hold one study (a folder with
+	// several is then not reviewable, its Inventory listing them). Files
+	// of other studies are listed as skipped, with the reason.
+	Study string
 }
 
 // Scan reads the attributes of every file under dir (any depth, any names),
@@ -261,6 +266,9 @@ func scan(ctx context.Context, dir string, opt LoadOptions, progress func(done, 
 	cr.inv.Structures = []StructureInfo{}
 	cr.inv.Skipped = append([]SkippedFile{}, unreadable...)
 	cr.inv.Problems = []string{}
+	if !cr.chooseStudy(infos, errs) {
+		return cr, nil
+	}
 	cr.assemble(paths, infos, errs)
 	return cr, nil
 }
