@@ -36,6 +36,7 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	signoff := fs.String("sign-off", "", "sign-off statement, printed in the header")
 	dpi := fs.Int("dpi", report.DefaultDPI, "resolution of the PNG, 150 to 1200 dots per inch")
 	af := addAnalysisFlags(fs)
+	study := addStudyFlag(fs)
 	sf := addStructureFlags(fs)
 	fs.Usage = func() {
 		fmt.Fprintln(stderr, "usage: dosecover report CASE_DIR -o report.png [--pdf report.pdf] [--json metrics.json] [--csv metrics.csv] [--deidentify] [options]")
@@ -83,7 +84,7 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
 	defer stop()
-	c, r, code := loadAndAnalyze(ctx, "report", dir, sf, set, stderr)
+	c, r, code := loadAndAnalyze(ctx, "report", dir, *study, sf, set, stderr)
 	if code != 0 {
 		return code
 	}

@@ -27,10 +27,12 @@ func warnInventory(w io.Writer, cmd string, inv *dicomio.Inventory) {
 // loadAndAnalyze reads the case folder dir and runs the coverage analysis
 // with set, as analyze and report both do: it stops on Ctrl-C, refuses a
 // folder that holds no reviewable case, warns of files not used, and
-// applies the structure options. On failure it prints the reason prefixed
+// applies the structure options. study chooses the study of a folder that
+// holds several (a folder of several and no choice is refused, each study
+// named). On failure it prints the reason prefixed
 // by "dosecover CMD:" and returns exit code 1.
-func loadAndAnalyze(ctx context.Context, cmd, dir string, sf *structureFlags, set review.Settings, stderr io.Writer) (*dosemap.Case, *review.Result, int) {
-	c, inv, err := dicomio.Load(ctx, dir, dicomio.LoadOptions{Deferred: true}, nil)
+func loadAndAnalyze(ctx context.Context, cmd, dir, study string, sf *structureFlags, set review.Settings, stderr io.Writer) (*dosemap.Case, *review.Result, int) {
+	c, inv, err := dicomio.Load(ctx, dir, dicomio.LoadOptions{Deferred: true, Study: study}, nil)
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover %s: %v\n", cmd, err)
 		return nil, nil, 1

@@ -153,7 +153,9 @@ func (inv *Inventory) WriteText(w io.Writer) error {
 	} else {
 		fmt.Fprintf(&b, "Reviewable: NO - %s\n", inv.NotReviewable)
 	}
-	fmt.Fprintf(&b, "\nStudies (%d):\n", len(inv.Studies))
+	if len(inv.Studies) > 0 {
+		fmt.Fprintf(&b, "\nStudies (%d):\n", len(inv.Studies))
+	}
 	for _, s := range inv.Studies {
 		used := ""
 		if s.Used {
