@@ -786,8 +786,8 @@ func drawSonications(p pen, in *Input, x, y, w, bottom vg.Length, from, page, pa
 			if pages > 0 {
 				total = fmt.Sprintf("page %d of %d", page+1, pages)
 			}
-			y = p.text(x, y, sans(smallSize, true), colInk, fmt.Sprintf("Continued on %s: %s more (%d to %d).",
-				total, plural(len(in.Sonications)-r, "sonication"), s.Number, in.Sonications[len(in.Sonications)-1].Number))
+			y = p.text(x, y, sans(smallSize, true), colInk, fmt.Sprintf("Continued on %s: sonications %d to %d (%d more).",
+				total, s.Number, in.Sonications[len(in.Sonications)-1].Number, len(in.Sonications)-r))
 			return y, r
 		}
 		if (r-from)%2 == 1 {
