@@ -18,13 +18,13 @@ import (
 
 // Options are the parts of a report that do not come from the analysis.
 type Options struct {
-	Deidentify   bool      // hide identity: neutral case label, no scan date, generic sonication labels
-	Reviewer     string    // who reviewed ("" not given)
+	Deidentify bool   // hide identity: neutral case label, no scan date, generic sonication labels
+	Reviewer   string // who reviewed ("" not given)
 	// SignOffs are the sign-offs of the case: the report shows the one
 	// made on this very analysis (input hash, settings, left-out
 	// sonications and figures), or says it is not signed off for these
 	// settings and what differs from the last one.
-	SignOffs []review.SignOff
+	SignOffs     []review.SignOff
 	ReviewDate   time.Time // zero: now
 	InputsSHA256 string    // see HashFolder
 	PanelPixels  int       // side of each image panel in pixels; 0: 480
