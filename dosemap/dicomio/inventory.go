@@ -171,7 +171,7 @@ func (inv *Inventory) WriteText(w io.Writer) error {
 		}
 		fmt.Fprintf(&b, "  %s - %s%s\n", date, desc, used)
 		fmt.Fprintf(&b, "      patient ID %s, name %s\n", orNone(s.PatientID), orNone(s.PatientName))
-		fmt.Fprintf(&b, "      %d series, %d files\n", s.Series, s.Files)
+		fmt.Fprintf(&b, "      %d series, %d files, in %s\n", s.Series, s.Files, s.Folder)
 		fmt.Fprintf(&b, "      uid %s\n", s.UID)
 	}
 	if inv.NeedsStudyChoice() {

@@ -2,6 +2,7 @@ package dicomio
 
 import (
 	"fmt"
+	"path/filepath"
 	"sort"
 	"strings"
 )
@@ -18,7 +19,8 @@ type StudyInfo struct {
 	Description string `json:"description"`
 	Series      int    `json:"series"` // distinct SeriesInstanceUIDs
 	Files       int    `json:"files"`
-	Used        bool   `json:"used"` // the study the case is read from
+	Folder      string `json:"folder"` // deepest folder holding all its files, relative to the folder read ("." itself)
+	Used        bool   `json:"used"`   // the study the case is read from
 }
 
 // Label names the study for a person: UID, patient and date.
@@ -58,8 +60,9 @@ func (inv *Inventory) NeedsStudyChoice() bool {
 // studiesOf groups the readable files into studies, in order of study date,
 // then UID. Files without a StudyInstanceUID and DICOM directories are left
 // out.
-func studiesOf(infos []*fileInfo, errs []error) []StudyInfo {
+func studiesOf(dir string, infos []*fileInfo, errs []error) []StudyInfo {
 	byUID := map[string]*StudyInfo{}
+	folder := map[string]string{}
 	series := map[string]map[string]bool{}
 	var order []string
 	for i, fi := range infos {
@@ -74,6 +77,15 @@ func studiesOf(infos []*fileInfo, errs []error) []StudyInfo {
 			order = append(order, fi.StudyUID)
 		}
 		s.Files++
+		d := filepath.Dir(fi.Path)
+		if f, ok := folder[fi.StudyUID]; !ok {
+			folder[fi.StudyUID] = d
+		} else {
+			for f != d && !strings.HasPrefix(d, f+string(filepath.Separator)) && f != filepath.Dir(f) {
+				f = filepath.Dir(f)
+			}
+			folder[fi.StudyUID] = f
+		}
 		if fi.SeriesUID != "" {
 			series[fi.StudyUID][fi.SeriesUID] = true
 		}
@@ -94,6 +106,10 @@ func studiesOf(infos []*fileInfo, errs []error) []StudyInfo {
 	for _, uid := range order {
 		s := byUID[uid]
 		s.Series = len(series[uid])
+		s.Folder = "."
+		if r, err := filepath.Rel(dir, folder[uid]); err == nil {
+			s.Folder = r
+		}
 		out = append(out, *s)
 	}
 	sort.SliceStable(out, func(a, b int) bool {
@@ -111,7 +127,7 @@ func studiesOf(infos []*fileInfo, errs []error) []StudyInfo {
 // absent (the Inventory then says why and how to choose).
 func (cr *caseReader) chooseStudy(infos []*fileInfo, errs []error) bool {
 	inv := cr.inv
-	inv.Studies = studiesOf(infos, errs)
+	inv.Studies = studiesOf(cr.dir, infos, errs)
 	want := strings.TrimSpace(cr.opt.Study)
 	list := func() string {
 		parts := make([]string, len(inv.Studies))
@@ -166,7 +182,7 @@ func (cr *caseReader) chooseStudy(infos []*fileInfo, errs []error) bool {
 		case fi.StudyUID == "":
 			errs[i] = skip("no StudyInstanceUID (0020,000D) while the case is %s: not used, so that no two studies are mixed", chosen.Label())
 		default:
-			errs[i] = skip("belongs to %s, not to the chosen %s: not used", other[fi.StudyUID].Label(), chosen.Label())
+			errs[i] = skip("belongs to another %s, not to the chosen study: not used", other[fi.StudyUID].Label())
 		}
 	}
 	return true

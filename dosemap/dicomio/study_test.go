@@ -154,6 +154,9 @@ func TestTwoStudiesRefusedOrChosen(t *testing.T) {
 		if !inv.Reviewable || inv.Study != tc.uid {
 			t.Fatalf("study %s: reviewable %v (%s)", tc.uid, inv.Reviewable, inv.NotReviewable)
 		}
+		if !strings.HasPrefix(c.Label, "mixed (study of 2026-01-1") {
+			t.Errorf("study %s: case label %q, want the folder and the study date", tc.uid, c.Label)
+		}
 		if c.Patient.ID != tc.patient {
 			t.Errorf("study %s: patient %q, want %q", tc.uid, c.Patient.ID, tc.patient)
 		}
@@ -171,7 +174,7 @@ func TestTwoStudiesRefusedOrChosen(t *testing.T) {
 		}
 		notUsed := 0
 		for _, sk := range inv.Skipped {
-			if strings.Contains(sk.Reason, "not to the chosen study "+tc.uid) && strings.Contains(sk.Reason, tc.other) {
+			if strings.Contains(sk.Reason, "not to the chosen study") && strings.Contains(sk.Reason, tc.other) && !strings.Contains(sk.Reason, tc.uid) {
 				notUsed++
 			}
 		}

@@ -476,17 +476,16 @@ func drawFacts(p pen, in *Input, x, y, w vg.Length) vg.Length {
 	fv := sans(bodySize, true)
 	// The headline figures, big, at the left: the covered part of the
 	// monitored target and of the whole target, each labelled.
-	fb := sans(20, true)
+	fb := sans(18, true)
 	fs := sans(smallSize, false)
 	p.text(x, y, fb, colInk, pct(in.Facts.Covered))
-	bw := fb.Width("100.0 %") + 10
-	yb := p.text(x, y+fb.Extents().Height, fs, colFaint, "of the monitored part")
-	yb = p.text(x, yb, fs, colFaint, "of the target covered")
-	yb += 3
+	bw := fb.Width("100.0 %") + 12
+	yb := p.text(x, y+fb.Extents().Height, fs, colFaint, "covered, of the")
+	yb = p.text(x, yb, fs, colFaint, "monitored part")
+	yb += 2
 	p.text(x, yb, fb, colInk, pct(in.Facts.CoveredOfTarget))
-	yb = p.text(x, yb+fb.Extents().Height, fs, colFaint, "of the whole target")
-	yb = p.text(x, yb, fs, colFaint, "covered (not monitored")
-	yb = p.text(x, yb, fs, colFaint, "counts as not covered)")
+	yb = p.text(x, yb+fb.Extents().Height, fs, colFaint, "covered, of the")
+	yb = p.text(x, yb, fs, colFaint, "whole target")
 	lw := (w - bw - gap) * 0.47
 	yl := p.kv(x+bw, y, lw, fl, fv, left)
 	yr := p.kv(x+bw+lw+gap, y, w-bw-gap-lw, fl, fv, right)
