@@ -1,0 +1,125 @@
+//go:build cgo
+
+package main
+
+import (
+	"bytes"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+// restudy copies the DICOM files of src into the flat folder dst with
+// pydicom's own writer as another study of another invented patient: new
+// StudyInstanceUID, series, instance and frame-of-reference UIDs (one
+// mapping for every file), PatientID pid. With pid "same" the files are
+// written unchanged.
+const restudy = `
+import os, sys
+import pydicom
+from pydicom.uid import generate_uid
+src, dst, pid, prefix = sys.argv[1:5]
+os.makedirs(dst, exist_ok=True)
+uids = {}
+def remap(v):
+    if v not in uids:
+        uids[v] = generate_uid(prefix="2.25.", entropy_srcs=[v, pid])
+    return uids[v]
+def walk(ds):
+    for el in ds:
+        if el.VR == "SQ":
+            for item in el.value:
+                walk(item)
+        elif el.VR == "UI" and el.tag not in (0x00080016, 0x00020002, 0x00020010, 0x00081150) and el.value:
+            el.value = remap(str(el.value))
+n = 0
+for root, _, files in sorted(os.walk(src)):
+    for f in sorted(files):
+        try:
+            ds = pydicom.dcmread(os.path.join(root, f))
+        except Exception:
+            continue
+        if pid != "same":
+            walk(ds)
+            ds.file_meta.MediaStorageSOPInstanceUID = ds.SOPInstanceUID
+            ds.PatientID, ds.PatientName, ds.StudyDate = pid, "PHANTOM^" + pid, "20260120"
+        n += 1
+        ds.save_as(os.path.join(dst, "%s%05d.dcm" % (prefix, n)), write_like_original=True)
+`
+
+// TestAnalyzeTwoStudies: a folder holding two studies (written by
+// pydicom) is refused by analyze and report with both studies named and
+// the way to choose; --study analyses the one chosen, with the same
+// figures as that study's folder alone.
+func TestAnalyzeTwoStudies(t *testing.T) {
+	py := ""
+	for _, p := range []string{"python3", "/usr/bin/python3"} {
+		if exec.Command(p, "-c", "import pydicom").Run() == nil {
+			py = p
+			break
+		}
+	}
+	if py == "" {
+		if os.Getenv("CI") == "true" {
+			t.Fatal("python3 with pydicom not found (install python3-pydicom)")
+		}
+		t.Skip("python3 with pydicom not found; skipping")
+	}
+	single := demoCase(t)
+	mixed := filepath.Join(t.TempDir(), "mixed")
+	for _, a := range [][]string{{"same", "a-"}, {"SIM-OTHER", "b-"}} {
+		if out, err := exec.Command(py, "-c", restudy, single, mixed, a[0], a[1]).CombinedOutput(); err != nil {
+			t.Fatalf("pydicom: %v\n%s", err, out)
+		}
+	}
+	var out, errb bytes.Buffer
+	if code := run([]string{"analyze", "--trials", "0", mixed}, &out, &errb); code != 1 {
+		t.Fatalf("two studies: exit %d, want 1\n%s", code, errb.String())
+	}
+	for _, want := range []string{"2 studies", "DEMO-001", "SIM-OTHER", "2026-01-15", "2026-01-20", "--study UID"} {
+		if !strings.Contains(errb.String(), want) {
+			t.Errorf("refusal %q does not name %q", errb.String(), want)
+		}
+	}
+	png := filepath.Join(t.TempDir(), "r.png")
+	errb.Reset()
+	if code := run([]string{"report", mixed, "-o", png}, &out, &errb); code != 1 || !strings.Contains(errb.String(), "--study UID") {
+		t.Errorf("report of two studies: exit %d: %s", code, errb.String())
+	}
+	// The demo's own study, from the inventory of the folder alone.
+	var inv bytes.Buffer
+	run([]string{"inspect", single}, &inv, &bytes.Buffer{})
+	uid := ""
+	for _, l := range strings.Split(inv.String(), "\n") {
+		if f := strings.Fields(l); len(f) == 2 && f[0] == "uid" && uid == "" {
+			uid = f[1]
+		}
+	}
+	if uid == "" {
+		t.Fatalf("no study uid in the inventory:\n%s", inv.String())
+	}
+	var alone, chosen bytes.Buffer
+	errb.Reset()
+	if code := run([]string{"analyze", "--trials", "0", single}, &alone, &errb); code != 0 {
+		t.Fatalf("study alone: exit %d: %s", code, errb.String())
+	}
+	errb.Reset()
+	if code := run([]string{"analyze", "--trials", "0", "--study", uid, mixed}, &chosen, &errb); code != 0 {
+		t.Fatalf("--study: exit %d: %s", code, errb.String())
+	}
+	if !strings.Contains(errb.String(), "not to the chosen study") || !strings.Contains(errb.String(), "SIM-OTHER") {
+		t.Errorf("files of the other study not listed as not used: %s", errb.String())
+	}
+	// Same figures: every line from the coverage on (the case label differs).
+	fig := func(s string) string {
+		if i := strings.Index(s, "Covered"); i >= 0 {
+			return s[i:]
+		}
+		return s
+	}
+	if fig(alone.String()) != fig(chosen.String()) {
+		t.Errorf("the chosen study gives other figures than its folder alone:\n%s\n---\n%s", alone.String(), chosen.String())
+	}
+}
