@@ -72,7 +72,7 @@ func runAnalyze(args []string, stdout, stderr io.Writer) int {
 	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
 	defer stop()
-	c, res, code := loadAndAnalyze(ctx, "analyze", dir, *study, sf, set, stderr)
+	c, res, _, code := loadAndAnalyze(ctx, "analyze", dir, *study, sf, set, stderr)
 	if code != 0 {
 		return code
 	}

@@ -84,7 +84,7 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
 	defer stop()
-	c, r, code := loadAndAnalyze(ctx, "report", dir, *study, sf, set, stderr)
+	c, r, studyUID, code := loadAndAnalyze(ctx, "report", dir, *study, sf, set, stderr)
 	if code != 0 {
 		return code
 	}
@@ -105,7 +105,7 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	}
 	px := report.PanelSize(float64(*dpi)).X // panels at the page's resolution
 	in, err := report.FromResult(c, r, report.Options{
-		Deidentify: *deidentify, Reviewer: *reviewer, SignOffs: signOffs,
+		Deidentify: *deidentify, Reviewer: *reviewer, SignOffs: signOffs, Study: studyUID,
 		ReviewDate: time.Now().UTC().Truncate(time.Second), InputsSHA256: sum, PanelPixels: px,
 	})
 	if err != nil {

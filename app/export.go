@@ -87,11 +87,11 @@ func (rw *reviewWindow) writeReport(dir string) {
 	// The report shows a sign-off only when it was made on this very
 	// analysis (review.SignOffFor); its reviewer is then the report's.
 	var reviewer string
-	if st := review.SignOffFor(rw.record.SignOffs, rw.hash, raw); st.Valid != nil {
+	if st := review.SignOffFor(rw.record.SignOffs, rw.hash, rw.loaded.Study, raw); st.Valid != nil {
 		reviewer = st.Valid.Reviewer
 	}
 	opt := report.Options{
-		Deidentify: rw.teaching, Reviewer: reviewer, SignOffs: rw.record.SignOffs,
+		Deidentify: rw.teaching, Reviewer: reviewer, SignOffs: rw.record.SignOffs, Study: rw.loaded.Study,
 		ReviewDate: time.Now().UTC().Truncate(time.Second), InputsSHA256: rw.hash,
 		Thermometry: thermometryOptions(rw.settings),
 	}

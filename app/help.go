@@ -141,7 +141,7 @@ func (rw *reviewWindow) addSignOff(who, outcome, comment string, at time.Time) e
 	if !ok {
 		return fmt.Errorf("the case has not been analysed; there is nothing to sign off")
 	}
-	so, err := review.NewSignOff(who, outcome, comment, rw.hash, r, at)
+	so, err := review.NewSignOff(who, outcome, comment, rw.hash, rw.loaded.Study, r, at)
 	if err != nil {
 		return err
 	}

@@ -471,7 +471,7 @@ func (rw *reviewWindow) signOffText() string {
 		return "Not signed off."
 	}
 	r, _ := rw.resultRaw()
-	st := review.SignOffFor(rw.record.SignOffs, rw.hash, r)
+	st := review.SignOffFor(rw.record.SignOffs, rw.hash, rw.loaded.Study, r)
 	b := []string{"This analysis: " + st.Line(rw.teaching) + "."}
 	for _, s := range rw.record.SignOffs {
 		who := s.Reviewer

@@ -4,6 +4,10 @@ package main
 
 import (
 	"bytes"
+
+	"fyne.io/fyne/v2"
+	"fyne.io/fyne/v2/test"
+	"fyne.io/fyne/v2/widget"
 	"os"
 	"os/exec"
 	"path/filepath"
@@ -53,7 +57,11 @@ for root, _, files in sorted(os.walk(src)):
 // pydicom) is refused by analyze and report with both studies named and
 // the way to choose; --study analyses the one chosen, with the same
 // figures as that study's folder alone.
-func TestAnalyzeTwoStudies(t *testing.T) {
+// twoStudies writes the three-sonication cut of the demo (our writer)
+// and a folder holding it twice, written by pydicom: unchanged and as a
+// second study of another invented patient (PatientID SIM-OTHER).
+func twoStudies(t *testing.T) (single, mixed string) {
+	t.Helper()
 	py := ""
 	for _, p := range []string{"python3", "/usr/bin/python3"} {
 		if exec.Command(p, "-c", "import pydicom").Run() == nil {
@@ -67,13 +75,18 @@ func TestAnalyzeTwoStudies(t *testing.T) {
 		}
 		t.Skip("python3 with pydicom not found; skipping")
 	}
-	single := demoCase(t)
-	mixed := filepath.Join(t.TempDir(), "mixed")
+	single = demoCase(t)
+	mixed = filepath.Join(t.TempDir(), "mixed")
 	for _, a := range [][]string{{"same", "a-"}, {"SIM-OTHER", "b-"}} {
 		if out, err := exec.Command(py, "-c", restudy, single, mixed, a[0], a[1]).CombinedOutput(); err != nil {
 			t.Fatalf("pydicom: %v\n%s", err, out)
 		}
 	}
+	return single, mixed
+}
+
+func TestAnalyzeTwoStudies(t *testing.T) {
+	single, mixed := twoStudies(t)
 	var out, errb bytes.Buffer
 	if code := run([]string{"analyze", "--trials", "0", mixed}, &out, &errb); code != 1 {
 		t.Fatalf("two studies: exit %d, want 1\n%s", code, errb.String())
@@ -121,5 +134,66 @@ func TestAnalyzeTwoStudies(t *testing.T) {
 	}
 	if fig(alone.String()) != fig(chosen.String()) {
 		t.Errorf("the chosen study gives other figures than its folder alone:\n%s\n---\n%s", alone.String(), chosen.String())
+	}
+}
+
+// TestWindowStudyChooser opens a folder of two studies in the window:
+// nothing is read, a chooser lists both studies (patient and date), and
+// the study chosen is opened alone.
+func TestWindowStudyChooser(t *testing.T) {
+	_, mixed := twoStudies(t)
+	rw := testWindow(t)
+	mark := rw.completed.Load()
+	rw.openFolder(mixed, false)
+	waitJobs(t, rw, mark, 1)
+	if rw.loaded != nil {
+		t.Fatalf("a folder of two studies was opened as one case")
+	}
+	var pick *widget.RadioGroup
+	var open *widget.Button
+	var walk func(o fyne.CanvasObject)
+	walk = func(o fyne.CanvasObject) {
+		switch w := o.(type) {
+		case *widget.RadioGroup:
+			pick = w
+		case *widget.Button:
+			if w.Text == "Open" {
+				open = w
+			}
+		case *fyne.Container:
+			for _, ch := range w.Objects {
+				walk(ch)
+			}
+		}
+		if w, ok := o.(fyne.Widget); ok {
+			for _, ch := range test.WidgetRenderer(w).Objects() {
+				walk(ch)
+			}
+		}
+	}
+	for _, o := range rw.win.Canvas().Overlays().List() {
+		walk(o)
+	}
+	if pick == nil || open == nil || len(pick.Options) != 2 {
+		t.Fatalf("no study chooser shown")
+	}
+	if d := os.Getenv("DOSECOVER_SHOTS"); d != "" {
+		writePNG(t, filepath.Join(d, "study-chooser.png"), rw.win.Canvas().Capture())
+	}
+	choice := ""
+	for _, o := range pick.Options {
+		if strings.Contains(o, "DEMO-001") && strings.Contains(o, "2026-01-15") {
+			choice = o
+		}
+	}
+	if choice == "" || !strings.Contains(strings.Join(pick.Options, "\n"), "SIM-OTHER") {
+		t.Fatalf("chooser options %q do not name both patients", pick.Options)
+	}
+	pick.SetSelected(choice)
+	mark = rw.completed.Load()
+	test.Tap(open)
+	waitJobs(t, rw, mark, 1)
+	if rw.loaded == nil || rw.loaded.Case.Patient.ID != "DEMO-001" || rw.loaded.Study == "" || !strings.Contains(choice, rw.loaded.Study) {
+		t.Fatalf("the chosen study was not opened: %+v", rw.loaded)
 	}
 }

@@ -61,7 +61,8 @@ type SignOff struct {
 	Comment   string          `json:"comment,omitempty"`
 	Time      time.Time       `json:"time"`
 	InputHash string          `json:"input_sha256"`
-	Settings  json.RawMessage `json:"settings"` // SettingsJSON of the analysis
+	Study     string          `json:"study_uid,omitempty"` // StudyInstanceUID of the study analysed
+	Settings  json.RawMessage `json:"settings"`            // SettingsJSON of the analysis
 	Excluded  []int           `json:"excluded_sonications"`
 	Figures   Headline        `json:"figures"`
 	Version   string          `json:"dosecover_version,omitempty"`
@@ -93,10 +94,10 @@ func SettingsJSON(s Settings) (json.RawMessage, error) {
 	return b, nil
 }
 
-// NewSignOff returns the sign-off of the analysis r of the inputs with
-// hash inputHash. The outcome must be one of Outcomes and the reviewer
-// named.
-func NewSignOff(reviewer, outcome, comment, inputHash string, r *Result, at time.Time) (SignOff, error) {
+// NewSignOff returns the sign-off of the analysis r of the study study
+// ("" when unknown) read from the inputs with hash inputHash. The outcome
+// must be one of Outcomes and the reviewer named.
+func NewSignOff(reviewer, outcome, comment, inputHash, study string, r *Result, at time.Time) (SignOff, error) {
 	reviewer, comment = strings.TrimSpace(reviewer), strings.TrimSpace(comment)
 	if reviewer == "" {
 		return SignOff{}, fmt.Errorf("a sign-off needs the reviewer's name")
@@ -113,7 +114,7 @@ func NewSignOff(reviewer, outcome, comment, inputHash string, r *Result, at time
 	}
 	return SignOff{
 		Reviewer: reviewer, Outcome: outcome, Comment: comment, Time: at.UTC(),
-		InputHash: inputHash, Settings: set, Excluded: excludedOf(r.Settings),
+		InputHash: inputHash, Study: study, Settings: set, Excluded: excludedOf(r.Settings),
 		Figures: HeadlineOf(r), Version: dosemap.Version,
 	}, nil
 }
@@ -126,12 +127,16 @@ func excludedOf(s Settings) []int {
 }
 
 // Differences lists, in words for a person, what differs between the
-// analysis the sign-off was made on and the analysis r of the inputs with
-// hash inputHash; none means the sign-off applies to r.
-func (s SignOff) Differences(inputHash string, r *Result) []string {
+// analysis the sign-off was made on and the analysis r of study study read
+// from the inputs with hash inputHash; none means the sign-off applies to
+// r.
+func (s SignOff) Differences(inputHash, study string, r *Result) []string {
 	var d []string
 	if s.InputHash != inputHash {
 		d = append(d, fmt.Sprintf("input files differ (SHA-256 %s then, %s now)", short(s.InputHash), short(inputHash)))
+	}
+	if s.Study != study {
+		d = append(d, fmt.Sprintf("another study (%s then, %s now)", orUnknown(s.Study), orUnknown(study)))
 	}
 	if ex := excludedOf(r.Settings); !slices.Equal(excludedOf(Settings{Excluded: s.Excluded}), ex) {
 		d = append(d, fmt.Sprintf("sonications left out: %s then, %s now", intList(s.Excluded), intList(ex)))
@@ -167,21 +172,22 @@ type SignOffState struct {
 	Differences []string
 }
 
-// SignOffFor returns the sign-off state of the analysis r of the inputs
-// with hash inputHash among the sign-offs of a case (in any order).
-func SignOffFor(all []SignOff, inputHash string, r *Result) SignOffState {
+// SignOffFor returns the sign-off state of the analysis r of study study
+// read from the inputs with hash inputHash among the sign-offs of a case
+// (in any order).
+func SignOffFor(all []SignOff, inputHash, study string, r *Result) SignOffState {
 	var st SignOffState
 	for n := range all {
 		s := &all[n]
 		if st.Last == nil || s.Time.After(st.Last.Time) {
 			st.Last = s
 		}
-		if r != nil && len(s.Differences(inputHash, r)) == 0 && (st.Valid == nil || s.Time.After(st.Valid.Time)) {
+		if r != nil && len(s.Differences(inputHash, study, r)) == 0 && (st.Valid == nil || s.Time.After(st.Valid.Time)) {
 			st.Valid = s
 		}
 	}
 	if st.Last != nil && st.Last != st.Valid && r != nil {
-		st.Differences = st.Last.Differences(inputHash, r)
+		st.Differences = st.Last.Differences(inputHash, study, r)
 	}
 	return st
 }
@@ -295,6 +301,13 @@ func short(h string) string {
 		return "unknown"
 	}
 	return h
+}
+
+func orUnknown(s string) string {
+	if s == "" {
+		return "unknown"
+	}
+	return s
 }
 
 func intList(v []int) string {

@@ -18,13 +18,8 @@ import (
 
 // Options are the parts of a report that do not come from the analysis.
 type Options struct {
-	Deidentify bool   // hide identity: neutral case label, no scan date, generic sonication labels
-	Reviewer   string // who reviewed ("" not given)
-	// SignOffs are the sign-offs of the case: the report shows the one
-	// made on this very analysis (input hash, settings, left-out
-	// sonications and figures), or says it is not signed off for these
-	// settings and what differs from the last one.
-	SignOffs     []review.SignOff
+	Deidentify   bool      // hide identity: neutral case label, no scan date, generic sonication labels
+	Reviewer     string    // who reviewed ("" not given)
 	ReviewDate   time.Time // zero: now
 	InputsSHA256 string    // see HashFolder
 	PanelPixels  int       // side of each image panel in pixels; 0: 480
@@ -32,6 +27,14 @@ type Options struct {
 	// analysis that does not record them itself (Result.Thermometry); the
 	// zero value stands for dosemap.DefaultThermometryOptions().
 	Thermometry dosemap.ThermometryOptions
+	// SignOffs are the sign-offs of the case: the report shows the one
+	// made on this very analysis (input hash, study, settings, left-out
+	// sonications and figures), or says it is not signed off for these
+	// settings and what differs from the last one.
+	SignOffs []review.SignOff
+	// Study is the StudyInstanceUID of the study analysed ("" unknown),
+	// which a sign-off must name too.
+	Study string
 }
 
 // DeidentifiedLabel returns the neutral label a de-identified report shows
@@ -61,7 +64,7 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 		Software:     "dosecover " + dosemap.Version,
 		Cautions:     nil, // DefaultCautions
 	}
-	if st := review.SignOffFor(opt.SignOffs, opt.InputsSHA256, r); st.Last != nil {
+	if st := review.SignOffFor(opt.SignOffs, opt.InputsSHA256, opt.Study, r); st.Last != nil {
 		in.SignOff = st.Line(opt.Deidentify)
 		if st.Valid != nil {
 			in.SignOffComment = hide(st.Valid.Comment, c, opt.Deidentify)
