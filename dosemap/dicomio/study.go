@@ -179,6 +179,8 @@ func (cr *caseReader) chooseStudy(infos []*fileInfo, errs []error) bool {
 		switch {
 		case fi.StudyUID == inv.Study:
 			continue
+		case fi.StudyUID == "" && !(fi.IsImage || fi.Structures != nil):
+			continue // not used anyway; assemble says why
 		case fi.StudyUID == "":
 			errs[i] = skip("no StudyInstanceUID (0020,000D) while the case is %s: not used, so that no two studies are mixed", chosen.Label())
 		default:

@@ -60,8 +60,10 @@ type Case struct {
 // of one patient are two cases; a review never mixes studies.
 //
 // A study's folder is the deepest folder holding all its files, widened
-// upwards while the wider folder holds no other study (so a case keeps its
-// case folder however its series are arranged inside). When that folder
+// upwards while the wider folder holds no other study, up to a folder just
+// below the input (so a case keeps its case folder however its series are
+// arranged inside, and a registry's case keeps its name when other cases
+// are added beside it). When that folder
 // holds this study only, the case is every regular file below it (hidden
 // ones included: the input hash covers them) and its Name is the folder's
 // path; when it holds other studies too (a flat folder), the case is the
@@ -207,7 +209,7 @@ func studiesBelow(abs string) ([]Case, []string, error) {
 	dirOf := map[string]string{}
 	for _, uid := range uids {
 		d := commonDir(byStudy[uid])
-		for d != "" && len(under[parentDir(d)]) == 1 {
+		for d != "" && parentDir(d) != "" && len(under[parentDir(d)]) == 1 {
 			d = parentDir(d)
 		}
 		dirOf[uid] = d
