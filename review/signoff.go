@@ -146,8 +146,22 @@ func (s SignOff) Differences(inputHash, study string, r *Result) []string {
 		return append(d, err.Error())
 	}
 	d = append(d, settingsDiff(s.Settings, now)...)
-	if h := HeadlineOf(r); h != s.Figures {
-		d = append(d, fmt.Sprintf("figures: %s then, %s now", s.Figures, h))
+	h := HeadlineOf(r)
+	for _, f := range []struct {
+		name      string
+		then, now float64
+		unit      string
+	}{
+		{"covered, of the monitored target", s.Figures.CoveredMonitoredPct, h.CoveredMonitoredPct, "%"},
+		{"covered, of the whole target", s.Figures.CoveredTargetPct, h.CoveredTargetPct, "%"},
+		{"not monitored", s.Figures.NotMonitoredPct, h.NotMonitoredPct, "%"},
+		{"holes", float64(s.Figures.Holes), float64(h.Holes), ""},
+		{"lethal outside the margin", s.Figures.OutsideMarginML, h.OutsideMarginML, "mL"},
+		{"lethal volume", s.Figures.LethalML, h.LethalML, "mL"},
+	} {
+		if f.then != f.now {
+			d = append(d, strings.TrimSpace(fmt.Sprintf("%s: %g %s then, %g %s now", f.name, f.then, f.unit, f.now, f.unit)))
+		}
 	}
 	return d
 }
