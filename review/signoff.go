@@ -160,7 +160,8 @@ func (s SignOff) Differences(inputHash, study string, r *Result) []string {
 		{"lethal volume", s.Figures.LethalML, h.LethalML, "mL"},
 	} {
 		if f.then != f.now {
-			d = append(d, strings.TrimSpace(fmt.Sprintf("%s: %g %s then, %g %s now", f.name, f.then, f.unit, f.now, f.unit)))
+			v := func(x float64) string { return strings.TrimSpace(fmt.Sprintf("%g %s", x, f.unit)) }
+			d = append(d, fmt.Sprintf("%s: %s then, %s now", f.name, v(f.then), v(f.now)))
 		}
 	}
 	return d
