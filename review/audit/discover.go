@@ -324,22 +324,9 @@ func hiddenPath(rel string) bool {
 	return false
 }
 
-// firstStudyUID returns the StudyInstanceUID of the first file of c that
-// parses as DICOM, or "" when none does. A parser panic on a malformed file
-// counts as "not DICOM".
-func firstStudyUID(c Case) string {
-	for _, rel := range c.Files {
-		p := filepath.Join(c.Dir, filepath.FromSlash(rel))
-		if ok, _ := IsDICOMFile(p); !ok {
-			continue
-		}
-		if uid := studyUIDOf(p); uid != "" {
-			return uid
-		}
-	}
-	return ""
-}
-
+// studyUIDOf returns the StudyInstanceUID of the DICOM file at path, or ""
+// when it has none or cannot be parsed (a parser panic on a malformed file
+// counts as unreadable).
 func studyUIDOf(path string) (uid string) {
 	defer func() {
 		if recover() != nil {
@@ -358,53 +345,6 @@ func studyUIDOf(path string) (uid string) {
 		return strings.TrimSpace(strings.TrimRight(v[0], "\x00"))
 	}
 	return ""
-}
-
-// holdsDICOMDirectly reports whether dir itself (not a subfolder) holds a
-// DICOM file.
-func holdsDICOMDirectly(dir string) (bool, error) {
-	entries, err := os.ReadDir(dir)
-	if err != nil {
-		return false, err
-	}
-	for _, e := range entries {
-		if strings.HasPrefix(e.Name(), ".") || e.IsDir() {
-			continue
-		}
-		if ok, _ := IsDICOMFile(filepath.Join(dir, e.Name())); ok {
-			return true, nil
-		}
-	}
-	return false, nil
-}
-
-var errFound = errors.New("found")
-
-// holdsDICOMBelow reports whether dir or any folder below it holds a DICOM
-// file; it stops at the first one.
-func holdsDICOMBelow(dir string) (bool, error) {
-	err := filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {
-		if err != nil {
-			return err
-		}
-		if strings.HasPrefix(d.Name(), ".") && p != dir {
-			if d.IsDir() {
-				return filepath.SkipDir
-			}
-			return nil
-		}
-		if d.IsDir() {
-			return nil
-		}
-		if ok, _ := IsDICOMFile(p); ok {
-			return errFound
-		}
-		return nil
-	})
-	if err == errFound {
-		return true, nil
-	}
-	return false, err
 }
 
 // collect lists the files of the case in dir: every regular file below it
