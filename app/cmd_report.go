@@ -116,8 +116,8 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
 		return 1
 	}
-	fmt.Fprintf(stdout, "%s: covered %.1f %% of the monitored target at %g %s (margin %g mm)\n",
-		in.CaseLabel, 100*r.CoveredFraction, r.Threshold, r.DoseUnit, r.MarginMM)
+	fmt.Fprintf(stdout, "%s: covered %.1f %% of the monitored target (%.1f %% of the whole target) at %g %s (margin %g mm)\n",
+		in.CaseLabel, 100*r.CoveredFraction, 100*r.CoveredFractionOfTarget, r.Threshold, r.DoseUnit, r.MarginMM)
 	for _, p := range []string{out.PNG, out.PDF, out.JSON, out.CSV} {
 		if p != "" {
 			fmt.Fprintf(stdout, "wrote %s\n", p)
