@@ -4,15 +4,20 @@ package main
 
 import (
 	"bytes"
-
-	"fyne.io/fyne/v2"
-	"fyne.io/fyne/v2/test"
-	"fyne.io/fyne/v2/widget"
+	"encoding/json"
 	"os"
 	"os/exec"
 	"path/filepath"
 	"strings"
 	"testing"
+	"time"
+
+	"dosecover/dosemap/dicomio"
+	"dosecover/review"
+
+	"fyne.io/fyne/v2"
+	"fyne.io/fyne/v2/test"
+	"fyne.io/fyne/v2/widget"
 )
 
 // restudy copies the DICOM files of src into the flat folder dst with
@@ -195,5 +200,69 @@ func TestWindowStudyChooser(t *testing.T) {
 	waitJobs(t, rw, mark, 1)
 	if rw.loaded == nil || rw.loaded.Case.Patient.ID != "DEMO-001" || rw.loaded.Study == "" || !strings.Contains(choice, rw.loaded.Study) {
 		t.Fatalf("the chosen study was not opened: %+v", rw.loaded)
+	}
+}
+
+// TestReportSignOffStale: a sign-off recorded for the analysis of a case
+// with the default settings is printed by "dosecover report" with those
+// settings (its comment too) and not with another margin, which is named.
+func TestReportSignOffStale(t *testing.T) {
+	dir := demoCase(t)
+	store := t.TempDir()
+	old := reviewsDir
+	reviewsDir = func() (string, error) { return store, nil }
+	t.Cleanup(func() { reviewsDir = old })
+	set := review.DefaultSettings()
+	set.Trials = 0
+	c, inv, err := dicomio.Load(t.Context(), dir, dicomio.LoadOptions{}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	r, err := review.Analyze(t.Context(), c, set, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	hash, n, err := hashInputs(t.Context(), dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	so, err := review.NewSignOff("A. Reviewer", review.OutcomeAccepted, "holes at the edge reviewed", hash, inv.Study, r, time.Date(2026, 5, 4, 13, 30, 0, 0, time.UTC))
+	if err != nil {
+		t.Fatal(err)
+	}
+	rec := &reviewRecord{InputHash: hash, Files: n, Settings: defaultSettings(), SignOffs: []review.SignOff{so}}
+	if err := rec.save(); err != nil {
+		t.Fatal(err)
+	}
+	metrics := func(args ...string) map[string]any {
+		js := filepath.Join(t.TempDir(), "m.json")
+		var out, errb bytes.Buffer
+		if code := run(append([]string{"report", dir, "--trials", "0", "--json", js}, args...), &out, &errb); code != 0 {
+			t.Fatalf("report %v: exit %d: %s", args, code, errb.String())
+		}
+		b, err := os.ReadFile(js)
+		if err != nil {
+			t.Fatal(err)
+		}
+		var m map[string]any
+		if err := json.Unmarshal(b, &m); err != nil {
+			t.Fatal(err)
+		}
+		return m
+	}
+	m := metrics()
+	if so, _ := m["sign_off"].(string); !strings.HasPrefix(so, "signed off by A. Reviewer on 2026-05-04 13:30 UTC: coverage accepted") {
+		t.Errorf("same settings: sign-off %q", so)
+	}
+	if c, _ := m["sign_off_comment"].(string); c != "holes at the edge reviewed" {
+		t.Errorf("same settings: comment %q", c)
+	}
+	m = metrics("--margin", "5")
+	so2, _ := m["sign_off"].(string)
+	if !strings.HasPrefix(so2, "not signed off for these settings (last sign-off by A. Reviewer on 2026-05-04 13:30 UTC") || !strings.Contains(so2, "margin (mm): 3 then, 5 now") {
+		t.Errorf("another margin: sign-off %q", so2)
+	}
+	if _, ok := m["sign_off_comment"]; ok {
+		t.Errorf("another margin: the comment of a sign-off that does not apply is printed")
 	}
 }
