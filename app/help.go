@@ -3,10 +3,11 @@
 package main
 
 import (
-	"dosecover/review"
 	"fmt"
 	"strings"
 	"time"
+
+	"dosecover/review"
 
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/container"

@@ -5,7 +5,6 @@ package main
 import (
 	"context"
 	"crypto/sha256"
-	"dosecover/review"
 	"encoding/hex"
 	"math"
 	"os"
@@ -15,6 +14,7 @@ import (
 	"time"
 
 	"dosecover/dosemap"
+	"dosecover/review"
 	"dosecover/review/report"
 
 	"fyne.io/fyne/v2/test"

@@ -3,7 +3,6 @@
 package main
 
 import (
-	"dosecover/review"
 	"encoding/json"
 	"image"
 	"image/png"
@@ -16,6 +15,7 @@ import (
 	"time"
 
 	"dosecover/dosemap"
+	"dosecover/review"
 
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/storage"
