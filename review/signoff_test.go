@@ -51,6 +51,7 @@ func TestSignOffStale(t *testing.T) {
 		{"margin", func(s *review.Settings) { s.MarginMM = 5 }, "abc123", "2.25.7", []string{"margin (mm): 3 then, 5 now"}},
 		{"body temperature", func(s *review.Settings) { s.Thermometry.BodyTemp = 36 }, "abc123", "2.25.7", []string{"thermometry", "37 then, 36 now"}},
 		{"R above the break", func(s *review.Settings) { s.CEM43.RAbove = 0.6 }, "abc123", "2.25.7", []string{"CEM43 model", "0.5 then, 0.6 now"}},
+		{"drift reference", func(s *review.Settings) { s.Thermometry.Reference = []bool{true, false, true} }, "abc123", "2.25.7", []string{"thermometry reference sha256: none then, "}},
 		{"left out", func(s *review.Settings) { s.Excluded = []int{2} }, "abc123", "2.25.7", []string{"sonications left out: none then, 2 now"}},
 		{"inputs", func(s *review.Settings) {}, "def456", "2.25.7", []string{"input files differ"}},
 		{"study", func(s *review.Settings) {}, "abc123", "2.25.8", []string{"another study (2.25.7 then, 2.25.8 now)"}},
