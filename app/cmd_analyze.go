@@ -1,5 +1,3 @@
-//go:build cgo
-
 package main
 
 import (
@@ -23,7 +21,7 @@ func init() {
 //
 //	dosecover analyze CASE_DIR [--json FILE] [--threshold T] [--margin M]
 //	    [--model cem43|arrhenius] [--exclude N,...] [--trials N] [--seed S]
-//	    [--contours FILE] [--target NAME]
+//	    [--contours FILE] [--target NAME] [--study UID]
 //
 // It prints a summary of the figures and of the settings used; exit code 0
 // when the analysis ran, 1 when it could not (reason printed), 2 for a
@@ -34,6 +32,7 @@ func runAnalyze(args []string, stdout, stderr io.Writer) int {
 	jsonPath := fs.String("json", "", "also write the full result as JSON to `FILE` (\"-\": to standard output instead of the summary)")
 	sf := addStructureFlags(fs)
 	af := addAnalysisFlags(fs)
+	study := addStudyFlag(fs)
 	deidentify := fs.Bool("deidentify", false, "hide identity in the outputs: neutral case label, sonications by number, patient identity blanked out of names and warnings")
 	fs.Usage = func() {
 		fmt.Fprintln(stderr, "usage: dosecover analyze CASE_DIR [--json FILE] [--threshold T] [--margin M] [--model cem43|arrhenius] [options]")
@@ -50,23 +49,23 @@ func runAnalyze(args []string, stdout, stderr io.Writer) int {
 	if len(pos) != 1 {
 		fmt.Fprintf(stderr, "dosecover analyze: one case folder expected, got %d arguments\n", len(pos))
 		fs.Usage()
-		return 2
+		return exitUsage
 	}
 	dir := pos[0]
 	set, err := af.settings()
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover analyze: %v\n", err)
-		return 2
+		return settingsExitCode(err)
 	}
 	if err := safefile.CheckDir("case folder", dir); err != nil {
 		fmt.Fprintf(stderr, "dosecover analyze: %v\n", err)
-		return 1
+		return exitFailure
 	}
 	if *jsonPath != "" && *jsonPath != "-" {
 		// Refuse before any work.
 		if err := review.WriteOutside(*jsonPath, dir, nil); err != nil {
 			fmt.Fprintf(stderr, "dosecover analyze: cannot write %s: %v\n", *jsonPath, err)
-			return 1
+			return exitFailure
 		}
 	}
 	if *deidentify {
@@ -74,15 +73,15 @@ func runAnalyze(args []string, stdout, stderr io.Writer) int {
 	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
 	defer stop()
-	c, res, code := loadAndAnalyze(ctx, "analyze", dir, sf, set, stderr)
+	c, res, _, code := loadAndAnalyze(ctx, "analyze", dir, *study, sf, set, stderr)
 	if code != 0 {
 		return code
 	}
 	if *deidentify {
-		sum, err := report.HashFolder(dir)
+		sum, _, err := review.HashInputs(ctx, dir)
 		if err != nil {
 			fmt.Fprintf(stderr, "dosecover analyze: %v\n", err)
-			return 1
+			return exitFailure
 		}
 		res = report.DeidentifyResult(c, res, report.DeidentifiedLabel(c.Label, sum))
 	}
@@ -90,19 +89,19 @@ func runAnalyze(args []string, stdout, stderr io.Writer) int {
 	case "-":
 		if err := res.WriteJSON(stdout); err != nil {
 			fmt.Fprintf(stderr, "dosecover analyze: writing JSON: %v\n", err)
-			return 1
+			return exitFailure
 		}
-		return 0
+		return exitOK
 	case "":
 	default:
 		if err := review.WriteOutside(*jsonPath, dir, res.WriteJSON); err != nil {
 			fmt.Fprintf(stderr, "dosecover analyze: writing %s: %v\n", *jsonPath, err)
-			return 1
+			return exitFailure
 		}
 	}
 	if err := res.WriteText(stdout); err != nil {
 		fmt.Fprintf(stderr, "dosecover analyze: %v\n", err)
-		return 1
+		return exitFailure
 	}
-	return 0
+	return exitOK
 }

@@ -1,5 +1,3 @@
-//go:build cgo
-
 package main
 
 import (
@@ -25,8 +23,9 @@ func runDeidentify(args []string, stdout, stderr io.Writer) int {
 	shift := fs.Int("shift-days", 0, "date offset in days for --dates shift (0: derived from the salt, between -3650 and -366)")
 	salt := fs.String("salt", "", "secret keying the new UIDs, date offset and label (empty: random, so the copy cannot be linked back)")
 	label := fs.String("label", "", "replacement patient name and ID (empty: TEACHING-<8 hex digits>)")
+	study := addStudyFlag(fs)
 	fs.Usage = func() {
-		fmt.Fprintln(stderr, "usage: dosecover deidentify CASE_DIR OUT_DIR [--dates shift|remove] [--shift-days N] [--salt S] [--label L]")
+		fmt.Fprintln(stderr, "usage: dosecover deidentify CASE_DIR OUT_DIR [--dates shift|remove] [--shift-days N] [--salt S] [--label L] [--study UID]")
 		fmt.Fprintln(stderr, "Writes a copy of every DICOM file of CASE_DIR into OUT_DIR (new or empty, not inside")
 		fmt.Fprintln(stderr, "CASE_DIR) with identity removed: DICOM PS3.15 Annex E basic profile, UIDs replaced")
 		fmt.Fprintln(stderr, "consistently, private attributes removed. Other files are not copied. CASE_DIR is not changed.")
@@ -39,23 +38,23 @@ func runDeidentify(args []string, stdout, stderr io.Writer) int {
 	if len(pos) != 2 {
 		fmt.Fprintf(stderr, "dosecover deidentify: CASE_DIR and OUT_DIR expected, got %d arguments\n", len(pos))
 		fs.Usage()
-		return 2
+		return exitUsage
 	}
 	mode, err := deid.ParseDateMode(*dates)
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover deidentify: --dates: %v\n", err)
-		return 2
+		return exitUsage
 	}
 	if *shift != 0 && mode != deid.DatesShift {
 		fmt.Fprintln(stderr, "dosecover deidentify: --shift-days needs --dates shift")
-		return 2
+		return exitUsage
 	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
 	defer stop()
-	res, err := deid.Folder(ctx, pos[0], pos[1], deid.Options{Salt: *salt, Dates: mode, ShiftDays: *shift, Label: *label}, nil)
+	res, err := deid.Folder(ctx, pos[0], pos[1], deid.Options{Salt: *salt, Dates: mode, ShiftDays: *shift, Label: *label, Study: *study}, nil)
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover deidentify: %v\n", err)
-		return 1
+		return exitFailure
 	}
 	fmt.Fprintf(stdout, "wrote %d de-identified DICOM files to %s\n", len(res.Files), pos[1])
 	if res.Dates == deid.DatesShift {
@@ -68,5 +67,5 @@ func runDeidentify(args []string, stdout, stderr io.Writer) int {
 		// shown blanked of the identifying values found in the case.
 		fmt.Fprintf(stdout, "not copied: %s: %s\n", s.Shown, s.Reason)
 	}
-	return 0
+	return exitOK
 }

@@ -1,5 +1,3 @@
-//go:build cgo
-
 package main
 
 import (
@@ -13,6 +11,7 @@ import (
 	"time"
 
 	"dosecover/dosemap/safefile"
+	"dosecover/review"
 	"dosecover/review/report"
 )
 
@@ -33,9 +32,9 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	csv := fs.String("csv", "", "also write every metric as CSV (name,value,unit)")
 	deidentify := fs.Bool("deidentify", false, "hide identity: neutral case label, no scan date, generic sonication labels")
 	reviewer := fs.String("reviewer", "", "name of the reviewer, printed in the header")
-	signoff := fs.String("sign-off", "", "sign-off statement, printed in the header")
 	dpi := fs.Int("dpi", report.DefaultDPI, "resolution of the PNG, 150 to 1200 dots per inch")
 	af := addAnalysisFlags(fs)
+	study := addStudyFlag(fs)
 	sf := addStructureFlags(fs)
 	fs.Usage = func() {
 		fmt.Fprintln(stderr, "usage: dosecover report CASE_DIR -o report.png [--pdf report.pdf] [--json metrics.json] [--csv metrics.csv] [--deidentify] [options]")
@@ -50,22 +49,22 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	if len(pos) != 1 {
 		fmt.Fprintf(stderr, "dosecover report: one case folder expected, got %d arguments\n", len(pos))
 		fs.Usage()
-		return 2
+		return exitUsage
 	}
 	dir := pos[0]
 	out := report.Outputs{PNG: *png, PDF: *pdf, JSON: *js, CSV: *csv, DPI: *dpi}
 	if out.PNG == "" && out.PDF == "" && out.JSON == "" && out.CSV == "" {
 		fmt.Fprintln(stderr, "dosecover report: give at least one output (-o report.png, --pdf, --json or --csv)")
-		return 2
+		return exitUsage
 	}
 	if *dpi < 150 || *dpi > 1200 {
 		fmt.Fprintf(stderr, "dosecover report: --dpi %d: want 150 (legible in print) to 1200\n", *dpi)
-		return 2
+		return exitUsage
 	}
 	set, err := af.settings()
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
-		return 2
+		return settingsExitCode(err)
 	}
 	// Refuse outputs inside the case folder before any work.
 	for _, p := range []string{out.PNG, out.PDF, out.JSON, out.CSV} {
@@ -74,11 +73,11 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 		}
 		if err := safefile.CheckOutside(dir, p); err != nil {
 			fmt.Fprintf(stderr, "dosecover report: %v\n", err)
-			return 1
+			return exitFailure
 		}
 		if err := safefile.CheckDir("output folder", filepath.Dir(p)); err != nil {
 			fmt.Fprintf(stderr, "dosecover report: cannot write %s: %v\n", p, err)
-			return 1
+			return exitFailure
 		}
 	}
 	if *deidentify {
@@ -86,34 +85,58 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
 	defer stop()
-	c, r, code := loadAndAnalyze(ctx, "report", dir, sf, set, stderr)
+	c, r, studyUID, code := loadAndAnalyze(ctx, "report", dir, *study, sf, set, stderr)
 	if code != 0 {
 		return code
 	}
-	sum, err := report.HashFolder(dir)
+	sum, _, err := review.HashInputs(ctx, dir)
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
-		return 1
+		return exitFailure
+	}
+	// The sign-offs made in the window on these very input files: the
+	// report prints one only when it was made on this analysis.
+	rec, err := loadRecord(sum)
+	if err != nil {
+		fmt.Fprintf(stderr, "dosecover report: warning: %v; no sign-off is shown\n", err)
+	}
+	var signOffs []review.SignOff
+	if rec != nil {
+		signOffs = rec.SignOffs
 	}
 	px := report.PanelSize(float64(*dpi)).X // panels at the page's resolution
 	in, err := report.FromResult(c, r, report.Options{
-		Deidentify: *deidentify, Reviewer: *reviewer, SignOff: *signoff,
+		Deidentify: *deidentify, Reviewer: *reviewer, SignOffs: signOffs, Study: studyUID,
 		ReviewDate: time.Now().UTC().Truncate(time.Second), InputsSHA256: sum, PanelPixels: px,
 	})
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
-		return 1
+		return exitFailure
 	}
 	if err := report.Write(in, dir, out); err != nil {
 		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
-		return 1
+		return exitFailure
 	}
-	fmt.Fprintf(stdout, "%s: covered %.1f %% of the monitored target at %g %s (margin %g mm)\n",
-		in.CaseLabel, 100*r.CoveredFraction, r.Threshold, r.DoseUnit, r.MarginMM)
+	fmt.Fprintf(stdout, "%s: covered %.1f %% of the monitored target (%.1f %% of the whole target) at %g %s (margin %g mm)\n",
+		in.CaseLabel, 100*r.CoveredFraction, 100*r.CoveredFractionOfTarget, r.Threshold, r.DoseUnit, r.MarginMM)
 	for _, p := range []string{out.PNG, out.PDF, out.JSON, out.CSV} {
 		if p != "" {
 			fmt.Fprintf(stdout, "wrote %s\n", p)
 		}
+		if p != "" && p == out.PNG {
+			for n := 2; n <= report.Pages(in); n++ {
+				fmt.Fprintf(stdout, "wrote %s (page %d of %d)\n", report.PagePNG(p, n), n, report.Pages(in))
+			}
+		}
 	}
-	return 0
+	fmt.Fprintf(stdout, "sign-off: %s\n", orText(in.SignOff, "not signed off"))
+	return exitOK
+}
+
+// orText returns s, or alt when s is empty.
+func orText(s, alt string) string {
+	if s == "" {
+		return alt
+	}
+	return s
 }

@@ -81,6 +81,8 @@ func (d *Deidentifier) copyFile(src string, w io.Writer) error {
 // are named 00001.dcm, 00002.dcm, ... in the sorted order of their source
 // paths (original names may carry identity). Files that are not DICOM are
 // not copied and are listed in Result.Skipped, as are symbolic links
+// and the files of other studies than Options.Study (a folder of several
+// studies and no Options.Study is refused, each study named)
 // (not followed); a DICOM file that cannot be de-identified stops the run
 // with an error naming it and leaves nothing behind: the copy is written
 // into a temporary folder beside dstDir and renamed into place when
@@ -134,6 +136,7 @@ func Folder(ctx context.Context, srcDir, dstDir string, opt Options, progress fu
 	// of the whole case, so that a name in one file is also cleaned from
 	// the descriptions of another.
 	var dicoms []string
+	var sets []dicom.Dataset
 	for _, p := range paths {
 		if err := ctx.Err(); err != nil {
 			return nil, err
@@ -143,9 +146,18 @@ func Folder(ctx context.Context, srcDir, dstDir string, opt Options, progress fu
 			res.Skipped = append(res.Skipped, Skipped{Path: p, Reason: err.Error()})
 			continue
 		}
-		d.Collect(&ds)
+		sets = append(sets, ds)
 		dicoms = append(dicoms, p)
 	}
+	// One copy holds one study: never two patients under one label.
+	dicoms, sets, err = oneStudy(dicoms, sets, opt.Study, res)
+	if err != nil {
+		return nil, err
+	}
+	for n := range sets {
+		d.Collect(&sets[n])
+	}
+	sets = nil
 	if len(dicoms) == 0 {
 		return nil, fmt.Errorf("no DICOM file found in %s", srcDir)
 	}

@@ -3,6 +3,7 @@ package dicomio
 import (
 	"math"
 	"os"
+	"os/exec"
 	"path/filepath"
 	"strings"
 	"testing"
@@ -81,7 +82,7 @@ func asFileError(err error, fe **fileError) bool {
 }
 
 // MR_small.dcm and its re-encodings: values read with pydicom 2.3.1
-// (/work/shared/reference/check-values.md): 64×64 int16, PixelSpacing
+// (testdata/check-values.md): 64×64 int16, PixelSpacing
 // 0.3125, IPP (-83.9063, -91.2, 6.6406), axial; stored min 127, max 2145,
 // sum 2125338, pixel[0,0] 905. Exact integer comparisons.
 func TestPydicomMRSmall(t *testing.T) {
@@ -189,15 +190,35 @@ func shoelace(p []dosemap.Vec3) float64 {
 	return math.Abs(s) / 2
 }
 
-// MR_small and rtstruct.dcm come from different frames of reference: read
-// together (symbolic links, so the files are read in place) they must be
-// reported as unrelated.
+// MR_small and rtstruct.dcm come from different studies and frames of
+// reference. Read together (MR_small through a symbolic link, so it is
+// read in place) they are two studies and refused; with rtstruct.dcm
+// rewritten by pydicom into MR_small's study they are one study whose
+// positions must be reported as unrelated.
 func TestPydicomFrameOfReferenceMismatch(t *testing.T) {
 	dir := t.TempDir()
 	for _, name := range []string{"MR_small.dcm", "rtstruct.dcm"} {
 		if err := os.Symlink(pydicomFile(t, name), filepath.Join(dir, name)); err != nil {
 			t.Skipf("symbolic links unavailable: %v", err)
 		}
+	}
+	_, inv, err := Load(t.Context(), dir, LoadOptions{}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !inv.NeedsStudyChoice() || len(inv.Studies) != 2 {
+		t.Fatalf("two studies not refused: %+v %q", inv.Studies, inv.NotReviewable)
+	}
+	py := pydicomPython(t)
+	rt := filepath.Join(dir, "rtstruct.dcm")
+	os.Remove(rt)
+	script := "import sys, pydicom\n" +
+		"mr = pydicom.dcmread(sys.argv[1], stop_before_pixels=True)\n" +
+		"rt = pydicom.dcmread(sys.argv[2], force=True)\n" +
+		"rt.StudyInstanceUID = mr.StudyInstanceUID\n" +
+		"rt.save_as(sys.argv[3], write_like_original=True)\n"
+	if out, err := exec.Command(py, "-c", script, pydicomFile(t, "MR_small.dcm"), pydicomFile(t, "rtstruct.dcm"), rt).CombinedOutput(); err != nil {
+		t.Fatalf("pydicom: %v\n%s", err, out)
 	}
 	c, inv, err := Load(t.Context(), dir, LoadOptions{}, nil)
 	if err != nil {
