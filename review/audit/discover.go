@@ -42,10 +42,6 @@ type Case struct {
 	// InputSHA256 is the case's InputHash; Run sets it before it calls the
 	// Analyzer.
 	InputSHA256 string
-	// Skipped lists the entries below Dir that are not regular files
-	// (symbolic links, FIFOs, devices, sockets) as "relative path: reason";
-	// they are not read and not hashed.
-	Skipped []string
 	// Study is the StudyInstanceUID (0020,000D) of the case's study; ""
 	// when its DICOM files carry none that could be read.
 	Study string
@@ -161,6 +157,17 @@ func studiesBelow(abs string) ([]Case, []string, error) {
 			return nil
 		}
 		if !d.Type().IsRegular() {
+			if !d.IsDir() {
+				// Listed, not read (a FIFO would block a reader) and not
+				// hashed.
+				reason := dicomio.SpecialFileReason(d.Type())
+				if d.Type()&fs.ModeSymlink != 0 {
+					if reason = dicomio.LinkReason(p); reason == "" {
+						reason = "symbolic link, not followed"
+					}
+				}
+				problems = append(problems, fmt.Sprintf("%s: %s", p, reason))
+			}
 			return nil
 		}
 		fi, err := d.Info()
@@ -359,16 +366,6 @@ func collect(dir, name string) (Case, error) {
 			return err
 		}
 		if !d.Type().IsRegular() {
-			if !d.IsDir() {
-				rel, _ := filepath.Rel(dir, p)
-				reason := dicomio.SpecialFileReason(d.Type())
-				if d.Type()&fs.ModeSymlink != 0 {
-					if reason = dicomio.LinkReason(p); reason == "" {
-						reason = "symbolic link, not followed"
-					}
-				}
-				c.Skipped = append(c.Skipped, filepath.ToSlash(rel)+": "+reason)
-			}
 			return nil
 		}
 		fi, err := d.Info()

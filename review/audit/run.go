@@ -198,14 +198,11 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 		return nil, err
 	}
 	cases := cfg.Shard.Select(all)
-	for _, c := range cases {
-		for _, s := range c.Skipped {
-			if cfg.Deidentify {
-				// Names below a case folder may carry identity.
-				problems = append(problems, fmt.Sprintf("a file of a case was not read: %s", s[strings.LastIndex(s, ": ")+2:]))
-				continue
-			}
-			problems = append(problems, filepath.Join(c.Dir, s))
+	if cfg.Deidentify {
+		// Names below an input folder may carry identity: a problem
+		// keeps its reason only.
+		for n, p := range problems {
+			problems[n] = "a file or folder of an input was not read: " + p[strings.LastIndex(p, ": ")+2:]
 		}
 	}
 	sum := &Summary{Problems: problems, Header: Header(cfg.SettingsColumns)}
