@@ -16,11 +16,12 @@ import (
 const LockFile = ".audit.lock"
 
 // lockOutDir takes a run's lock on outDir: a whole run holds it alone; the
-// shards of one audit share it. alone reports whether no other run holds
-// it, so that the leftovers of killed runs may be removed. A whole run
+// shards of one audit share it. When no other run holds it, alone is
+// true and clean (the removal of the leftovers of killed runs) runs while
+// the lock is still held alone, before a shard shares it. A whole run
 // while another run writes there, or a shard while a whole run does, is
 // refused with an error naming the folder. release ends the lock.
-func lockOutDir(outDir, given string, shard bool) (release func(), alone bool, err error) {
+func lockOutDir(outDir, given string, shard bool, clean func() error) (release func(), alone bool, err error) {
 	p := filepath.Join(outDir, LockFile)
 	f, err := os.OpenFile(p, os.O_RDWR|os.O_CREATE, 0o644)
 	if err != nil {
@@ -50,9 +51,16 @@ func lockOutDir(outDir, given string, shard bool) (release func(), alone bool, e
 	switch {
 	case err == nil:
 		alone = true
+		if clean != nil {
+			// Alone: no other run can be writing, so the leftovers may go.
+			if err := clean(); err != nil {
+				f.Close()
+				return nil, false, err
+			}
+		}
 		if shard {
-			// Alone for now: the leftovers may go; then share the lock
-			// with the other shards.
+			// Then share the lock with the other shards (the kernel
+			// converts it without letting another lock in between).
 			if err := flock(syscall.LOCK_SH); err != nil {
 				return nil, false, busy(err)
 			}

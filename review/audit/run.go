@@ -3,6 +3,7 @@ package audit
 import (
 	"context"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"hash/fnv"
 	"io"
@@ -216,16 +217,15 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 	// One whole run at a time in an output folder, or the shards of one
 	// audit together; leftovers of killed runs are removed only by a run
 	// that holds the folder alone, so no live run loses its files.
-	release, alone, err := lockOutDir(outDir, cfg.OutDir, sharded)
+	release, _, err := lockOutDir(outDir, cfg.OutDir, sharded, func() error { return removeTemps(outDir, 0) })
 	if err != nil {
-		return nil, err
+		var ue *UsageError
+		if errors.As(err, &ue) {
+			return nil, err
+		}
+		return sum, err
 	}
 	defer release()
-	if alone {
-		if err := removeTemps(outDir, 0); err != nil {
-			return sum, err
-		}
-	}
 	var index map[string]*Record
 	if cfg.Resume {
 		index = resumeIndex(outDir)

@@ -85,7 +85,7 @@ func TestRunsShareAFolderOnlyAsShards(t *testing.T) {
 	live := filepath.Join(out, "cases", "x", tempPrefix+"case.json.77.tmp")
 	writeFiles(t, out, map[string][]byte{"cases/x/" + tempPrefix + "case.json.77.tmp": []byte("being written")})
 
-	release, alone, err := lockOutDir(out, out, true) // a shard in progress
+	release, alone, err := lockOutDir(out, out, true, nil) // a shard in progress
 	if err != nil || !alone {
 		t.Fatalf("first shard: alone %v, %v", alone, err)
 	}
@@ -112,7 +112,7 @@ func TestRunsShareAFolderOnlyAsShards(t *testing.T) {
 	}
 	// And the other way round: a shard is refused while a whole run holds
 	// the folder.
-	release, _, err = lockOutDir(out, out, false)
+	release, _, err = lockOutDir(out, out, false, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
