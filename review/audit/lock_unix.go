@@ -8,12 +8,21 @@ import (
 	"os"
 	"path/filepath"
 	"syscall"
+	"time"
 )
 
 // LockFile is the file in an output folder that runs lock while they
 // write there (flock(2); the lock goes with the process, so a killed run
 // leaves none behind).
 const LockFile = ".audit.lock"
+
+// A shard that finds the lock held alone tries shareTries more times,
+// shareWait apart (5 s in all), before it takes the holder for a whole
+// run.
+const (
+	shareTries = 100
+	shareWait  = 50 * time.Millisecond
+)
 
 // lockOutDir takes a run's lock on outDir: a whole run holds it alone; the
 // shards of one audit share it. When no other run holds it, alone is
@@ -66,8 +75,18 @@ func lockOutDir(outDir, given string, shard bool, clean func() error) (release f
 			}
 		}
 	case shard && errors.Is(err, syscall.EWOULDBLOCK):
-		if err := flock(syscall.LOCK_SH); err != nil {
-			return nil, false, busy(err)
+		// Another shard may hold the lock alone for the moment it takes
+		// to clean; a whole run holds it to its end. So a shard tries
+		// for a few seconds before it gives up.
+		for tries := 0; ; tries++ {
+			err = flock(syscall.LOCK_SH)
+			if err == nil {
+				break
+			}
+			if !errors.Is(err, syscall.EWOULDBLOCK) || tries == shareTries {
+				return nil, false, busy(err)
+			}
+			time.Sleep(shareWait)
 		}
 	default:
 		return nil, false, busy(err)
