@@ -5,6 +5,7 @@ package main
 import (
 	"flag"
 	"fmt"
+	"math"
 	"strconv"
 	"strings"
 
@@ -22,10 +23,13 @@ type analysisFlags struct {
 	exclude   string
 	trials    int
 	seed      uint64
+
+	carryOver    bool
+	residualWarn float64
 }
 
 // addAnalysisFlags registers --threshold, --margin, --model, --exclude,
-// --trials and --seed on fs with review.DefaultSettings as defaults.
+// --trials, --seed, --carry-over and --residual-warn on fs with review.DefaultSettings as defaults.
 func addAnalysisFlags(fs *flag.FlagSet) *analysisFlags {
 	d := review.DefaultSettings()
 	a := &analysisFlags{}
@@ -35,6 +39,8 @@ func addAnalysisFlags(fs *flag.FlagSet) *analysisFlags {
 	fs.StringVar(&a.exclude, "exclude", "", "sonication numbers to leave out of the cumulative dose, comma-separated")
 	fs.IntVar(&a.trials, "trials", d.Trials, "Monte Carlo trials for the uncertainty band (0: none)")
 	fs.Uint64Var(&a.seed, "seed", d.Seed, "Monte Carlo seed")
+	fs.BoolVar(&a.carryOver, "carry-over", d.CarryOver, "add the estimated heat left from earlier sonications to each sonication's temperatures before dose (the report gives the as-measured coverage beside)")
+	fs.Float64Var(&a.residualWarn, "residual-warn", d.ResidualWarnC, "warn of sonications starting on more estimated residual heat than this, °C")
 	return a
 }
 
@@ -65,6 +71,10 @@ func (a *analysisFlags) settings() (review.Settings, error) {
 		return s, fmt.Errorf("--trials %d: want 0 to %d", a.trials, review.MaxTrials)
 	}
 	s.Trials, s.Seed = a.trials, a.seed
+	if !(a.residualWarn >= 0) || math.IsInf(a.residualWarn, 0) {
+		return s, fmt.Errorf("--residual-warn %g: want a temperature rise of 0 °C or more", a.residualWarn)
+	}
+	s.CarryOver, s.ResidualWarnC = a.carryOver, a.residualWarn
 	for _, f := range strings.FieldsFunc(a.exclude, func(r rune) bool { return r == ',' || r == ' ' }) {
 		n, err := strconv.Atoi(f)
 		if err != nil || n < 1 {
