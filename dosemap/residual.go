@@ -27,29 +27,29 @@ import (
 // u = e^{−w t}·v with w = w_b c_b/(ρc) and v a solution of the heat
 // equation ∂v/∂t = α∇²v, α = k/(ρc) (Pennes 1948; the substitution is the
 // standard one, e.g. Carslaw & Jaeger, Conduction of Heat in Solids, 2nd
-// ed. 1959, from memory). A Gaussian spot of variance σ² along an axis
-// keeps its shape under conduction, its variance growing as σ² + 2αt, so
-// along each axis its centre cools by (1 + t/τ)^{−1/2}, τ = σ²/(2α) (the
-// heat kernel, Carslaw & Jaeger, from memory): (1 + t/τ)^{−3/2} for a
-// round spot, (1 + t/τ)^{−1} across a spot much longer along the beam than
-// across it (a focused beam's focal zone is several times longer than
-// wide; common practice), whose slow axial spread is neglected. Each
-// voxel's cooling after the last frame t_e of a sonication is modelled as
+// ed. 1959, from memory). A Gaussian spot of variance σ² keeps its shape
+// under conduction, its variance growing as σ² + 2αt (the heat kernel,
+// Carslaw & Jaeger, from memory), so a voxel at distance d from its centre
+// follows, from the time t_e of the last frame,
 //
-//	u(t) = a · e^{−w (t−t_e)} · (1 + (t−t_e)/τ)^{−d/2}
+//	u(t) = a · e^{−w s} · (1 + s/τ)^{−3/2} · e^{q (1 − 1/(1+s/τ))},  s = t − t_e,
 //
-// with d = ResidualOptions.Dimensions (default 2) and a ≥ 0 and τ fitted
-// per voxel by least squares to the sonication's last frames (its cooling
-// tail; τ from a log-spaced set from 1.25 times the tail's span). The
-// spot's own τ is fitted first on the voxels of at least half its hottest
-// last value, and no voxel may decay more slowly than SpotTauFactor times
-// that (see spotTau): a rising or flat tail (heat still arriving, or the
-// heating not yet over) gets the slowest decay allowed. w is not
-// measurable from a few seconds of tail: it is a setting (PerfusionRate,
-// default 0, which errs on the side of more hidden heat; for muscle, w_b
-// 0.6 kg m⁻³ s⁻¹, c_b 3617 J kg⁻¹ K⁻¹, ρc 3.73 MJ m⁻³ K⁻¹ give
-// w ≈ 5.8e-4 s⁻¹, a time constant of about 29 minutes; IT'IS tissue
-// database v4, from memory).
+// with τ = σ²/(2α) at t_e and q = d²/(2σ²) ≥ 0: the centre (q = 0) only
+// cools, a voxel off the centre first warms as the heat arrives and then
+// cools like the centre. Per voxel, a ≥ 0 and the shape are fitted by
+// least squares to the sonication's last frames (its cooling tail): either
+// q = 0 with the voxel's own τ from a log-spaced set (from 1.25 times the
+// tail's span up to the spot's τ) or the spot's τ with q from a set up to
+// MaxOffCentre. The spot's τ is fitted first, with q = 0, on the voxels of
+// at least half its hottest last value (see spotTau); no voxel may decay
+// more slowly than its centre in the long run, as a flat tail
+// extrapolated without decay would carry a voxel's rise unchanged to every
+// later baseline. ResidualOptions.Dimensions 2 replaces the exponent 3/2
+// by 1 (a spot much longer than wide). w is not measurable from a few
+// seconds of tail: it is a setting (PerfusionRate, default 0, which errs
+// on the side of more hidden heat; for muscle, w_b 0.6 kg m⁻³ s⁻¹, c_b
+// 3617 J kg⁻¹ K⁻¹, ρc 3.73 MJ m⁻³ K⁻¹ give w ≈ 5.8e-4 s⁻¹, a time
+// constant of about 29 minutes; IT'IS tissue database v4, from memory).
 //
 // The tail of sonication j, measured from its own baseline, holds besides
 // its own heat the cooling of the earlier sonications' heat during its
@@ -61,10 +61,10 @@ import (
 // before fitting: the hidden field at a later baseline has spread by
 // conduction over several millimetres, the noise of the frames has not.
 //
-// Limits: the decay form is exact only for the centre of a Gaussian spot
-// in an infinite homogeneous medium; the edge of a spot, boundaries, large
-// vessels and heterogeneous tissue cool otherwise, and the bound on τ is a
-// calibration against the simulator (SpotTauFactor). A tail of a few
+// Limits: the decay form is exact only for a round Gaussian spot in an
+// infinite homogeneous medium; an elongated spot, boundaries, large
+// vessels and heterogeneous tissue cool otherwise, and MaxOffCentre is a
+// calibration against the simulator (see there). A tail of a few
 // frames spanning a few seconds fixes the decay poorly: the estimate is a
 // review aid with an uncertainty of tens of per cent, not a measurement.
 // A sonication's heat that never reached a measured voxel (outside the
@@ -85,23 +85,21 @@ type ResidualOptions struct {
 	MaxTau float64
 	// Dimensions is the number of directions heat spreads in the decay
 	// form (the exponent of the conduction term is Dimensions/2): 3 for a
-	// round spot, 2 for a spot much longer along the beam than across it
-	// (default 2; see the model).
+	// round spot (default), 2 for a spot much longer than wide.
 	Dimensions int
 }
 
 func (o ResidualOptions) exponent() float64 {
 	if o.Dimensions < 1 || o.Dimensions > 3 {
-		return 1
+		return 1.5
 	}
 	return float64(o.Dimensions) / 2
 }
 
-// DefaultResidualOptions returns 3 tail frames, no perfusion, the decay of
-// an elongated spot (2 dimensions) and a
-// slowest time constant of 3000 s.
+// DefaultResidualOptions returns 3 tail frames, no perfusion, conduction
+// in 3 dimensions and a slowest time constant of 3000 s.
 func DefaultResidualOptions() ResidualOptions {
-	return ResidualOptions{TailFrames: 3, MaxTau: 3000, Dimensions: 2}
+	return ResidualOptions{TailFrames: 3, MaxTau: 3000, Dimensions: 3}
 }
 
 func (o ResidualOptions) withDefaults() ResidualOptions {
@@ -176,7 +174,8 @@ type coolingFit struct {
 	te   float64   // time of the last tail frame
 	amp  []float32 // a per voxel, °C; NaN unknown
 	tau  []uint8   // index into taus
-	taus []float64
+	taus []float64 // τ of each decay shape
+	qs   []float64 // q of each decay shape (0: the centre of a spot)
 	w    float64
 	p    float64 // exponent of the conduction term
 }
@@ -191,7 +190,7 @@ func (f *coolingFit) table(t float64) []float32 {
 		if x <= 0 {
 			x = math.SmallestNonzeroFloat64
 		}
-		out[n] = float32(math.Exp(-f.w*s) * math.Pow(x, -f.p))
+		out[n] = float32(math.Exp(-f.w*s+f.qs[n]*(1-1/x)) * math.Pow(x, -f.p))
 	}
 	return out
 }
@@ -362,11 +361,25 @@ func smoothInPlane(g Geometry, x []float32) []float32 {
 // tauCount is the number of conduction time constants tried per voxel.
 const tauCount = 64
 
-// fitCooling fits u(t) = a e^{−w(t−t_e)} (1+(t−t_e)/τ)^{−3/2}, a ≥ 0, to
-// each voxel's tail frames by least squares: for each τ of a log-spaced
-// set, a = max(0, Σ y h / Σ h²); the τ with the least squared error wins
-// (the slowest on ties, so a flat or rising tail keeps its heat). Voxels
-// with fewer than two finite tail frames are unknown.
+// MaxOffCentre is the largest q of the off-centre decay shapes (see the
+// model): e^q bounds how much a voxel's rise can still grow relative to
+// the centre's decay, q = d²/(2σ²) for a voxel at distance d from the
+// centre of a Gaussian spot (q = 3: d ≈ 2.4σ). A few tail frames fix a
+// large q poorly, and noise fitted as arriving heat grows by up to e^q:
+// 3 is a calibration against the simulator's bioheat solution, keeping
+// the estimate within 30 % of it on the short-gap sessions
+// (sim.ShortGapSession, gaps of 5–60 s; 4 overshoots at 60 s by half, 1
+// falls short by a third), not on patient data.
+const MaxOffCentre = 3.0
+
+// offCentreCount is the number of off-centre shapes tried per voxel.
+const offCentreCount = 24
+
+// fitCooling fits the decay form of the model, a ≥ 0, to each voxel's
+// tail frames by least squares: for each shape h (τ, q) of the set,
+// a = max(0, Σ y h / Σ h²); the shape with the least squared error wins
+// (the slowest centre shape on ties). Voxels with fewer than two finite
+// tail frames are unknown.
 func fitCooling(g Geometry, times []float64, tail [][]float32, opt ResidualOptions) *coolingFit {
 	te := times[len(times)-1]
 	span := te - times[0]
@@ -375,16 +388,29 @@ func fitCooling(g Geometry, times []float64, tail [][]float32, opt ResidualOptio
 	f := &coolingFit{g: g, te: te, w: opt.PerfusionRate, p: opt.exponent(), amp: make([]float32, g.Len()), tau: make([]uint8, g.Len())}
 	for n := 0; n < tauCount; n++ {
 		f.taus = append(f.taus, lo*math.Pow(hi/lo, float64(n)/(tauCount-1)))
+		f.qs = append(f.qs, 0)
 	}
-	h := make([][]float32, len(times)) // h[frame][τ]
+	h := make([][]float32, len(times)) // h[frame][shape]
 	for fr, t := range times {
 		h[fr] = f.table(t)
 	}
 	nv := g.Len()
 	spot := spotTau(tail, h)
 	top := spot
-	for top < tauCount-1 && f.taus[top+1] <= SpotTauFactor*f.taus[spot]*(1+1e-9) {
-		top++
+	// Off-centre shapes: the spot's τ with heat still arriving.
+	for m := 1; m <= offCentreCount; m++ {
+		f.taus = append(f.taus, f.taus[spot])
+		f.qs = append(f.qs, MaxOffCentre*float64(m)/offCentreCount)
+	}
+	for fr, t := range times {
+		h[fr] = f.table(t)
+	}
+	shapes := make([]int, 0, top+1+offCentreCount)
+	for n := top; n >= 0; n-- {
+		shapes = append(shapes, n)
+	}
+	for n := tauCount; n < len(f.taus); n++ {
+		shapes = append(shapes, n)
 	}
 	workers := min(runtime.GOMAXPROCS(0), max(1, nv/4096))
 	var wg sync.WaitGroup
@@ -408,7 +434,7 @@ func fitCooling(g Geometry, times []float64, tail [][]float32, opt ResidualOptio
 					continue
 				}
 				best, bestA, bestT := math.Inf(1), 0.0, top
-				for n := top; n >= 0; n-- {
+				for _, n := range shapes {
 					var yh, hh float64
 					for fr := range tail {
 						if y := tail[fr][v]; y == y {
@@ -441,12 +467,7 @@ func (ts *TemperatureSeries) Owned() bool { return ts.slab != nil }
 // sonication's spot: the τ that fits the tails of the voxels whose last
 // frame is at least half the hottest (the spot's centre, where the decay
 // form holds) with the least summed squared error, each with its own
-// amplitude. No voxel is allowed a decay much slower (SpotTauFactor):
-// away from the centre of a Gaussian spot the rise may grow for a while
-// as heat arrives, but in the long run it decays like the centre's (heat
-// kernel), while a flat tail extrapolated without decay would carry a
-// voxel's rise unchanged to every later baseline. Without a positive last
-// frame it returns the slowest.
+// amplitude. Without a positive last frame it returns the slowest.
 func spotTau(tail [][]float32, h [][]float32) int {
 	last := tail[len(tail)-1]
 	peak := float32(0)
@@ -490,13 +511,3 @@ func spotTau(tail [][]float32, h [][]float32) int {
 	}
 	return best
 }
-
-// SpotTauFactor bounds each voxel's conduction time constant to this
-// multiple of the spot's (see spotTau). Heat that spread away from the
-// spot's centre, and the slower decay along the beam of an elongated spot
-// (its axial time constant is (σ_a/σ_l)² times the lateral one; Carslaw &
-// Jaeger, from memory), decay more slowly than the centre's early tail
-// suggests; 2.5 keeps the estimate within 30 % of the simulated bioheat
-// solution of the short-gap sessions (sim.ShortGapSession, gaps 5–60 s),
-// a calibration on the simulator, not on patient data.
-const SpotTauFactor = 2.5
