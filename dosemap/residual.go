@@ -125,6 +125,10 @@ type CoolingTail struct {
 	Baseline []float64   // times of the baseline frames
 	Times    []float64   // times of the tail frames, increasing
 	Rise     [][]float32 // per tail frame, temperature − body temperature, °C; NaN unmeasured
+	// Mask, when not nil, limits the estimate to the voxels where it is
+	// true (the region an analysis looks at); elsewhere the cooling is not
+	// fitted and the later estimates are NaN.
+	Mask []bool
 }
 
 // NewCoolingTail keeps the baseline frame times and the last tail frames
@@ -304,9 +308,9 @@ func EstimateResidual(tails []*CoolingTail, opt ResidualOptions) ([]ResidualEsti
 				}
 				tail[f][v] = x
 			}
-			tail[f] = smoothInPlane(g, tail[f])
+			tail[f] = smoothInPlane(g, tail[f], tl.Mask)
 		}
-		fits[n] = fitCooling(g, tl.Times, tail, opt)
+		fits[n] = fitCooling(g, tl.Times, tail, tl.Mask, opt)
 	}
 	return out, nil
 }
@@ -330,13 +334,18 @@ func checkTail(t *CoolingTail) error {
 }
 
 // smoothInPlane returns the mean of the finite values among each voxel's
-// 3×3 in-plane neighbours; NaN where the voxel itself is NaN.
-func smoothInPlane(g Geometry, x []float32) []float32 {
+// 3×3 in-plane neighbours; NaN where the voxel itself is NaN or outside
+// mask (nil: everywhere).
+func smoothInPlane(g Geometry, x []float32, mask []bool) []float32 {
 	out := make([]float32, len(x))
 	for k := 0; k < g.Slices; k++ {
 		for j := 0; j < g.Rows; j++ {
 			for i := 0; i < g.Cols; i++ {
 				n := g.Index(i, j, k)
+				if mask != nil && !mask[n] {
+					out[n] = float32(math.NaN())
+					continue
+				}
 				if x[n] != x[n] {
 					out[n] = x[n]
 					continue
@@ -373,14 +382,14 @@ const tauCount = 64
 const MaxOffCentre = 3.0
 
 // offCentreCount is the number of off-centre shapes tried per voxel.
-const offCentreCount = 24
+const offCentreCount = 12
 
 // fitCooling fits the decay form of the model, a ≥ 0, to each voxel's
 // tail frames by least squares: for each shape h (τ, q) of the set,
 // a = max(0, Σ y h / Σ h²); the shape with the least squared error wins
 // (the slowest centre shape on ties). Voxels with fewer than two finite
 // tail frames are unknown.
-func fitCooling(g Geometry, times []float64, tail [][]float32, opt ResidualOptions) *coolingFit {
+func fitCooling(g Geometry, times []float64, tail [][]float32, mask []bool, opt ResidualOptions) *coolingFit {
 	te := times[len(times)-1]
 	span := te - times[0]
 	lo := math.Max(1.25*span, 1)
@@ -412,6 +421,20 @@ func fitCooling(g Geometry, times []float64, tail [][]float32, opt ResidualOptio
 	for n := tauCount; n < len(f.taus); n++ {
 		shapes = append(shapes, n)
 	}
+	nt := len(times)
+	hs := make([]float64, 0, len(shapes)*nt) // decay factor per shape and frame
+	ihh := make([]float64, len(shapes))      // 1/Σh² per shape
+	slot := make([]int, len(f.taus))         // position of each shape in shapes
+	for m, n := range shapes {
+		var hh float64
+		for fr := range times {
+			x := float64(h[fr][n])
+			hs = append(hs, x)
+			hh += x * x
+		}
+		ihh[m] = 1 / hh
+		slot[n] = m
+	}
 	workers := min(runtime.GOMAXPROCS(0), max(1, nv/4096))
 	var wg sync.WaitGroup
 	per := (nv + workers - 1) / workers
@@ -420,7 +443,12 @@ func fitCooling(g Geometry, times []float64, tail [][]float32, opt ResidualOptio
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
+			y := make([]float64, nt)
 			for v := lo; v < hiV; v++ {
+				if mask != nil && !mask[v] {
+					f.amp[v] = float32(math.NaN())
+					continue
+				}
 				valid := 0
 				var yy float64
 				for fr := range tail {
@@ -431,6 +459,31 @@ func fitCooling(g Geometry, times []float64, tail [][]float32, opt ResidualOptio
 				}
 				if valid < 2 {
 					f.amp[v] = float32(math.NaN())
+					continue
+				}
+				if valid == nt {
+					// Every frame valid (the common case): the least
+					// squared error yy − yh²/hh is the largest yh²/hh
+					// with yh > 0 (a = 0, error yy, otherwise).
+					for fr := range tail {
+						y[fr] = float64(tail[fr][v])
+					}
+					bestS, bestT := 0.0, top
+					for m, n := range shapes {
+						var yh float64
+						for fr, x := range hs[m*nt : (m+1)*nt] {
+							yh += y[fr] * x
+						}
+						if sc := yh * yh * ihh[m]; yh > 0 && sc > bestS*(1+1e-12) {
+							bestS, bestT = sc, n
+						}
+					}
+					var yh float64
+					for fr := range tail {
+						yh += y[fr] * float64(h[fr][bestT])
+					}
+					f.amp[v] = float32(math.Max(0, yh*ihh[slot[bestT]]))
+					f.tau[v] = uint8(bestT)
 					continue
 				}
 				best, bestA, bestT := math.Inf(1), 0.0, top

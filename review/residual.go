@@ -52,11 +52,35 @@ func sessionClock(sons []*dosemap.Sonication) ([]float64, string) {
 // cooling tails prepareSonication kept, and with s.CarryOver computes the
 // dose of every sonication with residual heat again from its temperatures
 // plus the estimate (the as-measured dose is kept beside it).
-func (ses *Session) prepareResidual(ctx context.Context, c *dosemap.Case, s Settings, ref dosemap.Geometry, progress ProgressFunc) error {
+//
+// The estimate is made only in the thermometry voxels within the box of
+// the patient points ext (the target enlarged by the largest margin: the
+// region the analysis grid covers); elsewhere it is NaN.
+func (ses *Session) prepareResidual(ctx context.Context, c *dosemap.Case, s Settings, ref dosemap.Geometry, ext []vec3, progress ProgressFunc) error {
 	tails := make([]*dosemap.CoolingTail, len(ses.sons))
+	var masks []struct {
+		g dosemap.Geometry
+		m []bool
+	}
 	for n, sd := range ses.sons {
 		tails[n], sd.tail = sd.tail, nil
 		sd.cooling = math.NaN()
+		if tails[n] == nil {
+			continue
+		}
+		g := tails[n].Geometry
+		for _, m := range masks {
+			if m.g.SameGrid(g, 0.01) {
+				tails[n].Mask = m.m
+			}
+		}
+		if tails[n].Mask == nil {
+			tails[n].Mask = boxMask(g, ext)
+			masks = append(masks, struct {
+				g dosemap.Geometry
+				m []bool
+			}{g, tails[n].Mask})
+		}
 	}
 	est, err := dosemap.EstimateResidual(tails, dosemap.DefaultResidualOptions())
 	if err != nil {
@@ -226,4 +250,27 @@ func (s *Session) asMeasured(ctx context.Context, set Settings) (*AsMeasured, er
 		am.CoveredFraction = cv / mv
 	}
 	return am, nil
+}
+
+// boxMask returns the voxels of g whose centre lies within one voxel
+// diagonal of the bounding box of the points ext.
+func boxMask(g dosemap.Geometry, ext []vec3) []bool {
+	lo := vec3{math.Inf(1), math.Inf(1), math.Inf(1)}
+	hi := vec3{math.Inf(-1), math.Inf(-1), math.Inf(-1)}
+	for _, p := range ext {
+		for a := 0; a < 3; a++ {
+			lo[a], hi[a] = math.Min(lo[a], p[a]), math.Max(hi[a], p[a])
+		}
+	}
+	d := g.Spacing.Norm()
+	out := make([]bool, g.Len())
+	for n := range out {
+		p := g.Point(ijk(g, n))
+		in := true
+		for a := 0; a < 3; a++ {
+			in = in && p[a] >= lo[a]-d && p[a] <= hi[a]+d
+		}
+		out[n] = in
+	}
+	return out
 }

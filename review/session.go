@@ -303,7 +303,7 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 	if clockNote != "" {
 		ses.warnings = append(ses.warnings, clockNote)
 	}
-	if err := ses.prepareResidual(ctx, c, s, ref, progress); err != nil {
+	if err := ses.prepareResidual(ctx, c, s, ref, ext, progress); err != nil {
 		return nil, err
 	}
 	ses.warnings = append(ses.warnings, structWarnings...)
