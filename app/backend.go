@@ -123,6 +123,7 @@ type probeCurve struct {
 	Times       []float64 // seconds from the first sonication's start
 	Temp        []float64 // °C at the voxel (NaN where invalid)
 	Mean        []float64 // °C, 3×3 in-plane mean around the voxel
+	True        []float64 // °C, Temp plus the estimated heat left from earlier sonications (NaN unknown); nil when not estimated
 	Dose        []float64 // cumulative dose at the voxel, model unit
 	Boundaries  []float64 // start time of each sonication
 	LethalAt    float64   // time the cumulative dose reached the threshold; NaN never

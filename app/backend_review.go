@@ -432,11 +432,16 @@ func (ss *reviewSession) Probe(p dosemap.Vec3, s analysisSettings) (*probeCurve,
 		c.Voxel = g.Point(float64(i), float64(j), float64(k))
 		one := &dosemap.TemperatureSeries{Geometry: dosemap.NewAxialGeometry(1, 1, 1, dosemap.Vec3{1, 1, 1}, dosemap.Vec3{})}
 		idx := g.Index(i, j, k)
+		hidden := math.NaN() // estimated residual heat at this sonication's baseline
+		if r := ss.rs.Residual(so.Number); r != nil {
+			hidden = float64(r.Sample(c.Voxel))
+		}
 		for f, fr := range ts.Frames {
 			t := start + ts.Times[f] - ts.Times[0]
 			T := float64(fr[idx])
 			c.Times = append(c.Times, t)
 			c.Temp = append(c.Temp, T)
+			c.True = append(c.True, T+hidden)
 			c.Mean = append(c.Mean, mean3x3(g, fr, i, j, k))
 			if ex[so.Number] {
 				c.Dose = append(c.Dose, cum)

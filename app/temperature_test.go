@@ -6,6 +6,7 @@ import (
 	"context"
 	"math"
 	"testing"
+	"time"
 
 	"dosecover/dosemap"
 )
@@ -67,5 +68,65 @@ func TestProbeUsesSessionSeries(t *testing.T) {
 	}
 	if again[3] == nil || again[3] == kept {
 		t.Errorf("other thermometry options: series %p, want a new one", again[3])
+	}
+}
+
+// TestProbeEstimatedTrue: the pinned point's estimated true temperature is
+// the measured one plus the session's residual heat estimate at that
+// sonication's baseline (review.Session.Residual), shown only where there
+// is one. Two temperature-map sonications 15 s apart: the first cools from
+// 52 to 48 °C at the centre over its last frames, the second measures no
+// change; its estimated true temperature must lie above 37 °C by the
+// session's estimate there.
+func TestProbeEstimatedTrue(t *testing.T) {
+	lc := syntheticCase()
+	tg := lc.Case.Sonications[0].Geometry
+	start := lc.Case.Sonications[0].Start
+	centre := tg.Len()/2 + tg.Cols/2
+	var sons []*dosemap.Sonication
+	for n := range 2 {
+		so := &dosemap.Sonication{Number: n + 1, Label: "temperature map", Geometry: tg,
+			Start: start.Add(time.Duration(n*45) * time.Second), Times: []float64{0, 3, 6, 9, 12, 15, 18, 21, 24}}
+		for f := range so.Times {
+			fr := make([]float32, tg.Len())
+			for v := range fr {
+				fr[v] = 37
+			}
+			if n == 0 && f >= 2 {
+				fr[centre] = float32(52 - 2*math.Max(0, float64(f-6)))
+			}
+			so.Temperature = append(so.Temperature, fr)
+		}
+		sons = append(sons, so)
+	}
+	lc.Case.Sonications = sons
+	set := defaultSettings()
+	set.Trials = 0
+	s, err := prepareReview(context.Background(), lc, set, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	ss := s.(*reviewSession)
+	i, j, k := tg.IJK(centre)
+	p := tg.Point(float64(i), float64(j), float64(k))
+	c, err := ss.Probe(p, set)
+	if err != nil {
+		t.Fatal(err)
+	}
+	r := ss.rs.Residual(2)
+	if r == nil || len(c.True) != len(c.Temp) || len(c.Temp) != 18 {
+		t.Fatalf("residual %v; %d estimated and %d measured temperatures, want 18", r, len(c.True), len(c.Temp))
+	}
+	hidden := float64(r.Sample(p))
+	if !(hidden > 0.1) {
+		t.Fatalf("estimated residual heat at the centre %g °C; want some after 52 °C fifteen seconds before", hidden)
+	}
+	for n := 9; n < 18; n++ {
+		if math.Abs(c.True[n]-(c.Temp[n]+hidden)) > 1e-9 {
+			t.Errorf("frame %d: estimated true %g °C, measured %g + residual %g", n, c.True[n], c.Temp[n], hidden)
+		}
+	}
+	if c.True[0] != c.Temp[0] {
+		t.Errorf("first sonication: estimated true %g °C, measured %g (no earlier heat)", c.True[0], c.Temp[0])
 	}
 }

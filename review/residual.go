@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"math"
 	"runtime"
+	"slices"
 	"strings"
 	"sync"
 
@@ -273,4 +274,18 @@ func boxMask(g dosemap.Geometry, ext []vec3) []bool {
 		out[n] = in
 	}
 	return out
+}
+
+// Residual returns the estimated heat left from earlier sonications at the
+// baseline of sonication number n (°C over body temperature, per voxel of
+// ThermometryGrid; NaN where unknown or not estimated), or nil when there
+// is no such sonication or no estimate for it. The estimated true
+// temperature of its frames is the measured one plus this.
+func (s *Session) Residual(n int) *dosemap.Volume {
+	for _, sd := range s.sons {
+		if sd.number == n && sd.residual != nil {
+			return &dosemap.Volume{Geometry: s.fg.coarse, Data: slices.Clone(sd.residual)}
+		}
+	}
+	return nil
 }

@@ -407,7 +407,9 @@ func (s *Session) SonicationDose(n int) *dosemap.Volume {
 // the session and must not be modified. For a case whose frames stay in
 // their files (dicomio.LoadOptions.Deferred) the session keeps only the
 // temperatures around the target, and Temperature computes the series
-// again from the files (nil if that fails).
+// again from the files (nil if that fails). A session prepared with
+// CarryOver returns the temperatures with the estimated residual heat
+// added (see Residual).
 func (s *Session) Temperature(n int) *dosemap.TemperatureSeries {
 	for _, sd := range s.sons {
 		if sd.number == n {
@@ -416,6 +418,9 @@ func (s *Session) Temperature(n int) *dosemap.TemperatureSeries {
 				full, err := dosemap.Thermometry(sd.source, s.prepared.Thermometry)
 				if err != nil {
 					return nil
+				}
+				if s.prepared.CarryOver && sd.residual != nil {
+					addOffset(full, sd.residual) // as the kept series
 				}
 				return full
 			}
