@@ -204,9 +204,9 @@ func (s *Session) residualFigures(r *Result, set Settings) {
 		w := fmt.Sprintf("heat left from earlier sonications, estimated from their cooling, exceeds %g °C over the target and margin at the start of sonication(s) %s: the thermometry measures change from each baseline and does not see it, so their dose is underestimated",
 			set.ResidualWarnC, strings.Join(over, ", "))
 		if set.CarryOver {
-			w += " (corrected for: carry_over is on)"
+			w += " (corrected for: carry-over is on)"
 		} else {
-			w += " (see carry_over)"
+			w += " (the carry-over setting corrects for it)"
 		}
 		r.Warnings = append(r.Warnings, w)
 	}

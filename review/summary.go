@@ -25,7 +25,7 @@ func (r *Result) WriteText(w io.Writer) error {
 		p(", %d Monte Carlo trials (seed %d)", r.Trials, r.Settings.Seed)
 	}
 	if r.CarryOver {
-		p(", carry_over on (estimated residual heat added)")
+		p(", carry-over on (estimated residual heat added)")
 	}
 	p("\n")
 	p("Analysis grid: %d×%d×%d voxels of %.3g×%.3g×%.3g mm\n\n", r.Grid.Size[0], r.Grid.Size[1], r.Grid.Size[2],
@@ -40,7 +40,7 @@ func (r *Result) WriteText(w io.Writer) error {
 	}
 	p("\n")
 	if a := r.AsMeasured; a != nil {
-		p("Corrected for heat left from earlier sonications (carry_over). As measured, without the correction: covered %.1f %% of the monitored target, %.1f %% of the whole target; %.3f mL lethal beyond the margin\n",
+		p("Corrected for heat left from earlier sonications (carry-over). As measured, without the correction: covered %.1f %% of the monitored target, %.1f %% of the whole target; %.3f mL lethal beyond the margin\n",
 			100*a.CoveredFraction, 100*a.CoveredFractionOfTarget, a.OutsideMarginLethalML)
 	}
 	p("D98 %s, D50 %s, D2 %s %s (monitored target)\n\n", fnum(r.D98), fnum(r.D50), fnum(r.D2), r.DoseUnit)
