@@ -7,7 +7,9 @@ import (
 	"slices"
 	"strings"
 	"testing"
+	"time"
 
+	"dosecover/dosemap"
 	"dosecover/dosemap/dicomio"
 	"dosecover/dosemap/sim"
 	"dosecover/review"
@@ -173,6 +175,74 @@ func TestResidualHeatLongGaps(t *testing.T) {
 	for _, r := range []*review.Result{m, c} {
 		if w := residualWarning(r); w != "" {
 			t.Errorf("warning on a cooled session (carry_over %v): %s", r.CarryOver, w)
+		}
+	}
+}
+
+// TestProbeEstimatedTrue: the pinned point's estimated true temperature is
+// the measured one plus the session's residual heat estimate at that
+// sonication's baseline (Session.Residual). Two temperature-map
+// sonications 45 s apart on ballCase's target: the first holds 52 °C at
+// the centre, cooling 2 °C a frame over its last frames; the second
+// measures no change, and its estimated true temperature there must lie
+// above 37 °C by the session's estimate. With carry_over the temperatures
+// hold the estimate already and the two curves agree.
+func TestProbeEstimatedTrue(t *testing.T) {
+	c := ballCase()
+	g := c.Sonications[0].Geometry
+	centre := g.Index(g.Cols/2, g.Rows/2, g.Slices/2)
+	start := time.Date(2026, 1, 2, 10, 0, 0, 0, time.UTC)
+	c.Sonications = nil
+	for n := range 2 {
+		so := &dosemap.Sonication{Number: n + 1, Label: "temperature map", Geometry: g,
+			Start: start.Add(time.Duration(n*45) * time.Second), Times: []float64{0, 3, 6, 9, 12, 15, 18, 21, 24}}
+		for f := range so.Times {
+			fr := make([]float32, g.Len())
+			for v := range fr {
+				fr[v] = 37
+			}
+			if n == 0 && f >= 2 {
+				fr[centre] = float32(52 - 2*math.Max(0, float64(f-6)))
+			}
+			so.Temperature = append(so.Temperature, fr)
+		}
+		c.Sonications = append(c.Sonications, so)
+	}
+	i, j, k := g.IJK(centre)
+	p := g.Point(float64(i), float64(j), float64(k))
+	for _, carry := range []bool{false, true} {
+		set := review.DefaultSettings()
+		set.Trials, set.CarryOver = 0, carry
+		ses, err := review.Prepare(context.Background(), c, set, nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		pr, err := ses.Probe(p, set)
+		if err != nil {
+			t.Fatal(err)
+		}
+		r := ses.Residual(2)
+		if r == nil || len(pr.True) != 18 || len(pr.Temp) != 18 {
+			t.Fatalf("carry_over %v: residual %v; %d estimated and %d measured temperatures, want 18", carry, r, len(pr.True), len(pr.Temp))
+		}
+		hidden := float64(r.Sample(p))
+		if !(hidden > 0.1) {
+			t.Fatalf("estimated residual heat at the centre %g °C; want some after 52 °C twenty-four seconds before", hidden)
+		}
+		for n := 9; n < 18; n++ {
+			want := pr.Temp[n] + hidden
+			if carry {
+				want = pr.Temp[n] // the series hold the estimate already
+				if math.Abs(pr.Temp[n]-(37+hidden)) > 1e-4 {
+					t.Errorf("carry_over: frame %d reads %g °C, want 37 + %g", n, pr.Temp[n], hidden)
+				}
+			}
+			if math.Abs(pr.True[n]-want) > 1e-9 {
+				t.Errorf("carry_over %v, frame %d: estimated true %g °C, want %g", carry, n, pr.True[n], want)
+			}
+		}
+		if pr.True[0] != pr.Temp[0] {
+			t.Errorf("first sonication: estimated true %g °C, measured %g (no earlier heat)", pr.True[0], pr.Temp[0])
 		}
 	}
 }

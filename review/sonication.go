@@ -58,7 +58,7 @@ func prepareSonication(ctx context.Context, so *dosemap.Sonication, s Settings, 
 		if err != nil {
 			return nil, "", err
 		}
-		ts, err := dosemap.Thermometry(r, s.Thermometry)
+		ts, err := thermometry(r, s.Thermometry)
 		done()
 		if err != nil {
 			return nil, "", err
@@ -68,7 +68,7 @@ func prepareSonication(ctx context.Context, so *dosemap.Sonication, s Settings, 
 			return nil, "", err
 		}
 		if clock == clock && offset == nil {
-			bt := s.Thermometry.BodyTemp
+			bt := s.Thermometry.BodyTempC
 			if bt == 0 {
 				bt = dosemap.DefaultBodyTemp
 			}
@@ -634,8 +634,8 @@ func quantile(x []float64, p float64) float64 {
 }
 
 // baselineFrames returns the number of baseline frames the thermometry
-// options o use.
-func baselineFrames(o dosemap.ThermometryOptions) int {
+// settings o use.
+func baselineFrames(o ThermometrySettings) int {
 	if o.BaselineFrames > 0 {
 		return o.BaselineFrames
 	}
