@@ -1,0 +1,295 @@
+package dicomweb
+
+import (
+	"bytes"
+	"context"
+	"encoding/binary"
+	"errors"
+	"fmt"
+	"io"
+	"mime"
+	"mime/multipart"
+	"net/http"
+	"os"
+	"path/filepath"
+	"strings"
+	"sync"
+
+	"dosecover/dosemap/safefile"
+)
+
+// FileExt is the extension of the retrieved files: DIR/<SOPInstanceUID>.dcm.
+const FileExt = ".dcm"
+
+// maxInstanceBytes bounds one multipart part (one instance).
+const maxInstanceBytes = 2 << 30
+
+// RetrieveOptions tune Retrieve.
+type RetrieveOptions struct {
+	// PerInstance asks for every instance by its own request instead of
+	// one request per series (slower; kept to compare with).
+	PerInstance bool
+	// Progress, when set, is called after each instance written with the
+	// number of instances present and the total (safe for any goroutine).
+	Progress func(done, total int)
+}
+
+// RetrieveStats sums up a retrieval.
+type RetrieveStats struct {
+	Instances int   // in the study
+	Present   int   // already in the folder before
+	Fetched   int   // written by this retrieval
+	Bytes     int64 // bytes written
+}
+
+// Retrieve copies study into dir (created if needed): one file per
+// instance named by its SOP Instance UID (FileExt), each written
+// atomically, several requests at once (WADO-RS, PS3.18 §10.4). Files
+// already in dir are kept and not fetched again. Nothing on the archive
+// changes. The list of instances is read before and after the transfer;
+// a difference, an instance listed but not delivered or an unexpected
+// one, or a body cut short is an error (the files fetched stay in dir,
+// and a later call completes them).
+func (c *Client) Retrieve(ctx context.Context, study, dir string, o RetrieveOptions) (RetrieveStats, error) {
+	var st RetrieveStats
+	before, err := c.Instances(ctx, study)
+	if err != nil {
+		return st, err
+	}
+	if len(before) == 0 {
+		return st, c.fail(404, fmt.Sprintf("has no instances of study %s", study), nil)
+	}
+	st.Instances = len(before)
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		return st, fmt.Errorf("retrieving study %s: %w", study, err)
+	}
+	bySeries := map[string][]string{}
+	var order []string
+	missing := map[string]bool{}
+	want := map[string]string{} // SOP -> series
+	for _, in := range before {
+		want[in.SOP] = in.Series
+		if _, err := os.Stat(filepath.Join(dir, in.SOP+FileExt)); err == nil {
+			st.Present++
+			continue
+		}
+		if _, ok := bySeries[in.Series]; !ok {
+			order = append(order, in.Series)
+		}
+		bySeries[in.Series] = append(bySeries[in.Series], in.SOP)
+		missing[in.SOP] = true
+	}
+	seriesSize := map[string]int{}
+	for _, in := range before {
+		seriesSize[in.Series]++
+	}
+	// Jobs: a whole series in one request when all of it is missing,
+	// otherwise the missing instances one by one.
+	type job struct{ series, sop string }
+	var jobs []job
+	for _, s := range order {
+		if !o.PerInstance && len(bySeries[s]) == seriesSize[s] {
+			jobs = append(jobs, job{series: s})
+			continue
+		}
+		for _, sop := range bySeries[s] {
+			jobs = append(jobs, job{series: s, sop: sop})
+		}
+	}
+	var (
+		mu       sync.Mutex
+		firstErr error
+		done     = st.Present
+	)
+	ctx, cancel := context.WithCancel(ctx)
+	defer cancel()
+	setErr := func(err error) {
+		mu.Lock()
+		if firstErr == nil {
+			firstErr = err
+		}
+		mu.Unlock()
+		cancel()
+	}
+	if o.Progress != nil {
+		o.Progress(done, st.Instances)
+	}
+	wrote := func(sop string, n int64) error {
+		mu.Lock()
+		defer mu.Unlock()
+		if !missing[sop] {
+			if _, listed := want[sop]; !listed {
+				return c.fail(0, fmt.Sprintf("sent instance %s, which is not listed in study %s (the study changed during retrieval)", sop, study), nil)
+			}
+			return nil // delivered twice, or already present: harmless
+		}
+		delete(missing, sop)
+		st.Fetched++
+		st.Bytes += n
+		done++
+		if o.Progress != nil {
+			o.Progress(done, st.Instances)
+		}
+		return nil
+	}
+	ch := make(chan job)
+	var wg sync.WaitGroup
+	for w := 0; w < c.workers; w++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for j := range ch {
+				path := "/studies/" + study + "/series/" + j.series
+				if j.sop != "" {
+					path += "/instances/" + j.sop
+				}
+				if err := c.fetch(ctx, path, dir, wrote); err != nil {
+					setErr(err)
+				}
+			}
+		}()
+	}
+	for _, j := range jobs {
+		select {
+		case ch <- j:
+			continue
+		case <-ctx.Done():
+		}
+		break
+	}
+	close(ch)
+	wg.Wait()
+	if firstErr != nil {
+		return st, firstErr
+	}
+	if err := ctx.Err(); err != nil {
+		return st, c.fail(0, "retrieval cancelled", err)
+	}
+	if len(missing) > 0 {
+		var some []string
+		for sop := range missing {
+			some = append(some, sop)
+			if len(some) == 3 {
+				break
+			}
+		}
+		return st, c.fail(0, fmt.Sprintf("did not deliver %d of the %d instances of study %s (e.g. %s): the study changed during retrieval or the archive lost them; the folder holds a partial study",
+			len(missing), st.Instances, study, strings.Join(some, ", ")), nil)
+	}
+	after, err := c.Instances(ctx, study)
+	if err != nil {
+		return st, err
+	}
+	if !sameInstances(before, after) {
+		return st, c.fail(0, fmt.Sprintf("study %s changed during retrieval (%d instances listed before, %d after); retrieve it again", study, len(before), len(after)), nil)
+	}
+	return st, nil
+}
+
+func sameInstances(a, b []Instance) bool {
+	if len(a) != len(b) {
+		return false
+	}
+	for n := range a {
+		if a[n] != b[n] {
+			return false
+		}
+	}
+	return true
+}
+
+// acceptDICOM asks for the instances as stored (PS3.18 §8.7.3.5.2:
+// transfer-syntax=* lets the origin server send any syntax, so it need
+// not transcode).
+const acceptDICOM = `multipart/related; type="application/dicom"; transfer-syntax=*`
+
+// fetch runs one WADO-RS request and writes every part of the answer into
+// dir, calling wrote after each file.
+func (c *Client) fetch(ctx context.Context, path, dir string, wrote func(sop string, n int64) error) error {
+	resp, err := c.do(ctx, http.MethodGet, path, nil, acceptDICOM, "", nil)
+	if err != nil {
+		return err
+	}
+	defer resp.Body.Close()
+	mt, params, err := mime.ParseMediaType(resp.Header.Get("Content-Type"))
+	if err != nil || !strings.EqualFold(mt, "multipart/related") || params["boundary"] == "" {
+		return c.fail(resp.StatusCode, fmt.Sprintf("answered %s with %q, want multipart/related", path, resp.Header.Get("Content-Type")), err)
+	}
+	mr := multipart.NewReader(resp.Body, params["boundary"])
+	parts := 0
+	for {
+		p, err := mr.NextPart()
+		if err == io.EOF {
+			break
+		}
+		if err != nil {
+			return c.fail(resp.StatusCode, fmt.Sprintf("answer to %s is cut short or malformed after %d parts", path, parts), err)
+		}
+		data, err := io.ReadAll(io.LimitReader(p, maxInstanceBytes+1))
+		if err != nil {
+			return c.fail(resp.StatusCode, fmt.Sprintf("answer to %s is cut short in part %d", path, parts+1), err)
+		}
+		if len(data) > maxInstanceBytes {
+			return c.fail(resp.StatusCode, fmt.Sprintf("part %d of %s is larger than %d bytes", parts+1, path, maxInstanceBytes), nil)
+		}
+		parts++
+		sop, err := SOPInstanceUID(data)
+		if err != nil {
+			return c.fail(resp.StatusCode, fmt.Sprintf("part %d of %s", parts, path), err)
+		}
+		if err := safefile.WriteFile(filepath.Join(dir, sop+FileExt), func(w io.Writer) error {
+			_, err := w.Write(data)
+			return err
+		}); err != nil {
+			return err
+		}
+		if err := wrote(sop, int64(len(data))); err != nil {
+			return err
+		}
+	}
+	if parts == 0 {
+		return c.fail(resp.StatusCode, "answered "+path+" with no instance", nil)
+	}
+	return nil
+}
+
+// SOPInstanceUID returns MediaStorageSOPInstanceUID (0002,0003) from the
+// file meta information of a DICOM Part 10 file (PS3.10 §7.1: a 128-byte
+// preamble, "DICM", then group 0002 in explicit VR little endian). The
+// value must have the form of a UID, so it is safe as a file name.
+func SOPInstanceUID(b []byte) (string, error) {
+	if len(b) < 132 || string(b[128:132]) != "DICM" {
+		return "", errors.New("not a DICOM Part 10 file (no DICM prefix)")
+	}
+	p := 132
+	for p+8 <= len(b) {
+		group := binary.LittleEndian.Uint16(b[p:])
+		elem := binary.LittleEndian.Uint16(b[p+2:])
+		if group != 2 {
+			break
+		}
+		vr := string(b[p+4 : p+6])
+		var n, hdr int
+		switch vr {
+		case "OB", "OW", "OF", "SQ", "UT", "UN":
+			if p+12 > len(b) {
+				return "", errors.New("file meta information cut short")
+			}
+			n, hdr = int(binary.LittleEndian.Uint32(b[p+8:])), 12
+		default:
+			n, hdr = int(binary.LittleEndian.Uint16(b[p+6:])), 8
+		}
+		if n < 0 || p+hdr+n > len(b) {
+			return "", errors.New("file meta information cut short")
+		}
+		if elem == 3 {
+			uid := string(bytes.TrimRight(b[p+hdr:p+hdr+n], "\x00 "))
+			if !validUID(uid) {
+				return "", fmt.Errorf("MediaStorageSOPInstanceUID %q is not a UID", uid)
+			}
+			return uid, nil
+		}
+		p += hdr + n
+	}
+	return "", errors.New("no MediaStorageSOPInstanceUID (0002,0003) in the file meta information")
+}
