@@ -10,12 +10,12 @@ import (
 	"mime"
 	"mime/multipart"
 	"net/http"
+	"net/url"
 	"os"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"sync"
-
-	"dosecover/dosemap/safefile"
 )
 
 // FileExt is the extension of the retrieved files: DIR/<SOPInstanceUID>.dcm.
@@ -44,7 +44,8 @@ type RetrieveStats struct {
 
 // Retrieve copies study into dir (created if needed): one file per
 // instance named by its SOP Instance UID (FileExt), each written
-// atomically, several requests at once (WADO-RS, PS3.18 §10.4). Files
+// atomically and the folder flushed to disk once at the end, several
+// requests at once (WADO-RS, PS3.18 §10.4). Files
 // already in dir are kept and not fetched again. Nothing on the archive
 // changes. The list of instances is read before and after the transfer;
 // a difference, an instance listed but not delivered or an unexpected
@@ -52,54 +53,68 @@ type RetrieveStats struct {
 // and a later call completes them).
 func (c *Client) Retrieve(ctx context.Context, study, dir string, o RetrieveOptions) (RetrieveStats, error) {
 	var st RetrieveStats
-	before, err := c.Instances(ctx, study)
+	total, err := c.studyCount(ctx, study)
 	if err != nil {
 		return st, err
 	}
-	if len(before) == 0 {
+	if total == 0 {
 		return st, c.fail(404, fmt.Sprintf("has no instances of study %s", study), nil)
 	}
-	st.Instances = len(before)
+	st.Instances = total
 	if err := os.MkdirAll(dir, 0o755); err != nil {
 		return st, fmt.Errorf("retrieving study %s: %w", study, err)
 	}
-	bySeries := map[string][]string{}
-	var order []string
-	missing := map[string]bool{}
-	want := map[string]string{} // SOP -> series
-	for _, in := range before {
-		want[in.SOP] = in.Series
-		if _, err := os.Stat(filepath.Join(dir, in.SOP+FileExt)); err == nil {
-			st.Present++
-			continue
-		}
-		if _, ok := bySeries[in.Series]; !ok {
-			order = append(order, in.Series)
-		}
-		bySeries[in.Series] = append(bySeries[in.Series], in.SOP)
-		missing[in.SOP] = true
-	}
-	seriesSize := map[string]int{}
-	for _, in := range before {
-		seriesSize[in.Series]++
-	}
-	// Jobs: a whole series in one request when all of it is missing,
-	// otherwise the missing instances one by one.
+	// A folder with no instance yet gets the whole study in one request
+	// (the archive answers it far faster than its list of instances);
+	// otherwise the list tells what is missing.
 	type job struct{ series, sop string }
 	var jobs []job
-	for _, s := range order {
-		if !o.PerInstance && len(bySeries[s]) == seriesSize[s] {
-			jobs = append(jobs, job{series: s})
-			continue
+	var listed map[string]bool // nil: whole-study request, list unknown
+	missing := map[string]bool{}
+	if !o.PerInstance && !holdsInstances(dir) {
+		jobs = append(jobs, job{})
+	} else {
+		list, err := c.Instances(ctx, study)
+		if err != nil {
+			return st, err
 		}
-		for _, sop := range bySeries[s] {
-			jobs = append(jobs, job{series: s, sop: sop})
+		if len(list) != total {
+			return st, c.fail(0, fmt.Sprintf("lists %d instances of study %s but counts %d (the study is changing); retrieve it again", len(list), study, total), nil)
+		}
+		listed = map[string]bool{}
+		bySeries := map[string][]string{}
+		seriesSize := map[string]int{}
+		var order []string
+		for _, in := range list {
+			listed[in.SOP] = true
+			seriesSize[in.Series]++
+			if presentFile(filepath.Join(dir, in.SOP+FileExt), in.SOP) {
+				st.Present++
+				continue
+			}
+			if _, ok := bySeries[in.Series]; !ok {
+				order = append(order, in.Series)
+			}
+			bySeries[in.Series] = append(bySeries[in.Series], in.SOP)
+			missing[in.SOP] = true
+		}
+		// A whole series in one request when all of it is missing,
+		// otherwise the missing instances one by one.
+		for _, s := range order {
+			if !o.PerInstance && len(bySeries[s]) == seriesSize[s] {
+				jobs = append(jobs, job{series: s})
+				continue
+			}
+			for _, sop := range bySeries[s] {
+				jobs = append(jobs, job{series: s, sop: sop})
+			}
 		}
 	}
 	var (
-		mu       sync.Mutex
-		firstErr error
-		done     = st.Present
+		mu        sync.Mutex
+		firstErr  error
+		done      = st.Present
+		delivered = map[string]bool{}
 	)
 	ctx, cancel := context.WithCancel(ctx)
 	defer cancel()
@@ -117,29 +132,33 @@ func (c *Client) Retrieve(ctx context.Context, study, dir string, o RetrieveOpti
 	wrote := func(sop string, n int64) error {
 		mu.Lock()
 		defer mu.Unlock()
-		if !missing[sop] {
-			if _, listed := want[sop]; !listed {
-				return c.fail(0, fmt.Sprintf("sent instance %s, which is not listed in study %s (the study changed during retrieval)", sop, study), nil)
-			}
-			return nil // delivered twice, or already present: harmless
+		if listed != nil && !listed[sop] {
+			return c.fail(0, fmt.Sprintf("sent instance %s, which is not listed in study %s (the study changed during retrieval)", sop, study), nil)
 		}
+		if delivered[sop] {
+			return nil // sent twice: harmless
+		}
+		delivered[sop] = true
 		delete(missing, sop)
 		st.Fetched++
 		st.Bytes += n
 		done++
 		if o.Progress != nil {
-			o.Progress(done, st.Instances)
+			o.Progress(min(done, st.Instances), st.Instances)
 		}
 		return nil
 	}
 	ch := make(chan job)
 	var wg sync.WaitGroup
-	for w := 0; w < c.workers; w++ {
+	for w := 0; w < min(c.workers, len(jobs)); w++ {
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
 			for j := range ch {
-				path := "/studies/" + study + "/series/" + j.series
+				path := "/studies/" + study
+				if j.series != "" {
+					path += "/series/" + j.series
+				}
 				if j.sop != "" {
 					path += "/instances/" + j.sop
 				}
@@ -159,11 +178,20 @@ func (c *Client) Retrieve(ctx context.Context, study, dir string, o RetrieveOpti
 	}
 	close(ch)
 	wg.Wait()
+	if st.Fetched > 0 {
+		if err := syncFolder(dir); err != nil && firstErr == nil {
+			firstErr = fmt.Errorf("flushing %s to disk: %w", dir, err)
+		}
+	}
 	if firstErr != nil {
 		return st, firstErr
 	}
 	if err := ctx.Err(); err != nil {
 		return st, c.fail(0, "retrieval cancelled", err)
+	}
+	if listed == nil && st.Fetched != total {
+		return st, c.fail(0, fmt.Sprintf("delivered %d of the %d instances of study %s: the study changed during retrieval or the archive lost some; the folder holds a partial study",
+			st.Fetched, total, study), nil)
 	}
 	if len(missing) > 0 {
 		var some []string
@@ -176,26 +204,45 @@ func (c *Client) Retrieve(ctx context.Context, study, dir string, o RetrieveOpti
 		return st, c.fail(0, fmt.Sprintf("did not deliver %d of the %d instances of study %s (e.g. %s): the study changed during retrieval or the archive lost them; the folder holds a partial study",
 			len(missing), st.Instances, study, strings.Join(some, ", ")), nil)
 	}
-	after, err := c.Instances(ctx, study)
+	after, err := c.studyCount(ctx, study)
 	if err != nil {
 		return st, err
 	}
-	if !sameInstances(before, after) {
-		return st, c.fail(0, fmt.Sprintf("study %s changed during retrieval (%d instances listed before, %d after); retrieve it again", study, len(before), len(after)), nil)
+	if after != total {
+		return st, c.fail(0, fmt.Sprintf("study %s changed during retrieval (%d instances before, %d after); retrieve it again", study, total, after), nil)
 	}
 	return st, nil
 }
 
-func sameInstances(a, b []Instance) bool {
-	if len(a) != len(b) {
-		return false
+// holdsInstances reports whether dir has any retrieved file in it.
+func holdsInstances(dir string) bool {
+	m, _ := filepath.Glob(filepath.Join(dir, "*"+FileExt))
+	return len(m) > 0
+}
+
+// studyCount returns NumberOfStudyRelatedInstances (0020,1208) of study
+// (QIDO-RS), 0 when the archive does not know it.
+func (c *Client) studyCount(ctx context.Context, study string) (int, error) {
+	if !validUID(study) {
+		return 0, fmt.Errorf("%q is not a DICOM UID (digits and dots, at most 64 characters)", study)
 	}
-	for n := range a {
-		if a[n] != b[n] {
-			return false
+	v := url.Values{}
+	v.Set("StudyInstanceUID", study)
+	v.Add("includefield", "00201208")
+	objs, err := c.getJSON(ctx, "/studies", v)
+	if err != nil {
+		return 0, err
+	}
+	for _, o := range objs {
+		if o.first("0020000D") == study {
+			n, err := strconv.Atoi(o.first("00201208"))
+			if err != nil {
+				return 0, c.fail(0, fmt.Sprintf("gives no NumberOfStudyRelatedInstances for study %s", study), nil)
+			}
+			return n, nil
 		}
 	}
-	return true
+	return 0, nil
 }
 
 // acceptDICOM asks for the instances as stored (PS3.18 §8.7.3.5.2:
@@ -237,10 +284,7 @@ func (c *Client) fetch(ctx context.Context, path, dir string, wrote func(sop str
 		if err != nil {
 			return c.fail(resp.StatusCode, fmt.Sprintf("part %d of %s", parts, path), err)
 		}
-		if err := safefile.WriteFile(filepath.Join(dir, sop+FileExt), func(w io.Writer) error {
-			_, err := w.Write(data)
-			return err
-		}); err != nil {
+		if err := writeInstance(filepath.Join(dir, sop+FileExt), data); err != nil {
 			return err
 		}
 		if err := wrote(sop, int64(len(data))); err != nil {
