@@ -106,6 +106,12 @@ func runAudit(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "dosecover audit: --workers %d: want 0 (one per core) or more\n", cfg.Workers)
 		return 2
 	}
+	for n, in := range inputs { // studies on an archive come through the cache
+		var code int
+		if inputs[n], code = caseFolder("audit", in, stderr); code != exitOK {
+			return code
+		}
+	}
 	cfg.Inputs = inputs
 	cfg.Analyzer, cfg.Settings, cfg.SettingsColumns, err = auditAnalysis(settingsFile)
 	if err != nil {

@@ -52,7 +52,10 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 		fs.Usage()
 		return 2
 	}
-	dir := pos[0]
+	dir, code := caseFolder("report", pos[0], stderr) // a study on an archive comes through the cache
+	if code != exitOK {
+		return code
+	}
 	out := report.Outputs{PNG: *png, PDF: *pdf, JSON: *js, CSV: *csv, DPI: *dpi}
 	if out.PNG == "" && out.PDF == "" && out.JSON == "" && out.CSV == "" {
 		fmt.Fprintln(stderr, "dosecover report: give at least one output (-o report.png, --pdf, --json or --csv)")

@@ -190,6 +190,10 @@ func (c *Client) do(ctx context.Context, method, path string, q url.Values, acce
 		if errors.As(err, &ne) && ne.Timeout() {
 			return nil, c.fail(0, "no answer in time (timeout)", err)
 		}
+		var ue *url.Error
+		if errors.As(err, &ue) {
+			err = ue.Err // the address is in the message already
+		}
 		return nil, c.fail(0, "cannot be reached (is it running? is the address right?)", err)
 	}
 	if resp.StatusCode/100 == 2 {
