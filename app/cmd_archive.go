@@ -3,6 +3,7 @@
 package main
 
 import (
+	"bytes"
 	"context"
 	"encoding/json"
 	"flag"
@@ -15,7 +16,12 @@ import (
 	"text/tabwriter"
 	"time"
 
+	"dosecover/dosemap"
+	"dosecover/dosemap/deid"
 	"dosecover/dosemap/dicomweb"
+	"dosecover/review"
+	"dosecover/review/dicomout"
+	"dosecover/review/report"
 )
 
 func init() {
@@ -232,4 +238,82 @@ func caseFolder(cmd, arg string, stderr io.Writer) (dir string, code int) {
 		return "", exitFailure
 	}
 	return dir, exitOK
+}
+
+// dicomResultFlags are report's options for results as DICOM objects.
+type dicomResultFlags struct {
+	dir   string // --dicom: folder to write the objects into
+	store string // --store: DICOMweb root to store them in
+}
+
+// addDICOMResultFlags registers --dicom and --store on fs.
+func addDICOMResultFlags(fs *flag.FlagSet) *dicomResultFlags {
+	d := &dicomResultFlags{}
+	fs.StringVar(&d.dir, "dicom", "", "also write the results as DICOM objects (report as Encapsulated PDF, CEM43 dose map, RT Structure Set) into `DIR`")
+	fs.StringVar(&d.store, "store", "", "also store the DICOM results in the DICOMweb archive at `URL` (credentials from "+dicomweb.AuthEnv+")")
+	return d
+}
+
+func (d *dicomResultFlags) wanted() bool { return d.dir != "" || d.store != "" }
+
+// checkPath returns the --dicom folder, to be refused when it lies in the
+// case folder, or when its parent folder does not exist ("" without
+// --dicom).
+func (d *dicomResultFlags) checkPath() string { return d.dir }
+
+// write builds the DICOM results of the analysis r of the case read from
+// dir, with the report in, and writes and stores them as asked.
+func (d *dicomResultFlags) write(dir string, c *dosemap.Case, r *review.Result, in *report.Input, deidentify bool, stdout, stderr io.Writer) int {
+	if !d.wanted() {
+		return exitOK
+	}
+	fail := func(err error) int {
+		fmt.Fprintf(stderr, "dosecover report: DICOM results: %v\n", err)
+		return exitFailure
+	}
+	src, err := dicomout.ReadSource(dir, c)
+	if err != nil {
+		return fail(err)
+	}
+	if deidentify {
+		dd, err := deid.New(deid.Options{})
+		if err != nil {
+			return fail(err)
+		}
+		src = src.Deidentified(dd, in.CaseLabel)
+	}
+	var pdf bytes.Buffer
+	if err := report.RenderPDF(&pdf, in); err != nil {
+		return fail(err)
+	}
+	objs, notes, err := dicomout.Results(src, c, r, pdf.Bytes(), "Thermal dose coverage report")
+	if err != nil {
+		return fail(err)
+	}
+	for _, n := range notes {
+		fmt.Fprintf(stderr, "dosecover report: note: %s\n", n)
+	}
+	if d.dir != "" {
+		if err := dicomout.Write(d.dir, objs); err != nil {
+			return fail(err)
+		}
+		fmt.Fprintf(stdout, "wrote %d DICOM objects into %s\n", len(objs), d.dir)
+	}
+	if d.store != "" {
+		cl, err := archiveClient(d.store, os.Getenv(archiveCAEnv))
+		if err != nil {
+			return fail(err)
+		}
+		data := make([][]byte, len(objs))
+		for n, o := range objs {
+			data[n] = o.Data
+		}
+		ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
+		defer stop()
+		if err := cl.Store(ctx, src.StudyUID, data); err != nil {
+			return fail(err)
+		}
+		fmt.Fprintf(stdout, "stored %d DICOM objects in study %s on %s\n", len(objs), src.StudyUID, cl)
+	}
+	return exitOK
 }

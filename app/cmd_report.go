@@ -37,6 +37,7 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	dpi := fs.Int("dpi", report.DefaultDPI, "resolution of the PNG, 150 to 1200 dots per inch")
 	af := addAnalysisFlags(fs)
 	sf := addStructureFlags(fs)
+	df := addDICOMResultFlags(fs)
 	fs.Usage = func() {
 		fmt.Fprintln(stderr, "usage: dosecover report CASE_DIR -o report.png [--pdf report.pdf] [--json metrics.json] [--csv metrics.csv] [--deidentify] [options]")
 		fmt.Fprintln(stderr, "Analyses the case as \"dosecover analyze\" does with the same options and writes the")
@@ -57,8 +58,8 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 		return code
 	}
 	out := report.Outputs{PNG: *png, PDF: *pdf, JSON: *js, CSV: *csv, DPI: *dpi}
-	if out.PNG == "" && out.PDF == "" && out.JSON == "" && out.CSV == "" {
-		fmt.Fprintln(stderr, "dosecover report: give at least one output (-o report.png, --pdf, --json or --csv)")
+	if out.PNG == "" && out.PDF == "" && out.JSON == "" && out.CSV == "" && !df.wanted() {
+		fmt.Fprintln(stderr, "dosecover report: give at least one output (-o report.png, --pdf, --json, --csv, --dicom or --store)")
 		return 2
 	}
 	if *dpi < 150 || *dpi > 1200 {
@@ -71,7 +72,7 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 		return 2
 	}
 	// Refuse outputs inside the case folder before any work.
-	for _, p := range []string{out.PNG, out.PDF, out.JSON, out.CSV} {
+	for _, p := range []string{out.PNG, out.PDF, out.JSON, out.CSV, df.checkPath()} {
 		if p == "" {
 			continue
 		}
@@ -104,9 +105,14 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
 		return 1
 	}
-	if err := report.Write(in, dir, out); err != nil {
+	if out == (report.Outputs{DPI: out.DPI}) {
+		// only DICOM results asked for
+	} else if err := report.Write(in, dir, out); err != nil {
 		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
 		return 1
+	}
+	if code := df.write(dir, c, r, in, *deidentify, stdout, stderr); code != exitOK {
+		return code
 	}
 	fmt.Fprintf(stdout, "%s: covered %.1f %% of the monitored target at %g %s (margin %g mm)\n",
 		in.CaseLabel, 100*r.CoveredFraction, r.Threshold, r.DoseUnit, r.MarginMM)

@@ -256,6 +256,43 @@ func TestDoseMapRoundTrip(t *testing.T) {
 	t.Logf("coverage %.3f %% from the thermometry, %.3f %% from the dose map", 100*a.r.CoveredFraction, 100*r.CoveredFraction)
 }
 
+// Stored back into its own study, the cumulative dose map is read beside
+// the thermometry it sums without being added to it: the same coverage to
+// the last digit, and the inventory says why the series is left out.
+func TestDoseMapBesideThermometry(t *testing.T) {
+	a := analysedDemo(t)
+	dir := t.TempDir()
+	copyTree(t, a.dir, dir)
+	var dose []Object
+	for _, o := range a.objs {
+		if strings.HasPrefix(o.Name, "dose-") {
+			dose = append(dose, o)
+		}
+	}
+	if err := Write(filepath.Join(dir, "results"), dose); err != nil {
+		t.Fatal(err)
+	}
+	c, inv, err := dicomio.Load(t.Context(), dir, dicomio.LoadOptions{}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(c.Sonications) != len(a.c.Sonications) {
+		t.Errorf("%d sonications with the stored dose map beside them, want %d", len(c.Sonications), len(a.c.Sonications))
+	}
+	if !strings.Contains(strings.Join(inv.Problems, "\n"), "cumulative dose of an earlier review") {
+		t.Errorf("problems %q do not name the dose map left out", inv.Problems)
+	}
+	set := review.DefaultSettings()
+	set.Trials = 0
+	r, err := review.Analyze(t.Context(), c, set, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if r.CoveredFraction != a.r.CoveredFraction {
+		t.Errorf("coverage %.4f with the stored dose map beside the thermometry, %.4f without", r.CoveredFraction, a.r.CoveredFraction)
+	}
+}
+
 // The structure set read back by dosecover's reader holds the target as
 // it was, and a lethal region whose volume (rasterised on the analysis
 // grid by review.Occupancy) is the lethal volume of the analysis within

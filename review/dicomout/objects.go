@@ -8,6 +8,7 @@ import (
 	"time"
 
 	"dosecover/dosemap"
+	"dosecover/dosemap/dicomio"
 	"dosecover/review"
 	"dosecover/review/view"
 
@@ -66,7 +67,9 @@ const DoseCeiling = DoseSlope * 65535
 // DoseMap returns the cumulative thermal dose of r (CEM43 minutes, on the
 // grid where it was computed) as one derived MR image per slice with a
 // Real World Value Mapping labelled "CEM43" (slope DoseSlope, unit UCUM
-// "min"), the form dosemap/dicomio reads as a dose map. Unmeasured voxels
+// "min"), the form dosemap/dicomio reads as a dose map; ImageType value 4
+// dicomio.CumulativeDoseImageType keeps it from being added to the
+// thermometry it sums when it is read beside it. Unmeasured voxels
 // (NaN) are stored as 0. A model other than CEM43 is refused.
 func DoseMap(s *Source, r *review.Result, now time.Time) ([]Object, error) {
 	if r.Dose == nil {
@@ -83,7 +86,7 @@ func DoseMap(s *Source, r *review.Result, now time.Time) ([]Object, error) {
 		sop := NewUID()
 		var e elems
 		s.common(&e, SOPClassMRImage, sop, series, SeriesNumberDose, "MR", "Cumulative thermal dose (CEM43)", now)
-		e.add(tag.ImageType, []string{"DERIVED", "SECONDARY", "OTHER"})
+		e.add(tag.ImageType, []string{"DERIVED", "SECONDARY", "OTHER", dicomio.CumulativeDoseImageType})
 		e.add(tag.ContentDate, now.Format("20060102"))
 		e.add(tag.ContentTime, now.Format("150405"))
 		e.add(tag.AcquisitionDate, now.Format("20060102"))
