@@ -262,7 +262,54 @@ func (c *Client) fetch(ctx context.Context, path, dir string, wrote func(sop str
 	if err != nil || !strings.EqualFold(mt, "multipart/related") || params["boundary"] == "" {
 		return c.fail(resp.StatusCode, fmt.Sprintf("answered %s with %q, want multipart/related", path, resp.Header.Get("Content-Type")), err)
 	}
-	mr := multipart.NewReader(resp.Body, params["boundary"])
+	// Parts are read here and written by a few goroutines, so that the
+	// files' creation overlaps the transfer.
+	type file struct {
+		sop  string
+		data []byte
+	}
+	files := make(chan file, 2*c.workers)
+	var (
+		wg      sync.WaitGroup
+		errOnce sync.Once
+		werr    error
+	)
+	stop := make(chan struct{})
+	for w := 0; w < c.workers; w++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for f := range files {
+				err := writeInstance(filepath.Join(dir, f.sop+FileExt), f.data)
+				if err == nil {
+					err = wrote(f.sop, int64(len(f.data)))
+				}
+				if err != nil {
+					errOnce.Do(func() { werr = err; close(stop) })
+				}
+			}
+		}()
+	}
+	err = c.readParts(resp, path, params["boundary"], func(sop string, data []byte) bool {
+		select {
+		case files <- file{sop, data}:
+			return true
+		case <-stop:
+			return false
+		}
+	})
+	close(files)
+	wg.Wait()
+	if werr != nil {
+		return werr
+	}
+	return err
+}
+
+// readParts reads the parts of a multipart/related answer and hands each
+// whole one to put with its SOP Instance UID; put returns false to stop.
+func (c *Client) readParts(resp *http.Response, path, boundary string, put func(sop string, data []byte) bool) error {
+	mr := multipart.NewReader(resp.Body, boundary)
 	parts := 0
 	for {
 		p, err := mr.NextPart()
@@ -284,11 +331,8 @@ func (c *Client) fetch(ctx context.Context, path, dir string, wrote func(sop str
 		if err != nil {
 			return c.fail(resp.StatusCode, fmt.Sprintf("part %d of %s", parts, path), err)
 		}
-		if err := writeInstance(filepath.Join(dir, sop+FileExt), data); err != nil {
-			return err
-		}
-		if err := wrote(sop, int64(len(data))); err != nil {
-			return err
+		if !put(sop, data) {
+			return nil
 		}
 	}
 	if parts == 0 {

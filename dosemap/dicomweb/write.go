@@ -1,6 +1,8 @@
 package dicomweb
 
 import (
+	"crypto/rand"
+	"encoding/hex"
 	"fmt"
 	"os"
 	"path/filepath"
@@ -14,16 +16,15 @@ import (
 // is checked again on resumption (presentFile).
 func writeInstance(path string, data []byte) error {
 	dir, base := filepath.Split(path)
-	tmp, err := os.CreateTemp(dir, "."+base+".part-*")
+	var rnd [6]byte
+	rand.Read(rnd[:])
+	tmp, err := os.OpenFile(filepath.Join(dir, "."+base+".part-"+hex.EncodeToString(rnd[:])), os.O_WRONLY|os.O_CREATE|os.O_EXCL, 0o644)
 	if err != nil {
 		return fmt.Errorf("writing %s: %w", path, err)
 	}
 	_, err = tmp.Write(data)
 	if cerr := tmp.Close(); err == nil {
 		err = cerr
-	}
-	if err == nil {
-		err = os.Chmod(tmp.Name(), 0o644)
 	}
 	if err == nil {
 		err = os.Rename(tmp.Name(), path)
