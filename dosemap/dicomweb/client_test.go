@@ -9,6 +9,7 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+	"time"
 )
 
 // part10 returns a minimal DICOM Part 10 file whose file meta information
@@ -183,5 +184,35 @@ func TestTLSWithCA(t *testing.T) {
 	}
 	if _, err := New("http://user:pw@host/dw", Options{}); err == nil {
 		t.Error("credentials in the address were accepted")
+	}
+}
+
+// The cache removes the studies used least recently until it fits its
+// limit, never the one just retrieved.
+func TestCacheTrim(t *testing.T) {
+	k := &Cache{Root: t.TempDir(), Limit: 2500}
+	mk := func(study string, size int, age time.Duration) string {
+		d := k.Folder(StudyURL{Base: "http://a/dw", Study: study})
+		if err := os.MkdirAll(d, 0o755); err != nil {
+			t.Fatal(err)
+		}
+		if err := os.WriteFile(filepath.Join(d, "1.2"+FileExt), make([]byte, size), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		when := time.Now().Add(-age)
+		os.Chtimes(d, when, when)
+		return d
+	}
+	oldest := mk("1.1", 1000, 3*time.Hour)
+	older := mk("1.2", 1000, 2*time.Hour)
+	recent := mk("1.3", 1000, time.Hour)
+	keep := mk("1.4", 1000, 4*time.Hour) // just retrieved, whatever its time
+	if err := k.trim(keep); err != nil {
+		t.Fatal(err)
+	}
+	for d, want := range map[string]bool{oldest: false, older: false, recent: true, keep: true} {
+		if _, err := os.Stat(d); (err == nil) != want {
+			t.Errorf("%s kept %v, want %v", filepath.Base(d), err == nil, want)
+		}
 	}
 }

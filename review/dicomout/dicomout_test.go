@@ -310,8 +310,13 @@ func TestStructuresRoundTrip(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if len(ss) != 3 || ss[0].Name != a.c.Target().Name || len(ss[0].Contours) != len(a.c.Target().Contours) {
+	if len(ss) != 3 || ss[0].Name != a.c.Target().Name+" (as reviewed)" || len(ss[0].Contours) != len(a.c.Target().Contours) {
 		t.Fatalf("structures read back: %d; want the target %q first", len(ss), a.c.Target().Name)
+	}
+	for _, st := range ss {
+		if st.Role == dosemap.RoleTarget {
+			t.Errorf("result structure %q read back as a target", st.Name)
+		}
 	}
 	g := a.r.Grid.Geometry
 	occ, err := review.Occupancy(&ss[1], g, g.Spacing[2])

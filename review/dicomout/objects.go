@@ -167,7 +167,8 @@ func storedDose(d float32) uint16 {
 }
 
 // Structures returns an RT Structure Set (PS3.3 A.19) with the target as
-// read from the case, and the lethal region and the holes of r traced on
+// read from the case (named "NAME (as reviewed)", interpreted type
+// CONTROL, so that it is never taken for the plan's target), and the lethal region and the holes of r traced on
 // the slices of the analysis grid (marching squares on each slice of the
 // mask at 0.5, closed polygons; islands and hollows by the even-odd rule).
 func Structures(s *Source, c *dosemap.Case, r *review.Result, now time.Time) (Object, error) {
@@ -197,7 +198,9 @@ func Structures(s *Source, c *dosemap.Case, r *review.Result, now time.Time) (Ob
 	var rois []roi
 	// Display colours from dosecover's palette (review/palette.go: Okabe-Ito).
 	if t := c.Target(); t != nil {
-		rois = append(rois, roi{t.Name, "PTV", "MANUAL", []string{"230", "159", "0"}, t.Contours})
+		// Not PTV: read back beside the plan, a copy must never be taken
+		// for the plan's own target.
+		rois = append(rois, roi{t.Name + " (as reviewed)", "CONTROL", "MANUAL", []string{"230", "159", "0"}, t.Contours})
 	}
 	lethal := maskContours(r.Lethal, func(v float32) bool { return v >= 0.5 })
 	rois = append(rois, roi{fmt.Sprintf("Lethal dose >= %g %s", r.Threshold, r.DoseUnit), "TREATED_VOLUME", "AUTOMATIC", []string{"204", "121", "167"}, lethal})

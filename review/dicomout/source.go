@@ -87,7 +87,7 @@ func ReadSource(dir string, c *dosemap.Case) (*Source, error) {
 func (s *Source) Deidentified(d *deid.Deidentifier, label string) *Source {
 	o := &Source{
 		StudyUID: d.UID(s.StudyUID), FrameOfReference: d.UID(s.FrameOfReference),
-		PatientName: strings.ReplaceAll(label, " ", "^"), PatientID: label,
+		PatientName: label, PatientID: label,
 		IdentityRemoved: true, DeidentificationWay: "dosecover: identity, dates and study identifiers removed; UIDs replaced by hashes with a random salt",
 	}
 	for _, u := range s.Series {
