@@ -5,17 +5,34 @@ package main
 import (
 	"bytes"
 	"encoding/json"
+	"math"
 	"os"
 	"path/filepath"
 	"strconv"
 	"strings"
 	"testing"
+	"time"
 
 	"dosecover/dosemap/dicomweb"
 	"dosecover/dosemap/dicomweb/orthanctest"
 	"dosecover/dosemap/sim"
 	"dosecover/review"
+
+	"fyne.io/fyne/v2/test"
+	"fyne.io/fyne/v2/widget"
 )
+
+// waitText waits up to 60 s until the label shows want.
+func waitText(t *testing.T, l *widget.Label, want string) {
+	t.Helper()
+	deadline := time.Now().Add(60 * time.Second)
+	for !strings.Contains(l.Text, want) {
+		if time.Now().After(deadline) {
+			t.Fatalf("label shows %q, want %q", l.Text, want)
+		}
+		time.Sleep(20 * time.Millisecond)
+	}
+}
 
 // runOut runs a dosecover command and returns its exit code and outputs.
 func runOut(args ...string) (int, string, string) {
@@ -120,6 +137,26 @@ func TestArchiveRoundTrip(t *testing.T) {
 	// Analysed again with its results beside it: the same figures.
 	if again := analyse(srv.URL + "/studies/" + study); figures(again) != figures(local) {
 		t.Errorf("with the stored results in the study:\n%s\nbefore:\n%s", figures(again), figures(local))
+	}
+
+	// The window: File > Open from archive finds the study, retrieves it
+	// and opens it with the same coverage.
+	rw := testWindow(t)
+	ad := rw.archiveSearch()
+	ad.dialog.Show()
+	ad.url.SetText(srv.URL)
+	ad.patient.SetText(sim.DemoSession().PatientID)
+	test.Tap(ad.search)
+	waitText(t, ad.status, "1 study found")
+	if dir := os.Getenv("DOSECOVER_SCREENSHOT_DIR"); dir != "" {
+		writePNG(t, filepath.Join(dir, "archive-dialog.png"), rw.win.Canvas().Capture())
+	}
+	mark := rw.completed.Load()
+	ad.list.Select(0)
+	test.Tap(ad.retrieve)
+	waitJobs(t, rw, mark, 2)
+	if rw.result == nil || math.Abs(rw.result.Covered-local.CoveredFraction) > 1e-9 {
+		t.Errorf("opened from the archive in the window: result %+v, status %q; want coverage %.4f", rw.result, rw.status.Text, local.CoveredFraction)
 	}
 
 	// wrong password: exit 1, the archive and the refusal named
