@@ -44,9 +44,9 @@ type Options struct {
 	Auth string
 	// CAFile names a PEM file of extra trusted certificate authorities.
 	CAFile string
-	// Timeout bounds one request without a body in flight (connection,
-	// headers); 0 means 30 s. Bodies may take longer but must keep
-	// flowing (see IdleTimeout).
+	// Timeout bounds the wait for a connection, for the answer's headers
+	// and, while a body is read, for each next piece of it; 0 means 30 s.
+	// A long retrieval may take any time as long as data keep coming.
 	Timeout time.Duration
 	// Workers is the number of requests at once during retrieval; 0 means 4.
 	Workers int
@@ -54,6 +54,7 @@ type Options struct {
 
 // Client talks to one DICOMweb service.
 type Client struct {
+	timeout time.Duration
 	base    *url.URL
 	http    *http.Client
 	auth    string // value of the Authorization header, "" for none
@@ -106,7 +107,7 @@ func New(base string, o Options) (*Client, error) {
 		MaxIdleConnsPerHost:   workers,
 		IdleConnTimeout:       90 * time.Second,
 	}
-	return &Client{base: u, http: &http.Client{Transport: tr}, auth: auth, workers: workers}, nil
+	return &Client{timeout: timeout, base: u, http: &http.Client{Transport: tr}, auth: auth, workers: workers}, nil
 }
 
 // authHeader turns the AuthEnv form into an Authorization header value.

@@ -2,6 +2,7 @@ package dicomweb
 
 import (
 	"encoding/pem"
+	"errors"
 	"fmt"
 	"net/http"
 	"net/http/httptest"
@@ -214,5 +215,43 @@ func TestCacheTrim(t *testing.T) {
 		if _, err := os.Stat(d); (err == nil) != want {
 			t.Errorf("%s kept %v, want %v", filepath.Base(d), err == nil, want)
 		}
+	}
+}
+
+// A body that stops flowing is ended after the timeout with a message
+// saying so; a server error is named with its status.
+func TestStalledBodyAndServerError(t *testing.T) {
+	release := make(chan struct{})
+	srv := httptest.NewServer(http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
+		switch {
+		case r.URL.Path == "/dw/studies":
+			w.Header().Set("Content-Type", "application/dicom+json")
+			fmt.Fprint(w, `[{"0020000D":{"vr":"UI","Value":["1.8"]},"00201208":{"vr":"IS","Value":[2]}}]`)
+		case r.URL.Path == "/dw/studies/1.8":
+			w.Header().Set("Content-Type", `multipart/related; type="application/dicom"; boundary=XX`)
+			fmt.Fprintf(w, "--XX\r\nContent-Type: application/dicom\r\n\r\n%s\r\n", part10("1.9.1"))
+			w.(http.Flusher).Flush()
+			select { // stall
+			case <-release:
+			case <-r.Context().Done():
+			}
+		default:
+			http.Error(w, "database locked", 500)
+		}
+	}))
+	defer srv.Close()
+	defer close(release)
+	c, err := New(srv.URL+"/dw", Options{Timeout: 300 * time.Millisecond})
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, err = c.Retrieve(t.Context(), "1.8", t.TempDir(), RetrieveOptions{})
+	if err == nil || !strings.Contains(err.Error(), "timeout") {
+		t.Errorf("stalled body: %v; want a timeout", err)
+	}
+	_, err = c.Instances(t.Context(), "1.7")
+	var ae *Error
+	if !errors.As(err, &ae) || ae.Status != 500 || !strings.Contains(err.Error(), "500") || !strings.Contains(err.Error(), "database locked") {
+		t.Errorf("server error: %v; want the status and the server's words", err)
 	}
 }

@@ -16,6 +16,8 @@ import (
 	"strconv"
 	"strings"
 	"sync"
+	"sync/atomic"
+	"time"
 )
 
 // FileExt is the extension of the retrieved files: DIR/<SOPInstanceUID>.dcm.
@@ -253,11 +255,18 @@ const acceptDICOM = `multipart/related; type="application/dicom"; transfer-synta
 // fetch runs one WADO-RS request and writes every part of the answer into
 // dir, calling wrote after each file.
 func (c *Client) fetch(ctx context.Context, path, dir string, wrote func(sop string, n int64) error) error {
+	ctx, cancel := context.WithCancel(ctx)
+	defer cancel()
 	resp, err := c.do(ctx, http.MethodGet, path, nil, acceptDICOM, "", nil)
 	if err != nil {
 		return err
 	}
 	defer resp.Body.Close()
+	// A body that stops flowing for the client's timeout ends the request.
+	idle := &idleBody{r: resp.Body, d: c.timeout}
+	idle.timer = time.AfterFunc(c.timeout, func() { idle.fired.Store(true); cancel() })
+	defer idle.timer.Stop()
+	resp.Body = idle
 	mt, params, err := mime.ParseMediaType(resp.Header.Get("Content-Type"))
 	if err != nil || !strings.EqualFold(mt, "multipart/related") || params["boundary"] == "" {
 		return c.fail(resp.StatusCode, fmt.Sprintf("answered %s with %q, want multipart/related", path, resp.Header.Get("Content-Type")), err)
@@ -303,8 +312,30 @@ func (c *Client) fetch(ctx context.Context, path, dir string, wrote func(sop str
 	if werr != nil {
 		return werr
 	}
+	if err != nil && idle.expired() {
+		return c.fail(resp.StatusCode, fmt.Sprintf("sent no data for %v while answering %s (timeout)", c.timeout, path), err)
+	}
 	return err
 }
+
+// idleBody is a response body whose timer is pushed back by every read;
+// when it fires, the request is cancelled.
+type idleBody struct {
+	r     io.ReadCloser
+	timer *time.Timer
+	d     time.Duration
+	fired atomic.Bool
+}
+
+func (b *idleBody) Read(p []byte) (int, error) {
+	n, err := b.r.Read(p)
+	b.timer.Reset(b.d)
+	return n, err
+}
+
+func (b *idleBody) Close() error { return b.r.Close() }
+
+func (b *idleBody) expired() bool { return b.fired.Load() }
 
 // readParts reads the parts of a multipart/related answer and hands each
 // whole one to put with its SOP Instance UID; put returns false to stop.
