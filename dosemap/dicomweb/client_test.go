@@ -135,6 +135,11 @@ func TestTruncatedBody(t *testing.T) {
 	if st, err := c.Retrieve(t.Context(), "1.8", dir, RetrieveOptions{}); err != nil || st.Fetched != 3 {
 		t.Fatalf("whole body: %+v, %v", st, err)
 	}
+	// A folder holding anything else than this study's instances is refused.
+	os.WriteFile(filepath.Join(dir, "notes.txt"), []byte("x"), 0o644)
+	if _, err := c.Retrieve(t.Context(), "1.8", dir, RetrieveOptions{}); err == nil || !strings.Contains(err.Error(), "notes.txt") {
+		t.Errorf("folder with another file: %v; want it refused, naming the file", err)
+	}
 	for _, cut := range []int{200, 330, 500} { // in a part header, in a part, before the closing boundary
 		srv := fakeArchive(t, 3, cut)
 		c, _ := New(srv.URL+"/dw", Options{Auth: "Bearer tok"})

@@ -73,7 +73,11 @@ func (c *Client) Retrieve(ctx context.Context, study, dir string, o RetrieveOpti
 	var jobs []job
 	var listed map[string]bool // nil: whole-study request, list unknown
 	missing := map[string]bool{}
-	if !o.PerInstance && !holdsInstances(dir) {
+	names, err := folderFiles(dir)
+	if err != nil {
+		return st, err
+	}
+	if !o.PerInstance && len(names) == 0 {
 		jobs = append(jobs, job{})
 	} else {
 		list, err := c.Instances(ctx, study)
@@ -82,6 +86,15 @@ func (c *Client) Retrieve(ctx context.Context, study, dir string, o RetrieveOpti
 		}
 		if len(list) != total {
 			return st, c.fail(0, fmt.Sprintf("lists %d instances of study %s but counts %d (the study is changing); retrieve it again", len(list), study, total), nil)
+		}
+		listed = map[string]bool{}
+		for _, in := range list {
+			listed[in.SOP+FileExt] = true
+		}
+		for _, n := range names {
+			if !listed[n] {
+				return st, fmt.Errorf("%s holds %s, which is not an instance of study %s: retrieve into an empty folder (studies are never mixed)", dir, n, study)
+			}
 		}
 		listed = map[string]bool{}
 		bySeries := map[string][]string{}
@@ -216,10 +229,22 @@ func (c *Client) Retrieve(ctx context.Context, study, dir string, o RetrieveOpti
 	return st, nil
 }
 
-// holdsInstances reports whether dir has any retrieved file in it.
-func holdsInstances(dir string) bool {
-	m, _ := filepath.Glob(filepath.Join(dir, "*"+FileExt))
-	return len(m) > 0
+// folderFiles returns the names of what dir holds, leaving out (and
+// removing) temporary files of an interrupted retrieval.
+func folderFiles(dir string) ([]string, error) {
+	ents, err := os.ReadDir(dir)
+	if err != nil {
+		return nil, fmt.Errorf("reading %s: %w", dir, err)
+	}
+	var names []string
+	for _, e := range ents {
+		if strings.HasPrefix(e.Name(), ".") && strings.Contains(e.Name(), FileExt+".part-") {
+			os.Remove(filepath.Join(dir, e.Name()))
+			continue
+		}
+		names = append(names, e.Name())
+	}
+	return names, nil
 }
 
 // studyCount returns NumberOfStudyRelatedInstances (0020,1208) of study
