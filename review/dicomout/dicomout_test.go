@@ -220,9 +220,11 @@ for p in sorted(glob.glob(os.path.join(d, '*.dcm'))):
 
 // The dose map read back by dosecover itself (dosemap/dicomio) beside the
 // anatomy and the structures of the case gives the same coverage within
-// 0.5 percentage point (the tolerance asked of the round trip; the stored
-// dose is rounded to DoseSlope = 0.25 CEM43, which moves only voxels
-// within 0.125 CEM43 of the threshold).
+// 0.5 percentage point (the tolerance asked of the round trip). The
+// stored dose is rounded to DoseSlope = 0.25 CEM43, which moves only
+// voxels within 0.125 CEM43 of the threshold; most of the difference
+// (0.3 point on the demo case, same monitored volume) comes from carrying
+// the summed dose onto the analysis grid instead of each sonication's.
 func TestDoseMapRoundTrip(t *testing.T) {
 	a := analysedDemo(t)
 	dir := t.TempDir()
@@ -253,7 +255,7 @@ func TestDoseMapRoundTrip(t *testing.T) {
 	if d := 100 * math.Abs(r.CoveredFraction-a.r.CoveredFraction); d > 0.5 {
 		t.Errorf("coverage read back %.2f %%, analysed %.2f %%: differ by %.2f points (> 0.5)", 100*r.CoveredFraction, 100*a.r.CoveredFraction, d)
 	}
-	t.Logf("coverage %.3f %% from the thermometry, %.3f %% from the dose map", 100*a.r.CoveredFraction, 100*r.CoveredFraction)
+	t.Logf("coverage %.3f %% from the thermometry, %.3f %% from the dose map; monitored %.4f, %.4f; covered mL %.4f, %.4f", 100*a.r.CoveredFraction, 100*r.CoveredFraction, a.r.MonitoredFraction, r.MonitoredFraction, a.r.CoveredVolumeML, r.CoveredVolumeML)
 }
 
 // Stored back into its own study, the cumulative dose map is read beside
