@@ -139,6 +139,14 @@ func TestArchiveRoundTrip(t *testing.T) {
 		t.Errorf("with the stored results in the study:\n%s\nbefore:\n%s", figures(again), figures(local))
 	}
 
+	// audit takes the address too (through the same cache).
+	auditOut := filepath.Join(root, "audit")
+	if code, _, errs := runOut("audit", srv.URL+"/studies/"+study, "-o", auditOut, "--workers", "1"); code != 0 {
+		t.Errorf("audit of a study address: exit %d: %s", code, errs)
+	} else if b, err := os.ReadFile(filepath.Join(auditOut, "summary.csv")); err != nil || strings.Count(string(b), "\n") != 2 {
+		t.Errorf("audit summary: %v\n%s", err, b)
+	}
+
 	// The window: File > Open from archive finds the study, retrieves it
 	// and opens it with the same coverage.
 	rw := testWindow(t)
