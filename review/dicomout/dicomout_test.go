@@ -347,6 +347,9 @@ func TestDeidentified(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
+	if len(src.Series) != len(a.c.Sonications)+1 {
+		t.Errorf("source refers to %d series, want the anatomy and %d sonications", len(src.Series), len(a.c.Sonications))
+	}
 	ds := src.Deidentified(d, "Teaching case 0A1B2C3D")
 	objs, _, err := Results(ds, a.c, a.r, a.pdf, "Thermal dose coverage")
 	if err != nil {
@@ -354,7 +357,7 @@ func TestDeidentified(t *testing.T) {
 	}
 	for _, o := range objs {
 		s := string(o.Data)
-		for _, secret := range []string{src.PatientName, src.PatientID, src.StudyUID} {
+		for _, secret := range append([]string{src.PatientName, src.PatientID, src.StudyUID}, src.Series...) {
 			if strings.Contains(s, secret) {
 				t.Errorf("%s holds %q", o.Name, secret)
 			}

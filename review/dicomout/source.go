@@ -1,6 +1,7 @@
 package dicomout
 
 import (
+	"context"
 	"errors"
 	"fmt"
 	"io"
@@ -12,6 +13,7 @@ import (
 
 	"dosecover/dosemap"
 	"dosecover/dosemap/deid"
+	"dosecover/dosemap/dicomio"
 	"dosecover/dosemap/safefile"
 	"dosecover/review"
 
@@ -23,7 +25,8 @@ var errFound = errors.New("found")
 
 // ReadSource takes the study attributes of the case c from the folder dir
 // it was read from: from the first file of one of its thermometry series
-// (pixel data skipped). The results reference every sonication series.
+// (pixel data skipped). The results reference the anatomy series used and
+// every sonication series.
 func ReadSource(dir string, c *dosemap.Case) (*Source, error) {
 	want := map[string]bool{}
 	var series []string
@@ -35,6 +38,14 @@ func ReadSource(dir string, c *dosemap.Case) (*Source, error) {
 	}
 	if len(want) == 0 {
 		return nil, fmt.Errorf("%s: the case has no sonication series to refer to", dir)
+	}
+	// The anatomy series the analysis used is referenced too.
+	if inv, err := dicomio.Scan(context.Background(), dir, nil); err == nil {
+		for _, si := range inv.Series {
+			if si.Role == dicomio.RoleAnatomy && si.Default && si.UID != "" && !want[si.UID] {
+				series = append([]string{si.UID}, series...)
+			}
+		}
 	}
 	var src *Source
 	err := filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {
