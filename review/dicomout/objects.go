@@ -16,6 +16,10 @@ import (
 	"github.com/suyashkumar/dicom/pkg/tag"
 )
 
+// Caution is carried by the dose map (ImageComments) and the structure set
+// (StructureSetDescription); the report carries it on its page.
+const Caution = "dosecover result for retrospective review, QA and teaching; not a planning or treatment system; thresholds vary by tissue; defer to local protocols and licensed practice"
+
 // Series numbers of the results (high, so they sort after the source).
 const (
 	SeriesNumberReport     = 9801
@@ -93,6 +97,7 @@ func DoseMap(s *Source, r *review.Result, now time.Time) ([]Object, error) {
 		e.add(tag.AcquisitionTime, now.Format("150405"))
 		e.add(tag.DerivationDescription, "cumulative thermal dose (Sapareto-Dewey CEM43) computed by dosecover from the MR thermometry of the study")
 		e.add(tag.Laterality, "")
+		e.add(tag.ImageComments, Caution)
 		e.add(tag.ScanningSequence, "RM") // research mode: no acquisition of its own
 		e.add(tag.SequenceVariant, "NONE")
 		e.add(tag.ScanOptions, "")
@@ -184,6 +189,7 @@ func Structures(s *Source, c *dosemap.Case, r *review.Result, now time.Time) (Ob
 	e.add(tag.PositionReferenceIndicator, "")
 	e.add(tag.StructureSetLabel, "DOSE REGIONS")
 	e.add(tag.StructureSetName, "Lethal region and holes")
+	e.add(tag.StructureSetDescription, Caution)
 	e.add(tag.StructureSetDate, now.Format("20060102"))
 	e.add(tag.StructureSetTime, now.Format("150405"))
 	var frame elems
