@@ -166,6 +166,11 @@ func TestArchiveRoundTrip(t *testing.T) {
 	if rw.result == nil || math.Abs(rw.result.Covered-local.CoveredFraction) > 1e-9 {
 		t.Errorf("opened from the archive in the window: result %+v, status %q; want coverage %.4f", rw.result, rw.status.Text, local.CoveredFraction)
 	}
+	if dir := os.Getenv("DOSECOVER_SCREENSHOT_DIR"); dir != "" {
+		writePNG(t, filepath.Join(dir, "opened-from-archive.png"), rw.win.Canvas().Capture())
+		rw.storeResults()
+		writePNG(t, filepath.Join(dir, "store-results.png"), rw.win.Canvas().Capture())
+	}
 
 	// wrong password: exit 1, the archive and the refusal named
 	t.Setenv(dicomweb.AuthEnv, srv.User+":not-the-password")
