@@ -208,8 +208,8 @@ func (rw *reviewWindow) storeResults() {
 	note.Wrapping = fyne.TextWrapWord
 	items := []*widget.FormItem{widget.NewFormItem("Archive (DICOMweb)", urlEntry), widget.NewFormItem("", note)}
 	c, caseDir, teaching := rw.loaded.Case, rw.loaded.Dir, rw.teaching
-	opt := report.Options{Deidentify: teaching, ReviewDate: time.Now().UTC().Truncate(time.Second), InputsSHA256: rw.hash,
-		Thermometry: thermometryOptions(rw.settings)}
+	opt := report.Options{Deidentify: teaching, SignOffs: rw.record.SignOffs, Study: rw.loaded.Study,
+		ReviewDate: time.Now().UTC().Truncate(time.Second), InputsSHA256: rw.hash}
 	d := dialog.NewForm("Store results in archive", "Store", "Cancel", items, func(ok bool) {
 		if !ok {
 			return

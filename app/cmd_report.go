@@ -1,5 +1,3 @@
-//go:build cgo
-
 package main
 
 import (
@@ -52,7 +50,7 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	if len(pos) != 1 {
 		fmt.Fprintf(stderr, "dosecover report: one case folder expected, got %d arguments\n", len(pos))
 		fs.Usage()
-		return 2
+		return exitUsage
 	}
 	dir, code := caseFolder("report", pos[0], stderr) // a study on an archive comes through the cache
 	if code != exitOK {
@@ -61,16 +59,16 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	out := report.Outputs{PNG: *png, PDF: *pdf, JSON: *js, CSV: *csv, DPI: *dpi}
 	if out.PNG == "" && out.PDF == "" && out.JSON == "" && out.CSV == "" && !df.wanted() {
 		fmt.Fprintln(stderr, "dosecover report: give at least one output (-o report.png, --pdf, --json, --csv, --dicom or --store)")
-		return 2
+		return exitUsage
 	}
 	if *dpi < 150 || *dpi > 1200 {
 		fmt.Fprintf(stderr, "dosecover report: --dpi %d: want 150 (legible in print) to 1200\n", *dpi)
-		return 2
+		return exitUsage
 	}
 	set, err := af.settings()
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
-		return 2
+		return settingsExitCode(err)
 	}
 	// Refuse outputs inside the case folder before any work.
 	for _, p := range []string{out.PNG, out.PDF, out.JSON, out.CSV, df.checkPath()} {
@@ -79,11 +77,11 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 		}
 		if err := safefile.CheckOutside(dir, p); err != nil {
 			fmt.Fprintf(stderr, "dosecover report: %v\n", err)
-			return 1
+			return exitFailure
 		}
 		if err := safefile.CheckDir("output folder", filepath.Dir(p)); err != nil {
 			fmt.Fprintf(stderr, "dosecover report: cannot write %s: %v\n", p, err)
-			return 1
+			return exitFailure
 		}
 	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
@@ -92,10 +90,10 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	if code != 0 {
 		return code
 	}
-	sum, err := report.HashFolder(dir)
+	sum, _, err := review.HashInputs(ctx, dir)
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
-		return 1
+		return exitFailure
 	}
 	// The sign-offs made in the window on these very input files: the
 	// report prints one only when it was made on this analysis.
@@ -114,13 +112,13 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	})
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
-		return 1
+		return exitFailure
 	}
 	if out == (report.Outputs{DPI: out.DPI}) {
 		// only DICOM results asked for
 	} else if err := report.Write(in, dir, out); err != nil {
 		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
-		return 1
+		return exitFailure
 	}
 	if code := df.write(dir, c, r, in, *deidentify, stdout, stderr); code != exitOK {
 		return code
@@ -138,7 +136,7 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 		}
 	}
 	fmt.Fprintf(stdout, "sign-off: %s\n", orText(in.SignOff, "not signed off"))
-	return 0
+	return exitOK
 }
 
 // orText returns s, or alt when s is empty.
