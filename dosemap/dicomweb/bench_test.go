@@ -1,3 +1,8 @@
+// The archive round trips do not depend on the vector kernels: they run
+// once, in the pass without the purego tag.
+
+//go:build !purego
+
 package dicomweb
 
 import (
