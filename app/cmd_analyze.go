@@ -71,6 +71,9 @@ func runAnalyze(args []string, stdout, stderr io.Writer) int {
 			return exitFailure
 		}
 	}
+	if *deidentify {
+		stderr = hidePathsOf(stderr, dir) // names in the case folder may carry identity
+	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
 	defer stop()
 	c, res, _, code := loadAndAnalyze(ctx, "analyze", dir, *study, sf, set, stderr)

@@ -63,7 +63,9 @@ func runDeidentify(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stdout, "dates replaced by %s (times unchanged)\n", deid.DummyDate)
 	}
 	for _, s := range res.Skipped {
-		fmt.Fprintf(stdout, "not copied: %s: %s\n", s.Path, s.Reason)
+		// Names inside the case folder may carry the patient's name:
+		// shown blanked of the identifying values found in the case.
+		fmt.Fprintf(stdout, "not copied: %s: %s\n", s.Shown, s.Reason)
 	}
 	return exitOK
 }

@@ -84,6 +84,9 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 			return exitFailure
 		}
 	}
+	if *deidentify {
+		stderr = hidePathsOf(stderr, dir) // names in the case folder may carry identity
+	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
 	defer stop()
 	c, r, studyUID, code := loadAndAnalyze(ctx, "report", dir, *study, sf, set, stderr)

@@ -39,9 +39,9 @@ func TestFolderSkipsBadFiles(t *testing.T) {
 	}
 	want := map[string]string{
 		"empty.dcm":     "empty file",
-		"notes.txt":     "not a DICOM file (no DICM marker)",
-		"truncated.dcm": "truncated: the file ends before its last element",
-		"crash.dcm":     "unreadable: the DICOM parser failed on malformed data",
+		"notes.txt":     "not a DICOM file (no DICM marker and no DICOM element at the start)",
+		"truncated.dcm": "truncated or corrupt: FileMetaInformationGroupLength (0002,0000) declares 96 bytes but only 56 remain",
+		"crash.dcm":     "unreadable: malformed DICOM data the parser cannot read (it stopped on an internal check)",
 	}
 	files := map[string][]byte{"empty.dcm": nil, "notes.txt": []byte("treatment notes"), "truncated.dcm": good[:200], "crash.dcm": crashingDICOM()}
 	for name, data := range files {

@@ -42,6 +42,7 @@
 package deid
 
 import (
+	"bytes"
 	"crypto/rand"
 	"crypto/sha256"
 	"encoding/binary"
@@ -312,19 +313,30 @@ func (d *Deidentifier) Collect(ds *dicom.Dataset) {
 			return
 		}
 		for _, s := range stringsOf(e) {
-			d.addToken(s)
-			for _, part := range strings.FieldsFunc(s, func(r rune) bool { return r == '^' || r == '=' || r == ' ' || r == ',' }) {
-				d.addToken(part)
-			}
+			d.addValue(s)
 		}
 	})
 }
 
 func (d *Deidentifier) addToken(s string) {
-	s = strings.ToUpper(strings.TrimSpace(s))
+	s = asciiUpper(strings.TrimSpace(s))
 	if len(s) >= 3 { // shorter parts (initials, "MR") would shred ordinary words
 		d.tokens[s] = true
 	}
+}
+
+// asciiUpper upper-cases the ASCII letters of s and keeps every other byte
+// as it is, so that positions in the result are positions in s whatever
+// the bytes are (Latin-1 names without a SpecificCharacterSet are not
+// valid UTF-8, and Unicode upper-casing would change their length).
+func asciiUpper(s string) string {
+	b := []byte(s)
+	for i, c := range b {
+		if c >= 'a' && c <= 'z' {
+			b[i] = c - 'a' + 'A'
+		}
+	}
+	return string(b)
 }
 
 func walk(es []*dicom.Element, fn func(*dicom.Element)) {
@@ -355,6 +367,29 @@ func setStrings(e *dicom.Element, s []string) error {
 	return nil
 }
 
+// Blank returns s with every identifying value of values blanked out by
+// "X" characters of the same length: each value whole and each of its
+// parts (split at "^", "=", spaces and commas, as person names are) of 3
+// bytes or more, in any ASCII case. Bytes are compared as they are, so
+// text that is not valid UTF-8 (Latin-1 names without a character set) is
+// handled too. It is the cleaning the de-identified copies get, for text
+// that dosecover writes itself (reports, tables, messages).
+func Blank(s string, values ...string) string {
+	d := &Deidentifier{tokens: map[string]bool{}}
+	for _, v := range values {
+		d.addValue(v)
+	}
+	return d.clean(s)
+}
+
+// addValue records v and its parts as identifying tokens.
+func (d *Deidentifier) addValue(v string) {
+	d.addToken(v)
+	for _, part := range strings.FieldsFunc(v, func(r rune) bool { return r == '^' || r == '=' || r == ' ' || r == ',' }) {
+		d.addToken(part)
+	}
+}
+
 // clean replaces every identifying token in s by "X" characters of the
 // same length (case-insensitive).
 func (d *Deidentifier) clean(s string) string {
@@ -372,16 +407,35 @@ func (d *Deidentifier) clean(s string) string {
 		}
 		return toks[a] < toks[b]
 	})
-	for _, t := range toks {
-		for {
-			i := strings.Index(strings.ToUpper(s), t)
-			if i < 0 {
-				break
+	// Matching is on ASCII-upper-cased bytes, which have the positions of
+	// s; every replacement keeps the length, so the positions stay valid.
+	// Passes repeat until none changes anything (a replacement may complete
+	// another value, "ZZZAB" -> "XXXAB" holding "XAB"); each replacement
+	// turns at least one byte other than X into X, so this ends. A value
+	// made of X alone is already what it would become, and is skipped.
+	up := []byte(asciiUpper(s))
+	b := []byte(s)
+	for changed := true; changed; {
+		changed = false
+		for _, t := range toks {
+			if strings.Trim(t, "X") == "" {
+				continue
 			}
-			s = s[:i] + strings.Repeat("X", len(t)) + s[i+len(t):]
+			for from := 0; ; {
+				i := bytes.Index(up[from:], []byte(t))
+				if i < 0 {
+					break
+				}
+				i += from
+				for k := i; k < i+len(t); k++ {
+					b[k], up[k] = 'X', 'X'
+				}
+				from = i + len(t)
+				changed = true
+			}
 		}
 	}
-	return s
+	return string(b)
 }
 
 // shiftDate shifts a DA value (YYYYMMDD) by the offset, or replaces it.
@@ -393,12 +447,16 @@ func (d *Deidentifier) shiftDate(s string) (string, error) {
 	if d.opt.Dates == DatesRemove {
 		return DummyDate, nil
 	}
-	if len(s) < 8 {
-		return "", fmt.Errorf("date %q is not YYYYMMDD", s)
-	}
-	t, err := time.Parse("20060102", s[:8])
+	t, err := time.Parse("20060102", s[:min(8, len(s))])
 	if err != nil {
-		return "", fmt.Errorf("date %q is not YYYYMMDD", s)
+		// ACR-NEMA 2.0 dates, still met in legacy data (PS3.5 6.2, DA:
+		// "YYYY.MM.DD" in earlier versions of the standard).
+		t, err = time.Parse("2006.01.02", s[:min(10, len(s))])
+	}
+	if err != nil {
+		// A date that cannot be read cannot be shifted: it is emptied
+		// rather than kept (PS3.15 Annex E action Z), and the copy goes on.
+		return "", nil
 	}
 	return t.AddDate(0, 0, d.shift).Format("20060102"), nil
 }

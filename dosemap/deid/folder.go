@@ -1,6 +1,7 @@
 package deid
 
 import (
+	"bytes"
 	"context"
 	"errors"
 	"fmt"
@@ -12,6 +13,7 @@ import (
 
 	"github.com/suyashkumar/dicom"
 
+	"dosecover/dosemap/dicomio"
 	"dosecover/dosemap/safefile"
 )
 
@@ -23,6 +25,10 @@ type FileResult struct {
 // Skipped is a file of the input folder that was not copied, and why.
 type Skipped struct {
 	Path, Reason string
+	// Shown is Path relative to the input folder with the identifying
+	// values found in the case blanked out (folder and file names may
+	// carry the patient's name): what a de-identified listing shows.
+	Shown string
 }
 
 // Result summarises a folder de-identification.
@@ -33,34 +39,41 @@ type Result struct {
 	ShiftDays int // applied offset in DatesShift mode
 }
 
-// parse reads the file at path, turning a panic of the DICOM library on a
-// malformed file into an error wrapping errParserFailed.
-func parse(path string, skipPixels bool) (ds dicom.Dataset, err error) {
-	defer func() {
-		if r := recover(); r != nil {
-			err = errParserFailed // the panic's text means nothing to the user
-		}
-	}()
-	opts := []dicom.ParseOption{dicom.SkipProcessingPixelDataValue()}
-	if skipPixels {
-		opts = []dicom.ParseOption{dicom.SkipPixelData()}
-	}
-	return dicom.ParseFile(path, nil, opts...)
+// parse reads the file at path through dicomio.ParseFile, the guarded
+// entry point every part of dosecover shares: only regular files, lengths
+// and nesting checked before the DICOM library sees the data, pixel data
+// read only when asked for (and refused when far larger than the image
+// needs), the library's panics turned into errors.
+func parse(path string, skipPixels bool) (dicom.Dataset, error) {
+	return dicomio.ParseFile(path, !skipPixels)
 }
 
 // File de-identifies the DICOM file src into dst (written atomically).
 // The pixel data are copied byte for byte.
 func (d *Deidentifier) File(src, dst string) error {
+	return safefile.WriteFile(dst, func(w io.Writer) error { return d.copyFile(src, w) })
+}
+
+// copyFile writes the de-identified data set of the file src to w.
+func (d *Deidentifier) copyFile(src string, w io.Writer) error {
 	ds, err := parse(src, false)
 	if err != nil {
-		return fmt.Errorf("reading %s: %s", src, unreadable(src, err))
+		return fmt.Errorf("reading %s: %s", src, err)
 	}
 	if err := d.Dataset(&ds); err != nil {
 		return fmt.Errorf("de-identifying %s: %w", src, err)
 	}
-	return safefile.WriteFile(dst, func(w io.Writer) error {
-		return dicom.Write(w, ds, dicom.SkipVRVerification(), dicom.SkipValueTypeVerification(), dicom.DefaultMissingTransferSyntax())
-	})
+	var buf bytes.Buffer
+	if err := dicom.Write(&buf, ds, dicom.SkipVRVerification(), dicom.SkipValueTypeVerification(), dicom.DefaultMissingTransferSyntax()); err != nil {
+		return fmt.Errorf("writing the copy of %s: %w", src, err)
+	}
+	// A malformed source can come out of the DICOM library's writer as
+	// a file that does not read again: such a copy is refused.
+	if _, err := dicomio.ParseBytes(buf.Bytes()); err != nil {
+		return fmt.Errorf("de-identifying %s: the copy does not read back (%v); the file is malformed", src, err)
+	}
+	_, err = w.Write(buf.Bytes())
+	return err
 }
 
 // Folder writes a de-identified copy of every DICOM file under srcDir into
@@ -105,6 +118,8 @@ func Folder(ctx context.Context, srcDir, dstDir string, opt Options, progress fu
 			paths = append(paths, p)
 		case e.Type()&fs.ModeSymlink != 0:
 			links = append(links, Skipped{Path: p, Reason: "symbolic link, not followed"})
+		case !e.IsDir():
+			links = append(links, Skipped{Path: p, Reason: dicomio.SpecialFileReason(e.Type())})
 		}
 		return nil
 	})
@@ -128,7 +143,7 @@ func Folder(ctx context.Context, srcDir, dstDir string, opt Options, progress fu
 		}
 		ds, err := parse(p, true)
 		if err != nil {
-			res.Skipped = append(res.Skipped, Skipped{Path: p, Reason: unreadable(p, err)})
+			res.Skipped = append(res.Skipped, Skipped{Path: p, Reason: err.Error()})
 			continue
 		}
 		sets = append(sets, ds)
@@ -145,6 +160,13 @@ func Folder(ctx context.Context, srcDir, dstDir string, opt Options, progress fu
 	sets = nil
 	if len(dicoms) == 0 {
 		return nil, fmt.Errorf("no DICOM file found in %s", srcDir)
+	}
+	for n, sk := range res.Skipped {
+		rel, err := filepath.Rel(srcDir, sk.Path)
+		if err != nil {
+			rel = filepath.Base(sk.Path)
+		}
+		res.Skipped[n].Shown = d.clean(rel)
 	}
 	// Write into a temporary folder beside dstDir and rename it into place
 	// at the end, so a failed or cancelled run leaves no partial copy.

@@ -2,6 +2,7 @@ package dicomio
 
 import (
 	"io"
+	"io/fs"
 	"os"
 	"syscall"
 	"time"
@@ -18,10 +19,12 @@ type caseFile struct {
 }
 
 // openCaseFile opens path for reading; errors are *os.PathError, as from
-// os.Open.
+// os.Open. The file is opened without blocking, so that a FIFO (named
+// pipe) with no writer cannot hold the reader: stat then reports it as
+// not regular, and it is not read. Reads of regular files are unaffected.
 func openCaseFile(path string) (caseFile, error) {
 	for {
-		fd, err := syscall.Open(path, syscall.O_RDONLY|syscall.O_CLOEXEC, 0)
+		fd, err := syscall.Open(path, syscall.O_RDONLY|syscall.O_CLOEXEC|syscall.O_NONBLOCK, 0)
 		if err == syscall.EINTR {
 			continue
 		}
@@ -35,8 +38,8 @@ func openCaseFile(path string) (caseFile, error) {
 // Close closes the file.
 func (f caseFile) Close() error { return syscall.Close(f.fd) }
 
-// stat returns the file's size and modification time.
-func (f caseFile) stat() (size int64, mod time.Time, err error) {
+// stat returns the file's size, modification time and type.
+func (f caseFile) stat() (size int64, mod time.Time, mode fs.FileMode, err error) {
 	var st syscall.Stat_t
 	for {
 		err = syscall.Fstat(f.fd, &st)
@@ -45,9 +48,24 @@ func (f caseFile) stat() (size int64, mod time.Time, err error) {
 		}
 	}
 	if err != nil {
-		return 0, time.Time{}, &os.PathError{Op: "stat", Path: f.path, Err: err}
+		return 0, time.Time{}, 0, &os.PathError{Op: "stat", Path: f.path, Err: err}
 	}
-	return st.Size, time.Unix(st.Mtim.Sec, st.Mtim.Nsec), nil
+	switch st.Mode & syscall.S_IFMT {
+	case syscall.S_IFREG:
+	case syscall.S_IFDIR:
+		mode = fs.ModeDir
+	case syscall.S_IFIFO:
+		mode = fs.ModeNamedPipe
+	case syscall.S_IFCHR:
+		mode = fs.ModeDevice | fs.ModeCharDevice
+	case syscall.S_IFBLK:
+		mode = fs.ModeDevice
+	case syscall.S_IFSOCK:
+		mode = fs.ModeSocket
+	default:
+		mode = fs.ModeIrregular
+	}
+	return st.Size, time.Unix(st.Mtim.Sec, st.Mtim.Nsec), mode, nil
 }
 
 // Read implements io.Reader.

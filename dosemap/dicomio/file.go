@@ -9,6 +9,7 @@ import (
 	"math"
 	"regexp"
 	"slices"
+	"strconv"
 	"strings"
 	"sync"
 	"time"
@@ -126,6 +127,7 @@ type frameMeta struct {
 	Intercept   float64
 	RWV         []rwv
 	TE          float64 // s; 0 unknown
+	badTE       float64 // an EffectiveEchoTime (ms) out of range, for the message
 }
 
 // fileInfo is the result of reading one file.
@@ -149,6 +151,7 @@ type fileInfo struct {
 	BigEndian                          bool
 	Frames                             []frameMeta
 	Pixels                             []byte    // raw pixel data when read
+	firstFrame                         int       // frame number of the first frame in Pixels
 	pooled                             bool      // Pixels is a reused buffer (see decodeFile)
 	Size                               int64     // file size when the attributes were read
 	ModTime                            time.Time // modification time then (zero when not read from a file)
@@ -199,17 +202,53 @@ func readFile(path string, pixels bool) (fi *fileInfo, err error) {
 		return nil, skip("cannot read: %s", safefile.Reason(err))
 	}
 	defer f.Close()
-	fsize, mod, err := f.stat()
+	fsize, mod, mode, err := f.stat()
 	if err != nil {
 		return nil, skip("cannot read: %s", safefile.Reason(err))
+	}
+	if r := SpecialFileReason(mode); r != "" {
+		return nil, skip("%s", r)
+	}
+	// readBytes recovers panics of the DICOM library; this second guard
+	// keeps any other failure on one file from stopping the whole case.
+	defer func() {
+		if r := recover(); r != nil {
+			fi = nil
+			err = skip("unreadable: internal error while reading (%v)", r)
+		}
+	}()
+	if fsize > maxPooledFile {
+		// A large file is read only up to its pixel data, whatever it
+		// declares; the frames used are read later by loadPixels.
+		data, pixPos, pixLen, err := readHead(f, fsize, false)
+		if errors.Is(err, errNotDICOM) {
+			return nil, skip("not a DICOM file (no DICM marker and no DICOM element at the start)")
+		}
+		var fe *fileError
+		if errors.As(err, &fe) {
+			return nil, err
+		}
+		if err != nil {
+			return nil, skip("cannot read: %s", safefile.Reason(err))
+		}
+		declared := -1
+		if pixPos > 0 {
+			declared = pixLen
+		}
+		fi, err = readBytesDeclared(path, data, false, fastAttrs, declared)
+		if err != nil {
+			return nil, err
+		}
+		fi.Size, fi.ModTime = fsize, mod
+		if pixels && fi.IsImage && len(fi.Frames) > 0 {
+			return fi.loadPixels(nil, 0, len(fi.Frames)-1)
+		}
+		return fi, nil
 	}
 	var data []byte
 	var pooled *[]byte
 	size := int(fsize)
-	if fsize > int64(maxFileBytes) {
-		size = 0 // read as it comes; readBytes refuses what it cannot hold
-	}
-	if !pixels && size > 0 && size <= maxPooledFile {
+	if !pixels && size > 0 {
 		pooled = fileBuffers.Get().(*[]byte)
 		if cap(*pooled) < size+1 {
 			*pooled = make([]byte, 0, max(size+1, 64<<10))
@@ -222,9 +261,8 @@ func readFile(path string, pixels bool) (fi *fileInfo, err error) {
 	} else {
 		data = make([]byte, 0, size+1)
 	}
-	if size > 0 && size <= maxPooledFile {
-		// A small file is read in one call (its size is known): a large
-		// one that is not DICOM would be the only cost of reading whole.
+	if size > 0 {
+		// A small file is read in one call (its size is known).
 		data, err = readSmall(f, data, size)
 	} else {
 		data, err = readHeadThenRest(f, data)
@@ -238,14 +276,6 @@ func readFile(path string, pixels bool) (fi *fileInfo, err error) {
 	if pooled != nil {
 		*pooled = data[:0]
 	}
-	// readBytes recovers panics of the DICOM library; this second guard
-	// keeps any other failure on one file from stopping the whole case.
-	defer func() {
-		if r := recover(); r != nil {
-			fi = nil
-			err = skip("unreadable: internal error while reading (%v)", r)
-		}
-	}()
 	fi, err = readBytes(path, data, pixels)
 	if fi != nil {
 		fi.ModTime = mod
@@ -256,9 +286,6 @@ func readFile(path string, pixels bool) (fi *fileInfo, err error) {
 // maxPooledFile is the largest file read into a reused buffer; larger ones
 // (multi-frame series) get their own.
 const maxPooledFile = 4 << 20
-
-// maxFileBytes bounds the size taken from Stat when sizing the buffer.
-const maxFileBytes = 1 << 31
 
 // fileBuffers holds the reused read buffers of readFile.
 var fileBuffers = sync.Pool{New: func() any { b := make([]byte, 0, 64<<10); return &b }}
@@ -343,6 +370,13 @@ func readBytes(path string, data []byte, pixels bool) (fi *fileInfo, err error) 
 
 // readBytesWith is readBytes with the direct attribute reader on or off.
 func readBytesWith(path string, data []byte, pixels, useFast bool) (fi *fileInfo, err error) {
+	return readBytesDeclared(path, data, pixels, useFast, -1)
+}
+
+// readBytesDeclared is readBytesWith for data that may be only the head of
+// a file (see readHead): declared, when not negative, is the length the
+// top-level pixel data declare in the file, whose value data do not hold.
+func readBytesDeclared(path string, data []byte, pixels, useFast bool, declared int) (fi *fileInfo, err error) {
 	if len(data) == 0 {
 		return nil, skip("empty file (0 bytes)")
 	}
@@ -420,6 +454,9 @@ func readBytesWith(path string, data []byte, pixels, useFast bool) (fi *fileInfo
 	}
 	fi = &fileInfo{Path: path, Syntax: syntax, BigEndian: w.bo == binary.BigEndian,
 		Size: int64(len(data)), PixelPos: w.pixelPos, PixelLen: w.pixelLen}
+	if declared >= 0 {
+		fi.PixelLen = declared
+	}
 	if err := fi.fill(es, pixels); err != nil {
 		return nil, err
 	}
@@ -449,14 +486,23 @@ func (fi *fileInfo) fill(es elems, pixels bool) error {
 		StudyDate:   es.str(tag.StudyDate),
 		Institution: es.str(tag.InstitutionName),
 	}
-	if b0, ok := es.float(tag.MagneticFieldStrength); ok && b0 > 0 {
+	if b0, ok := es.float(tag.MagneticFieldStrength); ok && b0 != 0 {
+		if err := plausible(tag.MagneticFieldStrength, b0, "T", minB0, maxB0); err != nil {
+			return err
+		}
 		fi.B0 = b0
 	}
-	if te, ok := es.float(tag.EchoTime); ok && te > 0 {
+	if te, ok := es.float(tag.EchoTime); ok && te != 0 {
+		if err := plausible(tag.EchoTime, te, "ms", minTEms, maxTEms); err != nil {
+			return err
+		}
 		fi.TE = te / 1000
 	}
 	fi.WindowCenter, _ = es.float(tag.WindowCenter)
 	fi.WindowWidth, _ = es.float(tag.WindowWidth)
+	if !finite(fi.WindowCenter) || !finite(fi.WindowWidth) {
+		fi.WindowCenter, fi.WindowWidth = 0, 0 // display only: the image's own range is used
+	}
 
 	if fi.Modality == "RTSTRUCT" || fi.SOPClass == sopRTStructureSet {
 		ss, err := parseStructureSet(es)
@@ -489,13 +535,21 @@ func (fi *fileInfo) fill(es elems, pixels bool) error {
 	default:
 		return skip("unsupported BitsAllocated %d (8, 16 or 32 are read)", fi.BitsAllocated)
 	}
-	if fi.BitsStored, ok = es.int(tag.BitsStored); !ok || fi.BitsStored <= 0 || fi.BitsStored > fi.BitsAllocated {
+	if fi.BitsStored, ok = es.int(tag.BitsStored); !ok {
 		fi.BitsStored = fi.BitsAllocated
+	} else if fi.BitsStored < minBitsStored || fi.BitsStored > fi.BitsAllocated {
+		// PS3.3 C.7.6.3.1: BitsStored <= BitsAllocated; MR magnitude and
+		// phase images store 12 or 16 bits (common practice), so a
+		// handful of bits would turn the image into a few levels.
+		return skip("implausible %s %d: want %d to BitsAllocated (%d) for MR thermometry and anatomy", tagName(tag.BitsStored), fi.BitsStored, minBitsStored, fi.BitsAllocated)
 	}
 	if fi.HighBit, ok = es.int(tag.HighBit); !ok || fi.HighBit < fi.BitsStored-1 || fi.HighBit >= fi.BitsAllocated {
 		fi.HighBit = fi.BitsStored - 1
 	}
-	fi.PixelRep, _ = es.int(tag.PixelRepresentation)
+	if fi.PixelRep, ok = es.int(tag.PixelRepresentation); ok && fi.PixelRep != 0 && fi.PixelRep != 1 {
+		// PS3.3 C.7.6.3.1: 0000H unsigned, 0001H two's complement.
+		return skip("invalid %s %d: the standard allows 0 (unsigned) or 1 (two's complement)", tagName(tag.PixelRepresentation), fi.PixelRep)
+	}
 	if fi.Samples, ok = es.int(tag.SamplesPerPixel); !ok {
 		fi.Samples = 1
 	}
@@ -514,9 +568,19 @@ func (fi *fileInfo) fill(es elems, pixels bool) error {
 		return skip("implausible image size %d×%d×%d", fi.Cols, fi.Rows, nf)
 	}
 	need := nf * fi.Rows * fi.Cols * fi.BitsAllocated / 8
-	if int64(pd.ValueLength) < int64(need) {
+	declared := int64(pd.ValueLength)
+	if fi.PixelPos > 0 {
+		declared = int64(fi.PixelLen) // also when only the file's head was read
+	}
+	if declared < int64(need) {
 		return skip("truncated or corrupt: PixelData (7fe0,0010) holds %d bytes, %d×%d×%d frames of %d bits need %d",
-			pd.ValueLength, fi.Cols, fi.Rows, nf, fi.BitsAllocated, need)
+			declared, fi.Cols, fi.Rows, nf, fi.BitsAllocated, need)
+	}
+	if pixelDataTooLong(declared, int64(need)) {
+		// Rows × Columns × frames × bits say how large the pixel data
+		// are; a file declaring far more is not what it says it is.
+		return skip("implausible pixel data: PixelData (7fe0,0010) declares %d bytes but %d×%d×%d frames of %d bits need %d; not read",
+			declared, fi.Cols, fi.Rows, nf, fi.BitsAllocated, need)
 	}
 	if pixels {
 		if len(info.UnprocessedValueData) < need {
@@ -612,8 +676,13 @@ func readGroups(g elems, f *frameMeta) {
 		f.RWV = r
 	}
 	if it := g.first(tagMREchoSequence); it != nil {
-		if v, ok := it.float(tagEffectiveEchoTime); ok && v > 0 {
-			f.TE = v / 1000
+		if v, ok := it.float(tagEffectiveEchoTime); ok && v != 0 {
+			if plausible(tagEffectiveEchoTime, v, "ms", minTEms, maxTEms) == nil {
+				f.TE = v / 1000
+			} else {
+				f.TE = math.NaN() // refused by checkPlanes, naming the value
+				f.badTE = v
+			}
 		}
 	}
 }
@@ -637,7 +706,7 @@ func readFrameAttrs(es elems, f *frameMeta) {
 	}
 	f.Intercept, _ = es.float(tag.RescaleIntercept)
 	f.RWV = readRWV(es)
-	if te, ok := es.float(tag.EchoTime); ok && te > 0 {
+	if te, ok := es.float(tag.EchoTime); ok && te > 0 && plausible(tag.EchoTime, te, "ms", minTEms, maxTEms) == nil {
 		f.TE = te / 1000
 	}
 }
@@ -720,4 +789,43 @@ func frameTimeOf(es elems) clockTime {
 		return clockTime{Day: date, Sec: s, OK: true}
 	}
 	return clockTime{Day: -1}
+}
+
+// Ranges of the values dosecover refuses outside of, with their sources.
+const (
+	// MagneticFieldStrength (0018,0087), T: clinical MR runs at 0.2 to
+	// 7 T and research magnets reach 21.1 T (from memory); 25 T leaves
+	// room without letting a corrupt value through.
+	minB0, maxB0 = 0.01, 25.0
+	// EchoTime (0018,0081), ms: PRF thermometry uses gradient echoes of
+	// about 5 to 30 ms (common practice); 0.05 to 1000 ms takes every MR
+	// sequence while refusing values that would make the PRF factor
+	// 1/(γ·α·B0·TE) blow up or vanish.
+	minTEms, maxTEms = 0.05, 1000.0
+	// BitsStored (0028,0101): 8 at least (common practice for MR).
+	minBitsStored = 8
+	// maxPositionMM bounds ImagePositionPatient and contour coordinates:
+	// 10 m from the scanner's origin is outside any patient (common
+	// practice).
+	maxPositionMM = 1e4
+	// maxSpacingMM bounds PixelSpacing and SliceThickness (a 1 m pixel
+	// is no MR image; common practice).
+	maxSpacingMM = 1e3
+	// maxMapping bounds rescale and real-world value slopes and
+	// intercepts: a 32-bit stored value (below 4.3e9) times 1e20 stays
+	// far inside float32 (3.4e38, IEEE 754), so no mapped value is
+	// infinite.
+	maxMapping = 1e20
+)
+
+// finite reports whether v is neither NaN nor infinite.
+func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
+
+// plausible refuses v of attribute t outside [lo, hi] (or not finite),
+// naming the attribute, the value and the range.
+func plausible(t tag.Tag, v float64, unit string, lo, hi float64) error {
+	if finite(v) && v >= lo && v <= hi {
+		return nil
+	}
+	return skip("implausible %s %s %s: want %g to %g %s", tagName(t), strconv.FormatFloat(v, 'g', -1, 64), unit, lo, hi, unit)
 }

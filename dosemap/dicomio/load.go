@@ -163,7 +163,15 @@ func decodeFile(fi *fileInfo, ts []target, tabs *valueTables) error {
 	if b, ok := pixelBuffers.Get().(*[]byte); ok {
 		buf = *b
 	}
-	px, err := fi.loadPixels(buf)
+	lo, hi := len(fi.Frames), -1
+	for _, t := range ts {
+		lo, hi = min(lo, t.frame), max(hi, t.frame)
+	}
+	var px *fileInfo
+	var err error
+	if hi >= lo {
+		px, err = fi.loadPixels(buf, lo, hi)
+	}
 	nan := float32(math.NaN())
 	for _, t := range ts {
 		if err != nil {
@@ -181,14 +189,19 @@ func decodeFile(fi *fileInfo, ts []target, tabs *valueTables) error {
 	return err
 }
 
-// loadPixels returns a copy of fi holding its raw pixel data (fi itself is
-// not changed, so that files can be read again concurrently). The bytes
-// are read straight from the offset the attribute pass found (into buf
-// when it is large enough; the copy is then marked pooled), so the file is
-// not parsed again; a file whose size changed since is refused. Without a
-// known offset the file is parsed again.
-func (fi *fileInfo) loadPixels(buf []byte) (*fileInfo, error) {
-	need := len(fi.Frames) * fi.Rows * fi.Cols * fi.BitsAllocated / 8
+// loadPixels returns a copy of fi holding the raw pixel data of frames lo
+// to hi (fi itself is not changed, so that files can be read again
+// concurrently); only those frames are read. The bytes are read straight
+// from the offset the attribute pass found (into buf when it is large
+// enough; the copy is then marked pooled), so the file is not parsed
+// again; a file whose size changed since is refused. Without a known
+// offset the file is parsed again.
+func (fi *fileInfo) loadPixels(buf []byte, lo, hi int) (*fileInfo, error) {
+	if lo < 0 || hi >= len(fi.Frames) || lo > hi {
+		return nil, fmt.Errorf("frames %d to %d asked of a file of %d frames", lo+1, hi+1, len(fi.Frames))
+	}
+	frameBytes := fi.Rows * fi.Cols * fi.BitsAllocated / 8
+	need := len(fi.Frames) * frameBytes
 	if fi.PixelPos <= 0 || fi.PixelLen < need {
 		px, err := readFile(fi.Path, true)
 		if err == nil && (px.Rows != fi.Rows || px.Cols != fi.Cols || len(px.Frames) != len(fi.Frames)) {
@@ -201,7 +214,7 @@ func (fi *fileInfo) loadPixels(buf []byte) (*fileInfo, error) {
 		return nil, err
 	}
 	defer f.Close()
-	size, mod, err := f.stat()
+	size, mod, _, err := f.stat()
 	if err != nil {
 		return nil, err
 	}
@@ -212,14 +225,15 @@ func (fi *fileInfo) loadPixels(buf []byte) (*fileInfo, error) {
 		return nil, fmt.Errorf("the file changed while it was being read (modified %s, was %s)",
 			mod.Format("15:04:05.000"), fi.ModTime.Format("15:04:05.000"))
 	}
-	if cap(buf) < need {
-		buf = make([]byte, need)
+	span := (hi - lo + 1) * frameBytes
+	if cap(buf) < span {
+		buf = make([]byte, span)
 	}
-	buf = buf[:need]
-	if _, err := f.ReadAt(buf, int64(fi.PixelPos)); err != nil {
+	buf = buf[:span]
+	if _, err := f.ReadAt(buf, int64(fi.PixelPos)+int64(lo)*int64(frameBytes)); err != nil {
 		return nil, fmt.Errorf("reading pixel data: %w", err)
 	}
 	px := *fi
-	px.Pixels, px.pooled = buf, true
+	px.Pixels, px.pooled, px.firstFrame = buf, true, lo
 	return &px, nil
 }

@@ -20,6 +20,7 @@ import (
 func (fi *fileInfo) decodeFrame(frame int, dst []float32, a, b float64, tabs *valueTables) {
 	npix := fi.Rows * fi.Cols
 	bpp := fi.BitsAllocated / 8
+	frame -= fi.firstFrame // fi.Pixels may hold only the frames asked for
 	raw := fi.Pixels[frame*npix*bpp : (frame+1)*npix*bpp]
 	dst = dst[:npix]
 	if vectorDecode && bpp == 2 && !fi.BigEndian && fi.BitsStored >= 1 && fi.HighBit < 16 &&

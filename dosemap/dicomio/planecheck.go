@@ -5,6 +5,8 @@ import (
 	"strconv"
 	"strings"
 
+	"dosecover/dosemap"
+
 	"github.com/suyashkumar/dicom/pkg/tag"
 )
 
@@ -15,6 +17,32 @@ import (
 // The error says which attribute is missing or what is wrong with its value.
 func checkPlanes(es elems, frames []frameMeta) error {
 	for _, f := range frames {
+		if math.IsNaN(f.TE) {
+			return skip("implausible %s %s ms: want %g to %g ms", tagName(tagEffectiveEchoTime), strconv.FormatFloat(f.badTE, 'g', -1, 64), minTEms, maxTEms)
+		}
+		if f.Spacing[0] > maxSpacingMM || f.Spacing[1] > maxSpacingMM || math.IsInf(f.Spacing[0], 0) || math.IsInf(f.Spacing[1], 0) {
+			return skip("implausible %s %s mm: want positive spacings up to %g mm", tagName(tag.PixelSpacing), joinValues(f.Spacing[:]), maxSpacingMM)
+		}
+		if !finite(f.Thickness) || f.Thickness < 0 || f.Thickness > maxSpacingMM {
+			return skip("implausible %s %s mm: want 0 to %g mm", tagName(tag.SliceThickness), strconv.FormatFloat(f.Thickness, 'g', -1, 64), maxSpacingMM)
+		}
+		if !finite(f.Slope) || !finite(f.Intercept) || math.Abs(f.Slope) > maxMapping || math.Abs(f.Intercept) > maxMapping {
+			return skip("implausible rescale: %s %g, %s %g", tagName(tag.RescaleSlope), f.Slope, tagName(tag.RescaleIntercept), f.Intercept)
+		}
+		for _, r := range f.RWV {
+			if !finite(r.Slope) || !finite(r.Intercept) || r.Slope == 0 || math.Abs(r.Slope) > maxMapping || math.Abs(r.Intercept) > maxMapping {
+				return skip("implausible real-world value mapping: %s %g, %s %g", tagName(tagRWVSlope), r.Slope, tagName(tagRWVIntercept), r.Intercept)
+			}
+		}
+		for _, v := range []dosemap.Vec3{f.Row, f.Col} {
+			if !finite(v[0]) || !finite(v[1]) || !finite(v[2]) {
+				vals, _ := es.floats(tag.ImageOrientationPatient)
+				return skip("implausible %s %s: want six finite numbers", tagName(tag.ImageOrientationPatient), joinValues(vals))
+			}
+		}
+		if f.IPP[0] == f.IPP[0] && !(math.Abs(f.IPP[0]) <= maxPositionMM && math.Abs(f.IPP[1]) <= maxPositionMM && math.Abs(f.IPP[2]) <= maxPositionMM) {
+			return skip("implausible %s %s mm: want coordinates within %g mm of the origin", tagName(tag.ImagePositionPatient), joinValues(f.IPP[:]), maxPositionMM)
+		}
 		if !(f.Spacing[0] > 0 && f.Spacing[1] > 0) {
 			if v, ok := es.floats(tag.PixelSpacing); ok {
 				return skip("%s is %s mm: both spacings must be positive", tagName(tag.PixelSpacing), joinValues(v))

@@ -2,6 +2,7 @@ package dicomio
 
 import (
 	"encoding/binary"
+	"errors"
 	"fmt"
 
 	"github.com/suyashkumar/dicom/pkg/tag"
@@ -20,6 +21,9 @@ var longVR = map[string]bool{"OB": true, "OD": true, "OF": true, "OL": true, "OV
 
 const undefinedLength = 0xFFFFFFFF
 
+// errStopped ends a walk with stopAtPixels at the top-level pixel data.
+var errStopped = errors.New("stopped at the pixel data")
+
 // lengthError is a declared length that does not fit.
 type lengthError struct{ msg string }
 
@@ -33,7 +37,14 @@ type walker struct {
 	inMeta   bool // reading the file meta information (explicit VR LE)
 	pixelPos int  // offset of the top-level native PixelData value; 0 none
 	pixelLen int
-	trace    func(pos int, t tag.Tag, vr string, vl uint32) // debugging aid; nil normally
+	pixelHdr int // offset of that element's header
+	// stopAtPixels ends the walk at the top-level PixelData (errStopped)
+	// without checking its length against the data: the walk of a file's
+	// head read without its pixel data.
+	stopAtPixels bool
+	encapsulated bool                                           // the walk stopped at encapsulated top-level pixel data
+	depth        int                                            // nesting depth of the element being read
+	trace        func(pos int, t tag.Tag, vr string, vl uint32) // debugging aid; nil normally
 }
 
 // checkLengths returns nil when every element length fits, else an error
@@ -177,6 +188,11 @@ func (w *walker) readHeader(pos, end int) (valPos int, t tag.Tag, vr string, vl 
 		valPos = pos + 8
 	case explicit:
 		vr = string(w.data[pos+4 : pos+6])
+		if !dicomVRs[vr] {
+			// PS3.5 6.2 lists every VR; a reader guessing the length of
+			// an unknown one would misread everything after it.
+			return 0, t, vr, 0, fmt.Errorf("%s at byte %d has the unknown value representation %q", tagName(t), pos, vr)
+		}
 		if longVR[vr] {
 			if pos+12 > end {
 				return 0, t, vr, 0, fmt.Errorf("header of %s cut short", tagName(t))
@@ -196,6 +212,9 @@ func (w *walker) readHeader(pos, end int) (valPos int, t tag.Tag, vr string, vl 
 	}
 	if (t == tag.ItemDelimitationItem || t == tag.SequenceDelimitationItem) && vl != 0 {
 		return 0, t, vr, vl, fmt.Errorf("%s at byte %d has length %d instead of 0", tagName(t), pos, vl)
+	}
+	if w.stopAtPixels && w.depth == 0 && t == tag.PixelData {
+		return valPos, t, vr, vl, nil // its value is not in the head
 	}
 	if vl != undefinedLength && int64(valPos)+int64(vl) > int64(end) {
 		return 0, t, vr, vl, &lengthError{fmt.Sprintf("%s declares %d bytes but only %d remain", tagName(t), vl, end-valPos)}
@@ -233,9 +252,19 @@ func (w *walker) elements(pos, end int, inUndefined bool, depth int) (int, error
 			}
 			return end, nil // trailing padding
 		}
+		w.depth = depth
 		valPos, t, vr, vl, err := w.readHeader(pos, end)
 		if err != nil {
 			return 0, err
+		}
+		if w.stopAtPixels && depth == 0 && t == tag.PixelData {
+			w.pixelHdr, w.pixelPos = pos, valPos
+			if vl == undefinedLength {
+				w.encapsulated = true
+			} else {
+				w.pixelLen = int(vl)
+			}
+			return 0, errStopped
 		}
 		switch {
 		case t == tag.ItemDelimitationItem && inUndefined:
@@ -301,6 +330,7 @@ func (w *walker) elements(pos, end int, inUndefined bool, depth int) (int, error
 // items walks the items of a sequence.
 func (w *walker) items(pos, end int, undefined bool, depth int) (int, error) {
 	for pos < end {
+		w.depth = depth
 		valPos, t, _, vl, err := w.readHeader(pos, end)
 		if err != nil {
 			return 0, err

@@ -2,6 +2,7 @@ package dicomio
 
 import (
 	"fmt"
+	"math"
 	"strings"
 
 	"dosecover/dosemap"
@@ -97,6 +98,12 @@ func parseStructureSet(es elems) (*structureSet, error) {
 			ss.Problems = append(ss.Problems, fmt.Sprintf("ROI number %d appears twice in StructureSetROISequence", num))
 			continue
 		}
+		for _, o := range order {
+			if other := byNum[o]; strings.EqualFold(strings.TrimSpace(other.s.Name), strings.TrimSpace(r.s.Name)) && r.s.Name != "" {
+				ss.Problems = append(ss.Problems, fmt.Sprintf("ROI %d and ROI %d have the same name %q: duplicated ROI", o, num, r.s.Name))
+				break
+			}
+		}
 		byNum[num] = r
 		order = append(order, num)
 	}
@@ -185,6 +192,12 @@ func contourPoints(c elems) ([]dosemap.Vec3, error) {
 	pts := make([]dosemap.Vec3, len(v)/3)
 	for n := range pts {
 		pts[n] = dosemap.Vec3{v[3*n], v[3*n+1], v[3*n+2]}
+		for _, x := range pts[n] {
+			if !finite(x) || math.Abs(x) > maxPositionMM {
+				return nil, fmt.Errorf("%s point %d is (%g, %g, %g) mm, more than %g mm from the origin: contour ignored",
+					tagName(tagContourData), n+1, pts[n][0], pts[n][1], pts[n][2], maxPositionMM)
+			}
+		}
 	}
 	return pts, nil
 }

@@ -6,7 +6,6 @@ import (
 	"fmt"
 	"io/fs"
 	"math"
-	"os"
 	"path/filepath"
 	"runtime"
 	"sort"
@@ -159,10 +158,14 @@ func walkCase(dir string) ([]string, []SkippedFile, error) {
 			return nil
 		}
 		if d.Type()&fs.ModeSymlink != 0 {
-			if st, err := os.Stat(p); err != nil || !st.Mode().IsRegular() {
+			if r := LinkReason(p); r != "" {
+				rel, _ := filepath.Rel(dir, p)
+				unreadable = append(unreadable, SkippedFile{Path: rel, Reason: r})
 				return nil
 			}
 		} else if !d.Type().IsRegular() {
+			rel, _ := filepath.Rel(dir, p)
+			unreadable = append(unreadable, SkippedFile{Path: rel, Reason: SpecialFileReason(d.Type())})
 			return nil
 		}
 		out = append(out, p)

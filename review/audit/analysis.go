@@ -12,6 +12,7 @@ import (
 	"strings"
 
 	"dosecover/dosemap"
+	"dosecover/dosemap/deid"
 	"dosecover/dosemap/dicomio"
 	"dosecover/dosemap/safefile"
 	"dosecover/review"
@@ -89,11 +90,39 @@ type Artifacts func(c *Case, cs *dosemap.Case, res *review.Result) ([]Artifact, 
 // With Case.Deidentify the case's patient attributes are dropped and its
 // label is the case ID before the analysis sees it.
 func NewAnalyzer(s review.Settings, artifacts Artifacts) Analyzer {
-	return func(ctx context.Context, c *Case) (*CaseResult, error) {
+	return func(ctx context.Context, c *Case) (_ *CaseResult, err error) {
+		var patient dosemap.Patient
+		if c.Deidentify {
+			// The reasons of a de-identified case are blanked of the
+			// patient's values (run.go also hides the paths).
+			defer func() {
+				if err != nil {
+					err = blankError(err, patient)
+				}
+			}()
+		}
 		cs, _, res, err := review.LoadAndAnalyze(ctx, c.Dir, s, review.LoadOptions{Workers: 1, Study: c.Study,
 			Check: func(cs *dosemap.Case, inv *dicomio.Inventory) error {
+				patient = cs.Patient
 				if err := corrupted(c, inv); err != nil {
 					return err
+				}
+				if c.Deidentify {
+					// Identity leaves the case before anything is written
+					// or said about it: structure names ("<surname>
+					// tumour") are blanked of the patient's values,
+					// sonications are named by number (their labels come
+					// from series descriptions), and the patient
+					// attributes are dropped.
+					p := cs.Patient
+					for n := range cs.Structures {
+						cs.Structures[n].Name = deid.Blank(cs.Structures[n].Name, p.Name, p.ID, p.BirthDate, p.Institution)
+					}
+					for _, so := range cs.Sonications {
+						so.Label = fmt.Sprintf("sonication %d", so.Number)
+					}
+					cs.Patient = dosemap.Patient{}
+					cs.Label = c.ID
 				}
 				if !inv.Reviewable {
 					return Incomplete(inv.NotReviewable)
@@ -107,10 +136,6 @@ func NewAnalyzer(s review.Settings, artifacts Artifacts) Analyzer {
 						names[n] = fmt.Sprintf("%q (%s)", st.Name, st.InterpretedType)
 					}
 					return Incomplete("no target contour among the structures " + strings.Join(names, ", "))
-				}
-				if c.Deidentify {
-					cs.Patient = dosemap.Patient{}
-					cs.Label = c.ID
 				}
 				return nil
 			}})
@@ -202,4 +227,14 @@ func FlagsOf(r *review.Result) []string {
 		}
 	}
 	return append(flags, r.Warnings...)
+}
+
+// blankError returns err with the identifying values of p blanked out of
+// its text (an incomplete case stays incomplete).
+func blankError(err error, p dosemap.Patient) error {
+	var inc *IncompleteError
+	if errors.As(err, &inc) {
+		return Incomplete(deid.Blank(inc.Reason, p.Name, p.ID, p.BirthDate, p.Institution))
+	}
+	return errors.New(deid.Blank(err.Error(), p.Name, p.ID, p.BirthDate, p.Institution))
 }

@@ -93,34 +93,61 @@ func writeTemp(p string, fill func(w io.Writer) error) (tmp string, err error) {
 	return tmp, nil
 }
 
-// removeTemps removes the temporary files an earlier, killed run left below
-// dir (only names made by writeAtomic) that were last written more than
-// age ago; age 0 removes them all.
+// removeTemps removes the temporary files an earlier, killed run left in
+// the folders an audit writes (dir itself and each dir/cases/<case>; never
+// deeper, never elsewhere): only regular files with names made by
+// writeTemp, last written more than age ago; age 0 removes them all.
 func removeTemps(dir string, age time.Duration) error {
 	cutoff := time.Now().Add(-age)
-	err := filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {
+	folders := []string{dir}
+	if ents, err := os.ReadDir(filepath.Join(dir, "cases")); err == nil {
+		for _, e := range ents {
+			if e.IsDir() { // symbolic links are not followed
+				folders = append(folders, filepath.Join(dir, "cases", e.Name()))
+			}
+		}
+	}
+	for _, f := range folders {
+		ents, err := os.ReadDir(f)
 		if err != nil {
 			if os.IsNotExist(err) {
-				return nil
+				continue
 			}
-			return err
+			return fmt.Errorf("removing leftover temporary files in %s: %w", dir, err)
 		}
-		if d.IsDir() || !strings.HasPrefix(d.Name(), tempPrefix) || !strings.HasSuffix(d.Name(), ".tmp") {
-			return nil
-		}
-		if age > 0 {
-			fi, err := d.Info()
-			if err != nil || fi.ModTime().After(cutoff) {
-				return nil
+		for _, e := range ents {
+			if !e.Type().IsRegular() || !isTempName(e.Name()) {
+				continue
+			}
+			if age > 0 {
+				fi, err := e.Info()
+				if err != nil || fi.ModTime().After(cutoff) {
+					continue
+				}
+			}
+			if err := os.Remove(filepath.Join(f, e.Name())); err != nil && !os.IsNotExist(err) {
+				return fmt.Errorf("removing leftover temporary files in %s: %w", dir, err)
 			}
 		}
-		if err := os.Remove(p); err != nil && !os.IsNotExist(err) {
-			return err
-		}
-		return nil
-	})
-	if err != nil {
-		return fmt.Errorf("removing leftover temporary files in %s: %w", dir, err)
 	}
 	return nil
+}
+
+// isTempName reports whether name is one writeTemp makes:
+// tempPrefix + base + "." + random digits + ".tmp".
+func isTempName(name string) bool {
+	if !strings.HasPrefix(name, tempPrefix) || !strings.HasSuffix(name, ".tmp") {
+		return false
+	}
+	rest := strings.TrimSuffix(name, ".tmp")
+	dot := strings.LastIndexByte(rest, '.')
+	if dot < len(tempPrefix) || dot == len(rest)-1 {
+		return false
+	}
+	for _, c := range rest[dot+1:] {
+		if c < '0' || c > '9' {
+			return false
+		}
+	}
+	return true
 }

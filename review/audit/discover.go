@@ -1,22 +1,20 @@
 package audit
 
 import (
-	"bytes"
 	"errors"
 	"fmt"
 	"hash/fnv"
 	"io"
 	"io/fs"
-	"os"
 	"path"
 	"path/filepath"
 	"sort"
 	"strconv"
 	"strings"
 
+	"dosecover/dosemap/dicomio"
 	"dosecover/dosemap/safefile"
 
-	"github.com/suyashkumar/dicom"
 	"github.com/suyashkumar/dicom/pkg/tag"
 )
 
@@ -159,6 +157,17 @@ func studiesBelow(abs string) ([]Case, []string, error) {
 			return nil
 		}
 		if !d.Type().IsRegular() {
+			if !d.IsDir() {
+				// Listed, not read (a FIFO would block a reader) and not
+				// hashed.
+				reason := dicomio.SpecialFileReason(d.Type())
+				if d.Type()&fs.ModeSymlink != 0 {
+					if reason = dicomio.LinkReason(p); reason == "" {
+						reason = "symbolic link, not followed"
+					}
+				}
+				problems = append(problems, fmt.Sprintf("%s: %s", p, reason))
+			}
 			return nil
 		}
 		fi, err := d.Info()
@@ -333,7 +342,7 @@ func studyUIDOf(path string) (uid string) {
 			uid = ""
 		}
 	}()
-	ds, err := dicom.ParseFile(path, nil, dicom.SkipPixelData())
+	ds, err := dicomio.ParseFile(path, false)
 	if err != nil {
 		return ""
 	}
@@ -420,62 +429,14 @@ func SafeName(name string) string {
 	return strings.Join(parts, "__")
 }
 
-// IsDICOMFile reports whether the file at p starts like a DICOM file; see
-// IsDICOM.
-func IsDICOMFile(p string) (bool, error) {
-	f, err := os.Open(p)
-	if err != nil {
-		return false, err
-	}
-	defer f.Close()
-	head := make([]byte, 132)
-	n, err := io.ReadFull(f, head)
-	if err != nil && err != io.ErrUnexpectedEOF && err != io.EOF {
-		return false, err
-	}
-	return IsDICOM(head[:n]), nil
-}
-
-// dicomVRs are the value representations of DICOM PS3.5 section 6.2.
-var dicomVRs = map[string]bool{
-	"AE": true, "AS": true, "AT": true, "CS": true, "DA": true, "DS": true, "DT": true,
-	"FL": true, "FD": true, "IS": true, "LO": true, "LT": true, "OB": true, "OD": true,
-	"OF": true, "OL": true, "OV": true, "OW": true, "PN": true, "SH": true, "SL": true,
-	"SQ": true, "SS": true, "ST": true, "SV": true, "TM": true, "UC": true, "UI": true,
-	"UL": true, "UN": true, "UR": true, "US": true, "UT": true, "UV": true,
-}
+// IsDICOMFile reports whether the file at p is a regular file that starts
+// like a DICOM file (dicomio.SniffFile: the check every part of dosecover
+// shares; a FIFO or a device is never opened for a blocking read).
+func IsDICOMFile(p string) (bool, error) { return dicomio.SniffFile(p) }
 
 // IsDICOM reports whether head (the first 132 bytes of a file, or all of a
-// shorter file) looks like DICOM: either the 128-byte preamble followed by
-// "DICM" (DICOM PS3.10 section 7.1), or, for files written without the
-// preamble and meta header, a first data element of group 0002 or 0008 in
-// explicit VR (little or big endian) or implicit VR little endian with a
-// plausible length.
-func IsDICOM(head []byte) bool {
-	if len(head) >= 132 && bytes.Equal(head[128:132], []byte("DICM")) {
-		return true
-	}
-	if len(head) < 8 {
-		return false
-	}
-	gLE := uint16(head[0]) | uint16(head[1])<<8
-	eLE := uint16(head[2]) | uint16(head[3])<<8
-	gBE := uint16(head[0])<<8 | uint16(head[1])
-	vr := string(head[4:6])
-	if (gLE == 0x0002 || gLE == 0x0008) && dicomVRs[vr] {
-		return true
-	}
-	if (gBE == 0x0002 || gBE == 0x0008) && dicomVRs[vr] {
-		return true
-	}
-	if gLE == 0x0002 || gLE == 0x0008 {
-		length := uint32(head[4]) | uint32(head[5])<<8 | uint32(head[6])<<16 | uint32(head[7])<<24
-		// Implicit VR: the first element is a group length, a character set
-		// or a type/UID attribute, all short.
-		return eLE < 0x0100 && length > 0 && length < 1024 && length%2 == 0
-	}
-	return false
-}
+// shorter file) looks like DICOM; see dicomio.IsDICOM.
+func IsDICOM(head []byte) bool { return dicomio.IsDICOM(head) }
 
 // Shard selects one part of a case list, so that several machines can share
 // a large registry: shard Index of Count (1-based) takes the cases whose

@@ -3,9 +3,12 @@ package audit
 import (
 	"context"
 	"encoding/json"
+	"errors"
 	"fmt"
+	"hash/fnv"
 	"io"
 	"os"
+	"path"
 	"path/filepath"
 	"runtime"
 	"runtime/debug"
@@ -162,6 +165,11 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 		} else if inside {
 			return nil, &UsageError{fmt.Sprintf("output folder %s is inside the input folder %s: dosecover never writes into the folders it reads; choose another output folder", cfg.OutDir, in)}
 		}
+		if holds, err := isInside(in, outDir); err != nil {
+			return nil, fmt.Errorf("input folder %s: %w", in, err)
+		} else if holds {
+			return nil, &UsageError{fmt.Sprintf("output folder %s contains the input folder %s: dosecover never writes into the folders it reads; choose another output folder", cfg.OutDir, in)}
+		}
 	}
 
 	// Shards of one audit share its output folder only with the same
@@ -191,6 +199,13 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 		return nil, err
 	}
 	cases := cfg.Shard.Select(all)
+	if cfg.Deidentify {
+		// Names below an input folder may carry identity: a problem
+		// keeps its reason only.
+		for n, p := range problems {
+			problems[n] = "a file or folder of an input was not read: " + p[strings.LastIndex(p, ": ")+2:]
+		}
+	}
 	sum := &Summary{Problems: problems, Header: Header(cfg.SettingsColumns)}
 	if len(all) == 0 {
 		return sum, fmt.Errorf("no case found below %s: no folder holds DICOM files", strings.Join(cfg.Inputs, ", "))
@@ -199,16 +214,18 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 	if err := os.MkdirAll(filepath.Join(outDir, "cases"), 0o755); err != nil {
 		return sum, &safefile.PathError{What: "creating output folder", Path: cfg.OutDir, Err: err}
 	}
-	// Leftovers of a killed run. Shards may run at the same time into one
-	// output folder, so a shard removes only leftovers too old to belong to
-	// a write in progress (every write takes seconds).
-	age := time.Duration(0)
-	if sharded {
-		age = staleTemp
-	}
-	if err := removeTemps(outDir, age); err != nil {
+	// One whole run at a time in an output folder, or the shards of one
+	// audit together; leftovers of killed runs are removed only by a run
+	// that holds the folder alone, so no live run loses its files.
+	release, _, err := lockOutDir(outDir, cfg.OutDir, sharded, func() error { return removeTemps(outDir, 0) })
+	if err != nil {
+		var ue *UsageError
+		if errors.As(err, &ue) {
+			return nil, err
+		}
 		return sum, err
 	}
+	defer release()
 	var index map[string]*Record
 	if cfg.Resume {
 		index = resumeIndex(outDir)
@@ -334,8 +351,9 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 	return sum, nil
 }
 
-// staleTemp is the age beyond which a sharded run removes temporary files
-// left in the output folder.
+// staleTemp is an age for removeTemps (temporary files older than it are
+// leftovers). Run no longer uses an age: it removes leftovers only while
+// it holds the output folder's lock alone (lockOutDir).
 const staleTemp = 10 * time.Minute
 
 // worker holds what every case of a run shares.
@@ -357,6 +375,14 @@ func (w *worker) do(ctx context.Context, c *Case) Row {
 	if err != nil {
 		if ctx.Err() != nil {
 			return Row{}
+		}
+		if w.cfg.Deidentify {
+			// No input hash for a pseudonym: one from the case's name,
+			// which does not show the name.
+			h := fnv.New64a()
+			h.Write([]byte(c.Name))
+			c.ID = fmt.Sprintf("case-unread-%012x", h.Sum64()&(1<<48-1))
+			c.Name = ""
 		}
 		return w.finish(c, "", nil, err, 0)
 	}
@@ -404,7 +430,7 @@ func (w *worker) finish(c *Case, hash string, res *CaseResult, aerr error, secs 
 		rec.Analysis = res.Analysis
 	}
 	if w.cfg.Deidentify && rec.Reason != "" {
-		rec.Reason = strings.ReplaceAll(rec.Reason, c.Dir, c.ID)
+		rec.Reason = hidePaths(rec.Reason, c)
 	}
 	dir := filepath.Join(w.outDir, "cases", c.ID)
 	recPath := filepath.Join(dir, RecordFile)
@@ -580,4 +606,45 @@ func LoadRows(outDir string) (rows []Row, problems []string, err error) {
 	}
 	sort.Slice(rows, func(a, b int) bool { return rows[a].Case < rows[b].Case })
 	return rows, problems, nil
+}
+
+// HidePaths returns s with the paths of case c hidden as a de-identified
+// run shows them (see hidePaths): for messages of other commands that
+// de-identify their output.
+func HidePaths(s string, c *Case) string { return hidePaths(s, c) }
+
+// hidePaths returns s with the paths of case c, whose folder and file
+// names may carry the patient's name, replaced: the case folder by the
+// case ID, each file's path inside it (and, where it stands alone, its
+// name of 5 characters or more) by "file N" (N its place in c.Files), each
+// subfolder by "a folder of the case".
+func hidePaths(s string, c *Case) string {
+	s = strings.ReplaceAll(s, c.Dir, c.ID)
+	type sub struct{ from, to string }
+	var subs []sub
+	folders := map[string]bool{}
+	for n, f := range c.Files {
+		to := fmt.Sprintf("file %d", n+1)
+		subs = append(subs, sub{f, to}, sub{filepath.FromSlash(f), to})
+		if base := path.Base(f); len(base) >= 5 {
+			subs = append(subs, sub{base, to})
+		}
+		for d := path.Dir(f); d != "." && d != "/"; d = path.Dir(d) {
+			folders[d] = true
+		}
+	}
+	for d := range folders {
+		subs = append(subs, sub{d, "a folder of the case"}, sub{filepath.FromSlash(d), "a folder of the case"})
+	}
+	if c.Name != "" {
+		subs = append(subs, sub{c.Name, c.ID})
+	}
+	// Longest first, so that a path goes before its parts.
+	sort.SliceStable(subs, func(a, b int) bool { return len(subs[a].from) > len(subs[b].from) })
+	for _, x := range subs {
+		if x.from != "" {
+			s = strings.ReplaceAll(s, x.from, x.to)
+		}
+	}
+	return s
 }

@@ -17,7 +17,6 @@ import (
 	"dosecover/dosemap/safefile"
 	"dosecover/review"
 
-	"github.com/suyashkumar/dicom"
 	"github.com/suyashkumar/dicom/pkg/tag"
 )
 
@@ -52,7 +51,7 @@ func ReadSource(dir string, c *dosemap.Case) (*Source, error) {
 		if err != nil || d.IsDir() || !d.Type().IsRegular() {
 			return nil
 		}
-		ds, perr := dicom.ParseFile(p, nil, dicom.SkipPixelData())
+		ds, perr := dicomio.ParseFile(p, false) // the guarded entry point: bounded, never blocks
 		if perr != nil {
 			return nil
 		}

@@ -12,6 +12,7 @@ import (
 	"time"
 
 	"dosecover/dosemap"
+	deidentify "dosecover/dosemap/deid"
 	"dosecover/review"
 	"dosecover/review/view"
 )
@@ -231,26 +232,10 @@ func hide(s string, c *dosemap.Case, deid bool) string {
 		}
 	}
 	// Identity of the patient wherever it appears (a structure or a
-	// series named after the patient), case-insensitively.
+	// series named after the patient), case-insensitively, byte for byte
+	// (names in Latin-1 are not valid UTF-8).
 	p := c.Patient
-	var toks []string
-	for _, v := range []string{p.Name, p.ID, p.BirthDate, p.Institution} {
-		toks = append(toks, v)
-		toks = append(toks, strings.FieldsFunc(v, func(r rune) bool { return r == '^' || r == ' ' || r == ',' || r == '=' })...)
-	}
-	for _, t := range toks {
-		if len(t) < 3 {
-			continue
-		}
-		for {
-			i := strings.Index(strings.ToUpper(s), strings.ToUpper(t))
-			if i < 0 {
-				break
-			}
-			s = s[:i] + strings.Repeat("X", len(t)) + s[i+len(t):]
-		}
-	}
-	return s
+	return deidentify.Blank(s, p.Name, p.ID, p.BirthDate, p.Institution)
 }
 
 func val(p *float64) float64 {
