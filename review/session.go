@@ -56,6 +56,12 @@ type Settings struct {
 	CEM43       dosemap.CEM43              `json:"cem43"`     // parameters of the cem43 model
 	Arrhenius   dosemap.Arrhenius          `json:"arrhenius"` // parameters of the arrhenius model
 	Thermometry dosemap.ThermometryOptions `json:"-"`         // PRF thermometry; summarised in Result.Thermometry
+
+	// NegligibleFraction is the fraction of Threshold below which a
+	// sonication's possible dose at a voxel it did not measure is
+	// negligible (the monitoring rule; README "Planes and the monitoring
+	// rule"); DefaultNegligibleFraction by default.
+	NegligibleFraction float64 `json:"negligible_fraction"`
 }
 
 // DefaultSettings returns 240 CEM43 (Sapareto & Dewey 1984; the common
@@ -64,7 +70,8 @@ type Settings struct {
 // Arrhenius parameters and thermometry options of package dosemap.
 func DefaultSettings() Settings {
 	return Settings{Threshold: 240, MarginMM: DefaultMarginMM, Model: "cem43", Trials: 50, Seed: 1,
-		CEM43: dosemap.DefaultCEM43(), Arrhenius: dosemap.DefaultArrhenius(), Thermometry: dosemap.DefaultThermometryOptions()}
+		CEM43: dosemap.DefaultCEM43(), Arrhenius: dosemap.DefaultArrhenius(), Thermometry: dosemap.DefaultThermometryOptions(),
+		NegligibleFraction: DefaultNegligibleFraction}
 }
 
 // ProgressFunc receives the name of the stage being worked on and the
@@ -88,6 +95,7 @@ type sonData struct {
 	series  any      // thermometry kept for Monte Carlo (engine type), whole or the Session's keep block
 	notes   []string // frames that could not be read
 	source  *dosemap.Sonication
+	reach   reach // extent of the measured heating around the hottest point (monitoring rule)
 }
 
 // tempStats are the temperature figures of one sonication.
@@ -138,7 +146,14 @@ type doseCache struct {
 	full     []bool      // every included sonication measured the voxel
 	prefix   [][]float32 // cumulative after each included sonication (unmeasured counted 0)
 	logFine  []float32   // analysis grid log-dose
-	monFine  []bool      // analysis grid monitored
+	monFine  []bool      // analysis grid monitored (the monitoring rule)
+	// The monitoring rule's masks for the negligible dose of monKey.
+	monKey      string
+	monInfo     *Monitoring
+	strictFine  []bool // analysis grid: every included sonication measured it
+	measureFine []bool // analysis grid: at least one included sonication measured it
+	lc          []float32
+	cnt         []int16
 }
 
 // Prepare computes the thermometry and dose of every sonication of c and
@@ -198,6 +213,10 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 			ext = append(ext, p.Add(d.Scale(ses.maxMargin+2*ref.Spacing.Norm())))
 		}
 	}
+	common := false
+	if ref, common = commonGrid(c.Sonications, ext); common {
+		ses.warnings = append(ses.warnings, fmt.Sprintf("the sonications were measured on different planes: their dose is analysed on a common grid (%s); each sonication's dose is known only within half a slice of its own planes", ref))
+	}
 	// A case whose frames stay in the files keeps for the Monte Carlo only
 	// the temperatures around the target (Temperature computes a whole
 	// series again when asked).
@@ -240,7 +259,7 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 					errs[n] = err
 					continue
 				}
-				sons[n], units[n], errs[n] = prepareSonication(sctx, so, s, ref, ses.keep)
+				sons[n], units[n], errs[n] = prepareStacks(sctx, so, s, ref, ses.keep)
 				pmu.Lock()
 				done++
 				progress.report(fmt.Sprintf("thermometry and dose, sonication %d", so.Number), 0.8*float64(done)/float64(ns))
@@ -274,7 +293,7 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 		if n > 0 && units[n] != units[0] {
 			return nil, fmt.Errorf("sonication %d: dose in %s, sonication %d in %s", so.Number, units[n], c.Sonications[0].Number, units[0])
 		}
-		if !so.Geometry.SameGrid(ref, 0.01) {
+		if !common && !so.Geometry.SameGrid(ref, 0.01) {
 			ses.warnings = append(ses.warnings, fmt.Sprintf("sonication %d was acquired on a different grid and was resampled onto the grid of sonication %d", so.Number, c.Sonications[0].Number))
 		}
 	}
@@ -433,6 +452,9 @@ func (s *Session) checkSettings(set Settings) error {
 	if set.doseModel() != s.prepared.doseModel() || !reflect.DeepEqual(normThermometry(set.Thermometry), normThermometry(s.prepared.Thermometry)) {
 		return errors.New("dose model parameters or thermometry options differ from those this session was prepared with; prepare it again")
 	}
+	if !(set.NegligibleFraction >= 0 && set.NegligibleFraction < 1) {
+		return fmt.Errorf("negligible fraction %g of the threshold: want 0 to below 1", set.NegligibleFraction)
+	}
 	if set.Trials < 0 || set.Trials > MaxTrials {
 		return fmt.Errorf("%d Monte Carlo trials: want 0 to %d", set.Trials, MaxTrials)
 	}
@@ -474,6 +496,7 @@ func (s *Session) doses(ctx context.Context, set Settings) (*doseCache, error) {
 		}
 	}
 	if s.cache != nil && s.cache.key == key.String() {
+		s.monitor(set, s.cache)
 		return s.cache, nil
 	}
 	cl := s.fg.coarse.Len()
@@ -504,10 +527,11 @@ func (s *Session) doses(ctx context.Context, set Settings) (*doseCache, error) {
 		lc[v] = logDose(run[v])
 		dc.full[v] = int(cnt[v]) == len(inc)
 	}
+	dc.lc, dc.cnt = lc, cnt
 	fl := s.fg.fine.Len()
 	dc.logFine = make([]float32, fl)
 	dc.monFine = make([]bool, fl)
-	s.fg.interpLog(lc, dc.full, dc.logFine, dc.monFine)
+	s.monitor(set, dc)
 	s.cache = dc
 	return dc, nil
 }
@@ -681,6 +705,7 @@ func (s *Session) Analyze(ctx context.Context, set Settings, progress ProgressFu
 	for v := range holeMask {
 		holeMask[v] = s.occ[v] > 0 && dc.monFine[v] && !lethal[v]
 	}
+	r.Monitoring = s.monitoringFigures(dc, lethal)
 	hl, nh := Components(g, holeMask, RegionConnectivity)
 	r.Holes = s.holes(hl, nh, dc, tv)
 	// Lethal outside the margin.
