@@ -200,7 +200,7 @@ type simResult struct {
 	stacks [][][][]float32 // [sonication][stack][frame] temperature rise on each stack's grid (StackGeometries)
 	peak   []float64       // hottest simulated voxel per sonication, °C
 	before []float64       // temperature at the focus when each sonication started, °C
-	dose   []float64     // cumulative CEM43 on the bioheat grid
+	dose   []float64       // cumulative CEM43 on the bioheat grid
 	// change is the CEM43 an ideal thermometry would measure at every
 	// bioheat voxel: each sonication's temperature change over its
 	// baseline frames, added to the base temperature, accumulated from its
