@@ -44,12 +44,13 @@ func truthCoverage(r *review.Result, truth *sim.Truth, mask *dosemap.Volume) (fr
 // series and in one series per plane), written as DICOM by the simulator
 // and read back, against the simulation's truth (the continuous bioheat
 // dose field and truth.json):
-//   - 35 sonications are read (truth.json);
+//   - 35 sonications are read (truth.json), each with its stacks;
 //   - the coverage over the region the monitoring rule calls monitored is
 //     within 3 points of the truth over the same region (the tolerance the
 //     product promises for these sessions; thermometry noise, partial
 //     volume of 3 mm slices and the change-only measurement account for
-//     the difference);
+//     the difference; one voxel more where the region holds fewer than
+//     100 analysis voxels);
 //   - the lethal dose beyond the margin is found and attributed to the
 //     sonication the simulation aimed beyond it;
 //   - the hole left by the undelivered spots (+x edge, middle depth) is
@@ -59,10 +60,24 @@ func TestPlanesSessions(t *testing.T) {
 	if testing.Short() {
 		t.Skip("writes and analyses three 35-sonication sessions")
 	}
-	for _, l := range []sim.Layout{sim.LayoutMovingSlab, sim.LayoutTwoPlanes, sim.LayoutTwoPlaneSeries} {
-		t.Run(l.String(), func(t *testing.T) {
+	cases := []struct {
+		name   string
+		layout sim.Layout
+		slices int // thermometry slices per stack; 0: the session's own
+	}{
+		{"moving-slab", sim.LayoutMovingSlab, 0},
+		{"two-planes", sim.LayoutTwoPlanes, 0},
+		{"two-plane-series", sim.LayoutTwoPlaneSeries, 0},
+	}
+	for _, tc := range cases {
+		l := tc.layout
+		t.Run(tc.name, func(t *testing.T) {
 			dir := t.TempDir()
-			truth, err := sim.WritePlanes(dir, l, 1)
+			s := sim.PlanesSession(l, 1)
+			if tc.slices > 0 {
+				s.Thermometry.Slices = tc.slices
+			}
+			truth, err := sim.WriteSession(dir, s)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -75,7 +90,7 @@ func TestPlanesSessions(t *testing.T) {
 				t.Fatalf("%d sonications read, %d simulated; problems: %v", len(c.Sonications), len(truth.Sonications), inv.Problems)
 			}
 			wantStacks := 1
-			if l != sim.LayoutMovingSlab {
+			if l == sim.LayoutTwoPlanes || l == sim.LayoutTwoPlaneSeries {
 				wantStacks = 2
 			}
 			for _, so := range c.Sonications {
@@ -97,10 +112,13 @@ func TestPlanesSessions(t *testing.T) {
 			if w < 10 {
 				t.Fatalf("monitored target of %.1f analysis voxels: too small to check", w)
 			}
+			// With fewer than 100 voxels one voxel moves the fraction by
+			// more than a point: widen the tolerance by one voxel.
+			tol := 0.03 + 1/w
 			t.Logf("%s: coverage %.3f of the monitored target (%.1f %% of it), truth there %.3f (%.0f voxels); strict %.3f (%.3f), measured planes %.3f (%.3f); truth whole target %.3f (change only %.3f)",
 				l, r.CoveredFraction, 100*r.MonitoredFraction, want, w, m.StrictFraction, val(m.StrictCovered), m.MeasuredFraction, val(m.MeasuredCovered), truth.CoveredFraction, truth.ChangeCoveredFraction)
-			if d := math.Abs(r.CoveredFraction - want); !(d <= 0.03) {
-				t.Errorf("coverage %.3f of the monitored target, truth over the same region %.3f (difference %.3f > 0.03)", r.CoveredFraction, want, d)
+			if d := math.Abs(r.CoveredFraction - want); !(d <= tol) {
+				t.Errorf("coverage %.3f of the monitored target, truth over the same region %.3f (difference %.3f > %.3f)", r.CoveredFraction, want, d, tol)
 			}
 			// Spill: the largest cluster beyond the margin comes from the
 			// sonication aimed beyond it and lies within 5 mm of its focus
@@ -178,5 +196,57 @@ func TestPlaneOutsideAnalysisRegion(t *testing.T) {
 	}
 	if !found {
 		t.Errorf("no warning names sonication 2 and series %s; warnings: %q", far.SeriesUID, r.Warnings)
+	}
+}
+
+// analyseSession writes s, reads it back and analyses it without Monte
+// Carlo trials.
+func analyseSession(t *testing.T, s *sim.Session) *review.Result {
+	t.Helper()
+	dir := t.TempDir()
+	if _, err := sim.WriteSession(dir, s); err != nil {
+		t.Fatal(err)
+	}
+	ctx := context.Background()
+	c, _, err := dicomio.Load(ctx, dir, dicomio.LoadOptions{Deferred: true}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	set := review.DefaultSettings()
+	set.Trials = 0
+	r, err := review.Analyze(ctx, c, set, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return r
+}
+
+// TestMovingSlabMatchesSharedSlab measures the same simulated treatment
+// twice: on a slab of five 3 mm slices that moves with the focus depth,
+// and on one shared slab of seven 3 mm slices that holds the whole target
+// (the case dosecover handled before planes that move). A slab of five
+// slices holds the heating along its normal, so the monitoring rule
+// monitors at least 90 % of the target, and the covered fraction must be
+// that of the shared slab within 2 points (reference: the shared-slab
+// analysis of the same simulation; the two differ in their noise draws and
+// in which slices measured each voxel).
+func TestMovingSlabMatchesSharedSlab(t *testing.T) {
+	if testing.Short() {
+		t.Skip("writes and analyses two 35-sonication sessions")
+	}
+	moving := sim.PlanesSession(sim.LayoutMovingSlab, 3)
+	moving.Thermometry.Slices = 5
+	shared := sim.PlanesSession(sim.LayoutSlab, 3)
+	shared.Thermometry.Slices = 7
+	rm, rs := analyseSession(t, moving), analyseSession(t, shared)
+	t.Logf("moving slab: %.3f of %.1f %% monitored; shared slab: %.3f of %.1f %%", rm.CoveredFraction, 100*rm.MonitoredFraction, rs.CoveredFraction, 100*rs.MonitoredFraction)
+	if rm.MonitoredFraction < 0.9 {
+		t.Errorf("moving slab of five slices: %.1f %% of the target monitored, want at least 90 %%", 100*rm.MonitoredFraction)
+	}
+	if d := math.Abs(rm.CoveredFraction - rs.CoveredFraction); !(d <= 0.02) {
+		t.Errorf("covered fraction %.3f on the moving slab, %.3f on the shared slab (difference %.3f > 0.02)", rm.CoveredFraction, rs.CoveredFraction, d)
+	}
+	if len(rm.OutsideClusters) == 0 || len(rs.OutsideClusters) == 0 || rm.OutsideClusters[0].Sonication != rs.OutsideClusters[0].Sonication {
+		t.Errorf("spill attribution differs: moving %+v, shared %+v", rm.OutsideClusters, rs.OutsideClusters)
 	}
 }
