@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"slices"
 
 	"dosecover/dosemap"
 )
@@ -268,15 +269,21 @@ func newReach(g dosemap.Geometry, dose []float32) reach {
 // longest measured semi-axis, and no less than what was seen. Half a voxel
 // diagonal is added to each. Restricting the extent to the connected
 // region keeps isolated noisy voxels far from the focus from stretching it.
-func (r reach) extent(dose []float32, eps float64) (semi [3]float64, measured [3]bool, ok bool) {
+func (r reach) extent(dose []float32, eps float64, seen []bool) (semi [3]float64, measured [3]bool, ok bool) {
 	if r.at < 0 || !(float64(dose[r.at]) >= eps) {
 		return semi, measured, false
 	}
 	g := r.g
 	e := float32(eps)
 	i0, j0, k0 := g.IJK(r.at)
-	seen := map[int]bool{r.at: true}
+	seen[r.at] = true
 	queue := []int{r.at}
+	region := []int{r.at}
+	defer func() { // leave seen clear for the next call
+		for _, v := range region {
+			seen[v] = false
+		}
+	}()
 	var far [3]int
 	open := [3]bool{}
 	for len(queue) > 0 {
@@ -300,6 +307,7 @@ func (r reach) extent(dose []float32, eps float64) (semi [3]float64, measured [3
 			}
 			seen[w] = true
 			queue = append(queue, w)
+			region = append(region, w)
 		}
 	}
 	longest := 0.0
@@ -342,10 +350,8 @@ type Monitoring struct {
 	// its measured dose reaches the negligible dose.
 	Reach []SonicationReach `json:"reach"`
 	// Monitored is 1 where the analysis voxel is monitored by the rule,
-	// else 0 (analysis grid); Measured is 1 where at least one included
-	// sonication measured it.
+	// else 0 (analysis grid).
 	Monitored *dosemap.Volume `json:"-"`
-	Measured  *dosemap.Volume `json:"-"`
 }
 
 // SonicationReach is one sonication's extent for the monitoring rule.
@@ -375,9 +381,10 @@ func (s *Session) monitor(set Settings, dc *doseCache) {
 	info := &Monitoring{NegligibleFraction: set.NegligibleFraction, NegligibleDose: eps, Reach: []SonicationReach{}}
 	var ells []ellipsoid
 	var key []byte
+	seen := make([]bool, s.fg.coarse.Len())
 	for _, n := range dc.included {
 		sd := s.sons[n]
-		semi, measured, ok := sd.reach.extent(sd.dose, eps)
+		semi, measured, ok := sd.reach.extent(sd.dose, eps, seen)
 		sr := SonicationReach{Sonication: sd.number, HottestMM: [3]float64(sd.reach.hot), Measured: measured}
 		ells = append(ells, ellipsoid{sd.reach.hot, semi, ok})
 		if ok {
@@ -432,26 +439,41 @@ func (s *Session) monitor(set Settings, dc *doseCache) {
 		}
 	}
 	// Monitored voxels no sonication measured hold a negligible dose.
-	lc := dc.lc
 	floor := logDose(0)
+	lcMon := slices.Clone(dc.lc)
 	for v := range mon {
 		if mon[v] && dc.cnt[v] == 0 {
-			lc[v] = floor
-		} else if dc.cnt[v] == 0 {
-			lc[v] = float32(math.NaN())
+			lcMon[v] = floor
 		}
 	}
-	s.fg.interpLog(lc, mon, dc.logFine, dc.monFine)
 	fl := s.fg.fine.Len()
-	tmp := make([]float32, fl)
-	dc.strictFine = make([]bool, fl)
-	s.fg.interpLog(lc, dc.full, tmp, dc.strictFine)
-	measured := make([]bool, cl)
-	for v, n := range dc.cnt {
-		measured[v] = n > 0
+	if dc.monFine == nil {
+		dc.monFine = make([]bool, fl)
+		dc.logFine = make([]float32, fl)
 	}
-	dc.measureFine = make([]bool, fl)
-	s.fg.interpLog(lc, measured, tmp, dc.measureFine)
+	s.fg.interpMask(lcMon, mon, dc.monFine)
+	copy(dc.logFine, dc.logBase)
+	for v, m := range dc.monFine {
+		if m && dc.logFine[v] != dc.logFine[v] {
+			dc.logFine[v] = s.fg.logLinear(lcMon, v)
+		}
+	}
+}
+
+// logLinear returns the log-dose at fine voxel n interpolated linearly
+// across slices from coarse log-dose lv (the taps must be valid).
+func (fg *fineGrid) logLinear(lv []float32, n int) float32 {
+	fi, fj, f := fg.fine.IJK(n)
+	st := &fg.slices[f]
+	c := fg.coarseIndex(fi, fj)
+	cs := fg.coarse.SliceLen()
+	var s float32
+	for a := 0; a < 2; a++ {
+		if st.lw[a] != 0 {
+			s += st.lw[a] * lv[st.lk[a]*cs+c]
+		}
+	}
+	return s
 }
 
 // monitoringFigures fills r.Monitoring from dc and the lethal mask.
@@ -482,13 +504,9 @@ func (s *Session) monitoringFigures(dc *doseCache, lethal []bool) *Monitoring {
 	}
 	g := s.fg.fine
 	m.Monitored = &dosemap.Volume{Geometry: g, Data: make([]float32, g.Len())}
-	m.Measured = &dosemap.Volume{Geometry: g, Data: make([]float32, g.Len())}
-	for v := range m.Monitored.Data {
-		if dc.monFine[v] {
+	for v, on := range dc.monFine {
+		if on {
 			m.Monitored.Data[v] = 1
-		}
-		if dc.measureFine[v] {
-			m.Measured.Data[v] = 1
 		}
 	}
 	if sv > 0 {
@@ -498,4 +516,32 @@ func (s *Session) monitoringFigures(dc *doseCache, lethal []bool) *Monitoring {
 		m.MeasuredCovered = opt(mc / mv)
 	}
 	return &m
+}
+
+// interpMask fills mon (analysis grid) as interpLog does, without the
+// interpolated values: a fine voxel is set when every coarse voxel of its
+// linear stencil is set in full and its log-dose lc is valid.
+func (fg *fineGrid) interpMask(lc []float32, full []bool, mon []bool) {
+	cs := fg.coarse.SliceLen()
+	n := 0
+	for f := 0; f < fg.fine.Slices; f++ {
+		st := &fg.slices[f]
+		for fj := 0; fj < fg.fine.Rows; fj++ {
+			for fi := 0; fi < fg.fine.Cols; fi++ {
+				m := false
+				if c := fg.coarseIndex(fi, fj); st.valid && c >= 0 {
+					m = true
+					for a := 0; a < 2; a++ {
+						if st.lw[a] != 0 {
+							if v := st.lk[a]*cs + c; !full[v] || lc[v] != lc[v] {
+								m = false
+							}
+						}
+					}
+				}
+				mon[n] = m
+				n++
+			}
+		}
+	}
 }

@@ -152,8 +152,9 @@ type doseCache struct {
 	monInfo     *Monitoring
 	strictFine  []bool // analysis grid: every included sonication measured it
 	measureFine []bool // analysis grid: at least one included sonication measured it
-	lc          []float32
-	cnt         []int16
+	lc          []float32 // coarse log-dose, NaN where no included sonication measured
+	cnt         []int16   // included sonications that measured each coarse voxel
+	logBase     []float32 // analysis grid log-dose from the measured voxels only
 }
 
 // Prepare computes the thermometry and dose of every sonication of c and
@@ -529,8 +530,18 @@ func (s *Session) doses(ctx context.Context, set Settings) (*doseCache, error) {
 	}
 	dc.lc, dc.cnt = lc, cnt
 	fl := s.fg.fine.Len()
-	dc.logFine = make([]float32, fl)
-	dc.monFine = make([]bool, fl)
+	// The log-dose where measured, and the strict and measured-planes
+	// masks, depend on the included sonications only; the monitoring
+	// rule's mask (monitor) on the negligible dose too.
+	dc.logBase = make([]float32, fl)
+	dc.strictFine = make([]bool, fl)
+	s.fg.interpLog(lc, dc.full, dc.logBase, dc.strictFine)
+	measured := make([]bool, cl)
+	for v, n := range cnt {
+		measured[v] = n > 0
+	}
+	dc.measureFine = make([]bool, fl)
+	s.fg.interpMask(lc, measured, dc.measureFine)
 	s.monitor(set, dc)
 	s.cache = dc
 	return dc, nil
