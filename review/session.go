@@ -150,8 +150,8 @@ type doseCache struct {
 	// The monitoring rule's masks for the negligible dose of monKey.
 	monKey      string
 	monInfo     *Monitoring
-	strictFine  []bool // analysis grid: every included sonication measured it
-	measureFine []bool // analysis grid: at least one included sonication measured it
+	strictFine  []bool    // analysis grid: every included sonication measured it
+	measureFine []bool    // analysis grid: at least one included sonication measured it
 	lc          []float32 // coarse log-dose, NaN where no included sonication measured
 	cnt         []int16   // included sonications that measured each coarse voxel
 	logBase     []float32 // analysis grid log-dose from the measured voxels only
