@@ -213,11 +213,15 @@ func prepareStacks(ctx context.Context, so *dosemap.Sonication, s Settings, ref 
 	return sd, unit, nil
 }
 
-// orientationName names the orientation of g's slices from their normal:
-// axial, coronal or sagittal when the normal lies within about 2.6° of a
-// patient axis (|cos| ≥ 0.999), else oblique.
-func orientationName(g dosemap.Geometry) string {
-	n := g.Normal
+// orientationName names the orientation of g's slices (PlaneOrientation of
+// its normal).
+func orientationName(g dosemap.Geometry) string { return PlaneOrientation(g.Normal) }
+
+// PlaneOrientation names the orientation of a plane from its unit normal
+// n (patient LPS): axial, coronal or sagittal when n lies within about
+// 2.6° of a patient axis (|cos| ≥ 0.999; common practice for calling a
+// plane by an axis), else oblique.
+func PlaneOrientation(n dosemap.Vec3) string {
 	ax := 0
 	for i := 1; i < 3; i++ {
 		if math.Abs(n[i]) > math.Abs(n[ax]) {
