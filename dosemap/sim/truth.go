@@ -68,7 +68,7 @@ type Truth struct {
 	// truth.json. ChangeCoveredFraction is the part of the target it
 	// covers.
 	ChangeDose            *dosemap.Volume `json:"-"`
-	ChangeCoveredFraction float64         `json:"change_only_covered_fraction"`
+	ChangeCoveredFraction float64         `json:"change_only_covered_fraction,omitempty"` // sessions on their own planes only (LayoutSlab keeps its truth.json as before)
 }
 
 // MeasuredTruth holds dose figures on the thermometry grid; a voxel belongs
@@ -125,7 +125,7 @@ type TruthSonication struct {
 	PeakTemp  float64      `json:"peak_temperature_c"`        // hottest bioheat voxel during the imaged frames
 	StartTemp float64      `json:"focus_start_temperature_c"` // residual heat at the focus when it began
 	// Stacks are the grids the sonication was measured on (one for a
-	// shared or moving slab, one per plane otherwise).
+	// moving slab, one per plane otherwise); empty for one shared slab.
 	Stacks []dosemap.Geometry `json:"stacks,omitempty"`
 }
 
@@ -225,7 +225,7 @@ func (s *Session) truth(res *simResult, id ids) *Truth {
 			nChange++
 		}
 	}
-	if nTarget > 0 {
+	if nTarget > 0 && s.Layout != LayoutSlab {
 		t.ChangeCoveredFraction = float64(nChange) / float64(nTarget)
 	}
 	return t

@@ -388,7 +388,9 @@ func (s *Session) writeThermometry(dir string, id ids, res *simResult, truth *Tr
 		for f := 0; f < p.Frames; f++ {
 			jobs = append(jobs, job{n, f})
 		}
-		truth.Sonications[n].Stacks = grids[n]
+		if s.Layout != LayoutSlab {
+			truth.Sonications[n].Stacks = grids[n]
+		}
 	}
 	errs := make([]error, len(jobs))
 	files := make([]int, len(jobs))
