@@ -33,11 +33,21 @@ type loadedCase struct {
 	MissingB0     bool     // some thermometry lacks MagneticFieldStrength
 	MissingTE     bool     // some thermometry lacks EchoTime
 	Demo          bool     // the built-in demo case, opened from the user cache
+	Study         string   // StudyInstanceUID of the study read; "" when unknown
+	// Studies lists the studies of a folder that holds several when none
+	// was chosen (nothing was read; the window offers a chooser).
+	Studies []studyChoice
+}
+
+// studyChoice is one study of a folder, for the chooser.
+type studyChoice struct {
+	UID, Label string // Label names patient, date, description and counts
 }
 
 // loadOptions are the reader's options the user can change.
 type loadOptions struct {
 	PhaseScale float64 // radians per stored unit; 0: from the files' tags
+	Study      string  // StudyInstanceUID to read from a folder of several
 }
 
 // xy is one point of a curve.

@@ -16,12 +16,27 @@ func init() {
 }
 
 func readCaseDICOM(ctx context.Context, dir string, opt loadOptions, progress func(done, total int)) (*loadedCase, error) {
-	c, inv, err := dicomio.Load(ctx, dir, dicomio.LoadOptions{PhaseScale: opt.PhaseScale}, progress)
+	c, inv, err := dicomio.Load(ctx, dir, dicomio.LoadOptions{PhaseScale: opt.PhaseScale, Study: opt.Study}, progress)
 	if err != nil {
 		return nil, err
 	}
 	lc := &loadedCase{Dir: dir, Case: c}
 	if inv != nil {
+		lc.Study = inv.Study
+		if inv.NeedsStudyChoice() {
+			for _, s := range inv.Studies {
+				desc := s.Description
+				if desc == "" {
+					desc = "no description"
+				}
+				where := "in " + s.Folder
+				if s.Folder == "." {
+					where = "in the folder itself"
+				}
+				lc.Studies = append(lc.Studies, studyChoice{UID: s.UID,
+					Label: fmt.Sprintf("%s: %s; %d series, %d files %s", s.Label(), desc, s.Series, s.Files, where)})
+			}
+		}
 		var b strings.Builder
 		if err := inv.WriteText(&b); err == nil {
 			lc.Inventory = b.String()

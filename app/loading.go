@@ -149,6 +149,13 @@ func (rw *reviewWindow) openCase(dir string) { rw.openFolder(dir, false) }
 // openFolder is openCase; demo marks dir as the built-in demo case, named
 // demoLabel rather than by its cache folder.
 func (rw *reviewWindow) openFolder(dir string, demo bool) {
+	rw.openStudy(dir, demo, "")
+}
+
+// openStudy reads study (a StudyInstanceUID; "" for the folder's only
+// study) of the case folder dir in the background, as openFolder does; a
+// folder of several studies and no choice brings up the study chooser.
+func (rw *reviewWindow) openStudy(dir string, demo bool, study string) {
 	if readCase == nil {
 		rw.showNotice("This build of dosecover cannot read case folders yet (its DICOM reader is missing).")
 		return
@@ -192,7 +199,7 @@ func (rw *reviewWindow) openFolder(dir string, demo bool) {
 			// The reader reports two passes (attributes, then pixel data),
 			// each from zero: a drop in done starts the second.
 			pass, last := 0, -1
-			lc, err = readCase(ctx, dir, loadOptions{PhaseScale: setting.PhaseScale}, func(done, total int) {
+			lc, err = readCase(ctx, dir, loadOptions{PhaseScale: setting.PhaseScale, Study: study}, func(done, total int) {
 				if total <= 0 {
 					return
 				}
@@ -228,6 +235,10 @@ func (rw *reviewWindow) openFolder(dir string, demo bool) {
 					rw.showNotice("Open a case folder (File ▸ Open folder…, or drop a folder on this window).")
 				}
 				rw.showError("The case in "+rw.displayPath(dir)+" could not be read", err)
+				return
+			}
+			if len(lc.Studies) > 1 {
+				rw.chooseStudy(dir, demo, lc)
 				return
 			}
 			rw.caseLoaded(lc, hash, nFiles, rec, setting)

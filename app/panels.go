@@ -344,6 +344,7 @@ func (m *metricsPanel) update() {
 	r := m.rw.result
 	m.used.SetText(m.rw.settings.describe())
 	m.signed.SetText(m.rw.signOffText())
+	m.rw.updateSignState()
 	if r == nil {
 		if m.rw.loaded == nil {
 			m.facts.SetText("No case open.")
@@ -463,21 +464,26 @@ func (b *washBar) set(floor, top float64, unit string) {
 	b.content.Refresh()
 }
 
-// signOffText lists the sign-offs of the open case (names hidden in
-// teaching mode).
+// signOffText says whether the analysis on screen is signed off and lists
+// the sign-offs of the open case (names hidden in teaching mode).
 func (rw *reviewWindow) signOffText() string {
 	if rw.record == nil || len(rw.record.SignOffs) == 0 {
 		return "Not signed off."
 	}
-	var b []string
+	r, _ := rw.resultRaw()
+	st := review.SignOffFor(rw.record.SignOffs, rw.hash, rw.loaded.Study, r)
+	b := []string{"This analysis: " + st.Line(rw.teaching) + "."}
 	for _, s := range rw.record.SignOffs {
 		who := s.Reviewer
 		if rw.teaching {
 			who = "a reviewer"
 		}
-		line := fmt.Sprintf("%s by %s, covered %.1f %%", s.Time.Local().Format("2006-01-02 15:04"), who, 100*s.Covered)
+		line := fmt.Sprintf("%s by %s: %s, %.1f %% of the monitored target covered", s.Time.Local().Format("2006-01-02 15:04"), who, s.Outcome, s.Figures.CoveredMonitoredPct)
 		if s.InputHash != rw.hash {
 			line += " (different input files)"
+		}
+		if s.Comment != "" && !rw.teaching {
+			line += "; comment: " + s.Comment
 		}
 		b = append(b, line)
 	}

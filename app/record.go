@@ -12,6 +12,7 @@ import (
 	"path/filepath"
 	"time"
 
+	"dosecover/review"
 	"dosecover/review/report"
 )
 
@@ -26,18 +27,7 @@ type reviewRecord struct {
 	Files     int              `json:"input_files"`
 	Settings  analysisSettings `json:"settings"`
 	Updated   time.Time        `json:"updated"`
-	SignOffs  []signOff        `json:"sign_offs,omitempty"`
-}
-
-// signOff is one reviewer's statement that the review was done.
-type signOff struct {
-	Reviewer  string    `json:"reviewer"`
-	Comment   string    `json:"comment,omitempty"`
-	Time      time.Time `json:"time"`
-	InputHash string    `json:"input_sha256"`
-	Settings  string    `json:"settings"` // the thresholds used, as shown
-	Covered   float64   `json:"covered_fraction"`
-	Version   string    `json:"dosecover_version"`
+	SignOffs  []review.SignOff `json:"sign_offs,omitempty"`
 }
 
 const recordFormat = "dosecover-review/1"

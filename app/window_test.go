@@ -3,6 +3,7 @@
 package main
 
 import (
+	"encoding/json"
 	"image"
 	"image/png"
 	"math"
@@ -14,6 +15,7 @@ import (
 	"time"
 
 	"dosecover/dosemap"
+	"dosecover/review"
 
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/storage"
@@ -233,7 +235,7 @@ func TestTeachingModeHidesIdentity(t *testing.T) {
 func TestSignOffRecorded(t *testing.T) {
 	rw := testWindow(t)
 	openSynthetic(t, rw)
-	if err := rw.addSignOff("A. Reviewer", "reviewed in rounds", testTime); err != nil {
+	if err := rw.addSignOff("A. Reviewer", review.OutcomeAccepted, "reviewed in rounds", testTime); err != nil {
 		t.Fatal(err)
 	}
 	rec, err := loadRecord(rw.hash)
@@ -244,11 +246,72 @@ func TestSignOffRecorded(t *testing.T) {
 		t.Fatalf("%d sign-offs, want 1", len(rec.SignOffs))
 	}
 	s := rec.SignOffs[0]
-	if s.Reviewer != "A. Reviewer" || s.InputHash != rw.hash || !s.Time.Equal(testTime) || s.Covered != rw.result.Covered {
+	raw, _ := rw.resultRaw()
+	if s.Reviewer != "A. Reviewer" || s.InputHash != rw.hash || !s.Time.Equal(testTime) || s.Figures != review.HeadlineOf(raw) || s.Outcome != review.OutcomeAccepted {
 		t.Errorf("sign-off %+v does not match the review", s)
 	}
-	if !strings.Contains(s.Settings, "240 CEM43") {
-		t.Errorf("sign-off does not state the threshold: %q", s.Settings)
+	var set map[string]any
+	if err := json.Unmarshal(s.Settings, &set); err != nil || set["threshold"] != 240.0 || set["thermometry"] == nil {
+		t.Errorf("sign-off does not hold the complete settings (%v): %s", err, s.Settings)
+	}
+	if !strings.HasPrefix(rw.signState.Text, "Signed off: coverage accepted") {
+		t.Errorf("header: %q", rw.signState.Text)
+	}
+}
+
+// TestSignOffStaleOnExport signs off, leaves a sonication out and exports:
+// the report must not show the sign-off, must say it is not signed off for
+// these settings and name what differs; the header says so too. Taking the
+// sonication back restores the sign-off, its comment printed.
+func TestSignOffStaleOnExport(t *testing.T) {
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	if err := rw.addSignOff("A. Reviewer", review.OutcomeFollowUp, "spill beyond the margin to discuss", testTime); err != nil {
+		t.Fatal(err)
+	}
+	metricsOf := func() map[string]any {
+		out := exportTo(t, rw)
+		b, err := os.ReadFile(filepath.Join(out, rw.reportBase()+".json"))
+		if err != nil {
+			t.Fatal(err)
+		}
+		var m map[string]any
+		if err := json.Unmarshal(b, &m); err != nil {
+			t.Fatal(err)
+		}
+		return m
+	}
+	m := metricsOf()
+	if so, _ := m["sign_off"].(string); !strings.HasPrefix(so, "signed off by A. Reviewer") || !strings.Contains(so, review.OutcomeFollowUp) {
+		t.Errorf("signed analysis exported with sign-off %q", so)
+	}
+	if c, _ := m["sign_off_comment"].(string); c != "spill beyond the margin to discuss" {
+		t.Errorf("comment %q not on the report", c)
+	}
+	mark := rw.completed.Load()
+	rw.setExcluded(2, true)
+	waitJobs(t, rw, mark, 1)
+	m = metricsOf()
+	so, _ := m["sign_off"].(string)
+	for _, want := range []string{"not signed off for these settings", "last sign-off by A. Reviewer", "sonications left out: none then, 2 now"} {
+		if !strings.Contains(so, want) {
+			t.Errorf("stale sign-off exported as %q; want it to say %q", so, want)
+		}
+	}
+	if _, ok := m["sign_off_comment"]; ok {
+		t.Errorf("the comment of a sign-off that does not apply is on the report")
+	}
+	if m["reviewer"] != nil && m["reviewer"] != "" {
+		t.Errorf("reviewer %v printed for an analysis nobody signed off", m["reviewer"])
+	}
+	if rw.signState.Text != "Not signed off for these settings" {
+		t.Errorf("header: %q", rw.signState.Text)
+	}
+	mark = rw.completed.Load()
+	rw.setExcluded(2, false)
+	waitJobs(t, rw, mark, 1)
+	if !strings.HasPrefix(rw.signState.Text, "Signed off: needs follow-up") {
+		t.Errorf("header after restoring the settings: %q", rw.signState.Text)
 	}
 }
 
@@ -327,7 +390,7 @@ func exportTo(t *testing.T, rw *reviewWindow) string {
 func TestExportReportTeachingMode(t *testing.T) {
 	rw := testWindow(t)
 	openSynthetic(t, rw)
-	if err := rw.addSignOff("A. Reviewer", "", testTime); err != nil {
+	if err := rw.addSignOff("A. Reviewer", review.OutcomeAccepted, "", testTime); err != nil {
 		t.Fatal(err)
 	}
 	// Without teaching mode the metrics name the case.

@@ -97,7 +97,7 @@ type Artifacts func(c *Case, cs *dosemap.Case, res *review.Result) ([]Artifact, 
 // label is the case ID before the analysis sees it.
 func NewAnalyzer(s review.Settings, artifacts Artifacts) Analyzer {
 	return func(ctx context.Context, c *Case) (*CaseResult, error) {
-		cs, inv, err := dicomio.Load(ctx, c.Dir, dicomio.LoadOptions{Workers: 1, Deferred: true}, nil)
+		cs, inv, err := dicomio.Load(ctx, c.Dir, dicomio.LoadOptions{Workers: 1, Deferred: true, Study: c.Study}, nil)
 		if err != nil {
 			return nil, fmt.Errorf("reading case folder %s: %w", c.Dir, err)
 		}
