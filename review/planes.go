@@ -144,14 +144,16 @@ func commonGrid(sons []*dosemap.Sonication, ext []vec3) (dosemap.Geometry, bool)
 
 // prepareStacks prepares sonication so and its further stacks on ref: the
 // dose of the sonication is the mean of its stacks where they overlap.
-func prepareStacks(ctx context.Context, so *dosemap.Sonication, s Settings, ref dosemap.Geometry, keep *keepBox) (*sonData, string, error) {
-	sd, unit, err := prepareSonication(ctx, so, s, ref, keep)
+// clock is passed on for the first stack (the residual heat estimate
+// follows the first stack only).
+func prepareStacks(ctx context.Context, so *dosemap.Sonication, s Settings, ref dosemap.Geometry, keep *keepBox, clock float64) (*sonData, string, error) {
+	sd, unit, err := prepareSonication(ctx, so, s, ref, keep, clock, nil)
 	if err != nil {
 		return nil, "", err
 	}
 	var cnt []uint8
 	for _, st := range so.Stacks {
-		e, u, err := prepareSonication(ctx, st, s, ref, nil)
+		e, u, err := prepareSonication(ctx, st, s, ref, nil, math.NaN(), nil)
 		if err != nil {
 			return nil, "", fmt.Errorf("stack of series %s: %w", st.SeriesUID, err)
 		}

@@ -62,7 +62,19 @@ type Settings struct {
 	// negligible (the monitoring rule; README "Planes and the monitoring
 	// rule"); DefaultNegligibleFraction by default.
 	NegligibleFraction float64 `json:"negligible_fraction"`
+	// CarryOver adds each sonication's estimated residual heat from the
+	// earlier ones (dosemap.EstimateResidual) to its temperatures before
+	// its dose is computed. Off by default: the dose is then what the
+	// thermometry measured.
+	CarryOver bool `json:"carry_over"`
+	// ResidualWarnC is the estimated residual rise (°C, over the target
+	// and margin) above which a sonication is named in a warning.
+	ResidualWarnC float64 `json:"residual_warn_c"`
 }
+
+// DefaultResidualWarnC is the default ResidualWarnC: 1 °C, about the
+// noise of one PRF thermometry voxel (common practice).
+const DefaultResidualWarnC = 1.0
 
 // DefaultSettings returns 240 CEM43 (Sapareto & Dewey 1984; the common
 // lethal threshold, McDannold et al., Radiology 2006), DefaultMarginMM, no
@@ -71,7 +83,7 @@ type Settings struct {
 func DefaultSettings() Settings {
 	return Settings{Threshold: 240, MarginMM: DefaultMarginMM, Model: ModelCEM43, Trials: 50, Seed: 1,
 		CEM43: dosemap.DefaultCEM43(), Arrhenius: dosemap.DefaultArrhenius(), Thermometry: DefaultThermometrySettings(),
-		NegligibleFraction: DefaultNegligibleFraction}
+		NegligibleFraction: DefaultNegligibleFraction, ResidualWarnC: DefaultResidualWarnC}
 }
 
 // ProgressFunc receives the name of the stage being worked on and the
@@ -96,6 +108,12 @@ type sonData struct {
 	notes   []string // frames that could not be read
 	source  *dosemap.Sonication
 	reach   reach // extent of the measured heating around the hottest point (monitoring rule)
+
+	// Residual heat (see residual.go).
+	tail     *dosemap.CoolingTail // last frames, kept until the estimate is made
+	residual []float32            // estimated hidden rise at the baseline, thermometry grid of the session; NaN unknown, nil none
+	cooling  float64              // s since the previous sonication's last frame; NaN unknown
+	measured []float32            // as-measured dose when dose holds the corrected one (CarryOver), else nil
 }
 
 // tempStats are the temperature figures of one sonication.
@@ -245,6 +263,7 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 		}
 	}()
 	ns := len(c.Sonications)
+	clocks, clockNote := sessionClock(c.Sonications)
 	sons := make([]*sonData, ns)
 	units := make([]string, ns)
 	errs := make([]error, ns)
@@ -262,7 +281,7 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 					errs[n] = err
 					continue
 				}
-				sons[n], units[n], errs[n] = prepareStacks(sctx, so, s, ref, ses.keep)
+				sons[n], units[n], errs[n] = prepareStacks(sctx, so, s, ref, ses.keep, clocks[n])
 				pmu.Lock()
 				done++
 				progress.report(fmt.Sprintf("thermometry and dose, sonication %d", so.Number), 0.8*float64(done)/float64(ns))
@@ -301,6 +320,12 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 		}
 	}
 	ses.sons, ses.unit = sons, units[0]
+	if clockNote != "" {
+		ses.warnings = append(ses.warnings, clockNote)
+	}
+	if err := ses.prepareResidual(ctx, c, s, ref, ext, progress); err != nil {
+		return nil, err
+	}
 	ses.warnings = append(ses.warnings, structWarnings...)
 	progress.report("prepared", 1)
 	return ses, nil
@@ -402,7 +427,9 @@ func (s *Session) SonicationDose(n int) *dosemap.Volume {
 // the session and must not be modified. For a case whose frames stay in
 // their files (dicomio.LoadOptions.Deferred) the session keeps only the
 // temperatures around the target, and Temperature computes the series
-// again from the files (nil if that fails).
+// again from the files (nil if that fails). A session prepared with
+// CarryOver returns the temperatures with the estimated residual heat
+// added (see Residual).
 func (s *Session) Temperature(n int) *dosemap.TemperatureSeries {
 	for _, sd := range s.sons {
 		if sd.number == n {
@@ -411,6 +438,9 @@ func (s *Session) Temperature(n int) *dosemap.TemperatureSeries {
 				full, err := thermometry(sd.source, s.prepared.Thermometry)
 				if err != nil {
 					return nil
+				}
+				if s.prepared.CarryOver && sd.residual != nil {
+					addOffset(full, sd.residual) // as the kept series
 				}
 				return full
 			}
@@ -452,6 +482,9 @@ func (s *Session) checkSettings(set Settings) error {
 	if set.NeedsThermometry(s.prepared) {
 		return errors.New("dose model parameters or thermometry options differ from those this session was prepared with; prepare it again")
 	}
+	if set.CarryOver != s.prepared.CarryOver {
+		return errors.New("carry_over differs from the setting this session was prepared with; prepare it again")
+	}
 	left := len(s.sons)
 	for _, e := range set.Excluded {
 		found := false
@@ -477,6 +510,13 @@ func (s *Session) checkSettings(set Settings) error {
 
 // doses returns the dose cache for the included sonications of set.
 func (s *Session) doses(ctx context.Context, set Settings) (*doseCache, error) {
+	return s.doseSum(ctx, set, false)
+}
+
+// doseSum returns the dose cache for the included sonications of set: of
+// the as-measured dose when measured is true (not cached), else of the
+// dose the session was prepared for.
+func (s *Session) doseSum(ctx context.Context, set Settings, measured bool) (*doseCache, error) {
 	ex := map[int]bool{}
 	for _, e := range set.Excluded {
 		ex[e] = true
@@ -489,7 +529,7 @@ func (s *Session) doses(ctx context.Context, set Settings) (*doseCache, error) {
 			key.WriteString(strconv.Itoa(n) + ",")
 		}
 	}
-	if s.cache != nil && s.cache.key == key.String() {
+	if !measured && s.cache != nil && s.cache.key == key.String() {
 		s.monitor(set, s.cache)
 		return s.cache, nil
 	}
@@ -502,6 +542,9 @@ func (s *Session) doses(ctx context.Context, set Settings) (*doseCache, error) {
 			return nil, err
 		}
 		d := s.sons[n].dose
+		if measured && s.sons[n].measured != nil {
+			d = s.sons[n].measured
+		}
 		for v, x := range d {
 			if x == x {
 				run[v] += x
@@ -529,14 +572,16 @@ func (s *Session) doses(ctx context.Context, set Settings) (*doseCache, error) {
 	dc.logBase = make([]float32, fl)
 	dc.strictFine = make([]bool, fl)
 	s.fg.interpLog(lc, dc.full, dc.logBase, dc.strictFine)
-	measured := make([]bool, cl)
+	measuredAny := make([]bool, cl)
 	for v, n := range cnt {
-		measured[v] = n > 0
+		measuredAny[v] = n > 0
 	}
 	dc.measureFine = make([]bool, fl)
-	s.fg.interpMask(lc, measured, dc.measureFine)
+	s.fg.interpMask(lc, measuredAny, dc.measureFine)
 	s.monitor(set, dc)
-	s.cache = dc
+	if !measured {
+		s.cache = dc
+	}
 	return dc, nil
 }
 
@@ -769,6 +814,14 @@ func (s *Session) Analyze(ctx context.Context, set Settings, progress ProgressFu
 	}
 	progress.report("sonications", 0.7)
 	s.perSonication(r, set, dc, lethal, outside, lt, mv)
+	s.residualFigures(r, set)
+	if set.CarryOver {
+		am, err := s.asMeasured(ctx, set)
+		if err != nil {
+			return nil, err
+		}
+		r.AsMeasured = am
+	}
 	for _, sd := range s.sons {
 		if sd.quality != nil {
 			r.Quality = append(r.Quality, *sd.quality)
