@@ -22,8 +22,9 @@ func runDemo(args []string, stdout, stderr io.Writer) int {
 	fs.SetOutput(stderr)
 	cases := fs.Int("cases", 0, "also write `N` varied simulated cases into DIR/case-001 ...")
 	seed := fs.Uint64("seed", 1, "`seed` of the varied cases (same seed, same files)")
+	planes := fs.Bool("planes", false, "also write three sessions measured on their own planes: DIR/planes-moving-slab, DIR/planes-two-planes (coronal and sagittal planes in one series), DIR/planes-two-plane-series (one series per plane)")
 	fs.Usage = func() {
-		fmt.Fprintln(stderr, "usage: dosecover demo DIR [--cases N] [--seed S]")
+		fmt.Fprintln(stderr, "usage: dosecover demo DIR [--cases N] [--seed S] [--planes]")
 		fmt.Fprintln(stderr, "Writes the invented demo session (a gel phantom, no patient) into DIR/demo,")
 		fmt.Fprintln(stderr, "with truth.json describing what was simulated. DIR must be new or empty.")
 		fs.PrintDefaults()
@@ -64,6 +65,17 @@ func runDemo(args []string, stdout, stderr io.Writer) int {
 			return exitFailure
 		}
 		fmt.Fprintf(stdout, "wrote %d simulated cases into %s (case-001 ..., seed %d)\n", len(ts), dir, *seed)
+	}
+	if *planes {
+		for _, l := range []sim.Layout{sim.LayoutMovingSlab, sim.LayoutTwoPlanes, sim.LayoutTwoPlaneSeries} {
+			sub := filepath.Join(dir, "planes-"+l.String())
+			t, err := sim.WritePlanes(sub, l, *seed)
+			if err != nil {
+				fmt.Fprintf(stderr, "dosecover demo: %v\n", err)
+				return 1
+			}
+			fmt.Fprintf(stdout, "wrote %s: %d files, %d sonications measured on their own planes (%s)\n", sub, t.Files, len(t.Sonications), l)
+		}
 	}
 	fmt.Fprintln(stdout, "All data are invented (phantom simulation). For review, QA and teaching only.")
 	return exitOK

@@ -330,6 +330,15 @@ func (rw *reviewWindow) setViewGrid() {
 	for n, v := range rw.viewers {
 		v.setScene(&rw.scene, ref)
 		rw.sliceChanged(n)
+		// Name the planes by their orientation on this grid.
+		if sel := rw.planeSel[n]; sel != nil {
+			idx := sel.SelectedIndex()
+			sel.Options = []string{planeAcquisition.label(ref), planeReformatRow.label(ref), planeReformatCol.label(ref)}
+			if idx >= 0 && idx < len(sel.Options) {
+				sel.Selected = sel.Options[idx]
+			}
+			sel.Refresh()
+		}
 	}
 	if ref == nil {
 		rw.showNotice("This case has no anatomy series; the images appear when the dose has been computed.")

@@ -4,8 +4,10 @@ package main
 
 import (
 	"math"
+	"strings"
 
 	"dosecover/dosemap"
+	"dosecover/review"
 )
 
 // planeKind names the three planes the viewer can show, relative to the
@@ -26,6 +28,22 @@ func (k planeKind) String() string {
 		return "Reformat across columns"
 	}
 	return "Acquisition plane"
+}
+
+// label names the plane of kind on grid g by its orientation (axial,
+// coronal, sagittal or oblique) and whether it is the acquired plane or a
+// reformat; without a grid, by String.
+func (k planeKind) label(g *dosemap.Geometry) string {
+	if g == nil {
+		return k.String()
+	}
+	_, _, n, _, _, _, _ := planeAxes(*g, k)
+	name := review.PlaneOrientation(n)
+	name = strings.ToUpper(name[:1]) + name[1:]
+	if k == planeAcquisition {
+		return name + " (acquired)"
+	}
+	return name + " (reformat)"
 }
 
 // planeAxes returns the in-plane unit directions (u to the right, v

@@ -195,3 +195,21 @@ func TestMissingScannerValuesAsked(t *testing.T) {
 		t.Errorf("thermometry B0 %g T, TE %g s; want 3 T, 0.012 s", o.PRF.B0, o.PRF.TE)
 	}
 }
+
+// TestPlaneLabels names the planes of an axial grid by their orientation
+// (axial acquired; reformats across rows and columns are coronal and
+// sagittal: PS3.3 C.7.6.2.1.1 direction cosines).
+func TestPlaneLabels(t *testing.T) {
+	g := dosemap.NewAxialGeometry(8, 8, 4, dosemap.Vec3{1, 1, 3}, dosemap.Vec3{})
+	for _, c := range []struct {
+		k    planeKind
+		want string
+	}{{planeAcquisition, "Axial (acquired)"}, {planeReformatRow, "Coronal (reformat)"}, {planeReformatCol, "Sagittal (reformat)"}} {
+		if got := c.k.label(&g); got != c.want {
+			t.Errorf("%v: %q, want %q", c.k, got, c.want)
+		}
+	}
+	if got := planeAcquisition.label(nil); got != planeAcquisition.String() {
+		t.Errorf("without a grid: %q", got)
+	}
+}

@@ -79,6 +79,12 @@ type Sonication struct {
 	// Source, when not nil, supplies Phase and Magnitude, which are then
 	// nil; Times has one value per frame.
 	Source FrameSource
+	// Stacks are the further stacks (planes of other orientations or
+	// positions) measured during this sonication, each with its own
+	// Geometry, Start, Times and frames; they carry the sonication's
+	// Number and have no Stacks of their own. Empty when the sonication
+	// was measured on one stack.
+	Stacks []*Sonication
 }
 
 // FrameSource supplies the phase and magnitude frames of a sonication that

@@ -95,6 +95,9 @@ func (ses *Session) prepareResidual(ctx context.Context, c *dosemap.Case, s Sett
 			continue
 		}
 		sd.residual = onGrid(e.Rise, ref)
+		if len(c.Sonications[n].Stacks) > 0 {
+			continue // the correction follows one stack; a sonication of several keeps its measured dose
+		}
 		for _, x := range e.Rise.Data {
 			if x > 0 {
 				todo = append(todo, n)
@@ -134,6 +137,7 @@ func (ses *Session) prepareResidual(ctx context.Context, c *dosemap.Case, s Sett
 		}
 		sd := ses.sons[n]
 		sd.measured, sd.dose, sd.peak = sd.dose, redo[a].dose, redo[a].peak
+		sd.reach = newReach(ref, sd.dose)
 		if redo[a].series != nil {
 			sd.series, sd.source = redo[a].series, redo[a].source
 		}

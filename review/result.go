@@ -60,6 +60,10 @@ type Result struct {
 	CarryOver  bool        `json:"carry_over"`
 	AsMeasured *AsMeasured `json:"as_measured"`
 
+	// Monitoring is the monitoring rule's report: the negligible dose,
+	// the strict and measured-planes figures, each sonication's reach.
+	Monitoring *Monitoring `json:"monitoring"`
+
 	// Grids for display (not written to JSON).
 	Dose        *dosemap.Volume `json:"-"` // cumulative dose of the included sonications, thermometry grid; NaN unmeasured
 	TargetMask  *dosemap.Volume `json:"-"` // fraction of each analysis voxel inside the target, analysis grid

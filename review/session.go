@@ -57,6 +57,11 @@ type Settings struct {
 	Arrhenius   dosemap.Arrhenius   `json:"arrhenius"`   // parameters of the arrhenius model
 	Thermometry ThermometrySettings `json:"thermometry"` // PRF thermometry
 
+	// NegligibleFraction is the fraction of Threshold below which a
+	// sonication's possible dose at a voxel it did not measure is
+	// negligible (the monitoring rule; README "Planes and the monitoring
+	// rule"); DefaultNegligibleFraction by default.
+	NegligibleFraction float64 `json:"negligible_fraction"`
 	// CarryOver adds each sonication's estimated residual heat from the
 	// earlier ones (dosemap.EstimateResidual) to its temperatures before
 	// its dose is computed. Off by default: the dose is then what the
@@ -78,7 +83,7 @@ const DefaultResidualWarnC = 1.0
 func DefaultSettings() Settings {
 	return Settings{Threshold: 240, MarginMM: DefaultMarginMM, Model: ModelCEM43, Trials: 50, Seed: 1,
 		CEM43: dosemap.DefaultCEM43(), Arrhenius: dosemap.DefaultArrhenius(), Thermometry: DefaultThermometrySettings(),
-		ResidualWarnC: DefaultResidualWarnC}
+		NegligibleFraction: DefaultNegligibleFraction, ResidualWarnC: DefaultResidualWarnC}
 }
 
 // ProgressFunc receives the name of the stage being worked on and the
@@ -102,6 +107,7 @@ type sonData struct {
 	series  any      // thermometry kept for Monte Carlo (engine type), whole or the Session's keep block
 	notes   []string // frames that could not be read
 	source  *dosemap.Sonication
+	reach   reach // extent of the measured heating around the hottest point (monitoring rule)
 
 	// Residual heat (see residual.go).
 	tail     *dosemap.CoolingTail // last frames, kept until the estimate is made
@@ -159,7 +165,15 @@ type doseCache struct {
 	full     []bool      // every included sonication measured the voxel
 	prefix   [][]float32 // cumulative after each included sonication (unmeasured counted 0)
 	logFine  []float32   // analysis grid log-dose
-	monFine  []bool      // analysis grid monitored
+	monFine  []bool      // analysis grid monitored (the monitoring rule)
+	// The monitoring rule's masks for the negligible dose of monKey.
+	monKey      string
+	monInfo     *Monitoring
+	strictFine  []bool    // analysis grid: every included sonication measured it
+	measureFine []bool    // analysis grid: at least one included sonication measured it
+	lc          []float32 // coarse log-dose, NaN where no included sonication measured
+	cnt         []int16   // included sonications that measured each coarse voxel
+	logBase     []float32 // analysis grid log-dose from the measured voxels only
 }
 
 // Prepare computes the thermometry and dose of every sonication of c and
@@ -220,6 +234,10 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 			ext = append(ext, p.Add(d.Scale(ses.maxMargin+2*ref.Spacing.Norm())))
 		}
 	}
+	common := false
+	if ref, common = commonGrid(c.Sonications, ext); common {
+		ses.warnings = append(ses.warnings, fmt.Sprintf("the sonications were measured on different planes: their dose is analysed on a common grid (%s); each sonication's dose is known only within half a slice of its own planes", ref))
+	}
 	// A case whose frames stay in the files keeps for the Monte Carlo only
 	// the temperatures around the target (Temperature computes a whole
 	// series again when asked).
@@ -263,7 +281,7 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 					errs[n] = err
 					continue
 				}
-				sons[n], units[n], errs[n] = prepareSonication(sctx, so, s, ref, ses.keep, clocks[n], nil)
+				sons[n], units[n], errs[n] = prepareStacks(sctx, so, s, ref, ses.keep, clocks[n])
 				pmu.Lock()
 				done++
 				progress.report(fmt.Sprintf("thermometry and dose, sonication %d", so.Number), 0.8*float64(done)/float64(ns))
@@ -297,7 +315,7 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 		if n > 0 && units[n] != units[0] {
 			return nil, fmt.Errorf("sonication %d: dose in %s, sonication %d in %s", so.Number, units[n], c.Sonications[0].Number, units[0])
 		}
-		if !so.Geometry.SameGrid(ref, 0.01) {
+		if !common && !so.Geometry.SameGrid(ref, 0.01) {
 			ses.warnings = append(ses.warnings, fmt.Sprintf("sonication %d was acquired on a different grid and was resampled onto the grid of sonication %d", so.Number, c.Sonications[0].Number))
 		}
 	}
@@ -512,6 +530,7 @@ func (s *Session) doseSum(ctx context.Context, set Settings, measured bool) (*do
 		}
 	}
 	if !measured && s.cache != nil && s.cache.key == key.String() {
+		s.monitor(set, s.cache)
 		return s.cache, nil
 	}
 	cl := s.fg.coarse.Len()
@@ -545,10 +564,21 @@ func (s *Session) doseSum(ctx context.Context, set Settings, measured bool) (*do
 		lc[v] = logDose(run[v])
 		dc.full[v] = int(cnt[v]) == len(inc)
 	}
+	dc.lc, dc.cnt = lc, cnt
 	fl := s.fg.fine.Len()
-	dc.logFine = make([]float32, fl)
-	dc.monFine = make([]bool, fl)
-	s.fg.interpLog(lc, dc.full, dc.logFine, dc.monFine)
+	// The log-dose where measured, and the strict and measured-planes
+	// masks, depend on the included sonications only; the monitoring
+	// rule's mask (monitor) on the negligible dose too.
+	dc.logBase = make([]float32, fl)
+	dc.strictFine = make([]bool, fl)
+	s.fg.interpLog(lc, dc.full, dc.logBase, dc.strictFine)
+	measuredAny := make([]bool, cl)
+	for v, n := range cnt {
+		measuredAny[v] = n > 0
+	}
+	dc.measureFine = make([]bool, fl)
+	s.fg.interpMask(lc, measuredAny, dc.measureFine)
+	s.monitor(set, dc)
 	if !measured {
 		s.cache = dc
 	}
@@ -725,6 +755,7 @@ func (s *Session) Analyze(ctx context.Context, set Settings, progress ProgressFu
 	for v := range holeMask {
 		holeMask[v] = s.occ[v] > 0 && dc.monFine[v] && !lethal[v]
 	}
+	r.Monitoring = s.monitoringFigures(dc, lethal)
 	hl, nh := Components(g, holeMask, RegionConnectivity)
 	r.Holes = s.holes(hl, nh, dc, tv)
 	// Lethal outside the margin.

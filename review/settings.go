@@ -193,6 +193,8 @@ func (s Settings) Validate() error {
 		return fmt.Errorf("margin_mm %g: want 0 to %g mm", s.MarginMM, LargestMarginMM)
 	case s.Trials < 0 || s.Trials > MaxTrials:
 		return fmt.Errorf("trials %d: want 0 to %d (0: no uncertainty band)", s.Trials, MaxTrials)
+	case !(s.NegligibleFraction >= 0 && s.NegligibleFraction < 1):
+		return fmt.Errorf("negligible_fraction %g: want 0 to below 1 (a fraction of the threshold; the monitoring rule)", s.NegligibleFraction)
 	}
 	if err := checkModel(s.Model); err != nil {
 		return err
@@ -497,6 +499,9 @@ func (s Settings) Describe() string {
 	}
 	if len(s.Excluded) > 0 {
 		out += fmt.Sprintf(" · sonications left out %v", s.normalized().Excluded)
+	}
+	if s.NegligibleFraction != DefaultNegligibleFraction {
+		out += fmt.Sprintf(" · negligible dose %g %% of the threshold", 100*s.NegligibleFraction)
 	}
 	if s.CarryOver {
 		out += " · residual heat of earlier sonications added (carry-over)"

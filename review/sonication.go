@@ -308,7 +308,7 @@ func (s *Session) uncertainty(ctx context.Context, set Settings, dc *doseCache) 
 	g, cg := s.fg.fine, s.fg.coarse
 	cl := cg.Len()
 	cs := cg.SliceLen()
-	key := dc.key + "|" + strconv.FormatFloat(set.MarginMM, 'g', -1, 64) + "|" + strconv.Itoa(set.Trials) + "|" + strconv.FormatUint(set.Seed, 10)
+	key := dc.key + "|" + dc.monKey + "|" + strconv.FormatFloat(set.MarginMM, 'g', -1, 64) + "|" + strconv.Itoa(set.Trials) + "|" + strconv.FormatUint(set.Seed, 10)
 	mc := s.mcCache
 	if mc == nil || mc.key != key {
 		mc = &mcCache{key: key, slot: make([]int32, cl), trials: make([][]float32, set.Trials)}

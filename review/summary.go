@@ -33,8 +33,12 @@ func (r *Result) WriteText(w io.Writer) error {
 
 	p("Target %q: %.2f mL; monitored %.2f mL (%.1f %%), not monitored %.2f mL (%.1f %%)\n",
 		r.Target, r.TargetVolumeML, r.MonitoredVolumeML, 100*r.MonitoredFraction, r.NotMonitoredML, 100*r.NotMonitoredFraction)
-	p("Covered (dose >= %g %s): %.2f mL = %.1f %% of the monitored target, %.1f %% of the whole target",
-		r.Threshold, r.DoseUnit, r.CoveredVolumeML, 100*r.CoveredFraction, 100*r.CoveredFractionOfTarget)
+	if r.MonitoredVolumeML > 0 {
+		p("Covered (dose >= %g %s): %.2f mL = %.1f %% of the monitored target, %.1f %% of the whole target",
+			r.Threshold, r.DoseUnit, r.CoveredVolumeML, 100*r.CoveredFraction, 100*r.CoveredFractionOfTarget)
+	} else {
+		p("Covered (dose >= %g %s): not measurable (no part of the target is monitored)", r.Threshold, r.DoseUnit)
+	}
 	if r.CoveredFractionP05 != nil && r.CoveredFractionP95 != nil {
 		p("; 5th-95th percentile over noise %.1f-%.1f %%", 100**r.CoveredFractionP05, 100**r.CoveredFractionP95)
 	}
@@ -44,6 +48,11 @@ func (r *Result) WriteText(w io.Writer) error {
 			100*a.CoveredFraction, 100*a.CoveredFractionOfTarget, a.OutsideMarginLethalML)
 	}
 	p("D98 %s, D50 %s, D2 %s %s (monitored target)\n\n", fnum(r.D98), fnum(r.D50), fnum(r.D2), r.DoseUnit)
+	if m := r.Monitoring; m != nil {
+		p("Monitoring rule (negligible dose %.3g %s, %g %% of the threshold): %.1f %% of the target monitored; measured by every sonication %.1f %% (covered %s); on the measured planes %.1f %% (covered %s)\n\n",
+			m.NegligibleDose, r.DoseUnit, 100*m.NegligibleFraction, 100*r.MonitoredFraction,
+			100*m.StrictFraction, fpct(m.StrictCovered), 100*m.MeasuredFraction, fpct(m.MeasuredCovered))
+	}
 
 	p("Holes (monitored target below threshold): %d\n", len(r.Holes))
 	for n, h := range r.Holes {
@@ -121,6 +130,15 @@ func fnum1(x *float64) string {
 	return fmt.Sprintf("%.1f", *x)
 }
 
+// fpct formats a fraction as a percentage, "not measurable" for nil.
+func fpct(f *float64) string {
+	if f == nil {
+		return "not measurable"
+	}
+	return fmt.Sprintf("%.1f %%", 100**f)
+}
+
+// fnum0 formats a value with no decimals, "n/a" for nil.
 func fnum0(x *float64) string {
 	if x == nil {
 		return "n/a"

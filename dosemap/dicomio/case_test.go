@@ -318,7 +318,8 @@ func TestGeometryChecks(t *testing.T) {
 			}
 		})
 	}
-	// Mixed orientations inside one series make the series unusable.
+	// Mixed orientations inside one series are planes acquired together:
+	// two stacks of one sonication, not an unusable series.
 	dir := t.TempDir()
 	base := mrSpec{Dir: dir, SeriesUID: "2.25.401", Desc: "mixed", FoR: testFoR, Number: 1,
 		Cols: 4, Rows: 4, Slices: 1, Times: 2, Spacing: 2, SliceGap: 3,
@@ -327,12 +328,12 @@ func TestGeometryChecks(t *testing.T) {
 	base.IOP = [6]float64{1, 0, 0, 0, 0, -1}
 	base.Dir = filepath.Join(dir, "other")
 	base.write(t)
-	_, inv, err := Load(t.Context(), dir, LoadOptions{}, nil)
+	c, inv, err := Load(t.Context(), dir, LoadOptions{}, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
-	if !hasProblem(inv, "mixed orientations in one series") || inv.Reviewable {
-		t.Errorf("mixed orientations: reviewable %v, problems %q", inv.Reviewable, inv.Problems)
+	if hasProblem(inv, "mixed orientations in one series") || !inv.Reviewable || len(c.Sonications) != 1 || len(c.Sonications[0].Stacks) != 1 {
+		t.Errorf("two orientations in one series: reviewable %v, %d sonications, problems %q", inv.Reviewable, len(c.Sonications), inv.Problems)
 	}
 }
 

@@ -85,6 +85,9 @@ type SonicationInfo struct {
 	Duration   float64   `json:"durationSeconds"`
 	B0         float64   `json:"b0Tesla"`
 	TE         float64   `json:"echoTimeSeconds"`
+	// Stacks lists the stacks (planes) of a sonication measured on
+	// several; empty for a sonication of one stack.
+	Stacks []StackInfo `json:"stacks,omitempty"`
 }
 
 // StructureInfo describes one ROI of a structure set.
@@ -228,6 +231,10 @@ func (inv *Inventory) WriteText(w io.Writer) error {
 			fmt.Fprintf(&b, ", B0 %s, TE %s", fieldText(s.B0, "T", 1), fieldText(s.TE*1000, "ms", 1))
 		}
 		b.WriteString("\n")
+		for n, st := range s.Stacks {
+			fmt.Fprintf(&b, "      stack %d: %s, %d slices, %d frames, centre (%.1f, %.1f, %.1f) mm, series %q\n",
+				n+1, st.Orientation, st.Slices, st.Frames, st.Center[0], st.Center[1], st.Center[2], st.Description)
+		}
 	}
 	fmt.Fprintf(&b, "\nStructures (%d):\n", len(inv.Structures))
 	for _, s := range inv.Structures {

@@ -106,11 +106,36 @@ func (cr *caseReader) load(ctx context.Context, progress func(done, total int)) 
 		case "phase":
 			if cr.opt.Deferred {
 				s.Source = cr.newFrameSource(u.data, u.mag, phaseConv, rescale)
-				break
+			} else {
+				s.Phase = alloc(u.data, phaseConv, all(u.data))
+				if u.mag != nil {
+					s.Magnitude = alloc(u.mag, rescale, all(u.mag))
+				}
 			}
-			s.Phase = alloc(u.data, phaseConv, all(u.data))
-			if u.mag != nil {
-				s.Magnitude = alloc(u.mag, rescale, all(u.mag))
+			for _, us := range u.stacks {
+				e := &dosemap.Sonication{
+					Number: u.info.Number, Label: u.info.Label, SeriesUID: us.s.info.UID,
+					FrameOfRef: us.s.info.FrameOfRef, Geometry: us.data.Geometry,
+					Start: u.info.Start, Times: us.data.relTimes(), B0: u.info.B0, TE: u.info.TE,
+				}
+				if us.data.HasTimes && len(us.data.Times) > 0 {
+					e.Start = toTime(us.data.Times[0], us.data.Dated)
+				}
+				if us.s.info.B0 > 0 {
+					e.B0 = us.s.info.B0
+				}
+				if us.s.info.TE > 0 {
+					e.TE = us.s.info.TE
+				}
+				if cr.opt.Deferred {
+					e.Source = cr.newFrameSource(us.data, us.mag, phaseConv, rescale)
+				} else {
+					e.Phase = alloc(us.data, phaseConv, all(us.data))
+					if us.mag != nil {
+						e.Magnitude = alloc(us.mag, rescale, all(us.mag))
+					}
+				}
+				s.Stacks = append(s.Stacks, e)
 			}
 		case "temperature":
 			s.Temperature = alloc(u.data, mapConv(func(r rwv) bool { return r.Units == "Cel" }), all(u.data))

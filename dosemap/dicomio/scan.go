@@ -8,6 +8,7 @@ import (
 	"math"
 	"path/filepath"
 	"runtime"
+	"slices"
 	"sort"
 	"strconv"
 	"strings"
@@ -89,11 +90,16 @@ func Load(ctx context.Context, dir string, opt LoadOptions, progress func(done, 
 
 // series is one series being assembled.
 type series struct {
-	info    SeriesInfo
-	files   []*fileInfo
-	phase   *stack // RolePhase, RolePhaseMagnitude
-	mag     *stack // RoleMagnitude, RolePhaseMagnitude
-	image   *stack // anatomy, temperature and dose maps
+	info  SeriesInfo
+	files []*fileInfo
+	phase *stack // RolePhase, RolePhaseMagnitude
+	mag   *stack // RoleMagnitude, RolePhaseMagnitude
+	image *stack // anatomy, temperature and dose maps
+	// more holds the further phase stacks of a series whose frames lie in
+	// several orientations (planes acquired together), moreMag its further
+	// magnitude stacks; phase and mag are the first of each.
+	more    []*stack
+	moreMag []*stack
 	paired  bool
 	mapping string // "rad", "Cel", "CEM43"
 }
@@ -107,6 +113,16 @@ type unit struct {
 	mag       *stack
 	start     float64
 	info      SonicationInfo
+	// stacks are the further stacks acquired with this one (other planes
+	// of the same series or series acquired at the same time).
+	stacks []unitStack
+}
+
+// unitStack is one further stack of a sonication: phase frames and their
+// magnitude (nil when none) from series s.
+type unitStack struct {
+	data, mag *stack
+	s         *series
 }
 
 type caseReader struct {
@@ -455,9 +471,18 @@ func (cr *caseReader) classify(s *series) {
 		if len(other) > 0 {
 			inv.problem("series %s: %d frames that are neither phase nor magnitude are ignored", s.name(), len(other))
 		}
-		if s.phase = build(pf); s.phase == nil {
+		groups := splitOrientations(pf)
+		if s.phase = build(groups[0]); s.phase == nil {
 			s.info.Role = RoleOther
 			return
+		}
+		for _, g := range groups[1:] {
+			if st := build(g); st != nil {
+				s.more = append(s.more, st)
+			}
+		}
+		if len(groups) > 1 {
+			s.info.Note = fmt.Sprintf("%d stacks in different orientations, read as planes acquired together", len(groups))
 		}
 		setInfo(s.phase)
 		if len(s.phase.Grid) < 2 {
@@ -468,19 +493,35 @@ func (cr *caseReader) classify(s *series) {
 		}
 		s.info.Role = RolePhase
 		if len(mf) > 0 {
-			if s.mag = build(mf); s.mag != nil {
-				if !s.mag.Geometry.SameGrid(s.phase.Geometry, posTol) || len(s.mag.Grid) != len(s.phase.Grid) {
-					inv.problem("series %s: magnitude frames (%d time points, %s) do not match the phase frames (%d time points, %s); magnitude not used",
-						s.name(), len(s.mag.Grid), s.mag.Geometry, len(s.phase.Grid), s.phase.Geometry)
-					s.mag = nil
-				} else {
-					s.info.Role = RolePhaseMagnitude
+			var mags []*stack
+			for _, g := range splitOrientations(mf) {
+				if st := build(g); st != nil {
+					mags = append(mags, st)
 				}
+			}
+			// Each phase stack takes the magnitude stack on its grid.
+			match := func(ph *stack) *stack {
+				for _, m := range mags {
+					if m.Geometry.SameGrid(ph.Geometry, posTol) && len(m.Grid) == len(ph.Grid) {
+						return m
+					}
+				}
+				return nil
+			}
+			if s.mag = match(s.phase); s.mag == nil && len(mags) > 0 {
+				inv.problem("series %s: magnitude frames (%d time points, %s) do not match the phase frames (%d time points, %s); magnitude not used",
+					s.name(), len(mags[0].Grid), mags[0].Geometry, len(s.phase.Grid), s.phase.Geometry)
+			} else if s.mag != nil {
+				s.info.Role = RolePhaseMagnitude
+			}
+			for _, ph := range s.more {
+				s.moreMag = append(s.moreMag, match(ph))
 			}
 		}
 		return
 	case s.info.Modality == "MR" && len(mf) > 0 && len(other) == 0:
-		st := build(mf)
+		groups := splitOrientations(mf)
+		st := build(groups[0])
 		if st == nil {
 			s.info.Role = RoleOther
 			return
@@ -489,7 +530,18 @@ func (cr *caseReader) classify(s *series) {
 		if len(st.Grid) > 1 {
 			s.info.Role = RoleMagnitude
 			s.mag = st
+			for _, g := range groups[1:] {
+				if m := build(g); m != nil {
+					s.moreMag = append(s.moreMag, m)
+				}
+			}
 			return
+		}
+		if len(groups) > 1 {
+			if st = build(mf); st == nil { // anatomy: one grid or nothing
+				s.info.Role = RoleOther
+				return
+			}
 		}
 		s.info.Role = RoleAnatomy
 		s.image = st
@@ -567,10 +619,19 @@ func (cr *caseReader) chooseAnatomy() {
 func (cr *caseReader) buildSonications() {
 	inv := cr.inv
 	var mags, results []*series
+	stackTaken := map[*stack]bool{}
 	for _, s := range cr.series {
 		switch s.info.Role {
 		case RolePhase, RolePhaseMagnitude:
-			cr.units = append(cr.units, &unit{kind: "phase", phase: s, data: s.phase, mag: s.mag})
+			u := &unit{kind: "phase", phase: s, data: s.phase, mag: s.mag}
+			for n, st := range s.more {
+				us := unitStack{data: st, s: s}
+				if n < len(s.moreMag) {
+					us.mag = s.moreMag[n]
+				}
+				u.stacks = append(u.stacks, us)
+			}
+			cr.units = append(cr.units, u)
 		case RoleMagnitude:
 			mags = append(mags, s)
 		case RoleTemperatureMap:
@@ -595,43 +656,63 @@ func (cr *caseReader) buildSonications() {
 		}
 		cr.units = append(cr.units, &unit{kind: "dose", phase: s, data: s.image})
 	}
-	// Pair phase-only acquisitions with magnitude series: same grid, same
-	// number of time points, first frames within 1 s (when both have times).
-	for _, u := range cr.units {
-		if u.kind != "phase" || u.mag != nil {
-			continue
-		}
-		best, bestDT := -1, math.Inf(1)
-		for n, m := range mags {
-			if m.paired || !m.mag.Geometry.SameGrid(u.data.Geometry, posTol) || len(m.mag.Grid) != len(u.data.Grid) {
-				continue
-			}
-			dt := 0.0
-			if m.mag.HasTimes && u.data.HasTimes {
-				dt = math.Abs(m.mag.Times[0] - u.data.Times[0])
-				if dt > 1 {
+	// Pair phase-only stacks with the stacks of magnitude series: same
+	// grid, same number of time points, every frame within 1 s (when both
+	// have times).
+	pair := func(ph *stack) (*stack, *series) {
+		var best *stack
+		var bestS *series
+		bestDT := math.Inf(1)
+		for _, m := range mags {
+			for _, ms := range append([]*stack{m.mag}, m.moreMag...) {
+				if ms == nil || !ms.Geometry.SameGrid(ph.Geometry, posTol) || len(ms.Grid) != len(ph.Grid) {
 					continue
 				}
-				// Every frame time must agree.
-				ok := true
-				for t := range m.mag.Times {
-					if math.Abs(m.mag.Times[t]-u.data.Times[t]) > 1 {
-						ok = false
+				dt := 0.0
+				if ms.HasTimes && ph.HasTimes {
+					dt = math.Abs(ms.Times[0] - ph.Times[0])
+					ok := dt <= 1
+					for t := range ms.Times {
+						if math.Abs(ms.Times[t]-ph.Times[t]) > 1 {
+							ok = false
+						}
+					}
+					if !ok {
+						continue
 					}
 				}
-				if !ok {
-					continue
+				if dt < bestDT && !stackTaken[ms] {
+					best, bestS, bestDT = ms, m, dt
 				}
 			}
-			if dt < bestDT {
-				best, bestDT = n, dt
+		}
+		if best != nil {
+			stackTaken[best] = true
+		}
+		return best, bestS
+	}
+	for _, u := range cr.units {
+		if u.kind != "phase" {
+			continue
+		}
+		if u.mag == nil {
+			if ms, m := pair(u.data); ms != nil {
+				u.mag, u.magSeries = ms, m
+				m.paired = true
+				m.info.Note = "magnitude of phase series " + u.phase.name()
 			}
 		}
-		if best >= 0 {
-			mags[best].paired = true
-			u.mag = mags[best].mag
-			u.magSeries = mags[best]
-			mags[best].info.Note = "magnitude of phase series " + u.phase.name()
+		for n := range u.stacks {
+			if u.stacks[n].mag == nil {
+				if ms, m := pair(u.stacks[n].data); ms != nil {
+					u.stacks[n].mag = ms
+					m.paired = true
+					m.info.Note = "magnitude of phase series " + u.phase.name()
+					if u.magSeries == nil {
+						u.magSeries = m
+					}
+				}
+			}
 		}
 	}
 	for _, m := range mags {
@@ -640,6 +721,7 @@ func (cr *caseReader) buildSonications() {
 			m.info.Note = "no matching phase series"
 		}
 	}
+	cr.groupAcquiredTogether()
 	starts := make([]clockTime, len(cr.units))
 	for n, u := range cr.units {
 		if u.data.HasTimes {
@@ -666,6 +748,16 @@ func (cr *caseReader) buildSonications() {
 		}
 		if si.Label == "" {
 			si.Label = fmt.Sprintf("series %d", u.phase.info.Number)
+		}
+		si.Stacks = append(si.Stacks, stackInfo(u.data, u.phase))
+		for _, us := range u.stacks {
+			si.Stacks = append(si.Stacks, stackInfo(us.data, us.s))
+			if !slices.Contains(si.Series, us.s.info.UID) {
+				si.Series = append(si.Series, us.s.info.UID)
+			}
+		}
+		if len(si.Stacks) == 1 {
+			si.Stacks = nil // one stack: the sonication's own figures say it all
 		}
 		if u.magSeries != nil {
 			si.Series = append(si.Series, u.magSeries.info.UID)

@@ -107,6 +107,7 @@ type mrSpec struct {
 	Skip                      func(k, t int) bool                // frames not written
 	SlicePos                  func(k int) float64                // position along z; nil: k*SliceGap
 	RWV                       []*dicom.Element
+	First                     int // instance numbers (and file names) start after this
 }
 
 // write writes the series; file names are deliberately uninformative.
@@ -118,7 +119,7 @@ func (s mrSpec) write(t testing.TB) {
 	if len(s.Components) == 0 {
 		s.Components = []string{""}
 	}
-	n := 0
+	n := s.First
 	for tt := 0; tt < s.Times; tt++ {
 		for k := 0; k < s.Slices; k++ {
 			if s.Skip != nil && s.Skip(k, tt) {

@@ -133,6 +133,7 @@ type Session struct {
 	SimSpacing  float64 // bioheat grid spacing, mm
 	SimMaxStep  float64 // s; 0 means the stability limit
 	MarginMM    float64 // safety margin around the target used for the spill truth
+	Layout      Layout  // placement of the thermometry planes; LayoutSlab by default
 	Threshold   float64 // lethal dose, CEM43 minutes, used for the hole and spill truth
 }
 
@@ -195,10 +196,16 @@ func (s *Session) Validate() error {
 // simResult holds what the bioheat run produced.
 type simResult struct {
 	grid   dosemap.Geometry
-	frames [][][]float32 // [sonication][frame] temperature rise over base on the thermometry grid
-	peak   []float64     // hottest simulated voxel per sonication, °C
-	before []float64     // temperature at the focus when each sonication started, °C
-	dose   []float64     // cumulative CEM43 on the bioheat grid
+	frames [][][]float32   // [sonication][frame] temperature rise over base on the first stack's grid
+	stacks [][][][]float32 // [sonication][stack][frame] temperature rise on each stack's grid (StackGeometries)
+	peak   []float64       // hottest simulated voxel per sonication, °C
+	before []float64       // temperature at the focus when each sonication started, °C
+	dose   []float64       // cumulative CEM43 on the bioheat grid
+	// change is the CEM43 an ideal thermometry would measure at every
+	// bioheat voxel: each sonication's temperature change over its
+	// baseline frames, added to the base temperature, accumulated from its
+	// last baseline frame to its last imaged frame.
+	change []float64
 }
 
 // simulationGrid returns a bioheat grid covering every focal spot with room
@@ -243,16 +250,28 @@ func (s *Session) simulate() (*simResult, error) {
 	if err != nil {
 		return nil, err
 	}
-	tg := s.ThermometryGeometry()
-	res := &simResult{grid: g, dose: make([]float64, g.Len())}
+	res := &simResult{grid: g, dose: make([]float64, g.Len()), change: make([]float64, g.Len())}
+	baseline := make([]float64, g.Len())
 	q := make([]float64, g.Len())
-	sampler := newSlabSampler(g, tg)
+	samplers := map[string]*slabSampler{}
 	heatStart := (float64(p.BaselineFrames) - 0.5) * p.FrameInterval
 	maxStep := b.StableStep()
 	if s.SimMaxStep > 0 && s.SimMaxStep < maxStep {
 		maxStep = s.SimMaxStep
 	}
-	for _, so := range s.Sonications {
+	for n, so := range s.Sonications {
+		var ss []*slabSampler
+		for _, sg := range s.StackGeometries(n) {
+			key := fmt.Sprint(sg)
+			if samplers[key] == nil {
+				if len(samplers) > 8 {
+					clear(samplers) // planes that move: keep a few
+				}
+				samplers[key] = newSlabSampler(g, sg)
+			}
+			ss = append(ss, samplers[key])
+		}
+		stacks := make([][][]float32, len(ss))
 		for i := range q {
 			q[i] = 0
 		}
@@ -265,6 +284,7 @@ func (s *Session) simulate() (*simResult, error) {
 		peak := s.Phantom.BodyTemp
 		var frames [][]float32
 		heatEnd := heatStart + so.Duration
+		imaged := false // between the last baseline frame and the last frame
 		advance := func(to float64) {
 			d := to - t
 			if d <= 1e-9 {
@@ -279,6 +299,9 @@ func (s *Session) simulate() (*simResult, error) {
 			for range steps {
 				b.Step(dt, src)
 				accumulateDose(res.dose, b.T, dt)
+				if imaged {
+					accumulateChange(res.change, b.T, baseline, s.Phantom.BodyTemp, dt)
+				}
 			}
 			t = to
 		}
@@ -290,7 +313,16 @@ func (s *Session) simulate() (*simResult, error) {
 				}
 			}
 			advance(ft)
-			frames = append(frames, sampler.rise(b.T, s.Phantom.BodyTemp))
+			if f < p.BaselineFrames {
+				for i, v := range b.T {
+					baseline[i] = (baseline[i]*float64(f) + v) / float64(f+1)
+				}
+			}
+			imaged = f >= p.BaselineFrames-1 && f < p.Frames-1
+			for a, sp := range ss {
+				stacks[a] = append(stacks[a], sp.rise(b.T, s.Phantom.BodyTemp))
+			}
+			frames = stacks[0]
 			for _, v := range b.T {
 				if v > peak {
 					peak = v
@@ -300,6 +332,7 @@ func (s *Session) simulate() (*simResult, error) {
 		advance(math.Max(heatEnd, t)) // heating that outlasts the imaged frames
 		advance(t + so.Cooling)
 		res.frames = append(res.frames, frames)
+		res.stacks = append(res.stacks, stacks)
 		res.peak = append(res.peak, peak)
 	}
 	return res, nil
@@ -313,6 +346,23 @@ func (s *Session) simulate() (*simResult, error) {
 func accumulateDose(dose, T []float64, dt float64) {
 	m := dt / 60
 	for n, v := range T {
+		if v < 39 {
+			continue
+		}
+		if v >= 43 {
+			dose[n] += m * math.Exp2(v-43)
+		} else {
+			dose[n] += m * math.Exp2(-2*(43-v))
+		}
+	}
+}
+
+// accumulateChange adds the CEM43 of holding base + T − baseline for dt
+// seconds (as accumulateDose).
+func accumulateChange(dose, T, baseline []float64, base, dt float64) {
+	m := dt / 60
+	for n, v := range T {
+		v = base + v - baseline[n]
 		if v < 39 {
 			continue
 		}

@@ -55,6 +55,20 @@ type Truth struct {
 	Measured MeasuredTruth `json:"noiseless_thermometry"`
 
 	Files int `json:"files"`
+
+	// Dose is the cumulative CEM43 of the whole session on the bioheat
+	// grid (the continuous field the truth figures come from); not
+	// written to truth.json.
+	Dose *dosemap.Volume `json:"-"`
+	// ChangeDose is the CEM43 an ideal thermometry would measure at every
+	// point of the bioheat grid: each sonication's temperature change over
+	// its own baseline frames added to the base temperature (thermometry
+	// measures change only, so heat left from earlier sonications is not
+	// in it), accumulated over its imaged frames; not written to
+	// truth.json. ChangeCoveredFraction is the part of the target it
+	// covers.
+	ChangeDose            *dosemap.Volume `json:"-"`
+	ChangeCoveredFraction float64         `json:"change_only_covered_fraction,omitempty"` // sessions on their own planes only (LayoutSlab keeps its truth.json as before)
 }
 
 // MeasuredTruth holds dose figures on the thermometry grid; a voxel belongs
@@ -123,6 +137,9 @@ type TruthSonication struct {
 	Folder    string       `json:"folder"`
 	PeakTemp  float64      `json:"peak_temperature_c"`        // hottest bioheat voxel during the imaged frames
 	StartTemp float64      `json:"focus_start_temperature_c"` // residual heat at the focus when it began
+	// Stacks are the grids the sonication was measured on (one for a
+	// moving slab, one per plane otherwise); empty for one shared slab.
+	Stacks []dosemap.Geometry `json:"stacks,omitempty"`
 	// CoolingS is the unimaged time from the previous sonication's last
 	// frame to this one's first frame, s (0 for the first).
 	CoolingS float64 `json:"cooling_s"`
@@ -219,7 +236,24 @@ func (s *Session) truth(res *simResult, id ids) *Truth {
 			t.Holes = append(t.Holes, r)
 		}
 	}
-	t.Measured = s.measuredTruth(res)
+	if s.Layout == LayoutSlab {
+		t.Measured = s.measuredTruth(res)
+	}
+	t.Thermometry.SeriesLayout = s.Layout.seriesLayout()
+	t.Dose = &dosemap.Volume{Geometry: g, Data: make([]float32, g.Len())}
+	t.ChangeDose = &dosemap.Volume{Geometry: g, Data: make([]float32, g.Len())}
+	nChange := 0
+	for n, d := range res.dose {
+		t.Dose.Data[n] = float32(d)
+		t.ChangeDose.Data[n] = float32(res.change[n])
+		i, j, k := g.IJK(n)
+		if res.change[n] >= s.Threshold && lesion.Contains(g.Point(float64(i), float64(j), float64(k))) {
+			nChange++
+		}
+	}
+	if nTarget > 0 && s.Layout != LayoutSlab {
+		t.ChangeCoveredFraction = float64(nChange) / float64(nTarget)
+	}
 	return t
 }
 

@@ -343,29 +343,41 @@ func (s *Session) thermoMagnitude(p dosemap.Vec3) float64 {
 
 func (s *Session) writeThermometry(dir string, id ids, res *simResult, truth *Truth) error {
 	p := s.Thermometry
-	g := s.ThermometryGeometry()
 	ppd := p.PhasePerDegree()
 	sigma := 1000 / p.SNR
-	// Static per-voxel object properties, evaluated once per shift.
-	// The noiseless unheated signal m·e^{iφ_bg} of every voxel, as re, im.
-	type object struct{ re, im []float64 }
-	build := func(shift dosemap.Vec3) object {
-		o := object{re: make([]float64, g.Len()), im: make([]float64, g.Len())}
+	// Static per-voxel object properties, evaluated once per grid and
+	// shift: the noiseless unheated signal m·e^{iφ_bg} of every voxel, as
+	// re, im, and its distance along x from the phantom axis (drift
+	// gradient).
+	type object struct{ re, im, xoff []float64 }
+	build := func(g dosemap.Geometry, shift dosemap.Vec3) object {
+		o := object{re: make([]float64, g.Len()), im: make([]float64, g.Len()), xoff: make([]float64, g.Len())}
 		for n := range o.re {
 			i, j, k := g.IJK(n)
-			q := g.Point(float64(i), float64(j), float64(k)).Sub(shift)
+			pt := g.Point(float64(i), float64(j), float64(k))
+			q := pt.Sub(shift)
 			m, bg := s.thermoMagnitude(q), s.backgroundPhase(q)
 			o.re[n], o.im[n] = m*math.Cos(bg), m*math.Sin(bg)
+			o.xoff[n] = pt[0] - s.Phantom.Center[0]
 		}
 		return o
 	}
-	// Distance along x from the phantom axis of each voxel (drift gradient).
-	xoff := make([]float64, g.Len())
-	for n := range xoff {
-		i, j, k := g.IJK(n)
-		xoff[n] = g.Point(float64(i), float64(j), float64(k))[0] - s.Phantom.Center[0]
+	// Grids of every sonication's stacks and their still objects.
+	grids := make([][]dosemap.Geometry, len(s.Sonications))
+	stills := make([][]object, len(s.Sonications))
+	byGrid := map[string]object{}
+	for n := range s.Sonications {
+		grids[n] = s.StackGeometries(n)
+		for _, g := range grids[n] {
+			key := fmt.Sprint(g)
+			o, ok := byGrid[key]
+			if !ok {
+				o = build(g, dosemap.Vec3{})
+				byGrid[key] = o
+			}
+			stills[n] = append(stills[n], o)
+		}
 	}
-	still := build(dosemap.Vec3{})
 	type job struct{ son, frame int }
 	var jobs []job
 	for n := range s.Sonications {
@@ -376,66 +388,96 @@ func (s *Session) writeThermometry(dir string, id ids, res *simResult, truth *Tr
 		for f := 0; f < p.Frames; f++ {
 			jobs = append(jobs, job{n, f})
 		}
+		if s.Layout != LayoutSlab {
+			truth.Sonications[n].Stacks = grids[n]
+		}
 	}
 	errs := make([]error, len(jobs))
+	files := make([]int, len(jobs))
 	parallel(len(jobs), func(jn int) {
 		jb := jobs[jn]
 		n, f := jb.son, jb.frame
 		ts := truth.Sonications[n]
 		start := ts.Start
-		obj := still
 		var shift dosemap.Vec3
 		for _, m := range s.Motion {
 			if m.Sonication == n+1 && m.Frame == f+1 {
 				shift = m.Shift
 			}
 		}
-		rise := res.frames[n][f]
-		if shift != (dosemap.Vec3{}) {
-			obj = build(shift)
-			rise = shiftField(g, rise, shift)
-		}
 		t := float64(f) * p.FrameInterval
-		rng := s.rngFor(fmt.Sprintf("thermometry/%d/%d", n, f))
-		mag := make([]uint16, g.Len())
-		pha := make([]uint16, g.Len())
 		// Absolute time since the session start drives the drift.
 		tabs := ts.Offset + t
-		for v := range mag {
-			// Signal = unheated signal × e^{i(PRF shift + drift)} + noise.
-			dphi := ppd*float64(rise[v]) + (p.DriftRate+p.DriftGradient*xoff[v]/100)*tabs
-			c, sn := math.Cos(dphi), math.Sin(dphi)
-			re := obj.re[v]*c - obj.im[v]*sn + sigma*rng.NormFloat64()
-			im := obj.re[v]*sn + obj.im[v]*c + sigma*rng.NormFloat64()
-			mag[v] = clamp12u(math.Sqrt(re*re + im*im))
-			pha[v] = phaseStored(math.Atan2(im, re))
-		}
 		sub := filepath.Join(dir, fmt.Sprintf(sonicationFolder, n+1))
-		acq := start.Add(time.Duration(t * float64(time.Second)))
-		for k := 0; k < g.Slices; k++ {
-			for c, comp := range []struct {
-				name, code string
-				px         []uint16
-			}{{"MAGNITUDE", "M", mag}, {"PHASE", "P", pha}} {
-				inst := (f*g.Slices+k)*2 + c + 1
-				im := &mrImage{seriesUID: ts.SeriesUID, instanceUID: id.instance(ts.SeriesUID, inst),
-					seriesNumber: 100 + n + 1, instance: inst,
-					description: fmt.Sprintf("Thermometry sonication %d", n+1),
-					imageType:   []string{"ORIGINAL", "PRIMARY", comp.code}, complex: comp.name,
-					geom: g, slice: k, acquired: acq.Add(time.Duration(k) * 20 * time.Millisecond), seriesStart: start,
-					acquisition: f + 1, temporal: f + 1, temporalPositions: p.Frames, signed: comp.code == "P",
-					pixels: comp.px[k*g.SliceLen() : (k+1)*g.SliceLen()],
-					te:     p.TE, tr: p.TR, flip: p.FlipAngle, b0: p.B0, thickness: p.SliceThickness}
-				if comp.code == "M" {
-					im.center, im.width = 900, 1800
-				}
-				data, err := s.encodeMR(id, im)
-				if err == nil {
-					err = writeFileAtomic(filepath.Join(sub, fmt.Sprintf("IM%05d.dcm", inst)), data)
-				}
-				if err != nil {
-					errs[jn] = err
-					return
+		ns := len(grids[n])
+		for st, g := range grids[n] {
+			obj := stills[n][st]
+			rise := res.stacks[n][st][f]
+			if shift != (dosemap.Vec3{}) {
+				obj = build(g, shift)
+				rise = shiftField(g, rise, shift)
+			}
+			label := fmt.Sprintf("thermometry/%d/%d", n, f)
+			if st > 0 {
+				label = fmt.Sprintf("thermometry/%d/%d/stack%d", n, f, st)
+			}
+			rng := s.rngFor(label)
+			mag := make([]uint16, g.Len())
+			pha := make([]uint16, g.Len())
+			for v := range mag {
+				// Signal = unheated signal × e^{i(PRF shift + drift)} + noise.
+				dphi := ppd*float64(rise[v]) + (p.DriftRate+p.DriftGradient*obj.xoff[v]/100)*tabs
+				c, sn := math.Cos(dphi), math.Sin(dphi)
+				re := obj.re[v]*c - obj.im[v]*sn + sigma*rng.NormFloat64()
+				im := obj.re[v]*sn + obj.im[v]*c + sigma*rng.NormFloat64()
+				mag[v] = clamp12u(math.Sqrt(re*re + im*im))
+				pha[v] = phaseStored(math.Atan2(im, re))
+			}
+			// The planes of one frame are acquired one after the other.
+			acq := start.Add(time.Duration((t + float64(st)*p.FrameInterval/float64(ns+1)) * float64(time.Second)))
+			for k := 0; k < g.Slices; k++ {
+				for c, comp := range []struct {
+					name, code string
+					px         []uint16
+				}{{"MAGNITUDE", "M", mag}, {"PHASE", "P", pha}} {
+					series, number, desc := ts.SeriesUID, 100+n+1, fmt.Sprintf("Thermometry sonication %d", n+1)
+					inst := (f*g.Slices+k)*2 + c + 1
+					switch s.Layout {
+					case LayoutTwoPlanes: // one phase and one magnitude series, both planes in each
+						inst = (f*ns+st)*g.Slices + k + 1
+						if comp.code == "M" {
+							series, number, desc = UID(ts.SeriesUID+"/magnitude"), 300+n+1, desc+" magnitude"
+						}
+					case LayoutTwoPlaneSeries: // one series per plane
+						if st > 0 {
+							series, number = UID(ts.SeriesUID+"/plane2"), 300+n+1
+						}
+						desc += " " + orientationWord(g)
+					}
+					im := &mrImage{seriesUID: series, instanceUID: id.instance(series, inst),
+						seriesNumber: number, instance: inst,
+						description: desc,
+						imageType:   []string{"ORIGINAL", "PRIMARY", comp.code}, complex: comp.name,
+						geom: g, slice: k, acquired: acq.Add(time.Duration(k) * 20 * time.Millisecond), seriesStart: start,
+						acquisition: f + 1, temporal: f + 1, temporalPositions: p.Frames, signed: comp.code == "P",
+						pixels: comp.px[k*g.SliceLen() : (k+1)*g.SliceLen()],
+						te:     p.TE, tr: p.TR, flip: p.FlipAngle, b0: p.B0, thickness: p.SliceThickness}
+					if comp.code == "M" {
+						im.center, im.width = 900, 1800
+					}
+					data, err := s.encodeMR(id, im)
+					if err == nil {
+						name := fmt.Sprintf("IM%05d.dcm", inst)
+						if ns > 1 {
+							name = fmt.Sprintf("IM%d_%05d.dcm", st+1, (f*g.Slices+k)*2+c+1)
+						}
+						err = writeFileAtomic(filepath.Join(sub, name), data)
+					}
+					if err != nil {
+						errs[jn] = err
+						return
+					}
+					files[jn]++
 				}
 			}
 		}
@@ -445,8 +487,24 @@ func (s *Session) writeThermometry(dir string, id ids, res *simResult, truth *Tr
 			return fmt.Errorf("writing thermometry of %s: %w", s.Label, err)
 		}
 	}
-	truth.Files += len(jobs) * g.Slices * 2
+	for _, k := range files {
+		truth.Files += k
+	}
 	return nil
+}
+
+// orientationWord names the orientation of g's slices.
+func orientationWord(g dosemap.Geometry) string {
+	n := g.Normal
+	switch {
+	case math.Abs(n[2]) > 0.999:
+		return "axial"
+	case math.Abs(n[1]) > 0.999:
+		return "coronal"
+	case math.Abs(n[0]) > 0.999:
+		return "sagittal"
+	}
+	return "oblique"
 }
 
 // shiftField moves a field on g by shift mm (nearest voxel in plane, the

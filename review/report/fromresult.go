@@ -81,7 +81,7 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 	}
 	f := Facts{
 		Model: r.Model, DoseUnit: unit, Threshold: r.Threshold, MarginMM: r.MarginMM, TargetName: r.Target,
-		TargetVolumeML: r.TargetVolumeML, Covered: r.CoveredFraction,
+		TargetVolumeML: r.TargetVolumeML, Covered: measurable(r.CoveredFraction, r.MonitoredVolumeML),
 		CoveredLow: val(r.CoveredFractionP05), CoveredHigh: val(r.CoveredFractionP95),
 		CoveredOfTarget: r.CoveredFractionOfTarget, NotMonitored: r.NotMonitoredFraction,
 		LethalML: r.LethalVolumeML, OutsideMarginML: r.OutsideMarginLethalML,
@@ -564,4 +564,13 @@ func planeCaption(p view.Plane, q dosemap.Vec3) string {
 		}
 	}
 	return fmt.Sprintf("oblique through (%.1f, %.1f, %.1f) mm", q[0], q[1], q[2])
+}
+
+// measurable returns f, or NaN ("n/a") when nothing of the target is
+// monitored (monitored mL 0): a coverage of nothing is not 0 %.
+func measurable(f, monitoredML float64) float64 {
+	if monitoredML > 0 {
+		return f
+	}
+	return math.NaN()
 }
