@@ -34,6 +34,7 @@ type Header struct {
 // HeaderFrame is one image frame of a Header.
 type HeaderFrame struct {
 	TemporalPos int     // TemporalPositionIdentifier / Index; 0 none
+	Component   string  // "P" phase, "M" magnitude, "R", "I" or "" (from ImageType, FrameType, ComplexImageComponent)
 	Position    [3]int  // ImagePositionPatient in hundredths of a mm (the slice it belongs to)
 	Time        float64 // frame time, seconds (since 1970-01-01, or of the day when undated); NaN unknown
 }
@@ -52,7 +53,7 @@ func ReadHeader(path string) (*Header, error) {
 	if fi.IsImage {
 		h.Frames = make([]HeaderFrame, len(fi.Frames))
 		for n, f := range fi.Frames {
-			hf := HeaderFrame{TemporalPos: f.TemporalPos, Time: math.NaN()}
+			hf := HeaderFrame{TemporalPos: f.TemporalPos, Component: f.Component, Time: math.NaN()}
 			for a := 0; a < 3; a++ {
 				if v := f.IPP[a]; v == v {
 					hf.Position[a] = int(math.Round(v * 100))

@@ -137,6 +137,7 @@ type seriesState struct {
 	files    map[string]string          // SOPInstanceUID -> path
 	frames   map[frameKey]bool          // time point and slice of each frame present
 	slices   map[[3]int]bool            // slice positions seen
+	comps    map[string]bool            // image components seen (phase, magnitude...)
 	lastNew  time.Time                  // last new frame
 	first    float64                    // first frame time (when hasTime)
 	hasTime  bool                       //
@@ -145,8 +146,9 @@ type seriesState struct {
 }
 
 type frameKey struct {
-	t   int
-	pos [3]int
+	t    int
+	pos  [3]int
+	comp string // phase and magnitude frames of one series count apart
 }
 
 // follower is the state of one Run.
@@ -434,7 +436,7 @@ func (f *follower) read(p string, fs *fileState, now time.Time) {
 	}
 	s := f.series[h.Series]
 	if s == nil {
-		s = &seriesState{uid: h.Series, files: map[string]string{}, frames: map[frameKey]bool{}, slices: map[[3]int]bool{}, hdrs: map[string]*dicomio.Header{}}
+		s = &seriesState{uid: h.Series, files: map[string]string{}, frames: map[frameKey]bool{}, slices: map[[3]int]bool{}, comps: map[string]bool{}, hdrs: map[string]*dicomio.Header{}}
 		f.series[h.Series] = s
 	}
 	if s.consumed {
@@ -447,12 +449,13 @@ func (f *follower) read(p string, fs *fileState, now time.Time) {
 	s.files[h.Instance] = p
 	s.hdrs[p] = h
 	for _, fr := range h.Frames {
-		k := frameKey{fr.TemporalPos, fr.Position}
+		k := frameKey{fr.TemporalPos, fr.Position, fr.Component}
 		if !s.frames[k] {
 			s.frames[k] = true
 			s.lastNew = now
 		}
 		s.slices[fr.Position] = true
+		s.comps[fr.Component] = true
 	}
 	if h.HasTime && (!s.hasTime || h.FirstTime < s.first) {
 		s.first, s.hasTime = h.FirstTime, true
@@ -473,7 +476,7 @@ func (f *follower) complete(s *seriesState, now time.Time) bool {
 			return quiet // time points outside the declared range
 		}
 	}
-	return len(s.frames) >= s.declared*len(s.slices) // every (time point, slice) pair present
+	return len(s.frames) >= s.declared*len(s.slices)*len(s.comps) // every (time point, slice, component) present
 }
 
 // analyse loads the complete series not yet analysed and analyses the
@@ -563,7 +566,11 @@ func (f *follower) analyse(ctx context.Context, now time.Time) error {
 	}
 	if inv != nil {
 		for _, pr := range inv.Problems {
-			f.notice(pr)
+			// A batch of sonications alone lacks the anatomy and the
+			// structure set by design.
+			if !strings.HasPrefix(pr, "no anatomy") && !strings.HasPrefix(pr, "no RTSTRUCT") {
+				f.notice(pr)
+			}
 		}
 	}
 	var added []int
@@ -641,7 +648,7 @@ func (f *follower) finalNotices() {
 	var open []string
 	for _, s := range f.series {
 		if !s.consumed && len(s.frames) > len(s.slices) { // several time points: thermometry
-			open = append(open, fmt.Sprintf("%s (%d of %d frames)", s.uid, len(s.frames), s.declared*len(s.slices)))
+			open = append(open, fmt.Sprintf("%s (%d of %d frames)", s.uid, len(s.frames), s.declared*len(s.slices)*len(s.comps)))
 		}
 	}
 	sort.Strings(open)
