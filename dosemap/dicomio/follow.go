@@ -73,6 +73,8 @@ func ReadHeader(path string) (*Header, error) {
 
 // LoadFiles is Load restricted to the files paths under dir (a folder
 // still being filled, whose other files are incomplete or read already).
+// The paths are named as dir is (both absolute, or both relative to the
+// working directory).
 // The Inventory counts and lists these files only.
 func LoadFiles(ctx context.Context, dir string, paths []string, opt LoadOptions, progress func(done, total int)) (*dosemap.Case, *Inventory, error) {
 	if err := safefile.CheckDir("case folder", dir); err != nil {
@@ -80,9 +82,6 @@ func LoadFiles(ctx context.Context, dir string, paths []string, opt LoadOptions,
 	}
 	ps := make([]string, 0, len(paths))
 	for _, p := range paths {
-		if !filepath.IsAbs(p) {
-			p = filepath.Join(dir, p)
-		}
 		if r, err := filepath.Rel(dir, p); err != nil || !filepath.IsLocal(r) {
 			return nil, nil, fmt.Errorf("%s is not inside the case folder %s", p, dir)
 		}

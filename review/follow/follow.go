@@ -22,8 +22,9 @@
 // (NumberOfTemporalPositions, 0020,0105) holds a frame at every slice
 // position the series has shown; a series that declares none is complete
 // after Options.Quiet without a new frame. Complete series are analysed
-// together, except while a series still arriving started within 2 s of one
-// of them (the magnitude of a phase series, or its phase).
+// together, except while a series still arriving that declares as many
+// time points started within 2 s of one of them (the magnitude of a phase
+// series, or its phase).
 //
 // # Incremental analysis
 //
@@ -64,7 +65,8 @@ type Options struct {
 	// first file read (files of other studies are named and not used).
 	Study string
 	// Structures, when not nil, is applied to the first case loaded
-	// (contour file, choice of the target) before it is prepared.
+	// (contour file, choice of the target) before it is prepared; without
+	// it the analysis waits for a structure set to arrive.
 	Structures func(*dosemap.Case) error
 	// Quiet is how long a series that declares no temporal positions must
 	// go without a new frame to count as complete (default 10 s).
@@ -164,12 +166,12 @@ type follower struct {
 	otherSt   map[string]bool // other studies named
 	ses       *review.Session
 	nums      []int
-	lastTry   int // accepted-file count of the last failed first preparation
-	accepted  int
+	lastTry   int // complete series and structure sets at the last failed first preparation
 	activity  time.Time
 	lastStart float64
 	lateRT    bool // a structure set arrived after the preparation (named)
 	ending    bool // following ends: no more frames will come
+	waitNamed bool // the wait for a structure set has been named
 }
 
 // Run follows the session in dir until ctx ends (Ctrl-C: a clean end, nil
@@ -422,7 +424,6 @@ func (f *follower) read(p string, fs *fileState, now time.Time) {
 		}
 		return
 	}
-	f.accepted++
 	if h.StructureSet {
 		f.structs[p] = true
 		if f.ses != nil && !f.lateRT {
@@ -503,7 +504,7 @@ func (f *follower) analyse(ctx context.Context, now time.Time) error {
 			break
 		}
 		for _, r := range ready {
-			if w.hasTime && r.hasTime && w.first-r.first < 2 && r.first-w.first < 2 {
+			if w.declared == r.declared && w.hasTime && r.hasTime && w.first-r.first < 2 && r.first-w.first < 2 {
 				return nil
 			}
 		}
@@ -516,9 +517,18 @@ func (f *follower) analyse(ctx context.Context, now time.Time) error {
 		}
 	}
 	if f.ses == nil {
-		if f.accepted == f.lastTry {
+		if len(f.structs) == 0 && f.opt.Structures == nil {
+			if !f.waitNamed {
+				f.waitNamed = true
+				f.notice(fmt.Sprintf("%d series complete; waiting for a structure set", len(ready)))
+			}
+			return nil
+		}
+		try := len(ready)*1_000_000 + len(f.structs)
+		if try == f.lastTry {
 			return nil // nothing new since the last attempt
 		}
+		f.lastTry = try
 		for p := range f.structs {
 			paths = append(paths, p)
 		}
@@ -529,7 +539,6 @@ func (f *follower) analyse(ctx context.Context, now time.Time) error {
 		return err
 	}
 	if f.ses == nil {
-		f.lastTry = f.accepted
 		if len(c.Sonications) == 0 {
 			return nil // anatomy only so far
 		}
@@ -540,7 +549,10 @@ func (f *follower) analyse(ctx context.Context, now time.Time) error {
 			}
 		}
 		if c.Target() == nil {
-			f.notice(fmt.Sprintf("%d sonication(s) complete; waiting for a structure set with a target", len(c.Sonications)))
+			if !f.waitNamed {
+				f.waitNamed = true
+				f.notice(fmt.Sprintf("%d sonication(s) complete; waiting for a structure set with a target", len(c.Sonications)))
+			}
 			return nil
 		}
 		ses, err := review.Prepare(ctx, c, f.opt.Settings, nil)
