@@ -1,5 +1,3 @@
-//go:build cgo
-
 package main
 
 import "dosecover/dosemap"

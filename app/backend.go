@@ -7,6 +7,7 @@ import (
 	"time"
 
 	"dosecover/dosemap"
+	"dosecover/review"
 )
 
 // The review window talks to the reader, the analysis and the plane
@@ -86,70 +87,36 @@ type sonicationRow struct {
 	Flagged       bool      // a flag (not only notes) was raised
 }
 
-// analysisResult is what the review window displays from one analysis run.
+// analysisResult is an analysis as the review window shows it: the result
+// of package review itself (its figures, masks and JSON for exports) and
+// what the window draws from it for its tables and views.
 type analysisResult struct {
-	Threshold float64 // lethal threshold used, in Unit
-	Unit      string  // "CEM43 min" or the model's unit
-	Model     string  // model name as shown
-	MarginMM  float64
-
-	TargetName     string
-	TargetML       float64
-	Covered        float64 // fraction of the target at or above the threshold
-	CoveredWhole   float64 // covered fraction of the whole target (unmonitored counts as not covered)
-	CoveredP05     float64 // NaN when no uncertainty run
-	Trials         int     // noise trials behind the band
-	CoveredP95     float64
-	NotMonitored   float64 // fraction of the target without valid thermometry
-	D98, D50, D2   float64 // dose received by at least 98/50/2 % of the target
-	LethalOutside  float64 // mL lethal outside the margin
-	Holes          []region
-	Outside        []region
-	Avoid          []avoidDose
-	DVH            []xy // dose (unit) -> fraction of target receiving at least that dose
-	CoverageVsThr  []xy // threshold (unit) -> covered fraction
-	Sonications    []sonicationRow
-	Raw            any // the analysis package's own result, for exports
-	QualityNotes   []string
-	Dose           *dosemap.Volume   // cumulative dose of the included sonications
+	*review.Result
+	Unit           string            // dose unit as shown: "CEM43 min" or "Ω"
+	HoleRows       []region          // the holes, as the hole table lists them
+	SpillRows      []region          // the lethal clusters outside the margin, as listed
+	AvoidRows      []avoidDose       // lethal dose in each avoid structure
+	DVHPoints      []xy              // dose (unit) -> fraction of target receiving at least that dose
+	CoveragePoints []xy              // threshold (unit) -> covered fraction
+	SonRows        []sonicationRow   // the sonication table
 	PeakTemp       *dosemap.Volume   // highest temperature of the included sonications, °C (nil unknown)
 	SonicationDose []*dosemap.Volume // dose of each sonication (index = row), may hold nil
-	// Masks for display, each on its own grid: a voxel belongs to the
-	// region when its value is 0.5 or more (labels count from 1). nil: none.
-	Target, Margin  *dosemap.Volume
-	Holes3D         *dosemap.Volume
-	Outside3D       *dosemap.Volume
-	Avoid3D         *dosemap.Volume
-	NotMonitored3D  *dosemap.Volume      // target voxels without valid thermometry
-	TargetStructure *dosemap.Structure   // planned target contours (nil: none)
-	AvoidStructures []*dosemap.Structure // planned avoid contours
-}
-
-// probeCurve is the temperature history of one point over the whole session.
-type probeCurve struct {
-	Times       []float64 // seconds from the first sonication's start
-	Temp        []float64 // °C at the voxel (NaN where invalid)
-	Mean        []float64 // °C, 3×3 in-plane mean around the voxel
-	Dose        []float64 // cumulative dose at the voxel, model unit
-	Boundaries  []float64 // start time of each sonication
-	LethalAt    float64   // time the cumulative dose reached the threshold; NaN never
-	FinalDose   float64
-	Unit        string
-	Threshold   float64
-	Description string       // the voxel and what was sampled
-	Voxel       dosemap.Vec3 // centre of the thermometry voxel sampled, mm
+	NotMonitored3D *dosemap.Volume   // target voxels without valid thermometry (Result.NotMonitored)
+	// Planned contours (nil: none).
+	TargetStructure *dosemap.Structure
+	AvoidStructures []*dosemap.Structure
 }
 
 // session is a case prepared for fast re-analysis: thermometry and dose of
 // every sonication are computed once; Analyze only recombines them.
 type session interface {
-	Analyze(ctx context.Context, s analysisSettings) (*analysisResult, error)
+	Analyze(ctx context.Context, s review.Settings) (*analysisResult, error)
 	// Probe returns the temperature history at patient position p.
-	Probe(p dosemap.Vec3, s analysisSettings) (*probeCurve, error)
+	Probe(p dosemap.Vec3, s review.Settings) (*review.Probe, error)
 	// PeakTemperature returns the highest temperature of every voxel over
 	// the included sonications (°C, NaN where never valid), on the
 	// thermometry grid; nil when the case has no temperatures.
-	PeakTemperature(s analysisSettings) (*dosemap.Volume, error)
+	PeakTemperature(s review.Settings) (*dosemap.Volume, error)
 }
 
 // Hooks filled by the backend files.
@@ -157,7 +124,7 @@ var (
 	// readCase loads a case folder.
 	readCase func(ctx context.Context, dir string, opt loadOptions, progress func(done, total int)) (*loadedCase, error)
 	// prepareCase computes thermometry and per-sonication dose.
-	prepareCase func(ctx context.Context, c *loadedCase, s analysisSettings, progress func(stage string, frac float64)) (session, error)
+	prepareCase func(ctx context.Context, c *loadedCase, s review.Settings, progress func(stage string, frac float64)) (session, error)
 	// demoCaseDir returns the folder of the built-in demo case, writing it first when needed.
 	demoCaseDir func() (string, error)
 )

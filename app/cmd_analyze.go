@@ -1,5 +1,3 @@
-//go:build cgo
-
 package main
 
 import (
@@ -51,23 +49,23 @@ func runAnalyze(args []string, stdout, stderr io.Writer) int {
 	if len(pos) != 1 {
 		fmt.Fprintf(stderr, "dosecover analyze: one case folder expected, got %d arguments\n", len(pos))
 		fs.Usage()
-		return 2
+		return exitUsage
 	}
 	dir := pos[0]
 	set, err := af.settings()
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover analyze: %v\n", err)
-		return 2
+		return settingsExitCode(err)
 	}
 	if err := safefile.CheckDir("case folder", dir); err != nil {
 		fmt.Fprintf(stderr, "dosecover analyze: %v\n", err)
-		return 1
+		return exitFailure
 	}
 	if *jsonPath != "" && *jsonPath != "-" {
 		// Refuse before any work.
 		if err := review.WriteOutside(*jsonPath, dir, nil); err != nil {
 			fmt.Fprintf(stderr, "dosecover analyze: cannot write %s: %v\n", *jsonPath, err)
-			return 1
+			return exitFailure
 		}
 	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
@@ -77,10 +75,10 @@ func runAnalyze(args []string, stdout, stderr io.Writer) int {
 		return code
 	}
 	if *deidentify {
-		sum, err := report.HashFolder(dir)
+		sum, _, err := review.HashInputs(ctx, dir)
 		if err != nil {
 			fmt.Fprintf(stderr, "dosecover analyze: %v\n", err)
-			return 1
+			return exitFailure
 		}
 		res = report.DeidentifyResult(c, res, report.DeidentifiedLabel(c.Label, sum))
 	}
@@ -88,19 +86,19 @@ func runAnalyze(args []string, stdout, stderr io.Writer) int {
 	case "-":
 		if err := res.WriteJSON(stdout); err != nil {
 			fmt.Fprintf(stderr, "dosecover analyze: writing JSON: %v\n", err)
-			return 1
+			return exitFailure
 		}
-		return 0
+		return exitOK
 	case "":
 	default:
 		if err := review.WriteOutside(*jsonPath, dir, res.WriteJSON); err != nil {
 			fmt.Fprintf(stderr, "dosecover analyze: writing %s: %v\n", *jsonPath, err)
-			return 1
+			return exitFailure
 		}
 	}
 	if err := res.WriteText(stdout); err != nil {
 		fmt.Fprintf(stderr, "dosecover analyze: %v\n", err)
-		return 1
+		return exitFailure
 	}
-	return 0
+	return exitOK
 }

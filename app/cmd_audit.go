@@ -1,10 +1,7 @@
-//go:build cgo
-
 package main
 
 import (
 	"context"
-	"encoding/json"
 	"errors"
 	"flag"
 	"fmt"
@@ -13,6 +10,7 @@ import (
 	"os/signal"
 	"syscall"
 
+	"dosecover/review"
 	"dosecover/review/audit"
 )
 
@@ -24,24 +22,19 @@ func init() {
 	})
 }
 
-// auditAnalysis builds the per-case analysis of an audit from the settings
-// file (empty: the default settings). It returns the analysis, the settings
-// as JSON (stored with every result and hashed for --resume) and the
-// settings columns of the summary table.
-var auditAnalysis = func(settingsFile string) (audit.Analyzer, []byte, []audit.Column, error) {
-	s, err := audit.LoadSettings(settingsFile)
-	if err != nil {
+// auditAnalysis builds the per-case analysis of an audit with settings s.
+// It returns the analysis, the settings as JSON (stored with every result;
+// their hash, over every setting, decides --resume and the shard check)
+// and the settings columns of the summary table.
+var auditAnalysis = func(s review.Settings) (audit.Analyzer, []byte, []audit.Column, error) {
+	if err := audit.CheckSettings(s); err != nil {
 		return nil, nil, nil, err
 	}
-	js, err := json.Marshal(s)
-	if err != nil {
-		return nil, nil, nil, err
-	}
-	return audit.NewAnalyzer(s, audit.ReportArtifacts), js, audit.SettingsColumns(s), nil
+	return audit.NewAnalyzer(s, audit.ReportArtifacts), s.JSON(), audit.SettingsColumns(s), nil
 }
 
 func auditUsage(w io.Writer, fs *flag.FlagSet) {
-	fmt.Fprintln(w, "usage: dosecover audit DIR... -o OUT_DIR [--settings FILE] [--workers N] [--resume] [--shard I/N] [--deidentify]")
+	fmt.Fprintln(w, "usage: dosecover audit DIR... -o OUT_DIR [--settings FILE] [analysis options] [--workers N] [--resume] [--shard I/N] [--deidentify]")
 	fmt.Fprintln(w, "       dosecover audit merge OUT_DIR   (joins the finished shards; see dosecover audit merge -h)")
 	fmt.Fprintln(w)
 	fmt.Fprintln(w, "Analyses every case below the folders DIR with the same settings and writes, into")
@@ -71,52 +64,57 @@ func runAudit(args []string, stdout, stderr io.Writer) int {
 	fs := flag.NewFlagSet("audit", flag.ContinueOnError)
 	fs.SetOutput(io.Discard)
 	var cfg audit.Config
-	var settingsFile, shard string
+	var shard string
 	fs.StringVar(&cfg.OutDir, "o", "", "output folder `OUT_DIR` (created when missing)")
 	fs.StringVar(&cfg.OutDir, "out", "", "same as -o")
-	fs.StringVar(&settingsFile, "settings", "", "analysis settings as a JSON `FILE` (see README); default settings when not given")
+	af := addAnalysisFlags(fs)
 	fs.IntVar(&cfg.Workers, "workers", 0, "cases analysed at once, and held in memory at once (0: one per CPU core)")
 	fs.BoolVar(&cfg.Resume, "resume", false, "skip cases already analysed in OUT_DIR with the same inputs and settings")
 	fs.StringVar(&shard, "shard", "", "analyse only shard `I/N` of the cases (1 <= I <= N; split by a hash of the case path)")
 	fs.BoolVar(&cfg.Deidentify, "deidentify", false, "name cases by a pseudonym and leave patient identity and source paths out of every output")
 
-	inputs, err := parseInterspersed(fs, args)
+	inputs, err := parseArgs(fs, args)
 	if errors.Is(err, flag.ErrHelp) {
 		auditUsage(stdout, fs)
-		return 0
+		return exitOK
 	}
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover audit: %v\n\n", err)
 		auditUsage(stderr, fs)
-		return 2
+		return exitUsage
 	}
 	if len(inputs) == 0 {
 		fmt.Fprintln(stderr, "dosecover audit: no case folder given")
 		auditUsage(stderr, fs)
-		return 2
+		return exitUsage
 	}
 	if cfg.OutDir == "" {
 		fmt.Fprintln(stderr, "dosecover audit: no output folder given (-o OUT_DIR)")
 		auditUsage(stderr, fs)
-		return 2
+		return exitUsage
 	}
 	if shard != "" {
 		if cfg.Shard, err = audit.ParseShard(shard); err != nil {
 			fmt.Fprintf(stderr, "dosecover audit: %v\n", err)
-			return 2
+			return exitUsage
 		}
 	}
 	if cfg.Workers < 0 {
 		fmt.Fprintf(stderr, "dosecover audit: --workers %d: want 0 (one per core) or more\n", cfg.Workers)
-		return 2
+		return exitUsage
 	}
 	cfg.Inputs = inputs
-	cfg.Analyzer, cfg.Settings, cfg.SettingsColumns, err = auditAnalysis(settingsFile)
+	set, err := af.settings()
+	if err != nil {
+		fmt.Fprintf(stderr, "dosecover audit: %v\n", err)
+		return settingsExitCode(err)
+	}
+	cfg.Analyzer, cfg.Settings, cfg.SettingsColumns, err = auditAnalysis(set)
 	if err != nil {
 		// A settings file that cannot be read or used is a failed input,
 		// like a case folder that cannot be read: exit 1.
 		fmt.Fprintf(stderr, "dosecover audit: %v\n", err)
-		return 1
+		return exitFailure
 	}
 	terminal := false
 	if f, ok := stderr.(*os.File); ok {
@@ -148,39 +146,17 @@ func runAudit(args []string, stdout, stderr io.Writer) int {
 	switch {
 	case errors.As(err, &ue):
 		fmt.Fprintf(stderr, "dosecover audit: %v\n", err)
-		return 2
+		return exitUsage
 	case sum != nil && sum.Interrupted:
 		fmt.Fprintf(stderr, "\ndosecover audit: interrupted after %d cases; every finished case is saved in %s.\n"+
 			"Run the same command with --resume to continue where it stopped.\n", len(sum.Rows), cfg.OutDir)
-		return 1
+		return exitFailure
 	case err != nil:
 		fmt.Fprintf(stderr, "dosecover audit: %v\n", err)
-		return 1
+		return exitFailure
 	}
 	for _, p := range sum.Problems {
 		fmt.Fprintf(stderr, "dosecover audit: skipped folder: %s\n", p)
 	}
 	return printAuditSummary(stdout, sum)
-}
-
-// parseInterspersed parses args with fs, allowing options after and
-// between the positional arguments ("DIR... -o OUT"); "--" ends the
-// options. It returns the positional arguments.
-func parseInterspersed(fs *flag.FlagSet, args []string) ([]string, error) {
-	var pos []string
-	for {
-		if err := fs.Parse(args); err != nil {
-			return nil, err
-		}
-		rest := fs.Args()
-		if len(rest) == 0 {
-			return pos, nil
-		}
-		// fs.Parse stops at the first positional argument or after "--".
-		if len(args) > len(rest) && args[len(args)-len(rest)-1] == "--" {
-			return append(pos, rest...), nil
-		}
-		pos = append(pos, rest[0])
-		args = rest[1:]
-	}
 }

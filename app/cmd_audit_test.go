@@ -13,6 +13,7 @@ import (
 	"strings"
 	"testing"
 
+	"dosecover/review"
 	"dosecover/review/audit"
 )
 
@@ -37,15 +38,8 @@ func fakeAuditCase(t *testing.T, dir string, extra ...string) {
 func withFakeAuditAnalysis(t *testing.T) {
 	old := auditAnalysis
 	t.Cleanup(func() { auditAnalysis = old })
-	auditAnalysis = func(settingsFile string) (audit.Analyzer, []byte, []audit.Column, error) {
-		settings := []byte(`{}`)
-		if settingsFile != "" {
-			b, err := os.ReadFile(settingsFile)
-			if err != nil {
-				return nil, nil, nil, err
-			}
-			settings = b
-		}
+	auditAnalysis = func(s review.Settings) (audit.Analyzer, []byte, []audit.Column, error) {
+		settings := s.JSON()
 		return func(ctx context.Context, c *audit.Case) (*audit.CaseResult, error) {
 			for _, f := range c.Files {
 				if f == "FAIL" {
@@ -110,7 +104,7 @@ func TestAuditExitCodes(t *testing.T) {
 	}
 }
 
-func TestParseInterspersed(t *testing.T) {
+func TestParseArgs(t *testing.T) {
 	for _, c := range []struct {
 		args []string
 		pos  []string
@@ -123,7 +117,7 @@ func TestParseInterspersed(t *testing.T) {
 	} {
 		fs := flag.NewFlagSet("t", flag.ContinueOnError)
 		out := fs.String("o", "", "")
-		pos, err := parseInterspersed(fs, c.args)
+		pos, err := parseArgs(fs, c.args)
 		if err != nil || !reflect.DeepEqual(pos, c.pos) || *out != c.out {
 			t.Errorf("%v: %v %q %v; want %v %q", c.args, pos, *out, err, c.pos, c.out)
 		}
@@ -155,8 +149,9 @@ func TestAuditShardsShareOutput(t *testing.T) {
 		t.Fatalf("after both shards: %d case records, %v; want 6", len(rows), err)
 	}
 	b, err := os.ReadFile(filepath.Join(out, "settings.json"))
-	if err != nil || string(b) != `{"margin_mm":3,"threshold":240}`+"\n" {
-		t.Errorf("settings.json %q, %v; want the settings of both shards", b, err)
+	want, _ := review.LoadSettings(s240)
+	if got, rerr := review.ReadSettings(bytes.NewReader(b), "settings.json", review.Settings{}); err != nil || rerr != nil || !got.Equal(want) {
+		t.Errorf("settings.json %q, %v, %v; want the settings of both shards, every one of them", b, err, rerr)
 	}
 	code, _, stderr := runCmd("audit", reg, "-o", out, "--shard", "2/2", "--settings", s300, "--resume")
 	if code != 1 {
@@ -205,6 +200,45 @@ func TestAuditKeepsIdentityApart(t *testing.T) {
 		}
 		if after, _ := filepath.Glob(filepath.Join(out, "cases", "*")); len(after) != len(before) {
 			t.Errorf("the refused audit changed the case folders: %v, was %v", after, before)
+		}
+	}
+}
+
+// TestAuditResumeNeedsSameThermometry: --resume reuses a case's record only
+// when every setting is the same; a changed thermometry setting (drift
+// correction in the settings file, or PRF α on the command line) reuses
+// none.
+func TestAuditResumeNeedsSameThermometry(t *testing.T) {
+	withFakeAuditAnalysis(t)
+	tmp := t.TempDir()
+	reg := filepath.Join(tmp, "registry")
+	for _, n := range []string{"a", "b", "c"} {
+		fakeAuditCase(t, filepath.Join(reg, n))
+	}
+	poly := filepath.Join(tmp, "poly.json")
+	none := filepath.Join(tmp, "none.json")
+	os.WriteFile(poly, []byte(`{"thermometry": {"drift": "polynomial"}}`), 0o644)
+	os.WriteFile(none, []byte(`{"thermometry": {"drift": "none"}}`), 0o644)
+	out := filepath.Join(tmp, "out")
+	if code, stdout, stderr := runCmd("audit", reg, "-o", out, "--settings", poly); code != 0 {
+		t.Fatalf("first run: exit %d\n%s\n%s", code, stdout, stderr)
+	}
+	for _, c := range []struct {
+		name    string
+		args    []string
+		resumed string
+	}{
+		{"same settings", []string{"--settings", poly}, "(3 from an earlier run)"},
+		{"other drift correction", []string{"--settings", none}, "(0 from an earlier run)"},
+		{"other PRF alpha", []string{"--settings", poly, "--alpha", "-0.0097"}, "(0 from an earlier run)"},
+	} {
+		o := filepath.Join(tmp, "out-"+strings.ReplaceAll(c.name, " ", "-"))
+		if err := os.CopyFS(o, os.DirFS(out)); err != nil {
+			t.Fatal(err)
+		}
+		code, stdout, stderr := runCmd(append([]string{"audit", reg, "-o", o, "--resume"}, c.args...)...)
+		if code != 0 || !strings.Contains(stdout, c.resumed) {
+			t.Errorf("%s: exit %d, want 0 and %q in\n%s\n%s", c.name, code, c.resumed, stdout, stderr)
 		}
 	}
 }

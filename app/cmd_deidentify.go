@@ -1,5 +1,3 @@
-//go:build cgo
-
 package main
 
 import (
@@ -40,23 +38,23 @@ func runDeidentify(args []string, stdout, stderr io.Writer) int {
 	if len(pos) != 2 {
 		fmt.Fprintf(stderr, "dosecover deidentify: CASE_DIR and OUT_DIR expected, got %d arguments\n", len(pos))
 		fs.Usage()
-		return 2
+		return exitUsage
 	}
 	mode, err := deid.ParseDateMode(*dates)
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover deidentify: --dates: %v\n", err)
-		return 2
+		return exitUsage
 	}
 	if *shift != 0 && mode != deid.DatesShift {
 		fmt.Fprintln(stderr, "dosecover deidentify: --shift-days needs --dates shift")
-		return 2
+		return exitUsage
 	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
 	defer stop()
 	res, err := deid.Folder(ctx, pos[0], pos[1], deid.Options{Salt: *salt, Dates: mode, ShiftDays: *shift, Label: *label, Study: *study}, nil)
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover deidentify: %v\n", err)
-		return 1
+		return exitFailure
 	}
 	fmt.Fprintf(stdout, "wrote %d de-identified DICOM files to %s\n", len(res.Files), pos[1])
 	if res.Dates == deid.DatesShift {
@@ -67,5 +65,5 @@ func runDeidentify(args []string, stdout, stderr io.Writer) int {
 	for _, s := range res.Skipped {
 		fmt.Fprintf(stdout, "not copied: %s: %s\n", s.Path, s.Reason)
 	}
-	return 0
+	return exitOK
 }

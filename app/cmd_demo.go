@@ -1,5 +1,3 @@
-//go:build cgo
-
 package main
 
 import (
@@ -30,52 +28,43 @@ func runDemo(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintln(stderr, "with truth.json describing what was simulated. DIR must be new or empty.")
 		fs.PrintDefaults()
 	}
-	// Accept the folder before or after the options.
-	var dir string
-	if len(args) > 0 && len(args[0]) > 0 && args[0][0] != '-' {
-		dir, args = args[0], args[1:]
-	}
-	if err := fs.Parse(args); err != nil {
+	pos, err := parseArgs(fs, args)
+	if err != nil {
 		return parseFailed(err)
 	}
-	if dir == "" && fs.NArg() > 0 {
-		dir = fs.Arg(0)
-		if err := fs.Parse(fs.Args()[1:]); err != nil {
-			return parseFailed(err)
-		}
-	}
-	if dir == "" || fs.NArg() > 0 {
+	if len(pos) != 1 {
 		fs.Usage()
-		return 2
+		return exitUsage
 	}
+	dir := pos[0]
 	if *cases < 0 || *cases > 999 {
 		fmt.Fprintf(stderr, "dosecover demo: --cases %d is outside 0..999\n", *cases)
-		return 2
+		return exitUsage
 	}
 	if entries, err := os.ReadDir(dir); err == nil {
 		if len(entries) > 0 {
 			fmt.Fprintf(stderr, "dosecover demo: %s is not empty; choose a new or empty folder (nothing was written)\n", dir)
-			return 1
+			return exitFailure
 		}
 	} else if !errors.Is(err, os.ErrNotExist) {
 		fmt.Fprintf(stderr, "dosecover demo: %v\n", &safefile.PathError{What: "output folder", Path: dir, Err: err})
-		return 1
+		return exitFailure
 	}
 	demo := filepath.Join(dir, "demo")
 	t, err := sim.WriteDemo(demo)
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover demo: %v\n", err)
-		return 1
+		return exitFailure
 	}
 	fmt.Fprintf(stdout, "wrote %s: %d files, %d sonications (truth in %s)\n", demo, t.Files, len(t.Sonications), filepath.Join(demo, sim.TruthFile))
 	if *cases > 0 {
 		ts, err := sim.WriteCases(dir, *cases, *seed)
 		if err != nil {
 			fmt.Fprintf(stderr, "dosecover demo: %v\n", err)
-			return 1
+			return exitFailure
 		}
 		fmt.Fprintf(stdout, "wrote %d simulated cases into %s (case-001 ..., seed %d)\n", len(ts), dir, *seed)
 	}
 	fmt.Fprintln(stdout, "All data are invented (phantom simulation). For review, QA and teaching only.")
-	return 0
+	return exitOK
 }

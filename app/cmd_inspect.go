@@ -1,5 +1,3 @@
-//go:build cgo
-
 package main
 
 import (
@@ -34,53 +32,45 @@ func runInspect(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintln(stderr, "Exit status: 0 reviewable case, 1 not reviewable (reason given), 2 usage error.")
 		fs.PrintDefaults()
 	}
-	// Accept the folder before or after the options.
-	var dir string
-	rest := args
-	for len(rest) > 0 {
-		if err := fs.Parse(rest); err != nil {
-			return parseFailed(err)
-		}
-		rest = fs.Args()
-		if len(rest) == 0 {
-			break
-		}
-		if dir != "" {
-			fmt.Fprintf(stderr, "dosecover inspect: one folder expected, got %q and %q\n", dir, rest[0])
-			fs.Usage()
-			return 2
-		}
-		dir, rest = rest[0], rest[1:]
+	pos, err := parseArgs(fs, args)
+	if err != nil {
+		return parseFailed(err)
 	}
-	if dir == "" {
+	if len(pos) > 1 {
+		fmt.Fprintf(stderr, "dosecover inspect: one folder expected, got %q and %q\n", pos[0], pos[1])
 		fs.Usage()
-		return 2
+		return exitUsage
 	}
+	if len(pos) == 0 {
+		fs.Usage()
+		return exitUsage
+	}
+	dir := pos[0]
 	if *workers < 0 {
 		fmt.Fprintln(stderr, "dosecover inspect: --workers must not be negative")
-		return 2
+		return exitUsage
 	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
 	defer stop()
 	inv, err := dicomio.ScanOptions(ctx, dir, dicomio.LoadOptions{Workers: *workers, Study: *study}, nil)
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover inspect: %v\n", err)
-		return 1
+		return exitFailure
 	}
 	if *asJSON {
 		enc := json.NewEncoder(stdout)
 		enc.SetIndent("", "  ")
 		if err := enc.Encode(inv); err != nil {
 			fmt.Fprintf(stderr, "dosecover inspect: writing JSON: %v\n", err)
-			return 1
+			return exitFailure
 		}
 	} else if err := inv.WriteText(stdout); err != nil {
 		fmt.Fprintf(stderr, "dosecover inspect: %v\n", err)
-		return 1
+		return exitFailure
 	}
 	if !inv.Reviewable {
 		fmt.Fprintf(stderr, "dosecover inspect: %s: not a reviewable case: %s\n", dir, inv.NotReviewable)
-		return 1
+		return exitFailure
 	}
-	return 0
+	return exitOK
 }

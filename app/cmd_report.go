@@ -1,5 +1,3 @@
-//go:build cgo
-
 package main
 
 import (
@@ -51,22 +49,22 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	if len(pos) != 1 {
 		fmt.Fprintf(stderr, "dosecover report: one case folder expected, got %d arguments\n", len(pos))
 		fs.Usage()
-		return 2
+		return exitUsage
 	}
 	dir := pos[0]
 	out := report.Outputs{PNG: *png, PDF: *pdf, JSON: *js, CSV: *csv, DPI: *dpi}
 	if out.PNG == "" && out.PDF == "" && out.JSON == "" && out.CSV == "" {
 		fmt.Fprintln(stderr, "dosecover report: give at least one output (-o report.png, --pdf, --json or --csv)")
-		return 2
+		return exitUsage
 	}
 	if *dpi < 150 || *dpi > 1200 {
 		fmt.Fprintf(stderr, "dosecover report: --dpi %d: want 150 (legible in print) to 1200\n", *dpi)
-		return 2
+		return exitUsage
 	}
 	set, err := af.settings()
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
-		return 2
+		return settingsExitCode(err)
 	}
 	// Refuse outputs inside the case folder before any work.
 	for _, p := range []string{out.PNG, out.PDF, out.JSON, out.CSV} {
@@ -75,11 +73,11 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 		}
 		if err := safefile.CheckOutside(dir, p); err != nil {
 			fmt.Fprintf(stderr, "dosecover report: %v\n", err)
-			return 1
+			return exitFailure
 		}
 		if err := safefile.CheckDir("output folder", filepath.Dir(p)); err != nil {
 			fmt.Fprintf(stderr, "dosecover report: cannot write %s: %v\n", p, err)
-			return 1
+			return exitFailure
 		}
 	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
@@ -88,10 +86,10 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	if code != 0 {
 		return code
 	}
-	sum, err := report.HashFolder(dir)
+	sum, _, err := review.HashInputs(ctx, dir)
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
-		return 1
+		return exitFailure
 	}
 	// The sign-offs made in the window on these very input files: the
 	// report prints one only when it was made on this analysis.
@@ -110,11 +108,11 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	})
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
-		return 1
+		return exitFailure
 	}
 	if err := report.Write(in, dir, out); err != nil {
 		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
-		return 1
+		return exitFailure
 	}
 	fmt.Fprintf(stdout, "%s: covered %.1f %% of the monitored target (%.1f %% of the whole target) at %g %s (margin %g mm)\n",
 		in.CaseLabel, 100*r.CoveredFraction, 100*r.CoveredFractionOfTarget, r.Threshold, r.DoseUnit, r.MarginMM)
@@ -129,7 +127,7 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 		}
 	}
 	fmt.Fprintf(stdout, "sign-off: %s\n", orText(in.SignOff, "not signed off"))
-	return 0
+	return exitOK
 }
 
 // orText returns s, or alt when s is empty.

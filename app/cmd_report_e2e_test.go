@@ -138,9 +138,6 @@ func reportJSON(t *testing.T, args ...string) metricsDoc {
 	full = append(full, "--json", js, "-o", filepath.Join(outDir, "r.png"), "--pdf", filepath.Join(outDir, "r.pdf"),
 		"--csv", filepath.Join(outDir, "m.csv"), "--trials", "0")
 	if code := run(full, &out, &errb); code != 0 {
-		if strings.Contains(errb.String(), "not available in this build") {
-			t.Skipf("this build cannot analyse thermometry frames yet: %s", errb.String())
-		}
 		t.Fatalf("%v: exit %d\n%s", full, code, errb.String())
 	}
 	b, _ := os.ReadFile(js)

@@ -1,11 +1,12 @@
-//go:build cgo
-
 package main
 
 import (
 	"errors"
 	"flag"
 )
+
+// The command line of every subcommand: one argument parser (parseArgs)
+// and the exit codes.
 
 // Exit codes of every subcommand.
 const (
@@ -22,4 +23,27 @@ func parseFailed(err error) int {
 		return exitOK
 	}
 	return exitUsage
+}
+
+// parseArgs parses fs over args, which may mix options and positional
+// arguments in any order ("DIR... -o OUT"; "--" ends the options), and
+// returns the positional ones. A parse error has been reported by fs
+// already (unless its output is discarded).
+func parseArgs(fs *flag.FlagSet, args []string) ([]string, error) {
+	var pos []string
+	for {
+		if err := fs.Parse(args); err != nil {
+			return nil, err
+		}
+		rest := fs.Args()
+		if len(rest) == 0 {
+			return pos, nil
+		}
+		// fs.Parse stops at the first positional argument or after "--".
+		if len(args) > len(rest) && args[len(args)-len(rest)-1] == "--" {
+			return append(pos, rest...), nil
+		}
+		pos = append(pos, rest[0])
+		args = rest[1:]
+	}
 }

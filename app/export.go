@@ -42,11 +42,10 @@ func (rw *reviewWindow) exportReport() {
 }
 
 func (rw *reviewWindow) resultRaw() (*review.Result, bool) {
-	if rw.result == nil {
+	if rw.result == nil || rw.result.Result == nil {
 		return nil, false
 	}
-	r, ok := rw.result.Raw.(*review.Result)
-	return r, ok
+	return rw.result.Result, true
 }
 
 // reportBase is the file name stem of the exported files: the case name
@@ -93,7 +92,6 @@ func (rw *reviewWindow) writeReport(dir string) {
 	opt := report.Options{
 		Deidentify: rw.teaching, Reviewer: reviewer, SignOffs: rw.record.SignOffs, Study: rw.loaded.Study,
 		ReviewDate: time.Now().UTC().Truncate(time.Second), InputsSHA256: rw.hash,
-		Thermometry: thermometryOptions(rw.settings),
 	}
 	c, caseDir := rw.loaded.Case, rw.loaded.Dir
 	rw.status.SetText("Writing the report…")

@@ -15,6 +15,7 @@ import (
 	"time"
 
 	"dosecover/dosemap"
+	"dosecover/review"
 
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/test"
@@ -88,7 +89,7 @@ func benchWindow(b *testing.B) *reviewWindow {
 	mark := rw.completed.Load()
 	lc := syntheticCase()
 	lc.Dir = b.TempDir()
-	rw.caseLoaded(lc, "5e11f0c0ffee5e11f0c0ffee5e11f0c0ffee5e11f0c0ffee5e11f0c0ffee5e11", 4, nil, defaultSettings())
+	rw.caseLoaded(lc, "5e11f0c0ffee5e11f0c0ffee5e11f0c0ffee5e11f0c0ffee5e11f0c0ffee5e11", 4, nil, review.DefaultSettings())
 	for rw.completed.Load() < mark+1 {
 		time.Sleep(5 * time.Millisecond)
 	}
@@ -131,7 +132,7 @@ func openSynthetic(t *testing.T, rw *reviewWindow) {
 	mark := rw.completed.Load()
 	lc := syntheticCase()
 	lc.Dir = t.TempDir()
-	rw.caseLoaded(lc, "5e11f0c0ffee5e11f0c0ffee5e11f0c0ffee5e11f0c0ffee5e11f0c0ffee5e11", 4, nil, defaultSettings())
+	rw.caseLoaded(lc, "5e11f0c0ffee5e11f0c0ffee5e11f0c0ffee5e11f0c0ffee5e11f0c0ffee5e11", 4, nil, review.DefaultSettings())
 	waitJobs(t, rw, mark, 1)
 	if rw.result == nil {
 		t.Fatalf("no analysis result; status: %s", rw.status.Text)
@@ -163,8 +164,8 @@ func TestPreviewLayout(t *testing.T) {
 	}
 	rw := testWindow(t)
 	openSynthetic(t, rw)
-	if len(rw.result.Holes) > 0 {
-		rw.jumpTo(rw.result.Holes[0])
+	if len(rw.result.HoleRows) > 0 {
+		rw.jumpTo(rw.result.HoleRows[0])
 	}
 	rw.pin(dosemap.Vec3{0, 0, 0})
 	writePNG(t, out, rw.win.Canvas().Capture())

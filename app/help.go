@@ -92,7 +92,7 @@ func (rw *reviewWindow) signOff() {
 	comment.SetMinRowsVisible(4)
 	comment.Wrapping = fyne.TextWrapWord
 	facts := widget.NewLabel(fmt.Sprintf("Input files: %d, SHA-256 %s\nCovered %.1f %% with %s",
-		rw.nFiles, rw.hash, 100*rw.result.Covered, rw.settings.describe()))
+		rw.nFiles, rw.hash, 100*rw.result.CoveredFraction, rw.settings.Describe()))
 	facts.Wrapping = fyne.TextWrapWord
 	var prev []string
 	for _, s := range rw.record.SignOffs {

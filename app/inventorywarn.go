@@ -1,5 +1,3 @@
-//go:build cgo
-
 package main
 
 import (
@@ -32,28 +30,22 @@ func warnInventory(w io.Writer, cmd string, inv *dicomio.Inventory) {
 // named); the StudyInstanceUID of the study read is returned. On failure
 // it prints the reason prefixed by "dosecover CMD:" and returns exit code 1.
 func loadAndAnalyze(ctx context.Context, cmd, dir, study string, sf *structureFlags, set review.Settings, stderr io.Writer) (*dosemap.Case, *review.Result, string, int) {
-	c, inv, err := dicomio.Load(ctx, dir, dicomio.LoadOptions{Deferred: true, Study: study}, nil)
+	c, inv, r, err := review.LoadAndAnalyze(ctx, dir, set, review.LoadOptions{Study: study,
+		Check: func(c *dosemap.Case, inv *dicomio.Inventory) error {
+			if inv != nil && !inv.Reviewable {
+				return fmt.Errorf("%s cannot be analysed: %s", dir, inv.NotReviewable)
+			}
+			warnInventory(stderr, cmd, inv)
+			return sf.apply(c)
+		},
+	})
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover %s: %v\n", cmd, err)
-		return nil, nil, "", 1
-	}
-	if inv != nil && !inv.Reviewable {
-		fmt.Fprintf(stderr, "dosecover %s: %s cannot be analysed: %s\n", cmd, dir, inv.NotReviewable)
-		return nil, nil, "", 1
-	}
-	warnInventory(stderr, cmd, inv)
-	if err := sf.apply(c); err != nil {
-		fmt.Fprintf(stderr, "dosecover %s: %v\n", cmd, err)
-		return nil, nil, "", 1
-	}
-	r, err := review.Analyze(ctx, c, set, nil)
-	if err != nil {
-		fmt.Fprintf(stderr, "dosecover %s: analysing %s: %v\n", cmd, dir, err)
-		return nil, nil, "", 1
+		return nil, nil, "", exitFailure
 	}
 	uid := ""
 	if inv != nil {
 		uid = inv.Study
 	}
-	return c, r, uid, 0
+	return c, r, uid, exitOK
 }

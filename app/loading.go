@@ -12,6 +12,7 @@ import (
 	"strings"
 
 	"dosecover/dosemap"
+	"dosecover/review"
 
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/dialog"
@@ -192,14 +193,14 @@ func (rw *reviewWindow) openStudy(dir string, demo bool, study string) {
 		hash, nFiles, err = hashInputs(ctx, dir)
 		if err == nil {
 			rec, recErr = loadRecord(hash)
-			if rec != nil && rec.Settings.validate() == nil {
+			if rec != nil {
 				setting = rec.Settings
 			}
 			progress("Reading "+base+"…", 0.05)
 			// The reader reports two passes (attributes, then pixel data),
 			// each from zero: a drop in done starts the second.
 			pass, last := 0, -1
-			lc, err = readCase(ctx, dir, loadOptions{PhaseScale: setting.PhaseScale, Study: study}, func(done, total int) {
+			lc, err = readCase(ctx, dir, loadOptions{PhaseScale: setting.Thermometry.PhaseScale, Study: study}, func(done, total int) {
 				if total <= 0 {
 					return
 				}
@@ -250,7 +251,7 @@ func (rw *reviewWindow) openStudy(dir string, demo bool, study string) {
 }
 
 // caseLoaded shows a freshly read case and starts its analysis.
-func (rw *reviewWindow) caseLoaded(lc *loadedCase, hash string, nFiles int, rec *reviewRecord, s analysisSettings) {
+func (rw *reviewWindow) caseLoaded(lc *loadedCase, hash string, nFiles int, rec *reviewRecord, s review.Settings) {
 	rw.loaded, rw.hash, rw.nFiles = lc, hash, nFiles
 	rw.sess, rw.result, rw.selected, rw.pinned = nil, nil, -1, nil
 	if rec == nil {
@@ -288,7 +289,7 @@ func (rw *reviewWindow) caseLoaded(lc *loadedCase, hash string, nFiles int, rec 
 		return
 	}
 	if note := rw.missingScannerValues(); note != "" {
-		showSettingsDialog(rw.win, rw.settings, note, func(s analysisSettings) {
+		showSettingsDialog(rw.win, rw.settings, note, func(s review.Settings) {
 			rw.settings = s
 			rw.runAnalysis(true)
 		})
@@ -301,10 +302,10 @@ func (rw *reviewWindow) caseLoaded(lc *loadedCase, hash string, nFiles int, rec 
 // lacks them and the settings do not supply them.
 func (rw *reviewWindow) missingScannerValues() string {
 	var miss []string
-	if rw.loaded.MissingB0 && rw.settings.B0 == 0 {
+	if rw.loaded.MissingB0 && rw.settings.Thermometry.B0T == 0 {
 		miss = append(miss, "the field strength B0 (MagneticFieldStrength, 0018,0087)")
 	}
-	if rw.loaded.MissingTE && rw.settings.TEms == 0 {
+	if rw.loaded.MissingTE && rw.settings.Thermometry.TEms == 0 {
 		miss = append(miss, "the echo time TE (EchoTime, 0018,0081)")
 	}
 	if len(miss) == 0 {
@@ -416,7 +417,7 @@ func (rw *reviewWindow) runAnalysis(prepare bool) {
 			}
 			rw.sess = sess
 			rw.showResult(res)
-			rw.setBusy(fmt.Sprintf("Analysed with %s.", set.describe()), -1)
+			rw.setBusy(fmt.Sprintf("Analysed with %s.", set.Describe()), -1)
 		})
 	}()
 }
@@ -430,7 +431,7 @@ func (rw *reviewWindow) showResult(res *analysisResult) {
 	}
 	rw.applyFloor()
 	rw.washBar.set(rw.opt.Floor, washTop(res.Threshold), res.Unit)
-	if rw.selected >= len(res.Sonications) {
+	if rw.selected >= len(res.SonRows) {
 		rw.selected = -1
 	}
 	rw.updateScene()
@@ -468,13 +469,13 @@ func (rw *reviewWindow) updateScene() {
 	}
 	rw.scene.Dose = r.Dose
 	rw.scene.Threshold = r.Threshold
-	rw.scene.Target, rw.scene.Margin, rw.scene.Avoid = r.Target, r.Margin, r.Avoid3D
+	rw.scene.Target, rw.scene.Margin, rw.scene.Avoid = r.TargetMask, r.MarginMask, nil
 	rw.scene.TargetStructure, rw.scene.AvoidStructures = r.TargetStructure, r.AvoidStructures
-	rw.scene.Holes, rw.scene.Outside = r.Holes3D, r.Outside3D
+	rw.scene.Holes, rw.scene.Outside = r.HoleLabels, r.SpillLabels
 	rw.scene.NotMonitored = r.NotMonitored3D
 	rw.selInfo.SetText("Showing the cumulative dose")
 	if rw.selected >= 0 && rw.selected < len(r.SonicationDose) && r.SonicationDose[rw.selected] != nil {
-		row := r.Sonications[rw.selected]
+		row := r.SonRows[rw.selected]
 		rw.scene.Dose = r.SonicationDose[rw.selected]
 		// Holes and spill are properties of the cumulative dose only.
 		rw.scene.Holes, rw.scene.Outside = nil, nil
@@ -494,7 +495,7 @@ func (rw *reviewWindow) selectSonication(n int) {
 
 // setExcluded ticks or unticks sonication number num and re-analyses.
 func (rw *reviewWindow) setExcluded(num int, excluded bool) {
-	ex := rw.settings.excludedSet()
+	ex := excludedSet(rw.settings)
 	if ex[num] == excluded {
 		return
 	}
@@ -512,34 +513,26 @@ func (rw *reviewWindow) setExcluded(num int, excluded bool) {
 // openSettings shows the settings dialog; thermometry changes recompute
 // temperature, a phase-scale change re-reads the folder.
 func (rw *reviewWindow) openSettings() {
-	showSettingsDialog(rw.win, rw.settings, "", func(s analysisSettings) {
+	showSettingsDialog(rw.win, rw.settings, "", func(s review.Settings) {
 		old := rw.settings
 		rw.settings = s
 		savePrefSettings(rw.app.Preferences(), s)
 		if rw.loaded == nil {
 			return
 		}
-		switch {
-		case s.PhaseScale != old.PhaseScale:
+		switch s.Redo(old) {
+		case review.RedoReading:
 			if rw.record != nil {
 				rw.record.Settings = s
 				_ = rw.record.save()
 			}
 			rw.openCase(rw.loaded.Dir)
-		case thermometryChanged(old, s):
+		case review.RedoThermometry:
 			rw.runAnalysis(true)
 		default:
 			rw.runAnalysis(false)
 		}
 	})
-}
-
-// thermometryChanged reports whether temperature must be recomputed.
-func thermometryChanged(a, b analysisSettings) bool {
-	return a.PRFAlpha != b.PRFAlpha || a.BodyTemp != b.BodyTemp || a.BaselineFrames != b.BaselineFrames ||
-		a.Drift != b.Drift || a.DriftOrder != b.DriftOrder || a.B0 != b.B0 || a.TEms != b.TEms || a.DriftRef != b.DriftRef ||
-		a.Model != b.Model || a.CEM43Break != b.CEM43Break || a.CEM43RAbove != b.CEM43RAbove ||
-		a.CEM43RBelow != b.CEM43RBelow || a.ArrheniusA != b.ArrheniusA || a.ArrheniusEa != b.ArrheniusEa
 }
 
 func sortInts(s []int) {
@@ -575,13 +568,13 @@ func (rw *reviewWindow) startPeakTemperature(res *analysisResult) {
 // view (1× to 8×).
 func (rw *reviewWindow) frameTarget() {
 	r := rw.result
-	if r == nil || r.Target == nil {
+	if r == nil || r.TargetMask == nil {
 		return
 	}
 	var c dosemap.Vec3
 	var pts []dosemap.Vec3
-	g := r.Target.Geometry
-	for i, x := range r.Target.Data {
+	g := r.TargetMask.Geometry
+	for i, x := range r.TargetMask.Data {
 		if x >= 0.5 {
 			a, b, k := g.IJK(i)
 			p := g.Point(float64(a), float64(b), float64(k))

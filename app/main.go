@@ -1,5 +1,3 @@
-//go:build cgo
-
 // Command dosecover reviews thermal-dose coverage after MR-thermometry-guided
 // focused-ultrasound ablation. With no arguments it opens the review window;
 // with a subcommand it works without a display (see "dosecover help").
@@ -50,7 +48,7 @@ func run(args []string, stdout, stderr io.Writer) int {
 	}
 	fmt.Fprintf(stderr, "dosecover: unknown command or folder %q\n\n", args[0])
 	usage(stderr)
-	return 2
+	return exitUsage
 }
 
 func usage(w io.Writer) {
@@ -75,10 +73,10 @@ func init() {
 		usage(stdout)
 		fmt.Fprintln(stdout)
 		fmt.Fprintln(stdout, cautionText)
-		return 0
+		return exitOK
 	}})
 	register(command{name: "version", summary: "print the version", run: func(_ []string, stdout, _ io.Writer) int {
 		fmt.Fprintf(stdout, "dosecover %s\n", version)
-		return 0
+		return exitOK
 	}})
 }

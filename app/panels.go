@@ -10,6 +10,7 @@ import (
 
 	"dosecover/dosemap"
 	"dosecover/review"
+	"dosecover/review/view"
 
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/canvas"
@@ -33,13 +34,13 @@ var overlayLegend = []struct {
 	c     color.RGBA
 	style swatchStyle
 }{
-	{"target", review.ColorTarget, swatchSolid},
-	{"margin", review.ColorMargin, swatchDashed},
-	{"lethal isoline", review.ColorLethal, swatchSolid},
-	{"hole", review.ColorHole, swatchHatched},
-	{"lethal outside margin", review.ColorSpill, swatchFill},
-	{"avoid", review.ColorAvoid, swatchDotted},
-	{"not monitored", review.ColorNotMonitored, swatchHatched},
+	{"target", view.ColorTarget, swatchSolid},
+	{"margin", view.ColorMargin, swatchDashed},
+	{"lethal isoline", view.ColorLethal, swatchSolid},
+	{"hole", view.ColorHole, swatchHatched},
+	{"lethal outside margin", view.ColorSpill, swatchFill},
+	{"avoid", view.ColorAvoid, swatchDotted},
+	{"not monitored", view.ColorNotMonitored, swatchHatched},
 }
 
 // legendSwatch draws a small sample of an overlay style.
@@ -132,7 +133,7 @@ func (rw *reviewWindow) newSonicationTable() *widget.Table {
 			if rw.result == nil {
 				return 0, len(sonColumns)
 			}
-			return len(rw.result.Sonications), len(sonColumns)
+			return len(rw.result.SonRows), len(sonColumns)
 		},
 		func() fyne.CanvasObject {
 			l := widget.NewLabel("")
@@ -143,15 +144,15 @@ func (rw *reviewWindow) newSonicationTable() *widget.Table {
 			st := o.(*fyne.Container)
 			chk := st.Objects[0].(*widget.Check)
 			l := st.Objects[1].(*widget.Label)
-			if rw.result == nil || id.Row >= len(rw.result.Sonications) {
+			if rw.result == nil || id.Row >= len(rw.result.SonRows) {
 				return
 			}
-			row := rw.result.Sonications[id.Row]
+			row := rw.result.SonRows[id.Row]
 			if id.Col == 0 {
 				l.Hide()
 				chk.Show()
 				chk.OnChanged = nil
-				chk.SetChecked(!rw.settings.excludedSet()[row.Number])
+				chk.SetChecked(!excludedSet(rw.settings)[row.Number])
 				num := row.Number
 				chk.OnChanged = func(on bool) { rw.setExcluded(num, !on) }
 				return
@@ -183,7 +184,7 @@ func (rw *reviewWindow) newSonicationTable() *widget.Table {
 			case 7:
 				l.SetText(fmtOpt(100*row.CoverageAdded, "%.1f %%"))
 			case 8:
-				if rw.settings.excludedSet()[row.Number] {
+				if excludedSet(rw.settings)[row.Number] {
 					l.Importance = widget.LowImportance
 					l.SetText("left out of the cumulative dose")
 					return
@@ -303,13 +304,13 @@ func newMetricsPanel(rw *reviewWindow) *metricsPanel {
 		if rw.result == nil {
 			return nil
 		}
-		return rw.result.Holes
+		return rw.result.HoleRows
 	})
 	m.outside = regionList(func() []region {
 		if rw.result == nil {
 			return nil
 		}
-		return rw.result.Outside
+		return rw.result.SpillRows
 	})
 	m.dvh = newPlotView()
 	m.coverage = newPlotView()
@@ -342,7 +343,7 @@ func newMetricsPanel(rw *reviewWindow) *metricsPanel {
 // update shows the current result.
 func (m *metricsPanel) update() {
 	r := m.rw.result
-	m.used.SetText(m.rw.settings.describe())
+	m.used.SetText(m.rw.settings.Describe())
 	m.signed.SetText(m.rw.signOffText())
 	m.rw.updateSignState()
 	if r == nil {
@@ -362,24 +363,24 @@ func (m *metricsPanel) update() {
 	}
 	pct := func(f float64) string { return fmtOpt(100*f, "%.1f %%") }
 	band := "not estimated"
-	if !math.IsNaN(r.CoveredP05) && !math.IsNaN(r.CoveredP95) {
-		band = fmt.Sprintf("%s – %s", pct(r.CoveredP05), pct(r.CoveredP95))
+	if r.CoveredFractionP05 != nil && r.CoveredFractionP95 != nil {
+		band = fmt.Sprintf("%s – %s", pct(*r.CoveredFractionP05), pct(*r.CoveredFractionP95))
 		if r.Trials > 0 {
 			band += fmt.Sprintf(" (%d trials)", r.Trials)
 		}
 	}
-	name := r.TargetName
+	name := r.Target
 	if name == "" {
 		name = "target"
 	}
 	lines := []string{
-		fmt.Sprintf("%-24s %s (%.2f mL)", "Target", name, r.TargetML),
-		fmt.Sprintf("%-24s %s", "Covered (≥ threshold)", pct(r.Covered)),
+		fmt.Sprintf("%-24s %s (%.2f mL)", "Target", name, r.TargetVolumeML),
+		fmt.Sprintf("%-24s %s", "Covered (≥ threshold)", pct(r.CoveredFraction)),
 		fmt.Sprintf("%-24s %s", "  noise band p05–p95", band),
-		fmt.Sprintf("%-24s %s", "Not monitored", pct(r.NotMonitored)),
-		fmt.Sprintf("%-24s %d (%.3f mL)", "Holes", len(r.Holes), sumML(r.Holes)),
-		fmt.Sprintf("%-24s %d (%.3f mL)", "Lethal outside margin", len(r.Outside), r.LethalOutside),
-		fmt.Sprintf("%-24s %s / %s / %s", "D98 / D50 / D2", fmtDose(r.D98), fmtDose(r.D50), fmtDose(r.D2)),
+		fmt.Sprintf("%-24s %s", "Not monitored", pct(r.NotMonitoredFraction)),
+		fmt.Sprintf("%-24s %d (%.3f mL)", "Holes", len(r.HoleRows), sumML(r.HoleRows)),
+		fmt.Sprintf("%-24s %d (%.3f mL)", "Lethal outside margin", len(r.SpillRows), r.OutsideMarginLethalML),
+		fmt.Sprintf("%-24s %s / %s / %s", "D98 / D50 / D2", fmtDose(ptr(r.D98)), fmtDose(ptr(r.D50)), fmtDose(ptr(r.D2))),
 		fmt.Sprintf("%-24s %s", "  dose unit", r.Unit),
 		fmt.Sprintf("%-24s %s %s", "Threshold", fmtNum(r.Threshold), r.Unit),
 		fmt.Sprintf("%-24s %g mm", "Margin", r.MarginMM),
@@ -388,19 +389,19 @@ func (m *metricsPanel) update() {
 		lines = append(lines, fmt.Sprintf("%-24s %v", "Sonications left out", ex))
 	}
 	m.facts.SetText(strings.Join(lines, "\n"))
-	if len(r.Avoid) == 0 {
+	if len(r.AvoidRows) == 0 {
 		m.avoid.SetText("No avoid structure in this case.")
 	} else {
 		var b []string
-		for _, a := range r.Avoid {
+		for _, a := range r.AvoidRows {
 			b = append(b, fmt.Sprintf("%s: %.3f mL lethal of %.2f mL, highest dose %s %s", a.Name, a.LethalML, a.VolumeML, fmtDose(a.MaxDose), r.Unit))
 		}
 		m.avoid.SetText(strings.Join(b, "\n"))
 	}
-	if len(r.QualityNotes) == 0 {
+	if len(r.Warnings) == 0 {
 		m.quality.SetText("No frame was flagged.")
 	} else {
-		m.quality.SetText(strings.Join(r.QualityNotes, "\n"))
+		m.quality.SetText(strings.Join(r.Warnings, "\n"))
 	}
 	m.dvh.set(func() *plotPlot { return dvhPlot(r) })
 	m.coverage.set(func() *plotPlot { return coveragePlot(r) })

@@ -9,6 +9,7 @@ import (
 	"math"
 
 	"dosecover/review"
+	"dosecover/review/view"
 
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/canvas"
@@ -157,7 +158,7 @@ func finiteXYs(pts []xy, logX bool) plotter.XYs {
 // log axis, the threshold as a dashed guide.
 func dvhPlot(r *analysisResult) *plot.Plot {
 	p := newStyledPlot("Target dose–volume histogram", "dose ("+r.Unit+", log scale)", "% of target ≥ dose")
-	pts := finiteXYs(r.DVH, true)
+	pts := finiteXYs(r.DVHPoints, true)
 	for n := range pts {
 		pts[n].Y *= 100
 	}
@@ -177,7 +178,7 @@ func dvhPlot(r *analysisResult) *plot.Plot {
 			shown = append(shown, q)
 		}
 	}
-	addLine(p, shown, review.ColorTarget, vg.Points(2), nil, "target")
+	addLine(p, shown, view.ColorTarget, vg.Points(2), nil, "target")
 	addVLine(p, r.Threshold, 0, 100, plotGuide, []vg.Length{vg.Points(4), vg.Points(3)}, "threshold "+fmtNum(r.Threshold)+" "+r.Unit)
 	p.X.Min, p.X.Max = lo, hi
 	p.Y.Min, p.Y.Max = 0, 100
@@ -188,13 +189,13 @@ func dvhPlot(r *analysisResult) *plot.Plot {
 // threshold in use as a guide.
 func coveragePlot(r *analysisResult) *plot.Plot {
 	p := newStyledPlot("Coverage versus threshold", "threshold ("+r.Unit+", log scale)", "% of target covered")
-	pts := finiteXYs(r.CoverageVsThr, true)
+	pts := finiteXYs(r.CoveragePoints, true)
 	for n := range pts {
 		pts[n].Y *= 100
 	}
 	p.X.Scale = plot.LogScale{}
 	p.X.Tick.Marker = plot.LogTicks{Prec: -1}
-	addLine(p, pts, review.ColorMargin, vg.Points(2), nil, "covered")
+	addLine(p, pts, view.ColorMargin, vg.Points(2), nil, "covered")
 	addVLine(p, r.Threshold, 0, 100, plotGuide, []vg.Length{vg.Points(4), vg.Points(3)}, "in use "+fmtNum(r.Threshold)+" "+r.Unit)
 	p.Y.Min, p.Y.Max = 0, 100
 	return p
@@ -203,7 +204,7 @@ func coveragePlot(r *analysisResult) *plot.Plot {
 // probePlot shows the temperature history of the pinned point: the voxel,
 // the 3×3 in-plane mean, the 43 °C level and the moment the cumulative
 // dose reached the threshold.
-func probePlot(c *probeCurve) *plot.Plot {
+func probePlot(c *review.Probe) *plot.Plot {
 	p := newStyledPlot("Temperature of "+c.Description, "time from the first sonication (s)", "temperature (°C)")
 	p.Legend.Top, p.Legend.Left = true, false
 	p.Legend.XOffs = -vg.Points(8)
@@ -226,13 +227,13 @@ func probePlot(c *probeCurve) *plot.Plot {
 		addVLine(p, b, lo, hi, plotGrid, nil, "")
 	}
 	// Split the curves at gaps between sonications so no line bridges them.
-	addSegments(p, vox, c.Boundaries, review.ColorSpill, vg.Points(1.5), nil, "voxel")
-	addSegments(p, mean, c.Boundaries, review.ColorMargin, vg.Points(1.5), []vg.Length{vg.Points(5), vg.Points(2)}, "3×3 mean")
+	addSegments(p, vox, c.Boundaries, view.ColorSpill, vg.Points(1.5), nil, "voxel")
+	addSegments(p, mean, c.Boundaries, view.ColorMargin, vg.Points(1.5), []vg.Length{vg.Points(5), vg.Points(2)}, "3×3 mean")
 	if len(c.Times) > 0 {
 		addLine(p, plotter.XYs{{X: c.Times[0], Y: 43}, {X: c.Times[len(c.Times)-1], Y: 43}}, plotGuide, vg.Points(1), []vg.Length{vg.Points(2), vg.Points(2)}, "43 °C")
 	}
 	if !math.IsNaN(c.LethalAt) {
-		addVLine(p, c.LethalAt, lo, hi, review.ColorLethal, []vg.Length{vg.Points(6), vg.Points(2)}, "reached "+fmtNum(c.Threshold)+" "+c.Unit)
+		addVLine(p, c.LethalAt, lo, hi, view.ColorLethal, []vg.Length{vg.Points(6), vg.Points(2)}, "reached "+fmtNum(c.Threshold)+" "+c.Unit)
 	}
 	p.Y.Min, p.Y.Max = lo, hi
 	return p

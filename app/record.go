@@ -1,5 +1,3 @@
-//go:build cgo
-
 package main
 
 import (
@@ -12,25 +10,31 @@ import (
 	"path/filepath"
 	"time"
 
+	"dosecover/dosemap"
 	"dosecover/review"
-	"dosecover/review/report"
 )
 
 // reviewRecord is what dosecover remembers about the review of one case:
 // the settings used for it and the sign-offs. It lives in the user's
 // configuration folder, never in the case folder.
 type reviewRecord struct {
-	Format    string           `json:"format"` // "dosecover-review/1"
+	Format    string           `json:"format"` // recordFormat
 	CaseDir   string           `json:"case_dir,omitempty"`
 	CaseLabel string           `json:"case_label,omitempty"`
 	InputHash string           `json:"input_sha256"` // see hashInputs
 	Files     int              `json:"input_files"`
-	Settings  analysisSettings `json:"settings"`
+	Settings  review.Settings  `json:"settings"`
 	Updated   time.Time        `json:"updated"`
 	SignOffs  []review.SignOff `json:"sign_offs,omitempty"`
 }
 
-const recordFormat = "dosecover-review/1"
+// recordFormat names the layout of the records written now: the settings
+// as review.Settings. Records of recordFormatV1 (the window's earlier
+// settings layout) are still read and are written again as recordFormat.
+const (
+	recordFormat   = "dosecover-review/2"
+	recordFormatV1 = "dosecover-review/1"
+)
 
 // reviewsDir returns the folder of the review records; overridden in tests.
 var reviewsDir = func() (string, error) {
@@ -41,11 +45,11 @@ var reviewsDir = func() (string, error) {
 	return filepath.Join(d, "dosecover", "reviews"), nil
 }
 
-// hashInputs returns the SHA-256 of the input files that the reports print
-// (review/report.HashFolderContext) and the number of files; it stops when
-// ctx is cancelled.
+// hashInputs returns the input hash of dir that the reports print
+// (review.HashInputs) and the number of files; it stops when ctx is
+// cancelled.
 func hashInputs(ctx context.Context, dir string) (string, int, error) {
-	return report.HashFolderContext(ctx, dir)
+	return review.HashInputs(ctx, dir)
 }
 
 // recordPath returns where the record of the input with hash lives.
@@ -73,12 +77,39 @@ func loadRecord(hash string) (*reviewRecord, error) {
 	if err != nil {
 		return nil, fmt.Errorf("reading review record %s: %w", p, err)
 	}
+	var head struct {
+		Format    string          `json:"format"`
+		InputHash string          `json:"input_sha256"`
+		Settings  json.RawMessage `json:"settings"`
+	}
+	if err := json.Unmarshal(b, &head); err != nil {
+		return nil, fmt.Errorf("reading review record %s: %w", p, err)
+	}
+	if (head.Format != recordFormat && head.Format != recordFormatV1) || head.InputHash != hash {
+		return nil, fmt.Errorf("review record %s is not a %s record of this case", p, recordFormat)
+	}
 	var r reviewRecord
+	if head.Format == recordFormatV1 {
+		// Everything but the settings kept its layout.
+		var v1 struct {
+			reviewRecord
+			Settings json.RawMessage `json:"settings"`
+		}
+		if err := json.Unmarshal(b, &v1); err != nil {
+			return nil, fmt.Errorf("reading review record %s: %w", p, err)
+		}
+		r = v1.reviewRecord
+		if r.Settings, err = readLegacySettings(v1.Settings); err != nil {
+			return nil, fmt.Errorf("reading review record %s: %w", p, err)
+		}
+		return &r, nil
+	}
+	r.Settings = review.DefaultSettings()
 	if err := json.Unmarshal(b, &r); err != nil {
 		return nil, fmt.Errorf("reading review record %s: %w", p, err)
 	}
-	if r.Format != recordFormat || r.InputHash != hash {
-		return nil, fmt.Errorf("review record %s is not a %s record of this case", p, recordFormat)
+	if err := r.Settings.Validate(); err != nil {
+		return nil, fmt.Errorf("review record %s: %w", p, err)
 	}
 	return &r, nil
 }
@@ -106,4 +137,76 @@ func (r *reviewRecord) save() error {
 		return fmt.Errorf("writing review record %s: %w", p, err)
 	}
 	return nil
+}
+
+// legacySettings is the layout of the settings in the window's
+// preferences and review records before they became review.Settings.
+type legacySettings struct {
+	Threshold      float64      `json:"threshold"`
+	MarginMM       float64      `json:"margin_mm"`
+	Model          string       `json:"model"`
+	CEM43Break     float64      `json:"cem43_break_c"`
+	CEM43RAbove    float64      `json:"cem43_r_above"`
+	CEM43RBelow    float64      `json:"cem43_r_below"`
+	ArrheniusSet   string       `json:"arrhenius_set"`
+	ArrheniusA     float64      `json:"arrhenius_a"`
+	ArrheniusEa    float64      `json:"arrhenius_ea"`
+	PRFAlpha       float64      `json:"prf_alpha_ppm_per_c"`
+	BodyTemp       float64      `json:"body_temp_c"`
+	BaselineFrames int          `json:"baseline_frames"`
+	Drift          string       `json:"drift"`
+	DriftOrder     int          `json:"drift_order"`
+	PhaseScale     float64      `json:"phase_scale"`
+	B0             float64      `json:"b0_t"`
+	TEms           float64      `json:"te_ms"`
+	Trials         int          `json:"trials"`
+	DriftRef       *review.Rect `json:"drift_reference,omitempty"`
+	Excluded       []int        `json:"excluded,omitempty"`
+}
+
+// readLegacySettings converts settings of the earlier layout; fields it
+// did not have (seed, phase sign, quality thresholds, time rule) take
+// their defaults, as they did then.
+func readLegacySettings(js []byte) (review.Settings, error) {
+	var l legacySettings
+	if err := json.Unmarshal(js, &l); err != nil {
+		return review.Settings{}, fmt.Errorf("settings of the earlier layout: %w", err)
+	}
+	s := review.DefaultSettings()
+	s.Threshold, s.MarginMM, s.Trials = l.Threshold, l.MarginMM, l.Trials
+	s.Model = review.Model(l.Model)
+	s.Excluded = l.Excluded
+	if l.CEM43RAbove > 0 && l.CEM43RBelow > 0 {
+		s.CEM43.Break, s.CEM43.RAbove, s.CEM43.RBelow = l.CEM43Break, l.CEM43RAbove, l.CEM43RBelow
+	}
+	if l.ArrheniusA > 0 && l.ArrheniusEa > 0 {
+		s.Arrhenius.A, s.Arrhenius.Ea = l.ArrheniusA, l.ArrheniusEa
+		s.Arrhenius.Tissue, s.Arrhenius.Source = l.ArrheniusSet, "entered by the user"
+		if set, ok := dosemap.ArrheniusSet(l.ArrheniusSet); ok && set.A == l.ArrheniusA && set.Ea == l.ArrheniusEa {
+			s.Arrhenius = set
+		}
+	}
+	t := &s.Thermometry
+	if l.PRFAlpha != 0 {
+		t.AlphaPPMPerC = l.PRFAlpha
+	}
+	if l.BodyTemp > 0 {
+		t.BodyTempC = l.BodyTemp
+	}
+	if l.BaselineFrames > 0 {
+		t.BaselineFrames = l.BaselineFrames
+	}
+	t.PhaseScale, t.B0T, t.TEms, t.DriftReference = l.PhaseScale, l.B0, l.TEms, l.DriftRef
+	switch l.Drift {
+	case "none":
+		t.Drift = dosemap.DriftNone
+	case "polynomial":
+		t.Drift, t.DriftOrder = dosemap.DriftPolynomial, min(l.DriftOrder, review.MaxDriftOrder)
+	default: // the earlier window's default
+		t.Drift = dosemap.DriftMean
+	}
+	if err := s.Validate(); err != nil {
+		return s, fmt.Errorf("settings of the earlier layout: %w", err)
+	}
+	return s, nil
 }

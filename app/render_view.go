@@ -12,13 +12,6 @@ import (
 	"dosecover/review/view"
 )
 
-// The shared plane renderer of the review packages (review/view), also
-// used by the report, so the window and the report draw alike.
-func init() {
-	renderPlane = renderPlaneShared
-	washColour = washColourShared
-}
-
 // sharedView is the shared renderer's state for one viewer: renderers of
 // the latest slices shown or prepared (each keeps the samples, isolines and
 // outlines of its slice's plane), the scene handed to them and the
@@ -178,7 +171,7 @@ func slicePlane(t viewTransform) (view.Plane, bool) {
 // pixel per display pixel. The returned image is reused by the next call.
 func renderPlaneShared(s *sceneLayers, t viewTransform, opt displayOptions, cache *any) *image.RGBA {
 	if t.W <= 0 || t.H <= 0 || !(t.MMPerPixel > 0) {
-		return renderPlaneBasic(s, t, opt)
+		return image.NewRGBA(image.Rect(0, 0, max(t.W, 1), max(t.H, 1)))
 	}
 	sv, _ := (*cache).(*sharedView)
 	if sv == nil {
@@ -237,16 +230,14 @@ func renderPlaneShared(s *sceneLayers, t viewTransform, opt displayOptions, cach
 	}
 	img, err := sv.renderer(s, p).Render(sc, v, sv.dst)
 	if err != nil {
-		return renderPlaneBasic(s, t, opt)
+		// Say so on the view rather than draw something else.
+		img = image.NewRGBA(image.Rect(0, 0, t.W, t.H))
+		label(img, 8, 20, "cannot draw this view: "+err.Error(), color.RGBA{0xF0, 0xF0, 0xF0, 0xFF})
+		return img
 	}
 	sv.dst = img
 	if ok && prefetchSlices {
 		sv.prefetch(t, sc)
 	}
 	return img
-}
-
-// washColour is the colour of dose d on the shared renderer's wash.
-func washColourShared(d, floor, top float64) color.RGBA {
-	return view.Colormap(view.DoseScale{Floor: floor, Ceiling: top, Opacity: 1}.T(d))
 }

@@ -230,7 +230,7 @@ func TestReportSignOffStale(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	rec := &reviewRecord{InputHash: hash, Files: n, Settings: defaultSettings(), SignOffs: []review.SignOff{so}}
+	rec := &reviewRecord{InputHash: hash, Files: n, Settings: review.DefaultSettings(), SignOffs: []review.SignOff{so}}
 	if err := rec.save(); err != nil {
 		t.Fatal(err)
 	}

@@ -15,56 +15,32 @@ import (
 
 	"dosecover/dosemap"
 	"dosecover/review"
-	"dosecover/review/report"
 
 	"fyne.io/fyne/v2/test"
 )
 
-func TestSettingsValidate(t *testing.T) {
-	ok := defaultSettings()
-	if err := ok.validate(); err != nil {
-		t.Fatalf("built-in defaults rejected: %v", err)
-	}
-	for _, c := range []struct {
-		name   string
-		change func(*analysisSettings)
-		want   string // part of the error message
-	}{
-		{"zero threshold", func(s *analysisSettings) { s.Threshold = 0 }, "threshold"},
-		{"NaN threshold", func(s *analysisSettings) { s.Threshold = math.NaN() }, "threshold"},
-		{"negative margin", func(s *analysisSettings) { s.MarginMM = -1 }, "margin"},
-		{"unknown model", func(s *analysisSettings) { s.Model = "linear" }, "model"},
-		{"positive PRF alpha", func(s *analysisSettings) { s.PRFAlpha = 0.01 }, "PRF"},
-		{"no baseline", func(s *analysisSettings) { s.BaselineFrames = 0 }, "baseline"},
-		{"bad drift", func(s *analysisSettings) { s.Drift = "spline" }, "drift"},
-		{"drift order", func(s *analysisSettings) { s.Drift, s.DriftOrder = "polynomial", 9 }, "order"},
-		{"arrhenius without A", func(s *analysisSettings) { s.Model, s.ArrheniusA, s.ArrheniusEa = "arrhenius", 0, 1 }, "frequency factor"},
-		{"B0 too high", func(s *analysisSettings) { s.B0 = 30 }, "B0"},
-		{"R below", func(s *analysisSettings) { s.CEM43RBelow = 0 }, "below"},
-	} {
-		s := defaultSettings()
-		c.change(&s)
-		err := s.validate()
-		if err == nil || !strings.Contains(err.Error(), c.want) {
-			t.Errorf("%s: got %v, want an error mentioning %q", c.name, err, c.want)
-		}
-	}
-}
-
 func TestSettingsPreferencesKeepDefaultsNotExclusions(t *testing.T) {
 	a := test.NewTempApp(t)
-	s := defaultSettings()
-	s.Threshold, s.MarginMM, s.Excluded = 100, 3, []int{2}
+	s := review.DefaultSettings()
+	s.Threshold, s.MarginMM, s.Excluded = 100, 4, []int{2}
+	s.Thermometry.Drift = dosemap.DriftNone
 	savePrefSettings(a.Preferences(), s)
 	got := loadPrefSettings(a.Preferences())
-	if got.Threshold != 100 || got.MarginMM != 3 {
-		t.Errorf("saved threshold/margin not restored: %+v", got)
+	if got.Threshold != 100 || got.MarginMM != 4 || got.Thermometry.Drift != dosemap.DriftNone || len(got.Excluded) != 0 {
+		t.Errorf("saved settings not restored, or exclusions kept: %+v", got)
+	}
+	// Defaults saved by the earlier window layout still read.
+	a.Preferences().SetString(prefSettings, "")
+	a.Preferences().SetString(prefSettingsV1, `{"threshold":120,"margin_mm":5,"model":"cem43","cem43_break_c":43,"cem43_r_above":0.5,"cem43_r_below":0.25,"prf_alpha_ppm_per_c":-0.0098,"body_temp_c":37,"baseline_frames":3,"drift":"mean","drift_order":1,"trials":50}`)
+	got = loadPrefSettings(a.Preferences())
+	if got.Threshold != 120 || got.MarginMM != 5 || got.Thermometry.AlphaPPMPerC != -0.0098 || got.Thermometry.BaselineFrames != 3 || got.Thermometry.Drift != dosemap.DriftMean {
+		t.Errorf("earlier layout read as %+v", got)
 	}
 	if len(got.Excluded) != 0 {
 		t.Errorf("exclusions belong to one case but were kept as defaults: %v", got.Excluded)
 	}
 	a.Preferences().SetString(prefSettings, `{"threshold": -5}`)
-	if got := loadPrefSettings(a.Preferences()); got.Threshold != defaultSettings().Threshold {
+	if got := loadPrefSettings(a.Preferences()); got.Threshold != review.DefaultSettings().Threshold {
 		t.Errorf("invalid saved settings were used: %+v", got)
 	}
 }
@@ -88,10 +64,6 @@ func TestHashInputs(t *testing.T) {
 	// the composition rests on.
 	if abc := sha256.Sum256([]byte("abc")); hex.EncodeToString(abc[:]) != "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad" {
 		t.Error("SHA-256 of abc differs from FIPS 180-2 B.1")
-	}
-	// The reports print the same hash (independent implementation).
-	if rep, err := report.HashFolder(dir); err != nil || rep != h1 {
-		t.Errorf("report.HashFolder = %s (%v), window %s", rep, err, h1)
 	}
 	// The same content in another folder gives the same hash; a changed
 	// byte or a new file changes it.
@@ -128,7 +100,7 @@ func TestReviewRecordRoundTripOutsideInput(t *testing.T) {
 	if r, err := loadRecord(hash); r != nil || err != nil {
 		t.Fatalf("record before any save: %v, %v", r, err)
 	}
-	rec := &reviewRecord{InputHash: hash, Files: n, Settings: defaultSettings()}
+	rec := &reviewRecord{InputHash: hash, Files: n, Settings: review.DefaultSettings()}
 	at := time.Date(2026, 3, 4, 5, 6, 7, 0, time.UTC)
 	rec.SignOffs = append(rec.SignOffs, review.SignOff{Reviewer: "Dr. Example", Outcome: review.OutcomeAccepted, Comment: "ok", Time: at, InputHash: hash})
 	if err := rec.save(); err != nil {
@@ -198,47 +170,27 @@ func TestViewTransformRoundTrip(t *testing.T) {
 	}
 }
 
-func TestDoseWashOrderedAndTransparentBelowFloor(t *testing.T) {
-	if _, ok := doseWash(0.5, 1, 100); ok {
-		t.Error("dose below the floor is drawn")
-	}
-	if _, ok := doseWash(math.NaN(), 1, 100); ok {
-		t.Error("NaN dose (not monitored) is drawn")
-	}
-	// Relative luminance (ITU-R BT.709 weights) must rise with dose so the
-	// wash reads in order without hue.
-	prev := -1.0
-	for _, d := range []float64{1, 3, 10, 30, 100, 1000} {
-		c, ok := doseWash(d, 1, 100)
-		if !ok {
-			t.Fatalf("dose %g not drawn", d)
-		}
-		l := 0.2126*float64(c.R) + 0.7152*float64(c.G) + 0.0722*float64(c.B)
-		if l < prev {
-			t.Errorf("luminance falls at dose %g: %.1f < %.1f", d, l, prev)
-		}
-		prev = l
-	}
-}
-
 func TestMissingScannerValuesAsked(t *testing.T) {
-	rw := &reviewWindow{loaded: &loadedCase{MissingB0: true, MissingTE: true}, settings: defaultSettings()}
+	rw := &reviewWindow{loaded: &loadedCase{MissingB0: true, MissingTE: true}, settings: review.DefaultSettings()}
 	note := rw.missingScannerValues()
 	for _, want := range []string{"B0", "MagneticFieldStrength", "TE", "EchoTime"} {
 		if !strings.Contains(note, want) {
 			t.Errorf("request %q lacks %q", note, want)
 		}
 	}
-	rw.settings.B0 = 3
+	rw.settings.Thermometry.B0T = 3
 	if note := rw.missingScannerValues(); strings.Contains(note, "B0") || !strings.Contains(note, "TE") {
 		t.Errorf("with B0 given the request is %q", note)
 	}
-	rw.settings.TEms = 12
+	rw.settings.Thermometry.TEms = 12
 	if note := rw.missingScannerValues(); note != "" {
 		t.Errorf("with B0 and TE given the window still asks: %q", note)
 	}
 	// The settings reach the thermometry in SI units.
-	o := thermometryOptions(rw.settings)
+	o, err := rw.settings.Thermometry.Options(dosemap.NewAxialGeometry(2, 2, 1, dosemap.Vec3{1, 1, 1}, dosemap.Vec3{}))
+	if err != nil {
+		t.Fatal(err)
+	}
 	if o.PRF.B0 != 3 || math.Abs(o.PRF.TE-0.012) > 1e-15 {
 		t.Errorf("thermometry B0 %g T, TE %g s; want 3 T, 0.012 s", o.PRF.B0, o.PRF.TE)
 	}

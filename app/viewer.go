@@ -8,6 +8,7 @@ import (
 	"math"
 
 	"dosecover/dosemap"
+	"dosecover/review"
 
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/canvas"
@@ -44,7 +45,7 @@ type sliceViewer struct {
 	refMode    bool
 	refA, refB *dosemap.Vec3
 	onRef      func(a, b, u, v dosemap.Vec3)
-	refShown   func() *refRect // the reference region to outline; nil: none
+	refShown   func() *review.Rect // the reference region to outline; nil: none
 
 	onHover  func(p dosemap.Vec3, inside bool)
 	onPin    func(p dosemap.Vec3)
@@ -163,7 +164,7 @@ func (v *sliceViewer) draw(w, h int) image.Image {
 	v.lastSize = v.Size()
 	img := renderPlane(v.scene, t, *v.opt, &v.cache)
 	if v.refA != nil && v.refB != nil {
-		drawRect(img, t, newRefRect(*v.refA, *v.refB, t.U, t.V))
+		drawRect(img, t, review.NewRect(*v.refA, *v.refB, t.U, t.V))
 	} else if v.refShown != nil {
 		if r := v.refShown(); r != nil {
 			drawRect(img, t, r)
@@ -173,8 +174,8 @@ func (v *sliceViewer) draw(w, h int) image.Image {
 }
 
 // drawRect outlines r (projected onto the view) with a dotted white line.
-func drawRect(img *image.RGBA, t viewTransform, r *refRect) {
-	c := r.corners()
+func drawRect(img *image.RGBA, t viewTransform, r *review.Rect) {
+	c := r.Corners()
 	for n := range 4 {
 		x0, y0 := t.Pixel(c[n])
 		x1, y1 := t.Pixel(c[(n+1)%4])

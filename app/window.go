@@ -12,6 +12,7 @@ import (
 	"sync/atomic"
 
 	"dosecover/dosemap"
+	"dosecover/review"
 	"dosecover/review/report"
 
 	"fyne.io/fyne/v2"
@@ -32,7 +33,7 @@ type reviewWindow struct {
 	hash       string
 	nFiles     int
 	record     *reviewRecord
-	settings   analysisSettings
+	settings   review.Settings
 	sess       session
 	result     *analysisResult
 	selected   int // sonication row shown alone; -1 for the cumulative dose
@@ -44,7 +45,7 @@ type reviewWindow struct {
 	jobGen     int
 	pendingDir string // the folder being opened
 	probeGen   int
-	probeCurve *probeCurve
+	probeCurve *review.Probe
 	active     *sliceViewer
 
 	// completed counts finished background jobs (loads and analyses, with
@@ -144,7 +145,7 @@ func (rw *reviewWindow) build() {
 		v.onPin = rw.pin
 		v.onWindow = rw.redraw
 		v.onFocus = func(v *sliceViewer) { rw.active = v }
-		v.refShown = func() *refRect { return rw.settings.DriftRef }
+		v.refShown = func() *review.Rect { return rw.settings.Thermometry.DriftReference }
 		v.onRef = rw.refDrawn
 		sel := widget.NewSelect([]string{planeAcquisition.String(), planeReformatRow.String(), planeReformatCol.String()}, nil)
 		sel.SetSelectedIndex(int(kind))
@@ -581,10 +582,10 @@ func (rw *reviewWindow) startRefMode() {
 // automaticRef returns to the automatically chosen drift reference.
 func (rw *reviewWindow) automaticRef() {
 	rw.viewers[0].refMode = false
-	if rw.settings.DriftRef == nil {
+	if rw.settings.Thermometry.DriftReference == nil {
 		return
 	}
-	rw.settings.DriftRef = nil
+	rw.settings.Thermometry.DriftReference = nil
 	rw.redraw()
 	rw.runAnalysis(true)
 }
@@ -593,18 +594,22 @@ func (rw *reviewWindow) automaticRef() {
 // the temperatures.
 func (rw *reviewWindow) refDrawn(a, b, u, v dosemap.Vec3) {
 	rw.viewers[0].refMode = false
-	r := newRefRect(a, b, u, v)
+	r := review.NewRect(a, b, u, v)
 	if r.W < 1 || r.H < 1 {
 		rw.status.SetText("The rectangle was too small; the drift reference is unchanged.")
 		return
 	}
-	if rw.loaded != nil {
-		if _, err := referenceMask(r, rw.loaded.Case); err != nil {
-			rw.showError("The drift reference was not changed", err)
-			return
+	if rw.loaded != nil && rw.loaded.Case != nil {
+		t := rw.settings.Thermometry
+		t.DriftReference = r
+		for _, so := range rw.loaded.Case.Sonications {
+			if _, err := t.Options(so.Geometry); err != nil {
+				rw.showError("The drift reference was not changed", fmt.Errorf("sonication %d: %w", so.Number, err))
+				return
+			}
 		}
 	}
-	rw.settings.DriftRef = r
+	rw.settings.Thermometry.DriftReference = r
 	rw.redraw()
 	rw.runAnalysis(true)
 }

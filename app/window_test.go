@@ -30,14 +30,14 @@ func TestOpenShowsMetrics(t *testing.T) {
 	// Sonications 1 and 2 (peak 3000 CEM43, sigma 5 mm) cover the 10 mm
 	// sphere: the weakest target point, (0, ±10, 0), receives
 	// 2·3000·exp(-(25+100)/50) = 492 CEM43 ≥ 240 (computed).
-	if r.Covered < 0.999 {
-		t.Errorf("covered fraction %.4f, want 1 (every target point gets ≥ 492 CEM43)", r.Covered)
+	if r.CoveredFraction < 0.999 {
+		t.Errorf("covered fraction %.4f, want 1 (every target point gets ≥ 492 CEM43)", r.CoveredFraction)
 	}
 	// Target volume: a 10 mm sphere, 4/3·π·1000 mm³ = 4.19 mL; the slab
 	// model of 2 mm slices approximates it within 5 % (tolerance for the
 	// slice discretisation).
-	if want := 4.0 / 3 * math.Pi * 1000 / 1000; math.Abs(r.TargetML-want) > 0.05*want {
-		t.Errorf("target volume %.3f mL, want %.3f ± 5 %%", r.TargetML, want)
+	if want := 4.0 / 3 * math.Pi * 1000 / 1000; math.Abs(r.TargetVolumeML-want) > 0.05*want {
+		t.Errorf("target volume %.3f mL, want %.3f ± 5 %%", r.TargetVolumeML, want)
 	}
 	facts := rw.metrics.facts.Text
 	for _, want := range []string{"PTV phantom", "Covered", "100.0 %", "Holes", "Lethal outside margin", "240 CEM43 min", "3 mm"} {
@@ -45,7 +45,7 @@ func TestOpenShowsMetrics(t *testing.T) {
 			t.Errorf("metrics panel lacks %q:\n%s", want, facts)
 		}
 	}
-	if len(r.Outside) == 0 {
+	if len(r.SpillRows) == 0 {
 		t.Error("sonication 3, 16 mm posterior, left no lethal cluster outside the margin")
 	}
 	if rows, _ := rw.sonTable.Length(); rows != 3 {
@@ -106,7 +106,7 @@ func TestUntickSonicationChangesCoverage(t *testing.T) {
 	openSynthetic(t, rw)
 	before := rw.result
 	var addedBy1 float64
-	for _, s := range before.Sonications {
+	for _, s := range before.SonRows {
 		if s.Number == 1 {
 			addedBy1 = s.CoverageAdded
 		}
@@ -122,16 +122,16 @@ func TestUntickSonicationChangesCoverage(t *testing.T) {
 	if got := rw.settings.Excluded; len(got) != 1 || got[0] != 2 {
 		t.Fatalf("excluded sonications %v, want [2]", got)
 	}
-	if !(after.Covered < before.Covered-0.1) {
-		t.Errorf("coverage %.3f -> %.3f: leaving out sonication 2 should uncover the right half", before.Covered, after.Covered)
+	if !(after.CoveredFraction < before.CoveredFraction-0.1) {
+		t.Errorf("coverage %.3f -> %.3f: leaving out sonication 2 should uncover the right half", before.CoveredFraction, after.CoveredFraction)
 	}
 	// Coverage is credited in delivery order, so the coverage without
 	// sonication 2 (sonication 3 adds none) equals what sonication 1 added
 	// in the full analysis; 1 % for the analysis grid.
-	if math.Abs(after.Covered-addedBy1) > 0.01 {
-		t.Errorf("coverage without sonication 2 is %.3f, sonication 1 alone was credited %.3f", after.Covered, addedBy1)
+	if math.Abs(after.CoveredFraction-addedBy1) > 0.01 {
+		t.Errorf("coverage without sonication 2 is %.3f, sonication 1 alone was credited %.3f", after.CoveredFraction, addedBy1)
 	}
-	if len(after.Holes) == 0 {
+	if len(after.HoleRows) == 0 {
 		t.Error("no hole reported after leaving out sonication 2")
 	}
 	if !strings.Contains(rw.metrics.facts.Text, "Sonications left out") {
@@ -141,8 +141,8 @@ func TestUntickSonicationChangesCoverage(t *testing.T) {
 	mark = rw.completed.Load()
 	test.Tap(checksOf(rw.sonTable)[1])
 	waitJobs(t, rw, mark, 1)
-	if math.Abs(rw.result.Covered-before.Covered) > 1e-9 {
-		t.Errorf("coverage after re-ticking %.4f, want %.4f", rw.result.Covered, before.Covered)
+	if math.Abs(rw.result.CoveredFraction-before.CoveredFraction) > 1e-9 {
+		t.Errorf("coverage after re-ticking %.4f, want %.4f", rw.result.CoveredFraction, before.CoveredFraction)
 	}
 }
 
@@ -152,10 +152,10 @@ func TestClickHoleJumpsToSlice(t *testing.T) {
 	mark := rw.completed.Load()
 	rw.setExcluded(2, true)
 	waitJobs(t, rw, mark, 1)
-	if len(rw.result.Holes) == 0 {
+	if len(rw.result.HoleRows) == 0 {
 		t.Fatal("no hole to click")
 	}
-	h := rw.result.Holes[0]
+	h := rw.result.HoleRows[0]
 	v := rw.viewers[0]
 	v.setSlice(0)
 	rw.metrics.holes.Select(0)
@@ -488,24 +488,17 @@ func TestDrawDriftReference(t *testing.T) {
 	// The thermometry grid of the fixture has voxel centres at x, y = -29,
 	// -27, ... mm and 10 slices: a rectangle from (-30, -30) to (-20.5,
 	// -20.5) mm holds x, y in {-29, ..., -21}, 5 × 5 × 10 = 250 voxels.
-	r := newRefRect(dosemap.Vec3{-20.5, -20.5, 0}, dosemap.Vec3{-30, -30, 0}, dosemap.Vec3{1, 0, 0}, dosemap.Vec3{0, 1, 0})
+	r := review.NewRect(dosemap.Vec3{-20.5, -20.5, 0}, dosemap.Vec3{-30, -30, 0}, dosemap.Vec3{1, 0, 0}, dosemap.Vec3{0, 1, 0})
 	if r.W != 9.5 || r.H != 9.5 || r.Origin != (dosemap.Vec3{-30, -30, 0}) {
 		t.Fatalf("rectangle %+v", r)
 	}
-	m, err := referenceMask(r, rw.loaded.Case)
-	if err != nil {
-		t.Fatal(err)
-	}
-	n := 0
-	for _, in := range m {
-		if in {
-			n++
-		}
-	}
-	if n != 250 {
+	g := rw.loaded.Case.Sonications[0].Geometry
+	if _, n := r.Mask(g); n != 250 {
 		t.Errorf("reference holds %d voxels, want 250", n)
 	}
-	if _, err := referenceMask(newRefRect(dosemap.Vec3{100, 100, 0}, dosemap.Vec3{110, 110, 0}, r.U, r.V), rw.loaded.Case); err == nil {
+	far := rw.settings.Thermometry
+	far.DriftReference = review.NewRect(dosemap.Vec3{100, 100, 0}, dosemap.Vec3{110, 110, 0}, r.U, r.V)
+	if _, err := far.Options(g); err == nil {
 		t.Error("a rectangle outside the thermometry was accepted")
 	}
 	// Drawing on the left image: a drag in reference mode sets the
@@ -518,7 +511,7 @@ func TestDrawDriftReference(t *testing.T) {
 	v.Dragged(&fyne.DragEvent{PointEvent: fyne.PointEvent{Position: fyne.NewPos(120, 110)}, Dragged: fyne.NewDelta(60, 50)})
 	v.DragEnd()
 	waitJobs(t, rw, mark, 1)
-	if rw.settings.DriftRef == nil || v.refMode {
+	if rw.settings.Thermometry.DriftReference == nil || v.refMode {
 		t.Fatalf("no drift reference after drawing (mode still %v); status %q", v.refMode, rw.status.Text)
 	}
 	if !strings.Contains(rw.metrics.used.Text, "reference region drawn") {
@@ -527,7 +520,7 @@ func TestDrawDriftReference(t *testing.T) {
 	mark = rw.completed.Load()
 	rw.automaticRef()
 	waitJobs(t, rw, mark, 1)
-	if rw.settings.DriftRef != nil || !strings.Contains(rw.metrics.used.Text, "automatic reference") {
+	if rw.settings.Thermometry.DriftReference != nil || !strings.Contains(rw.metrics.used.Text, "automatic reference") {
 		t.Errorf("automatic reference not restored: %q", rw.metrics.used.Text)
 	}
 }

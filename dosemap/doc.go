@@ -13,6 +13,10 @@
 //   - Temperatures are in degrees Celsius, times in seconds, thermal dose in
 //     CEM43 minutes.
 //
-// The package imports only the standard library and gonum; it knows nothing
-// of DICOM files or of the user interface.
+// The package itself imports only the standard library, gonum and
+// golang.org/x/sys/cpu (to choose the vector kernels of the hot loops); it
+// reads no files and knows nothing of the user interface. Its
+// subpackages hold what touches files: dicomio reads a DICOM case folder
+// into a Case, deid writes de-identified copies, sim simulates sessions
+// and writes them as DICOM, safefile writes outputs atomically.
 package dosemap

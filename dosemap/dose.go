@@ -34,6 +34,34 @@ func (r TimeRule) String() string {
 	return "trapezoid"
 }
 
+// ParseTimeRule returns the rule named "trapezoid" or "rectangle".
+func ParseTimeRule(name string) (TimeRule, error) {
+	switch name {
+	case "trapezoid":
+		return RuleTrapezoid, nil
+	case "rectangle":
+		return RuleRectangle, nil
+	}
+	return 0, fmt.Errorf("time rule %q: want trapezoid or rectangle", name)
+}
+
+// MarshalText writes the rule by name (JSON: "trapezoid" or "rectangle").
+func (r TimeRule) MarshalText() ([]byte, error) {
+	if r != RuleTrapezoid && r != RuleRectangle {
+		return nil, fmt.Errorf("time rule %d is not a rule", int(r))
+	}
+	return []byte(r.String()), nil
+}
+
+// UnmarshalText reads a rule written by MarshalText.
+func (r *TimeRule) UnmarshalText(b []byte) error {
+	v, err := ParseTimeRule(string(b))
+	if err == nil {
+		*r = v
+	}
+	return err
+}
+
 // DoseMap is a thermal-dose volume. NaN marks a voxel that no valid
 // interval of thermometry covered ("not monitored").
 type DoseMap struct {
@@ -72,8 +100,10 @@ type rateModel interface {
 // than 43 °C the rate is discontinuous at Break, as in the papers that use
 // such a break.
 type CEM43 struct {
-	Break, RAbove, RBelow float64
-	Rule                  TimeRule
+	Break  float64  `json:"break_c"` // °C where R changes
+	RAbove float64  `json:"r_above"` // R at or above Break
+	RBelow float64  `json:"r_below"` // R below Break
+	Rule   TimeRule `json:"rule"`
 }
 
 // DefaultCEM43 returns the Sapareto–Dewey model: break 43 °C, R = 0.5
@@ -170,10 +200,11 @@ const ZeroCelsius = 273.15
 // activation energy (J/mol). The parameter sets in ArrheniusSets are tissue
 // specific; choose the one your protocol uses.
 type Arrhenius struct {
-	Tissue string  // parameter set, for display
-	A, Ea  float64 // s⁻¹, J/mol
-	Rule   TimeRule
-	Source string // where A and Ea come from
+	Tissue string   `json:"tissue"`       // parameter set, for display
+	A      float64  `json:"a_per_s"`      // frequency factor, s⁻¹
+	Ea     float64  `json:"ea_j_per_mol"` // activation energy, J/mol
+	Rule   TimeRule `json:"rule"`
+	Source string   `json:"source"` // where A and Ea come from
 }
 
 // ArrheniusSets lists Arrhenius parameter sets. The values are given as

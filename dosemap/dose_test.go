@@ -30,7 +30,7 @@ func relErr(got, want float64) float64 { return math.Abs(got-want) / math.Abs(wa
 func TestCEM43ConstantTemperature(t *testing.T) {
 	// computed from CEM43 = Σ R^(43−T)·Δt with R = 0.5 above and 0.25 below
 	// 43 °C (Sapareto & Dewey, Int J Radiat Oncol Biol Phys 1984;10:787);
-	// values listed in check-values.md. Tolerance 1e-6 relative: the dose is
+	// values listed in testdata/check-values.md. Tolerance 1e-6 relative: the dose is
 	// stored as float32 (2^-24 ≈ 6e-8) and exp2 is accurate to 3e-13.
 	cases := []struct {
 		temp    float32
@@ -60,7 +60,7 @@ func TestCEM43ConstantTemperature(t *testing.T) {
 }
 
 func TestCEM43TimeToLethal(t *testing.T) {
-	// check-values.md (computed from the Sapareto–Dewey definition): the
+	// testdata/check-values.md (computed from the Sapareto–Dewey definition): the
 	// constant temperature that gives 240 CEM43 in 1, 3, 10, 20, 60 s. We
 	// solve Dose(T) = 240 by bisection on the model itself and compare to
 	// the listed values within 0.01 °C (their rounding).
@@ -88,7 +88,7 @@ func TestCEM43TimeToLethal(t *testing.T) {
 
 func TestCEM43Parameters(t *testing.T) {
 	// computed from R^(43−T) with the chosen R and break (the reciprocal and
-	// 42.5 °C-break forms some authors use, check-values.md); 1e-6 relative.
+	// 42.5 °C-break forms some authors use, testdata/check-values.md); 1e-6 relative.
 	cases := []struct {
 		m    CEM43
 		temp float32
@@ -112,7 +112,7 @@ func TestCEM43Parameters(t *testing.T) {
 
 func TestArrheniusTimeToDamage(t *testing.T) {
 	// Ω = A ∫ exp(−Ea/(R·T)) dt = 1 (Henriques & Moritz 1947). The parameter
-	// sets are "from memory" (check-values.md). The listed times (computed
+	// sets are "from memory" (testdata/check-values.md). The listed times (computed
 	// there) are reproduced with R = 8.314 J/(mol·K); the package uses the
 	// exact CODATA R = 8.314462618, which shortens them by about 1.3 %, so
 	// we check (a) the model against the closed form t = 1/(A·exp(−Ea/RT))
@@ -121,7 +121,7 @@ func TestArrheniusTimeToDamage(t *testing.T) {
 	cases := []struct {
 		tissue string
 		temp   float64
-		want   float64 // seconds, check-values.md
+		want   float64 // seconds, testdata/check-values.md
 	}{
 		{"skin", 55, 30.0}, {"skin", 60, 0.947}, {"liver", 60, 3.45}, {"liver", 50, 61.4},
 	}

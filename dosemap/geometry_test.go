@@ -67,7 +67,7 @@ func randomGeometry(rng *rand.Rand) Geometry {
 }
 
 func TestPointMatchesDICOM(t *testing.T) {
-	// MR_small.dcm of pydicom's test files (check-values.md): IPP
+	// MR_small.dcm of pydicom's test files (testdata/check-values.md): IPP
 	// (-83.9063, -91.2, 6.6406), PixelSpacing 0.3125, axial; and an oblique
 	// plane with unequal row/column spacing. Reference: PS3.3 C.7.6.2.1.1;
 	// tolerance 1e-9 mm (double rounding).

@@ -32,23 +32,6 @@ func setVectorKernels(on bool) bool {
 //go:noescape
 func cemRatesAVX2(t *float32, f *float64, n int, brk, la, lb float64) (fine int)
 
-// unwrapAVX2 is unwrapRun for n voxels (n a multiple of 4), four at a
-// time, with the operations of unwrapScalar in the same order and
-// rounding (no fused multiply-add), so to the same values.
-//
-//go:noescape
-func unwrapAVX2(v, ref, last *float32, turns *int16, out, mag *float32, n int, thr float32) (wraps int)
-
-// convertAVX2 is convertRow for n voxels (n a multiple of 4), four at a
-// time, the temperatures with the operations of convertScalar in the same
-// order and rounding (no fused multiply-add). best and at hold, per lane
-// (voxels l, l+4, l+8, ...), the largest converted value above the value
-// they hold on entry and its first position (at unchanged when none); the
-// magnitude sum is taken in four lanes.
-//
-//go:noescape
-func convertAVX2(u *float32, x *float64, ms *float32, n int, k *[4]float64, best *[4]float32, at *[4]int32) (msum float64, valid int)
-
 // trapezoidAVX2 is trapezoid for n voxels (n a multiple of 4), four at a
 // time, with the product and the sum rounded separately as in
 // trapezoidScalar.

@@ -12,14 +12,6 @@ func cemRatesAVX2(t *float32, f *float64, n int, brk, la, lb float64) int {
 	panic("dosemap: no vector kernel")
 }
 
-func unwrapAVX2(v, ref, last *float32, turns *int16, out, mag *float32, n int, thr float32) int {
-	panic("dosemap: no vector kernel")
-}
-
-func convertAVX2(u *float32, x *float64, ms *float32, n int, k *[4]float64, best *[4]float32, at *[4]int32) (float64, int) {
-	panic("dosemap: no vector kernel")
-}
-
 func trapezoidAVX2(f, acc, prev *float64, got *bool, miss *uint32, n int, h float64) {
 	panic("dosemap: no vector kernel")
 }

@@ -122,7 +122,7 @@ func TestMonteCarloReproducible(t *testing.T) {
 func TestLethalProbability(t *testing.T) {
 	// Voxel 0: 60 s at 50 °C = 128 CEM43 ≪ 240, noise 0.2 °C: never lethal.
 	// Voxel 1: 60 s at 53 °C = 1024 CEM43 ≫ 240: always lethal.
-	// Voxel 2: 60 s at 50.91 °C ≈ 240 CEM43 (check-values.md) with σ = 0:
+	// Voxel 2: 60 s at 50.91 °C ≈ 240 CEM43 (testdata/check-values.md) with σ = 0:
 	// deterministic, lethal iff 2^(7.91) ≥ 240 (241 ≥ 240: yes).
 	// Voxel 3: outside the mask → NaN.
 	ts := constSeries(uniformTimes(61, 1), 50, 53, 50.91, 60)

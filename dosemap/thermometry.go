@@ -45,6 +45,37 @@ func (d DriftMethod) String() string {
 	return "none"
 }
 
+// ParseDriftMethod returns the method named "none", "mean" or "polynomial".
+func ParseDriftMethod(name string) (DriftMethod, error) {
+	switch name {
+	case "none":
+		return DriftNone, nil
+	case "mean":
+		return DriftMean, nil
+	case "polynomial":
+		return DriftPolynomial, nil
+	}
+	return 0, fmt.Errorf("drift correction %q: want none, mean or polynomial", name)
+}
+
+// MarshalText writes the method by name (JSON: "none", "mean" or
+// "polynomial").
+func (d DriftMethod) MarshalText() ([]byte, error) {
+	if d < DriftNone || d > DriftPolynomial {
+		return nil, fmt.Errorf("drift correction %d is not a method", int(d))
+	}
+	return []byte(d.String()), nil
+}
+
+// UnmarshalText reads a method written by MarshalText.
+func (d *DriftMethod) UnmarshalText(b []byte) error {
+	v, err := ParseDriftMethod(string(b))
+	if err == nil {
+		*d = v
+	}
+	return err
+}
+
 // ThermometryOptions are the settings of Thermometry. A zero field takes the
 // default of DefaultThermometryOptions, except Drift and DriftOrder, whose
 // zero values are meaningful; a negative MinMagnitude or MaxMotion turns that
@@ -662,26 +693,14 @@ func (t *thermo) unwrap() {
 	}
 }
 
-// unwrapRun unwraps the phase v of one run of voxels with signal against
-// their reference phase ref: the change w = wrapPhase(v − ref) takes the
+// unwrapRun unwraps the phase phr of one run of voxels with signal against
+// their reference phase ref: the change w = wrapPhase(phr − ref) takes the
 // turn count k that brings it nearest to the voxel's last valid change
 // (k = 0 when within ±π of it, nearly always), u = w + 2πk goes into out
-// and last, k into turns. A voxel whose phase is NaN or whose magnitude is
+// and lastf, k into turnsf. A voxel whose phase is NaN or whose magnitude mr is
 // below thr is NaN in out and keeps last and turns. It returns the number
-// of voxels whose turn count changed. Where the processor has the vector
-// kernel (unwrapAVX2) it takes blocks of four voxels, to the same values.
-func unwrapRun(v, ref, last []float32, turns []int16, out, mag []float32, thr float32) (wraps int) {
-	if vectorKernels && len(v) >= 4 {
-		m := len(v) &^ 3
-		ref, last, turns, out, mag = ref[:len(v)], last[:len(v)], turns[:len(v)], out[:len(v)], mag[:len(v)]
-		wraps = unwrapAVX2(&v[0], &ref[0], &last[0], &turns[0], &out[0], &mag[0], m, thr)
-		v, ref, last, turns, out, mag = v[m:], ref[m:], last[m:], turns[m:], out[m:], mag[m:]
-	}
-	return wraps + unwrapScalar(v, ref, last, turns, out, mag, thr)
-}
-
-// unwrapScalar is unwrapRun one voxel at a time.
-func unwrapScalar(phr, ref, lastf []float32, turnsf []int16, outf, mr []float32, thr float32) (wraps int) {
+// of voxels whose turn count changed.
+func unwrapRun(phr, ref, lastf []float32, turnsf []int16, outf, mr []float32, thr float32) (wraps int) {
 	const twoPi = 2 * math.Pi
 	const invTwoPi = 1 / twoPi
 	nan := float32(math.NaN())
@@ -808,36 +827,8 @@ func (t *thermo) toTemperature() {
 // coordinate (NaN stays NaN). It returns the sum of ms over the valid
 // voxels and their number, and the hottest converted value with its
 // position in the row when it exceeds hot (at = −1 otherwise; the first
-// such position on ties). Where the processor has the vector kernel
-// (convertAVX2) it takes blocks of four voxels: the same temperatures,
-// count and position, and the sum in another order (equal to about 1e-16
-// relative).
+// such position on ties).
 func convertRow(u []float32, x []float64, ms []float32, k [4]float64, hot float32) (msum float64, valid int, best float32, at int) {
-	x, ms = x[:len(u)], ms[:len(u)]
-	best, at = hot, -1
-	m := 0
-	if vectorKernels && len(u) >= 4 {
-		m = len(u) &^ 3
-		lb := [4]float32{hot, hot, hot, hot}
-		la := [4]int32{-1, -1, -1, -1}
-		msum, valid = convertAVX2(&u[0], &x[0], &ms[0], m, &k, &lb, &la)
-		// The first position of the largest value: the smallest of the
-		// lanes' first positions of their largest.
-		for l := range lb {
-			if la[l] >= 0 && (lb[l] > best || lb[l] == best && int(la[l]) < at) {
-				best, at = lb[l], int(la[l])
-			}
-		}
-	}
-	s, n, b, a := convertScalar(u[m:], x[m:], ms[m:], k, best)
-	if a >= 0 {
-		best, at = b, m+a
-	}
-	return msum + s, valid + n, best, at
-}
-
-// convertScalar is convertRow one voxel at a time.
-func convertScalar(u []float32, x []float64, ms []float32, k [4]float64, hot float32) (msum float64, valid int, best float32, at int) {
 	inv, a, bb, c := k[0], k[1], k[2], k[3]
 	x, ms = x[:len(u)], ms[:len(u)]
 	best, at = hot, -1

@@ -12,7 +12,7 @@ import (
 )
 
 func TestPRFCheckValues(t *testing.T) {
-	// check-values.md, computed from Δφ/ΔT = γ·α·B0·TE with γ/2π =
+	// testdata/check-values.md, computed from Δφ/ΔT = γ·α·B0·TE with γ/2π =
 	// 42.57747892 MHz/T (CODATA 2014) and α = −0.01 ppm/°C; tolerances are
 	// half a unit of the listed last digit. σ_T = √2/(|γαB0TE|·SNR) (the √2
 	// from memory).
@@ -180,7 +180,7 @@ func maxErr(p *phantom, ts *TemperatureSeries) (float64, bool) {
 
 func TestThermometryUnwrapsLargeRise(t *testing.T) {
 	// A 45 °C rise at 3 T / TE 12.8 ms exceeds the 30.6 °C wrap limit
-	// (check-values.md); it rises 3 °C per frame, well below it, so temporal
+	// (testdata/check-values.md); it rises 3 °C per frame, well below it, so temporal
 	// unwrapping must recover it. Noiseless: tolerance 1e-3 °C (float32 phase
 	// ≈ 5e-7 rad ≈ 5e-6 °C).
 	for _, withMag := range []bool{true, false} {
@@ -380,7 +380,7 @@ func TestThermometryLowSignalAndMotion(t *testing.T) {
 
 func TestThermometryNoise(t *testing.T) {
 	// Complex Gaussian noise of σ = m/50 per channel: magnitude SNR 50, phase
-	// noise 1/50 rad. Reference (check-values.md, computed): Sigma =
+	// noise 1/50 rad. Reference (testdata/check-values.md, computed): Sigma =
 	// √2/(|γαB0TE|·SNR) = 0.275 °C at 3 T, TE 12.8 ms; the measured temporal
 	// standard deviation after a baseline of N frames is
 	// (1/SNR)·√(1+1/N)/|γαB0TE|. Tolerance 5 % (≈1000 voxels × frames;

@@ -28,7 +28,7 @@ func ballDose(c dosemap.Vec3, r, lam float64) func(p dosemap.Vec3) float64 {
 }
 
 // thermoGrid is a 1.25x1.25x3 mm axial thermometry grid centred near
-// origin (common practice resolution; check-values.md).
+// origin (common practice resolution; testdata/check-values.md).
 func thermoGrid(cols, rows, slices int) dosemap.Geometry {
 	sp := dosemap.Vec3{1.25, 1.25, 3}
 	return dosemap.NewAxialGeometry(cols, rows, slices, sp,
@@ -336,7 +336,7 @@ func TestAnalyzeErrors(t *testing.T) {
 		{"no target", &dosemap.Case{Sonications: []*dosemap.Sonication{son}}, nil, "no target"},
 		{"no sonication", &dosemap.Case{Structures: []dosemap.Structure{tgt}}, nil, "no sonication"},
 		{"bad threshold", &dosemap.Case{Sonications: []*dosemap.Sonication{son}, Structures: []dosemap.Structure{tgt}}, func(s *Settings) { s.Threshold = -1 }, "threshold"},
-		{"bad model", &dosemap.Case{Sonications: []*dosemap.Sonication{son}, Structures: []dosemap.Structure{tgt}}, func(s *Settings) { s.Model = "x" }, "unknown dose model"},
+		{"bad model", &dosemap.Case{Sonications: []*dosemap.Sonication{son}, Structures: []dosemap.Structure{tgt}}, func(s *Settings) { s.Model = "x" }, `model "x": want cem43 or arrhenius`},
 		{"all excluded", &dosemap.Case{Sonications: []*dosemap.Sonication{son}, Structures: []dosemap.Structure{tgt}}, func(s *Settings) { s.Excluded = []int{1} }, "every sonication"},
 		{"unknown excluded", &dosemap.Case{Sonications: []*dosemap.Sonication{son}, Structures: []dosemap.Structure{tgt}}, func(s *Settings) { s.Excluded = []int{7} }, "does not exist"},
 		{"huge margin", &dosemap.Case{Sonications: []*dosemap.Sonication{son}, Structures: []dosemap.Structure{tgt}}, func(s *Settings) { s.MarginMM = 1e9 }, ""},

@@ -42,7 +42,7 @@ func checkRestrictedMC(t *testing.T, model string, steps []mcStep) {
 	}
 	ctx := context.Background()
 	set := DefaultSettings()
-	set.Model = model
+	set.Model = Model(model)
 	set.Trials = 12
 	set.Seed = 5
 	pruned, err := Prepare(ctx, c, set, nil)

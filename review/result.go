@@ -9,8 +9,9 @@ import (
 )
 
 // SchemaVersion is the version of the JSON layout of Result. It changes
-// whenever a field is renamed, removed or changes meaning.
-const SchemaVersion = 1
+// whenever a field is renamed, removed or changes meaning. Version 2: the
+// settings in snake_case throughout, with the thermometry inside.
+const SchemaVersion = 2
 
 // Cautions are written into every result and report.
 var Cautions = []string{

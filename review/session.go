@@ -5,7 +5,6 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"reflect"
 	"runtime"
 	"slices"
 	"sort"
@@ -44,18 +43,19 @@ const maxAnalysisVoxels = 40_000_000
 // or below which a hole is called "certain".
 const ProbabilityCertain = 0.05
 
-// Settings are the choices of one analysis.
+// Settings are the choices of one analysis; settings.go holds their
+// defaults, limits, JSON, hash and description.
 type Settings struct {
 	Threshold float64 `json:"threshold"`            // lethal dose in the model's unit (CEM43 minutes or Ω)
 	MarginMM  float64 `json:"margin_mm"`            // safety margin around the target, mm
-	Model     string  `json:"model"`                // "cem43" or "arrhenius"
+	Model     Model   `json:"model"`                // "cem43" or "arrhenius"
 	Excluded  []int   `json:"excluded_sonications"` // sonication numbers left out of the cumulative dose
 	Trials    int     `json:"trials"`               // Monte Carlo trials; 0 for none
 	Seed      uint64  `json:"seed"`                 // Monte Carlo seed
 
-	CEM43       dosemap.CEM43              `json:"cem43"`     // parameters of the cem43 model
-	Arrhenius   dosemap.Arrhenius          `json:"arrhenius"` // parameters of the arrhenius model
-	Thermometry dosemap.ThermometryOptions `json:"-"`         // PRF thermometry; summarised in Result.Thermometry
+	CEM43       dosemap.CEM43       `json:"cem43"`       // parameters of the cem43 model
+	Arrhenius   dosemap.Arrhenius   `json:"arrhenius"`   // parameters of the arrhenius model
+	Thermometry ThermometrySettings `json:"thermometry"` // PRF thermometry
 }
 
 // DefaultSettings returns 240 CEM43 (Sapareto & Dewey 1984; the common
@@ -63,8 +63,8 @@ type Settings struct {
 // exclusions, 50 Monte Carlo trials with seed 1, the default CEM43 and
 // Arrhenius parameters and thermometry options of package dosemap.
 func DefaultSettings() Settings {
-	return Settings{Threshold: 240, MarginMM: DefaultMarginMM, Model: "cem43", Trials: 50, Seed: 1,
-		CEM43: dosemap.DefaultCEM43(), Arrhenius: dosemap.DefaultArrhenius(), Thermometry: dosemap.DefaultThermometryOptions()}
+	return Settings{Threshold: 240, MarginMM: DefaultMarginMM, Model: ModelCEM43, Trials: 50, Seed: 1,
+		CEM43: dosemap.DefaultCEM43(), Arrhenius: dosemap.DefaultArrhenius(), Thermometry: DefaultThermometrySettings()}
 }
 
 // ProgressFunc receives the name of the stage being worked on and the
@@ -109,7 +109,7 @@ type Session struct {
 	mu        sync.Mutex
 	label     string
 	target    string
-	model     string
+	model     Model
 	unit      string
 	prepared  Settings
 	fg        *fineGrid
@@ -122,6 +122,7 @@ type Session struct {
 	maxMargin float64
 	cache     *doseCache
 	mcCache   *mcCache
+	probe     seriesCache // temperature series for Probe and PeakTemperature
 	// keep, when not nil, is the block of thermometry voxels the kept
 	// series hold (a case whose frames stay in their files).
 	keep *keepBox
@@ -149,7 +150,8 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 	if c == nil {
 		return nil, errors.New("no case to analyse")
 	}
-	if err := checkModel(s.Model); err != nil {
+	s = s.complete()
+	if err := s.Validate(); err != nil {
 		return nil, err
 	}
 	if len(c.Sonications) == 0 {
@@ -346,12 +348,12 @@ func (ses *Session) prepareStructures(ctx context.Context, c *dosemap.Case, tgt 
 	return warnings, nil
 }
 
-func checkModel(m string) error {
+func checkModel(m Model) error {
 	switch m {
-	case "cem43", "arrhenius":
+	case ModelCEM43, ModelArrhenius:
 		return nil
 	}
-	return fmt.Errorf("unknown dose model %q (want cem43 or arrhenius)", m)
+	return fmt.Errorf("model %q: want cem43 or arrhenius", string(m))
 }
 
 // Grid returns the analysis grid.
@@ -386,7 +388,7 @@ func (s *Session) Temperature(n int) *dosemap.TemperatureSeries {
 		if sd.number == n {
 			ts, _ := sd.series.(*dosemap.TemperatureSeries)
 			if ts != nil && s.keep != nil {
-				full, err := dosemap.Thermometry(sd.source, s.prepared.Thermometry)
+				full, err := thermometry(sd.source, s.prepared.Thermometry)
 				if err != nil {
 					return nil
 				}
@@ -418,11 +420,8 @@ func Analyze(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 }
 
 func (s *Session) checkSettings(set Settings) error {
-	if !(set.Threshold > 0) || math.IsInf(set.Threshold, 0) {
-		return fmt.Errorf("threshold %g is not a positive dose", set.Threshold)
-	}
-	if !(set.MarginMM >= 0) || math.IsInf(set.MarginMM, 0) {
-		return fmt.Errorf("margin %g mm is not a non-negative distance", set.MarginMM)
+	if err := set.Validate(); err != nil {
+		return err
 	}
 	if set.MarginMM > s.maxMargin {
 		return fmt.Errorf("margin %g mm exceeds the %g mm this session was prepared for; prepare it again with the larger margin", set.MarginMM, s.maxMargin)
@@ -430,11 +429,8 @@ func (s *Session) checkSettings(set Settings) error {
 	if set.Model != s.model {
 		return fmt.Errorf("dose model %q differs from the %q this session was prepared with; prepare it again", set.Model, s.model)
 	}
-	if set.doseModel() != s.prepared.doseModel() || !reflect.DeepEqual(normThermometry(set.Thermometry), normThermometry(s.prepared.Thermometry)) {
+	if set.NeedsThermometry(s.prepared) {
 		return errors.New("dose model parameters or thermometry options differ from those this session was prepared with; prepare it again")
-	}
-	if set.Trials < 0 || set.Trials > MaxTrials {
-		return fmt.Errorf("%d Monte Carlo trials: want 0 to %d", set.Trials, MaxTrials)
 	}
 	left := len(s.sons)
 	for _, e := range set.Excluded {
@@ -519,6 +515,7 @@ func (s *Session) doses(ctx context.Context, set Settings) (*doseCache, error) {
 func (s *Session) Analyze(ctx context.Context, set Settings, progress ProgressFunc) (*Result, error) {
 	s.mu.Lock()
 	defer s.mu.Unlock()
+	set = set.complete()
 	if err := s.checkSettings(set); err != nil {
 		return nil, err
 	}
@@ -547,17 +544,17 @@ func (s *Session) Analyze(ctx context.Context, set Settings, progress ProgressFu
 	lt := float32(math.Log(set.Threshold))
 	r := &Result{
 		SchemaVersion: SchemaVersion, SoftwareVersion: dosemap.Version,
-		Case: s.label, Target: s.target, Model: set.Model, DoseUnit: s.unit,
+		Case: s.label, Target: s.target, Model: string(set.Model), DoseUnit: s.unit,
 		Threshold: set.Threshold, MarginMM: set.MarginMM, Settings: set,
 		Grid: GridInfo{Size: [3]int{g.Cols, g.Rows, g.Slices}, SpacingMM: [3]float64(g.Spacing),
 			RefineSlices: s.fg.rz, SubSamples: SubSamples, Connectivity: int(RegionConnectivity), Geometry: g},
 		Warnings: slices.Clone(s.warnings), Cautions: slices.Clone(Cautions),
 		Holes: []Hole{}, OutsideClusters: []Cluster{}, Avoid: []AvoidDose{},
 	}
-	if set.Model == "cem43" {
+	if set.Model == ModelCEM43 {
 		r.ThresholdCEM43 = opt(set.Threshold)
 	}
-	r.Thermometry = thermometryInfo(set.Thermometry)
+	r.Thermometry = set.Thermometry.info()
 	n := g.Len()
 	lethal := make([]bool, n) // measured dose at or above threshold (also where partly measured)
 	lethalVol := &dosemap.Volume{Geometry: g, Data: make([]float32, n)}
@@ -1016,47 +1013,4 @@ func (s *Session) perSonication(r *Result, set Settings, dc *doseCache, lethal, 
 		}
 		r.Sonications = append(r.Sonications, st)
 	}
-}
-
-// thermometryInfo summarises o, with zero fields shown as the defaults
-// dosemap.Thermometry applies.
-func thermometryInfo(o dosemap.ThermometryOptions) ThermometryInfo {
-	d := dosemap.DefaultThermometryOptions()
-	ti := ThermometryInfo{AlphaPPMPerC: o.PRF.Alpha, BaselineFrames: o.BaselineFrames, BodyTempC: o.BodyTemp,
-		Drift: o.Drift.String(), DriftOrder: o.DriftOrder, Reference: "automatic",
-		MinMagnitude: o.MinMagnitude, MaxMotion: o.MaxMotion}
-	if ti.AlphaPPMPerC == 0 {
-		ti.AlphaPPMPerC = d.PRF.Alpha
-	}
-	if o.PRF.B0 != 0 {
-		ti.B0T = opt(o.PRF.B0)
-	}
-	if o.PRF.TE != 0 {
-		ti.TES = opt(o.PRF.TE)
-	}
-	if ti.BaselineFrames <= 0 {
-		ti.BaselineFrames = d.BaselineFrames
-	}
-	if ti.BodyTempC == 0 {
-		ti.BodyTempC = d.BodyTemp
-	}
-	if ti.MinMagnitude == 0 {
-		ti.MinMagnitude = d.MinMagnitude
-	}
-	if ti.MaxMotion == 0 {
-		ti.MaxMotion = d.MaxMotion
-	}
-	if o.Reference != nil {
-		ti.Reference = "given"
-	}
-	return ti
-}
-
-// normThermometry returns o, or the default options when o is the zero
-// value (which dosemap.Thermometry reads as the defaults).
-func normThermometry(o dosemap.ThermometryOptions) dosemap.ThermometryOptions {
-	if reflect.DeepEqual(o, dosemap.ThermometryOptions{}) {
-		return dosemap.DefaultThermometryOptions()
-	}
-	return o
 }

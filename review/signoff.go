@@ -2,8 +2,6 @@ package review
 
 import (
 	"bytes"
-	"crypto/sha256"
-	"encoding/hex"
 	"encoding/json"
 	"fmt"
 	"math"
@@ -70,47 +68,16 @@ type SignOff struct {
 	Version   string          `json:"dosecover_version,omitempty"`
 }
 
-// settingsWithThermometry is Settings with its thermometry options written
-// out (the outer field takes the name whatever Settings does with it).
-type settingsWithThermometry struct {
-	Settings
-	Thermometry thermometryRecord `json:"thermometry"`
-}
-
-// thermometryRecord is the thermometry options with a drawn drift
-// reference (one value per voxel) recorded by its SHA-256 rather than
-// voxel by voxel (the voxels themselves left out).
-type thermometryRecord struct {
-	dosemap.ThermometryOptions
-	ReferenceSHA256 string `json:"reference_sha256,omitempty"`
-}
-
-// SettingsJSON returns the complete settings s as canonical JSON (keys
-// sorted, compact), thermometry included: equal settings give equal bytes.
+// SettingsJSON returns the complete settings s (Settings.JSON, thermometry
+// included) as canonical JSON (keys sorted, compact): equal settings give
+// equal bytes.
 func SettingsJSON(s Settings) (json.RawMessage, error) {
-	th := thermometryRecord{ThermometryOptions: s.Thermometry}
-	if ref := s.Thermometry.Reference; ref != nil {
-		h := sha256.New()
-		for _, v := range ref {
-			if v {
-				h.Write([]byte{1})
-			} else {
-				h.Write([]byte{0})
-			}
-		}
-		th.ReferenceSHA256 = hex.EncodeToString(h.Sum(nil))
-		th.ThermometryOptions.Reference = nil
-	}
-	b, err := json.Marshal(settingsWithThermometry{Settings: s, Thermometry: th})
-	if err != nil {
-		return nil, fmt.Errorf("encoding the settings: %w", err)
-	}
 	var v any
-	if err := json.Unmarshal(b, &v); err != nil {
+	if err := json.Unmarshal(s.JSON(), &v); err != nil {
 		return nil, fmt.Errorf("encoding the settings: %w", err)
 	}
 	// encoding/json writes map keys sorted.
-	b, err = json.Marshal(v)
+	b, err := json.Marshal(v)
 	if err != nil {
 		return nil, fmt.Errorf("encoding the settings: %w", err)
 	}

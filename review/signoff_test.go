@@ -6,6 +6,7 @@ import (
 	"testing"
 	"time"
 
+	"dosecover/dosemap"
 	"dosecover/review"
 )
 
@@ -49,9 +50,11 @@ func TestSignOffStale(t *testing.T) {
 		want   []string
 	}{
 		{"margin", func(s *review.Settings) { s.MarginMM = 5 }, "abc123", "2.25.7", []string{"margin (mm): 3 then, 5 now"}},
-		{"body temperature", func(s *review.Settings) { s.Thermometry.BodyTemp = 36 }, "abc123", "2.25.7", []string{"thermometry", "37 then, 36 now"}},
+		{"body temperature", func(s *review.Settings) { s.Thermometry.BodyTempC = 36 }, "abc123", "2.25.7", []string{"thermometry", "37 then, 36 now"}},
 		{"R above the break", func(s *review.Settings) { s.CEM43.RAbove = 0.6 }, "abc123", "2.25.7", []string{"CEM43 model", "0.5 then, 0.6 now"}},
-		{"drift reference", func(s *review.Settings) { s.Thermometry.Reference = []bool{true, false, true} }, "abc123", "2.25.7", []string{"thermometry reference sha256: none then, "}},
+		{"drift reference", func(s *review.Settings) {
+			s.Thermometry.DriftReference = review.NewRect(dosemap.Vec3{-1000, -1000, 0}, dosemap.Vec3{1000, 1000, 0}, dosemap.Vec3{1, 0, 0}, dosemap.Vec3{0, 1, 0})
+		}, "abc123", "2.25.7", []string{"thermometry drift reference: none then, "}},
 		{"left out", func(s *review.Settings) { s.Excluded = []int{2} }, "abc123", "2.25.7", []string{"sonications left out: none then, 2 now"}},
 		{"inputs", func(s *review.Settings) {}, "def456", "2.25.7", []string{"input files differ"}},
 		{"study", func(s *review.Settings) {}, "abc123", "2.25.8", []string{"another study (2.25.7 then, 2.25.8 now)"}},

@@ -54,7 +54,7 @@ func prepareSonication(ctx context.Context, so *dosemap.Sonication, s Settings, 
 		if err != nil {
 			return nil, "", err
 		}
-		ts, err := dosemap.Thermometry(r, s.Thermometry)
+		ts, err := thermometry(r, s.Thermometry)
 		done()
 		if err != nil {
 			return nil, "", err

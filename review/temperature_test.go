@@ -13,7 +13,7 @@ import (
 // engine computes from the same sonication and options (frame by frame,
 // bit for bit), its hottest valid voxel is the 57 °C of the heated ball
 // put into the phase (within 4 noise sigmas of σ = 0.275 °C at SNR 50 plus
-// the expected maximum of the draws, check-values.md), and there is none
+// the expected maximum of the draws, testdata/check-values.md), and there is none
 // for a ready dose map, a sonication on another grid or an unknown number.
 func TestSessionTemperature(t *testing.T) {
 	g := thermoGrid(32, 32, 6)
@@ -37,7 +37,7 @@ func TestSessionTemperature(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	want, err := dosemap.Thermometry(heated, set.Thermometry)
+	want, err := dosemap.Thermometry(heated, dosemap.DefaultThermometryOptions())
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -12,7 +12,7 @@ import (
 
 // heatedSonication returns a phase+magnitude sonication on g: baseline 37
 // °C, then temp(p) for frames 2..n-1, one frame per dt seconds, at 3 T, TE
-// 12.8 ms (|dφ/dT| = 0.1027 rad/°C, check-values.md). Magnitude: a fixed
+// 12.8 ms (|dφ/dT| = 0.1027 rad/°C, testdata/check-values.md). Magnitude: a fixed
 // pattern of mean 1000 (so frames correlate with the baseline) with
 // Gaussian noise of sd 1000/snr; phase noise of sd 1/snr rad (seeded).
 func heatedSonication(n int, g dosemap.Geometry, frames int, dt float64, temp func(p dosemap.Vec3) float64, snr float64, seed uint64) *dosemap.Sonication {
@@ -42,7 +42,7 @@ func heatedSonication(n int, g dosemap.Geometry, frames int, dt float64, temp fu
 
 // TestThermometryPath: a hot ball at 57 °C (12 frames of 2 s) covering the
 // target; peak temperature 57 °C within 4 noise sigmas (σ = 0.275 °C at SNR
-// 50, check-values.md), time above 43 °C = 10 heated frames × 2 s = 20 s
+// 50, testdata/check-values.md), time above 43 °C = 10 heated frames × 2 s = 20 s
 // (rectangle rule), dose above 240 CEM43 everywhere in the target (57 °C
 // for 20 s gives 2^14/3 ≈ 5461 CEM43, computed), frame quality reported.
 func TestThermometryPath(t *testing.T) {
@@ -90,7 +90,7 @@ func TestThermometryPath(t *testing.T) {
 func TestMonteCarloUncertainty(t *testing.T) {
 	g := thermoGrid(48, 48, 8)
 	// Temperature falls linearly along x through the target; lethal
-	// (240 CEM43 in 20 s) at about 52.49 °C (check-values.md).
+	// (240 CEM43 in 20 s) at about 52.49 °C (testdata/check-values.md).
 	ramp := func(p dosemap.Vec3) float64 {
 		if p.Norm() > 14 {
 			return 37

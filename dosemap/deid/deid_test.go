@@ -448,7 +448,7 @@ assert b.SOPInstanceUID != a.SOPInstanceUID and b.SOPInstanceUID.startswith("2.2
 assert b.file_meta.MediaStorageSOPInstanceUID == b.SOPInstanceUID
 assert b.SOPClassUID == a.SOPClassUID
 assert (a.pixel_array == b.pixel_array).all(), "pixels differ"
-assert b.pixel_array.sum() == 2125338, b.pixel_array.sum()  # check-values.md: MR_small sum read with pydicom
+assert b.pixel_array.sum() == 2125338, b.pixel_array.sum()  # testdata/check-values.md: MR_small sum read with pydicom
 assert list(b.ImagePositionPatient) == list(a.ImagePositionPatient)
 print("ok")
 `

@@ -82,7 +82,7 @@ func asFileError(err error, fe **fileError) bool {
 }
 
 // MR_small.dcm and its re-encodings: values read with pydicom 2.3.1
-// (/work/shared/reference/check-values.md): 64×64 int16, PixelSpacing
+// (testdata/check-values.md): 64×64 int16, PixelSpacing
 // 0.3125, IPP (-83.9063, -91.2, 6.6406), axial; stored min 127, max 2145,
 // sum 2125338, pixel[0,0] 905. Exact integer comparisons.
 func TestPydicomMRSmall(t *testing.T) {

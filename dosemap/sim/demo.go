@@ -28,7 +28,7 @@ const (
 
 // baseProtocol returns the thermometry protocol of the scenarios: 3 T,
 // TE 12.8 ms, α −0.01 ppm/°C (Ishihara et al. 1995, value from memory;
-// check-values), a frame every 3 s (common practice), 1.25 mm in plane.
+// testdata/check-values.md), a frame every 3 s (common practice), 1.25 mm in plane.
 func baseProtocol(centre dosemap.Vec3) Protocol {
 	return Protocol{Cols: 64, Rows: 64, Slices: 4, PixelSpacing: 1.25, SliceThickness: 3.5, Center: centre,
 		FrameInterval: 3, Frames: 11, BaselineFrames: 2, B0: 3, TE: 0.0128, TR: 0.025, FlipAngle: 20,

@@ -13,7 +13,7 @@ import (
 // session, recovers the simulated temperature rise: at the 20 hottest
 // voxels of each sonication's hottest frame, the mean error stays within
 // 0.5 °C and each voxel within 2 °C (noise √2/SNR ≈ 0.28 °C at SNR 50
-// (check-values), plus the residual of the first-order drift fit). The
+// (testdata/check-values.md), plus the residual of the first-order drift fit). The
 // motion frame of the demo is flagged.
 func TestThermometryRecoversSimulation(t *testing.T) {
 	dir := t.TempDir()

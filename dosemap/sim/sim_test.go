@@ -139,7 +139,7 @@ func TestPhaseStored(t *testing.T) {
 }
 
 // The PRF phase per degree at 3 T, TE 12.8 ms, α = −0.01 ppm/°C is
-// −0.1027 rad/°C (check-values: computed from γ/2π = 42.57747892 MHz/T,
+// −0.1027 rad/°C (testdata/check-values.md: computed from γ/2π = 42.57747892 MHz/T,
 // CODATA 2014).
 func TestPhasePerDegree(t *testing.T) {
 	p := baseProtocol(dosemap.Vec3{})
@@ -195,7 +195,7 @@ func TestDemoScenario(t *testing.T) {
 		t.Errorf("thermometry-grid coverage %.3f, lethal outside margin %.0f mm³", m.CoveredFraction, m.LethalOutsideMM3)
 	}
 	// Ablative peaks as thermometry shows them: about 55-70 °C (facts of
-	// the trade in check-values: 55-60 °C common; the demo runs hot to
+	// the trade in testdata/check-values.md: 55-60 °C common; the demo runs hot to
 	// cover the gaps between spots).
 	for n, pk := range m.PeakTemp {
 		if pk < 55 || pk > 70 {
@@ -574,11 +574,11 @@ func goPixels(t *testing.T, path string, signed bool) ([]int, int64) {
 }
 
 // The written phase encodes the simulated temperature rise by the PRF
-// relation Δφ = Sign·γ·α·B0·TE·ΔT (check-values: 0.1027 rad/°C at 3 T,
+// relation Δφ = Sign·γ·α·B0·TE·ΔT (testdata/check-values.md: 0.1027 rad/°C at 3 T,
 // TE 12.8 ms) plus the stated drift. Over the 20 hottest voxels of the
 // hottest frame, the temperature recovered from the stored phase matches
 // the simulation within 1.5 °C each (5σ of the phase-difference noise
-// √2/SNR ≈ 0.028 rad ≈ 0.28 °C at SNR 50, check-values) and 0.3 °C on
+// √2/SNR ≈ 0.028 rad ≈ 0.28 °C at SNR 50, testdata/check-values.md) and 0.3 °C on
 // average.
 func TestPhaseEncodesTemperature(t *testing.T) {
 	dir := t.TempDir()

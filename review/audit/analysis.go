@@ -3,10 +3,8 @@ package audit
 import (
 	"bytes"
 	"context"
-	"encoding/json"
 	"errors"
 	"fmt"
-	"io"
 	"math"
 	"os"
 	"path/filepath"
@@ -19,29 +17,23 @@ import (
 	"dosecover/review"
 )
 
-// LoadSettings reads analysis settings for an audit from a JSON file: the
-// object of review.Settings (keys "threshold", "margin_mm", "model",
-// "trials", "seed"); keys left out keep their defaults
-// (review.DefaultSettings) and unknown keys are rejected. An empty path
-// gives the defaults. "excluded_sonications" is refused: it names
-// sonications of one case, while an audit applies one set of settings to
-// every case.
+// LoadSettings reads analysis settings for an audit from a JSON file in
+// the layout of a Result's "settings" object (review.ReadSettings): keys
+// left out keep their defaults (review.DefaultSettings) and unknown keys
+// are rejected. An empty path gives the defaults. The settings must suit
+// an audit (CheckSettings).
 func LoadSettings(path string) (review.Settings, error) {
-	s := review.DefaultSettings()
 	if path == "" {
-		return s, nil
+		return review.DefaultSettings(), nil
 	}
-	b, err := os.ReadFile(path)
+	f, err := os.Open(path)
 	if err != nil {
-		return s, &safefile.PathError{What: "settings file", Path: path, Err: err}
+		return review.DefaultSettings(), &safefile.PathError{What: "settings file", Path: path, Err: err}
 	}
-	d := json.NewDecoder(bytes.NewReader(b))
-	d.DisallowUnknownFields()
-	if err := d.Decode(&s); err != nil {
-		return s, fmt.Errorf("settings file %s: %w", path, err)
-	}
-	if _, err := d.Token(); err != io.EOF {
-		return s, fmt.Errorf("settings file %s: more than one JSON value", path)
+	defer f.Close()
+	s, err := review.ReadSettings(f, path, review.DefaultSettings())
+	if err != nil {
+		return s, err
 	}
 	if err := CheckSettings(s); err != nil {
 		return s, fmt.Errorf("settings file %s: %w", path, err)
@@ -49,28 +41,29 @@ func LoadSettings(path string) (review.Settings, error) {
 	return s, nil
 }
 
-// CheckSettings reports settings an audit cannot use.
+// CheckSettings reports settings an audit cannot use: invalid ones
+// (review.Settings.Validate), and those that name parts of one case —
+// excluded sonications or a drawn drift reference — while an audit
+// applies one set of settings to every case.
 func CheckSettings(s review.Settings) error {
+	if err := s.Validate(); err != nil {
+		return err
+	}
 	switch {
-	case !(s.Threshold > 0) || math.IsInf(s.Threshold, 0):
-		return fmt.Errorf("threshold %g: want a positive dose", s.Threshold)
-	case !(s.MarginMM >= 0) || s.MarginMM > review.LargestMarginMM:
-		return fmt.Errorf("margin_mm %g: want 0 to %g mm", s.MarginMM, review.LargestMarginMM)
-	case s.Model != "cem43" && s.Model != "arrhenius":
-		return fmt.Errorf("model %q: want \"cem43\" or \"arrhenius\"", s.Model)
-	case s.Trials < 0:
-		return fmt.Errorf("trials %d: want 0 or more", s.Trials)
 	case len(s.Excluded) > 0:
 		return errors.New("excluded_sonications names sonications of one case; an audit analyses every sonication of every case")
+	case s.Thermometry.DriftReference != nil:
+		return errors.New("thermometry.drift_reference is a region drawn on one case; an audit uses each case's automatic reference region")
 	}
 	return nil
 }
 
-// SettingsColumns returns the settings columns of the summary table.
+// SettingsColumns returns the settings columns of the summary table; the
+// records hold every setting and their hash.
 func SettingsColumns(s review.Settings) []Column {
 	f := func(x float64) string { return strconv.FormatFloat(x, 'g', -1, 64) }
 	return []Column{
-		{"model", s.Model},
+		{"model", string(s.Model)},
 		{"threshold", f(s.Threshold)},
 		{"margin_mm", f(s.MarginMM)},
 		{"trials", strconv.Itoa(s.Trials)},
@@ -84,8 +77,8 @@ type Artifacts func(c *Case, cs *dosemap.Case, res *review.Result) ([]Artifact, 
 
 // NewAnalyzer returns the Analyzer of the coverage analysis (package
 // review) with settings s. Per case it reads the folder with
-// dicomio.Load, one file at a time (the audit's workers run cases in
-// parallel), and then:
+// review.LoadAndAnalyze, one file at a time (the audit's workers run cases
+// in parallel), and on the way:
 //   - fails the case when a file that is DICOM (by content) or named *.dcm
 //     could not be read: a corrupted file must not silently shorten a
 //     series;
@@ -97,33 +90,32 @@ type Artifacts func(c *Case, cs *dosemap.Case, res *review.Result) ([]Artifact, 
 // label is the case ID before the analysis sees it.
 func NewAnalyzer(s review.Settings, artifacts Artifacts) Analyzer {
 	return func(ctx context.Context, c *Case) (*CaseResult, error) {
-		cs, inv, err := dicomio.Load(ctx, c.Dir, dicomio.LoadOptions{Workers: 1, Deferred: true, Study: c.Study}, nil)
+		cs, _, res, err := review.LoadAndAnalyze(ctx, c.Dir, s, review.LoadOptions{Workers: 1, Study: c.Study,
+			Check: func(cs *dosemap.Case, inv *dicomio.Inventory) error {
+				if err := corrupted(c, inv); err != nil {
+					return err
+				}
+				if !inv.Reviewable {
+					return Incomplete(inv.NotReviewable)
+				}
+				if cs.Target() == nil {
+					if len(cs.Structures) == 0 {
+						return Incomplete("no contours: no RTSTRUCT with a target structure found")
+					}
+					names := make([]string, len(cs.Structures))
+					for n, st := range cs.Structures {
+						names[n] = fmt.Sprintf("%q (%s)", st.Name, st.InterpretedType)
+					}
+					return Incomplete("no target contour among the structures " + strings.Join(names, ", "))
+				}
+				if c.Deidentify {
+					cs.Patient = dosemap.Patient{}
+					cs.Label = c.ID
+				}
+				return nil
+			}})
 		if err != nil {
-			return nil, fmt.Errorf("reading case folder %s: %w", c.Dir, err)
-		}
-		if err := corrupted(c, inv); err != nil {
 			return nil, err
-		}
-		if !inv.Reviewable {
-			return nil, Incomplete(inv.NotReviewable)
-		}
-		if cs.Target() == nil {
-			if len(cs.Structures) == 0 {
-				return nil, Incomplete("no contours: no RTSTRUCT with a target structure found")
-			}
-			names := make([]string, len(cs.Structures))
-			for n, st := range cs.Structures {
-				names[n] = fmt.Sprintf("%q (%s)", st.Name, st.InterpretedType)
-			}
-			return nil, Incomplete("no target contour among the structures " + strings.Join(names, ", "))
-		}
-		if c.Deidentify {
-			cs.Patient = dosemap.Patient{}
-			cs.Label = c.ID
-		}
-		res, err := review.Analyze(ctx, cs, s, nil)
-		if err != nil {
-			return nil, fmt.Errorf("analysing %s: %w", c.Dir, err)
 		}
 		var js bytes.Buffer
 		if err := res.WriteJSON(&js); err != nil {

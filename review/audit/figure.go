@@ -14,7 +14,7 @@ import (
 	"gonum.org/v1/plot/vg/draw"
 	"gonum.org/v1/plot/vg/vgimg"
 
-	"dosecover/review"
+	"dosecover/review/view"
 )
 
 // Figure size and resolution of summary.png.
@@ -65,7 +65,7 @@ func WriteFigure(w io.Writer, rows []Row) error {
 	left.X.Min, left.X.Max = 0, 100
 	left.Y.Min = 0
 	nb := int(100 / coverageBins)
-	h := &plotter.Histogram{Bins: make([]plotter.HistogramBin, nb), Width: coverageBins, FillColor: review.ColorTarget}
+	h := &plotter.Histogram{Bins: make([]plotter.HistogramBin, nb), Width: coverageBins, FillColor: view.ColorTarget}
 	h.LineStyle = draw.LineStyle{Color: color.Black, Width: vg.Points(0.5)}
 	for k := range h.Bins {
 		h.Bins[k].Min = float64(k) * coverageBins
@@ -97,7 +97,7 @@ func WriteFigure(w io.Writer, rows []Row) error {
 		if err != nil {
 			return fmt.Errorf("summary figure: %w", err)
 		}
-		s.GlyphStyle = draw.GlyphStyle{Color: review.ColorSpill, Radius: vg.Points(3), Shape: draw.CircleGlyph{}}
+		s.GlyphStyle = draw.GlyphStyle{Color: view.ColorSpill, Radius: vg.Points(3), Shape: draw.CircleGlyph{}}
 		right.Add(s)
 	}
 	right.Add(plotter.NewGrid())

@@ -10,7 +10,7 @@ import (
 	"path/filepath"
 	"testing"
 
-	"dosecover/review"
+	"dosecover/review/view"
 )
 
 var update = flag.Bool("update", false, "rewrite the golden images in testdata")
@@ -62,10 +62,10 @@ func TestFigureGolden(t *testing.T) {
 	}
 	// The histogram bars are in the target colour, the points in the spill
 	// colour of the palette.
-	if countColor(img, review.ColorTarget) < 1000 {
+	if countColor(img, view.ColorTarget) < 1000 {
 		t.Errorf("few histogram pixels in the target colour")
 	}
-	if countColor(img, review.ColorSpill) < 20 {
+	if countColor(img, view.ColorSpill) < 20 {
 		t.Errorf("few scatter pixels in the spill colour")
 	}
 	golden := filepath.Join("testdata", "summary.golden.png")

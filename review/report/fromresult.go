@@ -21,12 +21,8 @@ type Options struct {
 	Deidentify   bool      // hide identity: neutral case label, no scan date, generic sonication labels
 	Reviewer     string    // who reviewed ("" not given)
 	ReviewDate   time.Time // zero: now
-	InputsSHA256 string    // see HashFolder
+	InputsSHA256 string    // see review.HashInputs
 	PanelPixels  int       // side of each image panel in pixels; 0: 480
-	// Thermometry are the thermometry options the analysis used, for an
-	// analysis that does not record them itself (Result.Thermometry); the
-	// zero value stands for dosemap.DefaultThermometryOptions().
-	Thermometry dosemap.ThermometryOptions
 	// SignOffs are the sign-offs of the case: the report shows the one
 	// made on this very analysis (input hash, study, settings, left-out
 	// sonications and figures), or says it is not signed off for these
@@ -323,11 +319,6 @@ func methods(c *dosemap.Case, r *review.Result, opt Options) []Setting {
 		return append(ms, analysisSettings(r)...)
 	}
 	ti := r.Thermometry
-	if ti.AlphaPPMPerC == 0 {
-		// The analysis did not record its thermometry options: they are
-		// opt.Thermometry, with the engine's defaults for zero fields.
-		ti = thermometryInfo(opt.Thermometry)
-	}
 	ms = append(ms, Setting{"PRF alpha", fmt.Sprintf("%.4f ppm/°C", ti.AlphaPPMPerC)})
 	ms = append(ms, Setting{"B0 / TE", fieldAndEcho(c, ti)})
 	drift := ti.Drift
@@ -365,52 +356,6 @@ func analysisSettings(r *review.Result) []Setting {
 	g := r.Grid
 	ms = append(ms, Setting{"Analysis grid", fmt.Sprintf("%d×%d×%d voxels of %.3g×%.3g×%.3g mm", g.Size[0], g.Size[1], g.Size[2], g.SpacingMM[0], g.SpacingMM[1], g.SpacingMM[2])})
 	return ms
-}
-
-// thermometryInfo summarises thermometry options the way the analysis
-// records them, with the engine's defaults for zero fields.
-func thermometryInfo(th dosemap.ThermometryOptions) review.ThermometryInfo {
-	def := dosemap.DefaultThermometryOptions()
-	ti := review.ThermometryInfo{
-		AlphaPPMPerC: th.PRF.Alpha, BaselineFrames: th.BaselineFrames, BodyTempC: th.BodyTemp,
-		DriftOrder: th.DriftOrder, Reference: "automatic",
-	}
-	if ti.AlphaPPMPerC == 0 {
-		ti.AlphaPPMPerC = def.PRF.Alpha
-		if ti.AlphaPPMPerC == 0 {
-			ti.AlphaPPMPerC = dosemap.DefaultAlpha
-		}
-	}
-	if th.PRF.B0 > 0 {
-		b := th.PRF.B0
-		ti.B0T = &b
-	}
-	if th.PRF.TE > 0 {
-		t := th.PRF.TE
-		ti.TES = &t
-	}
-	if ti.BaselineFrames == 0 {
-		ti.BaselineFrames = def.BaselineFrames
-	}
-	if ti.BodyTempC == 0 {
-		ti.BodyTempC = def.BodyTemp
-	}
-	drift := th.Drift
-	if th.Drift == 0 && th.DriftOrder == 0 {
-		drift, ti.DriftOrder = def.Drift, def.DriftOrder
-	}
-	switch drift {
-	case dosemap.DriftMean:
-		ti.Drift = "mean"
-	case dosemap.DriftPolynomial:
-		ti.Drift = "polynomial"
-	default:
-		ti.Drift = "none"
-	}
-	if th.Reference != nil {
-		ti.Reference = "given"
-	}
-	return ti
 }
 
 // fieldAndEcho describes B0 and TE: the override of the analysis, or the

@@ -14,7 +14,6 @@ import (
 	"gonum.org/v1/plot/vg"
 	"gonum.org/v1/plot/vg/draw"
 
-	"dosecover/review"
 	"dosecover/review/view"
 )
 
@@ -41,7 +40,7 @@ var (
 	colRule   = color.Gray{0xB0}
 	colShade  = color.Gray{0xEE}
 	colPanel  = color.Gray{0x30}
-	colAccent = review.ColorSpill
+	colAccent = view.ColorSpill
 )
 
 // pen draws text and boxes in top-down page coordinates: y is the distance
@@ -134,14 +133,6 @@ func (p pen) box(x, y, w, h vg.Length) vg.Path {
 	path.Line(p.pt(x, y+h))
 	path.Close()
 	return path
-}
-
-// frame strokes the rectangle outline.
-func (p pen) frame(x, y, w, h, lw vg.Length, clr color.Color) {
-	p.c.SetColor(clr)
-	p.c.SetLineWidth(lw)
-	p.c.SetLineDash(nil, 0)
-	p.c.Stroke(p.box(x, y, w, h))
 }
 
 // line strokes a straight segment.
@@ -539,13 +530,13 @@ func drawLegend(p pen, in *Input, x, y, w vg.Length) vg.Length {
 		clr   color.Color
 		style int // 0 solid line, 1 dashed, 2 dotted, 3 fill, 4 thick line
 	}{
-		{"target", review.ColorTarget, 0},
-		{"margin", review.ColorMargin, 1},
-		{"lethal isoline", review.ColorLethal, 4},
-		{"hole", review.ColorHole, 3},
-		{"lethal outside margin", review.ColorSpill, 3},
-		{"avoid", review.ColorAvoid, 2},
-		{"not monitored", review.ColorNotMonitored, 3},
+		{"target", view.ColorTarget, 0},
+		{"margin", view.ColorMargin, 1},
+		{"lethal isoline", view.ColorLethal, 4},
+		{"hole", view.ColorHole, 3},
+		{"lethal outside margin", view.ColorSpill, 3},
+		{"avoid", view.ColorAvoid, 2},
+		{"not monitored", view.ColorNotMonitored, 3},
 	}
 	cx := x
 	for _, it := range items {
@@ -712,7 +703,7 @@ func drawPlots(p pen, in *Input, x, y, w vg.Length) vg.Length {
 	const h = 128
 	pw := (w - gap) / 2
 	unit := doseUnit(in)
-	dvh := curvePlot("Target dose-volume histogram", "dose ("+unit+", log)", "volume >= dose (%)", in.DVH, in.Facts.Threshold, review.ColorTarget, "target")
+	dvh := curvePlot("Target dose-volume histogram", "dose ("+unit+", log)", "volume >= dose (%)", in.DVH, in.Facts.Threshold, view.ColorTarget, "target")
 	cov := curvePlot("Coverage versus threshold", "threshold ("+unit+", log)", "covered (%)", in.CoverageVsThreshold, in.Facts.Threshold, colInk, "covered")
 	for k, pl := range []*plot.Plot{dvh, cov} {
 		px := x + vg.Length(k)*(pw+gap)

@@ -6,7 +6,7 @@ import (
 	"math"
 	"time"
 
-	"dosecover/review"
+	"dosecover/review/view"
 )
 
 // sampleInput is a hand-made report input of an invented phantom case; the
@@ -90,7 +90,7 @@ func samplePanel(kind int) *image.RGBA {
 				c = color.RGBA{uint8(min(255, int(g)+90)), uint8(g / 2), uint8(g / 3), 255}
 			}
 			if rr := math.Hypot(dx, dy); math.Abs(rr-28) < 1 {
-				c = review.ColorTarget
+				c = view.ColorTarget
 			}
 			if y < 16 && x < n/2 {
 				c = color.RGBA{255, 255, 255, 255} // marks the top left: a flip shows

@@ -76,28 +76,3 @@ func TestWriteAllOutputs(t *testing.T) {
 		t.Error("one path for two outputs accepted")
 	}
 }
-
-func TestHashFolder(t *testing.T) {
-	dir := t.TempDir()
-	os.MkdirAll(filepath.Join(dir, "s"), 0o755)
-	os.WriteFile(filepath.Join(dir, "a"), []byte("abc"), 0o644)
-	os.WriteFile(filepath.Join(dir, "s", "b"), []byte(""), 0o644)
-	h1, err := HashFolder(dir)
-	if err != nil {
-		t.Fatal(err)
-	}
-	if len(h1) != 64 {
-		t.Fatalf("hash %q", h1)
-	}
-	// Changing a byte, or renaming, changes the hash.
-	os.WriteFile(filepath.Join(dir, "a"), []byte("abd"), 0o644)
-	h2, _ := HashFolder(dir)
-	os.Rename(filepath.Join(dir, "a"), filepath.Join(dir, "c"))
-	h3, _ := HashFolder(dir)
-	if h1 == h2 || h2 == h3 {
-		t.Error("hash did not change with content or name")
-	}
-	if _, err := HashFolder(filepath.Join(dir, "nope")); err == nil {
-		t.Error("missing folder accepted")
-	}
-}

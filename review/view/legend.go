@@ -5,8 +5,6 @@ import (
 	"image"
 	"image/color"
 	"math"
-
-	"dosecover/review"
 )
 
 // Colours of the legend panels.
@@ -62,7 +60,7 @@ func ColorBar(s DoseScale, lethal float64, w, h int) (*image.RGBA, error) {
 		cv.capsule(float64(barX0-4), y, float64(barX1+4), y, 1.75)
 		cv.flush(haloColor, 1)
 		cv.capsule(float64(barX0-4), y, float64(barX1+4), y, 1)
-		cv.flush(review.ColorLethal, 1)
+		cv.flush(ColorLethal, 1)
 		drawText(img, formatDose(lethal)+" lethal", size, barX1+8, int(y), anchorLeft, textColor)
 	}
 	drawText(img, fmt.Sprintf("below %s:", formatDose(s.Floor)), 11, 8, h-th-8, anchorBottomLeft, dimColor)
@@ -109,15 +107,15 @@ func keyItems() []keyItem {
 	}
 	st := DefaultStyle()
 	return []keyItem{
-		{"Lethal isodose", line(st.Lethal, Solid, review.ColorLethal)},
-		{"Target", line(st.Target, Solid, review.ColorTarget)},
-		{"Safety margin", line(st.Margin, Dashed, review.ColorMargin)},
-		{"Avoid structure", line(st.Avoid, Dotted, review.ColorAvoid)},
-		{"Hole: target below lethal", patch(hatch, review.ColorHole)},
-		{"Lethal outside margin", patch(func(x, y int) float64 { return st.FillOpacity }, review.ColorSpill)},
+		{"Lethal isodose", line(st.Lethal, Solid, ColorLethal)},
+		{"Target", line(st.Target, Solid, ColorTarget)},
+		{"Safety margin", line(st.Margin, Dashed, ColorMargin)},
+		{"Avoid structure", line(st.Avoid, Dotted, ColorAvoid)},
+		{"Hole: target below lethal", patch(hatch, ColorHole)},
+		{"Lethal outside margin", patch(func(x, y int) float64 { return st.FillOpacity }, ColorSpill)},
 		{"Not monitored", func(img *image.RGBA, cv *canvas, r image.Rectangle, st Style) {
 			fillRect(img, r, haloColor, 0.55)
-			patch(crossHatch, review.ColorNotMonitored)(img, cv, r, st)
+			patch(crossHatch, ColorNotMonitored)(img, cv, r, st)
 		}},
 	}
 }

@@ -8,7 +8,6 @@ import (
 	"strings"
 
 	"dosecover/dosemap"
-	"dosecover/review"
 )
 
 // Scene is everything drawn on one plane. Every layer is optional: a nil
@@ -310,9 +309,9 @@ func (r *Renderer) Render(s *Scene, v View, dst *image.RGBA) (*image.RGBA, error
 	// Not monitored: darkened, then light grey cross-hatch, so it reads on
 	// grey anatomy too.
 	r.fillLayers(dst, p, v, notMon, fillLayer{func(x, y int) float64 { return 0.55 }, haloColor},
-		fillLayer{crossHatch, review.ColorNotMonitored})
-	r.fill(dst, p, v, spill, func(x, y int) float64 { return st.FillOpacity }, review.ColorSpill)
-	r.fill(dst, p, v, holes, hatch, review.ColorHole)
+		fillLayer{crossHatch, ColorNotMonitored})
+	r.fill(dst, p, v, spill, func(x, y int) float64 { return st.FillOpacity }, ColorSpill)
+	r.fill(dst, p, v, holes, hatch, ColorHole)
 
 	cv := newCanvas(dst, r.scratch)
 	r.scratch = cv.cov
@@ -343,10 +342,10 @@ func (r *Renderer) Render(s *Scene, v View, dst *image.RGBA) (*image.RGBA, error
 	for _, l := range labels {
 		drawText(dst, l.text, math.Max(11, labelSize(v)-3), l.x, l.y, anchorCentre, isodoseColor)
 	}
-	r.outline(cv, p, v, s.Margin, st.Margin, Dashed, review.ColorMargin)
-	r.outline(cv, p, v, s.Target, st.Target, Solid, review.ColorTarget)
+	r.outline(cv, p, v, s.Margin, st.Margin, Dashed, ColorMargin)
+	r.outline(cv, p, v, s.Target, st.Target, Solid, ColorTarget)
 	for _, a := range s.Avoid {
-		r.outline(cv, p, v, a, st.Avoid, Dotted, review.ColorAvoid)
+		r.outline(cv, p, v, a, st.Avoid, Dotted, ColorAvoid)
 	}
 	for _, ll := range s.Lines {
 		if ll.Volume == nil {
@@ -362,15 +361,15 @@ func (r *Renderer) Render(s *Scene, v View, dst *image.RGBA) (*image.RGBA, error
 		}
 	}
 	if !s.LethalRegion.IsZero() {
-		r.outline(cv, p, v, s.LethalRegion, st.Lethal, Solid, review.ColorLethal)
+		r.outline(cv, p, v, s.LethalRegion, st.Lethal, Solid, ColorLethal)
 	} else {
 		for _, l := range r.lethal {
-			cv.stroke(r.display(p, v, l.Pixels), l.Closed, st.Lethal, Solid, review.ColorLethal)
+			cv.stroke(r.display(p, v, l.Pixels), l.Closed, st.Lethal, Solid, ColorLethal)
 		}
 	}
-	r.outline(cv, p, v, s.Holes, st.Outline, Solid, review.ColorHole)
-	r.outline(cv, p, v, s.Spill, st.Outline, Solid, review.ColorSpill)
-	r.outline(cv, p, v, s.NotMonitored, 1, Solid, review.ColorNotMonitored)
+	r.outline(cv, p, v, s.Holes, st.Outline, Solid, ColorHole)
+	r.outline(cv, p, v, s.Spill, st.Outline, Solid, ColorSpill)
+	r.outline(cv, p, v, s.NotMonitored, 1, Solid, ColorNotMonitored)
 
 	if s.Marker != nil {
 		x, y := p.Pixel(*s.Marker)
@@ -656,22 +655,6 @@ func crossHatch(x, y int) float64 {
 		return 0.95
 	}
 	return 0
-}
-
-// bilinear interpolates a w×h field at continuous pixel coordinate (x, y)
-// with half a pixel of edge extension; NaN farther out.
-func bilinear(f []float32, w, h int, x, y float64) float64 {
-	if x < -0.5 || y < -0.5 || x > float64(w)-0.5 || y > float64(h)-0.5 {
-		return math.NaN()
-	}
-	xc := math.Max(0, math.Min(float64(w-1), x))
-	yc := math.Max(0, math.Min(float64(h-1), y))
-	x0, fx := splitf(xc, w)
-	y0, fy := splitf(yc, h)
-	x1, y1 := min(x0+1, w-1), min(y0+1, h-1)
-	a := float64(f[y0*w+x0])*(1-fx) + float64(f[y0*w+x1])*fx
-	b := float64(f[y1*w+x0])*(1-fx) + float64(f[y1*w+x1])*fx
-	return a*(1-fy) + b*fy
 }
 
 // drawCrosshair draws a crosshair with an open centre at (x, y).

@@ -7,7 +7,6 @@ import (
 	"testing"
 
 	"dosecover/dosemap"
-	"dosecover/review"
 )
 
 // TestRenderLayers checks the compositing arithmetic on uniform inputs:
@@ -107,7 +106,7 @@ func TestRenderSpillFill(t *testing.T) {
 		t.Fatal(err)
 	}
 	a := DefaultStyle().FillOpacity
-	want := color.RGBA{uint8(a*float64(review.ColorSpill.R) + 0.5), uint8(a*float64(review.ColorSpill.G) + 0.5), uint8(a*float64(review.ColorSpill.B) + 0.5), 255}
+	want := color.RGBA{uint8(a*float64(ColorSpill.R) + 0.5), uint8(a*float64(ColorSpill.G) + 0.5), uint8(a*float64(ColorSpill.B) + 0.5), 255}
 	if got := img.RGBAAt(105, 105); absDiff(got.R, want.R) > 1 || absDiff(got.G, want.G) > 1 || absDiff(got.B, want.B) > 1 {
 		t.Errorf("inside the spill: %v, want %v", got, want)
 	}

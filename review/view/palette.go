@@ -1,4 +1,4 @@
-package review
+package view
 
 import "image/color"
 
