@@ -1,5 +1,3 @@
-//go:build cgo
-
 package main
 
 import (
@@ -64,13 +62,13 @@ func runFollow(args []string, stdout, stderr io.Writer) int {
 	if len(pos) != 1 {
 		fmt.Fprintf(stderr, "dosecover follow: one folder expected, got %d arguments\n", len(pos))
 		fs.Usage()
-		return 2
+		return exitUsage
 	}
 	dir := pos[0]
 	set, err := af.settings()
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover follow: %v\n", err)
-		return 2
+		return settingsExitCode(err)
 	}
 	for _, d := range []struct {
 		name string
@@ -78,12 +76,12 @@ func runFollow(args []string, stdout, stderr io.Writer) int {
 	}{{"--until-idle", *untilIdle}, {"--quiet", *quiet}, {"--poll", *poll}} {
 		if !(d.v >= 0) || d.v > 86400 {
 			fmt.Fprintf(stderr, "dosecover follow: %s %g: want 0 to 86400 seconds\n", d.name, d.v)
-			return 2
+			return exitUsage
 		}
 	}
 	if err := safefile.CheckDir("case folder", dir); err != nil {
 		fmt.Fprintf(stderr, "dosecover follow: %v\n", err)
-		return 1
+		return exitFailure
 	}
 	opt := follow.Options{Settings: set, Study: *study, Quiet: seconds(*quiet), Poll: seconds(*poll),
 		PollOnly: *pollOnly, UntilIdle: seconds(*untilIdle)}
@@ -105,14 +103,14 @@ func runFollow(args []string, stdout, stderr io.Writer) int {
 	}, func(msg string) { fmt.Fprintf(stderr, "dosecover follow: %s\n", msg) })
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover follow: %v\n", err)
-		return 1
+		return exitFailure
 	}
 	how := "idle for " + seconds(*untilIdle).String()
 	if ctx.Err() != nil {
 		how = "stopped"
 	}
 	fmt.Fprintf(stderr, "dosecover follow: %s; %d sonication(s) analysed\n", how, analysed)
-	return 0
+	return exitOK
 }
 
 // seconds converts a flag in seconds.
