@@ -183,20 +183,35 @@ func (pl *player) play(t *testing.T, files []playFile, gap time.Duration) {
 
 // TestFollowPlayedCase plays a pydicom-written case of 4 sonications into
 // an empty folder file by file (renames, slow writes in place, new
-// sub-folders) while Run follows it: every sonication is analysed once,
-// never before its last file is in place, and the last update equals the
+// sub-folders) while Run follows it, with file-system events and with
+// walks of the folder only: every sonication is analysed once, never
+// before its last file is in place, and the last update equals the
 // offline analysis of the complete folder exactly (same JSON).
 func TestFollowPlayedCase(t *testing.T) {
 	const nson = 4
+	t0 := time.Now()
 	src := pydicomCase(t, nson)
 	files := acquisitionOrder(t, src)
+	t.Logf("case written in %v: %d files", time.Since(t0).Round(time.Millisecond), len(files))
+	for _, mode := range []struct {
+		name     string
+		pollOnly bool
+	}{{"events", false}, {"polling", true}} {
+		t.Run(mode.name, func(t *testing.T) { playAndFollow(t, files, nson, mode.pollOnly) })
+	}
+}
+
+func playAndFollow(t *testing.T, files []playFile, nson int, pollOnly bool) {
+	t0 := time.Now()
+	defer func() { t.Logf("played and followed in %v", time.Since(t0).Round(time.Millisecond)) }()
 	dst := filepath.Join(t.TempDir(), "live")
 	if err := os.MkdirAll(dst, 0o755); err != nil {
 		t.Fatal(err)
 	}
 	set := review.DefaultSettings()
 	set.Trials = 10
-	opt := Options{Settings: set, Settle: 150 * time.Millisecond, UntilIdle: 2 * time.Second, Quiet: time.Second, Unreadable: 3 * time.Second}
+	opt := Options{Settings: set, Settle: 150 * time.Millisecond, UntilIdle: 2 * time.Second, Quiet: time.Second, Unreadable: 3 * time.Second,
+		PollOnly: pollOnly, Poll: 300 * time.Millisecond}
 	pl := &player{dst: dst, pause: 2 * time.Millisecond, longStop: 400 * time.Millisecond, lastDone: map[string]time.Time{}, subdirs: map[string]string{}}
 
 	ctx, cancel := context.WithTimeout(t.Context(), 3*time.Minute)
@@ -303,5 +318,114 @@ func TestFollowPlayedCase(t *testing.T) {
 			}
 		}
 		t.Fatalf("final update differs from the offline analysis in length: %d and %d lines", len(al), len(bl))
+	}
+}
+
+// TestFollowUnreadableThenComplete: a thermometry file that stays cut
+// short is named with the reason and holds back its sonication; once
+// written whole it is read and the sonication analysed. A file that is
+// not DICOM is named; one under a temporary name is not. Cancelling the
+// context (Ctrl-C) ends Run cleanly.
+func TestFollowUnreadableThenComplete(t *testing.T) {
+	src := filepath.Join(t.TempDir(), "src")
+	s := sim.DemoSession()
+	s.Sonications = s.Sonications[:1]
+	s.Motion = nil
+	if _, err := sim.WriteSession(src, s); err != nil {
+		t.Fatal(err)
+	}
+	live := filepath.Join(t.TempDir(), "live")
+	var cut string
+	var cutData []byte
+	err := filepath.WalkDir(src, func(p string, d os.DirEntry, err error) error {
+		if err != nil || d.IsDir() || !strings.HasSuffix(p, ".dcm") {
+			return err
+		}
+		rel, _ := filepath.Rel(src, p)
+		dst := filepath.Join(live, rel)
+		os.MkdirAll(filepath.Dir(dst), 0o755)
+		data, err := os.ReadFile(p)
+		if err != nil {
+			return err
+		}
+		if cut == "" && strings.Contains(rel, "sonication") {
+			cut, cutData = dst, data
+			data = data[:len(data)/2]
+		}
+		return os.WriteFile(dst, data, 0o644)
+	})
+	if err != nil || cut == "" {
+		t.Fatalf("copying the case: %v", err)
+	}
+	os.WriteFile(filepath.Join(live, "notes.txt"), []byte("session notes"), 0o644)
+	os.WriteFile(filepath.Join(live, ".incoming.dcm.part"), []byte("half a file"), 0o644)
+
+	ctx, cancel := context.WithCancel(t.Context())
+	defer cancel()
+	notices := make(chan string, 100)
+	updates := make(chan Update, 10)
+	done := make(chan error, 1)
+	opt := Options{Settings: review.DefaultSettings(), Settle: 50 * time.Millisecond, Unreadable: 300 * time.Millisecond, Quiet: time.Second}
+	opt.Settings.Trials = 0
+	go func() {
+		done <- Run(ctx, live, opt, func(u Update) error { updates <- u; return nil }, func(s string) { notices <- s })
+	}()
+	var got []string
+	wait := func(what string, ok func() bool) {
+		t.Helper()
+		deadline := time.After(60 * time.Second)
+		for !ok() {
+			select {
+			case n := <-notices:
+				got = append(got, n)
+			case u := <-updates:
+				t.Fatalf("update %v before the cut file was whole", u.New)
+			case <-deadline:
+				t.Fatalf("no %s within 60 s; notices: %q", what, got)
+			case <-time.After(20 * time.Millisecond):
+			}
+		}
+	}
+	named := func(name, reason string) func() bool {
+		return func() bool {
+			for _, n := range got {
+				if strings.Contains(n, name) && strings.Contains(n, reason) {
+					return true
+				}
+			}
+			return false
+		}
+	}
+	rel, _ := filepath.Rel(live, cut)
+	wait("notice of the cut file", named(rel, "truncated"))
+	wait("notice of the text file", named("notes.txt", "not a DICOM file"))
+	if err := os.WriteFile(cut, cutData, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	select {
+	case u := <-updates:
+		if len(u.Sonications) != 1 || len(u.New) != 1 {
+			t.Errorf("update %v of %v, want sonication 1", u.New, u.Sonications)
+		}
+	case <-time.After(60 * time.Second):
+		t.Fatal("no update within 60 s of the file written whole")
+	}
+	cancel()
+	select {
+	case err := <-done:
+		if err != nil {
+			t.Errorf("Run after cancel: %v", err)
+		}
+	case <-time.After(10 * time.Second):
+		t.Fatal("Run did not end within 10 s of the cancel")
+	}
+	close(notices)
+	for n := range notices {
+		got = append(got, n)
+	}
+	for _, n := range got {
+		if strings.Contains(n, "incoming") {
+			t.Errorf("file under a temporary name named: %s", n)
+		}
 	}
 }
