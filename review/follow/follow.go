@@ -20,8 +20,11 @@
 //
 // An image series is complete when every temporal position it declares
 // (NumberOfTemporalPositions, 0020,0105) holds a frame at every slice
-// position the series has shown; a series that declares none is complete
-// after Options.Quiet without a new frame. Complete series are analysed
+// position the series has shown (phase and magnitude counted apart); a
+// series that declares none is complete after Options.Quiet without a new
+// frame. A series still missing frames after three quiet times is
+// analysed without them (the missing frames are named and their voxels
+// count as not monitored), as it is when following ends. Complete series are analysed
 // together, except while a series still arriving that declares as many
 // time points started within 2 s of one of them (the magnitude of a phase
 // series, or its phase).
@@ -468,16 +471,19 @@ func (f *follower) complete(s *seriesState, now time.Time) bool {
 	if len(s.frames) == 0 {
 		return false
 	}
-	quiet := f.ending || now.Sub(s.lastNew) >= f.opt.Quiet
 	if s.declared <= 0 {
-		return quiet
+		return f.ending || now.Sub(s.lastNew) >= f.opt.Quiet
 	}
+	whole := len(s.frames) >= s.declared*len(s.slices)*len(s.comps) // every (time point, slice, component) present
 	for k := range s.frames {
 		if k.t < 1 || k.t > s.declared {
-			return quiet // time points outside the declared range
+			whole = false // time points outside the declared range
 		}
 	}
-	return len(s.frames) >= s.declared*len(s.slices)*len(s.comps) // every (time point, slice, component) present
+	// A frame that never comes must not hold the sonication back for
+	// ever: after three quiet times it is analysed without it (the
+	// reading names the missing frames, marked not monitored).
+	return whole || f.ending || now.Sub(s.lastNew) >= 3*f.opt.Quiet
 }
 
 // analyse loads the complete series not yet analysed and analyses the
@@ -538,6 +544,15 @@ func (f *follower) analyse(ctx context.Context, now time.Time) error {
 	if err != nil {
 		return err
 	}
+	if len(c.Sonications) > 0 && inv != nil {
+		for _, pr := range inv.Problems {
+			// A batch of sonications alone lacks the anatomy and the
+			// structure set by design.
+			if !strings.HasPrefix(pr, "no anatomy") && !strings.HasPrefix(pr, "no RTSTRUCT") {
+				f.notice(pr)
+			}
+		}
+	}
 	if f.ses == nil {
 		if len(c.Sonications) == 0 {
 			return nil // anatomy only so far
@@ -576,15 +591,7 @@ func (f *follower) analyse(ctx context.Context, now time.Time) error {
 	for _, s := range ready {
 		s.consumed = true
 	}
-	if inv != nil {
-		for _, pr := range inv.Problems {
-			// A batch of sonications alone lacks the anatomy and the
-			// structure set by design.
-			if !strings.HasPrefix(pr, "no anatomy") && !strings.HasPrefix(pr, "no RTSTRUCT") {
-				f.notice(pr)
-			}
-		}
-	}
+
 	var added []int
 	for _, so := range c.Sonications {
 		so.Number = len(f.nums) + 1
