@@ -544,7 +544,7 @@ func (f *follower) analyse(ctx context.Context, now time.Time) error {
 	if err != nil {
 		return err
 	}
-	if len(c.Sonications) > 0 && inv != nil {
+	problems := func() { // named once the files are used
 		for _, pr := range inv.Problems {
 			// A batch of sonications alone lacks the anatomy and the
 			// structure set by design.
@@ -579,6 +579,7 @@ func (f *follower) analyse(ctx context.Context, now time.Time) error {
 			return nil
 		}
 		f.ses = ses
+		problems()
 		for _, so := range c.Sonications {
 			f.nums = append(f.nums, so.Number)
 			f.noteStart(so)
@@ -591,7 +592,7 @@ func (f *follower) analyse(ctx context.Context, now time.Time) error {
 	for _, s := range ready {
 		s.consumed = true
 	}
-
+	problems()
 	var added []int
 	for _, so := range c.Sonications {
 		so.Number = len(f.nums) + 1
