@@ -429,3 +429,75 @@ func TestFollowUnreadableThenComplete(t *testing.T) {
 		}
 	}
 }
+
+// TestFollowMissingFrame: a sonication one of whose files never comes is
+// analysed after three quiet times, with the missing frame named, and the
+// figures equal the offline analysis of the same folder.
+func TestFollowMissingFrame(t *testing.T) {
+	src := filepath.Join(t.TempDir(), "src")
+	s := sim.DemoSession()
+	s.Sonications = s.Sonications[:2]
+	s.Motion = nil
+	if _, err := sim.WriteSession(src, s); err != nil {
+		t.Fatal(err)
+	}
+	live := filepath.Join(t.TempDir(), "live")
+	dropped := false
+	err := filepath.WalkDir(src, func(p string, d os.DirEntry, err error) error {
+		if err != nil || d.IsDir() || !strings.HasSuffix(p, ".dcm") {
+			return err
+		}
+		rel, _ := filepath.Rel(src, p)
+		if !dropped && strings.Contains(rel, "sonication-02") {
+			dropped = true // never arrives
+			return nil
+		}
+		dst := filepath.Join(live, rel)
+		os.MkdirAll(filepath.Dir(dst), 0o755)
+		data, err := os.ReadFile(p)
+		if err != nil {
+			return err
+		}
+		return os.WriteFile(dst, data, 0o644)
+	})
+	if err != nil || !dropped {
+		t.Fatalf("copying the case: %v", err)
+	}
+	set := review.DefaultSettings()
+	set.Trials = 0
+	opt := Options{Settings: set, Settle: 50 * time.Millisecond, Quiet: 200 * time.Millisecond}
+	ctx, cancel := context.WithTimeout(t.Context(), time.Minute)
+	defer cancel()
+	var last *review.Result
+	var notices []string
+	err = Run(ctx, live, opt, func(u Update) error {
+		last = u.Result
+		if len(u.Sonications) == 2 {
+			cancel() // both analysed: end
+		}
+		return nil
+	}, func(s string) { notices = append(notices, s) })
+	if err != nil {
+		t.Fatal(err)
+	}
+	if last == nil || len(last.Sonications) != 2 {
+		t.Fatalf("sonication with a missing frame not analysed; notices %q", notices)
+	}
+	if !strings.Contains(strings.Join(notices, "\n"), "missing frames: 1 of") {
+		t.Errorf("missing frame not named; notices %q", notices)
+	}
+	c, _, err := dicomio.Load(t.Context(), live, dicomio.LoadOptions{Deferred: true}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	want, err := review.Analyze(t.Context(), c, set, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var a, b bytes.Buffer
+	want.WriteJSON(&a)
+	last.WriteJSON(&b)
+	if a.String() != b.String() {
+		t.Errorf("figures differ from the offline analysis:\noffline %.2000s\nfollow  %.2000s", a.String(), b.String())
+	}
+}
