@@ -43,7 +43,8 @@ type reviewWindow struct {
 	opt        displayOptions
 	jobCancel  context.CancelFunc
 	jobGen     int
-	pendingDir string // the folder being opened
+	pendingDir string       // the folder being opened
+	follow     *followState // the session being followed; nil when none
 	probeGen   int
 	probeCurve *review.Probe
 	active     *sliceViewer
@@ -258,6 +259,8 @@ func (rw *reviewWindow) mainMenu() *fyne.MainMenu {
 		fyne.NewMenuItem("Open folder…", rw.chooseFolder),
 		fyne.NewMenuItem("Open the demo case", func() { rw.openDemo() }),
 		recent,
+		fyne.NewMenuItem("Follow folder…", rw.chooseFollowFolder),
+		fyne.NewMenuItem("Stop following", func() { rw.stopFollowing(true) }),
 		fyne.NewMenuItemSeparator(), fyne.NewMenuItem("Audit many cases…", rw.openAuditView),
 	)
 	rw.fillRecentMenu(recent.ChildMenu)

@@ -118,6 +118,13 @@ type Update struct {
 	// seen changing (written, created or renamed into place).
 	LastFile time.Time
 	Result   *review.Result
+	// Case is the case followed so far: anatomy and structures as first
+	// loaded, the sonications analysed (a copy: later updates do not
+	// change it).
+	Case *dosemap.Case
+	// Session is the prepared session, which later updates extend; it is
+	// safe for concurrent use (a viewer may probe it).
+	Session *review.Session
 }
 
 // Latency is the time from the last file of the newest sonication to the
@@ -168,6 +175,7 @@ type follower struct {
 	study     string
 	otherSt   map[string]bool // other studies named
 	ses       *review.Session
+	c         *dosemap.Case // the case followed so far
 	nums      []int
 	lastTry   int // complete series and structure sets at the last failed first preparation
 	activity  time.Time
@@ -578,7 +586,7 @@ func (f *follower) analyse(ctx context.Context, now time.Time) error {
 			f.notice(fmt.Sprintf("cannot analyse yet: %v", err))
 			return nil
 		}
-		f.ses = ses
+		f.ses, f.c = ses, c
 		problems()
 		for _, so := range c.Sonications {
 			f.nums = append(f.nums, so.Number)
@@ -604,6 +612,7 @@ func (f *follower) analyse(ctx context.Context, now time.Time) error {
 			continue
 		}
 		f.nums = append(f.nums, so.Number)
+		f.c.Sonications = append(f.c.Sonications, so)
 		added = append(added, so.Number)
 		f.noteStart(so)
 	}
@@ -653,7 +662,10 @@ func (f *follower) analysis(ctx context.Context, ready []*seriesState, added []i
 			}
 		}
 	}
-	return f.update(Update{At: time.Now(), Sonications: slices.Clone(f.nums), New: added, LastFile: last, Result: r})
+	c := *f.c
+	c.Sonications = slices.Clone(f.c.Sonications)
+	return f.update(Update{At: time.Now(), Sonications: slices.Clone(f.nums), New: added, LastFile: last, Result: r,
+		Case: &c, Session: f.ses})
 }
 
 // finalNotices names, at the end, files still unreadable and series
