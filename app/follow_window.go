@@ -107,8 +107,8 @@ func (rw *reviewWindow) followUpdate(fs *followState, ss *reviewSession, res *an
 	fs.last, fs.n = u.At, len(u.Sonications)
 	rw.sess = ss
 	rw.showResult(res)
-	rw.setBusy(fmt.Sprintf("Following %s: %d sonications analysed; last update %s (%.1f s after the last file). File ▸ Stop following ends it.",
-		rw.displayPath(fs.dir), fs.n, fs.last.Format("15:04:05"), u.Latency().Seconds()), -1)
+	rw.setBusy(fmt.Sprintf("Following %s: %d sonications analysed; last update %s, %.1f s after the last file",
+		filepath.Base(fs.dir), fs.n, fs.last.Format("15:04:05"), u.Latency().Seconds()), -1)
 }
 
 // stopFollowing ends the following; reopen reads the folder again as a
