@@ -251,6 +251,10 @@ func playAndFollow(t *testing.T, files []playFile, nson int, pollOnly bool) {
 			t.Fatalf("sonications added %v, want 1..%d in order", seen, nson)
 		}
 	}
+	fin := updates[len(updates)-1]
+	if got := fin.Session.Sonications(); len(got) != nson || len(fin.Case.Sonications) != nson || fin.Case.Target() == nil {
+		t.Errorf("final update: session sonications %v, case %d sonications, target %v", got, len(fin.Case.Sonications), fin.Case.Target() != nil)
+	}
 	// Never before the last file of the sonication was in place; latency
 	// from the player's clock (measured, reported; the 1 s target is
 	// checked by BenchmarkFollowUpdate, not here).
