@@ -236,6 +236,7 @@ func Run(ctx context.Context, dir string, opt Options, update func(Update) error
 				}
 			}
 			f.touch(ev.Name, time.Now())
+			continue // files are read at the next tick: a burst of events costs one pass
 		case err, ok := <-errs:
 			if !ok {
 				errs = nil
@@ -245,6 +246,7 @@ func Run(ctx context.Context, dir string, opt Options, update func(Update) error
 				eventErr = true
 				notice(fmt.Sprintf("file-system events: %v; the walks every %s find what they miss", err, opt.Poll))
 			}
+			continue
 		case <-poll.C:
 			f.walk(w)
 		case <-tick.C:
