@@ -96,6 +96,9 @@ func runFollow(args []string, stdout, stderr io.Writer) int {
 	analysed := 0
 	err = follow.Run(ctx, dir, opt, func(u follow.Update) error {
 		analysed = len(u.Sonications)
+		if len(u.New) == 0 {
+			return nil // the anatomy arrived: no new figures
+		}
 		if *jsonLines {
 			return writeFollowJSON(stdout, u)
 		}

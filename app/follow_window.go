@@ -103,10 +103,19 @@ func (rw *reviewWindow) followUpdate(fs *followState, ss *reviewSession, res *an
 		rw.setViewGrid()
 	} else {
 		rw.loaded.Case = u.Case
+		if u.Case.Anatomy != nil && rw.scene.Anatomy == nil {
+			// The anatomy completed after the first update.
+			rw.scene.Anatomy = u.Case.Anatomy
+			rw.opt.WindowCentre, rw.opt.WindowWidth = defaultWindow(u.Case)
+			rw.setViewGrid()
+		}
 	}
-	fs.last, fs.n = u.At, len(u.Sonications)
 	rw.sess = ss
 	rw.showResult(res)
+	if len(u.New) == 0 {
+		return // the anatomy arrived; the figures are those on screen
+	}
+	fs.last, fs.n = u.At, len(u.Sonications)
 	rw.setBusy(fmt.Sprintf("Following %s: %d sonications analysed; last update %s, %.1f s after the last file",
 		filepath.Base(fs.dir), fs.n, fs.last.Format("15:04:05"), u.Latency().Seconds()), -1)
 }

@@ -113,7 +113,10 @@ func (o *Options) defaults() {
 type Update struct {
 	At          time.Time // when the analysis ended
 	Sonications []int     // numbers of the sonications analysed, delivery order
-	New         []int     // numbers of the sonications this update added
+	// New holds the numbers of the sonications this update added; empty
+	// when only Case changed (an anatomy series completed after the first
+	// analysis), Result being the last analysis again.
+	New []int
 	// LastFile is when the last file of the newest sonication was last
 	// seen changing (written, created or renamed into place).
 	LastFile time.Time
@@ -175,7 +178,8 @@ type follower struct {
 	study     string
 	otherSt   map[string]bool // other studies named
 	ses       *review.Session
-	c         *dosemap.Case // the case followed so far
+	c         *dosemap.Case  // the case followed so far
+	last      *review.Result // the last analysis
 	nums      []int
 	lastTry   int // complete series and structure sets at the last failed first preparation
 	activity  time.Time
@@ -618,6 +622,14 @@ func (f *follower) analyse(ctx context.Context, now time.Time) error {
 		added = append(added, so.Number)
 		f.noteStart(so)
 	}
+	if c.Anatomy != nil && f.c.Anatomy == nil && f.last != nil {
+		// The anatomy completed after the first analysis (it declares no
+		// time points, so it waits for the quiet time): shown from now on.
+		f.c.Anatomy = c.Anatomy
+		if len(added) == 0 {
+			return f.report(f.last, nil, time.Time{})
+		}
+	}
 	if len(added) == 0 {
 		return nil
 	}
@@ -664,9 +676,19 @@ func (f *follower) analysis(ctx context.Context, ready []*seriesState, added []i
 			}
 		}
 	}
+	f.last = r
+	return f.report(r, added, last)
+}
+
+// report hands an update to the caller.
+func (f *follower) report(r *review.Result, added []int, last time.Time) error {
 	c := *f.c
 	c.Sonications = slices.Clone(f.c.Sonications)
-	return f.update(Update{At: time.Now(), Sonications: slices.Clone(f.nums), New: added, LastFile: last, Result: r,
+	now := time.Now()
+	if last.IsZero() {
+		last = now
+	}
+	return f.update(Update{At: now, Sonications: slices.Clone(f.nums), New: added, LastFile: last, Result: r,
 		Case: &c, Session: f.ses})
 }
 

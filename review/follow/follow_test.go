@@ -436,7 +436,8 @@ func TestFollowUnreadableThenComplete(t *testing.T) {
 
 // TestFollowMissingFrame: a sonication one of whose files never comes is
 // analysed after three quiet times, with the missing frame named, and the
-// figures equal the offline analysis of the same folder.
+// figures equal the offline analysis of the same folder; the anatomy
+// (no declared time points) joins the followed case after its quiet time.
 func TestFollowMissingFrame(t *testing.T) {
 	src := filepath.Join(t.TempDir(), "src")
 	s := sim.DemoSession()
@@ -474,10 +475,12 @@ func TestFollowMissingFrame(t *testing.T) {
 	defer cancel()
 	var last *review.Result
 	var notices []string
+	anatomy := false
 	err = Run(ctx, live, opt, func(u Update) error {
 		last = u.Result
-		if len(u.Sonications) == 2 {
-			cancel() // both analysed: end
+		anatomy = u.Case.Anatomy != nil
+		if len(u.Sonications) == 2 && anatomy {
+			cancel() // both analysed, the anatomy shown: end
 		}
 		return nil
 	}, func(s string) { notices = append(notices, s) })
@@ -486,6 +489,9 @@ func TestFollowMissingFrame(t *testing.T) {
 	}
 	if last == nil || len(last.Sonications) != 2 {
 		t.Fatalf("sonication with a missing frame not analysed; notices %q", notices)
+	}
+	if !anatomy {
+		t.Error("the anatomy series never reached the followed case")
 	}
 	if !strings.Contains(strings.Join(notices, "\n"), "missing frames: 1 of") {
 		t.Errorf("missing frame not named; notices %q", notices)
