@@ -94,7 +94,9 @@ func (ss *reviewSession) wrap(r *review.Result) *analysisResult {
 	}
 	for _, st := range r.Sonications {
 		row := sonicationRow{Number: st.Number, Label: st.Label, PeakTemp: ptr(st.PeakTempC), PeakDose: st.PeakDose,
-			DoseAddedML: st.LethalAddedML, CoverageAdded: st.AddedCoverage, Offset: math.NaN()}
+			DoseAddedML: st.LethalAddedML, CoverageAdded: st.AddedCoverage, Offset: math.NaN(),
+			CoolingS: ptr(st.CoolingS), ResidualC: ptr(st.ResidualRiseC)}
+		row.ResidualHigh = row.ResidualC > r.Settings.ResidualWarnC
 		if so := ss.sonication(st.Number); so != nil {
 			row.Start = so.Start
 			if first != nil && !so.Start.IsZero() && !first.Start.IsZero() {

@@ -124,7 +124,7 @@ var sonColumns = []struct {
 	width float32
 }{
 	{"use", 48}, {"no.", 40}, {"time", 62}, {"label", 190}, {"peak °C", 70}, {"peak dose", 90}, {"lethal added mL", 124},
-	{"coverage added", 118}, {"quality and notes", 560},
+	{"coverage added", 118}, {"cooled s", 76}, {"residual °C", 96}, {"quality and notes", 560},
 }
 
 func (rw *reviewWindow) newSonicationTable() *widget.Table {
@@ -184,6 +184,13 @@ func (rw *reviewWindow) newSonicationTable() *widget.Table {
 			case 7:
 				l.SetText(fmtOpt(100*row.CoverageAdded, "%.1f %%"))
 			case 8:
+				l.SetText(fmtOpt(row.CoolingS, "%.0f"))
+			case 9:
+				if row.ResidualHigh {
+					l.Importance = widget.WarningImportance
+				}
+				l.SetText(fmtOpt(row.ResidualC, "%.1f"))
+			case 10:
 				if excludedSet(rw.settings)[row.Number] {
 					l.Importance = widget.LowImportance
 					l.SetText("left out of the cumulative dose")
