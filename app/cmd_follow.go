@@ -15,6 +15,7 @@ import (
 	"time"
 
 	"dosecover/dosemap"
+	"dosecover/dosemap/dicomweb"
 	"dosecover/dosemap/safefile"
 	"dosecover/review"
 	"dosecover/review/follow"
@@ -26,8 +27,8 @@ func init() {
 
 // runFollow implements
 //
-//	dosecover follow DIR [--json-lines] [--until-idle SECONDS] [--quiet SECONDS]
-//	    [--poll SECONDS] [--poll-only] [the analysis options of analyze]
+//	dosecover follow DIR|URL/studies/UID [--json-lines] [--until-idle SECONDS]
+//	    [--quiet SECONDS] [--poll SECONDS] [--poll-only] [the analysis options of analyze]
 //
 // It prints one update per completed sonication (or group of sonications
 // completed together) until Ctrl-C or, with --until-idle, until the folder
@@ -39,19 +40,21 @@ func runFollow(args []string, stdout, stderr io.Writer) int {
 	jsonLines := fs.Bool("json-lines", false, "print one JSON object per update (the fields of analyze's JSON result plus sonications_analysed, new_sonications, updated_at, seconds_after_last_file) instead of the text")
 	untilIdle := fs.Float64("until-idle", 0, "end after `SECONDS` without a new or changed file (0: until Ctrl-C)")
 	quiet := fs.Float64("quiet", 10, "a series that declares no temporal positions is complete after `SECONDS` without a new frame")
-	poll := fs.Float64("poll", 0, "walk the folder every `SECONDS` for files the file-system events missed (0: 2 s, 1 s with --poll-only)")
+	poll := fs.Float64("poll", 0, "walk the folder (and ask an archive for new instances) every `SECONDS` (0: 2 s; walks 1 s with --poll-only)")
 	pollOnly := fs.Bool("poll-only", false, "use the walks only, no file-system events (network folders, where events are unreliable)")
 	sf := addStructureFlags(fs)
 	af := addAnalysisFlags(fs)
 	study := addStudyFlag(fs)
 	fs.Usage = func() {
-		fmt.Fprintln(stderr, "usage: dosecover follow DIR [--json-lines] [--until-idle SECONDS] [analysis options]")
+		fmt.Fprintln(stderr, "usage: dosecover follow DIR|URL/studies/UID [--json-lines] [--until-idle SECONDS] [analysis options]")
 		fmt.Fprintln(stderr, "Watches a folder that a scanner or a DICOM receiver fills during the session (never")
 		fmt.Fprintln(stderr, "changes it). When a sonication is complete (every temporal position its files declare")
 		fmt.Fprintln(stderr, "or, without them, no new frame for --quiet seconds) it analyses the session so far and")
 		fmt.Fprintln(stderr, "prints the sonications analysed, coverage, holes, lethal volume outside the margin and")
 		fmt.Fprintln(stderr, "the new sonication's own figures. Files still being written or under temporary names")
 		fmt.Fprintln(stderr, "are not read; a file that stays unreadable is named. Ctrl-C ends it.")
+		fmt.Fprintln(stderr, "An archive study (URL/studies/UID) is asked for new instances every --poll seconds;")
+		fmt.Fprintln(stderr, "only what is new is retrieved, into the cache, and followed there.")
 		fmt.Fprintln(stderr, "Exit status: 0 ended normally, 1 could not go on (reason given), 2 usage error.")
 		fs.PrintDefaults()
 	}
@@ -65,6 +68,11 @@ func runFollow(args []string, stdout, stderr io.Writer) int {
 		return exitUsage
 	}
 	dir := pos[0]
+	u, isURL, err := dicomweb.ParseStudyURL(dir)
+	if err != nil {
+		fmt.Fprintf(stderr, "dosecover follow: %v\n", err)
+		return exitUsage
+	}
 	set, err := af.settings()
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover follow: %v\n", err)
@@ -79,19 +87,43 @@ func runFollow(args []string, stdout, stderr io.Writer) int {
 			return exitUsage
 		}
 	}
+	opt := follow.Options{Settings: set, Study: *study, Quiet: seconds(*quiet), Poll: seconds(*poll),
+		PollOnly: *pollOnly, UntilIdle: seconds(*untilIdle), FetchEvery: seconds(*poll)}
+	if isURL {
+		// An archive study: its instances are retrieved into the cache
+		// folder of the study as they arrive, and that folder followed.
+		c, err := archiveClient(u.Base, os.Getenv(archiveCAEnv))
+		if err != nil {
+			fmt.Fprintf(stderr, "dosecover follow: %v\n", err)
+			return exitFailure
+		}
+		k, err := dicomweb.DefaultCache()
+		if err != nil {
+			fmt.Fprintf(stderr, "dosecover follow: %v\n", err)
+			return exitFailure
+		}
+		dir = k.Folder(u)
+		if err := os.MkdirAll(dir, 0o755); err != nil {
+			fmt.Fprintf(stderr, "dosecover follow: %v\n", err)
+			return exitFailure
+		}
+		opt.Study = u.Study
+		opt.Fetch = func(ctx context.Context) error {
+			_, err := c.Retrieve(ctx, u.Study, dir, dicomweb.RetrieveOptions{})
+			return err
+		}
+	}
 	if err := safefile.CheckDir("case folder", dir); err != nil {
 		fmt.Fprintf(stderr, "dosecover follow: %v\n", err)
 		return exitFailure
 	}
-	opt := follow.Options{Settings: set, Study: *study, Quiet: seconds(*quiet), Poll: seconds(*poll),
-		PollOnly: *pollOnly, UntilIdle: seconds(*untilIdle)}
 	if sf.contours != "" || sf.target != "" {
 		opt.Structures = func(c *dosemap.Case) error { return sf.apply(c) }
 	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
 	defer stop()
 	if !*jsonLines {
-		fmt.Fprintf(stdout, "Following %s (Ctrl-C ends).\n%s\n", dir, strings.Join(review.Cautions, "\n"))
+		fmt.Fprintf(stdout, "Following %s (Ctrl-C ends).\n%s\n", pos[0], strings.Join(review.Cautions, "\n"))
 	}
 	analysed := 0
 	err = follow.Run(ctx, dir, opt, func(u follow.Update) error {

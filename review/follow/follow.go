@@ -89,6 +89,14 @@ type Options struct {
 	// UntilIdle, when positive, ends Run after that long without a new or
 	// changed file (once what has arrived is analysed).
 	UntilIdle time.Duration
+	// Fetch, when not nil, brings the folder up to date from elsewhere
+	// (new instances of an archive study), writing each file under a
+	// temporary name and renaming it; Run calls it at once and then
+	// FetchEvery after each call ends (default 2 s). An error is named
+	// when three calls in a row fail (a study that changes during a
+	// retrieval fails one call, and the next completes it).
+	Fetch      func(ctx context.Context) error
+	FetchEvery time.Duration
 }
 
 func (o *Options) defaults() {
@@ -100,6 +108,9 @@ func (o *Options) defaults() {
 	}
 	if o.Unreadable <= 0 {
 		o.Unreadable = 10 * time.Second
+	}
+	if o.FetchEvery <= 0 {
+		o.FetchEvery = 2 * time.Second
 	}
 	if o.Poll <= 0 {
 		o.Poll = 2 * time.Second
@@ -219,6 +230,33 @@ func Run(ctx context.Context, dir string, opt Options, update func(Update) error
 		}
 	}
 	f.walk(w)
+	var fetchErrs chan error
+	if opt.Fetch != nil {
+		fetchErrs = make(chan error, 1)
+		fctx, stopFetch := context.WithCancel(ctx)
+		fetchDone := make(chan struct{})
+		defer func() { stopFetch(); <-fetchDone }()
+		go func() {
+			defer close(fetchDone)
+			for {
+				err := opt.Fetch(fctx)
+				if fctx.Err() != nil {
+					return
+				}
+				select {
+				case fetchErrs <- err:
+				case <-fctx.Done():
+					return
+				}
+				select {
+				case <-time.After(opt.FetchEvery):
+				case <-fctx.Done():
+					return
+				}
+			}
+		}()
+	}
+	failed := 0
 	tick := time.NewTicker(min(opt.Settle/2, 50*time.Millisecond))
 	defer tick.Stop()
 	poll := time.NewTicker(opt.Poll)
@@ -250,6 +288,14 @@ func Run(ctx context.Context, dir string, opt Options, update func(Update) error
 				eventErr = true
 				notice(fmt.Sprintf("file-system events: %v; the walks every %s find what they miss", err, opt.Poll))
 			}
+			continue
+		case err := <-fetchErrs:
+			if err == nil {
+				failed = 0
+			} else if failed++; failed == 3 {
+				notice(fmt.Sprintf("fetching new files: %v (trying again every %s)", err, opt.FetchEvery))
+			}
+			f.walk(w) // what the fetch wrote, should an event be missed
 			continue
 		case <-poll.C:
 			f.walk(w)
