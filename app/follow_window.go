@@ -5,13 +5,17 @@ package main
 import (
 	"context"
 	"fmt"
+	"os"
 	"path/filepath"
+	"strings"
 	"time"
 
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/dialog"
+	"fyne.io/fyne/v2/widget"
 
 	"dosecover/dosemap"
+	"dosecover/dosemap/dicomweb"
 	"dosecover/review/follow"
 )
 
@@ -46,20 +50,76 @@ func (rw *reviewWindow) chooseFollowFolder() {
 // settings are those of the window when following starts. Stop following
 // reads the folder again as a finished case (for sign-off and export).
 func (rw *reviewWindow) followFolder(dir string) {
+	rw.followWith(filepath.Clean(dir), rw.displayPath(dir), nil)
+}
+
+// chooseFollowArchive asks for the address of an archive study and
+// follows it: new instances are retrieved into the study's cache folder
+// every 2 s, and that folder is followed.
+func (rw *reviewWindow) chooseFollowArchive() {
+	entry := widget.NewEntry()
+	entry.SetPlaceHolder("https://archive.example/dicom-web/studies/1.2.3")
+	if base := rw.app.Preferences().String(prefArchiveURL); base != "" {
+		entry.SetText(strings.TrimRight(base, "/") + "/studies/")
+	}
+	auth := "none (" + dicomweb.AuthEnv + " is not set)"
+	if os.Getenv(dicomweb.AuthEnv) != "" {
+		auth = "from " + dicomweb.AuthEnv
+	}
+	items := []*widget.FormItem{widget.NewFormItem("Study address", entry), widget.NewFormItem("Credentials", widget.NewLabel(auth))}
+	d := dialog.NewForm("Follow archive study", "Follow", "Cancel", items, func(ok bool) {
+		if ok {
+			rw.followArchive(strings.TrimSpace(entry.Text))
+		}
+	}, rw.win)
+	d.Resize(fyne.NewSize(720, 220))
+	d.Show()
+}
+
+// followArchive follows the archive study at addr (URL/studies/UID).
+func (rw *reviewWindow) followArchive(addr string) {
+	u, ok, err := dicomweb.ParseStudyURL(addr)
+	if err == nil && !ok {
+		err = fmt.Errorf("%q: want an archive study address, URL/studies/UID", addr)
+	}
+	var c *dicomweb.Client
+	var k *dicomweb.Cache
+	if err == nil {
+		c, err = archiveClient(u.Base, os.Getenv(archiveCAEnv))
+	}
+	if err == nil {
+		k, err = dicomweb.DefaultCache()
+	}
+	var dir string
+	if err == nil {
+		dir = k.Folder(u)
+		err = os.MkdirAll(dir, 0o755)
+	}
+	if err != nil {
+		rw.showError("The archive study cannot be followed", err)
+		return
+	}
+	rw.followWith(dir, "study "+u.Study, func(ctx context.Context) error {
+		_, err := c.Retrieve(ctx, u.Study, dir, dicomweb.RetrieveOptions{})
+		return err
+	})
+}
+
+// followWith follows dir, named name; fetch, when not nil, brings dir up
+// to date from an archive (follow.Options.Fetch).
+func (rw *reviewWindow) followWith(dir, name string, fetch func(context.Context) error) {
 	rw.stopFollowing(false)
 	rw.cancelJob()
-	dir = filepath.Clean(dir)
 	ctx, cancel := context.WithCancel(context.Background())
 	fs := &followState{dir: dir, cancel: cancel}
 	rw.follow = fs
 	set := rw.settings
-	name := rw.displayPath(dir)
 	rw.setBusy("Following "+name+": waiting for a complete sonication and a structure set…", -1)
 	if rw.loaded == nil {
 		rw.showNotice("Following " + name + ": the views appear with the first complete sonication.")
 	}
 	go func() {
-		err := follow.Run(ctx, dir, follow.Options{Settings: set}, func(u follow.Update) error {
+		err := follow.Run(ctx, dir, follow.Options{Settings: set, Fetch: fetch}, func(u follow.Update) error {
 			ss := &reviewSession{c: u.Case, rs: u.Session}
 			res := ss.wrap(u.Result) // off the UI goroutine
 			fyne.Do(func() {

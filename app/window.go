@@ -261,6 +261,7 @@ func (rw *reviewWindow) mainMenu() *fyne.MainMenu {
 		fyne.NewMenuItem("Open from archive…", rw.openFromArchive),
 		recent,
 		fyne.NewMenuItem("Follow folder…", rw.chooseFollowFolder),
+		fyne.NewMenuItem("Follow archive study…", rw.chooseFollowArchive),
 		fyne.NewMenuItem("Stop following", func() { rw.stopFollowing(true) }),
 		fyne.NewMenuItemSeparator(), fyne.NewMenuItem("Audit many cases…", rw.openAuditView),
 	)
