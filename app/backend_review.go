@@ -42,6 +42,11 @@ func (ss *reviewSession) Analyze(ctx context.Context, set review.Settings) (*ana
 	if err != nil {
 		return nil, err
 	}
+	return ss.wrap(r), nil
+}
+
+// wrap turns an analysis of the session into what the window shows.
+func (ss *reviewSession) wrap(r *review.Result) *analysisResult {
 	out := &analysisResult{Result: r, Unit: doseUnitName(r.DoseUnit), TargetStructure: ss.c.Target()}
 	for n := range ss.c.Structures {
 		if st := &ss.c.Structures[n]; st.Role == dosemap.RoleAvoid {
@@ -111,7 +116,7 @@ func (ss *reviewSession) Analyze(ctx context.Context, set review.Settings) (*ana
 		out.SonRows = append(out.SonRows, row)
 		out.SonicationDose = append(out.SonicationDose, ss.rs.SonicationDose(st.Number))
 	}
-	return out, nil
+	return out
 }
 
 func (ss *reviewSession) sonication(num int) *dosemap.Sonication {

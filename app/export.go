@@ -26,6 +26,10 @@ func (rw *reviewWindow) exportReport() {
 		dialog.ShowInformation("Export report", "There is no analysis to export yet.", rw.win)
 		return
 	}
+	if rw.record == nil {
+		dialog.ShowInformation("Export report", "A session being followed is still changing. Stop following (File ▸ Stop following) to read the folder as a finished case, then export.", rw.win)
+		return
+	}
 	d := dialog.NewFolderOpen(func(u fyne.ListableURI, err error) {
 		if err != nil {
 			rw.showError("The folder could not be opened", err)

@@ -157,6 +157,7 @@ func (rw *reviewWindow) openFolder(dir string, demo bool) {
 // study) of the case folder dir in the background, as openFolder does; a
 // folder of several studies and no choice brings up the study chooser.
 func (rw *reviewWindow) openStudy(dir string, demo bool, study string) {
+	rw.stopFollowing(false)
 	if readCase == nil {
 		rw.showNotice("This build of dosecover cannot read case folders yet (its DICOM reader is missing).")
 		return

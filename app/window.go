@@ -43,7 +43,8 @@ type reviewWindow struct {
 	opt        displayOptions
 	jobCancel  context.CancelFunc
 	jobGen     int
-	pendingDir string // the folder being opened
+	pendingDir string       // the folder being opened
+	follow     *followState // the session being followed; nil when none
 	probeGen   int
 	probeCurve *review.Probe
 	active     *sliceViewer
@@ -259,6 +260,9 @@ func (rw *reviewWindow) mainMenu() *fyne.MainMenu {
 		fyne.NewMenuItem("Open the demo case", func() { rw.openDemo() }),
 		fyne.NewMenuItem("Open from archive…", rw.openFromArchive),
 		recent,
+		fyne.NewMenuItem("Follow folder…", rw.chooseFollowFolder),
+		fyne.NewMenuItem("Follow archive study…", rw.chooseFollowArchive),
+		fyne.NewMenuItem("Stop following", func() { rw.stopFollowing(true) }),
 		fyne.NewMenuItemSeparator(), fyne.NewMenuItem("Audit many cases…", rw.openAuditView),
 	)
 	rw.fillRecentMenu(recent.ChildMenu)

@@ -87,6 +87,7 @@ func (ses *Session) prepareResidual(ctx context.Context, c *dosemap.Case, s Sett
 	if err != nil {
 		return err
 	}
+	ses.grown.tails = tails // for AddSonication
 	var todo []int
 	for n, e := range est {
 		sd := ses.sons[n]

@@ -155,6 +155,9 @@ type Session struct {
 	// exhaustiveMC simulates every voxel of the region instead of the
 	// uncertain ones only (tests compare the two).
 	exhaustiveMC bool
+	// grown holds what AddSonication needs of the sonications prepared
+	// (see grow.go).
+	grown growState
 }
 
 // doseCache holds what depends only on the set of included sonications.
@@ -326,6 +329,7 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 	if err := ses.prepareResidual(ctx, c, s, ref, ext, progress); err != nil {
 		return nil, err
 	}
+	ses.grown.sons, ses.grown.ext, ses.grown.clockNote = slices.Clone(c.Sonications), ext, clockNote
 	ses.warnings = append(ses.warnings, structWarnings...)
 	progress.report("prepared", 1)
 	return ses, nil

@@ -42,7 +42,7 @@ var fastTopLevel = map[tag.Tag]bool{
 	tag.HighBit: true, tag.PixelRepresentation: true, tag.SamplesPerPixel: true,
 	tag.NumberOfFrames: true, tagPerFrameGroups: true, tagSharedGroups: true,
 	tagGridFrameOffset: true, tag.ImagePositionPatient: true, tag.PixelSpacing: true,
-	tag.SliceThickness: true, tag.TemporalPositionIdentifier: true,
+	tag.SliceThickness: true, tag.TemporalPositionIdentifier: true, tag.NumberOfTemporalPositions: true,
 	tagComplexImageComponent: true, tag.RescaleSlope: true, tag.RescaleIntercept: true,
 	tagRWVMapping: true, tag.ImageOrientationPatient: true, tag.AcquisitionDateTime: true,
 	tag.AcquisitionDate: true, tag.ContentDate: true, tag.SeriesDate: true,

@@ -158,6 +158,7 @@ type fileInfo struct {
 	PixelPos, PixelLen                 int       // where the native pixel data lie in the file (0 unknown)
 	Structures                         *structureSet
 	IsImage                            bool
+	TemporalPositions                  int // NumberOfTemporalPositions (0020,0105); 0 absent
 }
 
 // fileError is a reason a file is skipped.
@@ -477,6 +478,7 @@ func (fi *fileInfo) fill(es elems, pixels bool) error {
 	fi.StudyDescription = es.str(tag.StudyDescription)
 	fi.SeriesNumber, _ = es.int(tag.SeriesNumber)
 	fi.AcquisitionNumber, _ = es.int(tag.AcquisitionNumber)
+	fi.TemporalPositions, _ = es.int(tag.NumberOfTemporalPositions)
 	fi.FrameOfRef = es.str(tag.FrameOfReferenceUID)
 	fi.ImageType = es.strs(tag.ImageType)
 	fi.Patient = dosemap.Patient{

@@ -271,9 +271,14 @@ func scan(ctx context.Context, dir string, opt LoadOptions, progress func(done, 
 	if err != nil {
 		return nil, err
 	}
+	return scanPaths(ctx, dir, paths, unreadable, opt, progress)
+}
+
+// scanPaths reads the attributes of the files paths under dir.
+func scanPaths(ctx context.Context, dir string, paths []string, unreadable []SkippedFile, opt LoadOptions, progress func(done, total int)) (*caseReader, error) {
 	infos := make([]*fileInfo, len(paths))
 	errs := make([]error, len(paths))
-	err = readAll(ctx, paths, opt.workers(), progress, func(i int) {
+	err := readAll(ctx, paths, opt.workers(), progress, func(i int) {
 		infos[i], errs[i] = readFile(paths[i], false)
 	})
 	if err != nil {
