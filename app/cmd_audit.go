@@ -35,6 +35,7 @@ var auditAnalysis = func(s review.Settings) (audit.Analyzer, []byte, []audit.Col
 
 func auditUsage(w io.Writer, fs *flag.FlagSet) {
 	fmt.Fprintln(w, "usage: dosecover audit DIR... -o OUT_DIR [--settings FILE] [analysis options] [--workers N] [--resume] [--shard I/N] [--deidentify]")
+	fmt.Fprintln(w, "       dosecover audit merge OUT_DIR   (joins the finished shards; see dosecover audit merge -h)")
 	fmt.Fprintln(w)
 	fmt.Fprintln(w, "Analyses every case below the folders DIR with the same settings and writes, into")
 	fmt.Fprintln(w, "OUT_DIR, one record and one report per case (cases/ID/), summary.csv, errors.csv")
@@ -57,6 +58,9 @@ func auditUsage(w io.Writer, fs *flag.FlagSet) {
 }
 
 func runAudit(args []string, stdout, stderr io.Writer) int {
+	if len(args) > 0 && args[0] == "merge" {
+		return runAuditMerge(args[1:], stdout, stderr)
+	}
 	fs := flag.NewFlagSet("audit", flag.ContinueOnError)
 	fs.SetOutput(io.Discard)
 	var cfg audit.Config
@@ -154,13 +158,5 @@ func runAudit(args []string, stdout, stderr io.Writer) int {
 	for _, p := range sum.Problems {
 		fmt.Fprintf(stderr, "dosecover audit: skipped folder: %s\n", p)
 	}
-	fmt.Fprintf(stdout, "%d cases: %d analysed (%d from an earlier run), %d incomplete, %d failed\n",
-		len(sum.Rows), sum.Analysed, sum.Resumed, sum.Incomplete, sum.Failed)
-	for _, f := range sum.Files {
-		fmt.Fprintln(stdout, f)
-	}
-	if n := sum.Incomplete + sum.Failed; n > 0 {
-		fmt.Fprintf(stdout, "%d cases were not analysed; their reasons are in errors.csv.\n", n)
-	}
-	return sum.ExitCode()
+	return printAuditSummary(stdout, sum)
 }

@@ -24,7 +24,11 @@
 // errors-I-of-N.csv and summary-I-of-N.png so that shards may share one
 // output folder. The shards of one audit share settings.json: the first
 // shard writes it, and a shard whose settings differ from those it holds
-// is refused before it analyses any case (SettingsConflictError).
+// is refused before it analyses any case (SettingsConflictError). Each
+// shard also keeps its state in shard-I-of-N.json (ShardState: running,
+// interrupted, or finished with its rows); Merge joins the finished shards
+// into summary.csv, errors.csv and summary.png as a whole run writes them,
+// and refuses a shard that is missing, unfinished or made otherwise.
 //
 // The package never imports a GUI toolkit; a GUI shows the same Rows that
 // Run returns and follows its Progress callback.

@@ -228,6 +228,14 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 		return nil, err
 	}
 
+	var state *ShardState
+	if sharded {
+		// Merge tells a finished shard from a running or killed one by this file.
+		state = newShardState(&cfg, settings, settingsHash, all)
+		if err := state.write(outDir, cfg.Shard); err != nil {
+			return sum, err
+		}
+	}
 	w := &worker{cfg: &cfg, outDir: outDir, settings: settings, settingsHash: settingsHash, index: index}
 	jobs := make(chan int)
 	results := make(chan Row)
@@ -301,6 +309,9 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 	}
 	if ctx.Err() != nil && len(sum.Rows) < len(cases) {
 		sum.Interrupted = true
+		if state != nil {
+			state.end(outDir, cfg.Shard, ShardInterrupted, nil) // best effort: a shard left "running" is refused by Merge too
+		}
 		return sum, ctx.Err()
 	}
 
@@ -312,20 +323,13 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 		base += suffix
 		errName += suffix
 	}
-	files := []struct {
-		name string
-		fill func(io.Writer) error
-	}{
-		{base + ".csv", func(w io.Writer) error { return WriteCSV(w, sum.Rows, cfg.SettingsColumns) }},
-		{errName + ".csv", func(w io.Writer) error { return WriteErrors(w, sum.Rows) }},
-		{base + ".png", func(w io.Writer) error { return WriteFigure(w, sum.Rows) }},
+	if sum.Files, err = writeSummaries(outDir, base, errName, sum.Rows, cfg.SettingsColumns); err != nil {
+		return sum, err
 	}
-	for _, f := range files {
-		p := filepath.Join(outDir, f.name)
-		if err := writeAtomic(p, f.fill); err != nil {
+	if state != nil {
+		if err := state.end(outDir, cfg.Shard, ShardFinished, sum.Rows); err != nil {
 			return sum, err
 		}
-		sum.Files = append(sum.Files, p)
 	}
 	return sum, nil
 }
