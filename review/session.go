@@ -85,9 +85,13 @@ type sonData struct {
 	peak    float64   // largest dose
 	temp    *tempStats
 	quality *SonicationQuality
-	series  any      // thermometry kept for Monte Carlo (engine type), whole or the Session's keep block
-	notes   []string // frames that could not be read
-	source  *dosemap.Sonication
+	series  any // thermometry kept for Monte Carlo (engine type), whole or the Session's keep block
+	// peakTemp is the highest temperature of each voxel over the frames
+	// (°C, NaN never valid) on the sonication's own grid; nil for a ready
+	// dose map.
+	peakTemp *dosemap.Volume
+	notes    []string // frames that could not be read
+	source   *dosemap.Sonication
 }
 
 // tempStats are the temperature figures of one sonication.
