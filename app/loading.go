@@ -10,6 +10,8 @@ import (
 	"os"
 	"path/filepath"
 	"strings"
+	"sync"
+	"time"
 
 	"dosecover/dosemap"
 	"dosecover/review"
@@ -184,6 +186,7 @@ func (rw *reviewWindow) openFolder(dir string, demo bool) {
 			setting = prefs
 		)
 		hash, nFiles, err = hashInputs(ctx, dir)
+		stage("input hash")
 		if err == nil {
 			rec, recErr = loadRecord(hash)
 			if rec != nil {
@@ -193,6 +196,7 @@ func (rw *reviewWindow) openFolder(dir string, demo bool) {
 			// The reader reports two passes (attributes, then pixel data),
 			// each from zero: a drop in done starts the second.
 			pass, last := 0, -1
+			every := newThrottle(progressEvery)
 			lc, err = readCase(ctx, dir, loadOptions{PhaseScale: setting.Thermometry.PhaseScale}, func(done, total int) {
 				if total <= 0 {
 					return
@@ -201,11 +205,15 @@ func (rw *reviewWindow) openFolder(dir string, demo bool) {
 					pass = 1
 				}
 				last = done
+				if !every.due(done == total) {
+					return
+				}
 				what := [2]string{"attributes", "images"}[pass]
 				progress(fmt.Sprintf("Reading %s (%s): %d of %d files", base, what, done, total),
 					0.05+0.225*(float64(pass)+float64(done)/float64(total)))
 			})
 		}
+		stage("case read")
 		if err == nil && demo && lc != nil {
 			lc.Demo = true
 			if lc.Case != nil {
@@ -379,7 +387,11 @@ func (rw *reviewWindow) runAnalysis(prepare bool) {
 	go func() {
 		var err error
 		if sess == nil {
+			every := newThrottle(progressEvery)
 			sess, err = prepareCase(ctx, lc, set, func(stage string, frac float64) {
+				if !every.due(frac >= 1) {
+					return
+				}
 				fyne.Do(func() {
 					if gen == rw.jobGen {
 						rw.setBusy(stage, 0.5+0.45*frac)
@@ -387,10 +399,12 @@ func (rw *reviewWindow) runAnalysis(prepare bool) {
 				})
 			})
 		}
+		stage("prepared")
 		var res *analysisResult
 		if err == nil {
 			res, err = sess.Analyze(ctx, set)
 		}
+		stage("analysed")
 		fyne.Do(func() {
 			defer rw.completed.Add(1)
 			if !rw.finishJob(gen) {
@@ -407,6 +421,7 @@ func (rw *reviewWindow) runAnalysis(prepare bool) {
 			rw.sess = sess
 			rw.showResult(res)
 			rw.setBusy(fmt.Sprintf("Analysed with %s.", set.Describe()), -1)
+			stage("analysed case on screen")
 		})
 	}()
 }
@@ -542,8 +557,10 @@ func (rw *reviewWindow) startPeakTemperature(res *analysisResult) {
 	}
 	go func() {
 		v, err := sess.PeakTemperature(set)
+		stage("peak temperature")
 		fyne.Do(func() {
 			defer rw.auxDone.Add(1)
+			defer timingDone()
 			if rw.result != res || err != nil {
 				return
 			}
@@ -597,4 +614,29 @@ func spread(pts []dosemap.Vec3, d dosemap.Vec3) float64 {
 		lo, hi = math.Min(lo, x), math.Max(hi, x)
 	}
 	return hi - lo
+}
+
+// progressEvery is the shortest time between two progress updates on
+// screen: a few a second, whatever the number of files.
+const progressEvery = 200 * time.Millisecond
+
+// throttle passes at most one event per interval (and every last one).
+type throttle struct {
+	mu    sync.Mutex
+	every time.Duration
+	last  time.Time
+}
+
+func newThrottle(every time.Duration) *throttle { return &throttle{every: every} }
+
+// due reports whether an event should pass now; final events always pass.
+func (t *throttle) due(final bool) bool {
+	t.mu.Lock()
+	defer t.mu.Unlock()
+	now := time.Now()
+	if !final && now.Sub(t.last) < t.every {
+		return false
+	}
+	t.last = now
+	return true
 }
