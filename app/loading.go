@@ -434,7 +434,7 @@ func (rw *reviewWindow) showResult(res *analysisResult) {
 		rw.opt.Floor = defaultFloor(res.Threshold)
 	}
 	rw.applyFloor()
-	rw.washBar.set(rw.opt.Floor, washTop(res.Threshold), res.Unit)
+	rw.washBar.set(rw.opt.Floor, washTop(res.Threshold), res.Threshold, res.Unit)
 	if rw.selected >= len(res.Sonications) {
 		rw.selected = -1
 	}

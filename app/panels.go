@@ -434,33 +434,34 @@ func (rw *reviewWindow) jumpTo(r region) {
 	rw.status.SetText(fmt.Sprintf("Showing %s (%.3f mL) at (%.1f, %.1f, %.1f) mm", r.Label, r.VolumeML, r.Centre[0], r.Centre[1], r.Centre[2]))
 }
 
-// washBar shows the dose colourwash scale: floor to ceiling, log scale.
+// washBar shows the dose colourwash scale: the colour bar of the reports
+// (view.WashBar), floor to ceiling on a log scale, lethal level marked.
 type washBar struct {
-	content   fyne.CanvasObject
-	lo, hi    *widget.Label
-	floor, to float64
+	content fyne.CanvasObject
+	img     *canvas.Image
 }
 
+// washBarSize is the colour bar's size in pixels.
+var washBarSize = fyne.NewSize(420, 64)
+
 func newWashBar() *washBar {
-	b := &washBar{lo: widget.NewLabel(""), hi: widget.NewLabel("")}
-	bar := canvas.NewRasterWithPixels(func(x, _, w, _ int) color.Color {
-		if b.to <= b.floor || b.floor <= 0 {
-			return color.RGBA{0x30, 0x30, 0x34, 0xFF}
-		}
-		d := b.floor * math.Pow(b.to/b.floor, float64(x)/float64(max(w-1, 1)))
-		return washColour(d, b.floor, b.to)
-	})
-	bar.SetMinSize(fyne.NewSize(120, 12))
-	b.content = container.NewHBox(widget.NewLabel("Dose (log)"), b.lo, container.NewCenter(bar), b.hi)
+	b := &washBar{img: canvas.NewImageFromImage(nil)}
+	b.img.FillMode = canvas.ImageFillOriginal
+	b.img.ScaleMode = canvas.ImageScalePixels
+	b.img.SetMinSize(washBarSize)
+	b.content = container.NewHBox(b.img)
 	return b
 }
 
-// set shows the scale from floor to top in unit.
-func (b *washBar) set(floor, top float64, unit string) {
-	b.floor, b.to = floor, top
-	b.lo.SetText(fmtDose(floor))
-	b.hi.SetText(fmtDose(top) + " " + unit)
-	b.content.Refresh()
+// set shows the scale from floor to top in unit with threshold marked.
+func (b *washBar) set(floor, top, threshold float64, unit string) {
+	img, err := view.WashBar(view.DoseScale{Floor: floor, Ceiling: top, Opacity: 1}, threshold, unit, int(washBarSize.Width), int(washBarSize.Height))
+	if err != nil {
+		b.img.Image = nil
+	} else {
+		b.img.Image = img
+	}
+	b.img.Refresh()
 }
 
 // signOffText lists the sign-offs of the open case (names hidden in

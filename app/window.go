@@ -14,6 +14,7 @@ import (
 	"dosecover/dosemap"
 	"dosecover/review"
 	"dosecover/review/report"
+	"dosecover/review/view"
 
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/container"
@@ -434,13 +435,13 @@ func (rw *reviewWindow) applyFloor() {
 		f = top / 2
 	}
 	rw.opt.Floor = f
-	rw.washBar.set(f, washTop(rw.result.Threshold), rw.result.Unit)
+	rw.washBar.set(f, washTop(rw.result.Threshold), rw.result.Threshold, rw.result.Unit)
 	rw.redraw()
 }
 
 // defaultFloor is the dose below which the wash is transparent: a
 // hundredth of the threshold.
-func defaultFloor(threshold float64) float64 { return threshold / 100 }
+func defaultFloor(threshold float64) float64 { return view.WashScale(threshold).Floor }
 
 // defaultWindow returns the display window of the anatomy: the files'
 // window tags, else the 1st–99th percentile of the voxel values.

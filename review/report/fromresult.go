@@ -94,11 +94,10 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 		f.Avoid = append(f.Avoid, AvoidRow{Name: hide(a.Name, c, opt.Deidentify), LethalML: a.LethalVolumeMM3 / 1000, MaxDose: val(a.PeakDose)})
 	}
 	in.Facts = f
-	if strings.EqualFold(r.Model, "cem43") {
-		ds := view.DefaultDoseScale()
-		in.Wash = &Wash{Floor: ds.Floor, Ceiling: ds.Ceiling}
-	} else if r.Threshold > 0 {
-		in.Wash = &Wash{Floor: r.Threshold / 100, Ceiling: r.Threshold * 10}
+	if r.Threshold > 0 {
+		// The window's scale and colour bar (view.WashScale, view.WashBar).
+		ds := view.WashScale(r.Threshold)
+		in.Wash = &Wash{Floor: ds.Floor, Ceiling: ds.Ceiling, Lethal: r.Threshold}
 	}
 
 	for n, d := range r.DVH.Dose {
@@ -487,8 +486,8 @@ func baseScene(c *dosemap.Case, r *review.Result) view.Scene {
 		Lethal:      r.Threshold,
 		Annotations: true,
 	}
-	if !strings.EqualFold(r.Model, "cem43") && r.Threshold > 0 {
-		s.Scale = view.DoseScale{Floor: r.Threshold / 100, Ceiling: r.Threshold * 10, Opacity: 0.55}
+	if r.Threshold > 0 {
+		s.Scale = view.WashScale(r.Threshold)
 	}
 	if t := c.Target(); t != nil {
 		s.Target = view.Region{Structure: t}

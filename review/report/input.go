@@ -100,6 +100,7 @@ type Panel struct {
 // review/view.DoseScale): transparent below Floor, top colour from Ceiling.
 type Wash struct {
 	Floor, Ceiling float64 // in the dose unit
+	Lethal         float64 // lethal threshold marked on the colour bar; 0: none
 }
 
 // CurvePoint is one point of a curve with an optional band.

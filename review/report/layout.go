@@ -490,32 +490,18 @@ func drawLegend(p pen, in *Input, x, y, w vg.Length) vg.Length {
 		cx += f.Width(it.name) + 8
 	}
 	if ws := in.Wash; ws != nil && ws.Floor > 0 && ws.Ceiling > ws.Floor {
-		lo, hi := fmt.Sprintf("%g", ws.Floor), fmt.Sprintf("%g", ws.Ceiling)+" "+doseUnit(in)+" (log)"
-		bw := vg.Length(50)
-		need := f.Width("dose ") + f.Width(lo) + 3 + bw + 3 + f.Width(hi)
-		if cx+need > x+w {
+		// The colour bar of the review window (view.WashBar), on its
+		// own line.
+		img, err := view.WashBar(view.DoseScale{Floor: ws.Floor, Ceiling: ws.Ceiling, Opacity: 1}, ws.Lethal, doseUnit(in), 420, 64)
+		if err == nil {
+			bh := vg.Length(24)
+			bw := bh * 420 / 64
 			y += h + 2
-			cx = x
+			p.c.DrawImage(vg.Rectangle{Min: p.pt(x, y+bh), Max: p.pt(x+bw, y)}, img)
+			return y + bh
 		}
-		p.legendWash(cx, y, h, bw, f, lo, hi)
 	}
 	return y + h
-}
-
-// legendWash draws the dose colour bar "dose LO [bar] HI" from x and
-// returns the x after it.
-func (p pen) legendWash(x, y, h, bw vg.Length, f font.Face, lo, hi string) vg.Length {
-	p.text(x, y, f, colInk, "dose")
-	x += f.Width("dose") + 4
-	p.text(x, y, f, colInk, lo)
-	x += f.Width(lo) + 3
-	const steps = 40
-	for s := 0; s < steps; s++ {
-		p.rect(x+bw*vg.Length(s)/steps, y+1, bw/steps+0.2, h-2, view.Colormap(float64(s)/(steps-1)))
-	}
-	x += bw + 3
-	p.text(x, y, f, colInk, hi)
-	return x + f.Width(hi)
 }
 
 // plotFonts sets every text of pl to Liberation Sans at small sizes.
