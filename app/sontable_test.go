@@ -3,7 +3,11 @@
 package main
 
 import (
+	"os"
+	"path/filepath"
+	"strings"
 	"testing"
+	"time"
 
 	"dosecover/dosemap"
 )
@@ -57,4 +61,41 @@ func sonicationTableSteps(t *testing.T, rw *reviewWindow) {
 	rw.setExcluded(2, false)
 	waitJobs(t, rw, mark, 1)
 	check("taking sonication 2 back")
+}
+
+// TestExportNamesNeverOverwrite: an export is named by the case and the
+// date, and a second export into the same folder on the same day gets a
+// new name instead of replacing the first.
+func TestExportNamesNeverOverwrite(t *testing.T) {
+	dir := t.TempDir()
+	day := time.Date(2026, 12, 3, 10, 0, 0, 0, time.Local)
+	first := exportStem(dir, "Case_A-dose-review", day)
+	if want := filepath.Join(dir, "Case_A-dose-review-2026-12-03"); first != want {
+		t.Fatalf("stem %q, want %q", first, want)
+	}
+	if err := os.WriteFile(first+".pdf", []byte("x"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	second := exportStem(dir, "Case_A-dose-review", day)
+	if second != first+"-2" {
+		t.Errorf("second export %q, want %q", second, first+"-2")
+	}
+	// The window's export: twice into one folder, eight files.
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	out := exportTo(t, rw)
+	mark := rw.exported.Load()
+	rw.writeReport(out)
+	for rw.exported.Load() == mark {
+		time.Sleep(10 * time.Millisecond)
+	}
+	ents, _ := os.ReadDir(out)
+	if len(ents) != 8 {
+		t.Errorf("two exports left %d files, want 8: %v", len(ents), ents)
+	}
+	for _, e := range ents {
+		if !strings.HasPrefix(e.Name(), "Synthetic_phantom-dose-review-"+time.Now().Format("2006-01-02")) {
+			t.Errorf("export file %q lacks the case and the date", e.Name())
+		}
+	}
 }

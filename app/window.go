@@ -45,6 +45,7 @@ type reviewWindow struct {
 	jobCancel  context.CancelFunc
 	jobGen     int
 	pendingDir string // the folder being opened
+	lastExport string // path stem of the last report export
 	probeGen   int
 	probeCurve *review.Probe
 	active     *sliceViewer

@@ -333,7 +333,10 @@ func TestExportReportTeachingMode(t *testing.T) {
 	}
 	// Without teaching mode the metrics name the case.
 	plain := exportTo(t, rw)
-	js, err := os.ReadFile(filepath.Join(plain, rw.reportBase()+".json"))
+	js, err := os.ReadFile(rw.lastExport + ".json")
+	if filepath.Dir(rw.lastExport) != plain {
+		t.Errorf("exported to %s, want into %s", rw.lastExport, plain)
+	}
 	if err != nil || !strings.Contains(string(js), "Synthetic phantom") {
 		t.Fatalf("identified export lacks the case label (%v)", err)
 	}
