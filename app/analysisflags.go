@@ -223,3 +223,9 @@ func (s *structureFlags) apply(c *dosemap.Case) error {
 	}
 	return nil
 }
+
+// addStudyFlag registers --study on fs: the StudyInstanceUID of the study
+// to read from a folder that holds several (a review never mixes studies).
+func addStudyFlag(fs *flag.FlagSet) *string {
+	return fs.String("study", "", "`UID` (StudyInstanceUID) of the study to read when the folder holds several; dosecover inspect lists them")
+}

@@ -295,7 +295,7 @@ func TestAuditViewStandInRunTableAndOpen(t *testing.T) {
 	if len(av2.rows) != 4 || !strings.Contains(av2.counts.Text, "1 incomplete · 1 failed") {
 		t.Fatalf("existing audit: %d rows, %q, %q", len(av2.rows), av2.counts.Text, av2.message.Text)
 	}
-	if !strings.Contains(av2.message.Text, "Settings of this audit: model cem43 · threshold 240") {
+	if !strings.Contains(av2.message.Text, "Settings of this audit: Threshold 240 CEM43 min · margin 3 mm") {
 		t.Errorf("message %q lacks the audit's settings (the defaults: cem43, 240)", av2.message.Text)
 	}
 	if len(av2.inputs) != 1 || av2.inputs[0] != reg {
@@ -446,7 +446,7 @@ func TestAuditViewRefusals(t *testing.T) {
 	good := filepath.Join(tmp, "good.json")
 	os.WriteFile(good, []byte(`{"threshold": 100, "margin_mm": 2}`), 0o644)
 	av.fileEntry.SetText(good)
-	if !strings.Contains(av.settInfo.Text, "threshold 100") || !strings.Contains(av.settInfo.Text, "margin_mm 2") {
+	if !strings.Contains(av.settInfo.Text, "Threshold 100") || !strings.Contains(av.settInfo.Text, "margin 2 mm") {
 		t.Errorf("settings line %q", av.settInfo.Text)
 	}
 	mark := av.finished.Load()

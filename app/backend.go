@@ -34,11 +34,21 @@ type loadedCase struct {
 	MissingB0     bool     // some thermometry lacks MagneticFieldStrength
 	MissingTE     bool     // some thermometry lacks EchoTime
 	Demo          bool     // the built-in demo case, opened from the user cache
+	Study         string   // StudyInstanceUID of the study read; "" when unknown
+	// Studies lists the studies of a folder that holds several when none
+	// was chosen (nothing was read; the window offers a chooser).
+	Studies []studyChoice
+}
+
+// studyChoice is one study of a folder, for the chooser.
+type studyChoice struct {
+	UID, Label string // Label names patient, date, description and counts
 }
 
 // loadOptions are the reader's options the user can change.
 type loadOptions struct {
 	PhaseScale float64 // radians per stored unit; 0: from the files' tags
+	Study      string  // StudyInstanceUID to read from a folder of several
 }
 
 // xy is one point of a curve.
@@ -77,43 +87,24 @@ type sonicationRow struct {
 	Flagged       bool      // a flag (not only notes) was raised
 }
 
-// analysisResult is what the review window displays from one analysis run.
+// analysisResult is an analysis as the review window shows it: the result
+// of package review itself (its figures, masks and JSON for exports) and
+// what the window draws from it for its tables and views.
 type analysisResult struct {
-	Threshold float64 // lethal threshold used, in Unit
-	Unit      string  // "CEM43 min" or the model's unit
-	Model     string  // model name as shown
-	MarginMM  float64
-
-	TargetName     string
-	TargetML       float64
-	Covered        float64 // fraction of the target at or above the threshold
-	CoveredWhole   float64 // covered fraction of the whole target (unmonitored counts as not covered)
-	CoveredP05     float64 // NaN when no uncertainty run
-	Trials         int     // noise trials behind the band
-	CoveredP95     float64
-	NotMonitored   float64 // fraction of the target without valid thermometry
-	D98, D50, D2   float64 // dose received by at least 98/50/2 % of the target
-	LethalOutside  float64 // mL lethal outside the margin
-	Holes          []region
-	Outside        []region
-	Avoid          []avoidDose
-	DVH            []xy // dose (unit) -> fraction of target receiving at least that dose
-	CoverageVsThr  []xy // threshold (unit) -> covered fraction
-	Sonications    []sonicationRow
-	Raw            any // the analysis package's own result, for exports
-	QualityNotes   []string
-	Dose           *dosemap.Volume   // cumulative dose of the included sonications
+	*review.Result
+	Unit           string            // dose unit as shown: "CEM43 min" or "Ω"
+	HoleRows       []region          // the holes, as the hole table lists them
+	SpillRows      []region          // the lethal clusters outside the margin, as listed
+	AvoidRows      []avoidDose       // lethal dose in each avoid structure
+	DVHPoints      []xy              // dose (unit) -> fraction of target receiving at least that dose
+	CoveragePoints []xy              // threshold (unit) -> covered fraction
+	SonRows        []sonicationRow   // the sonication table
 	PeakTemp       *dosemap.Volume   // highest temperature of the included sonications, °C (nil unknown)
 	SonicationDose []*dosemap.Volume // dose of each sonication (index = row), may hold nil
-	// Masks for display, each on its own grid: a voxel belongs to the
-	// region when its value is 0.5 or more (labels count from 1). nil: none.
-	Target, Margin  *dosemap.Volume
-	Holes3D         *dosemap.Volume
-	Outside3D       *dosemap.Volume
-	Avoid3D         *dosemap.Volume
-	NotMonitored3D  *dosemap.Volume      // target voxels without valid thermometry
-	TargetStructure *dosemap.Structure   // planned target contours (nil: none)
-	AvoidStructures []*dosemap.Structure // planned avoid contours
+	NotMonitored3D *dosemap.Volume   // target voxels without valid thermometry (Result.NotMonitored)
+	// Planned contours (nil: none).
+	TargetStructure *dosemap.Structure
+	AvoidStructures []*dosemap.Structure
 }
 
 // session is a case prepared for fast re-analysis: thermometry and dose of

@@ -20,12 +20,27 @@ func readCaseDICOM(ctx context.Context, dir string, opt loadOptions, progress fu
 	// decoded one sonication at a time when the thermometry needs them.
 	set := review.DefaultSettings()
 	set.Thermometry.PhaseScale = opt.PhaseScale
-	c, inv, err := review.LoadCase(ctx, dir, set, review.LoadOptions{Progress: progress})
+	c, inv, err := review.LoadCase(ctx, dir, set, review.LoadOptions{Study: opt.Study, Progress: progress})
 	if err != nil {
 		return nil, err
 	}
 	lc := &loadedCase{Dir: dir, Case: c}
 	if inv != nil {
+		lc.Study = inv.Study
+		if inv.NeedsStudyChoice() {
+			for _, s := range inv.Studies {
+				desc := s.Description
+				if desc == "" {
+					desc = "no description"
+				}
+				where := "in " + s.Folder
+				if s.Folder == "." {
+					where = "in the folder itself"
+				}
+				lc.Studies = append(lc.Studies, studyChoice{UID: s.UID,
+					Label: fmt.Sprintf("%s: %s; %d series, %d files %s", s.Label(), desc, s.Series, s.Files, where)})
+			}
+		}
 		var b strings.Builder
 		if err := inv.WriteText(&b); err == nil {
 			lc.Inventory = b.String()

@@ -42,20 +42,7 @@ func (ss *reviewSession) Analyze(ctx context.Context, set review.Settings) (*ana
 	if err != nil {
 		return nil, err
 	}
-	out := &analysisResult{
-		Threshold: r.Threshold, Unit: doseUnitName(r.DoseUnit), Model: r.Model, MarginMM: r.MarginMM,
-		TargetName: r.Target, TargetML: r.TargetVolumeML,
-		Covered: r.CoveredFraction, CoveredWhole: r.CoveredFractionOfTarget,
-		CoveredP05: ptr(r.CoveredFractionP05), CoveredP95: ptr(r.CoveredFractionP95), Trials: r.Trials,
-		NotMonitored: r.NotMonitoredFraction,
-		D98:          ptr(r.D98), D50: ptr(r.D50), D2: ptr(r.D2),
-		LethalOutside: r.OutsideMarginLethalML,
-		Dose:          r.Dose, Target: r.TargetMask, Margin: r.MarginMask,
-		Holes3D: r.HoleLabels, Outside3D: r.SpillLabels,
-		TargetStructure: ss.c.Target(),
-		QualityNotes:    append([]string(nil), r.Warnings...),
-		Raw:             r,
-	}
+	out := &analysisResult{Result: r, Unit: doseUnitName(r.DoseUnit), TargetStructure: ss.c.Target()}
 	for n := range ss.c.Structures {
 		if st := &ss.c.Structures[n]; st.Role == dosemap.RoleAvoid {
 			out.AvoidStructures = append(out.AvoidStructures, st)
@@ -70,7 +57,7 @@ func (ss *reviewSession) Analyze(ctx context.Context, set review.Settings) (*ana
 		if h.TouchesUnmonitored {
 			d += ", borders unmonitored"
 		}
-		out.Holes = append(out.Holes, region{Label: fmt.Sprintf("H%d", n+1), VolumeML: h.VolumeMM3 / 1000,
+		out.HoleRows = append(out.HoleRows, region{Label: fmt.Sprintf("H%d", n+1), VolumeML: h.VolumeMM3 / 1000,
 			Centre: dosemap.Vec3(h.CentroidMM), MaxDose: h.MaxDose, Detail: d})
 	}
 	for n, c := range r.OutsideClusters {
@@ -78,19 +65,19 @@ func (ss *reviewSession) Analyze(ctx context.Context, set review.Settings) (*ana
 		if c.Sonication > 0 {
 			d += fmt.Sprintf(", mostly sonication %d (%.0f %%)", c.Sonication, 100*c.SonicationShare)
 		}
-		out.Outside = append(out.Outside, region{Label: fmt.Sprintf("C%d", n+1), VolumeML: c.VolumeMM3 / 1000,
+		out.SpillRows = append(out.SpillRows, region{Label: fmt.Sprintf("C%d", n+1), VolumeML: c.VolumeMM3 / 1000,
 			Centre: dosemap.Vec3(c.CentroidMM), MaxDose: c.PeakDose, Detail: d})
 	}
 	for _, a := range r.Avoid {
-		out.Avoid = append(out.Avoid, avoidDose{Name: a.Name, VolumeML: a.VolumeML, LethalML: a.LethalVolumeMM3 / 1000, MaxDose: ptr(a.PeakDose)})
+		out.AvoidRows = append(out.AvoidRows, avoidDose{Name: a.Name, VolumeML: a.VolumeML, LethalML: a.LethalVolumeMM3 / 1000, MaxDose: ptr(a.PeakDose)})
 	}
 	for n := range r.DVH.Dose {
 		if n < len(r.DVH.Target) {
-			out.DVH = append(out.DVH, xy{r.DVH.Dose[n], r.DVH.Target[n]})
+			out.DVHPoints = append(out.DVHPoints, xy{r.DVH.Dose[n], r.DVH.Target[n]})
 		}
 	}
 	for _, p := range r.CoverageVsThreshold {
-		out.CoverageVsThr = append(out.CoverageVsThr, xy{p.Threshold, p.CoveredFraction})
+		out.CoveragePoints = append(out.CoveragePoints, xy{p.Threshold, p.CoveredFraction})
 	}
 	quality := map[int]review.SonicationQuality{}
 	for _, q := range r.Quality {
@@ -119,7 +106,7 @@ func (ss *reviewSession) Analyze(ctx context.Context, set review.Settings) (*ana
 			}
 			row.Flags, row.Flagged = qualityFlags(q, vf)
 		}
-		out.Sonications = append(out.Sonications, row)
+		out.SonRows = append(out.SonRows, row)
 		out.SonicationDose = append(out.SonicationDose, ss.rs.SonicationDose(st.Number))
 	}
 	return out, nil

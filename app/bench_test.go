@@ -137,7 +137,7 @@ func BenchmarkOpenCase(b *testing.B) {
 				for rw.completed.Load() < mark+2 || rw.auxDone.Load() < aux+1 {
 					time.Sleep(2 * time.Millisecond)
 				}
-				if rw.result == nil || len(rw.result.Sonications) != ns {
+				if rw.result == nil || len(rw.result.SonRows) != ns {
 					b.Fatalf("no analysis of %d sonications: %s", ns, rw.status.Text)
 				}
 			}

@@ -21,7 +21,7 @@ func init() {
 //
 //	dosecover analyze CASE_DIR [--json FILE] [--threshold T] [--margin M]
 //	    [--model cem43|arrhenius] [--exclude N,...] [--trials N] [--seed S]
-//	    [--contours FILE] [--target NAME]
+//	    [--contours FILE] [--target NAME] [--study UID]
 //
 // It prints a summary of the figures and of the settings used; exit code 0
 // when the analysis ran, 1 when it could not (reason printed), 2 for a
@@ -32,6 +32,7 @@ func runAnalyze(args []string, stdout, stderr io.Writer) int {
 	jsonPath := fs.String("json", "", "also write the full result as JSON to `FILE` (\"-\": to standard output instead of the summary)")
 	sf := addStructureFlags(fs)
 	af := addAnalysisFlags(fs)
+	study := addStudyFlag(fs)
 	deidentify := fs.Bool("deidentify", false, "hide identity in the outputs: neutral case label, sonications by number, patient identity blanked out of names and warnings")
 	fs.Usage = func() {
 		fmt.Fprintln(stderr, "usage: dosecover analyze CASE_DIR [--json FILE] [--threshold T] [--margin M] [--model cem43|arrhenius] [options]")
@@ -69,7 +70,7 @@ func runAnalyze(args []string, stdout, stderr io.Writer) int {
 	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
 	defer stop()
-	c, res, code := loadAndAnalyze(ctx, "analyze", dir, sf, set, stderr)
+	c, res, _, code := loadAndAnalyze(ctx, "analyze", dir, *study, sf, set, stderr)
 	if code != 0 {
 		return code
 	}

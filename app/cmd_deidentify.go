@@ -23,8 +23,9 @@ func runDeidentify(args []string, stdout, stderr io.Writer) int {
 	shift := fs.Int("shift-days", 0, "date offset in days for --dates shift (0: derived from the salt, between -3650 and -366)")
 	salt := fs.String("salt", "", "secret keying the new UIDs, date offset and label (empty: random, so the copy cannot be linked back)")
 	label := fs.String("label", "", "replacement patient name and ID (empty: TEACHING-<8 hex digits>)")
+	study := addStudyFlag(fs)
 	fs.Usage = func() {
-		fmt.Fprintln(stderr, "usage: dosecover deidentify CASE_DIR OUT_DIR [--dates shift|remove] [--shift-days N] [--salt S] [--label L]")
+		fmt.Fprintln(stderr, "usage: dosecover deidentify CASE_DIR OUT_DIR [--dates shift|remove] [--shift-days N] [--salt S] [--label L] [--study UID]")
 		fmt.Fprintln(stderr, "Writes a copy of every DICOM file of CASE_DIR into OUT_DIR (new or empty, not inside")
 		fmt.Fprintln(stderr, "CASE_DIR) with identity removed: DICOM PS3.15 Annex E basic profile, UIDs replaced")
 		fmt.Fprintln(stderr, "consistently, private attributes removed. Other files are not copied. CASE_DIR is not changed.")
@@ -50,7 +51,7 @@ func runDeidentify(args []string, stdout, stderr io.Writer) int {
 	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
 	defer stop()
-	res, err := deid.Folder(ctx, pos[0], pos[1], deid.Options{Salt: *salt, Dates: mode, ShiftDays: *shift, Label: *label}, nil)
+	res, err := deid.Folder(ctx, pos[0], pos[1], deid.Options{Salt: *salt, Dates: mode, ShiftDays: *shift, Label: *label, Study: *study}, nil)
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover deidentify: %v\n", err)
 		return exitFailure

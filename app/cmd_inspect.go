@@ -24,8 +24,9 @@ func runInspect(args []string, stdout, stderr io.Writer) int {
 	fs.SetOutput(stderr)
 	asJSON := fs.Bool("json", false, "write the inventory as JSON instead of text")
 	workers := fs.Int("workers", 0, "files read in parallel (0: one per CPU)")
+	study := addStudyFlag(fs)
 	fs.Usage = func() {
-		fmt.Fprintln(stderr, "usage: dosecover inspect DIR [--json] [--workers N]")
+		fmt.Fprintln(stderr, "usage: dosecover inspect DIR [--json] [--workers N] [--study UID]")
 		fmt.Fprintln(stderr, "Reads every file under DIR (any depth, any names) without changing anything")
 		fmt.Fprintln(stderr, "and lists the series, sonications, structures, skipped files and problems.")
 		fmt.Fprintln(stderr, "Exit status: 0 reviewable case, 1 not reviewable (reason given), 2 usage error.")
@@ -51,7 +52,7 @@ func runInspect(args []string, stdout, stderr io.Writer) int {
 	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
 	defer stop()
-	inv, err := scanWithWorkers(ctx, dir, *workers)
+	inv, err := dicomio.ScanOptions(ctx, dir, dicomio.LoadOptions{Workers: *workers, Study: *study}, nil)
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover inspect: %v\n", err)
 		return exitFailure
@@ -72,12 +73,4 @@ func runInspect(args []string, stdout, stderr io.Writer) int {
 		return exitFailure
 	}
 	return exitOK
-}
-
-// scanWithWorkers runs the attribute pass with the given number of workers.
-func scanWithWorkers(ctx context.Context, dir string, workers int) (*dicomio.Inventory, error) {
-	if workers == 0 {
-		return dicomio.Scan(ctx, dir, nil)
-	}
-	return dicomio.ScanOptions(ctx, dir, dicomio.LoadOptions{Workers: workers}, nil)
 }

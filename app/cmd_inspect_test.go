@@ -32,8 +32,8 @@ func TestInspectMissingFolder(t *testing.T) {
 }
 
 // An anatomy image and an unrelated structure set (pydicom's MR_small.dcm
-// and rtstruct.dcm) are not a reviewable case: exit 1 with the reason, and
-// the frame-of-reference mismatch listed.
+// and rtstruct.dcm, two studies of two patients) are not a reviewable
+// case: exit 1 with the reason, both studies listed.
 func TestInspectNotReviewable(t *testing.T) {
 	dir := ""
 	for _, py := range []string{"python3", "/usr/bin/python3"} {
@@ -58,7 +58,7 @@ func TestInspectNotReviewable(t *testing.T) {
 	if code := run([]string{"inspect", caseDir}, &out, &errb); code != 1 {
 		t.Errorf("exit %d, want 1", code)
 	}
-	if !strings.Contains(out.String(), "frame of reference mismatch") || !strings.Contains(errb.String(), "not a reviewable case") {
+	if !strings.Contains(out.String(), "Studies (2)") || !strings.Contains(errb.String(), "not a reviewable case") || !strings.Contains(errb.String(), "--study UID") {
 		t.Errorf("output:\n%s\nstderr:\n%s", out.String(), errb.String())
 	}
 	out.Reset()
@@ -67,13 +67,12 @@ func TestInspectNotReviewable(t *testing.T) {
 	}
 	var inv struct {
 		Reviewable bool
-		Series     []struct{ Role string }
-		Problems   []string
+		Studies    []struct{ UID, PatientID string }
 	}
 	if err := json.Unmarshal(out.Bytes(), &inv); err != nil {
 		t.Fatalf("--json output is not JSON: %v", err)
 	}
-	if inv.Reviewable || len(inv.Series) != 2 || len(inv.Problems) == 0 {
+	if inv.Reviewable || len(inv.Studies) != 2 {
 		t.Errorf("JSON inventory %+v", inv)
 	}
 }

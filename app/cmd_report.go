@@ -32,9 +32,9 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	csv := fs.String("csv", "", "also write every metric as CSV (name,value,unit)")
 	deidentify := fs.Bool("deidentify", false, "hide identity: neutral case label, no scan date, generic sonication labels")
 	reviewer := fs.String("reviewer", "", "name of the reviewer, printed in the header")
-	signoff := fs.String("sign-off", "", "sign-off statement, printed in the header")
 	dpi := fs.Int("dpi", report.DefaultDPI, "resolution of the PNG, 150 to 1200 dots per inch")
 	af := addAnalysisFlags(fs)
+	study := addStudyFlag(fs)
 	sf := addStructureFlags(fs)
 	fs.Usage = func() {
 		fmt.Fprintln(stderr, "usage: dosecover report CASE_DIR -o report.png [--pdf report.pdf] [--json metrics.json] [--csv metrics.csv] [--deidentify] [options]")
@@ -82,7 +82,7 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
 	defer stop()
-	c, r, code := loadAndAnalyze(ctx, "report", dir, sf, set, stderr)
+	c, r, studyUID, code := loadAndAnalyze(ctx, "report", dir, *study, sf, set, stderr)
 	if code != 0 {
 		return code
 	}
@@ -91,9 +91,19 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
 		return exitFailure
 	}
+	// The sign-offs made in the window on these very input files: the
+	// report prints one only when it was made on this analysis.
+	rec, err := loadRecord(sum)
+	if err != nil {
+		fmt.Fprintf(stderr, "dosecover report: warning: %v; no sign-off is shown\n", err)
+	}
+	var signOffs []review.SignOff
+	if rec != nil {
+		signOffs = rec.SignOffs
+	}
 	px := report.PanelSize(float64(*dpi)).X // panels at the page's resolution
 	in, err := report.FromResult(c, r, report.Options{
-		Deidentify: *deidentify, Reviewer: *reviewer, SignOff: *signoff,
+		Deidentify: *deidentify, Reviewer: *reviewer, SignOffs: signOffs, Study: studyUID,
 		ReviewDate: time.Now().UTC().Truncate(time.Second), InputsSHA256: sum, PanelPixels: px,
 	})
 	if err != nil {
@@ -104,12 +114,26 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
 		return exitFailure
 	}
-	fmt.Fprintf(stdout, "%s: covered %.1f %% of the monitored target at %g %s (margin %g mm)\n",
-		in.CaseLabel, 100*r.CoveredFraction, r.Threshold, r.DoseUnit, r.MarginMM)
+	fmt.Fprintf(stdout, "%s: covered %.1f %% of the monitored target (%.1f %% of the whole target) at %g %s (margin %g mm)\n",
+		in.CaseLabel, 100*r.CoveredFraction, 100*r.CoveredFractionOfTarget, r.Threshold, r.DoseUnit, r.MarginMM)
 	for _, p := range []string{out.PNG, out.PDF, out.JSON, out.CSV} {
 		if p != "" {
 			fmt.Fprintf(stdout, "wrote %s\n", p)
 		}
+		if p != "" && p == out.PNG {
+			for n := 2; n <= report.Pages(in); n++ {
+				fmt.Fprintf(stdout, "wrote %s (page %d of %d)\n", report.PagePNG(p, n), n, report.Pages(in))
+			}
+		}
 	}
+	fmt.Fprintf(stdout, "sign-off: %s\n", orText(in.SignOff, "not signed off"))
 	return exitOK
+}
+
+// orText returns s, or alt when s is empty.
+func orText(s, alt string) string {
+	if s == "" {
+		return alt
+	}
+	return s
 }

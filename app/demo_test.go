@@ -85,14 +85,14 @@ func TestDemoOpens(t *testing.T) {
 	rw := testWindow(t)
 	truth := openDemoCase(t, rw)
 	r := rw.result
-	if len(r.Sonications) != len(truth.Sonications) {
-		t.Errorf("%d sonication rows, the simulator delivered %d", len(r.Sonications), len(truth.Sonications))
+	if len(r.SonRows) != len(truth.Sonications) {
+		t.Errorf("%d sonication rows, the simulator delivered %d", len(r.SonRows), len(truth.Sonications))
 	}
 	// The panel states what the analysis measured.
 	facts := rw.metrics.facts.Text
 	for _, want := range []string{
-		fmt.Sprintf("%.1f %%", 100*r.Covered),
-		fmt.Sprintf("%d (%.3f mL)", len(r.Holes), sumML(r.Holes)),
+		fmt.Sprintf("%.1f %%", 100*r.CoveredFraction),
+		fmt.Sprintf("%d (%.3f mL)", len(r.HoleRows), sumML(r.HoleRows)),
 		"240 CEM43 min",
 	} {
 		if !strings.Contains(facts, want) {
@@ -101,11 +101,11 @@ func TestDemoOpens(t *testing.T) {
 	}
 	// Against the simulator's truth: the target volume within 10 %
 	// (voxelisation of the contours on the analysis grid).
-	if want := truth.TargetVolumeMM3 / 1000; math.Abs(r.TargetML-want) > 0.1*want {
-		t.Errorf("target %.2f mL, truth %.2f mL", r.TargetML, want)
+	if want := truth.TargetVolumeMM3 / 1000; math.Abs(r.TargetVolumeML-want) > 0.1*want {
+		t.Errorf("target %.2f mL, truth %.2f mL", r.TargetVolumeML, want)
 	}
-	t.Logf("covered %.3f (truth from the bioheat temperature %.3f)", r.Covered, truth.CoveredFraction)
-	if len(truth.Spill) > 0 && len(r.Outside) == 0 {
+	t.Logf("covered %.3f (truth from the bioheat temperature %.3f)", r.CoveredFraction, truth.CoveredFraction)
+	if len(truth.Spill) > 0 && len(r.SpillRows) == 0 {
 		t.Errorf("the simulator sent sonications %v beyond the margin; no lethal cluster outside it is listed", truth.Spill)
 	}
 	// Named as the demo, not by its cache folder (which the reader gives

@@ -46,11 +46,10 @@ func (rw *reviewWindow) exportReport() {
 }
 
 func (rw *reviewWindow) resultRaw() (*review.Result, bool) {
-	if rw.result == nil {
+	if rw.result == nil || rw.result.Result == nil {
 		return nil, false
 	}
-	r, ok := rw.result.Raw.(*review.Result)
-	return r, ok
+	return rw.result.Result, true
 }
 
 // reportBase is the file name stem of the exported files: the case name
@@ -111,14 +110,14 @@ func (rw *reviewWindow) writeReport(dir string) {
 			return
 		}
 	}
-	var reviewer, signoff string
-	if n := len(rw.record.SignOffs); n > 0 {
-		s := rw.record.SignOffs[n-1]
-		reviewer = s.Reviewer
-		signoff = fmt.Sprintf("signed off %s", s.Time.Format("2006-01-02 15:04 UTC"))
+	// The report shows a sign-off only when it was made on this very
+	// analysis (review.SignOffFor); its reviewer is then the report's.
+	var reviewer string
+	if st := review.SignOffFor(rw.record.SignOffs, rw.hash, rw.loaded.Study, raw); st.Valid != nil {
+		reviewer = st.Valid.Reviewer
 	}
 	opt := report.Options{
-		Deidentify: rw.teaching, Reviewer: reviewer, SignOff: signoff,
+		Deidentify: rw.teaching, Reviewer: reviewer, SignOffs: rw.record.SignOffs, Study: rw.loaded.Study,
 		ReviewDate: time.Now().UTC().Truncate(time.Second), InputsSHA256: rw.hash,
 	}
 	c, caseDir := rw.loaded.Case, rw.loaded.Dir

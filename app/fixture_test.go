@@ -164,8 +164,8 @@ func TestPreviewLayout(t *testing.T) {
 	}
 	rw := testWindow(t)
 	openSynthetic(t, rw)
-	if len(rw.result.Holes) > 0 {
-		rw.jumpTo(rw.result.Holes[0])
+	if len(rw.result.HoleRows) > 0 {
+		rw.jumpTo(rw.result.HoleRows[0])
 	}
 	rw.pin(dosemap.Vec3{0, 0, 0})
 	writePNG(t, out, rw.win.Canvas().Capture())

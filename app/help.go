@@ -7,6 +7,8 @@ import (
 	"strings"
 	"time"
 
+	"dosecover/review"
+
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/container"
 	"fyne.io/fyne/v2/dialog"
@@ -90,14 +92,17 @@ func (rw *reviewWindow) signOff() {
 	comment.SetMinRowsVisible(4)
 	comment.Wrapping = fyne.TextWrapWord
 	facts := widget.NewLabel(fmt.Sprintf("Input files: %d, SHA-256 %s\nCovered %.1f %% with %s",
-		rw.nFiles, rw.hash, 100*rw.result.Covered, rw.settings.Describe()))
+		rw.nFiles, rw.hash, 100*rw.result.CoveredFraction, rw.settings.Describe()))
 	facts.Wrapping = fyne.TextWrapWord
 	var prev []string
 	for _, s := range rw.record.SignOffs {
-		prev = append(prev, fmt.Sprintf("%s by %s", s.Time.Local().Format("2006-01-02 15:04"), s.Reviewer))
+		prev = append(prev, fmt.Sprintf("%s by %s: %s", s.Time.Local().Format("2006-01-02 15:04"), s.Reviewer, s.Outcome))
 	}
+	outcome := widget.NewRadioGroup(review.Outcomes, nil)
+	outcome.Required = true
 	items := []*widget.FormItem{
 		widget.NewFormItem("Reviewer", name),
+		widget.NewFormItem("Outcome", outcome),
 		widget.NewFormItem("Comment", comment),
 		widget.NewFormItem("Record", facts),
 	}
@@ -113,8 +118,12 @@ func (rw *reviewWindow) signOff() {
 			dialog.ShowInformation("Sign off", "A sign-off needs the reviewer's name; nothing was recorded.", rw.win)
 			return
 		}
+		if outcome.Selected == "" {
+			dialog.ShowInformation("Sign off", "A sign-off needs an outcome; nothing was recorded.", rw.win)
+			return
+		}
 		rw.app.Preferences().SetString(prefReviewer, who)
-		if err := rw.addSignOff(who, comment.Text, time.Now()); err != nil {
+		if err := rw.addSignOff(who, outcome.Selected, comment.Text, time.Now()); err != nil {
 			rw.showError("The sign-off could not be saved", err)
 			return
 		}
@@ -125,12 +134,23 @@ func (rw *reviewWindow) signOff() {
 	d.Show()
 }
 
-// addSignOff appends a sign-off to the record and saves it.
-func (rw *reviewWindow) addSignOff(who, comment string, at time.Time) error {
-	rw.record.SignOffs = append(rw.record.SignOffs, signOff{
-		Reviewer: who, Comment: strings.TrimSpace(comment), Time: at.UTC(),
-		InputHash: rw.hash, Settings: rw.settings.Describe(), Covered: rw.result.Covered, Version: version,
-	})
+// addSignOff records a sign-off of the analysis on screen (its input
+// hash, complete settings, left-out sonications and headline figures) and
+// saves the record.
+func (rw *reviewWindow) addSignOff(who, outcome, comment string, at time.Time) error {
+	r, ok := rw.resultRaw()
+	if !ok {
+		return fmt.Errorf("the case has not been analysed; there is nothing to sign off")
+	}
+	so, err := review.NewSignOff(who, outcome, comment, rw.hash, rw.loaded.Study, r, at)
+	if err != nil {
+		return err
+	}
+	rw.record.SignOffs = append(rw.record.SignOffs, so)
 	rw.record.Settings = rw.settings
-	return rw.record.save()
+	if err := rw.record.save(); err != nil {
+		return err
+	}
+	rw.updateSignState()
+	return nil
 }

@@ -25,10 +25,12 @@ func warnInventory(w io.Writer, cmd string, inv *dicomio.Inventory) {
 // loadAndAnalyze reads the case folder dir and runs the coverage analysis
 // with set, as analyze and report both do: it stops on Ctrl-C, refuses a
 // folder that holds no reviewable case, warns of files not used, and
-// applies the structure options. On failure it prints the reason prefixed
-// by "dosecover CMD:" and returns exit code 1.
-func loadAndAnalyze(ctx context.Context, cmd, dir string, sf *structureFlags, set review.Settings, stderr io.Writer) (*dosemap.Case, *review.Result, int) {
-	c, _, r, err := review.LoadAndAnalyze(ctx, dir, set, review.LoadOptions{
+// applies the structure options. study chooses the study of a folder that
+// holds several (a folder of several and no choice is refused, each study
+// named); the StudyInstanceUID of the study read is returned. On failure
+// it prints the reason prefixed by "dosecover CMD:" and returns exit code 1.
+func loadAndAnalyze(ctx context.Context, cmd, dir, study string, sf *structureFlags, set review.Settings, stderr io.Writer) (*dosemap.Case, *review.Result, string, int) {
+	c, inv, r, err := review.LoadAndAnalyze(ctx, dir, set, review.LoadOptions{Study: study,
 		Check: func(c *dosemap.Case, inv *dicomio.Inventory) error {
 			if inv != nil && !inv.Reviewable {
 				return fmt.Errorf("%s cannot be analysed: %s", dir, inv.NotReviewable)
@@ -39,7 +41,11 @@ func loadAndAnalyze(ctx context.Context, cmd, dir string, sf *structureFlags, se
 	})
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover %s: %v\n", cmd, err)
-		return nil, nil, exitFailure
+		return nil, nil, "", exitFailure
 	}
-	return c, r, exitOK
+	uid := ""
+	if inv != nil {
+		uid = inv.Study
+	}
+	return c, r, uid, exitOK
 }

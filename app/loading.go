@@ -152,6 +152,13 @@ func (rw *reviewWindow) openCase(dir string) { rw.openFolder(dir, false) }
 // openFolder is openCase; demo marks dir as the built-in demo case, named
 // demoLabel rather than by its cache folder.
 func (rw *reviewWindow) openFolder(dir string, demo bool) {
+	rw.openStudy(dir, demo, "")
+}
+
+// openStudy reads study (a StudyInstanceUID; "" for the folder's only
+// study) of the case folder dir in the background, as openFolder does; a
+// folder of several studies and no choice brings up the study chooser.
+func (rw *reviewWindow) openStudy(dir string, demo bool, study string) {
 	if readCase == nil {
 		rw.showNotice("This build of dosecover cannot read case folders yet (its DICOM reader is missing).")
 		return
@@ -197,7 +204,7 @@ func (rw *reviewWindow) openFolder(dir string, demo bool) {
 			// each from zero: a drop in done starts the second.
 			pass, last := 0, -1
 			every := newThrottle(progressEvery)
-			lc, err = readCase(ctx, dir, loadOptions{PhaseScale: setting.Thermometry.PhaseScale}, func(done, total int) {
+			lc, err = readCase(ctx, dir, loadOptions{PhaseScale: setting.Thermometry.PhaseScale, Study: study}, func(done, total int) {
 				if total <= 0 {
 					return
 				}
@@ -237,6 +244,10 @@ func (rw *reviewWindow) openFolder(dir string, demo bool) {
 					rw.showNotice("Open a case folder (File ▸ Open folder…, or drop a folder on this window).")
 				}
 				rw.showError("The case in "+rw.displayPath(dir)+" could not be read", err)
+				return
+			}
+			if len(lc.Studies) > 1 {
+				rw.chooseStudy(dir, demo, lc)
 				return
 			}
 			rw.caseLoaded(lc, hash, nFiles, rec, setting)
@@ -435,7 +446,7 @@ func (rw *reviewWindow) showResult(res *analysisResult) {
 	}
 	rw.applyFloor()
 	rw.washBar.set(rw.opt.Floor, washTop(res.Threshold), res.Threshold, res.Unit)
-	if rw.selected >= len(res.Sonications) {
+	if rw.selected >= len(res.SonRows) {
 		rw.selected = -1
 	}
 	rw.updateScene()
@@ -473,13 +484,13 @@ func (rw *reviewWindow) updateScene() {
 	}
 	rw.scene.Dose = r.Dose
 	rw.scene.Threshold = r.Threshold
-	rw.scene.Target, rw.scene.Margin, rw.scene.Avoid = r.Target, r.Margin, r.Avoid3D
+	rw.scene.Target, rw.scene.Margin, rw.scene.Avoid = r.TargetMask, r.MarginMask, nil
 	rw.scene.TargetStructure, rw.scene.AvoidStructures = r.TargetStructure, r.AvoidStructures
-	rw.scene.Holes, rw.scene.Outside = r.Holes3D, r.Outside3D
+	rw.scene.Holes, rw.scene.Outside = r.HoleLabels, r.SpillLabels
 	rw.scene.NotMonitored = r.NotMonitored3D
 	rw.selInfo.SetText("Showing the cumulative dose")
 	if rw.selected >= 0 && rw.selected < len(r.SonicationDose) && r.SonicationDose[rw.selected] != nil {
-		row := r.Sonications[rw.selected]
+		row := r.SonRows[rw.selected]
 		rw.scene.Dose = r.SonicationDose[rw.selected]
 		// Holes and spill are properties of the cumulative dose only.
 		rw.scene.Holes, rw.scene.Outside = nil, nil
@@ -574,13 +585,13 @@ func (rw *reviewWindow) startPeakTemperature(res *analysisResult) {
 // view (1× to 8×).
 func (rw *reviewWindow) frameTarget() {
 	r := rw.result
-	if r == nil || r.Target == nil {
+	if r == nil || r.TargetMask == nil {
 		return
 	}
 	var c dosemap.Vec3
 	var pts []dosemap.Vec3
-	g := r.Target.Geometry
-	for i, x := range r.Target.Data {
+	g := r.TargetMask.Geometry
+	for i, x := range r.TargetMask.Data {
 		if x >= 0.5 {
 			a, b, k := g.IJK(i)
 			p := g.Point(float64(a), float64(b), float64(k))

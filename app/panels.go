@@ -9,6 +9,7 @@ import (
 	"strings"
 
 	"dosecover/dosemap"
+	"dosecover/review"
 	"dosecover/review/view"
 
 	"fyne.io/fyne/v2"
@@ -132,7 +133,7 @@ func (rw *reviewWindow) newSonicationTable() *widget.Table {
 			if rw.result == nil {
 				return 0, len(sonColumns)
 			}
-			return len(rw.result.Sonications), len(sonColumns)
+			return len(rw.result.SonRows), len(sonColumns)
 		},
 		func() fyne.CanvasObject {
 			l := widget.NewLabel("")
@@ -143,10 +144,10 @@ func (rw *reviewWindow) newSonicationTable() *widget.Table {
 			st := o.(*fyne.Container)
 			chk := st.Objects[0].(*widget.Check)
 			l := st.Objects[1].(*widget.Label)
-			if rw.result == nil || id.Row >= len(rw.result.Sonications) {
+			if rw.result == nil || id.Row >= len(rw.result.SonRows) {
 				return
 			}
-			row := rw.result.Sonications[id.Row]
+			row := rw.result.SonRows[id.Row]
 			if id.Col == 0 {
 				l.Hide()
 				chk.Show()
@@ -303,13 +304,13 @@ func newMetricsPanel(rw *reviewWindow) *metricsPanel {
 		if rw.result == nil {
 			return nil
 		}
-		return rw.result.Holes
+		return rw.result.HoleRows
 	})
 	m.outside = regionList(func() []region {
 		if rw.result == nil {
 			return nil
 		}
-		return rw.result.Outside
+		return rw.result.SpillRows
 	})
 	m.dvh = newPlotView()
 	m.coverage = newPlotView()
@@ -344,6 +345,7 @@ func (m *metricsPanel) update() {
 	r := m.rw.result
 	m.used.SetText(m.rw.settings.Describe())
 	m.signed.SetText(m.rw.signOffText())
+	m.rw.updateSignState()
 	if r == nil {
 		if m.rw.loaded == nil {
 			m.facts.SetText("No case open.")
@@ -361,24 +363,24 @@ func (m *metricsPanel) update() {
 	}
 	pct := func(f float64) string { return fmtOpt(100*f, "%.1f %%") }
 	band := "not estimated"
-	if !math.IsNaN(r.CoveredP05) && !math.IsNaN(r.CoveredP95) {
-		band = fmt.Sprintf("%s – %s", pct(r.CoveredP05), pct(r.CoveredP95))
+	if r.CoveredFractionP05 != nil && r.CoveredFractionP95 != nil {
+		band = fmt.Sprintf("%s – %s", pct(*r.CoveredFractionP05), pct(*r.CoveredFractionP95))
 		if r.Trials > 0 {
 			band += fmt.Sprintf(" (%d trials)", r.Trials)
 		}
 	}
-	name := r.TargetName
+	name := r.Target
 	if name == "" {
 		name = "target"
 	}
 	lines := []string{
-		fmt.Sprintf("%-24s %s (%.2f mL)", "Target", name, r.TargetML),
-		fmt.Sprintf("%-24s %s", "Covered (≥ threshold)", pct(r.Covered)),
+		fmt.Sprintf("%-24s %s (%.2f mL)", "Target", name, r.TargetVolumeML),
+		fmt.Sprintf("%-24s %s", "Covered (≥ threshold)", pct(r.CoveredFraction)),
 		fmt.Sprintf("%-24s %s", "  noise band p05–p95", band),
-		fmt.Sprintf("%-24s %s", "Not monitored", pct(r.NotMonitored)),
-		fmt.Sprintf("%-24s %d (%.3f mL)", "Holes", len(r.Holes), sumML(r.Holes)),
-		fmt.Sprintf("%-24s %d (%.3f mL)", "Lethal outside margin", len(r.Outside), r.LethalOutside),
-		fmt.Sprintf("%-24s %s / %s / %s", "D98 / D50 / D2", fmtDose(r.D98), fmtDose(r.D50), fmtDose(r.D2)),
+		fmt.Sprintf("%-24s %s", "Not monitored", pct(r.NotMonitoredFraction)),
+		fmt.Sprintf("%-24s %d (%.3f mL)", "Holes", len(r.HoleRows), sumML(r.HoleRows)),
+		fmt.Sprintf("%-24s %d (%.3f mL)", "Lethal outside margin", len(r.SpillRows), r.OutsideMarginLethalML),
+		fmt.Sprintf("%-24s %s / %s / %s", "D98 / D50 / D2", fmtDose(ptr(r.D98)), fmtDose(ptr(r.D50)), fmtDose(ptr(r.D2))),
 		fmt.Sprintf("%-24s %s", "  dose unit", r.Unit),
 		fmt.Sprintf("%-24s %s %s", "Threshold", fmtNum(r.Threshold), r.Unit),
 		fmt.Sprintf("%-24s %g mm", "Margin", r.MarginMM),
@@ -387,19 +389,19 @@ func (m *metricsPanel) update() {
 		lines = append(lines, fmt.Sprintf("%-24s %v", "Sonications left out", ex))
 	}
 	m.facts.SetText(strings.Join(lines, "\n"))
-	if len(r.Avoid) == 0 {
+	if len(r.AvoidRows) == 0 {
 		m.avoid.SetText("No avoid structure in this case.")
 	} else {
 		var b []string
-		for _, a := range r.Avoid {
+		for _, a := range r.AvoidRows {
 			b = append(b, fmt.Sprintf("%s: %.3f mL lethal of %.2f mL, highest dose %s %s", a.Name, a.LethalML, a.VolumeML, fmtDose(a.MaxDose), r.Unit))
 		}
 		m.avoid.SetText(strings.Join(b, "\n"))
 	}
-	if len(r.QualityNotes) == 0 {
+	if len(r.Warnings) == 0 {
 		m.quality.SetText("No frame was flagged.")
 	} else {
-		m.quality.SetText(strings.Join(r.QualityNotes, "\n"))
+		m.quality.SetText(strings.Join(r.Warnings, "\n"))
 	}
 	m.dvh.set(func() *plotPlot { return dvhPlot(r) })
 	m.coverage.set(func() *plotPlot { return coveragePlot(r) })
@@ -464,21 +466,26 @@ func (b *washBar) set(floor, top, threshold float64, unit string) {
 	b.img.Refresh()
 }
 
-// signOffText lists the sign-offs of the open case (names hidden in
-// teaching mode).
+// signOffText says whether the analysis on screen is signed off and lists
+// the sign-offs of the open case (names hidden in teaching mode).
 func (rw *reviewWindow) signOffText() string {
 	if rw.record == nil || len(rw.record.SignOffs) == 0 {
 		return "Not signed off."
 	}
-	var b []string
+	r, _ := rw.resultRaw()
+	st := review.SignOffFor(rw.record.SignOffs, rw.hash, rw.loaded.Study, r)
+	b := []string{"This analysis: " + st.Line(rw.teaching) + "."}
 	for _, s := range rw.record.SignOffs {
 		who := s.Reviewer
 		if rw.teaching {
 			who = "a reviewer"
 		}
-		line := fmt.Sprintf("%s by %s, covered %.1f %%", s.Time.Local().Format("2006-01-02 15:04"), who, 100*s.Covered)
+		line := fmt.Sprintf("%s by %s: %s, %.1f %% of the monitored target covered", s.Time.Local().Format("2006-01-02 15:04"), who, s.Outcome, s.Figures.CoveredMonitoredPct)
 		if s.InputHash != rw.hash {
 			line += " (different input files)"
+		}
+		if s.Comment != "" && !rw.teaching {
+			line += "; comment: " + s.Comment
 		}
 		b = append(b, line)
 	}

@@ -158,7 +158,7 @@ func finiteXYs(pts []xy, logX bool) plotter.XYs {
 // log axis, the threshold as a dashed guide.
 func dvhPlot(r *analysisResult) *plot.Plot {
 	p := newStyledPlot("Target dose–volume histogram", "dose ("+r.Unit+", log scale)", "% of target ≥ dose")
-	pts := finiteXYs(r.DVH, true)
+	pts := finiteXYs(r.DVHPoints, true)
 	for n := range pts {
 		pts[n].Y *= 100
 	}
@@ -189,7 +189,7 @@ func dvhPlot(r *analysisResult) *plot.Plot {
 // threshold in use as a guide.
 func coveragePlot(r *analysisResult) *plot.Plot {
 	p := newStyledPlot("Coverage versus threshold", "threshold ("+r.Unit+", log scale)", "% of target covered")
-	pts := finiteXYs(r.CoverageVsThr, true)
+	pts := finiteXYs(r.CoveragePoints, true)
 	for n := range pts {
 		pts[n].Y *= 100
 	}

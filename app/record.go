@@ -1,5 +1,3 @@
-//go:build cgo
-
 package main
 
 import (
@@ -20,25 +18,14 @@ import (
 // the settings used for it and the sign-offs. It lives in the user's
 // configuration folder, never in the case folder.
 type reviewRecord struct {
-	Format    string          `json:"format"` // recordFormat
-	CaseDir   string          `json:"case_dir,omitempty"`
-	CaseLabel string          `json:"case_label,omitempty"`
-	InputHash string          `json:"input_sha256"` // see hashInputs
-	Files     int             `json:"input_files"`
-	Settings  review.Settings `json:"settings"`
-	Updated   time.Time       `json:"updated"`
-	SignOffs  []signOff       `json:"sign_offs,omitempty"`
-}
-
-// signOff is one reviewer's statement that the review was done.
-type signOff struct {
-	Reviewer  string    `json:"reviewer"`
-	Comment   string    `json:"comment,omitempty"`
-	Time      time.Time `json:"time"`
-	InputHash string    `json:"input_sha256"`
-	Settings  string    `json:"settings"` // the thresholds used, as shown
-	Covered   float64   `json:"covered_fraction"`
-	Version   string    `json:"dosecover_version"`
+	Format    string           `json:"format"` // recordFormat
+	CaseDir   string           `json:"case_dir,omitempty"`
+	CaseLabel string           `json:"case_label,omitempty"`
+	InputHash string           `json:"input_sha256"` // see hashInputs
+	Files     int              `json:"input_files"`
+	Settings  review.Settings  `json:"settings"`
+	Updated   time.Time        `json:"updated"`
+	SignOffs  []review.SignOff `json:"sign_offs,omitempty"`
 }
 
 // recordFormat names the layout of the records written now: the settings

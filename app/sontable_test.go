@@ -30,7 +30,7 @@ func TestSonicationTableAfterReanalysis(t *testing.T) {
 }
 
 func sonicationTableSteps(t *testing.T, rw *reviewWindow) {
-	want := len(rw.result.Sonications)
+	want := len(rw.result.SonRows)
 	check := func(step string) {
 		t.Helper()
 		rows, _ := rw.sonTable.Length()

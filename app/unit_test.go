@@ -102,7 +102,7 @@ func TestReviewRecordRoundTripOutsideInput(t *testing.T) {
 	}
 	rec := &reviewRecord{InputHash: hash, Files: n, Settings: review.DefaultSettings()}
 	at := time.Date(2026, 3, 4, 5, 6, 7, 0, time.UTC)
-	rec.SignOffs = append(rec.SignOffs, signOff{Reviewer: "Dr. Example", Comment: "ok", Time: at, InputHash: hash})
+	rec.SignOffs = append(rec.SignOffs, review.SignOff{Reviewer: "Dr. Example", Outcome: review.OutcomeAccepted, Comment: "ok", Time: at, InputHash: hash})
 	if err := rec.save(); err != nil {
 		t.Fatal(err)
 	}

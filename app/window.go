@@ -63,6 +63,7 @@ type reviewWindow struct {
 
 	title      *widget.Label
 	identity   *widget.Label
+	signState  *widget.Label // whether the analysis on screen is signed off
 	hover      *widget.Label
 	status     *widget.Label
 	progress   *widget.ProgressBar
@@ -118,6 +119,8 @@ func newReviewWindow(a fyne.App) *reviewWindow {
 func (rw *reviewWindow) build() {
 	rw.title = widget.NewLabelWithStyle("No case open", fyne.TextAlignLeading, fyne.TextStyle{Bold: true})
 	rw.identity = widget.NewLabel("")
+	rw.identity.Truncation = fyne.TextTruncateEllipsis
+	rw.signState = widget.NewLabelWithStyle("", fyne.TextAlignTrailing, fyne.TextStyle{Bold: true})
 	rw.hover = widget.NewLabel("Hover over an image to read position, anatomy, temperature and dose.")
 	rw.hover.Truncation = fyne.TextTruncateEllipsis
 	rw.status = widget.NewLabel("")
@@ -233,7 +236,7 @@ func (rw *reviewWindow) build() {
 	header := container.NewBorder(nil, nil, toolbar,
 		container.NewHBox(widget.NewButtonWithIcon("", theme.HelpIcon(), rw.showShortcuts),
 			widget.NewButtonWithIcon("", theme.InfoIcon(), rw.showAbout)),
-		container.NewHBox(widget.NewSeparator(), rw.title, rw.identity))
+		container.NewBorder(nil, nil, container.NewHBox(widget.NewSeparator(), rw.title), rw.signState, rw.identity))
 	statusBar := container.NewBorder(nil, nil, nil,
 		container.NewHBox(container.NewGridWrap(fyne.NewSize(200, 30), rw.progress), rw.cancelBtn),
 		container.NewGridWithColumns(2, rw.hover, rw.status))

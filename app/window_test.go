@@ -3,6 +3,7 @@
 package main
 
 import (
+	"encoding/json"
 	"image"
 	"image/png"
 	"math"
@@ -29,14 +30,14 @@ func TestOpenShowsMetrics(t *testing.T) {
 	// Sonications 1 and 2 (peak 3000 CEM43, sigma 5 mm) cover the 10 mm
 	// sphere: the weakest target point, (0, ±10, 0), receives
 	// 2·3000·exp(-(25+100)/50) = 492 CEM43 ≥ 240 (computed).
-	if r.Covered < 0.999 {
-		t.Errorf("covered fraction %.4f, want 1 (every target point gets ≥ 492 CEM43)", r.Covered)
+	if r.CoveredFraction < 0.999 {
+		t.Errorf("covered fraction %.4f, want 1 (every target point gets ≥ 492 CEM43)", r.CoveredFraction)
 	}
 	// Target volume: a 10 mm sphere, 4/3·π·1000 mm³ = 4.19 mL; the slab
 	// model of 2 mm slices approximates it within 5 % (tolerance for the
 	// slice discretisation).
-	if want := 4.0 / 3 * math.Pi * 1000 / 1000; math.Abs(r.TargetML-want) > 0.05*want {
-		t.Errorf("target volume %.3f mL, want %.3f ± 5 %%", r.TargetML, want)
+	if want := 4.0 / 3 * math.Pi * 1000 / 1000; math.Abs(r.TargetVolumeML-want) > 0.05*want {
+		t.Errorf("target volume %.3f mL, want %.3f ± 5 %%", r.TargetVolumeML, want)
 	}
 	facts := rw.metrics.facts.Text
 	for _, want := range []string{"PTV phantom", "Covered", "100.0 %", "Holes", "Lethal outside margin", "240 CEM43 min", "3 mm"} {
@@ -44,7 +45,7 @@ func TestOpenShowsMetrics(t *testing.T) {
 			t.Errorf("metrics panel lacks %q:\n%s", want, facts)
 		}
 	}
-	if len(r.Outside) == 0 {
+	if len(r.SpillRows) == 0 {
 		t.Error("sonication 3, 16 mm posterior, left no lethal cluster outside the margin")
 	}
 	if rows, _ := rw.sonTable.Length(); rows != 3 {
@@ -105,7 +106,7 @@ func TestUntickSonicationChangesCoverage(t *testing.T) {
 	openSynthetic(t, rw)
 	before := rw.result
 	var addedBy1 float64
-	for _, s := range before.Sonications {
+	for _, s := range before.SonRows {
 		if s.Number == 1 {
 			addedBy1 = s.CoverageAdded
 		}
@@ -121,16 +122,16 @@ func TestUntickSonicationChangesCoverage(t *testing.T) {
 	if got := rw.settings.Excluded; len(got) != 1 || got[0] != 2 {
 		t.Fatalf("excluded sonications %v, want [2]", got)
 	}
-	if !(after.Covered < before.Covered-0.1) {
-		t.Errorf("coverage %.3f -> %.3f: leaving out sonication 2 should uncover the right half", before.Covered, after.Covered)
+	if !(after.CoveredFraction < before.CoveredFraction-0.1) {
+		t.Errorf("coverage %.3f -> %.3f: leaving out sonication 2 should uncover the right half", before.CoveredFraction, after.CoveredFraction)
 	}
 	// Coverage is credited in delivery order, so the coverage without
 	// sonication 2 (sonication 3 adds none) equals what sonication 1 added
 	// in the full analysis; 1 % for the analysis grid.
-	if math.Abs(after.Covered-addedBy1) > 0.01 {
-		t.Errorf("coverage without sonication 2 is %.3f, sonication 1 alone was credited %.3f", after.Covered, addedBy1)
+	if math.Abs(after.CoveredFraction-addedBy1) > 0.01 {
+		t.Errorf("coverage without sonication 2 is %.3f, sonication 1 alone was credited %.3f", after.CoveredFraction, addedBy1)
 	}
-	if len(after.Holes) == 0 {
+	if len(after.HoleRows) == 0 {
 		t.Error("no hole reported after leaving out sonication 2")
 	}
 	if !strings.Contains(rw.metrics.facts.Text, "Sonications left out") {
@@ -140,8 +141,8 @@ func TestUntickSonicationChangesCoverage(t *testing.T) {
 	mark = rw.completed.Load()
 	test.Tap(checksOf(rw.sonTable)[1])
 	waitJobs(t, rw, mark, 1)
-	if math.Abs(rw.result.Covered-before.Covered) > 1e-9 {
-		t.Errorf("coverage after re-ticking %.4f, want %.4f", rw.result.Covered, before.Covered)
+	if math.Abs(rw.result.CoveredFraction-before.CoveredFraction) > 1e-9 {
+		t.Errorf("coverage after re-ticking %.4f, want %.4f", rw.result.CoveredFraction, before.CoveredFraction)
 	}
 }
 
@@ -151,10 +152,10 @@ func TestClickHoleJumpsToSlice(t *testing.T) {
 	mark := rw.completed.Load()
 	rw.setExcluded(2, true)
 	waitJobs(t, rw, mark, 1)
-	if len(rw.result.Holes) == 0 {
+	if len(rw.result.HoleRows) == 0 {
 		t.Fatal("no hole to click")
 	}
-	h := rw.result.Holes[0]
+	h := rw.result.HoleRows[0]
 	v := rw.viewers[0]
 	v.setSlice(0)
 	rw.metrics.holes.Select(0)
@@ -234,7 +235,7 @@ func TestTeachingModeHidesIdentity(t *testing.T) {
 func TestSignOffRecorded(t *testing.T) {
 	rw := testWindow(t)
 	openSynthetic(t, rw)
-	if err := rw.addSignOff("A. Reviewer", "reviewed in rounds", testTime); err != nil {
+	if err := rw.addSignOff("A. Reviewer", review.OutcomeAccepted, "reviewed in rounds", testTime); err != nil {
 		t.Fatal(err)
 	}
 	rec, err := loadRecord(rw.hash)
@@ -245,11 +246,72 @@ func TestSignOffRecorded(t *testing.T) {
 		t.Fatalf("%d sign-offs, want 1", len(rec.SignOffs))
 	}
 	s := rec.SignOffs[0]
-	if s.Reviewer != "A. Reviewer" || s.InputHash != rw.hash || !s.Time.Equal(testTime) || s.Covered != rw.result.Covered {
+	raw, _ := rw.resultRaw()
+	if s.Reviewer != "A. Reviewer" || s.InputHash != rw.hash || !s.Time.Equal(testTime) || s.Figures != review.HeadlineOf(raw) || s.Outcome != review.OutcomeAccepted {
 		t.Errorf("sign-off %+v does not match the review", s)
 	}
-	if !strings.Contains(s.Settings, "240 CEM43") {
-		t.Errorf("sign-off does not state the threshold: %q", s.Settings)
+	var set map[string]any
+	if err := json.Unmarshal(s.Settings, &set); err != nil || set["threshold"] != 240.0 || set["thermometry"] == nil {
+		t.Errorf("sign-off does not hold the complete settings (%v): %s", err, s.Settings)
+	}
+	if !strings.HasPrefix(rw.signState.Text, "Signed off: coverage accepted") {
+		t.Errorf("header: %q", rw.signState.Text)
+	}
+}
+
+// TestSignOffStaleOnExport signs off, leaves a sonication out and exports:
+// the report must not show the sign-off, must say it is not signed off for
+// these settings and name what differs; the header says so too. Taking the
+// sonication back restores the sign-off, its comment printed.
+func TestSignOffStaleOnExport(t *testing.T) {
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	if err := rw.addSignOff("A. Reviewer", review.OutcomeFollowUp, "spill beyond the margin to discuss", testTime); err != nil {
+		t.Fatal(err)
+	}
+	metricsOf := func() map[string]any {
+		out := exportTo(t, rw)
+		b, err := os.ReadFile(filepath.Join(out, filepath.Base(rw.lastExport)+".json"))
+		if err != nil {
+			t.Fatal(err)
+		}
+		var m map[string]any
+		if err := json.Unmarshal(b, &m); err != nil {
+			t.Fatal(err)
+		}
+		return m
+	}
+	m := metricsOf()
+	if so, _ := m["sign_off"].(string); !strings.HasPrefix(so, "signed off by A. Reviewer") || !strings.Contains(so, review.OutcomeFollowUp) {
+		t.Errorf("signed analysis exported with sign-off %q", so)
+	}
+	if c, _ := m["sign_off_comment"].(string); c != "spill beyond the margin to discuss" {
+		t.Errorf("comment %q not on the report", c)
+	}
+	mark := rw.completed.Load()
+	rw.setExcluded(2, true)
+	waitJobs(t, rw, mark, 1)
+	m = metricsOf()
+	so, _ := m["sign_off"].(string)
+	for _, want := range []string{"not signed off for these settings", "last sign-off by A. Reviewer", "sonications left out: none then, 2 now"} {
+		if !strings.Contains(so, want) {
+			t.Errorf("stale sign-off exported as %q; want it to say %q", so, want)
+		}
+	}
+	if _, ok := m["sign_off_comment"]; ok {
+		t.Errorf("the comment of a sign-off that does not apply is on the report")
+	}
+	if m["reviewer"] != nil && m["reviewer"] != "" {
+		t.Errorf("reviewer %v printed for an analysis nobody signed off", m["reviewer"])
+	}
+	if rw.signState.Text != "Not signed off for these settings" {
+		t.Errorf("header: %q", rw.signState.Text)
+	}
+	mark = rw.completed.Load()
+	rw.setExcluded(2, false)
+	waitJobs(t, rw, mark, 1)
+	if !strings.HasPrefix(rw.signState.Text, "Signed off: needs follow-up") {
+		t.Errorf("header after restoring the settings: %q", rw.signState.Text)
 	}
 }
 
@@ -328,7 +390,7 @@ func exportTo(t *testing.T, rw *reviewWindow) string {
 func TestExportReportTeachingMode(t *testing.T) {
 	rw := testWindow(t)
 	openSynthetic(t, rw)
-	if err := rw.addSignOff("A. Reviewer", "", testTime); err != nil {
+	if err := rw.addSignOff("A. Reviewer", review.OutcomeAccepted, "", testTime); err != nil {
 		t.Fatal(err)
 	}
 	// Without teaching mode the metrics name the case.

@@ -11,6 +11,9 @@ import (
 // LoadOptions are the choices of LoadCase and LoadAndAnalyze that are not
 // analysis settings.
 type LoadOptions struct {
+	// Study chooses the study of a folder that holds several, by
+	// StudyInstanceUID (dicomio.LoadOptions.Study); "" for a folder of one.
+	Study string
 	// Workers is the number of files read at once; 0: one per CPU core.
 	Workers int
 	// Resident reads every frame into memory; otherwise the phase and
@@ -33,7 +36,7 @@ type LoadOptions struct {
 // with what could be read; the inventory says why.
 func LoadCase(ctx context.Context, dir string, s Settings, opt LoadOptions) (*dosemap.Case, *dicomio.Inventory, error) {
 	return dicomio.Load(ctx, dir, dicomio.LoadOptions{PhaseScale: s.Thermometry.PhaseScale,
-		Workers: opt.Workers, Deferred: !opt.Resident}, opt.Progress)
+		Workers: opt.Workers, Deferred: !opt.Resident, Study: opt.Study}, opt.Progress)
 }
 
 // LoadAndAnalyze reads the case folder dir (LoadCase), refuses a folder

@@ -607,7 +607,7 @@ func (s *Session) Analyze(ctx context.Context, set Settings, progress ProgressFu
 		cov.CoveredFraction = cv / mv
 	}
 	if cov.NotMonitoredFraction > 0.005 {
-		r.Warnings = append(r.Warnings, fmt.Sprintf("%.1f %% of the target (%.2f mL) was not monitored by the thermometry and is counted as not covered in covered_fraction_of_target", 100*cov.NotMonitoredFraction, cov.NotMonitoredML))
+		r.Warnings = append(r.Warnings, fmt.Sprintf("%.1f %% of the target (%.2f mL) was not monitored by the thermometry and is counted as not covered in the coverage of the whole target", 100*cov.NotMonitoredFraction, cov.NotMonitoredML))
 	}
 	sort.Slice(tdose, func(a, b int) bool { return tdose[a].d > tdose[b].d })
 	tcum := make([]float64, len(tdose)) // volume with dose >= tdose[a].d

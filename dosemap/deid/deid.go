@@ -99,6 +99,9 @@ type Options struct {
 	// into the "^" component separator; empty: "TEACHING-" and eight hex
 	// digits derived from the salt and the original patient ID.
 	Label string
+	// Study is the StudyInstanceUID of the study to copy from a folder
+	// that holds several; empty: the folder must hold one study.
+	Study string
 }
 
 // DummyDate replaces every date in DatesRemove mode (PS3.15 Annex E

@@ -564,6 +564,7 @@ func TestFolderFailureLeavesNothing(t *testing.T) {
 		el(t, tag.MediaStorageSOPClassUID, []string{mrClass}),
 		el(t, tag.MediaStorageSOPInstanceUID, []string{"1.2.826.0.1.3680043.99.1.9"}),
 		el(t, tag.TransferSyntaxUID, []string{explicit}),
+		el(t, tag.StudyInstanceUID, []string{studyU}),
 		el(t, tag.BurnedInAnnotation, []string{"YES"}),
 	})
 	if err := os.Symlink(filepath.Join(src, "notes.txt"), filepath.Join(src, "link.txt")); err != nil {
@@ -600,5 +601,41 @@ func TestFolderFailureLeavesNothing(t *testing.T) {
 	}
 	if ents, _ := os.ReadDir(parent); len(ents) != 1 {
 		t.Errorf("%s holds %d entries, want only the output folder", parent, len(ents))
+	}
+}
+
+// A folder of two studies (StudyInstanceUID (0020,000D), DICOM PS3.3
+// C.7.2.1) is never copied under one label: refused with both studies
+// named, or copied for the chosen study alone, the other listed.
+func TestFolderTwoStudies(t *testing.T) {
+	src, _ := makeCase(t)
+	writeDS(t, filepath.Join(src, "other.dcm"), []*dicom.Element{
+		el(t, tag.MediaStorageSOPClassUID, []string{mrClass}),
+		el(t, tag.MediaStorageSOPInstanceUID, []string{"1.2.826.0.1.3680043.99.2.9"}),
+		el(t, tag.TransferSyntaxUID, []string{explicit}),
+		el(t, tag.PatientID, []string{"OTHER-PATIENT"}),
+		el(t, tag.StudyInstanceUID, []string{"1.2.826.0.1.3680043.99.2.3"}),
+	})
+	_, err := Folder(context.Background(), src, filepath.Join(t.TempDir(), "out"), Options{}, nil)
+	if err == nil || !strings.Contains(err.Error(), studyU) || !strings.Contains(err.Error(), "1.2.826.0.1.3680043.99.2.3") || !strings.Contains(err.Error(), "--study") {
+		t.Fatalf("err = %v, want both studies named and how to choose", err)
+	}
+	res, err := Folder(context.Background(), src, filepath.Join(t.TempDir(), "out"), Options{Study: studyU}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, f := range res.Files {
+		if filepath.Base(f.Src) == "other.dcm" {
+			t.Errorf("the other study's file was copied")
+		}
+	}
+	found := false
+	for _, s := range res.Skipped {
+		if filepath.Base(s.Path) == "other.dcm" && strings.Contains(s.Reason, "not to the chosen study "+studyU) {
+			found = true
+		}
+	}
+	if !found {
+		t.Errorf("other.dcm not listed as of another study: %+v", res.Skipped)
 	}
 }

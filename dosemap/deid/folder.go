@@ -68,6 +68,8 @@ func (d *Deidentifier) File(src, dst string) error {
 // are named 00001.dcm, 00002.dcm, ... in the sorted order of their source
 // paths (original names may carry identity). Files that are not DICOM are
 // not copied and are listed in Result.Skipped, as are symbolic links
+// and the files of other studies than Options.Study (a folder of several
+// studies and no Options.Study is refused, each study named)
 // (not followed); a DICOM file that cannot be de-identified stops the run
 // with an error naming it and leaves nothing behind: the copy is written
 // into a temporary folder beside dstDir and renamed into place when
@@ -119,6 +121,7 @@ func Folder(ctx context.Context, srcDir, dstDir string, opt Options, progress fu
 	// of the whole case, so that a name in one file is also cleaned from
 	// the descriptions of another.
 	var dicoms []string
+	var sets []dicom.Dataset
 	for _, p := range paths {
 		if err := ctx.Err(); err != nil {
 			return nil, err
@@ -128,9 +131,18 @@ func Folder(ctx context.Context, srcDir, dstDir string, opt Options, progress fu
 			res.Skipped = append(res.Skipped, Skipped{Path: p, Reason: unreadable(p, err)})
 			continue
 		}
-		d.Collect(&ds)
+		sets = append(sets, ds)
 		dicoms = append(dicoms, p)
 	}
+	// One copy holds one study: never two patients under one label.
+	dicoms, sets, err = oneStudy(dicoms, sets, opt.Study, res)
+	if err != nil {
+		return nil, err
+	}
+	for n := range sets {
+		d.Collect(&sets[n])
+	}
+	sets = nil
 	if len(dicoms) == 0 {
 		return nil, fmt.Errorf("no DICOM file found in %s", srcDir)
 	}

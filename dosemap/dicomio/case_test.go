@@ -416,6 +416,7 @@ func writeEnhanced(t testing.TB, path string, slices, times int) {
 	els := []*dicom.Element{
 		el(t, tag.ImageType, []string{"ORIGINAL", "PRIMARY", "PHASE", "NONE"}),
 		el(t, tag.Modality, []string{"MR"}),
+		el(t, tag.StudyInstanceUID, []string{"2.25.1000"}),
 		el(t, tag.SeriesInstanceUID, []string{"2.25.601"}),
 		el(t, tag.SeriesNumber, []string{"1"}),
 		el(t, tag.FrameOfReferenceUID, []string{testFoR}),

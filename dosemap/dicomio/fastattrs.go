@@ -35,7 +35,7 @@ var fastTopLevel = map[tag.Tag]bool{
 	tag.StudyInstanceUID: true, tag.SeriesInstanceUID: true, tag.SeriesDescription: true,
 	tag.SeriesNumber: true, tag.AcquisitionNumber: true, tag.FrameOfReferenceUID: true,
 	tag.ImageType: true, tag.PatientName: true, tag.PatientID: true, tag.PatientBirthDate: true,
-	tag.StudyDate: true, tag.InstitutionName: true, tag.MagneticFieldStrength: true,
+	tag.StudyDate: true, tag.StudyDescription: true, tag.InstitutionName: true, tag.MagneticFieldStrength: true,
 	tag.EchoTime: true, tag.WindowCenter: true, tag.WindowWidth: true,
 	tag.PixelData: true, tagFloatPixelData: true, tagDoubleFloatPixelData: true,
 	tag.Rows: true, tag.Columns: true, tag.BitsAllocated: true, tag.BitsStored: true,

@@ -135,6 +135,7 @@ type fileInfo struct {
 	Modality                           string
 	StudyUID, SeriesUID                string
 	SeriesDescription                  string
+	StudyDescription                   string
 	SeriesNumber, AcquisitionNumber    int
 	FrameOfRef                         string
 	ImageType                          []string
@@ -436,6 +437,7 @@ func (fi *fileInfo) fill(es elems, pixels bool) error {
 	fi.StudyUID = es.str(tag.StudyInstanceUID)
 	fi.SeriesUID = es.str(tag.SeriesInstanceUID)
 	fi.SeriesDescription = es.str(tag.SeriesDescription)
+	fi.StudyDescription = es.str(tag.StudyDescription)
 	fi.SeriesNumber, _ = es.int(tag.SeriesNumber)
 	fi.AcquisitionNumber, _ = es.int(tag.AcquisitionNumber)
 	fi.FrameOfRef = es.str(tag.FrameOfReferenceUID)

@@ -112,6 +112,8 @@ type SkippedFile struct {
 type Inventory struct {
 	Dir           string           `json:"dir"`
 	Files         int              `json:"files"`
+	Studies       []StudyInfo      `json:"studies"`         // every study of the folder
+	Study         string           `json:"study,omitempty"` // StudyInstanceUID of the study read; "" when none
 	Series        []SeriesInfo     `json:"series"`
 	Sonications   []SonicationInfo `json:"sonications"`
 	Structures    []StructureInfo  `json:"structures"`
@@ -150,6 +152,30 @@ func (inv *Inventory) WriteText(w io.Writer) error {
 		fmt.Fprintf(&b, "Reviewable: yes\n")
 	} else {
 		fmt.Fprintf(&b, "Reviewable: NO - %s\n", inv.NotReviewable)
+	}
+	if len(inv.Studies) > 0 {
+		fmt.Fprintf(&b, "\nStudies (%d):\n", len(inv.Studies))
+	}
+	for _, s := range inv.Studies {
+		used := ""
+		if s.Used {
+			used = " [used]"
+		}
+		desc := s.Description
+		if desc == "" {
+			desc = "(no description)"
+		}
+		date := "date unknown"
+		if s.Date != "" {
+			date = studyDateText(s.Date)
+		}
+		fmt.Fprintf(&b, "  %s - %s%s\n", date, desc, used)
+		fmt.Fprintf(&b, "      patient ID %s, name %s\n", orNone(s.PatientID), orNone(s.PatientName))
+		fmt.Fprintf(&b, "      %d series, %d files, in %s\n", s.Series, s.Files, s.Folder)
+		fmt.Fprintf(&b, "      uid %s\n", s.UID)
+	}
+	if inv.NeedsStudyChoice() {
+		fmt.Fprintf(&b, "  Several studies: choose one with --study UID.\n")
 	}
 	fmt.Fprintf(&b, "\nSeries (%d):\n", len(inv.Series))
 	for _, s := range inv.Series {

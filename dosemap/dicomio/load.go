@@ -22,6 +22,17 @@ type target struct {
 func (cr *caseReader) load(ctx context.Context, progress func(done, total int)) (*dosemap.Case, error) {
 	inv := cr.inv
 	c := &dosemap.Case{Label: filepath.Base(filepath.Clean(cr.dir)), Patient: cr.patient}
+	// A study chosen among several is labelled by its own folder, or by
+	// the folder read and its date when it shares that folder.
+	if len(inv.Studies) > 1 {
+		for _, s := range inv.Studies {
+			if s.Used && s.Folder != "." {
+				c.Label = filepath.Base(s.Folder)
+			} else if s.Used {
+				c.Label += " (study of " + studyDateText(s.Date) + ")"
+			}
+		}
+	}
 	plan := map[*fileInfo][]target{}
 	nan := float32(math.NaN())
 	// alloc returns one []float32 per time point of st, with missing frames

@@ -3,6 +3,7 @@ package dicomio
 import (
 	"math"
 	"os"
+	"os/exec"
 	"path/filepath"
 	"strings"
 	"testing"
@@ -189,15 +190,35 @@ func shoelace(p []dosemap.Vec3) float64 {
 	return math.Abs(s) / 2
 }
 
-// MR_small and rtstruct.dcm come from different frames of reference: read
-// together (symbolic links, so the files are read in place) they must be
-// reported as unrelated.
+// MR_small and rtstruct.dcm come from different studies and frames of
+// reference. Read together (MR_small through a symbolic link, so it is
+// read in place) they are two studies and refused; with rtstruct.dcm
+// rewritten by pydicom into MR_small's study they are one study whose
+// positions must be reported as unrelated.
 func TestPydicomFrameOfReferenceMismatch(t *testing.T) {
 	dir := t.TempDir()
 	for _, name := range []string{"MR_small.dcm", "rtstruct.dcm"} {
 		if err := os.Symlink(pydicomFile(t, name), filepath.Join(dir, name)); err != nil {
 			t.Skipf("symbolic links unavailable: %v", err)
 		}
+	}
+	_, inv, err := Load(t.Context(), dir, LoadOptions{}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !inv.NeedsStudyChoice() || len(inv.Studies) != 2 {
+		t.Fatalf("two studies not refused: %+v %q", inv.Studies, inv.NotReviewable)
+	}
+	py := pydicomPython(t)
+	rt := filepath.Join(dir, "rtstruct.dcm")
+	os.Remove(rt)
+	script := "import sys, pydicom\n" +
+		"mr = pydicom.dcmread(sys.argv[1], stop_before_pixels=True)\n" +
+		"rt = pydicom.dcmread(sys.argv[2], force=True)\n" +
+		"rt.StudyInstanceUID = mr.StudyInstanceUID\n" +
+		"rt.save_as(sys.argv[3], write_like_original=True)\n"
+	if out, err := exec.Command(py, "-c", script, pydicomFile(t, "MR_small.dcm"), pydicomFile(t, "rtstruct.dcm"), rt).CombinedOutput(); err != nil {
+		t.Fatalf("pydicom: %v\n%s", err, out)
 	}
 	c, inv, err := Load(t.Context(), dir, LoadOptions{}, nil)
 	if err != nil {

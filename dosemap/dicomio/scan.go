@@ -39,6 +39,11 @@ type LoadOptions struct {
 	// them. The files must stay as they are meanwhile: a file whose size
 	// changed is refused, its frames NaN and named in the Source's notes.
 	Deferred bool
+	// Study is the StudyInstanceUID of the study to read when the folder
+	// holds several; empty: the folder must hold one study (a folder with
+	// several is then not reviewable, its Inventory listing them). Files
+	// of other studies are listed as skipped, with the reason.
+	Study string
 }
 
 // Scan reads the attributes of every file under dir (any depth, any names),
@@ -261,6 +266,14 @@ func scan(ctx context.Context, dir string, opt LoadOptions, progress func(done, 
 	cr.inv.Structures = []StructureInfo{}
 	cr.inv.Skipped = append([]SkippedFile{}, unreadable...)
 	cr.inv.Problems = []string{}
+	if !cr.chooseStudy(infos, errs) {
+		for i, e := range errs {
+			if e != nil {
+				cr.inv.Skipped = append(cr.inv.Skipped, SkippedFile{Path: cr.rel(paths[i]), Reason: skipReason(e)})
+			}
+		}
+		return cr, nil
+	}
 	cr.assemble(paths, infos, errs)
 	return cr, nil
 }
@@ -279,12 +292,7 @@ func (cr *caseReader) assemble(paths []string, infos []*fileInfo, errs []error) 
 	byUID := map[string]*series{}
 	for i, fi := range infos {
 		if errs[i] != nil {
-			reason := errs[i].Error()
-			var fe *fileError
-			if !errors.As(errs[i], &fe) {
-				reason = "unreadable: " + reason
-			}
-			inv.Skipped = append(inv.Skipped, SkippedFile{Path: cr.rel(paths[i]), Reason: reason})
+			inv.Skipped = append(inv.Skipped, SkippedFile{Path: cr.rel(paths[i]), Reason: skipReason(errs[i])})
 			continue
 		}
 		if fi.Structures != nil {
@@ -757,6 +765,15 @@ func (cr *caseReader) checkFrames() {
 			check(k, "structure set "+cr.rel(cr.structFis[n].Path))
 		}
 	}
+}
+
+// skipReason is the reason a file that could not be read is skipped.
+func skipReason(err error) string {
+	var fe *fileError
+	if !errors.As(err, &fe) {
+		return "unreadable: " + err.Error()
+	}
+	return err.Error()
 }
 
 // andMore returns ", and N more" for n > 0.

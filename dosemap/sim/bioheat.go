@@ -279,12 +279,3 @@ func (b *Bioheat) Advance(duration, maxStep float64, q []float64) {
 		b.Step(dt, q)
 	}
 }
-
-// Volume returns the current temperature as a dosemap.Volume (float32, °C).
-func (b *Bioheat) Volume() *dosemap.Volume {
-	v := dosemap.NewVolume(b.Geometry)
-	for n, x := range b.T {
-		v.Data[n] = float32(x)
-	}
-	return v
-}

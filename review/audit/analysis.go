@@ -90,7 +90,7 @@ type Artifacts func(c *Case, cs *dosemap.Case, res *review.Result) ([]Artifact, 
 // label is the case ID before the analysis sees it.
 func NewAnalyzer(s review.Settings, artifacts Artifacts) Analyzer {
 	return func(ctx context.Context, c *Case) (*CaseResult, error) {
-		cs, _, res, err := review.LoadAndAnalyze(ctx, c.Dir, s, review.LoadOptions{Workers: 1,
+		cs, _, res, err := review.LoadAndAnalyze(ctx, c.Dir, s, review.LoadOptions{Workers: 1, Study: c.Study,
 			Check: func(cs *dosemap.Case, inv *dicomio.Inventory) error {
 				if err := corrupted(c, inv); err != nil {
 					return err

@@ -44,25 +44,41 @@ type Case struct {
 	// InputSHA256 is the case's InputHash; Run sets it before it calls the
 	// Analyzer.
 	InputSHA256 string
+	// Study is the StudyInstanceUID (0020,000D) of the case's study; ""
+	// when its DICOM files carry none that could be read.
+	Study string
 	// Deidentify asks the Analyzer to leave patient identity out of
 	// everything it returns.
 	Deidentify bool
 }
 
-// Discover finds the cases below the given folders. A folder that holds
-// DICOM files directly is one case, together with everything below it.
-// Otherwise each of its immediate subfolders that holds DICOM files at any
-// depth is one case, with everything below it (so a case may keep each
-// series in a subfolder of its own) — unless the DICOM files of all those
-// subfolders belong to one study (the same StudyInstanceUID, read from the
-// first DICOM file of each), in which case the folder given is itself one
-// case whose series sit in subfolders. For deeper registries pass the
-// folders one level above the cases, e.g. "registry/*/".
+// Discover finds the cases below the given folders. A case is one study:
+// the DICOM files (recognised by content, IsDICOM, never by name) that share
+// one StudyInstanceUID (0020,000D; DICOM PS3.3 C.7.2.1), found at any depth
+// whatever the layout: a folder per case, nested registries, a study whose
+// series sit in several folders, a flat folder of many studies. Two studies
+// of one patient are two cases; a review never mixes studies.
 //
-// Files are recognised as DICOM by their content (IsDICOM), never by name.
-// The cases are returned sorted by Name. An input that is not a readable
-// folder is an error; unreadable folders below it are skipped and returned
-// as problems (one line each, naming the folder).
+// A study's folder is the deepest folder holding all its files, widened
+// upwards while the wider folder holds no other study, up to a folder just
+// below the input (so a case keeps its case folder however its series are
+// arranged inside, and a registry's case keeps its name when other cases
+// are added beside it). When that folder
+// holds this study only, the case is every regular file below it (hidden
+// ones included: the input hash covers them) and its Name is the folder's
+// path; when it holds other studies too (a flat folder), the case is the
+// study's DICOM files plus the files below the folder that are no study's
+// DICOM file and lie in no other study's folder, and its Name is the
+// folder's path followed by "/study-" and the StudyInstanceUID. DICOM files
+// whose StudyInstanceUID cannot be read belong to the study whose folder
+// holds them; elsewhere they make one case per folder below the input
+// (the analysis then reports what is wrong with them).
+//
+// Names are paths relative to the parent of the input folder, slash
+// separated, so they are the same on every machine and across runs with
+// the same inputs. The cases are returned sorted by Name. An input that is
+// not a readable folder is an error; unreadable folders below it are
+// skipped and returned as problems (one line each, naming the folder).
 func Discover(inputs []string) (cases []Case, problems []string, err error) {
 	if len(inputs) == 0 {
 		return nil, nil, errors.New("no input folder given")
@@ -80,89 +96,237 @@ func Discover(inputs []string) (cases []Case, problems []string, err error) {
 			continue
 		}
 		seen[abs] = true
-		base := filepath.Base(abs)
-		direct, err := holdsDICOMDirectly(abs)
+		found, probs, err := studiesBelow(abs)
 		if err != nil {
 			return nil, nil, fmt.Errorf("reading input folder %s: %w", in, err)
 		}
-		if direct {
-			c, err := collect(abs, base)
-			if err != nil {
-				return nil, nil, err
-			}
-			cases = append(cases, c)
-			continue
-		}
-		entries, err := os.ReadDir(abs)
-		if err != nil {
-			return nil, nil, fmt.Errorf("reading input folder %s: %w", in, err)
-		}
-		var subs []Case
-		for _, e := range entries {
-			if !e.IsDir() || strings.HasPrefix(e.Name(), ".") {
-				continue
-			}
-			sub := filepath.Join(abs, e.Name())
-			has, err := holdsDICOMBelow(sub)
-			if err != nil {
-				problems = append(problems, fmt.Sprintf("%s: %v", sub, err))
-				continue
-			}
-			if !has {
-				continue
-			}
-			c, err := collect(sub, base+"/"+e.Name())
-			if err != nil {
-				problems = append(problems, err.Error())
-				continue
-			}
-			subs = append(subs, c)
-		}
-		if len(subs) > 1 && oneStudy(subs) {
-			c, err := collect(abs, base)
-			if err != nil {
-				return nil, nil, err
-			}
-			subs = []Case{c}
-		}
-		cases = append(cases, subs...)
+		problems = append(problems, probs...)
+		cases = append(cases, found...)
 	}
 	sort.Slice(cases, func(a, b int) bool { return cases[a].Name < cases[b].Name })
 	assignIDs(cases)
 	return cases, problems, nil
 }
 
-// oneStudy reports whether the first DICOM file of every case names the
-// same, non-empty StudyInstanceUID (0020,000D): the folders are then series
-// of one examination rather than separate cases.
-func oneStudy(cases []Case) bool {
-	study := ""
-	for _, c := range cases {
-		uid := firstStudyUID(c)
-		if uid == "" || (study != "" && uid != study) {
-			return false
-		}
-		study = uid
-	}
-	return true
+// caseFile is one regular file below an input folder.
+type caseFile struct {
+	rel   string // slash separated, relative to the input folder
+	size  int64
+	dicom bool
+	study string // StudyInstanceUID; "" when not DICOM or not readable
 }
 
-// firstStudyUID returns the StudyInstanceUID of the first file of c that
-// parses as DICOM, or "" when none does. A parser panic on a malformed file
-// counts as "not DICOM".
-func firstStudyUID(c Case) string {
-	for _, rel := range c.Files {
-		p := filepath.Join(c.Dir, filepath.FromSlash(rel))
-		if ok, _ := IsDICOMFile(p); !ok {
-			continue
-		}
-		if uid := studyUIDOf(p); uid != "" {
-			return uid
-		}
+// parentDir returns the folder of a slash-separated relative path ("" for
+// the input folder itself).
+func parentDir(rel string) string {
+	if i := strings.LastIndexByte(rel, '/'); i >= 0 {
+		return rel[:i]
 	}
 	return ""
 }
 
+// within reports whether rel lies in folder dir ("" holds everything).
+func within(rel, dir string) bool {
+	return dir == "" || strings.HasPrefix(rel, dir+"/")
+}
+
+// commonDir returns the deepest folder holding every path of rels.
+func commonDir(rels []string) string {
+	d := parentDir(rels[0])
+	for _, r := range rels[1:] {
+		for !within(r, d) {
+			d = parentDir(d)
+		}
+	}
+	return d
+}
+
+// studiesBelow lists the files below the input folder abs and groups them
+// into cases, one per study (see Discover).
+func studiesBelow(abs string) ([]Case, []string, error) {
+	base := filepath.Base(abs)
+	var files []caseFile
+	var problems []string
+	err := filepath.WalkDir(abs, func(p string, d fs.DirEntry, err error) error {
+		if err != nil {
+			if p == abs {
+				return err
+			}
+			problems = append(problems, fmt.Sprintf("%s: %v", p, err))
+			if d != nil && d.IsDir() {
+				return filepath.SkipDir
+			}
+			return nil
+		}
+		if !d.Type().IsRegular() {
+			return nil
+		}
+		fi, err := d.Info()
+		if err != nil {
+			problems = append(problems, fmt.Sprintf("%s: %v", p, err))
+			return nil
+		}
+		rel, err := filepath.Rel(abs, p)
+		if err != nil {
+			return err
+		}
+		f := caseFile{rel: filepath.ToSlash(rel), size: fi.Size()}
+		if !hiddenPath(f.rel) {
+			if ok, _ := IsDICOMFile(p); ok {
+				f.dicom = true
+				f.study = studyUIDOf(p)
+			}
+		}
+		files = append(files, f)
+		return nil
+	})
+	if err != nil {
+		return nil, nil, err
+	}
+	sort.Slice(files, func(a, b int) bool { return files[a].rel < files[b].rel })
+	// The studies under every folder.
+	under := map[string]map[string]bool{}
+	byStudy := map[string][]string{}
+	var uids []string
+	for _, f := range files {
+		if f.study == "" {
+			continue
+		}
+		if byStudy[f.study] == nil {
+			uids = append(uids, f.study)
+		}
+		byStudy[f.study] = append(byStudy[f.study], f.rel)
+		for d := parentDir(f.rel); ; d = parentDir(d) {
+			if under[d] == nil {
+				under[d] = map[string]bool{}
+			}
+			under[d][f.study] = true
+			if d == "" {
+				break
+			}
+		}
+	}
+	dirOf := map[string]string{}
+	for _, uid := range uids {
+		d := commonDir(byStudy[uid])
+		for d != "" && parentDir(d) != "" && len(under[parentDir(d)]) == 1 {
+			d = parentDir(d)
+		}
+		dirOf[uid] = d
+	}
+	// inOtherStudy reports whether rel lies in the folder of a study other
+	// than uid, strictly below dir.
+	inOtherStudy := func(rel, dir, uid string) bool {
+		for d := parentDir(rel); d != dir && within(d+"/", dir); d = parentDir(d) {
+			if len(under[d]) > 0 && !under[d][uid] {
+				return true
+			}
+			if d == "" {
+				break
+			}
+		}
+		return false
+	}
+	name := func(d string) string {
+		if d == "" {
+			return base
+		}
+		return base + "/" + d
+	}
+	var cases []Case
+	covered := func(rel string) bool {
+		for _, d := range dirOf {
+			if within(rel, d) {
+				return true
+			}
+		}
+		return false
+	}
+	for _, uid := range uids {
+		d := dirOf[uid]
+		c := Case{Name: name(d), Dir: filepath.Join(abs, filepath.FromSlash(d)), Study: uid}
+		exclusive := len(under[d]) == 1
+		if !exclusive {
+			c.Name += "/study-" + uid
+		}
+		for _, f := range files {
+			if !within(f.rel, d) {
+				continue
+			}
+			if !exclusive && (f.study != "" && f.study != uid || f.study == "" && inOtherStudy(f.rel, d, uid)) {
+				continue
+			}
+			c.Files = append(c.Files, f.rel[len(d)+boolInt(d != ""):])
+			c.Bytes += f.size
+		}
+		cases = append(cases, c)
+	}
+	// DICOM files without a readable study outside every study's folder:
+	// one case per folder below the input (or the input itself).
+	orphans := map[string][]string{}
+	var tops []string
+	for _, f := range files {
+		if !f.dicom || f.study != "" || covered(f.rel) {
+			continue
+		}
+		top, _, nested := strings.Cut(f.rel, "/")
+		if !nested || len(under[top]) > 0 {
+			top = "" // loose at the input's top, or beside a study
+			if nested {
+				top = parentDir(f.rel)
+			}
+		}
+		if orphans[top] == nil {
+			tops = append(tops, top)
+		}
+		orphans[top] = append(orphans[top], f.rel)
+	}
+	inOtherTop := func(rel, top string) bool {
+		for _, t := range tops {
+			if t != top && len(t) > len(top) && within(rel, t) {
+				return true
+			}
+		}
+		return false
+	}
+	for _, top := range tops {
+		c := Case{Name: name(top), Dir: filepath.Join(abs, filepath.FromSlash(top))}
+		if len(under[top]) > 0 || len(uids) > 0 && top == "" {
+			c.Name += "/unidentified"
+		}
+		for _, f := range files {
+			if !within(f.rel, top) || covered(f.rel) || f.dicom && f.study != "" || inOtherTop(f.rel, top) {
+				continue
+			}
+			c.Files = append(c.Files, f.rel[len(top)+boolInt(top != ""):])
+			c.Bytes += f.size
+		}
+		cases = append(cases, c)
+	}
+	return cases, problems, nil
+}
+
+func boolInt(b bool) int {
+	if b {
+		return 1
+	}
+	return 0
+}
+
+// hiddenPath reports whether a file or any folder on its relative path
+// starts with a dot: such files are never taken for DICOM files of a case.
+func hiddenPath(rel string) bool {
+	for _, part := range strings.Split(rel, "/") {
+		if strings.HasPrefix(part, ".") {
+			return true
+		}
+	}
+	return false
+}
+
+// studyUIDOf returns the StudyInstanceUID of the DICOM file at path, or ""
+// when it has none or cannot be parsed (a parser panic on a malformed file
+// counts as unreadable).
 func studyUIDOf(path string) (uid string) {
 	defer func() {
 		if recover() != nil {
@@ -181,53 +345,6 @@ func studyUIDOf(path string) (uid string) {
 		return strings.TrimSpace(strings.TrimRight(v[0], "\x00"))
 	}
 	return ""
-}
-
-// holdsDICOMDirectly reports whether dir itself (not a subfolder) holds a
-// DICOM file.
-func holdsDICOMDirectly(dir string) (bool, error) {
-	entries, err := os.ReadDir(dir)
-	if err != nil {
-		return false, err
-	}
-	for _, e := range entries {
-		if strings.HasPrefix(e.Name(), ".") || e.IsDir() {
-			continue
-		}
-		if ok, _ := IsDICOMFile(filepath.Join(dir, e.Name())); ok {
-			return true, nil
-		}
-	}
-	return false, nil
-}
-
-var errFound = errors.New("found")
-
-// holdsDICOMBelow reports whether dir or any folder below it holds a DICOM
-// file; it stops at the first one.
-func holdsDICOMBelow(dir string) (bool, error) {
-	err := filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {
-		if err != nil {
-			return err
-		}
-		if strings.HasPrefix(d.Name(), ".") && p != dir {
-			if d.IsDir() {
-				return filepath.SkipDir
-			}
-			return nil
-		}
-		if d.IsDir() {
-			return nil
-		}
-		if ok, _ := IsDICOMFile(p); ok {
-			return errFound
-		}
-		return nil
-	})
-	if err == errFound {
-		return true, nil
-	}
-	return false, err
 }
 
 // collect lists the files of the case in dir: every regular file below it

@@ -106,8 +106,11 @@ func TestAuditSimulatedCases(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	// Damaged copies.
-	corrupt := filepath.Join(root, "case-011")
+	// Damaged copies, in a folder of their own: a copy holds the same study
+	// (StudyInstanceUID) as its original, and one study in two folders of
+	// one input is one case.
+	damaged := filepath.Join(tmp, "damaged")
+	corrupt := filepath.Join(damaged, "case-011")
 	copyDir(t, filepath.Join(root, "case-001"), corrupt)
 	garbage := filepath.Join(corrupt, "sonication-01", "IM00005.dcm")
 	if _, err := os.Stat(garbage); err != nil {
@@ -116,7 +119,7 @@ func TestAuditSimulatedCases(t *testing.T) {
 	if err := os.WriteFile(garbage, []byte("\x00\x01 not a DICOM file any more \xfe\xff"), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	incomplete := filepath.Join(root, "case-012")
+	incomplete := filepath.Join(damaged, "case-012")
 	copyDir(t, filepath.Join(root, "case-002"), incomplete)
 	if err := os.RemoveAll(filepath.Join(incomplete, "structures")); err != nil {
 		t.Fatal(err)
@@ -127,7 +130,7 @@ func TestAuditSimulatedCases(t *testing.T) {
 	js, _ := json.Marshal(set)
 	out := filepath.Join(tmp, "audit")
 	sum, err := Run(context.Background(), Config{
-		Inputs: []string{root}, OutDir: out, Workers: 2,
+		Inputs: []string{root, damaged}, OutDir: out, Workers: 2,
 		Analyzer: NewAnalyzer(set, ReportArtifacts), Settings: js, SettingsColumns: SettingsColumns(set),
 	})
 	if err != nil {
@@ -140,10 +143,10 @@ func TestAuditSimulatedCases(t *testing.T) {
 	if len(rows) != 12 {
 		t.Fatalf("%d rows, want 12", len(rows))
 	}
-	if r := rows["registry__case-011"]; r.Status != StatusFailed || !strings.Contains(r.Reason, "IM00005.dcm") {
+	if r := rows["damaged__case-011"]; r.Status != StatusFailed || !strings.Contains(r.Reason, "IM00005.dcm") {
 		t.Errorf("corrupted case: %s %q", r.Status, r.Reason)
 	}
-	if r := rows["registry__case-012"]; r.Status != StatusIncomplete || !strings.Contains(r.Reason, "contour") {
+	if r := rows["damaged__case-012"]; r.Status != StatusIncomplete || !strings.Contains(r.Reason, "contour") {
 		t.Errorf("case without RTSTRUCT: %s %q", r.Status, r.Reason)
 	}
 	if sum.ExitCode() != 1 {

@@ -20,10 +20,17 @@ import (
 type Options struct {
 	Deidentify   bool      // hide identity: neutral case label, no scan date, generic sonication labels
 	Reviewer     string    // who reviewed ("" not given)
-	SignOff      string    // sign-off statement ("" not signed off)
 	ReviewDate   time.Time // zero: now
-	InputsSHA256 string    // see HashFolder
+	InputsSHA256 string    // see review.HashInputs
 	PanelPixels  int       // side of each image panel in pixels; 0: 480
+	// SignOffs are the sign-offs of the case: the report shows the one
+	// made on this very analysis (input hash, study, settings, left-out
+	// sonications and figures), or says it is not signed off for these
+	// settings and what differs from the last one.
+	SignOffs []review.SignOff
+	// Study is the StudyInstanceUID of the study analysed ("" unknown),
+	// which a sign-off must name too.
+	Study string
 }
 
 // DeidentifiedLabel returns the neutral label a de-identified report shows
@@ -49,10 +56,15 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 		Deidentified: opt.Deidentify,
 		ReviewDate:   opt.ReviewDate,
 		Reviewer:     opt.Reviewer,
-		SignOff:      opt.SignOff,
 		InputsSHA256: opt.InputsSHA256,
 		Software:     "dosecover " + dosemap.Version,
 		Cautions:     nil, // DefaultCautions
+	}
+	if st := review.SignOffFor(opt.SignOffs, opt.InputsSHA256, opt.Study, r); st.Last != nil {
+		in.SignOff = st.Line(opt.Deidentify)
+		if st.Valid != nil {
+			in.SignOffComment = hide(st.Valid.Comment, c, opt.Deidentify)
+		}
 	}
 	if in.ReviewDate.IsZero() {
 		in.ReviewDate = time.Now().UTC().Truncate(time.Second)
@@ -269,15 +281,33 @@ func methods(c *dosemap.Case, r *review.Result, opt Options) []Setting {
 	var ms []Setting
 	switch strings.ToLower(r.Model) {
 	case "arrhenius":
-		a := dosemap.DefaultArrhenius()
-		ms = append(ms, Setting{"Dose model", fmt.Sprintf("Arrhenius (%s), A %.3g /s, Ea %.4g J/mol", a.Tissue, a.A, a.Ea)})
+		a := r.Settings.Arrhenius
+		if a.A == 0 || a.Ea == 0 {
+			a = dosemap.DefaultArrhenius()
+		}
+		tissue := a.Tissue
+		if tissue == "" {
+			tissue = "parameters given"
+		}
+		ms = append(ms, Setting{"Dose model", fmt.Sprintf("Arrhenius (%s), A %.4g /s, Ea %.5g J/mol", tissue, a.A, a.Ea)})
 	default:
-		m := dosemap.DefaultCEM43()
+		// The parameters the analysis used; zero fields take the
+		// Sapareto-Dewey defaults, as the dose engine does.
+		m, d := r.Settings.CEM43, dosemap.DefaultCEM43()
+		if m.Break == 0 {
+			m.Break = d.Break
+		}
+		if m.RAbove == 0 {
+			m.RAbove = d.RAbove
+		}
+		if m.RBelow == 0 {
+			m.RBelow = d.RBelow
+		}
 		rule := "trapezoid rule"
 		if m.Rule == dosemap.RuleRectangle {
 			rule = "rectangle rule"
 		}
-		ms = append(ms, Setting{"Dose model", fmt.Sprintf("CEM43, R %.2g at or above / %.2g below %.4g °C, %s", m.RAbove, m.RBelow, m.Break, rule)})
+		ms = append(ms, Setting{"Dose model", fmt.Sprintf("CEM43, R %.4g at or above / %.4g below %.4g °C, %s", m.RAbove, m.RBelow, m.Break, rule)})
 	}
 	measured := false
 	for _, so := range c.Sonications {

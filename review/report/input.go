@@ -19,7 +19,10 @@ type Input struct {
 	ScanDate     string    // date of the treatment images as shown (YYYY-MM-DD), "" when unknown or hidden
 	ReviewDate   time.Time // when the review was made
 	Reviewer     string    // who reviewed; "" when not given
-	SignOff      string    // sign-off statement or initials; "" when not signed off
+	SignOff      string    // sign-off state in words (see review.SignOffState.Line); "" when not signed off
+	// SignOffComment is the comment of the sign-off that applies to this
+	// analysis ("" when none applies or it has no comment).
+	SignOffComment string
 
 	Facts Facts
 

@@ -135,14 +135,6 @@ func (p pen) box(x, y, w, h vg.Length) vg.Path {
 	return path
 }
 
-// frame strokes the rectangle outline.
-func (p pen) frame(x, y, w, h, lw vg.Length, clr color.Color) {
-	p.c.SetColor(clr)
-	p.c.SetLineWidth(lw)
-	p.c.SetLineDash(nil, 0)
-	p.c.Stroke(p.box(x, y, w, h))
-}
-
 // line strokes a straight segment.
 func (p pen) line(x0, y0, x1, y1, lw vg.Length, clr color.Color, dash []vg.Length) {
 	p.c.SetColor(clr)
@@ -175,13 +167,55 @@ func (p pen) heading(x, y, w vg.Length, s string) vg.Length {
 	return y + 3
 }
 
-// Render draws the report page of in onto c, which must be PageWidth ×
-// PageHeight. It is the single layout used by RenderPNG and RenderPDF.
-func Render(c vg.Canvas, in *Input) error {
+// Render draws the first report page of in onto c, which must be
+// PageWidth × PageHeight. It is the single layout used by RenderPNG and
+// RenderPDF; see RenderPage for the pages after it.
+func Render(c vg.Canvas, in *Input) error { return RenderPage(c, in, 1) }
+
+// Pages returns the number of pages of the report of in: one, unless the
+// sonication table does not fit on it; it then continues on further pages
+// (every sonication is listed).
+func Pages(in *Input) int {
+	if in == nil {
+		return 1
+	}
+	return len(pageStarts(in))
+}
+
+// pageStarts returns the first sonication row of every page.
+func pageStarts(in *Input) []int {
+	dry := pen{c: nopCanvas{}, h: PageHeight}
+	starts := []int{0}
+	next := drawFirstPage(dry, in, 0)
+	for next < len(in.Sonications) && len(starts) < 1000 {
+		starts = append(starts, next)
+		next = drawLaterPage(dry, in, next, len(starts), 0)
+	}
+	return starts
+}
+
+// RenderPage draws page n (1-based, up to Pages) of the report of in onto
+// c, which must be PageWidth × PageHeight.
+func RenderPage(c vg.Canvas, in *Input, n int) error {
 	if in == nil {
 		return fmt.Errorf("report: no input")
 	}
+	starts := pageStarts(in)
+	if n < 1 || n > len(starts) {
+		return fmt.Errorf("report: page %d of %d", n, len(starts))
+	}
 	p := pen{c: c, h: PageHeight}
+	if n == 1 {
+		drawFirstPage(p, in, len(starts))
+		return nil
+	}
+	drawLaterPage(p, in, starts[n-1], n, len(starts))
+	return nil
+}
+
+// drawFirstPage draws the first page for a report of pages pages (0 while
+// counting them) and returns the first sonication row it did not show.
+func drawFirstPage(p pen, in *Input, pages int) int {
 	p.rect(0, 0, PageWidth, PageHeight, color.White)
 	x0 := margin
 	w := PageWidth - 2*margin
@@ -200,11 +234,25 @@ func Render(c vg.Canvas, in *Input) error {
 	dry := pen{c: nopCanvas{}, h: PageHeight}
 	methodsH := drawMethods(dry, in, x0, 0, w)
 	footTop := PageHeight - margin - footHeight(in, w)
-	y = drawTables(p, in, x0, y, w, footTop-gap-methodsH-gap)
+	y, next := drawTables(p, in, x0, y, w, footTop-gap-methodsH-gap, pages)
 	y += gap
 	y = drawMethods(p, in, x0, y, w)
-	drawFoot(p, in, x0, y+gap, w)
-	return nil
+	drawFoot(p, in, x0, y+gap, w, 1, pages)
+	return next
+}
+
+// drawLaterPage draws page page of pages: the header, the sonication
+// table from row from on, and the cautions. It returns the first row it
+// did not show.
+func drawLaterPage(p pen, in *Input, from, page, pages int) int {
+	p.rect(0, 0, PageWidth, PageHeight, color.White)
+	x0 := margin
+	w := PageWidth - 2*margin
+	y := drawHeader(p, in, x0, margin, w) + gap
+	footTop := PageHeight - margin - footHeight(in, w)
+	y, next := drawSonications(p, in, x0, y, w, footTop-gap, from, page, pages)
+	drawFoot(p, in, x0, y+gap, w, page, pages)
+	return next
 }
 
 // nopCanvas is a vg.Canvas that draws nothing, for measuring a block.
@@ -262,8 +310,24 @@ func drawHeader(p pen, in *Input, x, y, w vg.Length) vg.Length {
 	if so == "" {
 		so = "not signed off"
 	}
-	parts = append(parts, "Sign-off: "+so)
 	y = p.text(x, y, fb, colInk, strings.Join(parts, "    "))
+	y = p.para(x, y, w, fb, colInk, "Sign-off: "+so)
+	if in.SignOffComment != "" {
+		y = p.para(x, y, w, fb, colInk, "Sign-off comment: "+in.SignOffComment)
+	}
+	var left []string
+	for _, s := range in.Sonications {
+		if s.Excluded {
+			left = append(left, fmt.Sprint(s.Number))
+		}
+	}
+	if len(left) > 0 {
+		what := "sonication " + left[0]
+		if len(left) > 1 {
+			what = "sonications " + strings.Join(left, ", ")
+		}
+		y = p.para(x, y, w, sans(bodySize, true), colInk, "Left out of the cumulative dose by the reviewer: "+what)
+	}
 	y += 2
 	// Short caution strip under the header; the full text is at the foot.
 	fs := sans(smallSize, true)
@@ -317,15 +381,15 @@ func factLines(in *Input) (left, right [][2]string) {
 	}
 	band := "not computed"
 	if !math.IsNaN(f.CoveredLow) && !math.IsNaN(f.CoveredHigh) {
-		band = pct(f.CoveredLow) + " to " + pct(f.CoveredHigh)
+		band = pct(f.CoveredLow) + " to " + pct(f.CoveredHigh) + " of the monitored part"
 		if f.BandLabel != "" {
 			band += " (" + f.BandLabel + ")"
 		}
 	}
 	left = append(left,
-		[2]string{"Covered (" + target + ")", pct(f.Covered) + " of the monitored part of " + num(f.TargetVolumeML, 2) + " mL"},
+		[2]string{"Covered (" + target + ")", pct(f.Covered) + " of the monitored part; " + pct(f.CoveredOfTarget) + " of the whole target of " + num(f.TargetVolumeML, 2) + " mL"},
 		[2]string{"Uncertainty band", band},
-		[2]string{"Not monitored", pct(f.NotMonitored) + " of the target; covered of whole target " + pct(f.CoveredOfTarget)},
+		[2]string{"Not monitored", pct(f.NotMonitored) + " of the target (no valid thermometry)"},
 		[2]string{"D98 / D50 / D2", dose(f.D98) + " / " + dose(f.D50) + " / " + dose(f.D2) + " " + unit},
 		[2]string{"Threshold, margin", dose(f.Threshold) + " " + unit + ", " + num(f.MarginMM, 1) + " mm"},
 	)
@@ -401,16 +465,22 @@ func drawFacts(p pen, in *Input, x, y, w vg.Length) vg.Length {
 	left, right := factLines(in)
 	fl := sans(bodySize, false)
 	fv := sans(bodySize, true)
-	// The headline figure: big, at the left.
-	fb := sans(22, true)
+	// The headline figures, big, at the left: the covered part of the
+	// monitored target and of the whole target, each labelled.
+	fb := sans(18, true)
+	fs := sans(smallSize, false)
 	p.text(x, y, fb, colInk, pct(in.Facts.Covered))
-	bw := fb.Width("100.0 %") + 10
-	yb := p.text(x, y+fb.Extents().Height, sans(smallSize, false), colFaint, "of the monitored target")
-	p.text(x, yb, sans(smallSize, false), colFaint, "at or above the threshold")
+	bw := fb.Width("100.0 %") + 12
+	yb := p.text(x, y+fb.Extents().Height, fs, colFaint, "covered, of the")
+	yb = p.text(x, yb, fs, colFaint, "monitored part")
+	yb += 2
+	p.text(x, yb, fb, colInk, pct(in.Facts.CoveredOfTarget))
+	yb = p.text(x, yb+fb.Extents().Height, fs, colFaint, "covered, of the")
+	yb = p.text(x, yb, fs, colFaint, "whole target")
 	lw := (w - bw - gap) * 0.47
 	yl := p.kv(x+bw, y, lw, fl, fv, left)
 	yr := p.kv(x+bw+lw+gap, y, w-bw-gap-lw, fl, fv, right)
-	return max(yl, yr)
+	return max(yl, yr, yb)
 }
 
 func drawPanels(p pen, in *Input, x, y, w vg.Length) vg.Length {
@@ -632,20 +702,28 @@ func drawPlots(p pen, in *Input, x, y, w vg.Length) vg.Length {
 // drawTables draws the sonication table and the quality summary side by
 // side, keeping both above bottom: rows and notes that do not fit are
 // counted in a last line instead (the metrics files hold them all).
-func drawTables(p pen, in *Input, x, y, w, bottom vg.Length) vg.Length {
+func drawTables(p pen, in *Input, x, y, w, bottom vg.Length, pages int) (vg.Length, int) {
 	tw := w * 0.64
 	qx := x + tw + gap
 	qw := w - tw - gap
-	yt := drawSonications(p, in, x, y, tw, bottom)
+	yt, next := drawSonications(p, in, x, y, tw, bottom, 0, 1, pages)
 	yq := drawQuality(p, in, qx, y, qw, bottom)
-	return vg.Length(math.Max(float64(yt), float64(yq)))
+	return vg.Length(math.Max(float64(yt), float64(yq))), next
 }
 
 // minRows is the number of sonication rows shown however full the page.
 const minRows = 4
 
-func drawSonications(p pen, in *Input, x, y, w, bottom vg.Length) vg.Length {
-	y = p.heading(x, y, w, "Sonications")
+// drawSonications draws the sonication table from row from on, as many
+// rows as fit above bottom (at least minRows); when rows are left, its last
+// line says which page of pages they continue on. It returns the y below
+// the table and the first row not shown.
+func drawSonications(p pen, in *Input, x, y, w, bottom vg.Length, from, page, pages int) (vg.Length, int) {
+	title := "Sonications"
+	if page > 1 {
+		title = fmt.Sprintf("Sonications (continued from page %d)", page-1)
+	}
+	y = p.heading(x, y, w, title)
 	fh := sans(smallSize, true)
 	fb := sans(smallSize, false)
 	cols := []struct {
@@ -673,23 +751,29 @@ func drawSonications(p pen, in *Input, x, y, w, bottom vg.Length) vg.Length {
 	}
 	y += fh.Extents().Height + 1
 	if len(in.Sonications) == 0 {
-		return p.text(x, y, fb, colFaint, "no sonications")
+		return p.text(x, y, fb, colFaint, "no sonications"), 0
 	}
 	rh := fb.Extents().Height
 	rows := max(minRows, int((bottom-y)/rh))
-	for r, s := range in.Sonications {
-		if r == rows-1 && len(in.Sonications) > rows {
-			y = p.text(x, y, fb, colFaint, fmt.Sprintf("... %s in the metrics files", plural(len(in.Sonications)-r, "more sonication")))
-			break
+	for r := from; r < len(in.Sonications); r++ {
+		s := in.Sonications[r]
+		if r-from == rows-1 && len(in.Sonications)-from > rows {
+			total := "a further page"
+			if pages > 0 {
+				total = fmt.Sprintf("page %d of %d", page+1, pages)
+			}
+			y = p.text(x, y, sans(smallSize, true), colInk, fmt.Sprintf("Continued on %s: sonications %d to %d (%d more).",
+				total, s.Number, in.Sonications[len(in.Sonications)-1].Number, len(in.Sonications)-r))
+			return y, r
 		}
-		if r%2 == 1 {
+		if (r-from)%2 == 1 {
 			p.rect(x, y, w, rh, colShade)
 		}
 		clr := color.Color(colInk)
 		label := s.Label
 		if s.Excluded {
 			clr = colFaint
-			label = "(excluded) " + label
+			label = "(left out) " + label
 		}
 		cell(0, y, fb, clr, fmt.Sprintf("%d", s.Number))
 		cell(1, y, fb, clr, label)
@@ -701,7 +785,7 @@ func drawSonications(p pen, in *Input, x, y, w, bottom vg.Length) vg.Length {
 		cell(7, y, fb, clr, fmt.Sprintf("%d", s.Flagged))
 		y += rh
 	}
-	return y
+	return y, len(in.Sonications)
 }
 
 func drawQuality(p pen, in *Input, x, y, w, bottom vg.Length) vg.Length {
@@ -783,7 +867,7 @@ func footHeight(in *Input, w vg.Length) vg.Length {
 	return fb.Extents().Height + vg.Length(len(footLines(in, w)))*f.Extents().Height + 6
 }
 
-func drawFoot(p pen, in *Input, x, y, w vg.Length) {
+func drawFoot(p pen, in *Input, x, y, w vg.Length, page, pages int) {
 	f := sans(smallSize, false)
 	fb := sans(smallSize, true)
 	lines := footLines(in, w)
@@ -795,6 +879,9 @@ func drawFoot(p pen, in *Input, x, y, w vg.Length) {
 	p.rect(x, y, w, h, colShade)
 	p.rect(x, y, 2, h, colAccent)
 	yy := p.text(x+6, y+3, fb, colInk, "Cautions")
+	if pages > 1 {
+		p.textRight(x+w-6, y+3, fb, colInk, fmt.Sprintf("page %d of %d", page, pages))
+	}
 	for _, l := range lines {
 		yy = p.text(x+6, yy, f, colInk, l)
 	}

@@ -130,6 +130,7 @@ type MetricsDocument struct {
 	ReviewDate    string          `json:"review_date,omitempty"` // RFC 3339, UTC
 	Reviewer      string          `json:"reviewer,omitempty"`
 	SignOff       string          `json:"sign_off,omitempty"`
+	SignOffNote   string          `json:"sign_off_comment,omitempty"`
 	InputsSHA256  string          `json:"inputs_sha256,omitempty"`
 	DoseUnit      string          `json:"dose_unit"`
 	Settings      []Setting       `json:"settings"`
@@ -179,7 +180,7 @@ func (in *Input) Document() *MetricsDocument {
 	d := &MetricsDocument{
 		Schema: SchemaName, SchemaVersion: SchemaVersion,
 		Software: in.Software, Case: in.CaseLabel, Deidentified: in.Deidentified,
-		ScanDate: in.ScanDate, Reviewer: in.Reviewer, SignOff: in.SignOff,
+		ScanDate: in.ScanDate, Reviewer: in.Reviewer, SignOff: in.SignOff, SignOffNote: in.SignOffComment,
 		InputsSHA256: in.InputsSHA256, DoseUnit: doseUnit(in),
 		Settings: append([]Setting{}, in.Methods...),
 		Metrics:  in.Metrics(),

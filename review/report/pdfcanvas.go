@@ -47,6 +47,17 @@ func newPDFCanvas(w, h vg.Length) *pdfCanvas {
 
 func (c *pdfCanvas) unit(l vg.Length) float64 { return l.Dots(pdfDPI) }
 
+// newPage ends the current page and starts another one of the same size
+// with the same top-down transform.
+func (c *pdfCanvas) newPage() {
+	c.Pop()
+	c.doc.AddPage()
+	c.stack = []float64{1}
+	c.Push()
+	c.Translate(vg.Point{X: 0, Y: c.h})
+	c.Scale(1, -1)
+}
+
 // Size returns the page size.
 func (c *pdfCanvas) Size() (w, h vg.Length) { return c.w, c.h }
 

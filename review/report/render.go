@@ -8,6 +8,8 @@ import (
 	"image"
 	"image/png"
 	"io"
+	"path/filepath"
+	"strings"
 	"time"
 
 	"gonum.org/v1/plot/vg/vgimg"
@@ -17,23 +19,46 @@ import (
 // 150 dpi prints legibly on A4 (1240 × 1754 pixels).
 const DefaultDPI = 150
 
-// RenderImage draws the report page at dpi (at least 72) and returns it.
+// RenderImage draws the first report page at dpi (at least 72) and
+// returns it.
 func RenderImage(in *Input, dpi int) (image.Image, error) {
+	return RenderPageImage(in, 1, dpi)
+}
+
+// RenderPageImage draws page n (see Pages) of the report at dpi (at least
+// 72) and returns it.
+func RenderPageImage(in *Input, n, dpi int) (image.Image, error) {
 	if dpi < 72 {
 		return nil, fmt.Errorf("report: resolution %d dpi is below 72", dpi)
 	}
 	c := vgimg.NewWith(vgimg.UseWH(PageWidth, PageHeight), vgimg.UseDPI(dpi))
-	if err := Render(c, in); err != nil {
+	if err := RenderPage(c, in, n); err != nil {
 		return nil, err
 	}
 	return c.Image(), nil
+}
+
+// PagePNG returns the path of the PNG of page n of a report whose first
+// page is written to first: first itself for page 1, else first with
+// "-page2" (and so on) before its extension.
+func PagePNG(first string, n int) string {
+	if n <= 1 {
+		return first
+	}
+	ext := filepath.Ext(first)
+	return fmt.Sprintf("%s-page%d%s", strings.TrimSuffix(first, ext), n, ext)
 }
 
 // RenderPNG writes the report page as a PNG at dpi. The PNG carries the
 // title, the case label and the software as tEXt chunks (PNG 1.2, section
 // 4.2.3.1) and its resolution as a pHYs chunk (section 4.2.4.4).
 func RenderPNG(w io.Writer, in *Input, dpi int) error {
-	img, err := RenderImage(in, dpi)
+	return renderPNGPage(w, in, 1, dpi)
+}
+
+// renderPNGPage writes page n of the report as a PNG (see RenderPNG).
+func renderPNGPage(w io.Writer, in *Input, n, dpi int) error {
+	img, err := RenderPageImage(in, n, dpi)
 	if err != nil {
 		return err
 	}
@@ -51,7 +76,7 @@ func RenderPNG(w io.Writer, in *Input, dpi int) error {
 		created = in.ReviewDate.UTC().Format(time.RFC1123) // PNG 1.2, 11.3.4.2: RFC 1123 form
 	}
 	out, err := addPNGChunks(buf.Bytes(), dpi, [][2]string{
-		{"Title", title + " - " + in.CaseLabel},
+		{"Title", title + " - " + in.CaseLabel + pageNote(in, n)},
 		{"Software", in.Software},
 		{"Creation Time", created},
 		{"Disclaimer", "For retrospective review, QA and teaching; not a planning or treatment system."},
@@ -61,6 +86,14 @@ func RenderPNG(w io.Writer, in *Input, dpi int) error {
 	}
 	_, err = w.Write(out)
 	return err
+}
+
+// pageNote returns ", page n of N" for a report of several pages.
+func pageNote(in *Input, n int) string {
+	if p := Pages(in); p > 1 {
+		return fmt.Sprintf(", page %d of %d", n, p)
+	}
+	return ""
 }
 
 // addPNGChunks inserts pHYs and tEXt chunks after the IHDR chunk of an
@@ -114,8 +147,13 @@ func addPNGChunks(data []byte, dpi int, texts [][2]string) ([]byte, error) {
 // embedded as PNG. The document's creation date is the review date.
 func RenderPDF(w io.Writer, in *Input) error {
 	c := newPDFCanvas(PageWidth, PageHeight)
-	if err := Render(c, in); err != nil {
-		return err
+	for n := 1; n <= Pages(in); n++ {
+		if n > 1 {
+			c.newPage()
+		}
+		if err := RenderPage(c, in, n); err != nil {
+			return err
+		}
 	}
 	title := in.Title
 	if title == "" {

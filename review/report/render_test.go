@@ -244,9 +244,10 @@ func blockMean(img image.Image, x0, y0, n int) float64 {
 }
 
 // TestLayoutFitsLongCase renders a case with far more sonications and
-// quality notes than the page holds: every text stays inside the page
-// margins, the cautions are drawn once, and the rows and notes left out
-// are counted.
+// quality notes than one page holds: every text stays inside the page
+// margins, the cautions are drawn once per page, the table continues on
+// page 2 of 2 (saying so on page 1) with every sonication listed once, and
+// the notes left out are counted.
 func TestLayoutFitsLongCase(t *testing.T) {
 	in := sampleInput()
 	for n := len(in.Sonications) + 1; n <= 40; n++ {
@@ -255,45 +256,65 @@ func TestLayoutFitsLongCase(t *testing.T) {
 	for n := 0; n < 25; n++ {
 		in.Quality.Notes = append(in.Quality.Notes, fmt.Sprintf("sonication %d frame 4: motion: magnitude correlation with baseline 0.80 below 0.90, frame left out of the dose", n+1))
 	}
-	rec := &recorder.Canvas{}
-	if err := Render(rec, in); err != nil {
-		t.Fatal(err)
+	if Pages(in) != 2 {
+		t.Fatalf("%d pages, want 2", Pages(in))
 	}
-	var cautions, moreRows, moreNotes int
-	// Text drawn in a transformed frame (the plots' rotated axis labels)
-	// has frame coordinates: follow transforms through Push and Pop.
-	transformed := []bool{false}
-	for _, a := range rec.Actions {
-		top := len(transformed) - 1
-		switch a.(type) {
-		case *recorder.Push:
-			transformed = append(transformed, transformed[top])
-			continue
-		case *recorder.Pop:
-			transformed = transformed[:top]
-			continue
-		case *recorder.Rotate, *recorder.Translate, *recorder.Scale:
-			transformed[top] = true
-			continue
+	labels := map[string]int{}
+	for page := 1; page <= 2; page++ {
+		rec := &recorder.Canvas{}
+		if err := RenderPage(rec, in, page); err != nil {
+			t.Fatal(err)
 		}
-		fs, ok := a.(*recorder.FillString)
-		if !ok || transformed[top] {
-			continue
+		var cautions, continued, pageMark, moreNotes int
+		// Text drawn in a transformed frame (the plots' rotated axis labels)
+		// has frame coordinates: follow transforms through Push and Pop.
+		transformed := []bool{false}
+		for _, a := range rec.Actions {
+			top := len(transformed) - 1
+			switch a.(type) {
+			case *recorder.Push:
+				transformed = append(transformed, transformed[top])
+				continue
+			case *recorder.Pop:
+				transformed = transformed[:top]
+				continue
+			case *recorder.Rotate, *recorder.Translate, *recorder.Scale:
+				transformed[top] = true
+				continue
+			}
+			fs, ok := a.(*recorder.FillString)
+			if !ok || transformed[top] {
+				continue
+			}
+			// Baselines between the bottom margin and the top margin (A4, 12 mm).
+			if fs.Point.Y < margin || fs.Point.Y > PageHeight-margin || fs.Point.X < margin-1 || fs.Point.X > PageWidth-margin {
+				t.Errorf("page %d: text %q at %v lies outside the page margins", page, fs.String, fs.Point)
+			}
+			switch {
+			case fs.String == "Cautions":
+				cautions++
+			case strings.HasPrefix(fs.String, "Continued on page 2 of 2:"):
+				continued++
+			case fs.String == fmt.Sprintf("page %d of 2", page):
+				pageMark++
+			case strings.HasPrefix(fs.String, "... ") && strings.Contains(fs.String, "more notes"):
+				moreNotes++
+			case strings.HasPrefix(strings.TrimPrefix(fs.String, "(left out) "), "sonication "):
+				labels[strings.TrimPrefix(fs.String, "(left out) ")]++
+			}
 		}
-		// Baselines between the bottom margin and the top margin (A4, 12 mm).
-		if fs.Point.Y < margin || fs.Point.Y > PageHeight-margin || fs.Point.X < margin-1 || fs.Point.X > PageWidth-margin {
-			t.Errorf("text %q at %v lies outside the page margins", fs.String, fs.Point)
+		wantCont, wantNotes := 1, 1
+		if page == 2 {
+			wantCont, wantNotes = 0, 0
 		}
-		switch {
-		case fs.String == "Cautions":
-			cautions++
-		case strings.HasPrefix(fs.String, "... ") && strings.Contains(fs.String, "more sonications"):
-			moreRows++
-		case strings.HasPrefix(fs.String, "... ") && strings.Contains(fs.String, "more notes"):
-			moreNotes++
+		if cautions != 1 || continued != wantCont || pageMark != 1 || moreNotes != wantNotes {
+			t.Errorf("page %d: cautions drawn %d times, continuation line %d, page mark %d, note count line %d; want 1, %d, 1, %d",
+				page, cautions, continued, pageMark, moreNotes, wantCont, wantNotes)
 		}
 	}
-	if cautions != 1 || moreRows != 1 || moreNotes != 1 {
-		t.Errorf("cautions drawn %d times, row count line %d, note count line %d; want 1 each", cautions, moreRows, moreNotes)
+	for _, s := range in.Sonications {
+		if labels[s.Label] != 1 {
+			t.Errorf("%q listed %d times over the two pages, want once", s.Label, labels[s.Label])
+		}
 	}
 }

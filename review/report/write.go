@@ -13,7 +13,8 @@ type Outputs struct {
 	DPI                 int // PNG resolution; 0 means DefaultDPI
 }
 
-// Write renders in to every file named in out. It first refuses any target
+// Write renders in to every file named in out (a report of several pages
+// writes one PNG per page, see PagePNG, and one PDF of all pages). It first refuses any target
 // inside caseDir (the folder the case was read from; "" skips the check),
 // then writes each file atomically. The error names the file.
 func Write(in *Input, caseDir string, out Outputs) error {
@@ -27,7 +28,11 @@ func Write(in *Input, caseDir string, out Outputs) error {
 	}
 	var jobs []job
 	if out.PNG != "" {
-		jobs = append(jobs, job{out.PNG, func(w io.Writer) error { return RenderPNG(w, in, dpi) }})
+		// One PNG per page: the first at out.PNG, the others beside it
+		// (PagePNG).
+		for n := 1; n <= Pages(in); n++ {
+			jobs = append(jobs, job{PagePNG(out.PNG, n), func(w io.Writer) error { return renderPNGPage(w, in, n, dpi) }})
+		}
 	}
 	if out.PDF != "" {
 		jobs = append(jobs, job{out.PDF, func(w io.Writer) error { return RenderPDF(w, in) }})

@@ -354,16 +354,6 @@ type regionField struct {
 	outlines []Polyline
 }
 
-// at returns the field bilinearly interpolated at plane pixel coordinate
-// (x, y); 0 outside the box.
-func (rf *regionField) at(x, y float64) float64 {
-	v := bilinear(rf.field, rf.box.Dx(), rf.box.Dy(), x-float64(rf.box.Min.X), y-float64(rf.box.Min.Y))
-	if v != v {
-		return 0
-	}
-	return v
-}
-
 // newRegionField evaluates r on p.
 func newRegionField(p Plane, r Region) *regionField {
 	rf := &regionField{}

@@ -657,22 +657,6 @@ func crossHatch(x, y int) float64 {
 	return 0
 }
 
-// bilinear interpolates a w×h field at continuous pixel coordinate (x, y)
-// with half a pixel of edge extension; NaN farther out.
-func bilinear(f []float32, w, h int, x, y float64) float64 {
-	if x < -0.5 || y < -0.5 || x > float64(w)-0.5 || y > float64(h)-0.5 {
-		return math.NaN()
-	}
-	xc := math.Max(0, math.Min(float64(w-1), x))
-	yc := math.Max(0, math.Min(float64(h-1), y))
-	x0, fx := splitf(xc, w)
-	y0, fy := splitf(yc, h)
-	x1, y1 := min(x0+1, w-1), min(y0+1, h-1)
-	a := float64(f[y0*w+x0])*(1-fx) + float64(f[y0*w+x1])*fx
-	b := float64(f[y1*w+x0])*(1-fx) + float64(f[y1*w+x1])*fx
-	return a*(1-fy) + b*fy
-}
-
 // drawCrosshair draws a crosshair with an open centre at (x, y).
 func drawCrosshair(cv *canvas, x, y float64) {
 	const gap, arm = 5, 14
