@@ -247,8 +247,8 @@ type metricsPanel struct {
 	signed   *widget.Label
 	facts    *widget.Label
 	used     *widget.Label
-	holes    *widget.List
-	outside  *widget.List
+	holes    *fyne.Container // one row per region; no list of its own scrolls
+	outside  *fyne.Container
 	avoid    *widget.Label
 	quality  *widget.Label
 	dvh      *plotView
@@ -271,59 +271,17 @@ func newMetricsPanel(rw *reviewWindow) *metricsPanel {
 	m.hint = widget.NewLabel("Facts measured from the thermometry; the clinician decides what they mean.")
 	m.hint.Wrapping = fyne.TextWrapWord
 	m.hint.Importance = widget.LowImportance
-	regionList := func(get func() []region) *widget.List {
-		l := widget.NewList(
-			func() int { return len(get()) },
-			func() fyne.CanvasObject {
-				head := widget.NewLabelWithStyle("", fyne.TextAlignLeading, fyne.TextStyle{Bold: true})
-				detail := widget.NewLabel("")
-				detail.Truncation = fyne.TextTruncateEllipsis
-				return container.NewVBox(head, detail)
-			},
-			func(id widget.ListItemID, o fyne.CanvasObject) {
-				rs := get()
-				if id >= len(rs) {
-					return
-				}
-				r := rs[id]
-				box := o.(*fyne.Container)
-				box.Objects[0].(*widget.Label).SetText(fmt.Sprintf("%s   %.3f mL   at (%s, %s, %s) mm", r.Label, r.VolumeML,
-					fmtMM(r.Centre[0]), fmtMM(r.Centre[1]), fmtMM(r.Centre[2])))
-				box.Objects[1].(*widget.Label).SetText(r.Detail)
-			})
-		l.OnSelected = func(id widget.ListItemID) {
-			rs := get()
-			if id < len(rs) {
-				rw.jumpTo(rs[id])
-			}
-			l.UnselectAll()
-		}
-		return l
-	}
-	m.holes = regionList(func() []region {
-		if rw.result == nil {
-			return nil
-		}
-		return rw.result.HoleRows
-	})
-	m.outside = regionList(func() []region {
-		if rw.result == nil {
-			return nil
-		}
-		return rw.result.SpillRows
-	})
+	m.holes = container.NewVBox()
+	m.outside = container.NewVBox()
 	m.dvh = newPlotView()
 	m.coverage = newPlotView()
 	bold := func(s string) *widget.Label {
 		return widget.NewLabelWithStyle(s, fyne.TextAlignLeading, fyne.TextStyle{Bold: true})
 	}
-	listBox := func(l *widget.List) fyne.CanvasObject {
-		return container.NewGridWrap(fyne.NewSize(380, 150), l)
-	}
 	m.box = container.NewVBox(
 		bold("Coverage of the target"), m.facts,
-		bold("Holes in the target (click to show)"), listBox(m.holes),
-		bold("Lethal dose outside the margin (click to show)"), listBox(m.outside),
+		bold("Holes in the target (click to show)"), m.holes,
+		bold("Lethal dose outside the margin (click to show)"), m.outside,
 		bold("Avoid structures"), m.avoid,
 		bold("Thermometry quality"), m.quality,
 		bold("Settings used"), m.used,
@@ -356,8 +314,7 @@ func (m *metricsPanel) update() {
 		m.quality.SetText("")
 		m.dvh.set(nil)
 		m.coverage.set(nil)
-		m.holes.Refresh()
-		m.outside.Refresh()
+		m.holes.Objects, m.outside.Objects = nil, nil
 		m.box.Refresh()
 		return
 	}
@@ -405,9 +362,61 @@ func (m *metricsPanel) update() {
 	}
 	m.dvh.set(func() *plotPlot { return dvhPlot(r) })
 	m.coverage.set(func() *plotPlot { return coveragePlot(r) })
-	m.holes.Refresh()
-	m.outside.Refresh()
+	m.holes.Objects = m.regionRows(r.HoleRows, "hole")
+	m.outside.Objects = m.regionRows(r.SpillRows, "cluster")
 	m.box.Refresh()
+}
+
+// prefListMin holds the size (mm³) below which listed regions are summarised in
+// one line (a display setting; the analysis keeps them all).
+const prefListMin = "list_min_mm3"
+
+// regionRows lists the regions of at least the display size one per row
+// (a button that shows the region, and its details wrapped below) and
+// the smaller ones as one line.
+func (m *metricsPanel) regionRows(rs []region, what string) []fyne.CanvasObject {
+	if len(rs) == 0 {
+		return []fyne.CanvasObject{widget.NewLabel("None.")}
+	}
+	minMM3 := m.rw.app.Preferences().FloatWithFallback(prefListMin, 1)
+	var out []fyne.CanvasObject
+	small, smallML := 0, 0.0
+	for _, r := range rs {
+		if r.VolumeML*1000 < minMM3 {
+			small++
+			smallML += r.VolumeML
+			continue
+		}
+		r := r
+		head := widget.NewButton(fmt.Sprintf("%s   %s mL   at (%s, %s, %s) mm", r.Label, fmtML(r.VolumeML),
+			fmtMM(r.Centre[0]), fmtMM(r.Centre[1]), fmtMM(r.Centre[2])), func() { m.rw.jumpTo(r) })
+		head.Alignment = widget.ButtonAlignLeading
+		head.Importance = widget.LowImportance
+		detail := widget.NewLabel(r.Detail)
+		detail.Wrapping = fyne.TextWrapWord
+		out = append(out, head, detail)
+	}
+	if small > 0 {
+		plural := what + "s"
+		if small == 1 {
+			plural = what
+		}
+		lead := ""
+		if len(out) > 0 {
+			lead = "and "
+		}
+		out = append(out, widget.NewLabel(fmt.Sprintf("%s%d %s below %s mm³ (%s mL together)", lead, small, plural, fmtNum(minMM3), fmtML(smallML))))
+	}
+	return out
+}
+
+// fmtML prints a volume in mL with three decimals, never "-0.000".
+func fmtML(v float64) string {
+	s := fmt.Sprintf("%.3f", v)
+	if s == "-0.000" {
+		return "0.000"
+	}
+	return s
 }
 
 // fmtMM prints a coordinate in mm without a negative zero.

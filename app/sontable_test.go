@@ -10,6 +10,8 @@ import (
 	"time"
 
 	"dosecover/dosemap"
+
+	"fyne.io/fyne/v2/widget"
 )
 
 // TestSonicationTableAfterReanalysis follows the steps after which the
@@ -97,5 +99,31 @@ func TestExportNamesNeverOverwrite(t *testing.T) {
 		if !strings.HasPrefix(e.Name(), "Synthetic_phantom-dose-review-"+time.Now().Format("2006-01-02")) {
 			t.Errorf("export file %q lacks the case and the date", e.Name())
 		}
+	}
+}
+
+// TestSmallRegionsSummarised: holes below the display size are listed as
+// one line, the larger ones one by one; the analysis keeps them all.
+func TestSmallRegionsSummarised(t *testing.T) {
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	rs := []region{{Label: "H1", VolumeML: 0.25, Detail: "depth 2.0 mm"}, {Label: "H2", VolumeML: 0.0004}, {Label: "H3", VolumeML: 0.0009}}
+	rows := rw.metrics.regionRows(rs, "hole")
+	if len(rows) != 3 {
+		t.Fatalf("%d rows, want the large hole (title and details) and one summary line", len(rows))
+	}
+	if b, ok := rows[0].(*widget.Button); !ok || !strings.HasPrefix(b.Text, "H1   0.250 mL") {
+		t.Errorf("first row %#v", rows[0])
+	}
+	// 0.4 + 0.9 mm³ = 0.0013 mL (computed).
+	if l, ok := rows[2].(*widget.Label); !ok || l.Text != "and 2 holes below 1 mm³ (0.001 mL together)" {
+		t.Errorf("summary row %#v", rows[2])
+	}
+	rw.app.Preferences().SetFloat(prefListMin, 0.5)
+	if rows := rw.metrics.regionRows(rs, "hole"); len(rows) != 5 {
+		t.Errorf("with 0.5 mm³ %d rows, want two holes listed and one summarised", len(rows))
+	}
+	if rows := rw.metrics.regionRows(nil, "hole"); len(rows) != 1 || rows[0].(*widget.Label).Text != "None." {
+		t.Errorf("no hole: %v", rows)
 	}
 }

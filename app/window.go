@@ -511,17 +511,8 @@ func (rw *reviewWindow) describePoint(p dosemap.Vec3) string {
 }
 
 // fmtDose prints a dose with sensible precision over many decades.
-func fmtDose(d float64) string {
-	switch {
-	case d >= 1e5:
-		return fmt.Sprintf("%.3g", d)
-	case d >= 10:
-		return fmt.Sprintf("%.0f", d)
-	case d >= 0.01:
-		return fmt.Sprintf("%.2f", d)
-	}
-	return fmt.Sprintf("%.1g", d)
-}
+// It is the format of the colour bar and the legends (view.FormatDose).
+func fmtDose(d float64) string { return view.FormatDose(d) }
 
 // setBusy shows the progress bar and the cancel button while a job runs.
 func (rw *reviewWindow) setBusy(text string, frac float64) {

@@ -158,7 +158,7 @@ func TestClickHoleJumpsToSlice(t *testing.T) {
 	h := rw.result.HoleRows[0]
 	v := rw.viewers[0]
 	v.setSlice(0)
-	rw.metrics.holes.Select(0)
+	test.Tap(rw.metrics.holes.Objects[0].(*widget.Button))
 	// The acquisition plane is the anatomy stack: slices 2 mm apart from
 	// z = -14 mm.
 	want := int(math.Round((h.Centre[2] + 14) / 2))

@@ -39,3 +39,15 @@ func TestLegendTextContrast(t *testing.T) {
 		}
 	}
 }
+
+// TestFormatDose: one format for doses, no negative zero.
+func TestFormatDose(t *testing.T) {
+	for _, c := range []struct {
+		d    float64
+		want string
+	}{{0, "0"}, {math.Copysign(0, -1), "0"}, {0.0123, "0.012"}, {2.4, "2.4"}, {240, "240"}, {9724.4, "9724"}, {314159, "314159"}, {3.2e6, "3.2e+06"}, {math.NaN(), "—"}} {
+		if got := FormatDose(c.d); got != c.want {
+			t.Errorf("FormatDose(%g) = %q, want %q", c.d, got, c.want)
+		}
+	}
+}
