@@ -10,6 +10,7 @@ import (
 	"time"
 
 	"dosecover/dosemap"
+	"dosecover/review"
 
 	"fyne.io/fyne/v2/widget"
 )
@@ -125,5 +126,18 @@ func TestSmallRegionsSummarised(t *testing.T) {
 	}
 	if rows := rw.metrics.regionRows(nil, "hole"); len(rows) != 1 || rows[0].(*widget.Label).Text != "None." {
 		t.Errorf("no hole: %v", rows)
+	}
+}
+
+// TestDriftFlagInTable: a sonication whose removed drift exceeds the
+// limit gets a flag (not only a note) in the table.
+func TestDriftFlagInTable(t *testing.T) {
+	q := review.SonicationQuality{MaxDriftC: 1.4}
+	f, flagged := qualityFlags(q, 0, 0)
+	if !flagged || len(f) == 0 || !strings.Contains(f[0], "drift 1.40 °C removed, above 1 °C") {
+		t.Errorf("1.4 °C drift, default limit: flags %q, flagged %v", f, flagged)
+	}
+	if f, flagged := qualityFlags(q, 0, 2); flagged || !strings.Contains(strings.Join(f, ";"), "drift ≤ 1.40 °C") {
+		t.Errorf("1.4 °C drift, 2 °C limit: flags %q, flagged %v; want a note only", f, flagged)
 	}
 }

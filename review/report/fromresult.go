@@ -18,6 +18,9 @@ import (
 
 // Options are the parts of a report that do not come from the analysis.
 type Options struct {
+	// DriftFlagC is the removed drift, °C, above which a sonication is
+	// flagged; 0: review.DefaultDriftFlagC.
+	DriftFlagC   float64
 	Deidentify   bool      // hide identity: neutral case label, no scan date, generic sonication labels
 	Reviewer     string    // who reviewed ("" not given)
 	ReviewDate   time.Time // zero: now
@@ -137,7 +140,15 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 			PeakC: val(s.PeakTempC), PeakDose: s.PeakDose, LethalML: s.LethalAddedML,
 			AddedCoverage: s.AddedCoverage, OutsideML: s.OutsideAddedML,
 			Flagged: len(sq.FlaggedFrames), Excluded: s.Excluded,
+			DriftFlagged: sq.DriftFlagged(opt.DriftFlagC),
 		})
+		if sq.DriftFlagged(opt.DriftFlagC) {
+			q.DriftFlagged = append(q.DriftFlagged, s.Number)
+		}
+	}
+	q.DriftFlagC = opt.DriftFlagC
+	if !(q.DriftFlagC > 0) {
+		q.DriftFlagC = review.DefaultDriftFlagC
 	}
 	for _, sq := range r.Quality {
 		q.Frames += len(sq.Frames)

@@ -123,6 +123,7 @@ type SonicationRow struct {
 	AddedCoverage float64 // covered fraction of the monitored target it added
 	OutsideML     float64 // lethal volume outside the margin it added, mL
 	Flagged       int     // frames flagged by the quality checks
+	DriftFlagged  bool    // its removed drift exceeds Quality.DriftFlagC
 	Excluded      bool    // left out of the cumulative dose by the reviewer
 }
 
@@ -136,6 +137,10 @@ type Quality struct {
 	Wraps     int     // suspected phase wraps, summed over frames
 	Invalid   int     // voxel-frames invalidated (low signal, wraps), summed
 	Notes     []string
+	// DriftFlagged lists the sonications whose removed drift exceeds
+	// DriftFlagC °C.
+	DriftFlagged []int
+	DriftFlagC   float64
 }
 
 // Setting is one named line of the methods block.

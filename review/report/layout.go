@@ -782,7 +782,11 @@ func drawSonications(p pen, in *Input, x, y, w, bottom vg.Length, from, page, pa
 		cell(4, y, fb, clr, num(s.LethalML, 3))
 		cell(5, y, fb, clr, pct(s.AddedCoverage))
 		cell(6, y, fb, clr, num(s.OutsideML, 3))
-		cell(7, y, fb, clr, fmt.Sprintf("%d", s.Flagged))
+		flag := fmt.Sprintf("%d", s.Flagged)
+		if s.DriftFlagged {
+			flag = "drift, " + flag
+		}
+		cell(7, y, fb, clr, flag)
 		y += rh
 	}
 	return y, len(in.Sonications)
@@ -798,6 +802,7 @@ func drawQuality(p pen, in *Input, x, y, w, bottom vg.Length) vg.Length {
 		{"frames flagged", fmt.Sprintf("%d", q.Flagged)},
 		{"largest motion index", num(q.MaxMotion, 3) + " (1 − correlation)"},
 		{"largest drift", num(q.MaxDriftC, 2) + " °C"},
+		{fmt.Sprintf("drift above %g °C", q.DriftFlagC), driftList(q.DriftFlagged)},
 		{"lowest SNR", num(q.MinSNR, 0)},
 		{"suspected phase wraps", fmt.Sprintf("%d", q.Wraps)},
 		{"invalidated voxels", fmt.Sprintf("%d voxel-frames", q.Invalid)},
@@ -903,4 +908,20 @@ func plural(n int, thing string) string {
 		return "1 " + thing
 	}
 	return fmt.Sprintf("%d %ss", n, thing)
+}
+
+// driftList names the sonications flagged for drift: "none" or
+// "sonications 3, 5".
+func driftList(nums []int) string {
+	if len(nums) == 0 {
+		return "none"
+	}
+	parts := make([]string, len(nums))
+	for n, x := range nums {
+		parts[n] = fmt.Sprint(x)
+	}
+	if len(nums) == 1 {
+		return "sonication " + parts[0]
+	}
+	return "sonications " + strings.Join(parts, ", ")
 }
