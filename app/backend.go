@@ -84,6 +84,7 @@ type sonicationRow struct {
 	PeakDose      float64   // highest dose of this sonication alone, model unit
 	DoseAddedML   float64   // mL of tissue newly above the threshold
 	CoverageAdded float64   // fraction of the target newly covered
+	OutsideML     float64   // mL of lethal dose it added outside the margin
 	Flags         []string  // quality flags and notes, plain words
 	Flagged       bool      // a flag (not only notes) was raised
 }

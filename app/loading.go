@@ -288,6 +288,7 @@ func (rw *reviewWindow) caseLoaded(lc *loadedCase, hash string, nFiles int, rec 
 	}
 	rw.setViewGrid()
 	rw.metrics.update()
+	rw.sonOrder = nil
 	rw.sonTable.Refresh()
 	rw.setBusy(fmt.Sprintf("Read %d sonications, %d structures; %d files skipped.", len(c.Sonications), len(c.Structures), len(lc.Skipped)), -1)
 	if lc.NotReviewable != "" {
@@ -458,6 +459,7 @@ func (rw *reviewWindow) showResult(res *analysisResult) {
 		rw.frameTarget()
 	}
 	rw.metrics.update()
+	rw.sonOrder = nil
 	rw.sonTable.Refresh()
 	if rw.pinned != nil {
 		rw.pin(*rw.pinned)

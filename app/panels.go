@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"image/color"
 	"math"
+	"sort"
 	"strings"
 
 	"dosecover/dosemap"
@@ -124,7 +125,82 @@ var sonColumns = []struct {
 	width float32
 }{
 	{"use", 48}, {"no.", 40}, {"time", 62}, {"label", 190}, {"peak °C", 70}, {"peak dose", 90}, {"lethal added mL", 124},
-	{"coverage added", 118}, {"quality and notes", 560},
+	{"coverage added", 118}, {"outside margin added mL", 184}, {"quality and notes", 560},
+}
+
+// sonKey is the value column col sorts sonication rows by (the check box
+// column sorts by inclusion, the notes by their flags).
+func (rw *reviewWindow) sonKey(r sonicationRow, col int) float64 {
+	switch col {
+	case 0:
+		if excludedSet(rw.settings)[r.Number] {
+			return 1
+		}
+		return 0
+	case 2:
+		return r.Offset
+	case 4:
+		return r.PeakTemp
+	case 5:
+		return r.PeakDose
+	case 6:
+		return r.DoseAddedML
+	case 7:
+		return r.CoverageAdded
+	case 8:
+		return r.OutsideML
+	case 9:
+		if r.Flagged {
+			return 1
+		}
+		return 0
+	}
+	return float64(r.Number)
+}
+
+// sonIndex returns the index in the result's rows of table row n, in the
+// order the user chose by tapping a column header (delivery order first).
+func (rw *reviewWindow) sonIndex(n int) int {
+	rows := rw.result.SonRows
+	if len(rw.sonOrder) != len(rows) {
+		rw.sonOrder = make([]int, len(rows))
+		for i := range rows {
+			rw.sonOrder[i] = i
+		}
+		col, desc := rw.sonSort, rw.sonDesc
+		sort.SliceStable(rw.sonOrder, func(a, b int) bool {
+			if col == 3 {
+				x, y := rows[rw.sonOrder[a]].Label, rows[rw.sonOrder[b]].Label
+				return x < y != desc && x != y
+			}
+			x, y := rw.sonKey(rows[rw.sonOrder[a]], col), rw.sonKey(rows[rw.sonOrder[b]], col)
+			// Unknown values (NaN) go last either way.
+			if math.IsNaN(x) || math.IsNaN(y) {
+				return !math.IsNaN(x) && math.IsNaN(y)
+			}
+			if desc {
+				return x > y
+			}
+			return x < y
+		})
+	}
+	if n < 0 || n >= len(rw.sonOrder) {
+		return n
+	}
+	return rw.sonOrder[n]
+}
+
+// sortSonications orders the table by column col; tapping the same
+// column again reverses the order.
+func (rw *reviewWindow) sortSonications(col int) {
+	if rw.sonSort == col {
+		rw.sonDesc = !rw.sonDesc
+	} else {
+		rw.sonSort, rw.sonDesc = col, false
+	}
+	rw.sonOrder = nil
+	rw.sonTable.UnselectAll()
+	rw.sonTable.Refresh()
 }
 
 func (rw *reviewWindow) newSonicationTable() *widget.Table {
@@ -147,7 +223,7 @@ func (rw *reviewWindow) newSonicationTable() *widget.Table {
 			if rw.result == nil || id.Row >= len(rw.result.SonRows) {
 				return
 			}
-			row := rw.result.SonRows[id.Row]
+			row := rw.result.SonRows[rw.sonIndex(id.Row)]
 			if id.Col == 0 {
 				l.Hide()
 				chk.Show()
@@ -184,6 +260,8 @@ func (rw *reviewWindow) newSonicationTable() *widget.Table {
 			case 7:
 				l.SetText(fmtOpt(100*row.CoverageAdded, "%.1f %%"))
 			case 8:
+				l.SetText(fmtOpt(row.OutsideML, "%.3f"))
+			case 9:
 				if excludedSet(rw.settings)[row.Number] {
 					l.Importance = widget.LowImportance
 					l.SetText("left out of the cumulative dose")
@@ -201,14 +279,24 @@ func (rw *reviewWindow) newSonicationTable() *widget.Table {
 			}
 		})
 	t.CreateHeader = func() fyne.CanvasObject {
-		return widget.NewLabelWithStyle("", fyne.TextAlignLeading, fyne.TextStyle{Bold: true})
+		b := widget.NewButton("", nil)
+		b.Alignment = widget.ButtonAlignLeading
+		b.Importance = widget.LowImportance
+		return b
 	}
 	t.UpdateHeader = func(id widget.TableCellID, o fyne.CanvasObject) {
-		l := o.(*widget.Label)
+		b := o.(*widget.Button)
 		if id.Row < 0 && id.Col >= 0 {
-			l.SetText(sonColumns[id.Col].title)
+			title := sonColumns[id.Col].title
+			if id.Col == rw.sonSort {
+				title += [2]string{" ▲", " ▼"}[btoi(rw.sonDesc)]
+			}
+			b.SetText(title)
+			col := id.Col
+			b.OnTapped = func() { rw.sortSonications(col) }
 		} else {
-			l.SetText("")
+			b.SetText("")
+			b.OnTapped = nil
 		}
 	}
 	t.ShowHeaderColumn = false
@@ -216,8 +304,8 @@ func (rw *reviewWindow) newSonicationTable() *widget.Table {
 		t.SetColumnWidth(n, c.width)
 	}
 	t.OnSelected = func(id widget.TableCellID) {
-		if id.Row >= 0 && id.Col > 0 {
-			rw.selectSonication(id.Row)
+		if id.Row >= 0 && id.Col > 0 && rw.result != nil {
+			rw.selectSonication(rw.sonIndex(id.Row))
 		}
 	}
 	return t
@@ -499,4 +587,11 @@ func (rw *reviewWindow) signOffText() string {
 		b = append(b, line)
 	}
 	return strings.Join(b, "\n")
+}
+
+func btoi(b bool) int {
+	if b {
+		return 1
+	}
+	return 0
 }

@@ -141,3 +141,39 @@ func TestDriftFlagInTable(t *testing.T) {
 		t.Errorf("1.4 °C drift, 2 °C limit: flags %q, flagged %v; want a note only", f, flagged)
 	}
 }
+
+// TestSortSonications: tapping a column header sorts the table by it,
+// tapping again reverses; selecting a row shows the sonication listed
+// there; the lethal volume each added outside the margin is a column.
+func TestSortSonications(t *testing.T) {
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	rows := rw.result.SonRows
+	doseOf := func(n int) float64 { return rows[rw.sonIndex(n)].PeakDose }
+	rw.sortSonications(5) // peak dose
+	for n := 1; n < len(rows); n++ {
+		if doseOf(n-1) > doseOf(n) {
+			t.Fatalf("ascending by peak dose: row %d %g before row %d %g", n-1, doseOf(n-1), n, doseOf(n))
+		}
+	}
+	rw.sortSonications(5)
+	for n := 1; n < len(rows); n++ {
+		if doseOf(n-1) < doseOf(n) {
+			t.Fatalf("descending by peak dose: row %d %g before row %d %g", n-1, doseOf(n-1), n, doseOf(n))
+		}
+	}
+	rw.sonTable.Select(widget.TableCellID{Row: 0, Col: 1})
+	if rw.selected != rw.sonIndex(0) {
+		t.Errorf("selected result row %d, want %d (the first row as sorted)", rw.selected, rw.sonIndex(0))
+	}
+	// Sonication 3 lands 16 mm behind the target, beyond the 3 mm margin:
+	// all lethal dose outside the margin is its own.
+	if got, want := rows[2].OutsideML, rw.result.OutsideMarginLethalML; got <= 0 || got > want+1e-9 {
+		t.Errorf("sonication 3 added %g mL outside the margin, the case %g mL", got, want)
+	}
+	rw.sortSonications(1)
+	rw.sortSonications(1)
+	if rw.sonIndex(0) != len(rows)-1 {
+		t.Errorf("descending by number: first row is result row %d", rw.sonIndex(0))
+	}
+}

@@ -46,6 +46,12 @@ type reviewWindow struct {
 	jobGen     int
 	pendingDir string // the folder being opened
 	lastExport string // path stem of the last report export
+	// The sonication table's order: the column sorted by (1, the number,
+	// at first), descending or not, and the result row of each table row
+	// (nil: to be computed).
+	sonSort    int
+	sonDesc    bool
+	sonOrder   []int
 	probeGen   int
 	probeCurve *review.Probe
 	active     *sliceViewer
@@ -93,7 +99,7 @@ const (
 )
 
 func newReviewWindow(a fyne.App) *reviewWindow {
-	rw := &reviewWindow{app: a, selected: -1}
+	rw := &reviewWindow{app: a, selected: -1, sonSort: 1}
 	rw.win = a.NewWindow("dosecover")
 	rw.settings = loadPrefSettings(a.Preferences())
 	rw.teaching = a.Preferences().Bool(prefTeaching)
