@@ -27,6 +27,8 @@ type analysisFlags struct {
 	baseline, order    int
 	drift, rule        string
 	b0, te, phaseScale float64
+	carryOver          bool
+	residualWarn       float64
 }
 
 // addAnalysisFlags registers --settings and the options of the common
@@ -43,6 +45,8 @@ func addAnalysisFlags(fs *flag.FlagSet) *analysisFlags {
 	fs.IntVar(&a.trials, "trials", d.Trials, "Monte Carlo trials for the uncertainty band (0: none)")
 	fs.Uint64Var(&a.seed, "seed", d.Seed, "Monte Carlo seed")
 	fs.StringVar(&a.rule, "rule", d.CEM43.Rule.String(), "time integration of the dose: trapezoid or rectangle")
+	fs.BoolVar(&a.carryOver, "carry-over", d.CarryOver, "add the estimated heat left from earlier sonications to each sonication's temperatures before dose (the as-measured coverage is given beside)")
+	fs.Float64Var(&a.residualWarn, "residual-warn", d.ResidualWarnC, "warn of sonications starting on more estimated residual heat than this, °C")
 	fs.Float64Var(&a.alpha, "alpha", t.AlphaPPMPerC, "PRF thermal coefficient α, ppm/°C (negative)")
 	fs.Float64Var(&a.bodyTemp, "body-temp", t.BodyTempC, "tissue temperature during the baseline frames, °C")
 	fs.IntVar(&a.baseline, "baseline-frames", t.BaselineFrames, "frames before heating averaged as the phase reference")
@@ -61,6 +65,7 @@ var flagKeys = map[string]string{
 	"alpha": "thermometry.alpha_ppm_per_c", "body-temp": "thermometry.body_temp_c",
 	"baseline-frames": "thermometry.baseline_frames", "drift-order": "thermometry.drift_order",
 	"b0": "thermometry.b0_t", "te": "thermometry.te_ms", "phase-scale": "thermometry.phase_scale_rad",
+	"residual-warn": "residual_warn_c",
 }
 
 // settings returns the analysis settings asked for: the settings file (or
@@ -98,6 +103,12 @@ func (a *analysisFlags) settings() (review.Settings, error) {
 	}
 	if set["seed"] {
 		s.Seed = a.seed
+	}
+	if set["carry-over"] {
+		s.CarryOver = a.carryOver
+	}
+	if set["residual-warn"] {
+		s.ResidualWarnC = a.residualWarn
 	}
 	if set["rule"] {
 		r, err := dosemap.ParseTimeRule(a.rule)

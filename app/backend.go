@@ -87,6 +87,9 @@ type sonicationRow struct {
 	OutsideML     float64   // mL of lethal dose it added outside the margin
 	Flags         []string  // quality flags and notes, plain words
 	Flagged       bool      // a flag (not only notes) was raised
+	CoolingS      float64   // s since the previous sonication's last frame (NaN first or unknown)
+	ResidualC     float64   // estimated heat left from earlier sonications at the baseline, °C (NaN unknown)
+	ResidualHigh  bool      // ResidualC exceeds the warning level
 }
 
 // analysisResult is an analysis as the review window shows it: the result

@@ -90,7 +90,9 @@ func (ss *reviewSession) Analyze(ctx context.Context, set review.Settings) (*ana
 	}
 	for _, st := range r.Sonications {
 		row := sonicationRow{Number: st.Number, Label: st.Label, PeakTemp: ptr(st.PeakTempC), PeakDose: st.PeakDose,
-			DoseAddedML: st.LethalAddedML, CoverageAdded: st.AddedCoverage, OutsideML: st.OutsideAddedML, Offset: math.NaN()}
+			DoseAddedML: st.LethalAddedML, CoverageAdded: st.AddedCoverage, OutsideML: st.OutsideAddedML, Offset: math.NaN(),
+			CoolingS: ptr(st.CoolingS), ResidualC: ptr(st.ResidualRiseC)}
+		row.ResidualHigh = row.ResidualC > r.Settings.ResidualWarnC
 		if so := ss.sonication(st.Number); so != nil {
 			row.Start = so.Start
 			if first != nil && !so.Start.IsZero() && !first.Start.IsZero() {

@@ -51,7 +51,10 @@ func runAnalyze(args []string, stdout, stderr io.Writer) int {
 		fs.Usage()
 		return exitUsage
 	}
-	dir := pos[0]
+	dir, code := caseFolder("analyze", pos[0], stderr) // a study on an archive comes through the cache
+	if code != exitOK {
+		return code
+	}
 	set, err := af.settings()
 	if err != nil {
 		fmt.Fprintf(stderr, "dosecover analyze: %v\n", err)

@@ -103,6 +103,12 @@ func runAudit(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "dosecover audit: --workers %d: want 0 (one per core) or more\n", cfg.Workers)
 		return exitUsage
 	}
+	for n, in := range inputs { // studies on an archive come through the cache
+		var code int
+		if inputs[n], code = caseFolder("audit", in, stderr); code != exitOK {
+			return code
+		}
+	}
 	cfg.Inputs = inputs
 	set, err := af.settings()
 	if err != nil {

@@ -36,6 +36,7 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	af := addAnalysisFlags(fs)
 	study := addStudyFlag(fs)
 	sf := addStructureFlags(fs)
+	df := addDICOMResultFlags(fs)
 	fs.Usage = func() {
 		fmt.Fprintln(stderr, "usage: dosecover report CASE_DIR -o report.png [--pdf report.pdf] [--json metrics.json] [--csv metrics.csv] [--deidentify] [options]")
 		fmt.Fprintln(stderr, "Analyses the case as \"dosecover analyze\" does with the same options and writes the")
@@ -51,10 +52,13 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 		fs.Usage()
 		return exitUsage
 	}
-	dir := pos[0]
+	dir, code := caseFolder("report", pos[0], stderr) // a study on an archive comes through the cache
+	if code != exitOK {
+		return code
+	}
 	out := report.Outputs{PNG: *png, PDF: *pdf, JSON: *js, CSV: *csv, DPI: *dpi}
-	if out.PNG == "" && out.PDF == "" && out.JSON == "" && out.CSV == "" {
-		fmt.Fprintln(stderr, "dosecover report: give at least one output (-o report.png, --pdf, --json or --csv)")
+	if out.PNG == "" && out.PDF == "" && out.JSON == "" && out.CSV == "" && !df.wanted() {
+		fmt.Fprintln(stderr, "dosecover report: give at least one output (-o report.png, --pdf, --json, --csv, --dicom or --store)")
 		return exitUsage
 	}
 	if *dpi < 150 || *dpi > 1200 {
@@ -67,7 +71,7 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 		return settingsExitCode(err)
 	}
 	// Refuse outputs inside the case folder before any work.
-	for _, p := range []string{out.PNG, out.PDF, out.JSON, out.CSV} {
+	for _, p := range []string{out.PNG, out.PDF, out.JSON, out.CSV, df.checkPath()} {
 		if p == "" {
 			continue
 		}
@@ -110,9 +114,14 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
 		return exitFailure
 	}
-	if err := report.Write(in, dir, out); err != nil {
+	if out == (report.Outputs{DPI: out.DPI}) {
+		// only DICOM results asked for
+	} else if err := report.Write(in, dir, out); err != nil {
 		fmt.Fprintf(stderr, "dosecover report: %v\n", err)
 		return exitFailure
+	}
+	if code := df.write(dir, c, r, in, *deidentify, stdout, stderr); code != exitOK {
+		return code
 	}
 	fmt.Fprintf(stdout, "%s: covered %.1f %% of the monitored target (%.1f %% of the whole target) at %g %s (margin %g mm)\n",
 		in.CaseLabel, 100*r.CoveredFraction, 100*r.CoveredFractionOfTarget, r.Threshold, r.DoseUnit, r.MarginMM)

@@ -125,7 +125,8 @@ var sonColumns = []struct {
 	width float32
 }{
 	{"use", 48}, {"no.", 40}, {"time", 62}, {"label", 190}, {"peak °C", 70}, {"peak dose", 90}, {"lethal added mL", 124},
-	{"coverage added", 118}, {"outside margin added mL", 184}, {"quality and notes", 560},
+	{"coverage added", 118}, {"outside margin added mL", 184}, {"cooled s", 76}, {"residual °C", 96},
+	{"quality and notes", 560},
 }
 
 // sonKey is the value column col sorts sonication rows by (the check box
@@ -150,6 +151,10 @@ func (rw *reviewWindow) sonKey(r sonicationRow, col int) float64 {
 	case 8:
 		return r.OutsideML
 	case 9:
+		return r.CoolingS
+	case 10:
+		return r.ResidualC
+	case 11:
 		if r.Flagged {
 			return 1
 		}
@@ -262,6 +267,13 @@ func (rw *reviewWindow) newSonicationTable() *widget.Table {
 			case 8:
 				l.SetText(fmtOpt(row.OutsideML, "%.3f"))
 			case 9:
+				l.SetText(fmtOpt(row.CoolingS, "%.0f"))
+			case 10:
+				if row.ResidualHigh {
+					l.Importance = widget.WarningImportance
+				}
+				l.SetText(fmtOpt(row.ResidualC, "%.1f"))
+			case 11:
 				if excludedSet(rw.settings)[row.Number] {
 					l.Importance = widget.LowImportance
 					l.SetText("left out of the cumulative dose")

@@ -202,15 +202,20 @@ func coveragePlot(r *analysisResult) *plot.Plot {
 }
 
 // probePlot shows the temperature history of the pinned point: the voxel,
-// the 3×3 in-plane mean, the 43 °C level and the moment the cumulative
-// dose reached the threshold.
+// the 3×3 in-plane mean, the voxel with the estimated heat left from
+// earlier sonications added (where there is some), the 43 °C level and the
+// moment the cumulative dose reached the threshold.
 func probePlot(c *review.Probe) *plot.Plot {
 	p := newStyledPlot("Temperature of "+c.Description, "time from the first sonication (s)", "temperature (°C)")
 	p.Legend.Top, p.Legend.Left = true, false
 	p.Legend.XOffs = -vg.Points(8)
-	var vox, mean plotter.XYs
+	var vox, mean, est plotter.XYs
 	lo, hi := math.Inf(1), math.Inf(-1)
 	for n, t := range c.Times {
+		if n < len(c.True) && !math.IsNaN(c.True[n]) && c.True[n] != c.Temp[n] {
+			est = append(est, plotter.XY{X: t, Y: c.True[n]})
+			lo, hi = math.Min(lo, c.True[n]), math.Max(hi, c.True[n])
+		}
 		if v := c.Temp[n]; !math.IsNaN(v) {
 			vox = append(vox, plotter.XY{X: t, Y: v})
 			lo, hi = math.Min(lo, v), math.Max(hi, v)
@@ -229,6 +234,9 @@ func probePlot(c *review.Probe) *plot.Plot {
 	// Split the curves at gaps between sonications so no line bridges them.
 	addSegments(p, vox, c.Boundaries, view.ColorSpill, vg.Points(1.5), nil, "voxel")
 	addSegments(p, mean, c.Boundaries, view.ColorMargin, vg.Points(1.5), []vg.Length{vg.Points(5), vg.Points(2)}, "3×3 mean")
+	if len(est) > 0 {
+		addSegments(p, est, c.Boundaries, view.ColorHole, vg.Points(1.5), []vg.Length{vg.Points(1.5), vg.Points(2)}, "voxel + estimated residual heat")
+	}
 	if len(c.Times) > 0 {
 		addLine(p, plotter.XYs{{X: c.Times[0], Y: 43}, {X: c.Times[len(c.Times)-1], Y: 43}}, plotGuide, vg.Points(1), []vg.Length{vg.Points(2), vg.Points(2)}, "43 °C")
 	}

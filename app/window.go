@@ -268,6 +268,7 @@ func (rw *reviewWindow) mainMenu() *fyne.MainMenu {
 	file := fyne.NewMenu("File",
 		fyne.NewMenuItem("Open folder…", rw.chooseFolder),
 		fyne.NewMenuItem("Open the demo case", func() { rw.openDemo() }),
+		fyne.NewMenuItem("Open from archive…", rw.openFromArchive),
 		recent,
 		fyne.NewMenuItemSeparator(), fyne.NewMenuItem("Audit many cases…", rw.openAuditView),
 	)
@@ -278,6 +279,7 @@ func (rw *reviewWindow) mainMenu() *fyne.MainMenu {
 		fyne.NewMenuItem("Automatic drift reference", rw.automaticRef),
 		fyne.NewMenuItem("Sign off…", rw.signOff),
 		fyne.NewMenuItem("Export report…", rw.exportReport),
+		fyne.NewMenuItem("Store results in archive…", rw.storeResults),
 	)
 	help := fyne.NewMenu("Help",
 		fyne.NewMenuItem("Keyboard and mouse", rw.showShortcuts),

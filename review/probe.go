@@ -15,6 +15,7 @@ type Probe struct {
 	Times       []float64    // seconds from the first sonication's start
 	Temp        []float64    // °C at the voxel (NaN where invalid)
 	Mean        []float64    // °C, mean of the valid voxels of the in-plane 3×3 block around it
+	True        []float64    // °C, Temp plus the estimated heat left from earlier sonications at the sonication's baseline (Residual; NaN unknown)
 	Dose        []float64    // cumulative dose at the voxel, model unit
 	Boundaries  []float64    // start time of each sonication, s
 	LethalAt    float64      // time the cumulative dose reached the threshold; NaN never
@@ -147,10 +148,17 @@ func (s *Session) Probe(p dosemap.Vec3, set Settings) (*Probe, error) {
 		c.Voxel = g.Point(float64(i), float64(j), float64(k))
 		one := &dosemap.TemperatureSeries{Geometry: dosemap.NewAxialGeometry(1, 1, 1, dosemap.Vec3{1, 1, 1}, dosemap.Vec3{})}
 		idx := g.Index(i, j, k)
+		hidden := math.NaN() // estimated residual heat at this sonication's baseline
+		if sd.residual != nil && !s.prepared.CarryOver {
+			hidden = float64((&dosemap.Volume{Geometry: s.fg.coarse, Data: sd.residual}).Sample(c.Voxel))
+		} else if s.prepared.CarryOver {
+			hidden = 0 // the temperatures hold it already
+		}
 		for f, fr := range ts.Frames {
 			t := start + ts.Times[f] - ts.Times[0]
 			c.Times = append(c.Times, t)
 			c.Temp = append(c.Temp, float64(fr[idx]))
+			c.True = append(c.True, float64(fr[idx])+hidden)
 			c.Mean = append(c.Mean, mean3x3(g, fr, i, j, k))
 			if ex[so.Number] {
 				c.Dose = append(c.Dose, cum)

@@ -54,6 +54,11 @@ type Result struct {
 	Quality             []SonicationQuality `json:"quality"`
 	Warnings            []string            `json:"warnings"`
 	Cautions            []string            `json:"cautions"`
+	// CarryOver is true when the dose counts the estimated residual heat
+	// of earlier sonications (Settings.CarryOver); AsMeasured then holds
+	// the figures without it (null otherwise).
+	CarryOver  bool        `json:"carry_over"`
+	AsMeasured *AsMeasured `json:"as_measured"`
 
 	// Grids for display (not written to JSON).
 	Dose        *dosemap.Volume `json:"-"` // cumulative dose of the included sonications, thermometry grid; NaN unmeasured
@@ -201,6 +206,22 @@ type SonicationStats struct {
 	AddedCoverage      float64     `json:"added_coverage"`      // of the monitored target
 	CumulativeCoverage float64     `json:"cumulative_coverage"` // after this sonication
 	OutsideAddedML     float64     `json:"outside_margin_added_ml"`
+	// ResidualRiseC is the largest estimated rise left from the earlier
+	// sonications at this one's baseline over the target and margin, °C,
+	// which the thermometry does not see (0 for the first; null when
+	// unknown). CoolingS is the time from the previous sonication's last
+	// frame to this one's first, s (null for the first or when unknown).
+	ResidualRiseC *float64 `json:"residual_rise_c"`
+	CoolingS      *float64 `json:"cooling_s"`
+}
+
+// AsMeasured holds the coverage figures of the dose as the thermometry
+// measured it, beside a result corrected for residual heat
+// (Settings.CarryOver).
+type AsMeasured struct {
+	CoveredFraction         float64 `json:"covered_fraction"`
+	CoveredFractionOfTarget float64 `json:"covered_fraction_of_target"`
+	OutsideMarginLethalML   float64 `json:"outside_margin_lethal_ml"`
 }
 
 // SonicationQuality is the thermometry quality of one sonication.

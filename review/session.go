@@ -56,7 +56,20 @@ type Settings struct {
 	CEM43       dosemap.CEM43       `json:"cem43"`       // parameters of the cem43 model
 	Arrhenius   dosemap.Arrhenius   `json:"arrhenius"`   // parameters of the arrhenius model
 	Thermometry ThermometrySettings `json:"thermometry"` // PRF thermometry
+
+	// CarryOver adds each sonication's estimated residual heat from the
+	// earlier ones (dosemap.EstimateResidual) to its temperatures before
+	// its dose is computed. Off by default: the dose is then what the
+	// thermometry measured.
+	CarryOver bool `json:"carry_over"`
+	// ResidualWarnC is the estimated residual rise (°C, over the target
+	// and margin) above which a sonication is named in a warning.
+	ResidualWarnC float64 `json:"residual_warn_c"`
 }
+
+// DefaultResidualWarnC is the default ResidualWarnC: 1 °C, about the
+// noise of one PRF thermometry voxel (common practice).
+const DefaultResidualWarnC = 1.0
 
 // DefaultSettings returns 240 CEM43 (Sapareto & Dewey 1984; the common
 // lethal threshold, McDannold et al., Radiology 2006), DefaultMarginMM, no
@@ -64,7 +77,8 @@ type Settings struct {
 // Arrhenius parameters and thermometry options of package dosemap.
 func DefaultSettings() Settings {
 	return Settings{Threshold: 240, MarginMM: DefaultMarginMM, Model: ModelCEM43, Trials: 50, Seed: 1,
-		CEM43: dosemap.DefaultCEM43(), Arrhenius: dosemap.DefaultArrhenius(), Thermometry: DefaultThermometrySettings()}
+		CEM43: dosemap.DefaultCEM43(), Arrhenius: dosemap.DefaultArrhenius(), Thermometry: DefaultThermometrySettings(),
+		ResidualWarnC: DefaultResidualWarnC}
 }
 
 // ProgressFunc receives the name of the stage being worked on and the
@@ -85,13 +99,19 @@ type sonData struct {
 	peak    float64   // largest dose
 	temp    *tempStats
 	quality *SonicationQuality
-	series  any // thermometry kept for Monte Carlo (engine type), whole or the Session's keep block
+	series  any      // thermometry kept for Monte Carlo (engine type), whole or the Session's keep block
+	notes   []string // frames that could not be read
+	source  *dosemap.Sonication
 	// peakTemp is the highest temperature of each voxel over the frames
 	// (°C, NaN never valid) on the sonication's own grid; nil for a ready
 	// dose map.
 	peakTemp *dosemap.Volume
-	notes    []string // frames that could not be read
-	source   *dosemap.Sonication
+
+	// Residual heat (see residual.go).
+	tail     *dosemap.CoolingTail // last frames, kept until the estimate is made
+	residual []float32            // estimated hidden rise at the baseline, thermometry grid of the session; NaN unknown, nil none
+	cooling  float64              // s since the previous sonication's last frame; NaN unknown
+	measured []float32            // as-measured dose when dose holds the corrected one (CarryOver), else nil
 }
 
 // tempStats are the temperature figures of one sonication.
@@ -229,6 +249,7 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 		}
 	}()
 	ns := len(c.Sonications)
+	clocks, clockNote := sessionClock(c.Sonications)
 	sons := make([]*sonData, ns)
 	units := make([]string, ns)
 	errs := make([]error, ns)
@@ -246,7 +267,7 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 					errs[n] = err
 					continue
 				}
-				sons[n], units[n], errs[n] = prepareSonication(sctx, so, s, ref, ses.keep)
+				sons[n], units[n], errs[n] = prepareSonication(sctx, so, s, ref, ses.keep, clocks[n], nil)
 				pmu.Lock()
 				done++
 				progress.report(fmt.Sprintf("thermometry and dose, sonication %d", so.Number), 0.8*float64(done)/float64(ns))
@@ -285,6 +306,12 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 		}
 	}
 	ses.sons, ses.unit = sons, units[0]
+	if clockNote != "" {
+		ses.warnings = append(ses.warnings, clockNote)
+	}
+	if err := ses.prepareResidual(ctx, c, s, ref, ext, progress); err != nil {
+		return nil, err
+	}
 	ses.warnings = append(ses.warnings, structWarnings...)
 	progress.report("prepared", 1)
 	return ses, nil
@@ -386,7 +413,9 @@ func (s *Session) SonicationDose(n int) *dosemap.Volume {
 // the session and must not be modified. For a case whose frames stay in
 // their files (dicomio.LoadOptions.Deferred) the session keeps only the
 // temperatures around the target, and Temperature computes the series
-// again from the files (nil if that fails).
+// again from the files (nil if that fails). A session prepared with
+// CarryOver returns the temperatures with the estimated residual heat
+// added (see Residual).
 func (s *Session) Temperature(n int) *dosemap.TemperatureSeries {
 	for _, sd := range s.sons {
 		if sd.number == n {
@@ -395,6 +424,9 @@ func (s *Session) Temperature(n int) *dosemap.TemperatureSeries {
 				full, err := thermometry(sd.source, s.prepared.Thermometry)
 				if err != nil {
 					return nil
+				}
+				if s.prepared.CarryOver && sd.residual != nil {
+					addOffset(full, sd.residual) // as the kept series
 				}
 				return full
 			}
@@ -436,6 +468,9 @@ func (s *Session) checkSettings(set Settings) error {
 	if set.NeedsThermometry(s.prepared) {
 		return errors.New("dose model parameters or thermometry options differ from those this session was prepared with; prepare it again")
 	}
+	if set.CarryOver != s.prepared.CarryOver {
+		return errors.New("carry_over differs from the setting this session was prepared with; prepare it again")
+	}
 	left := len(s.sons)
 	for _, e := range set.Excluded {
 		found := false
@@ -461,6 +496,13 @@ func (s *Session) checkSettings(set Settings) error {
 
 // doses returns the dose cache for the included sonications of set.
 func (s *Session) doses(ctx context.Context, set Settings) (*doseCache, error) {
+	return s.doseSum(ctx, set, false)
+}
+
+// doseSum returns the dose cache for the included sonications of set: of
+// the as-measured dose when measured is true (not cached), else of the
+// dose the session was prepared for.
+func (s *Session) doseSum(ctx context.Context, set Settings, measured bool) (*doseCache, error) {
 	ex := map[int]bool{}
 	for _, e := range set.Excluded {
 		ex[e] = true
@@ -473,7 +515,7 @@ func (s *Session) doses(ctx context.Context, set Settings) (*doseCache, error) {
 			key.WriteString(strconv.Itoa(n) + ",")
 		}
 	}
-	if s.cache != nil && s.cache.key == key.String() {
+	if !measured && s.cache != nil && s.cache.key == key.String() {
 		return s.cache, nil
 	}
 	cl := s.fg.coarse.Len()
@@ -485,6 +527,9 @@ func (s *Session) doses(ctx context.Context, set Settings) (*doseCache, error) {
 			return nil, err
 		}
 		d := s.sons[n].dose
+		if measured && s.sons[n].measured != nil {
+			d = s.sons[n].measured
+		}
 		for v, x := range d {
 			if x == x {
 				run[v] += x
@@ -508,7 +553,9 @@ func (s *Session) doses(ctx context.Context, set Settings) (*doseCache, error) {
 	dc.logFine = make([]float32, fl)
 	dc.monFine = make([]bool, fl)
 	s.fg.interpLog(lc, dc.full, dc.logFine, dc.monFine)
-	s.cache = dc
+	if !measured {
+		s.cache = dc
+	}
 	return dc, nil
 }
 
@@ -740,6 +787,14 @@ func (s *Session) Analyze(ctx context.Context, set Settings, progress ProgressFu
 	}
 	progress.report("sonications", 0.7)
 	s.perSonication(r, set, dc, lethal, outside, lt, mv)
+	s.residualFigures(r, set)
+	if set.CarryOver {
+		am, err := s.asMeasured(ctx, set)
+		if err != nil {
+			return nil, err
+		}
+		r.AsMeasured = am
+	}
 	for _, sd := range s.sons {
 		if sd.quality != nil {
 			r.Quality = append(r.Quality, *sd.quality)

@@ -179,6 +179,7 @@ const (
 	MaxDriftOrder              = 2          // dosemap.Thermometry fits orders 0–2
 	MaxSonicationNumber        = 1_000_000  // sonication numbers in Excluded
 	maxSettingsFile            = 1 << 20    // bytes of a settings file
+	MaxResidualWarnC           = 100.0      // residual heat warning level, °C
 )
 
 // Validate reports the first setting that cannot be used, naming it by its
@@ -225,6 +226,9 @@ func (s Settings) Validate() error {
 		return fmt.Errorf("arrhenius.ea_j_per_mol %g: want a positive activation energy", a.Ea)
 	case a.Rule != dosemap.RuleTrapezoid && a.Rule != dosemap.RuleRectangle:
 		return fmt.Errorf("arrhenius.rule %d: want trapezoid or rectangle", int(a.Rule))
+	}
+	if !(s.ResidualWarnC >= 0) || !finite(s.ResidualWarnC) || s.ResidualWarnC > MaxResidualWarnC {
+		return fmt.Errorf("residual_warn_c %g °C: want 0 to %g °C", s.ResidualWarnC, MaxResidualWarnC)
 	}
 	return s.Thermometry.validate()
 }
@@ -276,6 +280,9 @@ func (s Settings) complete() Settings {
 	}
 	if s.Thermometry == (ThermometrySettings{}) {
 		s.Thermometry = d.Thermometry
+		if s.ResidualWarnC == 0 {
+			s.ResidualWarnC = d.ResidualWarnC // also left out
+		}
 	}
 	return s
 }
@@ -428,11 +435,14 @@ func (s Settings) Redo(old Settings) Redo {
 
 // NeedsThermometry reports whether analysing with s after old needs new
 // thermometry and dose (a new Prepare): the dose model and its parameters
-// or any thermometry setting changed.
+// or any thermometry setting changed, or carry_over.
 func (s Settings) NeedsThermometry(old Settings) bool {
 	a, b := s.normalized(), old.normalized()
 	if a.doseModel() != b.doseModel() {
 		return true
+	}
+	if a.CarryOver != b.CarryOver {
+		return true // the dose with or without the residual heat
 	}
 	ja, _ := json.Marshal(a.Thermometry)
 	jb, _ := json.Marshal(b.Thermometry)
@@ -487,6 +497,9 @@ func (s Settings) Describe() string {
 	}
 	if len(s.Excluded) > 0 {
 		out += fmt.Sprintf(" · sonications left out %v", s.normalized().Excluded)
+	}
+	if s.CarryOver {
+		out += " · residual heat of earlier sonications added (carry-over)"
 	}
 	return out
 }

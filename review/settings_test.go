@@ -46,6 +46,7 @@ func TestSettingsValidate(t *testing.T) {
 		{"magnitude", func(s *Settings) { s.Thermometry.MinMagnitude = 1 }, "thermometry.min_magnitude"},
 		{"motion", func(s *Settings) { s.Thermometry.MaxMotion = -0.1 }, "thermometry.max_motion"},
 		{"reference", func(s *Settings) { s.Thermometry.DriftReference = &Rect{W: 1, H: 1} }, "thermometry.drift_reference"},
+		{"residual warning", func(s *Settings) { s.ResidualWarnC = -1 }, "residual_warn_c"},
 	} {
 		s := DefaultSettings()
 		c.change(&s)
@@ -84,6 +85,8 @@ func leaves(t *testing.T, v reflect.Value, path string, out map[string]func()) {
 		out[path] = func() { v.SetInt(v.Int() + 1) }
 	case reflect.Uint64:
 		out[path] = func() { v.SetUint(v.Uint() + 1) }
+	case reflect.Bool:
+		out[path] = func() { v.SetBool(!v.Bool()) }
 	case reflect.String:
 		out[path] = func() { v.SetString(v.String() + "x") }
 	case reflect.Slice:

@@ -30,8 +30,12 @@ func (s Settings) doseModel() dosemap.DoseModel {
 
 // prepareSonication computes the dose of one sonication on the reference
 // thermometry grid ref, its temperature figures and thermometry quality.
-// It returns the dose unit.
-func prepareSonication(ctx context.Context, so *dosemap.Sonication, s Settings, ref dosemap.Geometry, keep *keepBox) (*sonData, string, error) {
+// It returns the dose unit. clock is the time of the series' first frame
+// on the session clock (NaN unknown: no cooling tail is kept). offset,
+// when not nil, is added to every temperature (finite values only) before
+// the dose is computed (the residual heat correction; on the sonication's
+// own grid).
+func prepareSonication(ctx context.Context, so *dosemap.Sonication, s Settings, ref dosemap.Geometry, keep *keepBox, clock float64, offset []float32) (*sonData, string, error) {
 	if err := so.Geometry.Validate(); err != nil {
 		return nil, "", fmt.Errorf("thermometry grid: %w", err)
 	}
@@ -62,6 +66,16 @@ func prepareSonication(ctx context.Context, so *dosemap.Sonication, s Settings, 
 		sd.notes = notes
 		if err := ctx.Err(); err != nil {
 			return nil, "", err
+		}
+		if clock == clock && offset == nil {
+			bt := s.Thermometry.BodyTempC
+			if bt == 0 {
+				bt = dosemap.DefaultBodyTemp
+			}
+			sd.tail = dosemap.NewCoolingTail(ts, clock, baselineFrames(s.Thermometry), bt, dosemap.DefaultResidualOptions())
+		}
+		if offset != nil {
+			addOffset(ts, offset)
 		}
 		dm = m.Dose(ts)
 		hottest := make([]int, len(ts.Quality))
@@ -636,4 +650,33 @@ func quantile(x []float64, p float64) float64 {
 		return x[len(x)-1]
 	}
 	return x[lo] + (h-float64(lo))*(x[lo+1]-x[lo])
+}
+
+// baselineFrames returns the number of baseline frames the thermometry
+// settings o use.
+func baselineFrames(o ThermometrySettings) int {
+	if o.BaselineFrames > 0 {
+		return o.BaselineFrames
+	}
+	return dosemap.DefaultThermometryOptions().BaselineFrames
+}
+
+// addOffset adds off (per voxel, NaN for none) to every finite temperature
+// of ts. Frames ts does not own (a temperature-map series passed through)
+// are copied first, so the case's own frames are never changed.
+func addOffset(ts *dosemap.TemperatureSeries, off []float32) {
+	if !ts.Owned() {
+		own := make([][]float32, len(ts.Frames))
+		for f, fr := range ts.Frames {
+			own[f] = slices.Clone(fr)
+		}
+		ts.Frames = own
+	}
+	for _, fr := range ts.Frames {
+		for v, x := range fr {
+			if o := off[v]; x == x && o == o {
+				fr[v] = x + o
+			}
+		}
+	}
 }

@@ -24,6 +24,9 @@ func (r *Result) WriteText(w io.Writer) error {
 	if r.Trials > 0 {
 		p(", %d Monte Carlo trials (seed %d)", r.Trials, r.Settings.Seed)
 	}
+	if r.CarryOver {
+		p(", carry-over on (estimated residual heat added)")
+	}
 	p("\n")
 	p("Analysis grid: %d×%d×%d voxels of %.3g×%.3g×%.3g mm\n\n", r.Grid.Size[0], r.Grid.Size[1], r.Grid.Size[2],
 		r.Grid.SpacingMM[0], r.Grid.SpacingMM[1], r.Grid.SpacingMM[2])
@@ -36,6 +39,10 @@ func (r *Result) WriteText(w io.Writer) error {
 		p("; 5th-95th percentile over noise %.1f-%.1f %%", 100**r.CoveredFractionP05, 100**r.CoveredFractionP95)
 	}
 	p("\n")
+	if a := r.AsMeasured; a != nil {
+		p("Corrected for heat left from earlier sonications (carry-over). As measured, without the correction: covered %.1f %% of the monitored target, %.1f %% of the whole target; %.3f mL lethal beyond the margin\n",
+			100*a.CoveredFraction, 100*a.CoveredFractionOfTarget, a.OutsideMarginLethalML)
+	}
 	p("D98 %s, D50 %s, D2 %s %s (monitored target)\n\n", fnum(r.D98), fnum(r.D50), fnum(r.D2), r.DoseUnit)
 
 	p("Holes (monitored target below threshold): %d\n", len(r.Holes))
@@ -70,15 +77,16 @@ func (r *Result) WriteText(w io.Writer) error {
 	for _, a := range r.Avoid {
 		p("Avoid %q: %.2f mL, lethal %.1f mm³, peak dose %s %s\n", a.Name, a.VolumeML, a.LethalVolumeMM3, fnum(a.PeakDose), r.DoseUnit)
 	}
-	p("\nSonication  peak °C  3x3 °C  >=43°C s  lethal added mL  coverage added  outside added mL\n")
+	p("\nSonication  peak °C  3x3 °C  >=43°C s  lethal added mL  coverage added  outside added mL  cooling s  residual °C\n")
 	for _, s := range r.Sonications {
 		if s.Excluded {
-			p("%10d  (excluded)\n", s.Number)
+			p("%10d  (excluded)  %28s  %9s  %11s\n", s.Number, "", fnum0(s.CoolingS), fnum1(s.ResidualRiseC))
 			continue
 		}
-		p("%10d  %7s  %6s  %8s  %15.3f  %13.1f%%  %16.3f\n", s.Number, fnum1(s.PeakTempC), fnum1(s.Peak3x3C), fnum1(s.TimeAbove43S),
-			s.LethalAddedML, 100*s.AddedCoverage, s.OutsideAddedML)
+		p("%10d  %7s  %6s  %8s  %15.3f  %13.1f%%  %16.3f  %9s  %11s\n", s.Number, fnum1(s.PeakTempC), fnum1(s.Peak3x3C), fnum1(s.TimeAbove43S),
+			s.LethalAddedML, 100*s.AddedCoverage, s.OutsideAddedML, fnum0(s.CoolingS), fnum1(s.ResidualRiseC))
 	}
+	p("(residual °C: estimated heat left from earlier sonications at the baseline, largest over the target and margin; not seen by the thermometry)\n")
 	for _, q := range r.Quality {
 		if len(q.FlaggedFrames) > 0 || q.Wraps > 0 {
 			p("Sonication %d thermometry: flagged frames %v, suspected wraps %d, max motion %.3f, max drift %.1f °C\n",
@@ -111,4 +119,11 @@ func fnum1(x *float64) string {
 		return "n/a"
 	}
 	return fmt.Sprintf("%.1f", *x)
+}
+
+func fnum0(x *float64) string {
+	if x == nil {
+		return "n/a"
+	}
+	return fmt.Sprintf("%.0f", *x)
 }

@@ -563,7 +563,7 @@ func (cr *caseReader) chooseAnatomy() {
 // and per dose-map series, ordered by acquisition time.
 func (cr *caseReader) buildSonications() {
 	inv := cr.inv
-	var mags []*series
+	var mags, results []*series
 	for _, s := range cr.series {
 		switch s.info.Role {
 		case RolePhase, RolePhaseMagnitude:
@@ -573,8 +573,24 @@ func (cr *caseReader) buildSonications() {
 		case RoleTemperatureMap:
 			cr.units = append(cr.units, &unit{kind: "temperature", phase: s, data: s.image})
 		case RoleDoseMap:
+			if isCumulativeResult(s) {
+				results = append(results, s)
+				continue
+			}
 			cr.units = append(cr.units, &unit{kind: "dose", phase: s, data: s.image})
 		}
+	}
+	// A cumulative dose map that dosecover stored as a result beside the
+	// thermometry it was computed from already sums it: adding it would
+	// count that dose twice. It stands alone only when nothing else does.
+	for _, s := range results {
+		if len(cr.units) > 0 {
+			s.info.Role = RoleOther
+			s.info.Note = "cumulative dose map of an earlier review (ImageType " + CumulativeDoseImageType + "); not added to the sonications it sums"
+			inv.problem("series %s is the cumulative dose of an earlier review of these sonications; it is not used", s.name())
+			continue
+		}
+		cr.units = append(cr.units, &unit{kind: "dose", phase: s, data: s.image})
 	}
 	// Pair phase-only acquisitions with magnitude series: same grid, same
 	// number of time points, first frames within 1 s (when both have times).
@@ -793,4 +809,20 @@ var imageStorage = map[string]string{
 	"1.2.840.10008.5.1.4.1.1.2":   "CT Image Storage",
 	"1.2.840.10008.5.1.4.1.1.2.1": "Enhanced CT Image Storage",
 	"1.2.840.10008.5.1.4.1.1.7":   "Secondary Capture Image Storage",
+}
+
+// CumulativeDoseImageType is value 4 of ImageType (0008,0008) in the dose
+// maps dosecover writes as results (review/dicomout): the cumulative dose
+// of the sonications of a study.
+const CumulativeDoseImageType = "CUMULATIVE_DOSE"
+
+// isCumulativeResult reports whether a dose-map series is a cumulative
+// result of an earlier review (CumulativeDoseImageType).
+func isCumulativeResult(s *series) bool {
+	for _, f := range s.files {
+		if len(f.ImageType) < 4 || !strings.EqualFold(strings.TrimSpace(f.ImageType[3]), CumulativeDoseImageType) {
+			return false
+		}
+	}
+	return len(s.files) > 0
 }

@@ -136,7 +136,7 @@ func DemoDir() (string, error) {
 // Revision numbers the simulator's output: raise it whenever a change alters
 // the files written for a given seed, so that a demo cached by an earlier
 // build is not reused.
-const Revision = 2
+const Revision = 3
 
 // demoFolderName is the demo's folder in the user cache.
 var demoFolderName = fmt.Sprintf("demo-%s-r%d", dosemap.Version, Revision)
@@ -312,4 +312,26 @@ func WriteTypical(dir string, seed uint64) (*Truth, error) {
 		return nil, fmt.Errorf("creating %s: %w", dir, err)
 	}
 	return WriteSession(dir, TypicalSession(seed))
+}
+
+// ShortGapSession returns an invented session on the demo's phantom and
+// plan with every one of the 16 planned spots delivered, in order, each
+// sonication starting cooling seconds after the last frame of the one
+// before (the demo waits 120 s). With short gaps the heat of the earlier
+// sonications is still present at each baseline, where the thermometry
+// cannot see it; the truth records it per sonication (HiddenRiseC) and the
+// dose with it counted (MeasuredTruth.WithHiddenHeat).
+func ShortGapSession(cooling float64) *Session {
+	s := DemoSession()
+	s.Label = fmt.Sprintf("gap-%gs", cooling)
+	s.Description = fmt.Sprintf("Invented session on the demo phantom: all 16 planned spots delivered in order, "+
+		"%g s of cooling between sonications (residual heat hidden from the thermometry).", cooling)
+	s.PatientName, s.PatientID = "PHANTOM^GAP", fmt.Sprintf("GAP-%03.0f", cooling)
+	s.Seed = DemoSeed + uint64(cooling*10)
+	s.Motion = nil
+	s.Sonications = nil
+	for n, q := range s.Planned {
+		s.Sonications = append(s.Sonications, SonicationSpec{Planned: n + 1, Focus: q, Power: demoPower, Duration: demoDuration, Cooling: cooling})
+	}
+	return s
 }

@@ -65,6 +65,19 @@ type MeasuredTruth struct {
 	Holes            []TruthRegion `json:"holes"`
 	LethalOutsideMM3 float64       `json:"lethal_outside_margin_mm3"`
 	PeakTemp         []float64     `json:"peak_temperature_c"` // per sonication, hottest voxel
+
+	// The same figures with the heat left from earlier sonications
+	// counted: the simulated rise itself (not its change from each
+	// baseline) added to the base temperature. The difference to the
+	// figures above is what hidden residual heat costs the thermometry.
+	WithHiddenHeat HiddenHeatTruth `json:"with_hidden_heat"`
+}
+
+// HiddenHeatTruth holds dose figures of the noiseless thermometry with the
+// hidden residual heat counted.
+type HiddenHeatTruth struct {
+	CoveredFraction  float64 `json:"covered_fraction"`
+	LethalOutsideMM3 float64 `json:"lethal_outside_margin_mm3"`
 }
 
 // TruthThermometry records the acquisition and the phase model.
@@ -110,6 +123,15 @@ type TruthSonication struct {
 	Folder    string       `json:"folder"`
 	PeakTemp  float64      `json:"peak_temperature_c"`        // hottest bioheat voxel during the imaged frames
 	StartTemp float64      `json:"focus_start_temperature_c"` // residual heat at the focus when it began
+	// CoolingS is the unimaged time from the previous sonication's last
+	// frame to this one's first frame, s (0 for the first).
+	CoolingS float64 `json:"cooling_s"`
+	// HiddenRiseC is the rise over the base temperature still present at
+	// this sonication's baseline (mean of its baseline frames of the
+	// noiseless thermometry, which sees it as zero), largest over the
+	// thermometry voxels whose centre lies in the lesion grown by the
+	// margin, °C: what a residual heat estimate should find.
+	HiddenRiseC float64 `json:"hidden_rise_c"`
 }
 
 // TruthRegion is a connected region.
@@ -142,7 +164,11 @@ func (s *Session) truth(res *simResult, id ids) *Truth {
 		start := s.Start.Add(time.Duration(offset * float64(time.Second)))
 		ts := TruthSonication{Number: n + 1, Planned: so.Planned, Focus: so.Focus, Power: so.Power, Duration: so.Duration,
 			Spill: so.Spill, Start: start, Offset: offset, SeriesUID: id.thermoSeries(n + 1),
-			Folder: fmt.Sprintf(sonicationFolder, n+1), PeakTemp: res.peak[n], StartTemp: res.before[n]}
+			Folder: fmt.Sprintf(sonicationFolder, n+1), PeakTemp: res.peak[n], StartTemp: res.before[n],
+			HiddenRiseC: s.hiddenRise(res.frames[n])}
+		if n > 0 {
+			ts.CoolingS = s.Sonications[n-1].Cooling
+		}
 		t.Sonications = append(t.Sonications, ts)
 		if so.Spill {
 			t.Spill = append(t.Spill, n+1)
@@ -197,8 +223,40 @@ func (s *Session) truth(res *simResult, id ids) *Truth {
 	return t
 }
 
+// hiddenRise returns the largest mean rise over the baseline frames of one
+// sonication's noiseless frames among the thermometry voxels whose centre
+// lies in the lesion grown by the margin.
+func (s *Session) hiddenRise(frames [][]float32) float64 {
+	p := s.Thermometry
+	g := s.ThermometryGeometry()
+	grown := s.Phantom.Lesion.Grown(s.MarginMM)
+	best := 0.0
+	for v := 0; v < g.Len(); v++ {
+		i, j, k := g.IJK(v)
+		if !grown.Contains(g.Point(float64(i), float64(j), float64(k))) {
+			continue
+		}
+		var b float64
+		for f := 0; f < p.BaselineFrames; f++ {
+			b += float64(frames[f][v])
+		}
+		best = math.Max(best, b/float64(p.BaselineFrames))
+	}
+	return math.Round(best*1000) / 1000
+}
+
 // measuredTruth computes MeasuredTruth from the noiseless frames.
 func (s *Session) measuredTruth(res *simResult) MeasuredTruth {
+	m := s.thermometryTruth(res, false)
+	h := s.thermometryTruth(res, true)
+	m.WithHiddenHeat = HiddenHeatTruth{CoveredFraction: h.CoveredFraction, LethalOutsideMM3: h.LethalOutsideMM3}
+	return m
+}
+
+// thermometryTruth computes the MeasuredTruth figures from the noiseless
+// frames: each frame's rise taken from its series' baseline (what PRF
+// thermometry measures) or, with hidden, the rise itself.
+func (s *Session) thermometryTruth(res *simResult, hidden bool) MeasuredTruth {
 	p := s.Thermometry
 	g := s.ThermometryGeometry()
 	base := s.Phantom.BodyTemp
@@ -218,6 +276,9 @@ func (s *Session) measuredTruth(res *simResult) MeasuredTruth {
 				b += float64(frames[f][v])
 			}
 			b /= float64(p.BaselineFrames)
+			if hidden {
+				b = 0
+			}
 			prev := base + float64(frames[0][v]) - b
 			for f := 1; f < len(frames); f++ {
 				T := base + float64(frames[f][v]) - b

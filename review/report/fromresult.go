@@ -108,6 +108,9 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 	for _, a := range r.Avoid {
 		f.Avoid = append(f.Avoid, AvoidRow{Name: hide(a.Name, c, opt.Deidentify), LethalML: a.LethalVolumeMM3 / 1000, MaxDose: val(a.PeakDose)})
 	}
+	if a := r.AsMeasured; a != nil {
+		f.AsMeasured = &AsMeasuredFacts{Covered: a.CoveredFraction, CoveredOfTarget: a.CoveredFractionOfTarget, OutsideMarginML: a.OutsideMarginLethalML}
+	}
 	in.Facts = f
 	if r.Threshold > 0 {
 		// The window's scale and colour bar (view.WashScale, view.WashBar).
@@ -141,6 +144,7 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 			AddedCoverage: s.AddedCoverage, OutsideML: s.OutsideAddedML,
 			Flagged: len(sq.FlaggedFrames), Excluded: s.Excluded,
 			DriftFlagged: sq.DriftFlagged(opt.DriftFlagC),
+			CoolingS:     val(s.CoolingS), ResidualC: val(s.ResidualRiseC),
 		})
 		if sq.DriftFlagged(opt.DriftFlagC) {
 			q.DriftFlagged = append(q.DriftFlagged, s.Number)
@@ -363,6 +367,11 @@ func analysisSettings(r *review.Result) []Setting {
 		ex = strings.Trim(strings.Join(strings.Fields(fmt.Sprint(r.Settings.Excluded)), ", "), "[]")
 	}
 	ms = append(ms, Setting{"Excluded sonications", ex})
+	if r.CarryOver {
+		ms = append(ms, Setting{"Residual heat", "estimated from each earlier sonication's cooling (Pennes 1948 decay form) and added to the temperatures before dose (carry-over on)"})
+	} else {
+		ms = append(ms, Setting{"Residual heat", fmt.Sprintf("estimated, not added to the dose (carry-over off); warning above %g °C", r.Settings.ResidualWarnC)})
+	}
 	g := r.Grid
 	ms = append(ms, Setting{"Analysis grid", fmt.Sprintf("%d×%d×%d voxels of %.3g×%.3g×%.3g mm", g.Size[0], g.Size[1], g.Size[2], g.SpacingMM[0], g.SpacingMM[1], g.SpacingMM[2])})
 	return ms

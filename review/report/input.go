@@ -77,6 +77,17 @@ type Facts struct {
 	OutsideMarginML float64  // total lethal volume outside the margin, mL
 
 	Avoid []AvoidRow // lethal volume in each avoid structure
+	// AsMeasured, when not nil, holds the figures without the residual
+	// heat correction: the facts above then count the estimated heat left
+	// from earlier sonications (carry_over).
+	AsMeasured *AsMeasuredFacts
+}
+
+// AsMeasuredFacts are the coverage figures of the dose as measured.
+type AsMeasuredFacts struct {
+	Covered         float64 // fraction of the monitored target
+	CoveredOfTarget float64 // fraction of the whole target
+	OutsideMarginML float64 // lethal volume outside the margin, mL
 }
 
 // Region is one connected region (a hole or a lethal cluster).
@@ -125,6 +136,8 @@ type SonicationRow struct {
 	Flagged       int     // frames flagged by the quality checks
 	DriftFlagged  bool    // its removed drift exceeds Quality.DriftFlagC
 	Excluded      bool    // left out of the cumulative dose by the reviewer
+	CoolingS      float64 // time since the previous sonication's last frame, s (NaN first or unknown)
+	ResidualC     float64 // estimated heat left from earlier sonications at the baseline, largest over target and margin, °C (NaN unknown)
 }
 
 // Quality summarises the thermometry quality over all sonications.

@@ -393,6 +393,11 @@ func factLines(in *Input) (left, right [][2]string) {
 		[2]string{"D98 / D50 / D2", dose(f.D98) + " / " + dose(f.D50) + " / " + dose(f.D2) + " " + unit},
 		[2]string{"Threshold, margin", dose(f.Threshold) + " " + unit + ", " + num(f.MarginMM, 1) + " mm"},
 	)
+	if a := f.AsMeasured; a != nil {
+		left = append(left,
+			[2]string{"Residual heat", "corrected: earlier sonications' estimated heat added (carry-over on)"},
+			[2]string{"As measured", pct(a.Covered) + " covered (monitored), " + pct(a.CoveredOfTarget) + " of whole target; " + num(a.OutsideMarginML, 3) + " mL beyond margin"})
+	}
 	holes := "none"
 	if len(f.Holes) > 0 {
 		var tot float64
@@ -731,8 +736,9 @@ func drawSonications(p pen, in *Input, x, y, w, bottom vg.Length, from, page, pa
 		width float64 // fraction of w
 		right bool
 	}{
-		{"#", 0.05, true}, {"label", 0.29, false}, {"frames", 0.09, true}, {"peak °C", 0.10, true},
-		{"+lethal mL", 0.12, true}, {"+coverage", 0.12, true}, {"outside mL", 0.12, true}, {"flagged", 0.11, true},
+		{"#", 0.04, true}, {"label", 0.27, false}, {"frames", 0.07, true}, {"peak °C", 0.08, true},
+		{"+lethal mL", 0.11, true}, {"+cover", 0.09, true}, {"out mL", 0.08, true}, {"flag", 0.06, true},
+		{"cooled s", 0.09, true}, {"resid. °C", 0.11, true},
 	}
 	xs := make([]vg.Length, len(cols)+1)
 	xs[0] = x
@@ -787,6 +793,8 @@ func drawSonications(p pen, in *Input, x, y, w, bottom vg.Length, from, page, pa
 			flag = "drift, " + flag
 		}
 		cell(7, y, fb, clr, flag)
+		cell(8, y, fb, clr, num(s.CoolingS, 0))
+		cell(9, y, fb, clr, num(s.ResidualC, 1))
 		y += rh
 	}
 	return y, len(in.Sonications)

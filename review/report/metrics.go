@@ -86,6 +86,13 @@ func (in *Input) Metrics() []Metric {
 			ex = 1
 		}
 		add(key+".excluded", ex, "1")
+		add(key+".cooling_s", s.CoolingS, "s")
+		add(key+".residual_rise_c", s.ResidualC, "°C")
+	}
+	if a := f.AsMeasured; a != nil {
+		add("as_measured.covered_fraction", a.Covered, "1")
+		add("as_measured.covered_fraction_of_target", a.CoveredOfTarget, "1")
+		add("as_measured.outside_lethal_ml", a.OutsideMarginML, "mL")
 	}
 	q := in.Quality
 	add("quality.frames", float64(q.Frames), "count")

@@ -1,0 +1,566 @@
+package dosemap
+
+import (
+	"fmt"
+	"math"
+	"runtime"
+	"sync"
+)
+
+// Residual heat.
+//
+// PRF thermometry measures the change of temperature from each series'
+// baseline frames. When a sonication starts before the tissue has cooled
+// from the earlier ones, the heat still present at its baseline is not
+// seen: the true temperature of every one of its frames is the measured
+// one plus that hidden rise, R(x) = T_true(x, t_b) − T_body. EstimateResidual
+// estimates R voxel by voxel from the cooling tails of the earlier
+// sonications.
+//
+// Model. The Pennes bioheat equation (Pennes, J Appl Physiol 1948;1:93-122)
+//
+//	ρc ∂T/∂t = k ∇²T − w_b c_b (T − T_a) + Q
+//
+// is linear in the rise u = T − T_a, so the rise at any time is the sum of
+// the rises each sonication caused (superposition), and each one, once its
+// heating has stopped, evolves without source. In a homogeneous medium
+// u = e^{−w t}·v with w = w_b c_b/(ρc) and v a solution of the heat
+// equation ∂v/∂t = α∇²v, α = k/(ρc) (Pennes 1948; the substitution is the
+// standard one, e.g. Carslaw & Jaeger, Conduction of Heat in Solids, 2nd
+// ed. 1959, from memory). A Gaussian spot of variance σ² keeps its shape
+// under conduction, its variance growing as σ² + 2αt (the heat kernel,
+// Carslaw & Jaeger, from memory), so a voxel at distance d from its centre
+// follows, from the time t_e of the last frame,
+//
+//	u(t) = a · e^{−w s} · (1 + s/τ)^{−3/2} · e^{q (1 − 1/(1+s/τ))},  s = t − t_e,
+//
+// with τ = σ²/(2α) at t_e and q = d²/(2σ²) ≥ 0: the centre (q = 0) only
+// cools, a voxel off the centre first warms as the heat arrives and then
+// cools like the centre. Per voxel, a ≥ 0 and the shape are fitted by
+// least squares to the sonication's last frames (its cooling tail): either
+// q = 0 with the voxel's own τ from a log-spaced set (from 1.25 times the
+// tail's span up to the spot's τ) or the spot's τ with q from a set up to
+// MaxOffCentre. The spot's τ is fitted first, with q = 0, on the voxels of
+// at least half its hottest last value (see spotTau); no voxel may decay
+// more slowly than its centre in the long run, as a flat tail
+// extrapolated without decay would carry a voxel's rise unchanged to every
+// later baseline. ResidualOptions.Dimensions 2 replaces the exponent 3/2
+// by 1 (a spot much longer than wide). w is not measurable from a few
+// seconds of tail: it is a setting (PerfusionRate, default 0, which errs
+// on the side of more hidden heat; for muscle, w_b 0.6 kg m⁻³ s⁻¹, c_b
+// 3617 J kg⁻¹ K⁻¹, ρc 3.73 MJ m⁻³ K⁻¹ give w ≈ 5.8e-4 s⁻¹, a time
+// constant of about 29 minutes; IT'IS tissue database v4, from memory).
+//
+// The tail of sonication j, measured from its own baseline, holds besides
+// its own heat the cooling of the earlier sonications' heat during its
+// series (negative). Before fitting, the estimated cooling of the earlier
+// contributions since j's baseline is added back, so each fit describes the
+// heat of its own sonication only. The estimate for sonication n is then
+// R = Σ_{k<n} mean over n's baseline frames of u_k(t). Tail frames are
+// averaged over each voxel's 3×3 in-plane neighbours (finite values only)
+// before fitting: the hidden field at a later baseline has spread by
+// conduction over several millimetres, the noise of the frames has not.
+//
+// Limits: the decay form is exact only for a round Gaussian spot in an
+// infinite homogeneous medium; an elongated spot, boundaries, large
+// vessels and heterogeneous tissue cool otherwise, and MaxOffCentre is a
+// calibration against the simulator (see there). A tail of a few
+// frames spanning a few seconds fixes the decay poorly: the estimate is a
+// review aid with an uncertainty of tens of per cent, not a measurement.
+// A sonication's heat that never reached a measured voxel (outside the
+// slab or plane) is not counted there. Where an earlier sonication did not
+// measure a voxel (no valid tail frame, outside its grid, no thermometry
+// such as a ready dose map, or no acquisition time) the estimate is
+// unknown (NaN), not zero.
+
+// ResidualOptions are the parameters of EstimateResidual.
+type ResidualOptions struct {
+	// TailFrames is the number of last frames of each series fitted
+	// (default 3; at least 2 valid frames per voxel are needed).
+	TailFrames int
+	// PerfusionRate is w = w_b c_b/(ρc) in s⁻¹ (default 0: no perfusion).
+	PerfusionRate float64
+	// MaxTau is the slowest conduction time constant fitted, s (default
+	// 3000).
+	MaxTau float64
+	// Dimensions is the number of directions heat spreads in the decay
+	// form (the exponent of the conduction term is Dimensions/2): 3 for a
+	// round spot (default), 2 for a spot much longer than wide.
+	Dimensions int
+}
+
+func (o ResidualOptions) exponent() float64 {
+	if o.Dimensions < 1 || o.Dimensions > 3 {
+		return 1.5
+	}
+	return float64(o.Dimensions) / 2
+}
+
+// DefaultResidualOptions returns 3 tail frames, no perfusion, conduction
+// in 3 dimensions and a slowest time constant of 3000 s.
+func DefaultResidualOptions() ResidualOptions {
+	return ResidualOptions{TailFrames: 3, MaxTau: 3000, Dimensions: 3}
+}
+
+func (o ResidualOptions) withDefaults() ResidualOptions {
+	d := DefaultResidualOptions()
+	if o.TailFrames < 2 {
+		o.TailFrames = d.TailFrames
+	}
+	if !(o.MaxTau > 0) {
+		o.MaxTau = d.MaxTau
+	}
+	if !(o.PerfusionRate > 0) {
+		o.PerfusionRate = 0
+	}
+	return o
+}
+
+// CoolingTail is what EstimateResidual needs of one sonication: its grid,
+// the times of its baseline frames and the last frames of its temperature
+// rise. Times are seconds on one clock shared by every sonication of the
+// session (for example seconds from the first sonication's start).
+type CoolingTail struct {
+	Geometry Geometry
+	Baseline []float64   // times of the baseline frames
+	Times    []float64   // times of the tail frames, increasing
+	Rise     [][]float32 // per tail frame, temperature − body temperature, °C; NaN unmeasured
+	// Mask, when not nil, limits the estimate to the voxels where it is
+	// true (the region an analysis looks at); elsewhere the cooling is not
+	// fitted and the later estimates are NaN.
+	Mask []bool
+}
+
+// NewCoolingTail keeps the baseline frame times and the last tail frames
+// of ts (opt.TailFrames, or all frames after the baseline when fewer).
+// start is the time of ts's first frame on the session clock; bodyTemp the
+// temperature ts's baseline stands for. It returns nil when ts has no
+// frame after its baseline.
+func NewCoolingTail(ts *TemperatureSeries, start float64, baselineFrames int, bodyTemp float64, opt ResidualOptions) *CoolingTail {
+	opt = opt.withDefaults()
+	nf := len(ts.Frames)
+	nb := min(max(baselineFrames, 1), nf)
+	if nf-nb < 1 {
+		return nil
+	}
+	k := min(opt.TailFrames, nf-nb)
+	t := &CoolingTail{Geometry: ts.Geometry}
+	for f := 0; f < nb; f++ {
+		t.Baseline = append(t.Baseline, start+ts.Times[f])
+	}
+	for f := nf - k; f < nf; f++ {
+		t.Times = append(t.Times, start+ts.Times[f])
+		r := make([]float32, len(ts.Frames[f]))
+		for v, x := range ts.Frames[f] {
+			r[v] = x - float32(bodyTemp)
+		}
+		t.Rise = append(t.Rise, r)
+	}
+	return t
+}
+
+// ResidualEstimate is the hidden rise at one sonication's baseline.
+type ResidualEstimate struct {
+	// Rise is the estimated rise over body temperature left by the earlier
+	// sonications at this one's baseline, °C, on this sonication's grid;
+	// NaN where unknown. All zero for the first sonication; nil when this
+	// sonication has no tail (no thermometry or no acquisition time).
+	Rise *Volume
+	// CoolingS is the time from the previous sonication's last frame to
+	// this one's first baseline frame, s; NaN for the first or when
+	// unknown.
+	CoolingS float64
+}
+
+// coolingFit is the fitted cooling of one sonication.
+type coolingFit struct {
+	g    Geometry
+	te   float64   // time of the last tail frame
+	amp  []float32 // a per voxel, °C; NaN unknown
+	tau  []uint8   // index into taus
+	taus []float64 // τ of each decay shape
+	qs   []float64 // q of each decay shape (0: the centre of a spot)
+	w    float64
+	p    float64 // exponent of the conduction term
+}
+
+// table returns the decay factor e^{−w s}(1+s/τ)^{−3/2} for every τ of f at
+// time t.
+func (f *coolingFit) table(t float64) []float32 {
+	s := t - f.te
+	out := make([]float32, len(f.taus))
+	for n, tau := range f.taus {
+		x := 1 + s/tau
+		if x <= 0 {
+			x = math.SmallestNonzeroFloat64
+		}
+		out[n] = float32(math.Exp(-f.w*s+f.qs[n]*(1-1/x)) * math.Pow(x, -f.p))
+	}
+	return out
+}
+
+// meanTable returns the decay factors of every τ averaged over times ts.
+func (f *coolingFit) meanTable(ts []float64) []float32 {
+	tab := make([]float32, len(f.taus))
+	for _, t := range ts {
+		for n, x := range f.table(t) {
+			tab[n] += x / float32(len(ts))
+		}
+	}
+	return tab
+}
+
+// addTo adds f's rise at the baseline of tail tl (mean over its baseline
+// frames) to rise, and the change of f's rise from that baseline to each
+// of tl's tail frames to corr[frame]; NaN where f is unknown. Both are on
+// tl's grid: f's values are resampled onto it when the grids differ (NaN
+// outside f's grid).
+func (f *coolingFit) addTo(g Geometry, tl *CoolingTail, rise []float32, corr [][]float32) {
+	nan := float32(math.NaN())
+	tb := f.meanTable(tl.Baseline)
+	tf := make([][]float32, len(tl.Times))
+	for fr, t := range tl.Times {
+		tf[fr] = f.table(t)
+	}
+	if f.g.SameGrid(g, 0.01) {
+		for v, a := range f.amp {
+			switch {
+			case a != a:
+				rise[v] = nan
+				continue
+			case a == 0:
+				continue
+			}
+			ti := f.tau[v]
+			b := a * tb[ti]
+			rise[v] += b
+			for fr := range tf {
+				corr[fr][v] += a*tf[fr][ti] - b
+			}
+		}
+		return
+	}
+	onGrid := func(tab []float32) []float32 {
+		x := make([]float32, f.g.Len())
+		for v, a := range f.amp {
+			x[v] = a * tab[f.tau[v]] // NaN stays NaN
+		}
+		return Resample(&Volume{Geometry: f.g, Data: x}, g).Data
+	}
+	at := onGrid(tb)
+	for v, x := range at {
+		rise[v] += x
+	}
+	for fr := range tf {
+		for v, x := range onGrid(tf[fr]) {
+			corr[fr][v] += x - at[v]
+		}
+	}
+}
+
+// EstimateResidual estimates, for each sonication in delivery order, the
+// rise still present at its baseline from the earlier ones (see the model
+// above). tails[n] nil means sonication n has no usable tail: its own
+// estimate is nil and the later estimates are unknown (NaN) everywhere.
+func EstimateResidual(tails []*CoolingTail, opt ResidualOptions) ([]ResidualEstimate, error) {
+	opt = opt.withDefaults()
+	out := make([]ResidualEstimate, len(tails))
+	fits := make([]*coolingFit, len(tails))
+	broken := false // an earlier sonication has no tail
+	for n, tl := range tails {
+		out[n].CoolingS = math.NaN()
+		if tl == nil {
+			broken = true
+			continue
+		}
+		if err := checkTail(tl); err != nil {
+			return nil, fmt.Errorf("sonication %d of the residual heat estimate: %w", n+1, err)
+		}
+		if n > 0 && tails[n-1] != nil && len(tl.Baseline) > 0 {
+			prev := tails[n-1]
+			out[n].CoolingS = tl.Baseline[0] - prev.Times[len(prev.Times)-1]
+		}
+		g := tl.Geometry
+		nv := g.Len()
+		rise := make([]float32, nv)
+		if broken {
+			for v := range rise {
+				rise[v] = float32(math.NaN())
+			}
+		}
+		// Earlier contributions: at the baseline (the estimate) and the
+		// cooling of them from the baseline to each tail frame (added back
+		// to the tail before it is fitted).
+		corr := make([][]float32, len(tl.Times))
+		for f := range corr {
+			corr[f] = make([]float32, nv)
+		}
+		for k := 0; k < n && !broken; k++ {
+			fits[k].addTo(g, tl, rise, corr)
+		}
+		out[n].Rise = &Volume{Geometry: g, Data: rise}
+		tail := make([][]float32, len(tl.Rise))
+		for f, r := range tl.Rise {
+			tail[f] = make([]float32, nv)
+			for v, x := range r {
+				if c := corr[f][v]; c == c {
+					x -= c // the earlier heat's cooling since the baseline, added back
+				}
+				tail[f][v] = x
+			}
+			tail[f] = smoothInPlane(g, tail[f], tl.Mask)
+		}
+		fits[n] = fitCooling(g, tl.Times, tail, tl.Mask, opt)
+	}
+	return out, nil
+}
+
+func checkTail(t *CoolingTail) error {
+	if err := t.Geometry.Validate(); err != nil {
+		return err
+	}
+	if len(t.Times) == 0 || len(t.Times) != len(t.Rise) {
+		return fmt.Errorf("%d tail frames with %d times", len(t.Rise), len(t.Times))
+	}
+	for f, r := range t.Rise {
+		if len(r) != t.Geometry.Len() {
+			return fmt.Errorf("tail frame %d holds %d voxels, the grid %d", f+1, len(r), t.Geometry.Len())
+		}
+		if f > 0 && !(t.Times[f] > t.Times[f-1]) {
+			return fmt.Errorf("tail frame times %g, %g do not increase", t.Times[f-1], t.Times[f])
+		}
+	}
+	return nil
+}
+
+// smoothInPlane returns the mean of the finite values among each voxel's
+// 3×3 in-plane neighbours; NaN where the voxel itself is NaN or outside
+// mask (nil: everywhere).
+func smoothInPlane(g Geometry, x []float32, mask []bool) []float32 {
+	out := make([]float32, len(x))
+	for k := 0; k < g.Slices; k++ {
+		for j := 0; j < g.Rows; j++ {
+			for i := 0; i < g.Cols; i++ {
+				n := g.Index(i, j, k)
+				if mask != nil && !mask[n] {
+					out[n] = float32(math.NaN())
+					continue
+				}
+				if x[n] != x[n] {
+					out[n] = x[n]
+					continue
+				}
+				var s float32
+				var c int
+				for dj := max(j-1, 0); dj <= min(j+1, g.Rows-1); dj++ {
+					for di := max(i-1, 0); di <= min(i+1, g.Cols-1); di++ {
+						if y := x[g.Index(di, dj, k)]; y == y {
+							s += y
+							c++
+						}
+					}
+				}
+				out[n] = s / float32(c)
+			}
+		}
+	}
+	return out
+}
+
+// tauCount is the number of conduction time constants tried per voxel.
+const tauCount = 64
+
+// MaxOffCentre is the largest q of the off-centre decay shapes (see the
+// model): e^q bounds how much a voxel's rise can still grow relative to
+// the centre's decay, q = d²/(2σ²) for a voxel at distance d from the
+// centre of a Gaussian spot (q = 3: d ≈ 2.4σ). A few tail frames fix a
+// large q poorly, and noise fitted as arriving heat grows by up to e^q:
+// 3 is a calibration against the simulator's bioheat solution, keeping
+// the estimate within 30 % of it on the short-gap sessions
+// (sim.ShortGapSession, gaps of 5–60 s; 4 overshoots at 60 s by half, 1
+// falls short by a third), not on patient data.
+const MaxOffCentre = 3.0
+
+// offCentreCount is the number of off-centre shapes tried per voxel.
+const offCentreCount = 12
+
+// fitCooling fits the decay form of the model, a ≥ 0, to each voxel's
+// tail frames by least squares: for each shape h (τ, q) of the set,
+// a = max(0, Σ y h / Σ h²); the shape with the least squared error wins
+// (the slowest centre shape on ties). Voxels with fewer than two finite
+// tail frames are unknown.
+func fitCooling(g Geometry, times []float64, tail [][]float32, mask []bool, opt ResidualOptions) *coolingFit {
+	te := times[len(times)-1]
+	span := te - times[0]
+	lo := math.Max(1.25*span, 1)
+	hi := math.Max(opt.MaxTau, 2*lo)
+	f := &coolingFit{g: g, te: te, w: opt.PerfusionRate, p: opt.exponent(), amp: make([]float32, g.Len()), tau: make([]uint8, g.Len())}
+	for n := 0; n < tauCount; n++ {
+		f.taus = append(f.taus, lo*math.Pow(hi/lo, float64(n)/(tauCount-1)))
+		f.qs = append(f.qs, 0)
+	}
+	h := make([][]float32, len(times)) // h[frame][shape]
+	for fr, t := range times {
+		h[fr] = f.table(t)
+	}
+	nv := g.Len()
+	spot := spotTau(tail, h)
+	top := spot
+	// Off-centre shapes: the spot's τ with heat still arriving.
+	for m := 1; m <= offCentreCount; m++ {
+		f.taus = append(f.taus, f.taus[spot])
+		f.qs = append(f.qs, MaxOffCentre*float64(m)/offCentreCount)
+	}
+	for fr, t := range times {
+		h[fr] = f.table(t)
+	}
+	shapes := make([]int, 0, top+1+offCentreCount)
+	for n := top; n >= 0; n-- {
+		shapes = append(shapes, n)
+	}
+	for n := tauCount; n < len(f.taus); n++ {
+		shapes = append(shapes, n)
+	}
+	nt := len(times)
+	hs := make([]float64, 0, len(shapes)*nt) // decay factor per shape and frame
+	ihh := make([]float64, len(shapes))      // 1/Σh² per shape
+	slot := make([]int, len(f.taus))         // position of each shape in shapes
+	for m, n := range shapes {
+		var hh float64
+		for fr := range times {
+			x := float64(h[fr][n])
+			hs = append(hs, x)
+			hh += x * x
+		}
+		ihh[m] = 1 / hh
+		slot[n] = m
+	}
+	workers := min(runtime.GOMAXPROCS(0), max(1, nv/4096))
+	var wg sync.WaitGroup
+	per := (nv + workers - 1) / workers
+	for lo := 0; lo < nv; lo += per {
+		hiV := min(lo+per, nv)
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			y := make([]float64, nt)
+			for v := lo; v < hiV; v++ {
+				if mask != nil && !mask[v] {
+					f.amp[v] = float32(math.NaN())
+					continue
+				}
+				valid := 0
+				var yy float64
+				for fr := range tail {
+					if y := tail[fr][v]; y == y {
+						valid++
+						yy += float64(y) * float64(y)
+					}
+				}
+				if valid < 2 {
+					f.amp[v] = float32(math.NaN())
+					continue
+				}
+				if valid == nt {
+					// Every frame valid (the common case): the least
+					// squared error yy − yh²/hh is the largest yh²/hh
+					// with yh > 0 (a = 0, error yy, otherwise).
+					for fr := range tail {
+						y[fr] = float64(tail[fr][v])
+					}
+					bestS, bestT := 0.0, top
+					for m, n := range shapes {
+						var yh float64
+						for fr, x := range hs[m*nt : (m+1)*nt] {
+							yh += y[fr] * x
+						}
+						if sc := yh * yh * ihh[m]; yh > 0 && sc > bestS*(1+1e-12) {
+							bestS, bestT = sc, n
+						}
+					}
+					var yh float64
+					for fr := range tail {
+						yh += y[fr] * float64(h[fr][bestT])
+					}
+					f.amp[v] = float32(math.Max(0, yh*ihh[slot[bestT]]))
+					f.tau[v] = uint8(bestT)
+					continue
+				}
+				best, bestA, bestT := math.Inf(1), 0.0, top
+				for _, n := range shapes {
+					var yh, hh float64
+					for fr := range tail {
+						if y := tail[fr][v]; y == y {
+							x := float64(h[fr][n])
+							yh += float64(y) * x
+							hh += x * x
+						}
+					}
+					a := math.Max(0, yh/hh)
+					sse := yy - 2*a*yh + a*a*hh
+					if sse < best-1e-12*math.Max(yy, 1e-12) {
+						best, bestA, bestT = sse, a, n
+					}
+				}
+				f.amp[v] = float32(bestA)
+				f.tau[v] = uint8(bestT)
+			}
+		}()
+	}
+	wg.Wait()
+	return f
+}
+
+// Owned reports whether ts's frames were computed by Thermometry (and may
+// be changed by their user) rather than shared with the sonication it was
+// made from (a temperature-map series passed through).
+func (ts *TemperatureSeries) Owned() bool { return ts.slab != nil }
+
+// spotTau returns the index of the conduction time constant of the
+// sonication's spot: the τ that fits the tails of the voxels whose last
+// frame is at least half the hottest (the spot's centre, where the decay
+// form holds) with the least summed squared error, each with its own
+// amplitude. Without a positive last frame it returns the slowest.
+func spotTau(tail [][]float32, h [][]float32) int {
+	last := tail[len(tail)-1]
+	peak := float32(0)
+	for _, x := range last {
+		if x == x && x > peak {
+			peak = x
+		}
+	}
+	if !(peak > 0) {
+		return tauCount - 1
+	}
+	sse := make([]float64, tauCount)
+	for v, x := range last {
+		if !(x >= peak/2) {
+			continue
+		}
+		var yy float64
+		for fr := range tail {
+			if y := tail[fr][v]; y == y {
+				yy += float64(y) * float64(y)
+			}
+		}
+		for n := 0; n < tauCount; n++ {
+			var yh, hh float64
+			for fr := range tail {
+				if y := tail[fr][v]; y == y {
+					x := float64(h[fr][n])
+					yh += float64(y) * x
+					hh += x * x
+				}
+			}
+			a := math.Max(0, yh/hh)
+			sse[n] += yy - 2*a*yh + a*a*hh
+		}
+	}
+	best := tauCount - 1
+	for n := tauCount - 1; n >= 0; n-- {
+		if sse[n] < sse[best]*(1-1e-12) {
+			best = n
+		}
+	}
+	return best
+}
