@@ -263,6 +263,7 @@ func (rw *reviewWindow) caseLoaded(lc *loadedCase, hash string, nFiles int, rec 
 	rw.loaded, rw.hash, rw.nFiles = lc, hash, nFiles
 	lc.DriftFlagC = rw.app.Preferences().FloatWithFallback(prefDriftFlag, review.DefaultDriftFlagC)
 	rw.sess, rw.result, rw.selected, rw.pinned = nil, nil, -1, nil
+	rw.fromRecord = rec != nil
 	if rec == nil {
 		rec = &reviewRecord{InputHash: hash}
 	}
@@ -299,7 +300,7 @@ func (rw *reviewWindow) caseLoaded(lc *loadedCase, hash string, nFiles int, rec 
 		return
 	}
 	if note := rw.missingScannerValues(); note != "" {
-		showSettingsDialog(rw.win, rw.settings, note, func(s review.Settings) {
+		showSettingsDialog(rw.win, rw.settings, note, rw.settingsOrigin(), func(s review.Settings) {
 			rw.settings = s
 			rw.runAnalysis(true)
 		})
@@ -531,7 +532,7 @@ func (rw *reviewWindow) setExcluded(num int, excluded bool) {
 // openSettings shows the settings dialog; thermometry changes recompute
 // temperature, a phase-scale change re-reads the folder.
 func (rw *reviewWindow) openSettings() {
-	showSettingsDialog(rw.win, rw.settings, "", func(s review.Settings) {
+	showSettingsDialog(rw.win, rw.settings, "", rw.settingsOrigin(), func(s review.Settings) {
 		old := rw.settings
 		rw.settings = s
 		savePrefSettings(rw.app.Preferences(), s)

@@ -177,3 +177,26 @@ func TestSortSonications(t *testing.T) {
 		t.Errorf("descending by number: first row is result row %d", rw.sonIndex(0))
 	}
 }
+
+// TestSettingsOrigin: the settings dialog says whether its values are the
+// case's (from its review record) or your defaults, and whether your
+// defaults differ.
+func TestSettingsOrigin(t *testing.T) {
+	rw := testWindow(t)
+	if s := rw.settingsOrigin(); !strings.Contains(s, "No case is open") {
+		t.Errorf("no case: %q", s)
+	}
+	openSynthetic(t, rw)
+	s := rw.settingsOrigin()
+	if !strings.Contains(s, "no review record yet") || !strings.Contains(s, "are the same") {
+		t.Errorf("fresh case, default settings: %q", s)
+	}
+	d := rw.settings
+	d.MarginMM = 5
+	savePrefSettings(rw.app.Preferences(), d)
+	rw.fromRecord = true
+	s = rw.settingsOrigin()
+	if !strings.Contains(s, "from its review record") || !strings.Contains(s, "differ") || !strings.Contains(s, "5 mm") {
+		t.Errorf("case from its record, other defaults: %q", s)
+	}
+}

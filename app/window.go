@@ -46,6 +46,7 @@ type reviewWindow struct {
 	jobGen     int
 	pendingDir string // the folder being opened
 	lastExport string // path stem of the last report export
+	fromRecord bool   // the open case's settings came from its review record
 	// The sonication table's order: the column sorted by (1, the number,
 	// at first), descending or not, and the result row of each table row
 	// (nil: to be computed).
