@@ -114,6 +114,7 @@ func (rw *reviewWindow) pin(p dosemap.Vec3) {
 			}
 			rw.probeCurve = c
 			rw.probeMsg.SetText(msg)
+			rw.probe.below = func() *plotPlot { return probeDosePlot(c) }
 			rw.probe.set(func() *plotPlot { return probePlot(c) })
 		})
 	}()

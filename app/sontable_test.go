@@ -11,6 +11,7 @@ import (
 
 	"dosecover/dosemap"
 	"dosecover/review"
+	"dosecover/review/view"
 
 	"fyne.io/fyne/v2/widget"
 )
@@ -198,5 +199,43 @@ func TestSettingsOrigin(t *testing.T) {
 	s = rw.settingsOrigin()
 	if !strings.Contains(s, "from its review record") || !strings.Contains(s, "differ") || !strings.Contains(s, "5 mm") {
 		t.Errorf("case from its record, other defaults: %q", s)
+	}
+}
+
+// TestPinnedPointPlots: pinning a point plots its temperature with the
+// sonication numbers along the time axis and, below it, the dose
+// accumulated there over time (the dose curve in the target colour).
+func TestPinnedPointPlots(t *testing.T) {
+	rw := testWindow(t)
+	// The synthetic case holds ready dose maps only (no temperature to
+	// plot, and the probe says so); the demo has thermometry.
+	rw.pin(dosemap.Vec3{0, 0, 0})
+	openDemoCase(t, rw)
+	if len(rw.result.HoleRows) == 0 {
+		t.Fatal("no hole in the demo to pin")
+	}
+	rw.pin(rw.result.HoleRows[0].Centre)
+	deadline := time.Now().Add(30 * time.Second)
+	for rw.probeCurve == nil && time.Now().Before(deadline) {
+		time.Sleep(5 * time.Millisecond)
+	}
+	c := rw.probeCurve
+	if c == nil || rw.probe.below == nil {
+		t.Fatalf("no probe plots (message %q)", rw.probeMsg.Text)
+	}
+	if len(c.Numbers) != len(rw.result.SonRows) || c.Numbers[0] != rw.result.SonRows[0].Number {
+		t.Errorf("sonication numbers %v, want one per sonication", c.Numbers)
+	}
+	img := renderPlotsImage(probePlot(c), probeDosePlot(c), 600, 400, 1)
+	lower := 0
+	for y := 260; y < 400; y++ {
+		for x := 0; x < 600; x++ {
+			if img.RGBAAt(x, y) == view.ColorTarget {
+				lower++
+			}
+		}
+	}
+	if lower < 50 {
+		t.Errorf("%d pixels of the dose curve in the lower plot, want a curve", lower)
 	}
 }

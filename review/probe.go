@@ -18,6 +18,7 @@ type Probe struct {
 	True        []float64    // °C, Temp plus the estimated heat left from earlier sonications at the sonication's baseline (Residual; NaN unknown)
 	Dose        []float64    // cumulative dose at the voxel, model unit
 	Boundaries  []float64    // start time of each sonication, s
+	Numbers     []int        // number of the sonication starting at each boundary
 	LethalAt    float64      // time the cumulative dose reached the threshold; NaN never
 	FinalDose   float64      // cumulative dose after the last sonication
 	Unit        string       // dose unit as shown (Settings.Unit)
@@ -109,6 +110,19 @@ func (s *Session) Probe(p dosemap.Vec3, set Settings) (*Probe, error) {
 	voxelText := ""
 	for n, sd := range s.sons {
 		so := sd.source
+		if so == nil {
+			// A sonication the session keeps no source of (a ready dose
+			// map): its dose, on the thermometry grid, counts at its start.
+			c.Boundaries = append(c.Boundaries, clock)
+			c.Numbers = append(c.Numbers, sd.number)
+			if !ex[sd.number] {
+				d := dosemap.Volume{Geometry: s.fg.coarse, Data: sd.dose}
+				if v := d.Sample(p); v == v {
+					cum += float64(v)
+				}
+			}
+			continue
+		}
 		if first == nil {
 			first = so
 		}
@@ -117,6 +131,7 @@ func (s *Session) Probe(p dosemap.Vec3, set Settings) (*Probe, error) {
 			start = so.Start.Sub(first.Start).Seconds()
 		}
 		c.Boundaries = append(c.Boundaries, start)
+		c.Numbers = append(c.Numbers, so.Number)
 		ts := series[n]
 		if ts != nil && s.keep != nil && !insideBlock(ts.Geometry, p) {
 			full, err := thermometry(so, s.prepared.Thermometry)
