@@ -34,6 +34,7 @@ type loadedCase struct {
 	MissingB0     bool     // some thermometry lacks MagneticFieldStrength
 	MissingTE     bool     // some thermometry lacks EchoTime
 	Demo          bool     // the built-in demo case, opened from the user cache
+	DriftFlagC    float64  // removed drift (°C) above which a sonication is flagged; 0: review.DefaultDriftFlagC
 	Study         string   // StudyInstanceUID of the study read; "" when unknown
 	// Studies lists the studies of a folder that holds several when none
 	// was chosen (nothing was read; the window offers a chooser).
@@ -83,6 +84,7 @@ type sonicationRow struct {
 	PeakDose      float64   // highest dose of this sonication alone, model unit
 	DoseAddedML   float64   // mL of tissue newly above the threshold
 	CoverageAdded float64   // fraction of the target newly covered
+	OutsideML     float64   // mL of lethal dose it added outside the margin
 	Flags         []string  // quality flags and notes, plain words
 	Flagged       bool      // a flag (not only notes) was raised
 	CoolingS      float64   // s since the previous sonication's last frame (NaN first or unknown)

@@ -7,7 +7,7 @@ import (
 	"fmt"
 	"strings"
 
-	"dosecover/dosemap/dicomio"
+	"dosecover/review"
 )
 
 // The case reader: dosemap/dicomio.
@@ -16,7 +16,11 @@ func init() {
 }
 
 func readCaseDICOM(ctx context.Context, dir string, opt loadOptions, progress func(done, total int)) (*loadedCase, error) {
-	c, inv, err := dicomio.Load(ctx, dir, dicomio.LoadOptions{PhaseScale: opt.PhaseScale, Study: opt.Study}, progress)
+	// As the commands read: the frames stay in their files and are
+	// decoded one sonication at a time when the thermometry needs them.
+	set := review.DefaultSettings()
+	set.Thermometry.PhaseScale = opt.PhaseScale
+	c, inv, err := review.LoadCase(ctx, dir, set, review.LoadOptions{Study: opt.Study, Progress: progress})
 	if err != nil {
 		return nil, err
 	}

@@ -18,8 +18,9 @@ func init() {
 
 // reviewSession wraps a prepared review.Session for the window.
 type reviewSession struct {
-	c  *dosemap.Case
-	rs *review.Session
+	c          *dosemap.Case
+	rs         *review.Session
+	driftLimit float64 // °C; a sonication with more drift removed is flagged
 }
 
 func prepareReview(ctx context.Context, lc *loadedCase, s review.Settings, progress func(stage string, frac float64)) (session, error) {
@@ -27,7 +28,7 @@ func prepareReview(ctx context.Context, lc *loadedCase, s review.Settings, progr
 	if err != nil {
 		return nil, err
 	}
-	return &reviewSession{c: lc.Case, rs: rs}, nil
+	return &reviewSession{c: lc.Case, rs: rs, driftLimit: lc.DriftFlagC}, nil
 }
 
 func ptr(p *float64) float64 {
@@ -94,7 +95,7 @@ func (ss *reviewSession) wrap(r *review.Result) *analysisResult {
 	}
 	for _, st := range r.Sonications {
 		row := sonicationRow{Number: st.Number, Label: st.Label, PeakTemp: ptr(st.PeakTempC), PeakDose: st.PeakDose,
-			DoseAddedML: st.LethalAddedML, CoverageAdded: st.AddedCoverage, Offset: math.NaN(),
+			DoseAddedML: st.LethalAddedML, CoverageAdded: st.AddedCoverage, OutsideML: st.OutsideAddedML, Offset: math.NaN(),
 			CoolingS: ptr(st.CoolingS), ResidualC: ptr(st.ResidualRiseC)}
 		row.ResidualHigh = row.ResidualC > r.Settings.ResidualWarnC
 		if so := ss.sonication(st.Number); so != nil {
@@ -111,7 +112,7 @@ func (ss *reviewSession) wrap(r *review.Result) *analysisResult {
 			if so := ss.sonication(st.Number); so != nil {
 				vf = so.Geometry.Len() * so.Frames()
 			}
-			row.Flags, row.Flagged = qualityFlags(q, vf)
+			row.Flags, row.Flagged = qualityFlags(q, vf, ss.driftLimit)
 		}
 		out.SonRows = append(out.SonRows, row)
 		out.SonicationDose = append(out.SonicationDose, ss.rs.SonicationDose(st.Number))
@@ -132,7 +133,7 @@ func (ss *reviewSession) sonication(num int) *dosemap.Sonication {
 // suspected phase wraps) and, as plain notes, the drift removed, the motion
 // measure and the share of invalid voxel-frames. It reports whether any
 // flag (not only notes) was raised.
-func qualityFlags(q review.SonicationQuality, voxelFrames int) ([]string, bool) {
+func qualityFlags(q review.SonicationQuality, voxelFrames int, driftLimit float64) ([]string, bool) {
 	var f []string
 	if n := len(q.FlaggedFrames); n > 0 {
 		f = append(f, fmt.Sprintf("%d frame(s) rejected: %s", n, sliceList(q.FlaggedFrames)))
@@ -140,8 +141,14 @@ func qualityFlags(q review.SonicationQuality, voxelFrames int) ([]string, bool) 
 	if q.Wraps > 0 {
 		f = append(f, fmt.Sprintf("%d suspected phase wraps", q.Wraps))
 	}
+	if q.DriftFlagged(driftLimit) {
+		if !(driftLimit > 0) {
+			driftLimit = review.DefaultDriftFlagC
+		}
+		f = append(f, fmt.Sprintf("drift %.2f °C removed, above %s °C", math.Abs(q.MaxDriftC), fmtNum(driftLimit)))
+	}
 	flagged := len(f) > 0
-	if q.MaxDriftC != 0 && !math.IsNaN(q.MaxDriftC) {
+	if q.MaxDriftC != 0 && !math.IsNaN(q.MaxDriftC) && !q.DriftFlagged(driftLimit) {
 		f = append(f, fmt.Sprintf("drift ≤ %.2f °C", math.Abs(q.MaxDriftC)))
 	}
 	if q.MaxMotion > 0 {

@@ -4,7 +4,16 @@ package main
 
 import (
 	"fmt"
+	"os"
+	"path/filepath"
+	"runtime"
 	"testing"
+	"time"
+
+	"dosecover/dosemap/sim"
+
+	"fyne.io/fyne/v2"
+	"fyne.io/fyne/v2/test"
 )
 
 // BenchmarkViewerDraw measures one redraw of the acquisition view of the
@@ -83,4 +92,83 @@ func BenchmarkReanalyse(b *testing.B) {
 			b.Fatal(err)
 		}
 	}
+}
+
+// BenchmarkOpenCase measures the window's whole load path without a
+// display (fyne's test driver): opening a simulated session's folder as
+// File ▸ Open does (input hash, reading, thermometry and dose, analysis
+// with the default settings, the case on screen) and the peak temperature
+// the hover readout uses, for the typical session cut to 6, 12 and 24
+// sonications of 14 frames (about 1 000, 2 000 and 4 000 files; 12 and
+// 24 skipped with -short). Beside wall time it reports the process CPU
+// time per open (cpu-ms/op) and the heap the window holds once the case
+// is open (live-MB: the heap after a garbage collection less the heap
+// before the first open). The sessions are written
+// once per run into a temporary folder, or into
+// $DOSECOVER_WINDOW_BENCH_DIR/sN and reused.
+func BenchmarkOpenCase(b *testing.B) {
+	for _, ns := range []int{6, 12, 24} {
+		b.Run(fmt.Sprintf("sonications=%d", ns), func(b *testing.B) {
+			if testing.Short() && ns > 6 {
+				b.Skip("writing the session takes long; skipped with -short")
+			}
+			dir := benchSession(b, ns)
+			records := b.TempDir()
+			old := reviewsDir
+			reviewsDir = func() (string, error) { return records, nil }
+			defer func() { reviewsDir = old }()
+			a := test.NewTempApp(b)
+			rw := newReviewWindow(a)
+			rw.win.Resize(fyne.NewSize(1560, 940))
+			defer rw.win.Close()
+			live := func() float64 {
+				runtime.GC()
+				var ms runtime.MemStats
+				runtime.ReadMemStats(&ms)
+				return float64(ms.HeapAlloc) / (1 << 20)
+			}
+			before := live()
+			b.ResetTimer()
+			c0 := cpuTime()
+			for i := 0; i < b.N; i++ {
+				mark, aux := rw.completed.Load(), rw.auxDone.Load()
+				fyne.DoAndWait(func() { rw.openCase(dir) })
+				// The read, then the analysis; then the peak temperature.
+				for rw.completed.Load() < mark+2 || rw.auxDone.Load() < aux+1 {
+					time.Sleep(2 * time.Millisecond)
+				}
+				if rw.result == nil || len(rw.result.SonRows) != ns {
+					b.Fatalf("no analysis of %d sonications: %s", ns, rw.status.Text)
+				}
+			}
+			b.StopTimer()
+			if c := cpuTime(); c > 0 {
+				b.ReportMetric(float64(c-c0)/float64(b.N)/1e6, "cpu-ms/op")
+			}
+			b.ReportMetric(live()-before, "live-MB")
+		})
+	}
+}
+
+// benchSession returns the folder of the typical simulated session cut to
+// ns sonications, writing it first when needed.
+func benchSession(b *testing.B, ns int) string {
+	b.Helper()
+	root := os.Getenv("DOSECOVER_WINDOW_BENCH_DIR")
+	if root == "" {
+		root = b.TempDir()
+	}
+	dir := filepath.Join(root, fmt.Sprintf("s%d", ns))
+	if _, err := os.Stat(filepath.Join(dir, sim.TruthFile)); err == nil {
+		return dir
+	}
+	s := sim.TypicalSession(1)
+	s.Sonications = s.Sonications[:ns]
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		b.Fatal(err)
+	}
+	if _, err := sim.WriteSession(dir, s); err != nil {
+		b.Fatal(err)
+	}
+	return dir
 }

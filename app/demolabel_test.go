@@ -93,7 +93,7 @@ func TestDemoNamedAsDemo(t *testing.T) {
 	var metrics struct {
 		Case string `json:"case"`
 	}
-	b, err := os.ReadFile(filepath.Join(out, base+".json"))
+	b, err := os.ReadFile(filepath.Join(out, filepath.Base(rw.lastExport)+".json"))
 	if err == nil {
 		err = json.Unmarshal(b, &metrics)
 	}

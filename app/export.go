@@ -3,6 +3,10 @@
 package main
 
 import (
+	"errors"
+	"fmt"
+	"io/fs"
+	"os"
 	"path/filepath"
 	"strings"
 	"time"
@@ -75,10 +79,33 @@ func (rw *reviewWindow) reportBase() string {
 	return strings.Trim(b.String(), "._") + "-dose-review"
 }
 
+// exportStem returns the path stem of an export into dir: the case stem,
+// the date (local, YYYY-MM-DD) and, when an earlier export of that day is
+// there (any of its four files), "-2", "-3" ... so that no earlier export
+// is overwritten.
+func exportStem(dir, stem string, now time.Time) string {
+	base := filepath.Join(dir, stem+"-"+now.Format("2006-01-02"))
+	taken := func(b string) bool {
+		for _, ext := range []string{".png", ".pdf", ".json", ".csv"} {
+			if _, err := os.Lstat(b + ext); err == nil || !errors.Is(err, fs.ErrNotExist) {
+				return true
+			}
+		}
+		return false
+	}
+	for n, b := 2, base; ; n++ {
+		if !taken(b) {
+			return b
+		}
+		b = fmt.Sprintf("%s-%d", base, n)
+	}
+}
+
 // writeReport renders and writes the report into dir off the UI goroutine.
 func (rw *reviewWindow) writeReport(dir string) {
 	raw, _ := rw.resultRaw()
-	base := filepath.Join(dir, rw.reportBase())
+	base := exportStem(dir, rw.reportBase(), time.Now())
+	rw.lastExport = base
 	out := report.Outputs{PNG: base + ".png", PDF: base + ".pdf", JSON: base + ".json", CSV: base + ".csv"}
 	for _, p := range []string{out.PNG, out.PDF, out.JSON, out.CSV} {
 		if err := safefile.CheckOutside(rw.loaded.Dir, p); err != nil {
@@ -96,6 +123,7 @@ func (rw *reviewWindow) writeReport(dir string) {
 	opt := report.Options{
 		Deidentify: rw.teaching, Reviewer: reviewer, SignOffs: rw.record.SignOffs, Study: rw.loaded.Study,
 		ReviewDate: time.Now().UTC().Truncate(time.Second), InputsSHA256: rw.hash,
+		DriftFlagC: rw.app.Preferences().FloatWithFallback(prefDriftFlag, review.DefaultDriftFlagC),
 	}
 	c, caseDir := rw.loaded.Case, rw.loaded.Dir
 	rw.status.SetText("Writing the report…")

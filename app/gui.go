@@ -7,7 +7,6 @@ import (
 
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/app"
-	"fyne.io/fyne/v2/theme"
 )
 
 const appID = "org.dosecover.review"
@@ -16,7 +15,7 @@ const appID = "org.dosecover.review"
 // and returns when the window is closed.
 func openGUI(dir string, _ io.Writer) int {
 	a := app.NewWithID(appID)
-	a.Settings().SetTheme(theme.DarkTheme())
+	a.Settings().SetTheme(newReviewTheme())
 	rw := newReviewWindow(a)
 	rw.win.Resize(fyne.NewSize(1560, 960))
 	if dir == "" {

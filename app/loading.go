@@ -10,6 +10,8 @@ import (
 	"os"
 	"path/filepath"
 	"strings"
+	"sync"
+	"time"
 
 	"dosecover/dosemap"
 	"dosecover/review"
@@ -192,6 +194,7 @@ func (rw *reviewWindow) openStudy(dir string, demo bool, study string) {
 			setting = prefs
 		)
 		hash, nFiles, err = hashInputs(ctx, dir)
+		stage("input hash")
 		if err == nil {
 			rec, recErr = loadRecord(hash)
 			if rec != nil {
@@ -201,6 +204,7 @@ func (rw *reviewWindow) openStudy(dir string, demo bool, study string) {
 			// The reader reports two passes (attributes, then pixel data),
 			// each from zero: a drop in done starts the second.
 			pass, last := 0, -1
+			every := newThrottle(progressEvery)
 			lc, err = readCase(ctx, dir, loadOptions{PhaseScale: setting.Thermometry.PhaseScale, Study: study}, func(done, total int) {
 				if total <= 0 {
 					return
@@ -209,11 +213,15 @@ func (rw *reviewWindow) openStudy(dir string, demo bool, study string) {
 					pass = 1
 				}
 				last = done
+				if !every.due(done == total) {
+					return
+				}
 				what := [2]string{"attributes", "images"}[pass]
 				progress(fmt.Sprintf("Reading %s (%s): %d of %d files", base, what, done, total),
 					0.05+0.225*(float64(pass)+float64(done)/float64(total)))
 			})
 		}
+		stage("case read")
 		if err == nil && demo && lc != nil {
 			lc.Demo = true
 			if lc.Case != nil {
@@ -254,7 +262,9 @@ func (rw *reviewWindow) openStudy(dir string, demo bool, study string) {
 // caseLoaded shows a freshly read case and starts its analysis.
 func (rw *reviewWindow) caseLoaded(lc *loadedCase, hash string, nFiles int, rec *reviewRecord, s review.Settings) {
 	rw.loaded, rw.hash, rw.nFiles = lc, hash, nFiles
+	lc.DriftFlagC = rw.app.Preferences().FloatWithFallback(prefDriftFlag, review.DefaultDriftFlagC)
 	rw.sess, rw.result, rw.selected, rw.pinned = nil, nil, -1, nil
+	rw.fromRecord = rec != nil
 	if rec == nil {
 		rec = &reviewRecord{InputHash: hash}
 	}
@@ -280,6 +290,7 @@ func (rw *reviewWindow) caseLoaded(lc *loadedCase, hash string, nFiles int, rec 
 	}
 	rw.setViewGrid()
 	rw.metrics.update()
+	rw.sonOrder = nil
 	rw.sonTable.Refresh()
 	rw.setBusy(fmt.Sprintf("Read %d sonications, %d structures; %d files skipped.", len(c.Sonications), len(c.Structures), len(lc.Skipped)), -1)
 	if lc.NotReviewable != "" {
@@ -290,7 +301,7 @@ func (rw *reviewWindow) caseLoaded(lc *loadedCase, hash string, nFiles int, rec 
 		return
 	}
 	if note := rw.missingScannerValues(); note != "" {
-		showSettingsDialog(rw.win, rw.settings, note, func(s review.Settings) {
+		showSettingsDialog(rw.win, rw.settings, note, rw.settingsOrigin(), func(s review.Settings) {
 			rw.settings = s
 			rw.runAnalysis(true)
 		})
@@ -400,7 +411,11 @@ func (rw *reviewWindow) runAnalysis(prepare bool) {
 	go func() {
 		var err error
 		if sess == nil {
+			every := newThrottle(progressEvery)
 			sess, err = prepareCase(ctx, lc, set, func(stage string, frac float64) {
+				if !every.due(frac >= 1) {
+					return
+				}
 				fyne.Do(func() {
 					if gen == rw.jobGen {
 						rw.setBusy(stage, 0.5+0.45*frac)
@@ -408,10 +423,12 @@ func (rw *reviewWindow) runAnalysis(prepare bool) {
 				})
 			})
 		}
+		stage("prepared")
 		var res *analysisResult
 		if err == nil {
 			res, err = sess.Analyze(ctx, set)
 		}
+		stage("analysed")
 		fyne.Do(func() {
 			defer rw.completed.Add(1)
 			if !rw.finishJob(gen) {
@@ -428,6 +445,7 @@ func (rw *reviewWindow) runAnalysis(prepare bool) {
 			rw.sess = sess
 			rw.showResult(res)
 			rw.setBusy(fmt.Sprintf("Analysed with %s.", set.Describe()), -1)
+			stage("analysed case on screen")
 		})
 	}()
 }
@@ -440,7 +458,7 @@ func (rw *reviewWindow) showResult(res *analysisResult) {
 		rw.opt.Floor = defaultFloor(res.Threshold)
 	}
 	rw.applyFloor()
-	rw.washBar.set(rw.opt.Floor, washTop(res.Threshold), res.Unit)
+	rw.washBar.set(rw.opt.Floor, washTop(res.Threshold), res.Threshold, res.Unit)
 	if rw.selected >= len(res.SonRows) {
 		rw.selected = -1
 	}
@@ -452,6 +470,7 @@ func (rw *reviewWindow) showResult(res *analysisResult) {
 		rw.frameTarget()
 	}
 	rw.metrics.update()
+	rw.sonOrder = nil
 	rw.sonTable.Refresh()
 	if rw.pinned != nil {
 		rw.pin(*rw.pinned)
@@ -523,7 +542,7 @@ func (rw *reviewWindow) setExcluded(num int, excluded bool) {
 // openSettings shows the settings dialog; thermometry changes recompute
 // temperature, a phase-scale change re-reads the folder.
 func (rw *reviewWindow) openSettings() {
-	showSettingsDialog(rw.win, rw.settings, "", func(s review.Settings) {
+	showSettingsDialog(rw.win, rw.settings, "", rw.settingsOrigin(), func(s review.Settings) {
 		old := rw.settings
 		rw.settings = s
 		savePrefSettings(rw.app.Preferences(), s)
@@ -563,8 +582,10 @@ func (rw *reviewWindow) startPeakTemperature(res *analysisResult) {
 	}
 	go func() {
 		v, err := sess.PeakTemperature(set)
+		stage("peak temperature")
 		fyne.Do(func() {
 			defer rw.auxDone.Add(1)
+			defer timingDone()
 			if rw.result != res || err != nil {
 				return
 			}
@@ -618,4 +639,29 @@ func spread(pts []dosemap.Vec3, d dosemap.Vec3) float64 {
 		lo, hi = math.Min(lo, x), math.Max(hi, x)
 	}
 	return hi - lo
+}
+
+// progressEvery is the shortest time between two progress updates on
+// screen: a few a second, whatever the number of files.
+const progressEvery = 200 * time.Millisecond
+
+// throttle passes at most one event per interval (and every last one).
+type throttle struct {
+	mu    sync.Mutex
+	every time.Duration
+	last  time.Time
+}
+
+func newThrottle(every time.Duration) *throttle { return &throttle{every: every} }
+
+// due reports whether an event should pass now; final events always pass.
+func (t *throttle) due(final bool) bool {
+	t.mu.Lock()
+	defer t.mu.Unlock()
+	now := time.Now()
+	if !final && now.Sub(t.last) < t.every {
+		return false
+	}
+	t.last = now
+	return true
 }

@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"image/color"
 	"math"
+	"sort"
 	"strings"
 
 	"dosecover/dosemap"
@@ -113,6 +114,7 @@ func (rw *reviewWindow) pin(p dosemap.Vec3) {
 			}
 			rw.probeCurve = c
 			rw.probeMsg.SetText(msg)
+			rw.probe.below = func() *plotPlot { return probeDosePlot(c) }
 			rw.probe.set(func() *plotPlot { return probePlot(c) })
 		})
 	}()
@@ -124,7 +126,87 @@ var sonColumns = []struct {
 	width float32
 }{
 	{"use", 48}, {"no.", 40}, {"time", 62}, {"label", 190}, {"peak °C", 70}, {"peak dose", 90}, {"lethal added mL", 124},
-	{"coverage added", 118}, {"cooled s", 76}, {"residual °C", 96}, {"quality and notes", 560},
+	{"coverage added", 118}, {"outside margin added mL", 184}, {"cooled s", 76}, {"residual °C", 96},
+	{"quality and notes", 560},
+}
+
+// sonKey is the value column col sorts sonication rows by (the check box
+// column sorts by inclusion, the notes by their flags).
+func (rw *reviewWindow) sonKey(r sonicationRow, col int) float64 {
+	switch col {
+	case 0:
+		if excludedSet(rw.settings)[r.Number] {
+			return 1
+		}
+		return 0
+	case 2:
+		return r.Offset
+	case 4:
+		return r.PeakTemp
+	case 5:
+		return r.PeakDose
+	case 6:
+		return r.DoseAddedML
+	case 7:
+		return r.CoverageAdded
+	case 8:
+		return r.OutsideML
+	case 9:
+		return r.CoolingS
+	case 10:
+		return r.ResidualC
+	case 11:
+		if r.Flagged {
+			return 1
+		}
+		return 0
+	}
+	return float64(r.Number)
+}
+
+// sonIndex returns the index in the result's rows of table row n, in the
+// order the user chose by tapping a column header (delivery order first).
+func (rw *reviewWindow) sonIndex(n int) int {
+	rows := rw.result.SonRows
+	if len(rw.sonOrder) != len(rows) {
+		rw.sonOrder = make([]int, len(rows))
+		for i := range rows {
+			rw.sonOrder[i] = i
+		}
+		col, desc := rw.sonSort, rw.sonDesc
+		sort.SliceStable(rw.sonOrder, func(a, b int) bool {
+			if col == 3 {
+				x, y := rows[rw.sonOrder[a]].Label, rows[rw.sonOrder[b]].Label
+				return x < y != desc && x != y
+			}
+			x, y := rw.sonKey(rows[rw.sonOrder[a]], col), rw.sonKey(rows[rw.sonOrder[b]], col)
+			// Unknown values (NaN) go last either way.
+			if math.IsNaN(x) || math.IsNaN(y) {
+				return !math.IsNaN(x) && math.IsNaN(y)
+			}
+			if desc {
+				return x > y
+			}
+			return x < y
+		})
+	}
+	if n < 0 || n >= len(rw.sonOrder) {
+		return n
+	}
+	return rw.sonOrder[n]
+}
+
+// sortSonications orders the table by column col; tapping the same
+// column again reverses the order.
+func (rw *reviewWindow) sortSonications(col int) {
+	if rw.sonSort == col {
+		rw.sonDesc = !rw.sonDesc
+	} else {
+		rw.sonSort, rw.sonDesc = col, false
+	}
+	rw.sonOrder = nil
+	rw.sonTable.UnselectAll()
+	rw.sonTable.Refresh()
 }
 
 func (rw *reviewWindow) newSonicationTable() *widget.Table {
@@ -147,7 +229,7 @@ func (rw *reviewWindow) newSonicationTable() *widget.Table {
 			if rw.result == nil || id.Row >= len(rw.result.SonRows) {
 				return
 			}
-			row := rw.result.SonRows[id.Row]
+			row := rw.result.SonRows[rw.sonIndex(id.Row)]
 			if id.Col == 0 {
 				l.Hide()
 				chk.Show()
@@ -184,13 +266,15 @@ func (rw *reviewWindow) newSonicationTable() *widget.Table {
 			case 7:
 				l.SetText(fmtOpt(100*row.CoverageAdded, "%.1f %%"))
 			case 8:
-				l.SetText(fmtOpt(row.CoolingS, "%.0f"))
+				l.SetText(fmtOpt(row.OutsideML, "%.3f"))
 			case 9:
+				l.SetText(fmtOpt(row.CoolingS, "%.0f"))
+			case 10:
 				if row.ResidualHigh {
 					l.Importance = widget.WarningImportance
 				}
 				l.SetText(fmtOpt(row.ResidualC, "%.1f"))
-			case 10:
+			case 11:
 				if excludedSet(rw.settings)[row.Number] {
 					l.Importance = widget.LowImportance
 					l.SetText("left out of the cumulative dose")
@@ -208,14 +292,24 @@ func (rw *reviewWindow) newSonicationTable() *widget.Table {
 			}
 		})
 	t.CreateHeader = func() fyne.CanvasObject {
-		return widget.NewLabelWithStyle("", fyne.TextAlignLeading, fyne.TextStyle{Bold: true})
+		b := widget.NewButton("", nil)
+		b.Alignment = widget.ButtonAlignLeading
+		b.Importance = widget.LowImportance
+		return b
 	}
 	t.UpdateHeader = func(id widget.TableCellID, o fyne.CanvasObject) {
-		l := o.(*widget.Label)
+		b := o.(*widget.Button)
 		if id.Row < 0 && id.Col >= 0 {
-			l.SetText(sonColumns[id.Col].title)
+			title := sonColumns[id.Col].title
+			if id.Col == rw.sonSort {
+				title += [2]string{" ▲", " ▼"}[btoi(rw.sonDesc)]
+			}
+			b.SetText(title)
+			col := id.Col
+			b.OnTapped = func() { rw.sortSonications(col) }
 		} else {
-			l.SetText("")
+			b.SetText("")
+			b.OnTapped = nil
 		}
 	}
 	t.ShowHeaderColumn = false
@@ -223,8 +317,8 @@ func (rw *reviewWindow) newSonicationTable() *widget.Table {
 		t.SetColumnWidth(n, c.width)
 	}
 	t.OnSelected = func(id widget.TableCellID) {
-		if id.Row >= 0 && id.Col > 0 {
-			rw.selectSonication(id.Row)
+		if id.Row >= 0 && id.Col > 0 && rw.result != nil {
+			rw.selectSonication(rw.sonIndex(id.Row))
 		}
 	}
 	return t
@@ -254,8 +348,8 @@ type metricsPanel struct {
 	signed   *widget.Label
 	facts    *widget.Label
 	used     *widget.Label
-	holes    *widget.List
-	outside  *widget.List
+	holes    *fyne.Container // one row per region; no list of its own scrolls
+	outside  *fyne.Container
 	avoid    *widget.Label
 	quality  *widget.Label
 	dvh      *plotView
@@ -278,59 +372,17 @@ func newMetricsPanel(rw *reviewWindow) *metricsPanel {
 	m.hint = widget.NewLabel("Facts measured from the thermometry; the clinician decides what they mean.")
 	m.hint.Wrapping = fyne.TextWrapWord
 	m.hint.Importance = widget.LowImportance
-	regionList := func(get func() []region) *widget.List {
-		l := widget.NewList(
-			func() int { return len(get()) },
-			func() fyne.CanvasObject {
-				head := widget.NewLabelWithStyle("", fyne.TextAlignLeading, fyne.TextStyle{Bold: true})
-				detail := widget.NewLabel("")
-				detail.Truncation = fyne.TextTruncateEllipsis
-				return container.NewVBox(head, detail)
-			},
-			func(id widget.ListItemID, o fyne.CanvasObject) {
-				rs := get()
-				if id >= len(rs) {
-					return
-				}
-				r := rs[id]
-				box := o.(*fyne.Container)
-				box.Objects[0].(*widget.Label).SetText(fmt.Sprintf("%s   %.3f mL   at (%s, %s, %s) mm", r.Label, r.VolumeML,
-					fmtMM(r.Centre[0]), fmtMM(r.Centre[1]), fmtMM(r.Centre[2])))
-				box.Objects[1].(*widget.Label).SetText(r.Detail)
-			})
-		l.OnSelected = func(id widget.ListItemID) {
-			rs := get()
-			if id < len(rs) {
-				rw.jumpTo(rs[id])
-			}
-			l.UnselectAll()
-		}
-		return l
-	}
-	m.holes = regionList(func() []region {
-		if rw.result == nil {
-			return nil
-		}
-		return rw.result.HoleRows
-	})
-	m.outside = regionList(func() []region {
-		if rw.result == nil {
-			return nil
-		}
-		return rw.result.SpillRows
-	})
+	m.holes = container.NewVBox()
+	m.outside = container.NewVBox()
 	m.dvh = newPlotView()
 	m.coverage = newPlotView()
 	bold := func(s string) *widget.Label {
 		return widget.NewLabelWithStyle(s, fyne.TextAlignLeading, fyne.TextStyle{Bold: true})
 	}
-	listBox := func(l *widget.List) fyne.CanvasObject {
-		return container.NewGridWrap(fyne.NewSize(380, 150), l)
-	}
 	m.box = container.NewVBox(
 		bold("Coverage of the target"), m.facts,
-		bold("Holes in the target (click to show)"), listBox(m.holes),
-		bold("Lethal dose outside the margin (click to show)"), listBox(m.outside),
+		bold("Holes in the target (click to show)"), m.holes,
+		bold("Lethal dose outside the margin (click to show)"), m.outside,
 		bold("Avoid structures"), m.avoid,
 		bold("Thermometry quality"), m.quality,
 		bold("Settings used"), m.used,
@@ -363,8 +415,7 @@ func (m *metricsPanel) update() {
 		m.quality.SetText("")
 		m.dvh.set(nil)
 		m.coverage.set(nil)
-		m.holes.Refresh()
-		m.outside.Refresh()
+		m.holes.Objects, m.outside.Objects = nil, nil
 		m.box.Refresh()
 		return
 	}
@@ -412,9 +463,61 @@ func (m *metricsPanel) update() {
 	}
 	m.dvh.set(func() *plotPlot { return dvhPlot(r) })
 	m.coverage.set(func() *plotPlot { return coveragePlot(r) })
-	m.holes.Refresh()
-	m.outside.Refresh()
+	m.holes.Objects = m.regionRows(r.HoleRows, "hole")
+	m.outside.Objects = m.regionRows(r.SpillRows, "cluster")
 	m.box.Refresh()
+}
+
+// prefListMin holds the size (mm³) below which listed regions are summarised in
+// one line (a display setting; the analysis keeps them all).
+const prefListMin = "list_min_mm3"
+
+// regionRows lists the regions of at least the display size one per row
+// (a button that shows the region, and its details wrapped below) and
+// the smaller ones as one line.
+func (m *metricsPanel) regionRows(rs []region, what string) []fyne.CanvasObject {
+	if len(rs) == 0 {
+		return []fyne.CanvasObject{widget.NewLabel("None.")}
+	}
+	minMM3 := m.rw.app.Preferences().FloatWithFallback(prefListMin, 1)
+	var out []fyne.CanvasObject
+	small, smallML := 0, 0.0
+	for _, r := range rs {
+		if r.VolumeML*1000 < minMM3 {
+			small++
+			smallML += r.VolumeML
+			continue
+		}
+		r := r
+		head := widget.NewButton(fmt.Sprintf("%s   %s mL   at (%s, %s, %s) mm", r.Label, fmtML(r.VolumeML),
+			fmtMM(r.Centre[0]), fmtMM(r.Centre[1]), fmtMM(r.Centre[2])), func() { m.rw.jumpTo(r) })
+		head.Alignment = widget.ButtonAlignLeading
+		head.Importance = widget.LowImportance
+		detail := widget.NewLabel(r.Detail)
+		detail.Wrapping = fyne.TextWrapWord
+		out = append(out, head, detail)
+	}
+	if small > 0 {
+		plural := what + "s"
+		if small == 1 {
+			plural = what
+		}
+		lead := ""
+		if len(out) > 0 {
+			lead = "and "
+		}
+		out = append(out, widget.NewLabel(fmt.Sprintf("%s%d %s below %s mm³ (%s mL together)", lead, small, plural, fmtNum(minMM3), fmtML(smallML))))
+	}
+	return out
+}
+
+// fmtML prints a volume in mL with three decimals, never "-0.000".
+func fmtML(v float64) string {
+	s := fmt.Sprintf("%.3f", v)
+	if s == "-0.000" {
+		return "0.000"
+	}
+	return s
 }
 
 // fmtMM prints a coordinate in mm without a negative zero.
@@ -443,33 +546,34 @@ func (rw *reviewWindow) jumpTo(r region) {
 	rw.status.SetText(fmt.Sprintf("Showing %s (%.3f mL) at (%.1f, %.1f, %.1f) mm", r.Label, r.VolumeML, r.Centre[0], r.Centre[1], r.Centre[2]))
 }
 
-// washBar shows the dose colourwash scale: floor to ceiling, log scale.
+// washBar shows the dose colourwash scale: the colour bar of the reports
+// (view.WashBar), floor to ceiling on a log scale, lethal level marked.
 type washBar struct {
-	content   fyne.CanvasObject
-	lo, hi    *widget.Label
-	floor, to float64
+	content fyne.CanvasObject
+	img     *canvas.Image
 }
 
+// washBarSize is the colour bar's size in pixels.
+var washBarSize = fyne.NewSize(420, 64)
+
 func newWashBar() *washBar {
-	b := &washBar{lo: widget.NewLabel(""), hi: widget.NewLabel("")}
-	bar := canvas.NewRasterWithPixels(func(x, _, w, _ int) color.Color {
-		if b.to <= b.floor || b.floor <= 0 {
-			return color.RGBA{0x30, 0x30, 0x34, 0xFF}
-		}
-		d := b.floor * math.Pow(b.to/b.floor, float64(x)/float64(max(w-1, 1)))
-		return washColour(d, b.floor, b.to)
-	})
-	bar.SetMinSize(fyne.NewSize(120, 12))
-	b.content = container.NewHBox(widget.NewLabel("Dose (log)"), b.lo, container.NewCenter(bar), b.hi)
+	b := &washBar{img: canvas.NewImageFromImage(nil)}
+	b.img.FillMode = canvas.ImageFillOriginal
+	b.img.ScaleMode = canvas.ImageScalePixels
+	b.img.SetMinSize(washBarSize)
+	b.content = container.NewHBox(b.img)
 	return b
 }
 
-// set shows the scale from floor to top in unit.
-func (b *washBar) set(floor, top float64, unit string) {
-	b.floor, b.to = floor, top
-	b.lo.SetText(fmtDose(floor))
-	b.hi.SetText(fmtDose(top) + " " + unit)
-	b.content.Refresh()
+// set shows the scale from floor to top in unit with threshold marked.
+func (b *washBar) set(floor, top, threshold float64, unit string) {
+	img, err := view.WashBar(view.DoseScale{Floor: floor, Ceiling: top, Opacity: 1}, threshold, unit, int(washBarSize.Width), int(washBarSize.Height))
+	if err != nil {
+		b.img.Image = nil
+	} else {
+		b.img.Image = img
+	}
+	b.img.Refresh()
 }
 
 // signOffText says whether the analysis on screen is signed off and lists
@@ -496,4 +600,11 @@ func (rw *reviewWindow) signOffText() string {
 		b = append(b, line)
 	}
 	return strings.Join(b, "\n")
+}
+
+func btoi(b bool) int {
+	if b {
+		return 1
+	}
+	return 0
 }

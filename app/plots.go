@@ -3,6 +3,7 @@
 package main
 
 import (
+	"fmt"
 	"image"
 	"image/color"
 	stddraw "image/draw"
@@ -35,6 +36,7 @@ var (
 type plotView struct {
 	raster *canvas.Raster
 	build  func() *plot.Plot // nil: empty panel
+	below  func() *plot.Plot // a second plot under the first (its lower 40 %); nil: none
 }
 
 func newPlotView() *plotView {
@@ -61,7 +63,58 @@ func (pv *plotView) draw(w, h int) image.Image {
 	if c := fyne.CurrentApp().Driver().CanvasForObject(pv.raster); c != nil && c.Scale() > 0 {
 		scale = float64(c.Scale())
 	}
+	if pv.below != nil {
+		return renderPlotsImage(p, pv.below(), w, h, scale)
+	}
 	return renderPlotImage(p, w, h, scale)
+}
+
+// renderPlotsImage draws top over the upper 60 % and bottom under it, in
+// one w×h image.
+func renderPlotsImage(top, bottom *plot.Plot, w, h int, scale float64) *image.RGBA {
+	dpi := int(96 * scale)
+	c := vgimg.NewWith(vgimg.UseWH(vg.Length(w)/vg.Length(dpi)*vg.Inch, vg.Length(h)/vg.Length(dpi)*vg.Inch),
+		vgimg.UseDPI(dpi), vgimg.UseBackgroundColor(plotBackground))
+	dc := draw.New(c)
+	split := dc.Max.Y - dc.Min.Y
+	top.Draw(draw.Crop(dc, 0, 0, split*0.4, 0))
+	bottom.Draw(draw.Crop(dc, 0, 0, 0, -split*0.6))
+	if img, ok := c.Image().(*image.RGBA); ok {
+		return img
+	}
+	img := image.NewRGBA(c.Image().Bounds())
+	stddraw.Draw(img, img.Bounds(), c.Image(), image.Point{}, stddraw.Src)
+	return img
+}
+
+// probeDosePlot is the dose accumulated at the pinned point over the
+// session (log scale from a hundredth of the threshold), with the
+// threshold and the moment it was reached.
+func probeDosePlot(c *review.Probe) *plot.Plot {
+	p := newStyledPlot("", "time from the first sonication (s)", "dose ("+c.Unit+")")
+	floor := c.Threshold / 100
+	if !(floor > 0) {
+		floor = 1
+	}
+	var pts plotter.XYs
+	hi := c.Threshold * 10
+	for n, t := range c.Times {
+		if n < len(c.Dose) && !math.IsNaN(c.Dose[n]) {
+			pts = append(pts, plotter.XY{X: t, Y: math.Max(c.Dose[n], floor)})
+			hi = math.Max(hi, c.Dose[n]*1.5)
+		}
+	}
+	p.Y.Scale = plot.LogScale{}
+	p.Y.Tick.Marker = plot.LogTicks{Prec: -1}
+	p.Y.Min, p.Y.Max = floor, hi
+	addSegments(p, pts, c.Boundaries, view.ColorTarget, vg.Points(1.5), nil, "cumulative dose")
+	if len(c.Times) > 0 {
+		addLine(p, plotter.XYs{{X: c.Times[0], Y: c.Threshold}, {X: c.Times[len(c.Times)-1], Y: c.Threshold}}, plotGuide, vg.Points(1), []vg.Length{vg.Points(2), vg.Points(2)}, "lethal "+fmtNum(c.Threshold)+" "+c.Unit)
+	}
+	for _, b := range c.Boundaries {
+		addVLine(p, b, floor, hi, plotGrid, nil, "")
+	}
+	return p
 }
 
 // renderPlotImage draws p into a w×h image; scale enlarges text and lines
@@ -233,7 +286,7 @@ func probePlot(c *review.Probe) *plot.Plot {
 	}
 	// Split the curves at gaps between sonications so no line bridges them.
 	addSegments(p, vox, c.Boundaries, view.ColorSpill, vg.Points(1.5), nil, "voxel")
-	addSegments(p, mean, c.Boundaries, view.ColorMargin, vg.Points(1.5), []vg.Length{vg.Points(5), vg.Points(2)}, "3×3 mean")
+	addSegments(p, mean, c.Boundaries, view.ColorTarget, vg.Points(1.5), []vg.Length{vg.Points(5), vg.Points(2)}, "3×3 mean")
 	if len(est) > 0 {
 		addSegments(p, est, c.Boundaries, view.ColorHole, vg.Points(1.5), []vg.Length{vg.Points(1.5), vg.Points(2)}, "voxel + estimated residual heat")
 	}
@@ -244,6 +297,24 @@ func probePlot(c *review.Probe) *plot.Plot {
 		addVLine(p, c.LethalAt, lo, hi, view.ColorLethal, []vg.Length{vg.Points(6), vg.Points(2)}, "reached "+fmtNum(c.Threshold)+" "+c.Unit)
 	}
 	p.Y.Min, p.Y.Max = lo, hi
+	// The sonication numbers along the time axis, at each start.
+	if len(c.Numbers) == len(c.Boundaries) && len(c.Numbers) > 0 {
+		var at plotter.XYs
+		var names []string
+		for n, b := range c.Boundaries {
+			at = append(at, plotter.XY{X: b, Y: hi - 0.02*(hi-lo)})
+			names = append(names, fmt.Sprint(c.Numbers[n]))
+		}
+		if l, err := plotter.NewLabels(plotter.XYLabels{XYs: at, Labels: names}); err == nil {
+			for n := range l.TextStyle {
+				l.TextStyle[n].Color = plotInk
+				l.TextStyle[n].Font = font.From(font.Font{Typeface: "Liberation", Variant: "Sans"}, 8)
+				l.TextStyle[n].YAlign = -1
+				l.TextStyle[n].XAlign = -0.5
+			}
+			p.Add(l)
+		}
+	}
 	return p
 }
 

@@ -49,8 +49,9 @@ func washColour(d, floor, top float64) color.RGBA {
 	return view.Colormap(view.DoseScale{Floor: floor, Ceiling: top, Opacity: 1}.T(d))
 }
 
-// washTop is the dose drawn at full colour: eight times the threshold.
-func washTop(threshold float64) float64 { return 8 * threshold }
+// washTop is the dose drawn at full colour: the ceiling of the scale the
+// reports use too (view.WashScale).
+func washTop(threshold float64) float64 { return view.WashScale(threshold).Ceiling }
 
 // label draws s with a dark shadow, baseline at (x, y).
 func label(img *image.RGBA, x, y int, s string, c color.RGBA) {

@@ -91,7 +91,10 @@ func parseFloatField(name, text string, dst *float64) error {
 // showSettingsDialog lets the user change the analysis settings. note, when
 // not empty, is shown at the top (for example to ask for a missing B0).
 // apply receives the new settings when the user accepts them.
-func showSettingsDialog(w fyne.Window, cur review.Settings, note string, apply func(review.Settings)) {
+//
+// origin says where the values shown come from (this case's record, your
+// defaults) and how they compare; "" says nothing.
+func showSettingsDialog(w fyne.Window, cur review.Settings, note, origin string, apply func(review.Settings)) {
 	threshold := floatEntry(cur.Threshold)
 	margin := floatEntry(cur.MarginMM)
 	model := widget.NewSelect([]string{"CEM43 (Sapareto–Dewey)", "Arrhenius damage integral"}, nil)
@@ -170,7 +173,7 @@ func showSettingsDialog(w fyne.Window, cur review.Settings, note string, apply f
 	errLabel.Importance = widget.DangerImportance
 
 	form := widget.NewForm(
-		widget.NewFormItem("Lethal threshold", threshold),
+		widget.NewFormItem("Lethal threshold (CEM43 min; Ω for Arrhenius)", threshold),
 		widget.NewFormItem("Safety margin (mm)", margin),
 		widget.NewFormItem("Dose model", model),
 		widget.NewFormItem("Time integration", rule),
@@ -194,6 +197,11 @@ func showSettingsDialog(w fyne.Window, cur review.Settings, note string, apply f
 		n.Wrapping = fyne.TextWrapWord
 		n.Importance = widget.WarningImportance
 		top = append(top, n)
+	}
+	if origin != "" {
+		o := widget.NewLabel(origin)
+		o.Wrapping = fyne.TextWrapWord
+		top = append(top, o)
 	}
 	content := container.NewVBox(append(top,
 		widget.NewLabelWithStyle("Dose", fyne.TextAlignLeading, fyne.TextStyle{Bold: true}),
@@ -259,7 +267,7 @@ func showSettingsDialog(w fyne.Window, cur review.Settings, note string, apply f
 		d.Hide()
 		def := review.DefaultSettings()
 		def.Excluded = cur.Excluded
-		showSettingsDialog(w, def, note, apply)
+		showSettingsDialog(w, def, note, "Showing the built-in defaults (not yet applied).", apply)
 	})
 	load := widget.NewButton("Load file…", func() {
 		fd := dialog.NewFileOpen(func(r fyne.URIReadCloser, err error) {
@@ -273,7 +281,7 @@ func showSettingsDialog(w fyne.Window, cur review.Settings, note string, apply f
 				return
 			}
 			d.Hide()
-			showSettingsDialog(w, loaded, note, apply)
+			showSettingsDialog(w, loaded, note, "Showing the settings read from "+r.URI().Name()+" (not yet applied).", apply)
 		}, w)
 		fd.SetFilter(storage.NewExtensionFileFilter([]string{".json"}))
 		fd.Resize(fyne.NewSize(800, 560))
@@ -323,4 +331,29 @@ func showSettingsDialog(w fyne.Window, cur review.Settings, note string, apply f
 	d = dialog.NewCustomWithoutButtons("Analysis settings", body2, w)
 	d.Resize(fyne.NewSize(560, 720))
 	d.Show()
+}
+
+// settingsOrigin says which values the settings dialog shows: those of the
+// open case (from its review record, or your defaults when it has none)
+// and whether your defaults for new cases differ.
+func (rw *reviewWindow) settingsOrigin() string {
+	if rw.loaded == nil {
+		return "No case is open: these are your defaults, used for the next case you open."
+	}
+	defaults := loadPrefSettings(rw.app.Preferences())
+	var b strings.Builder
+	if rw.fromRecord {
+		b.WriteString("These settings apply to this case: they come from its review record.")
+	} else {
+		b.WriteString("These settings apply to this case: it has no review record yet, so they are your defaults.")
+	}
+	cur := rw.settings
+	cur.Excluded = defaults.Excluded // left-out sonications belong to the case
+	if cur.Equal(defaults) {
+		b.WriteString(" Your defaults for new cases are the same.")
+	} else {
+		b.WriteString(" Your defaults for new cases differ: " + defaults.Describe() + ".")
+	}
+	b.WriteString(" Apply re-analyses this case and makes these values your defaults.")
+	return b.String()
 }

@@ -14,6 +14,7 @@ import (
 	"dosecover/dosemap"
 	"dosecover/review"
 	"dosecover/review/report"
+	"dosecover/review/view"
 
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/container"
@@ -45,6 +46,14 @@ type reviewWindow struct {
 	jobGen     int
 	pendingDir string       // the folder being opened
 	follow     *followState // the session being followed; nil when none
+	lastExport string       // path stem of the last report export
+	fromRecord bool         // the open case's settings came from its review record
+	// The sonication table's order: the column sorted by (1, the number,
+	// at first), descending or not, and the result row of each table row
+	// (nil: to be computed).
+	sonSort    int
+	sonDesc    bool
+	sonOrder   []int
 	probeGen   int
 	probeCurve *review.Probe
 	active     *sliceViewer
@@ -86,10 +95,13 @@ const (
 	prefTeaching = "teaching"
 	prefReviewer = "reviewer"
 	prefOpacity  = "opacity"
+	// prefDriftFlag is the removed drift (°C) above which the table and
+	// the report flag a sonication (review.DefaultDriftFlagC).
+	prefDriftFlag = "drift_flag_c"
 )
 
 func newReviewWindow(a fyne.App) *reviewWindow {
-	rw := &reviewWindow{app: a, selected: -1}
+	rw := &reviewWindow{app: a, selected: -1, sonSort: 1}
 	rw.win = a.NewWindow("dosecover")
 	rw.settings = loadPrefSettings(a.Preferences())
 	rw.teaching = a.Preferences().Bool(prefTeaching)
@@ -443,13 +455,13 @@ func (rw *reviewWindow) applyFloor() {
 		f = top / 2
 	}
 	rw.opt.Floor = f
-	rw.washBar.set(f, washTop(rw.result.Threshold), rw.result.Unit)
+	rw.washBar.set(f, washTop(rw.result.Threshold), rw.result.Threshold, rw.result.Unit)
 	rw.redraw()
 }
 
 // defaultFloor is the dose below which the wash is transparent: a
 // hundredth of the threshold.
-func defaultFloor(threshold float64) float64 { return threshold / 100 }
+func defaultFloor(threshold float64) float64 { return view.WashScale(threshold).Floor }
 
 // defaultWindow returns the display window of the anatomy: the files'
 // window tags, else the 1st–99th percentile of the voxel values.
@@ -515,17 +527,8 @@ func (rw *reviewWindow) describePoint(p dosemap.Vec3) string {
 }
 
 // fmtDose prints a dose with sensible precision over many decades.
-func fmtDose(d float64) string {
-	switch {
-	case d >= 1e5:
-		return fmt.Sprintf("%.3g", d)
-	case d >= 10:
-		return fmt.Sprintf("%.0f", d)
-	case d >= 0.01:
-		return fmt.Sprintf("%.2f", d)
-	}
-	return fmt.Sprintf("%.1g", d)
-}
+// It is the format of the colour bar and the legends (view.FormatDose).
+func fmtDose(d float64) string { return view.FormatDose(d) }
 
 // setBusy shows the progress bar and the cancel button while a job runs.
 func (rw *reviewWindow) setBusy(text string, frac float64) {

@@ -158,7 +158,7 @@ func TestClickHoleJumpsToSlice(t *testing.T) {
 	h := rw.result.HoleRows[0]
 	v := rw.viewers[0]
 	v.setSlice(0)
-	rw.metrics.holes.Select(0)
+	test.Tap(rw.metrics.holes.Objects[0].(*widget.Button))
 	// The acquisition plane is the anatomy stack: slices 2 mm apart from
 	// z = -14 mm.
 	want := int(math.Round((h.Centre[2] + 14) / 2))
@@ -271,7 +271,7 @@ func TestSignOffStaleOnExport(t *testing.T) {
 	}
 	metricsOf := func() map[string]any {
 		out := exportTo(t, rw)
-		b, err := os.ReadFile(filepath.Join(out, rw.reportBase()+".json"))
+		b, err := os.ReadFile(filepath.Join(out, filepath.Base(rw.lastExport)+".json"))
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -395,7 +395,10 @@ func TestExportReportTeachingMode(t *testing.T) {
 	}
 	// Without teaching mode the metrics name the case.
 	plain := exportTo(t, rw)
-	js, err := os.ReadFile(filepath.Join(plain, rw.reportBase()+".json"))
+	js, err := os.ReadFile(rw.lastExport + ".json")
+	if filepath.Dir(rw.lastExport) != plain {
+		t.Errorf("exported to %s, want into %s", rw.lastExport, plain)
+	}
 	if err != nil || !strings.Contains(string(js), "Synthetic phantom") {
 		t.Fatalf("identified export lacks the case label (%v)", err)
 	}

@@ -114,6 +114,11 @@ func TestDeferredLoadSameResult(t *testing.T) {
 	set.Trials = 20
 	out := make([]string, 2)
 	temps := make([]*dosemap.TemperatureSeries, 2)
+	// The probe inside the kept block (the lesion centre) and far outside
+	// it (a voxel near the corner of the field, which a deferred session
+	// computes from the files), and the peak temperature map.
+	probes := make([][2]*review.Probe, 2)
+	peaks := make([]*dosemap.Volume, 2)
 	for n, deferred := range []bool{false, true} {
 		c, inv, err := dicomio.Load(ctx, dir, dicomio.LoadOptions{Deferred: deferred}, nil)
 		if err != nil {
@@ -132,6 +137,15 @@ func TestDeferredLoadSameResult(t *testing.T) {
 		// The whole temperature series, kept or computed again.
 		if temps[n] = ses.Temperature(c.Sonications[1].Number); temps[n] == nil {
 			t.Fatalf("no temperature series (deferred %v)", deferred)
+		}
+		g := c.Sonications[0].Geometry
+		for k, p := range []dosemap.Vec3{{-3, -10, 20}, g.Point(4, 5, 2)} {
+			if probes[n][k], err = ses.Probe(p, set); err != nil {
+				t.Fatalf("probe at %v (deferred %v): %v", p, deferred, err)
+			}
+		}
+		if peaks[n], err = ses.PeakTemperature(set); err != nil || peaks[n] == nil {
+			t.Fatalf("peak temperature (deferred %v): %v", deferred, err)
 		}
 		r, err := ses.Analyze(ctx, set, nil)
 		if err != nil {
@@ -158,6 +172,26 @@ func TestDeferredLoadSameResult(t *testing.T) {
 			if y := temps[1].Frames[f][v]; x != y && !(x != x && y != y) {
 				t.Fatalf("temperature frame %d voxel %d: %g resident, %g deferred", f, v, x, y)
 			}
+		}
+	}
+	same := func(x, y float64) bool { return x == y || (x != x && y != y) }
+	for k := range probes[0] {
+		a, b := probes[0][k], probes[1][k]
+		if a.Description != b.Description || len(a.Temp) != len(b.Temp) || len(a.Temp) == 0 {
+			t.Fatalf("probe %d: %q (%d samples) resident, %q (%d) deferred", k, a.Description, len(a.Temp), b.Description, len(b.Temp))
+		}
+		for i := range a.Temp {
+			if !same(a.Temp[i], b.Temp[i]) || !same(a.Mean[i], b.Mean[i]) || !same(a.Dose[i], b.Dose[i]) {
+				t.Fatalf("probe %d sample %d: %g/%g/%g resident, %g/%g/%g deferred", k, i, a.Temp[i], a.Mean[i], a.Dose[i], b.Temp[i], b.Mean[i], b.Dose[i])
+			}
+		}
+	}
+	if peaks[0].Geometry != peaks[1].Geometry {
+		t.Fatalf("peak temperature on %v resident, %v deferred", peaks[0].Geometry, peaks[1].Geometry)
+	}
+	for v := range peaks[0].Data {
+		if x, y := peaks[0].Data[v], peaks[1].Data[v]; !same(float64(x), float64(y)) {
+			t.Fatalf("peak temperature voxel %d: %g resident, %g deferred", v, x, y)
 		}
 	}
 	if !strings.Contains(out[0], `"covered_fraction"`) {

@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"slices"
 	"sync"
 
 	"dosecover/dosemap"
@@ -17,6 +18,7 @@ type Probe struct {
 	True        []float64    // °C, Temp plus the estimated heat left from earlier sonications at the sonication's baseline (Residual; NaN unknown)
 	Dose        []float64    // cumulative dose at the voxel, model unit
 	Boundaries  []float64    // start time of each sonication, s
+	Numbers     []int        // number of the sonication starting at each boundary
 	LethalAt    float64      // time the cumulative dose reached the threshold; NaN never
 	FinalDose   float64      // cumulative dose after the last sonication
 	Unit        string       // dose unit as shown (Settings.Unit)
@@ -35,7 +37,11 @@ type seriesCache struct {
 
 // temperatures returns the temperature series of every sonication (nil
 // for a ready dose map) with the thermometry the session was prepared
-// with: those the session keeps, the others computed once.
+// with: those the session keeps, the others computed once. A session
+// whose frames stay in their files keeps only the block around the
+// target (keepBox); the series are then those blocks, and Probe computes
+// the series of a point outside them from the files when asked
+// (probeSeries), so the frames are never all held at once.
 func (s *Session) temperatures() ([]*dosemap.TemperatureSeries, error) {
 	c := &s.probe
 	c.once.Do(func() {
@@ -43,6 +49,10 @@ func (s *Session) temperatures() ([]*dosemap.TemperatureSeries, error) {
 			so := sd.source
 			if so == nil || (so.Dose != nil && !so.HasPhase() && so.Temperature == nil) {
 				c.series = append(c.series, nil)
+				continue
+			}
+			if ts, ok := sd.series.(*dosemap.TemperatureSeries); ok && s.keep != nil {
+				c.series = append(c.series, ts)
 				continue
 			}
 			if ts := s.Temperature(sd.number); ts != nil {
@@ -100,6 +110,19 @@ func (s *Session) Probe(p dosemap.Vec3, set Settings) (*Probe, error) {
 	voxelText := ""
 	for n, sd := range s.sons {
 		so := sd.source
+		if so == nil {
+			// A sonication the session keeps no source of (a ready dose
+			// map): its dose, on the thermometry grid, counts at its start.
+			c.Boundaries = append(c.Boundaries, clock)
+			c.Numbers = append(c.Numbers, sd.number)
+			if !ex[sd.number] {
+				d := dosemap.Volume{Geometry: s.fg.coarse, Data: sd.dose}
+				if v := d.Sample(p); v == v {
+					cum += float64(v)
+				}
+			}
+			continue
+		}
 		if first == nil {
 			first = so
 		}
@@ -108,7 +131,15 @@ func (s *Session) Probe(p dosemap.Vec3, set Settings) (*Probe, error) {
 			start = so.Start.Sub(first.Start).Seconds()
 		}
 		c.Boundaries = append(c.Boundaries, start)
+		c.Numbers = append(c.Numbers, so.Number)
 		ts := series[n]
+		if ts != nil && s.keep != nil && !insideBlock(ts.Geometry, p) {
+			full, err := thermometry(so, s.prepared.Thermometry)
+			if err != nil {
+				return nil, fmt.Errorf("sonication %d: %w", so.Number, err)
+			}
+			ts = full
+		}
 		if ts == nil {
 			// A ready dose map: no temperatures, its dose counts at the end.
 			if !ex[so.Number] && so.Dose != nil {
@@ -126,7 +157,9 @@ func (s *Session) Probe(p dosemap.Vec3, set Settings) (*Probe, error) {
 			clock = start + seriesLength(ts) + 30
 			continue
 		}
-		voxelText = fmt.Sprintf("voxel (%d, %d, %d)", i, j, k)
+		// Named on the sonication's own grid (ts may be its kept block).
+		vi, vj, vk := so.Geometry.Voxel(p)
+		voxelText = fmt.Sprintf("voxel (%.0f, %.0f, %.0f)", math.Round(vi), math.Round(vj), math.Round(vk))
 		c.Voxel = g.Point(float64(i), float64(j), float64(k))
 		one := &dosemap.TemperatureSeries{Geometry: dosemap.NewAxialGeometry(1, 1, 1, dosemap.Vec3{1, 1, 1}, dosemap.Vec3{})}
 		idx := g.Index(i, j, k)
@@ -174,6 +207,14 @@ func (s *Session) Probe(p dosemap.Vec3, set Settings) (*Probe, error) {
 	return c, nil
 }
 
+// insideBlock reports whether the voxel of g nearest p and its in-plane
+// 3×3 block lie inside g (a kept block answers for the probe there).
+func insideBlock(g dosemap.Geometry, p dosemap.Vec3) bool {
+	fi, fj, fk := g.Voxel(p)
+	i, j, k := int(math.Round(fi)), int(math.Round(fj)), int(math.Round(fk))
+	return g.Contains(i-1, j-1, k) && g.Contains(i+1, j+1, k)
+}
+
 // seriesLength returns the time from the first to the last frame, s.
 func seriesLength(ts *dosemap.TemperatureSeries) float64 {
 	if len(ts.Times) == 0 {
@@ -212,30 +253,16 @@ func (s *Session) PeakTemperature(set Settings) (*dosemap.Volume, error) {
 	if err != nil {
 		return nil, err
 	}
-	series, err := s.temperatures()
-	if err != nil {
-		return nil, err
-	}
 	ex := map[int]bool{}
 	for _, n := range set.Excluded {
 		ex[n] = true
 	}
 	var peak *dosemap.Volume
-	for n, ts := range series {
-		if ts == nil || ex[s.sons[n].number] {
+	for _, sd := range s.sons {
+		if sd.peakTemp == nil || ex[sd.number] {
 			continue
 		}
-		v := &dosemap.Volume{Geometry: ts.Geometry, Data: make([]float32, ts.Geometry.Len())}
-		for i := range v.Data {
-			v.Data[i] = float32(math.NaN())
-		}
-		for _, fr := range ts.Frames {
-			for i, x := range fr {
-				if x == x && !(v.Data[i] >= x) {
-					v.Data[i] = x
-				}
-			}
-		}
+		v := &dosemap.Volume{Geometry: sd.peakTemp.Geometry, Data: slices.Clone(sd.peakTemp.Data)}
 		if peak == nil {
 			peak = v
 			continue

@@ -108,6 +108,10 @@ type sonData struct {
 	notes   []string // frames that could not be read
 	source  *dosemap.Sonication
 	reach   reach // extent of the measured heating around the hottest point (monitoring rule)
+	// peakTemp is the highest temperature of each voxel over the frames
+	// (°C, NaN never valid) on the sonication's own grid; nil for a ready
+	// dose map.
+	peakTemp *dosemap.Volume
 
 	// Residual heat (see residual.go).
 	tail     *dosemap.CoolingTail // last frames, kept until the estimate is made

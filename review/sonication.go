@@ -83,6 +83,7 @@ func prepareSonication(ctx context.Context, so *dosemap.Sonication, s Settings, 
 			hottest[f] = q.Hottest
 		}
 		sd.temp = temperatureStats(ts.Geometry, ts.Times, ts.Frames, hottest)
+		sd.peakTemp = peakOverFrames(ts)
 		sd.quality = frameQuality(so.Number, ts.Quality)
 		if ts.Geometry.SameGrid(ref, 0.01) {
 			sd.series, sd.source = ts, so
@@ -102,6 +103,24 @@ func prepareSonication(ctx context.Context, so *dosemap.Sonication, s Settings, 
 		}
 	}
 	return sd, dm.Unit, nil
+}
+
+// peakOverFrames returns the highest valid temperature of every voxel of
+// ts over its frames (°C, NaN where never valid), on ts's grid.
+func peakOverFrames(ts *dosemap.TemperatureSeries) *dosemap.Volume {
+	v := &dosemap.Volume{Geometry: ts.Geometry, Data: make([]float32, ts.Geometry.Len())}
+	nan := float32(math.NaN())
+	for i := range v.Data {
+		v.Data[i] = nan
+	}
+	for _, fr := range ts.Frames {
+		for i, x := range fr {
+			if x == x && !(v.Data[i] >= x) {
+				v.Data[i] = x
+			}
+		}
+	}
+	return v
 }
 
 // frameQuality converts the thermometry's frame quality.

@@ -19,6 +19,9 @@ import (
 
 // Options are the parts of a report that do not come from the analysis.
 type Options struct {
+	// DriftFlagC is the removed drift, °C, above which a sonication is
+	// flagged; 0: review.DefaultDriftFlagC.
+	DriftFlagC   float64
 	Deidentify   bool      // hide identity: neutral case label, no scan date, generic sonication labels
 	Reviewer     string    // who reviewed ("" not given)
 	ReviewDate   time.Time // zero: now
@@ -110,11 +113,10 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 		f.AsMeasured = &AsMeasuredFacts{Covered: a.CoveredFraction, CoveredOfTarget: a.CoveredFractionOfTarget, OutsideMarginML: a.OutsideMarginLethalML}
 	}
 	in.Facts = f
-	if strings.EqualFold(r.Model, "cem43") {
-		ds := view.DefaultDoseScale()
-		in.Wash = &Wash{Floor: ds.Floor, Ceiling: ds.Ceiling}
-	} else if r.Threshold > 0 {
-		in.Wash = &Wash{Floor: r.Threshold / 100, Ceiling: r.Threshold * 10}
+	if r.Threshold > 0 {
+		// The window's scale and colour bar (view.WashScale, view.WashBar).
+		ds := view.WashScale(r.Threshold)
+		in.Wash = &Wash{Floor: ds.Floor, Ceiling: ds.Ceiling, Lethal: r.Threshold}
 	}
 
 	for n, d := range r.DVH.Dose {
@@ -142,8 +144,16 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 			PeakC: val(s.PeakTempC), PeakDose: s.PeakDose, LethalML: s.LethalAddedML,
 			AddedCoverage: s.AddedCoverage, OutsideML: s.OutsideAddedML,
 			Flagged: len(sq.FlaggedFrames), Excluded: s.Excluded,
-			CoolingS: val(s.CoolingS), ResidualC: val(s.ResidualRiseC),
+			DriftFlagged: sq.DriftFlagged(opt.DriftFlagC),
+			CoolingS:     val(s.CoolingS), ResidualC: val(s.ResidualRiseC),
 		})
+		if sq.DriftFlagged(opt.DriftFlagC) {
+			q.DriftFlagged = append(q.DriftFlagged, s.Number)
+		}
+	}
+	q.DriftFlagC = opt.DriftFlagC
+	if !(q.DriftFlagC > 0) {
+		q.DriftFlagC = review.DefaultDriftFlagC
 	}
 	for _, sq := range r.Quality {
 		q.Frames += len(sq.Frames)
@@ -511,8 +521,8 @@ func baseScene(c *dosemap.Case, r *review.Result) view.Scene {
 		Lethal:      r.Threshold,
 		Annotations: true,
 	}
-	if !strings.EqualFold(r.Model, "cem43") && r.Threshold > 0 {
-		s.Scale = view.DoseScale{Floor: r.Threshold / 100, Ceiling: r.Threshold * 10, Opacity: 0.55}
+	if r.Threshold > 0 {
+		s.Scale = view.WashScale(r.Threshold)
 	}
 	if t := c.Target(); t != nil {
 		s.Target = view.Region{Structure: t}

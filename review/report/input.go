@@ -114,6 +114,7 @@ type Panel struct {
 // review/view.DoseScale): transparent below Floor, top colour from Ceiling.
 type Wash struct {
 	Floor, Ceiling float64 // in the dose unit
+	Lethal         float64 // lethal threshold marked on the colour bar; 0: none
 }
 
 // CurvePoint is one point of a curve with an optional band.
@@ -133,6 +134,7 @@ type SonicationRow struct {
 	AddedCoverage float64 // covered fraction of the monitored target it added
 	OutsideML     float64 // lethal volume outside the margin it added, mL
 	Flagged       int     // frames flagged by the quality checks
+	DriftFlagged  bool    // its removed drift exceeds Quality.DriftFlagC
 	Excluded      bool    // left out of the cumulative dose by the reviewer
 	CoolingS      float64 // time since the previous sonication's last frame, s (NaN first or unknown)
 	ResidualC     float64 // estimated heat left from earlier sonications at the baseline, largest over target and margin, °C (NaN unknown)
@@ -148,6 +150,10 @@ type Quality struct {
 	Wraps     int     // suspected phase wraps, summed over frames
 	Invalid   int     // voxel-frames invalidated (low signal, wraps), summed
 	Notes     []string
+	// DriftFlagged lists the sonications whose removed drift exceeds
+	// DriftFlagC °C.
+	DriftFlagged []int
+	DriftFlagC   float64
 }
 
 // Setting is one named line of the methods block.

@@ -565,32 +565,18 @@ func drawLegend(p pen, in *Input, x, y, w vg.Length) vg.Length {
 		cx += f.Width(it.name) + 8
 	}
 	if ws := in.Wash; ws != nil && ws.Floor > 0 && ws.Ceiling > ws.Floor {
-		lo, hi := fmt.Sprintf("%g", ws.Floor), fmt.Sprintf("%g", ws.Ceiling)+" "+doseUnit(in)+" (log)"
-		bw := vg.Length(50)
-		need := f.Width("dose ") + f.Width(lo) + 3 + bw + 3 + f.Width(hi)
-		if cx+need > x+w {
+		// The colour bar of the review window (view.WashBar), on its
+		// own line.
+		img, err := view.WashBar(view.DoseScale{Floor: ws.Floor, Ceiling: ws.Ceiling, Opacity: 1}, ws.Lethal, doseUnit(in), 420, 64)
+		if err == nil {
+			bh := vg.Length(24)
+			bw := bh * 420 / 64
 			y += h + 2
-			cx = x
+			p.c.DrawImage(vg.Rectangle{Min: p.pt(x, y+bh), Max: p.pt(x+bw, y)}, img)
+			return y + bh
 		}
-		p.legendWash(cx, y, h, bw, f, lo, hi)
 	}
 	return y + h
-}
-
-// legendWash draws the dose colour bar "dose LO [bar] HI" from x and
-// returns the x after it.
-func (p pen) legendWash(x, y, h, bw vg.Length, f font.Face, lo, hi string) vg.Length {
-	p.text(x, y, f, colInk, "dose")
-	x += f.Width("dose") + 4
-	p.text(x, y, f, colInk, lo)
-	x += f.Width(lo) + 3
-	const steps = 40
-	for s := 0; s < steps; s++ {
-		p.rect(x+bw*vg.Length(s)/steps, y+1, bw/steps+0.2, h-2, view.Colormap(float64(s)/(steps-1)))
-	}
-	x += bw + 3
-	p.text(x, y, f, colInk, hi)
-	return x + f.Width(hi)
 }
 
 // plotFonts sets every text of pl to Liberation Sans at small sizes.
@@ -802,7 +788,11 @@ func drawSonications(p pen, in *Input, x, y, w, bottom vg.Length, from, page, pa
 		cell(4, y, fb, clr, num(s.LethalML, 3))
 		cell(5, y, fb, clr, pct(s.AddedCoverage))
 		cell(6, y, fb, clr, num(s.OutsideML, 3))
-		cell(7, y, fb, clr, fmt.Sprintf("%d", s.Flagged))
+		flag := fmt.Sprintf("%d", s.Flagged)
+		if s.DriftFlagged {
+			flag = "drift, " + flag
+		}
+		cell(7, y, fb, clr, flag)
 		cell(8, y, fb, clr, num(s.CoolingS, 0))
 		cell(9, y, fb, clr, num(s.ResidualC, 1))
 		y += rh
@@ -820,6 +810,7 @@ func drawQuality(p pen, in *Input, x, y, w, bottom vg.Length) vg.Length {
 		{"frames flagged", fmt.Sprintf("%d", q.Flagged)},
 		{"largest motion index", num(q.MaxMotion, 3) + " (1 − correlation)"},
 		{"largest drift", num(q.MaxDriftC, 2) + " °C"},
+		{fmt.Sprintf("drift above %g °C", q.DriftFlagC), driftList(q.DriftFlagged)},
 		{"lowest SNR", num(q.MinSNR, 0)},
 		{"suspected phase wraps", fmt.Sprintf("%d", q.Wraps)},
 		{"invalidated voxels", fmt.Sprintf("%d voxel-frames", q.Invalid)},
@@ -925,4 +916,20 @@ func plural(n int, thing string) string {
 		return "1 " + thing
 	}
 	return fmt.Sprintf("%d %ss", n, thing)
+}
+
+// driftList names the sonications flagged for drift: "none" or
+// "sonications 3, 5".
+func driftList(nums []int) string {
+	if len(nums) == 0 {
+		return "none"
+	}
+	parts := make([]string, len(nums))
+	for n, x := range nums {
+		parts[n] = fmt.Sprint(x)
+	}
+	if len(nums) == 1 {
+		return "sonication " + parts[0]
+	}
+	return "sonications " + strings.Join(parts, ", ")
 }

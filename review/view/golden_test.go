@@ -80,6 +80,14 @@ func goldenCases() []goldenCase {
 			return img
 		}},
 		{"key", func(t *testing.T) image.Image { return OverlayKey(DefaultStyle(), 260) }},
+		{"washbar", func(t *testing.T) image.Image {
+			// The shared colour bar for the common 240 CEM43 threshold.
+			img, err := WashBar(WashScale(240), 240, "CEM43 min", 420, 64)
+			if err != nil {
+				t.Fatal(err)
+			}
+			return img
+		}},
 	}
 }
 

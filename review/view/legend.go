@@ -142,3 +142,93 @@ func OverlayKey(st Style, w int) *image.RGBA {
 	}
 	return img
 }
+
+// WashScale returns the dose colourwash of the window and the reports for
+// lethal threshold threshold (in the model's unit): colour from a hundredth
+// of the threshold to eight times it, on a logarithmic scale, at 55 %
+// opacity. Both draw their colour bar (WashBar) on this one scale, so the
+// same dose has the same colour everywhere.
+func WashScale(threshold float64) DoseScale {
+	if !(threshold > 0) {
+		return DefaultDoseScale()
+	}
+	return DoseScale{Floor: threshold / 100, Ceiling: 8 * threshold, Opacity: 0.55}
+}
+
+// WashBar returns the horizontal w×h colour bar of scale s shared by the
+// review window and the reports: the ramp of the dose wash from Floor
+// (left) to Ceiling (right), labelled at Floor, at every decade between
+// and at Ceiling, with the lethal threshold marked by a white bar with a
+// dark halo and labelled when lethal lies on the scale. A title line above
+// the ramp names the unit.
+func WashBar(s DoseScale, lethal float64, unit string, w, h int) (*image.RGBA, error) {
+	if err := s.Validate(); err != nil {
+		return nil, err
+	}
+	if w < 160 || h < 60 {
+		return nil, fmt.Errorf("colour bar of %d×%d pixels is too small (at least 160×60)", w, h)
+	}
+	img := image.NewRGBA(image.Rect(0, 0, w, h))
+	fillRect(img, img.Rect, panelColor, 1)
+	const size = 12.0
+	_, th := textSize("0", size)
+	pad := 10
+	x0, x1 := pad, w-pad
+	drawText(img, "Dose, "+unit+" (log scale)", size, x0, 3, anchorTopLeft, textColor)
+	barTop, barBot := th+10, h-th-8
+	xOf := func(d float64) float64 { return float64(x0) + s.T(d)*float64(x1-x0) }
+	for x := x0; x < x1; x++ {
+		fillRect(img, image.Rect(x, barTop, x+1, barBot), Colormap(float64(x-x0)/float64(x1-x0-1)), 1)
+	}
+	cv := newCanvas(img, nil)
+	ticks := []float64{s.Floor}
+	for e := math.Ceil(math.Log10(s.Floor)); math.Pow(10, e) <= s.Ceiling*(1+1e-9); e++ {
+		if d := math.Pow(10, e); d > s.Floor*2.5 && d < s.Ceiling/2.5 {
+			ticks = append(ticks, d)
+		}
+	}
+	ticks = append(ticks, s.Ceiling)
+	for n, d := range ticks {
+		x := math.Round(xOf(d)) + 0.5
+		cv.capsule(x, float64(barBot), x, float64(barBot+3), 0.6)
+		cv.flush(textColor, 1)
+		a := anchorTop
+		label := FormatDose(d)
+		switch n {
+		case 0:
+			a, x = anchorTopLeft, float64(x0)
+		case len(ticks) - 1:
+			a, x = anchorTopRight, float64(x1)
+		}
+		if lethal > 0 && math.Abs(s.T(d)-s.T(lethal)) < 0.1 && n != 0 && n != len(ticks)-1 {
+			continue // the lethal label stands there
+		}
+		drawText(img, label, size, int(x), barBot+4, a, dimColor)
+	}
+	if lethal >= s.Floor && lethal <= s.Ceiling {
+		x := math.Round(xOf(lethal)) + 0.5
+		cv.capsule(x, float64(barTop-2), x, float64(barBot+2), 2.5)
+		cv.flush(haloColor, 1)
+		cv.capsule(x, float64(barTop-2), x, float64(barBot+2), 1.25)
+		cv.flush(ColorLethal, 1)
+		drawText(img, FormatDose(lethal)+" lethal", size, int(x), barBot+4, anchorTop, textColor)
+	}
+	return img, nil
+}
+
+// FormatDose prints a dose for legends and tables, one format everywhere:
+// whole numbers from 10 to a million, two significant digits otherwise,
+// "0" for zero (never "-0"), "—" for unknown.
+func FormatDose(d float64) string {
+	switch {
+	case d == 0:
+		return "0"
+	case math.IsNaN(d):
+		return "—"
+	case math.Abs(d) >= 1e6:
+		return fmt.Sprintf("%.2g", d)
+	case math.Abs(d) >= 10:
+		return fmt.Sprintf("%.0f", d)
+	}
+	return fmt.Sprintf("%.2g", d)
+}

@@ -1,0 +1,241 @@
+//go:build cgo
+
+package main
+
+import (
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+	"time"
+
+	"dosecover/dosemap"
+	"dosecover/review"
+	"dosecover/review/view"
+
+	"fyne.io/fyne/v2/widget"
+)
+
+// TestSonicationTableAfterReanalysis follows the steps after which the
+// sonication table once came up empty: drawing a drift reference,
+// exporting the report, switching teaching mode on and off, then a
+// re-analysis (a sonication left out and taken back). After each step the
+// table must list every sonication, drawn with its check box.
+func TestSonicationTableAfterReanalysis(t *testing.T) {
+	for _, demo := range []bool{false, true} {
+		rw := testWindow(t)
+		if demo {
+			openDemoCase(t, rw)
+		} else {
+			openSynthetic(t, rw)
+		}
+		sonicationTableSteps(t, rw)
+	}
+}
+
+func sonicationTableSteps(t *testing.T, rw *reviewWindow) {
+	want := len(rw.result.SonRows)
+	check := func(step string) {
+		t.Helper()
+		rows, _ := rw.sonTable.Length()
+		if rows != want || want == 0 {
+			t.Fatalf("after %s: the table has %d rows, want %d", step, rows, want)
+		}
+		if n := len(checksOf(rw.sonTable)); n == 0 {
+			t.Fatalf("after %s: no row drawn", step)
+		}
+	}
+	check("opening")
+	mark := rw.completed.Load()
+	g := rw.loaded.Case.Sonications[0].Geometry
+	a, b := g.Point(1, 1, 0), g.Point(9, 9, 0)
+	rw.refDrawn(a, b, dosemap.Vec3{1, 0, 0}, dosemap.Vec3{0, 1, 0})
+	waitJobs(t, rw, mark, 1)
+	check("drawing a drift reference")
+	exportTo(t, rw)
+	check("exporting")
+	rw.teachCheck.SetChecked(true)
+	check("teaching mode on")
+	mark = rw.completed.Load()
+	rw.setExcluded(2, true)
+	waitJobs(t, rw, mark, 1)
+	check("leaving sonication 2 out")
+	rw.teachCheck.SetChecked(false)
+	mark = rw.completed.Load()
+	rw.setExcluded(2, false)
+	waitJobs(t, rw, mark, 1)
+	check("taking sonication 2 back")
+}
+
+// TestExportNamesNeverOverwrite: an export is named by the case and the
+// date, and a second export into the same folder on the same day gets a
+// new name instead of replacing the first.
+func TestExportNamesNeverOverwrite(t *testing.T) {
+	dir := t.TempDir()
+	day := time.Date(2026, 12, 3, 10, 0, 0, 0, time.Local)
+	first := exportStem(dir, "Case_A-dose-review", day)
+	if want := filepath.Join(dir, "Case_A-dose-review-2026-12-03"); first != want {
+		t.Fatalf("stem %q, want %q", first, want)
+	}
+	if err := os.WriteFile(first+".pdf", []byte("x"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	second := exportStem(dir, "Case_A-dose-review", day)
+	if second != first+"-2" {
+		t.Errorf("second export %q, want %q", second, first+"-2")
+	}
+	// The window's export: twice into one folder, eight files.
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	out := exportTo(t, rw)
+	mark := rw.exported.Load()
+	rw.writeReport(out)
+	for rw.exported.Load() == mark {
+		time.Sleep(10 * time.Millisecond)
+	}
+	ents, _ := os.ReadDir(out)
+	if len(ents) != 8 {
+		t.Errorf("two exports left %d files, want 8: %v", len(ents), ents)
+	}
+	for _, e := range ents {
+		if !strings.HasPrefix(e.Name(), "Synthetic_phantom-dose-review-"+time.Now().Format("2006-01-02")) {
+			t.Errorf("export file %q lacks the case and the date", e.Name())
+		}
+	}
+}
+
+// TestSmallRegionsSummarised: holes below the display size are listed as
+// one line, the larger ones one by one; the analysis keeps them all.
+func TestSmallRegionsSummarised(t *testing.T) {
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	rs := []region{{Label: "H1", VolumeML: 0.25, Detail: "depth 2.0 mm"}, {Label: "H2", VolumeML: 0.0004}, {Label: "H3", VolumeML: 0.0009}}
+	rows := rw.metrics.regionRows(rs, "hole")
+	if len(rows) != 3 {
+		t.Fatalf("%d rows, want the large hole (title and details) and one summary line", len(rows))
+	}
+	if b, ok := rows[0].(*widget.Button); !ok || !strings.HasPrefix(b.Text, "H1   0.250 mL") {
+		t.Errorf("first row %#v", rows[0])
+	}
+	// 0.4 + 0.9 mm³ = 0.0013 mL (computed).
+	if l, ok := rows[2].(*widget.Label); !ok || l.Text != "and 2 holes below 1 mm³ (0.001 mL together)" {
+		t.Errorf("summary row %#v", rows[2])
+	}
+	rw.app.Preferences().SetFloat(prefListMin, 0.5)
+	if rows := rw.metrics.regionRows(rs, "hole"); len(rows) != 5 {
+		t.Errorf("with 0.5 mm³ %d rows, want two holes listed and one summarised", len(rows))
+	}
+	if rows := rw.metrics.regionRows(nil, "hole"); len(rows) != 1 || rows[0].(*widget.Label).Text != "None." {
+		t.Errorf("no hole: %v", rows)
+	}
+}
+
+// TestDriftFlagInTable: a sonication whose removed drift exceeds the
+// limit gets a flag (not only a note) in the table.
+func TestDriftFlagInTable(t *testing.T) {
+	q := review.SonicationQuality{MaxDriftC: 1.4}
+	f, flagged := qualityFlags(q, 0, 0)
+	if !flagged || len(f) == 0 || !strings.Contains(f[0], "drift 1.40 °C removed, above 1 °C") {
+		t.Errorf("1.4 °C drift, default limit: flags %q, flagged %v", f, flagged)
+	}
+	if f, flagged := qualityFlags(q, 0, 2); flagged || !strings.Contains(strings.Join(f, ";"), "drift ≤ 1.40 °C") {
+		t.Errorf("1.4 °C drift, 2 °C limit: flags %q, flagged %v; want a note only", f, flagged)
+	}
+}
+
+// TestSortSonications: tapping a column header sorts the table by it,
+// tapping again reverses; selecting a row shows the sonication listed
+// there; the lethal volume each added outside the margin is a column.
+func TestSortSonications(t *testing.T) {
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	rows := rw.result.SonRows
+	doseOf := func(n int) float64 { return rows[rw.sonIndex(n)].PeakDose }
+	rw.sortSonications(5) // peak dose
+	for n := 1; n < len(rows); n++ {
+		if doseOf(n-1) > doseOf(n) {
+			t.Fatalf("ascending by peak dose: row %d %g before row %d %g", n-1, doseOf(n-1), n, doseOf(n))
+		}
+	}
+	rw.sortSonications(5)
+	for n := 1; n < len(rows); n++ {
+		if doseOf(n-1) < doseOf(n) {
+			t.Fatalf("descending by peak dose: row %d %g before row %d %g", n-1, doseOf(n-1), n, doseOf(n))
+		}
+	}
+	rw.sonTable.Select(widget.TableCellID{Row: 0, Col: 1})
+	if rw.selected != rw.sonIndex(0) {
+		t.Errorf("selected result row %d, want %d (the first row as sorted)", rw.selected, rw.sonIndex(0))
+	}
+	// Sonication 3 lands 16 mm behind the target, beyond the 3 mm margin:
+	// all lethal dose outside the margin is its own.
+	if got, want := rows[2].OutsideML, rw.result.OutsideMarginLethalML; got <= 0 || got > want+1e-9 {
+		t.Errorf("sonication 3 added %g mL outside the margin, the case %g mL", got, want)
+	}
+	rw.sortSonications(1)
+	rw.sortSonications(1)
+	if rw.sonIndex(0) != len(rows)-1 {
+		t.Errorf("descending by number: first row is result row %d", rw.sonIndex(0))
+	}
+}
+
+// TestSettingsOrigin: the settings dialog says whether its values are the
+// case's (from its review record) or your defaults, and whether your
+// defaults differ.
+func TestSettingsOrigin(t *testing.T) {
+	rw := testWindow(t)
+	if s := rw.settingsOrigin(); !strings.Contains(s, "No case is open") {
+		t.Errorf("no case: %q", s)
+	}
+	openSynthetic(t, rw)
+	s := rw.settingsOrigin()
+	if !strings.Contains(s, "no review record yet") || !strings.Contains(s, "are the same") {
+		t.Errorf("fresh case, default settings: %q", s)
+	}
+	d := rw.settings
+	d.MarginMM = 5
+	savePrefSettings(rw.app.Preferences(), d)
+	rw.fromRecord = true
+	s = rw.settingsOrigin()
+	if !strings.Contains(s, "from its review record") || !strings.Contains(s, "differ") || !strings.Contains(s, "5 mm") {
+		t.Errorf("case from its record, other defaults: %q", s)
+	}
+}
+
+// TestPinnedPointPlots: pinning a point plots its temperature with the
+// sonication numbers along the time axis and, below it, the dose
+// accumulated there over time (the dose curve in the target colour).
+func TestPinnedPointPlots(t *testing.T) {
+	rw := testWindow(t)
+	// The synthetic case holds ready dose maps only (no temperature to
+	// plot, and the probe says so); the demo has thermometry.
+	rw.pin(dosemap.Vec3{0, 0, 0})
+	openDemoCase(t, rw)
+	if len(rw.result.HoleRows) == 0 {
+		t.Fatal("no hole in the demo to pin")
+	}
+	rw.pin(rw.result.HoleRows[0].Centre)
+	deadline := time.Now().Add(30 * time.Second)
+	for rw.probeCurve == nil && time.Now().Before(deadline) {
+		time.Sleep(5 * time.Millisecond)
+	}
+	c := rw.probeCurve
+	if c == nil || rw.probe.below == nil {
+		t.Fatalf("no probe plots (message %q)", rw.probeMsg.Text)
+	}
+	if len(c.Numbers) != len(rw.result.SonRows) || c.Numbers[0] != rw.result.SonRows[0].Number {
+		t.Errorf("sonication numbers %v, want one per sonication", c.Numbers)
+	}
+	img := renderPlotsImage(probePlot(c), probeDosePlot(c), 600, 400, 1)
+	lower := 0
+	for y := 260; y < 400; y++ {
+		for x := 0; x < 600; x++ {
+			if img.RGBAAt(x, y) == view.ColorTarget {
+				lower++
+			}
+		}
+	}
+	if lower < 50 {
+		t.Errorf("%d pixels of the dose curve in the lower plot, want a curve", lower)
+	}
+}
