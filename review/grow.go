@@ -51,7 +51,7 @@ func (s *Session) AddSonication(ctx context.Context, so *dosemap.Sonication) err
 	ref := s.fg.coarse
 	all := append(slices.Clone(s.grown.sons), so)
 	clocks, clockNote := sessionClock(all)
-	sd, unit, err := prepareSonication(ctx, so, s.prepared, ref, s.keep, clocks[len(all)-1], nil)
+	sd, unit, err := prepareStacks(ctx, so, s.prepared, ref, s.keep, clocks[len(all)-1])
 	if err != nil {
 		return named(err)
 	}
@@ -83,12 +83,13 @@ func (s *Session) AddSonication(ctx context.Context, so *dosemap.Sonication) err
 		sd.cooling = e.CoolingS
 		if e.Rise != nil {
 			sd.residual = onGrid(e.Rise, ref)
-			if s.prepared.CarryOver && slices.ContainsFunc(e.Rise.Data, func(x float32) bool { return x > 0 }) {
+			if s.prepared.CarryOver && len(so.Stacks) == 0 && slices.ContainsFunc(e.Rise.Data, func(x float32) bool { return x > 0 }) {
 				redo, _, err := prepareSonication(ctx, so, s.prepared, ref, s.keep, math.NaN(), e.Rise.Data)
 				if err != nil {
 					return fmt.Errorf("sonication %d with residual heat: %w", so.Number, err)
 				}
 				sd.measured, sd.dose, sd.peak = sd.dose, redo.dose, redo.peak
+				sd.reach = newReach(ref, sd.dose)
 				if redo.series != nil {
 					sd.series, sd.source = redo.series, redo.source
 				}
