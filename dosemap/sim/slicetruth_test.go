@@ -16,7 +16,7 @@ import (
 //   - a Gaussian profile along z (σ 3 mm, 20 °C rise) gives the mean of
 //     its values at z and z ± 1 mm, within the error bound of linear
 //     interpolation between voxels h = 1.2 mm apart at the two outer
-//     points: 2/3 · h²/8 · max|f''| = 2/3 · 0.18 · 20/9 = 0.27 °C
+//     points: 2/3 · h²/8 · max|f”| = 2/3 · 0.18 · 20/9 = 0.27 °C
 //     (computed from the interpolation error bound; the thermometry
 //     voxels of the simulator interpolate the same way).
 func TestSliceAverager(t *testing.T) {
