@@ -4,8 +4,11 @@ import (
 	"fmt"
 	"math"
 	"sort"
+	"strconv"
 
 	"dosecover/dosemap"
+
+	"github.com/suyashkumar/dicom/pkg/tag"
 )
 
 // Planes acquired together.
@@ -13,9 +16,11 @@ import (
 // Thermometry is often acquired on a few planes through the focus at once
 // (across the beam and along it), either as one series whose frames lie in
 // several orientations or as one series per plane acquired at the same
-// time. The frames of one series are split into stacks by orientation
-// (ImageOrientationPatient); stacks and series of one frame of reference
-// whose frame times overlap form one sonication with several stacks.
+// time. The frames of one series are split into stacks by their StackID
+// (0020,9056) when every frame of an enhanced image carries one, else by
+// orientation (ImageOrientationPatient); stacks and series of one frame of
+// reference whose frame times overlap form one sonication with several
+// stacks.
 
 // StackInfo describes one stack (a set of parallel slices) of a sonication.
 type StackInfo struct {
@@ -26,13 +31,177 @@ type StackInfo struct {
 	Frames      int          `json:"frames"`
 	Center      dosemap.Vec3 `json:"centerMm"` // centre of the stack, patient mm (LPS)
 	Normal      dosemap.Vec3 `json:"normal"`   // unit normal of the slices
+	// StackID is the StackID (0020,9056) of the stack's frames in an
+	// enhanced image; "" when the stack was found by orientation.
+	StackID string `json:"stackId,omitempty"`
 }
 
 func stackInfo(st *stack, s *series) StackInfo {
 	g := st.Geometry
 	return StackInfo{Series: s.info.UID, Description: s.info.Description, Orientation: orientationName(g),
 		Slices: g.Slices, Frames: len(st.Grid),
-		Center: g.Point(float64(g.Cols-1)/2, float64(g.Rows-1)/2, float64(g.Slices-1)/2), Normal: g.Normal}
+		Center: g.Point(float64(g.Cols-1)/2, float64(g.Rows-1)/2, float64(g.Slices-1)/2), Normal: g.Normal,
+		StackID: st.StackID}
+}
+
+// splitStacks splits the frames of one series into stacks and returns
+// the StackID of each ("" when split by orientation) and the problems
+// found, for the caller to name the series.
+//
+// Enhanced images say which stack a frame belongs to: StackID (0020,9056)
+// and InStackPositionNumber (0020,9057) in the Frame Content Sequence of
+// each frame (PS3.3 C.7.6.16.2.2.4: the frames of one stack share a
+// StackID; InStackPositionNumber numbers the frames of a stack by
+// position, 1 at one end, and is required with StackID). When every frame
+// carries a StackID, the frames of each StackID form a stack (the largest
+// first, ties in StackID order); parallel stacks at different positions in
+// one series stay apart this way. A StackID that disagrees with the planes
+// (one StackID in two orientations, two StackIDs on one plane) or frames
+// only some of which carry one are a problem, and the frames are split by
+// orientation instead (splitOrientations). InStackPositionNumbers that do
+// not follow the positions along the normal are a problem; the slices are
+// ordered by position (ImagePositionPatient) either way.
+func splitStacks(frames []frameRef) (groups [][]frameRef, ids []string, problems []string) {
+	byOrientation := func() ([][]frameRef, []string, []string) {
+		g := splitOrientations(frames)
+		return g, make([]string, len(g)), problems
+	}
+	with := 0
+	var without frameRef
+	for _, r := range frames {
+		if r.meta().StackID != "" {
+			with++
+		} else if without.fi == nil {
+			without = r
+		}
+	}
+	if with == 0 {
+		return byOrientation()
+	}
+	if with < len(frames) {
+		problems = append(problems, fmt.Sprintf("%d of %d frames carry a %s and %d do not (%s); stacks are split by %s instead",
+			with, len(frames), tagName(tagStackID), len(frames)-with, frameName(without), tagName(tag.ImageOrientationPatient)))
+		return byOrientation()
+	}
+	index := map[string]int{}
+	for _, r := range frames {
+		id := r.meta().StackID
+		n, ok := index[id]
+		if !ok {
+			n = len(groups)
+			index[id] = n
+			groups = append(groups, nil)
+			ids = append(ids, id)
+		}
+		groups[n] = append(groups[n], r)
+	}
+	// One orientation per StackID.
+	for n, g := range groups {
+		m0 := g[0].meta()
+		for _, r := range g[1:] {
+			if m := r.meta(); m.Row.Sub(m0.Row).Norm() > 1e-3 || m.Col.Sub(m0.Col).Norm() > 1e-3 {
+				problems = append(problems, fmt.Sprintf("%s %q holds frames in two orientations (%s: %s %s, %s: %s); stacks are split by orientation instead",
+					tagName(tagStackID), ids[n], frameName(g[0]), tagName(tag.ImageOrientationPatient), iopText(m0), frameName(r), iopText(m)))
+				return byOrientation()
+			}
+		}
+	}
+	// No two StackIDs on one plane.
+	for a := range groups {
+		for b := a + 1; b < len(groups); b++ {
+			ma, mb := groups[a][0].meta(), groups[b][0].meta()
+			if ma.Row.Sub(mb.Row).Norm() > 1e-3 || ma.Col.Sub(mb.Col).Norm() > 1e-3 {
+				continue
+			}
+			normal := ma.Row.Cross(ma.Col).Unit()
+			for _, ra := range groups[a] {
+				for _, rb := range groups[b] {
+					pa, pb := ra.meta().IPP.Dot(normal), rb.meta().IPP.Dot(normal)
+					if math.Abs(pa-pb) <= posTol {
+						problems = append(problems, fmt.Sprintf("%ss %q and %q both hold the plane at %.2f mm along the normal (%s and %s); stacks are split by orientation instead",
+							tagName(tagStackID), ids[a], ids[b], pa, frameName(ra), frameName(rb)))
+						return byOrientation()
+					}
+				}
+			}
+		}
+	}
+	for n, g := range groups {
+		if p := checkInStackPositions(g); p != "" {
+			problems = append(problems, fmt.Sprintf("%s %q: %s", tagName(tagStackID), ids[n], p))
+		}
+	}
+	order := make([]int, len(groups))
+	for n := range order {
+		order[n] = n
+	}
+	sort.SliceStable(order, func(a, b int) bool {
+		ga, gb := groups[order[a]], groups[order[b]]
+		if len(ga) != len(gb) {
+			return len(ga) > len(gb)
+		}
+		return stackIDLess(ids[order[a]], ids[order[b]])
+	})
+	sortedGroups := make([][]frameRef, len(groups))
+	sortedIDs := make([]string, len(groups))
+	for n, o := range order {
+		sortedGroups[n], sortedIDs[n] = groups[o], ids[o]
+	}
+	return sortedGroups, sortedIDs, problems
+}
+
+// stackIDLess orders StackIDs numerically when both are numbers, else as
+// text.
+func stackIDLess(a, b string) bool {
+	x, errA := strconv.Atoi(a)
+	y, errB := strconv.Atoi(b)
+	if errA == nil && errB == nil {
+		return x < y
+	}
+	return a < b
+}
+
+// checkInStackPositions checks the InStackPositionNumbers of the frames of
+// one stack (one orientation) against their positions along the normal:
+// every frame carries one, frames of one number lie on one plane, frames
+// of different numbers on different planes, in the order of the numbers
+// (either direction). It returns what is wrong, or "".
+func checkInStackPositions(g []frameRef) string {
+	m0 := g[0].meta()
+	normal := m0.Row.Cross(m0.Col).Unit()
+	pos := map[int]float64{}
+	first := map[int]frameRef{}
+	for _, r := range g {
+		m := r.meta()
+		if m.InStackPos == 0 {
+			return fmt.Sprintf("%s has no %s (required with a StackID); slices are ordered by position", frameName(r), tagName(tagInStackPosition))
+		}
+		p := m.IPP.Dot(normal)
+		if q, ok := pos[m.InStackPos]; ok {
+			if math.Abs(p-q) > posTol {
+				return fmt.Sprintf("%s %d is at %.2f mm along the normal in %s and at %.2f mm in %s; slices are ordered by position",
+					tagName(tagInStackPosition), m.InStackPos, q, frameName(first[m.InStackPos]), p, frameName(r))
+			}
+			continue
+		}
+		pos[m.InStackPos], first[m.InStackPos] = p, r
+	}
+	nums := make([]int, 0, len(pos))
+	for k := range pos {
+		nums = append(nums, k)
+	}
+	sort.Ints(nums)
+	sign := 0.0
+	for n := 1; n < len(nums); n++ {
+		d := pos[nums[n]] - pos[nums[n-1]]
+		s := math.Copysign(1, d)
+		if math.Abs(d) <= posTol || (sign != 0 && s != sign) {
+			return fmt.Sprintf("%s %d (%s, %.2f mm along the normal) and %d (%s, %.2f mm) do not follow the slice positions; slices are ordered by position",
+				tagName(tagInStackPosition), nums[n-1], frameName(first[nums[n-1]]), pos[nums[n-1]], nums[n], frameName(first[nums[n]]), pos[nums[n]])
+		}
+		sign = s
+	}
+	return ""
 }
 
 // splitOrientations splits frames into groups of one orientation (row and
