@@ -50,9 +50,10 @@ func stackInfo(st *stack, s *series) StackInfo {
 //
 // Enhanced images say which stack a frame belongs to: StackID (0020,9056)
 // and InStackPositionNumber (0020,9057) in the Frame Content Sequence of
-// each frame (PS3.3 C.7.6.16.2.2.4: the frames of one stack share a
-// StackID; InStackPositionNumber numbers the frames of a stack by
-// position, 1 at one end, and is required with StackID). When every frame
+// each frame (PS3.3 C.7.6.16.2.2, Frame Content Macro: the frames of one
+// stack share a StackID; InStackPositionNumber, required with StackID,
+// numbers the frames of a stack in order of position, 1 at one end; the
+// ordering rule from memory). When every frame
 // carries a StackID, the frames of each StackID form a stack (the largest
 // first, ties in StackID order); parallel stacks at different positions in
 // one series stay apart this way. A StackID that disagrees with the planes
