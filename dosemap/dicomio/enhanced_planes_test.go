@@ -5,6 +5,7 @@ import (
 	"os"
 	"os/exec"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
 
@@ -194,6 +195,27 @@ func TestEnhancedStacksByStackID(t *testing.T) {
 				if !found {
 					t.Errorf("no problem with %q; problems %q", tc.problem, inv.Problems)
 				}
+			}
+			// Read again with the frames left in the file (decoded when
+			// needed): the same frames, bit for bit.
+			cd, _, err := Load(t.Context(), dir, LoadOptions{Deferred: true}, nil)
+			if err != nil {
+				t.Fatal(err)
+			}
+			for n, st := range stacksOfSonication(cd.Sonications[0]) {
+				if st.Phase != nil || st.Source == nil {
+					t.Fatalf("stack %d: frames read at load time, want them deferred", n+1)
+				}
+				r, _, done, err := st.Resident(t.Context())
+				if err != nil {
+					t.Fatal(err)
+				}
+				for tt := range r.Phase {
+					if !slices.Equal(r.Phase[tt], stacks[n].Phase[tt]) || !slices.Equal(r.Magnitude[tt], stacks[n].Magnitude[tt]) {
+						t.Errorf("stack %d, time point %d: deferred frames differ from frames read at load", n+1, tt+1)
+					}
+				}
+				done()
 			}
 			var b strings.Builder
 			if err := inv.WriteText(&b); err != nil {
