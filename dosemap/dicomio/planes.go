@@ -262,9 +262,25 @@ func (cr *caseReader) groupAcquiredTogether() {
 	var keep []*unit
 	for _, u := range cr.units {
 		merged := false
+		if u.kind != "phase" {
+			// Temperature and dose maps are not grouped: one acquired
+			// with another acquisition is named, as it may be the same
+			// sonication counted twice.
+			for _, k := range keep {
+				if timeOverlap(k.data, u.data) {
+					cr.inv.problem("series %s (%s) was acquired at the same time as series %s (%s); the two cannot be grouped into one sonication and are read as two (check that they are not the same sonication twice)",
+						u.phase.name(), kindText(u.kind), k.phase.name(), kindText(k.kind))
+				}
+			}
+		}
 		if u.kind == "phase" {
 			for _, k := range keep {
-				if k.kind != "phase" || !timeOverlap(k.data, u.data) {
+				if !timeOverlap(k.data, u.data) {
+					continue
+				}
+				if k.kind != "phase" {
+					cr.inv.problem("series %s (%s) was acquired at the same time as series %s (%s); the two cannot be grouped into one sonication and are read as two (check that they are not the same sonication twice)",
+						u.phase.name(), kindText(u.kind), k.phase.name(), kindText(k.kind))
 					continue
 				}
 				if a, b := k.phase.info.FrameOfRef, u.phase.info.FrameOfRef; a != "" && b != "" && a != b {
@@ -299,10 +315,75 @@ func (cr *caseReader) groupAcquiredTogether() {
 	cr.units = keep
 }
 
+// kindText names the kind of a unit's data for a message.
+func kindText(kind string) string {
+	switch kind {
+	case "phase":
+		return "thermometry"
+	case "temperature":
+		return "temperature maps"
+	case "dose":
+		return "dose map"
+	}
+	return kind
+}
+
 func stacksOf(u *unit) []*stack {
 	out := make([]*stack, len(u.stacks))
 	for n, s := range u.stacks {
 		out[n] = s.data
 	}
 	return out
+}
+
+// oneFrameOfReference keeps the files of series s in one frame of
+// reference: positions in different frames of reference cannot be related
+// (PS3.3 C.7.4.1.1.1), so the files whose FrameOfReferenceUID differs from
+// that of most files of the series (ties: the first file's) are refused,
+// each listed as skipped with both UIDs, and the series is named in a
+// problem. Files without a FrameOfReferenceUID stay (checkFrames names a
+// series without one).
+func (cr *caseReader) oneFrameOfReference(s *series) {
+	count := map[string]int{}
+	var order []string
+	for _, fi := range s.files {
+		if fi.FrameOfRef == "" {
+			continue
+		}
+		if count[fi.FrameOfRef] == 0 {
+			order = append(order, fi.FrameOfRef)
+		}
+		count[fi.FrameOfRef]++
+	}
+	if len(order) < 2 {
+		return
+	}
+	keep := order[0]
+	for _, u := range order[1:] {
+		if count[u] > count[keep] {
+			keep = u
+		}
+	}
+	var files []*fileInfo
+	var paths []string
+	refused := 0
+	first := ""
+	for n, fi := range s.files {
+		if fi.FrameOfRef == "" || fi.FrameOfRef == keep {
+			files = append(files, fi)
+			paths = append(paths, s.info.Paths[n])
+			continue
+		}
+		refused++
+		if first == "" {
+			first = cr.rel(fi.Path)
+		}
+		cr.inv.Skipped = append(cr.inv.Skipped, SkippedFile{Path: cr.rel(fi.Path), Reason: fmt.Sprintf(
+			"%s %s differs from the %s of the other files of series %s; its positions cannot be related to theirs",
+			tagName(tag.FrameOfReferenceUID), fi.FrameOfRef, keep, s.name())})
+	}
+	cr.inv.problem("series %s: %d of its %d files (%s%s) lie in another frame of reference than the others (%s); they are not used",
+		s.name(), refused, len(s.files), first, andMore(refused-1), keep)
+	s.files, s.info.Paths = files, paths
+	s.info.FrameOfRef = keep
 }

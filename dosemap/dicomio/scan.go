@@ -358,6 +358,7 @@ func (cr *caseReader) assemble(paths []string, infos []*fileInfo, errs []error) 
 		return cr.series[a].info.UID < cr.series[b].info.UID
 	})
 	for _, s := range cr.series {
+		cr.oneFrameOfReference(s)
 		cr.classify(s)
 	}
 	cr.chooseAnatomy()
@@ -879,6 +880,19 @@ func (cr *caseReader) checkFrames() {
 	}
 	for _, u := range cr.units {
 		check(u.phase.info.FrameOfRef, fmt.Sprintf("sonication %d (series %s)", u.info.Number, u.phase.name()))
+		// Further stacks and magnitude from other series: each series
+		// named once.
+		seen := map[*series]bool{u.phase: true}
+		for _, us := range u.stacks {
+			if !seen[us.s] {
+				seen[us.s] = true
+				check(us.s.info.FrameOfRef, fmt.Sprintf("a stack of sonication %d (series %s)", u.info.Number, us.s.name()))
+			}
+		}
+		if m := u.magSeries; m != nil && !seen[m] {
+			seen[m] = true
+			check(m.info.FrameOfRef, fmt.Sprintf("the magnitude of sonication %d (series %s)", u.info.Number, m.name()))
+		}
 	}
 	for n, ss := range cr.structs {
 		fors := map[string]bool{}
