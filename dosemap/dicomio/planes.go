@@ -3,6 +3,7 @@ package dicomio
 import (
 	"fmt"
 	"math"
+	"slices"
 	"sort"
 	"strconv"
 
@@ -107,7 +108,22 @@ func splitStacks(frames []frameRef) (groups [][]frameRef, ids []string, problems
 			}
 		}
 	}
-	// No two StackIDs on one plane.
+	// No two StackIDs on one plane: compare the distinct slice positions
+	// (one frame each) of stacks of one orientation.
+	type plane struct {
+		pos float64
+		r   frameRef
+	}
+	planesOf := func(g []frameRef, normal dosemap.Vec3) []plane {
+		var out []plane
+		for _, r := range g {
+			p := r.meta().IPP.Dot(normal)
+			if !slices.ContainsFunc(out, func(q plane) bool { return math.Abs(q.pos-p) <= posTol }) {
+				out = append(out, plane{p, r})
+			}
+		}
+		return out
+	}
 	for a := range groups {
 		for b := a + 1; b < len(groups); b++ {
 			ma, mb := groups[a][0].meta(), groups[b][0].meta()
@@ -115,12 +131,11 @@ func splitStacks(frames []frameRef) (groups [][]frameRef, ids []string, problems
 				continue
 			}
 			normal := ma.Row.Cross(ma.Col).Unit()
-			for _, ra := range groups[a] {
-				for _, rb := range groups[b] {
-					pa, pb := ra.meta().IPP.Dot(normal), rb.meta().IPP.Dot(normal)
-					if math.Abs(pa-pb) <= posTol {
-						problems = append(problems, fmt.Sprintf("%ss %q and %q both hold the plane at %.2f mm along the normal (%s and %s); stacks are split by orientation instead",
-							tagName(tagStackID), ids[a], ids[b], pa, frameName(ra), frameName(rb)))
+			for _, pa := range planesOf(groups[a], normal) {
+				for _, pb := range planesOf(groups[b], normal) {
+					if math.Abs(pa.pos-pb.pos) <= posTol {
+						problems = append(problems, fmt.Sprintf("StackIDs %s %q and %q both hold the plane at %.2f mm along the normal (%s and %s); stacks are split by orientation instead",
+							tagStackID, ids[a], ids[b], pa.pos, frameName(pa.r), frameName(pb.r)))
 						return byOrientation()
 					}
 				}

@@ -26,6 +26,10 @@ LAYOUT:
   bad-order   as slabs, but the InStackPositionNumbers of stack "2" are 1
               at both slices
   no-id       as planes, without StackID and InStackPositionNumber
+  some-id     as planes, but the frames of the last time point carry no
+              StackID and no InStackPositionNumber
+  id-per-time as slabs, but the StackID is the time point ("1" to "4"), so
+              that every StackID holds the planes of every other
 """
 
 import os
@@ -60,9 +64,9 @@ def plane_origin(iop, centre):
 
 def stacks_of(layout):
     """[(StackID, iop, [centre of each slice])] in order of InStackPositionNumber."""
-    if layout in ("planes", "mixed-id", "no-id"):
+    if layout in ("planes", "mixed-id", "no-id", "some-id"):
         return [("1", CORONAL, [[0, 0, 0]]), ("2", SAGITTAL, [[0, 0, 0]])]
-    if layout in ("slabs", "bad-order"):
+    if layout in ("slabs", "bad-order", "id-per-time"):
         return [("1", AXIAL, [[0, 0, -20], [0, 0, -17]]), ("2", AXIAL, [[0, 0, 10], [0, 0, 13]])]
     raise SystemExit("unknown layout " + layout)
 
@@ -155,7 +159,7 @@ def write(out, layout):
     ds.DimensionOrganizationSequence = Sequence([org])
     index = []
     dims = ((0x00209056, "Stack"), (0x00209057, "Position in stack"), (0x00209128, "Time point"))
-    if layout == "no-id":
+    if layout in ("no-id", "some-id"):
         dims = dims[2:]
     for pointer, label in dims:
         d = Dataset()
@@ -255,11 +259,19 @@ def write(out, layout):
                     fc.FrameReferenceDateTime = "202603011000%09.6f" % sec
                     fc.FrameAcquisitionDateTime = "202603011000%09.6f" % sec
                     fc.FrameAcquisitionDuration = 500.0
-                    if layout != "no-id":
+                    if layout == "id-per-time":
+                        fc.StackID = str(t + 1)
+                        fc.InStackPositionNumber = pos_number + 2 * (s - 1)
+                    elif layout != "no-id" and not (layout == "some-id" and t == TIMES - 1):
                         fc.StackID = "1" if layout == "mixed-id" else stack_id
                         fc.InStackPositionNumber = pos_number
                     fc.TemporalPositionIndex = t + 1
-                    fc.DimensionIndexValues = [s, pos_number, t + 1] if layout != "no-id" else [t + 1]
+                    if layout in ("no-id", "some-id"):
+                        fc.DimensionIndexValues = [t + 1]
+                    elif layout == "id-per-time":
+                        fc.DimensionIndexValues = [t + 1, pos_number + 2 * (s - 1), t + 1]
+                    else:
+                        fc.DimensionIndexValues = [s, pos_number, t + 1]
                     fr.FrameContentSequence = Sequence([fc])
                     pp = Dataset()
                     pp.ImagePositionPatient = plane_origin(iop, centre)
