@@ -131,8 +131,9 @@ func splitStacks(frames []frameRef) (groups [][]frameRef, ids []string, problems
 				continue
 			}
 			normal := ma.Row.Cross(ma.Col).Unit()
+			pbs := planesOf(groups[b], normal)
 			for _, pa := range planesOf(groups[a], normal) {
-				for _, pb := range planesOf(groups[b], normal) {
+				for _, pb := range pbs {
 					if math.Abs(pa.pos-pb.pos) <= posTol {
 						problems = append(problems, fmt.Sprintf("StackIDs %s %q and %q both hold the plane at %.2f mm along the normal (%s and %s); stacks are split by orientation instead",
 							tagStackID, ids[a], ids[b], pa.pos, frameName(pa.r), frameName(pb.r)))
