@@ -28,7 +28,7 @@ import (
 // must be made again with the analysis of commit dff72a8.
 func TestSingleSlabFiguresUnchanged(t *testing.T) {
 	if testing.Short() {
-		t.Skip("writes and analyses three simulated sessions")
+		t.Skip("writes and analyses two simulated sessions")
 	}
 	b, err := os.ReadFile(filepath.Join("testdata", "single-slab-figures.json"))
 	if err != nil {
@@ -42,7 +42,6 @@ func TestSingleSlabFiguresUnchanged(t *testing.T) {
 	}
 	sessions := map[string]*sim.Session{
 		"demo":        sim.DemoSession(),
-		"varied-1":    sim.VariedSession(1, 7),
 		"planes-slab": sim.PlanesSession(sim.LayoutSlab, 1),
 	}
 	if len(ref.Cases) != len(sessions) {
