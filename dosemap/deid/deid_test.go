@@ -10,6 +10,8 @@ import (
 	"strings"
 	"testing"
 
+	"dosecover/dosemap/dicomwrite"
+
 	"github.com/suyashkumar/dicom"
 	"github.com/suyashkumar/dicom/pkg/tag"
 )
@@ -146,7 +148,7 @@ func mustValue(t testing.TB, v any) dicom.Value {
 
 func writeDS(t testing.TB, path string, es []*dicom.Element) {
 	t.Helper()
-	sortElements(es)
+	dicomwrite.SortByTag(es)
 	var buf bytes.Buffer
 	if err := dicom.Write(&buf, dicom.Dataset{Elements: es}, dicom.SkipVRVerification()); err != nil {
 		t.Fatalf("writing %s: %v", path, err)
