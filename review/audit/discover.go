@@ -434,10 +434,6 @@ func SafeName(name string) string {
 // shares; a FIFO or a device is never opened for a blocking read).
 func IsDICOMFile(p string) (bool, error) { return dicomio.SniffFile(p) }
 
-// IsDICOM reports whether head (the first 132 bytes of a file, or all of a
-// shorter file) looks like DICOM; see dicomio.IsDICOM.
-func IsDICOM(head []byte) bool { return dicomio.IsDICOM(head) }
-
 // Shard selects one part of a case list, so that several machines can share
 // a large registry: shard Index of Count (1-based) takes the cases whose
 // Name hashes (FNV-1a, 64 bit) to Index-1 modulo Count. The choice depends on
