@@ -13,7 +13,7 @@ import (
 // a grid or a structure of closed planar contours. When both are set the
 // mask is used.
 //
-// A mask may hold 0/1 values (as made by maskVolume) or the fraction of
+// A mask may hold 0/1 values (as made by MaskRegion) or the fraction of
 // each voxel inside the region (0..1, partial volume): it is interpolated
 // trilinearly and the region is where the result is >= 0.5, so fractions
 // place the outline between voxel centres where the surface crosses. A
