@@ -63,7 +63,7 @@ func TestDS(t *testing.T) {
 		{-1.0 / 3 * 1e-100, "-3.33333333e-101", "three-digit exponent: 9 digits to stay within 16"},
 		{-math.MaxFloat64, "-1.79769313e+308", "largest magnitude, exactly 16 characters"},
 		{math.SmallestNonzeroFloat64, "4.940656458e-324", "smallest subnormal, exactly 16 characters"},
-		{42.57747892 * 1.5, "63.86621838", "1H Larmor frequency at 1.5 T, MHz (gyromagnetic ratio 42.57747892 MHz/T, CODATA 2018)"},
+		{42.57747892 * 1.5, "63.86621838", "1H Larmor frequency at 1.5 T, MHz (γ/2π = 42.57747892 MHz/T, CODATA 2014, as dosemap.Gamma)"},
 	}
 	for _, c := range cases {
 		got := DS(c.x)
