@@ -158,6 +158,38 @@ func (e *Elements) AddImagePlane(g dosemap.Geometry, k int) dosemap.Vec3 {
 	return ipp
 }
 
+// RealWorldValueMapping is one item of RealWorldValueMappingSequence
+// (0040,9096), PS3.3 C.7.6.16.2.11: the stored values First to Last stand
+// for Intercept + Slope × stored value, in the UCUM unit UnitCode.
+type RealWorldValueMapping struct {
+	Label       string  // LUTLabel (0040,9210)
+	Explanation string  // LUTExplanation (0028,3003)
+	VR          string  // "US" or "SS": of First and Last, as the pixels are unsigned or signed
+	First, Last int     // RealWorldValueFirstValueMapped, ...LastValueMapped
+	Intercept   float64 // RealWorldValueIntercept (0040,9224)
+	Slope       float64 // RealWorldValueSlope (0040,9225)
+	UnitCode    string  // MeasurementUnitsCodeSequence: UCUM code value ("min", "rad")
+	UnitMeaning string  // and its code meaning ("minute", "radian")
+}
+
+// AddRealWorldValueMapping adds RealWorldValueMappingSequence holding the
+// one mapping m.
+func (e *Elements) AddRealWorldValueMapping(m RealWorldValueMapping) {
+	var code Elements
+	code.Add(tag.CodeValue, m.UnitCode)
+	code.Add(tag.CodingSchemeDesignator, "UCUM")
+	code.Add(tag.CodeMeaning, m.UnitMeaning)
+	var it Elements
+	it.Add(tag.LUTExplanation, m.Explanation)
+	it.AddVR(tag.RealWorldValueFirstValueMapped, m.VR, []int{m.First})
+	it.AddVR(tag.RealWorldValueLastValueMapped, m.VR, []int{m.Last})
+	it.Add(tag.RealWorldValueIntercept, m.Intercept)
+	it.Add(tag.RealWorldValueSlope, m.Slope)
+	it.Add(tag.LUTLabel, m.Label)
+	it.Seq(tag.MeasurementUnitsCodeSequence, code)
+	e.Seq(tag.RealWorldValueMappingSequence, it)
+}
+
 // PixelData returns a PixelData element holding raw, the native (not
 // encapsulated) pixel bytes as they are to be written; the writer copies
 // them unchanged.

@@ -378,3 +378,57 @@ func encodeContour(b *testing.B, v any) {
 		b.Fatal(err)
 	}
 }
+
+// The mapping item reads back with its values, the signed first value
+// under VR SS included (PS3.3 C.7.6.16.2.11; the VR of the first and last
+// values follows the pixels' sign).
+func TestAddRealWorldValueMapping(t *testing.T) {
+	var e Elements
+	e.AddRealWorldValueMapping(RealWorldValueMapping{
+		Label: "PHASE", Explanation: "phase in radians", VR: "SS", First: -2048, Last: 2047,
+		Intercept: 0, Slope: math.Pi / 2048, UnitCode: "rad", UnitMeaning: "radian",
+	})
+	data, err := Encode(Implementation{ClassUID: "2.25.1", VersionName: "TEST"}, "1.2.840.10008.5.1.4.1.1.4", "2.25.2", e)
+	if err != nil {
+		t.Fatal(err)
+	}
+	ds, err := dicom.Parse(bytes.NewReader(data), int64(len(data)), nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	seq, err := ds.FindElementByTag(tag.RealWorldValueMappingSequence)
+	if err != nil {
+		t.Fatal(err)
+	}
+	items := seq.Value.GetValue().([]*dicom.SequenceItemValue)
+	if len(items) != 1 {
+		t.Fatalf("%d mapping items, want 1", len(items))
+	}
+	got := map[tag.Tag]any{}
+	var unit []*dicom.Element
+	for _, el := range items[0].GetValue().([]*dicom.Element) {
+		got[el.Tag] = el.Value.GetValue()
+		if el.Tag == tag.MeasurementUnitsCodeSequence {
+			unit = el.Value.GetValue().([]*dicom.SequenceItemValue)[0].GetValue().([]*dicom.Element)
+		}
+		if el.Tag == tag.RealWorldValueFirstValueMapped && el.RawValueRepresentation != "SS" {
+			t.Errorf("first value mapped written as %s, want SS", el.RawValueRepresentation)
+		}
+	}
+	if v := got[tag.RealWorldValueFirstValueMapped].([]int); v[0] != -2048 {
+		t.Errorf("first value mapped %v, want -2048", v)
+	}
+	if v := got[tag.RealWorldValueSlope].([]float64); v[0] != math.Pi/2048 {
+		t.Errorf("slope %v, want π/2048 exactly (FD)", v)
+	}
+	if v := got[tag.LUTLabel].([]string); v[0] != "PHASE" {
+		t.Errorf("LUTLabel %q", v)
+	}
+	codes := map[tag.Tag]string{}
+	for _, el := range unit {
+		codes[el.Tag] = strings.TrimSpace(el.Value.GetValue().([]string)[0])
+	}
+	if codes[tag.CodeValue] != "rad" || codes[tag.CodingSchemeDesignator] != "UCUM" || codes[tag.CodeMeaning] != "radian" {
+		t.Errorf("unit code %v, want rad (UCUM) radian", codes)
+	}
+}

@@ -14,6 +14,7 @@ import (
 	"time"
 
 	"dosecover/dosemap"
+	"dosecover/dosemap/dicomwrite"
 
 	"github.com/suyashkumar/dicom/pkg/tag"
 )
@@ -170,19 +171,11 @@ func (s *Session) encodeMR(id ids, im *mrImage) ([]byte, error) {
 		e.Add(tag.WindowWidth, ds(im.width))
 	}
 	if im.complex == "PHASE" {
-		var code elems
-		code.Add(tag.CodeValue, "rad")
-		code.Add(tag.CodingSchemeDesignator, "UCUM")
-		code.Add(tag.CodeMeaning, "radian")
-		var m elems
-		m.Add(tag.LUTExplanation, "phase in radians")
-		m.AddVR(tag.RealWorldValueFirstValueMapped, "SS", []int{-2048})
-		m.AddVR(tag.RealWorldValueLastValueMapped, "SS", []int{2047})
-		m.Add(tag.RealWorldValueIntercept, 0.0)
-		m.Add(tag.RealWorldValueSlope, PhaseScale)
-		m.Add(tag.LUTLabel, "PHASE")
-		m.Seq(tag.MeasurementUnitsCodeSequence, code)
-		e.Seq(tag.RealWorldValueMappingSequence, m)
+		e.AddRealWorldValueMapping(dicomwrite.RealWorldValueMapping{
+			Label: "PHASE", Explanation: "phase in radians",
+			VR: "SS", First: -2048, Last: 2047, Intercept: 0, Slope: PhaseScale,
+			UnitCode: "rad", UnitMeaning: "radian",
+		})
 	}
 	e = append(e, pixelElement(im.pixels))
 	return encode(SOPClassMRImage, im.instanceUID, e)

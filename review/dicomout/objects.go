@@ -121,19 +121,11 @@ func DoseMap(s *Source, r *review.Result, now time.Time) ([]Object, error) {
 		e.Add(tag.PixelRepresentation, 0)
 		e.Add(tag.WindowCenter, ds(240/DoseSlope))
 		e.Add(tag.WindowWidth, ds(480/DoseSlope))
-		var code elems
-		code.Add(tag.CodeValue, "min")
-		code.Add(tag.CodingSchemeDesignator, "UCUM")
-		code.Add(tag.CodeMeaning, "minute")
-		var m elems
-		m.Add(tag.LUTExplanation, "cumulative equivalent minutes at 43 degC")
-		m.AddVR(tag.RealWorldValueFirstValueMapped, "US", []int{0})
-		m.AddVR(tag.RealWorldValueLastValueMapped, "US", []int{65535})
-		m.Add(tag.RealWorldValueIntercept, 0.0)
-		m.Add(tag.RealWorldValueSlope, DoseSlope)
-		m.Add(tag.LUTLabel, "CEM43")
-		m.Seq(tag.MeasurementUnitsCodeSequence, code)
-		e.Seq(tag.RealWorldValueMappingSequence, m)
+		e.AddRealWorldValueMapping(dicomwrite.RealWorldValueMapping{
+			Label: "CEM43", Explanation: "cumulative equivalent minutes at 43 degC",
+			VR: "US", First: 0, Last: 65535, Intercept: 0, Slope: DoseSlope,
+			UnitCode: "min", UnitMeaning: "minute",
+		})
 		sl := g.SliceLen()
 		for n, v := range r.Dose.Data[k*sl : (k+1)*sl] {
 			binary.LittleEndian.PutUint16(px[2*n:], storedDose(v))
