@@ -51,6 +51,18 @@ var (
 	demoErr  error
 )
 
+// named returns the result objects whose file names start with prefix
+// ("report-", "dose-", "regions-").
+func (a analysed) named(prefix string) []Object {
+	var out []Object
+	for _, o := range a.objs {
+		if strings.HasPrefix(o.Name, prefix) {
+			out = append(out, o)
+		}
+	}
+	return out
+}
+
 // analysedDemo writes the demo case, analyses it with the default
 // settings, renders the report PDF and builds the DICOM results.
 func analysedDemo(t *testing.T) analysed {
@@ -230,12 +242,7 @@ func TestDoseMapRoundTrip(t *testing.T) {
 	dir := t.TempDir()
 	copyTree(t, filepath.Join(a.dir, sim.AnatomyFolder), filepath.Join(dir, "anatomy"))
 	copyTree(t, filepath.Dir(filepath.Join(a.dir, sim.StructuresFile)), filepath.Join(dir, "structures"))
-	var dose []Object
-	for _, o := range a.objs {
-		if strings.HasPrefix(o.Name, "dose-") {
-			dose = append(dose, o)
-		}
-	}
+	dose := a.named("dose-")
 	if err := Write(filepath.Join(dir, "dose"), dose); err != nil {
 		t.Fatal(err)
 	}
@@ -265,12 +272,7 @@ func TestDoseMapBesideThermometry(t *testing.T) {
 	a := analysedDemo(t)
 	dir := t.TempDir()
 	copyTree(t, a.dir, dir)
-	var dose []Object
-	for _, o := range a.objs {
-		if strings.HasPrefix(o.Name, "dose-") {
-			dose = append(dose, o)
-		}
-	}
+	dose := a.named("dose-")
 	if err := Write(filepath.Join(dir, "results"), dose); err != nil {
 		t.Fatal(err)
 	}
@@ -302,12 +304,11 @@ func TestDoseMapBesideThermometry(t *testing.T) {
 // a voxel-outline round trip, from memory).
 func TestStructuresRoundTrip(t *testing.T) {
 	a := analysedDemo(t)
-	var obj Object
-	for _, o := range a.objs {
-		if strings.HasPrefix(o.Name, "regions-") {
-			obj = o
-		}
+	regions := a.named("regions-")
+	if len(regions) != 1 {
+		t.Fatalf("%d structure sets, want 1", len(regions))
 	}
+	obj := regions[0]
 	ss, _, err := dicomio.ReadStructureSet(obj.Name, obj.Data)
 	if err != nil {
 		t.Fatal(err)
