@@ -257,3 +257,14 @@ func traceLabelAt(slab []Point, v View) (int, int) {
 	}
 	return int(bx), int(by)
 }
+
+// SlicePlane returns the plane of slice k of stack g, with g's row and
+// column directions as its axes (signed for the usual presentation as
+// PlaneThrough signs its reformats: rightwards and downwards towards
+// patient left, posterior or inferior), covering the extent of grid cover
+// with square pixels of pixelMM (0: the finest spacing of cover). It shows
+// a measured slice as it was acquired, whatever the orientation of the
+// grid it is drawn over.
+func SlicePlane(g dosemap.Geometry, k int, cover dosemap.Geometry, pixelMM float64) (Plane, error) {
+	return ObliquePlane(cover, g.Point(0, 0, float64(k)), displayRight(g.Row), displayDown(g.Col), pixelMM)
+}
