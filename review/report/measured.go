@@ -5,6 +5,7 @@ import (
 
 	"dosecover/dosemap"
 	"dosecover/review"
+	"dosecover/review/view"
 )
 
 // measuredSlice is one acquired thermometry slice: slice K of a stack of
@@ -18,36 +19,19 @@ type measuredSlice struct {
 }
 
 // ownPlanes returns the stacks of the included sonications of c when they
-// were measured on planes of their own (some sonication has several stacks,
-// or two sonications' grids differ), else nil: on one shared slab every
-// plane through the slab is measured and the panels need no choice.
+// were measured on planes of their own (view.CaseStacks), else nil: on one
+// shared slab every plane through the slab is measured and the panels
+// need no choice.
 func ownPlanes(c *dosemap.Case, r *review.Result) []measuredSlice {
 	excluded := map[int]bool{}
 	for _, n := range r.Settings.Excluded {
 		excluded[n] = true
 	}
 	var out []measuredSlice
-	differ := false
-	var first *dosemap.Geometry
-	for _, so := range c.Sonications {
-		if excluded[so.Number] {
-			continue
+	for _, st := range view.CaseStacks(c, 0) {
+		if !excluded[st.Sonication] {
+			out = append(out, measuredSlice{Stack: st.Geometry, Sonication: st.Sonication})
 		}
-		for n, st := range append([]*dosemap.Sonication{so}, so.Stacks...) {
-			if n > 0 {
-				differ = true
-			}
-			g := st.Geometry
-			if first == nil {
-				first = &g
-			} else if !g.SameGrid(*first, 0.01) {
-				differ = true
-			}
-			out = append(out, measuredSlice{Stack: g, Sonication: so.Number})
-		}
-	}
-	if !differ {
-		return nil
 	}
 	return out
 }

@@ -94,6 +94,18 @@ func goldenCases() []goldenCase {
 			s.Caption = "Phantom A · coronal · y = 0.0 mm · measured planes"
 			return mustRender(t, s, FitView(p, 512, 320))
 		}},
+		{"traces_face_on", func(t *testing.T) image.Image {
+			// The axial slab's sonication selected: the axial view at
+			// z = 0 lies inside its slab and says it shows its measured
+			// plane; its field of view outlined dashed.
+			p := AcquisitionPlane(ga, 20)
+			s := ph.scene(p)
+			s.Measured = tracePhantomStacks()
+			for n := range s.Measured {
+				s.Measured[n].Emphasis = s.Measured[n].Sonication == 3
+			}
+			return mustRender(t, s, FitView(p, 320, 320))
+		}},
 		{"colorbar", func(t *testing.T) image.Image {
 			img, err := ColorBar(DefaultDoseScale(), phLethal, 120, 360)
 			if err != nil {

@@ -193,9 +193,10 @@ func (r *Renderer) drawTraces(dst *image.RGBA, cv *canvas, p Plane, v View, stac
 	}
 	var plain []line
 	type emph struct {
-		slab  []Point
-		lines [][]Point
-		num   int
+		slab   []Point
+		lines  [][]Point
+		num    int
+		faceOn bool
 	}
 	var strong []emph
 	for _, st := range stacks {
@@ -209,7 +210,7 @@ func (r *Renderer) drawTraces(dst *image.RGBA, cv *canvas, p Plane, v View, stac
 			lines = append(lines, append([]Point(nil), r.display(p, v, l[:])...))
 		}
 		if st.Emphasis {
-			strong = append(strong, emph{slab, lines, st.Sonication})
+			strong = append(strong, emph{slab, lines, st.Sonication, t.FaceOn})
 			continue
 		}
 		if t.FaceOn {
@@ -235,10 +236,23 @@ func (r *Renderer) drawTraces(dst *image.RGBA, cv *canvas, p Plane, v View, stac
 			cv.stroke(l, false, 2.5, Solid, ColorPlane)
 		}
 	}
+	size := math.Max(11, labelSize(v)-3)
+	faceOn := false
 	for _, e := range strong {
-		if e.num > 0 {
+		switch {
+		case e.faceOn && !faceOn:
+			// This view shows the sonication's measured plane: say so
+			// once, at the bottom left above the orientation letter's
+			// line.
+			faceOn = true
+			text := "measured plane"
+			if e.num > 0 {
+				text = "measured plane of sonication " + strconv.Itoa(e.num)
+			}
+			drawText(dst, text, size, 8, v.Height-8-int(2.2*size), anchorBottomLeft, ColorPlane)
+		case !e.faceOn && e.num > 0:
 			x, y := traceLabelAt(e.slab, v)
-			drawText(dst, strconv.Itoa(e.num), math.Max(11, labelSize(v)-3), x, y, anchorCentre, ColorPlane)
+			drawText(dst, strconv.Itoa(e.num), size, x, y, anchorCentre, ColorPlane)
 		}
 	}
 }
@@ -267,4 +281,31 @@ func traceLabelAt(slab []Point, v View) (int, int) {
 // grid it is drawn over.
 func SlicePlane(g dosemap.Geometry, k int, cover dosemap.Geometry, pixelMM float64) (Plane, error) {
 	return ObliquePlane(cover, g.Point(0, 0, float64(k)), displayRight(g.Row), displayDown(g.Col), pixelMM)
+}
+
+// CaseStacks returns the measured stacks of every sonication of c (its
+// first stack and its further ones, Sonication set to its number), the
+// stacks of sonication number selected emphasised, when the sonications
+// were measured on planes of their own: some sonication has several
+// stacks, or two sonications' grids differ. When every sonication was
+// measured on one shared slab it returns nil: the slab is the thermometry
+// grid the views already show, and its trace would only repeat it.
+func CaseStacks(c *dosemap.Case, selected int) []MeasuredStack {
+	if c == nil {
+		return nil
+	}
+	var out []MeasuredStack
+	differ := false
+	for _, so := range c.Sonications {
+		for n, st := range append([]*dosemap.Sonication{so}, so.Stacks...) {
+			if n > 0 || (len(out) > 0 && !st.Geometry.SameGrid(out[0].Geometry, 0.01)) {
+				differ = true
+			}
+			out = append(out, MeasuredStack{Geometry: st.Geometry, Sonication: so.Number, Emphasis: so.Number == selected})
+		}
+	}
+	if !differ {
+		return nil
+	}
+	return out
 }

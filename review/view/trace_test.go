@@ -188,3 +188,43 @@ func TestTracesDrawn(t *testing.T) {
 		t.Error("no pixel of the emphasised trace in ColorPlane")
 	}
 }
+
+// TestCaseStacks: the stacks of a case are listed only when the
+// sonications were measured on planes of their own, each with its
+// sonication's number, the selected one's emphasised.
+func TestCaseStacks(t *testing.T) {
+	axial := func(z float64) dosemap.Geometry {
+		return dosemap.NewAxialGeometry(8, 8, 3, dosemap.Vec3{2, 2, 3}, dosemap.Vec3{-7, -7, z})
+	}
+	coronal := stackFromDICOM([6]float64{1, 0, 0, 0, 0, -1}, [3]float64{-7, 0, 7}, 8, 8, [2]float64{2, 2}, 1, 3)
+	son := func(n int, g dosemap.Geometry, more ...dosemap.Geometry) *dosemap.Sonication {
+		so := &dosemap.Sonication{Number: n, Geometry: g}
+		for _, m := range more {
+			so.Stacks = append(so.Stacks, &dosemap.Sonication{Number: n, Geometry: m})
+		}
+		return so
+	}
+	for _, tc := range []struct {
+		name     string
+		sons     []*dosemap.Sonication
+		selected int
+		want     []int // sonication number of each stack; nil: none listed
+		emphasis []bool
+	}{
+		{"one shared slab", []*dosemap.Sonication{son(1, axial(0)), son(2, axial(0))}, 2, nil, nil},
+		{"moving slab", []*dosemap.Sonication{son(1, axial(0)), son(2, axial(3))}, 2, []int{1, 2}, []bool{false, true}},
+		{"two planes each", []*dosemap.Sonication{son(1, axial(0), coronal), son(2, axial(0), coronal)}, 1, []int{1, 1, 2, 2}, []bool{true, true, false, false}},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			got := CaseStacks(&dosemap.Case{Sonications: tc.sons}, tc.selected)
+			if len(got) != len(tc.want) {
+				t.Fatalf("%d stacks listed, want %d", len(got), len(tc.want))
+			}
+			for n, st := range got {
+				if st.Sonication != tc.want[n] || st.Emphasis != tc.emphasis[n] {
+					t.Errorf("stack %d: sonication %d emphasis %v, want %d %v", n, st.Sonication, st.Emphasis, tc.want[n], tc.emphasis[n])
+				}
+			}
+		})
+	}
+}
