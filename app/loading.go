@@ -553,8 +553,15 @@ func (rw *reviewWindow) showPlanesOf(n int) {
 	}
 	g := stacks[0]
 	hot := g.Point(float64(g.Cols-1)/2, float64(g.Rows-1)/2, float64(g.Slices-1)/2)
+	num := r.SonRows[n].Number
 	if n < len(r.Sonications) && r.Sonications[n].PeakMM != nil {
 		hot = dosemap.Vec3(*r.Sonications[n].PeakMM)
+	} else if r.Monitoring != nil {
+		for _, re := range r.Monitoring.Reach {
+			if re.Sonication == num {
+				hot = dosemap.Vec3(re.HottestMM) // its largest measured dose
+			}
+		}
 	}
 	for _, v := range rw.viewers {
 		if v.ref == nil {
