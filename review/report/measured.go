@@ -45,7 +45,9 @@ func ownPlanes(c *dosemap.Case, r *review.Result) []measuredSlice {
 // the centroid. When no slice measured any of the region, it returns the
 // slice nearest the centroid among those whose field of view holds the
 // centroid's projection, with Voxels 0; ok is false when there is none.
-func bestMeasuredSlice(stacks []measuredSlice, vol *dosemap.Volume, weight func(float32) float64, centroid dosemap.Vec3) (best measuredSlice, ok bool) {
+//
+// Slices in the plane of skip (when not nil) are left out.
+func bestMeasuredSlice(stacks []measuredSlice, vol *dosemap.Volume, weight func(float32) float64, centroid dosemap.Vec3, skip *measuredSlice) (best measuredSlice, ok bool) {
 	if vol == nil {
 		return best, false
 	}
@@ -76,6 +78,9 @@ func bestMeasuredSlice(stacks []measuredSlice, vol *dosemap.Volume, weight func(
 	for s, st := range stacks {
 		g := st.Stack
 		for k := 0; k < g.Slices; k++ {
+			if skip != nil && coplanar(*skip, g, k) {
+				continue
+			}
 			c := count[key{s, k}]
 			i, j, kk := g.Voxel(centroid)
 			d := math.Abs(kk-float64(k)) * g.Spacing[2]
@@ -121,22 +126,26 @@ func parallelTo(stacks []measuredSlice, n dosemap.Vec3) []measuredSlice {
 	return out
 }
 
+// coplanar reports whether slice k of g lies in the plane of slice ms:
+// the same normal (within about 0.08°) and centre planes within 0.1 mm.
+func coplanar(ms measuredSlice, g dosemap.Geometry, k int) bool {
+	n := ms.Stack.Normal.Unit()
+	if math.Abs(g.Normal.Unit().Dot(n)) < 1-1e-6 {
+		return false
+	}
+	return math.Abs(g.Point(0, 0, float64(k)).Sub(ms.Stack.Point(0, 0, float64(ms.K))).Dot(n)) <= 0.1
+}
+
 // sharing returns the numbers of the sonications (in stacks' order, each
 // once) that measured the very plane of slice ms: a slice with the same
 // normal whose centre plane lies within 0.1 mm of it (many sonications of
 // a session can share a plane through a row of foci).
 func sharing(stacks []measuredSlice, ms measuredSlice) []int {
-	n := ms.Stack.Normal.Unit()
-	p := ms.Stack.Point(0, 0, float64(ms.K))
 	var out []int
 	seen := map[int]bool{}
 	for _, st := range stacks {
-		g := st.Stack
-		if math.Abs(g.Normal.Unit().Dot(n)) < 1-1e-6 {
-			continue
-		}
-		for k := 0; k < g.Slices; k++ {
-			if math.Abs(g.Point(0, 0, float64(k)).Sub(p).Dot(n)) <= 0.1 && !seen[st.Sonication] {
+		for k := 0; k < st.Stack.Slices; k++ {
+			if coplanar(ms, st.Stack, k) && !seen[st.Sonication] {
 				seen[st.Sonication] = true
 				out = append(out, st.Sonication)
 			}

@@ -24,7 +24,8 @@ import (
 // of the region it shows within half a slice thickness, where the
 // analysed dose is measured (not NaN). On this session the hole's
 // centroid lies between the simulated sagittal planes (logged), so the
-// plane through the centroid is not a measured one.
+// plane through the centroid is not a measured one. The target panel
+// shows another plane than the hole panel.
 func TestPanelsOnMeasuredPlanes(t *testing.T) {
 	if testing.Short() {
 		t.Skip("writes and analyses a 35-sonication session")
@@ -71,6 +72,10 @@ func TestPanelsOnMeasuredPlanes(t *testing.T) {
 		t.Fatal(err)
 	}
 	caption := regexp.MustCompile(`^(sagittal, x|coronal, y|axial, z) = (-?[0-9.]+) mm`)
+	// The target panel takes another measured plane than the hole's.
+	if a, b := caption.FindString(panels[0].Caption), caption.FindString(panels[1].Caption); a == "" || a == b {
+		t.Errorf("target panel %q and hole panel %q: want two different named planes", panels[0].Caption, panels[1].Caption)
+	}
 	for _, tc := range []struct {
 		panel  int
 		labels *dosemap.Volume
