@@ -42,6 +42,7 @@ var overlayLegend = []struct {
 	{"lethal outside margin", view.ColorSpill, swatchFill},
 	{"avoid", view.ColorAvoid, swatchDotted},
 	{"not monitored", view.ColorNotMonitored, swatchHatched},
+	{"measured plane", view.ColorPlane, swatchSolid},
 }
 
 // legendSwatch draws a small sample of an overlay style.
