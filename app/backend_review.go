@@ -18,9 +18,8 @@ func init() {
 
 // reviewSession wraps a prepared review.Session for the window.
 type reviewSession struct {
-	c          *dosemap.Case
-	rs         *review.Session
-	driftLimit float64 // °C; a sonication with more drift removed is flagged
+	c  *dosemap.Case
+	rs *review.Session
 }
 
 func prepareReview(ctx context.Context, lc *loadedCase, s review.Settings, progress func(stage string, frac float64)) (session, error) {
@@ -28,7 +27,7 @@ func prepareReview(ctx context.Context, lc *loadedCase, s review.Settings, progr
 	if err != nil {
 		return nil, err
 	}
-	return &reviewSession{c: lc.Case, rs: rs, driftLimit: lc.DriftFlagC}, nil
+	return &reviewSession{c: lc.Case, rs: rs}, nil
 }
 
 func ptr(p *float64) float64 {
@@ -112,7 +111,7 @@ func (ss *reviewSession) wrap(r *review.Result) *analysisResult {
 			if so := ss.sonication(st.Number); so != nil {
 				vf = so.Geometry.Len() * so.Frames()
 			}
-			row.Flags, row.Flagged = qualityFlags(q, vf, ss.driftLimit)
+			row.Flags, row.Flagged = qualityFlags(q, vf, r.Settings.DriftFlagC)
 		}
 		out.SonRows = append(out.SonRows, row)
 		out.SonicationDose = append(out.SonicationDose, ss.rs.SonicationDose(st.Number))

@@ -433,7 +433,7 @@ func (m *metricsPanel) update() {
 	}
 	lines := []string{
 		fmt.Sprintf("%-24s %s (%.2f mL)", "Target", name, r.TargetVolumeML),
-		fmt.Sprintf("%-24s %s", "Covered (≥ threshold)", pct(r.CoveredFraction)),
+		fmt.Sprintf("%-24s %s", "Covered (≥ threshold)", review.PercentText(r.CoveredFraction)),
 		fmt.Sprintf("%-24s %s", "  noise band p05–p95", band),
 		fmt.Sprintf("%-24s %s", "Not monitored", pct(r.NotMonitoredFraction)),
 		fmt.Sprintf("%-24s %d (%.3f mL)", "Holes", len(r.HoleRows), sumML(r.HoleRows)),
@@ -590,7 +590,11 @@ func (rw *reviewWindow) signOffText() string {
 		if rw.teaching {
 			who = "a reviewer"
 		}
-		line := fmt.Sprintf("%s by %s: %s, %.1f %% of the monitored target covered", s.Time.Local().Format("2006-01-02 15:04"), who, s.Outcome, s.Figures.CoveredMonitoredPct)
+		covered := "coverage not measurable"
+		if p := s.Figures.CoveredMonitoredPct; p != nil {
+			covered = fmt.Sprintf("%.1f %% of the monitored target covered", *p)
+		}
+		line := fmt.Sprintf("%s by %s: %s, %s", s.Time.Local().Format("2006-01-02 15:04"), who, s.Outcome, covered)
 		if s.InputHash != rw.hash {
 			line += " (different input files)"
 		}

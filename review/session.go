@@ -70,6 +70,15 @@ type Settings struct {
 	// ResidualWarnC is the estimated residual rise (°C, over the target
 	// and margin) above which a sonication is named in a warning.
 	ResidualWarnC float64 `json:"residual_warn_c"`
+	// FocalLengthMM is the length of a sonication's heating along the
+	// beam, mm: along a direction a sonication did not measure, the
+	// monitoring rule bounds its heating by half of it around its hottest
+	// point. 0 (the default): by the longest extent it did measure.
+	FocalLengthMM float64 `json:"focal_length_mm"`
+	// DriftFlagC is the removed drift, °C, above which a sonication is
+	// flagged for review in the window, the report and the commands
+	// (DefaultDriftFlagC by default).
+	DriftFlagC float64 `json:"drift_flag_c"`
 }
 
 // DefaultResidualWarnC is the default ResidualWarnC: 1 °C, about the
@@ -83,7 +92,8 @@ const DefaultResidualWarnC = 1.0
 func DefaultSettings() Settings {
 	return Settings{Threshold: 240, MarginMM: DefaultMarginMM, Model: ModelCEM43, Trials: 50, Seed: 1,
 		CEM43: dosemap.DefaultCEM43(), Arrhenius: dosemap.DefaultArrhenius(), Thermometry: DefaultThermometrySettings(),
-		NegligibleFraction: DefaultNegligibleFraction, ResidualWarnC: DefaultResidualWarnC}
+		NegligibleFraction: DefaultNegligibleFraction, ResidualWarnC: DefaultResidualWarnC,
+		DriftFlagC: DefaultDriftFlagC}
 }
 
 // ProgressFunc receives the name of the stage being worked on and the
@@ -685,7 +695,7 @@ func (s *Session) Analyze(ctx context.Context, set Settings, progress ProgressFu
 		cov.CoveredFractionOfTarget = cv / tv
 	}
 	if mv > 0 {
-		cov.CoveredFraction = cv / mv
+		cov.CoveredFraction = opt(cv / mv)
 	}
 	if cov.NotMonitoredFraction > 0.005 {
 		r.Warnings = append(r.Warnings, fmt.Sprintf("%.1f %% of the target (%.2f mL) was not monitored by the thermometry and is counted as not covered in the coverage of the whole target", 100*cov.NotMonitoredFraction, cov.NotMonitoredML))
@@ -751,7 +761,7 @@ func (s *Session) Analyze(ctx context.Context, set Settings, progress ProgressFu
 		r.DVH.MarginShell = append(r.DVH.MarginShell, fracAbove(sdose, scum, smv, d))
 	}
 	lo, hi := set.Threshold*18/240, set.Threshold*1000/240
-	for e := 0; e < 40; e++ {
+	for e := 0; e < 40 && mv > 0; e++ { // none when nothing is monitored
 		d := lo * math.Pow(hi/lo, float64(e)/39)
 		r.CoverageVsThreshold = append(r.CoverageVsThreshold, ThresholdPoint{d, fracAbove(tdose, tcum, mv, d)})
 	}

@@ -3,6 +3,7 @@ package audit
 import (
 	"encoding/csv"
 	"io"
+	"math"
 	"strconv"
 	"strings"
 )
@@ -43,6 +44,8 @@ func (r Row) Record(settings []Column) []string {
 	}
 	if r.Status != StatusOK {
 		out[10] = "" // holes not counted
+	} else if math.IsNaN(float64(m.CoveragePct)) {
+		out[5] = "not measurable" // no part of the target monitored: no figure, not 0
 	}
 	for _, c := range settings {
 		out = append(out, c.Value)
