@@ -148,6 +148,7 @@ type avoidData struct {
 type Session struct {
 	mu        sync.Mutex
 	label     string
+	study     string // StudyInstanceUID of the case
 	target    string
 	model     Model
 	unit      string
@@ -223,7 +224,7 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 	if !(s.MarginMM >= 0) || s.MarginMM > LargestMarginMM {
 		return nil, fmt.Errorf("margin %g mm: want 0 to %g mm", s.MarginMM, LargestMarginMM)
 	}
-	ses := &Session{label: c.Label, target: tgt.Name, model: s.Model, prepared: s,
+	ses := &Session{label: c.Label, study: c.StudyUID, target: tgt.Name, model: s.Model, prepared: s,
 		maxMargin: math.Max(s.MarginMM, MaxMarginMM)}
 	ref := c.Sonications[0].Geometry
 	if err := ref.Validate(); err != nil {
@@ -639,7 +640,7 @@ func (s *Session) Analyze(ctx context.Context, set Settings, progress ProgressFu
 	lt := float32(math.Log(set.Threshold))
 	r := &Result{
 		SchemaVersion: SchemaVersion, SoftwareVersion: dosemap.Version,
-		Case: s.label, Target: s.target, Model: string(set.Model), DoseUnit: s.unit,
+		Case: s.label, StudyUID: s.study, Target: s.target, Model: string(set.Model), DoseUnit: s.unit,
 		Threshold: set.Threshold, MarginMM: set.MarginMM, Settings: set,
 		Grid: GridInfo{Size: [3]int{g.Cols, g.Rows, g.Slices}, SpacingMM: [3]float64(g.Spacing),
 			RefineSlices: s.fg.rz, SubSamples: SubSamples, Connectivity: int(RegionConnectivity), Geometry: g},
@@ -761,7 +762,8 @@ func (s *Session) Analyze(ctx context.Context, set Settings, progress ProgressFu
 		r.DVH.MarginShell = append(r.DVH.MarginShell, fracAbove(sdose, scum, smv, d))
 	}
 	lo, hi := set.Threshold*18/240, set.Threshold*1000/240
-	for e := 0; e < 40 && mv > 0; e++ { // none when nothing is monitored
+	r.CoverageVsThreshold = []ThresholdPoint{} // none when nothing is monitored
+	for e := 0; e < 40 && mv > 0; e++ {
 		d := lo * math.Pow(hi/lo, float64(e)/39)
 		r.CoverageVsThreshold = append(r.CoverageVsThreshold, ThresholdPoint{d, fracAbove(tdose, tcum, mv, d)})
 	}

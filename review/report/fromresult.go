@@ -201,13 +201,15 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 
 // DeidentifyResult returns a shallow copy of r for output without
 // identity: the case label replaced by label (see DeidentifiedLabel), the
-// sonications named by number, and the patient's name, ID, birth date and
-// institution, the case label and the sonication labels of c blanked out of
-// the target and avoid structure names and the warnings. The grids are
+// sonications named by number, the study UID dropped, and the patient's
+// name, ID, birth date and institution, the case label and the sonication
+// labels of c blanked out of the target and avoid structure names and the
+// warnings. The grids are
 // shared with r.
 func DeidentifyResult(c *dosemap.Case, r *review.Result, label string) *review.Result {
 	rr := *r
 	rr.Case = label
+	rr.StudyUID = "" // a UID of the original study (PS3.15 Annex E replaces UIDs)
 	rr.Sonications = append([]review.SonicationStats(nil), r.Sonications...)
 	for n := range rr.Sonications {
 		rr.Sonications[n].Label = fmt.Sprintf("sonication %d", rr.Sonications[n].Number)
