@@ -189,6 +189,13 @@ func showSettingsDialog(w fyne.Window, cur review.Settings, note, origin string,
 		widget.NewFormItem("Field strength B0 (T)", b0),
 		widget.NewFormItem("Echo time TE (ms)", te),
 	)
+	focal := floatEntry(cur.FocalLengthMM)
+	focal.SetPlaceHolder("0: each sonication's longest measured extent")
+	driftFlag := floatEntry(cur.DriftFlagC)
+	review2 := widget.NewForm(
+		widget.NewFormItem("Focal length along the beam (mm)", focal),
+		widget.NewFormItem("Flag drift removed above (°C)", driftFlag),
+	)
 	driftNote := widget.NewLabel("Drift is measured in an unheated reference region: chosen automatically (voxels away from the heating), or drawn as a rectangle on the left image (Review ▸ Draw drift reference).")
 	driftNote.Wrapping = fyne.TextWrapWord
 	top := []fyne.CanvasObject{}
@@ -208,7 +215,10 @@ func showSettingsDialog(w fyne.Window, cur review.Settings, note, origin string,
 		form, cemBox, arrBox,
 		widget.NewSeparator(),
 		widget.NewLabelWithStyle("Thermometry", fyne.TextAlignLeading, fyne.TextStyle{Bold: true}),
-		thermo, driftNote, errLabel)...)
+		thermo, driftNote,
+		widget.NewSeparator(),
+		widget.NewLabelWithStyle("Monitoring and flags", fyne.TextAlignLeading, fyne.TextStyle{Bold: true}),
+		review2, errLabel)...)
 
 	var d dialog.Dialog
 	collect := func() (review.Settings, error) {
@@ -224,6 +234,7 @@ func showSettingsDialog(w fyne.Window, cur review.Settings, note, origin string,
 			{"A", arrA, &s.Arrhenius.A}, {"Ea", arrEa, &s.Arrhenius.Ea},
 			{"PRF coefficient", alpha, &s.Thermometry.AlphaPPMPerC}, {"body temperature", body, &s.Thermometry.BodyTempC},
 			{"phase scale", phase, &s.Thermometry.PhaseScale}, {"B0", b0, &s.Thermometry.B0T}, {"TE", te, &s.Thermometry.TEms},
+			{"focal length", focal, &s.FocalLengthMM}, {"drift flag", driftFlag, &s.DriftFlagC},
 		} {
 			if err = parseFloatField(f.name, f.e.Text, f.dst); err != nil {
 				return s, err

@@ -395,8 +395,12 @@ func factLines(in *Input) (left, right [][2]string) {
 			band += " (" + f.BandLabel + ")"
 		}
 	}
+	covered := pct(f.Covered) + " of the monitored part; "
+	if math.IsNaN(f.Covered) {
+		covered = "not measurable (no part of it monitored); "
+	}
 	left = append(left,
-		[2]string{"Covered (" + target + ")", coveredPct(f.Covered) + " of the monitored part; " + pct(f.CoveredOfTarget) + " of the whole target of " + num(f.TargetVolumeML, 2) + " mL"},
+		[2]string{"Covered (" + target + ")", covered + pct(f.CoveredOfTarget) + " of the whole target of " + num(f.TargetVolumeML, 2) + " mL"},
 		[2]string{"Uncertainty band", band},
 		[2]string{"Not monitored", pct(f.NotMonitored) + " of the target (no valid thermometry)"},
 		[2]string{"D98 / D50 / D2", dose(f.D98) + " / " + dose(f.D50) + " / " + dose(f.D2) + " " + unit},
@@ -408,6 +412,9 @@ func factLines(in *Input) (left, right [][2]string) {
 			[2]string{"As measured", coveredPct(a.Covered) + " covered (monitored), " + pct(a.CoveredOfTarget) + " of whole target; " + num(a.OutsideMarginML, 3) + " mL beyond margin"})
 	}
 	holes := "none"
+	if math.IsNaN(f.Covered) {
+		holes = "not measurable (no part of the target monitored)"
+	}
 	if len(f.Holes) > 0 {
 		var tot float64
 		for _, h := range f.Holes {
