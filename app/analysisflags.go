@@ -70,7 +70,7 @@ var flagKeys = map[string]string{
 	"baseline-frames": "thermometry.baseline_frames", "drift-order": "thermometry.drift_order",
 	"b0": "thermometry.b0_t", "te": "thermometry.te_ms", "phase-scale": "thermometry.phase_scale_rad",
 	"residual-warn": "residual_warn_c",
-	"focal-length": "focal_length_mm", "drift-flag": "drift_flag_c",
+	"focal-length":  "focal_length_mm", "drift-flag": "drift_flag_c",
 }
 
 // settings returns the analysis settings asked for: the settings file (or
