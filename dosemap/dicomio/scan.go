@@ -85,7 +85,6 @@ func Load(ctx context.Context, dir string, opt LoadOptions, progress func(done, 
 	if err != nil {
 		return nil, nil, err
 	}
-	c.StudyUID = cr.inv.Study
 	return c, cr.inv, nil
 }
 
