@@ -77,7 +77,7 @@ func (ss *reviewSession) wrap(r *review.Result) *analysisResult {
 		out.AvoidRows = append(out.AvoidRows, avoidDose{Name: a.Name, VolumeML: a.VolumeML, LethalML: a.LethalVolumeMM3 / 1000, MaxDose: ptr(a.PeakDose)})
 	}
 	for n := range r.DVH.Dose {
-		if n < len(r.DVH.Target) {
+		if n < len(r.DVH.Target) && r.CoveredFraction != nil { // no curve of an unmonitored target
 			out.DVHPoints = append(out.DVHPoints, xy{r.DVH.Dose[n], r.DVH.Target[n]})
 		}
 	}
@@ -96,6 +96,9 @@ func (ss *reviewSession) wrap(r *review.Result) *analysisResult {
 		row := sonicationRow{Number: st.Number, Label: st.Label, PeakTemp: ptr(st.PeakTempC), PeakDose: st.PeakDose,
 			DoseAddedML: st.LethalAddedML, CoverageAdded: st.AddedCoverage, OutsideML: st.OutsideAddedML, Offset: math.NaN(),
 			CoolingS: ptr(st.CoolingS), ResidualC: ptr(st.ResidualRiseC)}
+		if r.CoveredFraction == nil {
+			row.CoverageAdded = math.NaN() // of a monitored target that is empty
+		}
 		row.ResidualHigh = row.ResidualC > r.Settings.ResidualWarnC
 		if so := ss.sonication(st.Number); so != nil {
 			row.Start = so.Start

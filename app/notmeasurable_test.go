@@ -5,6 +5,7 @@ package main
 import (
 	"encoding/csv"
 	"encoding/json"
+	"math"
 	"os"
 	"os/exec"
 	"path/filepath"
@@ -21,7 +22,8 @@ import (
 // review.TestSinglePlaneSession) with each command: the coverage of the
 // monitored target is null in analyze's JSON, "not measurable" in its
 // text, in the report PDF (text extracted by poppler's pdftotext) and in
-// the audit's summary.csv, and never "0.0 %" on those lines.
+// the audit's summary.csv and in the window's figures, and never "0.0 %"
+// on those lines.
 func TestNotMeasurableEverywhere(t *testing.T) {
 	if testing.Short() {
 		t.Skip("writes and analyses a 35-sonication session")
@@ -74,6 +76,29 @@ func TestNotMeasurableEverywhere(t *testing.T) {
 		if head := strings.Fields(after); len(head) < 1 || head[0] != "not" {
 			t.Errorf("report PDF: headline figure %q, want \"not measurable\":\n%s", head[:min(3, len(head))], txt)
 		}
+	}
+
+	// The window: the figures panel says it, and no 0.0 % for the
+	// monitored target.
+	rw := testWindow(t)
+	mark := rw.completed.Load()
+	rw.openFolder(dir, false)
+	waitJobs(t, rw, mark, 2) // the load, then the analysis
+	if rw.result == nil {
+		t.Fatalf("window: not analysed: %s", rw.status.Text)
+	}
+	checkLines(t, "window figures", rw.metrics.facts.Text, "Covered")
+	for _, row := range rw.result.SonRows {
+		if !math.IsNaN(row.CoverageAdded) {
+			t.Errorf("window: sonication %d added %.3f of a target with no monitored part, want no figure", row.Number, row.CoverageAdded)
+			break
+		}
+	}
+	if len(rw.result.DVHPoints) != 0 {
+		t.Errorf("window: a target DVH of %d points for a target with no monitored part", len(rw.result.DVHPoints))
+	}
+	if d := os.Getenv("DOSECOVER_SHOTS"); d != "" {
+		writePNG(t, filepath.Join(d, "window-not-measurable.png"), rw.win.Canvas().Capture())
 	}
 
 	out := filepath.Join(tmp, "audit")

@@ -443,6 +443,11 @@ func (m *metricsPanel) update() {
 		fmt.Sprintf("%-24s %s %s", "Threshold", fmtNum(r.Threshold), r.Unit),
 		fmt.Sprintf("%-24s %g mm", "Margin", r.MarginMM),
 	}
+	for n, l := range lines {
+		if r.CoveredFraction == nil && strings.HasPrefix(l, "Holes ") {
+			lines[n] = fmt.Sprintf("%-24s %s", "Holes", "not measurable") // holes need a monitored target
+		}
+	}
 	if ex := m.rw.settings.Excluded; len(ex) > 0 {
 		lines = append(lines, fmt.Sprintf("%-24s %v", "Sonications left out", ex))
 	}
@@ -464,6 +469,9 @@ func (m *metricsPanel) update() {
 	m.dvh.set(func() *plotPlot { return dvhPlot(r) })
 	m.coverage.set(func() *plotPlot { return coveragePlot(r) })
 	m.holes.Objects = m.regionRows(r.HoleRows, "hole")
+	if r.CoveredFraction == nil {
+		m.holes.Objects = []fyne.CanvasObject{widget.NewLabel("Not measurable: no part of the target is monitored.")}
+	}
 	m.outside.Objects = m.regionRows(r.SpillRows, "cluster")
 	m.box.Refresh()
 }

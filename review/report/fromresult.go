@@ -117,7 +117,7 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 	}
 
 	for n, d := range r.DVH.Dose {
-		if n < len(r.DVH.Target) {
+		if n < len(r.DVH.Target) && r.CoveredFraction != nil { // no curve of an unmonitored target
 			in.DVH = append(in.DVH, CurvePoint{X: d, Y: r.DVH.Target[n], Low: math.NaN(), High: math.NaN()})
 		}
 	}
