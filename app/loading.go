@@ -263,7 +263,6 @@ func (rw *reviewWindow) openStudy(dir string, demo bool, study string) {
 // caseLoaded shows a freshly read case and starts its analysis.
 func (rw *reviewWindow) caseLoaded(lc *loadedCase, hash string, nFiles int, rec *reviewRecord, s review.Settings) {
 	rw.loaded, rw.hash, rw.nFiles = lc, hash, nFiles
-	lc.DriftFlagC = rw.app.Preferences().FloatWithFallback(prefDriftFlag, review.DefaultDriftFlagC)
 	rw.sess, rw.result, rw.selected, rw.pinned = nil, nil, -1, nil
 	rw.fromRecord = rec != nil
 	if rec == nil {

@@ -95,9 +95,6 @@ const (
 	prefTeaching = "teaching"
 	prefReviewer = "reviewer"
 	prefOpacity  = "opacity"
-	// prefDriftFlag is the removed drift (°C) above which the table and
-	// the report flag a sonication (review.DefaultDriftFlagC).
-	prefDriftFlag = "drift_flag_c"
 )
 
 func newReviewWindow(a fyne.App) *reviewWindow {

@@ -259,10 +259,10 @@ func TestDoseMapRoundTrip(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if d := 100 * math.Abs(r.CoveredFraction-a.r.CoveredFraction); d > 0.5 {
-		t.Errorf("coverage read back %.2f %%, analysed %.2f %%: differ by %.2f points (> 0.5)", 100*r.CoveredFraction, 100*a.r.CoveredFraction, d)
+	if d := 100 * math.Abs((*r.CoveredFraction)-(*a.r.CoveredFraction)); d > 0.5 {
+		t.Errorf("coverage read back %.2f %%, analysed %.2f %%: differ by %.2f points (> 0.5)", 100*(*r.CoveredFraction), 100*(*a.r.CoveredFraction), d)
 	}
-	t.Logf("coverage %.3f %% from the thermometry, %.3f %% from the dose map; monitored %.4f, %.4f; covered mL %.4f, %.4f", 100*a.r.CoveredFraction, 100*r.CoveredFraction, a.r.MonitoredFraction, r.MonitoredFraction, a.r.CoveredVolumeML, r.CoveredVolumeML)
+	t.Logf("coverage %.3f %% from the thermometry, %.3f %% from the dose map; monitored %.4f, %.4f; covered mL %.4f, %.4f", 100*(*a.r.CoveredFraction), 100*(*r.CoveredFraction), a.r.MonitoredFraction, r.MonitoredFraction, a.r.CoveredVolumeML, r.CoveredVolumeML)
 }
 
 // Stored back into its own study, the cumulative dose map is read beside
@@ -292,8 +292,8 @@ func TestDoseMapBesideThermometry(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if r.CoveredFraction != a.r.CoveredFraction {
-		t.Errorf("coverage %.4f with the stored dose map beside the thermometry, %.4f without", r.CoveredFraction, a.r.CoveredFraction)
+	if (*r.CoveredFraction) != (*a.r.CoveredFraction) {
+		t.Errorf("coverage %.4f with the stored dose map beside the thermometry, %.4f without", (*r.CoveredFraction), (*a.r.CoveredFraction))
 	}
 }
 

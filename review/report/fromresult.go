@@ -19,9 +19,6 @@ import (
 
 // Options are the parts of a report that do not come from the analysis.
 type Options struct {
-	// DriftFlagC is the removed drift, °C, above which a sonication is
-	// flagged; 0: review.DefaultDriftFlagC.
-	DriftFlagC   float64
 	Deidentify   bool      // hide identity: neutral case label, no scan date, generic sonication labels
 	Reviewer     string    // who reviewed ("" not given)
 	ReviewDate   time.Time // zero: now
@@ -84,7 +81,7 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 	}
 	f := Facts{
 		Model: r.Model, DoseUnit: unit, Threshold: r.Threshold, MarginMM: r.MarginMM, TargetName: r.Target,
-		TargetVolumeML: r.TargetVolumeML, Covered: measurable(r.CoveredFraction, r.MonitoredVolumeML),
+		TargetVolumeML: r.TargetVolumeML, Covered: val(r.CoveredFraction),
 		CoveredLow: val(r.CoveredFractionP05), CoveredHigh: val(r.CoveredFractionP95),
 		CoveredOfTarget: r.CoveredFractionOfTarget, NotMonitored: r.NotMonitoredFraction,
 		LethalML: r.LethalVolumeML, OutsideMarginML: r.OutsideMarginLethalML,
@@ -110,7 +107,7 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 		f.Avoid = append(f.Avoid, AvoidRow{Name: hide(a.Name, c, opt.Deidentify), LethalML: a.LethalVolumeMM3 / 1000, MaxDose: val(a.PeakDose)})
 	}
 	if a := r.AsMeasured; a != nil {
-		f.AsMeasured = &AsMeasuredFacts{Covered: a.CoveredFraction, CoveredOfTarget: a.CoveredFractionOfTarget, OutsideMarginML: a.OutsideMarginLethalML}
+		f.AsMeasured = &AsMeasuredFacts{Covered: val(a.CoveredFraction), CoveredOfTarget: a.CoveredFractionOfTarget, OutsideMarginML: a.OutsideMarginLethalML}
 	}
 	in.Facts = f
 	if r.Threshold > 0 {
@@ -120,7 +117,7 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 	}
 
 	for n, d := range r.DVH.Dose {
-		if n < len(r.DVH.Target) {
+		if n < len(r.DVH.Target) && r.CoveredFraction != nil { // no curve of an unmonitored target
 			in.DVH = append(in.DVH, CurvePoint{X: d, Y: r.DVH.Target[n], Low: math.NaN(), High: math.NaN()})
 		}
 	}
@@ -142,16 +139,16 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 		in.Sonications = append(in.Sonications, SonicationRow{
 			Number: s.Number, Label: label, Frames: len(sq.Frames),
 			PeakC: val(s.PeakTempC), PeakDose: s.PeakDose, LethalML: s.LethalAddedML,
-			AddedCoverage: s.AddedCoverage, OutsideML: s.OutsideAddedML,
+			AddedCoverage: measurable(s.AddedCoverage, r.CoveredFraction), OutsideML: s.OutsideAddedML,
 			Flagged: len(sq.FlaggedFrames), Excluded: s.Excluded,
-			DriftFlagged: sq.DriftFlagged(opt.DriftFlagC),
+			DriftFlagged: sq.DriftFlagged(r.Settings.DriftFlagC),
 			CoolingS:     val(s.CoolingS), ResidualC: val(s.ResidualRiseC),
 		})
-		if sq.DriftFlagged(opt.DriftFlagC) {
+		if sq.DriftFlagged(r.Settings.DriftFlagC) {
 			q.DriftFlagged = append(q.DriftFlagged, s.Number)
 		}
 	}
-	q.DriftFlagC = opt.DriftFlagC
+	q.DriftFlagC = r.Settings.DriftFlagC
 	if !(q.DriftFlagC > 0) {
 		q.DriftFlagC = review.DefaultDriftFlagC
 	}
@@ -204,13 +201,15 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 
 // DeidentifyResult returns a shallow copy of r for output without
 // identity: the case label replaced by label (see DeidentifiedLabel), the
-// sonications named by number, and the patient's name, ID, birth date and
-// institution, the case label and the sonication labels of c blanked out of
-// the target and avoid structure names and the warnings. The grids are
+// sonications named by number, the study UID dropped, and the patient's
+// name, ID, birth date and institution, the case label and the sonication
+// labels of c blanked out of the target and avoid structure names and the
+// warnings. The grids are
 // shared with r.
 func DeidentifyResult(c *dosemap.Case, r *review.Result, label string) *review.Result {
 	rr := *r
 	rr.Case = label
+	rr.StudyUID = "" // a UID of the original study (PS3.15 Annex E replaces UIDs)
 	rr.Sonications = append([]review.SonicationStats(nil), r.Sonications...)
 	for n := range rr.Sonications {
 		rr.Sonications[n].Label = fmt.Sprintf("sonication %d", rr.Sonications[n].Number)
@@ -631,10 +630,11 @@ func planeCaption(p view.Plane, q dosemap.Vec3) string {
 	return fmt.Sprintf("oblique through (%.1f, %.1f, %.1f) mm", q[0], q[1], q[2])
 }
 
-// measurable returns f, or NaN ("n/a") when nothing of the target is
-// monitored (monitored mL 0): a coverage of nothing is not 0 %.
-func measurable(f, monitoredML float64) float64 {
-	if monitoredML > 0 {
+// measurable returns f, a part of the monitored target, or NaN ("n/a")
+// when the coverage is not measurable (covered nil: nothing of the target
+// is monitored): a part of nothing is not 0 %.
+func measurable(f float64, covered *float64) float64 {
+	if covered != nil {
 		return f
 	}
 	return math.NaN()
