@@ -42,6 +42,7 @@ var overlayLegend = []struct {
 	{"lethal outside margin", view.ColorSpill, swatchFill},
 	{"avoid", view.ColorAvoid, swatchDotted},
 	{"not monitored", view.ColorNotMonitored, swatchHatched},
+	{"measured plane", view.ColorPlane, swatchSolid},
 }
 
 // legendSwatch draws a small sample of an overlay style.
@@ -433,7 +434,7 @@ func (m *metricsPanel) update() {
 	}
 	lines := []string{
 		fmt.Sprintf("%-24s %s (%.2f mL)", "Target", name, r.TargetVolumeML),
-		fmt.Sprintf("%-24s %s", "Covered (≥ threshold)", pct(r.CoveredFraction)),
+		fmt.Sprintf("%-24s %s", "Covered (≥ threshold)", review.PercentText(r.CoveredFraction)),
 		fmt.Sprintf("%-24s %s", "  noise band p05–p95", band),
 		fmt.Sprintf("%-24s %s", "Not monitored", pct(r.NotMonitoredFraction)),
 		fmt.Sprintf("%-24s %d (%.3f mL)", "Holes", len(r.HoleRows), sumML(r.HoleRows)),
@@ -442,6 +443,11 @@ func (m *metricsPanel) update() {
 		fmt.Sprintf("%-24s %s", "  dose unit", r.Unit),
 		fmt.Sprintf("%-24s %s %s", "Threshold", fmtNum(r.Threshold), r.Unit),
 		fmt.Sprintf("%-24s %g mm", "Margin", r.MarginMM),
+	}
+	for n, l := range lines {
+		if r.CoveredFraction == nil && strings.HasPrefix(l, "Holes ") {
+			lines[n] = fmt.Sprintf("%-24s %s", "Holes", "not measurable") // holes need a monitored target
+		}
 	}
 	if ex := m.rw.settings.Excluded; len(ex) > 0 {
 		lines = append(lines, fmt.Sprintf("%-24s %v", "Sonications left out", ex))
@@ -464,6 +470,9 @@ func (m *metricsPanel) update() {
 	m.dvh.set(func() *plotPlot { return dvhPlot(r) })
 	m.coverage.set(func() *plotPlot { return coveragePlot(r) })
 	m.holes.Objects = m.regionRows(r.HoleRows, "hole")
+	if r.CoveredFraction == nil {
+		m.holes.Objects = []fyne.CanvasObject{widget.NewLabel("Not measurable: no part of the target is monitored.")}
+	}
 	m.outside.Objects = m.regionRows(r.SpillRows, "cluster")
 	m.box.Refresh()
 }
@@ -590,7 +599,11 @@ func (rw *reviewWindow) signOffText() string {
 		if rw.teaching {
 			who = "a reviewer"
 		}
-		line := fmt.Sprintf("%s by %s: %s, %.1f %% of the monitored target covered", s.Time.Local().Format("2006-01-02 15:04"), who, s.Outcome, s.Figures.CoveredMonitoredPct)
+		covered := "coverage not measurable"
+		if p := s.Figures.CoveredMonitoredPct; p != nil {
+			covered = fmt.Sprintf("%.1f %% of the monitored target covered", *p)
+		}
+		line := fmt.Sprintf("%s by %s: %s, %s", s.Time.Local().Format("2006-01-02 15:04"), who, s.Outcome, covered)
 		if s.InputHash != rw.hash {
 			line += " (different input files)"
 		}
