@@ -163,6 +163,33 @@ func split(x float64, n int) (int, float64) {
 // centres) are NaN — "not monitored" — never zero.
 func Resample(v *Volume, dst Geometry) *Volume {
 	out := NewVolume(dst)
+	// Only the voxels of dst within the box of v's grid (its outermost
+	// centres and half a voxel more, mapped onto dst, one voxel of room
+	// for rounding) can be inside it: the rest stay NaN without being
+	// sampled. A plane resampled onto a volume costs its own size, not
+	// the volume's.
+	lo := [3]int{dst.Cols, dst.Rows, dst.Slices}
+	hi := [3]int{-1, -1, -1}
+	for c := 0; c < 8; c++ {
+		p := v.Point(-0.5+float64(c&1)*float64(v.Cols), -0.5+float64(c>>1&1)*float64(v.Rows), -0.5+float64(c>>2&1)*float64(v.Slices))
+		i, j, k := dst.Voxel(p)
+		for a, x := range [3]float64{i, j, k} {
+			if x != x {
+				lo[a], hi[a] = 0, math.MaxInt
+				continue
+			}
+			lo[a] = min(lo[a], int(math.Floor(x))-1)
+			hi[a] = max(hi[a], int(math.Ceil(x))+1)
+		}
+	}
+	dims := [3]int{dst.Cols, dst.Rows, dst.Slices}
+	for a := 0; a < 3; a++ {
+		lo[a], hi[a] = max(lo[a], 0), min(hi[a], dims[a]-1)
+	}
+	nan := float32(math.NaN())
+	for n := range out.Data {
+		out.Data[n] = nan
+	}
 	// Voxel coordinates in v are affine in (i, j, k) of dst: compute the
 	// origin and the three steps once.
 	o0, o1, o2 := v.Voxel(dst.Point(0, 0, 0))
@@ -172,15 +199,15 @@ func Resample(v *Volume, dst Geometry) *Volume {
 	a0, a1, a2 = a0-o0, a1-o1, a2-o2
 	b0, b1, b2 = b0-o0, b1-o1, b2-o2
 	c0, c1, c2 = c0-o0, c1-o1, c2-o2
-	n := 0
-	for k := 0; k < dst.Slices; k++ {
+	for k := lo[2]; k <= hi[2]; k++ {
 		fk := float64(k)
-		for j := 0; j < dst.Rows; j++ {
+		for j := lo[1]; j <= hi[1]; j++ {
 			fj := float64(j)
 			x := o0 + fj*b0 + fk*c0
 			y := o1 + fj*b1 + fk*c1
 			z := o2 + fj*b2 + fk*c2
-			for i := 0; i < dst.Cols; i++ {
+			n := dst.Index(lo[0], j, k)
+			for i := lo[0]; i <= hi[0]; i++ {
 				fi := float64(i)
 				out.Data[n] = v.SampleVoxel(x+fi*a0, y+fi*a1, z+fi*a2)
 				n++

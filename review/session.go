@@ -591,12 +591,20 @@ func (s *Session) doseSum(ctx context.Context, set Settings, measured bool) (*do
 	dc.logBase = make([]float32, fl)
 	dc.strictFine = make([]bool, fl)
 	s.fg.interpLog(lc, dc.full, dc.logBase, dc.strictFine)
+	// Where every voxel is measured by all included sonications or by
+	// none (one shared grid), the measured planes are the strict region.
 	measuredAny := make([]bool, cl)
+	allOrNone := true
 	for v, n := range cnt {
 		measuredAny[v] = n > 0
+		allOrNone = allOrNone && (n == 0 || int(n) == len(inc))
 	}
-	dc.measureFine = make([]bool, fl)
-	s.fg.interpMask(lc, measuredAny, dc.measureFine)
+	if allOrNone {
+		dc.measureFine = slices.Clone(dc.strictFine)
+	} else {
+		dc.measureFine = make([]bool, fl)
+		s.fg.interpMask(lc, measuredAny, dc.measureFine)
+	}
 	s.monitor(set, dc)
 	if !measured {
 		s.cache = dc

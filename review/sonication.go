@@ -109,15 +109,25 @@ func prepareSonication(ctx context.Context, so *dosemap.Sonication, s Settings, 
 // ts over its frames (°C, NaN where never valid), on ts's grid.
 func peakOverFrames(ts *dosemap.TemperatureSeries) *dosemap.Volume {
 	v := &dosemap.Volume{Geometry: ts.Geometry, Data: make([]float32, ts.Geometry.Len())}
-	nan := float32(math.NaN())
-	for i := range v.Data {
-		v.Data[i] = nan
+	pk := v.Data
+	ninf := float32(math.Inf(-1))
+	for i := range pk {
+		pk[i] = ninf
 	}
+	// x > p is false for a NaN x: invalid values leave the peak as it
+	// is, without a branch of their own.
 	for _, fr := range ts.Frames {
+		fr = fr[:len(pk)]
 		for i, x := range fr {
-			if x == x && !(v.Data[i] >= x) {
-				v.Data[i] = x
+			if x > pk[i] {
+				pk[i] = x
 			}
+		}
+	}
+	nan := float32(math.NaN())
+	for i, x := range pk {
+		if x == ninf {
+			pk[i] = nan
 		}
 	}
 	return v

@@ -69,6 +69,17 @@ type Truth struct {
 	// covers.
 	ChangeDose            *dosemap.Volume `json:"-"`
 	ChangeCoveredFraction float64         `json:"change_only_covered_fraction,omitempty"` // sessions on their own planes only (LayoutSlab keeps its truth.json as before)
+
+	// SliceDose and SliceChangeDose are Dose and ChangeDose of the
+	// continuous temperature averaged across one thermometry slice around
+	// every point (Session.SliceTruth; nil without): thermometry averages
+	// the temperature over its slice thickness before any dose is
+	// computed, and the dose grows exponentially with temperature, so a
+	// 3 mm slice through a focal spot a few mm wide sees markedly less
+	// dose than the point it is centred on (partial volume). These are
+	// what thermometry of that slice thickness can see at best; not
+	// written to truth.json.
+	SliceDose, SliceChangeDose *dosemap.Volume `json:"-"`
 }
 
 // MeasuredTruth holds dose figures on the thermometry grid; a voxel belongs
@@ -249,6 +260,14 @@ func (s *Session) truth(res *simResult, id ids) *Truth {
 		i, j, k := g.IJK(n)
 		if res.change[n] >= s.Threshold && lesion.Contains(g.Point(float64(i), float64(j), float64(k))) {
 			nChange++
+		}
+	}
+	if res.sliceDose != nil {
+		t.SliceDose = &dosemap.Volume{Geometry: g, Data: make([]float32, g.Len())}
+		t.SliceChangeDose = &dosemap.Volume{Geometry: g, Data: make([]float32, g.Len())}
+		for n := range res.sliceDose {
+			t.SliceDose.Data[n] = float32(res.sliceDose[n])
+			t.SliceChangeDose.Data[n] = float32(res.sliceChange[n])
 		}
 	}
 	if nTarget > 0 && s.Layout != LayoutSlab {
