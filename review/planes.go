@@ -152,6 +152,7 @@ func prepareStacks(ctx context.Context, so *dosemap.Sonication, s Settings, ref 
 		return nil, "", err
 	}
 	var cnt []uint8
+	var stackNoises []*stackNoise // the further stacks' noise (Monte Carlo)
 	for _, st := range so.Stacks {
 		e, u, err := prepareSonication(ctx, st, s, ref, nil, math.NaN(), nil)
 		if err != nil {
@@ -186,6 +187,7 @@ func prepareStacks(ctx context.Context, so *dosemap.Sonication, s Settings, ref 
 			sd.notes = append(sd.notes, fmt.Sprintf("its %s stack (series %s) lies outside the analysis region; that stack's dose is not used", orientationName(st.Geometry), st.SeriesUID))
 		}
 		sd.notes = append(sd.notes, e.notes...)
+		stackNoises = append(stackNoises, e.noise...)
 		if sd.temp == nil || (e.temp != nil && e.temp.peak > sd.temp.peak) {
 			sd.temp = e.temp
 		}
@@ -194,12 +196,7 @@ func prepareStacks(ctx context.Context, so *dosemap.Sonication, s Settings, ref 
 		}
 	}
 	if len(so.Stacks) > 0 {
-		// The noise model of the Monte Carlo follows one series per
-		// sonication; a sonication of several stacks enters without noise.
-		if ts, ok := sd.series.(*dosemap.TemperatureSeries); ok && ts != nil && keep == nil {
-			ts.Release()
-		}
-		sd.series, sd.source = nil, nil
+		sd.stackNoise(stackNoises)
 	}
 	measured := false
 	for _, x := range sd.dose {

@@ -107,7 +107,11 @@ type sonData struct {
 	series  any      // thermometry kept for Monte Carlo (engine type), whole or the Session's keep block
 	notes   []string // frames that could not be read
 	source  *dosemap.Sonication
-	reach   reach // extent of the measured heating around the hottest point (monitoring rule)
+	// noise holds, for a sonication measured off the session's grid
+	// (several stacks, or one elsewhere), each stack's thermometry kept
+	// for the Monte Carlo (see mcstacks.go); series is then nil.
+	noise []*stackNoise
+	reach reach // extent of the measured heating around the hottest point (monitoring rule)
 	// peakTemp is the highest temperature of each voxel over the frames
 	// (°C, NaN never valid) on the sonication's own grid; nil for a ready
 	// dose map.
