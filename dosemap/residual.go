@@ -129,6 +129,13 @@ type CoolingTail struct {
 	// true (the region an analysis looks at); elsewhere the cooling is not
 	// fitted and the later estimates are NaN.
 	Mask []bool
+	// Stacks are the tails of the sonication's further stacks (planes of
+	// other orientations measured at the same time), each on its own grid
+	// with its own times, without Stacks of their own. Each stack's
+	// cooling is fitted on its own; the heat a sonication of several
+	// stacks leaves at a later voxel is the mean of its stacks' estimates
+	// where more than one measured the voxel, as its dose is.
+	Stacks []*CoolingTail
 }
 
 // NewCoolingTail keeps the baseline frame times and the last tail frames
@@ -170,6 +177,9 @@ type ResidualEstimate struct {
 	// this one's first baseline frame, s; NaN for the first or when
 	// unknown.
 	CoolingS float64
+	// Stacks holds the rise on the grid of each of the tail's Stacks, in
+	// their order, as Rise on the first.
+	Stacks []*Volume
 }
 
 // coolingFit is the fitted cooling of one sonication.
@@ -265,7 +275,7 @@ func (f *coolingFit) addTo(g Geometry, tl *CoolingTail, rise []float32, corr [][
 func EstimateResidual(tails []*CoolingTail, opt ResidualOptions) ([]ResidualEstimate, error) {
 	opt = opt.withDefaults()
 	out := make([]ResidualEstimate, len(tails))
-	fits := make([]*coolingFit, len(tails))
+	fits := make([][]*coolingFit, len(tails)) // per sonication, per stack
 	broken := false // an earlier sonication has no tail
 	for n, tl := range tails {
 		out[n].CoolingS = math.NaN()
@@ -273,46 +283,113 @@ func EstimateResidual(tails []*CoolingTail, opt ResidualOptions) ([]ResidualEsti
 			broken = true
 			continue
 		}
-		if err := checkTail(tl); err != nil {
-			return nil, fmt.Errorf("sonication %d of the residual heat estimate: %w", n+1, err)
+		for _, st := range append([]*CoolingTail{tl}, tl.Stacks...) {
+			if err := checkTail(st); err != nil {
+				return nil, fmt.Errorf("sonication %d of the residual heat estimate: %w", n+1, err)
+			}
 		}
 		if n > 0 && tails[n-1] != nil && len(tl.Baseline) > 0 {
 			prev := tails[n-1]
 			out[n].CoolingS = tl.Baseline[0] - prev.Times[len(prev.Times)-1]
 		}
-		g := tl.Geometry
-		nv := g.Len()
-		rise := make([]float32, nv)
-		if broken {
-			for v := range rise {
-				rise[v] = float32(math.NaN())
+		for _, st := range append([]*CoolingTail{tl}, tl.Stacks...) {
+			rise, f := estimateStack(st, fits[:n], broken, opt)
+			if st == tl {
+				out[n].Rise = rise
+			} else {
+				out[n].Stacks = append(out[n].Stacks, rise)
 			}
+			fits[n] = append(fits[n], f)
 		}
-		// Earlier contributions: at the baseline (the estimate) and the
-		// cooling of them from the baseline to each tail frame (added back
-		// to the tail before it is fitted).
-		corr := make([][]float32, len(tl.Times))
-		for f := range corr {
-			corr[f] = make([]float32, nv)
-		}
-		for k := 0; k < n && !broken; k++ {
-			fits[k].addTo(g, tl, rise, corr)
-		}
-		out[n].Rise = &Volume{Geometry: g, Data: rise}
-		tail := make([][]float32, len(tl.Rise))
-		for f, r := range tl.Rise {
-			tail[f] = make([]float32, nv)
-			for v, x := range r {
-				if c := corr[f][v]; c == c {
-					x -= c // the earlier heat's cooling since the baseline, added back
-				}
-				tail[f][v] = x
-			}
-			tail[f] = smoothInPlane(g, tail[f], tl.Mask)
-		}
-		fits[n] = fitCooling(g, tl.Times, tail, tl.Mask, opt)
 	}
 	return out, nil
+}
+
+// estimateStack returns the rise the earlier sonications' fits leave at
+// the baseline of tail tl (NaN everywhere when broken), and the fit of
+// tl's own cooling, the earlier heat's cooling since the baseline added
+// back to its frames.
+func estimateStack(tl *CoolingTail, earlier [][]*coolingFit, broken bool, opt ResidualOptions) (*Volume, *coolingFit) {
+	g := tl.Geometry
+	nv := g.Len()
+	rise := make([]float32, nv)
+	if broken {
+		for v := range rise {
+			rise[v] = float32(math.NaN())
+		}
+	}
+	// Earlier contributions: at the baseline (the estimate) and the
+	// cooling of them from the baseline to each tail frame (added back to
+	// the tail before it is fitted).
+	corr := make([][]float32, len(tl.Times))
+	for f := range corr {
+		corr[f] = make([]float32, nv)
+	}
+	for k := 0; k < len(earlier) && !broken; k++ {
+		if len(earlier[k]) == 1 {
+			earlier[k][0].addTo(g, tl, rise, corr)
+		} else {
+			addStacksTo(earlier[k], g, tl, rise, corr)
+		}
+	}
+	tail := make([][]float32, len(tl.Rise))
+	for f, r := range tl.Rise {
+		tail[f] = make([]float32, nv)
+		for v, x := range r {
+			if c := corr[f][v]; c == c {
+				x -= c // the earlier heat's cooling since the baseline, added back
+			}
+			tail[f][v] = x
+		}
+		tail[f] = smoothInPlane(g, tail[f], tl.Mask)
+	}
+	return &Volume{Geometry: g, Data: rise}, fitCooling(g, tl.Times, tail, tl.Mask, opt)
+}
+
+// addStacksTo adds to rise and corr, as coolingFit.addTo does, the heat of
+// one sonication measured on several stacks (fits): at each voxel the mean
+// of the stacks whose estimate is known there; NaN where none is.
+func addStacksTo(fits []*coolingFit, g Geometry, tl *CoolingTail, rise []float32, corr [][]float32) {
+	nv := g.Len()
+	sumR := make([]float32, nv)
+	sumC := make([][]float32, len(corr))
+	for f := range sumC {
+		sumC[f] = make([]float32, nv)
+	}
+	cnt := make([]uint8, nv)
+	r := make([]float32, nv)
+	c := make([][]float32, len(corr))
+	for f := range c {
+		c[f] = make([]float32, nv)
+	}
+	for _, fit := range fits {
+		clear(r)
+		for f := range c {
+			clear(c[f])
+		}
+		fit.addTo(g, tl, r, c)
+		for v, x := range r {
+			if x != x {
+				continue
+			}
+			sumR[v] += x
+			for f := range c {
+				sumC[f][v] += c[f][v]
+			}
+			cnt[v]++
+		}
+	}
+	nan := float32(math.NaN())
+	for v, k := range cnt {
+		if k == 0 {
+			rise[v] = nan
+			continue
+		}
+		rise[v] += sumR[v] / float32(k)
+		for f := range corr {
+			corr[f][v] += sumC[f][v] / float32(k)
+		}
+	}
 }
 
 func checkTail(t *CoolingTail) error {
