@@ -276,7 +276,7 @@ func EstimateResidual(tails []*CoolingTail, opt ResidualOptions) ([]ResidualEsti
 	opt = opt.withDefaults()
 	out := make([]ResidualEstimate, len(tails))
 	fits := make([][]*coolingFit, len(tails)) // per sonication, per stack
-	broken := false // an earlier sonication has no tail
+	broken := false                           // an earlier sonication has no tail
 	for n, tl := range tails {
 		out[n].CoolingS = math.NaN()
 		if tl == nil {
