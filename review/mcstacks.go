@@ -395,11 +395,7 @@ func (st *stackTaps) trials(ctx context.Context, s *Session, set Settings, add [
 // session's grid, becomes a stack like the others) and more, the further
 // stacks' in order.
 func (sd *sonData) stackNoise(more []*stackNoise) {
-	if ts, ok := sd.series.(*dosemap.TemperatureSeries); ok && ts != nil {
-		if nz := newStackNoise(ts, nil); nz != nil {
-			sd.noise = []*stackNoise{nz} // kept or cropped already
-		}
-	}
+	sd.noise = sd.noiseOf()
 	sd.series, sd.source = nil, nil
 	sd.noise = append(sd.noise, more...)
 	for p, nz := range sd.noise {
@@ -455,4 +451,17 @@ func stencilLog(lv []float32, k []int32, w []float32) float32 {
 		return float32(math.Inf(-1))
 	}
 	return s
+}
+
+// noiseOf returns the Monte Carlo noise of one prepared stack: its stack
+// noise, or its series when it lies on the session's grid (kept or cropped
+// already).
+func (sd *sonData) noiseOf() []*stackNoise {
+	if ts, ok := sd.series.(*dosemap.TemperatureSeries); ok && ts != nil {
+		if nz := newStackNoise(ts, nil); nz != nil {
+			return []*stackNoise{nz}
+		}
+		return nil
+	}
+	return sd.noise
 }
