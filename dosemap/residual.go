@@ -250,20 +250,64 @@ func (f *coolingFit) addTo(g Geometry, tl *CoolingTail, rise []float32, corr [][
 		}
 		return
 	}
-	onGrid := func(tab []float32) []float32 {
-		x := make([]float32, f.g.Len())
-		for v, a := range f.amp {
-			x[v] = a * tab[f.tau[v]] // NaN stays NaN
-		}
-		return Resample(&Volume{Geometry: f.g, Data: x}, g).Data
-	}
-	at := onGrid(tb)
-	for v, x := range at {
-		rise[v] += x
-	}
-	for fr := range tf {
-		for v, x := range onGrid(tf[fr]) {
-			corr[fr][v] += x - at[v]
+	// f's values a·table resampled trilinearly onto g (as Resample does,
+	// to the last bit): the taps of each voxel of g are found once for
+	// every table.
+	tabs := append([][]float32{tb}, tf...)
+	vals := make([]float64, len(tabs))
+	o0, o1, o2 := f.g.Voxel(g.Point(0, 0, 0))
+	a0, a1, a2 := f.g.Voxel(g.Point(1, 0, 0))
+	b0, b1, b2 := f.g.Voxel(g.Point(0, 1, 0))
+	c0, c1, c2 := f.g.Voxel(g.Point(0, 0, 1))
+	a0, a1, a2 = a0-o0, a1-o1, a2-o2
+	b0, b1, b2 = b0-o0, b1-o1, b2-o2
+	c0, c1, c2 = c0-o0, c1-o1, c2-o2
+	var idx [8]int
+	var w [8]float64
+	v := 0
+	for k := 0; k < g.Slices; k++ {
+		fk := float64(k)
+		for j := 0; j < g.Rows; j++ {
+			fj := float64(j)
+			x := o0 + fj*b0 + fk*c0
+			y := o1 + fj*b1 + fk*c1
+			z := o2 + fj*b2 + fk*c2
+			for i := 0; i < g.Cols; i, v = i+1, v+1 {
+				fi := float64(i)
+				n := f.g.Taps(x+fi*a0, y+fi*a1, z+fi*a2, &idx, &w)
+				if n == 0 {
+					rise[v] = nan
+					for fr := range tf {
+						corr[fr][v] = nan
+					}
+					continue
+				}
+				clear(vals)
+				known := true
+				for t := 0; t < n; t++ {
+					a := f.amp[idx[t]]
+					if a != a {
+						known = false
+						break
+					}
+					ti := f.tau[idx[t]]
+					for q, tab := range tabs {
+						vals[q] += w[t] * float64(a*tab[ti])
+					}
+				}
+				if !known {
+					rise[v] = nan
+					for fr := range tf {
+						corr[fr][v] = nan
+					}
+					continue
+				}
+				at := float32(vals[0])
+				rise[v] += at
+				for fr := range tf {
+					corr[fr][v] += float32(vals[fr+1]) - at
+				}
+			}
 		}
 	}
 }
@@ -325,12 +369,16 @@ func estimateStack(tl *CoolingTail, earlier [][]*coolingFit, broken bool, opt Re
 	for f := range corr {
 		corr[f] = make([]float32, nv)
 	}
+	var sc *stackScratch
 	for k := 0; k < len(earlier) && !broken; k++ {
 		if len(earlier[k]) == 1 {
 			earlier[k][0].addTo(g, tl, rise, corr)
-		} else {
-			addStacksTo(earlier[k], g, tl, rise, corr)
+			continue
 		}
+		if sc == nil {
+			sc = newStackScratch(nv, len(corr))
+		}
+		sc.addStacksTo(earlier[k], g, tl, rise, corr)
 	}
 	tail := make([][]float32, len(tl.Rise))
 	for f, r := range tl.Rise {
@@ -346,21 +394,32 @@ func estimateStack(tl *CoolingTail, earlier [][]*coolingFit, broken bool, opt Re
 	return &Volume{Geometry: g, Data: rise}, fitCooling(g, tl.Times, tail, tl.Mask, opt)
 }
 
+// stackScratch holds addStacksTo's buffers, reused over the earlier
+// sonications.
+type stackScratch struct {
+	sumR, r []float32
+	sumC, c [][]float32
+	cnt     []uint8
+}
+
+func newStackScratch(nv, frames int) *stackScratch {
+	sc := &stackScratch{sumR: make([]float32, nv), r: make([]float32, nv), cnt: make([]uint8, nv)}
+	for range frames {
+		sc.sumC = append(sc.sumC, make([]float32, nv))
+		sc.c = append(sc.c, make([]float32, nv))
+	}
+	return sc
+}
+
 // addStacksTo adds to rise and corr, as coolingFit.addTo does, the heat of
 // one sonication measured on several stacks (fits): at each voxel the mean
 // of the stacks whose estimate is known there; NaN where none is.
-func addStacksTo(fits []*coolingFit, g Geometry, tl *CoolingTail, rise []float32, corr [][]float32) {
-	nv := g.Len()
-	sumR := make([]float32, nv)
-	sumC := make([][]float32, len(corr))
+func (sc *stackScratch) addStacksTo(fits []*coolingFit, g Geometry, tl *CoolingTail, rise []float32, corr [][]float32) {
+	sumR, sumC, cnt, r, c := sc.sumR, sc.sumC, sc.cnt, sc.r, sc.c
+	clear(sumR)
+	clear(cnt)
 	for f := range sumC {
-		sumC[f] = make([]float32, nv)
-	}
-	cnt := make([]uint8, nv)
-	r := make([]float32, nv)
-	c := make([][]float32, len(corr))
-	for f := range c {
-		c[f] = make([]float32, nv)
+		clear(sumC[f])
 	}
 	for _, fit := range fits {
 		clear(r)
