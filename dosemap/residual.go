@@ -225,7 +225,10 @@ func (f *coolingFit) meanTable(ts []float64) []float32 {
 // of tl's tail frames to corr[frame]; NaN where f is unknown. Both are on
 // tl's grid: f's values are resampled onto it when the grids differ (NaN
 // outside f's grid).
-func (f *coolingFit) addTo(g Geometry, tl *CoolingTail, rise []float32, corr [][]float32) {
+//
+// With only not nil, voxels of g outside only are left as they are (the
+// estimate of several stacks, needed within their masks only).
+func (f *coolingFit) addTo(g Geometry, tl *CoolingTail, rise []float32, corr [][]float32, only []bool) {
 	nan := float32(math.NaN())
 	tb := f.meanTable(tl.Baseline)
 	tf := make([][]float32, len(tl.Times))
@@ -272,9 +275,20 @@ func (f *coolingFit) addTo(g Geometry, tl *CoolingTail, rise []float32, corr [][
 			x := o0 + fj*b0 + fk*c0
 			y := o1 + fj*b1 + fk*c1
 			z := o2 + fj*b2 + fk*c2
+			// Voxels of the row beyond ilo..ihi lie outside f's grid
+			// (Taps would find no voxel): unknown.
+			ilo, ihi := rowInside(x, a0, f.g.Cols, 0, g.Cols-1)
+			ilo, ihi = rowInside(y, a1, f.g.Rows, ilo, ihi)
+			ilo, ihi = rowInside(z, a2, f.g.Slices, ilo, ihi)
 			for i := 0; i < g.Cols; i, v = i+1, v+1 {
-				fi := float64(i)
-				n := f.g.Taps(x+fi*a0, y+fi*a1, z+fi*a2, &idx, &w)
+				if only != nil && !only[v] {
+					continue
+				}
+				n := 0
+				if i >= ilo && i <= ihi {
+					fi := float64(i)
+					n = f.g.Taps(x+fi*a0, y+fi*a1, z+fi*a2, &idx, &w)
+				}
 				if n == 0 {
 					rise[v] = nan
 					for fr := range tf {
@@ -310,6 +324,27 @@ func (f *coolingFit) addTo(g Geometry, tl *CoolingTail, rise []float32, corr [][
 			}
 		}
 	}
+}
+
+// rowInside narrows lo..hi to the indices i whose coordinate x0 + i·a
+// may lie within half a voxel of a grid axis of n voxels (-0.5 to
+// n-0.5), with one index to spare on each side for rounding (the exact
+// test is Taps's).
+func rowInside(x0, a float64, n, lo, hi int) (int, int) {
+	if math.Abs(a) < 1e-9 {
+		if x0 < -1 || x0 > float64(n) {
+			return 1, 0 // none
+		}
+		return lo, hi
+	}
+	t0, t1 := (-0.5-x0)/a, (float64(n)-0.5-x0)/a
+	if t0 > t1 {
+		t0, t1 = t1, t0
+	}
+	if t1 < float64(lo)-1 || t0 > float64(hi)+1 {
+		return 1, 0
+	}
+	return max(lo, int(math.Floor(t0))-1), min(hi, int(math.Ceil(t1))+1)
 }
 
 // EstimateResidual estimates, for each sonication in delivery order, the
@@ -372,7 +407,7 @@ func estimateStack(tl *CoolingTail, earlier [][]*coolingFit, broken bool, opt Re
 	var sc *stackScratch
 	for k := 0; k < len(earlier) && !broken; k++ {
 		if len(earlier[k]) == 1 {
-			earlier[k][0].addTo(g, tl, rise, corr)
+			earlier[k][0].addTo(g, tl, rise, corr, nil)
 			continue
 		}
 		if sc == nil {
@@ -413,7 +448,8 @@ func newStackScratch(nv, frames int) *stackScratch {
 
 // addStacksTo adds to rise and corr, as coolingFit.addTo does, the heat of
 // one sonication measured on several stacks (fits): at each voxel the mean
-// of the stacks whose estimate is known there; NaN where none is.
+// of the stacks whose estimate is known there; NaN where none is, and
+// outside tl's Mask (not estimated).
 func (sc *stackScratch) addStacksTo(fits []*coolingFit, g Geometry, tl *CoolingTail, rise []float32, corr [][]float32) {
 	sumR, sumC, cnt, r, c := sc.sumR, sc.sumC, sc.cnt, sc.r, sc.c
 	clear(sumR)
@@ -426,10 +462,10 @@ func (sc *stackScratch) addStacksTo(fits []*coolingFit, g Geometry, tl *CoolingT
 		for f := range c {
 			clear(c[f])
 		}
-		fit.addTo(g, tl, r, c)
+		fit.addTo(g, tl, r, c, tl.Mask)
 		for v, x := range r {
-			if x != x {
-				continue
+			if x != x || (tl.Mask != nil && !tl.Mask[v]) {
+				continue // unknown; outside the mask not estimated
 			}
 			sumR[v] += x
 			for f := range c {
