@@ -129,6 +129,13 @@ type CoolingTail struct {
 	// true (the region an analysis looks at); elsewhere the cooling is not
 	// fitted and the later estimates are NaN.
 	Mask []bool
+	// Stacks are the tails of the sonication's further stacks (planes of
+	// other orientations measured at the same time), each on its own grid
+	// with its own times, without Stacks of their own. Each stack's
+	// cooling is fitted on its own; the heat a sonication of several
+	// stacks leaves at a later voxel is the mean of its stacks' estimates
+	// where more than one measured the voxel, as its dose is.
+	Stacks []*CoolingTail
 }
 
 // NewCoolingTail keeps the baseline frame times and the last tail frames
@@ -170,6 +177,9 @@ type ResidualEstimate struct {
 	// this one's first baseline frame, s; NaN for the first or when
 	// unknown.
 	CoolingS float64
+	// Stacks holds the rise on the grid of each of the tail's Stacks, in
+	// their order, as Rise on the first.
+	Stacks []*Volume
 }
 
 // coolingFit is the fitted cooling of one sonication.
@@ -215,7 +225,10 @@ func (f *coolingFit) meanTable(ts []float64) []float32 {
 // of tl's tail frames to corr[frame]; NaN where f is unknown. Both are on
 // tl's grid: f's values are resampled onto it when the grids differ (NaN
 // outside f's grid).
-func (f *coolingFit) addTo(g Geometry, tl *CoolingTail, rise []float32, corr [][]float32) {
+//
+// With only not nil, voxels of g outside only are left as they are (the
+// estimate of several stacks, needed within their masks only).
+func (f *coolingFit) addTo(g Geometry, tl *CoolingTail, rise []float32, corr [][]float32, only []bool) {
 	nan := float32(math.NaN())
 	tb := f.meanTable(tl.Baseline)
 	tf := make([][]float32, len(tl.Times))
@@ -240,22 +253,98 @@ func (f *coolingFit) addTo(g Geometry, tl *CoolingTail, rise []float32, corr [][
 		}
 		return
 	}
-	onGrid := func(tab []float32) []float32 {
-		x := make([]float32, f.g.Len())
-		for v, a := range f.amp {
-			x[v] = a * tab[f.tau[v]] // NaN stays NaN
+	// f's values a·table resampled trilinearly onto g (as Resample does,
+	// to the last bit): the taps of each voxel of g are found once for
+	// every table.
+	tabs := append([][]float32{tb}, tf...)
+	vals := make([]float64, len(tabs))
+	o0, o1, o2 := f.g.Voxel(g.Point(0, 0, 0))
+	a0, a1, a2 := f.g.Voxel(g.Point(1, 0, 0))
+	b0, b1, b2 := f.g.Voxel(g.Point(0, 1, 0))
+	c0, c1, c2 := f.g.Voxel(g.Point(0, 0, 1))
+	a0, a1, a2 = a0-o0, a1-o1, a2-o2
+	b0, b1, b2 = b0-o0, b1-o1, b2-o2
+	c0, c1, c2 = c0-o0, c1-o1, c2-o2
+	var idx [8]int
+	var w [8]float64
+	v := 0
+	for k := 0; k < g.Slices; k++ {
+		fk := float64(k)
+		for j := 0; j < g.Rows; j++ {
+			fj := float64(j)
+			x := o0 + fj*b0 + fk*c0
+			y := o1 + fj*b1 + fk*c1
+			z := o2 + fj*b2 + fk*c2
+			// Voxels of the row beyond ilo..ihi lie outside f's grid
+			// (Taps would find no voxel): unknown.
+			ilo, ihi := rowInside(x, a0, f.g.Cols, 0, g.Cols-1)
+			ilo, ihi = rowInside(y, a1, f.g.Rows, ilo, ihi)
+			ilo, ihi = rowInside(z, a2, f.g.Slices, ilo, ihi)
+			for i := 0; i < g.Cols; i, v = i+1, v+1 {
+				if only != nil && !only[v] {
+					continue
+				}
+				n := 0
+				if i >= ilo && i <= ihi {
+					fi := float64(i)
+					n = f.g.Taps(x+fi*a0, y+fi*a1, z+fi*a2, &idx, &w)
+				}
+				if n == 0 {
+					rise[v] = nan
+					for fr := range tf {
+						corr[fr][v] = nan
+					}
+					continue
+				}
+				clear(vals)
+				known := true
+				for t := 0; t < n; t++ {
+					a := f.amp[idx[t]]
+					if a != a {
+						known = false
+						break
+					}
+					ti := f.tau[idx[t]]
+					for q, tab := range tabs {
+						vals[q] += w[t] * float64(a*tab[ti])
+					}
+				}
+				if !known {
+					rise[v] = nan
+					for fr := range tf {
+						corr[fr][v] = nan
+					}
+					continue
+				}
+				at := float32(vals[0])
+				rise[v] += at
+				for fr := range tf {
+					corr[fr][v] += float32(vals[fr+1]) - at
+				}
+			}
 		}
-		return Resample(&Volume{Geometry: f.g, Data: x}, g).Data
 	}
-	at := onGrid(tb)
-	for v, x := range at {
-		rise[v] += x
-	}
-	for fr := range tf {
-		for v, x := range onGrid(tf[fr]) {
-			corr[fr][v] += x - at[v]
+}
+
+// rowInside narrows lo..hi to the indices i whose coordinate x0 + i·a
+// may lie within half a voxel of a grid axis of n voxels (-0.5 to
+// n-0.5), with one index to spare on each side for rounding (the exact
+// test is Taps's).
+func rowInside(x0, a float64, n, lo, hi int) (int, int) {
+	if math.Abs(a) < 1e-9 {
+		if x0 < -1 || x0 > float64(n) {
+			return 1, 0 // none
 		}
+		return lo, hi
 	}
+	t0, t1 := (-0.5-x0)/a, (float64(n)-0.5-x0)/a
+	if t0 > t1 {
+		t0, t1 = t1, t0
+	}
+	if t1 < float64(lo)-1 || t0 > float64(hi)+1 {
+		return 1, 0
+	}
+	return max(lo, int(math.Floor(t0))-1), min(hi, int(math.Ceil(t1))+1)
 }
 
 // EstimateResidual estimates, for each sonication in delivery order, the
@@ -265,54 +354,137 @@ func (f *coolingFit) addTo(g Geometry, tl *CoolingTail, rise []float32, corr [][
 func EstimateResidual(tails []*CoolingTail, opt ResidualOptions) ([]ResidualEstimate, error) {
 	opt = opt.withDefaults()
 	out := make([]ResidualEstimate, len(tails))
-	fits := make([]*coolingFit, len(tails))
-	broken := false // an earlier sonication has no tail
+	fits := make([][]*coolingFit, len(tails)) // per sonication, per stack
+	broken := false                           // an earlier sonication has no tail
 	for n, tl := range tails {
 		out[n].CoolingS = math.NaN()
 		if tl == nil {
 			broken = true
 			continue
 		}
-		if err := checkTail(tl); err != nil {
-			return nil, fmt.Errorf("sonication %d of the residual heat estimate: %w", n+1, err)
+		for _, st := range append([]*CoolingTail{tl}, tl.Stacks...) {
+			if err := checkTail(st); err != nil {
+				return nil, fmt.Errorf("sonication %d of the residual heat estimate: %w", n+1, err)
+			}
 		}
 		if n > 0 && tails[n-1] != nil && len(tl.Baseline) > 0 {
 			prev := tails[n-1]
 			out[n].CoolingS = tl.Baseline[0] - prev.Times[len(prev.Times)-1]
 		}
-		g := tl.Geometry
-		nv := g.Len()
-		rise := make([]float32, nv)
-		if broken {
-			for v := range rise {
-				rise[v] = float32(math.NaN())
+		for _, st := range append([]*CoolingTail{tl}, tl.Stacks...) {
+			rise, f := estimateStack(st, fits[:n], broken, opt)
+			if st == tl {
+				out[n].Rise = rise
+			} else {
+				out[n].Stacks = append(out[n].Stacks, rise)
 			}
+			fits[n] = append(fits[n], f)
 		}
-		// Earlier contributions: at the baseline (the estimate) and the
-		// cooling of them from the baseline to each tail frame (added back
-		// to the tail before it is fitted).
-		corr := make([][]float32, len(tl.Times))
-		for f := range corr {
-			corr[f] = make([]float32, nv)
-		}
-		for k := 0; k < n && !broken; k++ {
-			fits[k].addTo(g, tl, rise, corr)
-		}
-		out[n].Rise = &Volume{Geometry: g, Data: rise}
-		tail := make([][]float32, len(tl.Rise))
-		for f, r := range tl.Rise {
-			tail[f] = make([]float32, nv)
-			for v, x := range r {
-				if c := corr[f][v]; c == c {
-					x -= c // the earlier heat's cooling since the baseline, added back
-				}
-				tail[f][v] = x
-			}
-			tail[f] = smoothInPlane(g, tail[f], tl.Mask)
-		}
-		fits[n] = fitCooling(g, tl.Times, tail, tl.Mask, opt)
 	}
 	return out, nil
+}
+
+// estimateStack returns the rise the earlier sonications' fits leave at
+// the baseline of tail tl (NaN everywhere when broken), and the fit of
+// tl's own cooling, the earlier heat's cooling since the baseline added
+// back to its frames.
+func estimateStack(tl *CoolingTail, earlier [][]*coolingFit, broken bool, opt ResidualOptions) (*Volume, *coolingFit) {
+	g := tl.Geometry
+	nv := g.Len()
+	rise := make([]float32, nv)
+	if broken {
+		for v := range rise {
+			rise[v] = float32(math.NaN())
+		}
+	}
+	// Earlier contributions: at the baseline (the estimate) and the
+	// cooling of them from the baseline to each tail frame (added back to
+	// the tail before it is fitted).
+	corr := make([][]float32, len(tl.Times))
+	for f := range corr {
+		corr[f] = make([]float32, nv)
+	}
+	var sc *stackScratch
+	for k := 0; k < len(earlier) && !broken; k++ {
+		if len(earlier[k]) == 1 {
+			earlier[k][0].addTo(g, tl, rise, corr, nil)
+			continue
+		}
+		if sc == nil {
+			sc = newStackScratch(nv, len(corr))
+		}
+		sc.addStacksTo(earlier[k], g, tl, rise, corr)
+	}
+	tail := make([][]float32, len(tl.Rise))
+	for f, r := range tl.Rise {
+		tail[f] = make([]float32, nv)
+		for v, x := range r {
+			if c := corr[f][v]; c == c {
+				x -= c // the earlier heat's cooling since the baseline, added back
+			}
+			tail[f][v] = x
+		}
+		tail[f] = smoothInPlane(g, tail[f], tl.Mask)
+	}
+	return &Volume{Geometry: g, Data: rise}, fitCooling(g, tl.Times, tail, tl.Mask, opt)
+}
+
+// stackScratch holds addStacksTo's buffers, reused over the earlier
+// sonications.
+type stackScratch struct {
+	sumR, r []float32
+	sumC, c [][]float32
+	cnt     []uint8
+}
+
+func newStackScratch(nv, frames int) *stackScratch {
+	sc := &stackScratch{sumR: make([]float32, nv), r: make([]float32, nv), cnt: make([]uint8, nv)}
+	for range frames {
+		sc.sumC = append(sc.sumC, make([]float32, nv))
+		sc.c = append(sc.c, make([]float32, nv))
+	}
+	return sc
+}
+
+// addStacksTo adds to rise and corr, as coolingFit.addTo does, the heat of
+// one sonication measured on several stacks (fits): at each voxel the mean
+// of the stacks whose estimate is known there; NaN where none is, and
+// outside tl's Mask (not estimated).
+func (sc *stackScratch) addStacksTo(fits []*coolingFit, g Geometry, tl *CoolingTail, rise []float32, corr [][]float32) {
+	sumR, sumC, cnt, r, c := sc.sumR, sc.sumC, sc.cnt, sc.r, sc.c
+	clear(sumR)
+	clear(cnt)
+	for f := range sumC {
+		clear(sumC[f])
+	}
+	for _, fit := range fits {
+		clear(r)
+		for f := range c {
+			clear(c[f])
+		}
+		fit.addTo(g, tl, r, c, tl.Mask)
+		for v, x := range r {
+			if x != x || (tl.Mask != nil && !tl.Mask[v]) {
+				continue // unknown; outside the mask not estimated
+			}
+			sumR[v] += x
+			for f := range c {
+				sumC[f][v] += c[f][v]
+			}
+			cnt[v]++
+		}
+	}
+	nan := float32(math.NaN())
+	for v, k := range cnt {
+		if k == 0 {
+			rise[v] = nan
+			continue
+		}
+		rise[v] += sumR[v] / float32(k)
+		for f := range corr {
+			corr[f][v] += sumC[f][v] / float32(k)
+		}
+	}
 }
 
 func checkTail(t *CoolingTail) error {

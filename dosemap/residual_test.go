@@ -224,3 +224,72 @@ func BenchmarkEstimateResidual(b *testing.B) {
 		})
 	}
 }
+
+// TestResidualStacks: a spot measured on a coronal and a sagittal plane
+// through its centre (two stacks of one sonication), then a sonication
+// measured on the same coronal plane and on a sagittal plane 3 mm away.
+// Against the heat kernel as in TestResidualHeatKernel (same tolerance:
+// 15 % of the centre value or 0.1 °C), 13 s after the spot's last frame:
+// the later coronal plane's estimate is known over the spot; the later
+// sagittal plane's is known where an earlier plane measured it (its line
+// through the coronal plane) and matches there, and is unknown (NaN)
+// where neither earlier plane measured it.
+func TestResidualStacks(t *testing.T) {
+	const alpha = 0.147
+	plane := func(row dosemap.Vec3, origin dosemap.Vec3) dosemap.Geometry {
+		col := dosemap.Vec3{0, 0, -1}
+		return dosemap.Geometry{Cols: 41, Rows: 41, Slices: 1, Spacing: dosemap.Vec3{1, 1, 1},
+			Row: row, Col: col, Normal: row.Cross(col), Origin: origin}
+	}
+	cor := plane(dosemap.Vec3{1, 0, 0}, dosemap.Vec3{-20, 0, 20})
+	sag := func(x float64) dosemap.Geometry { return plane(dosemap.Vec3{0, 1, 0}, dosemap.Vec3{x, -20, 20}) }
+	sp := []spot{{20, 9, dosemap.Vec3{}, 0}}
+	base, times := []float64{-6, -3}, []float64{0, 3, 6}
+	first := spotTail(cor, base, times, sp, alpha, 0)
+	first.Stacks = []*dosemap.CoolingTail{spotTail(sag(0), base, times, sp, alpha, 0)}
+	tb := []float64{19, 22}
+	empty := func(g dosemap.Geometry) *dosemap.CoolingTail {
+		tl := &dosemap.CoolingTail{Geometry: g, Baseline: tb, Times: []float64{25, 28}}
+		for range tl.Times {
+			tl.Rise = append(tl.Rise, make([]float32, g.Len()))
+		}
+		return tl
+	}
+	last := empty(cor)
+	last.Stacks = []*dosemap.CoolingTail{empty(sag(3))}
+	est, err := dosemap.EstimateResidual([]*dosemap.CoolingTail{first, last}, dosemap.DefaultResidualOptions())
+	if err != nil {
+		t.Fatal(err)
+	}
+	e := est[1]
+	if e.Rise == nil || len(e.Stacks) != 1 || len(est[0].Stacks) != 1 {
+		t.Fatalf("estimate %v with %d stacks; the first %d", e.Rise, len(e.Stacks), len(est[0].Stacks))
+	}
+	want := func(p dosemap.Vec3) float64 {
+		var u float64
+		for _, x := range tb {
+			u += gaussKernel(20, 9, alpha, 0, dosemap.Vec3{}, p, x) / float64(len(tb))
+		}
+		return u
+	}
+	centre := want(dosemap.Vec3{})
+	check := func(v *dosemap.Volume, p dosemap.Vec3, known bool) {
+		i, j, k := v.Voxel(p)
+		got := float64(v.At(int(math.Round(i)), int(math.Round(j)), int(math.Round(k))))
+		switch {
+		case !known && got == got:
+			t.Errorf("at %v: estimated %.3f °C where no earlier stack measured; want unknown", p, got)
+		case known && !(math.Abs(got-want(p)) <= math.Max(0.15*centre, 0.1)):
+			t.Errorf("at %v: estimated %.3f °C, heat kernel %.3f °C (centre %.3f)", p, got, want(p), centre)
+		}
+	}
+	for _, p := range []dosemap.Vec3{{0, 0, 0}, {3, 0, 0}, {0, 0, 4}, {-6, 0, 2}} {
+		check(e.Rise, p, true)
+	}
+	for _, p := range []dosemap.Vec3{{3, 0, 0}, {3, 0, 4}, {3, 0, -3}} {
+		check(e.Stacks[0], p, true)
+	}
+	for _, p := range []dosemap.Vec3{{3, 6, 0}, {3, -5, 2}} {
+		check(e.Stacks[0], p, false)
+	}
+}

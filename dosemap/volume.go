@@ -113,6 +113,54 @@ func (v *Volume) SampleVoxel(i, j, k float64) float32 {
 	return float32(sum)
 }
 
+// Taps returns the voxels of g and their weights that SampleVoxel
+// combines at continuous voxel coordinate (i, j, k): n (at most 8) voxel
+// indices in idx with positive weights in w summing to 1, and n = 0 when
+// the point lies beyond half a voxel outside the grid. The value
+// SampleVoxel returns there is Σ w·value, or NaN when one of the voxels is
+// NaN.
+func (g Geometry) Taps(i, j, k float64, idx *[8]int, w *[8]float64) (n int) {
+	x, ok0 := clampAxis(i, g.Cols)
+	y, ok1 := clampAxis(j, g.Rows)
+	z, ok2 := clampAxis(k, g.Slices)
+	if !ok0 || !ok1 || !ok2 {
+		return 0
+	}
+	i0, fx := split(x, g.Cols)
+	j0, fy := split(y, g.Rows)
+	k0, fz := split(z, g.Slices)
+	for dk := 0; dk < 2; dk++ {
+		wz := 1 - fz
+		if dk == 1 {
+			wz = fz
+		}
+		if wz == 0 {
+			continue
+		}
+		for dj := 0; dj < 2; dj++ {
+			wy := 1 - fy
+			if dj == 1 {
+				wy = fy
+			}
+			if wy == 0 {
+				continue
+			}
+			for di := 0; di < 2; di++ {
+				wx := 1 - fx
+				if di == 1 {
+					wx = fx
+				}
+				if wx == 0 {
+					continue
+				}
+				idx[n], w[n] = g.Index(i0+di, j0+dj, k0+dk), wx*wy*wz
+				n++
+			}
+		}
+	}
+	return n
+}
+
 // Sample returns the trilinear interpolation of v at patient position p
 // (mm); see SampleVoxel for the treatment of edges and NaN.
 func (v *Volume) Sample(p Vec3) float32 {

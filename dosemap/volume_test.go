@@ -211,3 +211,50 @@ func TestResampleBoxMatchesEveryVoxel(t *testing.T) {
 		t.Fatalf("only %d voxels inside the plane: the test plane misses the volume", inside)
 	}
 }
+
+// TestTapsMatchSampleVoxel: the voxels and weights Taps returns give
+// SampleVoxel's trilinear value (the definition of trilinear
+// interpolation, common practice) at random points of a random volume,
+// inside, near the edges and outside, on a 3-D grid and a one-slice
+// grid; weights are positive and sum to 1 (float rounding, 1e-12).
+func TestTapsMatchSampleVoxel(t *testing.T) {
+	rng := rand.New(rand.NewPCG(7, 7))
+	for _, g := range []Geometry{
+		NewAxialGeometry(6, 5, 4, Vec3{1, 1.5, 3}, Vec3{-2, 3, 1}),
+		NewAxialGeometry(7, 6, 1, Vec3{1.2, 1.2, 3}, Vec3{0, 0, 0}),
+	} {
+		v := NewVolume(g)
+		for n := range v.Data {
+			v.Data[n] = float32(rng.Float64()*10 - 5)
+		}
+		var idx [8]int
+		var w [8]float64
+		for trial := 0; trial < 2000; trial++ {
+			i := rng.Float64()*float64(g.Cols+1) - 1
+			j := rng.Float64()*float64(g.Rows+1) - 1
+			k := rng.Float64()*float64(g.Slices+1) - 1
+			if trial%7 == 0 {
+				i = math.Round(i) // voxel centres
+			}
+			n := g.Taps(i, j, k, &idx, &w)
+			want := v.SampleVoxel(i, j, k)
+			if n == 0 {
+				if want == want {
+					t.Fatalf("(%g, %g, %g): no taps, SampleVoxel %g", i, j, k, want)
+				}
+				continue
+			}
+			var sum, ws float64
+			for a := 0; a < n; a++ {
+				if !(w[a] > 0) {
+					t.Fatalf("(%g, %g, %g): weight %g", i, j, k, w[a])
+				}
+				sum += w[a] * float64(v.Data[idx[a]])
+				ws += w[a]
+			}
+			if math.Abs(ws-1) > 1e-12 || math.Abs(float64(float32(sum))-float64(want)) > 1e-5 {
+				t.Fatalf("(%g, %g, %g): taps give %g (weights %g), SampleVoxel %g", i, j, k, sum, ws, want)
+			}
+		}
+	}
+}

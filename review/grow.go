@@ -20,6 +20,7 @@ type growState struct {
 	tails     []*dosemap.CoolingTail
 	ext       []vec3
 	clockNote string
+	common    bool // the thermometry grid is a common grid built for sonications on different planes
 }
 
 // AddSonication computes the thermometry and dose of so, a sonication
@@ -51,7 +52,7 @@ func (s *Session) AddSonication(ctx context.Context, so *dosemap.Sonication) err
 	ref := s.fg.coarse
 	all := append(slices.Clone(s.grown.sons), so)
 	clocks, clockNote := sessionClock(all)
-	sd, unit, err := prepareStacks(ctx, so, s.prepared, ref, s.keep, clocks[len(all)-1])
+	sd, unit, err := prepareStacks(ctx, so, s.prepared, ref, s.keep, clocks[len(all)-1], nil)
 	if err != nil {
 		return named(err)
 	}
@@ -66,14 +67,14 @@ func (s *Session) AddSonication(ctx context.Context, so *dosemap.Sonication) err
 	sd.tail, sd.cooling = nil, math.NaN()
 	tails := append(slices.Clone(s.grown.tails), nil)
 	if clockNote == "" && tail != nil {
+		var masks []*dosemap.CoolingTail // grids met before
 		for _, t := range s.grown.tails {
-			if t != nil && t.Geometry.SameGrid(tail.Geometry, 0.01) {
-				tail.Mask = t.Mask
+			if t != nil {
+				masks = append(masks, t)
+				masks = append(masks, t.Stacks...)
 			}
 		}
-		if tail.Mask == nil {
-			tail.Mask = boxMask(tail.Geometry, s.grown.ext)
-		}
+		maskTails(tail, &masks, s.grown.ext)
 		tails[len(tails)-1] = tail
 		est, err := dosemap.EstimateResidual(tails, dosemap.DefaultResidualOptions())
 		if err != nil {
@@ -82,24 +83,20 @@ func (s *Session) AddSonication(ctx context.Context, so *dosemap.Sonication) err
 		e := est[len(est)-1]
 		sd.cooling = e.CoolingS
 		if e.Rise != nil {
-			sd.residual = onGrid(e.Rise, ref)
-			if s.prepared.CarryOver && len(so.Stacks) == 0 && slices.ContainsFunc(e.Rise.Data, func(x float32) bool { return x > 0 }) {
-				redo, _, err := prepareSonication(ctx, so, s.prepared, ref, s.keep, math.NaN(), e.Rise.Data)
+			sd.residual = residualOnGrid(e, ref)
+			if s.prepared.CarryOver && hiddenHeat(e) {
+				redo, err := withResidual(ctx, so, s.prepared, ref, s.keep, e)
 				if err != nil {
 					return fmt.Errorf("sonication %d with residual heat: %w", so.Number, err)
 				}
-				sd.measured, sd.dose, sd.peak = sd.dose, redo.dose, redo.peak
-				sd.reach = newReach(ref, sd.dose)
-				if redo.series != nil {
-					sd.series, sd.source = redo.series, redo.source
-				}
+				sd.takeCorrected(redo, ref)
 			}
 		}
 	}
 	for _, nt := range sd.notes {
 		s.warnings = append(s.warnings, fmt.Sprintf("sonication %d: %s", so.Number, nt))
 	}
-	if !so.Geometry.SameGrid(ref, 0.01) && len(s.sons) > 0 {
+	if !s.grown.common && !so.Geometry.SameGrid(ref, 0.01) && len(s.sons) > 0 {
 		s.warnings = append(s.warnings, fmt.Sprintf("sonication %d was acquired on a different grid and was resampled onto the grid of sonication %d", so.Number, s.sons[0].number))
 	}
 	if clockNote != "" && s.grown.clockNote == "" {

@@ -15,12 +15,26 @@ import (
 // sonications and grown one sonication at a time gives, after each, the
 // result Prepare gives for those sonications at once (same JSON: coverage,
 // holes, per-sonication and residual heat figures, Monte Carlo band), with
-// the residual heat as measured and corrected (carry_over).
+// the residual heat as measured and corrected (carry_over): on the demo's
+// first sonications, and on the first sonications of a two-plane session
+// (one series per plane) with 13 s of cooling between them.
 func TestAddSonicationMatchesPrepare(t *testing.T) {
+	demo := sim.DemoSession()
+	demo.Motion = nil
+	for _, s := range []*sim.Session{demo, sim.ShortGapPlanesSession(sim.LayoutTwoPlaneSeries, 1, 13)} {
+		t.Run(s.Label, func(t *testing.T) { checkGrown(t, s) })
+	}
+	var none *dosemap.Sonication
+	if err := (&Session{}).AddSonication(t.Context(), none); err == nil {
+		t.Error("nil sonication accepted")
+	}
+}
+
+// checkGrown checks the first four sonications of s grown one at a time
+// against Prepare (TestAddSonicationMatchesPrepare).
+func checkGrown(t *testing.T, s *sim.Session) {
 	dir := filepath.Join(t.TempDir(), "case")
-	s := sim.DemoSession()
 	s.Sonications = s.Sonications[:4]
-	s.Motion = nil
 	if _, err := sim.WriteSession(dir, s); err != nil {
 		t.Fatal(err)
 	}
@@ -72,9 +86,5 @@ func TestAddSonicationMatchesPrepare(t *testing.T) {
 		if err := ses.AddSonication(ctx, c.Sonications[3]); err == nil {
 			t.Error("a sonication number added twice was accepted")
 		}
-	}
-	var none *dosemap.Sonication
-	if err := (&Session{}).AddSonication(ctx, none); err == nil {
-		t.Error("nil sonication accepted")
 	}
 }

@@ -144,10 +144,12 @@ func commonGrid(sons []*dosemap.Sonication, ext []vec3) (dosemap.Geometry, bool)
 
 // prepareStacks prepares sonication so and its further stacks on ref: the
 // dose of the sonication is the mean of its stacks where they overlap.
-// clock is passed on for the first stack (the residual heat estimate
-// follows the first stack only).
-func prepareStacks(ctx context.Context, so *dosemap.Sonication, s Settings, ref dosemap.Geometry, keep *keepBox, clock float64) (*sonData, string, error) {
-	sd, unit, err := prepareSonication(ctx, so, s, ref, keep, clock, nil)
+// clock is the first stack's start on the session clock (each stack keeps
+// its cooling tail for the residual heat estimate; see joinTails);
+// offsets, when not nil, holds the residual heat correction of each stack
+// on its own grid (see stackOffset).
+func prepareStacks(ctx context.Context, so *dosemap.Sonication, s Settings, ref dosemap.Geometry, keep *keepBox, clock float64, offsets [][]float32) (*sonData, string, error) {
+	sd, unit, err := prepareSonication(ctx, so, s, ref, keep, clock, stackOffset(offsets, 0))
 	if err != nil {
 		return nil, "", err
 	}
@@ -155,8 +157,10 @@ func prepareStacks(ctx context.Context, so *dosemap.Sonication, s Settings, ref 
 		sd.notes = append(sd.notes, fmt.Sprintf("its %s stack (series %s) lies outside the analysis region; that stack's dose is not used", orientationName(so.Geometry), so.SeriesUID))
 	}
 	var cnt []uint8
-	for _, st := range so.Stacks {
-		e, u, err := prepareSonication(ctx, st, s, ref, nil, math.NaN(), nil)
+	var stackNoises []*stackNoise    // the further stacks' noise (Monte Carlo)
+	var tails []*dosemap.CoolingTail // the further stacks' cooling tails
+	for n, st := range so.Stacks {
+		e, u, err := prepareSonication(ctx, st, s, ref, keep, stackClock(so, st, clock), stackOffset(offsets, n+1))
 		if err != nil {
 			return nil, "", fmt.Errorf("stack of series %s: %w", st.SeriesUID, err)
 		}
@@ -189,6 +193,8 @@ func prepareStacks(ctx context.Context, so *dosemap.Sonication, s Settings, ref 
 			sd.notes = append(sd.notes, fmt.Sprintf("its %s stack (series %s) lies outside the analysis region; that stack's dose is not used", orientationName(st.Geometry), st.SeriesUID))
 		}
 		sd.notes = append(sd.notes, e.notes...)
+		stackNoises = append(stackNoises, e.noiseOf()...)
+		tails = append(tails, e.tail)
 		if sd.temp == nil || (e.temp != nil && e.temp.peak > sd.temp.peak) {
 			sd.temp = e.temp
 		}
@@ -197,12 +203,8 @@ func prepareStacks(ctx context.Context, so *dosemap.Sonication, s Settings, ref 
 		}
 	}
 	if len(so.Stacks) > 0 {
-		// The noise model of the Monte Carlo follows one series per
-		// sonication; a sonication of several stacks enters without noise.
-		if ts, ok := sd.series.(*dosemap.TemperatureSeries); ok && ts != nil && keep == nil {
-			ts.Release()
-		}
-		sd.series, sd.source = nil, nil
+		sd.stackNoise(stackNoises)
+		sd.tail = joinTails(sd.tail, tails)
 	}
 	measured := false
 	for _, x := range sd.dose {
@@ -399,9 +401,10 @@ func (s *Session) monitor(set Settings, dc *doseCache) {
 	seen := make([]bool, s.fg.coarse.Len())
 	for _, n := range dc.included {
 		sd := s.sons[n]
-		semi, measured, ok := sd.reach.extent(sd.dose, eps, seen, set.FocalLengthMM)
-		sr := SonicationReach{Sonication: sd.number, HottestMM: [3]float64(sd.reach.hot), Measured: measured}
-		ells = append(ells, ellipsoid{sd.reach.hot, semi, ok})
+		dose, rc := dc.doseOf(sd)
+		semi, measured, ok := rc.extent(dose, eps, seen, set.FocalLengthMM)
+		sr := SonicationReach{Sonication: sd.number, HottestMM: [3]float64(rc.hot), Measured: measured}
+		ells = append(ells, ellipsoid{rc.hot, semi, ok})
 		if ok {
 			sr.SemiAxesMM = &semi
 		}
@@ -426,7 +429,7 @@ func (s *Session) monitor(set Settings, dc *doseCache) {
 		if !el.ok {
 			continue
 		}
-		d := s.sons[n].dose
+		d, _ := dc.doseOf(s.sons[n])
 		// The ellipsoid's box in voxel coordinates (its axes are the
 		// grid's).
 		i, j, k := g.Voxel(el.c)

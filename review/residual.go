@@ -59,28 +59,12 @@ func sessionClock(sons []*dosemap.Sonication) ([]float64, string) {
 // region the analysis grid covers); elsewhere it is NaN.
 func (ses *Session) prepareResidual(ctx context.Context, c *dosemap.Case, s Settings, ref dosemap.Geometry, ext []vec3, progress ProgressFunc) error {
 	tails := make([]*dosemap.CoolingTail, len(ses.sons))
-	var masks []struct {
-		g dosemap.Geometry
-		m []bool
-	}
+	var masks []*dosemap.CoolingTail
 	for n, sd := range ses.sons {
 		tails[n], sd.tail = sd.tail, nil
 		sd.cooling = math.NaN()
-		if tails[n] == nil {
-			continue
-		}
-		g := tails[n].Geometry
-		for _, m := range masks {
-			if m.g.SameGrid(g, 0.01) {
-				tails[n].Mask = m.m
-			}
-		}
-		if tails[n].Mask == nil {
-			tails[n].Mask = boxMask(g, ext)
-			masks = append(masks, struct {
-				g dosemap.Geometry
-				m []bool
-			}{g, tails[n].Mask})
+		if tails[n] != nil {
+			maskTails(tails[n], &masks, ext)
 		}
 	}
 	est, err := dosemap.EstimateResidual(tails, dosemap.DefaultResidualOptions())
@@ -95,15 +79,9 @@ func (ses *Session) prepareResidual(ctx context.Context, c *dosemap.Case, s Sett
 		if e.Rise == nil {
 			continue
 		}
-		sd.residual = onGrid(e.Rise, ref)
-		if len(c.Sonications[n].Stacks) > 0 {
-			continue // the correction follows one stack; a sonication of several keeps its measured dose
-		}
-		for _, x := range e.Rise.Data {
-			if x > 0 {
-				todo = append(todo, n)
-				break
-			}
+		sd.residual = residualOnGrid(e, ref)
+		if hiddenHeat(e) {
+			todo = append(todo, n)
 		}
 	}
 	if !s.CarryOver || len(todo) == 0 {
@@ -121,7 +99,7 @@ func (ses *Session) prepareResidual(ctx context.Context, c *dosemap.Case, s Sett
 		go func() {
 			defer func() { <-sem; wg.Done() }()
 			so := c.Sonications[n]
-			redo[a], _, errs[a] = prepareSonication(ctx, so, s, ref, ses.keep, math.NaN(), est[n].Rise.Data)
+			redo[a], errs[a] = withResidual(ctx, so, s, ref, ses.keep, est[n])
 			pmu.Lock()
 			done++
 			progress.report(fmt.Sprintf("dose with residual heat, sonication %d", so.Number), 0.8+0.15*float64(done)/float64(len(todo)))
@@ -136,12 +114,7 @@ func (ses *Session) prepareResidual(ctx context.Context, c *dosemap.Case, s Sett
 		if errs[a] != nil {
 			return fmt.Errorf("sonication %d with residual heat: %w", c.Sonications[n].Number, errs[a])
 		}
-		sd := ses.sons[n]
-		sd.measured, sd.dose, sd.peak = sd.dose, redo[a].dose, redo[a].peak
-		sd.reach = newReach(ref, sd.dose)
-		if redo[a].series != nil {
-			sd.series, sd.source = redo[a].series, redo[a].source
-		}
+		ses.sons[n].takeCorrected(redo[a], ref)
 	}
 	return nil
 }
@@ -293,4 +266,144 @@ func (s *Session) Residual(n int) *dosemap.Volume {
 		}
 	}
 	return nil
+}
+
+// Residual heat of sonications measured on several stacks: each stack
+// keeps its own cooling tail (its own grid and frame times), the tails go
+// to dosemap.EstimateResidual together (CoolingTail.Stacks), and the
+// estimate on each stack's grid is added to that stack's temperatures
+// when the correction is on. On the session's grid the estimate is the
+// mean of the stacks' where they overlap, as the dose is.
+
+// stackClock returns the start of stack st of sonication so on the session
+// clock, from the sonication's (clock) and the two acquisition times; NaN
+// when clock is unknown.
+func stackClock(so, st *dosemap.Sonication, clock float64) float64 {
+	if clock != clock || so.Start.IsZero() || st.Start.IsZero() {
+		return clock
+	}
+	return clock + st.Start.Sub(so.Start).Seconds()
+}
+
+// joinTails returns the first stack's tail carrying the further stacks'
+// (in the order of the sonication's stacks), or nil when a stack has no
+// tail: the estimate must know which stack each of its parts belongs to.
+func joinTails(first *dosemap.CoolingTail, more []*dosemap.CoolingTail) *dosemap.CoolingTail {
+	if first == nil || slices.Contains(more, nil) {
+		return nil
+	}
+	first.Stacks = more
+	return first
+}
+
+// stackOffset returns the residual heat correction of stack n (0: the
+// first), nil for none.
+func stackOffset(offsets [][]float32, n int) []float32 {
+	if n < len(offsets) {
+		return offsets[n]
+	}
+	return nil
+}
+
+// maskTails sets the Mask of tl and its stacks to the voxels of their grids
+// near the patient box ext, sharing the masks of grids met before (masks).
+func maskTails(tl *dosemap.CoolingTail, masks *[]*dosemap.CoolingTail, ext []vec3) {
+	for _, t := range append([]*dosemap.CoolingTail{tl}, tl.Stacks...) {
+		for _, m := range *masks {
+			if m.Geometry.SameGrid(t.Geometry, 0.01) {
+				t.Mask = m.Mask
+				break
+			}
+		}
+		if t.Mask == nil {
+			t.Mask = boxMask(t.Geometry, ext)
+			*masks = append(*masks, t)
+		}
+	}
+}
+
+// residualOnGrid returns the estimate e on grid ref: the first stack's
+// resampled, or with several stacks the mean of those known at each voxel
+// (NaN where none is).
+func residualOnGrid(e dosemap.ResidualEstimate, ref dosemap.Geometry) []float32 {
+	first := onGrid(e.Rise, ref)
+	if len(e.Stacks) == 0 {
+		return first
+	}
+	sum := slices.Clone(first)
+	cnt := make([]uint8, len(sum))
+	for v, x := range sum {
+		if x == x {
+			cnt[v] = 1
+		}
+	}
+	for _, st := range e.Stacks {
+		for v, x := range onGrid(st, ref) {
+			if x != x {
+				continue
+			}
+			if cnt[v] == 0 {
+				sum[v] = 0
+			}
+			sum[v] += x
+			cnt[v]++
+		}
+	}
+	for v, c := range cnt {
+		if c > 1 {
+			sum[v] /= float32(c)
+		}
+	}
+	return sum
+}
+
+// hiddenHeat reports whether e holds a positive rise on any stack.
+func hiddenHeat(e dosemap.ResidualEstimate) bool {
+	pos := func(x float32) bool { return x > 0 }
+	if e.Rise != nil && slices.ContainsFunc(e.Rise.Data, pos) {
+		return true
+	}
+	for _, st := range e.Stacks {
+		if slices.ContainsFunc(st.Data, pos) {
+			return true
+		}
+	}
+	return false
+}
+
+// withResidual prepares so again with the estimate e added to the
+// temperatures of each of its stacks.
+func withResidual(ctx context.Context, so *dosemap.Sonication, s Settings, ref dosemap.Geometry, keep *keepBox, e dosemap.ResidualEstimate) (*sonData, error) {
+	if len(so.Stacks) == 0 {
+		sd, _, err := prepareSonication(ctx, so, s, ref, keep, math.NaN(), e.Rise.Data)
+		return sd, err
+	}
+	offsets := [][]float32{e.Rise.Data}
+	for _, st := range e.Stacks {
+		offsets = append(offsets, st.Data)
+	}
+	sd, _, err := prepareStacks(ctx, so, s, ref, keep, math.NaN(), offsets)
+	return sd, err
+}
+
+// takeCorrected makes sd hold the dose of redo (the same sonication with
+// the residual heat added), keeping the as-measured dose beside it.
+func (sd *sonData) takeCorrected(redo *sonData, ref dosemap.Geometry) {
+	sd.measured, sd.dose, sd.peak = sd.dose, redo.dose, redo.peak
+	sd.measuredReach, sd.reach = sd.reach, newReach(ref, sd.dose)
+	if redo.series != nil {
+		sd.series, sd.source = redo.series, redo.source
+	}
+	if redo.noise != nil {
+		sd.noise = redo.noise
+	}
+}
+
+// doseOf returns the dose of sd that dc sums (the as-measured one beside
+// the residual heat correction) and the reach of that dose.
+func (dc *doseCache) doseOf(sd *sonData) ([]float32, reach) {
+	if dc.asMeasured && sd.measured != nil {
+		return sd.measured, sd.measuredReach
+	}
+	return sd.dose, sd.reach
 }

@@ -117,17 +117,22 @@ type sonData struct {
 	series  any      // thermometry kept for Monte Carlo (engine type), whole or the Session's keep block
 	notes   []string // frames that could not be read
 	source  *dosemap.Sonication
-	reach   reach // extent of the measured heating around the hottest point (monitoring rule)
+	// noise holds, for a sonication measured off the session's grid
+	// (several stacks, or one elsewhere), each stack's thermometry kept
+	// for the Monte Carlo (see mcstacks.go); series is then nil.
+	noise []*stackNoise
+	reach reach // extent of the measured heating around the hottest point (monitoring rule)
 	// peakTemp is the highest temperature of each voxel over the frames
 	// (°C, NaN never valid) on the sonication's own grid; nil for a ready
 	// dose map.
 	peakTemp *dosemap.Volume
 
 	// Residual heat (see residual.go).
-	tail     *dosemap.CoolingTail // last frames, kept until the estimate is made
-	residual []float32            // estimated hidden rise at the baseline, thermometry grid of the session; NaN unknown, nil none
-	cooling  float64              // s since the previous sonication's last frame; NaN unknown
-	measured []float32            // as-measured dose when dose holds the corrected one (CarryOver), else nil
+	tail          *dosemap.CoolingTail // last frames, kept until the estimate is made
+	residual      []float32            // estimated hidden rise at the baseline, thermometry grid of the session; NaN unknown, nil none
+	cooling       float64              // s since the previous sonication's last frame; NaN unknown
+	measured      []float32            // as-measured dose when dose holds the corrected one (CarryOver), else nil
+	measuredReach reach                // the reach of measured
 }
 
 // tempStats are the temperature figures of one sonication.
@@ -192,6 +197,7 @@ type doseCache struct {
 	lc          []float32 // coarse log-dose, NaN where no included sonication measured
 	cnt         []int16   // included sonications that measured each coarse voxel
 	logBase     []float32 // analysis grid log-dose from the measured voxels only
+	asMeasured  bool      // the doses without the residual heat correction (Session.asMeasured)
 }
 
 // Prepare computes the thermometry and dose of every sonication of c and
@@ -299,7 +305,7 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 					errs[n] = err
 					continue
 				}
-				sons[n], units[n], errs[n] = prepareStacks(sctx, so, s, ref, ses.keep, clocks[n])
+				sons[n], units[n], errs[n] = prepareStacks(sctx, so, s, ref, ses.keep, clocks[n], nil)
 				pmu.Lock()
 				done++
 				progress.report(fmt.Sprintf("thermometry and dose, sonication %d", so.Number), 0.8*float64(done)/float64(ns))
@@ -345,6 +351,7 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 		return nil, err
 	}
 	ses.grown.sons, ses.grown.ext, ses.grown.clockNote = slices.Clone(c.Sonications), ext, clockNote
+	ses.grown.common = common
 	ses.warnings = append(ses.warnings, structWarnings...)
 	progress.report("prepared", 1)
 	return ses, nil
@@ -553,7 +560,7 @@ func (s *Session) doseSum(ctx context.Context, set Settings, measured bool) (*do
 		return s.cache, nil
 	}
 	cl := s.fg.coarse.Len()
-	dc := &doseCache{key: key.String(), included: inc, cum: make([]float32, cl), full: make([]bool, cl)}
+	dc := &doseCache{key: key.String(), included: inc, cum: make([]float32, cl), full: make([]bool, cl), asMeasured: measured}
 	run := make([]float32, cl)
 	cnt := make([]int16, cl)
 	for _, n := range inc {

@@ -85,13 +85,19 @@ func prepareSonication(ctx context.Context, so *dosemap.Sonication, s Settings, 
 		sd.temp = temperatureStats(ts.Geometry, ts.Times, ts.Frames, hottest)
 		sd.peakTemp = peakOverFrames(ts)
 		sd.quality = frameQuality(so.Number, ts.Quality)
+		kept := false
 		if ts.Geometry.SameGrid(ref, 0.01) {
 			sd.series, sd.source = ts, so
 			if keep != nil {
 				sd.series = keep.crop(ts)
 			}
+			kept = sd.series == ts
+		} else if nz := newStackNoise(ts, keep); nz != nil {
+			// Off the session's grid: the stack's own noise (see mcstacks.go).
+			sd.noise = []*stackNoise{nz}
+			kept = nz.ts == ts
 		}
-		if sd.series != ts {
+		if !kept {
 			ts.Release() // nothing refers to its frames any more
 		}
 	}
@@ -238,9 +244,10 @@ type mcCache struct {
 	idx    []int       // coarse voxels computed, in column order
 	trials [][]float32 // per trial, cumulative dose at idx
 
-	region   []int     // coarse voxels of the target and margin region
-	lo, hi   []float32 // per region voxel, the dose bounds of boxDose (nil: not pruning)
-	boundsOK bool      // lo, hi computed
+	region   []int      // coarse voxels of the target and margin region
+	stk      *stackTaps // the region on the stacks of sonications off the session's grid (nil: none)
+	lo, hi   []float32  // per region voxel, the dose bounds of boxDose (nil: not pruning)
+	boundsOK bool       // lo, hi computed
 }
 
 // mcSkipSigmas bounds the temperature error of a Monte Carlo frame. The
@@ -311,17 +318,20 @@ func (o *mcOutcome) apply(r *Result, occ []float32) {
 func (s *Session) uncertainty(ctx context.Context, set Settings, dc *doseCache) (*mcOutcome, error) {
 	out := &mcOutcome{}
 	var series []*dosemap.TemperatureSeries
-	var noisy []int // included sonications with thermometry noise
-	var fixed []int // included sonications without thermometry noise
+	var noisy []int   // included sonications with thermometry noise on the session's grid
+	var stacked []int // included sonications with the noise of their own stacks (mcstacks.go)
+	var fixed []int   // included sonications without thermometry noise
 	for _, n := range dc.included {
 		if ts, ok := s.sons[n].series.(*dosemap.TemperatureSeries); ok && ts != nil {
 			series = append(series, ts)
 			noisy = append(noisy, n)
+		} else if len(s.sons[n].noise) > 0 {
+			stacked = append(stacked, n)
 		} else {
 			fixed = append(fixed, n)
 		}
 	}
-	if len(series) == 0 {
+	if len(series) == 0 && len(stacked) == 0 {
 		out.warnings = append(out.warnings, "no included sonication has thermometry with a noise estimate; Monte Carlo uncertainty not computed")
 		return out, nil
 	}
@@ -332,7 +342,7 @@ func (s *Session) uncertainty(ctx context.Context, set Settings, dc *doseCache) 
 		at, ids = s.keep.index, s.keep.ids
 	}
 	if len(fixed) > 0 {
-		out.warnings = append(out.warnings, fmt.Sprintf("%d included sonication(s) enter the Monte Carlo trials without noise (ready dose maps or resampled grids)", len(fixed)))
+		out.warnings = append(out.warnings, fmt.Sprintf("%d included sonication(s) enter the Monte Carlo trials without noise (ready dose maps or temperature maps)", len(fixed)))
 	}
 	g, cg := s.fg.fine, s.fg.coarse
 	cl := cg.Len()
@@ -372,6 +382,10 @@ func (s *Session) uncertainty(ctx context.Context, set Settings, dc *doseCache) 
 		}
 	}
 	region := mc.region
+	m := set.doseModel()
+	if len(stacked) > 0 && mc.stk == nil {
+		mc.stk = s.newStackTaps(region, stacked, m)
+	}
 	// Noiseless trial dose of the region (the noisy and the fixed part,
 	// added as the trials add them), its bounds (threshold-independent,
 	// kept with the trials) and the largest change of its log-dose.
@@ -379,8 +393,14 @@ func (s *Session) uncertainty(ctx context.Context, set Settings, dc *doseCache) 
 	lt := float32(math.Log(set.Threshold))
 	nominal := make([]float32, cl)
 	lnF := make([]float32, cl)
+	nan := float32(math.NaN())
 	prune := !s.exhaustiveMC && len(region) > 0
-	if prune && !mc.boundsOK {
+	if prune && !mc.boundsOK && len(series) == 0 {
+		mc.lo, mc.hi = make([]float32, len(region)), make([]float32, len(region))
+		for q := range region {
+			mc.lo[q], mc.hi[q] = nan, nan
+		}
+	} else if prune && !mc.boundsOK {
 		sr := make([]int, len(region))
 		for q, n := range region {
 			if sr[q] = at(n); sr[q] < 0 {
@@ -395,16 +415,28 @@ func (s *Session) uncertainty(ctx context.Context, set Settings, dc *doseCache) 
 		}()
 		mc.hi = boxDose(series, set.doseModel(), sr, mcSkipSigmas)
 		wg.Wait()
+	}
+	if prune && !mc.boundsOK {
+		if mc.stk != nil {
+			mc.stk.bounds(m, mc.lo, mc.hi)
+		}
 		mc.boundsOK = true
 	}
 	dLo, dHi := mc.lo, mc.hi
 	const certain, lethalAlways = 1, 2
 	state := make([]uint8, cl) // 0 uncertain, else certain (and lethal)
 	need := make([]bool, cl)
-	nan := float32(math.NaN())
 	for q, n := range region {
 		dn := nan
 		for _, sn := range noisy {
+			if y := s.sons[sn].dose[n]; y == y {
+				if dn != dn {
+					dn = 0
+				}
+				dn += y
+			}
+		}
+		for _, sn := range stacked {
 			if y := s.sons[sn].dose[n]; y == y {
 				if dn != dn {
 					dn = 0
@@ -464,31 +496,42 @@ func (s *Session) uncertainty(ctx context.Context, set Settings, dc *doseCache) 
 	for n := range nomFull {
 		nomFull[n] = logDose(0) // finite: cubic weights may be negative
 	}
+	meas := make([]bool, cl) // measured by an included sonication
 	for _, n := range region {
 		nomFull[n] = logDose(nominal[n])
+		meas[n] = nominal[n] == nominal[n]
 	}
-	// Monitored fine target voxels, and which of them are uncertain.
+	// Monitored fine target voxels, the stencil of each (as the analysis
+	// interpolates it, see mcStencil) and which of them are uncertain.
 	var tv []int
 	var mv float64
 	fstate := []uint8{}
+	var sk []int32 // per target voxel, 4 coarse taps (unused ones weigh 0)
+	var sw []float32
 	for v, o := range s.occ {
 		if !(o > 0 && dc.monFine[v]) {
 			continue
 		}
 		tv = append(tv, v)
 		mv += float64(o)
+		var k [4]int
+		var w [4]float32
+		if s.fg.mcStencil(v, meas, &k, &w) {
+			for a := range k {
+				sk, sw = append(sk, int32(k[a])), append(sw, w[a])
+			}
+		} else {
+			sk, sw = append(sk, 0, 0, 0, 0), append(sw, 0, 0, 0, 0)
+		}
 		if !prune {
 			fstate = append(fstate, 0)
 			continue
 		}
-		fi, fj, f := g.IJK(v)
-		st := &s.fg.slices[f]
-		c := s.fg.coarseIndex(fi, fj)
-		nf := s.fg.logAt(nomFull, v)
+		nf := stencilLog(nomFull, sk[len(sk)-4:], sw[len(sw)-4:])
 		var b float32 = 1e-3 // float32 rounding
 		for a := 0; a < 4; a++ {
-			if st.w[a] != 0 {
-				b += float32(math.Abs(float64(st.w[a]))) * lnF[st.k[a]*cs+c]
+			if w[a] != 0 {
+				b += float32(math.Abs(float64(w[a]))) * lnF[k[a]]
 			}
 		}
 		switch {
@@ -499,30 +542,43 @@ func (s *Session) uncertainty(ctx context.Context, set Settings, dc *doseCache) 
 		default:
 			fstate = append(fstate, 0)
 			for a := 0; a < 4; a++ {
-				if st.w[a] != 0 {
-					need[st.k[a]*cs+c] = true
+				if w[a] != 0 {
+					need[k[a]] = true
 				}
 			}
 		}
 	}
 	// Simulate the needed voxels not computed yet.
-	missing := make([]bool, series[0].Geometry.Len())
+	var missing []bool
+	if len(series) > 0 {
+		missing = make([]bool, series[0].Geometry.Len())
+	}
 	var add []int
 	for n, x := range need {
 		if x && mc.slot[n] < 0 {
-			m := at(n)
-			if m < 0 {
-				return nil, fmt.Errorf("internal error: Monte Carlo voxel %d outside the kept thermometry", n)
+			if missing != nil {
+				m := at(n)
+				if m < 0 {
+					return nil, fmt.Errorf("internal error: Monte Carlo voxel %d outside the kept thermometry", n)
+				}
+				missing[m] = true
 			}
-			missing[m] = true
 			add = append(add, n)
 		}
 	}
 	if len(add) > 0 {
-		err := dosemap.MonteCarloVoxels(series, set.doseModel(), missing, ids, set.Trials, set.Seed, func(trial int, dose []float32) {
+		var extra [][]float32 // per trial, the stacked sonications' dose at add
+		var err error
+		if mc.stk != nil {
+			extra, err = mc.stk.trials(ctx, s, set, add)
+		}
+		fill := func(trial int, dose []float32) {
 			row := mc.trials[trial]
-			for _, n := range add {
-				x := dose[at(n)]
+			for a, n := range add {
+				x := nan
+				if dose != nil {
+					x = dose[at(n)]
+				}
 				for _, sn := range fixed {
 					if y := s.sons[sn].dose[n]; y == y {
 						if x != x {
@@ -531,10 +587,22 @@ func (s *Session) uncertainty(ctx context.Context, set Settings, dc *doseCache) 
 						x += y
 					}
 				}
+				if extra != nil {
+					x = nanAdd(x, extra[trial][a])
+				}
 				row = append(row, x)
 			}
 			mc.trials[trial] = row
-		})
+		}
+		switch {
+		case err != nil:
+		case len(series) > 0:
+			err = dosemap.MonteCarloVoxels(series, m, missing, ids, set.Trials, set.Seed, fill)
+		default:
+			for trial := range mc.trials {
+				fill(trial, nil)
+			}
+		}
 		if err != nil {
 			for t := range mc.trials {
 				mc.trials[t] = mc.trials[t][:min(len(mc.trials[t]), len(mc.idx))]
@@ -573,7 +641,7 @@ func (s *Session) uncertainty(ctx context.Context, set Settings, dc *doseCache) 
 		}
 		cov := sure
 		for a, v := range tv {
-			if fstate[a] == 0 && s.fg.logAt(full, v) >= lt {
+			if fstate[a] == 0 && stencilLog(full, sk[4*a:4*a+4], sw[4*a:4*a+4]) >= lt {
 				hits[a]++
 				cov += float64(s.occ[v])
 			}
