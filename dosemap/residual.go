@@ -230,7 +230,13 @@ func (f *coolingFit) meanTable(ts []float64) []float32 {
 // estimate of several stacks, needed within their masks only); spans, when
 // not nil, are only's first and last voxel of each row of g (see
 // maskSpans): the voxels of a row outside its span are not visited.
-func (f *coolingFit) addTo(g Geometry, tl *CoolingTail, rise []float32, corr [][]float32, only []bool, spans []rowSpan) {
+//
+// With acc not nil, rise and corr are not used: at each voxel of only
+// where f is known its rise and changes are added to acc's sums and the
+// voxel counted (acc.sumR, acc.sumC, acc.cnt); unknown voxels are left as
+// they are. The sums are those of adding addTo's values on zeroed
+// buffers, to the last bit (x + 0 is x).
+func (f *coolingFit) addTo(g Geometry, tl *CoolingTail, rise []float32, corr [][]float32, only []bool, spans []rowSpan, acc *stackScratch) {
 	nan := float32(math.NaN())
 	tb := f.meanTable(tl.Baseline)
 	tf := make([][]float32, len(tl.Times))
@@ -239,6 +245,22 @@ func (f *coolingFit) addTo(g Geometry, tl *CoolingTail, rise []float32, corr [][
 	}
 	if f.g.SameGrid(g, 0.01) {
 		for v, a := range f.amp {
+			if acc != nil {
+				if a != a || (only != nil && !only[v]) {
+					continue
+				}
+				acc.cnt[v]++
+				if a == 0 {
+					continue
+				}
+				ti := f.tau[v]
+				b := a * tb[ti]
+				acc.sumR[v] += b
+				for fr := range tf {
+					acc.sumC[fr][v] += a*tf[fr][ti] - b
+				}
+				continue
+			}
 			switch {
 			case a != a:
 				rise[v] = nan
@@ -299,6 +321,9 @@ func (f *coolingFit) addTo(g Geometry, tl *CoolingTail, rise []float32, corr [][
 					n = f.g.Taps(x+fi*a0, y+fi*a1, z+fi*a2, &idx, &w)
 				}
 				if n == 0 {
+					if acc != nil {
+						continue
+					}
 					rise[v] = nan
 					for fr := range tf {
 						corr[fr][v] = nan
@@ -319,6 +344,9 @@ func (f *coolingFit) addTo(g Geometry, tl *CoolingTail, rise []float32, corr [][
 					}
 				}
 				if !known {
+					if acc != nil {
+						continue
+					}
 					rise[v] = nan
 					for fr := range tf {
 						corr[fr][v] = nan
@@ -326,6 +354,14 @@ func (f *coolingFit) addTo(g Geometry, tl *CoolingTail, rise []float32, corr [][
 					continue
 				}
 				at := float32(vals[0])
+				if acc != nil {
+					acc.sumR[v] += at
+					for fr := range tf {
+						acc.sumC[fr][v] += float32(vals[fr+1]) - at
+					}
+					acc.cnt[v]++
+					continue
+				}
 				rise[v] += at
 				for fr := range tf {
 					corr[fr][v] += float32(vals[fr+1]) - at
@@ -446,7 +482,7 @@ func estimateStack(tl *CoolingTail, earlier [][]*coolingFit, broken bool, opt Re
 	var sc *stackScratch
 	for k := 0; k < len(earlier) && !broken; k++ {
 		if len(earlier[k]) == 1 {
-			earlier[k][0].addTo(g, tl, rise, corr, nil, nil)
+			earlier[k][0].addTo(g, tl, rise, corr, nil, nil, nil)
 			continue
 		}
 		if everyVoxel {
@@ -475,8 +511,8 @@ func estimateStack(tl *CoolingTail, earlier [][]*coolingFit, broken bool, opt Re
 // stackScratch holds addStacksTo's buffers, reused over the earlier
 // sonications, and the voxels of the tail's mask (all without one).
 type stackScratch struct {
-	sumR, r []float32
-	sumC, c [][]float32
+	sumR    []float32
+	sumC    [][]float32
 	cnt     []uint8
 	in      []int     // the voxels estimated: the mask's, in index order
 	spans   []rowSpan // the mask's span in each row of the grid; nil without a mask
@@ -504,10 +540,9 @@ func maskSpans(g Geometry, mask []bool) []rowSpan {
 
 func newStackScratch(g Geometry, mask []bool, frames int) *stackScratch {
 	nv := g.Len()
-	sc := &stackScratch{sumR: make([]float32, nv), r: make([]float32, nv), cnt: make([]uint8, nv)}
+	sc := &stackScratch{sumR: make([]float32, nv), cnt: make([]uint8, nv)}
 	for range frames {
 		sc.sumC = append(sc.sumC, make([]float32, nv))
-		sc.c = append(sc.c, make([]float32, nv))
 	}
 	for v := range nv {
 		if mask == nil || mask[v] {
@@ -525,12 +560,13 @@ func newStackScratch(g Geometry, mask []bool, frames int) *stackScratch {
 // of the stacks whose estimate is known there; NaN where none is, and
 // outside tl's Mask (not estimated).
 //
-// Only the voxels of the mask are visited; rise outside it is set NaN
+// Only the voxels of the mask are visited, each fit adding straight to
+// the sums (coolingFit.addTo with acc); rise outside the mask is set NaN
 // once (NaN stays NaN under the later sums), corr is left as it is there.
 // The result is that of visiting every voxel, to the last bit
 // (TestResidualStacksMaskedVisit).
 func (sc *stackScratch) addStacksTo(fits []*coolingFit, g Geometry, tl *CoolingTail, rise []float32, corr [][]float32) {
-	sumR, sumC, cnt, r, c := sc.sumR, sc.sumC, sc.cnt, sc.r, sc.c
+	sumR, sumC, cnt := sc.sumR, sc.sumC, sc.cnt
 	for _, v := range sc.in {
 		sumR[v], cnt[v] = 0, 0
 		for f := range sumC {
@@ -538,24 +574,7 @@ func (sc *stackScratch) addStacksTo(fits []*coolingFit, g Geometry, tl *CoolingT
 		}
 	}
 	for _, fit := range fits {
-		for _, v := range sc.in {
-			r[v] = 0
-			for f := range c {
-				c[f][v] = 0
-			}
-		}
-		fit.addTo(g, tl, r, c, tl.Mask, sc.spans)
-		for _, v := range sc.in {
-			x := r[v]
-			if x != x {
-				continue // unknown
-			}
-			sumR[v] += x
-			for f := range c {
-				sumC[f][v] += c[f][v]
-			}
-			cnt[v]++
-		}
+		fit.addTo(g, tl, nil, nil, tl.Mask, sc.spans, sc)
 	}
 	nan := float32(math.NaN())
 	for _, v := range sc.in {
@@ -594,7 +613,7 @@ func addStacksToAll(fits []*coolingFit, g Geometry, tl *CoolingTail, rise []floa
 		for f := range c {
 			clear(c[f])
 		}
-		fit.addTo(g, tl, r, c, tl.Mask, nil)
+		fit.addTo(g, tl, r, c, tl.Mask, nil, nil)
 		for v, x := range r {
 			if x != x || (tl.Mask != nil && !tl.Mask[v]) {
 				continue // unknown; outside the mask not estimated
