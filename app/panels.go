@@ -16,6 +16,7 @@ import (
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/canvas"
 	"fyne.io/fyne/v2/container"
+	"fyne.io/fyne/v2/theme"
 	"fyne.io/fyne/v2/widget"
 )
 
@@ -206,7 +207,39 @@ func (rw *reviewWindow) sortSonications(col int) {
 	}
 	rw.sonOrder = nil
 	rw.sonTable.UnselectAll()
-	rw.sonTable.Refresh()
+	rw.refreshSonTable()
+}
+
+// refreshSonTable redraws the sonication table after its rows changed.
+// widget.Table lays out its scroll area only when the table itself is
+// resized, so a new number of rows left the area at its old extent: no
+// vertical scroll bar, and rows scrolled to beyond that extent were not
+// drawn at all (the table came up empty after a re-analysis once it had
+// been scrolled). Changing the size by a pixel and back lays the area out
+// again for the rows there are now; the scroll position is kept, clamped
+// to the new rows.
+//
+// The last row is taller by the width of a scroll bar, so that scrolled to
+// the bottom it shows above the horizontal scroll bar.
+func (rw *reviewWindow) refreshSonTable() {
+	t := rw.sonTable
+	if last := t.Length; last != nil {
+		n, _ := last()
+		if n-1 != rw.sonLast {
+			if rw.sonLast >= 0 {
+				t.SetRowHeight(rw.sonLast, rw.sonRowH)
+			}
+			if n > 0 {
+				t.SetRowHeight(n-1, rw.sonRowH+theme.ScrollBarSize()+theme.Padding())
+			}
+			rw.sonLast = n - 1
+		}
+	}
+	t.Refresh()
+	if s := t.Size(); s.Height > 1 && s.Width > 1 {
+		t.Resize(s.SubtractWidthHeight(0, 1))
+		t.Resize(s)
+	}
 }
 
 func (rw *reviewWindow) newSonicationTable() *widget.Table {
@@ -218,14 +251,13 @@ func (rw *reviewWindow) newSonicationTable() *widget.Table {
 			return len(rw.result.SonRows), len(sonColumns)
 		},
 		func() fyne.CanvasObject {
-			l := widget.NewLabel("")
-			l.Truncation = fyne.TextTruncateEllipsis
-			return container.NewStack(widget.NewCheck("", nil), l)
+			// At the top of its cell: the last row is taller (refreshSonTable).
+			return container.NewVBox(container.NewStack(widget.NewCheck("", nil), newTipLabel(rw.tips)))
 		},
 		func(id widget.TableCellID, o fyne.CanvasObject) {
-			st := o.(*fyne.Container)
+			st := o.(*fyne.Container).Objects[0].(*fyne.Container)
 			chk := st.Objects[0].(*widget.Check)
-			l := st.Objects[1].(*widget.Label)
+			l := st.Objects[1].(*tipLabel)
 			if rw.result == nil || id.Row >= len(rw.result.SonRows) {
 				return
 			}
@@ -313,6 +345,7 @@ func (rw *reviewWindow) newSonicationTable() *widget.Table {
 		}
 	}
 	t.ShowHeaderColumn = false
+	rw.sonLast, rw.sonRowH = -1, t.CreateCell().MinSize().Height
 	for n, c := range sonColumns {
 		t.SetColumnWidth(n, c.width)
 	}

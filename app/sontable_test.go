@@ -5,6 +5,10 @@ package main
 import (
 	"os"
 	"path/filepath"
+	"reflect"
+	"slices"
+	"sort"
+	"strconv"
 	"strings"
 	"testing"
 	"time"
@@ -13,6 +17,9 @@ import (
 	"dosecover/review"
 	"dosecover/review/view"
 
+	"fyne.io/fyne/v2"
+	"fyne.io/fyne/v2/test"
+	"fyne.io/fyne/v2/theme"
 	"fyne.io/fyne/v2/widget"
 )
 
@@ -41,6 +48,17 @@ func sonicationTableSteps(t *testing.T, rw *reviewWindow) {
 		if rows != want || want == 0 {
 			t.Fatalf("after %s: the table has %d rows, want %d", step, rows, want)
 		}
+		// What is drawn, read without refreshing anything: the first
+		// and, scrolled down, the last row are on screen, above the
+		// horizontal scroll bar.
+		rw.sonTable.ScrollToTop()
+		if got := shownSonications(t, rw); !slices.Contains(got, rw.result.SonRows[rw.sonIndex(0)].Number) {
+			t.Fatalf("after %s, scrolled to the top: rows of sonications %v on screen, want the first row's", step, got)
+		}
+		rw.sonTable.ScrollToBottom()
+		if got := shownSonications(t, rw); !slices.Contains(got, rw.result.SonRows[rw.sonIndex(want-1)].Number) {
+			t.Fatalf("after %s, scrolled to the bottom: rows of sonications %v on screen, want the last row's", step, got)
+		}
 		if n := len(checksOf(rw.sonTable)); n == 0 {
 			t.Fatalf("after %s: no row drawn", step)
 		}
@@ -65,6 +83,54 @@ func sonicationTableSteps(t *testing.T, rw *reviewWindow) {
 	rw.setExcluded(2, false)
 	waitJobs(t, rw, mark, 1)
 	check("taking sonication 2 back")
+}
+
+// shownSonications returns the numbers (column "no.") of the sonication
+// rows drawn whole inside the table's scroll area and above its horizontal
+// scroll bar, as the table's renderers hold them (nothing is refreshed).
+// widget.Table keeps its cells in a scroll area: a cell is seen only where
+// it lies inside both the area's viewport and the area's content.
+func shownSonications(t *testing.T, rw *reviewWindow) []int {
+	t.Helper()
+	objs := test.WidgetRenderer(rw.sonTable).Objects()
+	scroll := objs[len(objs)-1]
+	sv := reflect.ValueOf(scroll).Elem()
+	content, ok := sv.FieldByName("Content").Interface().(fyne.Widget)
+	if !ok {
+		t.Fatal("the table's scroll area has no content")
+	}
+	off := sv.FieldByName("Offset").Interface().(fyne.Position)
+	// The viewport in content coordinates, less the scroll bar.
+	top, bottom := off.Y, off.Y+scroll.Size().Height-theme.ScrollBarSize()
+	// Each cell: a box holding the check box and the label; the "no."
+	// column is the leftmost whose label shows.
+	colX := float32(-1)
+	var cells []*fyne.Container
+	for _, o := range test.WidgetRenderer(content).Objects() {
+		c, ok := o.(*fyne.Container)
+		if !ok || !c.Visible() || len(c.Objects) != 1 {
+			continue
+		}
+		if l := c.Objects[0].(*fyne.Container).Objects[1].(*tipLabel); l.Visible() {
+			if colX < 0 || c.Position().X < colX {
+				colX = c.Position().X
+			}
+			cells = append(cells, c)
+		}
+	}
+	var out []int
+	for _, c := range cells {
+		l := c.Objects[0].(*fyne.Container).Objects[1].(*tipLabel)
+		y0, y1 := c.Position().Y, c.Position().Y+l.Size().Height
+		if c.Position().X != colX || y0 < top || y1 > bottom || y1 > content.Size().Height {
+			continue
+		}
+		if n, err := strconv.Atoi(l.Text); err == nil {
+			out = append(out, n)
+		}
+	}
+	sort.Ints(out)
+	return out
 }
 
 // TestExportNamesNeverOverwrite: an export is named by the case and the

@@ -88,6 +88,12 @@ type reviewWindow struct {
 	probe    *plotView
 	probeMsg *widget.Label
 	loadInfo *widget.Label
+	tips     *tipLayer // full text of cut labels on hover
+
+	// The sonication table's last row, made taller so that it clears the
+	// horizontal scroll bar (-1: none), and the height of the other rows.
+	sonLast int
+	sonRowH float32
 }
 
 const (
@@ -211,6 +217,7 @@ func (rw *reviewWindow) build() {
 	)
 	legend := legendRow()
 
+	rw.tips = newTipLayer()
 	rw.sonTable = rw.newSonicationTable()
 	rw.probe = newPlotView()
 	rw.probeMsg = widget.NewLabel("Click a point on an image to pin it and plot its temperature over the session.")
@@ -251,7 +258,7 @@ func (rw *reviewWindow) build() {
 	statusBar := container.NewBorder(nil, nil, nil,
 		container.NewHBox(container.NewGridWrap(fyne.NewSize(200, 30), rw.progress), rw.cancelBtn),
 		container.NewGridWithColumns(2, rw.hover, rw.status))
-	rw.win.SetContent(container.NewBorder(header, statusBar, nil, nil, main))
+	rw.win.SetContent(container.NewStack(container.NewBorder(header, statusBar, nil, nil, main), rw.tips.layer))
 	rw.showNotice("Open a case folder (File ▸ Open folder…, or drop a folder on this window).")
 }
 
@@ -358,7 +365,7 @@ func (rw *reviewWindow) setTeaching(on bool) {
 	rw.updateTitle()
 	rw.showLoadInfo()
 	rw.metrics.update()
-	rw.sonTable.Refresh()
+	rw.refreshSonTable()
 	rw.win.SetMainMenu(rw.mainMenu())
 }
 
