@@ -394,6 +394,7 @@ func newMetricsPanel(rw *reviewWindow) *metricsPanel {
 	m := &metricsPanel{rw: rw}
 	m.facts = widget.NewLabel("")
 	m.facts.TextStyle.Monospace = true
+	m.facts.Wrapping = fyne.TextWrapWord
 	m.used = widget.NewLabel("")
 	m.used.Wrapping = fyne.TextWrapWord
 	m.avoid = widget.NewLabel("")

@@ -305,3 +305,74 @@ func TestPinnedPointPlots(t *testing.T) {
 		t.Errorf("%d pixels of the dose curve in the lower plot, want a curve", lower)
 	}
 }
+
+// TestSonicationLabelOnHover: a label cut short in the table shows its
+// full text while the pointer rests on it, below the label and inside the
+// window; a label that fits shows none, and leaving hides the tip.
+func TestSonicationLabelOnHover(t *testing.T) {
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	long := "Sonication 1, posterior edge of the target near the capsule, second pass at reduced power"
+	rw.result.SonRows[0].Label = long
+	rw.refreshSonTable()
+	var cut, short *tipLabel
+	var walk func(o fyne.CanvasObject)
+	walk = func(o fyne.CanvasObject) {
+		switch w := o.(type) {
+		case *tipLabel:
+			if w.Visible() && w.Text == long {
+				cut = w
+			}
+			if w.Visible() && w.Text == "2" {
+				short = w
+			}
+		case *fyne.Container:
+			for _, ch := range w.Objects {
+				walk(ch)
+			}
+		case fyne.Widget:
+			for _, ch := range test.WidgetRenderer(w).Objects() {
+				walk(ch)
+			}
+		}
+	}
+	walk(rw.sonTable)
+	if cut == nil || short == nil {
+		t.Fatal("the table does not show the long label and the number 2")
+	}
+	if !cut.cut() || short.cut() {
+		t.Fatalf("cut: long label %v, number %v; want true, false", cut.cut(), short.cut())
+	}
+	d := fyne.CurrentApp().Driver()
+	c := rw.win.Canvas()
+	centre := func(o fyne.CanvasObject) fyne.Position {
+		return d.AbsolutePositionForObject(o).Add(fyne.NewPos(o.Size().Width/2, o.Size().Height/2))
+	}
+	test.MoveMouse(c, centre(cut))
+	if got := rw.tips.shown(); got != long {
+		t.Fatalf("hovering the cut label shows %q, want the full label", got)
+	}
+	box := rw.tips.box
+	at, lab := d.AbsolutePositionForObject(box), d.AbsolutePositionForObject(cut)
+	win := c.Size()
+	if at.X < 0 || at.Y < 0 || at.X+box.Size().Width > win.Width || at.Y+box.Size().Height > win.Height {
+		t.Errorf("tip at %v size %v leaves the %v window", at, box.Size(), win)
+	}
+	if at.Y != lab.Y+cut.Size().Height && at.Y+box.Size().Height != lab.Y {
+		t.Errorf("tip at y %g, label %g–%g: want just below or just above it", at.Y, lab.Y, lab.Y+cut.Size().Height)
+	}
+	if box.Size().Width < fyne.MeasureText(long, theme.TextSize(), fyne.TextStyle{}).Width {
+		if rw.tips.text.MinSize().Height < 2*cut.MinSize().Height-2*theme.InnerPadding() {
+			t.Errorf("tip %v narrower than the text and not wrapped", box.Size())
+		}
+	}
+	test.MoveMouse(c, centre(short))
+	if got := rw.tips.shown(); got != "" {
+		t.Errorf("hovering a label that fits shows %q, want no tip", got)
+	}
+	test.MoveMouse(c, centre(cut))
+	test.MoveMouse(c, fyne.NewPos(5, 5))
+	if got := rw.tips.shown(); got != "" {
+		t.Errorf("after the pointer left, the tip %q stays", got)
+	}
+}

@@ -26,6 +26,14 @@ func newTipLabel(tips *tipLayer) *tipLabel {
 	return l
 }
 
+// tipText returns a label of text, cut where it does not fit, its full
+// text on hover.
+func tipText(tips *tipLayer, text string) *tipLabel {
+	l := newTipLabel(tips)
+	l.SetText(text)
+	return l
+}
+
 // cut reports whether the label's text is wider than the label.
 func (l *tipLabel) cut() bool {
 	if l.Text == "" || !l.Visible() {
