@@ -126,7 +126,7 @@ var sonColumns = []struct {
 	title string
 	width float32
 }{
-	{"use", 48}, {"no.", 40}, {"time", 62}, {"label", 190}, {"peak °C", 70}, {"peak dose", 90}, {"lethal added mL", 124},
+	{"use", 48}, {"no.", 40}, {"time", 62}, {"label", 214}, {"peak °C", 70}, {"peak dose", 90}, {"lethal added mL", 124},
 	{"coverage added", 118}, {"outside margin added mL", 184}, {"cooled s", 76}, {"residual °C", 96},
 	{"quality and notes", 560},
 }
@@ -466,19 +466,19 @@ func (m *metricsPanel) update() {
 		name = "target"
 	}
 	lines := []string{
-		fmt.Sprintf("%-24s %s (%.2f mL)", "Target", name, r.TargetVolumeML),
-		fmt.Sprintf("%-24s %s", "Covered (≥ threshold)", pct(r.CoveredFraction)),
-		fmt.Sprintf("%-24s %s", "  noise band p05–p95", band),
-		fmt.Sprintf("%-24s %s", "Not monitored", pct(r.NotMonitoredFraction)),
-		fmt.Sprintf("%-24s %d (%.3f mL)", "Holes", len(r.HoleRows), sumML(r.HoleRows)),
-		fmt.Sprintf("%-24s %d (%.3f mL)", "Lethal outside margin", len(r.SpillRows), r.OutsideMarginLethalML),
-		fmt.Sprintf("%-24s %s / %s / %s", "D98 / D50 / D2", fmtDose(ptr(r.D98)), fmtDose(ptr(r.D50)), fmtDose(ptr(r.D2))),
-		fmt.Sprintf("%-24s %s", "  dose unit", r.Unit),
-		fmt.Sprintf("%-24s %s %s", "Threshold", fmtNum(r.Threshold), r.Unit),
-		fmt.Sprintf("%-24s %g mm", "Margin", r.MarginMM),
+		fmt.Sprintf("%-22s %s (%.2f mL)", "Target", name, r.TargetVolumeML),
+		fmt.Sprintf("%-22s %s", "Covered (≥ threshold)", pct(r.CoveredFraction)),
+		fmt.Sprintf("%-22s %s", "  noise band p05–p95", band),
+		fmt.Sprintf("%-22s %s", "Not monitored", pct(r.NotMonitoredFraction)),
+		fmt.Sprintf("%-22s %d (%.3f mL)", "Holes", len(r.HoleRows), sumML(r.HoleRows)),
+		fmt.Sprintf("%-22s %d (%.3f mL)", "Lethal outside margin", len(r.SpillRows), r.OutsideMarginLethalML),
+		fmt.Sprintf("%-22s %s / %s / %s", "D98 / D50 / D2", fmtDose(ptr(r.D98)), fmtDose(ptr(r.D50)), fmtDose(ptr(r.D2))),
+		fmt.Sprintf("%-22s %s", "  dose unit", r.Unit),
+		fmt.Sprintf("%-22s %s %s", "Threshold", fmtNum(r.Threshold), r.Unit),
+		fmt.Sprintf("%-22s %g mm", "Margin", r.MarginMM),
 	}
 	if ex := m.rw.settings.Excluded; len(ex) > 0 {
-		lines = append(lines, fmt.Sprintf("%-24s %v", "Sonications left out", ex))
+		lines = append(lines, fmt.Sprintf("%-22s %v", "Sonications left out", ex))
 	}
 	m.facts.SetText(strings.Join(lines, "\n"))
 	if len(r.AvoidRows) == 0 {

@@ -376,3 +376,28 @@ func TestSonicationLabelOnHover(t *testing.T) {
 		t.Errorf("after the pointer left, the tip %q stays", got)
 	}
 }
+
+// TestPinnedPlotTaller: while the pinned point's tab is open its plots
+// (temperature above, dose below) get about half the column, at least
+// 1.4 times the height the tab had before; the other tabs give the room
+// back to the images.
+func TestPinnedPlotTaller(t *testing.T) {
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	tabs := rw.bottomTabs
+	// One round first: the rows of the display controls settle at the
+	// first layout of the column.
+	tabs.SelectIndex(1)
+	tabs.SelectIndex(0)
+	before := tabs.Size().Height
+	views := rw.viewers[0].Size().Height
+	tabs.SelectIndex(1)
+	plot := rw.probe.raster.Size().Height
+	if tabs.Size().Height < 1.4*before || plot < 300 {
+		t.Errorf("pinned point tab %g px high (was %g), plot %g px; want ≥ 1.4× and a plot ≥ 300 px", tabs.Size().Height, before, plot)
+	}
+	tabs.SelectIndex(0)
+	if got := rw.viewers[0].Size().Height; got != views {
+		t.Errorf("back on the sonications the left view is %g px high, was %g", got, views)
+	}
+}
