@@ -3,8 +3,12 @@
 package main
 
 import (
+	"strings"
+
 	"fyne.io/fyne/v2"
+	"fyne.io/fyne/v2/container"
 	"fyne.io/fyne/v2/theme"
+	"fyne.io/fyne/v2/widget"
 )
 
 // flowLayout places objects left to right at their minimum size and
@@ -119,4 +123,69 @@ func (headerLayout) Layout(objects []fyne.CanvasObject, size fyne.Size) {
 	title.Resize(fyne.NewSize(tw, size.Height))
 	id.Move(fyne.NewPos(tw, 0))
 	id.Resize(fyne.NewSize(max(0, size.Width-tw), size.Height))
+}
+
+// Column widths of the settings dialog: every field of every section in
+// one column, the labels in one before it and the units in one after it.
+const (
+	settingsLabelW = 232
+	settingsUnitW  = 150
+)
+
+// settingsForm lays out form items in the settings dialog's columns: the
+// label, the field, and the unit, taken from a trailing "(…)" of the
+// item's text ("Safety margin (mm)": label "Safety margin", unit "mm").
+// units holds the unit label of each item by its label.
+func settingsForm(units map[string]*widget.Label, items ...*widget.FormItem) *fyne.Container {
+	var objs []fyne.CanvasObject
+	for _, it := range items {
+		name, unit := it.Text, ""
+		if strings.HasSuffix(name, ")") {
+			if i := strings.LastIndex(name, " ("); i > 0 {
+				name, unit = name[:i], name[i+2:len(name)-1]
+			}
+		}
+		l := widget.NewLabelWithStyle(name, fyne.TextAlignTrailing, fyne.TextStyle{Bold: true})
+		l.Truncation = fyne.TextTruncateEllipsis
+		u := widget.NewLabel(unit)
+		u.Truncation = fyne.TextTruncateEllipsis
+		if units != nil {
+			units[name] = u
+		}
+		objs = append(objs, l, it.Widget, u)
+	}
+	return container.New(settingsColumns{}, objs...)
+}
+
+// settingsColumns places objects three by three in rows: label, field,
+// unit, each row as tall as its tallest object.
+type settingsColumns struct{}
+
+func (settingsColumns) MinSize(objects []fyne.CanvasObject) fyne.Size {
+	pad := theme.Padding()
+	var h, fieldW float32
+	for i := 0; i+2 < len(objects); i += 3 {
+		if i > 0 {
+			h += pad
+		}
+		h += max(objects[i].MinSize().Height, objects[i+1].MinSize().Height, objects[i+2].MinSize().Height)
+		fieldW = max(fieldW, objects[i+1].MinSize().Width)
+	}
+	return fyne.NewSize(settingsLabelW+settingsUnitW+max(fieldW, 120)+2*pad, h)
+}
+
+func (settingsColumns) Layout(objects []fyne.CanvasObject, size fyne.Size) {
+	pad := theme.Padding()
+	fieldW := max(0, size.Width-settingsLabelW-settingsUnitW-2*pad)
+	var y float32
+	for i := 0; i+2 < len(objects); i += 3 {
+		h := max(objects[i].MinSize().Height, objects[i+1].MinSize().Height, objects[i+2].MinSize().Height)
+		objects[i].Move(fyne.NewPos(0, y))
+		objects[i].Resize(fyne.NewSize(settingsLabelW, h))
+		objects[i+1].Move(fyne.NewPos(settingsLabelW+pad, y))
+		objects[i+1].Resize(fyne.NewSize(fieldW, h))
+		objects[i+2].Move(fyne.NewPos(settingsLabelW+2*pad+fieldW, y))
+		objects[i+2].Resize(fyne.NewSize(settingsUnitW, h))
+		y += h + pad
+	}
 }

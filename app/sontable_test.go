@@ -401,3 +401,135 @@ func TestPinnedPlotTaller(t *testing.T) {
 		t.Errorf("back on the sonications the left view is %g px high, was %g", got, views)
 	}
 }
+
+// TestSettingsDialogColumns: the settings dialog shows every field of
+// every section in one column, labels in one before it, and each number
+// with its unit; it says whose values it shows; the threshold's unit
+// follows the dose model.
+func TestSettingsDialogColumns(t *testing.T) {
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	rw.openSettings()
+	top := rw.win.Canvas().Overlays().Top()
+	if top == nil {
+		t.Fatal("no settings dialog")
+	}
+	var grids []*fyne.Container
+	var texts []string
+	var model *widget.Select
+	var walk func(o fyne.CanvasObject)
+	walk = func(o fyne.CanvasObject) {
+		switch w := o.(type) {
+		case *fyne.Container:
+			if _, ok := w.Layout.(settingsColumns); ok && w.Visible() {
+				grids = append(grids, w)
+			}
+			for _, ch := range w.Objects {
+				walk(ch)
+			}
+		case *widget.Label:
+			texts = append(texts, w.Text)
+		case *widget.Select:
+			if len(w.Options) == 2 && strings.HasPrefix(w.Options[1], "Arrhenius") {
+				model = w
+			}
+		case fyne.Widget:
+			for _, ch := range test.WidgetRenderer(w).Objects() {
+				walk(ch)
+			}
+		}
+	}
+	walk(top)
+	if len(grids) < 3 {
+		t.Fatalf("%d sections in columns, want dose, model parameters and thermometry", len(grids))
+	}
+	if !strings.Contains(strings.Join(texts, "\n"), "These settings apply to this case") {
+		t.Error("the dialog does not say whose settings it shows")
+	}
+	d := fyne.CurrentApp().Driver()
+	fieldX, labelX, entries := float32(-1), float32(-1), 0
+	unitOf := map[string]string{}
+	for _, g := range grids {
+		for i := 0; i+2 < len(g.Objects); i += 3 {
+			label, field, unit := g.Objects[i].(*widget.Label), g.Objects[i+1], g.Objects[i+2].(*widget.Label)
+			fx, lx := d.AbsolutePositionForObject(field).X, d.AbsolutePositionForObject(label).X
+			if fieldX < 0 {
+				fieldX, labelX = fx, lx
+			}
+			if fx != fieldX || lx != labelX {
+				t.Errorf("%q: label at x %g, field at x %g; the first row has %g, %g", label.Text, lx, fx, labelX, fieldX)
+			}
+			if _, ok := field.(*widget.Entry); ok {
+				entries++
+				if unit.Text == "" {
+					t.Errorf("%q has no unit", label.Text)
+				}
+			}
+			unitOf[label.Text] = unit.Text
+		}
+	}
+	if entries < 12 {
+		t.Errorf("%d number fields found, want at least 12", entries)
+	}
+	if unitOf["Safety margin"] != "mm" || unitOf["Lethal threshold"] != "CEM43 min" {
+		t.Errorf("units %v", unitOf)
+	}
+	model.SetSelectedIndex(1)
+	unitOf = map[string]string{}
+	for _, g := range grids {
+		for i := 0; i+2 < len(g.Objects); i += 3 {
+			unitOf[g.Objects[i].(*widget.Label).Text] = g.Objects[i+2].(*widget.Label).Text
+		}
+	}
+	if u := unitOf["Lethal threshold"]; !strings.HasPrefix(u, "Ω") {
+		t.Errorf("with the Arrhenius model the threshold's unit is %q, want Ω", u)
+	}
+}
+
+// TestLongCaseLabelHeader: a long case label is cut with an ellipsis
+// beside the identity line instead of being drawn over it, and shows in
+// full on hover.
+func TestLongCaseLabelHeader(t *testing.T) {
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	rw.loaded.Case.Label = "Fictitious liver phantom, second session, posterior segment after repositioning of the transducer"
+	rw.updateTitle()
+	rw.win.Content().Refresh()
+	for _, width := range []float32{1280, 1600, 1920} {
+		rw.win.Resize(fyne.NewSize(width, 940))
+		d := fyne.CurrentApp().Driver()
+		tx, ix := d.AbsolutePositionForObject(rw.title).X, d.AbsolutePositionForObject(rw.identity).X
+		if tx+rw.title.Size().Width > ix+0.5 {
+			t.Errorf("%g px: title ends at x %g, identity starts at %g", width, tx+rw.title.Size().Width, ix)
+		}
+		if !rw.title.cut() || rw.title.Size().Width < 100 {
+			t.Errorf("%g px: title %g px wide, cut %v; want cut and readable", width, rw.title.Size().Width, rw.title.cut())
+		}
+		if e, sx := ix+rw.identity.Size().Width, d.AbsolutePositionForObject(rw.signState).X; e > sx+0.5 {
+			t.Errorf("%g px: identity ends at %g over the sign-off state", width, e)
+		}
+		c := rw.win.Canvas()
+		test.MoveMouse(c, d.AbsolutePositionForObject(rw.title).AddXY(20, 10))
+		if got := rw.tips.shown(); got != rw.loaded.Case.Label {
+			t.Errorf("%g px: hovering the title shows %q", width, got)
+		}
+		test.MoveMouse(c, fyne.NewPos(width/2, 500))
+	}
+}
+
+// TestWindowFitsNarrowScreens: the window's content needs no more than
+// 1280 px of width, so nothing is cut at the right edge of a 1280, 1600
+// or 1920 px wide window.
+func TestWindowFitsNarrowScreens(t *testing.T) {
+	rw := testWindow(t)
+	openDemoCase(t, rw)
+	for _, width := range []float32{1280, 1600, 1920} {
+		rw.win.Resize(fyne.NewSize(width, 940))
+		if m := rw.win.Content().MinSize(); m.Width > 1280-2*theme.Padding() {
+			t.Errorf("at %g px the content needs %g px", width, m.Width)
+		}
+		if got := rw.win.Canvas().Size().Width; got != width {
+			t.Errorf("window asked %g px wide is %g", width, got)
+		}
+	}
+}
