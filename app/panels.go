@@ -223,9 +223,10 @@ func (rw *reviewWindow) sortSonications(col int) {
 // the bottom it shows above the horizontal scroll bar.
 func (rw *reviewWindow) refreshSonTable() {
 	t := rw.sonTable
+	moved := false
 	if last := t.Length; last != nil {
 		n, _ := last()
-		if n-1 != rw.sonLast {
+		if moved = n-1 != rw.sonLast; moved {
 			if rw.sonLast >= 0 {
 				t.SetRowHeight(rw.sonLast, rw.sonRowH)
 			}
@@ -239,6 +240,14 @@ func (rw *reviewWindow) refreshSonTable() {
 	if s := t.Size(); s.Height > 1 && s.Width > 1 {
 		t.Resize(s.SubtractWidthHeight(0, 1))
 		t.Resize(s)
+	}
+	if moved {
+		// Other rows (another case): start at the top left. This also
+		// keeps the table's own record of the scroll position in step
+		// with its scroll area, which resets to the origin without
+		// telling the table when all rows fit.
+		t.ScrollToTop()
+		t.ScrollToLeading()
 	}
 }
 

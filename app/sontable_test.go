@@ -522,7 +522,7 @@ func TestLongCaseLabelHeader(t *testing.T) {
 // or 1920 px wide window.
 func TestWindowFitsNarrowScreens(t *testing.T) {
 	rw := testWindow(t)
-	openDemoCase(t, rw)
+	openSynthetic(t, rw)
 	for _, width := range []float32{1280, 1600, 1920} {
 		rw.win.Resize(fyne.NewSize(width, 940))
 		if m := rw.win.Content().MinSize(); m.Width > 1280-2*theme.Padding() {
@@ -531,5 +531,20 @@ func TestWindowFitsNarrowScreens(t *testing.T) {
 		if got := rw.win.Canvas().Size().Width; got != width {
 			t.Errorf("window asked %g px wide is %g", width, got)
 		}
+	}
+}
+
+// TestSonicationTableNextCase: a case with fewer sonications opened after
+// one scrolled to its end shows all its rows from the top.
+func TestSonicationTableNextCase(t *testing.T) {
+	rw := testWindow(t)
+	openDemoCase(t, rw)
+	rw.sonTable.ScrollToBottom()
+	if got := shownSonications(t, rw); len(got) == 0 || got[len(got)-1] != len(rw.result.SonRows) {
+		t.Fatalf("demo scrolled to the bottom shows sonications %v", got)
+	}
+	openSynthetic(t, rw)
+	if got := shownSonications(t, rw); !slices.Equal(got, []int{1, 2, 3}) {
+		t.Errorf("the next case shows sonications %v, want 1, 2, 3", got)
 	}
 }
