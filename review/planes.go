@@ -151,6 +151,9 @@ func prepareStacks(ctx context.Context, so *dosemap.Sonication, s Settings, ref 
 	if err != nil {
 		return nil, "", err
 	}
+	if len(so.Stacks) > 0 && !slices.ContainsFunc(sd.dose, func(x float32) bool { return x == x }) {
+		sd.notes = append(sd.notes, fmt.Sprintf("its %s stack (series %s) lies outside the analysis region; that stack's dose is not used", orientationName(so.Geometry), so.SeriesUID))
+	}
 	var cnt []uint8
 	for _, st := range so.Stacks {
 		e, u, err := prepareSonication(ctx, st, s, ref, nil, math.NaN(), nil)

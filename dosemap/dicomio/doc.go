@@ -30,6 +30,10 @@
 //
 // # Frames, slices and times
 //
+// The frames of a series are split into stacks (sets of parallel
+// slices): by StackID (0020,9056) when every frame of an enhanced image
+// carries one (InStackPositionNumber (0020,9057) is checked against the
+// positions), else by ImageOrientationPatient; see splitStacks.
 // Time points come from TemporalPositionIdentifier (0020,0100) or, in
 // enhanced images, TemporalPositionIndex (0020,9128) when every frame has
 // one; otherwise the frames at each slice position are ordered by time and

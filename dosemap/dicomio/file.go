@@ -44,6 +44,8 @@ var (
 	tagPlanePosition         = tag.Tag{Group: 0x0020, Element: 0x9113}
 	tagPlaneOrientation      = tag.Tag{Group: 0x0020, Element: 0x9116}
 	tagFrameContent          = tag.Tag{Group: 0x0020, Element: 0x9111}
+	tagStackID               = tag.Tag{Group: 0x0020, Element: 0x9056}
+	tagInStackPosition       = tag.Tag{Group: 0x0020, Element: 0x9057}
 	tagPixelMeasures         = tag.Tag{Group: 0x0028, Element: 0x9110}
 	tagGridFrameOffset       = tag.Tag{Group: 0x3004, Element: 0x000C}
 	tagFloatPixelData        = tag.Tag{Group: 0x7FE0, Element: 0x0008}
@@ -120,7 +122,9 @@ type frameMeta struct {
 	Row, Col    dosemap.Vec3 // ImageOrientationPatient triplets
 	Spacing     [2]float64   // PixelSpacing: row spacing, column spacing (mm)
 	Thickness   float64
-	TemporalPos int // TemporalPositionIdentifier / TemporalPositionIndex; 0 none
+	TemporalPos int    // TemporalPositionIdentifier / TemporalPositionIndex; 0 none
+	StackID     string // StackID (0020,9056) of the Frame Content; "" none
+	InStackPos  int    // InStackPositionNumber (0020,9057); 0 none
 	Time        clockTime
 	Component   string // "P", "M", "R", "I" or ""
 	Slope       float64
@@ -654,6 +658,12 @@ func readGroups(g elems, f *frameMeta) {
 	if it := g.first(tagFrameContent); it != nil {
 		if v, ok := it.int(tagTemporalPositionIndex); ok {
 			f.TemporalPos = v
+		}
+		if v := it.str(tagStackID); v != "" {
+			f.StackID = v
+		}
+		if v, ok := it.int(tagInStackPosition); ok && v > 0 {
+			f.InStackPos = v
 		}
 		if t, ok := parseDT(it.str(tagFrameAcqDateTime)); ok {
 			f.Time = t

@@ -232,8 +232,12 @@ func (inv *Inventory) WriteText(w io.Writer) error {
 		}
 		b.WriteString("\n")
 		for n, st := range s.Stacks {
-			fmt.Fprintf(&b, "      stack %d: %s, %d slices, %d frames, centre (%.1f, %.1f, %.1f) mm, series %q\n",
-				n+1, st.Orientation, st.Slices, st.Frames, st.Center[0], st.Center[1], st.Center[2], st.Description)
+			id := ""
+			if st.StackID != "" {
+				id = fmt.Sprintf(", StackID %q", st.StackID)
+			}
+			fmt.Fprintf(&b, "      stack %d: %s, %d slices, %d frames, centre (%.1f, %.1f, %.1f) mm, series %q%s\n",
+				n+1, st.Orientation, st.Slices, st.Frames, st.Center[0], st.Center[1], st.Center[2], st.Description, id)
 		}
 	}
 	fmt.Fprintf(&b, "\nStructures (%d):\n", len(inv.Structures))

@@ -358,6 +358,7 @@ func (cr *caseReader) assemble(paths []string, infos []*fileInfo, errs []error) 
 		return cr.series[a].info.UID < cr.series[b].info.UID
 	})
 	for _, s := range cr.series {
+		cr.oneFrameOfReference(s)
 		cr.classify(s)
 	}
 	cr.chooseAnatomy()
@@ -444,6 +445,15 @@ func (cr *caseReader) classify(s *series) {
 		}
 		return st
 	}
+	// split splits the phase or magnitude frames into stacks, naming the
+	// series in any problem with their StackIDs.
+	split := func(fr []frameRef, kind string) ([][]frameRef, []string) {
+		groups, ids, problems := splitStacks(fr)
+		for _, p := range problems {
+			inv.problem("series %s (%s frames): %s", s.name(), kind, p)
+		}
+		return groups, ids
+	}
 	setInfo := func(st *stack) {
 		s.info.Geometry = st.Geometry
 		s.info.TimePoints = len(st.Grid)
@@ -476,18 +486,23 @@ func (cr *caseReader) classify(s *series) {
 		if len(other) > 0 {
 			inv.problem("series %s: %d frames that are neither phase nor magnitude are ignored", s.name(), len(other))
 		}
-		groups := splitOrientations(pf)
+		groups, ids := split(pf, "phase")
 		if s.phase = build(groups[0]); s.phase == nil {
 			s.info.Role = RoleOther
 			return
 		}
-		for _, g := range groups[1:] {
+		s.phase.StackID = ids[0]
+		for n, g := range groups[1:] {
 			if st := build(g); st != nil {
+				st.StackID = ids[n+1]
 				s.more = append(s.more, st)
 			}
 		}
 		if len(groups) > 1 {
 			s.info.Note = fmt.Sprintf("%d stacks in different orientations, read as planes acquired together", len(groups))
+			if ids[0] != "" {
+				s.info.Note = fmt.Sprintf("%d stacks (StackID %s), read as planes acquired together", len(groups), strings.Join(ids, ", "))
+			}
 		}
 		setInfo(s.phase)
 		if len(s.phase.Grid) < 2 {
@@ -499,8 +514,10 @@ func (cr *caseReader) classify(s *series) {
 		s.info.Role = RolePhase
 		if len(mf) > 0 {
 			var mags []*stack
-			for _, g := range splitOrientations(mf) {
+			groups, ids := split(mf, "magnitude")
+			for n, g := range groups {
 				if st := build(g); st != nil {
+					st.StackID = ids[n]
 					mags = append(mags, st)
 				}
 			}
@@ -525,18 +542,20 @@ func (cr *caseReader) classify(s *series) {
 		}
 		return
 	case s.info.Modality == "MR" && len(mf) > 0 && len(other) == 0:
-		groups := splitOrientations(mf)
+		groups, ids := split(mf, "magnitude")
 		st := build(groups[0])
 		if st == nil {
 			s.info.Role = RoleOther
 			return
 		}
+		st.StackID = ids[0]
 		setInfo(st)
 		if len(st.Grid) > 1 {
 			s.info.Role = RoleMagnitude
 			s.mag = st
-			for _, g := range groups[1:] {
+			for n, g := range groups[1:] {
 				if m := build(g); m != nil {
+					m.StackID = ids[n+1]
 					s.moreMag = append(s.moreMag, m)
 				}
 			}
@@ -861,6 +880,19 @@ func (cr *caseReader) checkFrames() {
 	}
 	for _, u := range cr.units {
 		check(u.phase.info.FrameOfRef, fmt.Sprintf("sonication %d (series %s)", u.info.Number, u.phase.name()))
+		// Further stacks and magnitude from other series: each series
+		// named once.
+		seen := map[*series]bool{u.phase: true}
+		for _, us := range u.stacks {
+			if !seen[us.s] {
+				seen[us.s] = true
+				check(us.s.info.FrameOfRef, fmt.Sprintf("a stack of sonication %d (series %s)", u.info.Number, us.s.name()))
+			}
+		}
+		if m := u.magSeries; m != nil && !seen[m] {
+			seen[m] = true
+			check(m.info.FrameOfRef, fmt.Sprintf("the magnitude of sonication %d (series %s)", u.info.Number, m.name()))
+		}
 	}
 	for n, ss := range cr.structs {
 		fors := map[string]bool{}

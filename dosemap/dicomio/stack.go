@@ -27,6 +27,7 @@ type stack struct {
 	Grid     [][]*frameRef // [time][slice]; nil where a frame is missing
 	Missing  int
 	Problems []string
+	StackID  string // StackID (0020,9056) of its frames; "" when split by orientation
 }
 
 // posTol is the distance (mm) under which two slice positions are the same
