@@ -29,6 +29,8 @@ type analysisFlags struct {
 	b0, te, phaseScale float64
 	carryOver          bool
 	residualWarn       float64
+	focalLength        float64
+	driftFlag          float64
 }
 
 // addAnalysisFlags registers --settings and the options of the common
@@ -55,6 +57,8 @@ func addAnalysisFlags(fs *flag.FlagSet) *analysisFlags {
 	fs.Float64Var(&a.b0, "b0", t.B0T, "main field B0, T (0: each series' own)")
 	fs.Float64Var(&a.te, "te", t.TEms, "echo time TE, ms (0: each series' own)")
 	fs.Float64Var(&a.phaseScale, "phase-scale", t.PhaseScale, "phase per stored unit, rad (0: from the files' tags)")
+	fs.Float64Var(&a.focalLength, "focal-length", d.FocalLengthMM, "length of a sonication's heating along the beam, mm, for the monitoring rule (0: the longest extent each sonication measured)")
+	fs.Float64Var(&a.driftFlag, "drift-flag", d.DriftFlagC, "flag sonications with more drift removed than this, °C")
 	return a
 }
 
@@ -66,6 +70,7 @@ var flagKeys = map[string]string{
 	"baseline-frames": "thermometry.baseline_frames", "drift-order": "thermometry.drift_order",
 	"b0": "thermometry.b0_t", "te": "thermometry.te_ms", "phase-scale": "thermometry.phase_scale_rad",
 	"residual-warn": "residual_warn_c",
+	"focal-length":  "focal_length_mm", "drift-flag": "drift_flag_c",
 }
 
 // settings returns the analysis settings asked for: the settings file (or
@@ -109,6 +114,12 @@ func (a *analysisFlags) settings() (review.Settings, error) {
 	}
 	if set["residual-warn"] {
 		s.ResidualWarnC = a.residualWarn
+	}
+	if set["focal-length"] {
+		s.FocalLengthMM = a.focalLength
+	}
+	if set["drift-flag"] {
+		s.DriftFlagC = a.driftFlag
 	}
 	if set["rule"] {
 		r, err := dosemap.ParseTimeRule(a.rule)

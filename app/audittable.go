@@ -29,6 +29,16 @@ type auditColumn struct {
 }
 
 func pctCell(x audit.Num) string { return fmtOpt(float64(x), "%.1f") }
+
+// coverageCell is the covered percentage of an audited case: "not
+// measurable" when the case was analysed with no part of its target
+// monitored.
+func coverageCell(r audit.Row) string {
+	if r.Status == audit.StatusOK && math.IsNaN(float64(r.Metrics.CoveragePct)) {
+		return "not measurable"
+	}
+	return pctCell(r.Metrics.CoveragePct)
+}
 func mlCell(x audit.Num) string  { return fmtOpt(float64(x), "%.2f") }
 func numKey(x audit.Num) float64 { return float64(x) }
 func statusWord(r audit.Row) string {
@@ -58,7 +68,7 @@ func caseLabel(r audit.Row) string {
 var auditColumns = []auditColumn{
 	{"case", 200, caseLabel, nil},
 	{"status", 150, statusWord, nil},
-	{"covered %", 110, func(r audit.Row) string { return pctCell(r.Metrics.CoveragePct) }, func(r audit.Row) float64 { return numKey(r.Metrics.CoveragePct) }},
+	{"covered %", 110, func(r audit.Row) string { return coverageCell(r) }, func(r audit.Row) float64 { return numKey(r.Metrics.CoveragePct) }},
 	{"p05–p95 %", 104, func(r audit.Row) string {
 		m := r.Metrics
 		if math.IsNaN(float64(m.CoverageP05Pct)) || math.IsNaN(float64(m.CoverageP95Pct)) {

@@ -34,7 +34,6 @@ type loadedCase struct {
 	MissingB0     bool     // some thermometry lacks MagneticFieldStrength
 	MissingTE     bool     // some thermometry lacks EchoTime
 	Demo          bool     // the built-in demo case, opened from the user cache
-	DriftFlagC    float64  // removed drift (°C) above which a sonication is flagged; 0: review.DefaultDriftFlagC
 	Study         string   // StudyInstanceUID of the study read; "" when unknown
 	// Studies lists the studies of a folder that holds several when none
 	// was chosen (nothing was read; the window offers a chooser).

@@ -18,9 +18,8 @@ func init() {
 
 // reviewSession wraps a prepared review.Session for the window.
 type reviewSession struct {
-	c          *dosemap.Case
-	rs         *review.Session
-	driftLimit float64 // °C; a sonication with more drift removed is flagged
+	c  *dosemap.Case
+	rs *review.Session
 }
 
 func prepareReview(ctx context.Context, lc *loadedCase, s review.Settings, progress func(stage string, frac float64)) (session, error) {
@@ -28,7 +27,7 @@ func prepareReview(ctx context.Context, lc *loadedCase, s review.Settings, progr
 	if err != nil {
 		return nil, err
 	}
-	return &reviewSession{c: lc.Case, rs: rs, driftLimit: lc.DriftFlagC}, nil
+	return &reviewSession{c: lc.Case, rs: rs}, nil
 }
 
 func ptr(p *float64) float64 {
@@ -78,7 +77,7 @@ func (ss *reviewSession) wrap(r *review.Result) *analysisResult {
 		out.AvoidRows = append(out.AvoidRows, avoidDose{Name: a.Name, VolumeML: a.VolumeML, LethalML: a.LethalVolumeMM3 / 1000, MaxDose: ptr(a.PeakDose)})
 	}
 	for n := range r.DVH.Dose {
-		if n < len(r.DVH.Target) {
+		if n < len(r.DVH.Target) && r.CoveredFraction != nil { // no curve of an unmonitored target
 			out.DVHPoints = append(out.DVHPoints, xy{r.DVH.Dose[n], r.DVH.Target[n]})
 		}
 	}
@@ -97,6 +96,9 @@ func (ss *reviewSession) wrap(r *review.Result) *analysisResult {
 		row := sonicationRow{Number: st.Number, Label: st.Label, PeakTemp: ptr(st.PeakTempC), PeakDose: st.PeakDose,
 			DoseAddedML: st.LethalAddedML, CoverageAdded: st.AddedCoverage, OutsideML: st.OutsideAddedML, Offset: math.NaN(),
 			CoolingS: ptr(st.CoolingS), ResidualC: ptr(st.ResidualRiseC)}
+		if r.CoveredFraction == nil {
+			row.CoverageAdded = math.NaN() // of a monitored target that is empty
+		}
 		row.ResidualHigh = row.ResidualC > r.Settings.ResidualWarnC
 		if so := ss.sonication(st.Number); so != nil {
 			row.Start = so.Start
@@ -112,7 +114,7 @@ func (ss *reviewSession) wrap(r *review.Result) *analysisResult {
 			if so := ss.sonication(st.Number); so != nil {
 				vf = so.Geometry.Len() * so.Frames()
 			}
-			row.Flags, row.Flagged = qualityFlags(q, vf, ss.driftLimit)
+			row.Flags, row.Flagged = qualityFlags(q, vf, r.Settings.DriftFlagC)
 		}
 		out.SonRows = append(out.SonRows, row)
 		out.SonicationDose = append(out.SonicationDose, ss.rs.SonicationDose(st.Number))

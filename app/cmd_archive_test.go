@@ -163,8 +163,8 @@ func TestArchiveRoundTrip(t *testing.T) {
 	ad.list.Select(0)
 	test.Tap(ad.retrieve)
 	waitJobs(t, rw, mark, 2)
-	if rw.result == nil || math.Abs(rw.result.CoveredFraction-local.CoveredFraction) > 1e-9 {
-		t.Errorf("opened from the archive in the window: result %+v, status %q; want coverage %.4f", rw.result, rw.status.Text, local.CoveredFraction)
+	if rw.result == nil || math.Abs((*rw.result.CoveredFraction)-(*local.CoveredFraction)) > 1e-9 {
+		t.Errorf("opened from the archive in the window: result %+v, status %q; want coverage %.4f", rw.result, rw.status.Text, (*local.CoveredFraction))
 	}
 	if dir := os.Getenv("DOSECOVER_SCREENSHOT_DIR"); dir != "" {
 		writePNG(t, filepath.Join(dir, "opened-from-archive.png"), rw.win.Canvas().Capture())

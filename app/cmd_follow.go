@@ -185,8 +185,8 @@ func writeFollowText(w io.Writer, u follow.Update) error {
 	var b bytes.Buffer
 	fmt.Fprintf(&b, "\n[%s] %d sonication(s) analysed, new %v (%.2f s after the last file)\n",
 		u.At.Format("15:04:05"), len(u.Sonications), u.New, u.Latency().Seconds())
-	fmt.Fprintf(&b, "  covered (dose >= %g %s): %.1f %% of the monitored target, %.1f %% of the whole target\n",
-		r.Threshold, r.DoseUnit, 100*r.CoveredFraction, 100*r.CoveredFractionOfTarget)
+	fmt.Fprintf(&b, "  covered (dose >= %g %s): %s of the monitored target, %.1f %% of the whole target\n",
+		r.Threshold, r.DoseUnit, review.PercentText(r.CoveredFraction), 100*r.CoveredFractionOfTarget)
 	holes := 0.0
 	for _, h := range r.Holes {
 		holes += h.VolumeMM3
@@ -209,8 +209,12 @@ func writeFollowText(w io.Writer, u follow.Update) error {
 				fmt.Fprintf(&b, " excluded from the cumulative dose\n")
 				continue
 			}
-			fmt.Fprintf(&b, " added coverage %.1f %%, lethal volume added %.3f mL, %.3f mL of it beyond the margin\n",
-				100*s.AddedCoverage, s.LethalAddedML, s.OutsideAddedML)
+			added := "not measurable"
+			if r.CoveredFraction != nil {
+				added = review.PercentText(&s.AddedCoverage)
+			}
+			fmt.Fprintf(&b, " added coverage %s, lethal volume added %.3f mL, %.3f mL of it beyond the margin\n",
+				added, s.LethalAddedML, s.OutsideAddedML)
 		}
 	}
 	for _, wn := range r.Warnings {

@@ -126,8 +126,8 @@ func runReport(args []string, stdout, stderr io.Writer) int {
 	if code := df.write(dir, c, r, in, *deidentify, stdout, stderr); code != exitOK {
 		return code
 	}
-	fmt.Fprintf(stdout, "%s: covered %.1f %% of the monitored target (%.1f %% of the whole target) at %g %s (margin %g mm)\n",
-		in.CaseLabel, 100*r.CoveredFraction, 100*r.CoveredFractionOfTarget, r.Threshold, r.DoseUnit, r.MarginMM)
+	fmt.Fprintf(stdout, "%s: covered %s of the monitored target (%.1f %% of the whole target) at %g %s (margin %g mm)\n",
+		in.CaseLabel, review.PercentText(r.CoveredFraction), 100*r.CoveredFractionOfTarget, r.Threshold, r.DoseUnit, r.MarginMM)
 	for _, p := range []string{out.PNG, out.PDF, out.JSON, out.CSV} {
 		if p != "" {
 			fmt.Fprintf(stdout, "wrote %s\n", p)

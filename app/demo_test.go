@@ -91,7 +91,7 @@ func TestDemoOpens(t *testing.T) {
 	// The panel states what the analysis measured.
 	facts := rw.metrics.facts.Text
 	for _, want := range []string{
-		fmt.Sprintf("%.1f %%", 100*r.CoveredFraction),
+		fmt.Sprintf("%.1f %%", 100*(*r.CoveredFraction)),
 		fmt.Sprintf("%d (%.3f mL)", len(r.HoleRows), sumML(r.HoleRows)),
 		"240 CEM43 min",
 	} {
@@ -104,7 +104,7 @@ func TestDemoOpens(t *testing.T) {
 	if want := truth.TargetVolumeMM3 / 1000; math.Abs(r.TargetVolumeML-want) > 0.1*want {
 		t.Errorf("target %.2f mL, truth %.2f mL", r.TargetVolumeML, want)
 	}
-	t.Logf("covered %.3f (truth from the bioheat temperature %.3f)", r.CoveredFraction, truth.CoveredFraction)
+	t.Logf("covered %.3f (truth from the bioheat temperature %.3f)", (*r.CoveredFraction), truth.CoveredFraction)
 	if len(truth.Spill) > 0 && len(r.SpillRows) == 0 {
 		t.Errorf("the simulator sent sonications %v beyond the margin; no lethal cluster outside it is listed", truth.Spill)
 	}

@@ -123,7 +123,6 @@ func (rw *reviewWindow) writeReport(dir string) {
 	opt := report.Options{
 		Deidentify: rw.teaching, Reviewer: reviewer, SignOffs: rw.record.SignOffs, Study: rw.loaded.Study,
 		ReviewDate: time.Now().UTC().Truncate(time.Second), InputsSHA256: rw.hash,
-		DriftFlagC: rw.app.Preferences().FloatWithFallback(prefDriftFlag, review.DefaultDriftFlagC),
 	}
 	c, caseDir := rw.loaded.Case, rw.loaded.Dir
 	rw.status.SetText("Writing the report…")

@@ -91,8 +91,8 @@ func (rw *reviewWindow) signOff() {
 	comment := widget.NewMultiLineEntry()
 	comment.SetMinRowsVisible(4)
 	comment.Wrapping = fyne.TextWrapWord
-	facts := widget.NewLabel(fmt.Sprintf("Input files: %d, SHA-256 %s\nCovered %.1f %% with %s",
-		rw.nFiles, rw.hash, 100*rw.result.CoveredFraction, rw.settings.Describe()))
+	facts := widget.NewLabel(fmt.Sprintf("Input files: %d, SHA-256 %s\nCovered %s with %s",
+		rw.nFiles, rw.hash, review.PercentText(rw.result.CoveredFraction), rw.settings.Describe()))
 	facts.Wrapping = fyne.TextWrapWord
 	var prev []string
 	for _, s := range rw.record.SignOffs {

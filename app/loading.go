@@ -15,6 +15,7 @@ import (
 
 	"dosecover/dosemap"
 	"dosecover/review"
+	"dosecover/review/view"
 
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/dialog"
@@ -262,7 +263,6 @@ func (rw *reviewWindow) openStudy(dir string, demo bool, study string) {
 // caseLoaded shows a freshly read case and starts its analysis.
 func (rw *reviewWindow) caseLoaded(lc *loadedCase, hash string, nFiles int, rec *reviewRecord, s review.Settings) {
 	rw.loaded, rw.hash, rw.nFiles = lc, hash, nFiles
-	lc.DriftFlagC = rw.app.Preferences().FloatWithFallback(prefDriftFlag, review.DefaultDriftFlagC)
 	rw.sess, rw.result, rw.selected, rw.pinned = nil, nil, -1, nil
 	rw.fromRecord = rec != nil
 	if rec == nil {
@@ -502,6 +502,14 @@ func (rw *reviewWindow) updateScene() {
 	rw.scene.TargetStructure, rw.scene.AvoidStructures = r.TargetStructure, r.AvoidStructures
 	rw.scene.Holes, rw.scene.Outside = r.HoleLabels, r.SpillLabels
 	rw.scene.NotMonitored = r.NotMonitored3D
+	rw.scene.Planes = nil
+	if rw.loaded != nil {
+		num := 0
+		if rw.selected >= 0 && rw.selected < len(r.SonRows) {
+			num = r.SonRows[rw.selected].Number
+		}
+		rw.scene.Planes = view.CaseStacks(rw.loaded.Case, num)
+	}
 	rw.selInfo.SetText("Showing the cumulative dose")
 	if rw.selected >= 0 && rw.selected < len(r.SonicationDose) && r.SonicationDose[rw.selected] != nil {
 		row := r.SonRows[rw.selected]
@@ -520,6 +528,56 @@ func (rw *reviewWindow) selectSonication(n int) {
 		rw.sonTable.UnselectAll()
 	}
 	rw.updateScene()
+	rw.showPlanesOf(n)
+}
+
+// showPlanesOf moves the views to the measured planes of the sonication
+// of row n (nothing for -1 or a session on one shared slab): a view
+// parallel to one of its stacks goes to that stack's slice nearest the
+// sonication's hottest point, the others to the slice through that point,
+// where they cross its planes (drawn emphasised).
+func (rw *reviewWindow) showPlanesOf(n int) {
+	r := rw.result
+	if r == nil || n < 0 || n >= len(r.SonRows) || len(rw.scene.Planes) == 0 {
+		return
+	}
+	var stacks []dosemap.Geometry
+	for _, st := range rw.scene.Planes {
+		if st.Emphasis {
+			stacks = append(stacks, st.Geometry)
+		}
+	}
+	if len(stacks) == 0 {
+		return
+	}
+	g := stacks[0]
+	hot := g.Point(float64(g.Cols-1)/2, float64(g.Rows-1)/2, float64(g.Slices-1)/2)
+	num := r.SonRows[n].Number
+	if n < len(r.Sonications) && r.Sonications[n].PeakMM != nil {
+		hot = dosemap.Vec3(*r.Sonications[n].PeakMM)
+	} else if r.Monitoring != nil {
+		for _, re := range r.Monitoring.Reach {
+			if re.Sonication == num {
+				hot = dosemap.Vec3(re.HottestMM) // its largest measured dose
+			}
+		}
+	}
+	for _, v := range rw.viewers {
+		if v.ref == nil {
+			continue
+		}
+		_, _, normal, _, _, _, _ := planeAxes(*v.ref, v.kind)
+		to := hot
+		for _, g := range stacks {
+			if math.Abs(normal.Unit().Dot(g.Normal.Unit())) >= 0.999 {
+				_, _, k := g.Voxel(hot)
+				k = math.Max(0, math.Min(float64(g.Slices-1), math.Round(k)))
+				to = hot.Sub(g.Normal.Unit().Scale(hot.Sub(g.Point(0, 0, k)).Dot(g.Normal.Unit())))
+				break
+			}
+		}
+		v.goTo(to)
+	}
 }
 
 // setExcluded ticks or unticks sonication number num and re-analyses.

@@ -43,6 +43,7 @@ var overlayLegend = []struct {
 	{"lethal outside margin", view.ColorSpill, swatchFill},
 	{"avoid", view.ColorAvoid, swatchDotted},
 	{"not monitored", view.ColorNotMonitored, swatchHatched},
+	{"measured plane", view.ColorPlane, swatchSolid},
 }
 
 // legendSwatch draws a small sample of an overlay style.
@@ -476,7 +477,7 @@ func (m *metricsPanel) update() {
 	}
 	lines := []string{
 		fmt.Sprintf("%-22s %s (%.2f mL)", "Target", name, r.TargetVolumeML),
-		fmt.Sprintf("%-22s %s", "Covered (≥ threshold)", pct(r.CoveredFraction)),
+		fmt.Sprintf("%-22s %s", "Covered (≥ threshold)", review.PercentText(r.CoveredFraction)),
 		fmt.Sprintf("%-22s %s", "  noise band p05–p95", band),
 		fmt.Sprintf("%-22s %s", "Not monitored", pct(r.NotMonitoredFraction)),
 		fmt.Sprintf("%-22s %d (%.3f mL)", "Holes", len(r.HoleRows), sumML(r.HoleRows)),
@@ -485,6 +486,11 @@ func (m *metricsPanel) update() {
 		fmt.Sprintf("%-22s %s", "  dose unit", r.Unit),
 		fmt.Sprintf("%-22s %s %s", "Threshold", fmtNum(r.Threshold), r.Unit),
 		fmt.Sprintf("%-22s %g mm", "Margin", r.MarginMM),
+	}
+	for n, l := range lines {
+		if r.CoveredFraction == nil && strings.HasPrefix(l, "Holes ") {
+			lines[n] = fmt.Sprintf("%-22s %s", "Holes", "not measurable") // holes need a monitored target
+		}
 	}
 	if ex := m.rw.settings.Excluded; len(ex) > 0 {
 		lines = append(lines, fmt.Sprintf("%-22s %v", "Sonications left out", ex))
@@ -507,6 +513,9 @@ func (m *metricsPanel) update() {
 	m.dvh.set(func() *plotPlot { return dvhPlot(r) })
 	m.coverage.set(func() *plotPlot { return coveragePlot(r) })
 	m.holes.Objects = m.regionRows(r.HoleRows, "hole")
+	if r.CoveredFraction == nil {
+		m.holes.Objects = []fyne.CanvasObject{widget.NewLabel("Not measurable: no part of the target is monitored.")}
+	}
 	m.outside.Objects = m.regionRows(r.SpillRows, "cluster")
 	m.box.Refresh()
 }
@@ -633,7 +642,11 @@ func (rw *reviewWindow) signOffText() string {
 		if rw.teaching {
 			who = "a reviewer"
 		}
-		line := fmt.Sprintf("%s by %s: %s, %.1f %% of the monitored target covered", s.Time.Local().Format("2006-01-02 15:04"), who, s.Outcome, s.Figures.CoveredMonitoredPct)
+		covered := "coverage not measurable"
+		if p := s.Figures.CoveredMonitoredPct; p != nil {
+			covered = fmt.Sprintf("%.1f %% of the monitored target covered", *p)
+		}
+		line := fmt.Sprintf("%s by %s: %s, %s", s.Time.Local().Format("2006-01-02 15:04"), who, s.Outcome, covered)
 		if s.InputHash != rw.hash {
 			line += " (different input files)"
 		}

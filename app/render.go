@@ -24,6 +24,9 @@ type sceneLayers struct {
 	NotMonitored                          *dosemap.Volume
 	TargetStructure                       *dosemap.Structure
 	AvoidStructures                       []*dosemap.Structure
+	// Planes are the sonications' measured stacks whose traces are drawn
+	// (view.CaseStacks; nil on a single shared slab).
+	Planes []view.MeasuredStack
 }
 
 // displayOptions are the viewer's display choices.
@@ -33,6 +36,7 @@ type displayOptions struct {
 	Floor                     float64 // dose below which the wash is transparent
 	ShowDose, ShowContours    bool
 	ShowHoles                 bool
+	ShowPlanes                bool          // traces of the measured planes
 	Marker                    *dosemap.Vec3 // pinned probe point, drawn as a cross
 }
 

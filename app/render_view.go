@@ -228,6 +228,9 @@ func renderPlaneShared(s *sceneLayers, t viewTransform, opt displayOptions, cach
 	if s.NotMonitored != nil {
 		sc.NotMonitored = view.Region{Mask: s.NotMonitored}
 	}
+	if opt.ShowPlanes {
+		sc.Measured = s.Planes
+	}
 	img, err := sv.renderer(s, p).Render(sc, v, sv.dst)
 	if err != nil {
 		// Say so on the view rather than draw something else.

@@ -88,6 +88,34 @@ func parseFloatField(name, text string, dst *float64) error {
 	return nil
 }
 
+// dialogNames are the settings dialog's names of the settings' JSON keys,
+// which review.Settings.Validate names in its messages.
+var dialogNames = map[string]string{
+	"threshold": "Lethal threshold", "margin_mm": "Safety margin", "trials": "Noise trials",
+	"cem43.break_c": "Break temperature", "cem43.r_above": "R at or above the break", "cem43.r_below": "R below the break",
+	"arrhenius.a_per_s": "A", "arrhenius.ea_j_per_mol": "Ea",
+	"thermometry.alpha_ppm_per_c": "PRF coefficient α", "thermometry.body_temp_c": "Body temperature",
+	"thermometry.baseline_frames": "Baseline frames", "thermometry.drift_order": "Drift polynomial order",
+	"thermometry.phase_scale_rad": "Phase scale", "thermometry.b0_t": "Field strength B0", "thermometry.te_ms": "Echo time TE",
+	"focal_length_mm": "Focal length along the beam", "drift_flag_c": "Flag drift removed above",
+	"negligible_fraction": "Negligible dose fraction", "residual_warn_c": "Residual heat warning",
+}
+
+// plainSettingsError returns err with the setting it names by its JSON
+// key named as the dialog names it.
+func plainSettingsError(err error) error {
+	if err == nil {
+		return nil
+	}
+	msg := err.Error()
+	if key, rest, ok := strings.Cut(msg, " "); ok {
+		if name, known := dialogNames[key]; known {
+			return fmt.Errorf("%s %s", name, rest)
+		}
+	}
+	return err
+}
+
 // showSettingsDialog lets the user change the analysis settings. note, when
 // not empty, is shown at the top (for example to ask for a missing B0).
 // apply receives the new settings when the user accepts them.
@@ -196,6 +224,13 @@ func showSettingsDialog(w fyne.Window, cur review.Settings, note, origin string,
 		widget.NewFormItem("Echo time TE (ms)", te),
 	)
 	model.OnChanged(model.Selected) // the threshold's unit follows the model
+	focal := floatEntry(cur.FocalLengthMM)
+	focal.SetPlaceHolder("0: each sonication's longest measured extent")
+	driftFlag := floatEntry(cur.DriftFlagC)
+	review2 := settingsForm(units,
+		widget.NewFormItem("Focal length along the beam (mm)", focal),
+		widget.NewFormItem("Flag drift removed above (°C)", driftFlag),
+	)
 	driftNote := widget.NewLabel("Drift is measured in an unheated reference region: chosen automatically (voxels away from the heating), or drawn as a rectangle on the left image (Review ▸ Draw drift reference).")
 	driftNote.Wrapping = fyne.TextWrapWord
 	top := []fyne.CanvasObject{}
@@ -215,7 +250,10 @@ func showSettingsDialog(w fyne.Window, cur review.Settings, note, origin string,
 		form, cemBox, arrBox,
 		widget.NewSeparator(),
 		widget.NewLabelWithStyle("Thermometry", fyne.TextAlignLeading, fyne.TextStyle{Bold: true}),
-		thermo, driftNote, errLabel)...)
+		thermo, driftNote,
+		widget.NewSeparator(),
+		widget.NewLabelWithStyle("Monitoring and flags", fyne.TextAlignLeading, fyne.TextStyle{Bold: true}),
+		review2, errLabel)...)
 
 	var d dialog.Dialog
 	collect := func() (review.Settings, error) {
@@ -231,6 +269,7 @@ func showSettingsDialog(w fyne.Window, cur review.Settings, note, origin string,
 			{"A", arrA, &s.Arrhenius.A}, {"Ea", arrEa, &s.Arrhenius.Ea},
 			{"PRF coefficient", alpha, &s.Thermometry.AlphaPPMPerC}, {"body temperature", body, &s.Thermometry.BodyTempC},
 			{"phase scale", phase, &s.Thermometry.PhaseScale}, {"B0", b0, &s.Thermometry.B0T}, {"TE", te, &s.Thermometry.TEms},
+			{"focal length", focal, &s.FocalLengthMM}, {"drift flag", driftFlag, &s.DriftFlagC},
 		} {
 			if err = parseFloatField(f.name, f.e.Text, f.dst); err != nil {
 				return s, err
@@ -268,7 +307,7 @@ func showSettingsDialog(w fyne.Window, cur review.Settings, note, origin string,
 			return s, err
 		}
 		s.CEM43.Rule, s.Arrhenius.Rule = r, r
-		return s, s.Validate()
+		return s, plainSettingsError(s.Validate())
 	}
 	reset := widget.NewButton("Built-in defaults", func() {
 		d.Hide()

@@ -140,6 +140,19 @@ func TestAnalyzeTwoStudies(t *testing.T) {
 	if fig(alone.String()) != fig(chosen.String()) {
 		t.Errorf("the chosen study gives other figures than its folder alone:\n%s\n---\n%s", alone.String(), chosen.String())
 	}
+	// The result names the study analysed (its StudyInstanceUID as the
+	// inventory lists it, DICOM PS3.3 C.7.2.1).
+	var js bytes.Buffer
+	errb.Reset()
+	if code := run([]string{"analyze", "--trials", "0", "--study", uid, "--json", "-", mixed}, &js, &errb); code != 0 {
+		t.Fatalf("--study --json: exit %d: %s", code, errb.String())
+	}
+	var res struct {
+		Study *string `json:"study_uid"`
+	}
+	if err := json.Unmarshal(js.Bytes(), &res); err != nil || res.Study == nil || *res.Study != uid {
+		t.Errorf("result JSON study_uid %v (%v), want %s", res.Study, err, uid)
+	}
 }
 
 // TestWindowStudyChooser opens a folder of two studies in the window:

@@ -133,6 +133,16 @@ func (v *sliceViewer) centreOn(p dosemap.Vec3) {
 	v.raster.Refresh()
 }
 
+// goTo shows the slice through p, keeping zoom and pan.
+func (v *sliceViewer) goTo(p dosemap.Vec3) {
+	if v.ref == nil {
+		return
+	}
+	_, _, n, slices, step, _, _ := planeAxes(*v.ref, v.kind)
+	k := int(math.Round(p.Sub(gridCentre(*v.ref)).Dot(n)/step + float64(slices-1)/2))
+	v.setSlice(k)
+}
+
 // transform returns the view transform for a w×h pixel image.
 func (v *sliceViewer) transform(w, h int) (viewTransform, bool) {
 	if v.ref == nil || w <= 0 || h <= 0 {

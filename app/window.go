@@ -107,9 +107,6 @@ const (
 	prefTeaching = "teaching"
 	prefReviewer = "reviewer"
 	prefOpacity  = "opacity"
-	// prefDriftFlag is the removed drift (°C) above which the table and
-	// the report flag a sonication (review.DefaultDriftFlagC).
-	prefDriftFlag = "drift_flag_c"
 )
 
 func newReviewWindow(a fyne.App) *reviewWindow {
@@ -118,7 +115,7 @@ func newReviewWindow(a fyne.App) *reviewWindow {
 	rw.settings = loadPrefSettings(a.Preferences())
 	rw.teaching = a.Preferences().Bool(prefTeaching)
 	rw.opt = displayOptions{WindowCentre: 500, WindowWidth: 1000, Opacity: a.Preferences().FloatWithFallback(prefOpacity, 0.55),
-		ShowDose: true, ShowContours: true, ShowHoles: true}
+		ShowDose: true, ShowContours: true, ShowHoles: true, ShowPlanes: true}
 	rw.build()
 	rw.win.SetMainMenu(rw.mainMenu())
 	rw.win.SetOnDropped(rw.dropped)
@@ -212,6 +209,8 @@ func (rw *reviewWindow) build() {
 	showCont.SetChecked(true)
 	showHoles := widget.NewCheck("Holes & spill", func(b bool) { rw.opt.ShowHoles = b; rw.redraw() })
 	showHoles.SetChecked(true)
+	showPlanes := widget.NewCheck("Planes", func(b bool) { rw.opt.ShowPlanes = b; rw.redraw() })
+	showPlanes.SetChecked(true)
 	resetWL := widget.NewButton("Reset window", rw.resetWindow)
 
 	rw.selInfo = widget.NewLabel("Showing the cumulative dose")
@@ -221,7 +220,7 @@ func (rw *reviewWindow) build() {
 	display := container.New(newFlowLayout(),
 		container.NewHBox(widget.NewLabel("Opacity"), container.NewGridWrap(fyne.NewSize(110, 36), rw.opacity)),
 		container.NewHBox(widget.NewLabel("Floor"), container.NewGridWrap(fyne.NewSize(76, 36), rw.floorEntry)),
-		showDose, showCont, showHoles, resetWL,
+		showDose, showCont, showHoles, showPlanes, resetWL,
 		rw.washBar.content,
 	)
 	legend := legendRow()

@@ -30,8 +30,8 @@ func TestOpenShowsMetrics(t *testing.T) {
 	// Sonications 1 and 2 (peak 3000 CEM43, sigma 5 mm) cover the 10 mm
 	// sphere: the weakest target point, (0, ±10, 0), receives
 	// 2·3000·exp(-(25+100)/50) = 492 CEM43 ≥ 240 (computed).
-	if r.CoveredFraction < 0.999 {
-		t.Errorf("covered fraction %.4f, want 1 (every target point gets ≥ 492 CEM43)", r.CoveredFraction)
+	if (*r.CoveredFraction) < 0.999 {
+		t.Errorf("covered fraction %.4f, want 1 (every target point gets ≥ 492 CEM43)", (*r.CoveredFraction))
 	}
 	// Target volume: a 10 mm sphere, 4/3·π·1000 mm³ = 4.19 mL; the slab
 	// model of 2 mm slices approximates it within 5 % (tolerance for the
@@ -122,14 +122,14 @@ func TestUntickSonicationChangesCoverage(t *testing.T) {
 	if got := rw.settings.Excluded; len(got) != 1 || got[0] != 2 {
 		t.Fatalf("excluded sonications %v, want [2]", got)
 	}
-	if !(after.CoveredFraction < before.CoveredFraction-0.1) {
-		t.Errorf("coverage %.3f -> %.3f: leaving out sonication 2 should uncover the right half", before.CoveredFraction, after.CoveredFraction)
+	if !((*after.CoveredFraction) < (*before.CoveredFraction)-0.1) {
+		t.Errorf("coverage %.3f -> %.3f: leaving out sonication 2 should uncover the right half", (*before.CoveredFraction), (*after.CoveredFraction))
 	}
 	// Coverage is credited in delivery order, so the coverage without
 	// sonication 2 (sonication 3 adds none) equals what sonication 1 added
 	// in the full analysis; 1 % for the analysis grid.
-	if math.Abs(after.CoveredFraction-addedBy1) > 0.01 {
-		t.Errorf("coverage without sonication 2 is %.3f, sonication 1 alone was credited %.3f", after.CoveredFraction, addedBy1)
+	if math.Abs((*after.CoveredFraction)-addedBy1) > 0.01 {
+		t.Errorf("coverage without sonication 2 is %.3f, sonication 1 alone was credited %.3f", (*after.CoveredFraction), addedBy1)
 	}
 	if len(after.HoleRows) == 0 {
 		t.Error("no hole reported after leaving out sonication 2")
@@ -141,8 +141,8 @@ func TestUntickSonicationChangesCoverage(t *testing.T) {
 	mark = rw.completed.Load()
 	test.Tap(checksOf(rw.sonTable)[1])
 	waitJobs(t, rw, mark, 1)
-	if math.Abs(rw.result.CoveredFraction-before.CoveredFraction) > 1e-9 {
-		t.Errorf("coverage after re-ticking %.4f, want %.4f", rw.result.CoveredFraction, before.CoveredFraction)
+	if math.Abs((*rw.result.CoveredFraction)-(*before.CoveredFraction)) > 1e-9 {
+		t.Errorf("coverage after re-ticking %.4f, want %.4f", (*rw.result.CoveredFraction), (*before.CoveredFraction))
 	}
 }
 

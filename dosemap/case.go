@@ -157,6 +157,7 @@ type Case struct {
 	Anatomy                   *Volume       // anatomy image in stored units after rescale; nil when absent
 	WindowCenter, WindowWidth float64       // display window for Anatomy; 0 width when the files have none
 	FrameOfRef                string        // FrameOfReferenceUID of the anatomy
+	StudyUID                  string        // StudyInstanceUID of the study read; "" when unknown
 	Sonications               []*Sonication // in delivery order
 	Structures                []Structure
 }

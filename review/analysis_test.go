@@ -83,13 +83,13 @@ func TestCoveredFractionLens(t *testing.T) {
 			set := DefaultSettings()
 			set.Trials = 0
 			r := analyseCase(t, c, set)
-			if math.Abs(r.CoveredFraction-want) > 0.01 {
-				t.Errorf("covered fraction %.4f, want %.4f within 0.01", r.CoveredFraction, want)
+			if math.Abs((*r.CoveredFraction)-want) > 0.01 {
+				t.Errorf("covered fraction %.4f, want %.4f within 0.01", (*r.CoveredFraction), want)
 			}
 			if math.Abs(r.MonitoredFraction-1) > 1e-9 {
 				t.Errorf("monitored fraction %.4f, want 1 (target inside the thermometry)", r.MonitoredFraction)
 			}
-			t.Logf("covered %.4f vs %.4f; target %.3f mL", r.CoveredFraction, want, r.TargetVolumeML)
+			t.Logf("covered %.4f vs %.4f; target %.3f mL", (*r.CoveredFraction), want, r.TargetVolumeML)
 		})
 	}
 }
@@ -112,8 +112,8 @@ func TestNotMonitored(t *testing.T) {
 	if math.Abs(r.MonitoredFraction-want) > 0.015 {
 		t.Errorf("monitored fraction %.4f, want %.4f", r.MonitoredFraction, want)
 	}
-	if math.Abs(r.CoveredFraction-1) > 1e-9 || math.Abs(r.CoveredFractionOfTarget-r.MonitoredFraction) > 1e-9 {
-		t.Errorf("covered %.4f of monitored, %.4f of target; want 1 and %.4f", r.CoveredFraction, r.CoveredFractionOfTarget, r.MonitoredFraction)
+	if math.Abs((*r.CoveredFraction)-1) > 1e-9 || math.Abs(r.CoveredFractionOfTarget-r.MonitoredFraction) > 1e-9 {
+		t.Errorf("covered %.4f of monitored, %.4f of target; want 1 and %.4f", (*r.CoveredFraction), r.CoveredFractionOfTarget, r.MonitoredFraction)
 	}
 	if len(r.Holes) != 0 {
 		t.Errorf("%d holes; the unmonitored part must not be a hole", len(r.Holes))
@@ -159,8 +159,8 @@ func TestKnownHole(t *testing.T) {
 	if sum := r.CoveredVolumeML*1000 + h.VolumeMM3; math.Abs(sum-r.MonitoredVolumeML*1000) > 1e-6*sum {
 		t.Errorf("covered %.3f + hole %.3f mm³ != monitored %.3f", r.CoveredVolumeML*1000, h.VolumeMM3, r.MonitoredVolumeML*1000)
 	}
-	if math.Abs(r.CoveredFraction-(1-want/(4.0/3*math.Pi*1000))) > 0.01 {
-		t.Errorf("covered fraction %.4f", r.CoveredFraction)
+	if math.Abs((*r.CoveredFraction)-(1-want/(4.0/3*math.Pi*1000))) > 0.01 {
+		t.Errorf("covered fraction %.4f", (*r.CoveredFraction))
 	}
 	if h.CentroidSlice != 6 && h.CentroidSlice != 7 {
 		// z = 0.5 lies between slices 6 (z=-1.5) and 7 (z=1.5), nearer 7.
@@ -218,8 +218,8 @@ func TestKnownSpill(t *testing.T) {
 	if d := dosemap.Vec3(cl.CentroidMM).Sub(sc).Norm(); d > 0.7 {
 		t.Errorf("centroid %v, want %v", cl.CentroidMM, sc)
 	}
-	if r.CoveredFraction < 0.999 {
-		t.Errorf("covered fraction %.4f, want 1", r.CoveredFraction)
+	if (*r.CoveredFraction) < 0.999 {
+		t.Errorf("covered fraction %.4f, want 1", (*r.CoveredFraction))
 	}
 	// Delivery order: sonication 1 covers everything, 2 adds the spill.
 	s1, s2 := r.Sonications[0], r.Sonications[1]
@@ -317,8 +317,8 @@ func TestLinearDoseD98(t *testing.T) {
 		}
 	}
 	// Lethal for x >= 3.75: covered fraction 6.25/20 = 0.3125 (computed).
-	if math.Abs(r.CoveredFraction-0.3125) > 1e-6 {
-		t.Errorf("covered %.6f, want 0.3125", r.CoveredFraction)
+	if math.Abs((*r.CoveredFraction)-0.3125) > 1e-6 {
+		t.Errorf("covered %.6f, want 0.3125", (*r.CoveredFraction))
 	}
 }
 
@@ -422,7 +422,7 @@ func TestWriteText(t *testing.T) {
 		t.Fatal(err)
 	}
 	out := b.String()
-	for _, want := range []string{"threshold 240 CEM43", "margin 3 mm", fmt.Sprintf("%.1f %% of the monitored target", 100*r.CoveredFraction),
+	for _, want := range []string{"threshold 240 CEM43", "margin 3 mm", fmt.Sprintf("%.1f %% of the monitored target", 100*(*r.CoveredFraction)),
 		"mostly sonication 2", "not a treatment planning", "Holes (monitored target below threshold): 1"} {
 		if !strings.Contains(out, want) {
 			t.Errorf("summary lacks %q:\n%s", want, out)

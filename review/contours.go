@@ -14,7 +14,7 @@ import (
 )
 
 // ContourFormat is the value of the "format" field of a dosecover contour
-// file; ContourVersion the newest version this build reads and writes.
+// file; ContourVersion the newest version this build reads.
 const (
 	ContourFormat  = "dosecover-contours"
 	ContourVersion = 1
@@ -131,37 +131,6 @@ func ReadContourFile(path string) ([]dosemap.Structure, string, error) {
 	}
 	defer f.Close()
 	return ReadContours(f, path)
-}
-
-// EncodeContours writes structures as a contour file to w.
-func EncodeContours(w io.Writer, structures []dosemap.Structure, frameOfRef string) error {
-	f := ContourFile{Format: ContourFormat, Version: ContourVersion, FrameOfRef: frameOfRef,
-		Comment: "positions in mm, DICOM patient coordinates (LPS)", Structures: []ContourRecord{}}
-	for _, s := range structures {
-		rec := ContourRecord{Name: s.Name, Role: s.Role.String(), Number: s.Number, InterpretedType: s.InterpretedType, Contours: [][][3]float64{}}
-		for _, c := range s.Contours {
-			pts := make([][3]float64, len(c.Points))
-			for p, q := range c.Points {
-				pts[p] = [3]float64(q)
-			}
-			rec.Contours = append(rec.Contours, pts)
-		}
-		f.Structures = append(f.Structures, rec)
-	}
-	enc := json.NewEncoder(w)
-	enc.SetIndent("", " ")
-	return enc.Encode(&f)
-}
-
-// WriteContourFile writes structures to path atomically (see
-// WriteOutside); it never writes inside caseDir, the folder the case was
-// read from (pass "" when there is none).
-func WriteContourFile(path, caseDir string, structures []dosemap.Structure, frameOfRef string) error {
-	err := WriteOutside(path, caseDir, func(w io.Writer) error { return EncodeContours(w, structures, frameOfRef) })
-	if err != nil {
-		return fmt.Errorf("writing contours %s: %w", path, err)
-	}
-	return nil
 }
 
 // WriteOutside writes a file at path with write, atomically: into a

@@ -1,6 +1,9 @@
 package review
 
 import (
+	"encoding/json"
+	"fmt"
+	"io"
 	"os"
 	"path/filepath"
 	"reflect"
@@ -25,7 +28,7 @@ func TestContourFileRoundTrip(t *testing.T) {
 		in[n].FrameOfRef = "1.2.3"
 	}
 	path := filepath.Join(dir, "edited.json")
-	if err := WriteContourFile(path, caseDir, in, "1.2.3"); err != nil {
+	if err := writeContourFile(path, caseDir, in, "1.2.3"); err != nil {
 		t.Fatal(err)
 	}
 	out, fr, err := ReadContourFile(path)
@@ -36,12 +39,12 @@ func TestContourFileRoundTrip(t *testing.T) {
 		t.Errorf("round trip differs:\n%+v\n%+v", in[0].Name, out)
 	}
 	// Never inside the case folder, also through a link to it.
-	if err := WriteContourFile(filepath.Join(caseDir, "sub", "x.json"), caseDir, in, ""); err == nil || !strings.Contains(err.Error(), "inside the case folder") {
+	if err := writeContourFile(filepath.Join(caseDir, "sub", "x.json"), caseDir, in, ""); err == nil || !strings.Contains(err.Error(), "inside the case folder") {
 		t.Errorf("write inside case folder: %v", err)
 	}
 	link := filepath.Join(dir, "link")
 	if os.Symlink(caseDir, link) == nil {
-		if err := WriteContourFile(filepath.Join(link, "x.json"), caseDir, in, ""); err == nil {
+		if err := writeContourFile(filepath.Join(link, "x.json"), caseDir, in, ""); err == nil {
 			t.Error("write through a link into the case folder succeeded")
 		}
 	}
@@ -71,4 +74,36 @@ func TestReadContoursErrors(t *testing.T) {
 			t.Errorf("%s: %v, want %q and the file name", tc.name, err, tc.want)
 		}
 	}
+}
+
+// encodeContours writes structures as a contour file to w (the product
+// reads contour files; tests write them).
+func encodeContours(w io.Writer, structures []dosemap.Structure, frameOfRef string) error {
+	f := ContourFile{Format: ContourFormat, Version: ContourVersion, FrameOfRef: frameOfRef,
+		Comment: "positions in mm, DICOM patient coordinates (LPS)", Structures: []ContourRecord{}}
+	for _, s := range structures {
+		rec := ContourRecord{Name: s.Name, Role: s.Role.String(), Number: s.Number, InterpretedType: s.InterpretedType, Contours: [][][3]float64{}}
+		for _, c := range s.Contours {
+			pts := make([][3]float64, len(c.Points))
+			for p, q := range c.Points {
+				pts[p] = [3]float64(q)
+			}
+			rec.Contours = append(rec.Contours, pts)
+		}
+		f.Structures = append(f.Structures, rec)
+	}
+	enc := json.NewEncoder(w)
+	enc.SetIndent("", " ")
+	return enc.Encode(&f)
+}
+
+// writeContourFile writes structures to path atomically (see
+// WriteOutside); it never writes inside caseDir, the folder the case was
+// read from (pass "" when there is none).
+func writeContourFile(path, caseDir string, structures []dosemap.Structure, frameOfRef string) error {
+	err := WriteOutside(path, caseDir, func(w io.Writer) error { return encodeContours(w, structures, frameOfRef) })
+	if err != nil {
+		return fmt.Errorf("writing contours %s: %w", path, err)
+	}
+	return nil
 }

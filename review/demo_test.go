@@ -87,7 +87,7 @@ func TestDemoCase(t *testing.T) {
 	// temperature grid, not from the thermometry images: logged for
 	// comparison, not asserted.
 	t.Logf("covered %.3f of the monitored target (truth on the bioheat grid %.3f); %d holes; %.1f mm³ beyond the margin (truth %.1f)",
-		r.CoveredFraction, truth.CoveredFraction, len(r.Holes), 1000*r.OutsideMarginLethalML, truth.LethalOutsideMM3)
+		(*r.CoveredFraction), truth.CoveredFraction, len(r.Holes), 1000*r.OutsideMarginLethalML, truth.LethalOutsideMM3)
 }
 
 // TestDeferredLoadSameResult analyses a simulated case loaded with

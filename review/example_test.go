@@ -38,7 +38,7 @@ func ExampleAnalyze() {
 		return
 	}
 	fmt.Printf("target %.2f mL, monitored %.0f %%, covered %.0f %% at %g CEM43\n",
-		r.TargetVolumeML, 100*r.MonitoredFraction, 100*r.CoveredFraction, r.Threshold)
+		r.TargetVolumeML, 100*r.MonitoredFraction, 100*(*r.CoveredFraction), r.Threshold)
 	fmt.Printf("%d hole(s); largest %.0f mm³, touches surface: %v\n", len(r.Holes), r.Holes[0].VolumeMM3, r.Holes[0].TouchesSurface)
 	// Output:
 	// target 1.05 mL, monitored 100 %, covered 24 % at 240 CEM43
@@ -56,7 +56,7 @@ func ExampleSession_Analyze() {
 	for _, thr := range []float64{240, 2000} {
 		set.Threshold = thr
 		r, _ := ses.Analyze(ctx, set, nil)
-		fmt.Printf("%g CEM43: covered %.0f %%\n", thr, 100*r.CoveredFraction)
+		fmt.Printf("%g CEM43: covered %.0f %%\n", thr, 100*(*r.CoveredFraction))
 	}
 	// Output:
 	// 240 CEM43: covered 24 %

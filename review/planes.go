@@ -275,10 +275,12 @@ func newReach(g dosemap.Geometry, dose []float32) reach {
 // is the largest distance along the axis from the hottest point to a voxel
 // of the region: the heating was seen to end. Along the other axes (the
 // normal of a plane, or a slab too thin to hold the heating) it is the
-// longest measured semi-axis, and no less than what was seen. Half a voxel
-// diagonal is added to each. Restricting the extent to the connected
-// region keeps isolated noisy voxels far from the focus from stretching it.
-func (r reach) extent(dose []float32, eps float64, seen []bool) (semi [3]float64, measured [3]bool, ok bool) {
+// longest measured semi-axis or, when focalMM > 0 (Settings.FocalLengthMM,
+// the heating's length along the beam), half of focalMM; no less than what
+// was seen either way. Half a voxel diagonal is added to each. Restricting
+// the extent to the connected region keeps isolated noisy voxels far from
+// the focus from stretching it.
+func (r reach) extent(dose []float32, eps float64, seen []bool, focalMM float64) (semi [3]float64, measured [3]bool, ok bool) {
 	if r.at < 0 || !(float64(dose[r.at]) >= eps) {
 		return semi, measured, false
 	}
@@ -327,6 +329,9 @@ func (r reach) extent(dose []float32, eps float64, seen []bool) (semi [3]float64
 			longest = math.Max(longest, semi[a])
 		}
 	}
+	if focalMM > 0 {
+		longest = focalMM / 2
+	}
 	for a := 0; a < 3; a++ {
 		if !measured[a] {
 			semi[a] = math.Max(semi[a], longest)
@@ -374,7 +379,8 @@ type SonicationReach struct {
 	SemiAxesMM *[3]float64 `json:"semi_axes_mm"`
 	// Measured says along which of those axes its heating was seen to
 	// end inside its planes; along the others the longest measured
-	// semi-axis is assumed.
+	// semi-axis is assumed, or half the focal length when one is set
+	// (Settings.FocalLengthMM).
 	Measured [3]bool `json:"axes_measured"`
 }
 
@@ -393,7 +399,7 @@ func (s *Session) monitor(set Settings, dc *doseCache) {
 	seen := make([]bool, s.fg.coarse.Len())
 	for _, n := range dc.included {
 		sd := s.sons[n]
-		semi, measured, ok := sd.reach.extent(sd.dose, eps, seen)
+		semi, measured, ok := sd.reach.extent(sd.dose, eps, seen, set.FocalLengthMM)
 		sr := SonicationReach{Sonication: sd.number, HottestMM: [3]float64(sd.reach.hot), Measured: measured}
 		ells = append(ells, ellipsoid{sd.reach.hot, semi, ok})
 		if ok {

@@ -116,9 +116,9 @@ func TestPlanesSessions(t *testing.T) {
 			// more than a point: widen the tolerance by one voxel.
 			tol := 0.03 + 1/w
 			t.Logf("%s: coverage %.3f of the monitored target (%.1f %% of it), truth there %.3f (%.0f voxels); strict %.3f (%.3f), measured planes %.3f (%.3f); truth whole target %.3f (change only %.3f)",
-				l, r.CoveredFraction, 100*r.MonitoredFraction, want, w, m.StrictFraction, val(m.StrictCovered), m.MeasuredFraction, val(m.MeasuredCovered), truth.CoveredFraction, truth.ChangeCoveredFraction)
-			if d := math.Abs(r.CoveredFraction - want); !(d <= tol) {
-				t.Errorf("coverage %.3f of the monitored target, truth over the same region %.3f (difference %.3f > %.3f)", r.CoveredFraction, want, d, tol)
+				l, (*r.CoveredFraction), 100*r.MonitoredFraction, want, w, m.StrictFraction, val(m.StrictCovered), m.MeasuredFraction, val(m.MeasuredCovered), truth.CoveredFraction, truth.ChangeCoveredFraction)
+			if d := math.Abs((*r.CoveredFraction) - want); !(d <= tol) {
+				t.Errorf("coverage %.3f of the monitored target, truth over the same region %.3f (difference %.3f > %.3f)", (*r.CoveredFraction), want, d, tol)
 			}
 			// Spill: the largest cluster beyond the margin comes from the
 			// sonication aimed beyond it and lies within 5 mm of its focus
@@ -239,12 +239,12 @@ func TestMovingSlabMatchesSharedSlab(t *testing.T) {
 	shared := sim.PlanesSession(sim.LayoutSlab, 3)
 	shared.Thermometry.Slices = 7
 	rm, rs := analyseSession(t, moving), analyseSession(t, shared)
-	t.Logf("moving slab: %.3f of %.1f %% monitored; shared slab: %.3f of %.1f %%", rm.CoveredFraction, 100*rm.MonitoredFraction, rs.CoveredFraction, 100*rs.MonitoredFraction)
+	t.Logf("moving slab: %.3f of %.1f %% monitored; shared slab: %.3f of %.1f %%", (*rm.CoveredFraction), 100*rm.MonitoredFraction, (*rs.CoveredFraction), 100*rs.MonitoredFraction)
 	if rm.MonitoredFraction < 0.9 {
 		t.Errorf("moving slab of five slices: %.1f %% of the target monitored, want at least 90 %%", 100*rm.MonitoredFraction)
 	}
-	if d := math.Abs(rm.CoveredFraction - rs.CoveredFraction); !(d <= 0.02) {
-		t.Errorf("covered fraction %.3f on the moving slab, %.3f on the shared slab (difference %.3f > 0.02)", rm.CoveredFraction, rs.CoveredFraction, d)
+	if d := math.Abs((*rm.CoveredFraction) - (*rs.CoveredFraction)); !(d <= 0.02) {
+		t.Errorf("covered fraction %.3f on the moving slab, %.3f on the shared slab (difference %.3f > 0.02)", (*rm.CoveredFraction), (*rs.CoveredFraction), d)
 	}
 	if len(rm.OutsideClusters) == 0 || len(rs.OutsideClusters) == 0 || rm.OutsideClusters[0].Sonication != rs.OutsideClusters[0].Sonication {
 		t.Errorf("spill attribution differs: moving %+v, shared %+v", rm.OutsideClusters, rs.OutsideClusters)

@@ -253,7 +253,7 @@ func (s *Session) asMeasured(ctx context.Context, set Settings) (*AsMeasured, er
 		am.CoveredFractionOfTarget = cv / tv
 	}
 	if mv > 0 {
-		am.CoveredFraction = cv / mv
+		am.CoveredFraction = opt(cv / mv)
 	}
 	return am, nil
 }

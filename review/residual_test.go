@@ -132,22 +132,22 @@ func TestResidualHeatShortGaps(t *testing.T) {
 					t.Errorf("warning does not name sonication %d: %q", n, w)
 				}
 			}
-			if d := c.CoveredFraction - tr.Measured.WithHiddenHeat.CoveredFraction; math.Abs(d) > 0.03 {
-				t.Errorf("corrected coverage %.3f, simulated with the hidden heat %.3f", c.CoveredFraction, tr.Measured.WithHiddenHeat.CoveredFraction)
+			if d := (*c.CoveredFraction) - tr.Measured.WithHiddenHeat.CoveredFraction; math.Abs(d) > 0.03 {
+				t.Errorf("corrected coverage %.3f, simulated with the hidden heat %.3f", (*c.CoveredFraction), tr.Measured.WithHiddenHeat.CoveredFraction)
 			}
 			if !c.CarryOver || c.AsMeasured == nil || m.CarryOver || m.AsMeasured != nil {
 				t.Fatalf("carry_over %v/%v, as_measured %v/%v", m.CarryOver, c.CarryOver, m.AsMeasured, c.AsMeasured)
 			}
-			if c.AsMeasured.CoveredFraction != m.CoveredFraction || c.AsMeasured.CoveredFractionOfTarget != m.CoveredFractionOfTarget ||
+			if (*c.AsMeasured.CoveredFraction) != (*m.CoveredFraction) || c.AsMeasured.CoveredFractionOfTarget != m.CoveredFractionOfTarget ||
 				c.AsMeasured.OutsideMarginLethalML != m.OutsideMarginLethalML {
 				t.Errorf("as measured beside the correction %+v; without it covered %v of %v, outside %v mL",
-					*c.AsMeasured, m.CoveredFraction, m.CoveredFractionOfTarget, m.OutsideMarginLethalML)
+					*c.AsMeasured, (*m.CoveredFraction), m.CoveredFractionOfTarget, m.OutsideMarginLethalML)
 			}
-			if !(c.CoveredFraction > m.CoveredFraction) {
-				t.Errorf("the correction did not raise coverage: %.3f as measured, %.3f corrected", m.CoveredFraction, c.CoveredFraction)
+			if !((*c.CoveredFraction) > (*m.CoveredFraction)) {
+				t.Errorf("the correction did not raise coverage: %.3f as measured, %.3f corrected", (*m.CoveredFraction), (*c.CoveredFraction))
 			}
 			t.Logf("largest residual error %+.0f %% (sonication %d); coverage as measured %.3f (noiseless truth %.3f), corrected %.3f (truth with the hidden heat %.3f)",
-				100*worst, worstN, m.CoveredFraction, tr.Measured.CoveredFraction, c.CoveredFraction, tr.Measured.WithHiddenHeat.CoveredFraction)
+				100*worst, worstN, (*m.CoveredFraction), tr.Measured.CoveredFraction, (*c.CoveredFraction), tr.Measured.WithHiddenHeat.CoveredFraction)
 		})
 	}
 }

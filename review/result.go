@@ -10,8 +10,11 @@ import (
 
 // SchemaVersion is the version of the JSON layout of Result. It changes
 // whenever a field is renamed, removed or changes meaning. Version 2: the
-// settings in snake_case throughout, with the thermometry inside.
-const SchemaVersion = 2
+// settings in snake_case throughout, with the thermometry inside. Version
+// 3: covered_fraction (and as_measured's) is null, not 0, when no part of
+// the target is monitored, coverage_vs_threshold is then empty, and
+// study_uid names the study analysed.
+const SchemaVersion = 3
 
 // Cautions are written into every result and report.
 var Cautions = []string{
@@ -26,17 +29,20 @@ var Cautions = []string{
 // integral Ω); fractions 0..1; sonications and slices numbered from 1.
 // Values that could not be measured are nil (JSON null).
 type Result struct {
-	SchemaVersion   int      `json:"schema_version"`
-	SoftwareVersion string   `json:"software_version"`
-	Case            string   `json:"case"`
-	Target          string   `json:"target"` // name of the target structure
-	Model           string   `json:"model"`
-	DoseUnit        string   `json:"dose_unit"`
-	Threshold       float64  `json:"threshold"`       // lethal dose used, in DoseUnit
-	ThresholdCEM43  *float64 `json:"threshold_cem43"` // Threshold when the model is CEM43, else null
-	MarginMM        float64  `json:"margin_mm"`
-	Settings        Settings `json:"settings"`
-	Grid            GridInfo `json:"analysis_grid"`
+	SchemaVersion   int    `json:"schema_version"`
+	SoftwareVersion string `json:"software_version"`
+	Case            string `json:"case"`
+	Target          string `json:"target"` // name of the target structure
+	// StudyUID is the StudyInstanceUID of the study analysed ("" when the
+	// files did not say).
+	StudyUID       string   `json:"study_uid"`
+	Model          string   `json:"model"`
+	DoseUnit       string   `json:"dose_unit"`
+	Threshold      float64  `json:"threshold"`       // lethal dose used, in DoseUnit
+	ThresholdCEM43 *float64 `json:"threshold_cem43"` // Threshold when the model is CEM43, else null
+	MarginMM       float64  `json:"margin_mm"`
+	Settings       Settings `json:"settings"`
+	Grid           GridInfo `json:"analysis_grid"`
 	// Thermometry summarises the PRF thermometry options used.
 	Thermometry ThermometryInfo `json:"thermometry"`
 
@@ -106,10 +112,12 @@ type Coverage struct {
 	NotMonitoredML       float64 `json:"not_monitored_ml"`
 	NotMonitoredFraction float64 `json:"not_monitored_fraction"`
 	CoveredVolumeML      float64 `json:"covered_volume_ml"`
-	// CoveredFraction is the covered part of the monitored target;
-	// CoveredFractionOfTarget the covered part of the whole target (the
+	// CoveredFraction is the covered part of the monitored target, nil
+	// (JSON null, "not measurable") when no part of the target is
+	// monitored: a coverage of nothing is not 0 %.
+	// CoveredFractionOfTarget is the covered part of the whole target (the
 	// unmonitored part counts as not covered).
-	CoveredFraction         float64  `json:"covered_fraction"`
+	CoveredFraction         *float64 `json:"covered_fraction"`
 	CoveredFractionOfTarget float64  `json:"covered_fraction_of_target"`
 	CoveredFractionP05      *float64 `json:"covered_fraction_p05"` // Monte Carlo 5th percentile; null without trials
 	CoveredFractionP95      *float64 `json:"covered_fraction_p95"`
@@ -223,9 +231,9 @@ type SonicationStats struct {
 // measured it, beside a result corrected for residual heat
 // (Settings.CarryOver).
 type AsMeasured struct {
-	CoveredFraction         float64 `json:"covered_fraction"`
-	CoveredFractionOfTarget float64 `json:"covered_fraction_of_target"`
-	OutsideMarginLethalML   float64 `json:"outside_margin_lethal_ml"`
+	CoveredFraction         *float64 `json:"covered_fraction"` // null when no part of the target is monitored
+	CoveredFractionOfTarget float64  `json:"covered_fraction_of_target"`
+	OutsideMarginLethalML   float64  `json:"outside_margin_lethal_ml"`
 }
 
 // SonicationQuality is the thermometry quality of one sonication.

@@ -70,6 +70,15 @@ type Settings struct {
 	// ResidualWarnC is the estimated residual rise (°C, over the target
 	// and margin) above which a sonication is named in a warning.
 	ResidualWarnC float64 `json:"residual_warn_c"`
+	// FocalLengthMM is the length of a sonication's heating along the
+	// beam, mm: along a direction a sonication did not measure, the
+	// monitoring rule bounds its heating by half of it around its hottest
+	// point. 0 (the default): by the longest extent it did measure.
+	FocalLengthMM float64 `json:"focal_length_mm"`
+	// DriftFlagC is the removed drift, °C, above which a sonication is
+	// flagged for review in the window, the report and the commands
+	// (DefaultDriftFlagC by default).
+	DriftFlagC float64 `json:"drift_flag_c"`
 }
 
 // DefaultResidualWarnC is the default ResidualWarnC: 1 °C, about the
@@ -83,7 +92,8 @@ const DefaultResidualWarnC = 1.0
 func DefaultSettings() Settings {
 	return Settings{Threshold: 240, MarginMM: DefaultMarginMM, Model: ModelCEM43, Trials: 50, Seed: 1,
 		CEM43: dosemap.DefaultCEM43(), Arrhenius: dosemap.DefaultArrhenius(), Thermometry: DefaultThermometrySettings(),
-		NegligibleFraction: DefaultNegligibleFraction, ResidualWarnC: DefaultResidualWarnC}
+		NegligibleFraction: DefaultNegligibleFraction, ResidualWarnC: DefaultResidualWarnC,
+		DriftFlagC: DefaultDriftFlagC}
 }
 
 // ProgressFunc receives the name of the stage being worked on and the
@@ -138,6 +148,7 @@ type avoidData struct {
 type Session struct {
 	mu        sync.Mutex
 	label     string
+	study     string // StudyInstanceUID of the case
 	target    string
 	model     Model
 	unit      string
@@ -213,7 +224,7 @@ func Prepare(ctx context.Context, c *dosemap.Case, s Settings, progress Progress
 	if !(s.MarginMM >= 0) || s.MarginMM > LargestMarginMM {
 		return nil, fmt.Errorf("margin %g mm: want 0 to %g mm", s.MarginMM, LargestMarginMM)
 	}
-	ses := &Session{label: c.Label, target: tgt.Name, model: s.Model, prepared: s,
+	ses := &Session{label: c.Label, study: c.StudyUID, target: tgt.Name, model: s.Model, prepared: s,
 		maxMargin: math.Max(s.MarginMM, MaxMarginMM)}
 	ref := c.Sonications[0].Geometry
 	if err := ref.Validate(); err != nil {
@@ -629,7 +640,7 @@ func (s *Session) Analyze(ctx context.Context, set Settings, progress ProgressFu
 	lt := float32(math.Log(set.Threshold))
 	r := &Result{
 		SchemaVersion: SchemaVersion, SoftwareVersion: dosemap.Version,
-		Case: s.label, Target: s.target, Model: string(set.Model), DoseUnit: s.unit,
+		Case: s.label, StudyUID: s.study, Target: s.target, Model: string(set.Model), DoseUnit: s.unit,
 		Threshold: set.Threshold, MarginMM: set.MarginMM, Settings: set,
 		Grid: GridInfo{Size: [3]int{g.Cols, g.Rows, g.Slices}, SpacingMM: [3]float64(g.Spacing),
 			RefineSlices: s.fg.rz, SubSamples: SubSamples, Connectivity: int(RegionConnectivity), Geometry: g},
@@ -685,7 +696,7 @@ func (s *Session) Analyze(ctx context.Context, set Settings, progress ProgressFu
 		cov.CoveredFractionOfTarget = cv / tv
 	}
 	if mv > 0 {
-		cov.CoveredFraction = cv / mv
+		cov.CoveredFraction = opt(cv / mv)
 	}
 	if cov.NotMonitoredFraction > 0.005 {
 		r.Warnings = append(r.Warnings, fmt.Sprintf("%.1f %% of the target (%.2f mL) was not monitored by the thermometry and is counted as not covered in the coverage of the whole target", 100*cov.NotMonitoredFraction, cov.NotMonitoredML))
@@ -751,7 +762,8 @@ func (s *Session) Analyze(ctx context.Context, set Settings, progress ProgressFu
 		r.DVH.MarginShell = append(r.DVH.MarginShell, fracAbove(sdose, scum, smv, d))
 	}
 	lo, hi := set.Threshold*18/240, set.Threshold*1000/240
-	for e := 0; e < 40; e++ {
+	r.CoverageVsThreshold = []ThresholdPoint{} // none when nothing is monitored
+	for e := 0; e < 40 && mv > 0; e++ {
 		d := lo * math.Pow(hi/lo, float64(e)/39)
 		r.CoverageVsThreshold = append(r.CoverageVsThreshold, ThresholdPoint{d, fracAbove(tdose, tcum, mv, d)})
 	}

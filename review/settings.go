@@ -180,6 +180,8 @@ const (
 	MaxSonicationNumber        = 1_000_000  // sonication numbers in Excluded
 	maxSettingsFile            = 1 << 20    // bytes of a settings file
 	MaxResidualWarnC           = 100.0      // residual heat warning level, °C
+	MaxFocalLengthMM           = 100.0      // heating along the beam, mm: well beyond any focal spot
+	MaxDriftFlagC              = 20.0       // drift flag, °C: beyond any usable thermometry
 )
 
 // Validate reports the first setting that cannot be used, naming it by its
@@ -231,6 +233,12 @@ func (s Settings) Validate() error {
 	}
 	if !(s.ResidualWarnC >= 0) || !finite(s.ResidualWarnC) || s.ResidualWarnC > MaxResidualWarnC {
 		return fmt.Errorf("residual_warn_c %g °C: want 0 to %g °C", s.ResidualWarnC, MaxResidualWarnC)
+	}
+	if !(s.FocalLengthMM >= 0 && s.FocalLengthMM <= MaxFocalLengthMM) {
+		return fmt.Errorf("focal_length_mm %g mm: want 0 (the longest measured extent) to %g mm", s.FocalLengthMM, MaxFocalLengthMM)
+	}
+	if !(s.DriftFlagC > 0 && s.DriftFlagC <= MaxDriftFlagC) {
+		return fmt.Errorf("drift_flag_c %g °C: want above 0 to %g °C", s.DriftFlagC, MaxDriftFlagC)
 	}
 	return s.Thermometry.validate()
 }
@@ -285,6 +293,9 @@ func (s Settings) complete() Settings {
 		if s.ResidualWarnC == 0 {
 			s.ResidualWarnC = d.ResidualWarnC // also left out
 		}
+	}
+	if s.DriftFlagC == 0 {
+		s.DriftFlagC = d.DriftFlagC
 	}
 	return s
 }
@@ -502,6 +513,12 @@ func (s Settings) Describe() string {
 	}
 	if s.NegligibleFraction != DefaultNegligibleFraction {
 		out += fmt.Sprintf(" · negligible dose %g %% of the threshold", 100*s.NegligibleFraction)
+	}
+	if s.FocalLengthMM > 0 {
+		out += fmt.Sprintf(" · focal length %g mm", s.FocalLengthMM)
+	}
+	if s.DriftFlagC != DefaultDriftFlagC {
+		out += fmt.Sprintf(" · drift flagged above %g °C", s.DriftFlagC)
 	}
 	if s.CarryOver {
 		out += " · residual heat of earlier sonications added (carry-over)"

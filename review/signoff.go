@@ -26,22 +26,28 @@ var Outcomes = []string{OutcomeAccepted, OutcomeFollowUp, OutcomeNotReviewable}
 
 // Headline holds the figures a reviewer saw when signing off, rounded as
 // the report prints them (percent to 0.1, mL to 0.01), so that the same
-// analysis run again compares equal.
+// analysis run again compares equal. CoveredMonitoredPct is nil (JSON
+// null, "not measurable") when no part of the target is monitored.
 type Headline struct {
-	CoveredMonitoredPct float64 `json:"covered_percent_of_monitored_target"`
-	CoveredTargetPct    float64 `json:"covered_percent_of_whole_target"`
-	NotMonitoredPct     float64 `json:"not_monitored_percent"`
-	Holes               int     `json:"holes"`
-	OutsideMarginML     float64 `json:"lethal_outside_margin_ml"`
-	LethalML            float64 `json:"lethal_volume_ml"`
+	CoveredMonitoredPct *float64 `json:"covered_percent_of_monitored_target"`
+	CoveredTargetPct    float64  `json:"covered_percent_of_whole_target"`
+	NotMonitoredPct     float64  `json:"not_monitored_percent"`
+	Holes               int      `json:"holes"`
+	OutsideMarginML     float64  `json:"lethal_outside_margin_ml"`
+	LethalML            float64  `json:"lethal_volume_ml"`
 }
 
 // HeadlineOf returns the headline figures of r.
 func HeadlineOf(r *Result) Headline {
 	pct := func(f float64) float64 { return math.Round(1000*f) / 10 }
 	ml := func(v float64) float64 { return math.Round(100*v) / 100 }
+	var mon *float64
+	if f := r.CoveredFraction; f != nil {
+		v := pct(*f)
+		mon = &v
+	}
 	return Headline{
-		CoveredMonitoredPct: pct(r.CoveredFraction),
+		CoveredMonitoredPct: mon,
 		CoveredTargetPct:    pct(r.CoveredFractionOfTarget),
 		NotMonitoredPct:     pct(r.NotMonitoredFraction),
 		Holes:               len(r.Holes),
@@ -135,14 +141,20 @@ func (s SignOff) Differences(inputHash, study string, r *Result) []string {
 	if err != nil {
 		return append(d, err.Error())
 	}
-	d = append(d, settingsDiff(s.Settings, now)...)
+	d = append(d, settingsDiff(withDefaults(s.Settings), now)...)
 	h := HeadlineOf(r)
+	then := s.Figures.CoveredMonitoredPct
+	if then != nil && *then == 0 && s.Figures.NotMonitoredPct == 100 {
+		then = nil // written as 0 before "not measurable" had its own value
+	}
+	if a, b := pctText(then), pctText(h.CoveredMonitoredPct); a != b {
+		d = append(d, fmt.Sprintf("covered, of the monitored target: %s then, %s now", a, b))
+	}
 	for _, f := range []struct {
 		name      string
 		then, now float64
 		unit      string
 	}{
-		{"covered, of the monitored target", s.Figures.CoveredMonitoredPct, h.CoveredMonitoredPct, "%"},
 		{"covered, of the whole target", s.Figures.CoveredTargetPct, h.CoveredTargetPct, "%"},
 		{"not monitored", s.Figures.NotMonitoredPct, h.NotMonitoredPct, "%"},
 		{"holes", float64(s.Figures.Holes), float64(h.Holes), ""},
@@ -159,8 +171,36 @@ func (s SignOff) Differences(inputHash, study string, r *Result) []string {
 
 // String writes the headline figures for a person.
 func (h Headline) String() string {
+	if h.CoveredMonitoredPct == nil {
+		return fmt.Sprintf("coverage not measurable (no part of the target monitored; %.1f %% of the whole target covered), %d holes, %.2f mL lethal outside the margin",
+			h.CoveredTargetPct, h.Holes, h.OutsideMarginML)
+	}
 	return fmt.Sprintf("%.1f %% of the monitored target covered (%.1f %% of the whole target), %d holes, %.2f mL lethal outside the margin",
-		h.CoveredMonitoredPct, h.CoveredTargetPct, h.Holes, h.OutsideMarginML)
+		*h.CoveredMonitoredPct, h.CoveredTargetPct, h.Holes, h.OutsideMarginML)
+}
+
+// pctText is a headline percentage for a person: "not measurable" for nil.
+func pctText(p *float64) string {
+	if p == nil {
+		return "not measurable"
+	}
+	return fmt.Sprintf("%g %%", *p)
+}
+
+// withDefaults returns the SettingsJSON of a sign-off with the settings it
+// does not name (added to the program after it was made) at their
+// defaults, which is what the program did before they existed; settings
+// that cannot be read are returned as they are.
+func withDefaults(js json.RawMessage) json.RawMessage {
+	s := DefaultSettings()
+	if json.Unmarshal(js, &s) != nil {
+		return js
+	}
+	out, err := SettingsJSON(s)
+	if err != nil {
+		return js
+	}
+	return out
 }
 
 // SignOffState is what a report or window says about the sign-offs of a

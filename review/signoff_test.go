@@ -2,6 +2,7 @@ package review_test
 
 import (
 	"context"
+	"encoding/json"
 	"strings"
 	"testing"
 	"time"
@@ -90,5 +91,56 @@ func TestSignOffStale(t *testing.T) {
 	}
 	if _, err := review.NewSignOff(" ", review.OutcomeAccepted, "", "abc123", "", r, at); err == nil {
 		t.Errorf("a sign-off without a reviewer was accepted")
+	}
+}
+
+// TestSignOffBeforeNewSettings: a sign-off written before a setting
+// existed (its settings JSON lacks focal_length_mm and drift_flag_c) still
+// applies to the same analysis with those settings at their defaults, and
+// no longer once one of them differs; a headline written with a coverage
+// of 0 for a target with no monitored part reads as not measurable.
+func TestSignOffBeforeNewSettings(t *testing.T) {
+	r, err := review.Analyze(context.Background(), ballCase(), review.DefaultSettings(), nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	at := time.Date(2026, 5, 4, 13, 30, 0, 0, time.UTC)
+	so, err := review.NewSignOff("A. Reviewer", review.OutcomeAccepted, "", "abc123", "2.25.7", r, at)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var set map[string]any
+	if err := json.Unmarshal(so.Settings, &set); err != nil {
+		t.Fatal(err)
+	}
+	delete(set, "focal_length_mm")
+	delete(set, "drift_flag_c")
+	if so.Settings, err = json.Marshal(set); err != nil {
+		t.Fatal(err)
+	}
+	if d := so.Differences("abc123", "2.25.7", r); len(d) != 0 {
+		t.Errorf("an earlier sign-off of the same analysis differs: %q", d)
+	}
+	r2 := *r
+	r2.Settings.FocalLengthMM = 8
+	if d := strings.Join(so.Differences("abc123", "2.25.7", &r2), "; "); !strings.Contains(d, "focal length mm: 0 then, 8 now") {
+		t.Errorf("focal length changed: differences %q", d)
+	}
+
+	// Nothing monitored: the headline of then held 0 %, now null.
+	r3 := *r
+	r3.CoveredFraction, r3.CoveredFractionOfTarget, r3.NotMonitoredFraction = nil, 0, 1
+	old := so
+	old.Figures = review.HeadlineOf(&r3)
+	if old.Figures.CoveredMonitoredPct != nil {
+		t.Fatalf("headline of an unmonitored target: %v, want nil", *old.Figures.CoveredMonitoredPct)
+	}
+	zero := 0.0
+	old.Figures.CoveredMonitoredPct = &zero
+	if d := old.Differences("abc123", "2.25.7", &r3); len(d) != 0 {
+		t.Errorf("an earlier sign-off of an unmonitored target differs: %q", d)
+	}
+	if s := review.HeadlineOf(&r3).String(); !strings.Contains(s, "not measurable") || strings.Contains(s, "0.0 % of the monitored") {
+		t.Errorf("headline %q", s)
 	}
 }

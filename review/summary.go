@@ -3,6 +3,7 @@ package review
 import (
 	"fmt"
 	"io"
+	"math"
 	"strings"
 )
 
@@ -33,9 +34,9 @@ func (r *Result) WriteText(w io.Writer) error {
 
 	p("Target %q: %.2f mL; monitored %.2f mL (%.1f %%), not monitored %.2f mL (%.1f %%)\n",
 		r.Target, r.TargetVolumeML, r.MonitoredVolumeML, 100*r.MonitoredFraction, r.NotMonitoredML, 100*r.NotMonitoredFraction)
-	if r.MonitoredVolumeML > 0 {
+	if f := r.CoveredFraction; f != nil {
 		p("Covered (dose >= %g %s): %.2f mL = %.1f %% of the monitored target, %.1f %% of the whole target",
-			r.Threshold, r.DoseUnit, r.CoveredVolumeML, 100*r.CoveredFraction, 100*r.CoveredFractionOfTarget)
+			r.Threshold, r.DoseUnit, r.CoveredVolumeML, 100**f, 100*r.CoveredFractionOfTarget)
 	} else {
 		p("Covered (dose >= %g %s): not measurable (no part of the target is monitored)", r.Threshold, r.DoseUnit)
 	}
@@ -44,8 +45,8 @@ func (r *Result) WriteText(w io.Writer) error {
 	}
 	p("\n")
 	if a := r.AsMeasured; a != nil {
-		p("Corrected for heat left from earlier sonications (carry-over). As measured, without the correction: covered %.1f %% of the monitored target, %.1f %% of the whole target; %.3f mL lethal beyond the margin\n",
-			100*a.CoveredFraction, 100*a.CoveredFractionOfTarget, a.OutsideMarginLethalML)
+		p("Corrected for heat left from earlier sonications (carry-over). As measured, without the correction: covered %s of the monitored target, %.1f %% of the whole target; %.3f mL lethal beyond the margin\n",
+			fpct(a.CoveredFraction), 100*a.CoveredFractionOfTarget, a.OutsideMarginLethalML)
 	}
 	p("D98 %s, D50 %s, D2 %s %s (monitored target)\n\n", fnum(r.D98), fnum(r.D50), fnum(r.D2), r.DoseUnit)
 	if m := r.Monitoring; m != nil {
@@ -92,14 +93,22 @@ func (r *Result) WriteText(w io.Writer) error {
 			p("%10d  (excluded)  %28s  %9s  %11s\n", s.Number, "", fnum0(s.CoolingS), fnum1(s.ResidualRiseC))
 			continue
 		}
-		p("%10d  %7s  %6s  %8s  %15.3f  %13.1f%%  %16.3f  %9s  %11s\n", s.Number, fnum1(s.PeakTempC), fnum1(s.Peak3x3C), fnum1(s.TimeAbove43S),
-			s.LethalAddedML, 100*s.AddedCoverage, s.OutsideAddedML, fnum0(s.CoolingS), fnum1(s.ResidualRiseC))
+		added := "n/a" // of a monitored target that is empty
+		if r.CoveredFraction != nil {
+			added = fmt.Sprintf("%.1f%%", 100*s.AddedCoverage)
+		}
+		p("%10d  %7s  %6s  %8s  %15.3f  %14s  %16.3f  %9s  %11s\n", s.Number, fnum1(s.PeakTempC), fnum1(s.Peak3x3C), fnum1(s.TimeAbove43S),
+			s.LethalAddedML, added, s.OutsideAddedML, fnum0(s.CoolingS), fnum1(s.ResidualRiseC))
 	}
 	p("(residual °C: estimated heat left from earlier sonications at the baseline, largest over the target and margin; not seen by the thermometry)\n")
 	for _, q := range r.Quality {
 		if len(q.FlaggedFrames) > 0 || q.Wraps > 0 {
 			p("Sonication %d thermometry: flagged frames %v, suspected wraps %d, max motion %.3f, max drift %.1f °C\n",
 				q.Sonication, q.FlaggedFrames, q.Wraps, q.MaxMotion, q.MaxDriftC)
+		}
+		if q.DriftFlagged(r.Settings.DriftFlagC) {
+			p("Sonication %d thermometry: drift %.2f °C removed, above the %g °C drift flag; its dose deserves a second look\n",
+				q.Sonication, math.Abs(q.MaxDriftC), driftLimit(r.Settings.DriftFlagC))
 		}
 	}
 	if len(r.Warnings) > 0 {
@@ -129,6 +138,10 @@ func fnum1(x *float64) string {
 	}
 	return fmt.Sprintf("%.1f", *x)
 }
+
+// PercentText formats a fraction such as Result.CoveredFraction as a
+// percentage with one decimal ("87.5 %"), "not measurable" for nil.
+func PercentText(f *float64) string { return fpct(f) }
 
 // fpct formats a fraction as a percentage, "not measurable" for nil.
 func fpct(f *float64) string {

@@ -69,8 +69,8 @@ func TestThermometryPath(t *testing.T) {
 	if s.TimeAbove43S == nil || *s.TimeAbove43S != 20 {
 		t.Errorf("time above 43 °C %v s, want 20", ptrString(s.TimeAbove43S))
 	}
-	if r.CoveredFraction < 0.999 || r.D98 == nil || *r.D98 < 240 {
-		t.Errorf("covered %.4f, D98 %v", r.CoveredFraction, ptrString(r.D98))
+	if (*r.CoveredFraction) < 0.999 || r.D98 == nil || *r.D98 < 240 {
+		t.Errorf("covered %.4f, D98 %v", (*r.CoveredFraction), ptrString(r.D98))
 	}
 	if len(r.Quality) != 1 || len(r.Quality[0].Frames) != 12 {
 		t.Fatalf("quality %+v", r.Quality)
@@ -123,7 +123,7 @@ func TestMonteCarloUncertainty(t *testing.T) {
 	if mid := (*p05 + *p95) / 2; math.Abs(mid-0.5) > 0.15 {
 		t.Errorf("mid percentile %.3f, want about 0.5", mid)
 	}
-	t.Logf("covered %.3f p05 %.3f p95 %.3f; hole %+v", r1.CoveredFraction, *p05, *p95, r1.Holes[0])
+	t.Logf("covered %.3f p05 %.3f p95 %.3f; hole %+v", (*r1.CoveredFraction), *p05, *p95, r1.Holes[0])
 	// Same seed: same figures from a fresh session.
 	r2 := analyseCase(t, c, set)
 	if *r2.CoveredFractionP05 != *p05 || *r2.CoveredFractionP95 != *p95 {

@@ -53,6 +53,8 @@ import (
 	"strings"
 	"time"
 
+	"dosecover/dosemap/dicomwrite"
+
 	"github.com/suyashkumar/dicom"
 	"github.com/suyashkumar/dicom/pkg/tag"
 )
@@ -555,7 +557,7 @@ func newElements(vals map[tag.Tag][]string) ([]*dicom.Element, error) {
 		}
 		out = append(out, e)
 	}
-	sortElements(out)
+	dicomwrite.SortByTag(out)
 	return out, nil
 }
 
@@ -574,12 +576,8 @@ func upsert(es, add []*dicom.Element) []*dicom.Element {
 			es = append(es, a)
 		}
 	}
-	sortElements(es)
+	dicomwrite.SortByTag(es)
 	return es
-}
-
-func sortElements(es []*dicom.Element) {
-	sort.SliceStable(es, func(a, b int) bool { return es[a].Tag.Uint32() < es[b].Tag.Uint32() })
 }
 
 // elements applies the profile to one level of elements and recurses into
@@ -706,7 +704,7 @@ func (d *Deidentifier) elements(es []*dicom.Element, patientID string, top bool)
 		}
 		out = append(out, e)
 	}
-	sortElements(out)
+	dicomwrite.SortByTag(out)
 	return out, nil
 }
 

@@ -10,6 +10,8 @@ import (
 	"strings"
 	"testing"
 
+	"dosecover/dosemap/dicomwrite"
+
 	"github.com/suyashkumar/dicom"
 	"github.com/suyashkumar/dicom/pkg/tag"
 )
@@ -40,6 +42,20 @@ const (
 	explicit = "1.2.840.10008.1.2.1"
 )
 
+// header returns the file meta information and SOP Common elements of an
+// invented instance: SOP class and instance, explicit VR little endian,
+// and its Modality.
+func header(t testing.TB, sopClass, sopInstance, modality string) []*dicom.Element {
+	return []*dicom.Element{
+		el(t, tag.MediaStorageSOPClassUID, []string{sopClass}),
+		el(t, tag.MediaStorageSOPInstanceUID, []string{sopInstance}),
+		el(t, tag.TransferSyntaxUID, []string{explicit}),
+		el(t, tag.SOPClassUID, []string{sopClass}),
+		el(t, tag.SOPInstanceUID, []string{sopInstance}),
+		el(t, tag.Modality, []string{modality}),
+	}
+}
+
 // patient returns the identifying patient and site elements shared by both files.
 func patient(t testing.TB) []*dicom.Element {
 	return []*dicom.Element{
@@ -64,13 +80,7 @@ func patient(t testing.TB) []*dicom.Element {
 // private attribute and known pixel bytes.
 func writeMR(t testing.TB, path string, pixels []byte) {
 	t.Helper()
-	es := []*dicom.Element{
-		el(t, tag.MediaStorageSOPClassUID, []string{mrClass}),
-		el(t, tag.MediaStorageSOPInstanceUID, []string{mrUID}),
-		el(t, tag.TransferSyntaxUID, []string{explicit}),
-		el(t, tag.SOPClassUID, []string{mrClass}),
-		el(t, tag.SOPInstanceUID, []string{mrUID}),
-		el(t, tag.Modality, []string{"MR"}),
+	es := append(header(t, mrClass, mrUID, "MR"),
 		el(t, tag.SeriesInstanceUID, []string{seriesU}),
 		el(t, tag.SeriesDescription, []string{"anatomy INVENTED"}),
 		el(t, tag.FrameOfReferenceUID, []string{forUID}),
@@ -87,9 +97,9 @@ func writeMR(t testing.TB, path string, pixels []byte) {
 		el(t, tag.PhotometricInterpretation, []string{"MONOCHROME2"}),
 		el(t, tag.PixelData, dicom.PixelDataInfo{IntentionallyUnprocessed: true, UnprocessedValueData: pixels}),
 		// A private creator and a private value holding the name.
-		{Tag: tag.Tag{Group: 0x0029, Element: 0x0010}, RawValueRepresentation: "LO", ValueRepresentation: tag.VRString, Value: mustValue(t, []string{"FICTIONAL VENDOR"})},
-		{Tag: tag.Tag{Group: 0x0029, Element: 0x1001}, RawValueRepresentation: "LO", ValueRepresentation: tag.VRString, Value: mustValue(t, []string{"TESTPERSON private"})},
-	}
+		&dicom.Element{Tag: tag.Tag{Group: 0x0029, Element: 0x0010}, RawValueRepresentation: "LO", ValueRepresentation: tag.VRString, Value: mustValue(t, []string{"FICTIONAL VENDOR"})},
+		&dicom.Element{Tag: tag.Tag{Group: 0x0029, Element: 0x1001}, RawValueRepresentation: "LO", ValueRepresentation: tag.VRString, Value: mustValue(t, []string{"TESTPERSON private"})},
+	)
 	writeDS(t, path, append(es, patient(t)...))
 }
 
@@ -120,19 +130,13 @@ func writeRT(t *testing.T, path string) {
 		el(t, tag.ROIName, []string{"Target"}),
 		el(t, tag.ROIDescription, []string{"drawn by DRFICTION"}),
 	}}
-	es := []*dicom.Element{
-		el(t, tag.MediaStorageSOPClassUID, []string{rtClass}),
-		el(t, tag.MediaStorageSOPInstanceUID, []string{rtUID}),
-		el(t, tag.TransferSyntaxUID, []string{explicit}),
-		el(t, tag.SOPClassUID, []string{rtClass}),
-		el(t, tag.SOPInstanceUID, []string{rtUID}),
-		el(t, tag.Modality, []string{"RTSTRUCT"}),
+	es := append(header(t, rtClass, rtUID, "RTSTRUCT"),
 		el(t, tag.SeriesInstanceUID, []string{"1.2.826.0.1.3680043.99.1.6"}),
 		el(t, tag.StructureSetLabel, []string{"plan of TESTPERSON"}),
 		el(t, tag.StructureSetDate, []string{"20260313"}),
 		el(t, tag.ReferencedFrameOfReferenceSequence, refFOR),
 		el(t, tag.StructureSetROISequence, roi),
-	}
+	)
 	writeDS(t, path, append(es, patient(t)...))
 }
 
@@ -146,7 +150,7 @@ func mustValue(t testing.TB, v any) dicom.Value {
 
 func writeDS(t testing.TB, path string, es []*dicom.Element) {
 	t.Helper()
-	sortElements(es)
+	dicomwrite.SortByTag(es)
 	var buf bytes.Buffer
 	if err := dicom.Write(&buf, dicom.Dataset{Elements: es}, dicom.SkipVRVerification()); err != nil {
 		t.Fatalf("writing %s: %v", path, err)

@@ -11,7 +11,6 @@ import (
 	"testing"
 	"time"
 
-	"github.com/suyashkumar/dicom"
 	"github.com/suyashkumar/dicom/pkg/tag"
 
 	"dosecover/dosemap/dicomio"
@@ -151,18 +150,12 @@ func TestHostileFilesAreSkipped(t *testing.T) {
 func TestLatin1NamesWithoutCharacterSet(t *testing.T) {
 	src := t.TempDir()
 	name := "M\xdcLLER^J\xd6RG" // MÜLLER^JÖRG in ISO 8859-1
-	es := []*dicom.Element{
-		el(t, tag.MediaStorageSOPClassUID, []string{mrClass}),
-		el(t, tag.MediaStorageSOPInstanceUID, []string{mrUID}),
-		el(t, tag.TransferSyntaxUID, []string{explicit}),
-		el(t, tag.SOPClassUID, []string{mrClass}),
-		el(t, tag.SOPInstanceUID, []string{mrUID}),
-		el(t, tag.Modality, []string{"MR"}),
+	es := append(header(t, mrClass, mrUID, "MR"),
 		el(t, tag.PatientName, []string{name}),
 		el(t, tag.PatientID, []string{"\xc9-77"}),
 		el(t, tag.SeriesDescription, []string{"thermo m\xdcller \xff\xfe j\xd6rg"}),
 		el(t, tag.StudyDescription, []string{"\xdc\xdc\xdc" + "M\xdcLLER"}),
-	}
+	)
 	writeDS(t, filepath.Join(src, "latin1.dcm"), es)
 	dst := filepath.Join(t.TempDir(), "out")
 	res, err := Folder(context.Background(), src, dst, Options{Salt: "s"}, nil)

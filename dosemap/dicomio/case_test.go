@@ -12,6 +12,7 @@ import (
 	"testing"
 
 	"dosecover/dosemap"
+	"dosecover/dosemap/dicomwrite"
 
 	"github.com/suyashkumar/dicom"
 	"github.com/suyashkumar/dicom/pkg/tag"
@@ -395,7 +396,7 @@ func writeEnhanced(t testing.TB, path string, slices, times int) {
 					el(t, tag.ComplexImageComponent, []string{"PHASE"}),
 				}}),
 			}
-			sortElements(item)
+			dicomwrite.SortByTag(item)
 			perFrame = append(perFrame, item)
 			for j := 0; j < rows; j++ {
 				for i := 0; i < cols; i++ {
@@ -413,7 +414,7 @@ func writeEnhanced(t testing.TB, path string, slices, times int) {
 			el(t, tag.ImageOrientationPatient, ds(1, 0, 0, 0, 1, 0)),
 		}}),
 	}
-	sortElements(shared)
+	dicomwrite.SortByTag(shared)
 	els := []*dicom.Element{
 		el(t, tag.ImageType, []string{"ORIGINAL", "PRIMARY", "PHASE", "NONE"}),
 		el(t, tag.Modality, []string{"MR"}),

@@ -21,7 +21,7 @@ type target struct {
 // load reads the pixel data of the files the case uses.
 func (cr *caseReader) load(ctx context.Context, progress func(done, total int)) (*dosemap.Case, error) {
 	inv := cr.inv
-	c := &dosemap.Case{Label: filepath.Base(filepath.Clean(cr.dir)), Patient: cr.patient}
+	c := &dosemap.Case{Label: filepath.Base(filepath.Clean(cr.dir)), Patient: cr.patient, StudyUID: cr.inv.Study}
 	// A study chosen among several is labelled by its own folder, or by
 	// the folder read and its date when it shares that folder.
 	if len(inv.Studies) > 1 {

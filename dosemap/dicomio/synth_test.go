@@ -8,6 +8,8 @@ import (
 	"strconv"
 	"testing"
 
+	"dosecover/dosemap/dicomwrite"
+
 	"github.com/suyashkumar/dicom"
 	"github.com/suyashkumar/dicom/pkg/tag"
 )
@@ -48,7 +50,7 @@ func writeDICOM(t testing.TB, path string, sopClass, sopInstance string, big boo
 		el(t, tag.SOPInstanceUID, []string{sopInstance}),
 	}
 	all = append(all, els...)
-	sortElements(all)
+	dicomwrite.SortByTag(all)
 	if err := os.MkdirAll(filepath.Dir(path), 0o755); err != nil {
 		t.Fatal(err)
 	}
@@ -59,14 +61,6 @@ func writeDICOM(t testing.TB, path string, sopClass, sopInstance string, big boo
 	defer f.Close()
 	if err := dicom.Write(f, dicom.Dataset{Elements: all}); err != nil {
 		t.Fatalf("writing %s: %v", path, err)
-	}
-}
-
-func sortElements(es []*dicom.Element) {
-	for i := 1; i < len(es); i++ {
-		for j := i; j > 0 && es[j].Tag.Compare(es[j-1].Tag) < 0; j-- {
-			es[j], es[j-1] = es[j-1], es[j]
-		}
 	}
 }
 
@@ -218,7 +212,7 @@ func rwvElement(t testing.TB, slope, intercept float64, units, label string) *di
 		el(t, tag.RealWorldValueFirstValueMapped, []int{0}),
 		el(t, tag.RealWorldValueLastValueMapped, []int{65535}),
 	}
-	sortElements(item)
+	dicomwrite.SortByTag(item)
 	return el(t, tag.RealWorldValueMappingSequence, [][]*dicom.Element{item})
 }
 

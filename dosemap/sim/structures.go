@@ -7,6 +7,7 @@ import (
 	"path/filepath"
 
 	"dosecover/dosemap"
+	"dosecover/dosemap/dicomwrite"
 
 	"github.com/suyashkumar/dicom/pkg/tag"
 )
@@ -55,27 +56,27 @@ func (s *Session) writeStructures(dir string, id ids, truth *Truth) error {
 	var e elems
 	s.patientStudy(&e, id, SOPClassRTStructure, id.structInstance)
 	when := s.Start.Add(-5 * 60e9)
-	e.add(tag.InstanceCreationDate, dicomDate(when))
-	e.add(tag.InstanceCreationTime, dicomTime(when))
-	e.add(tag.SeriesDate, dicomDate(when))
-	e.add(tag.SeriesTime, dicomTime(when))
-	e.add(tag.Modality, "RTSTRUCT")
-	e.add(tag.SeriesDescription, "Treatment plan structures")
-	e.add(tag.OperatorsName, "")
-	e.add(tag.SeriesInstanceUID, id.structSeries)
-	e.add(tag.SeriesNumber, "900")
-	e.add(tag.InstanceNumber, "1")
-	e.add(tag.FrameOfReferenceUID, id.frame)
-	e.add(tag.PositionReferenceIndicator, "")
-	e.add(tag.StructureSetLabel, "PLAN")
-	e.add(tag.StructureSetName, "Ablation plan")
-	e.add(tag.StructureSetDate, dicomDate(when))
-	e.add(tag.StructureSetTime, dicomTime(when))
+	e.Add(tag.InstanceCreationDate, dicomDate(when))
+	e.Add(tag.InstanceCreationTime, dicomTime(when))
+	e.Add(tag.SeriesDate, dicomDate(when))
+	e.Add(tag.SeriesTime, dicomTime(when))
+	e.Add(tag.Modality, "RTSTRUCT")
+	e.Add(tag.SeriesDescription, "Treatment plan structures")
+	e.Add(tag.OperatorsName, "")
+	e.Add(tag.SeriesInstanceUID, id.structSeries)
+	e.Add(tag.SeriesNumber, "900")
+	e.Add(tag.InstanceNumber, "1")
+	e.Add(tag.FrameOfReferenceUID, id.frame)
+	e.Add(tag.PositionReferenceIndicator, "")
+	e.Add(tag.StructureSetLabel, "PLAN")
+	e.Add(tag.StructureSetName, "Ablation plan")
+	e.Add(tag.StructureSetDate, dicomDate(when))
+	e.Add(tag.StructureSetTime, dicomTime(when))
 
 	imageRef := func(k int) elems {
 		var r elems
-		r.add(tag.ReferencedSOPClassUID, SOPClassMRImage)
-		r.add(tag.ReferencedSOPInstanceUID, id.instance(id.anatomySeries, k+1))
+		r.Add(tag.ReferencedSOPClassUID, SOPClassMRImage)
+		r.Add(tag.ReferencedSOPInstanceUID, id.instance(id.anatomySeries, k+1))
 		return r
 	}
 	var images []elems
@@ -83,16 +84,16 @@ func (s *Session) writeStructures(dir string, id ids, truth *Truth) error {
 		images = append(images, imageRef(k))
 	}
 	var series elems
-	series.add(tag.SeriesInstanceUID, id.anatomySeries)
-	series.seq(tag.ContourImageSequence, images...)
+	series.Add(tag.SeriesInstanceUID, id.anatomySeries)
+	series.Seq(tag.ContourImageSequence, images...)
 	var study elems
-	study.add(tag.ReferencedSOPClassUID, studyComponentSOP)
-	study.add(tag.ReferencedSOPInstanceUID, id.study)
-	study.seq(tag.RTReferencedSeriesSequence, series)
+	study.Add(tag.ReferencedSOPClassUID, studyComponentSOP)
+	study.Add(tag.ReferencedSOPInstanceUID, id.study)
+	study.Seq(tag.RTReferencedSeriesSequence, series)
 	var frame elems
-	frame.add(tag.FrameOfReferenceUID, id.frame)
-	frame.seq(tag.RTReferencedStudySequence, study)
-	e.seq(tag.ReferencedFrameOfReferenceSequence, frame)
+	frame.Add(tag.FrameOfReferenceUID, id.frame)
+	frame.Seq(tag.RTReferencedStudySequence, study)
+	e.Seq(tag.ReferencedFrameOfReferenceSequence, frame)
 
 	type roi struct {
 		number       int
@@ -113,43 +114,39 @@ func (s *Session) writeStructures(dir string, id ids, truth *Truth) error {
 	var ssroi, contours, obs []elems
 	for _, r := range rois {
 		var it elems
-		it.add(tag.ROINumber, fmt.Sprint(r.number))
-		it.add(tag.ReferencedFrameOfReferenceUID, id.frame)
-		it.add(tag.ROIName, r.name)
-		it.add(tag.ROIGenerationAlgorithm, "MANUAL")
+		it.Add(tag.ROINumber, fmt.Sprint(r.number))
+		it.Add(tag.ReferencedFrameOfReferenceUID, id.frame)
+		it.Add(tag.ROIName, r.name)
+		it.Add(tag.ROIGenerationAlgorithm, "MANUAL")
 		ssroi = append(ssroi, it)
 
 		var cs []elems
 		for n, c := range r.contours {
 			var ce elems
-			ce.seq(tag.ContourImageSequence, imageRef(r.planes[n]))
-			ce.add(tag.ContourGeometricType, "CLOSED_PLANAR")
-			ce.add(tag.NumberOfContourPoints, fmt.Sprint(len(c.Points)))
-			ce.add(tag.ContourNumber, fmt.Sprint(n+1))
-			xs := make([]float64, 0, 3*len(c.Points))
-			for _, p := range c.Points {
-				xs = append(xs, p[0], p[1], p[2])
-			}
-			ce.add(tag.ContourData, joinDS(xs))
+			ce.Seq(tag.ContourImageSequence, imageRef(r.planes[n]))
+			ce.Add(tag.ContourGeometricType, "CLOSED_PLANAR")
+			ce.Add(tag.NumberOfContourPoints, fmt.Sprint(len(c.Points)))
+			ce.Add(tag.ContourNumber, fmt.Sprint(n+1))
+			ce.Add(tag.ContourData, dicomwrite.ContourData(c.Points))
 			cs = append(cs, ce)
 		}
 		var rc elems
-		rc.add(tag.ROIDisplayColor, r.color)
-		rc.seq(tag.ContourSequence, cs...)
-		rc.add(tag.ReferencedROINumber, fmt.Sprint(r.number))
+		rc.Add(tag.ROIDisplayColor, r.color)
+		rc.Seq(tag.ContourSequence, cs...)
+		rc.Add(tag.ReferencedROINumber, fmt.Sprint(r.number))
 		contours = append(contours, rc)
 
 		var ob elems
-		ob.add(tag.ObservationNumber, fmt.Sprint(r.number))
-		ob.add(tag.ReferencedROINumber, fmt.Sprint(r.number))
-		ob.add(tag.RTROIInterpretedType, r.interp)
-		ob.add(tag.ROIInterpreter, "")
+		ob.Add(tag.ObservationNumber, fmt.Sprint(r.number))
+		ob.Add(tag.ReferencedROINumber, fmt.Sprint(r.number))
+		ob.Add(tag.RTROIInterpretedType, r.interp)
+		ob.Add(tag.ROIInterpreter, "")
 		obs = append(obs, ob)
 	}
-	e.seq(tag.StructureSetROISequence, ssroi...)
-	e.seq(tag.ROIContourSequence, contours...)
-	e.seq(tag.RTROIObservationsSequence, obs...)
-	e.add(tag.ApprovalStatus, "UNAPPROVED")
+	e.Seq(tag.StructureSetROISequence, ssroi...)
+	e.Seq(tag.ROIContourSequence, contours...)
+	e.Seq(tag.RTROIObservationsSequence, obs...)
+	e.Add(tag.ApprovalStatus, "UNAPPROVED")
 
 	data, err := encode(SOPClassRTStructure, id.structInstance, e)
 	if err != nil {

@@ -197,7 +197,7 @@ func MetricsOf(r *review.Result) Metrics {
 	}
 	m := Metrics{
 		TargetML:            Num(r.TargetVolumeML),
-		CoveragePct:         pct(r.CoveredFraction),
+		CoveragePct:         optPct(r.CoveredFraction), // null: nothing of the target monitored
 		CoverageOfTargetPct: pct(r.CoveredFractionOfTarget),
 		CoverageP05Pct:      optPct(r.CoveredFractionP05),
 		CoverageP95Pct:      optPct(r.CoveredFractionP95),
@@ -218,12 +218,16 @@ func MetricsOf(r *review.Result) Metrics {
 }
 
 // FlagsOf returns the quality remarks of a Result: sonications with
-// flagged thermometry frames, then the analysis warnings.
+// flagged thermometry frames or more drift removed than the settings'
+// drift_flag_c, then the analysis warnings.
 func FlagsOf(r *review.Result) []string {
 	flags := []string{}
 	for _, q := range r.Quality {
 		if len(q.FlaggedFrames) > 0 {
 			flags = append(flags, fmt.Sprintf("sonication %d: %d of %d frames flagged", q.Sonication, len(q.FlaggedFrames), len(q.Frames)))
+		}
+		if q.DriftFlagged(r.Settings.DriftFlagC) {
+			flags = append(flags, fmt.Sprintf("sonication %d: drift %.2f °C removed, above %g °C", q.Sonication, math.Abs(q.MaxDriftC), r.Settings.DriftFlagC))
 		}
 	}
 	return append(flags, r.Warnings...)

@@ -63,10 +63,10 @@ func TestLoadSettings(t *testing.T) {
 // percent, mm³ to mL (1 mL = 1000 mm³), avoid volumes summed, the largest
 // hole taken.
 func TestMetricsOf(t *testing.T) {
-	p05, p95 := 0.91, 0.97
+	cov, p05, p95 := 0.95, 0.91, 0.97
 	r := &review.Result{
 		Coverage: review.Coverage{
-			TargetVolumeML: 4.2, CoveredFraction: 0.95, CoveredFractionOfTarget: 0.9,
+			TargetVolumeML: 4.2, CoveredFraction: &cov, CoveredFractionOfTarget: 0.9,
 			CoveredFractionP05: &p05, CoveredFractionP95: &p95, NotMonitoredFraction: 0.05,
 		},
 		Holes:                 []review.Hole{{VolumeMM3: 120}, {VolumeMM3: 80}},

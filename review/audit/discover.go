@@ -356,37 +356,6 @@ func studyUIDOf(path string) (uid string) {
 	return ""
 }
 
-// collect lists the files of the case in dir: every regular file below it
-// (hidden ones included; symbolic links are not followed), as the input
-// hash takes them.
-func collect(dir, name string) (Case, error) {
-	c := Case{Name: name, Dir: dir}
-	err := filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {
-		if err != nil {
-			return err
-		}
-		if !d.Type().IsRegular() {
-			return nil
-		}
-		fi, err := d.Info()
-		if err != nil {
-			return err
-		}
-		rel, err := filepath.Rel(dir, p)
-		if err != nil {
-			return err
-		}
-		c.Files = append(c.Files, filepath.ToSlash(rel))
-		c.Bytes += fi.Size()
-		return nil
-	})
-	if err != nil {
-		return Case{}, fmt.Errorf("listing case folder %s: %w", dir, err)
-	}
-	sort.Strings(c.Files)
-	return c, nil
-}
-
 // assignIDs gives every case a file-system-safe ID derived from its Name;
 // names that map to the same ID get a numeric suffix in Name order.
 func assignIDs(cases []Case) {
@@ -433,10 +402,6 @@ func SafeName(name string) string {
 // like a DICOM file (dicomio.SniffFile: the check every part of dosecover
 // shares; a FIFO or a device is never opened for a blocking read).
 func IsDICOMFile(p string) (bool, error) { return dicomio.SniffFile(p) }
-
-// IsDICOM reports whether head (the first 132 bytes of a file, or all of a
-// shorter file) looks like DICOM; see dicomio.IsDICOM.
-func IsDICOM(head []byte) bool { return dicomio.IsDICOM(head) }
 
 // Shard selects one part of a case list, so that several machines can share
 // a large registry: shard Index of Count (1-based) takes the cases whose

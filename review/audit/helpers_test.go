@@ -6,8 +6,10 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"io/fs"
 	"os"
 	"path/filepath"
+	"sort"
 	"strings"
 	"sync"
 	"sync/atomic"
@@ -141,3 +143,34 @@ func tempFiles(t testing.TB, dir string) []string {
 }
 
 var errStop = errors.New("stop")
+
+// collect lists the files of the case in dir: every regular file below it
+// (hidden ones included; symbolic links are not followed), as the input
+// hash takes them.
+func collect(dir, name string) (Case, error) {
+	c := Case{Name: name, Dir: dir}
+	err := filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {
+		if err != nil {
+			return err
+		}
+		if !d.Type().IsRegular() {
+			return nil
+		}
+		fi, err := d.Info()
+		if err != nil {
+			return err
+		}
+		rel, err := filepath.Rel(dir, p)
+		if err != nil {
+			return err
+		}
+		c.Files = append(c.Files, filepath.ToSlash(rel))
+		c.Bytes += fi.Size()
+		return nil
+	})
+	if err != nil {
+		return Case{}, fmt.Errorf("listing case folder %s: %w", dir, err)
+	}
+	sort.Strings(c.Files)
+	return c, nil
+}

@@ -58,6 +58,23 @@ type Metrics struct {
 	AvoidLethalML       Num `json:"avoid_lethal_ml"`   // lethal volume inside avoid structures
 }
 
+// UnmarshalJSON reads Metrics. Records written before "not measurable"
+// had its own value hold a coverage of 0 for a target with no monitored
+// part (not_monitored_pct exactly 100); they read as NaN (not measurable)
+// like the records written since.
+func (m *Metrics) UnmarshalJSON(b []byte) error {
+	type plain Metrics
+	var p plain
+	if err := json.Unmarshal(b, &p); err != nil {
+		return err
+	}
+	if p.NotMonitoredPct == 100 && p.CoveragePct == 0 {
+		p.CoveragePct = Num(math.NaN())
+	}
+	*m = Metrics(p)
+	return nil
+}
+
 // NoMetrics returns Metrics with every figure NaN (not computed).
 func NoMetrics() Metrics {
 	n := Num(math.NaN())

@@ -1,7 +1,6 @@
 package audit
 
 import (
-	"bytes"
 	"context"
 	"encoding/json"
 	"fmt"
@@ -12,7 +11,8 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/suyashkumar/dicom"
+	"dosecover/dosemap/dicomwrite"
+
 	"github.com/suyashkumar/dicom/pkg/tag"
 )
 
@@ -20,31 +20,18 @@ import (
 // Explicit VR Little Endian) of the given study and series.
 func studyDICOM(t *testing.T, study, series string) []byte {
 	t.Helper()
-	var elems []*dicom.Element
-	for _, e := range []struct {
-		t tag.Tag
-		v []string
-	}{
-		{tag.MediaStorageSOPClassUID, []string{"1.2.840.10008.5.1.4.1.1.4"}},
-		{tag.MediaStorageSOPInstanceUID, []string{series + ".1"}},
-		{tag.TransferSyntaxUID, []string{"1.2.840.10008.1.2.1"}},
-		{tag.SOPClassUID, []string{"1.2.840.10008.5.1.4.1.1.4"}},
-		{tag.SOPInstanceUID, []string{series + ".1"}},
-		{tag.Modality, []string{"MR"}},
-		{tag.StudyInstanceUID, []string{study}},
-		{tag.SeriesInstanceUID, []string{series}},
-	} {
-		el, err := dicom.NewElement(e.t, e.v)
-		if err != nil {
-			t.Fatal(err)
-		}
-		elems = append(elems, el)
-	}
-	var buf bytes.Buffer
-	if err := dicom.Write(&buf, dicom.Dataset{Elements: elems}); err != nil {
+	const mrClass = "1.2.840.10008.5.1.4.1.1.4"
+	var e dicomwrite.Elements
+	e.Add(tag.SOPClassUID, mrClass)
+	e.Add(tag.SOPInstanceUID, series+".1")
+	e.Add(tag.Modality, "MR")
+	e.Add(tag.StudyInstanceUID, study)
+	e.Add(tag.SeriesInstanceUID, series)
+	data, err := dicomwrite.Encode(dicomwrite.Implementation{ClassUID: "2.25.1", VersionName: "AUDIT_TEST"}, mrClass, series+".1", e)
+	if err != nil {
 		t.Fatal(err)
 	}
-	return buf.Bytes()
+	return data
 }
 
 // TestDiscoverOneStudyInSubfolders: a folder whose series sit in

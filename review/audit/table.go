@@ -3,6 +3,7 @@ package audit
 import (
 	"encoding/csv"
 	"io"
+	"math"
 	"strconv"
 	"strings"
 )
@@ -23,7 +24,9 @@ var tailHeader = []string{"settings_sha256", "input_sha256", "seconds", "resumed
 // coverage_pct, coverage_of_target_pct, coverage_p05_pct, coverage_p95_pct, not_monitored_pct,
 // holes, largest_hole_ml, outside_margin_ml, avoid_lethal_ml),
 // quality_flags (separated by "; "), one column per setting, then
-// settings_sha256, input_sha256, seconds and resumed.
+// settings_sha256, input_sha256, seconds and resumed. An analysed case
+// with no part of its target monitored has "not measurable" as its
+// coverage_pct.
 func Header(settings []Column) []string {
 	h := append([]string{}, baseHeader...)
 	for _, c := range settings {
@@ -43,6 +46,8 @@ func (r Row) Record(settings []Column) []string {
 	}
 	if r.Status != StatusOK {
 		out[10] = "" // holes not counted
+	} else if math.IsNaN(float64(m.CoveragePct)) {
+		out[5] = "not measurable" // no part of the target monitored: no figure, not 0
 	}
 	for _, c := range settings {
 		out = append(out, c.Value)

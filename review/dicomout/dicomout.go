@@ -15,18 +15,14 @@
 package dicomout
 
 import (
-	"bytes"
 	"crypto/rand"
-	"fmt"
 	"math/big"
-	"sort"
 	"strconv"
-	"strings"
 	"time"
 
 	"dosecover/dosemap"
+	"dosecover/dosemap/dicomwrite"
 
-	"github.com/suyashkumar/dicom"
 	"github.com/suyashkumar/dicom/pkg/tag"
 )
 
@@ -35,7 +31,6 @@ const (
 	SOPClassEncapsulatedPDF = "1.2.840.10008.5.1.4.1.1.104.1"
 	SOPClassMRImage         = "1.2.840.10008.5.1.4.1.1.4"
 	SOPClassRTStructureSet  = "1.2.840.10008.5.1.4.1.1.481.3"
-	explicitVRLittle        = "1.2.840.10008.1.2.1"
 	implementationLabel     = "DOSECOVER"
 )
 
@@ -73,146 +68,63 @@ func NewUID() string {
 }
 
 // elems collects the elements of one data set.
-type elems []*dicom.Element
+type elems = dicomwrite.Elements
 
-func (e *elems) add(t tag.Tag, v any) {
-	switch x := v.(type) {
-	case string:
-		v = []string{x}
-	case int:
-		v = []int{x}
-	case float64:
-		v = []float64{x}
-	}
-	el, err := dicom.NewElement(t, v)
-	if err != nil {
-		panic(fmt.Sprintf("dicomout: element %v: %v", t, err)) // programmer error: wrong Go type for the VR
-	}
-	*e = append(*e, el)
-}
-
-// addVR adds an element whose tag allows several VRs, with the VR given.
-func (e *elems) addVR(t tag.Tag, vr string, v any) {
-	e.add(t, v)
-	(*e)[len(*e)-1].RawValueRepresentation = vr
-}
-
-func (e *elems) seq(t tag.Tag, items ...elems) {
-	v := make([][]*dicom.Element, len(items))
-	for n, it := range items {
-		sortElems(it)
-		v[n] = it
-	}
-	e.add(t, v)
-}
-
-func sortElems(es elems) {
-	sort.SliceStable(es, func(a, b int) bool {
-		if es[a].Tag.Group != es[b].Tag.Group {
-			return es[a].Tag.Group < es[b].Tag.Group
-		}
-		return es[a].Tag.Element < es[b].Tag.Element
-	})
-}
-
-// ds formats a decimal string (VR DS, at most 16 characters).
-func ds(x float64) string {
-	for prec := 10; prec > 0; prec-- {
-		s := strconv.FormatFloat(x, 'g', prec, 64)
-		if len(s) <= 16 {
-			return s
-		}
-	}
-	return "0"
-}
-
-func dsList(xs ...float64) []string {
-	out := make([]string, len(xs))
-	for n, x := range xs {
-		out[n] = ds(x)
-	}
-	return out
-}
-
-// joinDS pre-joins coordinates into one backslash-separated DS value: the
-// DICOM library joins a list of strings in quadratic time.
-func joinDS(xs []float64) string {
-	var sb strings.Builder
-	sb.Grow(10 * len(xs))
-	for n, x := range xs {
-		if n > 0 {
-			sb.WriteByte('\\')
-		}
-		sb.WriteString(strconv.FormatFloat(x, 'f', 3, 64))
-	}
-	return sb.String()
-}
+// ds formats a decimal string (VR DS).
+var ds = dicomwrite.DS
 
 // common adds the Patient, General Study, General Equipment and SOP Common
 // attributes (PS3.3 C.7.1.1, C.7.2.1, C.7.5.1, C.12.1) and the new
 // series' General Series attributes.
 func (s *Source) common(e *elems, sopClass, sop, series string, seriesNumber int, modality, description string, now time.Time) {
-	e.add(tag.SpecificCharacterSet, "ISO_IR 192")
-	e.add(tag.SOPClassUID, sopClass)
-	e.add(tag.SOPInstanceUID, sop)
-	e.add(tag.InstanceCreationDate, now.Format("20060102"))
-	e.add(tag.InstanceCreationTime, now.Format("150405"))
-	e.add(tag.StudyDate, s.StudyDate)
-	e.add(tag.StudyTime, s.StudyTime)
-	e.add(tag.SeriesDate, now.Format("20060102"))
-	e.add(tag.SeriesTime, now.Format("150405"))
-	e.add(tag.AccessionNumber, s.AccessionNumber)
-	e.add(tag.Modality, modality)
-	e.add(tag.Manufacturer, "dosecover")
-	e.add(tag.ReferringPhysicianName, s.ReferringPhysician)
+	e.Add(tag.SpecificCharacterSet, "ISO_IR 192")
+	e.Add(tag.SOPClassUID, sopClass)
+	e.Add(tag.SOPInstanceUID, sop)
+	e.Add(tag.InstanceCreationDate, now.Format("20060102"))
+	e.Add(tag.InstanceCreationTime, now.Format("150405"))
+	e.Add(tag.StudyDate, s.StudyDate)
+	e.Add(tag.StudyTime, s.StudyTime)
+	e.Add(tag.SeriesDate, now.Format("20060102"))
+	e.Add(tag.SeriesTime, now.Format("150405"))
+	e.Add(tag.AccessionNumber, s.AccessionNumber)
+	e.Add(tag.Modality, modality)
+	e.Add(tag.Manufacturer, "dosecover")
+	e.Add(tag.ReferringPhysicianName, s.ReferringPhysician)
 	if s.StudyDescription != "" {
-		e.add(tag.StudyDescription, s.StudyDescription)
+		e.Add(tag.StudyDescription, s.StudyDescription)
 	}
-	e.add(tag.SeriesDescription, description)
-	e.add(tag.ManufacturerModelName, "dosecover")
+	e.Add(tag.SeriesDescription, description)
+	e.Add(tag.ManufacturerModelName, "dosecover")
 	var refs []elems
 	for _, u := range s.Series {
 		var r elems
-		r.add(tag.StudyInstanceUID, s.StudyUID)
-		r.add(tag.SeriesInstanceUID, u)
-		r.seq(tag.PurposeOfReferenceCodeSequence) // type 2: empty
+		r.Add(tag.StudyInstanceUID, s.StudyUID)
+		r.Add(tag.SeriesInstanceUID, u)
+		r.Seq(tag.PurposeOfReferenceCodeSequence) // type 2: empty
 		refs = append(refs, r)
 	}
 	if len(refs) > 0 {
-		e.seq(tag.Tag{Group: 0x0008, Element: 0x1250}, refs...) // RelatedSeriesSequence (PS3.3 C.7.3.1)
+		e.Seq(tag.Tag{Group: 0x0008, Element: 0x1250}, refs...) // RelatedSeriesSequence (PS3.3 C.7.3.1)
 	}
-	e.add(tag.PatientName, s.PatientName)
-	e.add(tag.PatientID, s.PatientID)
-	e.add(tag.PatientBirthDate, s.PatientBirthDate)
-	e.add(tag.PatientSex, s.PatientSex)
+	e.Add(tag.PatientName, s.PatientName)
+	e.Add(tag.PatientID, s.PatientID)
+	e.Add(tag.PatientBirthDate, s.PatientBirthDate)
+	e.Add(tag.PatientSex, s.PatientSex)
 	if s.IdentityRemoved {
-		e.add(tag.PatientIdentityRemoved, "YES")
-		e.add(tag.DeidentificationMethod, s.DeidentificationWay)
+		e.Add(tag.PatientIdentityRemoved, "YES")
+		e.Add(tag.DeidentificationMethod, s.DeidentificationWay)
 	}
-	e.add(tag.SoftwareVersions, dosemap.Version)
-	e.add(tag.StudyInstanceUID, s.StudyUID)
-	e.add(tag.SeriesInstanceUID, series)
-	e.add(tag.StudyID, s.StudyID)
-	e.add(tag.SeriesNumber, strconv.Itoa(seriesNumber))
+	e.Add(tag.SoftwareVersions, dosemap.Version)
+	e.Add(tag.StudyInstanceUID, s.StudyUID)
+	e.Add(tag.SeriesInstanceUID, series)
+	e.Add(tag.StudyID, s.StudyID)
+	e.Add(tag.SeriesNumber, strconv.Itoa(seriesNumber))
 }
 
 // encode returns a DICOM Part 10 file (explicit VR little endian) with the
 // data set body; the file meta information is added here.
 func encode(sopClass, sop string, body elems) ([]byte, error) {
-	var all elems
-	all.add(tag.FileMetaInformationVersion, []byte{0, 1})
-	all.add(tag.MediaStorageSOPClassUID, sopClass)
-	all.add(tag.MediaStorageSOPInstanceUID, sop)
-	all.add(tag.TransferSyntaxUID, explicitVRLittle)
-	all.add(tag.ImplementationClassUID, implementationUID)
-	all.add(tag.ImplementationVersionName, implementationLabel)
-	all = append(all, body...)
-	sortElems(all)
-	var buf bytes.Buffer
-	if err := dicom.Write(&buf, dicom.Dataset{Elements: all}); err != nil {
-		return nil, fmt.Errorf("encoding %s: %w", sop, err)
-	}
-	return buf.Bytes(), nil
+	return dicomwrite.Encode(dicomwrite.Implementation{ClassUID: implementationUID, VersionName: implementationLabel}, sopClass, sop, body)
 }
 
 // Object is one DICOM file to write or store.

@@ -51,6 +51,18 @@ var (
 	demoErr  error
 )
 
+// named returns the result objects whose file names start with prefix
+// ("report-", "dose-", "regions-").
+func (a analysed) named(prefix string) []Object {
+	var out []Object
+	for _, o := range a.objs {
+		if strings.HasPrefix(o.Name, prefix) {
+			out = append(out, o)
+		}
+	}
+	return out
+}
+
 // analysedDemo writes the demo case, analyses it with the default
 // settings, renders the report PDF and builds the DICOM results.
 func analysedDemo(t *testing.T) analysed {
@@ -230,12 +242,7 @@ func TestDoseMapRoundTrip(t *testing.T) {
 	dir := t.TempDir()
 	copyTree(t, filepath.Join(a.dir, sim.AnatomyFolder), filepath.Join(dir, "anatomy"))
 	copyTree(t, filepath.Dir(filepath.Join(a.dir, sim.StructuresFile)), filepath.Join(dir, "structures"))
-	var dose []Object
-	for _, o := range a.objs {
-		if strings.HasPrefix(o.Name, "dose-") {
-			dose = append(dose, o)
-		}
-	}
+	dose := a.named("dose-")
 	if err := Write(filepath.Join(dir, "dose"), dose); err != nil {
 		t.Fatal(err)
 	}
@@ -252,10 +259,10 @@ func TestDoseMapRoundTrip(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if d := 100 * math.Abs(r.CoveredFraction-a.r.CoveredFraction); d > 0.5 {
-		t.Errorf("coverage read back %.2f %%, analysed %.2f %%: differ by %.2f points (> 0.5)", 100*r.CoveredFraction, 100*a.r.CoveredFraction, d)
+	if d := 100 * math.Abs((*r.CoveredFraction)-(*a.r.CoveredFraction)); d > 0.5 {
+		t.Errorf("coverage read back %.2f %%, analysed %.2f %%: differ by %.2f points (> 0.5)", 100*(*r.CoveredFraction), 100*(*a.r.CoveredFraction), d)
 	}
-	t.Logf("coverage %.3f %% from the thermometry, %.3f %% from the dose map; monitored %.4f, %.4f; covered mL %.4f, %.4f", 100*a.r.CoveredFraction, 100*r.CoveredFraction, a.r.MonitoredFraction, r.MonitoredFraction, a.r.CoveredVolumeML, r.CoveredVolumeML)
+	t.Logf("coverage %.3f %% from the thermometry, %.3f %% from the dose map; monitored %.4f, %.4f; covered mL %.4f, %.4f", 100*(*a.r.CoveredFraction), 100*(*r.CoveredFraction), a.r.MonitoredFraction, r.MonitoredFraction, a.r.CoveredVolumeML, r.CoveredVolumeML)
 }
 
 // Stored back into its own study, the cumulative dose map is read beside
@@ -265,12 +272,7 @@ func TestDoseMapBesideThermometry(t *testing.T) {
 	a := analysedDemo(t)
 	dir := t.TempDir()
 	copyTree(t, a.dir, dir)
-	var dose []Object
-	for _, o := range a.objs {
-		if strings.HasPrefix(o.Name, "dose-") {
-			dose = append(dose, o)
-		}
-	}
+	dose := a.named("dose-")
 	if err := Write(filepath.Join(dir, "results"), dose); err != nil {
 		t.Fatal(err)
 	}
@@ -290,8 +292,8 @@ func TestDoseMapBesideThermometry(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if r.CoveredFraction != a.r.CoveredFraction {
-		t.Errorf("coverage %.4f with the stored dose map beside the thermometry, %.4f without", r.CoveredFraction, a.r.CoveredFraction)
+	if (*r.CoveredFraction) != (*a.r.CoveredFraction) {
+		t.Errorf("coverage %.4f with the stored dose map beside the thermometry, %.4f without", (*r.CoveredFraction), (*a.r.CoveredFraction))
 	}
 }
 
@@ -302,12 +304,11 @@ func TestDoseMapBesideThermometry(t *testing.T) {
 // a voxel-outline round trip, from memory).
 func TestStructuresRoundTrip(t *testing.T) {
 	a := analysedDemo(t)
-	var obj Object
-	for _, o := range a.objs {
-		if strings.HasPrefix(o.Name, "regions-") {
-			obj = o
-		}
+	regions := a.named("regions-")
+	if len(regions) != 1 {
+		t.Fatalf("%d structure sets, want 1", len(regions))
 	}
+	obj := regions[0]
 	ss, _, err := dicomio.ReadStructureSet(obj.Name, obj.Data)
 	if err != nil {
 		t.Fatal(err)

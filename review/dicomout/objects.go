@@ -9,10 +9,10 @@ import (
 
 	"dosecover/dosemap"
 	"dosecover/dosemap/dicomio"
+	"dosecover/dosemap/dicomwrite"
 	"dosecover/review"
 	"dosecover/review/view"
 
-	"github.com/suyashkumar/dicom"
 	"github.com/suyashkumar/dicom/pkg/tag"
 )
 
@@ -37,21 +37,21 @@ func ReportPDF(s *Source, pdf []byte, title string, now time.Time) (Object, erro
 	sop, series := NewUID(), NewUID()
 	var e elems
 	s.common(&e, SOPClassEncapsulatedPDF, sop, series, SeriesNumberReport, "DOC", "Thermal dose coverage report", now)
-	e.add(tag.ConversionType, "WSD") // workstation (PS3.3 C.8.6.1)
-	e.add(tag.InstanceNumber, "1")
-	e.add(tag.ContentDate, now.Format("20060102"))
-	e.add(tag.ContentTime, now.Format("150405"))
-	e.add(tag.AcquisitionDateTime, now.Format("20060102150405"))
-	e.add(tag.BurnedInAnnotation, "YES")
-	e.add(tag.DocumentTitle, title)
-	e.seq(tag.ConceptNameCodeSequence) // type 2: empty
-	e.add(tag.MIMETypeOfEncapsulatedDocument, "application/pdf")
+	e.Add(tag.ConversionType, "WSD") // workstation (PS3.3 C.8.6.1)
+	e.Add(tag.InstanceNumber, "1")
+	e.Add(tag.ContentDate, now.Format("20060102"))
+	e.Add(tag.ContentTime, now.Format("150405"))
+	e.Add(tag.AcquisitionDateTime, now.Format("20060102150405"))
+	e.Add(tag.BurnedInAnnotation, "YES")
+	e.Add(tag.DocumentTitle, title)
+	e.Seq(tag.ConceptNameCodeSequence) // type 2: empty
+	e.Add(tag.MIMETypeOfEncapsulatedDocument, "application/pdf")
 	doc := pdf
 	if len(doc)%2 == 1 {
 		doc = append(doc[:len(doc):len(doc)], 0) // OB values have even length (PS3.5 7.1.1)
 	}
-	e.add(tag.EncapsulatedDocument, doc)
-	e.add(tag.Tag{Group: 0x0042, Element: 0x0015}, []int{len(pdf)}) // EncapsulatedDocumentLength (UL)
+	e.Add(tag.EncapsulatedDocument, doc)
+	e.Add(tag.Tag{Group: 0x0042, Element: 0x0015}, []int{len(pdf)}) // EncapsulatedDocumentLength (UL)
 	data, err := encode(SOPClassEncapsulatedPDF, sop, e)
 	if err != nil {
 		return Object{}, err
@@ -90,65 +90,48 @@ func DoseMap(s *Source, r *review.Result, now time.Time) ([]Object, error) {
 		sop := NewUID()
 		var e elems
 		s.common(&e, SOPClassMRImage, sop, series, SeriesNumberDose, "MR", "Cumulative thermal dose (CEM43)", now)
-		e.add(tag.ImageType, []string{"DERIVED", "SECONDARY", "OTHER", dicomio.CumulativeDoseImageType})
-		e.add(tag.ContentDate, now.Format("20060102"))
-		e.add(tag.ContentTime, now.Format("150405"))
-		e.add(tag.AcquisitionDate, now.Format("20060102"))
-		e.add(tag.AcquisitionTime, now.Format("150405"))
-		e.add(tag.DerivationDescription, "cumulative thermal dose (Sapareto-Dewey CEM43) computed by dosecover from the MR thermometry of the study")
-		e.add(tag.Laterality, "")
-		e.add(tag.ImageComments, Caution)
-		e.add(tag.ScanningSequence, "RM") // research mode: no acquisition of its own
-		e.add(tag.SequenceVariant, "NONE")
-		e.add(tag.ScanOptions, "")
-		e.add(tag.MRAcquisitionType, "")
-		e.add(tag.SliceThickness, ds(g.Spacing[2]))
-		e.add(tag.RepetitionTime, "")
-		e.add(tag.EchoTime, "")
-		e.add(tag.EchoTrainLength, "")
-		e.add(tag.SpacingBetweenSlices, ds(g.Spacing[2]))
-		e.add(tag.PatientPosition, "")
-		e.add(tag.InstanceNumber, strconv.Itoa(k+1))
-		e.add(tag.AcquisitionNumber, "1")
-		ipp := g.Point(0, 0, float64(k))
-		e.add(tag.ImagePositionPatient, dsList(ipp[0], ipp[1], ipp[2]))
-		e.add(tag.ImageOrientationPatient, dsList(g.Row[0], g.Row[1], g.Row[2], g.Col[0], g.Col[1], g.Col[2]))
-		e.add(tag.FrameOfReferenceUID, s.FrameOfReference)
-		e.add(tag.PositionReferenceIndicator, "")
-		e.add(tag.SamplesPerPixel, 1)
-		e.add(tag.PhotometricInterpretation, "MONOCHROME2")
-		e.add(tag.Rows, g.Rows)
-		e.add(tag.Columns, g.Cols)
-		e.add(tag.PixelSpacing, dsList(g.Spacing[1], g.Spacing[0]))
-		e.add(tag.BitsAllocated, 16)
-		e.add(tag.BitsStored, 16)
-		e.add(tag.HighBit, 15)
-		e.add(tag.PixelRepresentation, 0)
-		e.add(tag.WindowCenter, ds(240/DoseSlope))
-		e.add(tag.WindowWidth, ds(480/DoseSlope))
-		var code elems
-		code.add(tag.CodeValue, "min")
-		code.add(tag.CodingSchemeDesignator, "UCUM")
-		code.add(tag.CodeMeaning, "minute")
-		var m elems
-		m.add(tag.LUTExplanation, "cumulative equivalent minutes at 43 degC")
-		m.addVR(tag.RealWorldValueFirstValueMapped, "US", []int{0})
-		m.addVR(tag.RealWorldValueLastValueMapped, "US", []int{65535})
-		m.add(tag.RealWorldValueIntercept, 0.0)
-		m.add(tag.RealWorldValueSlope, DoseSlope)
-		m.add(tag.LUTLabel, "CEM43")
-		m.seq(tag.MeasurementUnitsCodeSequence, code)
-		e.seq(tag.RealWorldValueMappingSequence, m)
+		e.Add(tag.ImageType, []string{"DERIVED", "SECONDARY", "OTHER", dicomio.CumulativeDoseImageType})
+		e.Add(tag.ContentDate, now.Format("20060102"))
+		e.Add(tag.ContentTime, now.Format("150405"))
+		e.Add(tag.AcquisitionDate, now.Format("20060102"))
+		e.Add(tag.AcquisitionTime, now.Format("150405"))
+		e.Add(tag.DerivationDescription, "cumulative thermal dose (Sapareto-Dewey CEM43) computed by dosecover from the MR thermometry of the study")
+		e.Add(tag.Laterality, "")
+		e.Add(tag.ImageComments, Caution)
+		e.Add(tag.ScanningSequence, "RM") // research mode: no acquisition of its own
+		e.Add(tag.SequenceVariant, "NONE")
+		e.Add(tag.ScanOptions, "")
+		e.Add(tag.MRAcquisitionType, "")
+		e.Add(tag.SliceThickness, ds(g.Spacing[2]))
+		e.Add(tag.RepetitionTime, "")
+		e.Add(tag.EchoTime, "")
+		e.Add(tag.EchoTrainLength, "")
+		e.Add(tag.SpacingBetweenSlices, ds(g.Spacing[2]))
+		e.Add(tag.PatientPosition, "")
+		e.Add(tag.InstanceNumber, strconv.Itoa(k+1))
+		e.Add(tag.AcquisitionNumber, "1")
+		e.AddImagePlane(g, k)
+		e.Add(tag.FrameOfReferenceUID, s.FrameOfReference)
+		e.Add(tag.PositionReferenceIndicator, "")
+		e.Add(tag.SamplesPerPixel, 1)
+		e.Add(tag.PhotometricInterpretation, "MONOCHROME2")
+		e.Add(tag.BitsAllocated, 16)
+		e.Add(tag.BitsStored, 16)
+		e.Add(tag.HighBit, 15)
+		e.Add(tag.PixelRepresentation, 0)
+		e.Add(tag.WindowCenter, ds(240/DoseSlope))
+		e.Add(tag.WindowWidth, ds(480/DoseSlope))
+		e.AddRealWorldValueMapping(dicomwrite.RealWorldValueMapping{
+			Label: "CEM43", Explanation: "cumulative equivalent minutes at 43 degC",
+			VR: "US", First: 0, Last: 65535, Intercept: 0, Slope: DoseSlope,
+			UnitCode: "min", UnitMeaning: "minute",
+		})
 		sl := g.SliceLen()
 		for n, v := range r.Dose.Data[k*sl : (k+1)*sl] {
 			binary.LittleEndian.PutUint16(px[2*n:], storedDose(v))
 		}
 		buf := append([]byte(nil), px...)
-		pd, err := dicom.NewElement(tag.PixelData, dicom.PixelDataInfo{IntentionallyUnprocessed: true, UnprocessedValueData: buf})
-		if err != nil {
-			return nil, err
-		}
-		e = append(e, pd)
+		e = append(e, dicomwrite.PixelData(buf))
 		data, err := encode(SOPClassMRImage, sop, e)
 		if err != nil {
 			return nil, err
@@ -183,18 +166,18 @@ func Structures(s *Source, c *dosemap.Case, r *review.Result, now time.Time) (Ob
 	sop, series := NewUID(), NewUID()
 	var e elems
 	s.common(&e, SOPClassRTStructureSet, sop, series, SeriesNumberStructures, "RTSTRUCT", "Thermal dose regions (dosecover)", now)
-	e.add(tag.OperatorsName, "")
-	e.add(tag.InstanceNumber, "1")
-	e.add(tag.FrameOfReferenceUID, s.FrameOfReference)
-	e.add(tag.PositionReferenceIndicator, "")
-	e.add(tag.StructureSetLabel, "DOSE REGIONS")
-	e.add(tag.StructureSetName, "Lethal region and holes")
-	e.add(tag.StructureSetDescription, Caution)
-	e.add(tag.StructureSetDate, now.Format("20060102"))
-	e.add(tag.StructureSetTime, now.Format("150405"))
+	e.Add(tag.OperatorsName, "")
+	e.Add(tag.InstanceNumber, "1")
+	e.Add(tag.FrameOfReferenceUID, s.FrameOfReference)
+	e.Add(tag.PositionReferenceIndicator, "")
+	e.Add(tag.StructureSetLabel, "DOSE REGIONS")
+	e.Add(tag.StructureSetName, "Lethal region and holes")
+	e.Add(tag.StructureSetDescription, Caution)
+	e.Add(tag.StructureSetDate, now.Format("20060102"))
+	e.Add(tag.StructureSetTime, now.Format("150405"))
 	var frame elems
-	frame.add(tag.FrameOfReferenceUID, s.FrameOfReference)
-	e.seq(tag.ReferencedFrameOfReferenceSequence, frame)
+	frame.Add(tag.FrameOfReferenceUID, s.FrameOfReference)
+	e.Seq(tag.ReferencedFrameOfReferenceSequence, frame)
 
 	type roi struct {
 		name, interp, algorithm string
@@ -218,42 +201,38 @@ func Structures(s *Source, c *dosemap.Case, r *review.Result, now time.Time) (Ob
 	for n, r := range rois {
 		num := strconv.Itoa(n + 1)
 		var it elems
-		it.add(tag.ROINumber, num)
-		it.add(tag.ReferencedFrameOfReferenceUID, s.FrameOfReference)
-		it.add(tag.ROIName, r.name)
-		it.add(tag.ROIGenerationAlgorithm, r.algorithm)
+		it.Add(tag.ROINumber, num)
+		it.Add(tag.ReferencedFrameOfReferenceUID, s.FrameOfReference)
+		it.Add(tag.ROIName, r.name)
+		it.Add(tag.ROIGenerationAlgorithm, r.algorithm)
 		ssroi = append(ssroi, it)
 		var cs []elems
 		for m, ct := range r.contours {
 			var ce elems
-			ce.add(tag.ContourGeometricType, "CLOSED_PLANAR")
-			ce.add(tag.NumberOfContourPoints, strconv.Itoa(len(ct.Points)))
-			ce.add(tag.ContourNumber, strconv.Itoa(m+1))
-			xs := make([]float64, 0, 3*len(ct.Points))
-			for _, p := range ct.Points {
-				xs = append(xs, p[0], p[1], p[2])
-			}
-			ce.add(tag.ContourData, joinDS(xs))
+			ce.Add(tag.ContourGeometricType, "CLOSED_PLANAR")
+			ce.Add(tag.NumberOfContourPoints, strconv.Itoa(len(ct.Points)))
+			ce.Add(tag.ContourNumber, strconv.Itoa(m+1))
+			ce.Add(tag.ContourData, dicomwrite.ContourData(ct.Points))
 			cs = append(cs, ce)
 		}
 		var rc elems
-		rc.add(tag.ROIDisplayColor, r.colour)
+		rc.Add(tag.ROIDisplayColor, r.colour)
 		if len(cs) > 0 {
-			rc.seq(tag.ContourSequence, cs...)
+			rc.Seq(tag.ContourSequence, cs...)
 		}
-		rc.add(tag.ReferencedROINumber, num)
+		rc.Add(tag.ReferencedROINumber, num)
 		contours = append(contours, rc)
 		var ob elems
-		ob.add(tag.ObservationNumber, num)
-		ob.add(tag.ReferencedROINumber, num)
-		ob.add(tag.RTROIInterpretedType, r.interp)
-		ob.add(tag.ROIInterpreter, "")
+		ob.Add(tag.ObservationNumber, num)
+		ob.Add(tag.ReferencedROINumber, num)
+		ob.Add(tag.RTROIInterpretedType, r.interp)
+		ob.Add(tag.ROIInterpreter, "")
 		obs = append(obs, ob)
 	}
-	e.seq(tag.StructureSetROISequence, ssroi...)
-	e.seq(tag.ROIContourSequence, contours...)
-	e.seq(tag.RTROIObservationsSequence, obs...)
-	e.add(tag.ApprovalStatus, "UNAPPROVED")
+	e.Seq(tag.StructureSetROISequence, ssroi...)
+	e.Seq(tag.ROIContourSequence, contours...)
+	e.Seq(tag.RTROIObservationsSequence, obs...)
+	e.Add(tag.ApprovalStatus, "UNAPPROVED")
 	data, err := encode(SOPClassRTStructureSet, sop, e)
 	if err != nil {
 		return Object{}, err

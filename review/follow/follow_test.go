@@ -272,7 +272,7 @@ func playAndFollow(t *testing.T, files []playFile, nson int, pollOnly bool) {
 		if u.At.Before(last) {
 			t.Errorf("update %v ends before its last file", u.New)
 		}
-		t.Logf("update adding %v: %d analysed, covered %.4f, latency %v after the last file", u.New, len(u.Sonications), u.Result.CoveredFraction, u.Latency())
+		t.Logf("update adding %v: %d analysed, covered %.4f, latency %v after the last file", u.New, len(u.Sonications), (*u.Result.CoveredFraction), u.Latency())
 		if u.Latency() > 30*time.Second {
 			t.Errorf("update %v came %v after its last file", u.New, u.Latency())
 		}

@@ -7,8 +7,8 @@ import (
 )
 
 // TestDriftFlagInReport: a sonication whose removed drift exceeds the
-// limit (review.DefaultDriftFlagC, 1 °C, unless the options give another)
-// is flagged in the sonication rows and listed in the quality summary.
+// limit of the analysis' settings (drift_flag_c; review.DefaultDriftFlagC,
+// 1 °C, when a result read back has none) is flagged in the sonication rows and listed in the quality summary.
 func TestDriftFlagInReport(t *testing.T) {
 	c, r, _ := phantomInput(t, false)
 	// The phantom holds ready dose maps: give sonication 2 a drift.
@@ -17,7 +17,8 @@ func TestDriftFlagInReport(t *testing.T) {
 		limit float64
 		want  bool
 	}{{0, true}, {1.5, false}} {
-		in, err := FromResult(c, r, Options{DriftFlagC: tc.limit})
+		r.Settings.DriftFlagC = tc.limit
+		in, err := FromResult(c, r, Options{})
 		if err != nil {
 			t.Fatal(err)
 		}

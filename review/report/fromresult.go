@@ -19,9 +19,6 @@ import (
 
 // Options are the parts of a report that do not come from the analysis.
 type Options struct {
-	// DriftFlagC is the removed drift, °C, above which a sonication is
-	// flagged; 0: review.DefaultDriftFlagC.
-	DriftFlagC   float64
 	Deidentify   bool      // hide identity: neutral case label, no scan date, generic sonication labels
 	Reviewer     string    // who reviewed ("" not given)
 	ReviewDate   time.Time // zero: now
@@ -84,7 +81,7 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 	}
 	f := Facts{
 		Model: r.Model, DoseUnit: unit, Threshold: r.Threshold, MarginMM: r.MarginMM, TargetName: r.Target,
-		TargetVolumeML: r.TargetVolumeML, Covered: measurable(r.CoveredFraction, r.MonitoredVolumeML),
+		TargetVolumeML: r.TargetVolumeML, Covered: val(r.CoveredFraction),
 		CoveredLow: val(r.CoveredFractionP05), CoveredHigh: val(r.CoveredFractionP95),
 		CoveredOfTarget: r.CoveredFractionOfTarget, NotMonitored: r.NotMonitoredFraction,
 		LethalML: r.LethalVolumeML, OutsideMarginML: r.OutsideMarginLethalML,
@@ -110,7 +107,7 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 		f.Avoid = append(f.Avoid, AvoidRow{Name: hide(a.Name, c, opt.Deidentify), LethalML: a.LethalVolumeMM3 / 1000, MaxDose: val(a.PeakDose)})
 	}
 	if a := r.AsMeasured; a != nil {
-		f.AsMeasured = &AsMeasuredFacts{Covered: a.CoveredFraction, CoveredOfTarget: a.CoveredFractionOfTarget, OutsideMarginML: a.OutsideMarginLethalML}
+		f.AsMeasured = &AsMeasuredFacts{Covered: val(a.CoveredFraction), CoveredOfTarget: a.CoveredFractionOfTarget, OutsideMarginML: a.OutsideMarginLethalML}
 	}
 	in.Facts = f
 	if r.Threshold > 0 {
@@ -120,7 +117,7 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 	}
 
 	for n, d := range r.DVH.Dose {
-		if n < len(r.DVH.Target) {
+		if n < len(r.DVH.Target) && r.CoveredFraction != nil { // no curve of an unmonitored target
 			in.DVH = append(in.DVH, CurvePoint{X: d, Y: r.DVH.Target[n], Low: math.NaN(), High: math.NaN()})
 		}
 	}
@@ -142,16 +139,16 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 		in.Sonications = append(in.Sonications, SonicationRow{
 			Number: s.Number, Label: label, Frames: len(sq.Frames),
 			PeakC: val(s.PeakTempC), PeakDose: s.PeakDose, LethalML: s.LethalAddedML,
-			AddedCoverage: s.AddedCoverage, OutsideML: s.OutsideAddedML,
+			AddedCoverage: measurable(s.AddedCoverage, r.CoveredFraction), OutsideML: s.OutsideAddedML,
 			Flagged: len(sq.FlaggedFrames), Excluded: s.Excluded,
-			DriftFlagged: sq.DriftFlagged(opt.DriftFlagC),
+			DriftFlagged: sq.DriftFlagged(r.Settings.DriftFlagC),
 			CoolingS:     val(s.CoolingS), ResidualC: val(s.ResidualRiseC),
 		})
-		if sq.DriftFlagged(opt.DriftFlagC) {
+		if sq.DriftFlagged(r.Settings.DriftFlagC) {
 			q.DriftFlagged = append(q.DriftFlagged, s.Number)
 		}
 	}
-	q.DriftFlagC = opt.DriftFlagC
+	q.DriftFlagC = r.Settings.DriftFlagC
 	if !(q.DriftFlagC > 0) {
 		q.DriftFlagC = review.DefaultDriftFlagC
 	}
@@ -204,13 +201,15 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 
 // DeidentifyResult returns a shallow copy of r for output without
 // identity: the case label replaced by label (see DeidentifiedLabel), the
-// sonications named by number, and the patient's name, ID, birth date and
-// institution, the case label and the sonication labels of c blanked out of
-// the target and avoid structure names and the warnings. The grids are
+// sonications named by number, the study UID dropped, and the patient's
+// name, ID, birth date and institution, the case label and the sonication
+// labels of c blanked out of the target and avoid structure names and the
+// warnings. The grids are
 // shared with r.
 func DeidentifyResult(c *dosemap.Case, r *review.Result, label string) *review.Result {
 	rr := *r
 	rr.Case = label
+	rr.StudyUID = "" // a UID of the original study (PS3.15 Annex E replaces UIDs)
 	rr.Sonications = append([]review.SonicationStats(nil), r.Sonications...)
 	for n := range rr.Sonications {
 		rr.Sonications[n].Label = fmt.Sprintf("sonication %d", rr.Sonications[n].Number)
@@ -400,7 +399,11 @@ func fieldAndEcho(c *dosemap.Case, ti review.ThermometryInfo) string {
 // the largest target cross-section, through the largest hole and through
 // the largest lethal cluster outside the margin. Without a hole the second
 // panel is a reformat across the slices through the target centre; without
-// a cluster the third is the other reformat. Each panel is px pixels wide
+// a cluster the third is the other reformat. When the sonications were
+// measured on planes of their own, the three panels are acquired slices
+// instead: each the one that measured most of the target, the hole or the
+// cluster (in the grid's orientation when one of those holds it), so that
+// no panel shows a plane whose dose is unknown. Each panel is px pixels wide
 // and PanelAspect as high.
 func Panels(c *dosemap.Case, r *review.Result, px int) ([]Panel, error) {
 	if r.Dose == nil || r.TargetMask == nil {
@@ -466,20 +469,71 @@ func Panels(c *dosemap.Case, r *review.Result, px int) ([]Panel, error) {
 	}
 	pixelMM = math.Max(pixelMM, extent/float64(px)) // no finer than the display
 
-	panel := func(title string, o view.Orientation, q, centre dosemap.Vec3, ext float64, what string) (Panel, error) {
+	render := func(title string, pl view.Plane, q, centre dosemap.Vec3, ext float64, what string) Panel {
 		s := sc
-		s.Plane = view.PlaneThrough(grid, o, q, pixelMM)
+		s.Plane = pl
 		cx, cy := s.Plane.Pixel(centre)
 		v := view.View{Width: px, Height: int(math.Round(float64(px) * PanelAspect)), Zoom: float64(px) / ext, Centre: view.Point{X: cx, Y: cy}}
 		img, err := view.Render(&s, v)
 		if err != nil {
 			// The page is still made; the panel says why it is empty.
-			return Panel{Title: title, Caption: "not drawn: " + err.Error()}, nil
+			return Panel{Title: title, Caption: "not drawn: " + err.Error()}
 		}
-		return Panel{Title: title, Caption: planeCaption(s.Plane, q) + what, Image: image.Image(img)}, nil
+		return Panel{Title: title, Caption: planeCaption(s.Plane, q) + what, Image: image.Image(img)}
+	}
+	// On a session measured on planes of its own, each panel is drawn on
+	// the acquired slice that measured most of what it shows (the target,
+	// the hole, the cluster), so its dose is measured, not unknown.
+	own := ownPlanes(c, r)
+	// choose returns the measured slice for a panel showing region:
+	// slices parallel to the grid's own first (the panels keep the usual
+	// orientation when a measured plane of it holds the region), else any,
+	// leaving out the plane of skip while another plane holds the region.
+	choose := func(q dosemap.Vec3, region *dosemap.Volume, weight func(float32) float64, skip *measuredSlice) *measuredSlice {
+		if own == nil || region == nil {
+			return nil
+		}
+		for _, sk := range []*measuredSlice{skip, nil} {
+			for _, cand := range [][]measuredSlice{parallelTo(own, grid.Normal), own} {
+				if ms, ok := bestMeasuredSlice(cand, region, weight, q, sk); ok && ms.Voxels > 0 {
+					return &ms
+				}
+			}
+		}
+		if ms, ok := bestMeasuredSlice(own, region, weight, q, nil); ok {
+			return &ms // the nearest measured plane; none holds the region
+		}
+		return nil
+	}
+	panel := func(title string, o view.Orientation, q, centre dosemap.Vec3, ext float64, what string, ms *measuredSlice) (Panel, error) {
+		if ms != nil {
+			if pl, err := view.SlicePlane(ms.Stack, ms.K, grid, pixelMM); err == nil {
+				qq := q.Sub(pl.Normal().Scale(pl.Distance(q)))
+				by := fmt.Sprintf("sonication %d", ms.Sonication)
+				if sh := sharing(own, *ms); len(sh) > 1 {
+					by = fmt.Sprintf("%d sonications", len(sh))
+				}
+				note := "; measured plane of " + by
+				if ms.Voxels == 0 {
+					note = fmt.Sprintf("; nearest measured plane (of %s), %.1f mm away", by, ms.DistanceMM)
+				}
+				return render(title, pl, qq, centre, ext, what+note), nil
+			}
+		}
+		return render(title, view.PlaneThrough(grid, o, q, pixelMM), q, centre, ext, what), nil
+	}
+	// The hole's plane is chosen first; the target panel takes another
+	// plane when one holds the target, so the two panels differ.
+	var holeMS *measuredSlice
+	if len(r.Holes) > 0 {
+		holeMS = choose(dosemap.Vec3(r.Holes[0].CentroidMM), r.HoleLabels, labelWeight(1), nil)
+	}
+	var skip *measuredSlice
+	if holeMS != nil && holeMS.Voxels > 0 {
+		skip = holeMS
 	}
 	var out []Panel
-	p, err := panel("Largest target cross-section", view.Acquisition, sec, cen, extent, "")
+	p, err := panel("Largest target cross-section", view.Acquisition, sec, cen, extent, "", choose(sec, r.TargetMask, fractionWeight, skip))
 	if err != nil {
 		return nil, err
 	}
@@ -488,9 +542,9 @@ func Panels(c *dosemap.Case, r *review.Result, px int) ([]Panel, error) {
 		h := r.Holes[0]
 		hc := dosemap.Vec3(h.CentroidMM)
 		p, err = panel("Largest hole", view.Acquisition, hc, cen, extent,
-			fmt.Sprintf("; hole %.3f mL, %.1f mm deep", h.VolumeMM3/1000, h.DepthMM))
+			fmt.Sprintf("; hole %.3f mL, %.1f mm deep", h.VolumeMM3/1000, h.DepthMM), holeMS)
 	} else {
-		p, err = panel("No hole: across the slices", view.RowNormal, cen, cen, extent, "; through the target centre")
+		p, err = panel("No hole: across the slices", view.RowNormal, cen, cen, extent, "; through the target centre", nil)
 	}
 	if err != nil {
 		return nil, err
@@ -502,9 +556,9 @@ func Panels(c *dosemap.Case, r *review.Result, px int) ([]Panel, error) {
 		mid := cen.Add(cc).Scale(0.5)
 		ext := math.Max(extent, 2*cc.Sub(cen).Norm()+20)
 		p, err = panel("Largest lethal cluster outside margin", view.Acquisition, cc, mid, ext,
-			fmt.Sprintf("; %.3f mL, up to %.1f mm beyond target", cl.VolumeMM3/1000, cl.MaxDistanceMM))
+			fmt.Sprintf("; %.3f mL, up to %.1f mm beyond target", cl.VolumeMM3/1000, cl.MaxDistanceMM), choose(cc, r.SpillLabels, labelWeight(1), nil))
 	} else {
-		p, err = panel("No lethal dose outside margin", view.ColNormal, cen, cen, extent, "; through the target centre")
+		p, err = panel("No lethal dose outside margin", view.ColNormal, cen, cen, extent, "; through the target centre", nil)
 	}
 	if err != nil {
 		return nil, err
@@ -576,10 +630,11 @@ func planeCaption(p view.Plane, q dosemap.Vec3) string {
 	return fmt.Sprintf("oblique through (%.1f, %.1f, %.1f) mm", q[0], q[1], q[2])
 }
 
-// measurable returns f, or NaN ("n/a") when nothing of the target is
-// monitored (monitored mL 0): a coverage of nothing is not 0 %.
-func measurable(f, monitoredML float64) float64 {
-	if monitoredML > 0 {
+// measurable returns f, a part of the monitored target, or NaN ("n/a")
+// when the coverage is not measurable (covered nil: nothing of the target
+// is monitored): a part of nothing is not 0 %.
+func measurable(f float64, covered *float64) float64 {
+	if covered != nil {
 		return f
 	}
 	return math.NaN()

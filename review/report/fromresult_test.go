@@ -29,7 +29,7 @@ func TestFromResultNumbers(t *testing.T) {
 		"threshold":                         r.Threshold,
 		"margin_mm":                         r.MarginMM,
 		"target.volume_ml":                  r.TargetVolumeML,
-		"target.covered_fraction":           r.CoveredFraction,
+		"target.covered_fraction":           (*r.CoveredFraction),
 		"target.covered_fraction_of_target": r.CoveredFractionOfTarget,
 		"target.not_monitored_fraction":     r.NotMonitoredFraction,
 		"lethal_ml":                         r.LethalVolumeML,
@@ -105,8 +105,8 @@ func TestFromResultNumbers(t *testing.T) {
 	if doc.Schema != SchemaName || doc.SchemaVersion != SchemaVersion || len(doc.Metrics) != len(in.Metrics()) {
 		t.Errorf("JSON schema %q v%d with %d metrics", doc.Schema, doc.SchemaVersion, len(doc.Metrics))
 	}
-	if doc.Analysis.CoveredFraction != r.CoveredFraction || doc.Analysis.SchemaVersion == 0 {
-		t.Errorf("embedded analysis covered %v (schema %d), want %v", doc.Analysis.CoveredFraction, doc.Analysis.SchemaVersion, r.CoveredFraction)
+	if doc.Analysis.CoveredFraction != (*r.CoveredFraction) || doc.Analysis.SchemaVersion == 0 {
+		t.Errorf("embedded analysis covered %v (schema %d), want %v", doc.Analysis.CoveredFraction, doc.Analysis.SchemaVersion, (*r.CoveredFraction))
 	}
 	for _, x := range doc.Metrics {
 		if math.IsNaN(x.Value) || x.Value != m[x.Name] {

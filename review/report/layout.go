@@ -346,6 +346,15 @@ func pct(f float64) string {
 	return fmt.Sprintf("%.1f %%", 100*f)
 }
 
+// coveredPct formats the covered part of the monitored target: "not
+// measurable" when no part of the target is monitored (NaN).
+func coveredPct(f float64) string {
+	if math.IsNaN(f) {
+		return "not measurable"
+	}
+	return pct(f)
+}
+
 // num formats x with the given number of decimals, "n/a" for NaN.
 func num(x float64, dec int) string {
 	if math.IsNaN(x) || math.IsInf(x, 0) {
@@ -386,8 +395,12 @@ func factLines(in *Input) (left, right [][2]string) {
 			band += " (" + f.BandLabel + ")"
 		}
 	}
+	covered := pct(f.Covered) + " of the monitored part; "
+	if math.IsNaN(f.Covered) {
+		covered = "not measurable (no part of it monitored); "
+	}
 	left = append(left,
-		[2]string{"Covered (" + target + ")", pct(f.Covered) + " of the monitored part; " + pct(f.CoveredOfTarget) + " of the whole target of " + num(f.TargetVolumeML, 2) + " mL"},
+		[2]string{"Covered (" + target + ")", covered + pct(f.CoveredOfTarget) + " of the whole target of " + num(f.TargetVolumeML, 2) + " mL"},
 		[2]string{"Uncertainty band", band},
 		[2]string{"Not monitored", pct(f.NotMonitored) + " of the target (no valid thermometry)"},
 		[2]string{"D98 / D50 / D2", dose(f.D98) + " / " + dose(f.D50) + " / " + dose(f.D2) + " " + unit},
@@ -396,9 +409,12 @@ func factLines(in *Input) (left, right [][2]string) {
 	if a := f.AsMeasured; a != nil {
 		left = append(left,
 			[2]string{"Residual heat", "corrected: earlier sonications' estimated heat added (carry-over on)"},
-			[2]string{"As measured", pct(a.Covered) + " covered (monitored), " + pct(a.CoveredOfTarget) + " of whole target; " + num(a.OutsideMarginML, 3) + " mL beyond margin"})
+			[2]string{"As measured", coveredPct(a.Covered) + " covered (monitored), " + pct(a.CoveredOfTarget) + " of whole target; " + num(a.OutsideMarginML, 3) + " mL beyond margin"})
 	}
 	holes := "none"
+	if math.IsNaN(f.Covered) {
+		holes = "not measurable (no part of the target monitored)"
+	}
 	if len(f.Holes) > 0 {
 		var tot float64
 		for _, h := range f.Holes {
@@ -474,8 +490,16 @@ func drawFacts(p pen, in *Input, x, y, w vg.Length) vg.Length {
 	// monitored target and of the whole target, each labelled.
 	fb := sans(18, true)
 	fs := sans(smallSize, false)
-	p.text(x, y, fb, colInk, pct(in.Facts.Covered))
 	bw := fb.Width("100.0 %") + 12
+	if c := in.Facts.Covered; math.IsNaN(c) {
+		// Nothing of the target monitored: no figure, in words that fit
+		// the figure's width.
+		fm := sans(bodySize, true)
+		p.text(x, y, fm, colInk, "not")
+		p.text(x, y+fm.Extents().Height, fm, colInk, "measurable")
+	} else {
+		p.text(x, y, fb, colInk, pct(c))
+	}
 	yb := p.text(x, y+fb.Extents().Height, fs, colFaint, "covered, of the")
 	yb = p.text(x, yb, fs, colFaint, "monitored part")
 	yb += 2

@@ -5,13 +5,13 @@ import (
 	"math"
 )
 
-// RelativeLuminance returns the relative luminance of c as WCAG 2.x
+// relativeLuminance returns the relative luminance of c as WCAG 2.x
 // defines it (WCAG 2.1, definition "relative luminance"): the sRGB
 // components linearised (c ≤ 0.04045: c/12.92, else ((c+0.055)/1.055)^2.4;
 // WCAG prints 0.03928, which gives the same result for 8-bit values) and
 // weighted L = 0.2126 R + 0.7152 G + 0.0722 B. A translucent colour is
 // taken as it is, without its alpha.
-func RelativeLuminance(c color.Color) float64 {
+func relativeLuminance(c color.Color) float64 {
 	r, g, b, a := c.RGBA()
 	if a == 0 {
 		return 0
@@ -31,7 +31,7 @@ func RelativeLuminance(c color.Color) float64 {
 // "contrast ratio"); from 1 to 21. Success criterion 1.4.3 (level AA)
 // asks 4.5 for normal text.
 func ContrastRatio(a, b color.Color) float64 {
-	la, lb := RelativeLuminance(a), RelativeLuminance(b)
+	la, lb := relativeLuminance(a), relativeLuminance(b)
 	if la < lb {
 		la, lb = lb, la
 	}

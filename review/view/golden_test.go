@@ -72,6 +72,40 @@ func goldenCases() []goldenCase {
 			s.Caption = "Phantom A · oblique 30°"
 			return mustRender(t, s, FitView(p, 448, 448))
 		}},
+		{"traces_axial", func(t *testing.T) image.Image {
+			// Measured planes of three sonications on the axial view at
+			// z = 0: a coronal plane through y = -6 (edge-on: a band),
+			// the selected sonication's sagittal plane through x = 4
+			// (emphasised, numbered) and a three-slice axial slab around
+			// z = 0 seen face-on (its field of view).
+			p := AcquisitionPlane(ga, 20)
+			s := ph.scene(p)
+			s.Measured = tracePhantomStacks()
+			s.Caption = "Phantom A · axial · z = 0.0 mm · measured planes"
+			return mustRender(t, s, FitView(p, 512, 512))
+		}},
+		{"traces_coronal", func(t *testing.T) image.Image {
+			// The same planes on the coronal view at y = 0: the axial slab
+			// edge-on (three slice lines in a band), the sagittal plane
+			// edge-on, the coronal plane (y = -6) missed.
+			p := PlaneThrough(ga, RowNormal, centre, 0)
+			s := ph.scene(p)
+			s.Measured = tracePhantomStacks()
+			s.Caption = "Phantom A · coronal · y = 0.0 mm · measured planes"
+			return mustRender(t, s, FitView(p, 512, 320))
+		}},
+		{"traces_face_on", func(t *testing.T) image.Image {
+			// The axial slab's sonication selected: the axial view at
+			// z = 0 lies inside its slab and says it shows its measured
+			// plane; its field of view outlined dashed.
+			p := AcquisitionPlane(ga, 20)
+			s := ph.scene(p)
+			s.Measured = tracePhantomStacks()
+			for n := range s.Measured {
+				s.Measured[n].Emphasis = s.Measured[n].Sonication == 3
+			}
+			return mustRender(t, s, FitView(p, 320, 320))
+		}},
 		{"colorbar", func(t *testing.T) image.Image {
 			img, err := ColorBar(DefaultDoseScale(), phLethal, 120, 360)
 			if err != nil {
@@ -88,6 +122,20 @@ func goldenCases() []goldenCase {
 			}
 			return img
 		}},
+	}
+}
+
+// tracePhantomStacks are measured stacks around the phantom's target: a
+// coronal plane (sonication 1), a sagittal plane (sonication 2, selected)
+// and an axial slab of three 3 mm slices (sonication 3), each 64 × 64
+// pixels of 1.25 mm.
+func tracePhantomStacks() []MeasuredStack {
+	const n, px = 64, 1.25
+	h := float64(n-1) / 2 * px
+	return []MeasuredStack{
+		{Sonication: 1, Geometry: stackFromDICOM([6]float64{1, 0, 0, 0, 0, -1}, [3]float64{-h, -6, h}, n, n, [2]float64{px, px}, 1, 3)},
+		{Sonication: 2, Emphasis: true, Geometry: stackFromDICOM([6]float64{0, 1, 0, 0, 0, -1}, [3]float64{4, -h, h}, n, n, [2]float64{px, px}, 1, 3)},
+		{Sonication: 3, Geometry: stackFromDICOM([6]float64{1, 0, 0, 0, 1, 0}, [3]float64{-h, -h, -3}, n, n, [2]float64{px, px}, 3, 3)},
 	}
 }
 

@@ -18,6 +18,12 @@ var (
 	ColorSpill        = color.RGBA{0xD5, 0x5E, 0x00, 0xFF} // vermillion, filled (lethal outside the margin)
 	ColorAvoid        = color.RGBA{0x00, 0x72, 0xB2, 0xFF} // blue, dotted line
 	ColorNotMonitored = color.RGBA{0x50, 0x50, 0x50, 0xFF} // dark grey, cross-hatch (not monitored)
+	// ColorPlane draws where a sonication's measured planes meet a view
+	// (its trace): a violet of our own outside the Okabe–Ito set, chosen
+	// for the largest smallest distance (CIE 1976 ΔE, normal, protan and
+	// deutan vision) to the other overlays, the isodose grey and the
+	// viridis wash among colours light enough to read on dark anatomy.
+	ColorPlane = color.RGBA{0x99, 0x66, 0xFF, 0xFF} // violet, thin solid lines; dashed slab outline when selected
 )
 
 // LegendColours lists the overlay colours by the names the legends give
@@ -26,7 +32,7 @@ func LegendColours() []NamedColour {
 	return []NamedColour{
 		{"lethal isodose", ColorLethal}, {"target", ColorTarget}, {"safety margin", ColorMargin},
 		{"avoid structure", ColorAvoid}, {"hole", ColorHole}, {"lethal outside margin", ColorSpill},
-		{"not monitored", ColorNotMonitored},
+		{"not monitored", ColorNotMonitored}, {"measured plane", ColorPlane},
 	}
 }
 

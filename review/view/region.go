@@ -13,7 +13,7 @@ import (
 // a grid or a structure of closed planar contours. When both are set the
 // mask is used.
 //
-// A mask may hold 0/1 values (as made by MaskVolume) or the fraction of
+// A mask may hold 0/1 values (as made by MaskRegion) or the fraction of
 // each voxel inside the region (0..1, partial volume): it is interpolated
 // trilinearly and the region is where the result is >= 0.5, so fractions
 // place the outline between voxel centres where the surface crosses. A
@@ -29,9 +29,9 @@ type Region struct {
 // IsZero reports whether r names no region.
 func (r Region) IsZero() bool { return r.Mask == nil && r.Structure == nil }
 
-// MaskVolume returns mask m on grid g as a 0/1 volume for a Region. The
+// maskVolume returns mask m on grid g as a 0/1 volume for a Region. The
 // mask must have one value per voxel of g.
-func MaskVolume(g dosemap.Geometry, m []bool) (*dosemap.Volume, error) {
+func maskVolume(g dosemap.Geometry, m []bool) (*dosemap.Volume, error) {
 	if len(m) != g.Len() {
 		return nil, fmt.Errorf("mask holds %d values for a %d×%d×%d grid", len(m), g.Cols, g.Rows, g.Slices)
 	}
@@ -44,9 +44,10 @@ func MaskVolume(g dosemap.Geometry, m []bool) (*dosemap.Volume, error) {
 	return v, nil
 }
 
-// MaskRegion is MaskVolume wrapped in a Region.
+// MaskRegion returns mask m on grid g as a 0/1 volume wrapped in a
+// Region; m must have one value per voxel of g.
 func MaskRegion(g dosemap.Geometry, m []bool) (Region, error) {
-	v, err := MaskVolume(g, m)
+	v, err := maskVolume(g, m)
 	if err != nil {
 		return Region{}, err
 	}

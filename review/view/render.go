@@ -36,6 +36,10 @@ type Scene struct {
 
 	Lines []LevelLine // further isolines of any volume (e.g. lethal probability)
 
+	// Measured are the thermometry stacks whose traces (where the plane
+	// meets them) are drawn in ColorPlane; see StackTrace.
+	Measured []MeasuredStack
+
 	Marker *dosemap.Vec3 // crosshair at a patient point; nil: none
 
 	Caption     string // lines of text drawn at the top left
@@ -265,7 +269,8 @@ func grow(b []float32, n int) []float32 {
 //
 // Layers, bottom to top: anatomy in grey through the window; the dose
 // colourwash (log scale, transparent below the floor); not-monitored
-// cross-hatch; spill fill; hole hatching; isodoses; margin (dashed), target
+// cross-hatch; spill fill; hole hatching; isodoses; traces of measured
+// planes; margin (dashed), target
 // (solid) and avoid (dotted) outlines; the lethal isoline (thick, white);
 // hole and spill outlines; the marker; orientation letters, scale bar and
 // caption. Every line has a dark halo so it reads on bright and dark
@@ -341,6 +346,9 @@ func (r *Renderer) Render(s *Scene, v View, dst *image.RGBA) (*image.RGBA, error
 	}
 	for _, l := range labels {
 		drawText(dst, l.text, math.Max(11, labelSize(v)-3), l.x, l.y, anchorCentre, isodoseColor)
+	}
+	if len(s.Measured) > 0 {
+		r.drawTraces(dst, cv, p, v, s.Measured)
 	}
 	r.outline(cv, p, v, s.Margin, st.Margin, Dashed, ColorMargin)
 	r.outline(cv, p, v, s.Target, st.Target, Solid, ColorTarget)

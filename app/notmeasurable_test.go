@@ -1,0 +1,144 @@
+//go:build cgo
+
+package main
+
+import (
+	"encoding/csv"
+	"encoding/json"
+	"math"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"strings"
+	"testing"
+
+	"dosecover/dosemap/sim"
+)
+
+// TestNotMeasurableEverywhere analyses a simulated session whose
+// thermometry leaves no part of the target monitored (one 3 mm plane
+// through each of 35 foci on five depths: every part of the target lies
+// within reach of a sonication that did not measure it; see
+// review.TestSinglePlaneSession) with each command: the coverage of the
+// monitored target is null in analyze's JSON, "not measurable" in its
+// text, in the report PDF (text extracted by poppler's pdftotext) and in
+// the audit's summary.csv and in the window's figures, and never "0.0 %"
+// on those lines.
+func TestNotMeasurableEverywhere(t *testing.T) {
+	if testing.Short() {
+		t.Skip("writes and analyses a 35-sonication session")
+	}
+	tmp := t.TempDir()
+	dir := filepath.Join(tmp, "cases", "single-plane")
+	s := sim.PlanesSession(sim.LayoutMovingSlab, 5)
+	s.Thermometry.Slices = 1
+	if _, err := sim.WriteSession(dir, s); err != nil {
+		t.Fatal(err)
+	}
+
+	code, stdout, stderr := runCmd("analyze", "--trials", "0", "--json", "-", dir)
+	if code != 0 {
+		t.Fatalf("analyze --json: exit %d: %s", code, stderr)
+	}
+	var doc map[string]any
+	if err := json.Unmarshal([]byte(stdout), &doc); err != nil {
+		t.Fatal(err)
+	}
+	if v, ok := doc["covered_fraction"]; !ok || v != nil || doc["monitored_volume_ml"] != 0.0 {
+		t.Errorf("JSON covered_fraction %v (present %v), monitored %v mL; want null and 0", v, ok, doc["monitored_volume_ml"])
+	}
+
+	code, stdout, stderr = runCmd("analyze", "--trials", "0", dir)
+	if code != 0 {
+		t.Fatalf("analyze: exit %d: %s", code, stderr)
+	}
+	checkLines(t, "analyze text", stdout, "Covered")
+
+	pdf := filepath.Join(tmp, "report.pdf")
+	if code, _, stderr = runCmd("report", "--trials", "0", "--pdf", pdf, dir); code != 0 {
+		t.Fatalf("report: exit %d: %s", code, stderr)
+	}
+	if d := os.Getenv("DOSECOVER_SHOTS"); d != "" {
+		if b, err := os.ReadFile(pdf); err == nil {
+			_ = os.WriteFile(filepath.Join(d, "report-not-measurable.pdf"), b, 0o644)
+		}
+	}
+	txt, err := exec.Command("pdftotext", "-layout", pdf, "-").Output()
+	if err != nil {
+		if os.Getenv("CI") == "true" {
+			t.Fatalf("pdftotext (poppler-utils) is required in CI: %v", err)
+		}
+		t.Logf("pdftotext not available (%v): report PDF not checked", err)
+	} else {
+		checkLines(t, "report PDF", string(txt), "Covered (")
+		// The headline figure, "not" over "measurable" above its label.
+		_, after, _ := strings.Cut(string(txt), "Coverage")
+		if head := strings.Fields(after); len(head) < 1 || head[0] != "not" {
+			t.Errorf("report PDF: headline figure %q, want \"not measurable\":\n%s", head[:min(3, len(head))], txt)
+		}
+	}
+
+	// The window: the figures panel says it, and no 0.0 % for the
+	// monitored target.
+	rw := testWindow(t)
+	mark := rw.completed.Load()
+	rw.openFolder(dir, false)
+	waitJobs(t, rw, mark, 2) // the load, then the analysis
+	if rw.result == nil {
+		t.Fatalf("window: not analysed: %s", rw.status.Text)
+	}
+	checkLines(t, "window figures", rw.metrics.facts.Text, "Covered")
+	for _, row := range rw.result.SonRows {
+		if !math.IsNaN(row.CoverageAdded) {
+			t.Errorf("window: sonication %d added %.3f of a target with no monitored part, want no figure", row.Number, row.CoverageAdded)
+			break
+		}
+	}
+	if len(rw.result.DVHPoints) != 0 {
+		t.Errorf("window: a target DVH of %d points for a target with no monitored part", len(rw.result.DVHPoints))
+	}
+	if d := os.Getenv("DOSECOVER_SHOTS"); d != "" {
+		writePNG(t, filepath.Join(d, "window-not-measurable.png"), rw.win.Canvas().Capture())
+	}
+
+	out := filepath.Join(tmp, "audit")
+	if code, _, stderr = runCmd("audit", "--trials", "0", filepath.Join(tmp, "cases"), "-o", out); code != 0 {
+		t.Fatalf("audit: exit %d: %s", code, stderr)
+	}
+	f, err := os.Open(filepath.Join(out, "summary.csv"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	rows, err := csv.NewReader(f).ReadAll()
+	if err != nil || len(rows) != 2 {
+		t.Fatalf("summary.csv: %d rows, %v", len(rows), err)
+	}
+	for n, h := range rows[0] {
+		if h == "coverage_pct" && rows[1][n] != "not measurable" {
+			t.Errorf("summary.csv coverage_pct %q, want \"not measurable\"", rows[1][n])
+		}
+	}
+}
+
+// checkLines fails unless some line of text holding prefix says "not
+// measurable", and when any such line shows "0.0 %" for the monitored
+// target.
+func checkLines(t *testing.T, what, text, prefix string) {
+	t.Helper()
+	found := false
+	for _, l := range strings.Split(text, "\n") {
+		if !strings.Contains(l, prefix) {
+			continue
+		}
+		if strings.Contains(l, "not measurable") {
+			found = true
+		}
+		if strings.Contains(l, "0.0 % of the monitored") {
+			t.Errorf("%s: %q shows 0.0 %% of the monitored target", what, l)
+		}
+	}
+	if !found {
+		t.Errorf("%s: no line %q... saying \"not measurable\":\n%s", what, prefix, text)
+	}
+}
