@@ -9,6 +9,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"reflect"
 	"sort"
 	"strings"
 	"testing"
@@ -247,7 +248,7 @@ func TestSignOffRecorded(t *testing.T) {
 	}
 	s := rec.SignOffs[0]
 	raw, _ := rw.resultRaw()
-	if s.Reviewer != "A. Reviewer" || s.InputHash != rw.hash || !s.Time.Equal(testTime) || s.Figures != review.HeadlineOf(raw) || s.Outcome != review.OutcomeAccepted {
+	if s.Reviewer != "A. Reviewer" || s.InputHash != rw.hash || !s.Time.Equal(testTime) || !reflect.DeepEqual(s.Figures, review.HeadlineOf(raw)) || s.Outcome != review.OutcomeAccepted {
 		t.Errorf("sign-off %+v does not match the review", s)
 	}
 	var set map[string]any
