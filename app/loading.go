@@ -291,7 +291,7 @@ func (rw *reviewWindow) caseLoaded(lc *loadedCase, hash string, nFiles int, rec 
 	rw.setViewGrid()
 	rw.metrics.update()
 	rw.sonOrder = nil
-	rw.sonTable.Refresh()
+	rw.refreshSonTable()
 	rw.setBusy(fmt.Sprintf("Read %d sonications, %d structures; %d files skipped.", len(c.Sonications), len(c.Structures), len(lc.Skipped)), -1)
 	if lc.NotReviewable != "" {
 		rw.showError("The folder "+rw.displayPath(lc.Dir)+" cannot be reviewed", errors.New(lc.NotReviewable+". The folder tab lists what was found and the files skipped."))
@@ -471,7 +471,7 @@ func (rw *reviewWindow) showResult(res *analysisResult) {
 	}
 	rw.metrics.update()
 	rw.sonOrder = nil
-	rw.sonTable.Refresh()
+	rw.refreshSonTable()
 	if rw.pinned != nil {
 		rw.pin(*rw.pinned)
 	}

@@ -16,6 +16,7 @@ import (
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/canvas"
 	"fyne.io/fyne/v2/container"
+	"fyne.io/fyne/v2/theme"
 	"fyne.io/fyne/v2/widget"
 )
 
@@ -126,7 +127,7 @@ var sonColumns = []struct {
 	title string
 	width float32
 }{
-	{"use", 48}, {"no.", 40}, {"time", 62}, {"label", 190}, {"peak °C", 70}, {"peak dose", 90}, {"lethal added mL", 124},
+	{"use", 48}, {"no.", 40}, {"time", 62}, {"label", 214}, {"peak °C", 70}, {"peak dose", 90}, {"lethal added mL", 124},
 	{"coverage added", 118}, {"outside margin added mL", 184}, {"cooled s", 76}, {"residual °C", 96},
 	{"quality and notes", 560},
 }
@@ -207,7 +208,48 @@ func (rw *reviewWindow) sortSonications(col int) {
 	}
 	rw.sonOrder = nil
 	rw.sonTable.UnselectAll()
-	rw.sonTable.Refresh()
+	rw.refreshSonTable()
+}
+
+// refreshSonTable redraws the sonication table after its rows changed.
+// widget.Table lays out its scroll area only when the table itself is
+// resized, so a new number of rows left the area at its old extent: no
+// vertical scroll bar, and rows scrolled to beyond that extent were not
+// drawn at all (the table came up empty after a re-analysis once it had
+// been scrolled). Changing the size by a pixel and back lays the area out
+// again for the rows there are now; the scroll position is kept, clamped
+// to the new rows.
+//
+// The last row is taller by the width of a scroll bar, so that scrolled to
+// the bottom it shows above the horizontal scroll bar.
+func (rw *reviewWindow) refreshSonTable() {
+	t := rw.sonTable
+	moved := false
+	if last := t.Length; last != nil {
+		n, _ := last()
+		if moved = n-1 != rw.sonLast; moved {
+			if rw.sonLast >= 0 {
+				t.SetRowHeight(rw.sonLast, rw.sonRowH)
+			}
+			if n > 0 {
+				t.SetRowHeight(n-1, rw.sonRowH+theme.ScrollBarSize()+theme.Padding())
+			}
+			rw.sonLast = n - 1
+		}
+	}
+	t.Refresh()
+	if s := t.Size(); s.Height > 1 && s.Width > 1 {
+		t.Resize(s.SubtractWidthHeight(0, 1))
+		t.Resize(s)
+	}
+	if moved {
+		// Other rows (another case): start at the top left. This also
+		// keeps the table's own record of the scroll position in step
+		// with its scroll area, which resets to the origin without
+		// telling the table when all rows fit.
+		t.ScrollToTop()
+		t.ScrollToLeading()
+	}
 }
 
 func (rw *reviewWindow) newSonicationTable() *widget.Table {
@@ -219,14 +261,13 @@ func (rw *reviewWindow) newSonicationTable() *widget.Table {
 			return len(rw.result.SonRows), len(sonColumns)
 		},
 		func() fyne.CanvasObject {
-			l := widget.NewLabel("")
-			l.Truncation = fyne.TextTruncateEllipsis
-			return container.NewStack(widget.NewCheck("", nil), l)
+			// At the top of its cell: the last row is taller (refreshSonTable).
+			return container.NewVBox(container.NewStack(widget.NewCheck("", nil), newTipLabel(rw.tips)))
 		},
 		func(id widget.TableCellID, o fyne.CanvasObject) {
-			st := o.(*fyne.Container)
+			st := o.(*fyne.Container).Objects[0].(*fyne.Container)
 			chk := st.Objects[0].(*widget.Check)
-			l := st.Objects[1].(*widget.Label)
+			l := st.Objects[1].(*tipLabel)
 			if rw.result == nil || id.Row >= len(rw.result.SonRows) {
 				return
 			}
@@ -314,6 +355,7 @@ func (rw *reviewWindow) newSonicationTable() *widget.Table {
 		}
 	}
 	t.ShowHeaderColumn = false
+	rw.sonLast, rw.sonRowH = -1, t.CreateCell().MinSize().Height
 	for n, c := range sonColumns {
 		t.SetColumnWidth(n, c.width)
 	}
@@ -362,6 +404,7 @@ func newMetricsPanel(rw *reviewWindow) *metricsPanel {
 	m := &metricsPanel{rw: rw}
 	m.facts = widget.NewLabel("")
 	m.facts.TextStyle.Monospace = true
+	m.facts.Wrapping = fyne.TextWrapWord
 	m.used = widget.NewLabel("")
 	m.used.Wrapping = fyne.TextWrapWord
 	m.avoid = widget.NewLabel("")
@@ -433,24 +476,24 @@ func (m *metricsPanel) update() {
 		name = "target"
 	}
 	lines := []string{
-		fmt.Sprintf("%-24s %s (%.2f mL)", "Target", name, r.TargetVolumeML),
-		fmt.Sprintf("%-24s %s", "Covered (≥ threshold)", review.PercentText(r.CoveredFraction)),
-		fmt.Sprintf("%-24s %s", "  noise band p05–p95", band),
-		fmt.Sprintf("%-24s %s", "Not monitored", pct(r.NotMonitoredFraction)),
-		fmt.Sprintf("%-24s %d (%.3f mL)", "Holes", len(r.HoleRows), sumML(r.HoleRows)),
-		fmt.Sprintf("%-24s %d (%.3f mL)", "Lethal outside margin", len(r.SpillRows), r.OutsideMarginLethalML),
-		fmt.Sprintf("%-24s %s / %s / %s", "D98 / D50 / D2", fmtDose(ptr(r.D98)), fmtDose(ptr(r.D50)), fmtDose(ptr(r.D2))),
-		fmt.Sprintf("%-24s %s", "  dose unit", r.Unit),
-		fmt.Sprintf("%-24s %s %s", "Threshold", fmtNum(r.Threshold), r.Unit),
-		fmt.Sprintf("%-24s %g mm", "Margin", r.MarginMM),
+		fmt.Sprintf("%-22s %s (%.2f mL)", "Target", name, r.TargetVolumeML),
+		fmt.Sprintf("%-22s %s", "Covered (≥ threshold)", review.PercentText(r.CoveredFraction)),
+		fmt.Sprintf("%-22s %s", "  noise band p05–p95", band),
+		fmt.Sprintf("%-22s %s", "Not monitored", pct(r.NotMonitoredFraction)),
+		fmt.Sprintf("%-22s %d (%.3f mL)", "Holes", len(r.HoleRows), sumML(r.HoleRows)),
+		fmt.Sprintf("%-22s %d (%.3f mL)", "Lethal outside margin", len(r.SpillRows), r.OutsideMarginLethalML),
+		fmt.Sprintf("%-22s %s / %s / %s", "D98 / D50 / D2", fmtDose(ptr(r.D98)), fmtDose(ptr(r.D50)), fmtDose(ptr(r.D2))),
+		fmt.Sprintf("%-22s %s", "  dose unit", r.Unit),
+		fmt.Sprintf("%-22s %s %s", "Threshold", fmtNum(r.Threshold), r.Unit),
+		fmt.Sprintf("%-22s %g mm", "Margin", r.MarginMM),
 	}
 	for n, l := range lines {
 		if r.CoveredFraction == nil && strings.HasPrefix(l, "Holes ") {
-			lines[n] = fmt.Sprintf("%-24s %s", "Holes", "not measurable") // holes need a monitored target
+			lines[n] = fmt.Sprintf("%-22s %s", "Holes", "not measurable") // holes need a monitored target
 		}
 	}
 	if ex := m.rw.settings.Excluded; len(ex) > 0 {
-		lines = append(lines, fmt.Sprintf("%-24s %v", "Sonications left out", ex))
+		lines = append(lines, fmt.Sprintf("%-22s %v", "Sonications left out", ex))
 	}
 	m.facts.SetText(strings.Join(lines, "\n"))
 	if len(r.AvoidRows) == 0 {

@@ -148,23 +148,29 @@ func showSettingsDialog(w fyne.Window, cur review.Settings, note, origin string,
 	} else {
 		arrSet.SetSelected("custom")
 	}
-	cemBox := widget.NewForm(
+	units := map[string]*widget.Label{}
+	cemBox := settingsForm(units,
 		widget.NewFormItem("Break temperature (°C)", brk),
-		widget.NewFormItem("R at or above the break", rAbove),
-		widget.NewFormItem("R below the break", rBelow),
+		widget.NewFormItem("R at or above the break (no unit)", rAbove),
+		widget.NewFormItem("R below the break (no unit)", rBelow),
 	)
-	arrBox := widget.NewForm(
+	arrBox := settingsForm(units,
 		widget.NewFormItem("Parameter set", arrSet),
 		widget.NewFormItem("A (s⁻¹)", arrA),
 		widget.NewFormItem("Ea (J/mol)", arrEa),
 	)
 	model.OnChanged = func(v string) {
+		unit := "CEM43 min"
 		if strings.HasPrefix(v, "Arrhenius") {
 			cemBox.Hide()
 			arrBox.Show()
+			unit = "Ω (no unit)"
 		} else {
 			arrBox.Hide()
 			cemBox.Show()
+		}
+		if u := units["Lethal threshold"]; u != nil {
+			u.SetText(unit)
 		}
 	}
 	if cur.Model == review.ModelArrhenius {
@@ -200,27 +206,28 @@ func showSettingsDialog(w fyne.Window, cur review.Settings, note, origin string,
 	errLabel.Wrapping = fyne.TextWrapWord
 	errLabel.Importance = widget.DangerImportance
 
-	form := widget.NewForm(
-		widget.NewFormItem("Lethal threshold (CEM43 min; Ω for Arrhenius)", threshold),
+	form := settingsForm(units,
+		widget.NewFormItem("Lethal threshold (CEM43 min)", threshold),
 		widget.NewFormItem("Safety margin (mm)", margin),
 		widget.NewFormItem("Dose model", model),
 		widget.NewFormItem("Time integration", rule),
-		widget.NewFormItem("Noise trials for the band (0: none)", trials),
+		widget.NewFormItem("Noise trials for the band (trials; 0: none)", trials),
 	)
-	thermo := widget.NewForm(
+	thermo := settingsForm(units,
 		widget.NewFormItem("PRF coefficient α (ppm/°C)", alpha),
 		widget.NewFormItem("Body temperature (°C)", body),
-		widget.NewFormItem("Baseline frames", baseline),
+		widget.NewFormItem("Baseline (frames)", baseline),
 		widget.NewFormItem("Drift correction", drift),
-		widget.NewFormItem("Drift polynomial order", order),
+		widget.NewFormItem("Drift polynomial order (no unit)", order),
 		widget.NewFormItem("Phase scale (rad per stored unit)", phase),
 		widget.NewFormItem("Field strength B0 (T)", b0),
 		widget.NewFormItem("Echo time TE (ms)", te),
 	)
+	model.OnChanged(model.Selected) // the threshold's unit follows the model
 	focal := floatEntry(cur.FocalLengthMM)
 	focal.SetPlaceHolder("0: each sonication's longest measured extent")
 	driftFlag := floatEntry(cur.DriftFlagC)
-	review2 := widget.NewForm(
+	review2 := settingsForm(units,
 		widget.NewFormItem("Focal length along the beam (mm)", focal),
 		widget.NewFormItem("Flag drift removed above (°C)", driftFlag),
 	)
@@ -368,7 +375,7 @@ func showSettingsDialog(w fyne.Window, cur review.Settings, note, origin string,
 	body2 := container.NewBorder(nil, container.NewHBox(reset, load, save, widget.NewLabel(""), cancel, ok), nil, nil,
 		container.NewVScroll(content))
 	d = dialog.NewCustomWithoutButtons("Analysis settings", body2, w)
-	d.Resize(fyne.NewSize(560, 720))
+	d.Resize(fyne.NewSize(660, 720))
 	d.Show()
 }
 

@@ -32,6 +32,19 @@ func dialogParts(w fyne.Window) (entries map[string]*widget.Entry, buttons map[s
 		case *widget.Label:
 			labels = append(labels, x)
 		case *fyne.Container:
+			if _, ok := x.Layout.(settingsColumns); ok {
+				// Rows of label, field and unit: named as a form item
+				// would be, "label (unit)".
+				for i := 0; i+2 < len(x.Objects); i += 3 {
+					name, unit := x.Objects[i].(*widget.Label).Text, x.Objects[i+2].(*widget.Label).Text
+					if unit != "" {
+						name += " (" + unit + ")"
+					}
+					if e, ok := x.Objects[i+1].(*widget.Entry); ok {
+						entries[name] = e
+					}
+				}
+			}
 			for _, ch := range x.Objects {
 				walk(ch)
 			}

@@ -225,7 +225,7 @@ func (v *sliceViewer) CreateRenderer() fyne.WidgetRenderer {
 }
 
 // MinSize keeps the viewer usable in small windows.
-func (v *sliceViewer) MinSize() fyne.Size { return fyne.NewSize(260, 260) }
+func (v *sliceViewer) MinSize() fyne.Size { return fyne.NewSize(260, 200) }
 
 // Scrolled changes the slice with the mouse wheel.
 func (v *sliceViewer) Scrolled(ev *fyne.ScrollEvent) {

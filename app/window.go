@@ -69,8 +69,8 @@ type reviewWindow struct {
 	sliceInfo [2]*widget.Label
 	planeSel  [2]*widget.Select
 
-	title      *widget.Label
-	identity   *widget.Label
+	title      *tipLabel
+	identity   *tipLabel
 	signState  *widget.Label // whether the analysis on screen is signed off
 	hover      *widget.Label
 	status     *widget.Label
@@ -88,7 +88,19 @@ type reviewWindow struct {
 	probe    *plotView
 	probeMsg *widget.Label
 	loadInfo *widget.Label
+	tips     *tipLayer // full text of cut labels on hover
+
+	bottomTabs *container.AppTabs // sonications, pinned point, folder
+
+	// The sonication table's last row, made taller so that it clears the
+	// horizontal scroll bar (-1: none), and the height of the other rows.
+	sonLast int
+	sonRowH float32
 }
+
+// probeSplit is the share of the left column the images keep while the
+// pinned point's plots are shown.
+const probeSplit = 0.42
 
 const (
 	prefRecent   = "recent.v1"
@@ -125,9 +137,11 @@ func newReviewWindow(a fyne.App) *reviewWindow {
 }
 
 func (rw *reviewWindow) build() {
-	rw.title = widget.NewLabelWithStyle("No case open", fyne.TextAlignLeading, fyne.TextStyle{Bold: true})
-	rw.identity = widget.NewLabel("")
-	rw.identity.Truncation = fyne.TextTruncateEllipsis
+	rw.tips = newTipLayer()
+	rw.title = newTipLabel(rw.tips)
+	rw.title.TextStyle.Bold = true
+	rw.title.SetText("No case open")
+	rw.identity = newTipLabel(rw.tips)
 	rw.signState = widget.NewLabelWithStyle("", fyne.TextAlignTrailing, fyne.TextStyle{Bold: true})
 	rw.hover = widget.NewLabel("Hover over an image to read position, anatomy, temperature and dose.")
 	rw.hover.Truncation = fyne.TextTruncateEllipsis
@@ -169,10 +183,9 @@ func (rw *reviewWindow) build() {
 		zoomIn := widget.NewButtonWithIcon("", theme.ZoomInIcon(), func() { v.zoomBy(1.25) })
 		zoomOut := widget.NewButtonWithIcon("", theme.ZoomOutIcon(), func() { v.zoomBy(0.8) })
 		zoomFit := widget.NewButtonWithIcon("", theme.ZoomFitIcon(), v.resetView)
-		head := container.NewBorder(nil, nil,
-			container.NewHBox(container.NewGridWrap(fyne.NewSize(230, 36), rw.planeSel[n]), zoomOut, zoomIn, zoomFit),
-			container.NewGridWrap(fyne.NewSize(120, 36), rw.sliceInfo[n]))
-		return container.NewBorder(head, rw.sliders[n], nil, nil, v)
+		head := container.NewHBox(container.NewGridWrap(fyne.NewSize(210, 36), rw.planeSel[n]), zoomOut, zoomIn, zoomFit)
+		foot := container.NewBorder(nil, nil, nil, container.NewGridWrap(fyne.NewSize(118, 36), rw.sliceInfo[n]), rw.sliders[n])
+		return container.NewBorder(head, foot, nil, nil, v)
 	}
 	views := container.NewStack(container.NewGridWithColumns(2, viewPane(0), viewPane(1)),
 		container.NewCenter(container.NewGridWrap(fyne.NewSize(560, 110), rw.notice)))
@@ -202,11 +215,13 @@ func (rw *reviewWindow) build() {
 
 	rw.selInfo = widget.NewLabel("Showing the cumulative dose")
 	cumul := widget.NewButton("Cumulative", func() { rw.selectSonication(-1) })
-	display := container.NewHBox(
-		widget.NewLabel("Opacity"), container.NewGridWrap(fyne.NewSize(110, 36), rw.opacity),
-		widget.NewLabel("Floor"), container.NewGridWrap(fyne.NewSize(76, 36), rw.floorEntry),
+	// The display controls and the colour bar, then the legend: rows that
+	// wrap where the column is narrow instead of widening the window.
+	display := container.New(newFlowLayout(),
+		container.NewHBox(widget.NewLabel("Opacity"), container.NewGridWrap(fyne.NewSize(110, 36), rw.opacity)),
+		container.NewHBox(widget.NewLabel("Floor"), container.NewGridWrap(fyne.NewSize(76, 36), rw.floorEntry)),
 		showDose, showCont, showHoles, showPlanes, resetWL,
-		widget.NewSeparator(), rw.washBar.content,
+		rw.washBar.content,
 	)
 	legend := legendRow()
 
@@ -219,7 +234,8 @@ func (rw *reviewWindow) build() {
 	rw.loadInfo.TextStyle.Monospace = true
 	bottom := container.NewAppTabs(
 		container.NewTabItem("Sonications", container.NewBorder(
-			container.NewHBox(rw.selInfo, cumul, widget.NewLabel("· untick a sonication to re-analyse without it; select a row to show its dose alone")),
+			container.NewBorder(nil, nil, container.NewHBox(rw.selInfo, cumul), nil,
+				tipText(rw.tips, "· untick a sonication to re-analyse without it; select a row to show its dose alone")),
 			nil, nil, nil, rw.sonTable)),
 		container.NewTabItem("Pinned point", container.NewBorder(rw.probeMsg, nil, nil, nil, rw.probe.raster)),
 		container.NewTabItem("Folder and skipped files", container.NewVScroll(rw.loadInfo)),
@@ -228,6 +244,22 @@ func (rw *reviewWindow) build() {
 		container.NewBorder(nil, container.NewVBox(display, legend), nil, nil, views),
 		bottom)
 	left.SetOffset(0.68)
+	// The pinned point's plots (temperature above, dose below) get half
+	// the column while their tab is open; the other tabs give the room
+	// back to the images.
+	pinTab := bottom.Items[1]
+	restore := -1.0
+	bottom.OnSelected = func(it *container.TabItem) {
+		switch {
+		case it == pinTab && left.Offset > probeSplit:
+			restore = left.Offset
+			left.SetOffset(probeSplit)
+		case it != pinTab && restore >= 0:
+			left.SetOffset(restore)
+			restore = -1
+		}
+	}
+	rw.bottomTabs = bottom
 
 	rw.metrics = newMetricsPanel(rw)
 	main := container.NewHSplit(left, rw.metrics.content)
@@ -246,11 +278,11 @@ func (rw *reviewWindow) build() {
 	header := container.NewBorder(nil, nil, toolbar,
 		container.NewHBox(widget.NewButtonWithIcon("", theme.HelpIcon(), rw.showShortcuts),
 			widget.NewButtonWithIcon("", theme.InfoIcon(), rw.showAbout)),
-		container.NewBorder(nil, nil, container.NewHBox(widget.NewSeparator(), rw.title), rw.signState, rw.identity))
+		container.NewBorder(nil, nil, widget.NewSeparator(), rw.signState, container.New(headerLayout{}, rw.title, rw.identity)))
 	statusBar := container.NewBorder(nil, nil, nil,
 		container.NewHBox(container.NewGridWrap(fyne.NewSize(200, 30), rw.progress), rw.cancelBtn),
 		container.NewGridWithColumns(2, rw.hover, rw.status))
-	rw.win.SetContent(container.NewBorder(header, statusBar, nil, nil, main))
+	rw.win.SetContent(container.NewStack(container.NewBorder(header, statusBar, nil, nil, main), rw.tips.layer))
 	rw.showNotice("Open a case folder (File ▸ Open folder…, or drop a folder on this window).")
 }
 
@@ -258,9 +290,9 @@ func (rw *reviewWindow) build() {
 func legendRow() fyne.CanvasObject {
 	items := []fyne.CanvasObject{}
 	for _, l := range overlayLegend {
-		items = append(items, legendSwatch(l.style, l.c), widget.NewLabel(l.name))
+		items = append(items, container.NewHBox(legendSwatch(l.style, l.c), widget.NewLabel(l.name)))
 	}
-	return container.NewHBox(items...)
+	return container.New(newFlowLayout(), items...)
 }
 
 func (rw *reviewWindow) mainMenu() *fyne.MainMenu {
@@ -357,7 +389,7 @@ func (rw *reviewWindow) setTeaching(on bool) {
 	rw.updateTitle()
 	rw.showLoadInfo()
 	rw.metrics.update()
-	rw.sonTable.Refresh()
+	rw.refreshSonTable()
 	rw.win.SetMainMenu(rw.mainMenu())
 }
 

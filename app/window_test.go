@@ -9,6 +9,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"reflect"
 	"sort"
 	"strings"
 	"testing"
@@ -247,7 +248,7 @@ func TestSignOffRecorded(t *testing.T) {
 	}
 	s := rec.SignOffs[0]
 	raw, _ := rw.resultRaw()
-	if s.Reviewer != "A. Reviewer" || s.InputHash != rw.hash || !s.Time.Equal(testTime) || s.Figures != review.HeadlineOf(raw) || s.Outcome != review.OutcomeAccepted {
+	if s.Reviewer != "A. Reviewer" || s.InputHash != rw.hash || !s.Time.Equal(testTime) || !reflect.DeepEqual(s.Figures, review.HeadlineOf(raw)) || s.Outcome != review.OutcomeAccepted {
 		t.Errorf("sign-off %+v does not match the review", s)
 	}
 	var set map[string]any
@@ -506,12 +507,24 @@ func TestDrawDriftReference(t *testing.T) {
 	}
 	// Drawing on the left image: a drag in reference mode sets the
 	// reference and re-analyses.
+	// The drag runs from (-28, -28) to (-22, -22) mm, inside the
+	// thermometry, wherever the layout puts the view.
 	v := rw.viewers[0]
-	v.draw(int(v.Size().Width), int(v.Size().Height))
+	w, h := int(v.Size().Width), int(v.Size().Height)
+	v.draw(w, h)
+	tr, ok := v.transform(w, h)
+	if !ok {
+		t.Fatal("the left view shows nothing")
+	}
+	px := func(x, y float64) fyne.Position {
+		a, b := tr.Pixel(dosemap.Vec3{x, y, 0})
+		return fyne.NewPos(float32(a), float32(b))
+	}
+	from, to := px(-28, -28), px(-22, -22)
 	rw.startRefMode()
 	mark := rw.completed.Load()
-	v.Dragged(&fyne.DragEvent{PointEvent: fyne.PointEvent{Position: fyne.NewPos(60, 60)}, Dragged: fyne.NewDelta(10, 10)})
-	v.Dragged(&fyne.DragEvent{PointEvent: fyne.PointEvent{Position: fyne.NewPos(120, 110)}, Dragged: fyne.NewDelta(60, 50)})
+	v.Dragged(&fyne.DragEvent{PointEvent: fyne.PointEvent{Position: from.AddXY(2, 2)}, Dragged: fyne.NewDelta(2, 2)})
+	v.Dragged(&fyne.DragEvent{PointEvent: fyne.PointEvent{Position: to}, Dragged: fyne.NewDelta(to.X-from.X-2, to.Y-from.Y-2)})
 	v.DragEnd()
 	waitJobs(t, rw, mark, 1)
 	if rw.settings.Thermometry.DriftReference == nil || v.refMode {

@@ -5,6 +5,8 @@ import (
 	"fmt"
 	"math"
 	"slices"
+	"strconv"
+	"strings"
 
 	"dosecover/dosemap"
 )
@@ -562,4 +564,30 @@ func (fg *fineGrid) interpMask(lc []float32, full []bool, mon []bool) {
 			}
 		}
 	}
+}
+
+// unseenHeatingWarning names the included sonications whose measured dose
+// stays below the negligible dose everywhere (SonicationReach without
+// semi-axes): the monitoring rule ignores them, which is right for a
+// sonication that did not heat, and wrong when its planes missed where it
+// heated. The reader is told so; "" when there is none.
+func unseenHeatingWarning(m *Monitoring, set Settings) string {
+	if m == nil {
+		return ""
+	}
+	var nums []string
+	for _, sr := range m.Reach {
+		if sr.SemiAxesMM == nil {
+			nums = append(nums, strconv.Itoa(sr.Sonication))
+		}
+	}
+	if len(nums) == 0 {
+		return ""
+	}
+	word := "sonication"
+	if len(nums) > 1 {
+		word = "sonications"
+	}
+	return fmt.Sprintf("%s %s: no dose above %g %% of the threshold anywhere on the measured planes; if heating was delivered, the planes missed it and its dose is not counted (check where the planes lay)",
+		word, strings.Join(nums, ", "), 100*set.NegligibleFraction)
 }

@@ -791,6 +791,9 @@ func (s *Session) Analyze(ctx context.Context, set Settings, progress ProgressFu
 		holeMask[v] = s.occ[v] > 0 && dc.monFine[v] && !lethal[v]
 	}
 	r.Monitoring = s.monitoringFigures(dc, lethal)
+	if w := unseenHeatingWarning(r.Monitoring, set); w != "" {
+		r.Warnings = append(r.Warnings, w)
+	}
 	hl, nh := Components(g, holeMask, RegionConnectivity)
 	r.Holes = s.holes(hl, nh, dc, tv)
 	// Lethal outside the margin.

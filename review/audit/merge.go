@@ -172,6 +172,24 @@ func (e *MergeError) Error() string {
 
 var shardStateName = regexp.MustCompile(`^shard-([0-9]+)-of-([0-9]+)\.json$`)
 
+// removeShardStates removes the shard state files (shard-I-of-N.json,
+// regular files only) of outDir.
+func removeShardStates(outDir string) error {
+	entries, err := os.ReadDir(outDir)
+	if err != nil {
+		return fmt.Errorf("removing the shard state files of an earlier split in %s: %w", outDir, err)
+	}
+	for _, e := range entries {
+		if !e.Type().IsRegular() || !shardStateName.MatchString(e.Name()) {
+			continue
+		}
+		if err := os.Remove(filepath.Join(outDir, e.Name())); err != nil && !os.IsNotExist(err) {
+			return fmt.Errorf("removing the shard state files of an earlier split in %s: %w", outDir, err)
+		}
+	}
+	return nil
+}
+
 // Merge joins the shards of an audit in outDir (runs with Shard I/N, for
 // every I of one N, into the same folder) into summary.csv, errors.csv and
 // summary.png, written exactly as a whole run over the same cases writes

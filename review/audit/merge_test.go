@@ -375,3 +375,40 @@ func discoverAll(t *testing.T, in string) []Case {
 	}
 	return cases
 }
+
+// TestWholeRunRemovesShardStates: a whole run into a folder where a split
+// audit ran before removes the shards' state files (and nothing else), so
+// a later merge refuses instead of writing the old shards' tables over the
+// whole run's; a shard run keeps the other shards' state files.
+func TestWholeRunRemovesShardStates(t *testing.T) {
+	tmp := t.TempDir()
+	in := mergeCases(t, tmp)
+	out := filepath.Join(tmp, "out")
+	runShards(t, in, out, 2, 1)
+	runShards(t, in, out, 2, 2) // shard 2 alone in the folder keeps shard 1's state
+	for _, s := range []string{"shard-1-of-2.json", "shard-2-of-2.json"} {
+		if _, err := os.Stat(filepath.Join(out, s)); err != nil {
+			t.Fatalf("after both shards: %v", err)
+		}
+	}
+	writeFiles(t, out, map[string][]byte{"shard-notes.json": []byte("{}")})
+	if _, err := Run(context.Background(), mergeConfig(in, out, 0, 0)); err != nil {
+		t.Fatal(err)
+	}
+	ents, err := os.ReadDir(out)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var left []string
+	for _, e := range ents {
+		if strings.HasPrefix(e.Name(), "shard-") {
+			left = append(left, e.Name())
+		}
+	}
+	if len(left) != 1 || left[0] != "shard-notes.json" {
+		t.Errorf("after a whole run the folder holds %v; want only shard-notes.json (not a state file)", left)
+	}
+	if _, err := Merge(out); err == nil || !strings.Contains(err.Error(), "holds no shards") {
+		t.Errorf("merge after the whole run: %v; want a refusal naming no shards", err)
+	}
+}

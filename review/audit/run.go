@@ -217,7 +217,18 @@ func Run(ctx context.Context, cfg Config) (*Summary, error) {
 	// One whole run at a time in an output folder, or the shards of one
 	// audit together; leftovers of killed runs are removed only by a run
 	// that holds the folder alone, so no live run loses its files.
-	release, _, err := lockOutDir(outDir, cfg.OutDir, sharded, func() error { return removeTemps(outDir, 0) })
+	release, _, err := lockOutDir(outDir, cfg.OutDir, sharded, func() error {
+		if err := removeTemps(outDir, 0); err != nil {
+			return err
+		}
+		if sharded {
+			return nil // the other shards' state files are the merge's input
+		}
+		// A whole run replaces the summary of any earlier split of the
+		// audit: its shards' state files go, so no later merge can write
+		// their old tables over this run's.
+		return removeShardStates(outDir)
+	})
 	if err != nil {
 		var ue *UsageError
 		if errors.As(err, &ue) {
