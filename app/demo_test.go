@@ -99,6 +99,22 @@ func TestDemoOpens(t *testing.T) {
 			t.Errorf("metrics panel lacks %q:\n%s", want, facts)
 		}
 	}
+	// Both coverages are stated, each said of its part of the target.
+	for _, l := range strings.Split(facts, "\n") {
+		switch {
+		case strings.HasPrefix(l, "Covered"):
+			if r.NotMonitoredFraction > 0 && !strings.Contains(l, "of the monitored target") {
+				t.Errorf("%.1f %% of the target is not monitored, yet the covered line does not say of which part: %q", 100*r.NotMonitoredFraction, l)
+			}
+		case strings.Contains(l, "of the whole target"):
+			if want := fmt.Sprintf("%.1f %%", 100*r.CoveredFractionOfTarget); !strings.Contains(l, want) {
+				t.Errorf("whole-target line %q, want %s", l, want)
+			}
+		}
+	}
+	if !strings.Contains(facts, "of the whole target") {
+		t.Errorf("metrics panel lacks the coverage of the whole target:\n%s", facts)
+	}
 	// Against the simulator's truth: the target volume within 10 %
 	// (voxelisation of the contours on the analysis grid).
 	if want := truth.TargetVolumeMM3 / 1000; math.Abs(r.TargetVolumeML-want) > 0.1*want {

@@ -477,8 +477,9 @@ func (m *metricsPanel) update() {
 	}
 	lines := []string{
 		fmt.Sprintf("%-22s %s (%.2f mL)", "Target", name, r.TargetVolumeML),
-		fmt.Sprintf("%-22s %s", "Covered (≥ threshold)", review.PercentText(r.CoveredFraction)),
+		fmt.Sprintf("%-22s %s", "Covered (≥ threshold)", coveredText(r.Result)),
 		fmt.Sprintf("%-22s %s", "  noise band p05–p95", band),
+		fmt.Sprintf("%-22s %s", "  of the whole target", pct(r.CoveredFractionOfTarget)),
 		fmt.Sprintf("%-22s %s", "Not monitored", pct(r.NotMonitoredFraction)),
 		fmt.Sprintf("%-22s %d (%.3f mL)", "Holes", len(r.HoleRows), sumML(r.HoleRows)),
 		fmt.Sprintf("%-22s %d (%.3f mL)", "Lethal outside margin", len(r.SpillRows), r.OutsideMarginLethalML),
@@ -663,4 +664,15 @@ func btoi(b bool) int {
 		return 1
 	}
 	return 0
+}
+
+// coveredText is the covered part of the monitored target as the figures
+// panel shows it, saying which part it is of when not all of the target
+// is monitored.
+func coveredText(r *review.Result) string {
+	t := review.PercentText(r.CoveredFraction)
+	if r.CoveredFraction != nil && r.NotMonitoredFraction > 0 {
+		t += " of the monitored target"
+	}
+	return t
 }

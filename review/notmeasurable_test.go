@@ -8,7 +8,6 @@ import (
 	"strings"
 	"testing"
 
-	"dosecover/dosemap/dicomio"
 	"dosecover/dosemap/sim"
 	"dosecover/review"
 )
@@ -27,15 +26,8 @@ func singlePlaneSession(t *testing.T) *review.Session {
 	}
 	s := sim.PlanesSession(sim.LayoutMovingSlab, 5)
 	s.Thermometry.Slices = 1
-	dir := t.TempDir()
-	if _, err := sim.WriteSession(dir, s); err != nil {
-		t.Fatal(err)
-	}
+	c, _ := loadSession(t, s)
 	ctx := context.Background()
-	c, _, err := dicomio.Load(ctx, dir, dicomio.LoadOptions{Deferred: true}, nil)
-	if err != nil {
-		t.Fatal(err)
-	}
 	ses, err := review.Prepare(ctx, c, review.DefaultSettings(), nil)
 	if err != nil {
 		t.Fatal(err)

@@ -199,28 +199,6 @@ func TestPlaneOutsideAnalysisRegion(t *testing.T) {
 	}
 }
 
-// analyseSession writes s, reads it back and analyses it without Monte
-// Carlo trials.
-func analyseSession(t *testing.T, s *sim.Session) *review.Result {
-	t.Helper()
-	dir := t.TempDir()
-	if _, err := sim.WriteSession(dir, s); err != nil {
-		t.Fatal(err)
-	}
-	ctx := context.Background()
-	c, _, err := dicomio.Load(ctx, dir, dicomio.LoadOptions{Deferred: true}, nil)
-	if err != nil {
-		t.Fatal(err)
-	}
-	set := review.DefaultSettings()
-	set.Trials = 0
-	r, err := review.Analyze(ctx, c, set, nil)
-	if err != nil {
-		t.Fatal(err)
-	}
-	return r
-}
-
 // TestMovingSlabMatchesSharedSlab measures the same simulated treatment
 // twice: on a slab of five 3 mm slices that moves with the focus depth,
 // and on one shared slab of seven 3 mm slices that holds the whole target

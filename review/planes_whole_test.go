@@ -6,7 +6,6 @@ import (
 	"testing"
 
 	"dosecover/dosemap"
-	"dosecover/dosemap/dicomio"
 	"dosecover/dosemap/sim"
 	"dosecover/review"
 )
@@ -75,16 +74,8 @@ func TestPlanesWholeTarget(t *testing.T) {
 	s := sim.PlanesSession(sim.LayoutMovingSlab, 1)
 	s.Thermometry.Slices = 11
 	s.SliceTruth = true
-	dir := t.TempDir()
-	truth, err := sim.WriteSession(dir, s)
-	if err != nil {
-		t.Fatal(err)
-	}
+	c, truth := loadSession(t, s)
 	ctx := context.Background()
-	c, _, err := dicomio.Load(ctx, dir, dicomio.LoadOptions{Deferred: true}, nil)
-	if err != nil {
-		t.Fatal(err)
-	}
 	for _, tc := range []struct {
 		carryOver bool
 		truth     *dosemap.Volume

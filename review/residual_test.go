@@ -10,7 +10,6 @@ import (
 	"time"
 
 	"dosecover/dosemap"
-	"dosecover/dosemap/dicomio"
 	"dosecover/dosemap/sim"
 	"dosecover/review"
 )
@@ -20,16 +19,9 @@ import (
 // simulation's truth.
 func residualCase(t *testing.T, s *sim.Session) (measured, corrected *review.Result, truth *sim.Truth) {
 	t.Helper()
-	dir := t.TempDir()
-	truth, err := sim.WriteSession(dir, s)
-	if err != nil {
-		t.Fatal(err)
-	}
+	c, truth := loadSession(t, s)
 	ctx := context.Background()
-	c, _, err := dicomio.Load(ctx, dir, dicomio.LoadOptions{Deferred: true}, nil)
-	if err != nil {
-		t.Fatal(err)
-	}
+	var err error
 	set := review.DefaultSettings()
 	set.Trials = 0
 	if measured, err = review.Analyze(ctx, c, set, nil); err != nil {

@@ -1,14 +1,12 @@
 package review_test
 
 import (
-	"context"
 	"encoding/json"
 	"math"
 	"os"
 	"path/filepath"
 	"testing"
 
-	"dosecover/dosemap/dicomio"
 	"dosecover/dosemap/sim"
 	"dosecover/review"
 )
@@ -53,21 +51,7 @@ func TestSingleSlabFiguresUnchanged(t *testing.T) {
 			t.Fatalf("no reference figures for %s", name)
 		}
 		t.Run(name, func(t *testing.T) {
-			dir := t.TempDir()
-			if _, err := sim.WriteSession(dir, s); err != nil {
-				t.Fatal(err)
-			}
-			ctx := context.Background()
-			c, _, err := dicomio.Load(ctx, dir, dicomio.LoadOptions{Deferred: true}, nil)
-			if err != nil {
-				t.Fatal(err)
-			}
-			set := review.DefaultSettings()
-			set.Trials = 0
-			r, err := review.Analyze(ctx, c, set, nil)
-			if err != nil {
-				t.Fatal(err)
-			}
+			r := analyseSession(t, s)
 			got := figures(t, r)
 			for k, w := range want {
 				g, ok := got[k]

@@ -1,13 +1,10 @@
 package review_test
 
 import (
-	"context"
 	"strings"
 	"testing"
 
-	"dosecover/dosemap/dicomio"
 	"dosecover/dosemap/sim"
-	"dosecover/review"
 )
 
 // TestUnseenHeatingNamed: a sonication whose planes hold no dose above the
@@ -23,21 +20,7 @@ func TestUnseenHeatingNamed(t *testing.T) {
 	s := sim.PlanesSession(sim.LayoutTwoPlanes, 3)
 	s.Sonications = s.Sonications[:5]
 	s.Sonications[2].Power = 0
-	dir := t.TempDir()
-	if _, err := sim.WriteSession(dir, s); err != nil {
-		t.Fatal(err)
-	}
-	ctx := context.Background()
-	c, _, err := dicomio.Load(ctx, dir, dicomio.LoadOptions{Deferred: true}, nil)
-	if err != nil {
-		t.Fatal(err)
-	}
-	set := review.DefaultSettings()
-	set.Trials = 0
-	r, err := review.Analyze(ctx, c, set, nil)
-	if err != nil {
-		t.Fatal(err)
-	}
+	r := analyseSession(t, s)
 	var named []string
 	for _, w := range r.Warnings {
 		if strings.Contains(w, "planes missed it") {
