@@ -227,8 +227,16 @@ func (f *coolingFit) meanTable(ts []float64) []float32 {
 // outside f's grid).
 //
 // With only not nil, voxels of g outside only are left as they are (the
-// estimate of several stacks, needed within their masks only).
-func (f *coolingFit) addTo(g Geometry, tl *CoolingTail, rise []float32, corr [][]float32, only []bool) {
+// estimate of several stacks, needed within their masks only); spans, when
+// not nil, are only's first and last voxel of each row of g (see
+// maskSpans): the voxels of a row outside its span are not visited.
+//
+// With acc not nil, rise and corr are not used: at each voxel of only
+// where f is known its rise and changes are added to acc's sums and the
+// voxel counted (acc.sumR, acc.sumC, acc.cnt); unknown voxels are left as
+// they are. The sums are those of adding addTo's values on zeroed
+// buffers, to the last bit (x + 0 is x).
+func (f *coolingFit) addTo(g Geometry, tl *CoolingTail, rise []float32, corr [][]float32, only []bool, spans []rowSpan, acc *stackScratch) {
 	nan := float32(math.NaN())
 	tb := f.meanTable(tl.Baseline)
 	tf := make([][]float32, len(tl.Times))
@@ -237,6 +245,22 @@ func (f *coolingFit) addTo(g Geometry, tl *CoolingTail, rise []float32, corr [][
 	}
 	if f.g.SameGrid(g, 0.01) {
 		for v, a := range f.amp {
+			if acc != nil {
+				if a != a || (only != nil && !only[v]) {
+					continue
+				}
+				acc.cnt[v]++
+				if a == 0 {
+					continue
+				}
+				ti := f.tau[v]
+				b := a * tb[ti]
+				acc.sumR[v] += b
+				for fr := range tf {
+					acc.sumC[fr][v] += a*tf[fr][ti] - b
+				}
+				continue
+			}
 			switch {
 			case a != a:
 				rise[v] = nan
@@ -267,10 +291,17 @@ func (f *coolingFit) addTo(g Geometry, tl *CoolingTail, rise []float32, corr [][
 	c0, c1, c2 = c0-o0, c1-o1, c2-o2
 	var idx [8]int
 	var w [8]float64
-	v := 0
 	for k := 0; k < g.Slices; k++ {
 		fk := float64(k)
 		for j := 0; j < g.Rows; j++ {
+			row := k*g.Rows + j
+			first, last := 0, g.Cols-1
+			if spans != nil {
+				first, last = spans[row].first, spans[row].last
+				if first > last {
+					continue // no voxel of only in this row
+				}
+			}
 			fj := float64(j)
 			x := o0 + fj*b0 + fk*c0
 			y := o1 + fj*b1 + fk*c1
@@ -280,7 +311,7 @@ func (f *coolingFit) addTo(g Geometry, tl *CoolingTail, rise []float32, corr [][
 			ilo, ihi := rowInside(x, a0, f.g.Cols, 0, g.Cols-1)
 			ilo, ihi = rowInside(y, a1, f.g.Rows, ilo, ihi)
 			ilo, ihi = rowInside(z, a2, f.g.Slices, ilo, ihi)
-			for i := 0; i < g.Cols; i, v = i+1, v+1 {
+			for i, v := first, row*g.Cols+first; i <= last; i, v = i+1, v+1 {
 				if only != nil && !only[v] {
 					continue
 				}
@@ -290,6 +321,9 @@ func (f *coolingFit) addTo(g Geometry, tl *CoolingTail, rise []float32, corr [][
 					n = f.g.Taps(x+fi*a0, y+fi*a1, z+fi*a2, &idx, &w)
 				}
 				if n == 0 {
+					if acc != nil {
+						continue
+					}
 					rise[v] = nan
 					for fr := range tf {
 						corr[fr][v] = nan
@@ -310,6 +344,9 @@ func (f *coolingFit) addTo(g Geometry, tl *CoolingTail, rise []float32, corr [][
 					}
 				}
 				if !known {
+					if acc != nil {
+						continue
+					}
 					rise[v] = nan
 					for fr := range tf {
 						corr[fr][v] = nan
@@ -317,6 +354,14 @@ func (f *coolingFit) addTo(g Geometry, tl *CoolingTail, rise []float32, corr [][
 					continue
 				}
 				at := float32(vals[0])
+				if acc != nil {
+					acc.sumR[v] += at
+					for fr := range tf {
+						acc.sumC[fr][v] += float32(vals[fr+1]) - at
+					}
+					acc.cnt[v]++
+					continue
+				}
 				rise[v] += at
 				for fr := range tf {
 					corr[fr][v] += float32(vals[fr+1]) - at
@@ -352,6 +397,13 @@ func rowInside(x0, a float64, n, lo, hi int) (int, int) {
 // above). tails[n] nil means sonication n has no usable tail: its own
 // estimate is nil and the later estimates are unknown (NaN) everywhere.
 func EstimateResidual(tails []*CoolingTail, opt ResidualOptions) ([]ResidualEstimate, error) {
+	return estimateResidual(tails, opt, false)
+}
+
+// estimateResidual is EstimateResidual; with everyVoxel the heat of
+// sonications of several stacks is summed visiting every voxel of the
+// grid (addStacksToAll, the straightforward form) instead of the mask's.
+func estimateResidual(tails []*CoolingTail, opt ResidualOptions, everyVoxel bool) ([]ResidualEstimate, error) {
 	opt = opt.withDefaults()
 	out := make([]ResidualEstimate, len(tails))
 	fits := make([][]*coolingFit, len(tails)) // per sonication, per stack
@@ -371,24 +423,47 @@ func EstimateResidual(tails []*CoolingTail, opt ResidualOptions) ([]ResidualEsti
 			prev := tails[n-1]
 			out[n].CoolingS = tl.Baseline[0] - prev.Times[len(prev.Times)-1]
 		}
-		for _, st := range append([]*CoolingTail{tl}, tl.Stacks...) {
-			rise, f := estimateStack(st, fits[:n], broken, opt)
-			if st == tl {
-				out[n].Rise = rise
-			} else {
-				out[n].Stacks = append(out[n].Stacks, rise)
-			}
-			fits[n] = append(fits[n], f)
+		rises, fs := estimateStacks(append([]*CoolingTail{tl}, tl.Stacks...), fits[:n], broken, opt, everyVoxel)
+		out[n].Rise, fits[n] = rises[0], fs
+		if len(rises) > 1 {
+			out[n].Stacks = rises[1:]
 		}
 	}
 	return out, nil
+}
+
+// estimateStacks runs estimateStack on each of one sonication's stacks,
+// at once on as many processors as there are (the stacks depend on the
+// earlier sonications' fits only, not on each other), and returns their
+// rises and fits in the order of sts.
+func estimateStacks(sts []*CoolingTail, earlier [][]*coolingFit, broken bool, opt ResidualOptions, everyVoxel bool) ([]*Volume, []*coolingFit) {
+	rises := make([]*Volume, len(sts))
+	fits := make([]*coolingFit, len(sts))
+	if len(sts) == 1 || runtime.GOMAXPROCS(0) == 1 {
+		for s, st := range sts {
+			rises[s], fits[s] = estimateStack(st, earlier, broken, opt, everyVoxel)
+		}
+		return rises, fits
+	}
+	var wg sync.WaitGroup
+	sem := make(chan struct{}, runtime.GOMAXPROCS(0))
+	for s, st := range sts {
+		wg.Add(1)
+		sem <- struct{}{}
+		go func() {
+			defer func() { <-sem; wg.Done() }()
+			rises[s], fits[s] = estimateStack(st, earlier, broken, opt, everyVoxel)
+		}()
+	}
+	wg.Wait()
+	return rises, fits
 }
 
 // estimateStack returns the rise the earlier sonications' fits leave at
 // the baseline of tail tl (NaN everywhere when broken), and the fit of
 // tl's own cooling, the earlier heat's cooling since the baseline added
 // back to its frames.
-func estimateStack(tl *CoolingTail, earlier [][]*coolingFit, broken bool, opt ResidualOptions) (*Volume, *coolingFit) {
+func estimateStack(tl *CoolingTail, earlier [][]*coolingFit, broken bool, opt ResidualOptions, everyVoxel bool) (*Volume, *coolingFit) {
 	g := tl.Geometry
 	nv := g.Len()
 	rise := make([]float32, nv)
@@ -407,11 +482,15 @@ func estimateStack(tl *CoolingTail, earlier [][]*coolingFit, broken bool, opt Re
 	var sc *stackScratch
 	for k := 0; k < len(earlier) && !broken; k++ {
 		if len(earlier[k]) == 1 {
-			earlier[k][0].addTo(g, tl, rise, corr, nil)
+			earlier[k][0].addTo(g, tl, rise, corr, nil, nil, nil)
+			continue
+		}
+		if everyVoxel {
+			addStacksToAll(earlier[k], g, tl, rise, corr)
 			continue
 		}
 		if sc == nil {
-			sc = newStackScratch(nv, len(corr))
+			sc = newStackScratch(g, tl.Mask, len(corr))
 		}
 		sc.addStacksTo(earlier[k], g, tl, rise, corr)
 	}
@@ -430,18 +509,48 @@ func estimateStack(tl *CoolingTail, earlier [][]*coolingFit, broken bool, opt Re
 }
 
 // stackScratch holds addStacksTo's buffers, reused over the earlier
-// sonications.
+// sonications, and the voxels of the tail's mask (all without one).
 type stackScratch struct {
-	sumR, r []float32
-	sumC, c [][]float32
+	sumR    []float32
+	sumC    [][]float32
 	cnt     []uint8
+	in      []int     // the voxels estimated: the mask's, in index order
+	spans   []rowSpan // the mask's span in each row of the grid; nil without a mask
+	outside bool      // the voxels outside the mask have been set unknown
 }
 
-func newStackScratch(nv, frames int) *stackScratch {
-	sc := &stackScratch{sumR: make([]float32, nv), r: make([]float32, nv), cnt: make([]uint8, nv)}
+// rowSpan is the first and last voxel (column) of a mask in one row of a
+// grid; first > last when the row holds none.
+type rowSpan struct{ first, last int }
+
+// maskSpans returns the span of mask in each row of g (index k·Rows + j).
+func maskSpans(g Geometry, mask []bool) []rowSpan {
+	out := make([]rowSpan, g.Rows*g.Slices)
+	for row := range out {
+		out[row] = rowSpan{first: g.Cols, last: -1}
+		for i, in := range mask[row*g.Cols : (row+1)*g.Cols] {
+			if in {
+				out[row].first = min(out[row].first, i)
+				out[row].last = i
+			}
+		}
+	}
+	return out
+}
+
+func newStackScratch(g Geometry, mask []bool, frames int) *stackScratch {
+	nv := g.Len()
+	sc := &stackScratch{sumR: make([]float32, nv), cnt: make([]uint8, nv)}
 	for range frames {
 		sc.sumC = append(sc.sumC, make([]float32, nv))
-		sc.c = append(sc.c, make([]float32, nv))
+	}
+	for v := range nv {
+		if mask == nil || mask[v] {
+			sc.in = append(sc.in, v)
+		}
+	}
+	if mask != nil {
+		sc.spans = maskSpans(g, mask)
 	}
 	return sc
 }
@@ -450,19 +559,61 @@ func newStackScratch(nv, frames int) *stackScratch {
 // one sonication measured on several stacks (fits): at each voxel the mean
 // of the stacks whose estimate is known there; NaN where none is, and
 // outside tl's Mask (not estimated).
+//
+// Only the voxels of the mask are visited, each fit adding straight to
+// the sums (coolingFit.addTo with acc); rise outside the mask is set NaN
+// once (NaN stays NaN under the later sums), corr is left as it is there.
+// The result is that of visiting every voxel, to the last bit
+// (TestResidualStacksMaskedVisit).
 func (sc *stackScratch) addStacksTo(fits []*coolingFit, g Geometry, tl *CoolingTail, rise []float32, corr [][]float32) {
-	sumR, sumC, cnt, r, c := sc.sumR, sc.sumC, sc.cnt, sc.r, sc.c
-	clear(sumR)
-	clear(cnt)
-	for f := range sumC {
-		clear(sumC[f])
+	sumR, sumC, cnt := sc.sumR, sc.sumC, sc.cnt
+	for _, v := range sc.in {
+		sumR[v], cnt[v] = 0, 0
+		for f := range sumC {
+			sumC[f][v] = 0
+		}
+	}
+	for _, fit := range fits {
+		fit.addTo(g, tl, nil, nil, tl.Mask, sc.spans, sc)
+	}
+	nan := float32(math.NaN())
+	for _, v := range sc.in {
+		k := cnt[v]
+		if k == 0 {
+			rise[v] = nan
+			continue
+		}
+		rise[v] += sumR[v] / float32(k)
+		for f := range corr {
+			corr[f][v] += sumC[f][v] / float32(k)
+		}
+	}
+	if !sc.outside && tl.Mask != nil {
+		for v, in := range tl.Mask {
+			if !in {
+				rise[v] = nan // outside the mask not estimated
+			}
+		}
+		sc.outside = true
+	}
+}
+
+// addStacksToAll is addStacksTo visiting every voxel of the grid: the
+// straightforward form, kept to check the other against.
+func addStacksToAll(fits []*coolingFit, g Geometry, tl *CoolingTail, rise []float32, corr [][]float32) {
+	nv := g.Len()
+	sumR, r, cnt := make([]float32, nv), make([]float32, nv), make([]uint8, nv)
+	var sumC, c [][]float32
+	for range corr {
+		sumC = append(sumC, make([]float32, nv))
+		c = append(c, make([]float32, nv))
 	}
 	for _, fit := range fits {
 		clear(r)
 		for f := range c {
 			clear(c[f])
 		}
-		fit.addTo(g, tl, r, c, tl.Mask)
+		fit.addTo(g, tl, r, c, tl.Mask, nil, nil)
 		for v, x := range r {
 			if x != x || (tl.Mask != nil && !tl.Mask[v]) {
 				continue // unknown; outside the mask not estimated

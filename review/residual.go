@@ -74,16 +74,31 @@ func (ses *Session) prepareResidual(ctx context.Context, c *dosemap.Case, s Sett
 	ses.grown.tails = tails // for AddSonication
 	var todo []int
 	for n, e := range est {
-		sd := ses.sons[n]
-		sd.cooling = e.CoolingS
-		if e.Rise == nil {
-			continue
-		}
-		sd.residual = residualOnGrid(e, ref)
-		if hiddenHeat(e) {
+		ses.sons[n].cooling = e.CoolingS
+		if e.Rise != nil && hiddenHeat(e) {
 			todo = append(todo, n)
 		}
 	}
+	// The estimates on the session's grid, one sonication per processor
+	// at a time (each resampling is independent of the others).
+	var rg sync.WaitGroup
+	next := make(chan int)
+	for range min(runtime.GOMAXPROCS(0), len(est)) {
+		rg.Add(1)
+		go func() {
+			defer rg.Done()
+			for n := range next {
+				ses.sons[n].residual = residualOnGrid(est[n], ref)
+			}
+		}()
+	}
+	for n, e := range est {
+		if e.Rise != nil {
+			next <- n
+		}
+	}
+	close(next)
+	rg.Wait()
 	if !s.CarryOver || len(todo) == 0 {
 		return nil
 	}
