@@ -398,7 +398,7 @@ func (rw *reviewWindow) settingsOrigin() string {
 	if cur.Equal(defaults) {
 		b.WriteString(" Your defaults for new cases are the same.")
 	} else {
-		b.WriteString(" Your defaults for new cases differ: " + defaults.Describe() + ".")
+		b.WriteString(" Your defaults for new cases differ in: " + strings.Join(cur.Differences(defaults, "here", "in your defaults"), "; ") + ".")
 	}
 	b.WriteString(" Apply re-analyses this case and makes these values your defaults.")
 	return b.String()

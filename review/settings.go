@@ -470,6 +470,13 @@ func (s Settings) Unit() string {
 	return "CEM43 min"
 }
 
+// Differences lists, for a person, the settings in which s differs from
+// t (sonications left out are not compared): one entry per setting, as
+// "name: value of s <as>, value of t <ts>", named as sign-offs name them.
+func (s Settings) Differences(t Settings, as, ts string) []string {
+	return diffSettingsJSON(s.JSON(), t.JSON(), as, ts)
+}
+
 // Describe is a one-line summary of the settings for people, shown beside
 // the figures and written into exports and sign-offs.
 func (s Settings) Describe() string {

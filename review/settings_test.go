@@ -257,3 +257,30 @@ func TestThermometryOptions(t *testing.T) {
 		t.Error("a reference outside the thermometry was accepted")
 	}
 }
+
+// TestSettingsDifferences: the settings that differ are listed one each,
+// named for people, with both values; left-out sonications and equal
+// settings give nothing (the comparison is of the JSON every setting is
+// written to, so a new field is covered without a change here).
+func TestSettingsDifferences(t *testing.T) {
+	base := DefaultSettings()
+	for _, tc := range []struct {
+		name   string
+		change func(*Settings)
+		want   []string
+	}{
+		{"same", func(*Settings) {}, nil},
+		{"left out only", func(s *Settings) { s.Excluded = []int{3} }, nil},
+		{"threshold", func(s *Settings) { s.Threshold = 300 }, []string{"lethal threshold: 300 here, 240 there"}},
+		{"margin and alpha", func(s *Settings) { s.MarginMM = 5; s.Thermometry.BodyTempC = 36 }, []string{"margin (mm): 5 here, 3 there", "thermometry body temperature (°C): 36 here, 37 there"}},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			s := base
+			tc.change(&s)
+			got := s.Differences(base, "here", "there")
+			if strings.Join(got, "|") != strings.Join(tc.want, "|") {
+				t.Errorf("differences %q, want %q", got, tc.want)
+			}
+		})
+	}
+}

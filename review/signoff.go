@@ -263,7 +263,15 @@ var settingsNames = map[string]string{
 	"threshold": "lethal threshold", "margin_mm": "margin (mm)", "model": "dose model",
 	"excluded_sonications": "sonications left out", "trials": "Monte Carlo trials",
 	"seed": "Monte Carlo seed", "cem43": "CEM43 model", "arrhenius": "Arrhenius model",
-	"thermometry": "thermometry",
+	"thermometry":     "thermometry",
+	"alpha_ppm_per_c": "PRF α (ppm/°C)", "b0_t": "B0 (T)", "te_ms": "TE (ms)",
+	"baseline_frames": "baseline frames", "body_temp_c": "body temperature (°C)",
+	"phase_scale_rad": "phase scale (rad)", "phase_sign": "phase sign",
+	"drift": "drift correction", "drift_order": "drift order", "drift_reference": "drift reference",
+	"min_magnitude": "lowest magnitude", "max_motion": "motion limit",
+	"carry_over": "residual heat added", "residual_warn_c": "residual heat warning (°C)",
+	"drift_flag_c": "drift flag (°C)", "focal_length_mm": "focal length (mm)",
+	"negligible_fraction": "negligible dose fraction",
 }
 
 // humanKey turns a JSON key into words: known names, else the key with
@@ -279,6 +287,13 @@ func humanKey(k string) string {
 // values, as "name: A then, B now". Sonications left out are compared
 // apart.
 func settingsDiff(then, now json.RawMessage) []string {
+	return diffSettingsJSON(then, now, "then", "now")
+}
+
+// diffSettingsJSON lists the settings that differ between two
+// SettingsJSON values a and b, as "name: A wa, B wb", sonications left
+// out apart.
+func diffSettingsJSON(then, now json.RawMessage, wa, wb string) []string {
 	var a, b any
 	if json.Unmarshal(then, &a) != nil || json.Unmarshal(now, &b) != nil {
 		if !bytes.Equal(then, now) {
@@ -315,7 +330,7 @@ func settingsDiff(then, now json.RawMessage) []string {
 		if reflect.DeepEqual(x, y) {
 			return
 		}
-		out = append(out, fmt.Sprintf("%s: %s then, %s now", strings.Join(path, " "), valueText(x), valueText(y)))
+		out = append(out, fmt.Sprintf("%s: %s %s, %s %s", strings.Join(path, " "), valueText(x), wa, valueText(y), wb))
 	}
 	walk(nil, a, b)
 	return out

@@ -123,7 +123,7 @@ func TestSignOffBeforeNewSettings(t *testing.T) {
 	}
 	r2 := *r
 	r2.Settings.FocalLengthMM = 8
-	if d := strings.Join(so.Differences("abc123", "2.25.7", &r2), "; "); !strings.Contains(d, "focal length mm: 0 then, 8 now") {
+	if d := strings.Join(so.Differences("abc123", "2.25.7", &r2), "; "); !strings.Contains(d, "focal length (mm): 0 then, 8 now") {
 		t.Errorf("focal length changed: differences %q", d)
 	}
 
