@@ -510,6 +510,16 @@ func (rw *reviewWindow) updateScene() {
 		}
 		rw.scene.Planes = view.CaseStacks(rw.loaded.Case, num)
 	}
+	for _, o := range rw.planeControls {
+		if o == nil {
+			continue
+		}
+		if len(rw.scene.Planes) > 0 {
+			o.Show()
+		} else {
+			o.Hide()
+		}
+	}
 	rw.selInfo.SetText("Showing the cumulative dose")
 	if rw.selected >= 0 && rw.selected < len(r.SonicationDose) && r.SonicationDose[rw.selected] != nil {
 		row := r.SonRows[rw.selected]

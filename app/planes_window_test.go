@@ -20,6 +20,16 @@ import (
 func TestSelectingShowsItsPlanes(t *testing.T) {
 	rw := testWindow(t)
 	openSynthetic(t, rw)
+	// One shared grid: no planes to draw, so neither their check nor
+	// their legend entry is shown.
+	if len(rw.planeControls) != 2 {
+		t.Fatalf("%d plane controls, want the check and the legend entry", len(rw.planeControls))
+	}
+	for _, o := range rw.planeControls {
+		if o.Visible() {
+			t.Errorf("plane control %T shown for a case on one shared grid", o)
+		}
+	}
 	coronal := dosemap.Geometry{Cols: 30, Rows: 30, Slices: 1, Spacing: dosemap.Vec3{2, 2, 3},
 		Origin: dosemap.Vec3{-29, 16.3, 29}, Row: dosemap.Vec3{1, 0, 0}, Col: dosemap.Vec3{0, 0, -1}, Normal: dosemap.Vec3{0, 1, 0}}
 	so := rw.loaded.Case.Sonications[2]
@@ -27,6 +37,11 @@ func TestSelectingShowsItsPlanes(t *testing.T) {
 
 	rw.viewers[0].setSlice(0) // away from the hottest point
 	rw.selectSonication(2)
+	for _, o := range rw.planeControls {
+		if !o.Visible() {
+			t.Errorf("plane control %T hidden for a case with planes of its own", o)
+		}
+	}
 	emph := 0
 	for _, st := range rw.scene.Planes {
 		if st.Emphasis != (st.Sonication == 3) {

@@ -79,8 +79,11 @@ type reviewWindow struct {
 	notice     *widget.Label // shown over the viewers when there is nothing to show
 	teachCheck *widget.Check
 	selInfo    *widget.Label
-	opacity    *widget.Slider
-	floorEntry *widget.Entry
+	// planeControls are the Planes check and the legend's measured-plane
+	// entry, shown only for a case measured on planes of its own.
+	planeControls []fyne.CanvasObject
+	opacity       *widget.Slider
+	floorEntry    *widget.Entry
 
 	washBar  *washBar
 	metrics  *metricsPanel
@@ -211,6 +214,7 @@ func (rw *reviewWindow) build() {
 	showHoles.SetChecked(true)
 	showPlanes := widget.NewCheck("Planes", func(b bool) { rw.opt.ShowPlanes = b; rw.redraw() })
 	showPlanes.SetChecked(true)
+	showPlanes.Hide()
 	resetWL := widget.NewButton("Reset window", rw.resetWindow)
 
 	rw.selInfo = widget.NewLabel("Showing the cumulative dose")
@@ -223,7 +227,8 @@ func (rw *reviewWindow) build() {
 		showDose, showCont, showHoles, showPlanes, resetWL,
 		rw.washBar.content,
 	)
-	legend := legendRow()
+	legend, planeEntry := legendRow()
+	rw.planeControls = []fyne.CanvasObject{showPlanes, planeEntry}
 
 	rw.sonTable = rw.newSonicationTable()
 	rw.probe = newPlotView()
@@ -287,12 +292,19 @@ func (rw *reviewWindow) build() {
 }
 
 // legendRow explains the overlay colours and line styles.
-func legendRow() fyne.CanvasObject {
+// legendRow returns the legend of the overlays and, apart, its
+// measured-plane entry (hidden until a case has planes of its own).
+func legendRow() (legend, planeEntry fyne.CanvasObject) {
 	items := []fyne.CanvasObject{}
 	for _, l := range overlayLegend {
-		items = append(items, container.NewHBox(legendSwatch(l.style, l.c), widget.NewLabel(l.name)))
+		it := container.NewHBox(legendSwatch(l.style, l.c), widget.NewLabel(l.name))
+		if l.c == view.ColorPlane {
+			planeEntry = it
+			it.Hide()
+		}
+		items = append(items, it)
 	}
-	return container.New(newFlowLayout(), items...)
+	return container.New(newFlowLayout(), items...), planeEntry
 }
 
 func (rw *reviewWindow) mainMenu() *fyne.MainMenu {
