@@ -119,6 +119,9 @@ func (v *Volume) SampleVoxel(i, j, k float64) float32 {
 // the point lies beyond half a voxel outside the grid. The value
 // SampleVoxel returns there is Σ w·value, or NaN when one of the voxels is
 // NaN.
+//
+// It repeats SampleVoxel's weight loops on purpose: SampleVoxel written on
+// Taps made BenchmarkResample about 23 % slower.
 func (g Geometry) Taps(i, j, k float64, idx *[8]int, w *[8]float64) (n int) {
 	x, ok0 := clampAxis(i, g.Cols)
 	y, ok1 := clampAxis(j, g.Rows)

@@ -182,12 +182,13 @@ func TestDeidentifyResult(t *testing.T) {
 	c.Patient = dosemap.Patient{Name: "NERVE^INVENTED", ID: "ID-42-QQ"}
 	r.Case = c.Label
 	r.Warnings = append(r.Warnings, "case INVENTED: sonication 1 of ID-42-QQ was resampled")
+	r.StudyUID = "2.25.424242" // the original study's UID (PS3.15 Annex E: replaced or removed)
 	d := DeidentifyResult(c, r, "Teaching case 0001")
 	var buf bytes.Buffer
 	if err := d.WriteJSON(&buf); err != nil {
 		t.Fatal(err)
 	}
-	for _, s := range []string{"INVENTED", "ID-42-QQ", "Nerve"} {
+	for _, s := range []string{"INVENTED", "ID-42-QQ", "Nerve", "2.25.424242"} {
 		if strings.Contains(buf.String(), s) {
 			t.Errorf("de-identified result JSON holds %q", s)
 		}
@@ -196,7 +197,7 @@ func TestDeidentifyResult(t *testing.T) {
 		t.Error("label not set")
 	}
 	// The original is left as it was.
-	if r.Case != "case INVENTED" || r.Avoid[0].Name != "Nerve" || !strings.Contains(r.Warnings[len(r.Warnings)-1], "ID-42-QQ") {
+	if r.Case != "case INVENTED" || r.StudyUID != "2.25.424242" || r.Avoid[0].Name != "Nerve" || !strings.Contains(r.Warnings[len(r.Warnings)-1], "ID-42-QQ") {
 		t.Error("DeidentifyResult changed its argument")
 	}
 }
