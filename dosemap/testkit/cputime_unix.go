@@ -1,0 +1,19 @@
+//go:build unix
+
+package testkit
+
+import (
+	"syscall"
+	"time"
+)
+
+// ProcessCPU returns the CPU time (user and system, all threads) the
+// process has used so far (getrusage RUSAGE_SELF), and whether it could be
+// measured.
+func ProcessCPU() (time.Duration, bool) {
+	var ru syscall.Rusage
+	if err := syscall.Getrusage(syscall.RUSAGE_SELF, &ru); err != nil {
+		return 0, false
+	}
+	return time.Duration(ru.Utime.Nano() + ru.Stime.Nano()), true
+}
