@@ -12,6 +12,7 @@ import (
 	"dosecover/dosemap/dicomio"
 	"dosecover/dosemap/sim"
 	"dosecover/review"
+	"dosecover/review/view"
 )
 
 // TestPanelsOnMeasuredPlanes: on the simulated session measured on a
@@ -126,5 +127,165 @@ func TestPanelsOnMeasuredPlanes(t *testing.T) {
 		if held == 0 || measured == 0 {
 			t.Errorf("%s: the plane %s = %.1f mm holds %d voxels of the region, %d with a measured dose; want some", p.Title, m[1], at, held, measured)
 		}
+	}
+}
+
+// deliveredSession returns sim.PlanesSession(l, 1) with every planned spot
+// delivered as planned: the sonication that landed beyond the margin left
+// out and the two spots the session never delivered added, each right
+// after its neighbour on the same depth, like the first pass's spots, and
+// every power raised by a third (the first pass at the demo's full power)
+// so that the lethal dose reaches the target's edges (invented, as the
+// simulator's sessions are). Analysed with a 5 mm margin it has neither a
+// hole nor lethal dose beyond the margin (checked by the test), so the
+// report draws both fallback panels.
+func deliveredSession(l sim.Layout) *sim.Session {
+	s := sim.PlanesSession(l, 1)
+	delivered := map[int]bool{}
+	for _, so := range s.Sonications {
+		if !so.Spill {
+			delivered[so.Planned] = true
+		}
+	}
+	first := s.Sonications[0] // a spot of the first pass: its power, heating and cooling
+	var out []sim.SonicationSpec
+	for _, so := range s.Sonications {
+		if so.Spill {
+			continue
+		}
+		out = append(out, so)
+		for k := so.Planned + 1; so.Planned > 0 && k <= len(s.Planned) && !delivered[k]; k++ {
+			add := first
+			add.Planned, add.Focus = k, s.Planned[k-1]
+			out = append(out, add)
+			delivered[k] = true
+		}
+	}
+	for n := range out {
+		out[n].Power *= 4.0 / 3
+	}
+	s.Sonications = out
+	return s
+}
+
+// simulatedPlanes returns the grids the simulator measured every
+// sonication on (sim.Session.StackGeometries), one per slice.
+func simulatedPlanes(s *sim.Session) []dosemap.Geometry {
+	var out []dosemap.Geometry
+	for n := range s.Sonications {
+		for _, g := range s.StackGeometries(n) {
+			for k := 0; k < g.Slices; k++ {
+				one := g
+				one.Origin, one.Slices = g.Point(0, 0, float64(k)), 1
+				out = append(out, one)
+			}
+		}
+	}
+	return out
+}
+
+// acquiredPlane returns the simulated slice whose plane pl is: the same
+// normal (|cos| at least 1 − 1e-6, about 0.08°: the direction cosines are
+// written as DS values of up to 16 characters, PS3.5 6.2) and the same
+// offset along it within 0.01 mm (the positions are written as DS too;
+// a slice is 3 mm thick). The plane of a slice is the plane of its pixel
+// centres, through Image Position (Patient) with the normal the cross
+// product of the Image Orientation (Patient) cosines (DICOM PS3.3
+// C.7.6.2.1.1).
+func acquiredPlane(planes []dosemap.Geometry, pl view.Plane) (dosemap.Geometry, bool) {
+	n := pl.Normal()
+	for _, g := range planes {
+		if math.Abs(g.Normal.Unit().Dot(n)) >= 1-1e-6 && math.Abs(pl.Distance(g.Origin)) <= 0.01 {
+			return g, true
+		}
+	}
+	return dosemap.Geometry{}, false
+}
+
+// measuredOnPlane counts the voxels of the target mask of r within half a
+// slice thickness of plane g and those of them whose analysed dose is
+// measured (not NaN).
+func measuredOnPlane(r *review.Result, g dosemap.Geometry) (held, measured int) {
+	tg := r.TargetMask.Geometry
+	n := g.Normal.Unit()
+	for i, v := range r.TargetMask.Data {
+		if !(v >= 0.5) {
+			continue
+		}
+		a, b, c := tg.IJK(i)
+		q := tg.Point(float64(a), float64(b), float64(c))
+		if math.Abs(q.Sub(g.Origin).Dot(n)) > g.Spacing[2]/2 {
+			continue
+		}
+		held++
+		if d := r.Dose.Sample(q); d == d {
+			measured++
+		}
+	}
+	return held, measured
+}
+
+// TestFallbackPanelsOnMeasuredPlanes: on simulated sessions measured on
+// planes of their own (a moving axial slab, a coronal and a sagittal plane
+// through each focus) with every spot delivered as planned, there is no
+// hole and no lethal dose beyond the margin, and every panel of the report,
+// the two fallback panels included, lies on a plane the simulator
+// measured (sim.Session.StackGeometries, compared as acquiredPlane says),
+// three different planes, each holding target voxels with a measured dose;
+// the captions say whose plane it is.
+func TestFallbackPanelsOnMeasuredPlanes(t *testing.T) {
+	if testing.Short() {
+		t.Skip("writes and analyses two 36-sonication sessions")
+	}
+	for _, l := range []sim.Layout{sim.LayoutTwoPlanes, sim.LayoutMovingSlab} {
+		t.Run(l.String(), func(t *testing.T) {
+			dir := t.TempDir()
+			s := deliveredSession(l)
+			if _, err := sim.WriteSession(dir, s); err != nil {
+				t.Fatal(err)
+			}
+			ctx := context.Background()
+			c, _, err := dicomio.Load(ctx, dir, dicomio.LoadOptions{Deferred: true}, nil)
+			if err != nil {
+				t.Fatal(err)
+			}
+			set := review.DefaultSettings()
+			set.Trials = 0
+			set.MarginMM = 5
+			r, err := review.Analyze(ctx, c, set, nil)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if len(r.Holes) != 0 || len(r.OutsideClusters) != 0 {
+				t.Fatalf("%d holes and %d clusters beyond the margin; every spot was delivered as planned", len(r.Holes), len(r.OutsideClusters))
+			}
+			panels, err := Panels(c, r, 240)
+			if err != nil {
+				t.Fatal(err)
+			}
+			planes := simulatedPlanes(s)
+			var drawn []dosemap.Geometry
+			for _, p := range panels {
+				g, ok := acquiredPlane(planes, p.plane)
+				if !ok {
+					t.Errorf("%s: %q is no plane the simulator measured", p.Title, p.Caption)
+					continue
+				}
+				for _, d := range drawn {
+					if math.Abs(d.Normal.Unit().Dot(g.Normal.Unit())) >= 1-1e-6 && math.Abs(g.Origin.Sub(d.Origin).Dot(g.Normal.Unit())) <= 0.01 {
+						t.Errorf("%s: %q repeats the plane of an earlier panel", p.Title, p.Caption)
+					}
+				}
+				drawn = append(drawn, g)
+				if !strings.Contains(p.Caption, "; measured plane of ") || strings.Contains(p.Caption, "nearest") {
+					t.Errorf("%s: caption %q does not name whose measured plane it is", p.Title, p.Caption)
+				}
+				held, measured := measuredOnPlane(r, g)
+				t.Logf("%s: %q; %d target voxels on the plane, %d with a measured dose", p.Title, p.Caption, held, measured)
+				if held == 0 || measured < held/2 {
+					t.Errorf("%s: %d target voxels on the plane, %d with a measured dose; want most measured", p.Title, held, measured)
+				}
+			}
+		})
 	}
 }
