@@ -557,8 +557,9 @@ func Panels(c *dosemap.Case, r *review.Result, px int) ([]Panel, error) {
 	// reformat o through the target centre on one shared slab; on planes
 	// of their own the measured slice that measured most of the target
 	// among those not in a plane shown before, across the planes shown
-	// when one such holds the target, or else the reformat, saying that
-	// its dose is known only where measured planes cross it.
+	// when one such holds the target, or else the reformat (o, or another
+	// orientation when o's would repeat a plane shown), saying that its
+	// dose is known only where measured planes cross it.
 	fallback := func(title string, o view.Orientation) (Panel, error) {
 		if own == nil {
 			return panel(title, o, cen, cen, extent, "; through the target centre", nil)
@@ -567,6 +568,12 @@ func Panels(c *dosemap.Case, r *review.Result, px int) ([]Panel, error) {
 			if ms, ok := bestMeasuredSlice(cand, r.TargetMask, fractionWeight, cen, shown); ok && ms.Voxels > 0 {
 				shown = append(shown, ms)
 				return panel(title, o, cen, cen, extent, "; through the target", &ms)
+			}
+		}
+		for _, oo := range []view.Orientation{o, view.RowNormal, view.ColNormal, view.Acquisition} {
+			if !inShown(shown, view.PlaneThrough(grid, oo, cen, pixelMM)) {
+				o = oo
+				break
 			}
 		}
 		return panel(title, o, cen, cen, extent, "; through the target centre; reformat, not a measured plane: "+

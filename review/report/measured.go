@@ -154,6 +154,18 @@ func inPlaneOf(skip []measuredSlice, g dosemap.Geometry, k int) bool {
 	return false
 }
 
+// inShown reports whether plane pl lies in the plane of a slice of shown:
+// the same normal (within about 0.08°) and within 0.1 mm, as coplanar.
+func inShown(shown []measuredSlice, pl view.Plane) bool {
+	n := pl.Normal()
+	for _, ms := range shown {
+		if math.Abs(ms.Stack.Normal.Unit().Dot(n)) >= 1-1e-6 && math.Abs(pl.Distance(ms.Stack.Point(0, 0, float64(ms.K)))) <= 0.1 {
+			return true
+		}
+	}
+	return false
+}
+
 // coplanar reports whether slice k of g lies in the plane of slice ms:
 // the same normal (within about 0.08°) and centre planes within 0.1 mm.
 func coplanar(ms measuredSlice, g dosemap.Geometry, k int) bool {

@@ -26,7 +26,9 @@ import (
 // analysed dose is measured (not NaN). On this session the hole's
 // centroid lies between the simulated sagittal planes (logged), so the
 // plane through the centroid is not a measured one. The target panel
-// shows another plane than the hole panel.
+// shows another plane than the hole panel. With sonication 30 (the one
+// beyond the margin) left out, the panel without a cluster lies on a third
+// measured plane through the target (checkMeasuredPanels).
 func TestPanelsOnMeasuredPlanes(t *testing.T) {
 	if testing.Short() {
 		t.Skip("writes and analyses a 35-sonication session")
@@ -126,6 +128,53 @@ func TestPanelsOnMeasuredPlanes(t *testing.T) {
 		t.Logf("%s: %q; %d voxels of the region on the plane, %d with a measured dose", p.Title, p.Caption, held, measured)
 		if held == 0 || measured == 0 {
 			t.Errorf("%s: the plane %s = %.1f mm holds %d voxels of the region, %d with a measured dose; want some", p.Title, m[1], at, held, measured)
+		}
+	}
+
+	// Sonication 30 (the one beyond the margin) left out: the hole stays,
+	// and the panel without a cluster lies on a third measured plane
+	// through the target.
+	set.Excluded = []int{30}
+	r, err = review.Analyze(ctx, c, set, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(r.Holes) == 0 || len(r.OutsideClusters) != 0 {
+		t.Fatalf("sonication 30 left out: %d holes and %d clusters beyond the margin; want the hole and no cluster", len(r.Holes), len(r.OutsideClusters))
+	}
+	if panels, err = Panels(c, r, 240); err != nil {
+		t.Fatal(err)
+	}
+	checkMeasuredPanels(t, r, panels, simulatedPlanes(s))
+}
+
+// checkMeasuredPanels checks that every panel lies on a plane the
+// simulator measured (acquiredPlane), no two on the same plane, its
+// caption naming whose measured plane it is, and that the target voxels on
+// the plane of each panel without a hole or cluster to show have a
+// measured dose.
+func checkMeasuredPanels(t *testing.T, r *review.Result, panels []Panel, planes []dosemap.Geometry) {
+	t.Helper()
+	var drawn []dosemap.Geometry
+	for _, p := range panels {
+		g, ok := acquiredPlane(planes, p.plane)
+		if !ok {
+			t.Errorf("%s: %q is no plane the simulator measured", p.Title, p.Caption)
+			continue
+		}
+		for _, d := range drawn {
+			if math.Abs(d.Normal.Unit().Dot(g.Normal.Unit())) >= 1-1e-6 && math.Abs(g.Origin.Sub(d.Origin).Dot(g.Normal.Unit())) <= 0.01 {
+				t.Errorf("%s: %q repeats the plane of an earlier panel", p.Title, p.Caption)
+			}
+		}
+		drawn = append(drawn, g)
+		if !strings.Contains(p.Caption, "; measured plane of ") || strings.Contains(p.Caption, "nearest") {
+			t.Errorf("%s: caption %q does not name whose measured plane it is", p.Title, p.Caption)
+		}
+		held, measured := measuredOnPlane(r, g)
+		t.Logf("%s: %q; %d target voxels on the plane, %d with a measured dose", p.Title, p.Caption, held, measured)
+		if strings.HasPrefix(p.Title, "No ") && (held == 0 || measured < held/2) {
+			t.Errorf("%s: %d target voxels on the plane, %d with a measured dose; want most measured", p.Title, held, measured)
 		}
 	}
 }
@@ -232,7 +281,10 @@ func measuredOnPlane(r *review.Result, g dosemap.Geometry) (held, measured int) 
 // the two fallback panels included, lies on a plane the simulator
 // measured (sim.Session.StackGeometries, compared as acquiredPlane says),
 // three different planes, each holding target voxels with a measured dose;
-// the captions say whose plane it is.
+// the captions say whose plane it is. With only one sonication of the
+// two-plane session kept, its two planes show the target and the hole, and
+// the panel without a cluster, which no other measured plane can show,
+// is a reformat whose caption says it is not a measured plane.
 func TestFallbackPanelsOnMeasuredPlanes(t *testing.T) {
 	if testing.Short() {
 		t.Skip("writes and analyses two 36-sonication sessions")
@@ -263,28 +315,45 @@ func TestFallbackPanelsOnMeasuredPlanes(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			planes := simulatedPlanes(s)
-			var drawn []dosemap.Geometry
-			for _, p := range panels {
-				g, ok := acquiredPlane(planes, p.plane)
-				if !ok {
-					t.Errorf("%s: %q is no plane the simulator measured", p.Title, p.Caption)
-					continue
+			if len(panels) != 3 || !strings.HasPrefix(panels[1].Title, "No hole") || panels[2].Title != "No lethal dose outside margin" {
+				t.Fatalf("panels %v: want the target and the two panels without a hole or cluster", titles(panels))
+			}
+			checkMeasuredPanels(t, r, panels, simulatedPlanes(s))
+			if l != sim.LayoutTwoPlanes {
+				return
+			}
+
+			// Only the sonication nearest the lesion's centre kept: its
+			// coronal and sagittal planes show the target and the hole;
+			// no other measured plane holds the target, and the panel
+			// without a cluster says its plane is not a measured one.
+			keep := 0
+			for n, so := range s.Sonications {
+				if so.Focus.Sub(s.Phantom.Lesion.Center).Norm() < s.Sonications[keep].Focus.Sub(s.Phantom.Lesion.Center).Norm() {
+					keep = n
 				}
-				for _, d := range drawn {
-					if math.Abs(d.Normal.Unit().Dot(g.Normal.Unit())) >= 1-1e-6 && math.Abs(g.Origin.Sub(d.Origin).Dot(g.Normal.Unit())) <= 0.01 {
-						t.Errorf("%s: %q repeats the plane of an earlier panel", p.Title, p.Caption)
-					}
+			}
+			set.Excluded = nil
+			for n := range s.Sonications {
+				if n != keep {
+					set.Excluded = append(set.Excluded, n+1)
 				}
-				drawn = append(drawn, g)
-				if !strings.Contains(p.Caption, "; measured plane of ") || strings.Contains(p.Caption, "nearest") {
-					t.Errorf("%s: caption %q does not name whose measured plane it is", p.Title, p.Caption)
-				}
-				held, measured := measuredOnPlane(r, g)
-				t.Logf("%s: %q; %d target voxels on the plane, %d with a measured dose", p.Title, p.Caption, held, measured)
-				if held == 0 || measured < held/2 {
-					t.Errorf("%s: %d target voxels on the plane, %d with a measured dose; want most measured", p.Title, held, measured)
-				}
+			}
+			if r, err = review.Analyze(ctx, c, set, nil); err != nil {
+				t.Fatal(err)
+			}
+			if len(r.Holes) == 0 || len(r.OutsideClusters) != 0 {
+				t.Fatalf("one sonication kept: %d holes, %d clusters beyond the margin; want a hole and no cluster", len(r.Holes), len(r.OutsideClusters))
+			}
+			if panels, err = Panels(c, r, 240); err != nil {
+				t.Fatal(err)
+			}
+			kept := s.StackGeometries(keep)
+			checkMeasuredPanels(t, r, panels[:2], kept)
+			p := panels[2]
+			t.Logf("%s: %q", p.Title, p.Caption)
+			if _, ok := acquiredPlane(kept, p.plane); ok || !strings.Contains(p.Caption, "not a measured plane") || strings.Contains(p.Caption, "measured plane of") {
+				t.Errorf("%s: caption %q; want a reformat saying it is not a measured plane (on a measured plane: %v)", p.Title, p.Caption, ok)
 			}
 		})
 	}
