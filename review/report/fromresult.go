@@ -553,7 +553,7 @@ func Panels(c *dosemap.Case, r *review.Result, px int) ([]Panel, error) {
 	if targetMS != nil && targetMS.Voxels > 0 {
 		shown = append(shown, *targetMS)
 	}
-	// fallback draws a panel with no hole or cluster to show: today's
+	// fallback draws a panel with no hole or cluster to show: the
 	// reformat o through the target centre on one shared slab; on planes
 	// of their own the measured slice that measured most of the target
 	// among those not in a plane shown before, across the planes shown
