@@ -85,6 +85,7 @@ type auditView struct {
 	message   *widget.Label
 
 	table    *widget.Table
+	tips     *tipLayer   // full text of the column headers on hover
 	rows     []audit.Row // as shown, in display order
 	sortCol  int         // -1: by case name as the engine returns them
 	sortDesc bool
@@ -244,6 +245,7 @@ func (av *auditView) build() {
 	runRow := container.NewBorder(nil, nil, container.NewHBox(av.runBtn, av.cancelBtn),
 		nil, container.NewBorder(nil, nil, container.NewGridWrap(fyne.NewSize(260, 36), container.NewStack(av.progress, av.searching)), nil, av.counts))
 
+	av.tips = newTipLayer()
 	av.table = av.newTable()
 	av.selInfo = widget.NewLabel("Select a case; double-click or “Open case” shows it in the review window.")
 	av.openBtn = widget.NewButtonWithIcon("Open case", theme.FolderOpenIcon(), av.openSelected)
@@ -267,7 +269,7 @@ func (av *auditView) build() {
 		container.NewStack(av.table, container.NewCenter(av.noRows)))
 	split := container.NewVSplit(container.NewVScroll(form), results)
 	split.SetOffset(0.48)
-	av.win.SetContent(container.NewBorder(nil, caution, nil, nil, split))
+	av.win.SetContent(container.NewStack(container.NewBorder(nil, caution, nil, nil, split), av.tips.layer))
 	av.win.SetOnDropped(av.dropped)
 	av.describeSettings()
 }
