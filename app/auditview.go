@@ -271,6 +271,11 @@ func (av *auditView) build() {
 	split.SetOffset(0.48)
 	av.win.SetContent(container.NewStack(container.NewBorder(nil, caution, nil, nil, split), av.tips.layer))
 	av.win.SetOnDropped(av.dropped)
+	av.win.Canvas().SetOnTypedKey(func(ev *fyne.KeyEvent) {
+		if ev.Name == fyne.KeyEscape {
+			escapeDialog(av.win)
+		}
+	})
 	av.describeSettings()
 }
 
@@ -351,7 +356,7 @@ func (av *auditView) startDir() string {
 func (av *auditView) folderDialog(fn func(string)) {
 	d := dialog.NewFolderOpen(func(u fyne.ListableURI, err error) {
 		if err != nil {
-			dialog.ShowError(err, av.win)
+			showDialog(av.win, dialog.NewError(err, av.win))
 			return
 		}
 		if u != nil {
@@ -373,7 +378,7 @@ func (av *auditView) chooseOutput() { av.folderDialog(av.outEntry.SetText) }
 func (av *auditView) chooseSettingsFile() {
 	d := dialog.NewFileOpen(func(r fyne.URIReadCloser, err error) {
 		if err != nil {
-			dialog.ShowError(err, av.win)
+			showDialog(av.win, dialog.NewError(err, av.win))
 			return
 		}
 		if r == nil {
@@ -687,11 +692,11 @@ func (av *auditView) openSelected() {
 	}
 	dir, err := av.sourceDir(av.rows[av.selected])
 	if err != nil {
-		dialog.ShowError(err, av.win)
+		showDialog(av.win, dialog.NewError(err, av.win))
 		return
 	}
 	if fi, err := os.Stat(dir); err != nil || !fi.IsDir() {
-		dialog.ShowError(fmt.Errorf("the case folder %s is no longer there", dir), av.win)
+		showDialog(av.win, dialog.NewError(fmt.Errorf("the case folder %s is no longer there", dir), av.win))
 		return
 	}
 	if av.rows[av.selected].Source == "" && av.hideIdentity != nil {
@@ -727,11 +732,11 @@ func (av *auditView) openResults() {
 		dir = strings.TrimSpace(av.outEntry.Text)
 	}
 	if dir == "" {
-		dialog.ShowInformation("Open folder of results", "Choose an output folder or open an existing audit first.", av.win)
+		showDialog(av.win, dialog.NewInformation("Open folder of results", "Choose an output folder or open an existing audit first.", av.win))
 		return
 	}
 	if _, err := os.Stat(dir); err != nil {
-		dialog.ShowError(fmt.Errorf("output folder %s: %w", dir, err), av.win)
+		showDialog(av.win, dialog.NewError(fmt.Errorf("output folder %s: %w", dir, err), av.win))
 		return
 	}
 	av.openPath(dir)
@@ -740,7 +745,7 @@ func (av *auditView) openResults() {
 func (av *auditView) openPath(p string) {
 	abs, err := filepath.Abs(p)
 	if err != nil {
-		dialog.ShowError(err, av.win)
+		showDialog(av.win, dialog.NewError(err, av.win))
 		return
 	}
 	u, err := url.Parse(storage.NewFileURI(abs).String())
@@ -748,7 +753,7 @@ func (av *auditView) openPath(p string) {
 		err = av.app.OpenURL(u)
 	}
 	if err != nil {
-		dialog.ShowError(fmt.Errorf("opening %s: %w", abs, err), av.win)
+		showDialog(av.win, dialog.NewError(fmt.Errorf("opening %s: %w", abs, err), av.win))
 	}
 }
 

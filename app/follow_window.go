@@ -73,7 +73,7 @@ func (rw *reviewWindow) chooseFollowArchive() {
 		}
 	}, rw.win)
 	d.Resize(fyne.NewSize(720, 220))
-	d.Show()
+	showDialog(rw.win, d)
 }
 
 // followArchive follows the archive study at addr (URL/studies/UID).

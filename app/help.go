@@ -36,7 +36,7 @@ func (rw *reviewWindow) showAbout() {
 	box := container.NewVBox(head, sub, widget.NewSeparator(), caution, widget.NewSeparator(), methods)
 	d := dialog.NewCustom("About dosecover", "Close", container.NewVScroll(box), rw.win)
 	d.Resize(fyne.NewSize(720, 620))
-	d.Show()
+	showDialog(rw.win, d)
 }
 
 // shortcuts lists the keyboard and mouse controls.
@@ -71,18 +71,18 @@ func (rw *reviewWindow) showShortcuts() {
 	}
 	d := dialog.NewCustom("Keyboard and mouse", "Close", container.NewVScroll(form), rw.win)
 	d.Resize(fyne.NewSize(780, 700))
-	d.Show()
+	showDialog(rw.win, d)
 }
 
 // signOff records a reviewer's name and comment with the time and the
 // SHA-256 of the input files in the review record.
 func (rw *reviewWindow) signOff() {
 	if rw.loaded == nil || rw.record == nil {
-		dialog.ShowInformation("Sign off", "Open a case first.", rw.win)
+		showDialog(rw.win, dialog.NewInformation("Sign off", "Open a case first.", rw.win))
 		return
 	}
 	if rw.result == nil {
-		dialog.ShowInformation("Sign off", "The case has not been analysed; there is nothing to sign off yet.", rw.win)
+		showDialog(rw.win, dialog.NewInformation("Sign off", "The case has not been analysed; there is nothing to sign off yet.", rw.win))
 		return
 	}
 	name := widget.NewEntry()
@@ -115,11 +115,11 @@ func (rw *reviewWindow) signOff() {
 		}
 		who := strings.TrimSpace(name.Text)
 		if who == "" {
-			dialog.ShowInformation("Sign off", "A sign-off needs the reviewer's name; nothing was recorded.", rw.win)
+			showDialog(rw.win, dialog.NewInformation("Sign off", "A sign-off needs the reviewer's name; nothing was recorded.", rw.win))
 			return
 		}
 		if outcome.Selected == "" {
-			dialog.ShowInformation("Sign off", "A sign-off needs an outcome; nothing was recorded.", rw.win)
+			showDialog(rw.win, dialog.NewInformation("Sign off", "A sign-off needs an outcome; nothing was recorded.", rw.win))
 			return
 		}
 		rw.app.Preferences().SetString(prefReviewer, who)
@@ -131,7 +131,7 @@ func (rw *reviewWindow) signOff() {
 		rw.metrics.update()
 	}, rw.win)
 	d.Resize(fyne.NewSize(720, 420))
-	d.Show()
+	showDialog(rw.win, d)
 }
 
 // addSignOff records a sign-off of the analysis on screen (its input

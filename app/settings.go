@@ -376,7 +376,7 @@ func showSettingsDialog(w fyne.Window, cur review.Settings, note, origin string,
 		container.NewVScroll(content))
 	d = dialog.NewCustomWithoutButtons("Analysis settings", body2, w)
 	d.Resize(fyne.NewSize(660, 720))
-	d.Show()
+	showDialog(w, d)
 }
 
 // settingsOrigin says which values the settings dialog shows: those of the

@@ -466,6 +466,9 @@ func (rw *reviewWindow) sliceChanged(n int) {
 }
 
 func (rw *reviewWindow) typedKey(ev *fyne.KeyEvent) {
+	if ev.Name == fyne.KeyEscape && escapeDialog(rw.win) {
+		return
+	}
 	if ev.Name == fyne.KeyEscape && rw.viewers[0].refMode {
 		rw.viewers[0].refMode = false
 		rw.viewers[0].refA, rw.viewers[0].refB = nil, nil
@@ -617,7 +620,7 @@ func (rw *reviewWindow) finishJob(gen int) bool {
 func (rw *reviewWindow) showError(title string, err error) {
 	msg := rw.scrub(err.Error())
 	rw.setBusy(rw.scrub(title)+": "+msg, -1)
-	dialog.ShowError(fmt.Errorf("%s\n\n%s", rw.scrub(title), msg), rw.win)
+	showDialog(rw.win, dialog.NewError(fmt.Errorf("%s\n\n%s", rw.scrub(title), msg), rw.win))
 }
 
 // startRefMode lets the user drag the drift reference rectangle on the

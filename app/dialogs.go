@@ -1,0 +1,46 @@
+//go:build cgo
+
+package main
+
+import (
+	"slices"
+
+	"fyne.io/fyne/v2"
+	"fyne.io/fyne/v2/dialog"
+)
+
+// openDialogs lists the dialogs shown with showDialog over each window,
+// the newest last. Fyne's dialogs take no keys of their own; the window's
+// key handler closes the newest with Escape (escapeDialog).
+var openDialogs = map[fyne.Window][]dialog.Dialog{}
+
+// showDialog shows d over w so that Escape closes it as its Cancel or
+// Close button does.
+func showDialog(w fyne.Window, d dialog.Dialog) {
+	d.SetOnClosed(func() {
+		ds := openDialogs[w]
+		if i := slices.Index(ds, d); i >= 0 {
+			ds = slices.Delete(ds, i, i+1)
+		}
+		if len(ds) == 0 {
+			delete(openDialogs, w)
+		} else {
+			openDialogs[w] = ds
+		}
+	})
+	openDialogs[w] = append(openDialogs[w], d)
+	d.Show()
+}
+
+// escapeDialog closes the newest dialog over w as its Cancel or Close
+// button would and reports whether there was one. It leaves the dialogs
+// alone while something else is on top of them (a drop-down list, a file
+// chooser): the key then belongs to that.
+func escapeDialog(w fyne.Window) bool {
+	ds := openDialogs[w]
+	if len(ds) == 0 || len(w.Canvas().Overlays().List()) != len(ds) {
+		return false
+	}
+	ds[len(ds)-1].Hide()
+	return true
+}
