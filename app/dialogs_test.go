@@ -7,6 +7,7 @@ import (
 	"testing"
 
 	"fyne.io/fyne/v2"
+	"fyne.io/fyne/v2/test"
 )
 
 // pressEscape sends Escape to c as the desktop driver does when no field
@@ -63,5 +64,34 @@ func TestEscapeClosesDialogs(t *testing.T) {
 	pressEscape(t, c)
 	if n := len(c.Overlays().List()); n != 0 {
 		t.Errorf("after two Escapes %d dialogs are shown, want none", n)
+	}
+}
+
+// TestStatusLineOnHover: the status line after an analysis names the
+// settings in a sentence ("Analysed: Threshold 240 …", not "Analysed with
+// Threshold …"); cut at the window's edge, it shows in full on hover.
+func TestStatusLineOnHover(t *testing.T) {
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	want := "Analysed: " + rw.settings.Describe() + "."
+	if rw.status.Text != want {
+		t.Fatalf("status %q, want %q", rw.status.Text, want)
+	}
+	if !rw.status.cut() {
+		t.Fatalf("status line %g px wide is not cut; the test needs a longer line", rw.status.Size().Width)
+	}
+	c := rw.win.Canvas()
+	d := fyne.CurrentApp().Driver()
+	test.MoveMouse(c, d.AbsolutePositionForObject(rw.status).AddXY(30, rw.status.Size().Height/2))
+	if got := rw.tips.shown(); got != want {
+		t.Errorf("hovering the status line shows %q, want its full text", got)
+	}
+	box := rw.tips.box
+	if p, win := d.AbsolutePositionForObject(box), c.Size(); p.X < 0 || p.Y < 0 || p.X+box.Size().Width > win.Width+0.5 || p.Y+box.Size().Height > win.Height+0.5 {
+		t.Errorf("tip at %v size %v leaves the %v window", p, box.Size(), win)
+	}
+	test.MoveMouse(c, fyne.NewPos(5, 5))
+	if got := rw.tips.shown(); got != "" {
+		t.Errorf("after the pointer left, the tip %q stays", got)
 	}
 }

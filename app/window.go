@@ -73,7 +73,7 @@ type reviewWindow struct {
 	identity   *tipLabel
 	signState  *widget.Label // whether the analysis on screen is signed off
 	hover      *widget.Label
-	status     *widget.Label
+	status     *tipLabel
 	progress   *widget.ProgressBar
 	cancelBtn  *widget.Button
 	notice     *widget.Label // shown over the viewers when there is nothing to show
@@ -148,8 +148,7 @@ func (rw *reviewWindow) build() {
 	rw.signState = widget.NewLabelWithStyle("", fyne.TextAlignTrailing, fyne.TextStyle{Bold: true})
 	rw.hover = widget.NewLabel("Hover over an image to read position, anatomy, temperature and dose.")
 	rw.hover.Truncation = fyne.TextTruncateEllipsis
-	rw.status = widget.NewLabel("")
-	rw.status.Truncation = fyne.TextTruncateEllipsis
+	rw.status = newTipLabel(rw.tips) // cut where it does not fit, its full text on hover
 	rw.progress = widget.NewProgressBar()
 	rw.progress.Hide()
 	rw.cancelBtn = widget.NewButtonWithIcon("Cancel", theme.CancelIcon(), rw.cancelJob)
