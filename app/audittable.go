@@ -183,19 +183,18 @@ func (av *auditView) sortBy(col int) {
 }
 
 // auditCell is one cell of the audit table: an icon (status column only)
-// and a label. It passes taps on to the table and opens the case on a
-// double tap.
+// and a label, cut where it does not fit with its full text on hover. It
+// passes taps on to the table and opens the case on a double tap.
 type auditCell struct {
 	widget.BaseWidget
 	av   *auditView
 	id   widget.TableCellID
 	icon *widget.Icon
-	text *widget.Label
+	text *tipLabel
 }
 
 func newAuditCell(av *auditView) *auditCell {
-	c := &auditCell{av: av, icon: widget.NewIcon(nil), text: widget.NewLabel("")}
-	c.text.Truncation = fyne.TextTruncateEllipsis
+	c := &auditCell{av: av, icon: widget.NewIcon(nil), text: newTipLabel(av.tips)}
 	c.ExtendBaseWidget(c)
 	return c
 }

@@ -131,3 +131,43 @@ func TestAuditHeaderTips(t *testing.T) {
 		checkHeaderTip(t, titles[col], tip)
 	}
 }
+
+// TestAuditCaseNameOnHover: two case names cut alike in the audit table
+// ("registry/fictitious-liver-phan…") each show in full while the pointer
+// rests on them; a name that fits shows none.
+func TestAuditCaseNameOnHover(t *testing.T) {
+	a := test.NewTempApp(t)
+	av, _ := testAuditView(t, a, func() (review.Settings, string, string) { return review.DefaultSettings(), "defaults", "" })
+	names := []string{"registry/fictitious-liver-phantom-two-plane-series", "registry/fictitious-liver-phantom-two-planes", "registry/a"}
+	var rows []audit.Row
+	for n, s := range names {
+		rows = append(rows, audit.Row{Case: string(rune('a' + n)), Source: s, Status: audit.StatusOK, Metrics: audit.Metrics{CoveragePct: 90}})
+	}
+	av.setRows(rows, t.TempDir())
+	av.table.ScrollToLeading()
+	c := av.win.Canvas()
+	d := fyne.CurrentApp().Driver()
+	found := 0
+	for _, cell := range objectsOf[*auditCell](av.table) {
+		if cell.id.Col != 0 {
+			continue
+		}
+		found++
+		name := cell.text.Text
+		test.MoveMouse(c, d.AbsolutePositionForObject(cell.text).AddXY(cell.text.Size().Width/2, cell.text.Size().Height/2))
+		want := ""
+		if len(name) > len("registry/a") {
+			want = name
+			if !cell.text.cut() {
+				t.Errorf("%q is not cut in a %g px column; the test needs a longer name", name, cell.text.Size().Width)
+			}
+		}
+		if got := av.tips.shown(); got != want {
+			t.Errorf("hovering the case %q shows %q, want %q", name, got, want)
+		}
+		test.MoveMouse(c, fyne.NewPos(2, 2))
+	}
+	if found != len(names) {
+		t.Errorf("%d case cells drawn, want %d", found, len(names))
+	}
+}
