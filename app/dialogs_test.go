@@ -95,3 +95,48 @@ func TestStatusLineOnHover(t *testing.T) {
 		t.Errorf("after the pointer left, the tip %q stays", got)
 	}
 }
+
+// TestMenuShowsShortcuts: the menu items that have a keyboard shortcut
+// show it, the same shortcut the window answers to and the help lists.
+func TestMenuShowsShortcuts(t *testing.T) {
+	rw := testWindow(t)
+	help := map[string]bool{}
+	for _, s := range shortcuts {
+		help[s[0]] = true
+	}
+	items := map[string]*fyne.MenuItem{}
+	for _, m := range rw.mainMenu().Items {
+		for _, it := range m.Items {
+			items[it.Label] = it
+		}
+	}
+	for _, c := range []struct {
+		item, help string
+		key        fyne.KeyName
+	}{
+		{"Open folder…", "Ctrl+O", fyne.KeyO},
+		{"Analysis settings…", "Ctrl+,", fyne.KeyComma},
+		{"Export report…", "Ctrl+E", fyne.KeyE},
+	} {
+		it := items[c.item]
+		if it == nil {
+			t.Errorf("no menu item %q", c.item)
+			continue
+		}
+		if it.Shortcut == nil || it.Shortcut.ShortcutName() != ctrlKey(c.key).ShortcutName() {
+			t.Errorf("menu item %q shows shortcut %v, want %s", c.item, it.Shortcut, c.help)
+		}
+		if !help[c.help] {
+			t.Errorf("the help does not list %s", c.help)
+		}
+	}
+	// The window answers to the shortcut the menu shows: Ctrl+, opens
+	// the settings.
+	rw.win.Canvas().(fyne.Shortcutable).TypedShortcut(items["Analysis settings…"].Shortcut)
+	if rw.win.Canvas().Overlays().Top() == nil {
+		t.Error("the settings shortcut shown in the menu opens no dialog")
+	}
+	if !help["Esc"] {
+		t.Error("the help does not say that Esc closes a dialog")
+	}
+}

@@ -60,6 +60,7 @@ var shortcuts = [][2]string{
 	{"Ctrl+E", "export the report (PNG, PDF, JSON, CSV)"},
 	{"Ctrl+,", "analysis settings"},
 	{"Ctrl+T", "teaching mode on / off"},
+	{"Esc", "close the dialog on top, as its Cancel or Close button does"},
 }
 
 func (rw *reviewWindow) showShortcuts() {

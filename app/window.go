@@ -128,7 +128,7 @@ func newReviewWindow(a fyne.App) *reviewWindow {
 		fn  func()
 	}{{fyne.KeyO, rw.chooseFolder}, {fyne.KeyE, rw.exportReport}, {fyne.KeyComma, rw.openSettings}, {fyne.KeyT, func() { rw.teachCheck.SetChecked(!rw.teaching) }}} {
 		fn := sc.fn
-		rw.win.Canvas().AddShortcut(&desktop.CustomShortcut{KeyName: sc.key, Modifier: fyne.KeyModifierShortcutDefault}, func(fyne.Shortcut) { fn() })
+		rw.win.Canvas().AddShortcut(ctrlKey(sc.key), func(fyne.Shortcut) { fn() })
 	}
 	rw.win.Canvas().SetOnTypedRune(func(r rune) {
 		if rw.active != nil {
@@ -306,11 +306,22 @@ func legendRow() (legend, planeEntry fyne.CanvasObject) {
 	return container.New(newFlowLayout(), items...), planeEntry
 }
 
+// ctrlKey is the shortcut of key with Ctrl (Cmd on macOS).
+func ctrlKey(key fyne.KeyName) *desktop.CustomShortcut {
+	return &desktop.CustomShortcut{KeyName: key, Modifier: fyne.KeyModifierShortcutDefault}
+}
+
+// withShortcut shows the window's keyboard shortcut beside a menu item.
+func withShortcut(it *fyne.MenuItem, key fyne.KeyName) *fyne.MenuItem {
+	it.Shortcut = ctrlKey(key)
+	return it
+}
+
 func (rw *reviewWindow) mainMenu() *fyne.MainMenu {
 	recent := fyne.NewMenuItem("Recent cases", nil)
 	recent.ChildMenu = fyne.NewMenu("")
 	file := fyne.NewMenu("File",
-		fyne.NewMenuItem("Open folder…", rw.chooseFolder),
+		withShortcut(fyne.NewMenuItem("Open folder…", rw.chooseFolder), fyne.KeyO),
 		fyne.NewMenuItem("Open the demo case", func() { rw.openDemo() }),
 		fyne.NewMenuItem("Open from archive…", rw.openFromArchive),
 		recent,
@@ -321,11 +332,11 @@ func (rw *reviewWindow) mainMenu() *fyne.MainMenu {
 	)
 	rw.fillRecentMenu(recent.ChildMenu)
 	review := fyne.NewMenu("Review",
-		fyne.NewMenuItem("Analysis settings…", rw.openSettings),
+		withShortcut(fyne.NewMenuItem("Analysis settings…", rw.openSettings), fyne.KeyComma),
 		fyne.NewMenuItem("Draw drift reference on the left image", rw.startRefMode),
 		fyne.NewMenuItem("Automatic drift reference", rw.automaticRef),
 		fyne.NewMenuItem("Sign off…", rw.signOff),
-		fyne.NewMenuItem("Export report…", rw.exportReport),
+		withShortcut(fyne.NewMenuItem("Export report…", rw.exportReport), fyne.KeyE),
 		fyne.NewMenuItem("Store results in archive…", rw.storeResults),
 	)
 	help := fyne.NewMenu("Help",
