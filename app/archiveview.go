@@ -197,7 +197,7 @@ func (rw *reviewWindow) storeResults() {
 		return
 	}
 	prefs := rw.app.Preferences()
-	urlEntry := widget.NewEntry()
+	urlEntry := newDialogEntry()
 	urlEntry.SetPlaceHolder("https://archive.example/dicom-web")
 	urlEntry.SetText(prefs.String(prefArchiveURL))
 	what := "The report (Encapsulated PDF), the cumulative dose map (CEM43) and the target, lethal region and holes (RT Structure Set) are stored as new series of the case's study."

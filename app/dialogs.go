@@ -7,6 +7,7 @@ import (
 
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/dialog"
+	"fyne.io/fyne/v2/widget"
 )
 
 // openDialogs lists the dialogs shown with showDialog over each window,
@@ -43,4 +44,37 @@ func escapeDialog(w fyne.Window) bool {
 	}
 	ds[len(ds)-1].Hide()
 	return true
+}
+
+// dialogEntry is a text field of a dialog. Fyne sends the keys to the
+// field that has the keyboard focus, and widget.Entry ignores Escape; in
+// a dialogEntry, Escape closes the dialog as it does with no field
+// focused.
+type dialogEntry struct {
+	widget.Entry
+}
+
+func newDialogEntry() *dialogEntry {
+	e := &dialogEntry{}
+	e.ExtendBaseWidget(e)
+	return e
+}
+
+func newDialogMultiLineEntry() *dialogEntry {
+	e := newDialogEntry()
+	e.MultiLine = true
+	return e
+}
+
+// TypedKey closes the dialog on Escape and passes other keys on.
+func (e *dialogEntry) TypedKey(ev *fyne.KeyEvent) {
+	if ev.Name == fyne.KeyEscape {
+		c := fyne.CurrentApp().Driver().CanvasForObject(e)
+		for w := range openDialogs {
+			if c != nil && w.Canvas() == c && escapeDialog(w) {
+				return
+			}
+		}
+	}
+	e.Entry.TypedKey(ev)
 }

@@ -140,3 +140,46 @@ func TestMenuShowsShortcuts(t *testing.T) {
 		t.Error("the help does not say that Esc closes a dialog")
 	}
 }
+
+// TestEscapeInDialogField: Escape typed into a focused text field of the
+// settings or the sign-off dialog closes the dialog (the driver sends the
+// key to the field, not to the window); other keys still edit the field.
+func TestEscapeInDialogField(t *testing.T) {
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	c := rw.win.Canvas()
+	for _, d := range []struct {
+		name string
+		open func()
+	}{{"Analysis settings", rw.openSettings}, {"Sign off", rw.signOff}} {
+		d.open()
+		top := c.Overlays().Top()
+		if top == nil {
+			t.Fatalf("%s: no dialog shown", d.name)
+		}
+		fields := objectsOf[*dialogEntry](top)
+		if len(fields) == 0 {
+			t.Fatalf("%s: no text field", d.name)
+		}
+		f := fields[0]
+		c.Focus(f)
+		if c.Focused() != fyne.Focusable(f) {
+			t.Fatalf("%s: the field did not take the focus", d.name)
+		}
+		before := f.Text
+		test.Type(f, "7")
+		c.Focused().TypedKey(&fyne.KeyEvent{Name: fyne.KeyBackspace})
+		if f.Text != before {
+			t.Errorf("%s: typing 7 and Backspace left %q, want %q", d.name, f.Text, before)
+		}
+		c.Focused().TypedKey(&fyne.KeyEvent{Name: fyne.KeyEscape})
+		if top := c.Overlays().Top(); top != nil {
+			t.Errorf("%s: the dialog stays after Escape in its field", d.name)
+			top.Hide()
+			c.Overlays().Remove(top)
+		}
+	}
+	if rw.record != nil && len(rw.record.SignOffs) != 0 {
+		t.Errorf("Escape in the sign-off dialog recorded %d sign-offs", len(rw.record.SignOffs))
+	}
+}

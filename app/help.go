@@ -86,10 +86,10 @@ func (rw *reviewWindow) signOff() {
 		showDialog(rw.win, dialog.NewInformation("Sign off", "The case has not been analysed; there is nothing to sign off yet.", rw.win))
 		return
 	}
-	name := widget.NewEntry()
+	name := newDialogEntry()
 	name.SetText(rw.app.Preferences().String(prefReviewer))
 	name.SetPlaceHolder("your name")
-	comment := widget.NewMultiLineEntry()
+	comment := newDialogMultiLineEntry()
 	comment.SetMinRowsVisible(4)
 	comment.Wrapping = fyne.TextWrapWord
 	facts := widget.NewLabel(fmt.Sprintf("Input files: %d, SHA-256 %s\nCovered %s with %s",
