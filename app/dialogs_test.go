@@ -4,10 +4,14 @@ package main
 
 import (
 	"errors"
+	"strings"
 	"testing"
+
+	"dosecover/review"
 
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/test"
+	"fyne.io/fyne/v2/widget"
 )
 
 // pressEscape sends Escape to c as the desktop driver does when no field
@@ -181,5 +185,30 @@ func TestEscapeInDialogField(t *testing.T) {
 	}
 	if rw.record != nil && len(rw.record.SignOffs) != 0 {
 		t.Errorf("Escape in the sign-off dialog recorded %d sign-offs", len(rw.record.SignOffs))
+	}
+}
+
+// TestSignOffRecordWording: the record the sign-off dialog shows says of
+// what the covered percentage is when part of the target is not
+// monitored (as the figures panel does), and names the settings in a
+// line of their own rather than "Covered … with Threshold …".
+func TestSignOffRecordWording(t *testing.T) {
+	rw := testWindow(t)
+	openSynthetic(t, rw)
+	rw.result.NotMonitoredFraction = 0.4 // part of the target unmonitored
+	rw.signOff()
+	top := rw.win.Canvas().Overlays().Top()
+	if top == nil {
+		t.Fatal("no sign-off dialog")
+	}
+	var record string
+	for _, l := range objectsOf[*widget.Label](top) {
+		if strings.HasPrefix(l.Text, "Input files:") {
+			record = l.Text
+		}
+	}
+	want := "\nCovered: " + review.PercentText(rw.result.CoveredFraction) + " of the monitored target\nSettings: " + rw.settings.Describe()
+	if !strings.HasSuffix(record, want) {
+		t.Errorf("record %q, want it to end %q", record, want)
 	}
 }

@@ -92,8 +92,8 @@ func (rw *reviewWindow) signOff() {
 	comment := newDialogMultiLineEntry()
 	comment.SetMinRowsVisible(4)
 	comment.Wrapping = fyne.TextWrapWord
-	facts := widget.NewLabel(fmt.Sprintf("Input files: %d, SHA-256 %s\nCovered %s with %s",
-		rw.nFiles, rw.hash, review.PercentText(rw.result.CoveredFraction), rw.settings.Describe()))
+	facts := widget.NewLabel(fmt.Sprintf("Input files: %d, SHA-256 %s\nCovered: %s\nSettings: %s",
+		rw.nFiles, rw.hash, coveredText(rw.result.Result), rw.settings.Describe()))
 	facts.Wrapping = fyne.TextWrapWord
 	var prev []string
 	for _, s := range rw.record.SignOffs {
