@@ -122,7 +122,9 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 		}
 	}
 	for _, p := range r.CoverageVsThreshold {
-		in.CoverageVsThreshold = append(in.CoverageVsThreshold, CurvePoint{X: p.Threshold, Y: p.CoveredFraction, Low: math.NaN(), High: math.NaN()})
+		if p.CoveredFraction != nil { // no curve of an unmonitored target
+			in.CoverageVsThreshold = append(in.CoverageVsThreshold, CurvePoint{X: p.Threshold, Y: *p.CoveredFraction, Low: math.NaN(), High: math.NaN()})
+		}
 	}
 
 	quality := map[int]review.SonicationQuality{}
@@ -139,7 +141,7 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 		in.Sonications = append(in.Sonications, SonicationRow{
 			Number: s.Number, Label: label, Frames: len(sq.Frames),
 			PeakC: val(s.PeakTempC), PeakDose: s.PeakDose, LethalML: s.LethalAddedML,
-			AddedCoverage: measurable(s.AddedCoverage, r.CoveredFraction), OutsideML: s.OutsideAddedML,
+			AddedCoverage: val(s.AddedCoverage), OutsideML: s.OutsideAddedML,
 			Flagged: len(sq.FlaggedFrames), Excluded: s.Excluded,
 			DriftFlagged: sq.DriftFlagged(r.Settings.DriftFlagC),
 			CoolingS:     val(s.CoolingS), ResidualC: val(s.ResidualRiseC),
@@ -673,14 +675,4 @@ func planeCaption(p view.Plane, q dosemap.Vec3) string {
 		}
 	}
 	return fmt.Sprintf("oblique through (%.1f, %.1f, %.1f) mm", q[0], q[1], q[2])
-}
-
-// measurable returns f, a part of the monitored target, or NaN ("n/a")
-// when the coverage is not measurable (covered nil: nothing of the target
-// is monitored): a part of nothing is not 0 %.
-func measurable(f float64, covered *float64) float64 {
-	if covered != nil {
-		return f
-	}
-	return math.NaN()
 }
