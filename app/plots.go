@@ -158,10 +158,14 @@ func newStyledPlot(title, xLabel, yLabel string) *plot.Plot {
 	p.Y.Label.Text = yLabel
 	p.Legend.TextStyle.Color = plotInk
 	p.Legend.TextStyle.Font = font.From(font.Font{Typeface: "Liberation", Variant: "Sans"}, 8)
+	// Bottom left, near the axis and short, so that a threshold guide in
+	// the middle of the axis passes beside it; a little space between
+	// entries keeps their texts apart.
 	p.Legend.Top = false
 	p.Legend.Left = true
-	p.Legend.XOffs = vg.Points(40)
-	p.Legend.YOffs = vg.Points(8)
+	p.Legend.XOffs = vg.Points(6)
+	p.Legend.YOffs = vg.Points(6)
+	p.Legend.Padding = vg.Points(2)
 	p.Title.Padding = vg.Points(6)
 	g := plotter.NewGrid()
 	g.Vertical.Color = plotGrid
@@ -232,7 +236,7 @@ func dvhPlot(r *analysisResult) *plot.Plot {
 		}
 	}
 	addLine(p, shown, view.ColorTarget, vg.Points(2), nil, "target")
-	addVLine(p, r.Threshold, 0, 100, plotGuide, []vg.Length{vg.Points(4), vg.Points(3)}, "threshold "+fmtNum(r.Threshold)+" "+r.Unit)
+	addVLine(p, r.Threshold, 0, 100, plotGuide, []vg.Length{vg.Points(4), vg.Points(3)}, "threshold "+fmtNum(r.Threshold)) // the unit is on the axis
 	p.X.Min, p.X.Max = lo, hi
 	p.Y.Min, p.Y.Max = 0, 100
 	return p
@@ -249,7 +253,7 @@ func coveragePlot(r *analysisResult) *plot.Plot {
 	p.X.Scale = plot.LogScale{}
 	p.X.Tick.Marker = plot.LogTicks{Prec: -1}
 	addLine(p, pts, view.ColorMargin, vg.Points(2), nil, "covered")
-	addVLine(p, r.Threshold, 0, 100, plotGuide, []vg.Length{vg.Points(4), vg.Points(3)}, "in use "+fmtNum(r.Threshold)+" "+r.Unit)
+	addVLine(p, r.Threshold, 0, 100, plotGuide, []vg.Length{vg.Points(4), vg.Points(3)}, "in use "+fmtNum(r.Threshold))
 	p.Y.Min, p.Y.Max = 0, 100
 	return p
 }
