@@ -170,6 +170,9 @@ type Record struct {
 	Caution      string          `json:"caution"`
 
 	dir string // folder the record was read from
+	// analysisSchema is the schema_version of Analysis as read (0 when the
+	// record holds no analysis).
+	analysisSchema int
 }
 
 // Caution is written into every record and onto the summary figure.

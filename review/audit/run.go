@@ -19,6 +19,7 @@ import (
 
 	"dosecover/dosemap"
 	"dosecover/dosemap/safefile"
+	"dosecover/review"
 )
 
 // Column is one settings column of the summary table, the same in every row
@@ -510,14 +511,19 @@ func resumeKey(inputHash, settingsHash string, deidentified bool) string {
 
 // resumeIndex reads the finished records below outDir/cases. A record
 // counts when its status is ok or incomplete, it was made by this version
-// of dosecover (so one table never mixes versions of the method) and all
-// its artifacts exist.
+// of dosecover (so one table never mixes versions of the method), the
+// analysis it holds, if any, is in this version's result layout
+// (review.SchemaVersion: a figure the layout now writes as null must not
+// stay 0 in an old record) and all its artifacts exist.
 func resumeIndex(outDir string) map[string]*Record {
 	index := map[string]*Record{}
 	recs, _ := filepath.Glob(filepath.Join(outDir, "cases", "*", RecordFile))
 	for _, p := range recs {
 		rec, err := ReadRecord(p)
 		if err != nil || rec.InputSHA256 == "" || rec.Version != dosemap.Version || (rec.Status != StatusOK && rec.Status != StatusIncomplete) {
+			continue
+		}
+		if rec.analysisSchema != 0 && rec.analysisSchema != review.SchemaVersion {
 			continue
 		}
 		complete := true
@@ -545,6 +551,14 @@ func ReadRecord(path string) (*Record, error) {
 	}
 	if rec.Case == "" || rec.Status == "" {
 		return nil, fmt.Errorf("reading %s: not a dosecover case record", path)
+	}
+	if len(rec.Analysis) > 0 {
+		var head struct {
+			Schema int `json:"schema_version"`
+		}
+		if json.Unmarshal(rec.Analysis, &head) == nil {
+			rec.analysisSchema = head.Schema
+		}
 	}
 	rec.Analysis = nil
 	rec.dir = filepath.Dir(path)

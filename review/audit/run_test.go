@@ -16,6 +16,8 @@ import (
 	"sync"
 	"testing"
 	"time"
+
+	"dosecover/review"
 )
 
 func readCSV(t *testing.T, p string) [][]string {
@@ -793,5 +795,66 @@ func TestBadIdentityFile(t *testing.T) {
 	_, err := Run(context.Background(), Config{Inputs: []string{in}, OutDir: out, Workers: 1, Analyzer: fc.analyze})
 	if err == nil || !strings.Contains(err.Error(), IdentityFile) || !strings.Contains(err.Error(), out) || fc.total() != 0 {
 		t.Errorf("err %v after %d analyses; want a refusal naming %s in %s", err, fc.total(), IdentityFile, out)
+	}
+}
+
+// TestResumeRedoesOldResultLayout: on resume, a finished case whose record
+// holds an analysis in an earlier result layout (schema_version below
+// review.SchemaVersion) is analysed again, so that figures the layout
+// now writes as null do not stay 0 in its record; a case whose analysis
+// is in the current layout, and one holding no analysis, are taken over.
+func TestResumeRedoesOldResultLayout(t *testing.T) {
+	tmp := t.TempDir()
+	in := makeCases(t, filepath.Join(tmp, "in"), 3)
+	out := filepath.Join(tmp, "out")
+	cfg := Config{Inputs: []string{in}, OutDir: out, Workers: 1, Resume: true}
+	fc := newFileCounter()
+	cfg.Analyzer = fc.analyze
+	if _, err := Run(context.Background(), cfg); err != nil {
+		t.Fatal(err)
+	}
+	recs, err := filepath.Glob(filepath.Join(out, "cases", "*", RecordFile))
+	if err != nil || len(recs) != 3 {
+		t.Fatalf("%d records (%v), want 3", len(recs), err)
+	}
+	sort.Strings(recs)
+	// Record 0 in the layout before, record 1 in the current one, record
+	// 2 left without an analysis.
+	for n, schema := range []int{review.SchemaVersion - 1, review.SchemaVersion} {
+		b, err := os.ReadFile(recs[n])
+		if err != nil {
+			t.Fatal(err)
+		}
+		var m map[string]json.RawMessage
+		if err := json.Unmarshal(b, &m); err != nil {
+			t.Fatal(err)
+		}
+		m["analysis"] = json.RawMessage(fmt.Sprintf(`{"schema_version": %d}`, schema))
+		if b, err = json.Marshal(m); err != nil {
+			t.Fatal(err)
+		}
+		if err := os.WriteFile(recs[n], b, 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	fc = newFileCounter()
+	cfg.Analyzer = fc.analyze
+	sum, err := Run(context.Background(), cfg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if fc.total() != 1 || sum.Resumed != 2 {
+		t.Errorf("resume analysed %d cases and took over %d, want 1 and 2", fc.total(), sum.Resumed)
+	}
+	// The case of the old layout was analysed again (this analyzer writes
+	// no analysis), the one of the current layout taken over as it was.
+	for n, want := range []int{0, review.SchemaVersion, 0} {
+		rec, err := ReadRecord(recs[n])
+		if err != nil {
+			t.Fatal(err)
+		}
+		if rec.analysisSchema != want {
+			t.Errorf("record %d after resume: analysis schema %d, want %d", n, rec.analysisSchema, want)
+		}
 	}
 }
