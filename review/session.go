@@ -1109,11 +1109,22 @@ func (s *Session) perSonication(r *Result, set Settings, dc *doseCache, lethal, 
 		left[p] = int32(p)
 		first[p] = ni - 1
 	}
+	// Only the coarse voxels the lethal voxels' taps read are summed.
 	run := make([]float32, s.fg.coarse.Len())
+	mark := make([]bool, len(run))
+	for _, v := range pending {
+		s.fg.markLinearTaps(int(v), mark)
+	}
+	var taps []int32
+	for v, m := range mark {
+		if m {
+			taps = append(taps, int32(v))
+		}
+	}
 	for a := 0; a < ni && len(left) > 0; a++ {
 		d, _ := dc.doseOf(s.sons[dc.included[a]])
-		for v, x := range d {
-			if x == x {
+		for _, v := range taps {
+			if x := d[v]; x == x {
 				run[v] += x
 			}
 		}
