@@ -27,7 +27,7 @@ const prefArchiveURL = "archive.url"
 // (remembered), a search form, the studies found, and retrieval of the
 // chosen study into the cache with progress and cancel; the study then
 // opens as a case. Credentials come from DOSECOVER_ARCHIVE_AUTH.
-func (rw *reviewWindow) openFromArchive() { rw.archiveSearch().dialog.Show() }
+func (rw *reviewWindow) openFromArchive() { showDialog(rw.win, rw.archiveSearch().dialog) }
 
 // archiveDialog holds the widgets of the archive search, for tests.
 type archiveDialog struct {
@@ -193,11 +193,11 @@ func (rw *reviewWindow) archiveSearch() *archiveDialog {
 func (rw *reviewWindow) storeResults() {
 	raw, _ := rw.resultRaw()
 	if raw == nil || rw.loaded == nil {
-		dialog.ShowInformation("Store results in archive", "There is no analysis to store yet.", rw.win)
+		showDialog(rw.win, dialog.NewInformation("Store results in archive", "There is no analysis to store yet.", rw.win))
 		return
 	}
 	prefs := rw.app.Preferences()
-	urlEntry := widget.NewEntry()
+	urlEntry := newDialogEntry()
 	urlEntry.SetPlaceHolder("https://archive.example/dicom-web")
 	urlEntry.SetText(prefs.String(prefArchiveURL))
 	what := "The report (Encapsulated PDF), the cumulative dose map (CEM43) and the target, lethal region and holes (RT Structure Set) are stored as new series of the case's study."
@@ -262,5 +262,5 @@ func (rw *reviewWindow) storeResults() {
 		}()
 	}, rw.win)
 	d.Resize(fyne.NewSize(640, 260))
-	d.Show()
+	showDialog(rw.win, d)
 }

@@ -24,6 +24,7 @@ import (
 type auditColumn struct {
 	title string
 	width float32
+	tip   string // the full name, unit and meaning, shown on hover over the header
 	text  func(r audit.Row) string
 	key   func(r audit.Row) float64 // numeric sort key; nil: sort by text
 }
@@ -66,18 +67,18 @@ func caseLabel(r audit.Row) string {
 }
 
 var auditColumns = []auditColumn{
-	{"case", 200, caseLabel, nil},
-	{"status", 150, statusWord, nil},
-	{"covered %", 110, func(r audit.Row) string { return coverageCell(r) }, func(r audit.Row) float64 { return numKey(r.Metrics.CoveragePct) }},
-	{"p05–p95 %", 104, func(r audit.Row) string {
+	{"case", 200, "Case: its folder below the input folder, or its pseudonym in a de-identified audit", caseLabel, nil},
+	{"status", 150, "Status: ok (analysed; \"earlier run\" when resumed), INCOMPLETE (lacks thermometry, contours or another input) or FAILED (could not be read or analysed); the reason says why", statusWord, nil},
+	{"covered %", 110, "Coverage, % of the monitored target: target volume at or above the lethal threshold", func(r audit.Row) string { return coverageCell(r) }, func(r audit.Row) float64 { return numKey(r.Metrics.CoveragePct) }},
+	{"p05–p95 %", 104, "Coverage noise band, % of the monitored target: 5th to 95th percentile of the coverage under thermometry noise", func(r audit.Row) string {
 		m := r.Metrics
 		if math.IsNaN(float64(m.CoverageP05Pct)) || math.IsNaN(float64(m.CoverageP95Pct)) {
 			return "—"
 		}
 		return fmt.Sprintf("%.1f–%.1f", float64(m.CoverageP05Pct), float64(m.CoverageP95Pct))
 	}, func(r audit.Row) float64 { return numKey(r.Metrics.CoverageP05Pct) }},
-	{"not monitored %", 128, func(r audit.Row) string { return pctCell(r.Metrics.NotMonitoredPct) }, func(r audit.Row) float64 { return numKey(r.Metrics.NotMonitoredPct) }},
-	{"holes", 60, func(r audit.Row) string {
+	{"not monitored %", 128, "Not monitored, % of the target: target volume without valid thermometry", func(r audit.Row) string { return pctCell(r.Metrics.NotMonitoredPct) }, func(r audit.Row) float64 { return numKey(r.Metrics.NotMonitoredPct) }},
+	{"holes", 60, "Holes, count: connected regions inside the target below the lethal threshold", func(r audit.Row) string {
 		if r.Status != audit.StatusOK {
 			return "—"
 		}
@@ -88,11 +89,11 @@ var auditColumns = []auditColumn{
 		}
 		return float64(r.Metrics.Holes)
 	}},
-	{"largest hole mL", 124, func(r audit.Row) string { return mlCell(r.Metrics.LargestHoleML) }, func(r audit.Row) float64 { return numKey(r.Metrics.LargestHoleML) }},
-	{"lethal outside margin mL", 184, func(r audit.Row) string { return mlCell(r.Metrics.OutsideMarginML) }, func(r audit.Row) float64 { return numKey(r.Metrics.OutsideMarginML) }},
-	{"avoid lethal mL", 124, func(r audit.Row) string { return mlCell(r.Metrics.AvoidLethalML) }, func(r audit.Row) float64 { return numKey(r.Metrics.AvoidLethalML) }},
-	{"reason", 320, func(r audit.Row) string { s, _, _ := strings.Cut(r.Reason, "\n"); return s }, nil},
-	{"flags", 300, func(r audit.Row) string {
+	{"largest hole mL", 124, "Largest hole, mL: volume of the largest hole in the target", func(r audit.Row) string { return mlCell(r.Metrics.LargestHoleML) }, func(r audit.Row) float64 { return numKey(r.Metrics.LargestHoleML) }},
+	{"lethal outside margin mL", 184, "Lethal outside the margin, mL: volume at or above the lethal threshold beyond the target and its safety margin", func(r audit.Row) string { return mlCell(r.Metrics.OutsideMarginML) }, func(r audit.Row) float64 { return numKey(r.Metrics.OutsideMarginML) }},
+	{"avoid lethal mL", 124, "Lethal in avoid structures, mL: volume at or above the lethal threshold inside the avoid structures", func(r audit.Row) string { return mlCell(r.Metrics.AvoidLethalML) }, func(r audit.Row) float64 { return numKey(r.Metrics.AvoidLethalML) }},
+	{"reason", 320, "Reason: why a case is incomplete or failed (its first line; the selected case's below the table)", func(r audit.Row) string { s, _, _ := strings.Cut(r.Reason, "\n"); return s }, nil},
+	{"flags", 300, "Quality flags: short remarks on the case's thermometry (motion, drift ...)", func(r audit.Row) string {
 		if len(r.Flags) == 0 {
 			return ""
 		}
@@ -182,19 +183,18 @@ func (av *auditView) sortBy(col int) {
 }
 
 // auditCell is one cell of the audit table: an icon (status column only)
-// and a label. It passes taps on to the table and opens the case on a
-// double tap.
+// and a label, cut where it does not fit with its full text on hover. It
+// passes taps on to the table and opens the case on a double tap.
 type auditCell struct {
 	widget.BaseWidget
 	av   *auditView
 	id   widget.TableCellID
 	icon *widget.Icon
-	text *widget.Label
+	text *tipLabel
 }
 
 func newAuditCell(av *auditView) *auditCell {
-	c := &auditCell{av: av, icon: widget.NewIcon(nil), text: widget.NewLabel("")}
-	c.text.Truncation = fyne.TextTruncateEllipsis
+	c := &auditCell{av: av, icon: widget.NewIcon(nil), text: newTipLabel(av.tips)}
 	c.ExtendBaseWidget(c)
 	return c
 }
@@ -246,22 +246,24 @@ func (av *auditView) newTable() *widget.Table {
 			c.text.Refresh()
 		})
 	t.CreateHeader = func() fyne.CanvasObject {
-		b := widget.NewButton("", nil)
+		b := newTipButton(av.tips)
 		b.Alignment = widget.ButtonAlignLeading
 		b.Importance = widget.LowImportance
 		b.IconPlacement = widget.ButtonIconTrailingText
 		return b
 	}
 	t.UpdateHeader = func(id widget.TableCellID, o fyne.CanvasObject) {
-		b := o.(*widget.Button)
+		b := o.(*tipButton)
 		if id.Row >= 0 || id.Col < 0 {
 			b.SetText("")
+			b.setTip("")
 			b.SetIcon(nil)
 			b.OnTapped = nil
 			return
 		}
 		col := id.Col
 		b.SetText(auditColumns[col].title)
+		b.setTip(auditColumns[col].tip)
 		switch {
 		case av.sortCol != col:
 			b.SetIcon(nil)

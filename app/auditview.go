@@ -85,6 +85,7 @@ type auditView struct {
 	message   *widget.Label
 
 	table    *widget.Table
+	tips     *tipLayer   // full text of the column headers on hover
 	rows     []audit.Row // as shown, in display order
 	sortCol  int         // -1: by case name as the engine returns them
 	sortDesc bool
@@ -244,6 +245,7 @@ func (av *auditView) build() {
 	runRow := container.NewBorder(nil, nil, container.NewHBox(av.runBtn, av.cancelBtn),
 		nil, container.NewBorder(nil, nil, container.NewGridWrap(fyne.NewSize(260, 36), container.NewStack(av.progress, av.searching)), nil, av.counts))
 
+	av.tips = newTipLayer()
 	av.table = av.newTable()
 	av.selInfo = widget.NewLabel("Select a case; double-click or “Open case” shows it in the review window.")
 	av.openBtn = widget.NewButtonWithIcon("Open case", theme.FolderOpenIcon(), av.openSelected)
@@ -267,8 +269,13 @@ func (av *auditView) build() {
 		container.NewStack(av.table, container.NewCenter(av.noRows)))
 	split := container.NewVSplit(container.NewVScroll(form), results)
 	split.SetOffset(0.48)
-	av.win.SetContent(container.NewBorder(nil, caution, nil, nil, split))
+	av.win.SetContent(container.NewStack(container.NewBorder(nil, caution, nil, nil, split), av.tips.layer))
 	av.win.SetOnDropped(av.dropped)
+	av.win.Canvas().SetOnTypedKey(func(ev *fyne.KeyEvent) {
+		if ev.Name == fyne.KeyEscape {
+			escapeDialog(av.win)
+		}
+	})
 	av.describeSettings()
 }
 
@@ -349,7 +356,7 @@ func (av *auditView) startDir() string {
 func (av *auditView) folderDialog(fn func(string)) {
 	d := dialog.NewFolderOpen(func(u fyne.ListableURI, err error) {
 		if err != nil {
-			dialog.ShowError(err, av.win)
+			showDialog(av.win, dialog.NewError(err, av.win))
 			return
 		}
 		if u != nil {
@@ -371,7 +378,7 @@ func (av *auditView) chooseOutput() { av.folderDialog(av.outEntry.SetText) }
 func (av *auditView) chooseSettingsFile() {
 	d := dialog.NewFileOpen(func(r fyne.URIReadCloser, err error) {
 		if err != nil {
-			dialog.ShowError(err, av.win)
+			showDialog(av.win, dialog.NewError(err, av.win))
 			return
 		}
 		if r == nil {
@@ -685,11 +692,11 @@ func (av *auditView) openSelected() {
 	}
 	dir, err := av.sourceDir(av.rows[av.selected])
 	if err != nil {
-		dialog.ShowError(err, av.win)
+		showDialog(av.win, dialog.NewError(err, av.win))
 		return
 	}
 	if fi, err := os.Stat(dir); err != nil || !fi.IsDir() {
-		dialog.ShowError(fmt.Errorf("the case folder %s is no longer there", dir), av.win)
+		showDialog(av.win, dialog.NewError(fmt.Errorf("the case folder %s is no longer there", dir), av.win))
 		return
 	}
 	if av.rows[av.selected].Source == "" && av.hideIdentity != nil {
@@ -725,11 +732,11 @@ func (av *auditView) openResults() {
 		dir = strings.TrimSpace(av.outEntry.Text)
 	}
 	if dir == "" {
-		dialog.ShowInformation("Open folder of results", "Choose an output folder or open an existing audit first.", av.win)
+		showDialog(av.win, dialog.NewInformation("Open folder of results", "Choose an output folder or open an existing audit first.", av.win))
 		return
 	}
 	if _, err := os.Stat(dir); err != nil {
-		dialog.ShowError(fmt.Errorf("output folder %s: %w", dir, err), av.win)
+		showDialog(av.win, dialog.NewError(fmt.Errorf("output folder %s: %w", dir, err), av.win))
 		return
 	}
 	av.openPath(dir)
@@ -738,7 +745,7 @@ func (av *auditView) openResults() {
 func (av *auditView) openPath(p string) {
 	abs, err := filepath.Abs(p)
 	if err != nil {
-		dialog.ShowError(err, av.win)
+		showDialog(av.win, dialog.NewError(err, av.win))
 		return
 	}
 	u, err := url.Parse(storage.NewFileURI(abs).String())
@@ -746,7 +753,7 @@ func (av *auditView) openPath(p string) {
 		err = av.app.OpenURL(u)
 	}
 	if err != nil {
-		dialog.ShowError(fmt.Errorf("opening %s: %w", abs, err), av.win)
+		showDialog(av.win, dialog.NewError(fmt.Errorf("opening %s: %w", abs, err), av.win))
 	}
 }
 

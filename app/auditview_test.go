@@ -243,8 +243,8 @@ func TestAuditViewStandInRunTableAndOpen(t *testing.T) {
 	}
 
 	// Sorting: tap the "covered %" header; empty values go last.
-	var covHeader *widget.Button
-	for _, b := range objectsOf[*widget.Button](av.table) {
+	var covHeader *tipButton
+	for _, b := range objectsOf[*tipButton](av.table) {
 		if b.Text == "covered %" {
 			covHeader = b
 		}

@@ -82,7 +82,9 @@ func (ss *reviewSession) wrap(r *review.Result) *analysisResult {
 		}
 	}
 	for _, p := range r.CoverageVsThreshold {
-		out.CoveragePoints = append(out.CoveragePoints, xy{p.Threshold, p.CoveredFraction})
+		if p.CoveredFraction != nil { // no curve of an unmonitored target
+			out.CoveragePoints = append(out.CoveragePoints, xy{p.Threshold, *p.CoveredFraction})
+		}
 	}
 	quality := map[int]review.SonicationQuality{}
 	for _, q := range r.Quality {
@@ -94,11 +96,8 @@ func (ss *reviewSession) wrap(r *review.Result) *analysisResult {
 	}
 	for _, st := range r.Sonications {
 		row := sonicationRow{Number: st.Number, Label: st.Label, PeakTemp: ptr(st.PeakTempC), PeakDose: st.PeakDose,
-			DoseAddedML: st.LethalAddedML, CoverageAdded: st.AddedCoverage, OutsideML: st.OutsideAddedML, Offset: math.NaN(),
+			DoseAddedML: st.LethalAddedML, CoverageAdded: ptr(st.AddedCoverage), OutsideML: st.OutsideAddedML, Offset: math.NaN(),
 			CoolingS: ptr(st.CoolingS), ResidualC: ptr(st.ResidualRiseC)}
-		if r.CoveredFraction == nil {
-			row.CoverageAdded = math.NaN() // of a monitored target that is empty
-		}
 		row.ResidualHigh = row.ResidualC > r.Settings.ResidualWarnC
 		if so := ss.sonication(st.Number); so != nil {
 			row.Start = so.Start

@@ -11,6 +11,7 @@ import (
 	"time"
 
 	"dosecover/dosemap/sim"
+	"dosecover/dosemap/testkit"
 
 	"fyne.io/fyne/v2"
 	"fyne.io/fyne/v2/test"
@@ -51,7 +52,7 @@ func BenchmarkViewerDraw(b *testing.B) {
 				wait()
 				b.ReportAllocs()
 				b.ResetTimer()
-				c0 := cpuTime()
+				c0 := testkit.CPUTime()
 				for i := 0; i < b.N; i++ {
 					switch mode {
 					case "first":
@@ -72,7 +73,7 @@ func BenchmarkViewerDraw(b *testing.B) {
 					}
 				}
 				b.StopTimer()
-				if c := cpuTime(); c > 0 {
+				if c := testkit.CPUTime(); c > 0 {
 					b.ReportMetric(float64(c-c0)/float64(b.N)/1e6, "cpu-ms/op")
 				}
 			})
@@ -129,7 +130,7 @@ func BenchmarkOpenCase(b *testing.B) {
 			}
 			before := live()
 			b.ResetTimer()
-			c0 := cpuTime()
+			c0 := testkit.CPUTime()
 			for i := 0; i < b.N; i++ {
 				mark, aux := rw.completed.Load(), rw.auxDone.Load()
 				fyne.DoAndWait(func() { rw.openCase(dir) })
@@ -142,7 +143,7 @@ func BenchmarkOpenCase(b *testing.B) {
 				}
 			}
 			b.StopTimer()
-			if c := cpuTime(); c > 0 {
+			if c := testkit.CPUTime(); c > 0 {
 				b.ReportMetric(float64(c-c0)/float64(b.N)/1e6, "cpu-ms/op")
 			}
 			b.ReportMetric(live()-before, "live-MB")

@@ -16,6 +16,7 @@ import (
 	"dosecover/dosemap/dicomweb"
 	"dosecover/dosemap/dicomweb/orthanctest"
 	"dosecover/dosemap/sim"
+	"dosecover/dosemap/testkit"
 	"dosecover/review"
 
 	"fyne.io/fyne/v2/test"
@@ -48,7 +49,7 @@ func runOut(args ...string) (int, string, string) {
 // then a wrong password and a stopped archive fail with exit 1 and a
 // message naming the archive.
 func TestArchiveRoundTrip(t *testing.T) {
-	py := orthanctest.Python(t)
+	py := testkit.Python(t)
 	srv := orthanctest.Start(t)
 	root := t.TempDir()
 	src := filepath.Join(root, "sim")

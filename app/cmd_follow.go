@@ -209,10 +209,7 @@ func writeFollowText(w io.Writer, u follow.Update) error {
 				fmt.Fprintf(&b, " excluded from the cumulative dose\n")
 				continue
 			}
-			added := "not measurable"
-			if r.CoveredFraction != nil {
-				added = review.PercentText(&s.AddedCoverage)
-			}
+			added := review.PercentText(s.AddedCoverage) // "not measurable" when nothing is monitored
 			fmt.Fprintf(&b, " added coverage %s, lethal volume added %.3f mL, %.3f mL of it beyond the margin\n",
 				added, s.LethalAddedML, s.OutsideAddedML)
 		}

@@ -18,6 +18,7 @@ import (
 	"dosecover/dosemap/dicomweb"
 	"dosecover/dosemap/dicomweb/orthanctest"
 	"dosecover/dosemap/sim"
+	"dosecover/dosemap/testkit"
 )
 
 // TestFollowCommandJSONLines: follow on a folder that holds a whole case
@@ -116,7 +117,7 @@ func (s *syncBuffer) String() string {
 // update per sonication, and its last line equals analyze's JSON of the
 // study retrieved.
 func TestFollowArchiveStudy(t *testing.T) {
-	py := orthanctest.Python(t)
+	py := testkit.Python(t)
 	srv := orthanctest.Start(t)
 	root := t.TempDir()
 	src := filepath.Join(root, "sim")

@@ -6,10 +6,11 @@ import (
 	"bytes"
 	"encoding/json"
 	"os"
-	"os/exec"
 	"path/filepath"
 	"strings"
 	"testing"
+
+	"dosecover/dosemap/testkit"
 )
 
 func TestInspectUsage(t *testing.T) {
@@ -35,19 +36,7 @@ func TestInspectMissingFolder(t *testing.T) {
 // and rtstruct.dcm, two studies of two patients) are not a reviewable
 // case: exit 1 with the reason, both studies listed.
 func TestInspectNotReviewable(t *testing.T) {
-	dir := ""
-	for _, py := range []string{"python3", "/usr/bin/python3"} {
-		if o, err := exec.Command(py, "-c", "import pydicom, os; print(os.path.dirname(pydicom.__file__))").Output(); err == nil {
-			dir = filepath.Join(strings.TrimSpace(string(o)), "data", "test_files")
-			break
-		}
-	}
-	if _, err := os.Stat(filepath.Join(dir, "MR_small.dcm")); dir == "" || err != nil {
-		if os.Getenv("CI") == "true" {
-			t.Fatal("pydicom test files not found")
-		}
-		t.Skip("pydicom test files not found; skipping")
-	}
+	dir := testkit.PydicomTestFiles(t)
 	caseDir := t.TempDir()
 	for _, n := range []string{"MR_small.dcm", "rtstruct.dcm"} {
 		if err := os.Symlink(filepath.Join(dir, n), filepath.Join(caseDir, n)); err != nil {

@@ -27,11 +27,11 @@ import (
 func (rw *reviewWindow) exportReport() {
 	raw, _ := rw.resultRaw()
 	if raw == nil || rw.loaded == nil {
-		dialog.ShowInformation("Export report", "There is no analysis to export yet.", rw.win)
+		showDialog(rw.win, dialog.NewInformation("Export report", "There is no analysis to export yet.", rw.win))
 		return
 	}
 	if rw.record == nil {
-		dialog.ShowInformation("Export report", "A session being followed is still changing. Stop following (File ▸ Stop following) to read the folder as a finished case, then export.", rw.win)
+		showDialog(rw.win, dialog.NewInformation("Export report", "A session being followed is still changing. Stop following (File ▸ Stop following) to read the folder as a finished case, then export.", rw.win))
 		return
 	}
 	d := dialog.NewFolderOpen(func(u fyne.ListableURI, err error) {

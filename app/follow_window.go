@@ -57,7 +57,7 @@ func (rw *reviewWindow) followFolder(dir string) {
 // follows it: new instances are retrieved into the study's cache folder
 // every 2 s, and that folder is followed.
 func (rw *reviewWindow) chooseFollowArchive() {
-	entry := widget.NewEntry()
+	entry := newDialogEntry()
 	entry.SetPlaceHolder("https://archive.example/dicom-web/studies/1.2.3")
 	if base := rw.app.Preferences().String(prefArchiveURL); base != "" {
 		entry.SetText(strings.TrimRight(base, "/") + "/studies/")
@@ -73,7 +73,7 @@ func (rw *reviewWindow) chooseFollowArchive() {
 		}
 	}, rw.win)
 	d.Resize(fyne.NewSize(720, 220))
-	d.Show()
+	showDialog(rw.win, d)
 }
 
 // followArchive follows the archive study at addr (URL/studies/UID).

@@ -36,7 +36,7 @@ func (rw *reviewWindow) showAbout() {
 	box := container.NewVBox(head, sub, widget.NewSeparator(), caution, widget.NewSeparator(), methods)
 	d := dialog.NewCustom("About dosecover", "Close", container.NewVScroll(box), rw.win)
 	d.Resize(fyne.NewSize(720, 620))
-	d.Show()
+	showDialog(rw.win, d)
 }
 
 // shortcuts lists the keyboard and mouse controls.
@@ -60,6 +60,7 @@ var shortcuts = [][2]string{
 	{"Ctrl+E", "export the report (PNG, PDF, JSON, CSV)"},
 	{"Ctrl+,", "analysis settings"},
 	{"Ctrl+T", "teaching mode on / off"},
+	{"Esc", "close the dialog on top, as its Cancel or Close button does"},
 }
 
 func (rw *reviewWindow) showShortcuts() {
@@ -71,28 +72,28 @@ func (rw *reviewWindow) showShortcuts() {
 	}
 	d := dialog.NewCustom("Keyboard and mouse", "Close", container.NewVScroll(form), rw.win)
 	d.Resize(fyne.NewSize(780, 700))
-	d.Show()
+	showDialog(rw.win, d)
 }
 
 // signOff records a reviewer's name and comment with the time and the
 // SHA-256 of the input files in the review record.
 func (rw *reviewWindow) signOff() {
 	if rw.loaded == nil || rw.record == nil {
-		dialog.ShowInformation("Sign off", "Open a case first.", rw.win)
+		showDialog(rw.win, dialog.NewInformation("Sign off", "Open a case first.", rw.win))
 		return
 	}
 	if rw.result == nil {
-		dialog.ShowInformation("Sign off", "The case has not been analysed; there is nothing to sign off yet.", rw.win)
+		showDialog(rw.win, dialog.NewInformation("Sign off", "The case has not been analysed; there is nothing to sign off yet.", rw.win))
 		return
 	}
-	name := widget.NewEntry()
+	name := newDialogEntry()
 	name.SetText(rw.app.Preferences().String(prefReviewer))
 	name.SetPlaceHolder("your name")
-	comment := widget.NewMultiLineEntry()
+	comment := newDialogMultiLineEntry()
 	comment.SetMinRowsVisible(4)
 	comment.Wrapping = fyne.TextWrapWord
-	facts := widget.NewLabel(fmt.Sprintf("Input files: %d, SHA-256 %s\nCovered %s with %s",
-		rw.nFiles, rw.hash, review.PercentText(rw.result.CoveredFraction), rw.settings.Describe()))
+	facts := widget.NewLabel(fmt.Sprintf("Input files: %d, SHA-256 %s\nCovered: %s\nSettings: %s",
+		rw.nFiles, rw.hash, coveredText(rw.result.Result), rw.settings.Describe()))
 	facts.Wrapping = fyne.TextWrapWord
 	var prev []string
 	for _, s := range rw.record.SignOffs {
@@ -115,11 +116,11 @@ func (rw *reviewWindow) signOff() {
 		}
 		who := strings.TrimSpace(name.Text)
 		if who == "" {
-			dialog.ShowInformation("Sign off", "A sign-off needs the reviewer's name; nothing was recorded.", rw.win)
+			showDialog(rw.win, dialog.NewInformation("Sign off", "A sign-off needs the reviewer's name; nothing was recorded.", rw.win))
 			return
 		}
 		if outcome.Selected == "" {
-			dialog.ShowInformation("Sign off", "A sign-off needs an outcome; nothing was recorded.", rw.win)
+			showDialog(rw.win, dialog.NewInformation("Sign off", "A sign-off needs an outcome; nothing was recorded.", rw.win))
 			return
 		}
 		rw.app.Preferences().SetString(prefReviewer, who)
@@ -131,7 +132,7 @@ func (rw *reviewWindow) signOff() {
 		rw.metrics.update()
 	}, rw.win)
 	d.Resize(fyne.NewSize(720, 420))
-	d.Show()
+	showDialog(rw.win, d)
 }
 
 // addSignOff records a sign-off of the analysis on screen (its input

@@ -444,7 +444,7 @@ func (rw *reviewWindow) runAnalysis(prepare bool) {
 			}
 			rw.sess = sess
 			rw.showResult(res)
-			rw.setBusy(fmt.Sprintf("Analysed with %s.", set.Describe()), -1)
+			rw.setBusy(fmt.Sprintf("Analysed: %s.", set.Describe()), -1)
 			stage("analysed case on screen")
 		})
 	}()

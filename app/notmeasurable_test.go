@@ -9,6 +9,7 @@ import (
 	"os"
 	"os/exec"
 	"path/filepath"
+	"regexp"
 	"strings"
 	"testing"
 
@@ -47,16 +48,47 @@ func TestNotMeasurableEverywhere(t *testing.T) {
 	if v, ok := doc["covered_fraction"]; !ok || v != nil || doc["monitored_volume_ml"] != 0.0 {
 		t.Errorf("JSON covered_fraction %v (present %v), monitored %v mL; want null and 0", v, ok, doc["monitored_volume_ml"])
 	}
+	// Every other fraction of the monitored target is null too (schema 4).
+	if dvh, _ := doc["dvh"].(map[string]any); dvh == nil || dvh["target"] != nil {
+		t.Errorf("JSON dvh.target not null")
+	}
+	for _, list := range []string{"coverage_vs_threshold", "sonications"} {
+		items, _ := doc[list].([]any)
+		if len(items) == 0 {
+			t.Errorf("JSON %s: empty", list)
+		}
+	items:
+		for _, it := range items {
+			m, _ := it.(map[string]any)
+			for _, k := range []string{"covered_fraction", "added_coverage", "cumulative_coverage"} {
+				if v, ok := m[k]; ok && v != nil {
+					t.Errorf("JSON %s: %s %v, want null", list, k, v)
+					break items
+				}
+			}
+		}
+	}
 
 	code, stdout, stderr = runCmd("analyze", "--trials", "0", dir)
 	if code != 0 {
 		t.Fatalf("analyze: exit %d: %s", code, stderr)
 	}
 	checkLines(t, "analyze text", stdout, "Covered")
+	if _, table, _ := strings.Cut(stdout, "coverage added"); !strings.Contains(table, "     1 ") || strings.Count(table, "not measurable") < 35 {
+		t.Errorf("analyze text: the sonication table does not say \"not measurable\" for each added coverage:\n%s", table)
+	}
 
-	pdf := filepath.Join(tmp, "report.pdf")
-	if code, _, stderr = runCmd("report", "--trials", "0", "--pdf", pdf, dir); code != 0 {
+	pdf, metricsCSV := filepath.Join(tmp, "report.pdf"), filepath.Join(tmp, "metrics.csv")
+	if code, _, stderr = runCmd("report", "--trials", "0", "--pdf", pdf, "--csv", metricsCSV, dir); code != 0 {
 		t.Fatalf("report: exit %d: %s", code, stderr)
+	}
+	// The metrics CSV leaves out what is not measurable (README, "Metrics
+	// files"): no covered fraction of the monitored target, no coverage
+	// added by a sonication.
+	if b, err := os.ReadFile(metricsCSV); err != nil {
+		t.Error(err)
+	} else if m := regexp.MustCompile(`(?m)^(target\.covered_fraction|sonication\.\d+\.coverage_added),.*$`).FindString(string(b)); m != "" {
+		t.Errorf("metrics CSV: %q for a target with no monitored part", m)
 	}
 	if d := os.Getenv("DOSECOVER_SHOTS"); d != "" {
 		if b, err := os.ReadFile(pdf); err == nil {

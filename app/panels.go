@@ -122,14 +122,36 @@ func (rw *reviewWindow) pin(p dosemap.Vec3) {
 	}()
 }
 
-// Sonication table columns.
+// Sonication table columns: the short title of the header and, shown
+// while the pointer rests on the header, the full name with its unit and
+// what the column means ("{unit}" stands for the dose model's unit).
 var sonColumns = []struct {
 	title string
 	width float32
+	tip   string
 }{
-	{"use", 48}, {"no.", 40}, {"time", 62}, {"label", 214}, {"peak °C", 70}, {"peak dose", 90}, {"lethal added mL", 124},
-	{"coverage added", 118}, {"outside margin added mL", 184}, {"cooled s", 76}, {"residual °C", 96},
-	{"quality and notes", 560},
+	{"use", 48, "Use: tick to include this sonication in the cumulative dose; untick to re-analyse without it"},
+	{"no.", 40, "Number: the sonication's number as the session gives it"},
+	{"time", 62, "Start time, m:ss: time from the start of the first sonication to the start of this one"},
+	{"label", 214, "Label: the sonication's name as its series gives it (\"sonication n\" in teaching mode)"},
+	{"peak °C", 70, "Peak temperature, °C: hottest valid thermometry voxel over this sonication's frames"},
+	{"peak dose", 90, "Peak dose, {unit}: highest thermal dose of this sonication alone"},
+	{"lethal added mL", 124, "Lethal volume added, mL: tissue whose cumulative dose first reached the lethal threshold with this sonication"},
+	{"coverage added", 118, "Added coverage, % of the monitored target: target covered first by this sonication"},
+	{"outside margin added mL", 184, "Lethal volume added outside the margin, mL: tissue beyond the target and its safety margin first reaching the lethal threshold with this sonication"},
+	{"cooled s", 76, "Cooling time, s: from the previous sonication's last thermometry frame to this one's first"},
+	{"residual °C", 96, "Residual heat, °C: largest rise estimated to be left from earlier sonications at this one's baseline over the target and margin, which the thermometry does not see (highlighted above the warning level)"},
+	{"quality and notes", 560, "Quality flags and notes: frames rejected, suspected phase wraps, drift removed, motion, share of invalid voxel-frames"},
+}
+
+// sonColumnTip is the hover text of the sonication table's column col,
+// with the dose unit of the analysis on screen.
+func (rw *reviewWindow) sonColumnTip(col int) string {
+	unit := rw.settings.Unit()
+	if rw.result != nil && rw.result.Unit != "" {
+		unit = rw.result.Unit
+	}
+	return strings.ReplaceAll(sonColumns[col].tip, "{unit}", unit)
 }
 
 // sonKey is the value column col sorts sonication rows by (the check box
@@ -334,23 +356,25 @@ func (rw *reviewWindow) newSonicationTable() *widget.Table {
 			}
 		})
 	t.CreateHeader = func() fyne.CanvasObject {
-		b := widget.NewButton("", nil)
+		b := newTipButton(rw.tips)
 		b.Alignment = widget.ButtonAlignLeading
 		b.Importance = widget.LowImportance
 		return b
 	}
 	t.UpdateHeader = func(id widget.TableCellID, o fyne.CanvasObject) {
-		b := o.(*widget.Button)
+		b := o.(*tipButton)
 		if id.Row < 0 && id.Col >= 0 {
 			title := sonColumns[id.Col].title
 			if id.Col == rw.sonSort {
 				title += [2]string{" ▲", " ▼"}[btoi(rw.sonDesc)]
 			}
 			b.SetText(title)
+			b.setTip(rw.sonColumnTip(id.Col))
 			col := id.Col
 			b.OnTapped = func() { rw.sortSonications(col) }
 		} else {
 			b.SetText("")
+			b.setTip("")
 			b.OnTapped = nil
 		}
 	}

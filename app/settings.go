@@ -65,9 +65,9 @@ func excludedSet(s review.Settings) map[int]bool {
 
 func fmtNum(v float64) string { return strconv.FormatFloat(v, 'g', 4, 64) }
 
-// floatEntry is an entry that holds one number.
-func floatEntry(v float64) *widget.Entry {
-	e := widget.NewEntry()
+// floatEntry is a dialog's entry that holds one number.
+func floatEntry(v float64) *dialogEntry {
+	e := newDialogEntry()
 	if v != 0 {
 		e.SetText(strconv.FormatFloat(v, 'g', -1, 64))
 	}
@@ -186,11 +186,11 @@ func showSettingsDialog(w fyne.Window, cur review.Settings, note, origin string,
 	th := cur.Thermometry
 	alpha := floatEntry(th.AlphaPPMPerC)
 	body := floatEntry(th.BodyTempC)
-	baseline := widget.NewEntry()
+	baseline := newDialogEntry()
 	baseline.SetText(strconv.Itoa(th.BaselineFrames))
 	drift := widget.NewSelect([]string{"none", "mean", "polynomial"}, nil)
 	drift.SetSelected(th.Drift.String())
-	order := widget.NewEntry()
+	order := newDialogEntry()
 	order.SetText(strconv.Itoa(th.DriftOrder))
 	phase := floatEntry(th.PhaseScale)
 	phase.SetPlaceHolder("from the files")
@@ -199,7 +199,7 @@ func showSettingsDialog(w fyne.Window, cur review.Settings, note, origin string,
 	te := floatEntry(th.TEms)
 	te.SetPlaceHolder("from the files")
 
-	trials := widget.NewEntry()
+	trials := newDialogEntry()
 	trials.SetText(strconv.Itoa(cur.Trials))
 
 	errLabel := widget.NewLabel("")
@@ -261,7 +261,7 @@ func showSettingsDialog(w fyne.Window, cur review.Settings, note, origin string,
 		var err error
 		for _, f := range []struct {
 			name string
-			e    *widget.Entry
+			e    *dialogEntry
 			dst  *float64
 		}{
 			{"threshold", threshold, &s.Threshold}, {"margin", margin, &s.MarginMM},
@@ -376,7 +376,7 @@ func showSettingsDialog(w fyne.Window, cur review.Settings, note, origin string,
 		container.NewVScroll(content))
 	d = dialog.NewCustomWithoutButtons("Analysis settings", body2, w)
 	d.Resize(fyne.NewSize(660, 720))
-	d.Show()
+	showDialog(w, d)
 }
 
 // settingsOrigin says which values the settings dialog shows: those of the

@@ -23,8 +23,8 @@ func dialogParts(w fyne.Window) (entries map[string]*widget.Entry, buttons map[s
 		switch x := o.(type) {
 		case *widget.Form:
 			for _, it := range x.Items {
-				if e, ok := it.Widget.(*widget.Entry); ok {
-					entries[it.Text] = e
+				if e, ok := it.Widget.(*dialogEntry); ok {
+					entries[it.Text] = &e.Entry
 				}
 			}
 		case *widget.Button:
@@ -40,8 +40,8 @@ func dialogParts(w fyne.Window) (entries map[string]*widget.Entry, buttons map[s
 					if unit != "" {
 						name += " (" + unit + ")"
 					}
-					if e, ok := x.Objects[i+1].(*widget.Entry); ok {
-						entries[name] = e
+					if e, ok := x.Objects[i+1].(*dialogEntry); ok {
+						entries[name] = &e.Entry
 					}
 				}
 			}

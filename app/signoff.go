@@ -70,5 +70,5 @@ func (rw *reviewWindow) chooseStudy(dir string, demo bool, lc *loadedCase) {
 			}
 		}, rw.win)
 	d.Resize(fyne.NewSize(860, 360))
-	d.Show()
+	showDialog(rw.win, d)
 }

@@ -460,7 +460,7 @@ func TestSettingsDialogColumns(t *testing.T) {
 			if fx != fieldX || lx != labelX {
 				t.Errorf("%q: label at x %g, field at x %g; the first row has %g, %g", label.Text, lx, fx, labelX, fieldX)
 			}
-			if _, ok := field.(*widget.Entry); ok {
+			if _, ok := field.(*dialogEntry); ok {
 				entries++
 				if unit.Text == "" {
 					t.Errorf("%q has no unit", label.Text)

@@ -6,13 +6,13 @@ import (
 	"bytes"
 	"encoding/json"
 	"os"
-	"os/exec"
 	"path/filepath"
 	"strings"
 	"testing"
 	"time"
 
 	"dosecover/dosemap/dicomio"
+	"dosecover/dosemap/testkit"
 	"dosecover/review"
 
 	"fyne.io/fyne/v2"
@@ -20,76 +20,23 @@ import (
 	"fyne.io/fyne/v2/widget"
 )
 
-// restudy copies the DICOM files of src into the flat folder dst with
-// pydicom's own writer as another study of another invented patient: new
-// StudyInstanceUID, series, instance and frame-of-reference UIDs (one
-// mapping for every file), PatientID pid. With pid "same" the files are
-// written unchanged.
-const restudy = `
-import os, sys
-import pydicom
-from pydicom.uid import generate_uid
-src, dst, pid, prefix = sys.argv[1:5]
-os.makedirs(dst, exist_ok=True)
-uids = {}
-def remap(v):
-    if v not in uids:
-        uids[v] = generate_uid(prefix="2.25.", entropy_srcs=[v, pid])
-    return uids[v]
-def walk(ds):
-    for el in ds:
-        if el.VR == "SQ":
-            for item in el.value:
-                walk(item)
-        elif el.VR == "UI" and el.tag not in (0x00080016, 0x00020002, 0x00020010, 0x00081150) and el.value:
-            el.value = remap(str(el.value))
-n = 0
-for root, _, files in sorted(os.walk(src)):
-    for f in sorted(files):
-        try:
-            ds = pydicom.dcmread(os.path.join(root, f))
-        except Exception:
-            continue
-        if pid != "same":
-            walk(ds)
-            ds.file_meta.MediaStorageSOPInstanceUID = ds.SOPInstanceUID
-            ds.PatientID, ds.PatientName, ds.StudyDate = pid, "PHANTOM^" + pid, "20260120"
-        n += 1
-        ds.save_as(os.path.join(dst, "%s%05d.dcm" % (prefix, n)), write_like_original=True)
-`
-
-// TestAnalyzeTwoStudies: a folder holding two studies (written by
-// pydicom) is refused by analyze and report with both studies named and
-// the way to choose; --study analyses the one chosen, with the same
-// figures as that study's folder alone.
 // twoStudies writes the three-sonication cut of the demo (our writer)
 // and a folder holding it twice, written by pydicom: unchanged and as a
 // second study of another invented patient (PatientID SIM-OTHER).
 func twoStudies(t *testing.T) (single, mixed string) {
 	t.Helper()
-	py := ""
-	for _, p := range []string{"python3", "/usr/bin/python3"} {
-		if exec.Command(p, "-c", "import pydicom").Run() == nil {
-			py = p
-			break
-		}
-	}
-	if py == "" {
-		if os.Getenv("CI") == "true" {
-			t.Fatal("python3 with pydicom not found (install python3-pydicom)")
-		}
-		t.Skip("python3 with pydicom not found; skipping")
-	}
+	py := testkit.Python(t)
 	single = demoCase(t)
 	mixed = filepath.Join(t.TempDir(), "mixed")
-	for _, a := range [][]string{{"same", "a-"}, {"SIM-OTHER", "b-"}} {
-		if out, err := exec.Command(py, "-c", restudy, single, mixed, a[0], a[1]).CombinedOutput(); err != nil {
-			t.Fatalf("pydicom: %v\n%s", err, out)
-		}
-	}
+	testkit.Rewrite(t, py, single, mixed, "a-", nil)
+	testkit.Rewrite(t, py, single, mixed, "b-", &testkit.Identity{PatientID: "SIM-OTHER", PatientName: "PHANTOM^SIM-OTHER", StudyDate: "20260120"})
 	return single, mixed
 }
 
+// TestAnalyzeTwoStudies: a folder holding two studies (written by
+// pydicom) is refused by analyze and report with both studies named and
+// the way to choose; --study analyses the one chosen, with the same
+// figures as that study's folder alone.
 func TestAnalyzeTwoStudies(t *testing.T) {
 	single, mixed := twoStudies(t)
 	var out, errb bytes.Buffer

@@ -133,3 +133,47 @@ func (t *tipLayer) shown() string {
 	}
 	return t.text.Text
 }
+
+// tipButton is a button that shows a fixed text in the window's tip layer
+// while the pointer rests on it, whether or not its own text is cut: the
+// column headers of the tables, whose short titles need their full name,
+// unit and meaning.
+type tipButton struct {
+	widget.Button
+	tips *tipLayer
+	tip  string // shown on hover; "" none
+}
+
+func newTipButton(tips *tipLayer) *tipButton {
+	b := &tipButton{tips: tips}
+	b.ExtendBaseWidget(b)
+	return b
+}
+
+// setTip sets the text shown on hover, replacing it on show.
+func (b *tipButton) setTip(tip string) {
+	b.tip = tip
+	if b.tips != nil && b.tips.owner == fyne.CanvasObject(b) {
+		if tip == "" {
+			b.tips.hide(b)
+		} else {
+			b.tips.show(b, tip)
+		}
+	}
+}
+
+// MouseIn highlights the button and shows its tip.
+func (b *tipButton) MouseIn(e *desktop.MouseEvent) {
+	b.Button.MouseIn(e)
+	if b.tips != nil && b.tip != "" {
+		b.tips.show(b, b.tip)
+	}
+}
+
+// MouseOut ends the highlight and hides the tip.
+func (b *tipButton) MouseOut() {
+	b.Button.MouseOut()
+	if b.tips != nil {
+		b.tips.hide(b)
+	}
+}

@@ -73,7 +73,7 @@ type reviewWindow struct {
 	identity   *tipLabel
 	signState  *widget.Label // whether the analysis on screen is signed off
 	hover      *widget.Label
-	status     *widget.Label
+	status     *tipLabel
 	progress   *widget.ProgressBar
 	cancelBtn  *widget.Button
 	notice     *widget.Label // shown over the viewers when there is nothing to show
@@ -128,7 +128,7 @@ func newReviewWindow(a fyne.App) *reviewWindow {
 		fn  func()
 	}{{fyne.KeyO, rw.chooseFolder}, {fyne.KeyE, rw.exportReport}, {fyne.KeyComma, rw.openSettings}, {fyne.KeyT, func() { rw.teachCheck.SetChecked(!rw.teaching) }}} {
 		fn := sc.fn
-		rw.win.Canvas().AddShortcut(&desktop.CustomShortcut{KeyName: sc.key, Modifier: fyne.KeyModifierShortcutDefault}, func(fyne.Shortcut) { fn() })
+		rw.win.Canvas().AddShortcut(ctrlKey(sc.key), func(fyne.Shortcut) { fn() })
 	}
 	rw.win.Canvas().SetOnTypedRune(func(r rune) {
 		if rw.active != nil {
@@ -148,8 +148,7 @@ func (rw *reviewWindow) build() {
 	rw.signState = widget.NewLabelWithStyle("", fyne.TextAlignTrailing, fyne.TextStyle{Bold: true})
 	rw.hover = widget.NewLabel("Hover over an image to read position, anatomy, temperature and dose.")
 	rw.hover.Truncation = fyne.TextTruncateEllipsis
-	rw.status = widget.NewLabel("")
-	rw.status.Truncation = fyne.TextTruncateEllipsis
+	rw.status = newTipLabel(rw.tips) // cut where it does not fit, its full text on hover
 	rw.progress = widget.NewProgressBar()
 	rw.progress.Hide()
 	rw.cancelBtn = widget.NewButtonWithIcon("Cancel", theme.CancelIcon(), rw.cancelJob)
@@ -307,11 +306,22 @@ func legendRow() (legend, planeEntry fyne.CanvasObject) {
 	return container.New(newFlowLayout(), items...), planeEntry
 }
 
+// ctrlKey is the shortcut of key with Ctrl (Cmd on macOS).
+func ctrlKey(key fyne.KeyName) *desktop.CustomShortcut {
+	return &desktop.CustomShortcut{KeyName: key, Modifier: fyne.KeyModifierShortcutDefault}
+}
+
+// withShortcut shows the window's keyboard shortcut beside a menu item.
+func withShortcut(it *fyne.MenuItem, key fyne.KeyName) *fyne.MenuItem {
+	it.Shortcut = ctrlKey(key)
+	return it
+}
+
 func (rw *reviewWindow) mainMenu() *fyne.MainMenu {
 	recent := fyne.NewMenuItem("Recent cases", nil)
 	recent.ChildMenu = fyne.NewMenu("")
 	file := fyne.NewMenu("File",
-		fyne.NewMenuItem("Open folder…", rw.chooseFolder),
+		withShortcut(fyne.NewMenuItem("Open folder…", rw.chooseFolder), fyne.KeyO),
 		fyne.NewMenuItem("Open the demo case", func() { rw.openDemo() }),
 		fyne.NewMenuItem("Open from archive…", rw.openFromArchive),
 		recent,
@@ -322,11 +332,11 @@ func (rw *reviewWindow) mainMenu() *fyne.MainMenu {
 	)
 	rw.fillRecentMenu(recent.ChildMenu)
 	review := fyne.NewMenu("Review",
-		fyne.NewMenuItem("Analysis settings…", rw.openSettings),
+		withShortcut(fyne.NewMenuItem("Analysis settings…", rw.openSettings), fyne.KeyComma),
 		fyne.NewMenuItem("Draw drift reference on the left image", rw.startRefMode),
 		fyne.NewMenuItem("Automatic drift reference", rw.automaticRef),
 		fyne.NewMenuItem("Sign off…", rw.signOff),
-		fyne.NewMenuItem("Export report…", rw.exportReport),
+		withShortcut(fyne.NewMenuItem("Export report…", rw.exportReport), fyne.KeyE),
 		fyne.NewMenuItem("Store results in archive…", rw.storeResults),
 	)
 	help := fyne.NewMenu("Help",
@@ -466,6 +476,9 @@ func (rw *reviewWindow) sliceChanged(n int) {
 }
 
 func (rw *reviewWindow) typedKey(ev *fyne.KeyEvent) {
+	if ev.Name == fyne.KeyEscape && escapeDialog(rw.win) {
+		return
+	}
 	if ev.Name == fyne.KeyEscape && rw.viewers[0].refMode {
 		rw.viewers[0].refMode = false
 		rw.viewers[0].refA, rw.viewers[0].refB = nil, nil
@@ -617,7 +630,7 @@ func (rw *reviewWindow) finishJob(gen int) bool {
 func (rw *reviewWindow) showError(title string, err error) {
 	msg := rw.scrub(err.Error())
 	rw.setBusy(rw.scrub(title)+": "+msg, -1)
-	dialog.ShowError(fmt.Errorf("%s\n\n%s", rw.scrub(title), msg), rw.win)
+	showDialog(rw.win, dialog.NewError(fmt.Errorf("%s\n\n%s", rw.scrub(title), msg), rw.win))
 }
 
 // startRefMode lets the user drag the drift reference rectangle on the

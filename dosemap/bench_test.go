@@ -6,6 +6,8 @@ import (
 	"math/rand/v2"
 	"runtime"
 	"testing"
+
+	"dosecover/dosemap/testkit"
 )
 
 // cpuMeter reports a throughput both per wall-clock second and per CPU
@@ -19,7 +21,7 @@ type cpuMeter struct {
 
 func startCPU(b *testing.B) *cpuMeter {
 	runtime.LockOSThread()
-	c, ok := threadCPU()
+	c, ok := testkit.ThreadCPU()
 	b.ResetTimer()
 	return &cpuMeter{b: b, start: int64(c), ok: ok}
 }
@@ -27,7 +29,7 @@ func startCPU(b *testing.B) *cpuMeter {
 // reportTime reports milliseconds per item, wall and CPU.
 func (m *cpuMeter) reportTime(items float64, name string) {
 	b := m.b
-	c, ok := threadCPU()
+	c, ok := testkit.ThreadCPU()
 	runtime.UnlockOSThread()
 	b.ReportMetric(b.Elapsed().Seconds()*1e3/(items*float64(b.N)), name)
 	if ok && m.ok && int64(c) > m.start {
@@ -38,7 +40,7 @@ func (m *cpuMeter) reportTime(items float64, name string) {
 // report reports work/1e6 per second as name (wall) and name+"-cpu".
 func (m *cpuMeter) report(work float64, name string) {
 	b := m.b
-	c, ok := threadCPU()
+	c, ok := testkit.ThreadCPU()
 	runtime.UnlockOSThread()
 	b.ReportMetric(work*float64(b.N)/b.Elapsed().Seconds()/1e6, name)
 	if ok && m.ok && int64(c) > m.start {
@@ -159,7 +161,7 @@ func BenchmarkMonteCarlo(b *testing.B) {
 	}
 	// MonteCarlo computes on GOMAXPROCS goroutines: the CPU figure is that
 	// of the whole process.
-	c0, ok := processCPU()
+	c0, ok := testkit.ProcessCPU()
 	n := 0
 	for b.Loop() {
 		if err := MonteCarlo([]*TemperatureSeries{ts}, DefaultCEM43(), mask, 10, 1, func(int, []float32) {}); err != nil {
@@ -169,7 +171,7 @@ func BenchmarkMonteCarlo(b *testing.B) {
 	}
 	const work = 10 * 2000 * 300
 	b.ReportMetric(work*float64(n)/b.Elapsed().Seconds()/1e6, "Mvoxel-frames/s")
-	if c1, ok1 := processCPU(); ok && ok1 && c1 > c0 {
+	if c1, ok1 := testkit.ProcessCPU(); ok && ok1 && c1 > c0 {
 		b.ReportMetric(work*float64(n)/(c1-c0).Seconds()/1e6, "Mvoxel-frames/s-cpu")
 	}
 }

@@ -223,7 +223,7 @@ func TestKnownSpill(t *testing.T) {
 	}
 	// Delivery order: sonication 1 covers everything, 2 adds the spill.
 	s1, s2 := r.Sonications[0], r.Sonications[1]
-	if s1.AddedCoverage < 0.999 || s2.AddedCoverage != 0 || s1.OutsideAddedML != 0 ||
+	if !(fracOf(s1.AddedCoverage) >= 0.999) || fracOf(s2.AddedCoverage) != 0 || s1.OutsideAddedML != 0 ||
 		math.Abs(s2.OutsideAddedML-r.OutsideMarginLethalML) > 1e-9 ||
 		math.Abs(s1.LethalAddedML+s2.LethalAddedML-r.LethalVolumeML) > 1e-9 {
 		t.Errorf("per sonication: %+v %+v", s1, s2)
@@ -283,8 +283,8 @@ func TestDoseMetrics(t *testing.T) {
 		}
 	}
 	for _, p := range r.CoverageVsThreshold {
-		if (p.Threshold < 499 && p.CoveredFraction != 1) || (p.Threshold > 501 && p.CoveredFraction != 0) {
-			t.Errorf("coverage at %g = %g", p.Threshold, p.CoveredFraction)
+		if (p.Threshold < 499 && fracOf(p.CoveredFraction) != 1) || (p.Threshold > 501 && fracOf(p.CoveredFraction) != 0) {
+			t.Errorf("coverage at %g = %s", p.Threshold, ptrString(p.CoveredFraction))
 		}
 	}
 }
@@ -457,8 +457,8 @@ func TestAvoidDose(t *testing.T) {
 	if math.Abs(a.LethalVolumeMM3-want) > 0.25*want {
 		t.Errorf("lethal in avoid %.1f mm³, want %.1f", a.LethalVolumeMM3, want)
 	}
-	if v := 4.0 / 3 * math.Pi * 27 / 1000; math.Abs(a.VolumeML-v) > 0.05*v || a.MonitoredFraction != 1 {
-		t.Errorf("avoid volume %.4f mL (want %.4f), monitored %.3f", a.VolumeML, v, a.MonitoredFraction)
+	if v := 4.0 / 3 * math.Pi * 27 / 1000; math.Abs(a.VolumeML-v) > 0.05*v || fracOf(a.MonitoredFraction) != 1 {
+		t.Errorf("avoid volume %.4f mL (want %.4f), monitored %s", a.VolumeML, v, ptrString(a.MonitoredFraction))
 	}
 	if a.PeakMM == nil || dosemap.Vec3(*a.PeakMM).Sub(dosemap.Vec3{16.5, 0, 0}).Norm() > 1.3 || a.PeakDose == nil {
 		t.Errorf("peak %v at %v", ptrString(a.PeakDose), a.PeakMM)

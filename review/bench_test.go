@@ -8,6 +8,7 @@ import (
 	"time"
 
 	"dosecover/dosemap"
+	"dosecover/dosemap/testkit"
 )
 
 // typicalCase builds a session in memory: n sonications on a cols×cols×6
@@ -75,7 +76,7 @@ func BenchmarkReanalyze(b *testing.B) {
 			}
 			b.Run(fmt.Sprintf("%dx%dx6_24son/%s", cols, cols, ch.name), func(b *testing.B) {
 				n := 0
-				c0 := cpuTime()
+				c0 := testkit.CPUTime()
 				for b.Loop() {
 					s := set
 					ch.change(&s, n)
@@ -105,7 +106,7 @@ func BenchmarkReanalyzeMonteCarlo(b *testing.B) {
 	}
 	b.Run("128x128x6_24son_14frames/threshold", func(b *testing.B) {
 		n := 0
-		c0 := cpuTime()
+		c0 := testkit.CPUTime()
 		for b.Loop() {
 			s := set
 			s.Threshold = []float64{240, 100}[n%2]
@@ -118,7 +119,7 @@ func BenchmarkReanalyzeMonteCarlo(b *testing.B) {
 	})
 	b.Run("128x128x6_24son_14frames/first_run_50_trials", func(b *testing.B) {
 		n := 0
-		c0 := cpuTime()
+		c0 := testkit.CPUTime()
 		defer func() { reportCPU(b, c0, n) }()
 		for b.Loop() {
 			s := set
@@ -135,7 +136,7 @@ func BenchmarkReanalyzeMonteCarlo(b *testing.B) {
 // goroutines, garbage collection included) as "cpu-ms/op": on a shared
 // machine wall time also counts other people's work.
 func reportCPU(b *testing.B, c0 time.Duration, n int) {
-	if d := cpuTime() - c0; d > 0 && n > 0 {
+	if d := testkit.CPUTime() - c0; d > 0 && n > 0 {
 		b.ReportMetric(float64(d)/1e6/float64(n), "cpu-ms/op")
 	}
 }

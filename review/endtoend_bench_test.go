@@ -11,6 +11,7 @@ import (
 
 	"dosecover/dosemap/dicomio"
 	"dosecover/dosemap/sim"
+	"dosecover/dosemap/testkit"
 )
 
 // The end-to-end benchmark reads the typical simulated session (24
@@ -102,9 +103,9 @@ func BenchmarkAnalyzeTypicalEndToEnd(b *testing.B) {
 	var loadC, prepC, anaC time.Duration // CPU
 	n := 0
 	b.ResetTimer()
-	c0 := cpuTime()
+	c0 := testkit.CPUTime()
 	for b.Loop() {
-		t0, u0 := time.Now(), cpuTime()
+		t0, u0 := time.Now(), testkit.CPUTime()
 		c, inv, err := dicomio.Load(ctx, dir, dicomio.LoadOptions{Deferred: true}, nil)
 		if err != nil {
 			b.Fatal(err)
@@ -112,16 +113,16 @@ func BenchmarkAnalyzeTypicalEndToEnd(b *testing.B) {
 		if !inv.Reviewable {
 			b.Fatal(inv.NotReviewable)
 		}
-		t1, u1 := time.Now(), cpuTime()
+		t1, u1 := time.Now(), testkit.CPUTime()
 		ses, err := Prepare(ctx, c, set, nil)
 		if err != nil {
 			b.Fatal(err)
 		}
-		t2, u2 := time.Now(), cpuTime()
+		t2, u2 := time.Now(), testkit.CPUTime()
 		if _, err := ses.Analyze(ctx, set, nil); err != nil {
 			b.Fatal(err)
 		}
-		t3, u3 := time.Now(), cpuTime()
+		t3, u3 := time.Now(), testkit.CPUTime()
 		loadC += u1 - u0
 		prepC += u2 - u1
 		anaC += u3 - u2

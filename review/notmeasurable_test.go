@@ -80,12 +80,10 @@ func TestSinglePlaneSession(t *testing.T) {
 	if v, ok := doc["covered_fraction"]; !ok || v != nil {
 		t.Errorf("JSON covered_fraction %v (present %v), want null", v, ok)
 	}
-	if v := doc["schema_version"]; v != float64(review.SchemaVersion) || review.SchemaVersion < 3 {
-		t.Errorf("JSON schema_version %v, want %d (3 or later: null coverage)", v, review.SchemaVersion)
+	if v := doc["schema_version"]; v != float64(review.SchemaVersion) || review.SchemaVersion < 4 {
+		t.Errorf("JSON schema_version %v, want %d (4 or later: every fraction of the monitored target null)", v, review.SchemaVersion)
 	}
-	if v, ok := doc["coverage_vs_threshold"].([]any); !ok || len(v) != 0 {
-		t.Errorf("coverage_vs_threshold %v, want an empty list", doc["coverage_vs_threshold"])
-	}
+	checkNullFractions(t, doc)
 	var txt bytes.Buffer
 	if err := r.WriteText(&txt); err != nil {
 		t.Fatal(err)
@@ -97,6 +95,12 @@ func TestSinglePlaneSession(t *testing.T) {
 	}
 	if !strings.Contains(txt.String(), "Covered (dose >= 240 CEM43): not measurable") {
 		t.Errorf("text has no \"not measurable\" coverage line:\n%s", txt.String())
+	}
+	// The sonication table: the coverage each one added is not measurable.
+	_, table, _ := strings.Cut(txt.String(), "coverage added")
+	table, _, _ = strings.Cut(table, "(residual")
+	if rows := strings.Count(table, "not measurable"); rows != len(r.Sonications) || strings.Contains(table, "%") {
+		t.Errorf("text: %d sonication rows say \"not measurable\" (want %d) or a row shows a percentage:\n%s", rows, len(r.Sonications), table)
 	}
 
 	unmeasured := func(sr review.SonicationReach) (axis int, longest float64) {
@@ -146,5 +150,44 @@ func TestSinglePlaneSession(t *testing.T) {
 	if !(short.MonitoredFraction > mid.MonitoredFraction && mid.MonitoredFraction >= long.MonitoredFraction && long.MonitoredFraction >= longer.MonitoredFraction) {
 		t.Errorf("monitored part does not shrink as the focal length grows: %.3f, %.3f, %.3f, %.3f (2, 6, 40, 60 mm)",
 			short.MonitoredFraction, mid.MonitoredFraction, long.MonitoredFraction, longer.MonitoredFraction)
+	}
+}
+
+// checkNullFractions fails unless every fraction of the monitored target in
+// the result JSON doc is null (schema 4): dvh.target,
+// coverage_vs_threshold[].covered_fraction (the thresholds still listed),
+// sonications[].added_coverage and cumulative_coverage.
+func checkNullFractions(t *testing.T, doc map[string]any) {
+	t.Helper()
+	dvh, _ := doc["dvh"].(map[string]any)
+	if v, ok := dvh["target"]; !ok || v != nil {
+		t.Errorf("JSON dvh.target %v (present %v), want null", v, ok)
+	}
+	if d, _ := dvh["dose"].([]any); len(d) == 0 {
+		t.Errorf("JSON dvh.dose %v, want the dose levels", dvh["dose"])
+	}
+	pts, _ := doc["coverage_vs_threshold"].([]any)
+	if len(pts) == 0 {
+		t.Errorf("coverage_vs_threshold %v, want the thresholds with null fractions", doc["coverage_vs_threshold"])
+	}
+	for _, p := range pts {
+		m, _ := p.(map[string]any)
+		if v, ok := m["covered_fraction"]; !ok || v != nil || m["threshold"] == nil {
+			t.Errorf("coverage_vs_threshold point %v, want a threshold and covered_fraction null", p)
+			break
+		}
+	}
+	sons, _ := doc["sonications"].([]any)
+	if len(sons) == 0 {
+		t.Errorf("no sonications in the JSON")
+	}
+	for _, s := range sons {
+		m, _ := s.(map[string]any)
+		a, aok := m["added_coverage"]
+		c, cok := m["cumulative_coverage"]
+		if !aok || !cok || a != nil || c != nil {
+			t.Errorf("sonication %v: added_coverage %v, cumulative_coverage %v (present %v, %v), want both null", m["number"], a, c, aok, cok)
+			break
+		}
 	}
 }

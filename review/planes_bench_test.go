@@ -10,6 +10,7 @@ import (
 
 	"dosecover/dosemap/dicomio"
 	"dosecover/dosemap/sim"
+	"dosecover/dosemap/testkit"
 )
 
 // BenchmarkAnalyzeTwoPlanesEndToEnd times what `dosecover analyze` does on
@@ -52,7 +53,7 @@ func BenchmarkAnalyzeTwoPlanesEndToEnd(b *testing.B) {
 	var load, prep, ana time.Duration
 	n := 0
 	b.ResetTimer()
-	c0 := cpuTime()
+	c0 := testkit.CPUTime()
 	for b.Loop() {
 		t0 := time.Now()
 		c, inv, err := dicomio.Load(ctx, dir, dicomio.LoadOptions{Deferred: true}, nil)

@@ -13,8 +13,12 @@ import (
 // settings in snake_case throughout, with the thermometry inside. Version
 // 3: covered_fraction (and as_measured's) is null, not 0, when no part of
 // the target is monitored, coverage_vs_threshold is then empty, and
-// study_uid names the study analysed.
-const SchemaVersion = 3
+// study_uid names the study analysed. Version 4: every other fraction of
+// a monitored volume is null, not 0, when that volume is empty: dvh.target
+// and dvh.margin_shell, coverage_vs_threshold[].covered_fraction (the
+// thresholds are listed), sonications[].added_coverage and
+// cumulative_coverage, avoid[].monitored_fraction.
+const SchemaVersion = 4
 
 // Cautions are written into every result and report.
 var Cautions = []string{
@@ -175,8 +179,8 @@ func (c Cluster) label() int { return c.id }
 // AvoidDose is the dose inside one avoid structure.
 type AvoidDose struct {
 	Name              string      `json:"name"`
-	VolumeML          float64     `json:"volume_ml"` // within the analysis grid
-	MonitoredFraction float64     `json:"monitored_fraction"`
+	VolumeML          float64     `json:"volume_ml"`          // within the analysis grid
+	MonitoredFraction *float64    `json:"monitored_fraction"` // null when none of it lies in the analysis grid
 	LethalVolumeMM3   float64     `json:"lethal_volume_mm3"`
 	PeakDose          *float64    `json:"peak_dose"`
 	PeakMM            *[3]float64 `json:"peak_mm"`
@@ -184,7 +188,8 @@ type AvoidDose struct {
 
 // DVH is the cumulative dose-volume histogram: for each dose level the
 // fraction of the volume receiving at least that dose (ICRU Report 83).
-// Fractions are of the monitored part of each volume.
+// Fractions are of the monitored part of each volume; a curve is nil
+// (JSON null, "not measurable") when that part is empty.
 type DVH struct {
 	Dose        []float64 `json:"dose"`
 	Target      []float64 `json:"target"`
@@ -192,10 +197,11 @@ type DVH struct {
 }
 
 // ThresholdPoint is the covered fraction (of the monitored target) for one
-// alternative threshold.
+// alternative threshold; nil (JSON null) when no part of the target is
+// monitored.
 type ThresholdPoint struct {
-	Threshold       float64 `json:"threshold"`
-	CoveredFraction float64 `json:"covered_fraction"`
+	Threshold       float64  `json:"threshold"`
+	CoveredFraction *float64 `json:"covered_fraction"`
 }
 
 // SonicationStats summarises one sonication. Added quantities are counted
@@ -215,8 +221,8 @@ type SonicationStats struct {
 	TimeAbove43S       *float64    `json:"time_above_43_s"`
 	PeakDose           float64     `json:"peak_dose"`
 	LethalAddedML      float64     `json:"lethal_added_ml"`
-	AddedCoverage      float64     `json:"added_coverage"`      // of the monitored target
-	CumulativeCoverage float64     `json:"cumulative_coverage"` // after this sonication
+	AddedCoverage      *float64    `json:"added_coverage"`      // of the monitored target; null when no part of it is monitored
+	CumulativeCoverage *float64    `json:"cumulative_coverage"` // after this sonication; null likewise
 	OutsideAddedML     float64     `json:"outside_margin_added_ml"`
 	// ResidualRiseC is the largest estimated rise left from the earlier
 	// sonications at this one's baseline over the target and margin, °C,

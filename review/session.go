@@ -774,11 +774,21 @@ func (s *Session) Analyze(ctx context.Context, set Settings, progress ProgressFu
 		r.DVH.Target = append(r.DVH.Target, fracAbove(tdose, tcum, mv, d))
 		r.DVH.MarginShell = append(r.DVH.MarginShell, fracAbove(sdose, scum, smv, d))
 	}
+	if mv == 0 { // a curve of nothing is not measurable, not 0
+		r.DVH.Target = nil
+	}
+	if smv == 0 {
+		r.DVH.MarginShell = nil
+	}
 	lo, hi := set.Threshold*18/240, set.Threshold*1000/240
-	r.CoverageVsThreshold = []ThresholdPoint{} // none when nothing is monitored
-	for e := 0; e < 40 && mv > 0; e++ {
+	r.CoverageVsThreshold = []ThresholdPoint{}
+	for e := 0; e < 40; e++ {
 		d := lo * math.Pow(hi/lo, float64(e)/39)
-		r.CoverageVsThreshold = append(r.CoverageVsThreshold, ThresholdPoint{d, fracAbove(tdose, tcum, mv, d)})
+		p := ThresholdPoint{Threshold: d}
+		if mv > 0 { // null when nothing is monitored
+			p.CoveredFraction = opt(fracAbove(tdose, tcum, mv, d))
+		}
+		r.CoverageVsThreshold = append(r.CoverageVsThreshold, p)
 	}
 	if err := ctx.Err(); err != nil {
 		return nil, err
@@ -835,7 +845,7 @@ func (s *Session) Analyze(ctx context.Context, set Settings, progress ProgressFu
 		}
 		ad.VolumeML = vol * vv / 1000
 		if vol > 0 {
-			ad.MonitoredFraction = mon / vol
+			ad.MonitoredFraction = opt(mon / vol)
 		}
 		ad.LethalVolumeMM3 = leth * vv
 		if pv >= 0 {
@@ -1158,12 +1168,19 @@ func (s *Session) perSonication(r *Result, set Settings, dc *doseCache, lethal, 
 		if m, ok := pos[n]; ok {
 			cum += added[m]
 			st.LethalAddedML = leth[m] / 1000
-			st.AddedCoverage = added[m]
+			if mv > 0 {
+				st.AddedCoverage = opt(added[m])
+			}
 			st.OutsideAddedML = out[m] / 1000
 		} else {
 			st.Excluded = true
+			if mv > 0 {
+				st.AddedCoverage = opt(0)
+			}
 		}
-		st.CumulativeCoverage = cum
+		if mv > 0 { // null when no part of the target is monitored
+			st.CumulativeCoverage = opt(cum)
+		}
 		if t := sd.temp; t != nil {
 			st.PeakTempC, st.Peak3x3C, st.TimeAbove43S = opt(t.peak), opt(t.peak3), opt(t.above43)
 			if st.PeakTempC != nil {

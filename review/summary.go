@@ -93,9 +93,9 @@ func (r *Result) WriteText(w io.Writer) error {
 			p("%10d  (excluded)  %28s  %9s  %11s\n", s.Number, "", fnum0(s.CoolingS), fnum1(s.ResidualRiseC))
 			continue
 		}
-		added := "n/a" // of a monitored target that is empty
-		if r.CoveredFraction != nil {
-			added = fmt.Sprintf("%.1f%%", 100*s.AddedCoverage)
+		added := "not measurable" // of a monitored target that is empty
+		if f := s.AddedCoverage; f != nil {
+			added = fmt.Sprintf("%.1f%%", 100**f)
 		}
 		p("%10d  %7s  %6s  %8s  %15.3f  %14s  %16.3f  %9s  %11s\n", s.Number, fnum1(s.PeakTempC), fnum1(s.Peak3x3C), fnum1(s.TimeAbove43S),
 			s.LethalAddedML, added, s.OutsideAddedML, fnum0(s.CoolingS), fnum1(s.ResidualRiseC))

@@ -11,6 +11,7 @@ import (
 	"testing"
 
 	"dosecover/dosemap/dicomwrite"
+	"dosecover/dosemap/testkit"
 
 	"github.com/suyashkumar/dicom"
 	"github.com/suyashkumar/dicom/pkg/tag"
@@ -407,32 +408,11 @@ func TestBurnedInAnnotationRefused(t *testing.T) {
 	}
 }
 
-// pydicomPython returns a python3 that imports pydicom, and the folder of
-// pydicom's test files (Debian python3-pydicom); skips when missing unless
-// CI=true.
-func pydicomPython(t *testing.T) (string, string) {
-	t.Helper()
-	for _, py := range []string{"python3", "/usr/bin/python3"} {
-		out, err := exec.Command(py, "-c", "import pydicom, os; print(os.path.dirname(pydicom.__file__))").Output()
-		if err == nil {
-			dir := filepath.Join(strings.TrimSpace(string(out)), "data", "test_files")
-			if _, err := os.Stat(filepath.Join(dir, "MR_small.dcm")); err == nil {
-				return py, dir
-			}
-		}
-	}
-	if os.Getenv("CI") == "true" {
-		t.Fatal("python3 with pydicom and its test files is required in CI (Debian python3-pydicom)")
-	}
-	t.Skip("python3 with pydicom test files not found (install Debian python3-pydicom)")
-	return "", ""
-}
-
 // TestPydicomMRSmall de-identifies MR_small.dcm from pydicom's test files
 // and checks the result with pydicom itself: the name is replaced, the
 // identity-removed flag set and the pixels unchanged.
 func TestPydicomMRSmall(t *testing.T) {
-	py, dir := pydicomPython(t)
+	py, dir := testkit.Python(t), testkit.PydicomTestFiles(t)
 	src := filepath.Join(dir, "MR_small.dcm")
 	dst := filepath.Join(t.TempDir(), "mr.dcm")
 	d, err := New(Options{Salt: "pydicom"})
@@ -465,7 +445,7 @@ print("ok")
 // TestDciodvfyMRSmall checks with dciodvfy (Debian dicom3tools) that the
 // de-identified MR_small.dcm has no error the original did not have.
 func TestDciodvfyMRSmall(t *testing.T) {
-	_, dir := pydicomPython(t)
+	dir := testkit.PydicomTestFiles(t)
 	needDciodvfy(t)
 	src := filepath.Join(dir, "MR_small.dcm")
 	dst := filepath.Join(t.TempDir(), "mr.dcm")
@@ -510,7 +490,7 @@ func errorsOf(p string) map[string]bool {
 // the bytes of every compressed frame) are unchanged, the
 // patient name replaced and no private attribute left at any depth.
 func TestPydicomFiles(t *testing.T) {
-	py, dir := pydicomPython(t)
+	py, dir := testkit.Python(t), testkit.PydicomTestFiles(t)
 	for _, name := range []string{
 		"CT_small.dcm",              // native 16-bit, explicit VR
 		"MR_small_implicit.dcm",     // implicit VR little endian

@@ -3,12 +3,12 @@ package deid
 import (
 	"bytes"
 	"os"
-	"os/exec"
 	"path/filepath"
 	"strings"
 	"testing"
 
 	"dosecover/dosemap/dicomio"
+	"dosecover/dosemap/testkit"
 )
 
 // FuzzFile: de-identifying any bytes never panics; a refusal is a
@@ -24,7 +24,7 @@ func FuzzFile(f *testing.F) {
 	f.Add(rawFile(explicit, nested(70, true)))
 	f.Add(rawFile(explicit, rawEl(0x0010, 0x0010, "PN", []byte("M\xdcLLER^J\xd6RG"))))
 	f.Add(rawFile(explicit, rawEl(0x0008, 0x0020, "DA", []byte("1997.04.24"))))
-	if py := findPydicomData(); py != "" {
+	if py := testkit.FindPydicomTestFiles(); py != "" {
 		for _, n := range []string{"MR_small.dcm", "rtstruct.dcm", "nested_priv_SQ.dcm", "MR_small_RLE.dcm"} {
 			if data, err := os.ReadFile(filepath.Join(py, n)); err == nil {
 				f.Add(data)
@@ -87,14 +87,4 @@ func FuzzClean(f *testing.F) {
 			}
 		}
 	})
-}
-
-// findPydicomData is the folder of pydicom's test files, or "" (the seeds
-// are optional).
-func findPydicomData() string {
-	out, err := exec.Command("python3", "-c", "import pydicom, os; print(os.path.dirname(pydicom.__file__))").Output()
-	if err != nil {
-		return ""
-	}
-	return filepath.Join(strings.TrimSpace(string(out)), "data", "test_files")
 }

@@ -11,6 +11,8 @@ import (
 	"testing"
 	"time"
 
+	"dosecover/dosemap/testkit"
+
 	"github.com/suyashkumar/dicom"
 )
 
@@ -88,9 +90,9 @@ func parallelFiles(paths []string, workers int, fn func(p string)) {
 // the benchmarks run it right after each measured pass so that the ratio
 // compares like with like on a shared machine.
 func readFileTime(paths []string) (wall, cpu time.Duration) {
-	start, c0 := time.Now(), cpuTime()
+	start, c0 := time.Now(), testkit.CPUTime()
 	parallelFiles(paths, 2, func(p string) { os.ReadFile(p) })
-	return time.Since(start), cpuTime() - c0
+	return time.Since(start), testkit.CPUTime() - c0
 }
 
 // passTimes accumulates the wall and CPU time of the measured passes and
@@ -103,10 +105,10 @@ type passTimes struct {
 // measure runs one measured pass (fn, with the peak heap sampled) and then,
 // with the timer stopped, the os.ReadFile reference.
 func (pt *passTimes) measure(b *testing.B, paths []string, fn func()) {
-	start, c0 := time.Now(), cpuTime()
+	start, c0 := time.Now(), testkit.CPUTime()
 	p := peakHeap(fn)
 	pt.wall += time.Since(start)
-	pt.cpu += cpuTime() - c0
+	pt.cpu += testkit.CPUTime() - c0
 	pt.peak = max(pt.peak, p)
 	b.StopTimer()
 	w, c := readFileTime(paths)

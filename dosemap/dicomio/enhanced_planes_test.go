@@ -10,6 +10,7 @@ import (
 	"testing"
 
 	"dosecover/dosemap"
+	"dosecover/dosemap/testkit"
 )
 
 // writeEnhancedPlanes writes testdata/enhanced_planes.py's objects of the
@@ -17,7 +18,7 @@ import (
 // independent DICOM writer, as dir/LAYOUT.dcm.
 func writeEnhancedPlanes(t *testing.T, dir string, layouts ...string) {
 	t.Helper()
-	py := pydicomPython(t)
+	py := testkit.Python(t)
 	script, err := filepath.Abs(filepath.Join("testdata", "enhanced_planes.py"))
 	if err != nil {
 		t.Fatal(err)

@@ -13,6 +13,7 @@ import (
 	"testing"
 
 	"dosecover/dosemap/sim"
+	"dosecover/dosemap/testkit"
 
 	"github.com/suyashkumar/dicom"
 )
@@ -184,7 +185,7 @@ func equalNaN(a, b reflect.Value) bool {
 // odd files), the direct attribute reader declines the file or agrees with
 // the DICOM library on every attribute the reader uses.
 func TestFastAttrsPydicom(t *testing.T) {
-	dir := pydicomDir(t)
+	dir := testkit.PydicomTestFiles(t)
 	taken := map[string]bool{}
 	files := 0
 	err := filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {

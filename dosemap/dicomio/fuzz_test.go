@@ -6,12 +6,14 @@ import (
 	"path/filepath"
 	"reflect"
 	"testing"
+
+	"dosecover/dosemap/testkit"
 )
 
 // fuzzSeeds adds the pydicom test files (when installed) and a synthetic
 // file of our own as seeds.
 func fuzzSeeds(f *testing.F, names ...string) {
-	if dir := seedDir(); dir != "" {
+	if dir := testkit.FindPydicomTestFiles(); dir != "" {
 		for _, n := range names {
 			if data, err := os.ReadFile(filepath.Join(dir, n)); err == nil {
 				f.Add(data)
@@ -19,9 +21,6 @@ func fuzzSeeds(f *testing.F, names ...string) {
 		}
 	}
 }
-
-// seedDir is the pydicom test folder, or "" (seeds are optional).
-func seedDir() string { return findPydicom() }
 
 // FuzzReadFile: the per-file reader must never panic, whatever the bytes;
 // a file it accepts must decode every frame without panicking; a file the

@@ -9,13 +9,14 @@ import (
 	"testing"
 
 	"dosecover/dosemap"
+	"dosecover/dosemap/testkit"
 )
 
 // Every .dcm of the pydicom test folder either reads or is reported with a
 // reason; none may panic (readBytes recovers the library's panics; a panic
 // here would be one of ours and fails the test run).
 func TestPydicomFolderEveryFile(t *testing.T) {
-	dir := pydicomDir(t)
+	dir := testkit.PydicomTestFiles(t)
 	paths, _ := filepath.Glob(filepath.Join(dir, "*.dcm"))
 	if len(paths) < 20 {
 		t.Fatalf("only %d .dcm files in %s", len(paths), dir)
@@ -209,7 +210,7 @@ func TestPydicomFrameOfReferenceMismatch(t *testing.T) {
 	if !inv.NeedsStudyChoice() || len(inv.Studies) != 2 {
 		t.Fatalf("two studies not refused: %+v %q", inv.Studies, inv.NotReviewable)
 	}
-	py := pydicomPython(t)
+	py := testkit.Python(t)
 	rt := filepath.Join(dir, "rtstruct.dcm")
 	os.Remove(rt)
 	script := "import sys, pydicom\n" +

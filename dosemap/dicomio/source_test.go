@@ -11,6 +11,7 @@ import (
 	"time"
 
 	"dosecover/dosemap"
+	"dosecover/dosemap/testkit"
 )
 
 // sameFrames reports the first difference between two frame lists
@@ -258,7 +259,7 @@ func TestDeferredCancelled(t *testing.T) {
 // other through the reused read buffer and checks that the attributes of
 // each are unchanged after later files were read into the same buffer.
 func TestReadFileReusesNoBytes(t *testing.T) {
-	dir := pydicomDir(t)
+	dir := testkit.PydicomTestFiles(t)
 	files, _ := filepath.Glob(filepath.Join(dir, "*.dcm"))
 	if len(files) == 0 {
 		t.Skip("no pydicom test files")

@@ -1,73 +1,13 @@
 package dicomio
 
 import (
-	"os"
-	"os/exec"
 	"path/filepath"
 	"strings"
 	"testing"
 
 	"dosecover/dosemap/sim"
+	"dosecover/dosemap/testkit"
 )
-
-// pydicomPython returns a python3 that imports pydicom (Debian's
-// python3-pydicom); the test skips when there is none, except under
-// CI=true, where it fails.
-func pydicomPython(t testing.TB) string {
-	t.Helper()
-	for _, py := range []string{"python3", "/usr/bin/python3"} {
-		if exec.Command(py, "-c", "import pydicom").Run() == nil {
-			return py
-		}
-	}
-	if os.Getenv("CI") == "true" {
-		t.Fatal("python3 with pydicom not found (install python3-pydicom)")
-	}
-	t.Skip("python3 with pydicom not found (install python3-pydicom); skipping")
-	return ""
-}
-
-// restudyScript copies every DICOM file of a folder (argv 1) into one flat
-// folder (argv 2) with pydicom's own writer, as a second study of another
-// patient: new StudyInstanceUID, SeriesInstanceUIDs, SOPInstanceUIDs and
-// FrameOfReferenceUID (the same mapping in every file, referenced UIDs of
-// the structure set included), PatientID argv 3, PatientName argv 4,
-// StudyDate argv 5, file names prefixed by argv 6. With argv 3 "same" the
-// files are written unchanged (still by pydicom).
-const restudyScript = `
-import os, sys
-import pydicom
-from pydicom.uid import generate_uid
-src, dst, pid, pname, date, prefix = sys.argv[1:7]
-os.makedirs(dst, exist_ok=True)
-uids = {}
-def remap(v):
-    if v not in uids:
-        uids[v] = generate_uid(prefix="2.25.", entropy_srcs=[v, pid])
-    return uids[v]
-def walk(ds):
-    for el in ds:
-        if el.VR == "SQ":
-            for item in el.value:
-                walk(item)
-        elif el.VR == "UI" and el.tag not in (0x00080016, 0x00020002, 0x00020010, 0x00081150) and el.value:
-            el.value = remap(str(el.value))
-n = 0
-for root, _, files in sorted(os.walk(src)):
-    for f in sorted(files):
-        p = os.path.join(root, f)
-        try:
-            ds = pydicom.dcmread(p)
-        except Exception:
-            continue
-        if pid != "same":
-            walk(ds)
-            ds.file_meta.MediaStorageSOPInstanceUID = ds.SOPInstanceUID
-            ds.PatientID, ds.PatientName, ds.StudyDate = pid, pname, date
-        n += 1
-        ds.save_as(os.path.join(dst, "%s%05d.dcm" % (prefix, n)), write_like_original=True)
-print(n)
-`
 
 // twoStudyFolder writes a two-sonication cut of the invented demo session
 // (our writer) into single/, then, with pydicom, the same files unchanged
@@ -75,7 +15,7 @@ print(n)
 // mixed/. It returns both folders.
 func twoStudyFolder(t *testing.T) (single, mixed string) {
 	t.Helper()
-	py := pydicomPython(t)
+	py := testkit.Python(t)
 	root := t.TempDir()
 	single, mixed = filepath.Join(root, "single"), filepath.Join(root, "mixed")
 	s := sim.DemoSession()
@@ -84,15 +24,8 @@ func twoStudyFolder(t *testing.T) (single, mixed string) {
 	if _, err := sim.WriteSession(single, s); err != nil {
 		t.Fatal(err)
 	}
-	for _, args := range [][]string{
-		{"same", "", "", "a-"},
-		{"SIM-SECOND", "PHANTOM^SECOND", "20260116", "b-"},
-	} {
-		cmd := exec.Command(py, append([]string{"-c", restudyScript, single, mixed}, args...)...)
-		if out, err := cmd.CombinedOutput(); err != nil {
-			t.Fatalf("pydicom: %v\n%s", err, out)
-		}
-	}
+	testkit.Rewrite(t, py, single, mixed, "a-", nil)
+	testkit.Rewrite(t, py, single, mixed, "b-", &testkit.Identity{PatientID: "SIM-SECOND", PatientName: "PHANTOM^SECOND", StudyDate: "20260116"})
 	return single, mixed
 }
 

@@ -9,6 +9,7 @@ import (
 
 	"dosecover/dosemap/dicomweb/orthanctest"
 	"dosecover/dosemap/sim"
+	"dosecover/dosemap/testkit"
 )
 
 var (
@@ -23,7 +24,7 @@ var (
 // It is built once per test binary in a folder removed at exit (TestMain).
 func demoCase(t testing.TB) (string, [][]byte) {
 	t.Helper()
-	py := orthanctest.Python(t)
+	py := testkit.Python(t)
 	caseOnce.Do(func() {
 		root, err := os.MkdirTemp("", "dosecover-dicomweb-case-")
 		if err != nil {

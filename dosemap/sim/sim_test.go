@@ -18,6 +18,7 @@ import (
 	"testing"
 
 	"dosecover/dosemap"
+	"dosecover/dosemap/testkit"
 
 	"github.com/suyashkumar/dicom"
 	"github.com/suyashkumar/dicom/pkg/tag"
@@ -82,23 +83,6 @@ func missing(t *testing.T, msg string) {
 		t.Fatal(msg)
 	}
 	t.Skip(msg)
-}
-
-// pythonWithPydicom finds a Python 3 that imports pydicom and numpy
-// (Debian python3-pydicom, python3-numpy).
-func pythonWithPydicom(t *testing.T) string {
-	t.Helper()
-	for _, py := range []string{"python3", "/usr/bin/python3"} {
-		p, err := exec.LookPath(py)
-		if err != nil {
-			continue
-		}
-		if exec.Command(p, "-c", "import pydicom, numpy").Run() == nil {
-			return p
-		}
-	}
-	missing(t, "no python3 with pydicom and numpy (Debian python3-pydicom, python3-numpy)")
-	return ""
 }
 
 func TestUID(t *testing.T) {
@@ -443,7 +427,7 @@ func TestDciodvfy(t *testing.T) {
 // pydicom (a general-purpose reference reader) sees the geometry and the
 // pixel values the simulator meant to write.
 func TestPydicomReadsWhatWasWritten(t *testing.T) {
-	py := pythonWithPydicom(t)
+	py := testkit.Python(t, "numpy")
 	dir, tr := demo(t)
 	script := `
 import json, sys, pydicom
@@ -736,7 +720,7 @@ func BenchmarkWriteSession(b *testing.B) {
 // number of contours and the first vertex, and the referenced frame of
 // reference.
 func TestPydicomReadsStructures(t *testing.T) {
-	py := pythonWithPydicom(t)
+	py := testkit.Python(t, "numpy")
 	dir, tr := demo(t)
 	script := `
 import json, sys, pydicom

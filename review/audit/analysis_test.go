@@ -9,6 +9,7 @@ import (
 	"strings"
 	"testing"
 
+	"dosecover/dosemap/testkit"
 	"dosecover/review"
 )
 
@@ -107,7 +108,7 @@ func TestMetricsOf(t *testing.T) {
 // are incomplete (no thermometry); a garbage .dcm beside them fails the
 // case and is named.
 func TestAnalyzerIncompleteAndCorrupt(t *testing.T) {
-	src := pydicomTestFiles(t)
+	src := testkit.PydicomTestFiles(t)
 	copyFile := func(dst, name string) {
 		b, err := os.ReadFile(filepath.Join(src, name))
 		if err != nil {

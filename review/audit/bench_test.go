@@ -8,6 +8,8 @@ import (
 	"sync"
 	"testing"
 	"time"
+
+	"dosecover/dosemap/testkit"
 )
 
 // peakHeap samples the in-use heap every few milliseconds until stop is
@@ -59,7 +61,7 @@ func benchAuditSettings(b *testing.B, in string, cases int, workers int, a Analy
 	var base runtime.MemStats
 	runtime.ReadMemStats(&base)
 	stop := peakHeap()
-	cpu0, cpuOK := cpuTime()
+	cpu0, cpuOK := testkit.ProcessCPU()
 	b.ResetTimer()
 	for i := 0; i < b.N; i++ {
 		out := filepath.Join(b.TempDir(), fmt.Sprint("out", i))
@@ -77,7 +79,7 @@ func benchAuditSettings(b *testing.B, in string, cases int, workers int, a Analy
 		}
 	}
 	b.StopTimer()
-	cpu1, _ := cpuTime()
+	cpu1, _ := testkit.ProcessCPU()
 	peak := stop()
 	if cpuOK && b.Elapsed() > 0 {
 		// Cores kept busy on average: near the number of workers when the

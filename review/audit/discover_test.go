@@ -2,40 +2,19 @@ package audit
 
 import (
 	"fmt"
-	"os"
-	"os/exec"
 	"path/filepath"
 	"reflect"
 	"strings"
 	"testing"
-)
 
-// pydicomTestFiles returns the folder of the DICOM test files that Debian's
-// python3-pydicom ships, skipping the test when it is missing (failing when
-// CI is "true").
-func pydicomTestFiles(t *testing.T) string {
-	t.Helper()
-	dirs := []string{"/usr/lib/python3/dist-packages/pydicom/data/test_files"}
-	if out, err := exec.Command("python3", "-c", "import pydicom, os; print(os.path.dirname(pydicom.__file__))").Output(); err == nil {
-		dirs = append([]string{filepath.Join(strings.TrimSpace(string(out)), "data", "test_files")}, dirs...)
-	}
-	for _, d := range dirs {
-		if _, err := os.Stat(filepath.Join(d, "MR_small.dcm")); err == nil {
-			return d
-		}
-	}
-	if os.Getenv("CI") == "true" {
-		t.Fatal("pydicom test files not found (install python3-pydicom)")
-	}
-	t.Skip("pydicom test files not found (install python3-pydicom); skipping")
-	return ""
-}
+	"dosecover/dosemap/testkit"
+)
 
 // TestIsDICOMOnOutsideFiles checks detection against the test files of
 // python3-pydicom: Part 10 files with preamble, files written without
 // preamble and meta header, and files of that folder that are not DICOM.
 func TestIsDICOMOnOutsideFiles(t *testing.T) {
-	dir := pydicomTestFiles(t)
+	dir := testkit.PydicomTestFiles(t)
 	for _, c := range []struct {
 		file string
 		want bool

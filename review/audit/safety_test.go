@@ -14,6 +14,7 @@ import (
 	"syscall"
 	"testing"
 
+	"dosecover/dosemap/testkit"
 	"dosecover/review"
 )
 
@@ -202,7 +203,7 @@ func TestDeidentifiedFailureHidesPaths(t *testing.T) {
 // is skipped by the reader and named, every case gets its row, and the
 // run allocates less than half the declared size.
 func TestAuditWithLargeDeclaredFile(t *testing.T) {
-	src := pydicomTestFiles(t)
+	src := testkit.PydicomTestFiles(t)
 	mr, err := os.ReadFile(filepath.Join(src, "MR_small.dcm"))
 	if err != nil {
 		t.Fatal(err)

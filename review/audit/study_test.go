@@ -12,6 +12,7 @@ import (
 	"testing"
 
 	"dosecover/dosemap/dicomwrite"
+	"dosecover/dosemap/testkit"
 
 	"github.com/suyashkumar/dicom/pkg/tag"
 )
@@ -101,19 +102,7 @@ for n, line in enumerate(sys.stdin.read().split("\n")):
 // by pydicom. An audit gives one row per study, and the names are the same
 // on a second run.
 func TestDiscoverStudiesAnyLayout(t *testing.T) {
-	py := ""
-	for _, p := range []string{"python3", "/usr/bin/python3"} {
-		if exec.Command(p, "-c", "import pydicom").Run() == nil {
-			py = p
-			break
-		}
-	}
-	if py == "" {
-		if os.Getenv("CI") == "true" {
-			t.Fatal("python3 with pydicom not found (install python3-pydicom)")
-		}
-		t.Skip("python3 with pydicom not found; skipping")
-	}
+	py := testkit.Python(t)
 	tmp := t.TempDir()
 	in := filepath.Join(tmp, "in")
 	var lines []string

@@ -10,6 +10,7 @@ import (
 
 	"dosecover/dosemap/dicomio"
 	"dosecover/dosemap/sim"
+	"dosecover/dosemap/testkit"
 	"dosecover/review"
 )
 
@@ -68,7 +69,7 @@ func BenchmarkFollowUpdate(b *testing.B) {
 	}
 	n := len(c.Sonications)
 	b.ResetTimer()
-	start, cpu0 := time.Now(), processCPU()
+	start, cpu0 := time.Now(), testkit.CPUTime()
 	for i := 0; i < b.N; i++ {
 		for _, p := range last {
 			if _, err := dicomio.ReadHeader(p); err != nil {
@@ -90,7 +91,7 @@ func BenchmarkFollowUpdate(b *testing.B) {
 		}
 	}
 	per := time.Since(start) / time.Duration(b.N)
-	b.ReportMetric(float64((processCPU()-cpu0).Milliseconds())/float64(b.N), "cpu-ms/update")
+	b.ReportMetric(float64((testkit.CPUTime()-cpu0).Milliseconds())/float64(b.N), "cpu-ms/update")
 	b.ReportMetric(float64(per.Milliseconds()), "ms/update")
 	b.ReportMetric(float64((per + 200*time.Millisecond).Milliseconds()), "ms-after-last-file")
 }

@@ -4,7 +4,6 @@ import (
 	"bytes"
 	"context"
 	"os"
-	"os/exec"
 	"path/filepath"
 	"sort"
 	"strings"
@@ -14,46 +13,17 @@ import (
 
 	"dosecover/dosemap/dicomio"
 	"dosecover/dosemap/sim"
+	"dosecover/dosemap/testkit"
 	"dosecover/review"
 )
 
-// rewrite copies every DICOM file under src into the flat folder dst
-// with pydicom's own writer (Debian's python3-pydicom): an independent
-// encoder of the files the watcher reads.
-const rewrite = `
-import os, sys
-import pydicom
-src, dst = sys.argv[1:3]
-os.makedirs(dst, exist_ok=True)
-n = 0
-for root, _, files in sorted(os.walk(src)):
-    for f in sorted(files):
-        try:
-            ds = pydicom.dcmread(os.path.join(root, f))
-        except Exception:
-            continue
-        n += 1
-        ds.save_as(os.path.join(dst, "im%05d.dcm" % n), write_like_original=True)
-`
-
 // pydicomCase writes the first n sonications of the demo session (our
-// writer, no motion) and rewrites them with pydicom into a folder it
-// returns.
+// writer, no motion) and rewrites them with pydicom's own writer (Debian's
+// python3-pydicom: an independent encoder of the files the watcher reads)
+// into a flat folder it returns.
 func pydicomCase(t *testing.T, n int) string {
 	t.Helper()
-	py := ""
-	for _, p := range []string{"python3", "/usr/bin/python3"} {
-		if exec.Command(p, "-c", "import pydicom").Run() == nil {
-			py = p
-			break
-		}
-	}
-	if py == "" {
-		if os.Getenv("CI") == "true" {
-			t.Fatal("python3 with pydicom not found (install python3-pydicom)")
-		}
-		t.Skip("python3 with pydicom not found; skipping")
-	}
+	py := testkit.Python(t)
 	ours := filepath.Join(t.TempDir(), "ours")
 	s := sim.DemoSession()
 	s.Sonications = s.Sonications[:n]
@@ -62,9 +32,7 @@ func pydicomCase(t *testing.T, n int) string {
 		t.Fatalf("writing the case: %v", err)
 	}
 	dst := filepath.Join(t.TempDir(), "pydicom")
-	if out, err := exec.Command(py, "-c", rewrite, ours, dst).CombinedOutput(); err != nil {
-		t.Fatalf("pydicom: %v\n%s", err, out)
-	}
+	testkit.Rewrite(t, py, ours, dst, "im", nil)
 	return dst
 }
 

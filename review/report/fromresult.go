@@ -122,7 +122,9 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 		}
 	}
 	for _, p := range r.CoverageVsThreshold {
-		in.CoverageVsThreshold = append(in.CoverageVsThreshold, CurvePoint{X: p.Threshold, Y: p.CoveredFraction, Low: math.NaN(), High: math.NaN()})
+		if p.CoveredFraction != nil { // no curve of an unmonitored target
+			in.CoverageVsThreshold = append(in.CoverageVsThreshold, CurvePoint{X: p.Threshold, Y: *p.CoveredFraction, Low: math.NaN(), High: math.NaN()})
+		}
 	}
 
 	quality := map[int]review.SonicationQuality{}
@@ -139,7 +141,7 @@ func FromResult(c *dosemap.Case, r *review.Result, opt Options) (*Input, error) 
 		in.Sonications = append(in.Sonications, SonicationRow{
 			Number: s.Number, Label: label, Frames: len(sq.Frames),
 			PeakC: val(s.PeakTempC), PeakDose: s.PeakDose, LethalML: s.LethalAddedML,
-			AddedCoverage: measurable(s.AddedCoverage, r.CoveredFraction), OutsideML: s.OutsideAddedML,
+			AddedCoverage: val(s.AddedCoverage), OutsideML: s.OutsideAddedML,
 			Flagged: len(sq.FlaggedFrames), Excluded: s.Excluded,
 			DriftFlagged: sq.DriftFlagged(r.Settings.DriftFlagC),
 			CoolingS:     val(s.CoolingS), ResidualC: val(s.ResidualRiseC),
@@ -403,8 +405,13 @@ func fieldAndEcho(c *dosemap.Case, ti review.ThermometryInfo) string {
 // measured on planes of their own, the three panels are acquired slices
 // instead: each the one that measured most of the target, the hole or the
 // cluster (in the grid's orientation when one of those holds it), so that
-// no panel shows a plane whose dose is unknown. Each panel is px pixels wide
-// and PanelAspect as high.
+// no panel shows a plane whose dose is unknown. There the panels without
+// a hole or a cluster show the measured slice that measured most of the
+// target among those not in the plane of a panel before (across those
+// planes when one such holds the target); when no other measured slice
+// holds the target they show the reformat and say in the caption that it
+// is not a measured plane. Each panel is px pixels wide and PanelAspect as
+// high.
 func Panels(c *dosemap.Case, r *review.Result, px int) ([]Panel, error) {
 	if r.Dose == nil || r.TargetMask == nil {
 		return nil, fmt.Errorf("report: the analysis carries no dose or target grid to draw")
@@ -479,7 +486,7 @@ func Panels(c *dosemap.Case, r *review.Result, px int) ([]Panel, error) {
 			// The page is still made; the panel says why it is empty.
 			return Panel{Title: title, Caption: "not drawn: " + err.Error()}
 		}
-		return Panel{Title: title, Caption: planeCaption(s.Plane, q) + what, Image: image.Image(img)}
+		return Panel{Title: title, Caption: planeCaption(s.Plane, q) + what, Image: image.Image(img), plane: s.Plane}
 	}
 	// On a session measured on planes of its own, each panel is drawn on
 	// the acquired slice that measured most of what it shows (the target,
@@ -489,11 +496,11 @@ func Panels(c *dosemap.Case, r *review.Result, px int) ([]Panel, error) {
 	// slices parallel to the grid's own first (the panels keep the usual
 	// orientation when a measured plane of it holds the region), else any,
 	// leaving out the plane of skip while another plane holds the region.
-	choose := func(q dosemap.Vec3, region *dosemap.Volume, weight func(float32) float64, skip *measuredSlice) *measuredSlice {
+	choose := func(q dosemap.Vec3, region *dosemap.Volume, weight func(float32) float64, skip []measuredSlice) *measuredSlice {
 		if own == nil || region == nil {
 			return nil
 		}
-		for _, sk := range []*measuredSlice{skip, nil} {
+		for _, sk := range [][]measuredSlice{skip, nil} {
 			for _, cand := range [][]measuredSlice{parallelTo(own, grid.Normal), own} {
 				if ms, ok := bestMeasuredSlice(cand, region, weight, q, sk); ok && ms.Voxels > 0 {
 					return &ms
@@ -507,7 +514,11 @@ func Panels(c *dosemap.Case, r *review.Result, px int) ([]Panel, error) {
 	}
 	panel := func(title string, o view.Orientation, q, centre dosemap.Vec3, ext float64, what string, ms *measuredSlice) (Panel, error) {
 		if ms != nil {
-			if pl, err := view.SlicePlane(ms.Stack, ms.K, grid, pixelMM); err == nil {
+			pl, err := view.SlicePlane(ms.Stack, ms.K, grid, pixelMM)
+			if err != nil {
+				// Said, not drawn as if it were measured.
+				what += "; reformat, not the measured plane (" + err.Error() + ")"
+			} else {
 				qq := q.Sub(pl.Normal().Scale(pl.Distance(q)))
 				by := fmt.Sprintf("sonication %d", ms.Sonication)
 				if sh := sharing(own, *ms); len(sh) > 1 {
@@ -528,23 +539,59 @@ func Panels(c *dosemap.Case, r *review.Result, px int) ([]Panel, error) {
 	if len(r.Holes) > 0 {
 		holeMS = choose(dosemap.Vec3(r.Holes[0].CentroidMM), r.HoleLabels, labelWeight(1), nil)
 	}
-	var skip *measuredSlice
+	// shown: the measured planes of the panels drawn so far, through
+	// their region.
+	var shown []measuredSlice
 	if holeMS != nil && holeMS.Voxels > 0 {
-		skip = holeMS
+		shown = append(shown, *holeMS)
 	}
 	var out []Panel
-	p, err := panel("Largest target cross-section", view.Acquisition, sec, cen, extent, "", choose(sec, r.TargetMask, fractionWeight, skip))
+	targetMS := choose(sec, r.TargetMask, fractionWeight, shown)
+	p, err := panel("Largest target cross-section", view.Acquisition, sec, cen, extent, "", targetMS)
 	if err != nil {
 		return nil, err
 	}
 	out = append(out, p)
+	if targetMS != nil && targetMS.Voxels > 0 {
+		shown = append(shown, *targetMS)
+	}
+	// fallback draws a panel with no hole or cluster to show: the
+	// reformat o through the target centre on one shared slab; on planes
+	// of their own the measured slice that measured most of the target
+	// among those not in a plane shown before, across the planes shown
+	// when one such holds the target, or else the reformat (o, or another
+	// orientation when o's would repeat a plane shown), saying that its
+	// dose is known only where measured planes cross it.
+	fallback := func(title string, o view.Orientation) (Panel, error) {
+		if own == nil {
+			return panel(title, o, cen, cen, extent, "; through the target centre", nil)
+		}
+		for _, cand := range [][]measuredSlice{notParallelTo(own, shown), own} {
+			if ms, ok := bestMeasuredSlice(cand, r.TargetMask, fractionWeight, cen, shown); ok && ms.Voxels > 0 {
+				shown = append(shown, ms)
+				return panel(title, o, cen, cen, extent, "; through the target", &ms)
+			}
+		}
+		for _, oo := range []view.Orientation{o, view.RowNormal, view.ColNormal, view.Acquisition} {
+			if !inShown(shown, view.PlaneThrough(grid, oo, cen, pixelMM)) {
+				o = oo
+				break
+			}
+		}
+		return panel(title, o, cen, cen, extent, "; through the target centre; reformat, not a measured plane: "+
+			"no other measured plane holds the target, so dose is known only where measured planes cross it", nil)
+	}
 	if len(r.Holes) > 0 {
 		h := r.Holes[0]
 		hc := dosemap.Vec3(h.CentroidMM)
 		p, err = panel("Largest hole", view.Acquisition, hc, cen, extent,
 			fmt.Sprintf("; hole %.3f mL, %.1f mm deep", h.VolumeMM3/1000, h.DepthMM), holeMS)
 	} else {
-		p, err = panel("No hole: across the slices", view.RowNormal, cen, cen, extent, "; through the target centre", nil)
+		title := "No hole: across the slices"
+		if own != nil {
+			title = "No hole: another plane through the target"
+		}
+		p, err = fallback(title, view.RowNormal)
 	}
 	if err != nil {
 		return nil, err
@@ -558,7 +605,7 @@ func Panels(c *dosemap.Case, r *review.Result, px int) ([]Panel, error) {
 		p, err = panel("Largest lethal cluster outside margin", view.Acquisition, cc, mid, ext,
 			fmt.Sprintf("; %.3f mL, up to %.1f mm beyond target", cl.VolumeMM3/1000, cl.MaxDistanceMM), choose(cc, r.SpillLabels, labelWeight(1), nil))
 	} else {
-		p, err = panel("No lethal dose outside margin", view.ColNormal, cen, cen, extent, "; through the target centre", nil)
+		p, err = fallback("No lethal dose outside margin", view.ColNormal)
 	}
 	if err != nil {
 		return nil, err
@@ -628,14 +675,4 @@ func planeCaption(p view.Plane, q dosemap.Vec3) string {
 		}
 	}
 	return fmt.Sprintf("oblique through (%.1f, %.1f, %.1f) mm", q[0], q[1], q[2])
-}
-
-// measurable returns f, a part of the monitored target, or NaN ("n/a")
-// when the coverage is not measurable (covered nil: nothing of the target
-// is monitored): a part of nothing is not 0 %.
-func measurable(f float64, covered *float64) float64 {
-	if covered != nil {
-		return f
-	}
-	return math.NaN()
 }

@@ -5,6 +5,8 @@ import (
 	"image"
 	"math"
 	"time"
+
+	"dosecover/review/view"
 )
 
 // Input is everything the one-page report shows, as plain values. Fill it
@@ -108,6 +110,8 @@ type Panel struct {
 	Title   string      // heading above the image
 	Caption string      // line below the image (plane position, what it shows)
 	Image   image.Image // rendered plane with overlays, scale bar and orientation letters; nil: "no image"
+
+	plane view.Plane // the plane drawn (zero when not drawn); Panels sets it
 }
 
 // Wash is the logarithmic dose colour scale of the image panels (see

@@ -46,8 +46,8 @@ func ownPlanes(c *dosemap.Case, r *review.Result) []measuredSlice {
 // slice nearest the centroid among those whose field of view holds the
 // centroid's projection, with Voxels 0; ok is false when there is none.
 //
-// Slices in the plane of skip (when not nil) are left out.
-func bestMeasuredSlice(stacks []measuredSlice, vol *dosemap.Volume, weight func(float32) float64, centroid dosemap.Vec3, skip *measuredSlice) (best measuredSlice, ok bool) {
+// Slices in the plane of any slice of skip are left out.
+func bestMeasuredSlice(stacks []measuredSlice, vol *dosemap.Volume, weight func(float32) float64, centroid dosemap.Vec3, skip []measuredSlice) (best measuredSlice, ok bool) {
 	if vol == nil {
 		return best, false
 	}
@@ -78,7 +78,7 @@ func bestMeasuredSlice(stacks []measuredSlice, vol *dosemap.Volume, weight func(
 	for s, st := range stacks {
 		g := st.Stack
 		for k := 0; k < g.Slices; k++ {
-			if skip != nil && coplanar(*skip, g, k) {
+			if inPlaneOf(skip, g, k) {
 				continue
 			}
 			c := count[key{s, k}]
@@ -124,6 +124,46 @@ func parallelTo(stacks []measuredSlice, n dosemap.Vec3) []measuredSlice {
 		}
 	}
 	return out
+}
+
+// notParallelTo returns the slices of stacks whose slices are parallel to
+// none of the slices of shown (within about 2.6°, as parallelTo): planes
+// across those already shown.
+func notParallelTo(stacks, shown []measuredSlice) []measuredSlice {
+	var out []measuredSlice
+next:
+	for _, st := range stacks {
+		for _, sh := range shown {
+			if math.Abs(st.Stack.Normal.Unit().Dot(sh.Stack.Normal.Unit())) >= 0.999 {
+				continue next
+			}
+		}
+		out = append(out, st)
+	}
+	return out
+}
+
+// inPlaneOf reports whether slice k of g lies in the plane of any slice
+// of skip (coplanar).
+func inPlaneOf(skip []measuredSlice, g dosemap.Geometry, k int) bool {
+	for _, ms := range skip {
+		if coplanar(ms, g, k) {
+			return true
+		}
+	}
+	return false
+}
+
+// inShown reports whether plane pl lies in the plane of a slice of shown:
+// the same normal (within about 0.08°) and within 0.1 mm, as coplanar.
+func inShown(shown []measuredSlice, pl view.Plane) bool {
+	n := pl.Normal()
+	for _, ms := range shown {
+		if math.Abs(ms.Stack.Normal.Unit().Dot(n)) >= 1-1e-6 && math.Abs(pl.Distance(ms.Stack.Point(0, 0, float64(ms.K)))) <= 0.1 {
+			return true
+		}
+	}
+	return false
 }
 
 // coplanar reports whether slice k of g lies in the plane of slice ms:

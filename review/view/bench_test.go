@@ -8,6 +8,7 @@ import (
 	"time"
 
 	"dosecover/dosemap"
+	"dosecover/dosemap/testkit"
 )
 
 // benchScene returns a scene whose acquisition plane has n×n pixels of
@@ -71,7 +72,7 @@ var benchSizes = []int{256, 512, 1024}
 // cpu-ms/op: on a machine shared with other work it tracks the cost of the
 // code better than wall time does.
 func reportCPU(b *testing.B, c0 time.Duration) {
-	if c := cpuTime(); c > 0 && b.N > 0 {
+	if c := testkit.CPUTime(); c > 0 && b.N > 0 {
 		b.ReportMetric(float64(c-c0)/float64(b.N)/1e6, "cpu-ms/op")
 	}
 }
@@ -87,7 +88,7 @@ func BenchmarkRenderNewPlane(b *testing.B) {
 		b.Run(fmt.Sprint(n), func(b *testing.B) {
 			r := NewRenderer()
 			var dst *image.RGBA
-			c0 := cpuTime()
+			c0 := testkit.CPUTime()
 			for b.Loop() {
 				r.Invalidate()
 				dst, _ = r.Render(s, v, dst)
@@ -107,7 +108,7 @@ func BenchmarkRenderPan(b *testing.B) {
 			r := NewRenderer()
 			dst, _ := r.Render(s, v, nil)
 			k := 0
-			c0 := cpuTime()
+			c0 := testkit.CPUTime()
 			for b.Loop() {
 				k++
 				w := v.ZoomAt(s.Plane, float64(n)/2, float64(n)/2, 1+0.1*float64(k%5)).Pan(s.Plane, float64(k%7), 0)
@@ -130,14 +131,14 @@ func BenchmarkSample(b *testing.B) {
 		obl.Width, obl.Height = n, n
 		odst := make([]float32, obl.Len())
 		b.Run(fmt.Sprintf("acquisition/%d", n), func(b *testing.B) {
-			c0 := cpuTime()
+			c0 := testkit.CPUTime()
 			for b.Loop() {
 				SampleInto(dst, s.Anatomy, s.Plane)
 			}
 			reportCPU(b, c0)
 		})
 		b.Run(fmt.Sprintf("oblique/%d", n), func(b *testing.B) {
-			c0 := cpuTime()
+			c0 := testkit.CPUTime()
 			for b.Loop() {
 				SampleInto(odst, s.Dose, obl)
 			}
@@ -153,7 +154,7 @@ func BenchmarkMarchingSquares(b *testing.B) {
 		s := benchScene(n)
 		vals := Sample(s.Dose, s.Plane)
 		b.Run(fmt.Sprint(n), func(b *testing.B) {
-			c0 := cpuTime()
+			c0 := testkit.CPUTime()
 			for b.Loop() {
 				MarchingSquares(vals, n, n, 240)
 			}

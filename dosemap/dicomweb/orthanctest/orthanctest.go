@@ -186,27 +186,6 @@ func (s *Server) Count(t testing.TB) int {
 
 func stringsReader(s string) *strings.Reader { return strings.NewReader(s) }
 
-// Python finds a Python 3 that imports pydicom (Debian python3-pydicom);
-// missing, it skips the test, or fails it under CI=true.
-func Python(t testing.TB) string {
-	t.Helper()
-	for _, py := range []string{"/usr/bin/python3", "python3"} {
-		p, err := exec.LookPath(py)
-		if err != nil {
-			continue
-		}
-		if exec.Command(p, "-c", "import pydicom").Run() == nil {
-			return p
-		}
-	}
-	msg := "no python3 with pydicom (Debian python3-pydicom)"
-	if os.Getenv("CI") == "true" {
-		t.Fatal(msg)
-	}
-	t.Skip(msg)
-	return ""
-}
-
 // resave is run by pydicom: it reads every .dcm file under argv[1] and
 // writes it again under argv[2] (same relative path), so the case the
 // archive receives was written by an outside DICOM implementation.

@@ -1,14 +1,16 @@
 //go:build unix
 
-package audit
+package testkit
 
 import (
 	"syscall"
 	"time"
 )
 
-// cpuTime returns the user plus system CPU time of this process so far.
-func cpuTime() (time.Duration, bool) {
+// ProcessCPU returns the CPU time (user and system, all threads) the
+// process has used so far (getrusage RUSAGE_SELF), and whether it could be
+// measured.
+func ProcessCPU() (time.Duration, bool) {
 	var ru syscall.Rusage
 	if err := syscall.Getrusage(syscall.RUSAGE_SELF, &ru); err != nil {
 		return 0, false
