@@ -542,17 +542,25 @@ func estimateStack(tl *CoolingTail, earlier [][]*coolingFit, broken bool, opt Re
 		}
 		sc.addStacksTo(earlier[k], g, tl, rise, corr)
 	}
+	// Each tail frame on its own goroutine (the frames are independent);
+	// corr[f] is not needed after its frame and holds the corrected rise.
 	tail := make([][]float32, len(tl.Rise))
+	var wg sync.WaitGroup
 	for f, r := range tl.Rise {
-		tail[f] = make([]float32, nv)
-		for v, x := range r {
-			if c := corr[f][v]; c == c {
-				x -= c // the earlier heat's cooling since the baseline, added back
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			c := corr[f][:len(r)]
+			for v, x := range r {
+				if d := c[v]; d == d {
+					x -= d // the earlier heat's cooling since the baseline, added back
+				}
+				c[v] = x
 			}
-			tail[f][v] = x
-		}
-		tail[f] = smoothInPlane(g, tail[f], tl.Mask)
+			tail[f] = smoothInPlane(g, c, tl.Mask)
+		}()
 	}
+	wg.Wait()
 	return &Volume{Geometry: g, Data: rise}, fitCooling(g, tl.Times, tail, tl.Mask, opt)
 }
 
