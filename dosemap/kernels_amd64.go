@@ -38,3 +38,9 @@ func cemRatesAVX2(t *float32, f *float64, n int, brk, la, lb float64) (fine int)
 //
 //go:noescape
 func trapezoidAVX2(f, acc, prev *float64, got *bool, miss *uint32, n int, h float64)
+
+// maxIntoAVX2 is maxInto for n values (n a multiple of 16), eight at a
+// time.
+//
+//go:noescape
+func maxIntoAVX2(dst, src *float32, n int)

@@ -165,3 +165,32 @@ tloop:
 tdone:
 	VZEROUPPER
 	RET
+
+// func maxIntoAVX2(dst, src *float32, n int)
+//
+// VMAXPS returns its second source (here dst's value) when either value is
+// a NaN or both are zeros (Intel SDM, MAXPS: "dest = src1 > src2 ? src1 :
+// src2"), so each lane is dst = src > dst ? src : dst, maxInto's scalar
+// loop to the bit.
+TEXT ·maxIntoAVX2(SB), NOSPLIT, $0-24
+	MOVQ dst+0(FP), DI
+	MOVQ src+8(FP), SI
+	MOVQ n+16(FP), CX
+	TESTQ CX, CX
+	JLE mdone
+
+mloop:
+	VMOVUPS (SI), Y0
+	VMOVUPS 32(SI), Y1
+	VMAXPS (DI), Y0, Y0         // src > dst ? src : dst
+	VMAXPS 32(DI), Y1, Y1
+	VMOVUPS Y0, (DI)
+	VMOVUPS Y1, 32(DI)
+	ADDQ $64, SI
+	ADDQ $64, DI
+	SUBQ $16, CX
+	JGT mloop
+
+mdone:
+	VZEROUPPER
+	RET

@@ -15,3 +15,7 @@ func cemRatesAVX2(t *float32, f *float64, n int, brk, la, lb float64) int {
 func trapezoidAVX2(f, acc, prev *float64, got *bool, miss *uint32, n int, h float64) {
 	panic("dosemap: no vector kernel")
 }
+
+func maxIntoAVX2(dst, src *float32, n int) {
+	panic("dosemap: no vector kernel")
+}

@@ -192,6 +192,33 @@ type coolingFit struct {
 	qs   []float64 // q of each decay shape (0: the centre of a spot)
 	w    float64
 	p    float64 // exponent of the conduction term
+	// unknown holds the runs [start, end) of voxels whose a is NaN, heated
+	// the voxels whose a is finite and not 0, in index order (see
+	// indexVoxels): addTo on f's own grid visits only these.
+	unknown [][2]int32
+	heated  []int32
+	indexed bool
+}
+
+// indexVoxels fills f.unknown and f.heated from f.amp.
+func (f *coolingFit) indexVoxels() {
+	f.unknown, f.heated = nil, nil
+	for v := 0; v < len(f.amp); {
+		a := f.amp[v]
+		if a == a {
+			if a != 0 {
+				f.heated = append(f.heated, int32(v))
+			}
+			v++
+			continue
+		}
+		start := v
+		for v < len(f.amp) && f.amp[v] != f.amp[v] {
+			v++
+		}
+		f.unknown = append(f.unknown, [2]int32{int32(start), int32(v)})
+	}
+	f.indexed = true
 }
 
 // table returns the decay factor e^{−w s}(1+s/τ)^{−3/2} for every τ of f at
@@ -244,6 +271,27 @@ func (f *coolingFit) addTo(g Geometry, tl *CoolingTail, rise []float32, corr [][
 		tf[fr] = f.table(t)
 	}
 	if f.g.SameGrid(g, 0.01) {
+		if acc == nil && f.indexed {
+			// Each voxel is changed by itself, once: visiting the unknown
+			// runs and then the heated voxels gives what the loop over
+			// every voxel below gives (voxels with a = 0 are left as
+			// they are; only is not consulted there either).
+			for _, r := range f.unknown {
+				for v := r[0]; v < r[1]; v++ {
+					rise[v] = nan
+				}
+			}
+			for _, v := range f.heated {
+				a := f.amp[v]
+				ti := f.tau[v]
+				b := a * tb[ti]
+				rise[v] += b
+				for fr := range tf {
+					corr[fr][v] += a*tf[fr][ti] - b
+				}
+			}
+			return
+		}
 		for v, a := range f.amp {
 			if acc != nil {
 				if a != a || (only != nil && !only[v]) {
@@ -494,17 +542,25 @@ func estimateStack(tl *CoolingTail, earlier [][]*coolingFit, broken bool, opt Re
 		}
 		sc.addStacksTo(earlier[k], g, tl, rise, corr)
 	}
+	// Each tail frame on its own goroutine (the frames are independent);
+	// corr[f] is not needed after its frame and holds the corrected rise.
 	tail := make([][]float32, len(tl.Rise))
+	var wg sync.WaitGroup
 	for f, r := range tl.Rise {
-		tail[f] = make([]float32, nv)
-		for v, x := range r {
-			if c := corr[f][v]; c == c {
-				x -= c // the earlier heat's cooling since the baseline, added back
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			c := corr[f][:len(r)]
+			for v, x := range r {
+				if d := c[v]; d == d {
+					x -= d // the earlier heat's cooling since the baseline, added back
+				}
+				c[v] = x
 			}
-			tail[f][v] = x
-		}
-		tail[f] = smoothInPlane(g, tail[f], tl.Mask)
+			tail[f] = smoothInPlane(g, c, tl.Mask)
+		}()
 	}
+	wg.Wait()
 	return &Volume{Geometry: g, Data: rise}, fitCooling(g, tl.Times, tail, tl.Mask, opt)
 }
 
@@ -658,15 +714,28 @@ func checkTail(t *CoolingTail) error {
 
 // smoothInPlane returns the mean of the finite values among each voxel's
 // 3×3 in-plane neighbours; NaN where the voxel itself is NaN or outside
-// mask (nil: everywhere).
+// mask (nil: everywhere). The neighbours are summed row by row, column by
+// column within a row (float32), at the grid's edges over those inside.
 func smoothInPlane(g Geometry, x []float32, mask []bool) []float32 {
 	out := make([]float32, len(x))
+	nan := float32(math.NaN())
+	cols, rows := g.Cols, g.Rows
 	for k := 0; k < g.Slices; k++ {
-		for j := 0; j < g.Rows; j++ {
-			for i := 0; i < g.Cols; i++ {
-				n := g.Index(i, j, k)
+		for j := 0; j < rows; j++ {
+			row := (k*rows + j) * cols
+			// Rows j−1 and j+1 of the slice (row j itself at the edges).
+			up, down := row, row
+			if j > 0 {
+				up = row - cols
+			}
+			if j < rows-1 {
+				down = row + cols
+			}
+			interior := j > 0 && j < rows-1
+			for i := 0; i < cols; i++ {
+				n := row + i
 				if mask != nil && !mask[n] {
-					out[n] = float32(math.NaN())
+					out[n] = nan
 					continue
 				}
 				if x[n] != x[n] {
@@ -675,8 +744,19 @@ func smoothInPlane(g Geometry, x []float32, mask []bool) []float32 {
 				}
 				var s float32
 				var c int
-				for dj := max(j-1, 0); dj <= min(j+1, g.Rows-1); dj++ {
-					for di := max(i-1, 0); di <= min(i+1, g.Cols-1); di++ {
+				if interior && i > 0 && i < cols-1 {
+					// The nine neighbours in the order of the loops below.
+					for _, y := range [9]float32{x[up+i-1], x[up+i], x[up+i+1], x[n-1], x[n], x[n+1], x[down+i-1], x[down+i], x[down+i+1]} {
+						if y == y {
+							s += y
+							c++
+						}
+					}
+					out[n] = s / float32(c)
+					continue
+				}
+				for dj := max(j-1, 0); dj <= min(j+1, rows-1); dj++ {
+					for di := max(i-1, 0); di <= min(i+1, cols-1); di++ {
 						if y := x[g.Index(di, dj, k)]; y == y {
 							s += y
 							c++
@@ -792,13 +872,35 @@ func fitCooling(g Geometry, times []float64, tail [][]float32, mask []bool, opt 
 						y[fr] = float64(tail[fr][v])
 					}
 					bestS, bestT := 0.0, top
-					for m, n := range shapes {
+					// Four shapes at a time: four independent sums, each
+					// in frame order as one at a time would be (the same
+					// bits), compared in the order of shapes.
+					m := 0
+					for ; m+4 <= len(shapes); m += 4 {
+						h0 := hs[m*nt : (m+1)*nt][:len(y)]
+						h1 := hs[(m+1)*nt : (m+2)*nt][:len(y)]
+						h2 := hs[(m+2)*nt : (m+3)*nt][:len(y)]
+						h3 := hs[(m+3)*nt : (m+4)*nt][:len(y)]
+						var s0, s1, s2, s3 float64
+						for fr, yv := range y {
+							s0 += yv * h0[fr]
+							s1 += yv * h1[fr]
+							s2 += yv * h2[fr]
+							s3 += yv * h3[fr]
+						}
+						for q, yh := range [4]float64{s0, s1, s2, s3} {
+							if sc := yh * yh * ihh[m+q]; yh > 0 && sc > bestS*(1+1e-12) {
+								bestS, bestT = sc, shapes[m+q]
+							}
+						}
+					}
+					for ; m < len(shapes); m++ {
 						var yh float64
 						for fr, x := range hs[m*nt : (m+1)*nt] {
 							yh += y[fr] * x
 						}
 						if sc := yh * yh * ihh[m]; yh > 0 && sc > bestS*(1+1e-12) {
-							bestS, bestT = sc, n
+							bestS, bestT = sc, shapes[m]
 						}
 					}
 					var yh float64
@@ -831,6 +933,7 @@ func fitCooling(g Geometry, times []float64, tail [][]float32, mask []bool, opt 
 		}()
 	}
 	wg.Wait()
+	f.indexVoxels()
 	return f
 }
 

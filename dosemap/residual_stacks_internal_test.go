@@ -96,3 +96,126 @@ func TestResidualStacksMaskedVisit(t *testing.T) {
 		t.Fatal("no positive estimate anywhere: the comparison checks nothing")
 	}
 }
+
+// TestSmoothInPlaneDefinition checks smoothInPlane against its definition
+// written out plainly (the mean of the finite values among the 3×3
+// in-plane neighbours inside the grid, summed in row-major order; NaN
+// where the voxel is NaN or outside the mask), bit for bit, on seeded
+// random grids with NaNs, with and without a mask, including grids one
+// row or one column wide.
+func TestSmoothInPlaneDefinition(t *testing.T) {
+	def := func(g Geometry, x []float32, mask []bool) []float32 {
+		out := make([]float32, len(x))
+		for k := 0; k < g.Slices; k++ {
+			for j := 0; j < g.Rows; j++ {
+				for i := 0; i < g.Cols; i++ {
+					n := g.Index(i, j, k)
+					if mask != nil && !mask[n] || x[n] != x[n] {
+						out[n] = float32(math.NaN())
+						continue
+					}
+					var s float32
+					c := 0
+					for dj := j - 1; dj <= j+1; dj++ {
+						for di := i - 1; di <= i+1; di++ {
+							if di < 0 || dj < 0 || di >= g.Cols || dj >= g.Rows {
+								continue
+							}
+							if y := x[g.Index(di, dj, k)]; !math.IsNaN(float64(y)) {
+								s += y
+								c++
+							}
+						}
+					}
+					out[n] = s / float32(c)
+				}
+			}
+		}
+		return out
+	}
+	rng := rand.New(rand.NewPCG(31, 32))
+	for _, dims := range [][3]int{{1, 1, 1}, {1, 7, 2}, {7, 1, 2}, {2, 2, 1}, {9, 6, 3}, {32, 17, 2}} {
+		g := Geometry{Cols: dims[0], Rows: dims[1], Slices: dims[2], Spacing: Vec3{1, 1, 2}, Row: Vec3{1, 0, 0}, Col: Vec3{0, 1, 0}}
+		x := make([]float32, g.Len())
+		mask := make([]bool, g.Len())
+		for n := range x {
+			x[n] = float32(rng.NormFloat64() * 5)
+			if rng.IntN(6) == 0 {
+				x[n] = float32(math.NaN())
+			}
+			mask[n] = rng.IntN(4) != 0
+		}
+		for _, m := range [][]bool{nil, mask} {
+			got, want := smoothInPlane(g, x, m), def(g, x, m)
+			for n := range want {
+				if math.Float32bits(got[n]) != math.Float32bits(want[n]) && !(got[n] != got[n] && want[n] != want[n]) {
+					t.Fatalf("grid %v, mask %v, voxel %d: %v, want %v", dims, m != nil, n, got[n], want[n])
+				}
+			}
+		}
+	}
+}
+
+// TestAddToIndexedVisit checks that addTo on the fit's own grid, visiting
+// only the fit's unknown runs and heated voxels (coolingFit.indexVoxels),
+// leaves rise and corr bit for bit as the loop over every voxel does, on
+// a noisy cooling spot with a box mask, voxels with too few valid frames
+// and buffers already holding values (the heat of earlier fits).
+func TestAddToIndexedVisit(t *testing.T) {
+	rng := rand.New(rand.NewPCG(41, 42))
+	g := Geometry{Cols: 24, Rows: 20, Slices: 3, Spacing: Vec3{1.5, 1.5, 3}, Row: Vec3{1, 0, 0}, Col: Vec3{0, 1, 0}}
+	nv := g.Len()
+	times := []float64{40, 43, 46}
+	tail := make([][]float32, len(times))
+	mask := make([]bool, nv)
+	for f := range tail {
+		tail[f] = make([]float32, nv)
+	}
+	for n := range nv {
+		i, j, k := g.IJK(n)
+		mask[n] = i >= 3 && i < 20 && j >= 2 && j < 17
+		r2 := float64((i-11)*(i-11) + (j-9)*(j-9) + 4*(k-1)*(k-1))
+		for f, tm := range times {
+			tail[f][n] = float32(12*math.Exp(-r2/18)*math.Pow(1+(tm-40)/60, -1.5) + rng.NormFloat64()*0.3)
+			if rng.IntN(12) == 0 {
+				tail[f][n] = float32(math.NaN())
+			}
+		}
+	}
+	fit := fitCooling(g, times, tail, mask, DefaultResidualOptions().withDefaults())
+	if !fit.indexed || len(fit.heated) == 0 || len(fit.unknown) == 0 {
+		t.Fatalf("fit indexed %v with %d heated voxels and %d unknown runs: the case does not exercise the visit", fit.indexed, len(fit.heated), len(fit.unknown))
+	}
+	tl := &CoolingTail{Geometry: g, Baseline: []float64{90, 93}, Times: []float64{130, 133, 136}}
+	fill := func() ([]float32, [][]float32) {
+		r := rand.New(rand.NewPCG(43, 44))
+		rise := make([]float32, nv)
+		corr := make([][]float32, len(tl.Times))
+		for n := range rise {
+			rise[n] = float32(r.Float64())
+		}
+		for f := range corr {
+			corr[f] = make([]float32, nv)
+			for n := range corr[f] {
+				corr[f][n] = float32(r.Float64())
+			}
+		}
+		return rise, corr
+	}
+	riseI, corrI := fill()
+	fit.addTo(g, tl, riseI, corrI, mask, nil, nil)
+	fit.indexed = false
+	riseA, corrA := fill()
+	fit.addTo(g, tl, riseA, corrA, mask, nil, nil)
+	same := func(a, b float32) bool { return math.Float32bits(a) == math.Float32bits(b) || a != a && b != b }
+	for n := range riseA {
+		if !same(riseI[n], riseA[n]) {
+			t.Fatalf("voxel %d: rise %v visiting the index, %v visiting every voxel", n, riseI[n], riseA[n])
+		}
+		for f := range corrA {
+			if !same(corrI[f][n], corrA[f][n]) {
+				t.Fatalf("voxel %d frame %d: change %v visiting the index, %v visiting every voxel", n, f, corrI[f][n], corrA[f][n])
+			}
+		}
+	}
+}

@@ -196,6 +196,46 @@ func (ts *TemperatureSeries) Release() {
 	ts.slab, ts.Frames = nil, nil
 }
 
+// Peak returns the highest valid temperature of every voxel over the
+// frames of ts (°C, NaN where no frame is valid), on ts's grid.
+func (ts *TemperatureSeries) Peak() *Volume {
+	v := NewVolume(ts.Geometry)
+	pk := v.Data
+	ninf := float32(math.Inf(-1))
+	for i := range pk {
+		pk[i] = ninf
+	}
+	for _, fr := range ts.Frames {
+		maxInto(pk, fr[:len(pk)])
+	}
+	nan := float32(math.NaN())
+	for i, x := range pk {
+		if x == ninf {
+			pk[i] = nan
+		}
+	}
+	return v
+}
+
+// maxInto sets dst[i] to src[i] where src[i] > dst[i] (len(src) ≥
+// len(dst)): a NaN in src leaves dst as it is, and so does a zero of the
+// other sign. The vector kernel, where there is one, does the same to the
+// bit.
+func maxInto(dst, src []float32) {
+	src = src[:len(dst)]
+	n := 0
+	if vectorKernels && len(dst) >= 16 {
+		n = len(dst) &^ 15
+		maxIntoAVX2(&dst[0], &src[0], n)
+	}
+	for i := n; i < len(dst); i++ {
+		// x > d is false for a NaN x.
+		if x := src[i]; x > dst[i] {
+			dst[i] = x
+		}
+	}
+}
+
 // Thermometry converts the phase (and magnitude) frames of s into
 // temperature by the PRF shift (see PRF):
 //

@@ -254,6 +254,24 @@ func logDose(d float32) float32 {
 	return float32(math.Log(float64(d)))
 }
 
+// markLinearTaps sets mark at the coarse voxels logAtLinear reads for fine
+// voxel n and returns mark.
+func (fg *fineGrid) markLinearTaps(n int, mark []bool) []bool {
+	fi, fj, f := fg.fine.IJK(n)
+	st := &fg.slices[f]
+	c := fg.coarseIndex(fi, fj)
+	if !st.valid || c < 0 {
+		return mark
+	}
+	cs := fg.coarse.SliceLen()
+	for a := 0; a < 4; a++ {
+		if st.w[a] != 0 {
+			mark[st.k[a]*cs+c] = true
+		}
+	}
+	return mark
+}
+
 // logAtLinear is logAt for a coarse linear-domain dose field v without NaN
 // (the logarithms of the four taps are taken here, for fields of which few
 // voxels are needed).

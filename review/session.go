@@ -183,12 +183,11 @@ type Session struct {
 // doseCache holds what depends only on the set of included sonications.
 type doseCache struct {
 	key      string
-	included []int       // indexes into sons, delivery order
-	cum      []float32   // cumulative measured dose (NaN where none measured), thermometry grid
-	full     []bool      // every included sonication measured the voxel
-	prefix   [][]float32 // cumulative after each included sonication (unmeasured counted 0)
-	logFine  []float32   // analysis grid log-dose
-	monFine  []bool      // analysis grid monitored (the monitoring rule)
+	included []int     // indexes into sons, delivery order
+	cum      []float32 // cumulative measured dose (NaN where none measured), thermometry grid
+	full     []bool    // every included sonication measured the voxel
+	logFine  []float32 // analysis grid log-dose
+	monFine  []bool    // analysis grid monitored (the monitoring rule)
 	// The monitoring rule's masks for the negligible dose of monKey.
 	monKey      string
 	monInfo     *Monitoring
@@ -577,7 +576,6 @@ func (s *Session) doseSum(ctx context.Context, set Settings, measured bool) (*do
 				cnt[v]++
 			}
 		}
-		dc.prefix = append(dc.prefix, slices.Clone(run))
 	}
 	lc := make([]float32, cl)
 	for v := range run {
@@ -1103,17 +1101,55 @@ func (s *Session) perSonication(r *Result, set Settings, dc *doseCache, lethal, 
 	added := make([]float64, ni)
 	leth := make([]float64, ni)
 	out := make([]float64, ni)
+	// first[p]: the first included sonication after which the cumulative
+	// dose of lethal voxel pending[p], interpolated as logAtLinear does,
+	// reaches the threshold (the last sonication when none does: the
+	// lethal mask may come from another interpolation). run is the
+	// cumulative dose after sonication a (unmeasured counted 0), summed
+	// in delivery order as dc.cum is.
+	var pending []int32
 	for v, l := range lethal {
-		if !l {
-			continue
+		if l {
+			pending = append(pending, int32(v))
 		}
-		m := ni - 1
-		for a := 0; a < ni; a++ {
-			if s.fg.logAtLinear(dc.prefix[a], v) >= lt {
-				m = a
-				break
+	}
+	first := make([]int, len(pending))
+	left := make([]int32, len(pending)) // positions in pending not yet reached
+	for p := range left {
+		left[p] = int32(p)
+		first[p] = ni - 1
+	}
+	// Only the coarse voxels the lethal voxels' taps read are summed.
+	run := make([]float32, s.fg.coarse.Len())
+	mark := make([]bool, len(run))
+	for _, v := range pending {
+		s.fg.markLinearTaps(int(v), mark)
+	}
+	var taps []int32
+	for v, m := range mark {
+		if m {
+			taps = append(taps, int32(v))
+		}
+	}
+	for a := 0; a < ni && len(left) > 0; a++ {
+		d, _ := dc.doseOf(s.sons[dc.included[a]])
+		for _, v := range taps {
+			if x := d[v]; x == x {
+				run[v] += x
 			}
 		}
+		still := left[:0]
+		for _, p := range left {
+			if s.fg.logAtLinear(run, int(pending[p])) >= lt {
+				first[p] = a
+			} else {
+				still = append(still, p)
+			}
+		}
+		left = still
+	}
+	for p, v32 := range pending {
+		v, m := int(v32), first[p]
 		leth[m] += vv
 		if outside[v] {
 			out[m] += vv

@@ -83,7 +83,7 @@ func prepareSonication(ctx context.Context, so *dosemap.Sonication, s Settings, 
 			hottest[f] = q.Hottest
 		}
 		sd.temp = temperatureStats(ts.Geometry, ts.Times, ts.Frames, hottest)
-		sd.peakTemp = peakOverFrames(ts)
+		sd.peakTemp = ts.Peak()
 		sd.quality = frameQuality(so.Number, ts.Quality)
 		kept := false
 		if ts.Geometry.SameGrid(ref, 0.01) {
@@ -109,34 +109,6 @@ func prepareSonication(ctx context.Context, so *dosemap.Sonication, s Settings, 
 		}
 	}
 	return sd, dm.Unit, nil
-}
-
-// peakOverFrames returns the highest valid temperature of every voxel of
-// ts over its frames (°C, NaN where never valid), on ts's grid.
-func peakOverFrames(ts *dosemap.TemperatureSeries) *dosemap.Volume {
-	v := &dosemap.Volume{Geometry: ts.Geometry, Data: make([]float32, ts.Geometry.Len())}
-	pk := v.Data
-	ninf := float32(math.Inf(-1))
-	for i := range pk {
-		pk[i] = ninf
-	}
-	// x > p is false for a NaN x: invalid values leave the peak as it
-	// is, without a branch of their own.
-	for _, fr := range ts.Frames {
-		fr = fr[:len(pk)]
-		for i, x := range fr {
-			if x > pk[i] {
-				pk[i] = x
-			}
-		}
-	}
-	nan := float32(math.NaN())
-	for i, x := range pk {
-		if x == ninf {
-			pk[i] = nan
-		}
-	}
-	return v
 }
 
 // frameQuality converts the thermometry's frame quality.
