@@ -13,6 +13,8 @@ import (
 	"strings"
 	"testing"
 
+	"gonum.org/v1/plot"
+
 	"dosecover/dosemap/sim"
 )
 
@@ -108,6 +110,13 @@ func TestNotMeasurableEverywhere(t *testing.T) {
 		if head := strings.Fields(after); len(head) < 1 || head[0] != "not" {
 			t.Errorf("report PDF: headline figure %q, want \"not measurable\":\n%s", head[:min(3, len(head))], txt)
 		}
+		// The two curves have no points: their titles say why the axes
+		// are empty.
+		for _, want := range []string{"Target dose-volume histogram: not measurable", "Coverage versus threshold: not measurable"} {
+			if !strings.Contains(string(txt), want) {
+				t.Errorf("report PDF: no %q above the empty plot", want)
+			}
+		}
 	}
 
 	// The window: the figures panel says it, and no 0.0 % for the
@@ -128,6 +137,11 @@ func TestNotMeasurableEverywhere(t *testing.T) {
 	}
 	if len(rw.result.DVHPoints) != 0 {
 		t.Errorf("window: a target DVH of %d points for a target with no monitored part", len(rw.result.DVHPoints))
+	}
+	for _, p := range []*plot.Plot{dvhPlot(rw.result), coveragePlot(rw.result)} {
+		if !strings.HasSuffix(p.Title.Text, ": not measurable") {
+			t.Errorf("window: plot title %q over empty axes, want it to end \": not measurable\"", p.Title.Text)
+		}
 	}
 	if d := os.Getenv("DOSECOVER_SHOTS"); d != "" {
 		writePNG(t, filepath.Join(d, "window-not-measurable.png"), rw.win.Canvas().Capture())

@@ -235,6 +235,9 @@ func dvhPlot(r *analysisResult) *plot.Plot {
 			shown = append(shown, q)
 		}
 	}
+	if len(shown) < 2 {
+		p.Title.Text += ": not measurable" // no part of the target monitored
+	}
 	addLine(p, shown, view.ColorTarget, vg.Points(2), nil, "target")
 	addVLine(p, r.Threshold, 0, 100, plotGuide, []vg.Length{vg.Points(4), vg.Points(3)}, "threshold "+fmtNum(r.Threshold)) // the unit is on the axis
 	p.X.Min, p.X.Max = lo, hi
@@ -252,6 +255,9 @@ func coveragePlot(r *analysisResult) *plot.Plot {
 	}
 	p.X.Scale = plot.LogScale{}
 	p.X.Tick.Marker = plot.LogTicks{Prec: -1}
+	if len(pts) < 2 {
+		p.Title.Text += ": not measurable" // no part of the target monitored
+	}
 	addLine(p, pts, view.ColorMargin, vg.Points(2), nil, "covered")
 	addVLine(p, r.Threshold, 0, 100, plotGuide, []vg.Length{vg.Points(4), vg.Points(3)}, "in use "+fmtNum(r.Threshold))
 	p.Y.Min, p.Y.Max = 0, 100

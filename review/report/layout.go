@@ -670,6 +670,9 @@ func curvePlot(title, xlabel, ylabel string, pts []CurvePoint, threshold float64
 		xmin, xmax = math.Min(xmin, q.X), math.Max(xmax, q.X)
 	}
 	if len(xy) < 2 {
+		// No curve (no part of the target monitored): said in the title,
+		// not left as empty axes.
+		pl.Title.Text = title + ": not measurable"
 		pl.X.Min, pl.X.Max = 1, 1000
 		pl.X.Scale = plot.LogScale{}
 		pl.X.Tick.Marker = logTicks{}
