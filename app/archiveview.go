@@ -32,7 +32,7 @@ func (rw *reviewWindow) openFromArchive() { showDialog(rw.win, rw.archiveSearch(
 // archiveDialog holds the widgets of the archive search, for tests.
 type archiveDialog struct {
 	dialog                      dialog.Dialog
-	url, patient                *widget.Entry
+	url, patient                *dialogEntry
 	list                        *widget.List
 	status                      *widget.Label
 	search, retrieve, cancelRet *widget.Button
@@ -41,10 +41,10 @@ type archiveDialog struct {
 // archiveSearch builds the archive search dialog (not shown).
 func (rw *reviewWindow) archiveSearch() *archiveDialog {
 	prefs := rw.app.Preferences()
-	urlEntry := widget.NewEntry()
+	urlEntry := newDialogEntry()
 	urlEntry.SetPlaceHolder("https://archive.example/dicom-web")
 	urlEntry.SetText(prefs.String(prefArchiveURL))
-	patient, name, from, to := widget.NewEntry(), widget.NewEntry(), widget.NewEntry(), widget.NewEntry()
+	patient, name, from, to := newDialogEntry(), newDialogEntry(), newDialogEntry(), newDialogEntry()
 	from.SetPlaceHolder("YYYY-MM-DD")
 	to.SetPlaceHolder("YYYY-MM-DD")
 	auth := "none (" + dicomweb.AuthEnv + " is not set)"

@@ -155,7 +155,7 @@ func TestEscapeInDialogField(t *testing.T) {
 	for _, d := range []struct {
 		name string
 		open func()
-	}{{"Analysis settings", rw.openSettings}, {"Sign off", rw.signOff}} {
+	}{{"Analysis settings", rw.openSettings}, {"Sign off", rw.signOff}, {"Open from archive", rw.openFromArchive}} {
 		d.open()
 		top := c.Overlays().Top()
 		if top == nil {
