@@ -193,11 +193,11 @@ type coolingFit struct {
 	w    float64
 	p    float64 // exponent of the conduction term
 	// unknown holds the runs [start, end) of voxels whose a is NaN, heated
-	// the voxels whose a is finite and not 0, in index order (see
-	// indexVoxels): addTo on f's own grid visits only these.
+	// the voxels whose a is finite and not 0, in index order (set by
+	// indexVoxels when the fit is made): addTo on f's own grid visits
+	// only these.
 	unknown [][2]int32
 	heated  []int32
-	indexed bool
 }
 
 // indexVoxels fills f.unknown and f.heated from f.amp.
@@ -218,7 +218,6 @@ func (f *coolingFit) indexVoxels() {
 		}
 		f.unknown = append(f.unknown, [2]int32{int32(start), int32(v)})
 	}
-	f.indexed = true
 }
 
 // table returns the decay factor e^{−w s}(1+s/τ)^{−3/2} for every τ of f at
@@ -271,11 +270,12 @@ func (f *coolingFit) addTo(g Geometry, tl *CoolingTail, rise []float32, corr [][
 		tf[fr] = f.table(t)
 	}
 	if f.g.SameGrid(g, 0.01) {
-		if acc == nil && f.indexed {
-			// Each voxel is changed by itself, once: visiting the unknown
-			// runs and then the heated voxels gives what the loop over
-			// every voxel below gives (voxels with a = 0 are left as
-			// they are; only is not consulted there either).
+		if acc == nil {
+			// Each voxel is changed by itself, once, so the unknown runs
+			// and then the heated voxels may be visited in any order:
+			// NaN where a is unknown, the rise and its changes added
+			// where a > 0, voxels with a = 0 left as they are (only is not
+			// consulted: f is unknown outside the mask it was fitted in).
 			for _, r := range f.unknown {
 				for v := r[0]; v < r[1]; v++ {
 					rise[v] = nan
@@ -293,34 +293,18 @@ func (f *coolingFit) addTo(g Geometry, tl *CoolingTail, rise []float32, corr [][
 			return
 		}
 		for v, a := range f.amp {
-			if acc != nil {
-				if a != a || (only != nil && !only[v]) {
-					continue
-				}
-				acc.cnt[v]++
-				if a == 0 {
-					continue
-				}
-				ti := f.tau[v]
-				b := a * tb[ti]
-				acc.sumR[v] += b
-				for fr := range tf {
-					acc.sumC[fr][v] += a*tf[fr][ti] - b
-				}
+			if a != a || (only != nil && !only[v]) {
 				continue
 			}
-			switch {
-			case a != a:
-				rise[v] = nan
-				continue
-			case a == 0:
+			acc.cnt[v]++
+			if a == 0 {
 				continue
 			}
 			ti := f.tau[v]
 			b := a * tb[ti]
-			rise[v] += b
+			acc.sumR[v] += b
 			for fr := range tf {
-				corr[fr][v] += a*tf[fr][ti] - b
+				acc.sumC[fr][v] += a*tf[fr][ti] - b
 			}
 		}
 		return
@@ -723,14 +707,7 @@ func smoothInPlane(g Geometry, x []float32, mask []bool) []float32 {
 	for k := 0; k < g.Slices; k++ {
 		for j := 0; j < rows; j++ {
 			row := (k*rows + j) * cols
-			// Rows j−1 and j+1 of the slice (row j itself at the edges).
-			up, down := row, row
-			if j > 0 {
-				up = row - cols
-			}
-			if j < rows-1 {
-				down = row + cols
-			}
+			up, down := row-cols, row+cols // rows j−1 and j+1, read inside the slice only
 			interior := j > 0 && j < rows-1
 			for i := 0; i < cols; i++ {
 				n := row + i
