@@ -46,15 +46,9 @@ func TestEscapeClosesDialogs(t *testing.T) {
 			t.Fatalf("%s: no dialog shown", d.name)
 		}
 		pressEscape(t, c)
-		if top := c.Overlays().Top(); top != nil {
-			t.Errorf("%s: the dialog stays after Escape", d.name)
-			top.Hide()
-			c.Overlays().Remove(top)
-		}
+		closedByEscape(t, c, d.name+": the dialog stays after Escape")
 	}
-	if rw.record != nil && len(rw.record.SignOffs) != 0 {
-		t.Errorf("Escape on the sign-off dialog recorded %d sign-offs", len(rw.record.SignOffs))
-	}
+	noSignOff(t, rw)
 	// An error over the settings: the error goes first, then the settings.
 	rw.openSettings()
 	rw.showError("The settings file could not be read", errors.New("not JSON"))
@@ -177,15 +171,9 @@ func TestEscapeInDialogField(t *testing.T) {
 			t.Errorf("%s: typing 7 and Backspace left %q, want %q", d.name, f.Text, before)
 		}
 		c.Focused().TypedKey(&fyne.KeyEvent{Name: fyne.KeyEscape})
-		if top := c.Overlays().Top(); top != nil {
-			t.Errorf("%s: the dialog stays after Escape in its field", d.name)
-			top.Hide()
-			c.Overlays().Remove(top)
-		}
+		closedByEscape(t, c, d.name+": the dialog stays after Escape in its field")
 	}
-	if rw.record != nil && len(rw.record.SignOffs) != 0 {
-		t.Errorf("Escape in the sign-off dialog recorded %d sign-offs", len(rw.record.SignOffs))
-	}
+	noSignOff(t, rw)
 }
 
 // TestSignOffRecordWording: the record the sign-off dialog shows says of
@@ -210,5 +198,25 @@ func TestSignOffRecordWording(t *testing.T) {
 	want := "\nCovered: " + review.PercentText(rw.result.CoveredFraction) + " of the monitored target\nSettings: " + rw.settings.Describe()
 	if !strings.HasSuffix(record, want) {
 		t.Errorf("record %q, want it to end %q", record, want)
+	}
+}
+
+// closedByEscape reports failure when a dialog is still on top of c, and
+// removes it so the next dialog of the test starts alone.
+func closedByEscape(t *testing.T, c fyne.Canvas, failure string) {
+	t.Helper()
+	if top := c.Overlays().Top(); top != nil {
+		t.Error(failure)
+		top.Hide()
+		c.Overlays().Remove(top)
+	}
+}
+
+// noSignOff reports failure when closing dialogs with Escape recorded a
+// sign-off.
+func noSignOff(t *testing.T, rw *reviewWindow) {
+	t.Helper()
+	if rw.record != nil && len(rw.record.SignOffs) != 0 {
+		t.Errorf("Escape on the sign-off dialog recorded %d sign-offs", len(rw.record.SignOffs))
 	}
 }
